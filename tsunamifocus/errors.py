@@ -1,0 +1,92 @@
+"""Exception and warning classes of tsunamifocus.
+
+Every error the package raises on purpose derives from :class:`TsunamiFocusError`
+and also from the matching builtin, so callers may catch either::
+
+    try:
+        depth = load_bathymetry("grid.nc", values="elevation")
+    except tsunamifocus.DataFileError as exc:   # also an OSError
+        ...
+
+Messages name the file, the field, the value and what was expected.
+"""
+
+from __future__ import annotations
+
+__all__ = [
+    "TsunamiFocusError",
+    "InputError",
+    "DataFileError",
+    "CRSError",
+    "SignConventionError",
+    "ResourceLimitError",
+    "ScenarioError",
+    "SourceError",
+    "RayError",
+    "CoastError",
+    "OutputExistsError",
+    "HealthCheckError",
+    "TsunamiFocusWarning",
+    "ScalingWarning",
+    "ResolutionWarning",
+]
+
+
+class TsunamiFocusError(Exception):
+    """Root of every error raised on purpose by tsunamifocus."""
+
+
+class InputError(TsunamiFocusError, ValueError):
+    """A parameter or input value is out of range or of the wrong kind."""
+
+
+class DataFileError(TsunamiFocusError, OSError):
+    """A data file is missing, unreadable, corrupt or not of the expected layout."""
+
+
+class CRSError(InputError):
+    """A grid or vector file has no usable coordinate reference system."""
+
+
+class SignConventionError(InputError):
+    """Whether grid values are elevations or depths cannot be decided safely."""
+
+
+class ResourceLimitError(TsunamiFocusError, MemoryError):
+    """A job would need more memory (or time) than the configured limit."""
+
+
+class ScenarioError(InputError):
+    """A scenario file has an unknown key, a wrong type or an out-of-range value."""
+
+
+class SourceError(InputError):
+    """An earthquake source description is invalid or does not fit the grid."""
+
+
+class RayError(InputError):
+    """Ray launch parameters are invalid (on land, outside the grid, bad counts...)."""
+
+
+class CoastError(InputError):
+    """A coastline cannot be built or read, or its segmentation is impossible."""
+
+
+class OutputExistsError(TsunamiFocusError, FileExistsError):
+    """An output folder already holds results and ``overwrite`` was not given."""
+
+
+class HealthCheckError(TsunamiFocusError, RuntimeError):
+    """A numerical health check of a run failed (e.g. energy bookkeeping error)."""
+
+
+class TsunamiFocusWarning(UserWarning):
+    """Root of the warnings of tsunamifocus: allowed, but suspicious."""
+
+
+class ScalingWarning(TsunamiFocusWarning):
+    """A fault geometry is far from the published magnitude scaling relation."""
+
+
+class ResolutionWarning(TsunamiFocusWarning):
+    """Grid resolution, ray count or segment length limits what a result can say."""

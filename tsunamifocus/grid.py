@@ -1,0 +1,296 @@
+"""Grid conventions shared by every stage: CRS attachment, geometry and spacing.
+
+The package works on 2-D :class:`xarray.DataArray` grids laid out as follows
+(the "tsunamifocus grid convention"):
+
+* dims ``("y", "x")`` on a projected CRS (metres) or ``("lat", "lon")`` on a
+  geographic CRS (degrees);
+* both coordinates strictly ascending and regularly spaced; coordinate values are
+  the positions the data values refer to (cell centres for pixel-is-area grids,
+  nodes for pixel-is-point grids — never shifted by half a cell);
+* the CRS stored CF-style: a scalar coordinate ``spatial_ref`` whose attributes hold
+  ``crs_wkt`` (WKT2) and ``spatial_ref``; the variable's ``grid_mapping`` attribute
+  names it;
+* on a global geographic grid the duplicated seam column is dropped and the
+  attribute ``lon_periodic = 1`` marks that longitude wraps around.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from functools import cached_property
+
+import numpy as np
+import xarray as xr
+from pyproj import CRS
+
+from .constants import EARTH_RADIUS_M
+from .errors import CRSError, InputError
+
+__all__ = ["GridInfo", "attach_crs", "get_crs", "make_grid", "grid_info"]
+
+_REL_TOL = 1e-6
+
+
+def attach_crs(da: xr.DataArray, crs: CRS | str | int) -> xr.DataArray:
+    """Return ``da`` with ``crs`` attached as a CF ``spatial_ref`` grid-mapping coordinate.
+
+    Parameters
+    ----------
+    da : xarray.DataArray
+        Any DataArray.
+    crs : pyproj.CRS, str or int
+        Anything :meth:`pyproj.CRS.from_user_input` accepts (e.g. ``"EPSG:4326"``).
+
+    Returns
+    -------
+    xarray.DataArray
+        A copy carrying a scalar ``spatial_ref`` coordinate and ``grid_mapping`` attribute.
+    """
+    crs = CRS.from_user_input(crs)
+    wkt = crs.to_wkt()
+    attrs = dict(crs.to_cf())
+    attrs["crs_wkt"] = wkt
+    attrs["spatial_ref"] = wkt
+    out = da.assign_coords(spatial_ref=xr.DataArray(np.int32(0), attrs=attrs))
+    out.attrs["grid_mapping"] = "spatial_ref"
+    return out
+
+
+def get_crs(obj: xr.DataArray | xr.Dataset) -> CRS:
+    """Return the CRS attached to a grid by :func:`attach_crs`.
+
+    Raises
+    ------
+    CRSError
+        If the object carries no ``spatial_ref`` coordinate with ``crs_wkt``.
+    """
+    name = obj.attrs.get("grid_mapping", "spatial_ref")
+    if name not in obj.coords:
+        name = obj.encoding.get("grid_mapping", "spatial_ref")
+    if name in obj.coords and "crs_wkt" in obj.coords[name].attrs:
+        return CRS.from_wkt(obj.coords[name].attrs["crs_wkt"])
+    if name in obj.coords and "spatial_ref" in obj.coords[name].attrs:
+        return CRS.from_wkt(obj.coords[name].attrs["spatial_ref"])
+    raise CRSError("grid has no CRS: expected a 'spatial_ref' coordinate with a 'crs_wkt' attribute")
+
+
+def make_grid(
+    values: np.ndarray,
+    x: np.ndarray,
+    y: np.ndarray,
+    crs: CRS | str | int,
+    *,
+    name: str = "depth",
+    attrs: dict | None = None,
+    lon_periodic: bool | None = None,
+) -> xr.DataArray:
+    """Build a grid DataArray following the tsunamifocus grid convention.
+
+    Parameters
+    ----------
+    values : numpy.ndarray
+        2-D array of shape ``(len(y), len(x))``.
+    x, y : numpy.ndarray
+        Strictly ascending, regularly spaced coordinates (metres or degrees).
+    crs : pyproj.CRS, str or int
+        Coordinate reference system of ``x`` and ``y``.
+    name : str
+        Variable name.
+    attrs : dict, optional
+        Extra attributes.
+    lon_periodic : bool, optional
+        Mark a geographic grid as wrapping in longitude. Decided from the extent when None.
+
+    Returns
+    -------
+    xarray.DataArray
+    """
+    crs = CRS.from_user_input(crs)
+    x = np.asarray(x, dtype=float)
+    y = np.asarray(y, dtype=float)
+    geographic = crs.is_geographic
+    xd, yd = ("lon", "lat") if geographic else ("x", "y")
+    da = xr.DataArray(np.asarray(values), dims=(yd, xd), coords={yd: y, xd: x}, name=name)
+    if attrs:
+        da.attrs.update(attrs)
+    if geographic:
+        da[xd].attrs.update(units="degrees_east", standard_name="longitude", long_name="longitude")
+        da[yd].attrs.update(units="degrees_north", standard_name="latitude", long_name="latitude")
+        if lon_periodic is None:
+            lon_periodic = len(x) > 1 and abs((x[1] - x[0]) * len(x) - 360.0) < 1e-6 * 360.0
+        da.attrs["lon_periodic"] = int(bool(lon_periodic))
+    else:
+        da[xd].attrs.update(units="m", standard_name="projection_x_coordinate", long_name="easting")
+        da[yd].attrs.update(units="m", standard_name="projection_y_coordinate", long_name="northing")
+    return attach_crs(da, crs)
+
+
+@dataclass(frozen=True)
+class GridInfo:
+    """Geometry of a regular grid following the tsunamifocus grid convention.
+
+    Attributes
+    ----------
+    geographic : bool
+        True for lon/lat degrees on a sphere, False for a projected plane in metres.
+    x0, y0 : float
+        Coordinate of the first column / row (degrees or metres).
+    dx, dy : float
+        Positive spacing (degrees or metres).
+    nx, ny : int
+        Number of columns and rows.
+    periodic_x : bool
+        True when longitude wraps (a global grid with ``nx * dx == 360``).
+    crs_wkt : str
+        WKT2 of the CRS.
+    radius_m : float
+        Sphere radius used for geographic grids [m].
+    """
+
+    geographic: bool
+    x0: float
+    y0: float
+    dx: float
+    dy: float
+    nx: int
+    ny: int
+    periodic_x: bool
+    crs_wkt: str
+    radius_m: float = EARTH_RADIUS_M
+
+    @classmethod
+    def from_dataarray(cls, da: xr.DataArray) -> GridInfo:
+        """Read the geometry of a grid DataArray, checking the convention.
+
+        Raises
+        ------
+        InputError
+            If the grid is not 2-D, not ascending or not regularly spaced.
+        CRSError
+            If no CRS is attached.
+        """
+        if da.ndim != 2:
+            raise InputError(f"grid '{da.name}' must be 2-D, got dims {da.dims}")
+        crs = get_crs(da)
+        yd, xd = da.dims
+        expected = ("lat", "lon") if crs.is_geographic else ("y", "x")
+        if (yd, xd) != expected:
+            raise InputError(f"grid '{da.name}' has dims {da.dims}; expected {expected} for its CRS")
+        x = np.asarray(da[xd].values, dtype=float)
+        y = np.asarray(da[yd].values, dtype=float)
+        for name, c in ((xd, x), (yd, y)):
+            if c.size < 2:
+                raise InputError(f"grid '{da.name}': coordinate '{name}' needs at least 2 values")
+            d = np.diff(c)
+            if np.any(d <= 0):
+                raise InputError(f"grid '{da.name}': coordinate '{name}' must be strictly ascending")
+            if np.max(np.abs(d - d.mean())) > _REL_TOL * abs(d.mean()) + 1e-9:
+                raise InputError(f"grid '{da.name}': coordinate '{name}' is not regularly spaced")
+        dx = float((x[-1] - x[0]) / (x.size - 1))
+        dy = float((y[-1] - y[0]) / (y.size - 1))
+        periodic = bool(da.attrs.get("lon_periodic", 0)) and crs.is_geographic
+        return cls(
+            geographic=crs.is_geographic,
+            x0=float(x[0]),
+            y0=float(y[0]),
+            dx=dx,
+            dy=dy,
+            nx=int(x.size),
+            ny=int(y.size),
+            periodic_x=periodic,
+            crs_wkt=crs.to_wkt(),
+        )
+
+    @cached_property
+    def crs(self) -> CRS:
+        """The grid's :class:`pyproj.CRS`."""
+        return CRS.from_wkt(self.crs_wkt)
+
+    @property
+    def dims(self) -> tuple[str, str]:
+        """Dimension names ``(ydim, xdim)``."""
+        return ("lat", "lon") if self.geographic else ("y", "x")
+
+    @property
+    def x(self) -> np.ndarray:
+        """Column coordinates."""
+        return self.x0 + self.dx * np.arange(self.nx)
+
+    @property
+    def y(self) -> np.ndarray:
+        """Row coordinates."""
+        return self.y0 + self.dy * np.arange(self.ny)
+
+    @property
+    def bounds(self) -> tuple[float, float, float, float]:
+        """Outer edges ``(xmin, ymin, xmax, ymax)`` of the cells (half a cell beyond the centres)."""
+        return (
+            self.x0 - 0.5 * self.dx,
+            self.y0 - 0.5 * self.dy,
+            self.x0 + (self.nx - 0.5) * self.dx,
+            self.y0 + (self.ny - 0.5) * self.dy,
+        )
+
+    def spacing_m(self) -> tuple[float, float]:
+        """Cell size in metres ``(dx_m, dy_m)``; on lon/lat, dx at the grid's mid latitude."""
+        if not self.geographic:
+            return self.dx, self.dy
+        lat_mid = self.y0 + 0.5 * (self.ny - 1) * self.dy
+        k = math.pi / 180.0 * self.radius_m
+        return self.dx * k * math.cos(math.radians(lat_mid)), self.dy * k
+
+    def min_spacing_m(self) -> float:
+        """Smallest cell side in metres anywhere on the grid (polar rows excluded below 1 m)."""
+        if not self.geographic:
+            return min(self.dx, self.dy)
+        k = math.pi / 180.0 * self.radius_m
+        coslat = np.cos(np.radians(np.clip(self.y, -89.999, 89.999)))
+        return float(min(self.dy * k, max(self.dx * k * coslat.min(), 1.0)))
+
+    def cell_area_m2(self) -> np.ndarray:
+        """Cell areas in m^2 as an array of shape ``(ny, 1)`` (geographic) or ``(1, 1)``."""
+        if not self.geographic:
+            return np.full((1, 1), self.dx * self.dy)
+        r = self.radius_m
+        lat = np.radians(self.y)
+        half = math.radians(self.dy) / 2.0
+        band = np.sin(np.clip(lat + half, -np.pi / 2, np.pi / 2)) - np.sin(
+            np.clip(lat - half, -np.pi / 2, np.pi / 2)
+        )
+        return (r * r * math.radians(self.dx) * band)[:, None]
+
+    def index_of(self, x: np.ndarray | float, y: np.ndarray | float) -> tuple[np.ndarray, np.ndarray]:
+        """Fractional (column, row) index of points; longitudes wrapped onto the grid if periodic."""
+        x = np.asarray(x, dtype=float)
+        y = np.asarray(y, dtype=float)
+        if self.geographic:
+            x = self.wrap_lon(x)
+        return (x - self.x0) / self.dx, (y - self.y0) / self.dy
+
+    def wrap_lon(self, lon: np.ndarray | float) -> np.ndarray:
+        """Bring longitudes into the grid's longitude range ``[x0 - dx/2, x0 - dx/2 + 360)``."""
+        lon = np.asarray(lon, dtype=float)
+        if not self.geographic:
+            return lon
+        lo = self.x0 - 0.5 * self.dx
+        wrapped = lo + np.mod(lon - lo, 360.0)
+        if self.periodic_x:
+            return wrapped
+        # non-global grid: wrap only if that brings the point inside the grid
+        hi = self.bounds[2]
+        return np.where((wrapped <= hi) | (lon > hi) | (lon < lo), np.where(wrapped <= hi, wrapped, lon), lon)
+
+    def contains(self, x: np.ndarray | float, y: np.ndarray | float) -> np.ndarray:
+        """True where points lie inside the grid's outer cell edges."""
+        fi, fj = self.index_of(x, y)
+        inside_y = (fj >= -0.5) & (fj <= self.ny - 0.5)
+        if self.periodic_x:
+            return inside_y
+        return inside_y & (fi >= -0.5) & (fi <= self.nx - 0.5)
+
+
+def grid_info(da: xr.DataArray) -> GridInfo:
+    """Shorthand for :meth:`GridInfo.from_dataarray`."""
+    return GridInfo.from_dataarray(da)
