@@ -122,6 +122,26 @@ def test_greens_law_on_plane_slope():
     assert amp[int(300e3 / dx) - 200] == pytest.approx(0.5, rel=0.01)
 
 
+def test_radiating_edge_lets_a_normal_pulse_out():
+    # First-order radiation (Sommerfeld) condition q = sqrt(g h) eta: exact for a long wave leaving at
+    # normal incidence (d'Alembert: a right-going wave satisfies eta_t + c eta_x = 0). The discrete
+    # reflection is a first-order truncation error, so it falls as the pulse is resolved by more cells.
+    dx, h = 1000.0, 1000.0
+    x = np.arange(0.0, 400e3, dx)
+    depth = make_grid(np.full((3, x.size), h), x, np.arange(3) * dx, "EPSG:3857")
+    c = math.sqrt(GRAVITY * h)
+    left = []
+    for sig in (5e3, 10e3):
+        eta0 = depth.copy(data=np.tile(np.exp(-((x - 200e3) ** 2) / (2 * sig**2)), (3, 1)))
+        res = simulate_linear_long_wave(
+            depth, eta0, duration_s=1.3 * (200e3 + 8 * sig) / c, boundary=("absorb", "absorb", "reflect", "reflect")
+        )
+        left.append(np.max(np.abs(res.eta.values)) / 0.5)  # relative to the incident half-pulse
+        assert res.stats["outflow_m3"] == pytest.approx(res.stats["volume0_m3"], rel=1e-6)
+    assert left[1] < 0.01
+    assert left[1] < 0.6 * left[0]
+
+
 # ------------------------------------------------------------------------------------------------
 # volume conservation, NaN land, determinism
 # ------------------------------------------------------------------------------------------------

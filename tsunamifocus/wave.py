@@ -47,6 +47,7 @@ import numpy as np
 import xarray as xr
 
 from . import _wavekernel as _k
+from .cautions import caution_summary, caution_text
 from .constants import EARTH_RADIUS_M, GRAVITY
 from .errors import CoastError, InputError, ResolutionWarning, ResourceLimitError
 from .grid import GridInfo
@@ -61,11 +62,11 @@ __all__ = [
     "WAVE_CAUTION",
 ]
 
-#: Short cautions line carried by every output of this module (full text: CAUTIONS.md).
+#: Cautions line carried by the figure of this module: the first paragraph of CAUTIONS.md plus the
+#: limits of the wave check. Grids carry the full text in ``attrs["cautions"]``.
 WAVE_CAUTION = (
-    "SCREENING ESTIMATES ONLY: not a tsunami warning, forecast or inundation map. Follow official "
-    "tsunami warning centres and local emergency management; defer to local codes and licensed "
-    "practitioners (see CAUTIONS.md). Linear long-wave model: no friction, no nonlinearity, no inundation."
+    caution_summary()
+    + " Wave check: linear long-wave equations, no friction, no nonlinearity, no inundation."
 )
 
 _EDGES = ("west", "east", "south", "north")
@@ -343,7 +344,7 @@ def _as_grid(template: xr.DataArray, values: np.ndarray, name: str, attrs: dict[
     out = template.copy(data=values)
     out.name = name
     keep = {k: v for k, v in template.attrs.items() if k in ("grid_mapping", "lon_periodic")}
-    out.attrs = {**keep, **attrs, "cautions": WAVE_CAUTION}
+    out.attrs = {**keep, **attrs, "cautions": caution_text()}
     return out
 
 
@@ -588,7 +589,7 @@ def simulate_linear_long_wave(
             dims=("time", yd, xd),
             coords={"time": np.asarray(snap_t), yd: depth[yd].values, xd: depth[xd].values},
             name="eta",
-            attrs={"units": "m", "long_name": "surface elevation snapshots", "cautions": WAVE_CAUTION},
+            attrs={"units": "m", "long_name": "surface elevation snapshots", "cautions": caution_text()},
         )
         snap_da["time"].attrs["units"] = "s"
         if "spatial_ref" in depth.coords:
@@ -723,7 +724,7 @@ def segment_max_amplitude(
             else:
                 out[s] = np.percentile(v, 90)
     ser = pd.Series(out, index=pd.Index(ids, name="segment_id"), name="wave_amp_stop_m")
-    ser.attrs.update(units="m", statistic=statistic, search_radius_cells=search_radius_cells, cautions=WAVE_CAUTION)
+    ser.attrs.update(units="m", statistic=statistic, search_radius_cells=search_radius_cells, cautions=caution_text())
     return ser
 
 
@@ -859,8 +860,8 @@ def plot_ray_vs_wave(
     cat = np.zeros(a.size, dtype=int)
     for i in range(a.size):
         cat[i] = 3 if (i in ta and i in tb) else 1 if i in ta else 2 if i in tb else 0
-    fig = Figure(figsize=(7.5, 6.6), dpi=dpi)
-    ax = fig.add_axes((0.13, 0.2, 0.82, 0.7))
+    fig = Figure(figsize=(7.5, 7.2), dpi=dpi)
+    ax = fig.add_axes((0.13, 0.25, 0.82, 0.67))
     styles = {
         0: ("other segments", _OI["grey"], "o", 22),
         1: (f"top {kk} by rays only", _OI["vermillion"], "^", 46),
@@ -903,7 +904,7 @@ def plot_ray_vs_wave(
             bbox={"facecolor": "white", "edgecolor": "#888888", "alpha": 0.9})
     if title:
         ax.set_title(title, fontsize=11.5)
-    fig.text(0.02, 0.02, _wrap(WAVE_CAUTION, 120), fontsize=7, va="bottom", ha="left", color="#333333")
+    fig.text(0.02, 0.02, _wrap(WAVE_CAUTION, 135), fontsize=7, va="bottom", ha="left", color="#333333")
     fig.savefig(path, dpi=dpi)
     return path
 
