@@ -726,6 +726,7 @@ def uplift_on_grid(
         if horizontal:
             eta += _tanioka_satake(gi, dep, ue_all, un_all)  # type: ignore[arg-type]
         attrs_src = {
+            "strike_deg": _mean_strike(src, gi),
             "source_kind": "rupture",
             "source_name": src.name,
             "Mw": round(src.mw, 3),
@@ -739,6 +740,16 @@ def uplift_on_grid(
                            "cautions": _caution_summary(), **attrs_src},
                     lon_periodic=gi.periodic_x if gi.geographic else None)
     return out
+
+
+def _mean_strike(src: Rupture, gi: GridInfo) -> float:
+    """Moment-weighted circular mean strike of the segments in the grid frame [degrees]."""
+    vec = 0j
+    for seg, slip in zip(src.segments, src.slips_m):
+        geo = _segment_geometry(seg, gi)
+        a = math.atan2(geo["e"][1] - geo["e"][0], geo["n"][1] - geo["n"][0])
+        vec += seg.moment_nm(slip) * np.exp(1j * a)
+    return float(math.degrees(np.angle(vec)) % 360.0)
 
 
 def _point_uplift(src: PointSource, gi: GridInfo, dep: np.ndarray, eta: np.ndarray) -> None:
@@ -969,7 +980,8 @@ class RayFan:
     crs_wkt : str
         CRS of the launch points.
     pattern_azimuth_deg, pattern : numpy.ndarray
-        The directional energy distribution (fraction of E per degree) at fine azimuths.
+        The directional energy distribution: fraction of E in each 0.1-degree bin centred at
+        ``pattern_azimuth_deg``.
     seed : int
         Seed of the launch-point sampling.
     method : str
@@ -1043,15 +1055,16 @@ def make_ray_fan(
     threshold: float = 0.1,
     strike_deg: float | None = None,
     azimuth_offset_deg: float = 0.0,
-    oversample: int = 8,
 ) -> RayFan:
     """Energy-weighted ray fan from an initial sea surface.
 
     Directions: ``n_rays`` azimuths evenly spaced (``360 / n_rays`` apart, starting at
     ``azimuth_offset_deg + 180 / n_rays``); ray ``i`` carries ``E x`` the fraction of the
-    far-field directional energy ``P(theta)`` (:func:`directional_spectrum`, averaged over
-    ``oversample`` sub-directions of its bin) falling in its bin — so the weights sum to
-    ``E`` and an elongated source beams most energy perpendicular to its long axis.
+    far-field directional energy ``P(theta)`` (:func:`directional_spectrum`, evaluated every
+    0.1 degree and integrated over the ray's bin) falling in its bin — so the weights sum to
+    ``E`` and an elongated source beams most energy perpendicular to its long axis. The
+    azimuths are clockwise from north on lon/lat grids and from grid north (the ``y`` axis) on
+    projected grids.
 
     Launch points: sampled (``numpy.random.default_rng(seed)``, with ``eta^2 x cell area`` as
     probability) among sea cells with ``|eta| >= threshold x max|eta|``; a ray heading to the
@@ -1071,12 +1084,11 @@ def make_ray_fan(
     threshold : float
         Fraction of the peak |eta| bounding the launch area (0 < threshold < 1).
     strike_deg : float, optional
-        Strike for the sides; default: long axis of the ``eta^2`` distribution, oriented
-        0-180 degrees.
+        Strike for the sides; default: ``eta.attrs["strike_deg"]`` (set by
+        :func:`uplift_on_grid` for ruptures), else the long axis of the ``eta^2`` distribution
+        (oriented 0-180 degrees).
     azimuth_offset_deg : float
         Rotation of the azimuth set [degrees].
-    oversample : int
-        Sub-directions per ray bin for the directional integral.
 
     Returns
     -------
@@ -1108,19 +1120,27 @@ def make_ray_fan(
     lat_mid = float(gi.y[rows].mean()) if gi.geographic else 0.0
     dx_m, dy_m = _metric_spacing(gi, lat_mid)
 
-    # directional pattern
-    width = 360.0 / n_rays
-    centres = (azimuth_offset_deg + width * (np.arange(n_rays) + 0.5)) % 360.0
-    sub = centres[:, None] + width * ((np.arange(oversample) + 0.5) / oversample - 0.5)[None, :]
-    P = directional_spectrum(block, dx_m, dy_m, sub.ravel()).reshape(sub.shape).mean(axis=1)
-    P = np.maximum(P, 0.0)
-    if not P.sum() > 0:
-        raise SourceError("directional spectrum of the source is empty (source smaller than a grid cell?)")
-    frac = P / P.sum()
-    weights = energy * frac
-    fine_az = np.arange(0.0, 360.0, 1.0) + 0.5
+    # directional pattern on a fine azimuth set, then integrated over each ray's bin
+    n_fine = 3600
+    dfine = 360.0 / n_fine
+    fine_az = dfine * (np.arange(n_fine) + 0.5)
     Pf = np.maximum(directional_spectrum(block, dx_m, dy_m, fine_az), 0.0)
+    if not Pf.sum() > 0:
+        raise SourceError("directional spectrum of the source is empty (source smaller than a grid cell?)")
     pattern = Pf / Pf.sum()
+    cum = np.concatenate([[0.0], np.cumsum(pattern)])  # at fine bin edges 0, dfine, ..., 360
+
+    def cdf(a: np.ndarray) -> np.ndarray:
+        turns = np.floor(a / 360.0)
+        return turns + np.interp(a - 360.0 * turns, dfine * np.arange(n_fine + 1), cum)
+
+    width = 360.0 / n_rays
+    edges = azimuth_offset_deg + width * np.arange(n_rays + 1)
+    centres = (edges[:-1] + 0.5 * width) % 360.0
+    c = cdf(edges)
+    frac = np.diff(c)
+    frac = np.maximum(frac, 0.0)
+    weights = energy * (frac / frac.sum())
 
     # launch area in local metric coordinates
     jj, ii = np.nonzero(sig)
@@ -1136,6 +1156,8 @@ def make_ray_fan(
         Ex, Ny = xs, ys
     area = np.broadcast_to(gi.cell_area_m2(), e.shape)[jj, ii]
     w = es[jj, ii] ** 2 * area
+    if strike_deg is None and "strike_deg" in eta.attrs:
+        strike_deg = float(eta.attrs["strike_deg"])
     if strike_deg is None:
         strike = _principal_strike(Ex, Ny, w)
     else:
