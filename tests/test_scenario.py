@@ -412,3 +412,14 @@ def test_docs_example_parses(tmp_path):
     sc = parse_scenario(_write(tmp_path, block))
     assert sc.sources[0].magnitude == 8.8 and len(sc.sources[0].segments) == 2
     assert sc.ensemble.members == 16
+
+
+def test_bundled_sample_scenarios_parse():
+    """Every bundled sample scenario is valid against the schema, and its data paths exist."""
+    files = sorted((REPO / "sample_scenarios").glob("*.toml"))
+    if not files:
+        pytest.skip("no sample scenario bundled yet")
+    for f in files:
+        sc = parse_scenario(f)
+        assert sc.bathymetry.path.is_file(), sc.bathymetry.path
+        assert sc.bathymetry.path.is_relative_to(f.parent.resolve())
