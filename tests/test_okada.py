@@ -51,7 +51,8 @@ def _integrate_points(x, y, d, dip, L, W, disl, n=48):
 
 @pytest.mark.parametrize(
     "x,y,d,dip",
-    [(2.0, 3.0, 4.0, 70.0), (5.0, -4.0, 4.0, 30.0), (1.0, -10.0, 4.0, 90.0), (-3.0, 2.0, 7.0, 10.0)],
+    [(2.0, 3.0, 4.0, 70.0), (5.0, -4.0, 4.0, 30.0), (1.0, -10.0, 4.0, 90.0), (-3.0, 2.0, 7.0, 10.0),
+     (0.0, 0.0, 4.0, -90.0), (2.0, 1.0, 4.0, -90.0)],
 )
 @pytest.mark.parametrize("disl", [(1, 0, 0), (0, 1, 0), (0, 0, 1)])
 def test_finite_equals_integrated_point_sources(x, y, d, dip, disl):

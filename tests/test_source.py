@@ -192,6 +192,10 @@ def test_geographic_grid_agrees_with_projected():
     assert float(eg.max()) == pytest.approx(float(ep.max()), rel=0.02)
     assert float(eg.min()) == pytest.approx(float(ep.min()), rel=0.03)
     assert potential_energy(eg, geo) == pytest.approx(potential_energy(ep, d), rel=0.02)
+    # the same trace given in lon/lat on the UTM grid (converted with pyproj, always_xy)
+    el = uplift_on_grid(FaultSegment(trace=((-122.0, 35.0), (-122.0, 36.5)), top_depth_km=5.0, dip_deg=20.0,
+                                     width_km=60.0, slip_m=4.0), d)
+    np.testing.assert_allclose(el.values, ep.values, atol=1e-9)
 
 
 def _hump_energy(amp, radius_m):

@@ -100,7 +100,9 @@ def moment_from_magnitude(mw: float | np.ndarray) -> float | np.ndarray:
     float or numpy.ndarray
         Seismic moment [N m].
     """
-    return 10.0 ** (1.5 * np.asarray(mw, dtype=float) + 9.1) if np.ndim(mw) else 10.0 ** (1.5 * float(mw) + 9.1)
+    if np.ndim(mw):
+        return 10.0 ** (1.5 * np.asarray(mw, dtype=float) + 9.1)
+    return 10.0 ** (1.5 * float(mw) + 9.1)
 
 
 def magnitude_from_moment(m0: float | np.ndarray) -> float | np.ndarray:
@@ -160,10 +162,6 @@ def _scaling_check(mw: float, length_km: float, width_km: float, what: str) -> N
 
 
 # --------------------------------------------------------------------------- source objects
-
-
-def _is_geographic(crs: CRS) -> bool:
-    return bool(crs.is_geographic)
 
 
 @dataclass
@@ -682,7 +680,7 @@ def uplift_on_grid(
             what = f"rupture {src.name!r} segment {iseg} ({seg.name!r})"
             geo = _segment_geometry(seg, gi)
             _check_inside(gi, geo["gx"], geo["gy"], what)
-            # trace over land only?
+            # trace over land only? (41 points along the trace, nearest cell)
             t = np.linspace(0.0, 1.0, 41)
             if gi.geographic:
                 pts = Geod(ellps="WGS84").npts(geo["gx"][0], geo["gy"][0], geo["gx"][1], geo["gy"][1], 39)
