@@ -275,3 +275,36 @@ def test_every_writer_carries_caution_and_is_reproducible(tmp_path, utm_grid, se
         assert sorted(p.name for p in d.iterdir()) == sorted(f.name for f in files)  # no temporary leftovers
         hashes.append([_sha(f) for f in files])
     assert hashes[0] == hashes[1]
+
+
+def test_write_layers(tmp_path, geo_grid):
+    from tsunamifocus.export import write_layers
+
+    tt = geo_grid.rename("travel_time_min")
+    out = write_layers({"travel_time_min": tt, "lensing_factor": geo_grid}, tmp_path, title="run")
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["layers.nc", "lensing_factor.tif", "travel_time_min.tif"]
+    with rasterio.open(out["travel_time_min"]) as r:
+        assert r.units == ("min",)
+    ds = xr.open_dataset(out["netcdf"])
+    assert set(ds.data_vars) == {"travel_time_min", "lensing_factor", "spatial_ref"}
+    ds.close()
+    with pytest.raises(InputError, match="not usable as a file name"):
+        write_layers({"../x": tt}, tmp_path, title="run")
+
+
+def test_nullable_columns_keep_their_types(tmp_path, segments):
+    """Ranks with gaps (pandas Int64) and booleans with gaps stay integer/boolean fields with nulls."""
+    df = segments.assign(rank_amplitude=pd.array([2, None, 1], dtype="Int64"),
+                         robust=pd.array([True, None, False], dtype="boolean"),
+                         flag_obj=pd.Series([True, None, False], dtype=object))
+    out = write_segments(df, tmp_path / "n", "EPSG:32654", formats=("gpkg", "geojson"))
+    info = pyogrio.read_info(out["gpkg"])
+    types = dict(zip(info["fields"], zip(info["ogr_types"], info["ogr_subtypes"])))
+    assert types["rank_amplitude"][0] == "OFTInteger64"
+    assert types["robust"] == ("OFTInteger", "OFSTBoolean") and types["flag_obj"][1] == "OFSTBoolean"
+    meta, _, _, fields = pyogrio.raw.read(out["gpkg"])
+    col = dict(zip(meta["fields"], fields))
+    assert col["rank_amplitude"][0] == 2 and col["rank_amplitude"][2] == 1
+    props = [f["properties"] for f in json.loads(out["geojson"].read_text())["features"]]
+    assert [p.get("rank_amplitude") for p in props] == [2, None, 1]
+    assert [p.get("robust") for p in props] == [True, None, False]

@@ -15,6 +15,7 @@ import contextlib
 import json
 import math
 import os
+import re
 import tempfile
 from collections.abc import Iterator, Mapping
 from datetime import datetime, timezone
@@ -29,7 +30,15 @@ from .cautions import caution_lines, caution_summary, caution_text
 from .errors import CRSError, DataFileError, InputError
 from .grid import GridInfo, get_crs
 
-__all__ = ["LAYER_INFO", "write_cog", "write_netcdf", "write_segments", "write_points_csv"]
+__all__ = [
+    "LAYER_INFO",
+    "POINT_COLUMNS",
+    "write_cog",
+    "write_netcdf",
+    "write_layers",
+    "write_segments",
+    "write_points_csv",
+]
 
 #: Long names and units (UDUNITS spelling) of the standard raster layers of a run.
 LAYER_INFO: dict[str, tuple[str, str]] = {
@@ -281,28 +290,83 @@ def write_netcdf(
     return path
 
 
+def write_layers(
+    layers: Mapping[str, xr.DataArray],
+    folder: str | os.PathLike,
+    *,
+    title: str,
+    netcdf_name: str = "layers.nc",
+    **netcdf_kwargs: Any,
+) -> dict[str, Path]:
+    """Write each layer as ``<name>.tif`` (COG) and all of them into one CF NetCDF file.
+
+    Parameters
+    ----------
+    layers : mapping of name -> DataArray
+        Layers on one grid, e.g. ``travel_time_min``, ``energy``, ``lensing_factor``,
+        ``focusing_factor`` (names and units in :data:`LAYER_INFO`).
+    folder : path
+        Output folder (e.g. ``OutputFolder.root``).
+    title : str
+        NetCDF global title.
+    netcdf_name : str
+        File name of the NetCDF file.
+    **netcdf_kwargs
+        Passed to :func:`write_netcdf` (``history``, ``source``, ``references``...).
+
+    Returns
+    -------
+    dict
+        Layer name (and ``"netcdf"``) -> written path.
+    """
+    folder = Path(folder)
+    out: dict[str, Path] = {}
+    for name, da in layers.items():
+        if not re.fullmatch(r"[A-Za-z0-9_.-]+", name):
+            raise InputError(f"write_layers: layer name {name!r} is not usable as a file name")
+        out[name] = write_cog(da.rename(name), folder / f"{name}.tif")
+    out["netcdf"] = write_netcdf(layers, folder / netcdf_name, title=title, **netcdf_kwargs)
+    return out
+
+
 # ---------------------------------------------------------------------------------------------
 # Vectors and tables
 # ---------------------------------------------------------------------------------------------
 
 
-def _field_arrays(df: Any, columns: list[str]) -> list[np.ndarray]:
-    """Columns of a DataFrame as numpy arrays pyogrio can write (bool, int64, float64, object str)."""
+def _field_arrays(df: Any, columns: list[str]) -> tuple[list[np.ndarray], list[np.ndarray | None]]:
+    """Columns as arrays pyogrio writes with their proper OGR types, plus null masks.
+
+    bool -> Boolean, integers -> Integer64, floats -> Real (NaN -> null), anything else -> String.
+    Nullable pandas columns (``Int64``, ``boolean``, or object columns of bools/ints with gaps)
+    keep their type and get a null mask instead of being turned into text.
+    """
     import pandas as pd
 
-    out = []
+    data: list[np.ndarray] = []
+    masks: list[np.ndarray | None] = []
     for c in columns:
         s = df[c]
-        if pd.api.types.is_bool_dtype(s.dtype):
-            out.append(s.to_numpy(dtype=bool))
-        elif pd.api.types.is_integer_dtype(s.dtype):
-            out.append(s.to_numpy(dtype=np.int64))
-        elif pd.api.types.is_float_dtype(s.dtype):
-            out.append(s.to_numpy(dtype=np.float64))
+        na = s.isna().to_numpy(dtype=bool)
+        vals = [v for v, m in zip(s.tolist(), na) if not m]
+        mask = na if na.any() else None
+        if pd.api.types.is_bool_dtype(s.dtype) or (vals and all(isinstance(v, (bool, np.bool_)) for v in vals)):
+            data.append(np.array([bool(v) if not m else False for v, m in zip(s.tolist(), na)], dtype=bool))
+            masks.append(mask)
+        elif pd.api.types.is_integer_dtype(s.dtype) or (
+            vals and all(isinstance(v, (int, np.integer)) and not isinstance(v, (bool, np.bool_)) for v in vals)
+        ):
+            data.append(np.array([int(v) if not m else 0 for v, m in zip(s.tolist(), na)], dtype=np.int64))
+            masks.append(mask)
+        elif pd.api.types.is_float_dtype(s.dtype) or (
+            vals and all(isinstance(v, (int, float, np.integer, np.floating)) for v in vals)
+        ):
+            data.append(np.array([float(v) if not m else np.nan for v, m in zip(s.tolist(), na)], dtype=np.float64))
+            masks.append(None)
         else:
-            vals = [None if (v is None or (isinstance(v, float) and math.isnan(v))) else str(v) for v in s]
-            out.append(np.array(vals, dtype=object))
-    return out
+            data.append(np.array([None if m else str(v) for v, m in zip(s.tolist(), na)], dtype=object))
+            masks.append(None)
+    return data, masks
 
 
 def _geometry_type(geoms: np.ndarray) -> str:
@@ -449,7 +513,7 @@ def write_segments(
     if not all(g is None or isinstance(g, shapely.Geometry) for g in geoms):
         raise InputError("write_segments: the 'geometry' column must hold shapely geometries")
     fields = [c for c in table.columns if c != "geometry"]
-    field_data = _field_arrays(table, fields)
+    field_data, field_mask = _field_arrays(table, fields)
     stem = Path(path_stem)
     written: dict[str, Path] = {}
     caution = caution_text()
@@ -461,6 +525,7 @@ def write_segments(
                 shapely.to_wkb(geoms),
                 field_data,
                 fields,
+                field_mask=field_mask,
                 geometry_type=_geometry_type(geoms),
                 crs=crs.to_wkt(),
                 driver="GPKG",
@@ -480,6 +545,7 @@ def write_segments(
                 shapely.to_wkb(ll),
                 field_data,
                 fields,
+                field_mask=field_mask,
                 geometry_type=_geometry_type(ll),
                 crs="EPSG:4326",
                 driver="GeoJSON",
