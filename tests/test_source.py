@@ -291,6 +291,12 @@ def test_bad_segments():
         FaultSegment(trace=tr, **{**base, "slip_m": -1.0})
     with pytest.raises(SourceError, match="top_depth_km"):
         FaultSegment(trace=tr, **{**base, "top_depth_km": -1.0})
+    with pytest.raises(SourceError, match="dip_deg must be a number"):
+        FaultSegment(trace=tr, **{**base, "dip_deg": "steep"})
+    with pytest.raises(SourceError, match="trace must be"):
+        FaultSegment(trace=(140.0, 35.0), **base)
+    with pytest.raises(SourceError, match="radius_km"):
+        PointSource(140.0, 35.0, radius_km=0.0)
     for mw in (5.9, 9.8):
         with pytest.raises(SourceError, match="force=True"):
             FaultSegment(trace=tr, top_depth_km=5.0, dip_deg=15.0, magnitude=mw)
@@ -469,7 +475,16 @@ def test_summary():
     assert dd["energy_J"] == s.energy_J and "cautions" in dd
     import json
 
-    json.dumps(dd)
+    json.dumps(dd, allow_nan=False)
+    # a point source has no magnitude: NaN in the object, None in the dict
+    ps = PointSource(500e3, 4000e3, radius_km=40.0, amplitude_m=1.5, crs=UTM, name="hump")
+    sp = summarize_source(ps, uplift_on_grid(ps, d), d)
+    assert math.isnan(sp.mw) and sp.to_dict()["mw"] is None
+    assert sp.wavelength_km == pytest.approx(160.0) and "hump" in str(sp)
+    json.dumps(sp.to_dict(), allow_nan=False)
+    bad = eta.copy(data=np.where(np.abs(eta.values) > 1.0, np.nan, eta.values))
+    with pytest.raises(SourceError, match="NaN"):
+        potential_energy(bad, d)
 
 
 # --------------------------------------------------------------------------- seam & real data

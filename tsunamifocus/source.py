@@ -136,6 +136,18 @@ def strasser2010_interface(mw: float) -> tuple[float, float]:
     return 10.0 ** (-2.477 + 0.585 * mw), 10.0 ** (-0.882 + 0.351 * mw)
 
 
+def _as_float(obj: Any, name: str, what: str, optional: bool = False) -> None:
+    """Coerce attribute ``name`` of ``obj`` to float in place, or raise a one-line SourceError."""
+    v = getattr(obj, name)
+    if v is None and optional:
+        return
+    try:
+        f = float(v)
+    except (TypeError, ValueError):
+        raise SourceError(f"{what}: {name} must be a number, got {v!r}") from None
+    setattr(obj, name, f)
+
+
 def _check_magnitude(mw: float, force: bool, what: str) -> None:
     lo, hi = MW_RANGE
     if not np.isfinite(mw):
@@ -209,6 +221,10 @@ class FaultSegment:
 
     def __post_init__(self) -> None:
         what = f"fault segment {self.name!r}" if self.name else "fault segment"
+        for nm in ("top_depth_km", "dip_deg", "rake_deg", "rigidity_pa"):
+            _as_float(self, nm, what)
+        for nm in ("width_km", "slip_m", "magnitude"):
+            _as_float(self, nm, what, optional=True)
         try:
             (x1, y1), (x2, y2) = self.trace
             x1, y1, x2, y2 = (float(v) for v in (x1, y1, x2, y2))
@@ -356,10 +372,11 @@ class Rupture:
     Parameters
     ----------
     segments : list of FaultSegment
-        The segments (at least one).
+        The segments (at least one). A segment given without width receives the Strasser
+        et al. (2010) width of the total magnitude (its ``width_km`` is set in place).
     magnitude : float, optional
         Total moment magnitude. Segments without slip share the moment left after the
-        segments with a slip, as one uniform slip over their total area.
+        segments with a slip, as one uniform slip over their total area (``slips_m``).
     poisson : float
         Poisson's ratio of the half-space for Okada (0.25 = Okada's ``lambda = mu``).
     name : str
@@ -378,7 +395,12 @@ class Rupture:
     def __post_init__(self) -> None:
         if isinstance(self.segments, FaultSegment):
             self.segments = [self.segments]
-        self.segments = list(self.segments)
+        try:
+            self.segments = list(self.segments)
+        except TypeError:
+            raise SourceError(f"rupture {self.name!r}: segments must be a list of FaultSegment") from None
+        _as_float(self, "magnitude", f"rupture {self.name!r}", optional=True)
+        _as_float(self, "poisson", f"rupture {self.name!r}")
         if not self.segments or not all(isinstance(s, FaultSegment) for s in self.segments):
             raise SourceError(f"rupture {self.name!r}: segments must be a non-empty list of FaultSegment")
         if not (-0.5 < self.poisson < 0.5):
@@ -478,6 +500,8 @@ class PointSource:
     name: str = "point source"
 
     def __post_init__(self) -> None:
+        for nm in ("x", "y", "radius_km", "amplitude_m"):
+            _as_float(self, nm, f"point source {self.name!r}")
         if not (np.isfinite(self.x) and np.isfinite(self.y)):
             raise SourceError(f"point source {self.name!r}: centre must be finite, got ({self.x}, {self.y})")
         if not (np.isfinite(self.radius_km) and self.radius_km > 0):
@@ -897,6 +921,8 @@ def potential_energy(eta: xr.DataArray, depth: xr.DataArray, *, rho: float = RHO
     if e.shape != (gi.ny, gi.nx):
         raise SourceError(f"eta shape {e.shape} does not match the depth grid {(gi.ny, gi.nx)}")
     sea = _sea_mask(np.asarray(depth.values, dtype=float))
+    if np.any(sea & ~np.isfinite(e)):
+        raise SourceError(f"eta '{eta.name}' has NaN/inf values over {int(np.sum(sea & ~np.isfinite(e)))} sea cells")
     area = np.broadcast_to(gi.cell_area_m2(), e.shape)
     return float(0.5 * rho * gravity * np.sum(np.where(sea, e * e * area, 0.0)))
 
@@ -1242,8 +1268,17 @@ class SourceSummary:
     rays: dict[str, dict[str, float]]
 
     def to_dict(self) -> dict[str, Any]:
-        """Plain-Python dict (JSON-serialisable) including the cautions text."""
-        d = {k: getattr(self, k) for k in self.__dataclass_fields__}
+        """Plain-Python dict (strict-JSON serialisable: NaN becomes None) with the cautions text."""
+        def clean(v: Any) -> Any:
+            if isinstance(v, float) and not math.isfinite(v):
+                return None
+            if isinstance(v, dict):
+                return {k: clean(x) for k, x in v.items()}
+            if isinstance(v, (list, tuple)):
+                return [clean(x) for x in v]
+            return v
+
+        d = {k: clean(getattr(self, k)) for k in self.__dataclass_fields__}
         d["cautions"] = _caution_summary()
         return d
 
