@@ -1,0 +1,381 @@
+"""Tests of tsunamifocus.figures on synthetic projected and lon/lat inputs.
+
+The inputs are invented (a smooth random bathymetry with a wavy coast to the north); the
+checks look at the written PNG files (signature, size, dpi, text chunks) and at the pixels
+(colour-map centring, hatching of unreliable bars), not at hard-coded images.
+"""
+
+from __future__ import annotations
+
+import math
+import struct
+import zlib
+
+import numpy as np
+import pandas as pd
+import pytest
+from shapely.geometry import LineString, Polygon
+
+from tsunamifocus import figures
+from tsunamifocus.constants import GRAVITY
+from tsunamifocus.errors import InputError
+from tsunamifocus.grid import make_grid
+from tsunamifocus.randomfield import gaussian_random_field
+
+PNG_SIGNATURE = b"\x89PNG\r\n\x1a\n"  # PNG specification (ISO/IEC 15948), section 5.2
+
+
+# --------------------------------------------------------------------------------------
+# synthetic inputs
+# --------------------------------------------------------------------------------------
+
+
+def _coast_y(x, y_coast, amp, wavelength):
+    return y_coast + amp * np.sin(2 * np.pi * x / wavelength)
+
+
+def synthetic_case(geographic: bool, n_seg: int = 18, seed: int = 3) -> dict:
+    """Invented region: ocean to the south, wavy coast to the north, source in the south."""
+    if geographic:
+        x = np.linspace(150.0, 154.0, 161)  # lon
+        y = np.linspace(-41.0, -38.0, 121)  # lat
+        crs = "EPSG:4326"
+        kx = math.pi / 180 * 6371008.8 * math.cos(math.radians(-39.5))
+        ky = math.pi / 180 * 6371008.8
+        spacing = ((x[1] - x[0]) * kx, (y[1] - y[0]) * ky)
+        y_coast, amp, wl = -38.6, 0.12, 1.3
+        src = (151.5, -40.5)
+        scale = (kx, ky)
+    else:
+        # UTM 33S (a real projected CRS, about 40 S, west of the central meridian)
+        x0, y0 = 300e3, 5.5e6
+        x = x0 + np.arange(0.0, 400e3 + 1, 2.5e3)
+        y = y0 + np.arange(0.0, 300e3 + 1, 2.5e3)
+        crs = "EPSG:32733"
+        spacing = (2.5e3, 2.5e3)
+        y_coast, amp, wl = y0 + 255e3, 10e3, 130e3
+        src = (x0 + 150e3, y0 + 40e3)
+        scale = (1.0, 1.0)
+    X, Y = np.meshgrid(x, y)
+    yc = _coast_y(X, y_coast, amp, wl)
+    dist = (yc - Y) * scale[1]  # metres seaward of the coast
+    h = np.clip(dist / 60e3, -1, 1) * 3000.0 + 40.0
+    h = h * (1 + gaussian_random_field(h.shape, spacing, 20e3, rms=0.08, seed=seed))
+    h = np.where(dist < 0, -50.0, np.maximum(h, 5.0))
+    h[5:9, 10:14] = np.nan  # a small no-data hole
+    depth = make_grid(h, x, y, crs)
+    r = np.hypot((X - src[0]) * scale[0], (Y - src[1]) * scale[1])
+    c = np.sqrt(GRAVITY * np.where(h > 0, h, np.nan))
+    tt = r / np.nanmean(c) / 60.0
+    tt = np.where(np.isfinite(h) & (h > 0), tt, np.nan)
+    travel = make_grid(tt, x, y, crs, name="travel_time_min")
+    lf = np.exp(gaussian_random_field(h.shape, spacing, 15e3, rms=0.5, seed=seed + 1))
+    lf = np.where(np.isfinite(h) & (h > 0), lf, np.nan)
+    lensing = make_grid(lf, x, y, crs, name="lensing_factor")
+    en = np.exp(gaussian_random_field(h.shape, spacing, 6e3, rms=1.4, seed=seed + 2)) / (1 + r / 50e3)
+    en = np.where(np.isfinite(h) & (h > 0), en * 1e9, 0.0)
+    energy = make_grid(en, x, y, crs, name="energy")
+    # paths: wiggly rays from the source
+    rng = np.random.default_rng(seed)
+    paths = []
+    for az in np.linspace(-70, 70, 80):
+        s = np.linspace(0, 1, 60)
+        ang = np.radians(az) + 0.15 * np.cumsum(rng.normal(0, 0.05, s.size))
+        L = (y_coast - src[1]) * 1.05
+        px = src[0] + np.cumsum(np.sin(ang)) * L / s.size * (scale[1] / scale[0])
+        py = src[1] + np.cumsum(np.cos(ang)) * L / s.size
+        paths.append(np.column_stack([px, py]))
+    # coastline and segments
+    xs = np.linspace(x[3], x[-4], n_seg + 1)
+    rows = []
+    for i in range(n_seg):
+        xx = np.linspace(xs[i], xs[i + 1], 8)
+        geom = LineString(np.column_stack([xx, _coast_y(xx, y_coast, amp, wl) - 0.01 * (y[-1] - y[0])]))
+        mid = geom.interpolate(0.5, normalized=True)
+        lfi = float(np.exp(rng.normal(0.2, 0.5)))
+        rows.append(
+            dict(
+                segment_id=f"S{i + 1:04d}",
+                name=f"Segment {i + 1}" if i % 3 else "",
+                length_m=float(geom.length * scale[0]),
+                x_mid=mid.x,
+                y_mid=mid.y,
+                lon_mid=mid.x,
+                lat_mid=mid.y,
+                normal_azimuth_deg=180.0,
+                geometry=geom,
+                lensing_factor=lfi,
+                lensing_lo=lfi * 0.7,
+                lensing_hi=lfi * 1.45,
+                amp_1m_m=lfi * 0.8,
+                amp_lo=lfi * 0.55,
+                amp_hi=lfi * 1.2,
+                reliable=bool(i % 5 != 2),
+            )
+        )
+    seg = pd.DataFrame(rows)
+    seg["rank_lensing"] = seg["lensing_factor"].rank(ascending=False, method="first").astype(int)
+    seg["rank_amplitude"] = seg["amp_1m_m"].rank(ascending=False, method="first").astype(int)
+    coast = LineString(
+        np.column_stack([x, _coast_y(x, y_coast, amp, wl) - 0.01 * (y[-1] - y[0])])
+    )
+    dxs, dys = (0.5, 0.25) if geographic else (60e3, 25e3)
+    fault = Polygon(
+        [
+            (src[0] - dxs, src[1] - dys),
+            (src[0] + dxs, src[1] - dys),
+            (src[0] + dxs, src[1] + dys),
+            (src[0] - dxs, src[1] + dys),
+        ]
+    )
+    Xe, Ye = (X - src[0]) * scale[0], (Y - src[1]) * scale[1]
+    eta = 2.0 * np.exp(-((Xe - 10e3) ** 2 + Ye**2) / (2 * 25e3**2)) - 0.8 * np.exp(
+        -((Xe + 40e3) ** 2 + Ye**2) / (2 * 25e3**2)
+    )
+    uplift = make_grid(eta, x, y, crs, name="eta")
+    return dict(
+        depth=depth,
+        travel=travel,
+        lensing=lensing,
+        energy=energy,
+        paths=paths,
+        segments=seg,
+        coast=coast,
+        fault=fault,
+        eta=uplift,
+    )
+
+
+@pytest.fixture(scope="module", params=[False, True], ids=["projected", "lonlat"])
+def case(request):
+    return synthetic_case(request.param)
+
+
+# --------------------------------------------------------------------------------------
+# PNG readers (stdlib only)
+# --------------------------------------------------------------------------------------
+
+
+def png_chunks(path):
+    """Yield (type, data) of the chunks of a PNG file (PNG specification section 5.3)."""
+    data = path.read_bytes()
+    assert data[:8] == PNG_SIGNATURE
+    pos = 8
+    while pos < len(data):
+        (length,) = struct.unpack(">I", data[pos : pos + 4])
+        ctype = data[pos + 4 : pos + 8]
+        yield ctype, data[pos + 8 : pos + 8 + length]
+        pos += 12 + length
+
+
+def png_info(path):
+    """Width, height, pixels per metre and tEXt/iTXt keywords of a PNG."""
+    info = {"text": {}}
+    for ctype, chunk in png_chunks(path):
+        if ctype == b"IHDR":
+            info["width"], info["height"] = struct.unpack(">II", chunk[:8])
+        elif ctype == b"pHYs":
+            info["ppm"] = struct.unpack(">IIB", chunk)
+        elif ctype == b"tEXt":
+            k, v = chunk.split(b"\x00", 1)
+            info["text"][k.decode("latin-1")] = v.decode("latin-1")
+        elif ctype == b"zTXt":
+            k, rest = chunk.split(b"\x00", 1)
+            info["text"][k.decode("latin-1")] = zlib.decompress(rest[1:]).decode("latin-1")
+        elif ctype == b"iTXt":
+            k, rest = chunk.split(b"\x00", 1)
+            comp = rest[0]
+            rest = rest[2:]
+            _lang, rest = rest.split(b"\x00", 1)
+            _tk, txt = rest.split(b"\x00", 1)
+            info["text"][k.decode("latin-1")] = (zlib.decompress(txt) if comp else txt).decode("utf-8")
+    return info
+
+
+def read_rgb(path):
+    """Decode the PNG pixels with matplotlib's reader (RGBA floats)."""
+    import matplotlib.image as mpimg
+
+    return mpimg.imread(path)
+
+
+def check_png(path, min_w=600, min_h=400):
+    info = png_info(path)
+    assert info["width"] >= min_w and info["height"] >= min_h
+    # 150 dpi = 5905.5 pixels per metre (1 inch = 0.0254 m, exact by definition)
+    ppm = info["ppm"]
+    assert ppm[2] == 1 and abs(ppm[0] - 150 / 0.0254) < 1.0
+    assert "SCREENING ESTIMATES ONLY" in info["text"]["Disclaimer"]
+    return info
+
+
+# --------------------------------------------------------------------------------------
+# tests
+# --------------------------------------------------------------------------------------
+
+
+def test_ray_field_energy_and_paths(case, tmp_path):
+    out = figures.plot_ray_field(
+        case["depth"],
+        case["energy"],
+        paths=case["paths"],
+        coast_lines=case["coast"],
+        source_outline=case["fault"],
+        out_path=tmp_path / "rays.png",
+        title="Ray field",
+    )
+    assert out == tmp_path / "rays.png"
+    check_png(out)
+    assert not list(tmp_path.glob(".*.part"))  # atomic write leaves no temporary file
+
+
+def test_ray_field_paths_only_with_dataset_paths(case, tmp_path):
+    import xarray as xr
+
+    # paths as a NaN-padded (ray, step) Dataset, the layout a ray engine would naturally return
+    p = case["paths"]
+    n = max(len(a) for a in p)
+    xs = np.full((len(p), n + 5), np.nan)
+    ys = np.full_like(xs, np.nan)
+    for i, a in enumerate(p):
+        xs[i, : len(a)] = a[:, 0]
+        ys[i, : len(a)] = a[:, 1]
+    ds = xr.Dataset({"x": (("ray", "step"), xs), "y": (("ray", "step"), ys)})
+    out = figures.plot_ray_field(case["depth"], None, paths=ds, out_path=tmp_path / "rays_only.png")
+    check_png(out)
+    assert len(figures._normalize_paths(ds)) == len(p)
+
+
+def test_ray_field_needs_something(case, tmp_path):
+    with pytest.raises(InputError, match="energy grid or ray paths"):
+        figures.plot_ray_field(case["depth"], None, out_path=tmp_path / "x.png")
+
+
+def test_lensing_map(case, tmp_path):
+    out = figures.plot_lensing_map(
+        case["depth"],
+        case["lensing"],
+        case["travel"],
+        case["segments"],
+        top_k=5,
+        out_path=tmp_path / "lensing.png",
+        title="Lensing",
+        source_outline=case["fault"],
+    )
+    check_png(out)
+
+
+def test_lensing_colour_scale_is_centred_at_one():
+    # A diverging colour map on a log scale symmetric about 1 puts 1 at the neutral middle
+    # of the map and x and 1/x at mirror positions (common practice, no source).
+    import matplotlib.colors as mcolors
+
+    r = figures._symmetric_log_range([np.array([0.3, 0.8, 1.0, 2.5, 4.0])])
+    assert r >= 4.0 and 1.0 / r <= 0.3
+    norm = mcolors.LogNorm(vmin=1 / r, vmax=r)
+    assert abs(float(norm(1.0)) - 0.5) < 1e-12
+    assert abs(float(norm(2.0)) + float(norm(0.5)) - 1.0) < 1e-12
+
+
+def test_ranking_chart_hatches_unreliable(case, tmp_path):
+    seg = case["segments"].copy()
+    seg["reliable"] = True
+    top = seg.sort_values("lensing_factor", ascending=False).index[0]
+    seg.loc[top, "reliable"] = False
+    out = figures.plot_ranking(seg, top_k=8, out_path=tmp_path / "rank.png")
+    check_png(out, min_w=800, min_h=300)
+    img = read_rgb(out)
+    # the bar of an unreliable segment is grey (c8c8c8 = 0.784) with black hatching, a
+    # reliable bar is Okabe-Ito blue (0072B2); count both colours in the picture
+    rgb = img[..., :3]
+    blue = np.all(np.abs(rgb - np.array([0.0, 0x72 / 255, 0xB2 / 255])) < 0.03, axis=-1).sum()
+    grey = np.all(np.abs(rgb - 0.784) < 0.03, axis=-1).sum()
+    assert blue > 2000 and grey > 200
+
+
+def test_ranking_orders_by_rank_column(case):
+    seg = case["segments"]
+    ordered = figures._rank_order(seg, "lensing_factor", "rank_lensing")
+    # rank 1 = largest lensing factor (definition of rank_lensing in the segments contract)
+    assert ordered["lensing_factor"].iloc[0] == seg["lensing_factor"].max()
+    assert list(ordered["_rank"].iloc[:3]) == [1, 2, 3]
+
+
+def test_ranking_by_amplitude_and_errors(case, tmp_path):
+    out = figures.plot_ranking(case["segments"], 6, out_path=tmp_path / "amp.png", by="amp_1m_m")
+    check_png(out, min_w=800, min_h=300)
+    with pytest.raises(InputError, match="lacks column"):
+        figures.plot_ranking(case["segments"].drop(columns="lensing_factor"), 5, out_path=tmp_path / "a.png")
+    with pytest.raises(InputError, match="top_k"):
+        figures.plot_ranking(case["segments"], 0, out_path=tmp_path / "b.png")
+
+
+def test_uplift_colour_centre_and_outline(case, tmp_path):
+    out = figures.plot_uplift(
+        case["eta"],
+        out_path=tmp_path / "uplift.png",
+        depth=case["depth"],
+        source_outline=case["fault"],
+        coast_lines=case["coast"],
+    )
+    check_png(out)
+
+
+def test_agreement_scatter(tmp_path):
+    rng = np.random.default_rng(1)
+    a = np.exp(rng.normal(0, 0.5, 40))
+    b = a * np.exp(rng.normal(0, 0.2, 40))
+    out = figures.plot_agreement(
+        a,
+        b,
+        out_path=tmp_path / "agree.png",
+        xlabel="Ray lensing factor (-)",
+        ylabel="Wave amplitude ratio (-)",
+        labels=[f"S{i:04d}" for i in range(40)],
+        highlight=a > np.quantile(a, 0.8),
+        annotate="Spearman 0.9",
+    )
+    check_png(out)
+    with pytest.raises(InputError, match="equal length"):
+        figures.plot_agreement(a, b[:-1], out_path=tmp_path / "x.png", xlabel="a", ylabel="b")
+
+
+def test_bad_inputs_rejected(case, tmp_path):
+    with pytest.raises(InputError, match="DataArray"):
+        figures.plot_uplift(np.zeros((3, 3)), out_path=tmp_path / "x.png")
+    with pytest.raises(InputError, match=r"\.png"):
+        figures.plot_uplift(case["eta"], out_path=tmp_path / "x.jpg")
+    geographic = "lat" in case["depth"].dims
+    other = synthetic_case(not geographic)
+    with pytest.raises(InputError, match="like the depth grid"):
+        figures.plot_lensing_map(case["depth"], other["lensing"], None, None, out_path=tmp_path / "y.png")
+
+
+def test_north_arrow_follows_grid_convergence():
+    # UTM grid convergence: gamma ~ (lon - lon0) * sin(lat) (Snyder 1987, "Map Projections - A
+    # Working Manual", USGS PP 1395, eq. 8-9 to first order). Zone 33 has lon0 = 15 E; a grid
+    # centred near 18 E, 40 S gives gamma ~ 3 * sin(-40 deg) ~ -1.9 deg, i.e. true north is
+    # rotated clockwise from grid up by ~1.9 deg (negative = clockwise in _north_angle_deg).
+    from pyproj import Transformer
+
+    from tsunamifocus.grid import GridInfo
+
+    t = Transformer.from_crs("EPSG:4326", "EPSG:32733", always_xy=True)
+    xc, yc = t.transform(18.0, -40.0)
+    x = np.linspace(xc - 50e3, xc + 50e3, 11)
+    y = np.linspace(yc - 50e3, yc + 50e3, 11)
+    info = GridInfo.from_dataarray(make_grid(np.ones((11, 11)), x, y, "EPSG:32733"))
+    ang = figures._north_angle_deg(info)
+    expected = -3.0 * math.sin(math.radians(40.0))
+    assert abs(ang - expected) < 0.15
+    geo = GridInfo.from_dataarray(make_grid(np.ones((3, 3)), [0, 1, 2], [0, 1, 2], "EPSG:4326"))
+    assert figures._north_angle_deg(geo) == 0.0
+
+
+def test_labels_and_scale_helpers():
+    assert figures._lon_label(200.0) == "160°W"
+    assert figures._lon_label(-30.0) == "30°W"
+    assert figures._lat_label(-12.5) == "12.5°S"
+    assert figures._nice_length(73e3) == 50e3
+    assert figures._nice_length(19.9) == 10.0
+    assert figures._nice_time_step(300.0) == 30.0
