@@ -308,3 +308,13 @@ def test_nullable_columns_keep_their_types(tmp_path, segments):
     props = [f["properties"] for f in json.loads(out["geojson"].read_text())["features"]]
     assert [p.get("rank_amplitude") for p in props] == [2, None, 1]
     assert [p.get("robust") for p in props] == [True, None, False]
+
+
+def test_statistic_layers_inherit_units(tmp_path, geo_grid):
+    """Ensemble statistics of a standard layer keep its units (a spread has the units of the field)."""
+    p = write_cog(geo_grid.rename("travel_time_min_p95"), tmp_path / "p95.tif")
+    with rasterio.open(p) as r:
+        assert r.units == ("min",) and r.descriptions[0].startswith("ensemble 95th percentile of first-arrival")
+    q = write_netcdf({"energy_std": geo_grid.rename("energy_std")}, tmp_path / "s.nc", title="t")
+    with xr.open_dataset(q) as ds:
+        assert ds["energy_std"].attrs["units"] == "J m-1"

@@ -86,9 +86,34 @@ def _atomic_file(path: Path) -> Iterator[Path]:
 # ---------------------------------------------------------------------------------------------
 
 
+#: Suffixes of derived layers (ensemble statistics, envelopes): suffix -> long-name prefix.
+_STAT_SUFFIX = {
+    "mean": "ensemble mean of",
+    "median": "ensemble median of",
+    "std": "ensemble standard deviation of",
+    "spread": "ensemble spread of",
+    "p05": "ensemble 5th percentile of",
+    "p95": "ensemble 95th percentile of",
+    "min": "minimum over scenarios of",
+    "max": "maximum over scenarios of",
+    "diff": "difference between scenarios of",
+}
+
+
+def _default_meta(name: str) -> tuple[str, str]:
+    """Long name and units of a standard layer or of a statistic of one (``lensing_factor_p95``)."""
+    if name in LAYER_INFO:
+        return LAYER_INFO[name]
+    base, _, suffix = name.rpartition("_")
+    if base in LAYER_INFO and suffix in _STAT_SUFFIX:
+        long_name, unit = LAYER_INFO[base]
+        return f"{_STAT_SUFFIX[suffix]} {long_name}", unit
+    return name or "layer", ""
+
+
 def _layer_meta(da: xr.DataArray, description: str | None, units: str | None) -> tuple[str, str]:
     name = str(da.name) if da.name is not None else ""
-    d_long, d_units = LAYER_INFO.get(name, (name or "layer", ""))
+    d_long, d_units = _default_meta(name)
     long_name = description or da.attrs.get("long_name") or d_long
     unit = units if units is not None else da.attrs.get("units", d_units)
     return str(long_name), str(unit)
@@ -253,7 +278,8 @@ def write_netcdf(
         ):
             raise InputError(f"write_netcdf: layer '{name}' is not on the grid of layer '{first_name}'")
         long_name, unit = _layer_meta(da.rename(name), None, None)
-        v = da.drop_vars("spatial_ref", errors="ignore").assign_coords({d: first[d].values for d in first.dims})
+        v = da.drop_vars("spatial_ref", errors="ignore")
+        v = v.assign_coords({d: first[d].values for d in first.dims})
         v.attrs = {k: val for k, val in da.attrs.items() if k not in ("grid_mapping",)}
         v.attrs.update(long_name=long_name, units=unit, grid_mapping="spatial_ref")
         data_vars[name] = v
@@ -350,18 +376,19 @@ def _field_arrays(df: Any, columns: list[str]) -> tuple[list[np.ndarray], list[n
         na = s.isna().to_numpy(dtype=bool)
         vals = [v for v, m in zip(s.tolist(), na) if not m]
         mask = na if na.any() else None
-        if pd.api.types.is_bool_dtype(s.dtype) or (vals and all(isinstance(v, (bool, np.bool_)) for v in vals)):
+        is_bool = [isinstance(v, (bool, np.bool_)) for v in vals]
+        if pd.api.types.is_bool_dtype(s.dtype) or (vals and all(is_bool)):
             data.append(np.array([bool(v) if not m else False for v, m in zip(s.tolist(), na)], dtype=bool))
             masks.append(mask)
         elif pd.api.types.is_integer_dtype(s.dtype) or (
-            vals and all(isinstance(v, (int, np.integer)) and not isinstance(v, (bool, np.bool_)) for v in vals)
+            vals and not any(is_bool) and all(isinstance(v, (int, np.integer)) for v in vals)
         ):
             data.append(np.array([int(v) if not m else 0 for v, m in zip(s.tolist(), na)], dtype=np.int64))
             masks.append(mask)
         elif pd.api.types.is_float_dtype(s.dtype) or (
             vals and all(isinstance(v, (int, float, np.integer, np.floating)) for v in vals)
         ):
-            data.append(np.array([float(v) if not m else np.nan for v, m in zip(s.tolist(), na)], dtype=np.float64))
+            data.append(np.array([np.nan if m else float(v) for v, m in zip(s.tolist(), na)], dtype=float))
             masks.append(None)
         else:
             data.append(np.array([None if m else str(v) for v, m in zip(s.tolist(), na)], dtype=object))
@@ -373,7 +400,8 @@ def _geometry_type(geoms: np.ndarray) -> str:
     import shapely
 
     kinds = {shapely.get_type_id(g) for g in geoms if g is not None}
-    names = {1: "LineString", 5: "MultiLineString", 0: "Point", 3: "Polygon", 6: "MultiPolygon", 4: "MultiPoint"}
+    names = {0: "Point", 1: "LineString", 3: "Polygon", 4: "MultiPoint", 5: "MultiLineString",
+             6: "MultiPolygon"}
     if len(kinds) == 1 and next(iter(kinds)) in names:
         return names[next(iter(kinds))]
     return "Unknown"
@@ -501,7 +529,8 @@ def write_segments(
 
     table = _check_table(table, "write_segments")
     if "geometry" not in table.columns:
-        raise InputError("write_segments: the table has no 'geometry' column (shapely geometries in the grid CRS)")
+        raise InputError("write_segments: the table has no 'geometry' column "
+                         "(shapely geometries in the grid CRS)")
     bad = [f for f in formats if f not in ("gpkg", "geojson", "csv")]
     if bad:
         raise InputError(f"write_segments: unknown format(s) {bad}; expected 'gpkg', 'geojson', 'csv'")

@@ -155,7 +155,8 @@ class OutputFolder:
             raise InputError("OutputFolder.path() is only valid inside the 'with' block")
         rel = Path(name)
         if rel.is_absolute() or ".." in rel.parts or not rel.parts:
-            raise InputError(f"output name {str(name)!r}: expected a relative file name inside the output folder")
+            raise InputError(f"output name {str(name)!r}: expected a relative file name inside the "
+                             "output folder")
         p = self.tmp_dir / rel
         p.parent.mkdir(parents=True, exist_ok=True)
         return p
@@ -178,7 +179,9 @@ class OutputFolder:
         try:
             parent.mkdir(parents=True, exist_ok=True)
         except OSError as exc:
-            raise DataFileError(f"{parent}: cannot create the output's parent folder ({exc.strerror})") from None
+            raise DataFileError(
+                f"{parent}: cannot create the output's parent folder ({exc.strerror})"
+            ) from None
         self._recover()
         if final.exists() or final.is_symlink():
             if not final.is_dir():
@@ -240,6 +243,17 @@ class OutputFolder:
         if self.tmp_dir is None:
             raise InputError("OutputFolder.commit() outside the 'with' block")
         final, tmp = self.final_dir, self.tmp_dir
+        # hold SIGINT/SIGTERM back during the renames so an interruption cannot split them
+        old_mask = None
+        if hasattr(signal, "pthread_sigmask") and threading.current_thread() is threading.main_thread():
+            old_mask = signal.pthread_sigmask(signal.SIG_BLOCK, {signal.SIGINT, signal.SIGTERM})
+        try:
+            self._swap(final, tmp)
+        finally:
+            if old_mask is not None:
+                signal.pthread_sigmask(signal.SIG_SETMASK, old_mask)
+
+    def _swap(self, final: Path, tmp: Path) -> None:
         old: Path | None = None
         if final.exists():
             if any(final.iterdir()) and not self.overwrite:  # appeared while we were writing

@@ -183,9 +183,9 @@ class SourceConfig:
             return _src.PointSource(x=self.lon, y=self.lat, radius_km=self.radius_km,
                                     amplitude_m=self.amplitude_m, name=self.name)
         segs = [
-            _src.FaultSegment(trace=g.trace, top_depth_km=g.top_depth_km, dip_deg=g.dip_deg, width_km=g.width_km,
-                              rake_deg=g.rake_deg, slip_m=g.slip_m, magnitude=g.magnitude,
-                              rigidity_pa=g.rigidity_pa, name=f"{self.name} #{i + 1}", force=self.force)
+            _src.FaultSegment(trace=g.trace, top_depth_km=g.top_depth_km, dip_deg=g.dip_deg,
+                              width_km=g.width_km, rake_deg=g.rake_deg, slip_m=g.slip_m,
+                              magnitude=g.magnitude, rigidity_pa=g.rigidity_pa, name=f"{self.name} #{i + 1}", force=self.force)
             for i, g in enumerate(self.segments)
         ]
         return _src.Rupture(segments=segs, magnitude=self.magnitude, name=self.name, force=self.force)
@@ -527,7 +527,8 @@ _SPEC: dict[str, tuple[_Key, ...]] = {
     "ensemble": (
         _i("members", "number of ensemble members (0 = off)", "members", 0, lo=0, hi=1_000_000),
         _i("seed", "root seed of the ensemble", "", 0, lo=0, hi=_SEED_MAX),
-        _f("bathy_rms", "relative rms of smooth random depth errors", "fraction of depth", 0.0, lo=0.0, hi=0.5),
+        _f("bathy_rms", "relative rms of smooth random depth errors", "fraction of depth", 0.0,
+           lo=0.0, hi=0.5),
         _f("bathy_corr_km", "correlation length of the depth errors", "km", 20.0, lo=0.0, hi=5000.0,
            lo_open=True),
         _f("strike_deg", "strike half-range", "degrees", 0.0, lo=0.0, hi=90.0),
@@ -677,7 +678,8 @@ class _Ctx:
 
     def bad(self, sect: tuple, k: _Key, v: Any, expected: str) -> ScenarioError:
         lab = _label(sect, self.names)
-        return ScenarioError(f"{self.where.prefix(sect, k.name)}{lab} {k.name} = {_show(v)}: expected {expected}")
+        where = self.where.prefix(sect, k.name)
+        return ScenarioError(f"{where}{lab} {k.name} = {_show(v)}: expected {expected}")
 
 
 def _check_number(ctx: _Ctx, sect: tuple, k: _Key, v: Any, lo=None, hi=None) -> float | int:
@@ -858,7 +860,9 @@ def _check_magnitude(ctx: _Ctx, sect: tuple, k: _Key, v: Any, force: bool) -> fl
             raise
         lo2, hi2 = MAGNITUDE_RANGE_FORCED
         if math.isfinite(v) and lo2 <= v <= hi2:
-            raise ScenarioError(f"{exc}; set force = true in this [[source]] to accept {lo2:.1f}-{hi2:.1f}") from None
+            raise ScenarioError(
+                f"{exc}; set force = true in this [[source]] to accept {lo2:.1f}-{hi2:.1f}"
+            ) from None
         raise
 
 
@@ -868,11 +872,12 @@ def _build_segment(ctx: _Ctx, sect: tuple, raw: Mapping, force: bool, total_mag:
     v = _table(ctx, sect, {k: x for k, x in raw.items() if k != "magnitude"}, _SEGMENT_KEYS,
                skip=("magnitude",))
     if raw.get("magnitude") is not None:
-        v["magnitude"] = _check_magnitude(ctx, sect, _key(_SEGMENT_KEYS, "magnitude"), raw["magnitude"], force)
+        mkey = _key(_SEGMENT_KEYS, "magnitude")
+        v["magnitude"] = _check_magnitude(ctx, sect, mkey, raw["magnitude"], force)
     if total_mag:
         if v["magnitude"] is not None:
-            raise ctx.fail(sect, None, "the source gives a total magnitude; remove magnitude from its segments "
-                           "(segments may keep a slip_m; the others share the remaining moment)")
+            raise ctx.fail(sect, None, "the source gives a total magnitude; remove magnitude from its "
+                           "segments (segments may keep a slip_m; the others share the remaining moment)")
     elif (v["slip_m"] is None) == (v["magnitude"] is None):
         raise ctx.fail(sect, None, "give exactly one of slip_m (m) or magnitude (Mw) for each fault segment")
     if v["width_km"] is None and v["magnitude"] is None and not total_mag:
@@ -929,8 +934,8 @@ def _build_source(ctx: _Ctx, i: int, raw: Any) -> SourceConfig:
         for j, sraw in enumerate(segs_raw):
             segments.append(_build_segment(ctx, sect + (_SUBSECTION, j), sraw, force, total is not None))
         if total is not None and all(g.slip_m is not None for g in segments):
-            raise ctx.fail(sect, "magnitude", "every segment has a slip_m, so the total magnitude would be unused; "
-                           "remove it or remove slip_m from the segments that should share it")
+            raise ctx.fail(sect, "magnitude", "every segment has a slip_m, so the total magnitude would be "
+                           "unused; remove it or remove slip_m from the segments that should share it")
     else:
         if not any(k in raw for k in seg_names):
             raise ctx.fail(sect, None, "a fault source needs a trace, top_depth_km, dip_deg and slip_m or "
@@ -967,7 +972,8 @@ def _build(data: Mapping[str, Any], ctx: _Ctx, default_name: str | None) -> Scen
         raise ScenarioError(f"{origin}: {'line ' + str(n) + ': ' if n else ''}unknown {what} {key!r}; {hint}")
     for name in sections:
         if name not in _ARRAY_SECTIONS and name in data and not isinstance(data[name], Mapping):
-            raise ctx.fail((name,), None, f"must be a table [{name}] (single brackets), got {_show(data[name])}")
+            raise ctx.fail((name,), None,
+                           f"must be a table [{name}] (single brackets), got {_show(data[name])}")
 
     sc = _table(ctx, ("scenario",), data.get("scenario", {}), _keys("scenario"))
     name = sc["name"] or (default_name or "scenario")
