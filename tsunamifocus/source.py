@@ -605,9 +605,10 @@ def _okada_segment(
 def _window_radius_m(seg: FaultSegment) -> float:
     """Radius around a segment mid point beyond which its uplift is neglected [m].
 
-    Okada's surface field of a buried dislocation decays at least like (d / r)^3 beyond the
-    source; 10 lower-edge depths plus the source size keeps the neglected part below ~1e-3
-    of the peak.
+    ``L/2 + W + 10 x`` lower-edge depth. Okada's surface field falls off like ``R^-2`` far from
+    the source; at this radius it is below ~1 % of the peak for interface thrusts of Mw 7-9
+    (0.5 % for Mw 9, dip 12 degrees; measured), and ``uplift_on_grid`` tapers it to zero over
+    the outer quarter of the radius.
     """
     return (0.5 * seg.length_km + float(seg.width_km) + 10.0 * seg.bottom_depth_km) * 1e3
 
@@ -674,8 +675,9 @@ def uplift_on_grid(
         Add the Tanioka & Satake (1996) contribution of horizontal displacement on sloping
         bathymetry, ``u_E dh/dE + u_N dh/dN`` (``h`` depth positive down) — implemented.
     window_km : float, optional
-        Radius around each segment beyond which its deformation is neglected [km];
-        default ``L/2 + W + 10 x lower-edge depth``.
+        Radius around each segment's trace mid point beyond which its deformation is neglected
+        [km]; default ``L/2 + W + 10 x lower-edge depth``. The field is tapered to zero
+        (``cos^2``) over the outer quarter of the radius.
     chunk : int
         Points per vectorised Okada evaluation (memory bound).
 
@@ -728,18 +730,28 @@ def uplift_on_grid(
                 E, N = np.asarray(E), np.asarray(N)
             else:
                 E, N = X.ravel(), Y.ravel()
-            uz = np.empty(E.size)
-            uE = np.empty(E.size) if horizontal else None
-            uN = np.empty(E.size) if horizontal else None
+            # evaluate inside the circle of the window radius, with a cos^2 taper over its
+            # outer quarter so the neglected far field leaves no step in eta
+            if geo["transformer"] is not None:
+                r = np.hypot(E, N)  # local frame centred on the trace mid point
+            else:
+                r = np.hypot(E - geo["mid"][0], N - geo["mid"][1])
+            inside = np.nonzero(r < radius)[0]
+            taper = np.clip((radius - r[inside]) / (0.25 * radius), 0.0, 1.0)
+            taper = np.sin(0.5 * np.pi * taper) ** 2
+            uz = np.zeros(E.size)
+            uE = np.zeros(E.size) if horizontal else None
+            uN = np.zeros(E.size) if horizontal else None
             e1, e2 = float(geo["e"][0]), float(geo["e"][1])
             n1, n2 = float(geo["n"][0]), float(geo["n"][1])
-            for a in range(0, E.size, chunk):
-                b = min(a + chunk, E.size)
-                ue_, un_, uz_ = _okada_segment(seg, slip, e1, n1, e2, n2, E[a:b], N[a:b], src.poisson)
-                uz[a:b] = uz_
+            for a in range(0, inside.size, chunk):
+                idx = inside[a : a + chunk]
+                tp = taper[a : a + chunk]
+                ue_, un_, uz_ = _okada_segment(seg, slip, e1, n1, e2, n2, E[idx], N[idx], src.poisson)
+                uz[idx] = uz_ * tp
                 if horizontal:
-                    uE[a:b] = ue_  # type: ignore[index]
-                    uN[a:b] = un_  # type: ignore[index]
+                    uE[idx] = ue_ * tp  # type: ignore[index]
+                    uN[idx] = un_ * tp  # type: ignore[index]
             sub = np.ix_(np.arange(rows.start, rows.stop), cols)
             eta[sub] += uz.reshape(X.shape)
             if horizontal:
