@@ -26,6 +26,8 @@ from tsunamifocus.randomfield import gaussian_random_field
 from tsunamifocus.wave import (
     WaveResult,
     compare_rankings,
+    default_check_duration_s,
+    wave_check,
     plot_ray_vs_wave,
     segment_max_amplitude,
     simulate_linear_long_wave,
@@ -60,7 +62,7 @@ def hump_run():
     x = np.arange(n) * dx
     xx, yy = np.meshgrid(x - x[n // 2], x - x[n // 2])
     eta0 = depth.copy(data=np.exp(-(xx**2 + yy**2) / (2 * sig**2)))
-    res = simulate_linear_long_wave(depth, eta0, duration_s=1100.0, record_every_s=100.0)
+    res = simulate_linear_long_wave(depth, eta0, duration_s=1100.0, record_every_s=100.0, threads=1)
     return res, n, dx, h
 
 
@@ -110,7 +112,7 @@ def test_greens_law_on_plane_slope():
     eta0 = depth.copy(data=np.tile(np.exp(-((x - 100e3) ** 2) / (2 * 15e3**2)), (3, 1)))
     res = simulate_linear_long_wave(
         depth, eta0, duration_s=9000.0, stop_depth=30.0, coast="absorb",
-        boundary={"west": "absorb", "east": "absorb", "south": "reflect", "north": "reflect"},
+        boundary={"west": "absorb", "east": "absorb", "south": "reflect", "north": "reflect"}, threads=1,
     )
     amp = res.max_amplitude.values[1]
     i1 = int(np.argmin(np.abs(h - 2000.0) + (x < 200e3) * 1e9))
@@ -134,7 +136,8 @@ def test_radiating_edge_lets_a_normal_pulse_out():
     for sig in (5e3, 10e3):
         eta0 = depth.copy(data=np.tile(np.exp(-((x - 200e3) ** 2) / (2 * sig**2)), (3, 1)))
         res = simulate_linear_long_wave(
-            depth, eta0, duration_s=1.3 * (200e3 + 8 * sig) / c, boundary=("absorb", "absorb", "reflect", "reflect")
+            depth, eta0, duration_s=1.3 * (200e3 + 8 * sig) / c, boundary=("absorb", "absorb", "reflect", "reflect"),
+            threads=1,
         )
         left.append(np.max(np.abs(res.eta.values)) / 0.5)  # relative to the incident half-pulse
         assert res.stats["outflow_m3"] == pytest.approx(res.stats["volume0_m3"], rel=1e-6)
@@ -163,7 +166,7 @@ def test_volume_conserved_to_round_off_with_closed_boundaries():
     # Continuity equation in flux form: the volume integral of eta changes only through the boundary;
     # with walls everywhere it is constant (finite-volume telescoping sum, exact up to round-off).
     depth, eta0 = _random_basin()
-    res = simulate_linear_long_wave(depth, eta0, duration_s=6000.0, boundary=CLOSED, coast=CLOSED)
+    res = simulate_linear_long_wave(depth, eta0, duration_s=6000.0, boundary=CLOSED, coast=CLOSED, threads=1)
     st = res.stats
     assert st["steps"] > 100
     assert st["outflow_m3"] == 0.0
@@ -177,7 +180,7 @@ def test_volume_conserved_to_round_off_with_closed_boundaries():
 def test_volume_budget_closes_with_open_boundaries():
     # With radiating edges and an absorbing coast the booked outflow accounts for the volume change.
     depth, eta0 = _random_basin()
-    res = simulate_linear_long_wave(depth, eta0, duration_s=6000.0, boundary="absorb", coast="absorb")
+    res = simulate_linear_long_wave(depth, eta0, duration_s=6000.0, boundary="absorb", coast="absorb", threads=1)
     st = res.stats
     assert abs(st["outflow_m3"]) > 1e-3 * abs(st["volume0_m3"])  # something did leave
     assert abs(st["mass_error"]) < 1e-12
@@ -217,7 +220,7 @@ def test_spherical_arrival_matches_great_circle_distance():
     dist = dist.reshape(lo.shape)
     sig = 20e3
     eta0 = depth.copy(data=np.exp(-(dist**2) / (2 * sig**2)))
-    res = simulate_linear_long_wave(depth, eta0, duration_s=9000.0)
+    res = simulate_linear_long_wave(depth, eta0, duration_s=9000.0, threads=1)
     c = math.sqrt(GRAVITY * h)
     for plo, pla in [(180, 35), (170, 50), (160, 25), (185, 45), (158, 45), (175, 20)]:
         j, i = int(np.argmin(abs(lat - pla))), int(np.argmin(abs(lon - plo)))
@@ -244,7 +247,7 @@ def test_periodic_longitude_wraps_across_the_seam():
     dist = dist.reshape(lo.shape)
     sig = 50e3
     eta0 = depth.copy(data=np.exp(-(dist**2) / (2 * sig**2)))
-    res = simulate_linear_long_wave(depth, eta0, duration_s=9000.0)
+    res = simulate_linear_long_wave(depth, eta0, duration_s=9000.0, threads=1)
     c = math.sqrt(GRAVITY * h)
     j = int(np.argmin(abs(lat)))
     ie, iw = int(np.argmin(abs(lon - 15.0))), int(np.argmin(abs(lon - 345.0)))
@@ -256,7 +259,7 @@ def test_periodic_longitude_wraps_across_the_seam():
     lon_b = np.concatenate([lon[half:] - 360.0, lon[:half]])
     depth_b = make_grid(np.roll(depth.values, half, axis=1), lon_b, lat, "EPSG:4326", lon_periodic=True)
     eta_b = depth_b.copy(data=np.roll(eta0.values, half, axis=1))
-    res_b = simulate_linear_long_wave(depth_b, eta_b, duration_s=9000.0)
+    res_b = simulate_linear_long_wave(depth_b, eta_b, duration_s=9000.0, threads=1)
     np.testing.assert_allclose(np.roll(res_b.max_amplitude.values, -half, axis=1), res.max_amplitude.values,
                                rtol=0, atol=1e-12)
 
@@ -275,7 +278,7 @@ def test_time_step_is_the_forward_backward_stability_limit():
     # at cfl 0.99 a white-noise surface in a closed box stays bounded over many steps
     rng = np.random.default_rng(0)
     eta0 = depth.copy(data=rng.standard_normal(depth.shape))
-    res = simulate_linear_long_wave(depth, eta0, duration_s=3000 * dt, cfl=0.99, boundary=CLOSED)
+    res = simulate_linear_long_wave(depth, eta0, duration_s=3000 * dt, cfl=0.99, boundary=CLOSED, threads=1)
     assert res.stats["courant_max"] <= 0.99 + 1e-12
     assert np.max(np.abs(res.eta.values)) < 10.0
 
@@ -284,25 +287,25 @@ def test_time_step_is_the_forward_backward_stability_limit():
 def test_cfl_out_of_range_is_refused(cfl):
     depth = _plane_grid(np.full((10, 10), 100.0))
     with pytest.raises(InputError, match="cfl"):
-        simulate_linear_long_wave(depth, depth * 0.0, duration_s=100.0, cfl=cfl)
+        simulate_linear_long_wave(depth, depth * 0.0, duration_s=100.0, cfl=cfl, threads=1)
 
 
 def test_bad_inputs_are_refused():
     depth = _plane_grid(np.full((10, 12), 100.0))
     eta = depth * 0.0
     with pytest.raises(InputError, match="coast"):
-        simulate_linear_long_wave(depth, eta, duration_s=10.0, coast="sponge")
+        simulate_linear_long_wave(depth, eta, duration_s=10.0, coast="sponge", threads=1)
     with pytest.raises(InputError, match="boundary"):
-        simulate_linear_long_wave(depth, eta, duration_s=10.0, boundary={"up": "absorb"})
+        simulate_linear_long_wave(depth, eta, duration_s=10.0, boundary={"up": "absorb"}, threads=1)
     with pytest.raises(InputError, match="duration_s"):
-        simulate_linear_long_wave(depth, eta, duration_s=-1.0)
+        simulate_linear_long_wave(depth, eta, duration_s=-1.0, threads=1)
     with pytest.raises(InputError, match="eta0"):
-        simulate_linear_long_wave(depth, eta.isel(x=slice(0, 5)), duration_s=10.0)
+        simulate_linear_long_wave(depth, eta.isel(x=slice(0, 5)), duration_s=10.0, threads=1)
     bad = eta.copy(data=np.where(np.arange(12) == 3, np.nan, 0.0) * np.ones((10, 1)))
     with pytest.raises(InputError, match="NaN"):
-        simulate_linear_long_wave(depth, bad, duration_s=10.0)
+        simulate_linear_long_wave(depth, bad, duration_s=10.0, threads=1)
     with pytest.raises(InputError, match="no wet cell"):
-        simulate_linear_long_wave(depth, eta, duration_s=10.0, stop_depth=200.0)
+        simulate_linear_long_wave(depth, eta, duration_s=10.0, stop_depth=200.0, threads=1)
 
 
 # ------------------------------------------------------------------------------------------------
@@ -371,3 +374,82 @@ def test_plot_ray_vs_wave_writes_png(tmp_path):
     assert data[:8] == b"\x89PNG\r\n\x1a\n" and len(data) > 10_000
     with pytest.raises(InputError):
         plot_ray_vs_wave(ray, wave, tmp_path / "missing" / "x.png")
+
+
+# ------------------------------------------------------------------------------------------------
+# coast conditions and the one-call check
+# ------------------------------------------------------------------------------------------------
+
+
+@pytest.fixture(scope="module")
+def straight_coast():
+    # constant 3000 m depth, straight coast x >= 350 km (land), a 8 km Gaussian hump 199 km offshore;
+    # 30 segments of 20 km along the coast, just seaward of the wall face
+    dx, nx, ny = 1000.0, 360, 600
+    d = np.full((ny, nx), 3000.0)
+    d[:, 350:] = -10.0
+    depth = _plane_grid(d, dx)
+    xx, yy = np.meshgrid(np.arange(nx) * dx, np.arange(ny) * dx)
+    xs, ys = 150e3, 300e3
+    eta0 = depth.copy(data=np.exp(-((xx - xs) ** 2 + (yy - ys) ** 2) / (2 * 8e3**2)))
+    edges = np.arange(0.0, 600e3 + 1.0, 20e3)
+    segs = pd.DataFrame(
+        {
+            "segment_id": [f"S{i + 1:04d}" for i in range(edges.size - 1)],
+            "name": "straight coast",
+            "geometry": [shapely.LineString([(349.5e3, a), (349.5e3, b)]) for a, b in zip(edges[:-1], edges[1:])],
+        }
+    )
+    # nearest band-cell point (x = 349 km) of each segment to the source: distance and incidence angle
+    ynear = np.clip(ys, edges[:-1], edges[1:])
+    r = np.hypot(349e3 - xs, ynear - ys)
+    cos = (349e3 - xs) / r
+    return depth, eta0, segs, r, cos
+
+
+def test_coast_wall_doubles_and_radiating_coast_follows_first_order_theory(straight_coast):
+    # Reflecting coast: total reflection at a straight wall = image source, so the elevation at the wall
+    # is twice the incident cylindrical wave, 2 C r**(-1/2), at every incidence angle (method of images).
+    # Absorbing coast: the first-order radiation condition q_n = c eta reflects a plane wave at incidence
+    # theta with R = (cos(theta) - 1) / (cos(theta) + 1) (Engquist and Majda 1977, Math. Comp. 31), so the
+    # boundary elevation is (1 + R) = 2 cos(theta) / (1 + cos(theta)) times the incident one.
+    depth, eta0, segs, r, cos = straight_coast
+    amp = {}
+    for coast in ("reflect", "absorb"):
+        res = simulate_linear_long_wave(depth, eta0, duration_s=2400.0, coast=coast, threads=1)
+        amp[coast] = segment_max_amplitude(res, segs, depth, 20.0).to_numpy()
+    c_wall = amp["reflect"] / (2.0 * r**-0.5)
+    assert np.max(np.abs(c_wall / np.median(c_wall) - 1.0)) < 0.03
+    c_abs = amp["absorb"] / (r**-0.5 * 2 * cos / (1 + cos))
+    assert np.max(np.abs(c_abs / np.median(c_wall) - 1.0)) < 0.06
+    # at normal incidence the radiating coast shows the incident wave: half of the wall value
+    mid = int(np.argmax(cos))
+    assert amp["absorb"][mid] / amp["reflect"][mid] == pytest.approx(0.5, rel=0.03)
+
+
+def test_wave_check_ranks_segments_like_cylindrical_spreading(straight_coast, tmp_path):
+    # Ray-like reference column from theory (cylindrical spreading r**(-1/2) times the first-order
+    # radiating-coast factor, see above); the wave-solver ranking must agree with it.
+    depth, eta0, segs, r, cos = straight_coast
+    segs = segs.assign(amp_stop_m=r**-0.5 * 2 * cos / (1 + cos))
+    wc = wave_check(depth, eta0, segs, duration_s=2400.0, k=6, figure_path=tmp_path / "check.png", threads=1)
+    assert wc.agreement["n"] == 30 and wc.agreement["k"] == 6
+    assert wc.agreement["spearman"] > 0.95
+    assert wc.agreement["topk_common"] == 6
+    t = wc.table
+    assert list(t.columns[:2]) == ["segment_id", "name"]
+    assert t["rank_wave"].min() == 1 and t["rank_wave"].max() == 30
+    top = t.loc[t["rank_wave"] == 1, "segment_id"].item()
+    assert top in ("S0015", "S0016")  # the two segments facing the source
+    assert wc.figure is not None and wc.figure.stat().st_size > 10_000
+    with pytest.raises(CoastError, match="lensing_factor"):
+        wave_check(depth, eta0, segs, ray_column="lensing_factor", duration_s=100.0)
+
+
+def test_default_check_duration():
+    # 1.2 x the latest ray first arrival + 1 h when the table has arrivals, else 1.5 x the grid
+    # diagonal / sqrt(g h_median)
+    depth = _plane_grid(np.full((30, 40), 1000.0), 1000.0)
+    segs = pd.DataFrame({"first_arrival_s": [100.0, np.nan, 500.0]})
+    assert default_check_duration_s(depth, segs) == pytest.approx(1.2 * 500.0 + 3600.0)
+    assert default_check_duration_s(depth) == pytest.approx(1.5 * math.hypot(40e3, 30e3) / math.sqrt(GRAVITY * 1000.0))
