@@ -318,3 +318,16 @@ def test_statistic_layers_inherit_units(tmp_path, geo_grid):
     q = write_netcdf({"energy_std": geo_grid.rename("energy_std")}, tmp_path / "s.nc", title="t")
     with xr.open_dataset(q) as ds:
         assert ds["energy_std"].attrs["units"] == "J m-1"
+
+
+def test_netcdf_attrs_sanitised(tmp_path, geo_grid):
+    """Attributes netCDF cannot hold (None, bool, dict) are dropped or stored as 0/1 / JSON text."""
+    da = geo_grid.copy()
+    da.attrs.update(flag=True, nothing=None, meta={"a": 1}, levels=[1.0, 2.0])
+    p = write_netcdf({"lensing_factor": da}, tmp_path / "a.nc", title="t", attrs={"run": {"n": 3}})
+    with netCDF4.Dataset(p) as nc:
+        v = nc.variables["lensing_factor"]
+        assert v.getncattr("flag") == 1 and "nothing" not in v.ncattrs()
+        assert json.loads(v.getncattr("meta")) == {"a": 1}
+        assert list(v.getncattr("levels")) == [1.0, 2.0]
+        assert json.loads(nc.getncattr("run")) == {"n": 3}

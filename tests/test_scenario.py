@@ -213,6 +213,10 @@ BAD_CASES = [
      .replace("dip_deg = 15\nwidth_km = 80", "dip_deg = 15\nwidth_km = 80\nslip_m = 2"),
      [r"total magnitude would be unused"]),
     ("zero point amplitude", _mod("radius_km = 40", "radius_km = 40\namplitude_m = 0"), [r"non-zero"]),
+    ("lat/lon swapped in a point", _mod("lon = 135.5\nlat = 34.5", "lon = 34.5\nlat = 135.5"),
+     [r"lat = 135\.5", r"are lon and lat swapped\?"]),
+    ("lat/lon swapped in a trace", _mod("trace = [[135.0, 33.0], [136.0, 34.0]]", "trace = [[33.0, 135.0], [34.0, 136.0]]"),
+     [r"are lon and lat swapped\? \(lon first\)"]),
     ("syntax error with line", _mod("count = 5000", "count = [1"), [r"line 3\d, column \d+", r"invalid TOML"]),
 ]
 

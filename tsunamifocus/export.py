@@ -225,6 +225,25 @@ def write_cog(
     return path
 
 
+def _nc_attrs(attrs: Mapping[str, Any]) -> dict[str, Any]:
+    """Attributes netCDF can store: text, numbers, numeric lists; bools as 0/1; None dropped."""
+    out: dict[str, Any] = {}
+    for k, v in attrs.items():
+        if v is None:
+            continue
+        if isinstance(v, (bool, np.bool_)):
+            out[str(k)] = int(v)
+        elif isinstance(v, (str, int, float, np.integer, np.floating)):
+            out[str(k)] = v
+        elif isinstance(v, (list, tuple, np.ndarray)) and len(v) and all(
+            isinstance(x, (int, float, np.integer, np.floating)) and not isinstance(x, bool) for x in v
+        ):
+            out[str(k)] = np.asarray(v)
+        else:
+            out[str(k)] = json.dumps(v, default=str) if isinstance(v, (dict, list, tuple)) else str(v)
+    return out
+
+
 def write_netcdf(
     layers: Mapping[str, xr.DataArray] | xr.Dataset,
     path: str | os.PathLike,
@@ -280,7 +299,7 @@ def write_netcdf(
         long_name, unit = _layer_meta(da.rename(name), None, None)
         v = da.drop_vars("spatial_ref", errors="ignore")
         v = v.assign_coords({d: first[d].values for d in first.dims})
-        v.attrs = {k: val for k, val in da.attrs.items() if k not in ("grid_mapping",)}
+        v.attrs = _nc_attrs({k: val for k, val in da.attrs.items() if k not in ("grid_mapping",)})
         v.attrs.update(long_name=long_name, units=unit, grid_mapping="spatial_ref")
         data_vars[name] = v
     ds = xr.Dataset(data_vars)
@@ -301,7 +320,7 @@ def write_netcdf(
         "comment": caution,
         "caution": caution,
     }
-    ds.attrs.update({str(k): v for k, v in (attrs or {}).items()})
+    ds.attrs.update(_nc_attrs(attrs or {}))
     encoding: dict[str, dict] = {}
     for name, v in ds.data_vars.items():
         enc: dict[str, Any] = {"zlib": True, "complevel": 4}

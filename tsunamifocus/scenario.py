@@ -791,7 +791,8 @@ def _check_value(ctx: _Ctx, sect: tuple, k: _Key, v: Any) -> Any:
                 raise ctx.bad(sect, k, v, what)
             lon, lat = float(p[0]), float(p[1])
             if not (-180.0 <= lon <= 360.0 and -90.0 <= lat <= 90.0):
-                raise ctx.bad(sect, k, v, what)
+                swapped = abs(lon) <= 90.0 and abs(lat) <= 360.0
+                raise ctx.bad(sect, k, v, what + ("; are lon and lat swapped? (lon first)" if swapped else ""))
             pts.append((lon, lat))
         if pts[0] == pts[1]:
             raise ctx.bad(sect, k, v, what + " (zero-length trace)")
@@ -824,7 +825,14 @@ def _table(ctx: _Ctx, sect: tuple, raw: Any, keys: tuple[_Key, ...], *, skip: tu
                                f"{', ' + k.unit if k.unit else ''})")
             out[k.name] = k.default
         else:
-            out[k.name] = _check_value(ctx, sect, k, v)
+            try:
+                out[k.name] = _check_value(ctx, sect, k, v)
+            except ScenarioError as exc:
+                lon = raw.get("lon")
+                if (k.name == "lat" and isinstance(lon, (int, float)) and not isinstance(lon, bool)
+                        and abs(lon) <= 90 and isinstance(v, (int, float)) and abs(v) <= 360):
+                    raise ScenarioError(f"{exc}; are lon and lat swapped? (lon = {_show(lon)})") from None
+                raise
     return out
 
 
