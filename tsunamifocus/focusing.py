@@ -772,6 +772,11 @@ def branch_diagnostics(
             + ("focusing by the small depth variations is expected to matter"
                if beyond else "random focusing by the small depth variations is not yet fully developed")
         )
+        if stats["eps_speed"] > 0.1:
+            out["message"] += (
+                "; caution: eps_speed > 0.1 is outside the weak-fluctuation theory (large features such "
+                "as trenches or shelf breaks dominate) - read the maps, not the scaling"
+            )
     else:
         out["coast_beyond_focusing"] = None
         out["message"] = "no prediction of the random-focusing distance (no low-pass scale or no coast distance)"
@@ -1007,6 +1012,9 @@ def segment_arrivals(
             ridx[rci], _ = _assign(segments, info, np.asarray(rend["x"].values, float)[rci],
                                    np.asarray(rend["y"].values, float)[rci], max_distance_m)
         ragg = _per_segment(rend, ridx, nseg)
+        rw = np.asarray(rend["weight"].values, float)
+        ref_coast_e = float(rw[rci].sum())
+        ref_unassigned = float(rw[rci][ridx[rci] < 0].sum())
         out["ref_n_rays"] = ragg["n"].astype(np.int64)
         out["ref_energy_per_m"] = ragg["e"] / length
         rboot = _boot_energy(rend, ridx, nseg, n_boot, rng) / length
@@ -1071,6 +1079,18 @@ def segment_arrivals(
             "interval_method": f"5-95 % Poisson bootstrap over rays, {n_boot} replicates, seed {seed}",
         }
     )
+    if ref_result is not None:
+        out.attrs["ref_energy_coast_J"] = ref_coast_e
+        out.attrs["ref_energy_coast_unassigned_J"] = ref_unassigned
+        if ref_coast_e > 0 and ref_unassigned > 0.25 * ref_coast_e:
+            warnings.warn(
+                f"{100 * ref_unassigned / ref_coast_e:.0f} % of the reference run's coastal energy ends farther "
+                f"than max_distance_m={max_distance_m:.0f} m from the segments (the low-pass moved the stop "
+                "isobath): lensing factors near the coast are biased high; raise max_distance_m or use a "
+                "larger stop depth",
+                ResolutionWarning,
+                stacklevel=2,
+            )
     e_coast = float(np.asarray(end["weight"].values, float)[coast].sum())
     if e_coast > 0 and out.attrs["energy_coast_unassigned_J"] > 0.5 * e_coast:
         warnings.warn(
