@@ -185,7 +185,8 @@ class SourceConfig:
         segs = [
             _src.FaultSegment(trace=g.trace, top_depth_km=g.top_depth_km, dip_deg=g.dip_deg,
                               width_km=g.width_km, rake_deg=g.rake_deg, slip_m=g.slip_m,
-                              magnitude=g.magnitude, rigidity_pa=g.rigidity_pa, name=f"{self.name} #{i + 1}", force=self.force)
+                              magnitude=g.magnitude, rigidity_pa=g.rigidity_pa,
+                              name=f"{self.name} #{i + 1}", force=self.force)
             for i, g in enumerate(self.segments)
         ]
         return _src.Rupture(segments=segs, magnitude=self.magnitude, name=self.name, force=self.force)
@@ -792,7 +793,8 @@ def _check_value(ctx: _Ctx, sect: tuple, k: _Key, v: Any) -> Any:
             lon, lat = float(p[0]), float(p[1])
             if not (-180.0 <= lon <= 360.0 and -90.0 <= lat <= 90.0):
                 swapped = abs(lon) <= 90.0 and abs(lat) <= 360.0
-                raise ctx.bad(sect, k, v, what + ("; are lon and lat swapped? (lon first)" if swapped else ""))
+                hint = "; are lon and lat swapped? (lon first)" if swapped else ""
+                raise ctx.bad(sect, k, v, what + hint)
             pts.append((lon, lat))
         if pts[0] == pts[1]:
             raise ctx.bad(sect, k, v, what + " (zero-length trace)")
