@@ -6,7 +6,7 @@ import numpy as np
 import pytest
 
 from tsunamifocus.errors import InputError
-from tsunamifocus.okada import okada85, okada85_point
+from tsunamifocus.okada import _okada85, okada85, okada85_point
 
 # Okada, Y. (1985), Bull. Seismol. Soc. Am. 75, 1135-1154, Table 2 ("check list"), finite
 # rectangular source, L = 3, W = 2, lambda = mu (nu = 0.25), unit dislocation; columns ux, uy, uz.
@@ -35,6 +35,18 @@ def test_okada1985_table2(geom, disl, expected):
     for g, e in zip(got, expected):
         tol = 0.5e-3 * 10 ** np.floor(np.log10(abs(e))) if e != 0 else 1e-12
         assert abs(float(g) - e) <= tol * 1.0001, (geom, disl, float(g), e)
+
+
+@pytest.mark.parametrize("geom,disl,expected", TABLE2)
+def test_okada1985_table2_uz_only_path(geom, disl, expected):
+    # The vertical-only fast path used for sea-floor uplift, against the same Table 2 uz values.
+    x, y, d, dip = geom
+    ux, uy, uz = _okada85(x, y, d, dip, 3.0, 2.0, *disl, horizontal=False)
+    e = expected[2]
+    tol = 0.5e-3 * 10 ** np.floor(np.log10(abs(e))) if e != 0 else 1e-12
+    assert abs(float(uz) - e) <= tol * 1.0001
+    assert float(uz) == float(okada85(x, y, d, dip, 3.0, 2.0, *disl)[2])
+    assert float(ux) == 0.0 and float(uy) == 0.0
 
 
 def _integrate_points(x, y, d, dip, L, W, disl, n=48):

@@ -32,12 +32,13 @@ __all__ = ["okada85", "okada85_point"]
 _COS_EPS = 1e-5  # below this (dip within ~6e-4 deg of 90) use the vertical-fault forms
 
 
-def _chinnery_terms(xi, eta, q, sd, cd, alpha):
+def _chinnery_terms(xi, eta, q, sd, cd, alpha, horizontal=True):
     """Integrand values of Okada's (1985) eqs. 25-27 at one corner (xi, eta).
 
     ``alpha`` is mu / (lambda + mu) = 1 - 2 nu. Returns nine arrays:
     strike-slip (ux, uy, uz), dip-slip (ux, uy, uz), tensile (ux, uy, uz), each without the
-    leading factor -U/(2 pi) (shear) or +U/(2 pi) (tensile).
+    leading factor -U/(2 pi) (shear) or +U/(2 pi) (tensile). With ``horizontal=False`` only
+    the three uz terms are computed (the others are returned as 0.0).
     """
     ytil = eta * cd + q * sd
     dtil = eta * sd - q * cd
@@ -69,32 +70,35 @@ def _chinnery_terms(xi, eta, q, sd, cd, alpha):
         den = xi * (R + X) * cd
         I5 = np.where(xi0, 0.0, alpha * 2.0 / cd * np.arctan(num / np.where(xi0, 1.0, den)))
         I4 = alpha / cd * (np.log(Rd_safe) - sd * ln_Re)
+    else:
+        I4 = -alpha * q / Rd_safe
+        I5 = -alpha * xi * sd / Rd_safe
+
+    inv_R = 1.0 / Rsafe
+    a = q * inv_R * inv_Re  # q / (R (R + eta))
+    b = q * inv_R * inv_Rx  # q / (R (R + xi))
+    ss_z = dtil * a + q * sd * inv_Re + I4 * sd
+    ds_z = dtil * b + sd * theta - I5 * sd * cd
+    t = xi * a - theta
+    tf_z = ytil * b + cd * t - I5 * sd * sd
+    if not horizontal:
+        return 0.0, 0.0, ss_z, 0.0, 0.0, ds_z, 0.0, 0.0, tf_z
+
+    if abs(cd) > _COS_EPS:
         I3 = alpha * (ytil / (cd * Rd_safe) - ln_Re) + sd / cd * I4
         I1 = alpha * (-xi / (cd * Rd_safe)) - sd / cd * I5
     else:
         Rd2 = Rd_safe * Rd_safe
         I1 = -0.5 * alpha * xi * q / Rd2
         I3 = 0.5 * alpha * (eta / Rd_safe + ytil * q / Rd2 - ln_Re)
-        I4 = -alpha * q / Rd_safe
-        I5 = -alpha * xi * sd / Rd_safe
     I2 = alpha * (-ln_Re) - I3
-
-    inv_R = 1.0 / Rsafe
-    a = q * inv_R * inv_Re  # q / (R (R + eta))
-    b = q * inv_R * inv_Rx  # q / (R (R + xi))
 
     ss_x = xi * a + theta + I1 * sd
     ss_y = ytil * a + q * cd * inv_Re + I2 * sd
-    ss_z = dtil * a + q * sd * inv_Re + I4 * sd
-
     ds_x = q * inv_R - I3 * sd * cd
     ds_y = ytil * b + cd * theta - I1 * sd * cd
-    ds_z = dtil * b + sd * theta - I5 * sd * cd
-
-    t = xi * a - theta
     tf_x = q * a - I3 * sd * sd
     tf_y = -dtil * b - sd * t - I1 * sd * sd
-    tf_z = ytil * b + cd * t - I5 * sd * sd
     return ss_x, ss_y, ss_z, ds_x, ds_y, ds_z, tf_x, tf_y, tf_z
 
 
@@ -146,6 +150,23 @@ def okada85(
     >>> f"{float(uz):.3e}"
     '-3.564e-02'
     """
+    return _okada85(x, y, depth, dip, length, width, strike_slip, dip_slip, opening, poisson)
+
+
+def _okada85(
+    x: np.ndarray | float,
+    y: np.ndarray | float,
+    depth: float,
+    dip: float,
+    length: float,
+    width: float,
+    strike_slip: float,
+    dip_slip: float,
+    opening: float,
+    poisson: float = 0.25,
+    horizontal: bool = True,
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """:func:`okada85`; with ``horizontal=False`` ux and uy are returned as zeros (faster)."""
     if not (length > 0 and width > 0):
         raise InputError(f"okada85: length and width must be > 0, got length={length}, width={width}")
     if not (-0.5 < poisson < 0.5):
@@ -164,10 +185,10 @@ def okada85(
     p = y * cd + depth * sd
     q = y * sd - depth * cd
 
-    out = [np.zeros(x.shape) for _ in range(9)]
+    out = [np.zeros(x.shape) for _ in range(9)]  # corner sums (0.0 terms broadcast in)
     # Chinnery: f(x, p) - f(x, p - W) - f(x - L, p) + f(x - L, p - W)
     for xi, eta, sign in ((x, p, 1.0), (x, p - width, -1.0), (x - length, p, -1.0), (x - length, p - width, 1.0)):
-        terms = _chinnery_terms(xi, eta, q, sd, cd, alpha)
+        terms = _chinnery_terms(xi, eta, q, sd, cd, alpha, horizontal)
         for acc, t in zip(out, terms):
             acc += sign * t
     f = 1.0 / (2.0 * np.pi)

@@ -45,7 +45,7 @@ from pyproj.crs.coordinate_operation import AzimuthalEquidistantConversion
 from .constants import GRAVITY, RHO_SEAWATER, RIGIDITY_PA
 from .errors import ScalingWarning, SourceError
 from .grid import GridInfo, make_grid
-from .okada import okada85
+from .okada import _okada85
 
 __all__ = [
     "MW_RANGE",
@@ -581,9 +581,12 @@ def _segment_geometry(seg: FaultSegment, gi: GridInfo) -> dict[str, Any]:
 
 def _okada_segment(
     seg: FaultSegment, slip: float, e1: float, n1: float, e2: float, n2: float, E: np.ndarray, N: np.ndarray,
-    poisson: float,
+    poisson: float, horizontal: bool = True,
 ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """(uE, uN, uZ) [m] of one segment at metric points (E, N), trace (e1,n1)->(e2,n2) [m]."""
+    """(uE, uN, uZ) [m] of one segment at metric points (E, N), trace (e1,n1)->(e2,n2) [m].
+
+    With ``horizontal=False`` only uZ is computed (uE, uN are zeros).
+    """
     L = math.hypot(e2 - e1, n2 - n1)
     phi = math.atan2(e2 - e1, n2 - n1)  # strike, clockwise from north
     sphi, cphi = math.sin(phi), math.cos(phi)
@@ -596,7 +599,7 @@ def _okada_segment(
     yo = -re * cphi + rn * sphi + W * cd
     rake = math.radians(seg.rake_deg)
     u1, u2 = slip * math.cos(rake), slip * math.sin(rake)
-    ux, uy, uz = okada85(xo, yo, d_bot, dip, L, W, u1, u2, 0.0, poisson=poisson)
+    ux, uy, uz = _okada85(xo, yo, d_bot, dip, L, W, u1, u2, 0.0, poisson=poisson, horizontal=horizontal)
     uE = ux * sphi - uy * cphi
     uN = ux * cphi + uy * sphi
     return uE, uN, uz
@@ -747,7 +750,8 @@ def uplift_on_grid(
             for a in range(0, inside.size, chunk):
                 idx = inside[a : a + chunk]
                 tp = taper[a : a + chunk]
-                ue_, un_, uz_ = _okada_segment(seg, slip, e1, n1, e2, n2, E[idx], N[idx], src.poisson)
+                ue_, un_, uz_ = _okada_segment(seg, slip, e1, n1, e2, n2, E[idx], N[idx], src.poisson,
+                                               horizontal)
                 uz[idx] = uz_ * tp
                 if horizontal:
                     uE[idx] = ue_ * tp  # type: ignore[index]
