@@ -262,6 +262,7 @@ def test_manifest_round_trip(tmp_path, scenario_file):
     (final / "figures" / "rays.png").write_bytes(b"changed")
     (final / "extra.txt").write_text("x")
     assert verify_outputs(m) == ["changed: figures/rays.png", "not in manifest: extra.txt"]
+    assert verify_outputs(m, ignore=("figures/*", "extra.txt")) == []
     grid.write_bytes(b"other grid")
     assert verify_inputs(m) and "changed input bathymetry" in verify_inputs(m)[0]
 

@@ -23,6 +23,7 @@ run can be re-made from it and checked (:func:`verify_outputs`).
 from __future__ import annotations
 
 import contextlib
+import fnmatch
 import hashlib
 import json
 import math
@@ -581,8 +582,18 @@ def read_manifest(path: str | os.PathLike) -> dict[str, Any]:
 
 
 def verify_outputs(manifest: Mapping[str, Any] | str | os.PathLike,
-                   folder: str | os.PathLike | None = None) -> list[str]:
+                   folder: str | os.PathLike | None = None, *, ignore: tuple[str, ...] = ()) -> list[str]:
     """Compare a folder's files with a manifest's output list.
+
+    Parameters
+    ----------
+    manifest : mapping or path
+        A manifest (from :func:`read_manifest`) or its path / run folder.
+    folder : path, optional
+        Folder to check; default: the manifest's own folder.
+    ignore : tuple of str
+        Relative paths (:func:`fnmatch.fnmatch` patterns) not compared, e.g. files that name the
+        output folder itself (``"scenario.toml"``) when a re-run went to another folder.
 
     Returns
     -------
@@ -597,8 +608,13 @@ def verify_outputs(manifest: Mapping[str, Any] | str | os.PathLike,
     folder = Path(folder)
     problems = []
     listed = set()
+    def skipped(rel: str) -> bool:
+        return any(fnmatch.fnmatch(rel, pat) for pat in ignore)
+
     for rec in m["outputs"]:
         listed.add(rec["path"])
+        if skipped(rec["path"]):
+            continue
         p = folder / rec["path"]
         if not p.is_file():
             problems.append(f"missing: {rec['path']}")
@@ -606,7 +622,7 @@ def verify_outputs(manifest: Mapping[str, Any] | str | os.PathLike,
             problems.append(f"changed: {rec['path']}")
     for p in sorted(q for q in folder.rglob("*") if q.is_file()):
         rel = p.relative_to(folder).as_posix()
-        if rel != MANIFEST_NAME and rel not in listed:
+        if rel != MANIFEST_NAME and rel not in listed and not skipped(rel):
             problems.append(f"not in manifest: {rel}")
     return problems
 
