@@ -214,15 +214,19 @@ def _deposit(E, T, i, j, tin, tout, u0, v0, du, dv, mx2, my2, den, t0, h, wds, n
     if i < 0 or i >= nx or j < 0 or j >= ny:
         return
     E[j, i] += wds * (tout - tin)
+    # time at the foot of the node's perpendicular on the (locally straight) ray: the wavefront
+    # time at the node to first order, even when the foot lies outside this cell or step
     if den > 0.0:
         tau = ((i - u0) * du * mx2 + (j - v0) * dv * my2) / den
     else:
         tau = tin
-    if tau < tin:
-        tau = tin
-    elif tau > tout:
-        tau = tout
+    if tau < -1.0:
+        tau = -1.0
+    elif tau > 2.0:
+        tau = 2.0
     tt = t0 + tau * h
+    if tt < 0.0:
+        tt = 0.0
     if tt < T[j, i]:
         T[j, i] = tt
 
@@ -231,8 +235,8 @@ def _deposit(E, T, i, j, tin, tout, u0, v0, du, dv, mx2, my2, den, t0, h, wds, n
 def _accumulate(E, T, u0, v0, u1, v1, t0, h, wds, mx, my, nx, ny, periodic):
     """Walk the straight index-space chord (u0,v0)->(u1,v1) cell by cell (Amanatides-Woo).
 
-    Each cell gets ``wds`` times the fraction of the chord inside it (energy) and the time at
-    which the chord passes closest to the cell's node (first arrival, min-reduced).
+    Each cell gets ``wds`` times the fraction of the chord inside it (energy) and the time at the
+    foot of the perpendicular from its node onto the chord line (first arrival, min-reduced).
     """
     du = u1 - u0
     dv = v1 - v0
