@@ -234,9 +234,13 @@ def test_segments_csv_wkt_and_errors(tmp_path, segments):
 
 def test_geojson_antimeridian_cut(tmp_path):
     """RFC 7946 3.1.9: a line crossing the antimeridian is cut in two, longitudes within [-180, 180]."""
-    df = pd.DataFrame({"segment_id": ["S0001"], "geometry": [shapely.LineString([(179.5, -17.0), (180.5, -17.2)])]})
+    df = pd.DataFrame({"segment_id": ["S0001", "S0002"],
+                       "geometry": [shapely.LineString([(179.5, -17.0), (180.5, -17.2)]),
+                                    shapely.LineString([(200.0, 10.0), (201.0, 10.5)])]})  # 0..360 grid
     out = write_segments(df, tmp_path / "am", "EPSG:4326", formats=("geojson",))
-    g = json.loads(out["geojson"].read_text())["features"][0]["geometry"]
+    feats = json.loads(out["geojson"].read_text())["features"]
+    assert feats[1]["geometry"]["coordinates"] == [[-160.0, 10.0], [-159.0, 10.5]]  # RFC 7946: -180..180
+    g = feats[0]["geometry"]
     assert g["type"] == "MultiLineString"
     lons = [c[0] for part in g["coordinates"] for c in part]
     assert min(lons) >= -180 and max(lons) <= 180
