@@ -83,7 +83,7 @@ def test_distributed_localcluster_identical_to_serial(depth, members, serial):
     _same(by_address, serial)
     _same(by_client, serial)
     # bounded memory on the client: never more than max_buffered results waiting
-    assert by_client.memory["max_results_buffered"] <= 2
+    assert by_client.memory["max_results_waiting"] <= 2 and by_client.memory["max_buffered"] == 2
 
 
 def test_member_function_pickles():
@@ -251,3 +251,27 @@ def test_progress_callback_and_bad_arguments():
         run_ensemble(_bad_member, members, scheduler="nonsense")
     with pytest.raises(EnsembleError, match="cannot connect"):
         run_ensemble(_bad_member, members, scheduler="tcp://127.0.0.1:1", connect_timeout_s=1.0)
+
+
+def test_local_scheduler_bounds_results_alive():
+    """With one slow member, later members wait: at most max_buffered results exist at once."""
+    import threading
+    import time
+
+    lock = threading.Lock()
+    log: dict[int, tuple[float, float]] = {}
+
+    def fn(p):
+        t0 = time.perf_counter()
+        if p["member"] == 0:
+            time.sleep(0.5)
+        with lock:
+            log[p["member"]] = (t0, time.perf_counter())
+        return MemberResult(_table(["S1"], [1.0]), {"g": np.ones((2, 2))})
+
+    members = draw_member_parameters({}, 10, 3)
+    res = run_ensemble(fn, members, scheduler="local", workers=2, max_buffered=3)
+    assert res.n_succeeded == 10 and res.memory["max_buffered"] == 3
+    end0 = log[0][1]
+    # member i >= 3 depends on the fold of member i - 3, hence starts after member 0 ended
+    assert all(log[i][0] >= end0 for i in range(3, 10))

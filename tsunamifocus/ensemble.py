@@ -696,20 +696,37 @@ def _run_serial(member_fn, members, retries, shared, acc, prog) -> None:
         prog.update(out.failure is not None)
 
 
-def _run_dask_local(member_fn, members, retries, shared, acc, prog, kind, workers) -> None:
-    """Dask local scheduler: member tasks plus an ordered chain of fold tasks."""
+def _run_member_gated(gate: Any, member_fn, params, index, retries, shared) -> _Outcome:
+    """:func:`_run_member` that waits for ``gate`` (an earlier fold) - bounds results held."""
+    return _run_member(member_fn, params, index, retries, shared)
+
+
+def _run_dask_local(member_fn, members, retries, shared, acc, prog, kind, workers, window) -> None:
+    """Dask local scheduler: member tasks plus an ordered chain of fold tasks.
+
+    Member ``i`` depends on the fold of member ``i - window``, so at most ``window`` member
+    results exist at any time even if one member is much slower than the others.
+    """
     import dask
     from dask.callbacks import Callback
 
     token = uuid.uuid4().hex[:12]
     state = dask.delayed(acc, name=f"tsunamifocus-acc-{token}", traverse=False)
+    folds = []
     for i, params in enumerate(members):
-        m = dask.delayed(_run_member, pure=False, traverse=False)(
-            member_fn, params, i, retries, shared, dask_key_name=f"{_MEMBER_KEY}-{token}-{i}"
-        )
+        key = f"{_MEMBER_KEY}-{token}-{i}"
+        if i >= window:
+            m = dask.delayed(_run_member_gated, pure=False, traverse=False)(
+                folds[i - window], member_fn, params, i, retries, shared, dask_key_name=key
+            )
+        else:
+            m = dask.delayed(_run_member, pure=False, traverse=False)(
+                member_fn, params, i, retries, shared, dask_key_name=key
+            )
         state = dask.delayed(_fold_task, pure=False, traverse=False)(
             state, m, params, dask_key_name=f"tsunamifocus-fold-{token}-{i}"
         )
+        folds.append(state)
 
     def posttask(key, result, dsk, st, worker_id):  # noqa: ANN001 - dask callback signature
         if isinstance(key, str) and key.startswith(f"{_MEMBER_KEY}-{token}-"):
@@ -820,8 +837,9 @@ def run_ensemble(
     workers : int, optional
         Threads of the local scheduler (default ``os.cpu_count()``).
     max_buffered : int, optional
-        Distributed only: most member results in flight or waiting to be folded (default twice
-        the cluster's threads, at least 4) - bounds the client's memory.
+        Most member results in flight or waiting to be folded (default twice the threads of
+        the local scheduler or of the cluster, at least 4) - bounds the memory of the process
+        that reduces. Ignored by ``"serial"``.
     connect_timeout_s : float
         How long to try reaching a scheduler given by address [s].
 
@@ -859,7 +877,11 @@ def run_ensemble(
             _run_serial(member_fn, members, retries, shared, acc, prog)
         elif kind in ("local", "synchronous"):
             sched_info["workers"] = 1 if kind == "synchronous" else workers
-            _run_dask_local(member_fn, members, retries, shared, acc, prog, kind, workers)
+            window = int(max_buffered) if max_buffered else max(4, 2 * workers)
+            if window < 1:
+                raise InputError(f"run_ensemble: max_buffered = {max_buffered!r}; expected >= 1")
+            sched_info["max_buffered"] = window
+            _run_dask_local(member_fn, members, retries, shared, acc, prog, kind, workers, window)
         else:
             info = client.scheduler_info()
             nthreads = sum(w.get("nthreads", 1) for w in info.get("workers", {}).values()) or 1
@@ -867,6 +889,7 @@ def run_ensemble(
             buf = int(max_buffered) if max_buffered else max(4, 2 * nthreads)
             if buf < 1:
                 raise InputError(f"run_ensemble: max_buffered = {max_buffered!r}; expected >= 1")
+            sched_info["max_buffered"] = buf
             _run_distributed(member_fn, members, retries, shared, acc, prog, client, buf)
     finally:
         prog.close()
@@ -896,11 +919,17 @@ def run_ensemble(
         "members_per_minute": 60.0 * len(members) / total if total > 0 else float("nan"),
     }
     grid_cells = sum(int(np.prod(s)) for s in acc.shapes.values())
+    bound = int(sched_info.get("max_buffered", 1))
     memory = {
         "member_result_grid_bytes": int(acc.result_bytes),
         "client_accumulator_bytes": int(3 * 8 * grid_cells),
-        "max_results_buffered": int(acc.max_pending),
-        "note": "per worker: one member's own working set plus member_result_grid_bytes",
+        "max_buffered": bound,
+        "max_results_waiting": int(acc.max_pending),
+        "reducer_bound_bytes": int(3 * 8 * grid_cells + bound * acc.result_bytes),
+        "note": (
+            "reducing process: accumulators plus at most max_buffered member results; "
+            "per worker: one member's own working set plus member_result_grid_bytes"
+        ),
     }
     return EnsembleResult(
         segments=seg,
