@@ -139,3 +139,19 @@ def test_bad_geometry():
         okada85(0.0, 0.0, 4.0, 70.0, 0.0, 2.0, 1.0, 0.0, 0.0)
     with pytest.raises(InputError, match="poisson"):
         okada85(0.0, 0.0, 4.0, 70.0, 3.0, 2.0, 1.0, 0.0, 0.0, poisson=0.5)
+
+
+@pytest.mark.parametrize("dip", [30.0, 90.0])
+def test_surface_breaking_fault_is_finite(dip):
+    # A fault reaching the surface (upper edge at depth 0) has a singular trace (Okada 1985:
+    # R + d~ = 0, R = 0 at the corners); points exactly on it must give finite numbers and no
+    # floating-point warnings, and values just off the trace stay bounded by the slip.
+    W = 2.0
+    d = W * np.sin(np.radians(dip))
+    yt = W * np.cos(np.radians(dip))
+    x = np.array([0.0, 1.5, 3.0, -1.0, 4.0, 0.0, 3.0])
+    y = np.array([yt, yt, yt, yt, yt, yt + 1e-7, yt - 1e-7])
+    with np.errstate(all="raise"):
+        u = np.array(okada85(x, y, d, dip, 3.0, W, 1.0, 1.0, 1.0))
+    assert np.all(np.isfinite(u))
+    assert np.max(np.abs(u)) < 3.0

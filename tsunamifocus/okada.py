@@ -15,6 +15,8 @@ own coordinate convention, so that his Table 2 check values read straight across
   (positive: reverse/thrust, hanging wall moves up-dip), ``U3`` tensile opening;
 * displacements are in the units of the dislocation, lengths in any one consistent unit.
 
+Observation points exactly on the trace of a fault that reaches the surface (where the field is
+discontinuous) are evaluated a hair (1e-9 of the fault size) on the footwall (+y) side.
 The singular cases follow Okada's notes: when ``q = 0`` the term ``atan(xi eta / (q R))`` is
 set to zero, when ``xi = 0`` the term ``I5`` is zero, when ``R + eta = 0`` terms containing
 ``1 / (R + eta)`` are set to zero and ``ln(R + eta)`` is replaced by ``-ln(R - eta)``, and
@@ -165,6 +167,7 @@ def _okada85(
     opening: float,
     poisson: float = 0.25,
     horizontal: bool = True,
+    _nudged: bool = False,
 ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """:func:`okada85`; with ``horizontal=False`` ux and uy are returned as zeros (faster)."""
     if not (length > 0 and width > 0):
@@ -187,14 +190,27 @@ def _okada85(
 
     out = [np.zeros(x.shape) for _ in range(9)]  # corner sums (0.0 terms broadcast in)
     # Chinnery: f(x, p) - f(x, p - W) - f(x - L, p) + f(x - L, p - W)
-    for xi, eta, sign in ((x, p, 1.0), (x, p - width, -1.0), (x - length, p, -1.0), (x - length, p - width, 1.0)):
-        terms = _chinnery_terms(xi, eta, q, sd, cd, alpha, horizontal)
-        for acc, t in zip(out, terms):
-            acc += sign * t
-    f = 1.0 / (2.0 * np.pi)
-    ux = -strike_slip * f * out[0] - dip_slip * f * out[3] + opening * f * out[6]
-    uy = -strike_slip * f * out[1] - dip_slip * f * out[4] + opening * f * out[7]
-    uz = -strike_slip * f * out[2] - dip_slip * f * out[5] + opening * f * out[8]
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        for xi, eta, sign in ((x, p, 1.0), (x, p - width, -1.0), (x - length, p, -1.0),
+                              (x - length, p - width, 1.0)):
+            terms = _chinnery_terms(xi, eta, q, sd, cd, alpha, horizontal)
+            for acc, t in zip(out, terms):
+                acc += sign * t
+        f = 1.0 / (2.0 * np.pi)
+        ux = -strike_slip * f * out[0] - dip_slip * f * out[3] + opening * f * out[6]
+        uy = -strike_slip * f * out[1] - dip_slip * f * out[4] + opening * f * out[7]
+        uz = -strike_slip * f * out[2] - dip_slip * f * out[5] + opening * f * out[8]
+    bad = ~(np.isfinite(ux) & np.isfinite(uy) & np.isfinite(uz))
+    if np.any(bad):
+        # Only on the singular line of a fault that breaks the surface (its trace, where the
+        # displacement is discontinuous): evaluate just off the trace, on the +y (footwall) side.
+        if _nudged:
+            raise InputError("okada85: displacement is singular at an observation point")
+        eps = 1e-9 * max(float(width), float(length), 1.0)
+        bx, by, bz = _okada85(x[bad], y[bad] + eps, depth, dip, length, width, strike_slip, dip_slip, opening,
+                              poisson, horizontal, _nudged=True)
+        ux, uy, uz = (np.array(a, dtype=float, copy=True) for a in (ux, uy, uz))
+        ux[bad], uy[bad], uz[bad] = bx, by, bz
     return ux, uy, uz
 
 
