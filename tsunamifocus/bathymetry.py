@@ -37,6 +37,7 @@ __all__ = [
     "crop_bathymetry",
     "resample_bathymetry",
     "smooth_bathymetry",
+    "reference_bathymetry",
     "sea_mask",
     "DEFAULT_MAX_MEMORY_GB",
 ]
@@ -655,4 +656,56 @@ def smooth_bathymetry(depth: xr.DataArray, length_km: float) -> xr.DataArray:
     out_v = np.where(sea, sm, v)
     out = depth.copy(data=out_v)
     out.attrs["smoothing_km"] = float(length_km)
+    return out
+
+
+def reference_bathymetry(
+    depth: xr.DataArray,
+    length_km: float,
+    *,
+    keep_shallower_m: float = 200.0,
+    smooth_deeper_m: float = 1000.0,
+) -> xr.DataArray:
+    """Reference ocean for the lensing factor: offshore variations low-passed, the shelf kept.
+
+    Where the real depth exceeds ``smooth_deeper_m`` the reference is
+    :func:`smooth_bathymetry` of ``length_km``; where it is shallower than
+    ``keep_shallower_m`` the reference is the real depth; in between the two are blended
+    linearly in log-depth. A plain low-pass of tens of km would also flatten the narrow
+    continental shelf and move the coastal stop isobath, so rays over the reference would end
+    somewhere else than over the real bathymetry; keeping the shelf makes both runs share the
+    same coast, shelf shoaling and stop isobath, and their ratio isolates the focusing caused
+    by the offshore variations.
+
+    Parameters
+    ----------
+    depth : xarray.DataArray
+        Depth [m], positive down.
+    length_km : float
+        Gaussian standard deviation of the low-pass [km].
+    keep_shallower_m, smooth_deeper_m : float
+        Depths [m] bounding the blend (``0 < keep_shallower_m < smooth_deeper_m``).
+
+    Returns
+    -------
+    xarray.DataArray
+        Reference depth [m].
+    """
+    if not 0 < keep_shallower_m < smooth_deeper_m:
+        raise InputError(
+            f"reference blend depths: expected 0 < keep_shallower_m ({keep_shallower_m}) < "
+            f"smooth_deeper_m ({smooth_deeper_m}) m"
+        )
+    sm = smooth_bathymetry(depth, length_km)
+    v = depth.values.astype(float)
+    s = sm.values
+    sea = np.isfinite(v) & (v > 0)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        w = (np.log(smooth_deeper_m) - np.log(np.where(sea, v, 1.0))) / (
+            np.log(smooth_deeper_m) - np.log(keep_shallower_m))
+    w = np.clip(w, 0.0, 1.0)
+    out_v = np.where(sea, w * v + (1.0 - w) * s, v)
+    out = depth.copy(data=out_v)
+    out.attrs.update(smoothing_km=float(length_km), reference_keep_shallower_m=float(keep_shallower_m),
+                     reference_smooth_deeper_m=float(smooth_deeper_m))
     return out

@@ -1,0 +1,232 @@
+"""End-to-end tests of the pipeline: the demo scenario's outputs read back with reference libraries,
+cautions everywhere, atomic failure behaviour, and first-arrival times on the real global grid
+against an independent eikonal solution (scikit-fmm)."""
+
+from __future__ import annotations
+
+import dataclasses
+import html.parser
+import json
+import math
+import pathlib
+
+import numpy as np
+import pytest
+
+from tsunamifocus.cautions import caution_summary
+from tsunamifocus.errors import DataFileError, OutputExistsError
+from tsunamifocus.pipeline import arrival_times, demo_inputs, run_scenario
+from tsunamifocus.scenario import parse_scenario
+
+
+def _small(sc, rays=6000, members=2):
+    return dataclasses.replace(
+        sc,
+        rays=dataclasses.replace(sc.rays, count=rays),
+        ensemble=dataclasses.replace(sc.ensemble, members=members),
+    )
+
+
+@pytest.fixture(scope="module")
+def demo_run(tmp_path_factory):
+    base = tmp_path_factory.mktemp("demo")
+    sc = _small(parse_scenario(demo_inputs(base / "inputs")))
+    out = base / "run"
+    result = run_scenario(sc, out=out, progress=False, command=["pytest"])
+    return result, out
+
+
+def test_demo_outputs_exist(demo_run):
+    result, out = demo_run
+    names = {p.name for p in out.iterdir()}
+    for n in ("travel_time_min.tif", "energy.tif", "lensing_factor.tif", "focusing_factor.tif", "layers.nc",
+              "segments.gpkg", "segments.geojson", "segments.csv", "points.csv", "appendix.html", "appendix.pdf",
+              "manifest.json", "scenario.toml", "figures"):
+        assert n in names, n
+    figs = {p.name for p in (out / "figures").iterdir()}
+    assert {"ray_field.png", "lensing_map.png", "ranking.png", "uplift.png"} <= figs
+    assert not any(p.name.startswith(".") for p in out.parent.iterdir())  # no temp folders left
+
+
+def test_geotiffs_read_back_as_cogs(demo_run):
+    import rasterio
+    from rio_cogeo.cogeo import cog_validate
+
+    result, out = demo_run
+    depth = result.depth
+    for name in ("travel_time_min", "energy", "lensing_factor", "focusing_factor"):
+        p = out / f"{name}.tif"
+        valid, errors, _ = cog_validate(str(p))  # rio-cogeo's Cloud-Optimized GeoTIFF validator
+        assert valid, (name, errors)
+        with rasterio.open(p) as src:
+            assert src.crs is not None and src.crs.to_wkt()
+            assert (src.height, src.width) == depth.shape
+            # cell edges = first centre - half a cell (GDAL geotransform convention)
+            assert src.transform.c == pytest.approx(float(depth.x[0]) - 1000.0)
+            assert src.nodata is not None
+            tags = src.tags()
+            assert any("SCREENING" in str(v).upper() for v in tags.values())
+            assert src.descriptions[0]
+
+
+def test_netcdf_is_cf(demo_run):
+    import xarray as xr
+
+    _, out = demo_run
+    with xr.open_dataset(out / "layers.nc") as ds:
+        assert ds.attrs["Conventions"].startswith("CF-")
+        for v in ("travel_time_min", "energy", "lensing_factor", "focusing_factor", "depth"):
+            assert v in ds and "units" in ds[v].attrs and "grid_mapping" in ds[v].encoding | ds[v].attrs
+        assert "SCREENING" in (ds.attrs.get("comment", "") + ds.attrs.get("caution", "")).upper()
+        assert ds["travel_time_min"].attrs["units"] == "min"
+
+
+def test_vectors_read_back(demo_run):
+    import pyogrio
+    from pyproj import CRS
+
+    result, out = demo_run
+    info = pyogrio.read_info(out / "segments.gpkg")
+    assert CRS.from_user_input(info["crs"]).equals(CRS.from_wkt(result.depth.spatial_ref.attrs["crs_wkt"]))
+    assert info["features"] == len(result.analysis.focusing.segments)
+    gj = json.loads((out / "segments.geojson").read_text())
+    lon, lat = gj["features"][0]["geometry"]["coordinates"][0][:2]
+    # RFC 7946: WGS84 lon/lat; the invented coast lies near 121 W, 27-31 S
+    assert -123 < lon < -120 and -32 < lat < -26
+
+
+def test_appendix_html_and_pdf(demo_run):
+    _, out = demo_run
+    text = (out / "appendix.html").read_text(encoding="utf-8")
+
+    class P(html.parser.HTMLParser):
+        imgs: list = []
+
+        def handle_starttag(self, tag, attrs):
+            if tag == "img":
+                self.imgs.append(dict(attrs).get("src", ""))
+
+    p = P()
+    p.feed(text)
+    assert len(p.imgs) >= 4 and all(s.startswith("data:image/png;base64,") for s in p.imgs)
+    pdf = (out / "appendix.pdf").read_bytes()
+    assert pdf.startswith(b"%PDF") and pdf.count(b"/Type /Page") - pdf.count(b"/Type /Pages") >= 3
+
+
+def test_caution_in_every_output(demo_run):
+    # CAUTIONS.md requires the caution in every output; binary formats carry it in tags/metadata
+    _, out = demo_run
+    key = "SCREENING"
+    for p in out.rglob("*"):
+        if p.is_dir():
+            continue
+        if p.suffix in (".tif", ".gpkg", ".nc"):
+            if p.suffix == ".tif":
+                import rasterio
+
+                with rasterio.open(p) as src:
+                    blob = " ".join(map(str, src.tags().values()))
+            elif p.suffix == ".nc":
+                import xarray as xr
+
+                with xr.open_dataset(p) as ds:
+                    blob = " ".join(map(str, ds.attrs.values()))
+            else:
+                import pyogrio
+
+                blob = json.dumps(pyogrio.read_info(p).get("layer_metadata") or {}) + json.dumps(
+                    pyogrio.read_info(p).get("dataset_metadata") or {})
+            assert key in blob.upper(), p.name
+        elif p.suffix == ".png":
+            from PIL import Image
+
+            im = Image.open(p)
+            assert key.lower() in " ".join(map(str, im.info.values())).lower() or p.parent.name == "figures", p.name
+        elif p.suffix == ".pdf":
+            continue  # checked by the report tests (compressed streams)
+        else:
+            assert key in p.read_text(encoding="utf-8", errors="replace").upper(), p.name
+
+
+def test_manifest_and_health(demo_run):
+    result, out = demo_run
+    m = json.loads((out / "manifest.json").read_text())
+    assert m["parameters"]["rays"]["count"] == 6000
+    assert any(r.get("sha256") for r in m["inputs"])
+    h = result.health[result.analysis.name]
+    assert h["energy_error_relative"] <= 0.01
+    assert abs(sum(h["termination_fraction"].values()) - 1.0) < 1e-9
+    assert result.ensemble is not None and result.ensemble.n_members == 2
+
+
+def test_points_of_interest(demo_run):
+    result, _ = demo_run
+    pts = result.points[result.analysis.name]
+    assert list(pts["name"]) == [p.name for p in result.scenario.points]
+    # invented harbours 500 km from the trench: first arrival after 40 min and before 3 h
+    # (distance / sqrt(g * 4.5 km) ~ 40 min plus slower shelf crossing; common practice, no source)
+    assert (pts["first_arrival_min"] > 40).all() and (pts["first_arrival_min"] < 180).all()
+    assert pts["nearest_segment"].str.startswith("S").all()
+
+
+def test_refuses_nonempty_output_and_failed_run_leaves_folder(tmp_path):
+    sc = _small(parse_scenario(demo_inputs(tmp_path / "in")), rays=500, members=0)
+    out = tmp_path / "out"
+    out.mkdir()
+    (out / "keep.txt").write_text("earlier results")
+    with pytest.raises(OutputExistsError):
+        run_scenario(sc, out=out, progress=False)
+    bad = tmp_path / "in" / "meridane_elevation.tif"
+    bad.write_bytes(b"truncated")
+    with pytest.raises(DataFileError):
+        run_scenario(sc, out=out, overwrite=True, progress=False)
+    assert [p.name for p in out.iterdir()] == ["keep.txt"]
+    assert (out / "keep.txt").read_text() == "earlier results"
+
+
+@pytest.mark.realdata
+@pytest.mark.slow
+def test_global_point_source_arrivals_match_eikonal(etopo_path):
+    """First arrivals on the real 0.5-degree Pacific against scikit-fmm on a Mercator grid.
+
+    Independent reference: the eikonal equation |grad T| = 1/c solved by fast marching
+    (scikit-fmm, general-purpose) on a conformal Mercator grid, where the sphere's metric is
+    isotropic (ds = R cos(lat) sqrt(dx^2 + dy^2)), so the effective speed is c / (R cos lat).
+    """
+    import skfmm
+    from scipy.interpolate import RegularGridInterpolator
+
+    from tsunamifocus.bathymetry import crop_bathymetry, load_bathymetry, resample_bathymetry
+
+    d = resample_bathymetry(load_bathymetry(etopo_path, values="elevation"), 50.0)
+    d = crop_bathymetry(d, (130.0, -55.0, 290.0, 55.0))
+    src = (250.0, -30.0)  # open South Pacific
+    targets = [(200.0, 10.0), (180.0, -20.0), (160.0, 30.0), (215.0, -45.0)]
+    t_ray = arrival_times(d, src, targets, n_rays=7200, stop_depth=20.0, max_time_s=30 * 3600.0)
+
+    R = 6371008.8
+    lon = np.radians(d.lon.values)
+    lat = d.lat.values
+    ymerc = np.log(np.tan(np.pi / 4 + np.radians(lat) / 2))
+    yy = np.linspace(ymerc[0], ymerc[-1], 2 * len(lat))
+    lat_of_yy = np.degrees(2 * np.arctan(np.exp(yy)) - np.pi / 2)
+    f = RegularGridInterpolator((lat, d.lon.values), np.where(d.values > 20.0, d.values, 0.0))
+    LAT, LON = np.meshgrid(lat_of_yy, d.lon.values, indexing="ij")
+    h = f(np.stack([LAT.ravel(), LON.ravel()], -1)).reshape(LAT.shape)
+    c = np.sqrt(9.81 * np.maximum(h, 0.0))
+    speed = c / (R * np.cos(np.radians(LAT)))
+    sea = h > 20.0
+    dx = lon[1] - lon[0]
+    dy = yy[1] - yy[0]
+    j0 = int(np.argmin(abs(lat_of_yy - src[1])))
+    i0 = int(np.argmin(abs(d.lon.values - src[0])))
+    phi = np.ones_like(h)
+    phi[j0, i0] = -1.0
+    phi = np.ma.MaskedArray(phi, mask=~sea)
+    T = skfmm.travel_time(phi, np.where(sea, speed, 1e-9), dx=[dy, dx], order=2)
+    T = np.ma.filled(T, np.nan)
+    g = RegularGridInterpolator((lat_of_yy, d.lon.values), T)
+    for (tl, tb), tr in zip(targets, t_ray):
+        te = float(g([[tb, tl]])[0])
+        assert math.isfinite(tr) and math.isfinite(te)
+        assert tr == pytest.approx(te, rel=0.04), (tl, tb, tr / 3600, te / 3600)
