@@ -270,6 +270,15 @@ def test_kajiura_filter_volume_and_peak():
     peak = integrate.quad(lambda k: F(k) / math.cosh(k * h) * k, 0.0, 40.0 / h, limit=200)[0] / (2 * math.pi)
     assert 0.5 < peak < 0.95  # the filter matters at this size
     assert float(filt.max()) == pytest.approx(peak, rel=0.01)
+    # land keeps its ground displacement; only the sea surface is filtered
+    vals = d.values.copy()
+    land = d.x.values[None, :] + 0 * d.y.values[:, None] > 505e3
+    vals[land] = -10.0
+    dl = d.copy(data=vals)
+    raw_l = uplift_on_grid(ps, dl).values
+    filt_l = uplift_on_grid(ps, dl, kajiura=True).values
+    np.testing.assert_array_equal(filt_l[land], raw_l[land])
+    assert np.max(np.abs(filt_l[~land] - raw_l[~land])) > 0.05
 
 
 def test_tanioka_satake_horizontal_term():

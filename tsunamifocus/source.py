@@ -832,7 +832,8 @@ def kajiura_filter(eta: np.ndarray, depth: np.ndarray, gi: GridInfo, *, threshol
     ``|eta| >= threshold max|eta|`` plus a margin, zero padded to twice its size; for lon/lat
     grids the spacing is taken at the window's mid latitude), multiplied by
     ``1 / cosh(|k| h)`` with ``h`` the **mean depth of the source area** (sea cells with
-    ``|eta| >= threshold max|eta|``) and transformed back.
+    ``|eta| >= threshold max|eta|``) and transformed back. Only the uplift of sea cells enters
+    and only sea cells are changed (land keeps its ground displacement).
 
     Parameters
     ----------
@@ -848,7 +849,8 @@ def kajiura_filter(eta: np.ndarray, depth: np.ndarray, gi: GridInfo, *, threshol
     Returns
     -------
     numpy.ndarray
-        Filtered sea-surface displacement [m] (outside the window: unchanged, ~0).
+        Filtered sea-surface displacement [m] on sea cells; land cells and cells outside the
+        window unchanged.
     """
     amax = float(np.max(np.abs(eta)))
     if amax == 0:
@@ -863,7 +865,9 @@ def kajiura_filter(eta: np.ndarray, depth: np.ndarray, gi: GridInfo, *, threshol
     # the filter's kernel decays like exp(-pi r / (2 h)): a margin of 6 h keeps > 99.99 %
     margin_cells = int(math.ceil(6.0 * h / min(dx_m, dy_m)))
     rows, cols = _sig_window(gi, np.abs(eta) >= 1e-3 * amax, margin=0.25, extra=margin_cells)
-    block = eta[np.ix_(rows, cols)]
+    sub = np.ix_(rows, cols)
+    sea_b = sea[sub]
+    block = np.where(sea_b, eta[sub], 0.0)  # the water column is over the sea only
     ny, nx = block.shape
     py, px = 2 * ny, 2 * nx
     F = np.fft.rfft2(block, s=(py, px))
@@ -873,7 +877,7 @@ def kajiura_filter(eta: np.ndarray, depth: np.ndarray, gi: GridInfo, *, threshol
     filt = 1.0 / np.cosh(np.minimum(k * h, 700.0))
     out_block = np.fft.irfft2(F * filt, s=(py, px))[:ny, :nx]
     out = eta.copy()
-    out[np.ix_(rows, cols)] = out_block
+    out[sub] = np.where(sea_b, out_block, eta[sub])
     return out
 
 
