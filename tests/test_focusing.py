@@ -557,3 +557,18 @@ def test_real_relief_arrivals_and_budget(etopo_path):
     # c ~ sqrt(h): the relative speed fluctuation is smaller than the relative depth one
     st = F.fluctuation_statistics(d, 50.0)
     assert 0 < st["eps_speed"] < st["eps_depth"]
+
+
+def test_shoreline_inshore_of_the_stop_isobath_is_reached():
+    # A shoreline file at the 0 m line (x = 140 km) with a 200 m stop isobath 8 km offshore
+    # (h = 1000 (140 km - x) / 40 km): the default assignment distance follows the offset, so
+    # all energy lands on the segments and each metre of coast gets E / W (normal incidence).
+    from shapely.geometry import LineString
+
+    d = shelf()
+    r = plane_wave(d, 1000, 0.0, 100e3, stop_depth=200.0)
+    seg = segment_coastline([LineString([(140e3, 0.0), (140e3, 100e3)])], 10e3, d)
+    tab = F.segment_arrivals(seg, r, d, period_s=T)
+    assert tab.attrs["max_distance_m"] == pytest.approx(3 * DX + 1.5 * 8000.0, rel=0.01)
+    np.testing.assert_allclose(tab["energy_per_m"], E_SRC / 100e3, rtol=0.01)
+    np.testing.assert_allclose(tab["h_stop_m"], 200.0, rtol=1e-6)

@@ -365,9 +365,11 @@ def reference_depth(depth: xr.DataArray, length_km: float) -> xr.DataArray:
     xarray.DataArray
         Reference depth [m].
     """
-    from .bathymetry import smooth_bathymetry
+    from .bathymetry import reference_bathymetry
 
-    ref = smooth_bathymetry(depth, length_km)
+    # offshore variations low-passed; the shelf (< 200 m, blended up to 1000 m) kept, so the
+    # coast and stop isobath are the same in both runs (see reference_bathymetry)
+    ref = reference_bathymetry(depth, length_km)
     sea = _sea(depth)
     v = np.asarray(depth.values, dtype=float)
     r = np.asarray(ref.values, dtype=float).copy()
@@ -823,6 +825,31 @@ def _assign(segments: pd.DataFrame, info: GridInfo, x: np.ndarray, y: np.ndarray
     return idx, dist
 
 
+def _default_max_distance(segments: pd.DataFrame, depth: xr.DataArray, info: GridInfo, stop: float) -> float:
+    """3 cells + 1.5 x median offset [m] of the segment centres from the stop-isobath contour."""
+    import shapely
+
+    from .coast import coastline_from_grid
+
+    base = 3.0 * max(info.spacing_m())
+    if not (np.isfinite(stop) and stop > 0):
+        return base
+    try:
+        lines = coastline_from_grid(depth, stop, min_length_m=0.0)
+    except CoastError:
+        return base
+    kx = math.cos(math.radians(float(np.median(segments["y_mid"])))) if info.geographic else 1.0
+    k = math.pi / 180.0 * info.radius_m if info.geographic else 1.0
+    geoms = np.asarray(lines, dtype=object)
+    if info.geographic:
+        geoms = shapely.transform(geoms, lambda c: np.column_stack([c[:, 0] * kx, c[:, 1]]))
+    pts = shapely.points(np.column_stack([segments["x_mid"].to_numpy(float) * kx, segments["y_mid"].to_numpy(float)]))
+    tree = shapely.STRtree(geoms)
+    _, dist = tree.query_nearest(pts, return_distance=True, all_matches=False)
+    offset = float(np.median(dist)) * k if len(dist) else 0.0
+    return base + 1.5 * offset
+
+
 def _angle_diff(a: np.ndarray, b: np.ndarray) -> np.ndarray:
     """Absolute difference of azimuths in [0, 180] degrees."""
     return np.abs((np.asarray(a) - np.asarray(b) + 180.0) % 360.0 - 180.0)
@@ -932,10 +959,11 @@ def segment_arrivals(
     ref_result : RayResult, optional
         The same source over the reference bathymetry (for the lensing factor).
     max_distance_m : float, optional
-        Largest ray-end to segment distance [m]. Default 3 grid cells: rays end on the stop
-        isobath, which a grid contour at that depth follows to within a cell. Raise it when a
-        shoreline file lies inshore of the stop isobath (a warning says so when more than half
-        of the coast energy stays unassigned).
+        Largest ray-end to segment distance [m]. Default: 3 grid cells plus 1.5 times the
+        median distance from the segment centres to the grid's stop-isobath contour. For
+        segments cut from that contour this is 3 cells (rays end on it to within a cell); for a
+        shoreline file inshore of the stop isobath it grows with the shelf offset. A warning
+        says when more than half of the coast energy stays unassigned.
     min_rays : int
         Rays needed for ``reliable``.
     n_boot : int
@@ -964,9 +992,9 @@ def segment_arrivals(
     if not (np.isfinite(period_s) and period_s > 0):
         raise InputError(f"period_s={period_s}: expected the source's dominant period in seconds (> 0)")
     info = GridInfo.from_dataarray(depth)
-    if max_distance_m is None:
-        max_distance_m = 3.0 * max(info.spacing_m())
     end = result.end
+    if max_distance_m is None:
+        max_distance_m = _default_max_distance(segments, depth, info, float(end.attrs.get("stop_depth_m", np.nan)))
     reason = np.asarray(end["reason"].values)
     coast = reason == REASON_COAST
     stop = float(end.attrs.get("stop_depth_m", np.nan))
