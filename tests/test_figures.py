@@ -379,3 +379,10 @@ def test_labels_and_scale_helpers():
     assert figures._nice_length(73e3) == 50e3
     assert figures._nice_length(19.9) == 10.0
     assert figures._nice_time_step(300.0) == 30.0
+
+
+def test_ranking_with_nullable_columns(case, tmp_path):
+    seg = case["segments"].copy()
+    seg["reliable"] = pd.array([None] + [True] * (len(seg) - 1), dtype="boolean")
+    seg["rank_lensing"] = pd.array([pd.NA] + list(range(1, len(seg))), dtype="Int64")
+    check_png(figures.plot_ranking(seg, 5, out_path=tmp_path / "r.png"), min_w=800, min_h=300)

@@ -239,13 +239,20 @@ def _optional(key: str) -> dict:
     }[key]
 
 
+@pytest.fixture(scope="module")
+def built_without_optional(figs, tmp_path_factory):
+    d = tmp_path_factory.mktemp("without")
+    out = report.build_appendix(base_context(figs), d / "without.html", d / "without.pdf")
+    return out, (d / "without.html").read_text(encoding="utf-8"), (pdf_text(d / "without.pdf") if HAVE_PDFTOTEXT else "")
+
+
 @pytest.mark.parametrize("key", ["ensemble", "comparison", "wave_check"])
-def test_optional_sections_only_when_given(figs, tmp_path, key):
+def test_optional_sections_only_when_given(figs, built_without_optional, tmp_path, key):
     title = report._OPTIONAL_TITLES[key]
-    ctx = base_context(figs)
-    out0 = report.build_appendix(ctx, tmp_path / "without.html", tmp_path / "without.pdf")
+    out0, html0, pdf0 = built_without_optional
     assert not any(title in s for s in out0["sections"])
-    assert title not in (tmp_path / "without.html").read_text(encoding="utf-8")
+    assert title not in html0 and title not in pdf0
+    ctx = base_context(figs)
     ctx[key] = _optional(key)
     out1 = report.build_appendix(ctx, tmp_path / "with.html", tmp_path / "with.pdf")
     assert any(title in s for s in out1["sections"])
@@ -253,7 +260,6 @@ def test_optional_sections_only_when_given(figs, tmp_path, key):
     assert title in doc and _optional(key)["text"] in doc
     if HAVE_PDFTOTEXT:
         assert title in pdf_text(tmp_path / "with.pdf")
-        assert title not in pdf_text(tmp_path / "without.pdf")
 
 
 def test_optional_section_with_figure(figs, tmp_path):
@@ -339,3 +345,17 @@ def test_cautions_text_matches_repository_file():
     txt = _norm(report.cautions_text())
     for para in caution_paragraphs():
         assert para in txt
+
+
+def test_nullable_columns_render(figs, tmp_path):
+    # ranks with gaps and unknown reliability arrive as pandas nullable dtypes / None
+    ctx = base_context(figs)
+    seg = ctx["ranking"].copy()
+    seg["rank_lensing"] = pd.array([pd.NA] + list(range(1, len(seg))), dtype="Int64")
+    seg["reliable"] = pd.array([None] + [True] * (len(seg) - 1), dtype="boolean")
+    seg.loc[seg.index[1], "first_arrival_s"] = np.nan
+    ctx["ranking"] = seg
+    report.build_appendix(ctx, tmp_path / "n.html", tmp_path / "n.pdf")
+    cols, rows, _ = report._ranking_table(seg, len(seg), [])
+    assert rows[-1][0] == "–"  # the segment without a rank goes last
+    assert rows[0][cols.index("First arrival (min)")] == "–"

@@ -165,6 +165,7 @@ def _new_map(info: GridInfo, title: str | None):
     ax = fig.add_subplot(1, 1, 1)
     ax._tf_ratio = ratio  # height / width of the map box
     ax._tf_aspect = aspect  # re-applied in _finish (imshow resets the aspect)
+    ax.set_anchor("S")  # any spare height ends up above the map (trimmed in _finish)
     ax.set_xlim(xmin, xmax)
     ax.set_ylim(ymin, ymax)
     ax.set_aspect(aspect)
@@ -317,6 +318,7 @@ def _finish(
         leg.set_zorder(40)
     if ax is not None and geo is not None:
         ax.set_aspect(getattr(ax, "_tf_aspect", 1.0))
+        ax.set_anchor("S")
         xmin, xmax, ymin, ymax = _extent(geo)
         ax.set_xlim(xmin, xmax)
         ax.set_ylim(ymin, ymax)
@@ -348,6 +350,8 @@ def _finish(
             engine.set(rect=(0.0, foot, 1.0, 1.0 - foot))  # (left, bottom, width, height)
         except Exception:  # noqa: BLE001 - layout tweak only
             pass
+    if ax is not None and geo is not None and engine is not None:
+        _trim_vertical_slack(fig, ax)
     out = pathlib.Path(out_path)
     if out.suffix.lower() != ".png":
         raise InputError(f"figure path '{out}': expected a .png file name")
@@ -365,6 +369,23 @@ def _finish(
         if tmp.exists():
             tmp.unlink()
     return out
+
+
+def _trim_vertical_slack(fig: Figure, ax) -> None:
+    """Shrink the figure height by the empty band a fixed-aspect map leaves above/below it."""
+    try:
+        fig.draw_without_rendering()
+        orig = ax.get_position(original=True)
+        act = ax.get_position(original=False)
+        w, h = fig.get_size_inches()
+        slack = (orig.height - act.height) * h
+        if slack > 0.08:
+            new_h = max(h - slack + 0.42, 3.0)  # the title sits in the slack band before trimming
+            fig.set_size_inches(w, new_h)
+            foot = 0.22 / new_h
+            fig.get_layout_engine().set(rect=(0.0, foot, 1.0, 1.0 - foot))
+    except Exception:  # noqa: BLE001 - cosmetic only
+        pass
 
 
 def _software() -> str:
@@ -968,7 +989,10 @@ def plot_ranking(
     n = len(df)
     fig, ax = _new_chart((7.6, 1.7 + 0.36 * n), title or f"Top {n} coastline segments by {label_d.split(' (')[0].lower()}")
     vals = pd.to_numeric(df[by], errors="coerce").to_numpy(float)
-    rel = df["reliable"].astype(bool).to_numpy() if "reliable" in df.columns else np.ones(n, bool)
+    if "reliable" in df.columns:  # missing/unknown reliability counts as unreliable
+        rel = np.array([bool(v) if v is not None and v is not pd.NA and v == v else False for v in df["reliable"]])
+    else:
+        rel = np.ones(n, bool)
     ypos = np.arange(n)[::-1]
     colors = np.where(rel, _OKABE_BLUE, "#c8c8c8")
     bars = ax.barh(ypos, vals, height=0.62, color=colors, edgecolor="0.25", linewidth=0.6, zorder=2)

@@ -315,9 +315,19 @@ _OPTIONAL_TITLES = {
 _SUP = str.maketrans("0123456789-+", "⁰¹²³⁴⁵⁶⁷⁸⁹⁻⁺")
 
 
+def _num(v: Any) -> float:
+    """Float of a table value; NaN for None, pd.NA or anything non-numeric."""
+    try:
+        if v is None or v is pd.NA or v is pd.NaT:
+            return math.nan
+        return float(v)
+    except (TypeError, ValueError):
+        return math.nan
+
+
 def _fmt(v: Any) -> str:
     """Format a table value: 4 significant digits, ×10ⁿ for large/small, '–' for missing."""
-    if v is None:
+    if v is None or v is pd.NA or v is pd.NaT:
         return "–"
     if isinstance(v, (bool, np.bool_)):
         return "yes" if v else "no"
@@ -533,7 +543,8 @@ def _ranking_table(seg: pd.DataFrame, top_k: int, extra: Sequence[tuple[str, str
             keys.append(key)
     rows = []
     for rk, (_, r) in zip(ranks, df.iterrows(), strict=True):
-        row = [_fmt(int(rk)) if rk is not None and not (isinstance(rk, float) and math.isnan(rk)) else "–"]
+        rkf = _num(rk)
+        row = [_fmt(int(rkf)) if math.isfinite(rkf) else "–"]
         for key in keys:
             v = r[key]
             if key == "lensing_factor":
@@ -545,11 +556,11 @@ def _ranking_table(seg: pd.DataFrame, top_k: int, extra: Sequence[tuple[str, str
                 if "amp_lo" in df.columns and "amp_hi" in df.columns:
                     s += f" ({_fmt3(r['amp_lo'])}–{_fmt3(r['amp_hi'])})"
             elif key == "first_arrival_s":
-                s = _fmt(float(v) / 60.0) if v is not None and np.isfinite(float(v)) else "–"
+                s = _fmt(_num(v) / 60.0)
             elif key == "length_m":
-                s = _fmt(float(v) / 1000.0)
+                s = _fmt(_num(v) / 1000.0)
             elif key in ("lon_mid", "lat_mid"):
-                s = f"{float(v):.3f}".replace("-", "−") if v is not None and np.isfinite(float(v)) else "–"
+                s = f"{_num(v):.3f}".replace("-", "−") if math.isfinite(_num(v)) else "–"
             else:
                 s = _fmt(v)
             row.append(s)
