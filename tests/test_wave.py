@@ -317,7 +317,7 @@ def test_segment_max_amplitude_samples_the_stop_isobath():
     # A straight coast (dry for x >= 40 km); the band of wet cells next to it is column 39 (x = 39 km).
     # A synthetic amplitude field equal to y [km] / 100 lets the expected values be written down by hand:
     # a segment at x = 39.5 km reaches band cells within 2 km, i.e. rows within sqrt(2^2 - 0.5^2) = 1.94 km
-    # of its end points.
+    # of its end points; a cell goes to the nearest segment only.
     nx, ny, dx = 50, 40, 1000.0
     d = np.full((ny, nx), 500.0)
     d[:, 40:] = 5.0
@@ -327,17 +327,19 @@ def test_segment_max_amplitude_samples_the_stop_isobath():
     wr = WaveResult(amp, amp, amp, amp, None, {})
     segs = pd.DataFrame(
         {
-            "segment_id": ["S0001", "S0002", "S0003"],
+            "segment_id": ["S0001", "S0002", "S0003", "S0004"],
             "geometry": [
-                shapely.LineString([(39500.0, 0.0), (39500.0, 9000.0)]),  # reaches rows 0..10
+                shapely.LineString([(39500.0, 0.0), (39500.0, 9000.0)]),  # rows 0..9 (row 9: tie, first row wins)
                 shapely.LineString([(39500.0, 20000.0), (39500.0, 30000.0)]),  # reaches rows 19..31
                 shapely.LineString([(5000.0, 5000.0), (9000.0, 5000.0)]),  # far offshore: no band cell
+                shapely.LineString([(39500.0, 9000.0), (39500.0, 15000.0)]),  # rows 10..16 (nearest to it)
             ],
         }
     )
     out = segment_max_amplitude(wr, segs, depth, 20.0, search_radius_cells=2.0)
-    assert list(out.index) == ["S0001", "S0002", "S0003"]
-    assert out["S0001"] == pytest.approx(0.10)
+    assert list(out.index) == ["S0001", "S0002", "S0003", "S0004"]
+    assert out["S0001"] == pytest.approx(0.09)
+    assert out["S0004"] == pytest.approx(0.16)
     assert out["S0002"] == pytest.approx(0.31)
     assert np.isnan(out["S0003"])
     mean = segment_max_amplitude(wr, segs, depth, 20.0, search_radius_cells=2.0, statistic="mean")

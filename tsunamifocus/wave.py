@@ -650,8 +650,9 @@ def segment_max_amplitude(
     """Maximum wave amplitude per coastline segment, sampled along the stop isobath.
 
     The stop-isobath band is the set of wet cells (depth ``> stop_depth``) with a dry 4-neighbour.
-    For each segment, the band cells whose centres lie within ``search_radius_cells`` cell sizes of
-    the segment geometry are gathered and their ``wave_result.max_amplitude`` reduced by ``statistic``.
+    Each band cell is given to the segment nearest to its centre if that lies within
+    ``search_radius_cells`` cell sizes (so neighbouring segments never share a cell); the
+    ``wave_result.max_amplitude`` of a segment's cells is reduced by ``statistic``.
 
     Parameters
     ----------
@@ -710,8 +711,14 @@ def segment_max_amplitude(
     ids = segments["segment_id"].astype(str).values
     out = np.full(len(geoms), np.nan)
     if len(vals) and len(geoms):
-        tree = shapely.STRtree(shapely.points(px, py))
-        seg_idx, pt_idx = tree.query(geoms, predicate="dwithin", distance=radius)
+        # each band cell goes to its nearest segment within the radius (ties: lowest row of the table)
+        tree = shapely.STRtree(geoms)
+        pt_idx, seg_idx = tree.query_nearest(shapely.points(px, py), max_distance=radius, all_matches=True)
+        if pt_idx.size:
+            order = np.lexsort((seg_idx, pt_idx))
+            pt_idx, seg_idx = pt_idx[order], seg_idx[order]
+            first = np.r_[True, pt_idx[1:] != pt_idx[:-1]]
+            pt_idx, seg_idx = pt_idx[first], seg_idx[first]
         order = np.argsort(seg_idx, kind="stable")
         seg_idx, pt_idx = seg_idx[order], pt_idx[order]
         starts = np.searchsorted(seg_idx, np.arange(len(geoms)))
