@@ -572,3 +572,15 @@ def test_shoreline_inshore_of_the_stop_isobath_is_reached():
     assert tab.attrs["max_distance_m"] == pytest.approx(3 * DX + 1.5 * 8000.0, rel=0.01)
     np.testing.assert_allclose(tab["energy_per_m"], E_SRC / 100e3, rtol=0.01)
     np.testing.assert_allclose(tab["h_stop_m"], 200.0, rtol=1e-6)
+
+
+def test_segment_fresnel_width():
+    # sqrt(c_stop T L)/2 with c_stop = sqrt(g 20 m) and L = distance from the launch line
+    # (plane wave launched on x = 5 km, coast contour at x = 139.2 km): Fresnel zone definition.
+    d = shelf()
+    r = plane_wave(d, 500, 0.0, 100e3)
+    seg = segment_coastline(coastline_from_grid(d, 20.0), 10e3, d)
+    tab = F.segment_arrivals(seg, r, d, period_s=T)
+    expected = 0.5 * math.sqrt(math.sqrt(GRAVITY * 20.0) * T * (139.2e3 - 5e3))
+    np.testing.assert_allclose(tab["fresnel_sigma_m"], expected, rtol=1e-3)
+    assert F.energy_budget(r, tab)["coast_unassigned_J"] == 0.0

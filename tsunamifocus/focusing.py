@@ -935,6 +935,9 @@ def segment_arrivals(
       ``a`` with mean energy density ``rho g a**2 / 2`` (linear long waves), so
       ``a = sqrt(2 E_w / (rho g c_stop T))``; ``h_stop`` is the energy-weighted mean end depth
       of the rays (the stop isobath) and ``c_stop = sqrt(g h_stop)``;
+    * ``fresnel_sigma_m`` [m] - first-Fresnel-zone radius ``sqrt(c_stop T L) / 2`` at the
+      segment (``L`` = distance from the nearest launch point): segment values are ray counts,
+      not regularised; a hotspot narrower than this along the coast is a ray-theory artefact;
     * ``amp_1m_m`` - Green's law (Green 1838) extrapolation to 1 m depth,
       ``a_1m = a_stop (h_stop / 1 m)**(1/4)``: indicative only (no breaking, run-up, friction);
     * ``lensing_lo/hi``, ``amp_lo/hi`` - 5-95 % bootstrap interval over rays: ``n_boot``
@@ -1083,6 +1086,13 @@ def segment_arrivals(
         out["amp_lo"] = out["amp_hi"] = np.nan
     out["c_stop_m_s"] = c_stop
     out["h_stop_m"] = agg["h"]
+    # regularisation width at the segment: first Fresnel zone radius sqrt(lambda L)/2 with the
+    # wavelength at the stop isobath and L the distance from the nearest launch point
+    lp = np.unique(np.round(_to_xyz(info, end["launch_x"].values, end["launch_y"].values), 3), axis=0)
+    dseg, _ = cKDTree(lp).query(_to_xyz(info, out["x_mid"].to_numpy(float), out["y_mid"].to_numpy(float)))
+    if info.geographic:
+        dseg = 2 * info.radius_m * np.arcsin(np.clip(dseg / (2 * info.radius_m), 0, 1))
+    out["fresnel_sigma_m"] = 0.5 * np.sqrt(c_stop * period_s * dseg)
     rel = agg["n"] >= int(min_rays)
     if ref_result is not None:
         rel &= out["ref_n_rays"].to_numpy(np.int64) >= int(min_rays)
@@ -1279,10 +1289,13 @@ def energy_budget(
     other = float(w[~known].sum())
     src = float(w.sum()) if source_energy_J is None else float(source_energy_J)
     seg = float(arrivals["energy_J"].sum()) if arrivals is not None else by["coast"]
+    unassigned = by["coast"] - seg
+    if arrivals is not None and "energy_coast_unassigned_J" in arrivals.attrs:
+        unassigned = float(arrivals.attrs["energy_coast_unassigned_J"])
     out = {
         "source_J": src,
         "segments_J": seg,
-        "coast_unassigned_J": by["coast"] - seg,
+        "coast_unassigned_J": unassigned,
         "left_grid_J": by["left_grid"],
         "land_or_nodata_J": by["land_or_nodata"],
         "time_limit_J": by["time_limit"],
