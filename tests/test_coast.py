@@ -233,3 +233,25 @@ def test_read_coastline_bad_files(tmp_path):
     _write(empty, [LineString()], "EPSG:4326")
     with pytest.raises(CoastError):
         read_coastline(empty, UTM31N)
+
+
+def test_island_across_the_seam_of_a_global_grid_is_one_ring():
+    # Longitude invariance of the sphere: an island straddling the 0/360 seam of a periodic
+    # grid must give one closed ring of the same geodesic length as the same island at 180 E.
+    lon = np.arange(0.0, 360.0, 1.0)
+    lat = np.arange(-60.0, 60.1, 1.0)
+    LON, LAT = np.meshgrid(lon, lat)
+    dlon = (LON + 180.0) % 360.0 - 180.0
+    h = np.where(np.hypot(dlon, LAT) < 10, -100.0, 4000.0)
+    h = np.where(np.hypot(LON - 180.0, LAT) < 10, -100.0, h)
+    d = make_grid(h, lon, lat, "EPSG:4326")
+    assert d.attrs["lon_periodic"] == 1
+    lines = coastline_from_grid(d, 20.0)
+    info = GridInfo.from_dataarray(d)
+    assert len(lines) == 2 and all(ln.is_closed for ln in lines)
+    la, lb = (line_length_m(ln, info) for ln in lines)
+    assert la == pytest.approx(lb, rel=1e-9)
+    seg = segment_coastline(lines, 200e3, d)
+    assert seg["length_m"].sum() == pytest.approx(la + lb, rel=1e-12)
+    assert seg["x_mid"].between(-0.5, 359.5).all()  # centres inside the grid's longitude range
+    assert seg["lon_mid"].between(-180.0, 180.0).all()

@@ -148,6 +148,8 @@ def coastline_from_grid(
         z = np.concatenate([z, z[:, :1]], axis=1)
     gen = contourpy.contour_generator(x, y, z, line_type=contourpy.LineType.Separate)
     pieces = gen.lines(float(isobath_m))
+    if periodic:
+        pieces = _join_across_seam(pieces, info.x0, info.x0 + info.nx * info.dx)
     if min_length_m is None:
         min_length_m = 5.0 * info.min_spacing_m()
     out: list[tuple[float, LineString]] = []
@@ -166,6 +168,33 @@ def coastline_from_grid(
         )
     out.sort(key=lambda t: -t[0])
     return [ln for _, ln in out]
+
+
+def _join_across_seam(pieces: list, x_first: float, x_seam: float) -> list:
+    """Join contour pieces cut by the longitude seam of a periodic grid.
+
+    Pieces with an end on the first column are shifted by +360 deg so they meet the pieces
+    ending on the (appended) seam column, then merged (shapely ``line_merge``). The joined
+    lines run continuously across the seam (longitudes may exceed the grid's last column).
+    """
+    tol = 1e-9 * max(1.0, abs(x_seam))
+    shifted = []
+    touched = False
+    for xy in pieces:
+        xy = np.asarray(xy, dtype=float)
+        if xy.shape[0] >= 2 and (abs(xy[0, 0] - x_first) < tol or abs(xy[-1, 0] - x_first) < tol):
+            xy = xy + np.array([360.0, 0.0])
+            touched = True
+        shifted.append(xy)
+    if not touched:
+        return shifted
+    seam = [xy for xy in shifted if xy.shape[0] >= 2 and np.any(np.abs(xy[[0, -1], 0] - x_seam) < tol)]
+    rest = [xy for xy in shifted if not (xy.shape[0] >= 2 and np.any(np.abs(xy[[0, -1], 0] - x_seam) < tol))]
+    if not seam:
+        return shifted
+    merged = shapely.line_merge(MultiLineString([LineString(xy) for xy in seam]))
+    parts = list(merged.geoms) if hasattr(merged, "geoms") else [merged]
+    return rest + [np.asarray(g.coords) for g in parts]
 
 
 # --------------------------------------------------------------------------------------
@@ -499,6 +528,7 @@ def segment_coastline(
     df = pd.DataFrame(rows)
     df.insert(0, "segment_id", [f"S{i + 1:0{width}d}" for i in range(len(rows))])
     if info.geographic:
+        df["x_mid"] = np.asarray(info.wrap_lon(df["x_mid"].to_numpy(float)), dtype=float)
         lon = ((df["x_mid"].to_numpy() + 180.0) % 360.0) - 180.0
         lat = df["y_mid"].to_numpy()
     else:
