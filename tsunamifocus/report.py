@@ -193,13 +193,19 @@ DEFAULT_METHOD: list[dict[str, Any]] = [
         "text": [
             "Each ray i carries an energy weight wᵢ [J]. The energy map is the ray-density estimate "
             "W, the energy per unit wavefront width, with ℓᵢ the path length of ray i in a cell of "
-            "area A. The lensing factor L of a coastline segment compares the energy per metre of coast "
-            "that reaches it with the energy per metre from the same source over a smoothed reference "
-            "bathymetry: L > 1 means bathymetric focusing, L < 1 a shadow."
+            "area A. For the maps it is regularised by smoothing over the first Fresnel zone, "
+            "σ = √(λ L) / 2 with λ = c T the local wavelength and L the distance from the source, since "
+            "rays closer than that cannot be told apart by the wave.",
+            "The lensing factor compares the energy that reaches a cell or a coastline segment with the "
+            "energy of the same ray fan traced over a reference bathymetry: the sea depths low-passed "
+            "and rescaled to the same mean depth. It isolates focusing by bathymetric features shorter "
+            "than the low-pass length from plain spreading, shoaling and large-scale refraction: "
+            "L > 1 means focusing, L < 1 a shadow. Per segment, e is the energy per metre of "
+            "coastline; the 5–95 % interval comes from a Poisson bootstrap over the rays.",
         ],
         "equations": [
             "W(cell) = Σᵢ wᵢ ℓᵢ(cell) / A(cell)   [J m⁻¹]",
-            "L = e_seg / e_ref,   e = energy per metre of coastline [J m⁻¹]",
+            "L = e_real / e_reference   (e: energy per metre of coastline, J m⁻¹)",
         ],
     },
     {
@@ -207,15 +213,22 @@ DEFAULT_METHOD: list[dict[str, Any]] = [
         "text": [
             "Energy conservation in a slowly varying ray tube (energy flux E c b constant, with "
             "E = ½ ρ g A² per unit area) gives Green's law for the amplitude A across depth h and "
-            "ray-tube width b. It is used only to carry the amplitude at the stop isobath to an "
-            "indicative value at 1 m depth."
+            "ray-tube width b. At the stop isobath the energy per unit crest width E_w is spread over one "
+            "wavelength c T of the dominant period T, which gives an amplitude that Green's law carries "
+            "to an indicative value at 1 m depth. Indicative only: no breaking, run-up, friction, "
+            "resonance or nonlinearity."
         ],
-        "equations": ["A₂ / A₁ = (h₁ / h₂)^¼ (b₁ / b₂)^½"],
+        "equations": [
+            "A₂ / A₁ = (h₁ / h₂)^¼ (b₁ / b₂)^½",
+            "a_stop = √(2 E_w / (ρ g c_stop T)),   a_1m = a_stop (h_stop / 1 m)^¼",
+        ],
     },
 ]
 
 #: References of the method summary (author-year, title, journal).
 DEFAULT_REFERENCES: list[str] = [
+    "Born, M., Wolf, E. (1999). Principles of Optics, 7th ed. Cambridge University Press (ch. 8, "
+    "Fresnel zones).",
     "Červený, V. (2001). Seismic Ray Theory. Cambridge University Press.",
     "Degueldre, H., Metzger, J. J., Geisel, T., Fleischmann, R. (2016). Random focusing of tsunami "
     "waves. Nature Physics 12, 259–262.",
@@ -763,8 +776,9 @@ def document_blocks(context: Mapping[str, Any]) -> tuple[dict[str, str], list[_B
         _b(
             "p",
             text=f"The {shown} highest-ranked of {nseg} coastline segments by lensing factor, with 5–95 % "
-            "intervals where available. Segments flagged unreliable (too few rays, or caustics at the "
-            "coast) should not be read without their interval.",
+            "intervals where available. Segments flagged unreliable (too few contributing rays) carry "
+            "no rank and are listed after the ranked ones when their value would place them among "
+            "them: read them as a prompt for a finer run, not as a result.",
         )
     )
     blocks.append(_b("table", columns=cols, rows=rows, caption="Ranked coastline segments", small=True))
@@ -1183,7 +1197,7 @@ def _render_pdf(meta: Mapping[str, str], blocks: list[_Block], out_pdf: pathlib.
             cap_lines = len(pdf.multi_cell(epw, 4.2, T(b["caption"]), dry_run=True, output="LINES")) if b["caption"] else 0
             cap_h = cap_lines * 4.2 + 4
             room = pdf.page_break_trigger - pdf.get_y() - cap_h
-            if h_mm > room and room >= 0.72 * h_mm:  # shrink a little rather than leave a gap
+            if h_mm > room and room >= 0.85 * h_mm:  # shrink a little rather than leave a gap
                 w_mm, h_mm = w_mm * room / h_mm, room
             ensure(h_mm + cap_h)
             x = pdf.l_margin + (epw - w_mm) / 2
