@@ -108,15 +108,19 @@ def main(argv: list[str] | None = None) -> int:
             res = run_ensemble(fn, members, scheduler=client, shared=shared)
             rows.append((f"LocalCluster {n} proc", n, res.timings["total_s"], res))
     print(f"total benchmark wall time {time.perf_counter() - t0:.1f} s\n")
-    print(f"{'engine':<22}{'workers':>8}{'wall s':>10}{'members/min':>14}{'identical':>11}")
+    print(f"{'engine':<22}{'workers':>8}{'wall s':>10}{'members/min':>14}{'s/member':>10}{'identical':>11}")
     for name, n, t, res in rows:
         same = all(
             np.array_equal(np.asarray(res.mean[k]), np.asarray(serial.mean[k]), equal_nan=True) for k in serial.mean
         ) and res.segments.equals(serial.segments)
-        print(f"{name:<22}{n:>8}{t:>10.2f}{60.0 * len(members) / t:>14.1f}{str(same):>11}")
+        per = res.timings["member_s_mean"]
+        print(f"{name:<22}{n:>8}{t:>10.2f}{60.0 * len(members) / t:>14.1f}{per:>10.2f}{str(same):>11}")
     t1 = rows[2][2]
     t2 = rows[3][2]
-    print(f"\nscaling 1 -> 2 workers (LocalCluster): {t1 / t2:.2f}x (ideal 2.00x)")
+    print(f"\nscaling 1 -> 2 workers (LocalCluster): {t1 / t2:.2f}x (ideal 2.00x); "
+          f"s/member = mean time of one member inside its worker")
+    if hasattr(os, "getloadavg"):
+        print(f"load average at the end (1, 5, 15 min): {', '.join(f'{v:.1f}' for v in os.getloadavg())}")
     print(f"member result grids: {serial.memory['member_result_grid_bytes'] / 1e6:.1f} MB per member; "
           f"client accumulators {serial.memory['client_accumulator_bytes'] / 1e6:.1f} MB")
     return 0

@@ -186,6 +186,7 @@ class _Outcome:
     failure: MemberFailure | None
     elapsed_s: float
     attempts: int
+    params: dict[str, Any] | None = None
 
 
 def _as_member_result(res: Any) -> MemberResult:
@@ -318,7 +319,7 @@ class _Accumulator:
             return
         res = outcome.result
         assert res is not None
-        params = getattr(outcome, "params", {})
+        params = outcome.params or {}
         seg = res.segments
         if self.ref_index is not None and not seg.index.equals(self.ref_index):
             self._fail(outcome, params, "InputError: segment ids differ from those of the first successful member")
@@ -373,7 +374,7 @@ class _Accumulator:
 
 
 def _fold_task(acc: _Accumulator, outcome: _Outcome, params: dict[str, Any]) -> _Accumulator:
-    outcome.params = params  # type: ignore[attr-defined]
+    outcome.params = params
     acc.push(outcome)
     return acc
 
@@ -691,7 +692,7 @@ def _resolve_scheduler(scheduler: Any, workers: int | None, connect_timeout_s: f
 def _run_serial(member_fn, members, retries, shared, acc, prog) -> None:
     for i, params in enumerate(members):
         out = _run_member(member_fn, params, i, retries, shared)
-        out.params = params  # type: ignore[attr-defined]
+        out.params = params
         acc.push(out)
         prog.update(out.failure is not None)
 
@@ -778,7 +779,7 @@ def _run_distributed(member_fn, members, retries, shared, acc, prog, client, max
             )
         finally:
             fut.release()
-        out.params = members[i]  # type: ignore[attr-defined]
+        out.params = members[i]
         acc.push(out)
         prog.update(out.failure is not None)
         del out
@@ -857,6 +858,8 @@ def run_ensemble(
     """
     if not callable(member_fn):
         raise InputError(f"run_ensemble: member_fn {member_fn!r} is not callable")
+    if not all(isinstance(m, Mapping) for m in members):
+        raise InputError("run_ensemble: members must be a list of parameter dicts (draw_member_parameters)")
     members = [dict(m) for m in members]
     if not members:
         raise InputError("run_ensemble: no members to run (members list is empty)")
