@@ -72,7 +72,10 @@ def _run_demo(args: argparse.Namespace) -> int:
     except ImportError:
         run_demo = None
     if run_demo is not None:
-        return run_demo(out, overwrite=args.overwrite, rays=args.rays, scheduler=args.scheduler)
+        if args.rays is not None and args.rays < 1:
+            raise InputError(f"--rays {args.rays}: expected a positive number of rays")
+        return run_demo(out, overwrite=args.overwrite, rays=args.rays, scheduler=args.scheduler,
+                        progress=getattr(args, "quiet", 0) == 0)
     from .bathymetry import load_bathymetry
     from .demo import write_demo_data
     from .gridsummary import format_summary, summarize_grid

@@ -40,6 +40,8 @@ __all__ = [
     "arrival_times",
     "run_scenario",
     "run_demo",
+    "demo_cache_dir",
+    "demo_inputs",
     "ensemble_member",
     "RUN_FILES",
 ]
@@ -217,7 +219,7 @@ def _segments_for(depth: xr.DataArray, scenario: Any):
     if str(c.source) == "grid":
         lines = coastline_from_grid(depth, c.isobath_m)
     else:
-        got = read_coastline(c.source, info.crs, layer=c.layer, name_field=c.name_field)
+        got = read_coastline(c.source, depth, layer=c.layer, name_field=c.name_field)
         if isinstance(got, tuple):
             lines, names = got
         else:
@@ -528,7 +530,7 @@ def _figures(a: SourceAnalysis, depth: xr.DataArray, scenario: Any, folder: path
         depth, f.energy, paths=real.paths, coast_lines=coast, source_outline=a.outline or None,
         out_path=folder / "ray_field.png", title=f"Ray field over the bathymetry: {a.name}")
     figs["lensing_map"] = F.plot_lensing_map(
-        depth, f.lensing_factor, f.travel_time_min, _plain_dtypes(f.segments), scenario.output.top_k,
+        depth, f.lensing_factor, _contour_ready(f.travel_time_min), _plain_dtypes(f.segments), scenario.output.top_k,
         out_path=folder / "lensing_map.png", source_outline=a.outline or None,
         title=f"Lensing factor, travel time and ranked segments: {a.name}")
     seg = _plain_dtypes(f.segments)
@@ -540,6 +542,24 @@ def _figures(a: SourceAnalysis, depth: xr.DataArray, scenario: Any, folder: path
                                    source_outline=a.outline or None, coast_lines=coast,
                                    title=f"Initial sea-surface displacement (Okada 1985): {a.name}")
     return {k: pathlib.Path(v) if v is not None else folder / f"{k}.png" for k, v in figs.items()}
+
+
+def _contour_ready(tt: xr.DataArray, sigma_cells: float = 1.5) -> xr.DataArray:
+    """Travel time lightly smoothed (NaN-aware Gaussian, ~1.5 cells) for contour lines only.
+
+    The per-cell first-arrival grid of a finite ray fan is ragged at the cell scale (a cell
+    records the earliest ray that happened to cross it); contouring that raw field draws
+    saw-tooth lines. The exported layer stays unsmoothed.
+    """
+    from scipy import ndimage
+
+    v = tt.values.astype(float)
+    ok = np.isfinite(v)
+    num = ndimage.gaussian_filter(np.where(ok, v, 0.0), sigma_cells, mode="nearest")
+    den = ndimage.gaussian_filter(ok.astype(float), sigma_cells, mode="nearest")
+    with np.errstate(invalid="ignore", divide="ignore"):
+        sm = np.where(ok & (den > 0.2), num / den, np.nan)
+    return tt.copy(data=sm)
 
 
 def _with_ensemble_intervals(seg: pd.DataFrame, ens: pd.DataFrame) -> pd.DataFrame:
@@ -590,7 +610,7 @@ def write_run_folder(
     files["layers"] = pathlib.Path(write_netcdf(
         layers, folder / RUN_FILES["layers"],
         title=f"tsunamifocus screening layers: {scenario.name} / {a.name}",
-        history=f"{time.strftime('%Y-%m-%dT%H:%M:%SZ', time.gmtime())} tsunamifocus run",
+        history=f"tsunamifocus {_version()} run of scenario '{scenario.name}' (time and inputs in manifest.json)",
         source=f"tsunamifocus {_version()} long-wave ray tracing",
         references="Okada (1985) BSSA 75:1135; Cerveny (2001) Seismic Ray Theory; Green (1838); "
                    "Kaplan (2002) PRL 89:184103; Degueldre et al. (2016) Nat. Phys. 12:259",
@@ -781,7 +801,14 @@ def _ensemble_section(ens: Any, scenario: Any) -> dict:
     seg = ens.segments.reset_index()
     cols = [c for c in ("segment_id", "lensing_factor", "lensing_lo", "lensing_hi", "amp_1m_m", "amp_lo", "amp_hi",
                         "p_topk", "robustness") if c in seg]
-    top = seg.sort_values("p_topk", ascending=False).head(scenario.output.top_k)[cols]
+    top = seg.sort_values("p_topk", ascending=False).head(scenario.output.top_k)[cols].copy()
+    for c in top.columns:
+        if top[c].dtype.kind == "f":
+            top[c] = top[c].map(lambda v: f"{v:.2f}" if np.isfinite(v) else "")
+    top = top.rename(columns={"segment_id": "segment", "lensing_factor": "lensing (median)",
+                              "lensing_lo": "lensing 5 %", "lensing_hi": "lensing 95 %",
+                              "amp_1m_m": "amp. at 1 m (median, m)", "amp_lo": "amp. 5 %", "amp_hi": "amp. 95 %",
+                              "p_topk": f"P(top {ens.top_k})"})
     return {
         "text": [
             f"{ens.n_members} members perturb the bathymetry by smooth Gaussian-correlated depth errors of "
@@ -1078,23 +1105,30 @@ def demo_inputs(folder: str | os.PathLike) -> pathlib.Path:
     return path
 
 
+def demo_cache_dir() -> pathlib.Path:
+    """Folder holding the generated demo inputs (``$TSUNAMIFOCUS_CACHE`` or the user cache)."""
+    base = os.environ.get("TSUNAMIFOCUS_CACHE") or os.environ.get("XDG_CACHE_HOME") or os.path.join(
+        os.path.expanduser("~"), ".cache")
+    sub = "" if os.environ.get("TSUNAMIFOCUS_CACHE") else "tsunamifocus"
+    return pathlib.Path(base) / sub / f"demo-inputs-{_version()}"
+
+
 def run_demo(out: str | os.PathLike, *, overwrite: bool = False, rays: int | None = None,
              scheduler: Any = None, progress: bool = True) -> int:
-    """Run the bundled invented demo scenario end to end into ``out``; returns an exit code."""
-    import tempfile
+    """Run the bundled invented demo scenario end to end into ``out``; returns an exit code.
 
+    The demo inputs (generated deterministically) are written to :func:`demo_cache_dir`, so the
+    run's manifest keeps pointing at readable inputs and the run can be reproduced from it.
+    """
     from .errors import OutputExistsError
     from .scenario import parse_scenario
 
     out = pathlib.Path(out)
     if out.is_dir() and any(out.iterdir()) and not overwrite:
         raise OutputExistsError(f"{out}: folder is not empty; pass --overwrite or choose another --out")
-    with tempfile.TemporaryDirectory(prefix="tsunamifocus-demo-") as tmp:
-        sc_path = demo_inputs(tmp)
-        sc = parse_scenario(sc_path)
-        # the demo's inputs travel with its outputs, so the manifest's inputs stay readable
-        inputs = pathlib.Path(tmp) / "inputs"
-        run_scenario(sc, out=out, overwrite=overwrite, rays=rays, scheduler=scheduler, progress=progress,
-                     command=["tsunamifocus", "demo", "--out", str(out)])
-        _ = inputs
+    sc = parse_scenario(demo_inputs(demo_cache_dir()))
+    if progress:
+        print(f"demo inputs (invented Meridane coast): {sc.bathymetry.path.parent}", file=sys.stderr)
+    cmd = ["tsunamifocus", "demo", "--out", str(out)] + (["--rays", str(rays)] if rays else [])
+    run_scenario(sc, out=out, overwrite=overwrite, rays=rays, scheduler=scheduler, progress=progress, command=cmd)
     return 0
