@@ -288,12 +288,16 @@ def read_coastline(
     else:
         info = None
         dst = CRS.from_user_input(crs_of_grid)
-    geoms = shapely.from_wkb(wkb) if wkb is not None else np.array([])
+    # invalid WKB (e.g. a one-point LineString) becomes None and is counted as invalid below
+    geoms = shapely.from_wkb(wkb, on_invalid="ignore") if wkb is not None else np.array([])
     tr = Transformer.from_crs(CRS.from_user_input(src_crs), dst, always_xy=True)
     lines: list[LineString] = []
     names: list[str] = []
     n_invalid = 0
     for i, g in enumerate(geoms):
+        if g is None and wkb[i] is not None:
+            n_invalid += 1
+            continue
         parts = _explode_lines(g)
         if g is not None and not g.is_empty and not parts:
             continue  # points etc.: not a coastline
