@@ -340,3 +340,28 @@ def test_projected_netcdf_with_grid_mapping_round_trip(tmp_path):
     assert GridInfo.from_dataarray(back).crs.to_epsg() == 32633
     np.testing.assert_array_equal(back.values, d.values)
     np.testing.assert_array_equal(back.x.values, d.x.values)
+
+
+@pytest.mark.parametrize("kind", ["geotiff", "netcdf"])
+def test_round_trip_geotiff_netcdf_exact(tmp_path, kind):
+    # load -> write with the package's own writers -> load again: CRS, coordinates (hence the
+    # transform) and values identical; the independent reader (rasterio/GDAL) confirms the transform
+    from tsunamifocus.demo import write_demo_data
+    from tsunamifocus.export import write_cog, write_netcdf
+
+    src = write_demo_data(tmp_path / "in")[kind]
+    d = load_bathymetry(src)
+    info = GridInfo.from_dataarray(d)
+    tif = write_cog(d.astype("float32"), tmp_path / "back.tif", description="depth", units="m")
+    nc = write_netcdf({"depth": d}, tmp_path / "back.nc", title="round trip")
+    for p in (tif, nc):
+        b = load_bathymetry(p, values="depth")
+        bi = GridInfo.from_dataarray(b)
+        assert bi.crs.equals(info.crs)
+        np.testing.assert_array_equal(b.values, d.values.astype("float32").astype("float64") if p == tif
+                                      else d.values)
+        np.testing.assert_allclose(b[b.dims[1]].values, d[d.dims[1]].values, rtol=0, atol=1e-9 * abs(info.dx))
+        np.testing.assert_allclose(b[b.dims[0]].values, d[d.dims[0]].values, rtol=0, atol=1e-9 * abs(info.dy))
+    with rasterio.open(tif) as r:
+        assert r.transform.a == pytest.approx(info.dx) and r.transform.c == pytest.approx(info.bounds[0])
+        assert r.transform.f == pytest.approx(info.bounds[3])
