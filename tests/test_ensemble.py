@@ -275,3 +275,10 @@ def test_local_scheduler_bounds_results_alive():
     end0 = log[0][1]
     # member i >= 3 depends on the fold of member i - 3, hence starts after member 0 ended
     assert all(log[i][0] >= end0 for i in range(3, 10))
+
+
+def test_progress_bar_on_stderr(capsys):
+    # tqdm prints "done/total" with elapsed and remaining time (tqdm documentation, default bar format)
+    run_ensemble(_bad_member, draw_member_parameters({}, 4, 1), scheduler="serial", progress=True)
+    err = capsys.readouterr().err
+    assert "ensemble members" in err and "4/4" in err and "failed=1" in err
