@@ -405,6 +405,14 @@ def _to_depth(raw: _Raw, values: str, units: str | None, p: pathlib.Path) -> np.
     mode = values
     if mode == "auto":
         mode = _decide_sign(attrs, raw.name, p, raw.values)
+    else:  # an explicit choice must not contradict the file's CF 'positive' attribute
+        pos = str(attrs.get("positive", "")).strip().lower()
+        declared = {"up": "elevation", "down": "depth"}.get(pos)
+        if declared is not None and declared != mode:
+            raise SignConventionError(
+                f"{p}: values={values!r} contradicts the file's attribute positive={pos!r} (which means "
+                f"{declared}); pass values={declared!r} (or 'auto'), or correct the file's metadata"
+            )
     vals = raw.values * factor
     return -vals if mode == "elevation" else vals
 
