@@ -57,12 +57,62 @@ def _run_compare(args: argparse.Namespace) -> int:
     cmp = compare_runs(runs, top_k=args.top)
     with OutputFolder(out, overwrite=args.overwrite) as of:
         compare_to_folder(cmp, of.tmp_dir)
+        comparison_appendix(cmp, runs, pathlib.Path(of.tmp_dir))
     print(getattr(cmp, "summary_text", None) or _summary_of(cmp))
     print(f"outputs: {out}")
-    from .cautions import caution_summary
-
-    print("CAUTION: " + caution_summary())
     return 0
+
+
+def comparison_appendix(cmp, runs, folder: pathlib.Path) -> None:
+    """Write ``comparison_appendix.html/.pdf``: cautions, the first run's ranking and the comparison section."""
+    import numpy as np
+    import pandas as pd
+
+    from .figures import plot_agreement
+    from .report import build_appendix
+
+    names = list(cmp.names)
+    rk = cmp.ranking.reset_index()
+    cols = [c for c in rk.columns if c.startswith(("lensing_factor_", "rank_")) or c in ("segment_id", "n_topk")]
+    table = rk.sort_values("rank_envelope" if "rank_envelope" in rk else cols[1]).head(cmp.top_k)[cols].copy()
+    for c in table.columns:
+        if table[c].dtype.kind == "f":
+            table[c] = table[c].map(lambda v: f"{v:.2f}" if np.isfinite(v) else "")
+    corr = pd.DataFrame(cmp.correlations).copy()
+    figs = {}
+    first, second = runs[0], runs[1]
+    a = first[1]["lensing_factor"].astype(float)
+    b = second[1]["lensing_factor"].reindex(a.index).astype(float)
+    ok = np.isfinite(a.to_numpy()) & np.isfinite(b.to_numpy())
+    if ok.sum() >= 3:
+        fig = folder / "comparison_scatter.png"
+        plot_agreement(a.to_numpy()[ok], b.to_numpy()[ok], out_path=fig, xlabel=f"lensing factor, {names[0]}",
+                       ylabel=f"lensing factor, {names[1]}", title="Lensing factor per coastline segment: "
+                       f"{names[0]} vs {names[1]}", labels=list(a.index[ok]))
+        figs["comparison_scatter"] = str(fig)
+    metrics = {}
+    for _, r in corr.iterrows():
+        metrics[f"{r['run_a']} vs {r['run_b']}"] = (f"Spearman {r['spearman_rho']:.3f}, Kendall {r['kendall_tau']:.3f}"
+                                                   f" over {int(r['n'])} segments")
+    section = {
+        "text": [f"Runs compared: {', '.join(names)}. They share the grid, coastline and segmentation (runs that "
+                 "do not are refused). The envelope layer holds the maximum lensing factor and the earliest "
+                 "arrival over the runs; difference layers are each run minus the first."],
+        "metrics": metrics,
+        "table": table,
+        "table_caption": f"Top {cmp.top_k} segments of the envelope ranking, lensing factor and rank per run",
+        "figures": figs,
+    }
+    ranking = first[1].reset_index() if "segment_id" not in first[1].columns else first[1]
+    ctx = {
+        "title": "Comparison of tsunami-energy focusing screening runs",
+        "subtitle": "Supplement to the planning-study appendices (screening level)",
+        "scenario": {"name": " vs ".join(names), "description": f"Comparison of {len(names)} runs; the ranked "
+                     f"table below is that of the first run, {names[0]}."},
+        "ranking": ranking.drop(columns=[c for c in ("wkt",) if c in ranking.columns]),
+        "comparison": section,
+    }
+    build_appendix(ctx, folder / "comparison_appendix.html", folder / "comparison_appendix.pdf")
 
 
 def _summary_of(cmp) -> str:
