@@ -408,3 +408,28 @@ def test_nan_launch_cell_raises():
     h[18:23, 3:8] = np.nan
     with pytest.raises(RayError, match="no-data"):
         trace_rays(plane(h), [5e3], [20e3], [90.0])
+
+
+@pytest.mark.realdata
+def test_real_global_grid_point_source(etopo_path):
+    # the 0.1-degree global relief (ETOPO1 resampled, ../shared/data/README.md), loaded with the
+    # package loader: a point source in the open ocean; rays run to coasts within 24 h, cross the
+    # longitude seam, and the maps stay finite. Long-wave speed over 4-5 km depth is ~700 km/h
+    # (Berry 2007), so 24 h allows ~15,000-17,000 km of path.
+    from tsunamifocus.bathymetry import load_bathymetry
+
+    depth = load_bathymetry(etopo_path, values="elevation")
+    n = 2000
+    # source in the open South Atlantic, west of the 0/360 seam of the 0..360 grid
+    r = trace_rays(depth, np.full(n, 350.0), np.full(n, -45.0), np.linspace(0, 360, n, endpoint=False),
+                   step_s=60.0, max_time_s=86400.0, keep_paths=50)
+    e = r.end
+    assert r.stats["geometry"] == "sphere"
+    assert (e.reason == REASON_CODES["coast"]).mean() > 0.8
+    assert np.all(e.path_length_m < 86400.0 * 240.0)
+    assert np.all(np.isfinite(r.energy.values))
+    # at least one kept path passes the 0/360 seam (unwrapped longitude beyond 360 or below 0)
+    px = r.paths.x.values
+    assert np.nanmax(px) > 360.0 or np.nanmin(px) < 0.0
+    ta = r.first_arrival_s.values
+    assert np.nanmax(ta) <= 86400.0 and np.isfinite(ta).mean() > 0.05

@@ -144,16 +144,31 @@ def _bilinear_depth(depth, u, v, nx, periodic):
 
 
 @njit(cache=True, inline="always", error_model="numpy")
-def _rhs(X, Y, se, sn, q, p, coef, X0, Y0, DX, DY, nx, ny, periodic, sph, R, cmin):
-    """Right-hand side of the kinematic + dynamic ray equations (time as parameter)."""
+def _sincos_near(Y, Yr, cr, sr):
+    """(cos Y, sin Y) from cos/sin of a nearby Yr by Taylor series of the difference (exact to
+    round-off for |Y - Yr| < 0.02 rad; falls back to the library functions beyond)."""
+    d = Y - Yr
+    if abs(d) > 0.02:
+        return math.cos(Y), math.sin(Y)
+    d2 = d * d
+    cd = 1.0 - d2 * (0.5 - d2 * (1.0 / 24.0 - d2 * (1.0 / 720.0)))
+    sd = d * (1.0 - d2 * (1.0 / 6.0 - d2 * (1.0 / 120.0 - d2 * (1.0 / 5040.0))))
+    return cr * cd - sr * sd, sr * cd + cr * sd
+
+
+@njit(cache=True, inline="always", error_model="numpy")
+def _rhs(X, Y, se, sn, q, p, coef, X0, Y0, DX, DY, nx, ny, periodic, sph, R, cmin, Yr, cr, sr):
+    """Right-hand side of the kinematic + dynamic ray equations (time as parameter).
+
+    ``Yr, cr, sr``: a reference latitude near Y with its cosine and sine (sphere only).
+    """
     u = (X - X0) / DX
     v = (Y - Y0) / DY
     c, cu, cv, cuu, cuv, cvv = _bspline_eval(coef, u, v, nx, ny, periodic)
     if c < cmin:
         c = cmin
     if sph:
-        cphi = math.cos(Y)
-        sphi = math.sin(Y)
+        cphi, sphi = _sincos_near(Y, Yr, cr, sr)
         tphi = sphi / cphi
         ca = cu / DX  # dc/dlambda
         cb = cv / DY  # dc/dphi
@@ -187,14 +202,20 @@ def _rhs(X, Y, se, sn, q, p, coef, X0, Y0, DX, DY, nx, ny, periodic, sph, R, cmi
 @njit(cache=True, inline="always", error_model="numpy")
 def _rk4(X, Y, se, sn, q, p, h, coef, X0, Y0, DX, DY, nx, ny, periodic, sph, R, cmin):
     """One classical RK4 step of length h [s]; returns the new state and the arc length increment."""
-    k1 = _rhs(X, Y, se, sn, q, p, coef, X0, Y0, DX, DY, nx, ny, periodic, sph, R, cmin)
+    if sph:
+        cr = math.cos(Y)
+        sr = math.sin(Y)
+    else:
+        cr = 1.0
+        sr = 0.0
+    k1 = _rhs(X, Y, se, sn, q, p, coef, X0, Y0, DX, DY, nx, ny, periodic, sph, R, cmin, Y, cr, sr)
     hh = 0.5 * h
     k2 = _rhs(X + hh * k1[0], Y + hh * k1[1], se + hh * k1[2], sn + hh * k1[3], q + hh * k1[4],
-              p + hh * k1[5], coef, X0, Y0, DX, DY, nx, ny, periodic, sph, R, cmin)
+              p + hh * k1[5], coef, X0, Y0, DX, DY, nx, ny, periodic, sph, R, cmin, Y, cr, sr)
     k3 = _rhs(X + hh * k2[0], Y + hh * k2[1], se + hh * k2[2], sn + hh * k2[3], q + hh * k2[4],
-              p + hh * k2[5], coef, X0, Y0, DX, DY, nx, ny, periodic, sph, R, cmin)
+              p + hh * k2[5], coef, X0, Y0, DX, DY, nx, ny, periodic, sph, R, cmin, Y, cr, sr)
     k4 = _rhs(X + h * k3[0], Y + h * k3[1], se + h * k3[2], sn + h * k3[3], q + h * k3[4],
-              p + h * k3[5], coef, X0, Y0, DX, DY, nx, ny, periodic, sph, R, cmin)
+              p + h * k3[5], coef, X0, Y0, DX, DY, nx, ny, periodic, sph, R, cmin, Y, cr, sr)
     w = h * SIXTH
     Xn = X + w * (k1[0] + 2.0 * k2[0] + 2.0 * k3[0] + k4[0])
     Yn = Y + w * (k1[1] + 2.0 * k2[1] + 2.0 * k3[1] + k4[1])
@@ -208,18 +229,19 @@ def _rk4(X, Y, se, sn, q, p, h, coef, X0, Y0, DX, DY, nx, ny, periodic, sph, R, 
 
 
 @njit(cache=True, inline="always", error_model="numpy")
-def _deposit(E, T, i, j, tin, tout, u0, v0, du, dv, mx2, my2, den, t0, h, wds, nx, ny, periodic):
+def _deposit(E, T, i, j, tin, tout, u0, v0, du, dv, mx2, my2, iden, t0, h, wds, nx, ny, periodic, tcap):
+    ui = i
     if periodic:
-        i = i % nx
+        if i < 0:
+            i += nx
+        elif i >= nx:
+            i -= nx
     if i < 0 or i >= nx or j < 0 or j >= ny:
         return
     E[j, i] += wds * (tout - tin)
     # time at the foot of the node's perpendicular on the (locally straight) ray: the wavefront
     # time at the node to first order, even when the foot lies outside this cell or step
-    if den > 0.0:
-        tau = ((i - u0) * du * mx2 + (j - v0) * dv * my2) / den
-    else:
-        tau = tin
+    tau = ((ui - u0) * du * mx2 + (j - v0) * dv * my2) * iden
     if tau < -1.0:
         tau = -1.0
     elif tau > 2.0:
@@ -227,17 +249,24 @@ def _deposit(E, T, i, j, tin, tout, u0, v0, du, dv, mx2, my2, den, t0, h, wds, n
     tt = t0 + tau * h
     if tt < 0.0:
         tt = 0.0
+    elif tt > tcap:
+        tt = tcap
     if tt < T[j, i]:
         T[j, i] = tt
 
 
 @njit(cache=True, inline="always", error_model="numpy")
-def _accumulate(E, T, u0, v0, u1, v1, t0, h, wds, mx, my, nx, ny, periodic):
+def _accumulate(E, T, u0, v0, u1, v1, t0, h, wds, mx, my, nx, ny, periodic, tcap):
     """Walk the straight index-space chord (u0,v0)->(u1,v1) cell by cell (Amanatides-Woo).
 
     Each cell gets ``wds`` times the fraction of the chord inside it (energy) and the time at the
-    foot of the perpendicular from its node onto the chord line (first arrival, min-reduced).
+    foot of the perpendicular from its node onto the chord line (first arrival, min-reduced),
+    extrapolated at most one step beyond the chord and capped to [0, tcap].
     """
+    if periodic:
+        shift = nx * math.floor(u0 / nx)
+        u0 -= shift
+        u1 -= shift
     du = u1 - u0
     dv = v1 - v0
     a0 = u0 + 0.5
@@ -275,10 +304,11 @@ def _accumulate(E, T, u0, v0, u1, v1, t0, h, wds, mx, my, nx, ny, periodic):
     mx2 = mx * mx
     my2 = my * my
     den = du * du * mx2 + dv * dv * my2
+    iden = 1.0 / den if den > 0.0 else 0.0
     tin = 0.0
     for _k in range(ncell):
         tout = min(tmi, tmj, 1.0)
-        _deposit(E, T, i, j, tin, tout, u0, v0, du, dv, mx2, my2, den, t0, h, wds, nx, ny, periodic)
+        _deposit(E, T, i, j, tin, tout, u0, v0, du, dv, mx2, my2, iden, t0, h, wds, nx, ny, periodic, tcap)
         if tout >= 1.0:
             break
         if tmi < tmj:
@@ -384,7 +414,7 @@ def _trace_one(k, X, Y, se, sn, q, p, w, coef, depth, X0, Y0, DX, DY, nx, ny, pe
                 ym = 0.5 * (Y + Yn)
                 mx = R * DX * math.cos(ym)
                 my = R * DY
-            _accumulate(E, T, u, v, un, vn, t, h, w * ds, mx, my, nx, ny, periodic)
+            _accumulate(E, T, u, v, un, vn, t, h, w * ds, mx, my, nx, ny, periodic, tmax)
         X = Xn
         Y = Yn
         se = sen
