@@ -386,3 +386,53 @@ def test_ranking_with_nullable_columns(case, tmp_path):
     seg["reliable"] = pd.array([None] + [True] * (len(seg) - 1), dtype="boolean")
     seg["rank_lensing"] = pd.array([pd.NA] + list(range(1, len(seg))), dtype="Int64")
     check_png(figures.plot_ranking(seg, 5, out_path=tmp_path / "r.png"), min_w=800, min_h=300)
+
+
+def test_contour_field_fills_small_holes_only():
+    # A normalised symmetric (Gaussian) smoothing reproduces a linear field away from the edges
+    # (the kernel's first moment is zero; common practice, no source). A one-cell hole filled by
+    # its nearest neighbour is off by at most |grad t| x 1 cell, and a weighted mean of values
+    # each within that bound stays within it: so a travel-time ramp with small holes comes back
+    # within |grad t| everywhere in the interior and much closer on average; a region far from
+    # any data stays empty (no contour may be drawn where no ray went).
+    y, x = np.mgrid[0:80, 0:120].astype(float)
+    t = 2.0 * x + 0.5 * y
+    holes = t.copy()
+    holes[::3, ::3] = np.nan  # isolated one-cell holes between "rays"
+    holes[:, 90:] = np.nan  # 30 columns without rays
+    out = figures._contour_ready(holes)
+    inner = (slice(10, 70), slice(10, 80))
+    assert np.all(np.isfinite(out[inner]))
+    grad = math.hypot(2.0, 0.5)
+    err = np.abs(out[inner] - t[inner])
+    assert err.max() <= grad and err.mean() < 0.25 * grad
+    assert np.all(np.isnan(out[:, 100:]))
+
+
+def test_degree_ticks_are_round():
+    # a global map gets 60-degree ticks, a 3-degree box half-degree ticks (at most 8 ticks)
+    t = figures._degree_locator(360.0).tick_values(0, 360)
+    assert np.allclose(np.diff(t), 60.0) and np.allclose(t % 60.0, 0.0)
+    t = figures._degree_locator(3.0).tick_values(150, 153)
+    assert np.allclose(np.diff(t), 0.5)
+
+
+def test_global_periodic_grid_with_seam_crossing_paths(tmp_path):
+    # 2-degree global grid (0..358 E, no duplicated seam column, lon_periodic=1); a path that is
+    # unwrapped beyond 360 E must be wrapped and split at the seam, not drawn across the map.
+    lon = np.arange(0.0, 360.0, 2.0)
+    lat = np.arange(-80.0, 81.0, 2.0)
+    depth = make_grid(np.full((lat.size, lon.size), 4000.0), lon, lat, "EPSG:4326")
+    depth[:5, :] = -100.0  # some land in the south
+    assert depth.attrs["lon_periodic"] == 1
+    px = np.linspace(300.0, 420.0, 61)  # unwrapped: crosses 360
+    path = np.column_stack([px, np.linspace(-10, 10, 61)])
+    energy = depth.copy(data=np.where(depth.values > 0, 1.0, 0.0))
+    out = figures.plot_ray_field(depth, energy, paths=[path], out_path=tmp_path / "g.png")
+    check_png(out)
+    from tsunamifocus.grid import GridInfo
+
+    info = GridInfo.from_dataarray(depth)
+    wrapped = np.column_stack([info.wrap_lon(path[:, 0]), path[:, 1]])
+    pieces = figures._split_wrap(wrapped, True)
+    assert len(pieces) == 2 and all(np.ptp(p[:, 0]) <= 180 for p in pieces)

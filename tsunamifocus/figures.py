@@ -172,8 +172,8 @@ def _new_map(info: GridInfo, title: str | None):
     if title:
         ax.set_title(title, fontsize=plt_rc["axes.titlesize"], loc="left")
     if info.geographic:
-        ax.xaxis.set_major_locator(MaxNLocator(nbins=7, steps=[1, 2, 2.5, 5, 10]))
-        ax.yaxis.set_major_locator(MaxNLocator(nbins=7, steps=[1, 2, 2.5, 5, 10]))
+        ax.xaxis.set_major_locator(_degree_locator(xmax - xmin))
+        ax.yaxis.set_major_locator(_degree_locator(ymax - ymin))
         ax.xaxis.set_major_formatter(FuncFormatter(lambda v, _: _lon_label(v)))
         ax.yaxis.set_major_formatter(FuncFormatter(lambda v, _: _lat_label(v)))
         ax.grid(True, color="0.35", linewidth=0.4, alpha=0.6, linestyle=":")
@@ -189,6 +189,44 @@ def _new_map(info: GridInfo, title: str | None):
         ax.set_ylabel("Northing (km)")
     ax.tick_params(direction="out", length=3)
     return fig, ax, info
+
+
+def _degree_locator(span_deg: float, max_ticks: int = 8):
+    """Tick locator at 'round' degree steps (..., 1, 2, 5, 10, 15, 30, 45, 60, 90) for a span."""
+    from matplotlib.ticker import MultipleLocator
+
+    steps = (0.01, 0.02, 0.05, 0.1, 0.2, 0.25, 0.5, 1, 2, 2.5, 5, 10, 15, 20, 30, 45, 60, 90)
+    for st in steps:
+        if span_deg / st <= max_ticks:
+            return MultipleLocator(st)
+    return MultipleLocator(90)
+
+
+def _contour_ready(t: np.ndarray, max_sigma: float = 6.0) -> np.ndarray:
+    """Copy of a gridded field fit for contouring: NaN holes between rays filled, smoothed.
+
+    First-arrival grids from rays have empty cells where rays are sparse; contouring them
+    directly draws rings around every hole. The typical hole radius ``r`` (90th percentile of the
+    distance of empty cells to the nearest filled one, counting only holes of at most 12 cells)
+    sets the treatment: holes up to ``1.5 r + 1`` cells get the nearest valid value, then a normalised
+    Gaussian of ``r`` cells (1 to ``max_sigma``) smooths the result. Cells farther from data stay
+    NaN (no contour there). For display only; the exported layers are untouched.
+    """
+    from scipy import ndimage
+
+    good = np.isfinite(t)
+    if good.all() or not good.any():
+        return t
+    dist, (iy, ix) = ndimage.distance_transform_edt(~good, return_indices=True)
+    holes = dist[(dist > 0) & (dist <= 12)]
+    sigma = float(np.clip(np.percentile(holes, 90), 1.0, max_sigma)) if holes.size else 1.0
+    filled = t[iy, ix]
+    filled[dist > 1.5 * sigma + 1.0] = np.nan
+    w = np.isfinite(filled).astype(float)
+    num = ndimage.gaussian_filter(np.where(w > 0, filled, 0.0), sigma, mode="nearest")
+    den = ndimage.gaussian_filter(w, sigma, mode="nearest")
+    with np.errstate(invalid="ignore", divide="ignore"):
+        return np.where(w > 0, num / np.maximum(den, 1e-12), np.nan)
 
 
 def _nice_length(target: float) -> float:
@@ -636,7 +674,7 @@ def plot_ray_field(
 
             sm = ScalarMappable(norm=norm, cmap=cmap)
             cb = _right_colorbar(fig, ax, sm, extend="both")
-            cb.set_label("Ray energy per unit wavefront width (J m$^{-1}$), log scale")
+            cb.set_label("Ray energy per unit wavefront width\n(J m$^{-1}$, log scale)")
             n_right += 1
     lines = _normalize_paths(paths)
     if lines:
@@ -645,6 +683,8 @@ def plot_ray_field(
             lines = [lines[i] for i in keep]
         segs = []
         for a in lines:
+            if info.geographic:  # paths carry longitudes unwrapped along the ray
+                a = np.column_stack([info.wrap_lon(a[:, 0]), a[:, 1]])
             segs.extend(_split_wrap(a, info.geographic))
         color = _OKABE_BLUE if energy is not None else "#1b3a5c"
         alpha = 0.35 if energy is not None else 0.45
@@ -812,12 +852,12 @@ def plot_lensing_map(
     cb.ax.yaxis.set_major_locator(FixedLocator(ticks))
     cb.ax.yaxis.set_major_formatter(FuncFormatter(lambda v, _: _tick_label(v)))
     cb.ax.yaxis.set_minor_formatter(NullFormatter())
-    cb.set_label("Lensing factor (-), log scale; 1 = no focusing")
+    cb.set_label("Lensing factor (-), log scale\n1 = no focusing")
 
     if travel_time_min is not None:
         tinfo = _check_grid(travel_time_min, "plot_lensing_map travel_time_min")
         _same_kind(info, tinfo, "plot_lensing_map travel_time_min")
-        t = _values(travel_time_min)
+        t = _contour_ready(_values(travel_time_min))
         if np.isfinite(t).sum() > 3:
             tmax = float(np.nanmax(t))
             tmin = float(np.nanmin(t))

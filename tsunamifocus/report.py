@@ -841,7 +841,7 @@ header.doc .meta { font-size: 9pt; color: #555; }
 .caution { border: 2px solid #a0522d; background: #fff3e0; padding: 8px 12px; margin: 10px 0 14px 0;
            page-break-inside: avoid; break-inside: avoid; }
 .caution h2 { margin: 0 0 4px 0; font-size: 12pt; color: #7a3300; border: none; }
-.caution p { margin: 4px 0; }
+.caution p { margin: 4px 0; text-align: left; }
 .caution ul { margin: 2px 0 2px 18px; padding: 0; }
 nav.toc { font-size: 9.5pt; margin: 6px 0 10px 0; }
 nav.toc ol { margin: 2px 0 0 18px; padding: 0; columns: 2; }
@@ -854,7 +854,7 @@ div.eq { font-family: "DejaVu Sans", "Cambria Math", serif; background: #f3f6f9;
          padding: 3px 10px; margin: 4px 0 4px 18px; white-space: pre-wrap; }
 table { border-collapse: collapse; width: 100%; margin: 4px 0 10px 0; font-size: 9pt; }
 table.small { font-size: 8pt; }
-table.kv { width: auto; min-width: 60%; }
+table.kv { width: auto; min-width: 60%; page-break-inside: avoid; break-inside: avoid; }
 th, td { border: 1px solid #c4ccd4; padding: 2px 6px; text-align: left; vertical-align: top; }
 th { background: #e6edf4; }
 tr:nth-child(even) td { background: #fafbfc; }
