@@ -197,4 +197,8 @@ def _one_line(exc: BaseException) -> str:
 
 
 if __name__ == "__main__":  # pragma: no cover
-    sys.exit(main())
+    # run through the imported module: plugin commands (run, compare, check) register into
+    # tsunamifocus.cli._COMMANDS, not into this __main__ copy
+    from tsunamifocus.cli import main as _main
+
+    sys.exit(_main())
