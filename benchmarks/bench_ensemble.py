@@ -61,6 +61,20 @@ def _example_setup():
     return example_member, {"depth": depth}, settings, f"ensemble.example_member (numpy only), demo grid {depth.shape}"
 
 
+class _Timed:
+    """Wrap a member function; record its thread CPU time and wall time in ``info``."""
+
+    def __init__(self, fn):
+        self.fn = fn
+
+    def __call__(self, params, **shared):
+        c0, w0 = time.thread_time(), time.perf_counter()
+        res = self.fn(params, **shared)
+        res.info["cpu_s"] = time.thread_time() - c0
+        res.info["wall_s"] = time.perf_counter() - w0
+        return res
+
+
 def _warm(fn, params, shared):
     import warnings as w
 
@@ -91,6 +105,7 @@ def main(argv: list[str] | None = None) -> int:
     if setup is None:
         setup = _example_setup()
     fn, shared, settings, label = setup
+    fn = _Timed(fn)
     members = draw_member_parameters(settings, args.members, 2026)
     print(f"member function: {label}{why}")
     print(f"members: {args.members}; cores: {os.cpu_count()}; numba/BLAS threads per worker: 1")
@@ -108,17 +123,20 @@ def main(argv: list[str] | None = None) -> int:
             res = run_ensemble(fn, members, scheduler=client, shared=shared)
             rows.append((f"LocalCluster {n} proc", n, res.timings["total_s"], res))
     print(f"total benchmark wall time {time.perf_counter() - t0:.1f} s\n")
-    print(f"{'engine':<22}{'workers':>8}{'wall s':>10}{'members/min':>14}{'s/member':>10}{'identical':>11}")
+    print(f"{'engine':<22}{'workers':>8}{'wall s':>10}{'members/min':>14}{'s/member':>10}{'cpu s/member':>14}"
+          f"{'identical':>11}")
     for name, n, t, res in rows:
         same = all(
             np.array_equal(np.asarray(res.mean[k]), np.asarray(serial.mean[k]), equal_nan=True) for k in serial.mean
         ) and res.segments.equals(serial.segments)
         per = res.timings["member_s_mean"]
-        print(f"{name:<22}{n:>8}{t:>10.2f}{60.0 * len(members) / t:>14.1f}{per:>10.2f}{str(same):>11}")
+        cpu = float(np.mean([i["cpu_s"] for i in res.member_info.values()]))
+        print(f"{name:<22}{n:>8}{t:>10.2f}{60.0 * len(members) / t:>14.1f}{per:>10.2f}{cpu:>14.2f}{str(same):>11}")
     t1 = rows[2][2]
     t2 = rows[3][2]
     print(f"\nscaling 1 -> 2 workers (LocalCluster): {t1 / t2:.2f}x (ideal 2.00x); "
-          f"s/member = mean time of one member inside its worker")
+          f"s/member = mean wall time of one member inside its worker, cpu s/member its thread CPU time; "
+          f"s/member >> cpu s/member means the cores were shared with other processes")
     if hasattr(os, "getloadavg"):
         print(f"load average at the end (1, 5, 15 min): {', '.join(f'{v:.1f}' for v in os.getloadavg())}")
     print(f"member result grids: {serial.memory['member_result_grid_bytes'] / 1e6:.1f} MB per member; "
