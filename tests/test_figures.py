@@ -410,11 +410,13 @@ def test_contour_field_fills_small_holes_only():
 
 
 def test_degree_ticks_are_round():
-    # a global map gets 60-degree ticks, a 3-degree box half-degree ticks (at most 8 ticks)
-    t = figures._degree_locator(360.0).tick_values(0, 360)
-    assert np.allclose(np.diff(t), 60.0) and np.allclose(t % 60.0, 0.0)
-    t = figures._degree_locator(3.0).tick_values(150, 153)
-    assert np.allclose(np.diff(t), 0.5)
+    # graticule steps that divide 90 degrees (or are decimal fractions of a degree), multiples of
+    # the step, at most 8 intervals over the span (common practice, no source)
+    for lo, hi, step in ((0.0, 360.0, 45.0), (150.0, 153.0, 0.5), (-41.0, -38.0, 0.5), (10.0, 10.3, 0.05)):
+        t = figures._degree_locator(hi - lo).tick_values(lo, hi)
+        t = t[(t >= lo - 1e-9) & (t <= hi + 1e-9)]
+        assert np.allclose(np.diff(t), step)
+        assert np.allclose(np.round(t / step) * step, t)
 
 
 def test_global_periodic_grid_with_seam_crossing_paths(tmp_path):
