@@ -4,16 +4,18 @@ Arakawa C grid: ``eta[j, i]`` at cell centres, ``qx[j, i]`` the volume flux per 
 [m2 s-1] through the x-face between cells ``i - 1`` and ``i`` (shape ``(ny, nx + 1)``),
 ``qy[j, i]`` the flux through the y-face between rows ``j - 1`` and ``j`` (shape ``(ny + 1, nx)``).
 
-Face kinds (int8):
+One forward-backward step is three calls:
 
-* ``0`` closed (wall or between two dry cells): flux 0;
-* ``1`` interior: ``q -= a * (eta_plus - eta_minus)`` with ``a = g h_face dt / dn`` [m2 s-1 per m];
-* ``2`` radiating towards +x / +y: ``q = a * eta_minus`` with ``a = sqrt(g h)`` of the wet cell;
-* ``3`` radiating towards -x / -y: ``q = -a * eta_plus``.
+1. :func:`update_q` — every interior face ``q -= a * (eta_plus - eta_minus)`` with
+   ``a = g h_face dt / dn``; ``a = 0`` on closed and radiating faces, so the loop has no branches;
+2. :func:`radiate` — the (few) radiating faces, listed sparsely, get ``q = s c eta_src`` with
+   ``c = sqrt(g h)`` of the wet cell and ``s = +1`` (outflow towards +x / +y) or ``-1``; returns the
+   volume [m3] that left, summed in list order;
+3. :func:`update_eta` — ``eta -= wet * dt / A * (flux divergence)`` and the running maximum, its time
+   and the first exceedance of the arrival threshold.
 
-Each kernel loops over rows with ``prange``; every row writes only its own cells, so results do not
-depend on the number of threads. Per-row outflow volumes are returned in arrays and summed by the
-caller in a fixed order (deterministic).
+The row-parallel loops (``prange``) write only the row they own and read only the previous state,
+so results do not depend on the number of threads.
 """
 
 from __future__ import annotations
@@ -22,71 +24,30 @@ import numpy as np
 from numba import njit, prange
 
 __all__ = [
-    "update_qx",
-    "update_qy",
+    "update_q",
     "update_eta",
-    "update_qx_serial",
-    "update_qy_serial",
+    "radiate",
+    "update_q_serial",
     "update_eta_serial",
 ]
 
 
-@njit(parallel=True, cache=True, fastmath=False)
-def update_qx(eta, qx, kind, coef, periodic, out_row, lx_dt):  # pragma: no cover - compiled
-    """Advance the x-face fluxes one step; add outflow volume [m3] of radiating faces to ``out_row``."""
+def _update_q(eta, qx, ax, qy, ay, periodic):  # pragma: no cover - compiled
+    """Interior x- and y-faces from the old surface (face rows 0..ny-1 of qx, 1..ny-1 of qy)."""
     ny, nx = eta.shape
     for j in prange(ny):
-        acc = 0.0
-        for i in range(nx + 1):
-            k = kind[j, i]
-            # west neighbour of face i (wraps on periodic grids; face nx is then a copy of face 0)
-            iw = i - 1 if i > 0 else nx - 1
-            ie = i if i < nx else 0
-            if k == 1:
-                qx[j, i] -= coef[j, i] * (eta[j, ie] - eta[j, iw])
-            elif k == 2:
-                q = coef[j, i] * eta[j, iw]
-                qx[j, i] = q
-                acc += q
-            elif k == 3:
-                q = -coef[j, i] * eta[j, ie]
-                qx[j, i] = q
-                acc -= q
-            else:
-                qx[j, i] = 0.0
+        for i in range(1, nx):
+            qx[j, i] -= ax[j, i] * (eta[j, i] - eta[j, i - 1])
         if periodic:
+            qx[j, 0] -= ax[j, 0] * (eta[j, 0] - eta[j, nx - 1])
             qx[j, nx] = qx[j, 0]
-        out_row[j] += acc * lx_dt[j]
+        if j > 0:
+            for i in range(nx):
+                qy[j, i] -= ay[j, i] * (eta[j, i] - eta[j - 1, i])
 
 
-@njit(parallel=True, cache=True, fastmath=False)
-def update_qy(eta, qy, kind, coef, out_row, ly_dt):  # pragma: no cover - compiled
-    """Advance the y-face fluxes one step; add outflow volume [m3] of radiating faces to ``out_row``."""
-    ny, nx = eta.shape
-    for j in prange(ny + 1):
-        acc = 0.0
-        for i in range(nx):
-            k = kind[j, i]
-            if k == 1:
-                qy[j, i] -= coef[j, i] * (eta[j, i] - eta[j - 1, i])
-            elif k == 2:
-                q = coef[j, i] * eta[j - 1, i]
-                qy[j, i] = q
-                acc += q
-            elif k == 3:
-                q = -coef[j, i] * eta[j, i]
-                qy[j, i] = q
-                acc -= q
-            else:
-                qy[j, i] = 0.0
-        out_row[j] += acc * ly_dt[j]
-
-
-@njit(parallel=True, cache=True, fastmath=False)
-def update_eta(
-    eta, qx, qy, wet, bx, byn, bys, t_new, threshold, max_eta, max_time, arrival
-):  # pragma: no cover - compiled
-    """Advance the surface one step from the flux divergence and update the running statistics.
+def _update_eta(eta, qx, qy, wet, bx, byn, bys, t_new, threshold, max_eta, max_time, arrival):  # pragma: no cover
+    """Surface from the flux divergence, then running maximum / its time / first arrival.
 
     ``bx[j] = dt * L_x / A_j``, ``byn[j] = dt * L_y(j + 1/2) / A_j``, ``bys[j] = dt * L_y(j - 1/2) / A_j``.
     """
@@ -96,19 +57,48 @@ def update_eta(
         cn = byn[j]
         cs = bys[j]
         for i in range(nx):
-            if not wet[j, i]:
-                continue
-            e = eta[j, i] - (cx * (qx[j, i + 1] - qx[j, i]) + cn * qy[j + 1, i] - cs * qy[j, i])
-            eta[j, i] = e
+            eta[j, i] -= wet[j, i] * (cx * (qx[j, i + 1] - qx[j, i]) + cn * qy[j + 1, i] - cs * qy[j, i])
+        for i in range(nx):
+            e = eta[j, i]
             if e > max_eta[j, i]:
                 max_eta[j, i] = e
                 max_time[j, i] = t_new
-            if np.isnan(arrival[j, i]) and abs(e) > threshold:
-                arrival[j, i] = t_new
+        for i in range(nx):
+            if abs(eta[j, i]) > threshold:
+                if np.isnan(arrival[j, i]):
+                    arrival[j, i] = t_new
 
 
-# Serial builds of the same functions (prange runs as range) for small grids, where starting the
-# thread pool three times per step costs more than the arithmetic. Same operations, same results.
-update_qx_serial = njit(cache=True)(update_qx.py_func)
-update_qy_serial = njit(cache=True)(update_qy.py_func)
-update_eta_serial = njit(cache=True)(update_eta.py_func)
+@njit(cache=True)
+def radiate(eta, qx, qy, periodic, rxj, rxi, rxsrc, rxc, rxl, ryj, ryi, rysrc, ryc, ryl):  # pragma: no cover
+    """Set the radiating faces; return the volume that left the wet domain this step [m3 per dt].
+
+    ``rx*``: x-faces at row ``rxj``, face ``rxi``, source cell column ``rxsrc``, signed speed ``rxc``
+    [m s-1] and ``rxl`` = face length x dt [m s]; ``ry*`` likewise with source row ``rysrc``.
+    """
+    out = 0.0
+    nx = eta.shape[1]
+    for n in range(rxj.size):
+        j = rxj[n]
+        i = rxi[n]
+        e = eta[j, rxsrc[n]]
+        q = rxc[n] * e
+        qx[j, i] = q
+        if periodic and i == 0:
+            qx[j, nx] = q
+        out += abs(rxc[n]) * e * rxl[n]
+    for n in range(ryj.size):
+        e = eta[rysrc[n], ryi[n]]
+        q = ryc[n] * e
+        qy[ryj[n], ryi[n]] = q
+        out += abs(ryc[n]) * e * ryl[n]
+    return out
+
+
+#: Row-parallel builds.
+update_q = njit(parallel=True, cache=True)(_update_q)
+update_eta = njit(parallel=True, cache=True)(_update_eta)
+#: Serial builds of the same functions (prange runs as range) for small grids or one thread, where
+#: starting the thread pool costs more than the arithmetic. Same operations, same results.
+update_q_serial = njit(cache=True)(_update_q)
+update_eta_serial = njit(cache=True)(_update_eta)

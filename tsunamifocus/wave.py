@@ -73,9 +73,8 @@ WAVE_CAUTION = (
 )
 
 _EDGES = ("west", "east", "south", "north")
-_KIND_CLOSED, _KIND_INTERIOR, _KIND_RAD_PLUS, _KIND_RAD_MINUS = 0, 1, 2, 3
-# bytes per cell: eta, qx, qy, coef_x, coef_y, max, max_time, arrival (float64) + kinds, wet (int8/bool)
-_BYTES_PER_CELL = 8 * 8 + 3
+# bytes per cell: eta, qx, qy, coef_x, coef_y, max, max_time, arrival (float64) + wet masks (uint8, bool)
+_BYTES_PER_CELL = 8 * 8 + 2
 # below this many cells the serial kernels are used (thread start-up dominates on tiny grids)
 _SERIAL_BELOW_CELLS = 20_000
 
@@ -265,6 +264,16 @@ def _check_scalars(*, cfl: float, stop_depth: float, gravity: float) -> None:
         raise InputError(f"gravity={gravity!r} m s-2: expected a positive value")
 
 
+@dataclass
+class _Faces:
+    """Dense interior coefficients and the sparse list of radiating faces."""
+
+    ax: np.ndarray  # (ny, nx + 1) g h_face dt / dx on interior faces, 0 elsewhere
+    ay: np.ndarray  # (ny + 1, nx)
+    rx: tuple[np.ndarray, ...]  # rows, faces, source columns, signed speed [m s-1], length * dt [m s]
+    ry: tuple[np.ndarray, ...]  # face rows, columns, source rows, signed speed, length * dt
+
+
 def _face_arrays(
     d: np.ndarray,
     wet: np.ndarray,
@@ -274,73 +283,77 @@ def _face_arrays(
     coast: str,
     bnd: dict[str, str],
     periodic: bool,
-) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
-    """Kinds and coefficients of the x- and y-faces (see :mod:`tsunamifocus._wavekernel`)."""
+) -> _Faces:
+    """Interior coefficients and radiating faces (see :mod:`tsunamifocus._wavekernel`)."""
     ny, nx = d.shape
     h = np.where(wet, d, 0.0)
     c = np.sqrt(gravity * h)
     absorb_coast = coast == "absorb"
+    jj = np.arange(ny)[:, None] * np.ones((1, nx), dtype=np.int64)
+    ii = np.ones((ny, 1), dtype=np.int64) * np.arange(nx)[None, :]
+    rx: list[tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]] = []  # (row, face, src col, signed c)
+    ry: list[tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]] = []  # (face row, col, src row, signed c)
 
-    kx = np.zeros((ny, nx + 1), dtype=np.int8)
-    ax = np.zeros((ny, nx + 1))
+    ax = np.full((ny, nx + 1), 0.0)
     # interior faces 1..nx-1 (west cell i-1, east cell i)
     wl, wr = wet[:, :-1], wet[:, 1:]
-    both = wl & wr
-    ax[:, 1:nx] = np.where(both, gravity * 0.5 * (h[:, :-1] + h[:, 1:]) * dt / m.dxm[:, None], 0.0)
-    kx[:, 1:nx][both] = _KIND_INTERIOR
+    ax[:, 1:nx] = np.where(wl & wr, gravity * 0.5 * (h[:, :-1] + h[:, 1:]) * dt / m.dxm[:, None], 0.0)
     if absorb_coast:
-        to_e = wl & ~wr
-        to_w = wr & ~wl
-        kx[:, 1:nx][to_e] = _KIND_RAD_PLUS
-        ax[:, 1:nx][to_e] = c[:, :-1][to_e]
-        kx[:, 1:nx][to_w] = _KIND_RAD_MINUS
-        ax[:, 1:nx][to_w] = c[:, 1:][to_w]
+        sel = wl & ~wr  # outflow towards +x from the west cell
+        rx.append((jj[:, :-1][sel], ii[:, 1:][sel], ii[:, :-1][sel], c[:, :-1][sel]))
+        sel = wr & ~wl  # towards -x from the east cell
+        rx.append((jj[:, 1:][sel], ii[:, 1:][sel], ii[:, 1:][sel], -c[:, 1:][sel]))
+    col0 = np.arange(ny)
     if periodic:
         wl0, wr0 = wet[:, -1], wet[:, 0]
         b0 = wl0 & wr0
-        kx[b0, 0] = _KIND_INTERIOR
         ax[b0, 0] = gravity * 0.5 * (h[b0, -1] + h[b0, 0]) * dt / m.dxm[b0]
         if absorb_coast:
-            e0 = wl0 & ~wr0
-            w0 = wr0 & ~wl0
-            kx[e0, 0] = _KIND_RAD_PLUS
-            ax[e0, 0] = c[e0, -1]
-            kx[w0, 0] = _KIND_RAD_MINUS
-            ax[w0, 0] = c[w0, 0]
-        # face nx is a copy of face 0, kind stays closed
+            sel = wl0 & ~wr0
+            rx.append((col0[sel], np.zeros(int(sel.sum()), np.int64), np.full(int(sel.sum()), nx - 1), c[sel, -1]))
+            sel = wr0 & ~wl0
+            rx.append((col0[sel], np.zeros(int(sel.sum()), np.int64), np.zeros(int(sel.sum()), np.int64), -c[sel, 0]))
     else:
         if bnd["west"] == "absorb":
             sel = wet[:, 0]
-            kx[sel, 0] = _KIND_RAD_MINUS
-            ax[sel, 0] = c[sel, 0]
+            n = int(sel.sum())
+            rx.append((col0[sel], np.zeros(n, np.int64), np.zeros(n, np.int64), -c[sel, 0]))
         if bnd["east"] == "absorb":
             sel = wet[:, -1]
-            kx[sel, nx] = _KIND_RAD_PLUS
-            ax[sel, nx] = c[sel, -1]
+            n = int(sel.sum())
+            rx.append((col0[sel], np.full(n, nx), np.full(n, nx - 1), c[sel, -1]))
 
-    ky = np.zeros((ny + 1, nx), dtype=np.int8)
-    ay = np.zeros((ny + 1, nx))
+    ay = np.full((ny + 1, nx), 0.0)
     ws, wn = wet[:-1, :], wet[1:, :]
-    both = ws & wn
+    ay[1:ny] = np.where(ws & wn, gravity * 0.5 * (h[:-1] + h[1:]) * dt / m.dym, 0.0)
     open_y = m.ly[1:ny, None] > 0.0
-    ay[1:ny] = np.where(both, gravity * 0.5 * (h[:-1] + h[1:]) * dt / m.dym, 0.0)
-    ky[1:ny][both] = _KIND_INTERIOR
     if absorb_coast:
-        to_n = ws & ~wn & open_y
-        to_s = wn & ~ws & open_y
-        ky[1:ny][to_n] = _KIND_RAD_PLUS
-        ay[1:ny][to_n] = c[:-1][to_n]
-        ky[1:ny][to_s] = _KIND_RAD_MINUS
-        ay[1:ny][to_s] = c[1:][to_s]
+        sel = ws & ~wn & open_y  # towards +y from the south cell (row j-1), face j
+        ry.append((jj[1:][sel], ii[1:][sel], jj[:-1][sel], c[:-1][sel]))
+        sel = wn & ~ws & open_y  # towards -y from the north cell (row j)
+        ry.append((jj[1:][sel], ii[1:][sel], jj[1:][sel], -c[1:][sel]))
+    row = np.arange(nx)
     if bnd["south"] == "absorb" and m.ly[0] > 0.0:
         sel = wet[0]
-        ky[0, sel] = _KIND_RAD_MINUS
-        ay[0, sel] = c[0, sel]
+        n = int(sel.sum())
+        ry.append((np.zeros(n, np.int64), row[sel], np.zeros(n, np.int64), -c[0, sel]))
     if bnd["north"] == "absorb" and m.ly[ny] > 0.0:
         sel = wet[-1]
-        ky[ny, sel] = _KIND_RAD_PLUS
-        ay[ny, sel] = c[-1, sel]
-    return kx, ax, ky, ay
+        n = int(sel.sum())
+        ry.append((np.full(n, ny), row[sel], np.full(n, ny - 1), c[-1, sel]))
+
+    def _cat(parts: list, length: Callable[[np.ndarray], np.ndarray]) -> tuple[np.ndarray, ...]:
+        if not parts:
+            e = np.zeros(0, np.int64)
+            return e, e, e, np.zeros(0), np.zeros(0)
+        a, b, src, cc = (np.concatenate([p[k] for p in parts]) for k in range(4))
+        order = np.lexsort((b, a))  # fixed order: by row, then face/column
+        a, b, src, cc = a[order].astype(np.int64), b[order].astype(np.int64), src[order].astype(np.int64), cc[order]
+        return a, b, src, np.ascontiguousarray(cc, dtype=float), length(a)
+
+    rxt = _cat(rx, lambda a: np.full(a.size, m.lx * dt))
+    ryt = _cat(ry, lambda a: m.ly[a] * dt)
+    return _Faces(ax, ay, rxt, ryt)
 
 
 def _as_grid(template: xr.DataArray, values: np.ndarray, name: str, attrs: dict[str, Any]) -> xr.DataArray:
@@ -471,14 +484,12 @@ def simulate_linear_long_wave(
     hrow = np.where(wet, d, 0.0).max(axis=1)
     courant = float((np.sqrt(gravity * hrow) * np.sqrt(1.0 / m.dxm**2 + 1.0 / m.dym**2)).max() * dt)
 
-    kx, ax, ky, ay = _face_arrays(d, wet, m, dt, gravity, coast, bnd, info.periodic_x)
+    faces = _face_arrays(d, wet, m, dt, gravity, coast, bnd, info.periodic_x)
     with np.errstate(divide="ignore", invalid="ignore"):
         inv_a = np.where(m.area > 0, 1.0 / m.area, 0.0)
     bx = dt * m.lx * inv_a
     byn = dt * m.ly[1:] * inv_a
     bys = dt * m.ly[:-1] * inv_a
-    lx_dt = np.full(ny, m.lx * dt)
-    ly_dt = m.ly * dt
 
     amax = float(np.max(np.abs(eta))) if eta.size else 0.0
     if arrival_threshold_m is None:
@@ -488,13 +499,14 @@ def simulate_linear_long_wave(
             raise InputError(f"arrival_threshold_m={arrival_threshold_m!r}: expected a positive elevation [m]")
         thr = float(arrival_threshold_m)
 
-    qx = np.zeros((ny, nx + 1))
-    qy = np.zeros((ny + 1, nx))
+    qx = np.full((ny, nx + 1), 0.0)
+    qy = np.full((ny + 1, nx), 0.0)
     max_eta = np.where(wet, eta, -np.inf)
-    max_time = np.zeros((ny, nx))
+    # np.full, not np.zeros: calloc-backed pages that are only conditionally written make masked vector
+    # stores very slow (microcode assists on the shared zero page)
+    max_time = np.full((ny, nx), 0.0)
     arrival = np.where(wet & (np.abs(eta) > thr), 0.0, np.nan)
-    out_x = np.zeros(ny)
-    out_y = np.zeros(ny + 1)
+    outflow = 0.0
     wet_u8 = wet.astype(np.uint8)
     area2d = m.area[:, None]
     vol0 = float(np.sum(eta * area2d))
@@ -519,15 +531,17 @@ def simulate_linear_long_wave(
     use_threads = min(use_threads, numba.config.NUMBA_NUM_THREADS)
     numba.set_num_threads(use_threads)
     if use_threads == 1 or ny * nx < _SERIAL_BELOW_CELLS:
-        f_qx, f_qy, f_eta = _k.update_qx_serial, _k.update_qy_serial, _k.update_eta_serial
+        f_q, f_eta = _k.update_q_serial, _k.update_eta_serial
     else:
-        f_qx, f_qy, f_eta = _k.update_qx, _k.update_qy, _k.update_eta
+        f_q, f_eta = _k.update_q, _k.update_eta
+    ax, ay = faces.ax, faces.ay
+    rx, ry = faces.rx, faces.ry
     t_start = time.perf_counter()
     try:
         for n in range(n_steps):
             t_new = (n + 1) * dt
-            f_qx(eta, qx, kx, ax, periodic, out_x, lx_dt)
-            f_qy(eta, qy, ky, ay, out_y, ly_dt)
+            f_q(eta, qx, ax, qy, ay, periodic)
+            outflow += _k.radiate(eta, qx, qy, periodic, *rx, *ry)
             f_eta(eta, qx, qy, wet_u8, bx, byn, bys, t_new, thr, max_eta, max_time, arrival)
             if record_every_s is not None and t_new >= next_rec - 1e-9 * dt:
                 snaps.append(eta.astype(np.float32))
@@ -542,7 +556,6 @@ def simulate_linear_long_wave(
             bar.close()
 
     vol1 = float(np.sum(eta * area2d))
-    outflow = float(out_x.sum() + out_y.sum())
     resid = vol1 + outflow - vol0
     stats: dict[str, Any] = {
         "steps": n_steps,
