@@ -141,7 +141,8 @@ def _write_run(folder, name, lensing, seed):
     seg = _segments(lensing)
     seg["wkt"] = shapely.to_wkt(np.array(list(seg["geometry"]), dtype=object), rounding_precision=-1)
     seg.drop(columns=["geometry"]).to_csv(folder / SEGMENTS_FILE, index=False)
-    (folder / MANIFEST_FILE).write_text(json.dumps({"scenario": {"name": name}}))
+    # manifest layout of the pipeline: parameters.scenario.name
+    (folder / MANIFEST_FILE).write_text(json.dumps({"parameters": {"scenario": {"name": name}}}))
     # also the exporter's own CSV (geometry_wkt column, '#' caution lines) is readable
     write_segments(_segments(lensing), folder / "exported", CRS, formats=("csv",), csv_wkt=True)
     return lay

@@ -412,8 +412,9 @@ def read_run(run_dir: str | Path) -> RunTuple:
     run_dir : str or path-like
         Folder holding :data:`LAYERS_FILE` (CF NetCDF of the run layers), :data:`SEGMENTS_FILE`
         (segments table, ``#`` comment lines allowed, geometry as WKT in one of
-        :data:`WKT_COLUMNS`) and optionally :data:`MANIFEST_FILE` (its ``name`` or
-        ``scenario.name`` names the run; else the folder name).
+        :data:`WKT_COLUMNS`) and optionally :data:`MANIFEST_FILE` (its ``name``,
+        ``scenario.name``, ``parameters.name`` or ``parameters.scenario.name`` names the run;
+        else the folder name).
 
     Returns
     -------
@@ -437,10 +438,12 @@ def read_run(run_dir: str | Path) -> RunTuple:
         except (OSError, ValueError) as exc:
             raise DataFileError(f"{mpath}: unreadable manifest ({exc})") from None
         if isinstance(man, dict):
-            sc = man.get("scenario")
-            cand = man.get("name") or (sc.get("name") if isinstance(sc, dict) else None)
-            if isinstance(cand, str) and cand.strip():
-                name = cand
+            params = man.get("parameters") if isinstance(man.get("parameters"), dict) else {}
+            for holder in (man, man.get("scenario"), params, params.get("scenario")):
+                cand = holder.get("name") if isinstance(holder, dict) else None
+                if isinstance(cand, str) and cand.strip():
+                    name = cand
+                    break
     spath = d / SEGMENTS_FILE
     if not spath.is_file():
         raise DataFileError(f"{spath}: segments table not found (expected {SEGMENTS_FILE} in the run folder)")
