@@ -967,6 +967,22 @@ class WaveCheck:
     agreement: dict[str, Any]
     figure: Path | None = None
 
+    def summary(self) -> str:
+        """A few printable lines: agreement figures, run statistics and the cautions line."""
+        a = self.agreement
+        st = self.wave.stats
+        return "\n".join(
+            [
+                f"wave check ({a.get('ray_column', 'ray')} vs linear long-wave maximum at the stop isobath): "
+                f"{a['n']} segments",
+                f"  Spearman rank correlation {a['spearman']:.2f}, Kendall tau {a['kendall']:.2f}, "
+                f"top-{a['k']} overlap {a['topk_common']}/{a['k']}",
+                f"  {st['steps']} steps of {st['dt_s']:.2f} s ({st['duration_s'] / 3600:.2f} h), "
+                f"{st['elapsed_s']:.1f} s wall, volume budget residual {st['mass_error']:.1e}",
+                "  " + WAVE_CAUTION,
+            ]
+        )
+
 
 def default_check_duration_s(depth: xr.DataArray, segments: Any = None, *, stop_depth: float = 20.0,
                              gravity: float = GRAVITY) -> float:
