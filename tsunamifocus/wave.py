@@ -15,7 +15,8 @@ old surface; then surface from the new flux), which is equivalent to the stagger
 and is stable for ``c_max dt sqrt(1/dx^2 + 1/dy^2) <= 1`` (Mesinger and Arakawa 1976, GARP
 Publication Series 17). The time step uses the Courant number ``cfl`` (default 0.8).
 
-On lon/lat grids the equations are written on a sphere of radius ``EARTH_RADIUS_M`` in flux form
+On lon/lat grids the equations are written on a sphere of radius ``EARTH_RADIUS_M`` (the grid's
+``GridInfo.radius_m``) in flux form
 (finite volumes): face lengths ``R dlat`` and ``R cos(lat) dlon``, exact spherical cell areas, and
 gradients ``1/(R cos lat) d/dlon`` and ``1/R d/dlat``; longitude wraps on grids with
 ``lon_periodic = 1``. Because the surface update is a flux divergence, the water volume is conserved
@@ -48,7 +49,7 @@ import xarray as xr
 
 from . import _wavekernel as _k
 from .cautions import caution_summary, caution_text
-from .constants import EARTH_RADIUS_M, GRAVITY
+from .constants import GRAVITY
 from .errors import CoastError, InputError, ResolutionWarning, ResourceLimitError
 from .grid import GridInfo
 
