@@ -438,3 +438,13 @@ def test_global_periodic_grid_with_seam_crossing_paths(tmp_path):
     wrapped = np.column_stack([info.wrap_lon(path[:, 0]), path[:, 1]])
     pieces = figures._split_wrap(wrapped, True)
     assert len(pieces) == 2 and all(np.ptp(p[:, 0]) <= 180 for p in pieces)
+
+
+def test_rank_labels_do_not_overlap():
+    # ten segment midpoints 5 points apart along a straight coast: the greedy placement must
+    # keep every pair of label centres at least one label diameter (15 pt) apart
+    placed = []
+    for i in range(10):
+        figures._label_offset((100.0 + 5.0 * i, 50.0), 180.0, placed)
+    d = [math.hypot(a[0] - b[0], a[1] - b[1]) for i, a in enumerate(placed) for b in placed[i + 1 :]]
+    assert len(placed) == 10 and min(d) >= 15.0 - 1e-9

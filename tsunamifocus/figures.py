@@ -829,7 +829,14 @@ def plot_lensing_map(
     if segments is not None:
         _check_segments(segments, ["geometry", "lensing_factor"], "plot_lensing_map")
         seg_vals.append(pd.to_numeric(segments["lensing_factor"], errors="coerce").to_numpy(float))
-    r = _symmetric_log_range([lf] + seg_vals)
+    # colour range: the raster's 2-98 % and most segment values (the few strongest segments may
+    # saturate at the ends of the scale, which the colour bar's arrows show; ranks are labelled)
+    r = _symmetric_log_range([lf])
+    for sv in seg_vals:
+        pos = _finite_pos(sv)
+        if pos.size:
+            m = float(np.percentile(np.abs(np.log10(pos)), 75.0))
+            r = max(r, _symmetric_log_range([np.array([10.0**m])]))
     norm = mcolors.LogNorm(vmin=1.0 / r, vmax=r, clip=False)
     cmap = _cmap("PuOr_r").with_extremes(bad=(0.0, 0.0, 0.0, 0.0))
     lf_plot = np.where(np.isfinite(lf) & (lf > 0), lf, np.nan)
@@ -918,15 +925,18 @@ def plot_lensing_map(
         if top_k > 0:
             ranked = _rank_order(segments, "lensing_factor", "rank_lensing")
             ranked = ranked[ranked["_rank"].notna() & (ranked["_rank"] <= top_k)].head(top_k)
+            placed: list[tuple[float, float]] = []  # label centres, in points from the axes origin
+            xmin_, xmax_, ymin_, ymax_ = _extent(info)
+            pts_per_unit = 72.0 * (8.0 - 0.9 - 0.95) / max(xmax_ - xmin_, 1e-12)  # see _finish sizing
+            yscale = pts_per_unit * getattr(ax, "_tf_aspect", 1.0)
             for _, row in ranked.iterrows():
                 xm, ym = _segment_mid(row)
                 if xm is None:
                     continue
                 az = row.get("normal_azimuth_deg", np.nan)
-                if az is None or not np.isfinite(az):
-                    off = (0.0, 14.0)
-                else:
-                    off = (16.0 * math.sin(math.radians(az)), 16.0 * math.cos(math.radians(az)))
+                az = float(az) if az is not None and np.isfinite(az) else 0.0
+                box = (xmax_ - xmin_) * pts_per_unit, (ymax_ - ymin_) * yscale
+                off = _label_offset(((xm - xmin_) * pts_per_unit, (ym - ymin_) * yscale), az, placed, box=box)
                 ax.annotate(
                     f"{int(row['_rank'])}",
                     xy=(xm, ym),
@@ -955,6 +965,37 @@ def plot_lensing_map(
                     )
                 )
     return _finish(fig, out_path, ax=ax, geo=geo, handles=handles, right_cbars=1)
+
+
+def _label_offset(
+    anchor_pt: tuple[float, float],
+    azimuth_deg: float,
+    placed: list[tuple[float, float]],
+    min_sep: float = 15.0,
+    box: tuple[float, float] | None = None,
+) -> tuple[float, float]:
+    """Offset [points] of a rank label: seaward along the normal, pushed out or turned to avoid
+    labels already placed (greedy, rank order) and to stay inside ``box`` (width, height in
+    points, origin at the lower left); the chosen centre is appended to ``placed``."""
+    best = None
+    for dist in (16.0, 30.0, 44.0, 58.0, 72.0):
+        for turn in (0.0, -35.0, 35.0, -70.0, 70.0, -110.0, 110.0):
+            a = math.radians(azimuth_deg + turn)
+            off = (dist * math.sin(a), dist * math.cos(a))
+            c = (anchor_pt[0] + off[0], anchor_pt[1] + off[1])
+            if box is not None and not (8.0 <= c[0] <= box[0] - 8.0 and 8.0 <= c[1] <= box[1] - 8.0):
+                continue
+            gap = min((math.hypot(c[0] - p[0], c[1] - p[1]) for p in placed), default=1e9)
+            if gap >= min_sep:
+                placed.append(c)
+                return off
+            if best is None or gap > best[0]:
+                best = (gap, off, c)
+    if best is None:  # nowhere inside the box: plain seaward offset
+        a = math.radians(azimuth_deg)
+        best = (0.0, (16.0 * math.sin(a), 16.0 * math.cos(a)), (anchor_pt[0], anchor_pt[1]))
+    placed.append(best[2])
+    return best[1]
 
 
 def _segment_mid(row: pd.Series) -> tuple[float | None, float | None]:

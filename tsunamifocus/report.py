@@ -576,7 +576,7 @@ def _ranking_table(seg: pd.DataFrame, top_k: int, extra: Sequence[tuple[str, str
                 if "amp_lo" in df.columns and "amp_hi" in df.columns:
                     s += f" ({_fmt3(r['amp_lo'])}–{_fmt3(r['amp_hi'])})"
             elif key == "first_arrival_s":
-                s = _fmt(_num(v) / 60.0)
+                s = f"{_num(v) / 60.0:.1f}" if math.isfinite(_num(v)) else "–"
             elif key == "length_m":
                 s = _fmt(_num(v) / 1000.0)
             elif key in ("lon_mid", "lat_mid"):
@@ -1021,7 +1021,7 @@ def _render_pdf(meta: Mapping[str, str], blocks: list[_Block], out_pdf: pathlib.
             self.set_text_color(90, 90, 90)
             right = T(f"tsunamifocus {meta['version']} · {meta['date']}")
             room = self.epw - self.get_string_width(right) - 6
-            left = T(f"Planning-study appendix — {meta['subtitle']}")
+            left = T(meta["title"])
             while left and self.get_string_width(left) > room:
                 left = left[:-2] + "…"
             self.set_y(8)
@@ -1265,19 +1265,26 @@ def _pdf_table(pdf, fam: str, T, b: Mapping[str, Any], FontFace) -> None:
             widths = [w_ + spare / len(widths) for w_ in widths]
     total = sum(widths)
     width = min(epw, total) if (kv or total < epw) else epw
-    if b.get("caption"):
-        pdf.set_font(fam, "B", 8.5)
-        if pdf.get_y() + 14 > pdf.page_break_trigger:
-            pdf.add_page()
-        pdf.cell(epw, 5, T(b["caption"]), new_x="LMARGIN", new_y="NEXT")
-        pdf.set_font(fam, "", size)
-    # keep short tables on one page (rough height: one text line per row plus padding)
-    est = (len(rows) + 1) * (size * 0.5 + 2.2) + 4
-    pdf.set_fill_color(244, 247, 250)
+    # keep short tables (and their caption) on one page: estimated height from wrapped lines
+    scale = width / total if total > 0 else 1.0
+
+    def _row_h(cells: Sequence[str]) -> float:
+        n = 1
+        for j, c in enumerate(cells[: len(widths)]):
+            room = max(widths[j] * scale - pad, 1.0)
+            n = max(n, math.ceil(pdf.get_string_width(c) / room))
+        return n * size * 0.5 + 1.8
+
+    est = _row_h(cols) + sum(_row_h(r) for r in rows) + 4 + (5 if b.get("caption") else 0)
     if est < 110 and pdf.get_y() + est > pdf.page_break_trigger:
         pdf.add_page()
-    elif pdf.get_y() + 12 > pdf.page_break_trigger:
+    elif pdf.get_y() + 18 > pdf.page_break_trigger:
         pdf.add_page()
+    if b.get("caption"):
+        pdf.set_font(fam, "B", 8.5)
+        pdf.cell(epw, 5, T(b["caption"]), new_x="LMARGIN", new_y="NEXT")
+    pdf.set_font(fam, "", size)
+    pdf.set_fill_color(244, 247, 250)
     with pdf.table(
         width=width,
         col_widths=tuple(widths),
