@@ -359,3 +359,13 @@ def test_nullable_columns_render(figs, tmp_path):
     cols, rows, _ = report._ranking_table(seg, len(seg), [])
     assert rows[-1][0] == "–"  # the segment without a rank goes last
     assert rows[0][cols.index("First arrival (min)")] == "–"
+
+
+def test_figures_in_reading_order(figs):
+    # whatever order the caller's dict has, the source comes first and the ranking chart last
+    ctx = base_context(figs)
+    f = ctx["figures"]
+    ctx["figures"] = {"ranking": f["ranking"], "lensing_map": f["lensing_map"], "uplift": f["uplift"]}
+    _, blocks = report.document_blocks(ctx)
+    paths = [b["path"] for b in blocks if b["kind"] == "figure"]
+    assert paths == [pathlib.Path(f["uplift"]), pathlib.Path(f["lensing_map"]), pathlib.Path(f["ranking"])]

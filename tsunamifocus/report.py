@@ -492,7 +492,10 @@ def _figure_items(figs: Any, what: str) -> list[tuple[pathlib.Path, str]]:
         return []
     items: list[tuple[Any, Any]] = []
     if isinstance(figs, Mapping):
-        for key, val in figs.items():
+        order = list(FIGURE_CAPTIONS)  # source, ray field, lensing map, ranking; others after
+        keys = sorted(figs, key=lambda k: (order.index(k) if k in order else len(order), list(figs).index(k)))
+        for key in keys:
+            val = figs[key]
             if isinstance(val, Mapping):
                 items.append((val.get("path"), val.get("caption") or FIGURE_CAPTIONS.get(key, _pretty_key(key))))
             else:
