@@ -12,7 +12,8 @@ __all__: list[str] = []
 
 
 def _configure_run(p: argparse.ArgumentParser) -> None:
-    p.add_argument("scenario", help="scenario file (TOML); see docs/scenario.md")
+    p.add_argument("scenario", help="scenario file (TOML, see docs/scenario.md), or the manifest.json of an "
+                   "earlier run to reproduce it")
     p.add_argument("--out", help="output folder (default: the scenario's [output] folder)")
     p.add_argument("--overwrite", action="store_true", help="replace an existing output folder")
     p.add_argument("--rays", type=int, help="override the number of rays per source")
@@ -26,7 +27,15 @@ def _run_run(args: argparse.Namespace) -> int:
 
     if args.rays is not None and args.rays < 1:
         raise InputError(f"--rays {args.rays}: expected a positive number of rays")
-    sc = parse_scenario(args.scenario)
+    if str(args.scenario).lower().endswith(".json"):
+        from .outputs import scenario_from_manifest, verify_inputs
+
+        sc = scenario_from_manifest(args.scenario)
+        bad = [b for b in verify_inputs(args.scenario) if "scenario_file" not in b]
+        if bad:
+            raise InputError(f"{args.scenario}: cannot reproduce the run: {'; '.join(bad)}")
+    else:
+        sc = parse_scenario(args.scenario)
     quiet = getattr(args, "quiet", 0) > 0
     run_scenario(sc, out=args.out, overwrite=args.overwrite, rays=args.rays, scheduler=args.scheduler,
                  progress=not quiet, command=["tsunamifocus", *sys.argv[1:]])
@@ -54,6 +63,12 @@ def _run_compare(args: argparse.Namespace) -> int:
     if out.is_dir() and any(out.iterdir()) and not args.overwrite:
         raise OutputExistsError(f"{out}: folder is not empty; pass --overwrite or choose another --out")
     runs = [read_run(r) for r in args.runs]
+    names = [r[0] for r in runs]
+    if len(set(names)) < len(names):  # same scenario name: tell the runs apart by their folders
+        folders = [pathlib.Path(r).resolve().name for r in args.runs]
+        if len(set(folders)) < len(folders):
+            folders = [str(pathlib.Path(r).resolve()) for r in args.runs]
+        runs = [(f, seg, lay) for f, (_, seg, lay) in zip(folders, runs)]
     cmp = compare_runs(runs, top_k=args.top)
     with OutputFolder(out, overwrite=args.overwrite) as of:
         compare_to_folder(cmp, of.tmp_dir)

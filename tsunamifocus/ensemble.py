@@ -60,7 +60,7 @@ import numpy as np
 import pandas as pd
 import xarray as xr
 
-from .errors import InputError, TsunamiFocusError
+from .errors import EnsembleError, InputError
 
 __all__ = [
     "MemberResult",
@@ -107,8 +107,7 @@ _STATIC_COLUMNS = (
 _MEMBER_KEY = "tsunamifocus-member"
 
 
-class EnsembleError(TsunamiFocusError, RuntimeError):
-    """Every member of an ensemble failed, or the ensemble cannot be run at all."""
+# EnsembleError lives in tsunamifocus.errors with the rest of the hierarchy (re-exported here)
 
 
 # ---------------------------------------------------------------------------------------------

@@ -26,6 +26,7 @@ __all__ = [
     "CoastError",
     "OutputExistsError",
     "HealthCheckError",
+    "EnsembleError",
     "TsunamiFocusWarning",
     "ScalingWarning",
     "ResolutionWarning",
@@ -78,6 +79,10 @@ class OutputExistsError(TsunamiFocusError, FileExistsError):
 
 class HealthCheckError(TsunamiFocusError, RuntimeError):
     """A numerical health check of a run failed (e.g. energy bookkeeping error)."""
+
+
+class EnsembleError(TsunamiFocusError, RuntimeError):
+    """Every member of an ensemble failed, or the ensemble cannot be run at all."""
 
 
 class TsunamiFocusWarning(UserWarning):

@@ -12,11 +12,10 @@ import logging
 import math
 import os
 import pathlib
-import shutil
 import sys
 import time
-from collections.abc import Callable, Sequence
-from dataclasses import dataclass, field, replace
+from collections.abc import Sequence
+from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
@@ -25,8 +24,8 @@ import xarray as xr
 from pyproj import CRS, Geod, Transformer
 
 from .bathymetry import load_bathymetry, smooth_bathymetry
-from .cautions import caution_summary, caution_text
-from .errors import HealthCheckError, InputError, ScenarioError, SourceError
+from .cautions import caution_summary
+from .errors import HealthCheckError, InputError
 from .grid import GridInfo
 
 __all__ = [
@@ -214,7 +213,6 @@ def _segments_for(depth: xr.DataArray, scenario: Any):
     from .coast import coastline_from_grid, read_coastline, segment_coastline
 
     c = scenario.coast
-    info = GridInfo.from_dataarray(depth)
     names = None
     if str(c.source) == "grid":
         lines = coastline_from_grid(depth, c.isobath_m)
@@ -236,6 +234,7 @@ def analyse_source(
     segments: pd.DataFrame | None = None,
     keep_paths: int = 600,
     n_rays: int | None = None,
+    threads: int | None = None,
     progress: _Progress | None = None,
 ) -> SourceAnalysis:
     """Build one source, its ray fan, and trace/analyse it on ``depth``.
@@ -256,6 +255,8 @@ def analyse_source(
         Decimated ray paths kept for figures.
     n_rays : int, optional
         Override of ``scenario.rays.count``.
+    threads : int, optional
+        Ray-engine threads (results are bit-identical for a given value); default all cores.
     progress : optional
         Stage reporter.
 
@@ -283,6 +284,8 @@ def analyse_source(
         pr.done(f"{len(segments)} segments of ~{scenario.coast.segment_km:g} km")
     pr.start("trace", f"tracing {fan.n_rays} rays over real, reference and constant-depth oceans")
     kw = {"max_time_s": scenario.rays.max_time_h * 3600.0, "keep_paths": keep_paths}
+    if threads is not None:
+        kw["threads"] = int(threads)
     if scenario.rays.step_s:
         kw["step_s"] = scenario.rays.step_s
     foc = analyse_focusing(
@@ -1056,8 +1059,10 @@ def ensemble_member(params: dict, *, depth: xr.DataArray, scenario: Any, segment
         "magnitude": params.get("magnitude_delta", 0.0),
         "launch_jitter_deg": params.get("launch_jitter_deg", 0.0),
     }
+    # one ray thread per member: members run in parallel, and a fixed thread count makes every
+    # member bit-identical whichever scheduler runs it
     a = analyse_source(d, scenario, scenario.sources[source_index], perturbation=pert, segments=segments,
-                       keep_paths=0, n_rays=n_rays)
+                       keep_paths=0, n_rays=n_rays, threads=1)
     seg = a.focusing.segments
     table = seg[["segment_id", *[c for c in _STATIC_COLUMNS if c in seg], *[c for c in _MEMBER_COLUMNS if c in seg]]]
     table = table.set_index("segment_id")
