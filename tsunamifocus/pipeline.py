@@ -1006,9 +1006,20 @@ def format_run_summary(result: RunResult) -> str:
             lines.append(f"    #{int(r['rank_lensing']):>2} {r['segment_id']:>6}  lensing {r['lensing_factor']:.2f} "
                          f"[{r['lensing_lo']:.2f}-{r['lensing_hi']:.2f}]  indicative amplitude at 1 m "
                          f"{r['amp_1m_m']:.2f} m  first arrival {r['first_arrival_s'] / 60:.0f} min")
+        seg = f.segments
+        if "rank_amplitude" in seg:
+            by_amp = seg[seg["rank_amplitude"].notna()].sort_values("rank_amplitude").head(3)
+            if len(by_amp):
+                lines.append("  largest indicative amplitude at 1 m depth (Green's law, indicative only): " + ", ".join(
+                    f"{r['segment_id']} {r['amp_1m_m']:.2f} m" for _, r in by_amp.iterrows()))
     if result.ensemble is not None:
         e = result.ensemble
         lines.append(f"ensemble: {e.n_members} members, {len(e.failures)} failed")
+        es = e.segments
+        if "p_topk" in es:
+            top = es.sort_values("p_topk", ascending=False).head(5)
+            lines.append(f"  most robust hotspots, P(top {e.top_k}): " + ", ".join(
+                f"{sid} {r['p_topk']:.2f} ({r.get('robustness', '')})" for sid, r in top.iterrows()))
     if result.timings:
         lines.append("timings: " + ", ".join(f"{k} {v:.1f} s" for k, v in result.timings.items()))
     if result.out_dir is not None:
