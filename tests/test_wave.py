@@ -443,6 +443,10 @@ def test_wave_check_ranks_segments_like_cylindrical_spreading(straight_coast, tm
     assert t["rank_wave"].min() == 1 and t["rank_wave"].max() == 30
     top = t.loc[t["rank_wave"] == 1, "segment_id"].item()
     assert top in ("S0015", "S0016")  # the two segments facing the source
+    # first arrival on the segment nearest the source: no earlier than (distance - 4 sigma) / c
+    c = math.sqrt(GRAVITY * 3000.0)
+    t_arr = t["wave_first_arrival_s"].to_numpy()
+    assert np.all(t_arr >= (r - 4 * 8e3) / c) and np.all(t_arr <= r / c)
     assert wc.figure is not None and wc.figure.stat().st_size > 10_000
     text = wc.summary()
     assert "Spearman rank correlation" in text and "top-6 overlap 6/6" in text and "SCREENING" in text

@@ -660,6 +660,7 @@ def segment_max_amplitude(
     *,
     search_radius_cells: float = 2.0,
     statistic: str = "max",
+    field: str = "max_amplitude",
 ) -> Any:
     """Maximum wave amplitude per coastline segment, sampled along the stop isobath.
 
@@ -682,14 +683,17 @@ def segment_max_amplitude(
     search_radius_cells : float
         Search distance around each segment, in cell sizes (the larger of dx, dy; degrees on lon/lat
         grids).
-    statistic : {"max", "mean", "p90"}
-        Reduction over the gathered cells.
+    statistic : {"max", "mean", "p90", "min"}
+        Reduction over the gathered cells (NaN cells ignored).
+    field : {"max_amplitude", "arrival_time_s", "max_time_s"}
+        Which map of the result to sample (e.g. ``"arrival_time_s"`` with ``statistic="min"`` gives the
+        wave's first arrival per segment [s]).
 
     Returns
     -------
     pandas.Series
-        Amplitude [m] indexed by ``segment_id`` (name ``wave_amp_stop_m``); NaN where no band cell
-        lies near the segment.
+        Amplitude [m] indexed by ``segment_id`` (name ``wave_amp_stop_m``; ``wave_<field>`` for the other
+        fields); NaN where no band cell lies near the segment.
 
     Raises
     ------
@@ -703,8 +707,10 @@ def segment_max_amplitude(
 
     if not hasattr(segments, "columns") or not {"segment_id", "geometry"} <= set(segments.columns):
         raise CoastError("segments table must be a DataFrame with columns 'segment_id' and 'geometry'")
-    if statistic not in ("max", "mean", "p90"):
-        raise InputError(f"statistic={statistic!r}: expected 'max', 'mean' or 'p90'")
+    if statistic not in ("max", "mean", "p90", "min"):
+        raise InputError(f"statistic={statistic!r}: expected 'max', 'mean', 'p90' or 'min'")
+    if field not in ("max_amplitude", "arrival_time_s", "max_time_s"):
+        raise InputError(f"field={field!r}: expected 'max_amplitude', 'arrival_time_s' or 'max_time_s'")
     if not (math.isfinite(search_radius_cells) and search_radius_cells > 0):
         raise InputError(f"search_radius_cells={search_radius_cells!r}: expected a positive number of cells")
     info = _check_depth(depth)
@@ -714,7 +720,7 @@ def segment_max_amplitude(
     wet = _wet_mask(np.asarray(depth.values, float), stop_depth) & np.isfinite(amp.values)
     band = _coastal_cells(wet, info.periodic_x)
     jj, ii = np.nonzero(band)
-    vals = np.asarray(amp.values, float)[jj, ii]
+    vals = np.asarray(getattr(wave_result, field).values, float)[jj, ii]
     px = info.x[ii]
     py = info.y[jj]
     geoms = np.asarray(segments["geometry"].values, dtype=object)
@@ -739,16 +745,21 @@ def segment_max_amplitude(
         ends = np.searchsorted(seg_idx, np.arange(len(geoms)), side="right")
         for s in range(len(geoms)):
             v = vals[pt_idx[starts[s] : ends[s]]]
+            v = v[np.isfinite(v)]
             if v.size == 0:
                 continue
             if statistic == "max":
                 out[s] = v.max()
+            elif statistic == "min":
+                out[s] = v.min()
             elif statistic == "mean":
                 out[s] = v.mean()
             else:
                 out[s] = np.percentile(v, 90)
-    ser = pd.Series(out, index=pd.Index(ids, name="segment_id"), name="wave_amp_stop_m")
-    ser.attrs.update(units="m", statistic=statistic, search_radius_cells=search_radius_cells, cautions=caution_text())
+    name = "wave_amp_stop_m" if field == "max_amplitude" else f"wave_{field}"
+    ser = pd.Series(out, index=pd.Index(ids, name="segment_id"), name=name)
+    ser.attrs.update(units="m" if field == "max_amplitude" else "s", statistic=statistic, field=field,
+                     search_radius_cells=search_radius_cells, cautions=caution_text())
     return ser
 
 
@@ -955,8 +966,9 @@ class WaveCheck:
         The wave-solver run.
     table : pandas.DataFrame
         One row per segment: ``segment_id``, ``name`` (if present), ``ray_value`` (the compared ray
-        column, [m] for ``amp_stop_m``), ``wave_amp_stop_m`` [m], ``rank_ray``, ``rank_wave`` (1 = largest,
-        <NA> where the value is missing), ``ratio_wave_to_ray``.
+        column, [m] for ``amp_stop_m``), ``wave_amp_stop_m`` [m], ``wave_first_arrival_s`` [s] (earliest
+        threshold exceedance on the segment's stop-isobath cells), ``rank_ray``, ``rank_wave`` (1 =
+        largest, <NA> where the value is missing), ``ratio_wave_to_ray``.
     agreement : dict
         :func:`compare_rankings` of the two columns plus ``ray_column``.
     figure : pathlib.Path or None
@@ -1088,6 +1100,9 @@ def wave_check(
         table["name"] = np.asarray(segments["name"])
     table["ray_value"] = ray.values
     table["wave_amp_stop_m"] = wave.values
+    arr = segment_max_amplitude(res, segments, depth, stop_depth, search_radius_cells=search_radius_cells,
+                                statistic="min", field="arrival_time_s")
+    table["wave_first_arrival_s"] = arr.values
     for col, src in (("rank_ray", ray.values), ("rank_wave", wave.values)):
         ok = np.isfinite(src)
         rank = np.full(src.size, -1, dtype=np.int64)
