@@ -598,6 +598,7 @@ def plot_ray_field(
     out_path: str | os.PathLike,
     title: str = "Ray field over the bathymetry",
     max_paths: int = 600,
+    coast_label: str = "Coastline",
 ) -> pathlib.Path:
     """Map of the ray field (branches) over the bathymetry.
 
@@ -622,6 +623,8 @@ def plot_ray_field(
         Figure title.
     max_paths : int
         Upper bound on drawn paths (evenly decimated).
+    coast_label : str
+        Legend entry of ``coast_lines`` (e.g. "Coast segments (stop isobath)").
 
     Returns
     -------
@@ -687,11 +690,13 @@ def plot_ray_field(
                 a = np.column_stack([info.wrap_lon(a[:, 0]), a[:, 1]])
             segs.extend(_split_wrap(a, info.geographic))
         color = _OKABE_BLUE if energy is not None else "#1b3a5c"
-        alpha = 0.35 if energy is not None else 0.45
-        ax.add_collection(LineCollection(segs, colors=color, linewidths=0.45, alpha=alpha, zorder=4))
+        # fainter lines when there are many, so the energy branches stay visible
+        alpha = float(np.clip(6.0 / math.sqrt(len(lines)), 0.12, 0.5)) * (0.8 if energy is not None else 1.0)
+        lw = 0.45 if len(lines) <= 300 else 0.35
+        ax.add_collection(LineCollection(segs, colors=color, linewidths=lw, alpha=alpha, zorder=4))
         handles.append(Line2D([], [], color=color, lw=1.0, alpha=0.8, label=f"Ray paths ({len(lines)} shown)"))
     if coast_lines is not None and _draw_lines(ax, coast_lines, info.geographic, colors="black", linewidths=0.9, zorder=7):
-        handles.append(Line2D([], [], color="black", lw=1.0, label="Coastline"))
+        handles.append(Line2D([], [], color="black", lw=1.0, label=coast_label))
     if source_outline is not None and _draw_lines(
         ax,
         source_outline,
