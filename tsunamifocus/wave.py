@@ -420,7 +420,9 @@ def simulate_linear_long_wave(
         On lon/lat grids, rows poleward of this latitude [deg] are treated as land (a warning says how
         many wet cells that removes); None keeps them (very small time step near the poles).
     threads : int, optional
-        numba threads (default: numba's current setting). Results do not depend on it.
+        numba threads (default: numba's current setting; capped at ``NUMBA_NUM_THREADS``, the value
+        used is in ``stats["threads"]``). Results do not depend on it. On machines whose cores are
+        shared with other jobs ``threads=1`` is often faster (the step is memory-bound).
     progress : bool or callable, optional
         True for a tqdm bar, or a function ``f(step, n_steps)`` called about 100 times.
     max_memory_bytes : int or None
