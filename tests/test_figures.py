@@ -448,3 +448,11 @@ def test_rank_labels_do_not_overlap():
         figures._label_offset((100.0 + 5.0 * i, 50.0), 180.0, placed)
     d = [math.hypot(a[0] - b[0], a[1] - b[1]) for i, a in enumerate(placed) for b in placed[i + 1 :]]
     assert len(placed) == 10 and min(d) >= 15.0 - 1e-9
+
+
+def test_ranking_with_topk_probability(case, tmp_path):
+    seg = case["segments"].copy()
+    seg["p_topk"] = np.linspace(1.0, 0.1, len(seg))
+    check_png(figures.plot_ranking(seg, 8, out_path=tmp_path / "p.png", prob_col="p_topk"), min_w=800, min_h=300)
+    with pytest.raises(InputError, match="prob_col"):
+        figures.plot_ranking(seg, 8, out_path=tmp_path / "q.png", prob_col="nope")

@@ -1037,6 +1037,7 @@ def plot_ranking(
     hi_col: str | None = None,
     title: str | None = None,
     xlabel: str | None = None,
+    prob_col: str | None = None,
 ) -> pathlib.Path:
     """Horizontal bar chart of the top-k segments with 5-95 % uncertainty bars.
 
@@ -1057,6 +1058,9 @@ def plot_ranking(
         Interval columns; default from :data:`RANK_FIELDS`.
     title, xlabel : str, optional
         Figure title and x-axis label (defaults from ``by``).
+    prob_col : str, optional
+        Column holding the ensemble probability [0-1] of being among the top k; printed beside
+        each value as ``P(top k) = ...``.
 
     Returns
     -------
@@ -1101,8 +1105,12 @@ def plot_ranking(
     if has_int:
         ends = np.where(np.isfinite(hi), np.maximum(vals, hi), vals)
     span = xmax if xmax > 0 else 1.0
-    for yv, v, e_ in zip(ypos, vals, ends, strict=True):
-        ax.text(e_ + 0.015 * span, yv, f"{v:.3g}", va="center", ha="left", fontsize=8, color="0.15", zorder=4)
+    if prob_col is not None and prob_col not in df.columns:
+        raise InputError(f"plot_ranking: prob_col '{prob_col}' is not a column of the segments table")
+    probs = pd.to_numeric(df[prob_col], errors="coerce").to_numpy(float) if prob_col else np.full(n, np.nan)
+    for yv, v, e_, pr in zip(ypos, vals, ends, probs, strict=True):
+        txt = f"{v:.3g}" + (f"   P(top {top_k}) = {pr:.2f}" if np.isfinite(pr) else "")
+        ax.text(e_ + 0.015 * span, yv, txt, va="center", ha="left", fontsize=8, color="0.15", zorder=4)
     labels = []
     for _, row in df.iterrows():
         sid = str(row["segment_id"])
@@ -1114,7 +1122,7 @@ def plot_ranking(
     ax.set_yticks(ypos)
     ax.set_yticklabels(labels)
     ax.set_ylim(-0.7, n - 0.3)
-    ax.set_xlim(0, xmax * 1.14 if xmax > 0 else 1.0)
+    ax.set_xlim(0, (xmax * (1.45 if prob_col else 1.14)) if xmax > 0 else 1.0)
     ax.set_xlabel(xlabel or label_d)
     ax.grid(True, axis="x", color="0.85", linewidth=0.6, zorder=0)
     ax.set_axisbelow(True)
