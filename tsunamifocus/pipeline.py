@@ -539,8 +539,12 @@ def _figures(a: SourceAnalysis, depth: xr.DataArray, scenario: Any, folder: path
     seg = _plain_dtypes(f.segments)
     if ensemble is not None and getattr(ensemble, "segments", None) is not None:
         seg = _with_ensemble_intervals(seg, ensemble.segments)
-    figs["ranking"] = F.plot_ranking(seg, scenario.output.top_k, out_path=folder / "ranking.png",
-                                     title=f"Top {scenario.output.top_k} coastline segments by lensing factor")
+    title = f"Top {scenario.output.top_k} coastline segments by lensing factor"
+    if ensemble is not None:
+        title += f"\n(bars: unperturbed run; whiskers: 5-95 % over {ensemble.n_members} ensemble members)"
+    else:
+        title += "\n(whiskers: 5-95 % bootstrap interval over rays)"
+    figs["ranking"] = F.plot_ranking(seg, scenario.output.top_k, out_path=folder / "ranking.png", title=title)
     figs["uplift"] = F.plot_uplift(a.eta, out_path=folder / "uplift.png", depth=depth,
                                    source_outline=a.outline or None, coast_lines=coast,
                                    title=f"Initial sea-surface displacement (Okada 1985): {a.name}")
