@@ -330,7 +330,9 @@ def write_netcdf(
     for c in (xdim, ydim):
         encoding[c] = {"_FillValue": None}
     path = Path(path)
-    with _atomic_file(path) as tmp:
+    from .outputs import deferred_interrupts
+
+    with _atomic_file(path) as tmp, deferred_interrupts():  # an interrupt inside xarray's HDF5 lock hangs
         ds.to_netcdf(tmp, format="NETCDF4", engine="netcdf4", encoding=encoding)
     return path
 

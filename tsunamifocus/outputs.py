@@ -57,6 +57,7 @@ __all__ = [
     "scenario_from_manifest",
     "software_versions",
     "show_versions",
+    "deferred_interrupts",
 ]
 
 MANIFEST_NAME = "manifest.json"
@@ -274,6 +275,40 @@ class OutputFolder:
         self.tmp_dir = None
         if old is not None:
             shutil.rmtree(old, ignore_errors=True)
+
+
+@contextlib.contextmanager
+def deferred_interrupts(signums: tuple[int, ...] = (signal.SIGINT, signal.SIGTERM)) -> Iterator[None]:
+    """Hold SIGINT/SIGTERM back while a library call that must not be interrupted runs.
+
+    xarray's NetCDF writer holds a non-reentrant HDF5 lock; a ``KeyboardInterrupt`` (or the
+    ``SystemExit`` of :class:`OutputFolder`'s SIGTERM handler) raised inside it makes the clean-up
+    wait for that lock forever, so the interrupted run hangs instead of exiting. Inside this block
+    the signals are only recorded; on leaving it the original handlers are restored and the first
+    recorded signal is delivered to them. Outside the main thread it does nothing.
+    """
+    if threading.current_thread() is not threading.main_thread():
+        yield
+        return
+    got: list[int] = []
+    old = {s: signal.getsignal(s) for s in signums}
+
+    def _record(signum, frame):  # noqa: ARG001
+        got.append(signum)
+
+    for s in signums:
+        signal.signal(s, _record)
+    try:
+        yield
+    finally:
+        for s, h in old.items():
+            signal.signal(s, h)
+        if got:
+            s, h = got[0], old[got[0]]
+            if callable(h):
+                h(s, None)
+            elif h == signal.SIG_DFL:
+                signal.raise_signal(s)
 
 
 # ---------------------------------------------------------------------------------------------
