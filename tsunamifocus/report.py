@@ -625,7 +625,8 @@ def _optional_section(key: str, sec: Any, n: int) -> list[_Block]:
         out.append(_b("table", columns=cols, rows=rows, caption="", kv=True))
     if sec.get("table") is not None:
         cols, rows = _as_table(sec["table"], f"{key}.table")
-        out.append(_b("table", columns=cols, rows=rows, caption=str(sec.get("table_caption") or "")))
+        out.append(_b("table", columns=[_pretty_key(c) for c in cols], rows=rows,
+                      caption=str(sec.get("table_caption") or ""), small=len(cols) > 6))
     for path, cap in _figure_items(sec.get("figures"), f"{key}.figures"):
         out.append(_b("figure", path=path, caption=cap))
     return out
