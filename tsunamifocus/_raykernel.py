@@ -23,6 +23,9 @@ __all__: list[str] = []
 
 PAD = 3
 SIXTH = 1.0 / 6.0
+# LLVM may fuse multiply-adds and use reciprocals; no NaN/inf assumptions (NaN depth and inf
+# times are tested), so results stay deterministic for a given build.
+_FM = {"contract", "arcp"}
 
 # columns of the per-ray float output
 O_X, O_Y, O_SE, O_SN, O_Q, O_P, O_S, O_T, O_FC, O_DEPTH, O_C = range(11)
@@ -35,7 +38,7 @@ REASON_TIME = 4
 REASON_POLAR = 5
 
 
-@njit(cache=True, inline="always", error_model="numpy")
+@njit(cache=True, inline="always", error_model="numpy", fastmath=_FM)
 def _row(coef, j, i, a0, a1, a2, a3, d0, d1, d2, d3, e0, e1, e2, e3):
     # unsigned indices: no negative-index wraparound test (indices are >= 0 by construction)
     ju = np.uint64(j)
@@ -49,7 +52,7 @@ def _row(coef, j, i, a0, a1, a2, a3, d0, d1, d2, d3, e0, e1, e2, e3):
             e0 * k0 + e1 * k1 + e2 * k2 + e3 * k3)
 
 
-@njit(cache=True, inline="always", error_model="numpy")
+@njit(cache=True, inline="always", error_model="numpy", fastmath=_FM)
 def _bspline_eval(coef, u, v, nx, ny, periodic):
     """Cubic B-spline value and index-space derivatives (c, cu, cv, cuu, cuv, cvv)."""
     if periodic:
@@ -113,7 +116,7 @@ def _bspline_eval(coef, u, v, nx, ny, periodic):
     return c, cu, cv, cuu, cuv, cvv
 
 
-@njit(cache=True, error_model="numpy")
+@njit(cache=True, error_model="numpy", fastmath=_FM)
 def eval_points(coef, u, v, nx, ny, periodic):
     """Vectorised :func:`_bspline_eval` over point arrays; returns an (n, 6) array."""
     n = u.shape[0]
@@ -125,7 +128,7 @@ def eval_points(coef, u, v, nx, ny, periodic):
     return out
 
 
-@njit(cache=True, inline="always", error_model="numpy")
+@njit(cache=True, inline="always", error_model="numpy", fastmath=_FM)
 def _bilinear_depth(depth, u, v, nx, periodic):
     """Bilinear raw depth at index position (u, v); NaN if a corner node has no data."""
     if periodic:
@@ -143,7 +146,7 @@ def _bilinear_depth(depth, u, v, nx, periodic):
     return (1.0 - g) * ((1.0 - f) * h00 + f * h01) + g * ((1.0 - f) * h10 + f * h11)
 
 
-@njit(cache=True, inline="always", error_model="numpy")
+@njit(cache=True, inline="always", error_model="numpy", fastmath=_FM)
 def _sincos_near(Y, Yr, cr, sr):
     """(cos Y, sin Y) from cos/sin of a nearby Yr by Taylor series of the difference (exact to
     round-off for |Y - Yr| < 0.02 rad; falls back to the library functions beyond)."""
@@ -156,7 +159,7 @@ def _sincos_near(Y, Yr, cr, sr):
     return cr * cd - sr * sd, sr * cd + cr * sd
 
 
-@njit(cache=True, inline="always", error_model="numpy")
+@njit(cache=True, inline="always", error_model="numpy", fastmath=_FM)
 def _rhs(X, Y, se, sn, q, p, coef, X0, Y0, DX, DY, nx, ny, periodic, sph, R, cmin, Yr, cr, sr):
     """Right-hand side of the kinematic + dynamic ray equations (time as parameter).
 
@@ -199,7 +202,7 @@ def _rhs(X, Y, se, sn, q, p, coef, X0, Y0, DX, DY, nx, ny, periodic, sph, R, cmi
     return dX, dY, sn * om, -se * om, dq, dp, c
 
 
-@njit(cache=True, inline="always", error_model="numpy")
+@njit(cache=True, inline="always", error_model="numpy", fastmath=_FM)
 def _rk4(X, Y, se, sn, q, p, h, coef, X0, Y0, DX, DY, nx, ny, periodic, sph, R, cmin):
     """One classical RK4 step of length h [s]; returns the new state and the arc length increment."""
     if sph:
@@ -228,8 +231,8 @@ def _rk4(X, Y, se, sn, q, p, h, coef, X0, Y0, DX, DY, nx, ny, periodic, sph, R, 
     return Xn, Yn, sen / nrm, snn / nrm, qn, pn, ds
 
 
-@njit(cache=True, inline="always", error_model="numpy")
-def _deposit(E, T, i, j, tin, tout, u0, v0, du, dv, mx2, my2, iden, t0, h, wds, nx, ny, periodic, tcap):
+@njit(cache=True, inline="always", error_model="numpy", fastmath=_FM)
+def _deposit(A, i, j, tin, tout, u0, v0, du, dv, mx2, my2, iden, t0, h, wds, nx, ny, periodic, tcap):
     ui = i
     if periodic:
         if i < 0:
@@ -238,7 +241,7 @@ def _deposit(E, T, i, j, tin, tout, u0, v0, du, dv, mx2, my2, iden, t0, h, wds, 
             i -= nx
     if i < 0 or i >= nx or j < 0 or j >= ny:
         return
-    E[j, i] += wds * (tout - tin)
+    A[j, i, 0] += wds * (tout - tin)
     # time at the foot of the node's perpendicular on the (locally straight) ray: the wavefront
     # time at the node to first order, even when the foot lies outside this cell or step
     tau = ((ui - u0) * du * mx2 + (j - v0) * dv * my2) * iden
@@ -251,12 +254,12 @@ def _deposit(E, T, i, j, tin, tout, u0, v0, du, dv, mx2, my2, iden, t0, h, wds, 
         tt = 0.0
     elif tt > tcap:
         tt = tcap
-    if tt < T[j, i]:
-        T[j, i] = tt
+    if tt < A[j, i, 1]:
+        A[j, i, 1] = tt
 
 
-@njit(cache=True, inline="always", error_model="numpy")
-def _accumulate(E, T, u0, v0, u1, v1, t0, h, wds, mx, my, nx, ny, periodic, tcap):
+@njit(cache=True, inline="always", error_model="numpy", fastmath=_FM)
+def _accumulate(A, u0, v0, u1, v1, t0, h, wds, mx, my, nx, ny, periodic, tcap):
     """Walk the straight index-space chord (u0,v0)->(u1,v1) cell by cell (Amanatides-Woo).
 
     Each cell gets ``wds`` times the fraction of the chord inside it (energy) and the time at the
@@ -308,7 +311,7 @@ def _accumulate(E, T, u0, v0, u1, v1, t0, h, wds, mx, my, nx, ny, periodic, tcap
     tin = 0.0
     for _k in range(ncell):
         tout = min(tmi, tmj, 1.0)
-        _deposit(E, T, i, j, tin, tout, u0, v0, du, dv, mx2, my2, iden, t0, h, wds, nx, ny, periodic, tcap)
+        _deposit(A, i, j, tin, tout, u0, v0, du, dv, mx2, my2, iden, t0, h, wds, nx, ny, periodic, tcap)
         if tout >= 1.0:
             break
         if tmi < tmj:
@@ -320,9 +323,9 @@ def _accumulate(E, T, u0, v0, u1, v1, t0, h, wds, mx, my, nx, ny, periodic, tcap
         tin = tout
 
 
-@njit(cache=True, error_model="numpy")
+@njit(cache=True, error_model="numpy", fastmath=_FM)
 def _trace_one(k, X, Y, se, sn, q, p, w, coef, depth, X0, Y0, DX, DY, nx, ny, periodic, sph, R,
-               cmin, dt, tmax, stop_depth, polar, E, T, accumulate, out, outi, path_slot, paths,
+               cmin, dt, tmax, stop_depth, polar, A, accumulate, out, outi, path_slot, paths,
                path_n, path_every):
     """Trace ray k to its end; write its end state into out[k], outi[k]."""
     s = 0.0
@@ -414,7 +417,7 @@ def _trace_one(k, X, Y, se, sn, q, p, w, coef, depth, X0, Y0, DX, DY, nx, ny, pe
                 ym = 0.5 * (Y + Yn)
                 mx = R * DX * math.cos(ym)
                 my = R * DY
-            _accumulate(E, T, u, v, un, vn, t, h, w * ds, mx, my, nx, ny, periodic, tmax)
+            _accumulate(A, u, v, un, vn, t, h, w * ds, mx, my, nx, ny, periodic, tmax)
         X = Xn
         Y = Yn
         se = sen
@@ -459,33 +462,33 @@ def _trace_one(k, X, Y, se, sn, q, p, w, coef, depth, X0, Y0, DX, DY, nx, ny, pe
     outi[k, 2] = nstep
 
 
-@njit(cache=True, parallel=True, error_model="numpy")
+@njit(cache=True, parallel=True, error_model="numpy", fastmath=_FM)
 def trace_all(X0s, Y0s, se0, sn0, q0, p0, wts, coef, depth, X0, Y0, DX, DY, nx, ny, periodic, sph,
-              R, cmin, dt, tmax, stop_depth, polar, Ech, Tch, accumulate, path_slot, paths, path_n,
+              R, cmin, dt, tmax, stop_depth, polar, Ach, accumulate, path_slot, paths, path_n,
               path_every):
     """Trace all rays; chunk m (one per thread) handles rays m, m + nchunk, ... in order.
 
-    ``Ech``/``Tch`` have shape (nchunk, ny, nx): chunk m accumulates into its own grids, so the
-    result does not depend on thread scheduling (deterministic).
+    ``Ach`` has shape (nchunk, ny, nx, 2) (energy, first-arrival time interleaved, one cache line
+    per cell): chunk m accumulates into its own grids, so the result does not depend on thread
+    scheduling (deterministic).
     """
     n = X0s.shape[0]
-    nchunk = Ech.shape[0]
+    nchunk = Ach.shape[0]
     out = np.empty((n, N_OUT))
     outi = np.zeros((n, 3), dtype=np.int64)
     for m in prange(nchunk):
-        E = Ech[m]
-        T = Tch[m]
+        A = Ach[m]
         for k in range(m, n, nchunk):
             _trace_one(k, X0s[k], Y0s[k], se0[k], sn0[k], q0[k], p0[k], wts[k], coef, depth, X0, Y0,
-                       DX, DY, nx, ny, periodic, sph, R, cmin, dt, tmax, stop_depth, polar, E, T,
+                       DX, DY, nx, ny, periodic, sph, R, cmin, dt, tmax, stop_depth, polar, A,
                        accumulate, out, outi, path_slot, paths, path_n, path_every)
     return out, outi
 
 
-@njit(cache=True, parallel=True, error_model="numpy")
-def reduce_chunks(Ech, Tch, area):
+@njit(cache=True, parallel=True, error_model="numpy", fastmath=_FM)
+def reduce_chunks(Ach, area):
     """Sum energy chunks in fixed order (divided by cell area per row) and min-reduce times."""
-    nchunk, ny, nx = Ech.shape
+    nchunk, ny, nx = Ach.shape[0], Ach.shape[1], Ach.shape[2]
     E = np.empty((ny, nx))
     T = np.empty((ny, nx))
     for j in prange(ny):
@@ -494,9 +497,9 @@ def reduce_chunks(Ech, Tch, area):
             e = 0.0
             tt = np.inf
             for m in range(nchunk):
-                e += Ech[m, j, i]
-                if Tch[m, j, i] < tt:
-                    tt = Tch[m, j, i]
+                e += Ach[m, j, i, 0]
+                if Ach[m, j, i, 1] < tt:
+                    tt = Ach[m, j, i, 1]
             E[j, i] = e / a
             T[j, i] = tt if tt < np.inf else np.nan
     return E, T

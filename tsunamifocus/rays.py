@@ -273,12 +273,10 @@ def trace_rays(
 
     ny, nx = info.ny, info.nx
     nchunk = threads
-    if accumulate:
-        Ech = np.zeros((nchunk, ny, nx))
-        Tch = np.full((nchunk, ny, nx), np.inf)
-    else:
-        Ech = np.zeros((nchunk, 1, 1))
-        Tch = np.full((nchunk, 1, 1), np.inf)
+    shape = (nchunk, ny, nx, 2) if accumulate else (nchunk, 1, 1, 2)
+    Ach = np.empty(shape)
+    Ach[..., 0] = 0.0
+    Ach[..., 1] = np.inf
     npaths = min(keep_paths, n)
     path_slot = np.full(n, -1, dtype=np.int64)
     if npaths:
@@ -299,13 +297,13 @@ def trace_rays(
         out, outi = _k.trace_all(
             Xs, Ys, se0, sn0, q0a, p0a, w, fld.coef, fld.depth_padded, X0, Y0, DX, DY, nx, ny,
             bool(info.periodic_x), bool(info.geographic), float(fld.radius_m), float(fld.c_min),
-            float(dt), float(max_time_s), float(stop_depth), polar, Ech, Tch, bool(accumulate),
+            float(dt), float(max_time_s), float(stop_depth), polar, Ach, bool(accumulate),
             path_slot, paths_buf, path_n, path_every,
         )
         if accumulate:
             area = np.ascontiguousarray(np.broadcast_to(info.cell_area_m2()[:, 0], (ny,)), dtype=float)
-            E, T = _k.reduce_chunks(Ech, Tch, area)
-        del Ech, Tch
+            E, T = _k.reduce_chunks(Ach, area)
+        del Ach
     finally:
         numba.set_num_threads(old)
 
