@@ -369,3 +369,14 @@ def test_figures_in_reading_order(figs):
     _, blocks = report.document_blocks(ctx)
     paths = [b["path"] for b in blocks if b["kind"] == "figure"]
     assert paths == [pathlib.Path(f["uplift"]), pathlib.Path(f["lensing_map"]), pathlib.Path(f["ranking"])]
+
+
+def test_empty_names_column_is_left_out(figs):
+    ctx = base_context(figs)
+    seg = ctx["ranking"].copy()
+    seg["name"] = [None, np.nan] + [""] * (len(seg) - 2)
+    cols, _, _ = report._ranking_table(seg, 5, [])
+    assert "Name" not in cols
+    seg.loc[seg.index[0], "name"] = "Harbour mouth"
+    cols, _, _ = report._ranking_table(seg, len(seg), [])
+    assert "Name" in cols

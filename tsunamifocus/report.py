@@ -556,7 +556,7 @@ def _ranking_table(seg: pd.DataFrame, top_k: int, extra: Sequence[tuple[str, str
     cols = ["Rank"]
     keys = []
     names_useful = "name" in df.columns and any(
-        str(a or "").strip() and str(a) != str(b) for a, b in zip(df["name"], df["segment_id"], strict=True)
+        isinstance(a, str) and a.strip() and a != str(b) for a, b in zip(df["name"], df["segment_id"], strict=True)
     )
     for key, head in list(_RANK_COLUMNS) + list(extra):
         if key == "name" and not names_useful:
