@@ -456,3 +456,12 @@ def test_ranking_with_topk_probability(case, tmp_path):
     check_png(figures.plot_ranking(seg, 8, out_path=tmp_path / "p.png", prob_col="p_topk"), min_w=800, min_h=300)
     with pytest.raises(InputError, match="prob_col"):
         figures.plot_ranking(seg, 8, out_path=tmp_path / "q.png", prob_col="nope")
+
+
+def test_ranking_labels_without_names():
+    # NaN/None names must not print as "nan"/"None"; unranked (unreliable) segments show "-"
+    assert figures._bar_label("S0001", np.nan, 1) == "1. S0001"
+    assert figures._bar_label("S0002", None, 2.0) == "2. S0002"
+    assert figures._bar_label("S0003", "S0003", 3) == "3. S0003"
+    assert figures._bar_label("S0004", "Harbour", pd.NA) == "- S0004  Harbour"
+    assert len(figures._bar_label("S0005", "x" * 60, 5)) == 34

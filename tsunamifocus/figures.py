@@ -1111,14 +1111,7 @@ def plot_ranking(
     for yv, v, e_, pr in zip(ypos, vals, ends, probs, strict=True):
         txt = f"{v:.3g}" + (f"   P(top {top_k}) = {pr:.2f}" if np.isfinite(pr) else "")
         ax.text(e_ + 0.015 * span, yv, txt, va="center", ha="left", fontsize=8, color="0.15", zorder=4)
-    labels = []
-    for _, row in df.iterrows():
-        sid = str(row["segment_id"])
-        name = str(row.get("name", "") or "")
-        rk = row["_rank"]
-        rk_s = f"{int(rk)}." if np.isfinite(rk) else "-"
-        lab = f"{rk_s} {sid}" + (f"  {name}" if name and name != sid else "")
-        labels.append(lab if len(lab) <= 34 else lab[:33] + "…")
+    labels = [_bar_label(row["segment_id"], row.get("name", ""), row["_rank"]) for _, row in df.iterrows()]
     ax.set_yticks(ypos)
     ax.set_yticklabels(labels)
     ax.set_ylim(-0.7, n - 0.3)
@@ -1137,6 +1130,19 @@ def plot_ranking(
     leg = ax.legend(handles=handles, loc="lower right", framealpha=0.9, fontsize=8)
     leg.set_zorder(10)
     return _finish(fig, out_path, ax=ax)
+
+
+def _bar_label(segment_id: Any, name: Any, rank: Any) -> str:
+    """``"1. S0001  Harbour"``; no name part for None/NaN/empty names or a name equal to the id."""
+    sid = str(segment_id)
+    nm = name.strip() if isinstance(name, str) else ""
+    try:
+        rk = float(rank)
+    except (TypeError, ValueError):
+        rk = math.nan
+    rk_s = f"{int(rk)}." if np.isfinite(rk) else "-"
+    lab = f"{rk_s} {sid}" + (f"  {nm}" if nm and nm != sid else "")
+    return lab if len(lab) <= 34 else lab[:33] + "…"
 
 
 # --------------------------------------------------------------------------------------
