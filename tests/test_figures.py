@@ -116,9 +116,7 @@ def synthetic_case(geographic: bool, n_seg: int = 18, seed: int = 3) -> dict:
     seg = pd.DataFrame(rows)
     seg["rank_lensing"] = seg["lensing_factor"].rank(ascending=False, method="first").astype(int)
     seg["rank_amplitude"] = seg["amp_1m_m"].rank(ascending=False, method="first").astype(int)
-    coast = LineString(
-        np.column_stack([x, _coast_y(x, y_coast, amp, wl) - 0.01 * (y[-1] - y[0])])
-    )
+    coast = LineString(np.column_stack([x, _coast_y(x, y_coast, amp, wl) - 0.01 * (y[-1] - y[0])]))
     dxs, dys = (0.5, 0.25) if geographic else (60e3, 25e3)
     fault = Polygon(
         [
@@ -453,7 +451,9 @@ def test_rank_labels_do_not_overlap():
 def test_ranking_with_topk_probability(case, tmp_path):
     seg = case["segments"].copy()
     seg["p_topk"] = np.linspace(1.0, 0.1, len(seg))
-    check_png(figures.plot_ranking(seg, 8, out_path=tmp_path / "p.png", prob_col="p_topk"), min_w=800, min_h=300)
+    check_png(
+        figures.plot_ranking(seg, 8, out_path=tmp_path / "p.png", prob_col="p_topk"), min_w=800, min_h=300
+    )
     with pytest.raises(InputError, match="prob_col"):
         figures.plot_ranking(seg, 8, out_path=tmp_path / "q.png", prob_col="nope")
 

@@ -132,7 +132,9 @@ def base_context(figs_and_seg) -> dict:
         "date": "2026-12-01T12:00:00Z",
         "run_id": "test-1",
         "data_sources": ["Invented bathymetry (random field, seed 3)"],
-        "validation": [{"test": "Green's law on a slope", "error": "0.3 %", "tolerance": "2 %", "status": "pass"}],
+        "validation": [
+            {"test": "Green's law on a slope", "error": "0.3 %", "tolerance": "2 %", "status": "pass"}
+        ],
         "health": {
             "termination_fractions": {"coast": 0.8, "left_grid": 0.2},
             "energy_bookkeeping_error": {"value": 1e-8, "limit": 1e-3, "ok": True},
@@ -243,7 +245,11 @@ def _optional(key: str) -> dict:
 def built_without_optional(figs, tmp_path_factory):
     d = tmp_path_factory.mktemp("without")
     out = report.build_appendix(base_context(figs), d / "without.html", d / "without.pdf")
-    return out, (d / "without.html").read_text(encoding="utf-8"), (pdf_text(d / "without.pdf") if HAVE_PDFTOTEXT else "")
+    return (
+        out,
+        (d / "without.html").read_text(encoding="utf-8"),
+        (pdf_text(d / "without.pdf") if HAVE_PDFTOTEXT else ""),
+    )
 
 
 @pytest.mark.parametrize("key", ["ensemble", "comparison", "wave_check"])

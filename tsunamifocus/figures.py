@@ -300,8 +300,16 @@ def _add_north_arrow(ax, info: GridInfo) -> None:
     tail = (cx - dx / 2, cy - dy / 2)
     tip = (cx + dx / 2, cy + dy / 2)
     ax.add_patch(
-        Rectangle((cx - 0.035, cy - 0.5 * length / ratio - 0.012 / ratio), 0.07, (length + 0.065) / ratio,
-                  transform=ax.transAxes, facecolor="white", alpha=0.6, edgecolor="none", zorder=29)
+        Rectangle(
+            (cx - 0.035, cy - 0.5 * length / ratio - 0.012 / ratio),
+            0.07,
+            (length + 0.065) / ratio,
+            transform=ax.transAxes,
+            facecolor="white",
+            alpha=0.6,
+            edgecolor="none",
+            zorder=29,
+        )
     )
     ax.annotate(
         "",
@@ -309,8 +317,11 @@ def _add_north_arrow(ax, info: GridInfo) -> None:
         xytext=tail,
         xycoords="axes fraction",
         textcoords="axes fraction",
-        arrowprops=dict(arrowstyle="simple,head_width=0.9,head_length=0.9,tail_width=0.35",
-                        facecolor="black", edgecolor="black"),
+        arrowprops=dict(
+            arrowstyle="simple,head_width=0.9,head_length=0.9,tail_width=0.35",
+            facecolor="black",
+            edgecolor="black",
+        ),
         zorder=30,
     )
     ax.text(
@@ -351,7 +362,12 @@ def _finish(
     if handles:
         ncol = min(len(handles), 3)
         leg = fig.legend(
-            handles=handles, loc="outside lower center", ncol=ncol, frameon=False, fontsize=8.5, borderaxespad=1.8
+            handles=handles,
+            loc="outside lower center",
+            ncol=ncol,
+            frameon=False,
+            fontsize=8.5,
+            borderaxespad=1.8,
         )
         leg.set_zorder(40)
     if ax is not None and geo is not None:
@@ -638,9 +654,7 @@ def plot_ray_field(
     d = _values(depth)
     sea = np.where(np.isfinite(d) & (d > 0), d, np.nan)
     dmax = float(np.nanmax(sea)) if np.isfinite(sea).any() else 1.0
-    bathy_cmap = mcolors.LinearSegmentedColormap.from_list(
-        "bathy_greys", ["#f2f2f2", "#8a8a8a"]
-    )
+    bathy_cmap = mcolors.LinearSegmentedColormap.from_list("bathy_greys", ["#f2f2f2", "#8a8a8a"])
     im = ax.imshow(
         sea,
         origin="lower",
@@ -694,8 +708,12 @@ def plot_ray_field(
         alpha = float(np.clip(6.0 / math.sqrt(len(lines)), 0.12, 0.5)) * (0.8 if energy is not None else 1.0)
         lw = 0.45 if len(lines) <= 300 else 0.35
         ax.add_collection(LineCollection(segs, colors=color, linewidths=lw, alpha=alpha, zorder=4))
-        handles.append(Line2D([], [], color=color, lw=1.0, alpha=0.8, label=f"Ray paths ({len(lines)} shown)"))
-    if coast_lines is not None and _draw_lines(ax, coast_lines, info.geographic, colors="black", linewidths=0.9, zorder=7):
+        handles.append(
+            Line2D([], [], color=color, lw=1.0, alpha=0.8, label=f"Ray paths ({len(lines)} shown)")
+        )
+    if coast_lines is not None and _draw_lines(
+        ax, coast_lines, info.geographic, colors="black", linewidths=0.9, zorder=7
+    ):
         handles.append(Line2D([], [], color="black", lw=1.0, label=coast_label))
     if source_outline is not None and _draw_lines(
         ax,
@@ -887,7 +905,9 @@ def plot_lensing_map(
                     linewidths=0.7,
                     zorder=5,
                 )
-                labels = ax.clabel(cs, fmt=lambda v: f"{v:g} min", fontsize=7.5, inline=True, inline_spacing=3)
+                labels = ax.clabel(
+                    cs, fmt=lambda v: f"{v:g} min", fontsize=7.5, inline=True, inline_spacing=3
+                )
                 for lab in labels:
                     lab.set_path_effects(_HALO)
                 handles.append(Line2D([], [], color="0.1", lw=0.8, label=f"Travel time (every {step:g} min)"))
@@ -979,9 +999,12 @@ def _label_offset(
     min_sep: float = 15.0,
     box: tuple[float, float] | None = None,
 ) -> tuple[float, float]:
-    """Offset [points] of a rank label: seaward along the normal, pushed out or turned to avoid
-    labels already placed (greedy, rank order) and to stay inside ``box`` (width, height in
-    points, origin at the lower left); the chosen centre is appended to ``placed``."""
+    """Offset [points] of a rank label, clear of the labels already placed.
+
+    Seaward along the normal first, then pushed out or turned to avoid labels already placed
+    (greedy, rank order) and to stay inside ``box`` (width, height in points, origin at the
+    lower left); the chosen centre is appended to ``placed``.
+    """
     best = None
     for dist in (16.0, 30.0, 44.0, 58.0, 72.0):
         for turn in (0.0, -35.0, 35.0, -70.0, 70.0, -110.0, 110.0):
@@ -1022,7 +1045,13 @@ def _segment_mid(row: pd.Series) -> tuple[float | None, float | None]:
 RANK_FIELDS: dict[str, tuple[str, str, str, str, float | None]] = {
     "lensing_factor": ("lensing_lo", "lensing_hi", "rank_lensing", "Lensing factor (-)", 1.0),
     "amp_1m_m": ("amp_lo", "amp_hi", "rank_amplitude", "Indicative amplitude at 1 m depth (m)", None),
-    "amp_stop_m": ("amp_lo", "amp_hi", "rank_amplitude", "Indicative amplitude at the stop isobath (m)", None),
+    "amp_stop_m": (
+        "amp_lo",
+        "amp_hi",
+        "rank_amplitude",
+        "Indicative amplitude at the stop isobath (m)",
+        None,
+    ),
 }
 
 
@@ -1077,10 +1106,14 @@ def plot_ranking(
     if df.empty:
         raise InputError(f"plot_ranking: column '{by}' has no finite values")
     n = len(df)
-    fig, ax = _new_chart((7.6, 1.7 + 0.36 * n), title or f"Top {n} coastline segments by {label_d.split(' (')[0].lower()}")
+    fig, ax = _new_chart(
+        (7.6, 1.7 + 0.36 * n), title or f"Top {n} coastline segments by {label_d.split(' (')[0].lower()}"
+    )
     vals = pd.to_numeric(df[by], errors="coerce").to_numpy(float)
     if "reliable" in df.columns:  # missing/unknown reliability counts as unreliable
-        rel = np.array([bool(v) if v is not None and v is not pd.NA and v == v else False for v in df["reliable"]])
+        rel = np.array(
+            [bool(v) if v is not None and v is not pd.NA and v == v else False for v in df["reliable"]]
+        )
     else:
         rel = np.ones(n, bool)
     ypos = np.arange(n)[::-1]
@@ -1098,7 +1131,14 @@ def plot_ranking(
         if ok.any():
             err = np.vstack([np.clip(vals - lo, 0, None), np.clip(hi - vals, 0, None)])
             ax.errorbar(
-                vals[ok], ypos[ok], xerr=err[:, ok], fmt="none", ecolor="black", elinewidth=1.1, capsize=3.5, zorder=3
+                vals[ok],
+                ypos[ok],
+                xerr=err[:, ok],
+                fmt="none",
+                ecolor="black",
+                elinewidth=1.1,
+                capsize=3.5,
+                zorder=3,
             )
             xmax = max(xmax, np.nanmax(hi[ok]))
     ends = vals.copy()
@@ -1121,12 +1161,18 @@ def plot_ranking(
     ax.set_axisbelow(True)
     handles = [Patch(facecolor=_OKABE_BLUE, edgecolor="0.25", label="Reliable")]
     if (~rel).any():
-        handles.append(Patch(facecolor="#c8c8c8", edgecolor="0.25", hatch="///", label="Unreliable (see table)"))
+        handles.append(
+            Patch(facecolor="#c8c8c8", edgecolor="0.25", hatch="///", label="Unreliable (see table)")
+        )
     if has_int:
-        handles.append(Line2D([], [], color="black", lw=1.1, marker="|", markersize=8, label="5-95 % interval"))
+        handles.append(
+            Line2D([], [], color="black", lw=1.1, marker="|", markersize=8, label="5-95 % interval")
+        )
     if ref is not None:
         ax.axvline(ref, color=_OKABE_VERMILLION, linestyle="--", linewidth=1.2, zorder=3)
-        handles.append(Line2D([], [], color=_OKABE_VERMILLION, linestyle="--", lw=1.2, label=f"{ref:g} = no focusing"))
+        handles.append(
+            Line2D([], [], color=_OKABE_VERMILLION, linestyle="--", lw=1.2, label=f"{ref:g} = no focusing")
+        )
     leg = ax.legend(handles=handles, loc="lower right", framealpha=0.9, fontsize=8)
     leg.set_zorder(10)
     return _finish(fig, out_path, ax=ax)
@@ -1190,8 +1236,12 @@ def plot_uplift(
         eta = _crop_to_signal(eta, np.abs(np.nan_to_num(e)) >= 0.01 * np.nanmax(np.abs(e)))
         if depth is not None:
             yd0, xd0 = eta.dims
-            depth = depth.sel({xd0: slice(float(eta[xd0][0]), float(eta[xd0][-1])),
-                               yd0: slice(float(eta[yd0][0]), float(eta[yd0][-1]))})
+            depth = depth.sel(
+                {
+                    xd0: slice(float(eta[xd0][0]), float(eta[xd0][-1])),
+                    yd0: slice(float(eta[yd0][0]), float(eta[yd0][-1])),
+                }
+            )
             if depth.shape[0] < 2 or depth.shape[1] < 2:
                 depth = None
         e = _values(eta)
@@ -1200,7 +1250,15 @@ def plot_uplift(
     m = float(np.nanmax(np.abs(e)))
     m = m if m > 0 else 1.0
     norm = mcolors.TwoSlopeNorm(vcenter=0.0, vmin=-m, vmax=m)
-    im = ax.imshow(e, origin="lower", extent=_extent(info), cmap=_cmap("RdBu_r"), norm=norm, interpolation="nearest", zorder=1)
+    im = ax.imshow(
+        e,
+        origin="lower",
+        extent=_extent(info),
+        cmap=_cmap("RdBu_r"),
+        norm=norm,
+        interpolation="nearest",
+        zorder=1,
+    )
     handles: list = []
     if depth is not None:
         dinfo = _check_grid(depth, "plot_uplift depth")
@@ -1219,7 +1277,9 @@ def plot_uplift(
     if levels.size:
         ax.contour(eta[xd].values, eta[yd].values, e, levels=levels, colors="0.2", linewidths=0.5, zorder=4)
         handles.append(Line2D([], [], color="0.2", lw=0.6, label=f"Contours every {lev:g} m"))
-    if coast_lines is not None and _draw_lines(ax, coast_lines, info.geographic, colors="black", linewidths=0.9, zorder=6):
+    if coast_lines is not None and _draw_lines(
+        ax, coast_lines, info.geographic, colors="black", linewidths=0.9, zorder=6
+    ):
         handles.append(Line2D([], [], color="black", lw=1.0, label="Coastline"))
     if source_outline is not None and _draw_lines(
         ax, source_outline, info.geographic, colors=_OKABE_GREEN, linewidths=1.8, zorder=7, path_effects=_HALO
@@ -1230,8 +1290,14 @@ def plot_uplift(
     xs, ys = eta[xd].values, eta[yd].values
     ax.plot(xs[jmax[1]], ys[jmax[0]], marker="^", color="black", markersize=7, zorder=9, linestyle="none")
     ax.plot(xs[jmin[1]], ys[jmin[0]], marker="v", color="black", markersize=7, zorder=9, linestyle="none")
-    handles.append(Line2D([], [], marker="^", color="black", linestyle="none", label=f"Max uplift {np.nanmax(e):+.2f} m"))
-    handles.append(Line2D([], [], marker="v", color="black", linestyle="none", label=f"Max subsidence {np.nanmin(e):+.2f} m"))
+    handles.append(
+        Line2D([], [], marker="^", color="black", linestyle="none", label=f"Max uplift {np.nanmax(e):+.2f} m")
+    )
+    handles.append(
+        Line2D(
+            [], [], marker="v", color="black", linestyle="none", label=f"Max subsidence {np.nanmin(e):+.2f} m"
+        )
+    )
     cb = _right_colorbar(fig, ax, im)
     cb.set_label("Sea-surface displacement (m), positive up")
     return _finish(fig, out_path, ax=ax, geo=geo, handles=handles, right_cbars=1)
@@ -1305,7 +1371,9 @@ def plot_agreement(
     xa = np.asarray(x, dtype=float)
     ya = np.asarray(y, dtype=float)
     if xa.shape != ya.shape or xa.ndim != 1:
-        raise InputError(f"plot_agreement: x and y must be 1-D of equal length, got {xa.shape} and {ya.shape}")
+        raise InputError(
+            f"plot_agreement: x and y must be 1-D of equal length, got {xa.shape} and {ya.shape}"
+        )
     ok = np.isfinite(xa) & np.isfinite(ya)
     if log:
         ok &= (xa > 0) & (ya > 0)
@@ -1315,10 +1383,21 @@ def plot_agreement(
     fig, ax = _new_chart((6.4, 6.0), title)
     ax.scatter(xa[ok & ~hl], ya[ok & ~hl], s=18, color="0.55", edgecolor="none", label="Segments", zorder=2)
     if (ok & hl).any():
-        ax.scatter(xa[ok & hl], ya[ok & hl], s=36, color=_OKABE_VERMILLION, edgecolor="black", lw=0.5, label="Highlighted", zorder=3)
+        ax.scatter(
+            xa[ok & hl],
+            ya[ok & hl],
+            s=36,
+            color=_OKABE_VERMILLION,
+            edgecolor="black",
+            lw=0.5,
+            label="Highlighted",
+            zorder=3,
+        )
         if labels is not None:
             for i in np.flatnonzero(ok & hl):
-                ax.annotate(str(labels[i]), (xa[i], ya[i]), xytext=(4, 3), textcoords="offset points", fontsize=7)
+                ax.annotate(
+                    str(labels[i]), (xa[i], ya[i]), xytext=(4, 3), textcoords="offset points", fontsize=7
+                )
     lo = min(xa[ok].min(), ya[ok].min())
     hi = max(xa[ok].max(), ya[ok].max())
     if log:
@@ -1335,7 +1414,15 @@ def plot_agreement(
     ax.set_ylabel(ylabel)
     ax.grid(True, color="0.9", linewidth=0.6)
     if annotate:
-        ax.text(0.03, 0.97, annotate, transform=ax.transAxes, va="top", ha="left", fontsize=8.5,
-                bbox=dict(facecolor="white", edgecolor="0.6", boxstyle="round,pad=0.4"))
+        ax.text(
+            0.03,
+            0.97,
+            annotate,
+            transform=ax.transAxes,
+            va="top",
+            ha="left",
+            fontsize=8.5,
+            bbox=dict(facecolor="white", edgecolor="0.6", boxstyle="round,pad=0.4"),
+        )
     ax.legend(loc="lower right", fontsize=8)
     return _finish(fig, out_path, ax=ax)

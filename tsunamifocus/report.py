@@ -378,11 +378,35 @@ def _fmt(v: Any) -> str:
 
 
 _UNIT_SUFFIX = {
-    "m": "m", "km": "km", "s": "s", "min": "min", "h": "h", "deg": "°", "j": "J", "nm": "N m",
-    "pa": "Pa", "gpa": "GPa", "pct": "%", "mb": "MB", "gb": "GB", "mps": "m s⁻¹",
+    "m": "m",
+    "km": "km",
+    "s": "s",
+    "min": "min",
+    "h": "h",
+    "deg": "°",
+    "j": "J",
+    "nm": "N m",
+    "pa": "Pa",
+    "gpa": "GPa",
+    "pct": "%",
+    "mb": "MB",
+    "gb": "GB",
+    "mps": "m s⁻¹",
 }
-_WORDS = {"crs": "CRS", "sha256": "SHA-256", "mw": "Mw", "id": "ID", "nan": "NaN", "utc": "UTC",
-          "m0": "M0", "lon": "lon", "lat": "lat", "poi": "POI", "cfl": "CFL", "rms": "rms"}
+_WORDS = {
+    "crs": "CRS",
+    "sha256": "SHA-256",
+    "mw": "Mw",
+    "id": "ID",
+    "nan": "NaN",
+    "utc": "UTC",
+    "m0": "M0",
+    "lon": "lon",
+    "lat": "lat",
+    "poi": "POI",
+    "cfl": "CFL",
+    "rms": "rms",
+}
 
 
 def _fmt3(v: Any) -> str:
@@ -497,7 +521,9 @@ def _figure_items(figs: Any, what: str) -> list[tuple[pathlib.Path, str]]:
         for key in keys:
             val = figs[key]
             if isinstance(val, Mapping):
-                items.append((val.get("path"), val.get("caption") or FIGURE_CAPTIONS.get(key, _pretty_key(key))))
+                items.append(
+                    (val.get("path"), val.get("caption") or FIGURE_CAPTIONS.get(key, _pretty_key(key)))
+                )
             else:
                 items.append((val, FIGURE_CAPTIONS.get(key, _pretty_key(key))))
     elif isinstance(figs, Sequence) and not isinstance(figs, (str, bytes)):
@@ -509,7 +535,9 @@ def _figure_items(figs: Any, what: str) -> list[tuple[pathlib.Path, str]]:
             else:
                 items.append((val, ""))
     else:
-        raise InputError(f"context['{what}']: expected a dict of figure paths or a list, got {type(figs).__name__}")
+        raise InputError(
+            f"context['{what}']: expected a dict of figure paths or a list, got {type(figs).__name__}"
+        )
     out = []
     for path, cap in items:
         if path is None:
@@ -538,9 +566,13 @@ _RANK_COLUMNS: list[tuple[str, str]] = [
 ]
 
 
-def _ranking_table(seg: pd.DataFrame, top_k: int, extra: Sequence[tuple[str, str]]) -> tuple[list[str], list[list[str]], int]:
+def _ranking_table(
+    seg: pd.DataFrame, top_k: int, extra: Sequence[tuple[str, str]]
+) -> tuple[list[str], list[list[str]], int]:
     if not isinstance(seg, pd.DataFrame):
-        raise InputError(f"context['ranking']: expected a pandas DataFrame of segments, got {type(seg).__name__}")
+        raise InputError(
+            f"context['ranking']: expected a pandas DataFrame of segments, got {type(seg).__name__}"
+        )
     for c in ("segment_id", "lensing_factor"):
         if c not in seg.columns:
             raise InputError(f"context['ranking']: segments table lacks column '{c}'")
@@ -556,7 +588,8 @@ def _ranking_table(seg: pd.DataFrame, top_k: int, extra: Sequence[tuple[str, str
     cols = ["Rank"]
     keys = []
     names_useful = "name" in df.columns and any(
-        isinstance(a, str) and a.strip() and a != str(b) for a, b in zip(df["name"], df["segment_id"], strict=True)
+        isinstance(a, str) and a.strip() and a != str(b)
+        for a, b in zip(df["name"], df["segment_id"], strict=True)
     )
     for key, head in list(_RANK_COLUMNS) + list(extra):
         if key == "name" and not names_useful:
@@ -612,7 +645,9 @@ def _health_table(health: Any) -> tuple[list[str], list[list[str]]]:
 
 def _optional_section(key: str, sec: Any, n: int) -> list[_Block]:
     if not isinstance(sec, Mapping):
-        raise InputError(f"context['{key}']: expected a dict with keys {SECTION_KEYS}, got {type(sec).__name__}")
+        raise InputError(
+            f"context['{key}']: expected a dict with keys {SECTION_KEYS}, got {type(sec).__name__}"
+        )
     unknown = [k for k in sec if k not in SECTION_KEYS]
     if unknown:
         raise InputError(f"context['{key}']: unknown key(s) {unknown}; expected some of {SECTION_KEYS}")
@@ -625,8 +660,15 @@ def _optional_section(key: str, sec: Any, n: int) -> list[_Block]:
         out.append(_b("table", columns=cols, rows=rows, caption="", kv=True))
     if sec.get("table") is not None:
         cols, rows = _as_table(sec["table"], f"{key}.table")
-        out.append(_b("table", columns=[_pretty_key(c) for c in cols], rows=rows,
-                      caption=str(sec.get("table_caption") or ""), small=len(cols) > 6))
+        out.append(
+            _b(
+                "table",
+                columns=[_pretty_key(c) for c in cols],
+                rows=rows,
+                caption=str(sec.get("table_caption") or ""),
+                small=len(cols) > 6,
+            )
+        )
     for path, cap in _figure_items(sec.get("figures"), f"{key}.figures"):
         out.append(_b("figure", path=path, caption=cap))
     return out
@@ -685,9 +727,13 @@ def document_blocks(context: Mapping[str, Any]) -> tuple[dict[str, str], list[_B
     elif isinstance(date, _dt.date):
         date_s = date.isoformat()
     else:
-        raise InputError(f"appendix context['date']: expected an ISO string or datetime, got {type(date).__name__}")
+        raise InputError(
+            f"appendix context['date']: expected an ISO string or datetime, got {type(date).__name__}"
+        )
     meta = {
-        "title": str(context.get("title") or "Planning-study appendix: coastal tsunami-energy focusing screening"),
+        "title": str(
+            context.get("title") or "Planning-study appendix: coastal tsunami-energy focusing screening"
+        ),
         "subtitle": str(context.get("subtitle") or f"Scenario “{sc['name']}”"),
         "date": date_s,
         "version": str(context.get("tool_version") or __version__),
@@ -728,7 +774,11 @@ def document_blocks(context: Mapping[str, Any]) -> tuple[dict[str, str], list[_B
         if len(srcs) <= 4 and len(cols) > 6:  # many fields, few sources: one column per source
             names = [str(s.get("name", f"Source {i + 1}")) for i, s in enumerate(srcs)]
             tcols = ["Field"] + names
-            trows = [[_pretty_key(c)] + [rows[j][i] for j in range(len(srcs))] for i, c in enumerate(cols) if c != "name"]
+            trows = [
+                [_pretty_key(c)] + [rows[j][i] for j in range(len(srcs))]
+                for i, c in enumerate(cols)
+                if c != "name"
+            ]
             blocks.append(_b("table", columns=tcols, rows=trows, caption="", kv=True))
         else:
             blocks.append(_b("table", columns=[_pretty_key(c) for c in cols], rows=rows, caption=""))
@@ -748,7 +798,9 @@ def document_blocks(context: Mapping[str, Any]) -> tuple[dict[str, str], list[_B
                 parts = [str(d.get("name", ""))]
                 for k in ("description", "citation", "licence", "license", "path", "sha256"):
                     if d.get(k):
-                        parts.append(f"{k}: {d[k]}" if k in ("path", "sha256", "licence", "license") else str(d[k]))
+                        parts.append(
+                            f"{k}: {d[k]}" if k in ("path", "sha256", "licence", "license") else str(d[k])
+                        )
                 items.append(" — ".join(p for p in parts if p))
             else:
                 items.append(str(d))
@@ -861,8 +913,8 @@ h2 { font-size: 13pt; color: #1f3b57; border-bottom: 1px solid #c9d3dd; margin: 
 h3 { font-size: 11pt; margin: 12px 0 4px 0; page-break-after: avoid; break-after: avoid; }
 p { margin: 4px 0 6px 0; text-align: justify; }
 p.note { color: #666; font-style: italic; }
-div.eq { font-family: "DejaVu Sans", "Cambria Math", serif; background: #f3f6f9; border-left: 3px solid #9fb3c8;
-         padding: 3px 10px; margin: 4px 0 4px 18px; white-space: pre-wrap; }
+div.eq { font-family: "DejaVu Sans", "Cambria Math", serif; background: #f3f6f9;
+         border-left: 3px solid #9fb3c8; padding: 3px 10px; margin: 4px 0 4px 18px; white-space: pre-wrap; }
 table { border-collapse: collapse; width: 100%; margin: 4px 0 10px 0; font-size: 9pt; }
 table.small { font-size: 8pt; }
 table.kv { width: auto; min-width: 60%; page-break-inside: avoid; break-inside: avoid; }
@@ -875,7 +927,8 @@ figure { margin: 10px 0 14px 0; page-break-inside: avoid; break-inside: avoid; t
 figure img { max-width: 100%; height: auto; border: 1px solid #e0e0e0; }
 figcaption { font-size: 9pt; text-align: left; margin-top: 3px; color: #333; }
 ol.refs li { margin-bottom: 3px; font-size: 9.5pt; }
-footer.doc { border-top: 1px solid #c9d3dd; margin-top: 18px; padding-top: 4px; font-size: 8.5pt; color: #555; }
+footer.doc { border-top: 1px solid #c9d3dd; margin-top: 18px; padding-top: 4px; font-size: 8.5pt;
+             color: #555; }
 @media print { body { max-width: none; padding: 0; } nav.toc { display: none; } }
 """
 
@@ -948,11 +1001,14 @@ def _render_html(meta: Mapping[str, str], blocks: list[_Block]) -> str:
             w("</tbody></table>")
         elif k == "figure":
             alt = _e(b["caption"] or b["path"].name)
-            w(f'<figure><img src="{_png_data_uri(b["path"])}" alt="{alt}"><figcaption>{_e(b["caption"])}</figcaption></figure>')
+            src = _png_data_uri(b["path"])
+            w(f'<figure><img src="{src}" alt="{alt}"><figcaption>{_e(b["caption"])}</figcaption></figure>')
         else:  # pragma: no cover - internal
             raise AssertionError(k)
-    w(f'<footer class="doc">{_e(CAUTION_SHORT)}. Generated by tsunamifocus {_e(meta["version"])} on '
-      f"{_e(meta['date'])}.</footer>")
+    w(
+        f'<footer class="doc">{_e(CAUTION_SHORT)}. Generated by tsunamifocus {_e(meta["version"])} on '
+        f"{_e(meta['date'])}.</footer>"
+    )
     w("</body></html>")
     return "\n".join(out)
 
@@ -983,10 +1039,34 @@ def _latin1(s: str) -> str:
     import unicodedata
 
     table = {
-        "√": "sqrt", "∂": "d", "θ": "theta", "φ": "phi", "λ": "lambda", "ρ": "rho", "η": "eta",
-        "μ": "mu", "Σ": "Sum", "∬": "int int", "ℓ": "l", "−": "-", "–": "-", "—": "-", "×": "x",
-        "“": '"', "”": '"', "’": "'", "…": "...", "≈": "~", "≤": "<=", "≥": ">=", "⅔": "2/3",
-        "∞": "inf", "·": ".", "Č": "C", "č": "c", "ᵢ": "_i",
+        "√": "sqrt",
+        "∂": "d",
+        "θ": "theta",
+        "φ": "phi",
+        "λ": "lambda",
+        "ρ": "rho",
+        "η": "eta",
+        "μ": "mu",
+        "Σ": "Sum",
+        "∬": "int int",
+        "ℓ": "l",
+        "−": "-",
+        "–": "-",
+        "—": "-",
+        "×": "x",
+        "“": '"',
+        "”": '"',
+        "’": "'",
+        "…": "...",
+        "≈": "~",
+        "≤": "<=",
+        "≥": ">=",
+        "⅔": "2/3",
+        "∞": "inf",
+        "·": ".",
+        "Č": "C",
+        "č": "c",
+        "ᵢ": "_i",
     }
     out = []
     for ch in s:
@@ -1009,7 +1089,9 @@ def _png_size(path: pathlib.Path) -> tuple[int, int]:
     return int(w), int(h)
 
 
-def _render_pdf(meta: Mapping[str, str], blocks: list[_Block], out_pdf: pathlib.Path, *, compress: bool = True) -> int:
+def _render_pdf(
+    meta: Mapping[str, str], blocks: list[_Block], out_pdf: pathlib.Path, *, compress: bool = True
+) -> int:
     from fpdf import FPDF
     from fpdf.fonts import FontFace
 
@@ -1080,8 +1162,13 @@ def _render_pdf(meta: Mapping[str, str], blocks: list[_Block], out_pdf: pathlib.
     pdf.set_font(fam, "", 8.5)
     pdf.set_text_color(85, 85, 85)
     run = f" · run {meta['run_id']}" if meta.get("run_id") else ""
-    pdf.multi_cell(epw, 4.5, T(f"Generated {meta['date']} · tsunamifocus {meta['version']}{run}"),
-                   new_x="LMARGIN", new_y="NEXT")
+    pdf.multi_cell(
+        epw,
+        4.5,
+        T(f"Generated {meta['date']} · tsunamifocus {meta['version']}{run}"),
+        new_x="LMARGIN",
+        new_y="NEXT",
+    )
     pdf.set_text_color(0, 0, 0)
     pdf.set_draw_color(31, 59, 87)
     pdf.set_line_width(0.6)
@@ -1181,7 +1268,9 @@ def _render_pdf(meta: Mapping[str, str], blocks: list[_Block], out_pdf: pathlib.
             pdf.set_font(fam, "I" if k == "note" else ("B" if b.get("strong") else ""), 9.5)
             if k == "note":
                 pdf.set_text_color(100, 100, 100)
-            pdf.multi_cell(epw, 4.8, T(b["text"]), align="J" if k == "p" else "L", new_x="LMARGIN", new_y="NEXT")
+            pdf.multi_cell(
+                epw, 4.8, T(b["text"]), align="J" if k == "p" else "L", new_x="LMARGIN", new_y="NEXT"
+            )
             pdf.set_text_color(0, 0, 0)
             pdf.ln(1.2)
         elif k == "eq":
@@ -1205,7 +1294,11 @@ def _render_pdf(meta: Mapping[str, str], blocks: list[_Block], out_pdf: pathlib.
         elif k == "figure":
             w_mm, h_mm = fig_size(b)
             pdf.set_font(fam, "", 8.5)
-            cap_lines = len(pdf.multi_cell(epw, 4.2, T(b["caption"]), dry_run=True, output="LINES")) if b["caption"] else 0
+            cap_lines = (
+                len(pdf.multi_cell(epw, 4.2, T(b["caption"]), dry_run=True, output="LINES"))
+                if b["caption"]
+                else 0
+            )
             cap_h = cap_lines * 4.2 + 4
             room = pdf.page_break_trigger - pdf.get_y() - cap_h
             if h_mm > room and room >= 0.85 * h_mm:  # shrink a little rather than leave a gap
