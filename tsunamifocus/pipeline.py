@@ -1002,7 +1002,11 @@ def format_run_summary(result: RunResult) -> str:
                      f"dominant period {a.period_s / 60:.1f} min")
         h = result.health[a.name]
         tf = ", ".join(f"{k} {v:.1%}" for k, v in h["termination_fraction"].items() if v > 0)
-        lines.append(f"  rays: {h['n_rays']} ({tf}); energy bookkeeping error {h['energy_error_relative']:.2e}")
+        lines.append(f"  rays: {h['n_rays']} ({tf}); energy bookkeeping error {h['energy_error_relative']:.2e}"
+                     f" (limit {h['energy_tolerance']:.0e})")
+        lines.append(f"  integration step {h['step_s']:.2f} s, steps per ray {h['steps_per_ray_mean']:.0f} mean / "
+                     f"{h['steps_per_ray_max']:.0f} max; rays stopped in NaN holes or on land "
+                     f"{h['nan_or_land_fraction']:.2%}")
         rk = f.ranking
         rel = rk[rk["reliable"]] if "reliable" in rk else rk
         lines.append(f"  top hotspots by lensing factor (5-95 % interval), of {len(f.segments)} segments:")
