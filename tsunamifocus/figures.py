@@ -1303,6 +1303,50 @@ def plot_uplift(
     return _finish(fig, out_path, ax=ax, geo=geo, handles=handles, right_cbars=1)
 
 
+def _scatter_labels(fig: Figure, ax, xa: np.ndarray, ya: np.ndarray, labels: Sequence[str], idx) -> None:
+    """Point labels placed greedily (8 candidate offsets) so that their boxes do not overlap."""
+    fig.draw_without_rendering()
+    to_pt = 72.0 / fig.dpi
+    pts = ax.transData.transform(np.column_stack([xa[idx], ya[idx]])) * to_pt
+    fs = 7.0
+    boxes: list[tuple[float, float, float, float]] = []
+    cands = [(4, 3), (4, -9), (-4, 3), (-4, -9), (4, 11), (-4, 11), (4, -17), (-4, -17)]
+    for (px, py), i in zip(pts, idx, strict=True):
+        text = str(labels[i])
+        w, h = 0.62 * fs * len(text), 1.15 * fs
+        chosen = cands[0]
+        for dx, dy in cands:
+            x0 = px + dx if dx >= 0 else px + dx - w
+            box = (x0, py + dy, x0 + w, py + dy + h)
+            if all(box[2] <= b[0] or box[0] >= b[2] or box[3] <= b[1] or box[1] >= b[3] for b in boxes):
+                chosen = (dx, dy)
+                break
+        dx, dy = chosen
+        x0 = px + dx if dx >= 0 else px + dx - w
+        boxes.append((x0, py + dy, x0 + w, py + dy + h))
+        ax.annotate(
+            text,
+            (xa[i], ya[i]),
+            xytext=(dx, dy),
+            textcoords="offset points",
+            fontsize=fs,
+            ha="left" if dx >= 0 else "right",
+            va="bottom",
+        )
+
+
+def _plain_log_ticks(axis, lo: float, hi: float) -> None:
+    """Log-axis ticks at 1, 2, 5 x 10^n (fewer for wide ranges) labelled as plain numbers."""
+    from matplotlib.ticker import LogLocator
+
+    decades = math.log10(max(hi, 1e-300) / max(lo, 1e-300))
+    subs = (1.0, 2.0, 5.0) if decades <= 3 else ((1.0, 3.0) if decades <= 5 else (1.0,))
+    axis.set_major_locator(LogLocator(base=10.0, subs=subs))
+    axis.set_minor_locator(LogLocator(base=10.0, subs=tuple(range(2, 10)) if decades <= 5 else ()))
+    axis.set_major_formatter(FuncFormatter(lambda v, _: f"{v:g}"))
+    axis.set_minor_formatter(NullFormatter())
+
+
 def _crop_to_signal(da: xr.DataArray, mask: np.ndarray) -> xr.DataArray:
     """Sub-grid around the True cells of ``mask``, padded by half the box size each side."""
     if not mask.any():
@@ -1393,17 +1437,14 @@ def plot_agreement(
             label="Highlighted",
             zorder=3,
         )
-        if labels is not None:
-            for i in np.flatnonzero(ok & hl):
-                ax.annotate(
-                    str(labels[i]), (xa[i], ya[i]), xytext=(4, 3), textcoords="offset points", fontsize=7
-                )
     lo = min(xa[ok].min(), ya[ok].min())
     hi = max(xa[ok].max(), ya[ok].max())
     if log:
         ax.set_xscale("log")
         ax.set_yscale("log")
         lo, hi = lo / 1.3, hi * 1.3
+        _plain_log_ticks(ax.xaxis, lo, hi)
+        _plain_log_ticks(ax.yaxis, lo, hi)
     else:
         pad = 0.05 * (hi - lo if hi > lo else 1.0)
         lo, hi = lo - pad, hi + pad
@@ -1413,6 +1454,8 @@ def plot_agreement(
     ax.set_xlabel(xlabel)
     ax.set_ylabel(ylabel)
     ax.grid(True, color="0.9", linewidth=0.6)
+    if labels is not None and (ok & hl).any():
+        _scatter_labels(fig, ax, xa, ya, labels, np.flatnonzero(ok & hl))
     if annotate:
         ax.text(
             0.03,
