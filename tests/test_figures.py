@@ -465,3 +465,16 @@ def test_ranking_labels_without_names():
     assert figures._bar_label("S0003", "S0003", 3) == "3. S0003"
     assert figures._bar_label("S0004", "Harbour", pd.NA) == "- S0004  Harbour"
     assert len(figures._bar_label("S0005", "x" * 60, 5)) == 34
+
+
+def test_plain_log_ticks():
+    # 1-2-5 ticks labelled as plain numbers ("0.2", not "2x10^-1") on a 1.5-decade log axis
+    from matplotlib.figure import Figure
+
+    ax = Figure().add_subplot()
+    ax.set_xscale("log")
+    ax.set_xlim(0.15, 7.0)
+    figures._plain_log_ticks(ax.xaxis, 0.15, 7.0)
+    ticks = [t for t in ax.xaxis.get_major_locator().tick_values(0.15, 7.0) if 0.15 <= t <= 7.0]
+    assert np.allclose(ticks, [0.2, 0.5, 1, 2, 5])
+    assert [ax.xaxis.get_major_formatter()(t, 0) for t in ticks] == ["0.2", "0.5", "1", "2", "5"]
