@@ -918,6 +918,7 @@ div.eq { font-family: "DejaVu Sans", "Cambria Math", serif; background: #f3f6f9;
 table { border-collapse: collapse; width: 100%; margin: 4px 0 10px 0; font-size: 9pt; }
 table.small { font-size: 8pt; }
 table.small td { white-space: nowrap; }
+table.small th, table.small td { padding: 2px 4px; }
 table.kv { width: auto; min-width: 60%; page-break-inside: avoid; break-inside: avoid; }
 th, td { border: 1px solid #c4ccd4; padding: 2px 6px; text-align: left; vertical-align: top; }
 th { background: #e6edf4; }
