@@ -40,6 +40,12 @@ def _stop_depth(run_dir: pathlib.Path) -> float:
     return float(d.get("rays", {}).get("stop_depth_m", 20.0))
 
 
+def _max_memory_bytes(run_dir: pathlib.Path) -> float:
+    """The run's ``[bathymetry] max_memory_gb`` in bytes (the limit applies to the wave check too)."""
+    d = tomllib.loads((run_dir / "scenario.toml").read_text(encoding="utf-8"))
+    return float(d.get("bathymetry", {}).get("max_memory_gb", 4.0)) * 1e9
+
+
 def run_wave_check(
     run_dir: str | pathlib.Path,
     *,
@@ -95,7 +101,8 @@ def run_wave_check(
         tmp = pathlib.Path(of.tmp_dir)
         chk = wave_check(layers["depth"], layers["initial_sea_surface"], seg, k=k, stop_depth=stop,
                          duration_s=None if hours is None else hours * 3600.0,
-                         figure_path=tmp / "ray_vs_wave.png", progress=progress)
+                         figure_path=tmp / "ray_vs_wave.png", progress=progress,
+                         max_memory_bytes=_max_memory_bytes(run_dir))
         amp = chk.wave.max_amplitude.copy()
         amp.name = "wave_max_amplitude"
         amp.attrs.update(units="m", long_name="maximum sea-surface elevation, linear long-wave solver")
