@@ -310,3 +310,21 @@ def test_run_fails_loudly_when_budget_does_not_close(run_a, tmp_path, monkeypatc
     with pytest.raises(HealthCheckError, match="not trustworthy"):
         run_scenario(sc, out=out, progress=False)
     assert not out.exists() and _siblings(out) == []
+
+
+def test_wave_check_respects_the_run_memory_limit(run_a, tmp_path, capsys):
+    """`tsunamifocus check` refuses above the run's [bathymetry] max_memory_gb, leaving no output."""
+    import shutil
+
+    _, a = run_a
+    run = tmp_path / "run"
+    shutil.copytree(a, run)
+    toml = run / "scenario.toml"
+    text = toml.read_text(encoding="utf-8")
+    assert "max_memory_gb = 4.0" in text
+    toml.write_text(text.replace("max_memory_gb = 4.0", "max_memory_gb = 0.001"), encoding="utf-8")
+    code = main(["-q", "check", str(run)])
+    err = capsys.readouterr().err.strip().splitlines()
+    assert code == 1 and len(err) == 1, err
+    assert err[0].startswith("error: wave solver on a 320 x 380 grid needs about") and "GiB" in err[0]
+    assert not (run / "wave_check").exists() and _siblings(run / "wave_check") == []
