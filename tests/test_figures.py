@@ -478,3 +478,14 @@ def test_plain_log_ticks():
     ticks = [t for t in ax.xaxis.get_major_locator().tick_values(0.15, 7.0) if 0.15 <= t <= 7.0]
     assert np.allclose(ticks, [0.2, 0.5, 1, 2, 5])
     assert [ax.xaxis.get_major_formatter()(t, 0) for t in ticks] == ["0.2", "0.5", "1", "2", "5"]
+
+
+def test_all_nan_grids_give_clear_errors_or_plots(tmp_path):
+    # an all-NaN energy grid draws nothing but must not crash or warn; an all-NaN eta is refused
+    x = np.arange(0.0, 50e3, 5e3)
+    depth = make_grid(np.full((10, 10), 100.0), x, x, "EPSG:32633")
+    nan = depth.copy(data=np.full((10, 10), np.nan))
+    check_png(figures.plot_ray_field(depth, nan, out_path=tmp_path / "e.png"), min_w=500, min_h=300)
+    with pytest.raises(InputError, match="no finite values"):
+        figures.plot_uplift(nan, out_path=tmp_path / "u.png")
+    check_png(figures.plot_lensing_map(nan, nan, nan, None, 0, out_path=tmp_path / "l.png"), min_w=500, min_h=300)

@@ -52,6 +52,7 @@ __all__ = [
     "plot_ranking",
     "plot_uplift",
     "plot_agreement",
+    "RANK_FIELDS",
 ]
 
 #: Short caution printed at the foot of every figure.
@@ -569,18 +570,14 @@ def _land_and_nodata(ax, depth: xr.DataArray, info: GridInfo, zorder: float = 2)
 
 
 def _coast_contour(ax, depth: xr.DataArray, info: GridInfo, zorder: float = 6) -> None:
+    """Draw the 0 m depth contour (the grid's own shoreline) when the grid has land and sea."""
     d = _values(depth)
-    if np.nanmin(d) < 0 < np.nanmax(d) or (np.nanmin(d) <= 0 and np.nanmax(d) > 0):
+    fin = d[np.isfinite(d)]
+    if fin.size and fin.min() <= 0 < fin.max():
         xd = depth.dims[1]
         yd = depth.dims[0]
         ax.contour(
-            depth[xd].values,
-            depth[yd].values,
-            np.where(np.isfinite(d), d, np.nan),
-            levels=[0.0],
-            colors="0.15",
-            linewidths=0.7,
-            zorder=zorder,
+            depth[xd].values, depth[yd].values, d, levels=[0.0], colors="0.15", linewidths=0.7, zorder=zorder
         )
 
 
