@@ -979,10 +979,15 @@ def _guard_resources(depth: xr.DataArray, scenario: Any, rays: int | None) -> No
     grid_bytes = cells * 8 * 14  # depth, speed, spline coefficients, 3 runs of accumulation
     ray_bytes = n * 8 * 40  # launch + end state + bootstrap per ray
     need = grid_bytes + ray_bytes
+    e = scenario.ensemble
+    # local ensemble: up to 4 members alive at once (ensemble.run_ensemble window), each its own working set
+    alive = min(e.members, 4) if e.members > 0 and str(e.scheduler or "local") == "local" else 0
+    need += alive * (grid_bytes + ray_bytes)
+    with_ens = f" with {alive} ensemble members in memory" if alive else ""
     limit = scenario.bathymetry.max_memory_gb * 1e9
     if need > limit:
         raise ResourceLimitError(
-            f"tracing {n} rays on a {info.ny} x {info.nx} grid needs about {need / 1e9:.1f} GB, above the limit "
+            f"tracing {n} rays on a {info.ny} x {info.nx} grid{with_ens} needs about {need / 1e9:.1f} GB, above the limit "
             f"of {limit / 1e9:.1f} GB ([bathymetry] max_memory_gb); resample the grid or use fewer rays"
         )
     dxm, dym = info.spacing_m()
