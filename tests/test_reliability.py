@@ -328,3 +328,19 @@ def test_wave_check_respects_the_run_memory_limit(run_a, tmp_path, capsys):
     assert code == 1 and len(err) == 1, err
     assert err[0].startswith("error: wave solver on a 320 x 380 grid needs about") and "GiB" in err[0]
     assert not (run / "wave_check").exists() and _siblings(run / "wave_check") == []
+
+
+def test_memory_guard_counts_local_ensemble_members(run_a):
+    """The local ensemble keeps up to 4 members' working sets alive (ensemble.run_ensemble window)."""
+    from tsunamifocus.pipeline import _guard_resources
+
+    result, _ = run_a
+    sc = result.scenario
+    sc = dataclasses.replace(sc, bathymetry=dataclasses.replace(sc.bathymetry, max_memory_gb=0.5))
+    single = dataclasses.replace(sc, ensemble=dataclasses.replace(sc.ensemble, members=0))
+    # guard model: 112 B per cell + 320 B per ray; 1e6 rays on 320 x 380 cells = 0.33 GB alone,
+    # 1.0 GB with two more members alive
+    _guard_resources(result.depth, single, 1_000_000)
+    assert sc.ensemble.members == 2
+    with pytest.raises(ResourceLimitError, match=r"with 2 ensemble members in memory needs about 1.0 GB"):
+        _guard_resources(result.depth, sc, 1_000_000)
