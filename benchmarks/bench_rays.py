@@ -34,7 +34,10 @@ import numpy as np
 
 HERE = pathlib.Path(__file__).resolve()
 REPO = HERE.parents[1]
-ETOPO = pathlib.Path(os.environ.get("TSUNAMIFOCUS_SHARED_DATA", REPO.parent / "shared" / "data")) / "etopo1_0p1deg.nc"
+ETOPO = (
+    pathlib.Path(os.environ.get("TSUNAMIFOCUS_SHARED_DATA", REPO.parent / "shared" / "data"))
+    / "etopo1_0p1deg.nc"
+)
 
 N = 2000
 DX = 1000.0
@@ -77,8 +80,16 @@ def child_synthetic(nrays, threads, step):
     r = trace_rays(fld, x0, y0, az, weights=w, q0=1.0, p0=0.0, step_s=step, threads=threads)
     wall = time.perf_counter() - t0
     cpu = time.process_time() - c0
-    return dict(nrays=nrays, threads=threads, step_s=r.stats["step_s"], wall_s=wall, cpu_s=cpu,
-                steps=r.stats["n_steps"], peak_mb=peak_rss_mb(), reasons=r.stats["reasons"])
+    return dict(
+        nrays=nrays,
+        threads=threads,
+        step_s=r.stats["step_s"],
+        wall_s=wall,
+        cpu_s=cpu,
+        steps=r.stats["n_steps"],
+        peak_mb=peak_rss_mb(),
+        reasons=r.stats["reasons"],
+    )
 
 
 def child_compile():
@@ -97,7 +108,7 @@ def child_compile():
 
 
 def child_scipy(nsample, step):
-    """Same rays with solve_ivp over RegularGridInterpolator (bilinear c and gradient grids)."""
+    """Trace the same rays with solve_ivp over RegularGridInterpolator (bilinear c, gradients)."""
     from scipy.integrate import solve_ivp
     from scipy.interpolate import RegularGridInterpolator
 
@@ -111,8 +122,9 @@ def child_scipy(nsample, step):
     gyy, gyx = np.gradient(gy, DX)
     gxy, gxx = np.gradient(gx, DX)
     pts = (d.y.values, d.x.values)
-    interp = RegularGridInterpolator(pts, np.stack([c, gx, gy, gxx, gxy, gyy], axis=-1),
-                                     bounds_error=False, fill_value=None)
+    interp = RegularGridInterpolator(
+        pts, np.stack([c, gx, gy, gxx, gxy, gyy], axis=-1), bounds_error=False, fill_value=None
+    )
     hint = RegularGridInterpolator(pts, h, bounds_error=False, fill_value=None)
     x0, y0, az = line_source(10000)
     sel = np.linspace(0, 9999, nsample).astype(int)
@@ -137,18 +149,33 @@ def child_scipy(nsample, step):
     t0 = time.perf_counter()
     nev = 0
     for k in range(nsample):
-        sol = solve_ivp(rhs, (0, 86400.0), [x0[k], y0[k], 1.0, 0.0, 1.0, 0.0], method="RK45",
-                        rtol=1e-6, atol=1e-3, events=(coast, out))
+        sol = solve_ivp(
+            rhs,
+            (0, 86400.0),
+            [x0[k], y0[k], 1.0, 0.0, 1.0, 0.0],
+            method="RK45",
+            rtol=1e-6,
+            atol=1e-3,
+            events=(coast, out),
+        )
         nev += sol.nfev
     wall_ivp = time.perf_counter() - t0
     fld = SpeedField(d)
     trace_rays(fld, x0[:1], y0[:1], 90.0, max_time_s=10.0, accumulate=False)
     t0 = time.perf_counter()
-    r = trace_rays(fld, x0, y0, np.full(nsample, 90.0), q0=1.0, p0=0.0, step_s=step, threads=1,
-                   accumulate=False)
+    r = trace_rays(
+        fld, x0, y0, np.full(nsample, 90.0), q0=1.0, p0=0.0, step_s=step, threads=1, accumulate=False
+    )
     wall_tf = time.perf_counter() - t0
-    return dict(nsample=nsample, ivp_s=wall_ivp, ivp_rays_per_s=nsample / wall_ivp, ivp_nfev=nev,
-                tf_s=wall_tf, tf_rays_per_s=nsample / wall_tf, tf_steps=r.stats["n_steps"])
+    return dict(
+        nsample=nsample,
+        ivp_s=wall_ivp,
+        ivp_rays_per_s=nsample / wall_ivp,
+        ivp_nfev=nev,
+        tf_s=wall_tf,
+        tf_rays_per_s=nsample / wall_tf,
+        tf_steps=r.stats["n_steps"],
+    )
 
 
 def child_global(nrays, threads, step):
@@ -167,8 +194,9 @@ def child_global(nrays, threads, step):
 
         ds = xr.open_dataset(ETOPO)
         z = ds["z"].values[:, :-1]
-        depth = make_grid(-z.astype(float), ds["lon"].values[:-1], ds["lat"].values, "EPSG:4326",
-                          lon_periodic=True)
+        depth = make_grid(
+            -z.astype(float), ds["lon"].values[:-1], ds["lat"].values, "EPSG:4326", lon_periodic=True
+        )
     fld = SpeedField(depth)
     t_load = time.perf_counter() - t0
     lon0, lat0 = 282.0, -30.0  # open ocean, eastern side of the largest basin (a test point)
@@ -176,16 +204,33 @@ def child_global(nrays, threads, step):
     trace_rays(fld, [lon0], [lat0], [270.0], max_time_s=100.0, threads=threads)  # warm
     c0 = time.process_time()
     t1 = time.perf_counter()
-    r = trace_rays(fld, np.full(nrays, lon0), np.full(nrays, lat0), az, step_s=step,
-                   max_time_s=86400.0, threads=threads, weights=np.full(nrays, 1.0 / nrays))
+    r = trace_rays(
+        fld,
+        np.full(nrays, lon0),
+        np.full(nrays, lat0),
+        az,
+        step_s=step,
+        max_time_s=86400.0,
+        threads=threads,
+        weights=np.full(nrays, 1.0 / nrays),
+    )
     wall = time.perf_counter() - t1
     cpu = time.process_time() - c0
     e = r.end
-    crossed = int(np.sum((e.path_length_m.values > 1.0e7)))
-    return dict(nrays=nrays, threads=threads, step_s=r.stats["step_s"], wall_s=wall, cpu_s=cpu,
-                steps=r.stats["n_steps"], peak_mb=peak_rss_mb(), load_s=t_load,
-                reasons=r.stats["reasons"], rays_over_10000km=crossed,
-                grid=f"{fld.info.ny}x{fld.info.nx}")
+    crossed = int(np.sum(e.path_length_m.values > 1.0e7))
+    return dict(
+        nrays=nrays,
+        threads=threads,
+        step_s=r.stats["step_s"],
+        wall_s=wall,
+        cpu_s=cpu,
+        steps=r.stats["n_steps"],
+        peak_mb=peak_rss_mb(),
+        load_s=t_load,
+        reasons=r.stats["reasons"],
+        rays_over_10000km=crossed,
+        grid=f"{fld.info.ny}x{fld.info.nx}",
+    )
 
 
 def run_child(args, env=None):
@@ -200,8 +245,12 @@ def run_child(args, env=None):
 def main():
     ap = argparse.ArgumentParser(description=__doc__, formatter_class=argparse.RawDescriptionHelpFormatter)
     ap.add_argument("--quick", action="store_true", help="reduced set (1e4, 1e5 rays; small global run)")
-    ap.add_argument("--step", type=float, default=28.0,
-                    help="RK4 step [s] for the synthetic runs (28 s ~ 360 steps per ray, as the reference prototype)")
+    ap.add_argument(
+        "--step",
+        type=float,
+        default=28.0,
+        help="RK4 step [s] for the synthetic runs (28 s ~ 360 steps per ray, as the reference prototype)",
+    )
     ap.add_argument("--global-step", type=float, default=60.0, help="RK4 step [s] on the 0.1-degree grid")
     ap.add_argument("--no-global", action="store_true", help="skip the real-grid run")
     ap.add_argument("--no-compile", action="store_true", help="skip the empty-cache compile timing")
@@ -210,44 +259,63 @@ def main():
     if a.child:
         spec = json.loads(a.child)
         mode = spec.pop("mode")
-        fn = {"syn": child_synthetic, "compile": child_compile, "scipy": child_scipy, "global": child_global}[mode]
+        fn = {"syn": child_synthetic, "compile": child_compile, "scipy": child_scipy, "global": child_global}[
+            mode
+        ]
         print(json.dumps(fn(**spec)))
         return
 
-    print(f"tsunamifocus ray benchmark  (cores: {os.cpu_count()}, load average at start: "
-          f"{', '.join(f'{x:.1f}' for x in os.getloadavg())})")
+    print(
+        f"tsunamifocus ray benchmark  (cores: {os.cpu_count()}, load average at start: "
+        f"{', '.join(f'{x:.1f}' for x in os.getloadavg())})"
+    )
     if not a.no_compile:
         with tempfile.TemporaryDirectory() as tmp:
             env = dict(os.environ, NUMBA_CACHE_DIR=tmp)
             cold = run_child({"mode": "compile"}, env=env)
         warm = run_child({"mode": "compile"})
-        print(f"numba compile (empty cache): {cold['first_call_s']:.1f} s; "
-              f"with cache: first call {warm['first_call_s']:.2f} s, second {warm['second_call_s'] * 1e3:.1f} ms")
+        print(
+            f"numba compile (empty cache): {cold['first_call_s']:.1f} s; "
+            f"with cache: first call {warm['first_call_s']:.2f} s, "
+            f"second {warm['second_call_s'] * 1e3:.1f} ms"
+        )
 
     counts = [10_000, 100_000] if a.quick else [10_000, 100_000, 1_000_000]
     print()
-    print(f"Synthetic 2000x2000 grid, line source, step {a.step:g} s (targets: 1e6 rays <= 30 s on 2 "
-          "threads, >= 12 M ray-steps/s, peak <= 2 GB)")
-    hdr = f"{'rays':>9} {'thr':>3} {'step s':>6} {'steps/ray':>9} {'wall s':>8} {'M steps/s':>9} " \
-          f"{'M steps/cpu-s':>13} {'peak MB':>8}"
+    print(
+        f"Synthetic 2000x2000 grid, line source, step {a.step:g} s (targets: 1e6 rays <= 30 s on 2 "
+        "threads, >= 12 M ray-steps/s, peak <= 2 GB)"
+    )
+    hdr = (
+        f"{'rays':>9} {'thr':>3} {'step s':>6} {'steps/ray':>9} {'wall s':>8} {'M steps/s':>9} "
+        f"{'M steps/cpu-s':>13} {'peak MB':>8}"
+    )
     print(hdr)
     print("-" * len(hdr))
     for n in counts:
         for th in (1, 2):
             r = run_child({"mode": "syn", "nrays": n, "threads": th, "step": a.step})
-            print(f"{n:>9} {th:>3} {r['step_s']:>6.1f} {r['steps'] / n:>9.0f} {r['wall_s']:>8.2f} "
-                  f"{r['steps'] / r['wall_s'] / 1e6:>9.2f} {r['steps'] / r['cpu_s'] / 1e6:>13.2f} "
-                  f"{r['peak_mb']:>8.0f}", flush=True)
+            print(
+                f"{n:>9} {th:>3} {r['step_s']:>6.1f} {r['steps'] / n:>9.0f} {r['wall_s']:>8.2f} "
+                f"{r['steps'] / r['wall_s'] / 1e6:>9.2f} {r['steps'] / r['cpu_s'] / 1e6:>13.2f} "
+                f"{r['peak_mb']:>8.0f}",
+                flush=True,
+            )
     r = run_child({"mode": "syn", "nrays": 10_000, "threads": 2, "step": None})
-    print(f"{10_000:>9} {2:>3} {r['step_s']:>6.1f} {r['steps'] / 1e4:>9.0f} {r['wall_s']:>8.2f} "
-          f"{r['steps'] / r['wall_s'] / 1e6:>9.2f} {r['steps'] / r['cpu_s'] / 1e6:>13.2f} "
-          f"{r['peak_mb']:>8.0f}   (default step)", flush=True)
+    print(
+        f"{10_000:>9} {2:>3} {r['step_s']:>6.1f} {r['steps'] / 1e4:>9.0f} {r['wall_s']:>8.2f} "
+        f"{r['steps'] / r['wall_s'] / 1e6:>9.2f} {r['steps'] / r['cpu_s'] / 1e6:>13.2f} "
+        f"{r['peak_mb']:>8.0f}   (default step)",
+        flush=True,
+    )
 
     s = run_child({"mode": "scipy", "nsample": 10 if a.quick else 20, "step": a.step})
     print()
-    print(f"solve_ivp (RK45, rtol 1e-6) over RegularGridInterpolator, {s['nsample']} rays: "
-          f"{s['ivp_rays_per_s']:.2f} rays/s; trace_rays 1 thread same rays: {s['tf_rays_per_s']:.0f} rays/s "
-          f"-> speed ratio {s['tf_rays_per_s'] / s['ivp_rays_per_s']:.0f}x")
+    print(
+        f"solve_ivp (RK45, rtol 1e-6) over RegularGridInterpolator, {s['nsample']} rays: "
+        f"{s['ivp_rays_per_s']:.2f} rays/s; trace_rays 1 thread same rays: {s['tf_rays_per_s']:.0f} rays/s "
+        f"-> speed ratio {s['tf_rays_per_s'] / s['ivp_rays_per_s']:.0f}x"
+    )
 
     if not a.no_global:
         if not ETOPO.is_file():
@@ -256,12 +324,16 @@ def main():
             n = 20_000 if a.quick else 1_000_000
             g = run_child({"mode": "global", "nrays": n, "threads": 2, "step": a.global_step})
             print()
-            print(f"0.1-degree global grid ({g['grid']}), point source, {n} rays, 24 h, step {g['step_s']:g} s, "
-                  f"2 threads (target 1e6 rays <= 180 s):")
-            print(f"  wall {g['wall_s']:.1f} s, {g['steps'] / g['wall_s'] / 1e6:.2f} M steps/s, "
-                  f"{g['steps'] / g['cpu_s'] / 1e6:.2f} M steps/cpu-s, {g['steps'] / n:.0f} steps/ray, "
-                  f"peak {g['peak_mb']:.0f} MB, grid load {g['load_s']:.1f} s; end reasons {g['reasons']}; "
-                  f"rays longer than 10,000 km: {g['rays_over_10000km']}")
+            print(
+                f"0.1-degree global grid ({g['grid']}), point source, {n} rays, 24 h, "
+                f"step {g['step_s']:g} s, 2 threads (target 1e6 rays <= 180 s):"
+            )
+            print(
+                f"  wall {g['wall_s']:.1f} s, {g['steps'] / g['wall_s'] / 1e6:.2f} M steps/s, "
+                f"{g['steps'] / g['cpu_s'] / 1e6:.2f} M steps/cpu-s, {g['steps'] / n:.0f} steps/ray, "
+                f"peak {g['peak_mb']:.0f} MB, grid load {g['load_s']:.1f} s; end reasons {g['reasons']}; "
+                f"rays longer than 10,000 km: {g['rays_over_10000km']}"
+            )
     print(f"\nload average at end: {', '.join(f'{x:.1f}' for x in os.getloadavg())}")
 
 

@@ -112,7 +112,6 @@ def test_snell_invariant_linear_slope():
     # Straight parallel depth contours (h depends on x only): Snell's law, the along-contour
     # slowness cos(azimuth)/c (= sin(angle to the depth gradient)/c) is constant along a ray.
     nx, ny = 200, 80
-    x = np.arange(nx) * 1000.0
     h = np.broadcast_to(500.0 + 20.0 * np.arange(nx)[None, :], (ny, nx)).copy()  # 500 .. 4480 m
     d = plane(h)
     az = np.array([30.0, 60.0, 100.0, 130.0, 250.0, 300.0])
@@ -165,8 +164,9 @@ def test_greens_law_normal_incidence_on_slope():
     d = plane(h)
     per_cell = 8
     y0 = (np.arange(ny * per_cell) + 0.5) / per_cell * 1000.0 - 500.0
-    r = trace_rays(d, np.full(y0.size, 2000.0), y0, 90.0, weights=1.0, q0=1.0, p0=0.0,
-                   stop_depth=250.0, max_time_s=5e4)
+    r = trace_rays(
+        d, np.full(y0.size, 2000.0), y0, 90.0, weights=1.0, q0=1.0, p0=0.0, stop_depth=250.0, max_time_s=5e4
+    )
     e = r.end
     assert (e.reason == REASON_CODES["coast"]).all()
     np.testing.assert_allclose(e.q, 1.0, atol=1e-9)
@@ -252,8 +252,9 @@ def test_kaplan_first_caustic_scaling():
         for m, eps in enumerate(epss):
             d = make_grid(4000.0 * (1 + 2 * eps * f), x, y, "EPSG:3857")  # dc/c ~ eps
             y0 = np.linspace(20e3, 180e3, 300)
-            r = trace_rays(d, np.full(y0.size, 2000.0), y0, 90.0, q0=1.0, p0=0.0, accumulate=False,
-                           max_time_s=1e5)
+            r = trace_rays(
+                d, np.full(y0.size, 2000.0), y0, 90.0, q0=1.0, p0=0.0, accumulate=False, max_time_s=1e5
+            )
             fc = r.end.first_caustic_m.values
             assert np.isfinite(fc).mean() > 0.9
             means[k, m] = np.nanmean(fc)
@@ -319,8 +320,17 @@ def test_statistical_convergence_of_coastal_energy_ranking(bench_like):
     def run(nrays, step):
         y0 = np.linspace(0.5e3, 399.5e3, nrays)
         w = np.full(nrays, 1.0 / nrays)
-        return trace_rays(bench_like, np.full(nrays, 3e3), y0, 90.0, weights=w, step_s=step,
-                          q0=1.0, p0=0.0, accumulate=False)
+        return trace_rays(
+            bench_like,
+            np.full(nrays, 3e3),
+            y0,
+            90.0,
+            weights=w,
+            step_s=step,
+            q0=1.0,
+            p0=0.0,
+            accumulate=False,
+        )
 
     base = _coast_bins(run(20000, 20.0))
     half = _coast_bins(run(20000, 10.0))
@@ -340,7 +350,12 @@ def test_coast_stop_and_interpolated_end(bench_like):
     # bilinear depth at the interpolated end point is close to the stop isobath
     dd = bench_like.bilinear_depth(e.x.values[coast], e.y.values[coast])
     assert np.max(np.abs(dd - 30.0)) < 30.0
-    assert e.reason.attrs["flag_meanings"].split()[:4] == ["coast", "left_grid", "land_or_nodata", "time_limit"]
+    assert e.reason.attrs["flag_meanings"].split()[:4] == [
+        "coast",
+        "left_grid",
+        "land_or_nodata",
+        "time_limit",
+    ]
 
 
 def test_nan_hole_stops_ray_without_poisoning():
@@ -421,8 +436,15 @@ def test_real_global_grid_point_source(etopo_path):
     depth = load_bathymetry(etopo_path, values="elevation")
     n = 2000
     # source in the open South Atlantic, west of the 0/360 seam of the 0..360 grid
-    r = trace_rays(depth, np.full(n, 350.0), np.full(n, -45.0), np.linspace(0, 360, n, endpoint=False),
-                   step_s=60.0, max_time_s=86400.0, keep_paths=50)
+    r = trace_rays(
+        depth,
+        np.full(n, 350.0),
+        np.full(n, -45.0),
+        np.linspace(0, 360, n, endpoint=False),
+        step_s=60.0,
+        max_time_s=86400.0,
+        keep_paths=50,
+    )
     e = r.end
     assert r.stats["geometry"] == "sphere"
     assert (e.reason == REASON_CODES["coast"]).mean() > 0.8

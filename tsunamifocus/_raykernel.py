@@ -148,8 +148,11 @@ def _bilinear_depth(depth, u, v, nx, periodic):
 
 @njit(cache=True, inline="always", error_model="numpy", fastmath=_FM)
 def _sincos_near(Y, Yr, cr, sr):
-    """(cos Y, sin Y) from cos/sin of a nearby Yr by Taylor series of the difference (exact to
-    round-off for |Y - Yr| < 0.02 rad; falls back to the library functions beyond)."""
+    """Return (cos Y, sin Y) from cos/sin of a nearby latitude Yr.
+
+    Taylor series of the difference: exact to round-off for |Y - Yr| < 0.02 rad; the library
+    functions are used beyond.
+    """
     d = Y - Yr
     if abs(d) > 0.02:
         return math.cos(Y), math.sin(Y)

@@ -79,9 +79,10 @@ class RayResult:
 
 
 def default_step_s(field: SpeedField, cells_per_step: float = 1.0) -> float:
-    """Default RK4 time step [s]: the time to cross ``cells_per_step`` of the smallest cell side
-    (on the sphere: ``R dlat`` and ``R dlon cos 60deg``, whichever is smaller) at the grid's
-    largest speed.
+    """Return the default RK4 time step [s].
+
+    It is the time to cross ``cells_per_step`` of the smallest cell side (on the sphere:
+    ``R dlat`` and ``R dlon cos 60deg``, whichever is smaller) at the grid's largest speed.
     """
     i = field.info
     if i.geographic:
@@ -212,7 +213,8 @@ def trace_rays(
             )
     if max_time_s / dt > _MAX_STEPS:
         raise RayError(
-            f"step_s = {dt:.4g} s with max_time_s = {max_time_s:g} s needs more than {_MAX_STEPS} steps per ray"
+            f"step_s = {dt:.4g} s with max_time_s = {max_time_s:g} s needs more than "
+            f"{_MAX_STEPS} steps per ray"
         )
     keep_paths = int(keep_paths)
     if keep_paths < 0:
@@ -238,11 +240,15 @@ def trace_rays(
         lat_ok = np.abs(y0) < polar_lat_deg
         bad = np.flatnonzero(~lat_ok)
         if bad.size:
-            raise RayError(f"ray {bad[0]} launched at latitude {y0[bad[0]]} beyond polar_lat_deg={polar_lat_deg}")
+            raise RayError(
+                f"ray {bad[0]} launched at latitude {y0[bad[0]]} beyond polar_lat_deg={polar_lat_deg}"
+            )
     d0 = fld.bilinear_depth(x0, y0)
     bad = np.flatnonzero(~np.isfinite(d0))
     if bad.size:
-        raise RayError(f"ray {bad[0]} launched on a no-data (NaN) cell at ({x0[bad[0]]:.6g}, {y0[bad[0]]:.6g})")
+        raise RayError(
+            f"ray {bad[0]} launched on a no-data (NaN) cell at ({x0[bad[0]]:.6g}, {y0[bad[0]]:.6g})"
+        )
     bad = np.flatnonzero(d0 <= 0)
     if bad.size:
         raise RayError(
@@ -295,10 +301,35 @@ def trace_rays(
     numba.set_num_threads(threads)
     try:
         out, outi = _k.trace_all(
-            Xs, Ys, se0, sn0, q0a, p0a, w, fld.coef, fld.depth_padded, X0, Y0, DX, DY, nx, ny,
-            bool(info.periodic_x), bool(info.geographic), float(fld.radius_m), float(fld.c_min),
-            float(dt), float(max_time_s), float(stop_depth), polar, Ach, bool(accumulate),
-            path_slot, paths_buf, path_n, path_every,
+            Xs,
+            Ys,
+            se0,
+            sn0,
+            q0a,
+            p0a,
+            w,
+            fld.coef,
+            fld.depth_padded,
+            X0,
+            Y0,
+            DX,
+            DY,
+            nx,
+            ny,
+            bool(info.periodic_x),
+            bool(info.geographic),
+            float(fld.radius_m),
+            float(fld.c_min),
+            float(dt),
+            float(max_time_s),
+            float(stop_depth),
+            polar,
+            Ach,
+            bool(accumulate),
+            path_slot,
+            paths_buf,
+            path_n,
+            path_every,
         )
         if accumulate:
             area = np.ascontiguousarray(np.broadcast_to(info.cell_area_m2()[:, 0], (ny,)), dtype=float)
@@ -324,7 +355,11 @@ def trace_rays(
             "x": ("ray", xe, {"units": xu, "long_name": "end x (grid CRS)"}),
             "y": ("ray", ye, {"units": yu, "long_name": "end y (grid CRS)"}),
             "time_s": ("ray", out[:, _k.O_T], {"units": "s"}),
-            "azimuth_deg": ("ray", aze, {"units": "degree", "long_name": "end direction, clockwise from north"}),
+            "azimuth_deg": (
+                "ray",
+                aze,
+                {"units": "degree", "long_name": "end direction, clockwise from north"},
+            ),
             "launch_x": ("ray", x0, {"units": xu}),
             "launch_y": ("ray", y0, {"units": yu}),
             "launch_azimuth_deg": ("ray", np.mod(az, 360.0), {"units": "degree"}),
@@ -354,11 +389,24 @@ def trace_rays(
     if accumulate:
         yd, xd = info.dims
         coords = {yd: fld.depth[yd].values, xd: fld.depth[xd].values}
-        energy = xr.DataArray(E, dims=(yd, xd), coords=coords, name="energy",
-                              attrs={"units": "J m-1", "long_name": "ray energy density (energy per unit wavefront width)",
-                                     "caution": _CAUTION})
-        first = xr.DataArray(T, dims=(yd, xd), coords=coords, name="first_arrival_s",
-                             attrs={"units": "s", "long_name": "first ray arrival time", "caution": _CAUTION})
+        energy = xr.DataArray(
+            E,
+            dims=(yd, xd),
+            coords=coords,
+            name="energy",
+            attrs={
+                "units": "J m-1",
+                "long_name": "ray energy density (energy per unit wavefront width)",
+                "caution": _CAUTION,
+            },
+        )
+        first = xr.DataArray(
+            T,
+            dims=(yd, xd),
+            coords=coords,
+            name="first_arrival_s",
+            attrs={"units": "s", "long_name": "first ray arrival time", "caution": _CAUTION},
+        )
         if "spatial_ref" in fld.depth.coords:
             sr = fld.depth.coords["spatial_ref"]
             energy = energy.assign_coords(spatial_ref=sr)
@@ -379,7 +427,11 @@ def trace_rays(
             py = np.degrees(py)
         paths = xr.Dataset(
             {
-                "x": (("path", "point"), px, {"units": xu, "note": "longitude unwrapped along the path" if info.geographic else ""}),
+                "x": (
+                    ("path", "point"),
+                    px,
+                    {"units": xu, "note": "longitude unwrapped along the path" if info.geographic else ""},
+                ),
                 "y": (("path", "point"), py, {"units": yu}),
                 "time_s": (("path", "point"), buf[:, :, 2], {"units": "s"}),
                 "ray": ("path", ids),

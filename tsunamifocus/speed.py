@@ -38,9 +38,7 @@ def _check_g_hmin(gravity: float, min_depth: float) -> None:
         raise InputError(f"min_depth must be a positive depth in m, got {min_depth!r}")
 
 
-def wave_speed(
-    depth: xr.DataArray, gravity: float = GRAVITY, min_depth: float = MIN_DEPTH_M
-) -> xr.DataArray:
+def wave_speed(depth: xr.DataArray, gravity: float = GRAVITY, min_depth: float = MIN_DEPTH_M) -> xr.DataArray:
     """Long-wave speed ``c = sqrt(g max(h, min_depth))`` [m s-1] on a depth grid.
 
     Parameters
@@ -248,8 +246,14 @@ class SpeedField:
         xb, yb = np.broadcast_arrays(x, y)
         u, v = self.index_of(xb.ravel(), yb.ravel())
         i = self.info
-        r = _k.eval_points(self.coef, np.ascontiguousarray(u, float), np.ascontiguousarray(v, float),
-                           i.nx, i.ny, i.periodic_x)
+        r = _k.eval_points(
+            self.coef,
+            np.ascontiguousarray(u, float),
+            np.ascontiguousarray(v, float),
+            i.nx,
+            i.ny,
+            i.periodic_x,
+        )
         c, cu, cv, cuu, cuv, cvv = (r[:, m] for m in range(6))
         if i.geographic:
             R = self.radius_m
