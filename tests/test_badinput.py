@@ -48,8 +48,17 @@ def _tif(path: pathlib.Path, arr, *, crs=UTM, transform=None, count=1, band_tags
     arr = np.asarray(arr, dtype="float32")
     if transform is None:
         transform = from_origin(400_000.0, 4_560_000.0, 2000.0, 2000.0)
-    with rasterio.open(path, "w", driver="GTiff", width=arr.shape[-1], height=arr.shape[-2], count=count,
-                       dtype="float32", crs=crs, transform=transform) as dst:
+    with rasterio.open(
+        path,
+        "w",
+        driver="GTiff",
+        width=arr.shape[-1],
+        height=arr.shape[-2],
+        count=count,
+        dtype="float32",
+        crs=crs,
+        transform=transform,
+    ) as dst:
         for b in range(1, count + 1):
             dst.write(arr if arr.ndim == 2 else arr[b - 1], b)
         if band_tags:
@@ -72,8 +81,9 @@ def _good_nc(tmp: pathlib.Path, name="grid.nc") -> pathlib.Path:
     lon = np.arange(0.0, 10.01, 0.5)
     lat = np.arange(-5.0, 5.01, 0.5)
     z = np.repeat((-4000.0 + 450.0 * lon)[None, :], lat.size, axis=0)  # sea west, land east
-    xr.Dataset({"z": (("lat", "lon"), z, {"positive": "up", "units": "m"})},
-               coords={"lat": lat, "lon": lon}).to_netcdf(tmp / name)
+    xr.Dataset(
+        {"z": (("lat", "lon"), z, {"positive": "up", "units": "m"})}, coords={"lat": lat, "lon": lon}
+    ).to_netcdf(tmp / name)
     return tmp / name
 
 
@@ -96,16 +106,24 @@ def _ll(x: float, y: float) -> tuple[float, float]:
     return float(lon), float(lat)
 
 
-def _scenario(tmp: pathlib.Path, *, grid: str = "shelf.tif", source: str | None = None, extra: str = "",
-              rays: str = "count = 200\nstop_depth_m = 20.0\nmax_time_h = 1.0\n") -> pathlib.Path:
+def _scenario(
+    tmp: pathlib.Path,
+    *,
+    grid: str = "shelf.tif",
+    source: str | None = None,
+    extra: str = "",
+    rays: str = "count = 200\nstop_depth_m = 20.0\nmax_time_h = 1.0\n",
+) -> pathlib.Path:
     """A small valid scenario on the shelf grid (a point source in deep water) with edits."""
     if not (tmp / "shelf.tif").exists():
         _good_tif(tmp)
     if source is None:
         lon, lat = _ll(440_000.0, 4_480_000.0)  # 3400 m deep
         source = f'name = "hump"\nkind = "point"\nlon = {lon:.5f}\nlat = {lat:.5f}\nradius_km = 20\n'
-    text = (f'[scenario]\nname = "bad input"\n\n[bathymetry]\npath = "{grid}"\n\n[[source]]\n{source}\n'
-            f"[rays]\n{rays}\n[output]\nfigures = false\nreport = false\n{extra}")
+    text = (
+        f'[scenario]\nname = "bad input"\n\n[bathymetry]\npath = "{grid}"\n\n[[source]]\n{source}\n'
+        f"[rays]\n{rays}\n[output]\nfigures = false\nreport = false\n{extra}"
+    )
     p = tmp / "scenario.toml"
     p.write_text(text, encoding="utf-8")
     return p
@@ -115,7 +133,9 @@ def _plane(h, dx=2000.0):
     from tsunamifocus.grid import make_grid
 
     ny, nx = h.shape
-    return make_grid(np.asarray(h, float), 400_000.0 + np.arange(nx) * dx, 4_400_000.0 + np.arange(ny) * dx, UTM)
+    return make_grid(
+        np.asarray(h, float), 400_000.0 + np.arange(nx) * dx, 4_400_000.0 + np.arange(ny) * dx, UTM
+    )
 
 
 def _lonlat_grid(lon, lat, h):
@@ -125,8 +145,10 @@ def _lonlat_grid(lon, lat, h):
 
 
 def _geojson(path: pathlib.Path, geoms: list[dict | None], props: list[dict] | None = None) -> pathlib.Path:
-    feats = [{"type": "Feature", "properties": (props or [{}] * len(geoms))[i], "geometry": g}
-             for i, g in enumerate(geoms)]
+    feats = [
+        {"type": "Feature", "properties": (props or [{}] * len(geoms))[i], "geometry": g}
+        for i, g in enumerate(geoms)
+    ]
     path.write_text(json.dumps({"type": "FeatureCollection", "features": feats}), encoding="utf-8")
     return path
 
@@ -161,17 +183,22 @@ def _grid_case(id_, make, exc, pattern, **kw):
 
 def _mk_rotated(tmp):
     # GDAL data model: a north-up image has GT(2) = GT(4) = 0; here both rotation terms are set
-    return _tif(tmp / "rotated.tif", _shelf(), transform=rasterio.Affine(2000.0, 300.0, 4e5, 300.0, -2000.0, 4.56e6))
+    return _tif(
+        tmp / "rotated.tif", _shelf(), transform=rasterio.Affine(2000.0, 300.0, 4e5, 300.0, -2000.0, 4.56e6)
+    )
 
 
 def _mk_sheared(tmp):
-    return _tif(tmp / "sheared.tif", _shelf(), transform=rasterio.Affine(2000.0, 500.0, 4e5, 0.0, -2000.0, 4.56e6))
+    return _tif(
+        tmp / "sheared.tif", _shelf(), transform=rasterio.Affine(2000.0, 500.0, 4e5, 0.0, -2000.0, 4.56e6)
+    )
 
 
 def _mk_3d(tmp):
-    xr.Dataset({"z": (("time", "lat", "lon"), -np.ones((3, 6, 7)) * 1000.0, {"positive": "up"})},
-               coords={"time": [0.0, 1.0, 2.0], "lat": np.arange(6.0), "lon": np.arange(7.0)}
-               ).to_netcdf(tmp / "cube.nc")
+    xr.Dataset(
+        {"z": (("time", "lat", "lon"), -np.ones((3, 6, 7)) * 1000.0, {"positive": "up"})},
+        coords={"time": [0.0, 1.0, 2.0], "lat": np.arange(6.0), "lon": np.arange(7.0)},
+    ).to_netcdf(tmp / "cube.nc")
     return tmp / "cube.nc"
 
 
@@ -190,8 +217,10 @@ def _mk_nc(name, values, *, lat=None, lon=None, attrs=None, extra_vars=None):
 
 
 def _mk_projected_nc_without_mapping(tmp):
-    xr.Dataset({"depth": (("y", "x"), _shelf(6, 7), {"positive": "down"})},
-               coords={"y": np.arange(6) * 2000.0, "x": np.arange(7) * 2000.0}).to_netcdf(tmp / "xy.nc")
+    xr.Dataset(
+        {"depth": (("y", "x"), _shelf(6, 7), {"positive": "down"})},
+        coords={"y": np.arange(6) * 2000.0, "x": np.arange(7) * 2000.0},
+    ).to_netcdf(tmp / "xy.nc")
     return tmp / "xy.nc"
 
 
@@ -202,57 +231,155 @@ def _mk_folder(tmp):
 
 GRID_CASES = [
     _grid_case("grid-missing", lambda t: t / "absent.tif", E.DataFileError, r"file not found"),
-    _grid_case("grid-empty-file", lambda t: _put(t / "empty.tif", b""),
-               E.DataFileError, r"file is empty"),
+    _grid_case("grid-empty-file", lambda t: _put(t / "empty.tif", b""), E.DataFileError, r"file is empty"),
     _grid_case("grid-folder-not-file", _mk_folder, E.DataFileError, r"not a regular file"),
-    _grid_case("grid-truncated-geotiff", lambda t: _truncate(_good_tif(t), 0.3), E.DataFileError,
-               r"not a readable raster|cannot read raster data", values="depth"),
-    _grid_case("grid-corrupt-geotiff", lambda t: _put(t / "junk.tif", b"II*\x00" + bytes(range(256)) * 8), E.DataFileError, r"not a readable raster|cannot read raster data"),
-    _grid_case("grid-corrupt-netcdf", lambda t: _put(t / "junk.nc", b"CDF\x01" + b"\xff" * 500), E.DataFileError, r"not a readable NetCDF"),
-    _grid_case("grid-truncated-netcdf", lambda t: _truncate(_good_nc(t), 0.5), E.DataFileError,
-               r"not a readable NetCDF|cannot read variable", values="elevation"),
-    _grid_case("grid-geotiff-without-crs", lambda t: _tif(t / "nocrs.tif", _shelf(), crs=None), E.CRSError,
-               r"raster has no CRS; pass crs=", values="depth"),
-    _grid_case("grid-projected-netcdf-without-grid-mapping", _mk_projected_nc_without_mapping, E.CRSError,
-               r"no grid_mapping", values="depth"),
-    _grid_case("grid-rotated-transform", _mk_rotated, E.InputError, r"rotated or sheared geotransform.*north-up",
-               values="depth"),
-    _grid_case("grid-sheared-transform", _mk_sheared, E.InputError, r"rotated or sheared geotransform",
-               values="depth"),
+    _grid_case(
+        "grid-truncated-geotiff",
+        lambda t: _truncate(_good_tif(t), 0.3),
+        E.DataFileError,
+        r"not a readable raster|cannot read raster data",
+        values="depth",
+    ),
+    _grid_case(
+        "grid-corrupt-geotiff",
+        lambda t: _put(t / "junk.tif", b"II*\x00" + bytes(range(256)) * 8),
+        E.DataFileError,
+        r"not a readable raster|cannot read raster data",
+    ),
+    _grid_case(
+        "grid-corrupt-netcdf",
+        lambda t: _put(t / "junk.nc", b"CDF\x01" + b"\xff" * 500),
+        E.DataFileError,
+        r"not a readable NetCDF",
+    ),
+    _grid_case(
+        "grid-truncated-netcdf",
+        lambda t: _truncate(_good_nc(t), 0.5),
+        E.DataFileError,
+        r"not a readable NetCDF|cannot read variable",
+        values="elevation",
+    ),
+    _grid_case(
+        "grid-geotiff-without-crs",
+        lambda t: _tif(t / "nocrs.tif", _shelf(), crs=None),
+        E.CRSError,
+        r"raster has no CRS; pass crs=",
+        values="depth",
+    ),
+    _grid_case(
+        "grid-projected-netcdf-without-grid-mapping",
+        _mk_projected_nc_without_mapping,
+        E.CRSError,
+        r"no grid_mapping",
+        values="depth",
+    ),
+    _grid_case(
+        "grid-rotated-transform",
+        _mk_rotated,
+        E.InputError,
+        r"rotated or sheared geotransform.*north-up",
+        values="depth",
+    ),
+    _grid_case(
+        "grid-sheared-transform",
+        _mk_sheared,
+        E.InputError,
+        r"rotated or sheared geotransform",
+        values="depth",
+    ),
     _grid_case("grid-3d-variable", _mk_3d, E.InputError, r"'z' has dims \('time', 'lat', 'lon'\).*2-D"),
     _grid_case("grid-all-nan", _mk_nc("nan.nc", np.nan), E.InputError, r"every cell is nodata"),
     _grid_case("grid-all-land", _mk_nc("land.nc", 250.0), E.InputError, r"no sea cells"),
     _grid_case("grid-constant-zero-depth", _mk_nc("zero.nc", 0.0), E.InputError, r"no sea cells"),
-    _grid_case("grid-sign-undecidable", _mk_nc("plain.nc", -1000.0, attrs={}), E.SignConventionError,
-               r"cannot tell whether 'z' holds elevation or depth.*values='elevation'"),
+    _grid_case(
+        "grid-sign-undecidable",
+        _mk_nc("plain.nc", -1000.0, attrs={}),
+        E.SignConventionError,
+        r"cannot tell whether 'z' holds elevation or depth.*values='elevation'",
+    ),
     # CF 1.8 section 4.3: positive="up" declares elevation; the user claims depth
-    _grid_case("grid-sign-contradicts-positive-attr", _mk_nc("up.nc", -1000.0), E.SignConventionError,
-               r"values='depth' contradicts.*positive='up'", values="depth"),
+    _grid_case(
+        "grid-sign-contradicts-positive-attr",
+        _mk_nc("up.nc", -1000.0),
+        E.SignConventionError,
+        r"values='depth' contradicts.*positive='up'",
+        values="depth",
+    ),
     # latitude in [-90, 90]: a 'lat' axis running to 200 holds longitudes
-    _grid_case("grid-lat-lon-swapped", _mk_nc("swap.nc", -1000.0, lat=np.arange(0.0, 201.0, 50.0)),
-               E.InputError, r"beyond \+/-90 degrees; are longitude and latitude swapped"),
-    _grid_case("grid-irregular-spacing", _mk_nc("irr.nc", -1000.0, lon=[0.0, 1.0, 2.0, 4.0, 5.0]),
-               E.InputError, r"'lon' is not regularly spaced"),
-    _grid_case("grid-two-bands", lambda t: _tif(t / "two.tif", np.stack([_shelf(), _shelf()]), count=2),
-               E.InputError, r"has 2 bands; expected a single-band", values="depth"),
-    _grid_case("grid-several-variables", _mk_nc("several.nc", -1000.0, extra_vars=["w"]), E.InputError,
-               r"several 2-D variables.*variable="),
-    _grid_case("grid-unknown-variable", _mk_nc("one.nc", -1000.0), E.InputError, r"no variable 'elev'",
-               variable="elev"),
-    _grid_case("grid-variable-on-geotiff", _good_tif, E.InputError, r"'variable' applies to NetCDF files only",
-               variable="z"),
-    _grid_case("grid-unknown-vertical-units", _mk_nc("fath.nc", -1000.0, attrs={"positive": "up",
-                                                                               "units": "fathoms"}),
-               E.InputError, r"vertical units 'fathoms' not understood"),
-    _grid_case("grid-single-row", _mk_nc("row.nc", -1000.0, lat=[0.0]), E.InputError,
-               r"'z' has dims \('lat', 'lon'\); expected a 2-D|at least 2 x 2"),
-    _grid_case("grid-memory-limit", _good_tif, E.ResourceLimitError, r"needs about .* GB, above the limit",
-               values="depth", max_memory_gb=1e-5),
-    ApiCase("grid-bbox-outside", lambda t: (_load(_good_tif(t), values="depth", bbox=(0.0, 0.0, 1e3, 1e3)),
-                                            "bbox (0.0, 0.0, 1000.0, 1000.0)"),
-            E.InputError, r"does not overlap the grid \(400000.0, 4400000.0"),
-    ApiCase("grid-bad-values-option", lambda t: (_load(_good_tif(t), values="height"), "values='height'"),
-            E.InputError, r"expected 'auto', 'elevation' or 'depth'"),
+    _grid_case(
+        "grid-lat-lon-swapped",
+        _mk_nc("swap.nc", -1000.0, lat=np.arange(0.0, 201.0, 50.0)),
+        E.InputError,
+        r"beyond \+/-90 degrees; are longitude and latitude swapped",
+    ),
+    _grid_case(
+        "grid-irregular-spacing",
+        _mk_nc("irr.nc", -1000.0, lon=[0.0, 1.0, 2.0, 4.0, 5.0]),
+        E.InputError,
+        r"'lon' is not regularly spaced",
+    ),
+    _grid_case(
+        "grid-two-bands",
+        lambda t: _tif(t / "two.tif", np.stack([_shelf(), _shelf()]), count=2),
+        E.InputError,
+        r"has 2 bands; expected a single-band",
+        values="depth",
+    ),
+    _grid_case(
+        "grid-several-variables",
+        _mk_nc("several.nc", -1000.0, extra_vars=["w"]),
+        E.InputError,
+        r"several 2-D variables.*variable=",
+    ),
+    _grid_case(
+        "grid-unknown-variable",
+        _mk_nc("one.nc", -1000.0),
+        E.InputError,
+        r"no variable 'elev'",
+        variable="elev",
+    ),
+    _grid_case(
+        "grid-variable-on-geotiff",
+        _good_tif,
+        E.InputError,
+        r"'variable' applies to NetCDF files only",
+        variable="z",
+    ),
+    _grid_case(
+        "grid-unknown-vertical-units",
+        _mk_nc("fath.nc", -1000.0, attrs={"positive": "up", "units": "fathoms"}),
+        E.InputError,
+        r"vertical units 'fathoms' not understood",
+    ),
+    _grid_case(
+        "grid-single-row",
+        _mk_nc("row.nc", -1000.0, lat=[0.0]),
+        E.InputError,
+        r"'z' has dims \('lat', 'lon'\); expected a 2-D|at least 2 x 2",
+    ),
+    _grid_case(
+        "grid-memory-limit",
+        _good_tif,
+        E.ResourceLimitError,
+        r"needs about .* GB, above the limit",
+        values="depth",
+        max_memory_gb=1e-5,
+    ),
+    ApiCase(
+        "grid-bbox-outside",
+        lambda t: (
+            _load(_good_tif(t), values="depth", bbox=(0.0, 0.0, 1e3, 1e3)),
+            "bbox (0.0, 0.0, 1000.0, 1000.0)",
+        ),
+        E.InputError,
+        r"does not overlap the grid \(400000.0, 4400000.0",
+    ),
+    ApiCase(
+        "grid-bad-values-option",
+        lambda t: (_load(_good_tif(t), values="height"), "values='height'"),
+        E.InputError,
+        r"expected 'auto', 'elevation' or 'depth'",
+    ),
 ]
 
 
@@ -262,7 +389,9 @@ def _parse(path):
     return lambda: parse_scenario(path)
 
 
-def _scen_case(id_, edit: Callable[[str], str] | None, pattern, *, raw: bytes | None = None, name="scenario.toml"):
+def _scen_case(
+    id_, edit: Callable[[str], str] | None, pattern, *, raw: bytes | None = None, name="scenario.toml"
+):
     def build(tmp):
         p = _scenario(tmp)
         if raw is not None:
@@ -275,31 +404,66 @@ def _scen_case(id_, edit: Callable[[str], str] | None, pattern, *, raw: bytes | 
 
 
 SCENARIO_CASES = [
-    _scen_case("scenario-unknown-key", lambda s: s.replace("count = 200", "cuont = 200"),
-               r"\[rays\].*unknown key 'cuont'.*did you mean 'count'"),
-    _scen_case("scenario-unknown-section", lambda s: s + "\n[raytracing]\nx = 1\n",
-               r"unknown section 'raytracing'"),
-    _scen_case("scenario-wrong-type-string", lambda s: s.replace("count = 200", 'count = "200"'),
-               r"count = \"200\".*integer"),
-    _scen_case("scenario-wrong-type-float-for-int", lambda s: s.replace("count = 200", "count = 2.5"),
-               r"count = 2\.5.*integer"),
-    _scen_case("scenario-out-of-range-stop-depth", lambda s: s.replace("stop_depth_m = 20.0", "stop_depth_m = -5.0"),
-               r"stop_depth_m = -5.*> 0 and <= 2000 m"),
-    _scen_case("scenario-out-of-range-time", lambda s: s.replace("max_time_h = 1.0", "max_time_h = 500.0"),
-               r"max_time_h = 500.*<= 72 h"),
+    _scen_case(
+        "scenario-unknown-key",
+        lambda s: s.replace("count = 200", "cuont = 200"),
+        r"\[rays\].*unknown key 'cuont'.*did you mean 'count'",
+    ),
+    _scen_case(
+        "scenario-unknown-section", lambda s: s + "\n[raytracing]\nx = 1\n", r"unknown section 'raytracing'"
+    ),
+    _scen_case(
+        "scenario-wrong-type-string",
+        lambda s: s.replace("count = 200", 'count = "200"'),
+        r"count = \"200\".*integer",
+    ),
+    _scen_case(
+        "scenario-wrong-type-float-for-int",
+        lambda s: s.replace("count = 200", "count = 2.5"),
+        r"count = 2\.5.*integer",
+    ),
+    _scen_case(
+        "scenario-out-of-range-stop-depth",
+        lambda s: s.replace("stop_depth_m = 20.0", "stop_depth_m = -5.0"),
+        r"stop_depth_m = -5.*> 0 and <= 2000 m",
+    ),
+    _scen_case(
+        "scenario-out-of-range-time",
+        lambda s: s.replace("max_time_h = 1.0", "max_time_h = 500.0"),
+        r"max_time_h = 500.*<= 72 h",
+    ),
     # latitude in [-90, 90]
-    _scen_case("scenario-source-lat-out-of-range", lambda s: re.sub(r"lat = [-0-9.]+", "lat = 140.0", s, count=1),
-               r"lat = 140.*>= -90 and <= 90 degrees"),
+    _scen_case(
+        "scenario-source-lat-out-of-range",
+        lambda s: re.sub(r"lat = [-0-9.]+", "lat = 140.0", s, count=1),
+        r"lat = 140.*>= -90 and <= 90 degrees",
+    ),
     # TOML v1.0.0: a TOML file must be a valid UTF-8 encoded Unicode document
-    _scen_case("scenario-latin1-encoding", None, r"not UTF-8 text",
-               raw='[scenario]\nname = "Baie de l\u00e9gende"\n'.encode("latin-1")),
-    _scen_case("scenario-utf16-encoding", None, r"not UTF-8 text|invalid TOML",
-               raw='[scenario]\nname = "x"\n'.encode("utf-16")),
-    _scen_case("scenario-invalid-toml", lambda s: s.replace("count = 200", "count = [200"), r"line \d+.*invalid TOML"),
-    _scen_case("scenario-bool-as-string", lambda s: s.replace("figures = false", 'figures = "no"'),
-               r'figures = "no".*true or false'),
-    _scen_case("scenario-missing-bathymetry-path", lambda s: s.replace('path = "shelf.tif"', ""),
-               r"\[bathymetry\]: missing key 'path'"),
+    _scen_case(
+        "scenario-latin1-encoding",
+        None,
+        r"not UTF-8 text",
+        raw='[scenario]\nname = "Baie de l\u00e9gende"\n'.encode("latin-1"),
+    ),
+    _scen_case(
+        "scenario-utf16-encoding",
+        None,
+        r"not UTF-8 text|invalid TOML",
+        raw='[scenario]\nname = "x"\n'.encode("utf-16"),
+    ),
+    _scen_case(
+        "scenario-invalid-toml", lambda s: s.replace("count = 200", "count = [200"), r"line \d+.*invalid TOML"
+    ),
+    _scen_case(
+        "scenario-bool-as-string",
+        lambda s: s.replace("figures = false", 'figures = "no"'),
+        r'figures = "no".*true or false',
+    ),
+    _scen_case(
+        "scenario-missing-bathymetry-path",
+        lambda s: s.replace('path = "shelf.tif"', ""),
+        r"\[bathymetry\]: missing key 'path'",
+    ),
 ]
 
 
@@ -324,8 +488,9 @@ def _point_source(x, y, crs=UTM, name="hump"):
 def _fault(trace, name="f"):
     from tsunamifocus.source import FaultSegment
 
-    return FaultSegment(trace=trace, top_depth_km=5.0, dip_deg=15.0, width_km=60.0, slip_m=3.0, rake_deg=90.0,
-                        name=name)
+    return FaultSegment(
+        trace=trace, top_depth_km=5.0, dip_deg=15.0, width_km=60.0, slip_m=3.0, rake_deg=90.0, name=name
+    )
 
 
 def _uplift(src, depth):
@@ -359,20 +524,42 @@ def _fan_case(id_, n_rays, make_eta, pattern, names):
 
 
 SOURCE_CASES = [
-    _src_case("source-point-on-land", lambda: _point_source(555_000.0, 4_480_000.0), lambda: _plane(_shelf()),
-              r"centre .* lies on land or no-data", "hump"),
-    _src_case("source-point-outside-grid", lambda: _point_source(900_000.0, 4_480_000.0), lambda: _plane(_shelf()),
-              r"lie outside the grid \(bounds", "900000"),
-    _src_case("source-fault-trace-on-land",
-              lambda: _fault((_ll(548_000.0, 4_450_000.0), _ll(552_000.0, 4_520_000.0)), name="onshore"),
-              lambda: _plane(_shelf()), r"whole fault trace .* lies on land", "onshore"),
-    _src_case("source-fault-outside-grid",
-              lambda: _fault(((30.0, 10.0), (30.5, 11.0)), name="far"), lambda: _plane(_shelf()),
-              r"lie outside the grid", "far"),
+    _src_case(
+        "source-point-on-land",
+        lambda: _point_source(555_000.0, 4_480_000.0),
+        lambda: _plane(_shelf()),
+        r"centre .* lies on land or no-data",
+        "hump",
+    ),
+    _src_case(
+        "source-point-outside-grid",
+        lambda: _point_source(900_000.0, 4_480_000.0),
+        lambda: _plane(_shelf()),
+        r"lie outside the grid \(bounds",
+        "900000",
+    ),
+    _src_case(
+        "source-fault-trace-on-land",
+        lambda: _fault((_ll(548_000.0, 4_450_000.0), _ll(552_000.0, 4_520_000.0)), name="onshore"),
+        lambda: _plane(_shelf()),
+        r"whole fault trace .* lies on land",
+        "onshore",
+    ),
+    _src_case(
+        "source-fault-outside-grid",
+        lambda: _fault(((30.0, 10.0), (30.5, 11.0)), name="far"),
+        lambda: _plane(_shelf()),
+        r"lie outside the grid",
+        "far",
+    ),
     # crossing the antimeridian on a regional grid that stops at 179.5 E: the east end is off the grid
-    _src_case("source-antimeridian-on-regional-grid",
-              lambda: _fault(((179.0, -11.0), (-179.0, -9.0)), name="dateline"), _regional_180,
-              r"outside the grid \(bounds \(149\.75", "dateline"),
+    _src_case(
+        "source-antimeridian-on-regional-grid",
+        lambda: _fault(((179.0, -11.0), (-179.0, -9.0)), name="dateline"),
+        _regional_180,
+        r"outside the grid \(bounds \(149\.75",
+        "dateline",
+    ),
     _fan_case("source-fan-too-few-rays", 3, lambda d: d * 0 + 1.0, r"n_rays must be an integer >= 8", "3"),
     _fan_case("source-fan-no-uplift-over-sea", 500, lambda d: d * 0.0, r"no sea-surface displacement", "sea"),
 ]
@@ -381,12 +568,24 @@ SOURCE_CASES = [
 def _nan_trace():
     from tsunamifocus.source import FaultSegment
 
-    return FaultSegment(trace=((float("nan"), 0.0), (1.0, 1.0)), top_depth_km=5.0, dip_deg=15.0, width_km=50.0,
-                        slip_m=1.0, name="nan trace")
+    return FaultSegment(
+        trace=((float("nan"), 0.0), (1.0, 1.0)),
+        top_depth_km=5.0,
+        dip_deg=15.0,
+        width_km=50.0,
+        slip_m=1.0,
+        name="nan trace",
+    )
 
 
-SOURCE_CASES.append(ApiCase("source-non-finite-trace", lambda tmp: (_nan_trace, "nan"), E.SourceError,
-                            r"trace has non-finite coordinates"))
+SOURCE_CASES.append(
+    ApiCase(
+        "source-non-finite-trace",
+        lambda tmp: (_nan_trace, "nan"),
+        E.SourceError,
+        r"trace has non-finite coordinates",
+    )
+)
 
 
 # ---- ray launch errors
@@ -406,23 +605,54 @@ def _ray_case(id_, pattern, names, **over):
 
 RAY_CASES = [
     _ray_case("rays-launch-on-land", r"launched on land at .*depth -", "555000", x0=[555_000.0]),
-    _ray_case("rays-launch-outside-grid", r"launched outside the grid.*grid bounds", "900000", x0=[900_000.0]),
-    _ray_case("rays-launch-in-nan-hole", r"launched on a no-data \(NaN\) cell", "ray 0",
-              x0=[424_000.0], y0=[4_424_000.0]),
-    _ray_case("rays-nan-weight", r"weights\[0\] = nan J: expected a finite energy >= 0", "weights", weights=[np.nan]),
-    _ray_case("rays-negative-weight", r"weights\[0\] = -2.0 J: expected a finite energy >= 0", "-2.0",
-              weights=[-2.0]),
+    _ray_case(
+        "rays-launch-outside-grid", r"launched outside the grid.*grid bounds", "900000", x0=[900_000.0]
+    ),
+    _ray_case(
+        "rays-launch-in-nan-hole",
+        r"launched on a no-data \(NaN\) cell",
+        "ray 0",
+        x0=[424_000.0],
+        y0=[4_424_000.0],
+    ),
+    _ray_case(
+        "rays-nan-weight", r"weights\[0\] = nan J: expected a finite energy >= 0", "weights", weights=[np.nan]
+    ),
+    _ray_case(
+        "rays-negative-weight",
+        r"weights\[0\] = -2.0 J: expected a finite energy >= 0",
+        "-2.0",
+        weights=[-2.0],
+    ),
     _ray_case("rays-zero-rays", r"no rays to trace: x0 is empty", "x0", x0=[], y0=[], azimuth_deg=[]),
-    _ray_case("rays-stop-isobath-deeper-than-launch", r"stop_depth = 3900.0 m is not shallower than the launch depth",
-              "3900", stop_depth=3900.0),
-    _ray_case("rays-absurd-step", r"step_s = 1000000.0 s: expected 0 < step_s <= [0-9.]+ s", "step_s", step_s=1e6),
+    _ray_case(
+        "rays-stop-isobath-deeper-than-launch",
+        r"stop_depth = 3900.0 m is not shallower than the launch depth",
+        "3900",
+        stop_depth=3900.0,
+    ),
+    _ray_case(
+        "rays-absurd-step", r"step_s = 1000000.0 s: expected 0 < step_s <= [0-9.]+ s", "step_s", step_s=1e6
+    ),
     _ray_case("rays-zero-step", r"step_s = 0.0 s: expected 0 < step_s", "step_s", step_s=0.0),
-    _ray_case("rays-negative-time-limit", r"max_time_s = -60.0: expected a positive time", "max_time_s",
-              max_time_s=-60.0),
-    _ray_case("rays-mismatched-lengths", r"azimuth_deg has 2 values, expected 1", "azimuth_deg",
-              azimuth_deg=[0.0, 90.0]),
-    _ray_case("rays-nan-azimuth", r"azimuth_deg\[0\] = nan is not finite", "azimuth_deg", azimuth_deg=[np.nan]),
-    _ray_case("rays-negative-keep-paths", r"keep_paths = -1: expected a count >= 0", "keep_paths", keep_paths=-1),
+    _ray_case(
+        "rays-negative-time-limit",
+        r"max_time_s = -60.0: expected a positive time",
+        "max_time_s",
+        max_time_s=-60.0,
+    ),
+    _ray_case(
+        "rays-mismatched-lengths",
+        r"azimuth_deg has 2 values, expected 1",
+        "azimuth_deg",
+        azimuth_deg=[0.0, 90.0],
+    ),
+    _ray_case(
+        "rays-nan-azimuth", r"azimuth_deg\[0\] = nan is not finite", "azimuth_deg", azimuth_deg=[np.nan]
+    ),
+    _ray_case(
+        "rays-negative-keep-paths", r"keep_paths = -1: expected a count >= 0", "keep_paths", keep_paths=-1
+    ),
 ]
 
 
@@ -442,13 +672,20 @@ def _coast_case(id_, make, pattern, **kw):
 
 
 def _mk_gpkg_no_crs(tmp):
-    import shapely
     import pyogrio
+    import shapely
 
     p = tmp / "nocrs.gpkg"
     with pytest.warns(UserWarning):
-        pyogrio.raw.write(p, np.array([shapely.to_wkb(LineString([(0, 0), (1, 1)]))], dtype=object),
-                          geometry_type="LineString", field_data=[], fields=[], crs=None, driver="GPKG")
+        pyogrio.raw.write(
+            p,
+            np.array([shapely.to_wkb(LineString([(0, 0), (1, 1)]))], dtype=object),
+            geometry_type="LineString",
+            field_data=[],
+            fields=[],
+            crs=None,
+            driver="GPKG",
+        )
     return p
 
 
@@ -462,27 +699,55 @@ _SEA_LINE = LineString([(538_000.0, 4_410_000.0), (538_000.0, 4_550_000.0)])
 
 COAST_CASES = [
     _coast_case("coast-file-missing", lambda t: t / "absent.geojson", r"does not exist"),
-    _coast_case("coast-file-unreadable", lambda t: _put(t / "junk.geojson", "{not json"),
-                r"cannot be read as a vector file"),
+    _coast_case(
+        "coast-file-unreadable",
+        lambda t: _put(t / "junk.geojson", "{not json"),
+        r"cannot be read as a vector file",
+    ),
     _coast_case("coast-file-without-crs", _mk_gpkg_no_crs, r"has no CRS; expected a file with a defined CRS"),
-    _coast_case("coast-only-empty-geometries", lambda t: _geojson(t / "empty.geojson", [None, None]),
-                r"no usable line or polygon features"),
-    _coast_case("coast-invalid-one-point-line",
-                lambda t: _geojson(t / "onept.geojson", [{"type": "LineString", "coordinates": [[15.0, 40.0]]}]),
-                r"no usable line or polygon features \(1 empty or invalid\)"),
-    _coast_case("coast-only-points",
-                lambda t: _geojson(t / "points.geojson", [{"type": "Point", "coordinates": [15.0, 40.0]}]),
-                r"no usable line or polygon features"),
-    _coast_case("coast-name-field-missing",
-                lambda t: _geojson(t / "named.geojson", [{"type": "LineString", "coordinates": _coast_line_ll()}],
-                                   [{"label": "north"}]),
-                r"name_field 'name' not found; fields are \['label'\]", name_field="name"),
-    ApiCase("coast-segment-length-zero", lambda t: (_segment([_SEA_LINE], 0.0), "segment_length_m"), E.CoastError,
-            r"segment_length_m=0.0: expected a length > 0 m"),
-    ApiCase("coast-segment-longer-than-coast", lambda t: (_segment([_SEA_LINE], 1e7), "10000000"), E.CoastError,
-            r"longer than the whole coastline \(140000 m\)"),
-    ApiCase("coast-no-lines", lambda t: (_segment([LineString()], 1e4), "empty"), E.CoastError,
-            r"no coastline lines given \(empty list\)"),
+    _coast_case(
+        "coast-only-empty-geometries",
+        lambda t: _geojson(t / "empty.geojson", [None, None]),
+        r"no usable line or polygon features",
+    ),
+    _coast_case(
+        "coast-invalid-one-point-line",
+        lambda t: _geojson(t / "onept.geojson", [{"type": "LineString", "coordinates": [[15.0, 40.0]]}]),
+        r"no usable line or polygon features \(1 empty or invalid\)",
+    ),
+    _coast_case(
+        "coast-only-points",
+        lambda t: _geojson(t / "points.geojson", [{"type": "Point", "coordinates": [15.0, 40.0]}]),
+        r"no usable line or polygon features",
+    ),
+    _coast_case(
+        "coast-name-field-missing",
+        lambda t: _geojson(
+            t / "named.geojson",
+            [{"type": "LineString", "coordinates": _coast_line_ll()}],
+            [{"label": "north"}],
+        ),
+        r"name_field 'name' not found; fields are \['label'\]",
+        name_field="name",
+    ),
+    ApiCase(
+        "coast-segment-length-zero",
+        lambda t: (_segment([_SEA_LINE], 0.0), "segment_length_m"),
+        E.CoastError,
+        r"segment_length_m=0.0: expected a length > 0 m",
+    ),
+    ApiCase(
+        "coast-segment-longer-than-coast",
+        lambda t: (_segment([_SEA_LINE], 1e7), "10000000"),
+        E.CoastError,
+        r"longer than the whole coastline \(140000 m\)",
+    ),
+    ApiCase(
+        "coast-no-lines",
+        lambda t: (_segment([LineString()], 1e4), "empty"),
+        E.CoastError,
+        r"no coastline lines given \(empty list\)",
+    ),
 ]
 
 
@@ -565,18 +830,29 @@ def _source_at(x, y, name="hump"):
 
 def _fault_src(trace, name="rupture"):
     (a, b), (c, d) = trace
-    return (f'name = "{name}"\nkind = "fault"\ntrace = [[{a}, {b}], [{c}, {d}]]\ntop_depth_km = 5.0\n'
-            f"dip_deg = 15.0\nwidth_km = 60.0\nslip_m = 3.0\n")
+    return (
+        f'name = "{name}"\nkind = "fault"\ntrace = [[{a}, {b}], [{c}, {d}]]\ntop_depth_km = 5.0\n'
+        f"dip_deg = 15.0\nwidth_km = 60.0\nslip_m = 3.0\n"
+    )
 
 
 def _regional_tif_scenario(tmp):
     # lon/lat GeoTIFF 150..179.5 E, deep sea; a fault crossing the antimeridian
     lon0, d = 149.75, 0.5
     lon = lon0 + d * (np.arange(60) + 0.5)
-    h = np.repeat(np.clip(4000.0 * (lon - 152.0) / 3.0, -50.0, 4000.0)[None, :], 40, axis=0)  # coast near 152 E
-    _tif(tmp / "regional.tif", h, crs="EPSG:4326",
-         transform=from_origin(lon0, 0.25, d, d), band_tags={"positive": "down", "units": "m"})
-    return _scenario(tmp, grid="regional.tif", source=_fault_src(((179.0, -11.0), (-179.0, -9.0)), "dateline"))
+    h = np.repeat(
+        np.clip(4000.0 * (lon - 152.0) / 3.0, -50.0, 4000.0)[None, :], 40, axis=0
+    )  # coast near 152 E
+    _tif(
+        tmp / "regional.tif",
+        h,
+        crs="EPSG:4326",
+        transform=from_origin(lon0, 0.25, d, d),
+        band_tags={"positive": "down", "units": "m"},
+    )
+    return _scenario(
+        tmp, grid="regional.tif", source=_fault_src(((179.0, -11.0), (-179.0, -9.0)), "dateline")
+    )
 
 
 def _empty_run_folder(tmp):
@@ -588,66 +864,135 @@ def _empty_run_folder(tmp):
 CLI_CASES = [
     # inspect: grids
     CliCase("cli-inspect-missing-grid", _inspect(lambda t: t / "absent.tif"), r"file not found"),
-    CliCase("cli-inspect-empty-grid", _inspect(lambda t: _put(t / "e.nc", b"")),
-            r"file is empty"),
-    CliCase("cli-inspect-truncated-geotiff", _inspect(lambda t: _truncate(_good_tif(t), 0.3), "--values", "depth"),
-            r"not a readable raster|cannot read raster data"),
-    CliCase("cli-inspect-corrupt-netcdf", _inspect(lambda t: _put(t / "j.nc", b"\x89HDF\r\n\x1a\n" + b"\0" * 99)), r"not a readable NetCDF"),
-    CliCase("cli-inspect-no-crs", _inspect(lambda t: _tif(t / "nocrs.tif", _shelf(), crs=None), "--values", "depth"),
-            r"raster has no CRS"),
+    CliCase("cli-inspect-empty-grid", _inspect(lambda t: _put(t / "e.nc", b"")), r"file is empty"),
+    CliCase(
+        "cli-inspect-truncated-geotiff",
+        _inspect(lambda t: _truncate(_good_tif(t), 0.3), "--values", "depth"),
+        r"not a readable raster|cannot read raster data",
+    ),
+    CliCase(
+        "cli-inspect-corrupt-netcdf",
+        _inspect(lambda t: _put(t / "j.nc", b"\x89HDF\r\n\x1a\n" + b"\0" * 99)),
+        r"not a readable NetCDF",
+    ),
+    CliCase(
+        "cli-inspect-no-crs",
+        _inspect(lambda t: _tif(t / "nocrs.tif", _shelf(), crs=None), "--values", "depth"),
+        r"raster has no CRS",
+    ),
     CliCase("cli-inspect-rotated", _inspect(_mk_rotated, "--values", "depth"), r"rotated or sheared"),
     CliCase("cli-inspect-3d", _inspect(_mk_3d), r"expected a 2-D \(y, x\) grid"),
     CliCase("cli-inspect-all-nan", _inspect(_mk_nc("nan.nc", np.nan)), r"every cell is nodata"),
     CliCase("cli-inspect-all-land", _inspect(_mk_nc("land.nc", 120.0)), r"no sea cells"),
-    CliCase("cli-inspect-sign-undecidable", _inspect(_mk_nc("plain.nc", -1000.0, attrs={})),
-            r"values='elevation'.*values='depth'"),
-    CliCase("cli-inspect-sign-contradiction", _inspect(_mk_nc("up.nc", -1000.0), "--values", "depth"),
-            r"contradicts the file's attribute positive='up'"),
-    CliCase("cli-inspect-lat-lon-swapped", _inspect(_mk_nc("swap.nc", -1000.0, lat=np.arange(0.0, 201.0, 50.0))),
-            r"are longitude and latitude swapped"),
-    CliCase("cli-inspect-memory-limit-nonpositive",
-            lambda t: (["inspect", str(_good_tif(t)), "--max-memory-gb", "-1"], "max_memory_gb=-1.0"),
-            r"expected a positive number of GB"),
+    CliCase(
+        "cli-inspect-sign-undecidable",
+        _inspect(_mk_nc("plain.nc", -1000.0, attrs={})),
+        r"values='elevation'.*values='depth'",
+    ),
+    CliCase(
+        "cli-inspect-sign-contradiction",
+        _inspect(_mk_nc("up.nc", -1000.0), "--values", "depth"),
+        r"contradicts the file's attribute positive='up'",
+    ),
+    CliCase(
+        "cli-inspect-lat-lon-swapped",
+        _inspect(_mk_nc("swap.nc", -1000.0, lat=np.arange(0.0, 201.0, 50.0))),
+        r"are longitude and latitude swapped",
+    ),
+    CliCase(
+        "cli-inspect-memory-limit-nonpositive",
+        lambda t: (["inspect", str(_good_tif(t)), "--max-memory-gb", "-1"], "max_memory_gb=-1.0"),
+        r"expected a positive number of GB",
+    ),
     # run: scenario files
-    CliCase("cli-run-missing-scenario", _run(lambda t: t / "absent.toml", "absent.toml"), r"scenario file not found"),
-    CliCase("cli-run-unknown-key", _run(_scen_edit("count = 200", "nrays = 200"), "nrays"),
-            r"unknown key 'nrays'"),
-    CliCase("cli-run-wrong-type", _run(_scen_edit("max_time_h = 1.0", 'max_time_h = "one"'), "max_time_h"),
-            r'max_time_h = "one".*a number'),
-    CliCase("cli-run-out-of-range", _run(_scen_edit("radius_km = 20", "radius_km = -20"), "radius_km"),
-            r"radius_km = -20.*> 0"),
-    CliCase("cli-run-latin1", _run(lambda t: _put(t / "l1.toml", 'name = "\u00e9"\n'.encode("latin-1")), "l1.toml"), r"not UTF-8 text"),
-    CliCase("cli-run-rays-zero", _run(lambda t: _scenario(t), "--rays 0", "--rays", "0"),
-            r"expected a positive number of rays"),
+    CliCase(
+        "cli-run-missing-scenario",
+        _run(lambda t: t / "absent.toml", "absent.toml"),
+        r"scenario file not found",
+    ),
+    CliCase(
+        "cli-run-unknown-key", _run(_scen_edit("count = 200", "nrays = 200"), "nrays"), r"unknown key 'nrays'"
+    ),
+    CliCase(
+        "cli-run-wrong-type",
+        _run(_scen_edit("max_time_h = 1.0", 'max_time_h = "one"'), "max_time_h"),
+        r'max_time_h = "one".*a number',
+    ),
+    CliCase(
+        "cli-run-out-of-range",
+        _run(_scen_edit("radius_km = 20", "radius_km = -20"), "radius_km"),
+        r"radius_km = -20.*> 0",
+    ),
+    CliCase(
+        "cli-run-latin1",
+        _run(lambda t: _put(t / "l1.toml", 'name = "\u00e9"\n'.encode("latin-1")), "l1.toml"),
+        r"not UTF-8 text",
+    ),
+    CliCase(
+        "cli-run-rays-zero",
+        _run(lambda t: _scenario(t), "--rays 0", "--rays", "0"),
+        r"expected a positive number of rays",
+    ),
     # run: data referenced by a valid scenario
-    CliCase("cli-run-grid-missing", _run(lambda t: _scenario(t, grid="gone.tif"), "gone.tif"), r"file not found"),
-    CliCase("cli-run-grid-sign-undecidable",
-            _run(lambda t: _scenario(t, grid=_tif(t / "nosign.tif", _shelf()).name), "nosign.tif"),
-            r"cannot tell whether"),
-    CliCase("cli-run-source-on-land", _run(lambda t: _scenario(t, source=_source_at(556_000.0, 4_480_000.0)), "hump"),
-            r"lies on land or no-data"),
-    CliCase("cli-run-source-outside-grid",
-            _run(lambda t: _scenario(t, source=_source_at(1_200_000.0, 4_480_000.0)), "hump"),
-            r"outside the grid"),
-    CliCase("cli-run-fault-across-antimeridian-regional", _run(_regional_tif_scenario, "dateline"),
-            r"outside the grid"),
-    CliCase("cli-run-coast-file-missing", _run(_scen_edit("[output]", '[coast]\nfrom = "gone.geojson"\n\n[output]'),
-                                               "gone.geojson"), r"does not exist"),
-    CliCase("cli-run-coast-file-empty-geometries",
-            _run(_with_coast_file(lambda t: _geojson(t / "blank.geojson", [None])), "blank.geojson"),
-            r"no usable line or polygon features"),
-    CliCase("cli-run-coast-file-invalid-geometry",
-            _run(_with_coast_file(lambda t: _geojson(t / "bad.geojson",
-                                                     [{"type": "LineString", "coordinates": [[15.0, 40.0]]}])),
-                 "bad.geojson"),
-            r"1 empty or invalid"),
+    CliCase(
+        "cli-run-grid-missing", _run(lambda t: _scenario(t, grid="gone.tif"), "gone.tif"), r"file not found"
+    ),
+    CliCase(
+        "cli-run-grid-sign-undecidable",
+        _run(lambda t: _scenario(t, grid=_tif(t / "nosign.tif", _shelf()).name), "nosign.tif"),
+        r"cannot tell whether",
+    ),
+    CliCase(
+        "cli-run-source-on-land",
+        _run(lambda t: _scenario(t, source=_source_at(556_000.0, 4_480_000.0)), "hump"),
+        r"lies on land or no-data",
+    ),
+    CliCase(
+        "cli-run-source-outside-grid",
+        _run(lambda t: _scenario(t, source=_source_at(1_200_000.0, 4_480_000.0)), "hump"),
+        r"outside the grid",
+    ),
+    CliCase(
+        "cli-run-fault-across-antimeridian-regional",
+        _run(_regional_tif_scenario, "dateline"),
+        r"outside the grid",
+    ),
+    CliCase(
+        "cli-run-coast-file-missing",
+        _run(_scen_edit("[output]", '[coast]\nfrom = "gone.geojson"\n\n[output]'), "gone.geojson"),
+        r"does not exist",
+    ),
+    CliCase(
+        "cli-run-coast-file-empty-geometries",
+        _run(_with_coast_file(lambda t: _geojson(t / "blank.geojson", [None])), "blank.geojson"),
+        r"no usable line or polygon features",
+    ),
+    CliCase(
+        "cli-run-coast-file-invalid-geometry",
+        _run(
+            _with_coast_file(
+                lambda t: _geojson(t / "bad.geojson", [{"type": "LineString", "coordinates": [[15.0, 40.0]]}])
+            ),
+            "bad.geojson",
+        ),
+        r"1 empty or invalid",
+    ),
     # other commands
-    CliCase("cli-compare-one-run", lambda t: (["compare", str(t), "--out", str(t / "cmp")], "two run folders"),
-            r"at least two run folders"),
-    CliCase("cli-check-not-a-run", lambda t: (["-q", "check", str(_empty_run_folder(t))], "not_a_run"),
-            r"not_a_run"),
-    CliCase("cli-demo-rays-zero", lambda t: (["demo", "--out", str(t / "d"), "--rays", "0"], "--rays 0"),
-            r"expected a positive number of rays"),
+    CliCase(
+        "cli-compare-one-run",
+        lambda t: (["compare", str(t), "--out", str(t / "cmp")], "two run folders"),
+        r"at least two run folders",
+    ),
+    CliCase(
+        "cli-check-not-a-run",
+        lambda t: (["-q", "check", str(_empty_run_folder(t))], "not_a_run"),
+        r"not_a_run",
+    ),
+    CliCase(
+        "cli-demo-rays-zero",
+        lambda t: (["demo", "--out", str(t / "d"), "--rays", "0"], "--rays 0"),
+        r"expected a positive number of rays",
+    ),
 ]
 
 

@@ -41,18 +41,26 @@ DATED = ("manifest.json", "appendix.html", "appendix.pdf")
 
 
 def _small(sc, rays=800, members=2):
-    return dataclasses.replace(sc, rays=dataclasses.replace(sc.rays, count=rays),
-                               ensemble=dataclasses.replace(sc.ensemble, members=members))
+    return dataclasses.replace(
+        sc,
+        rays=dataclasses.replace(sc.rays, count=rays),
+        ensemble=dataclasses.replace(sc.ensemble, members=members),
+    )
 
 
 def _hashes(folder: pathlib.Path) -> dict[str, str]:
-    return {p.relative_to(folder).as_posix(): hashlib.sha256(p.read_bytes()).hexdigest()
-            for p in sorted(folder.rglob("*")) if p.is_file()}
+    return {
+        p.relative_to(folder).as_posix(): hashlib.sha256(p.read_bytes()).hexdigest()
+        for p in sorted(folder.rglob("*"))
+        if p.is_file()
+    }
 
 
 def _siblings(folder: pathlib.Path) -> list[str]:
     """Hidden temporary / set-aside siblings OutputFolder creates next to ``folder``."""
-    return sorted(p.name for p in folder.parent.iterdir() if p.name.startswith(f".{folder.name}.tsunamifocus-"))
+    return sorted(
+        p.name for p in folder.parent.iterdir() if p.name.startswith(f".{folder.name}.tsunamifocus-")
+    )
 
 
 @pytest.fixture(scope="module")
@@ -71,8 +79,13 @@ class _Cli:
 
     def __init__(self, *args: str) -> None:
         env = dict(os.environ, PYTHONUNBUFFERED="1")
-        self.proc = subprocess.Popen([sys.executable, "-m", "tsunamifocus.cli", *args], stdout=subprocess.DEVNULL,
-                                     stderr=subprocess.PIPE, text=True, env=env)
+        self.proc = subprocess.Popen(
+            [sys.executable, "-m", "tsunamifocus.cli", *args],
+            stdout=subprocess.DEVNULL,
+            stderr=subprocess.PIPE,
+            text=True,
+            env=env,
+        )
         self.lines: list[str] = []
         self._t = threading.Thread(target=self._read, daemon=True)
         self._t.start()
@@ -97,7 +110,9 @@ class _Cli:
         except subprocess.TimeoutExpired:  # a hang is a failure, not a stuck test session
             self.proc.kill()
             self.proc.wait()
-            raise AssertionError("tsunamifocus run did not exit after the signal:\n" + "".join(self.lines[-20:]))
+            raise AssertionError(
+                "tsunamifocus run did not exit after the signal:\n" + "".join(self.lines[-20:])
+            ) from None
         self._t.join(5)
         return rc
 
@@ -108,7 +123,8 @@ class _Cli:
 
 def test_interrupted_runs_leave_outputs_and_rerun_reproduces(run_a, tmp_path):
     """SIGTERM / SIGINT while tracing or exporting leave the folder as it was; a rerun from the
-    manifest succeeds and reproduces every data file byte for byte."""
+    manifest succeeds and reproduces every data file byte for byte.
+    """
     _, a = run_a
     manifest = a / "manifest.json"
     before = _hashes(a)
@@ -170,8 +186,9 @@ def test_rerun_in_process_from_manifest_matches_data(run_a, tmp_path):
     fa, fb = result.analysis.focusing, b.analysis.focusing
     np.testing.assert_array_equal(fa.energy.values, fb.energy.values)
     np.testing.assert_array_equal(fa.travel_time_min.values, fb.travel_time_min.values)
-    np.testing.assert_array_equal(fa.segments["lensing_factor"].to_numpy(float),
-                                  fb.segments["lensing_factor"].to_numpy(float))
+    np.testing.assert_array_equal(
+        fa.segments["lensing_factor"].to_numpy(float), fb.segments["lensing_factor"].to_numpy(float)
+    )
     ea, eb = result.ensemble.segments, b.ensemble.segments  # 2 members on the local Dask scheduler
     cols = [c for c in ea.columns if ea[c].dtype.kind in "fiub"]
     assert "lensing_factor" in cols
@@ -233,7 +250,11 @@ def test_memory_guard_refuses_before_tracing(run_a, tmp_path, monkeypatch):
 def test_memory_guard_cli_message(run_a, tmp_path, capsys):
     _, a = run_a
     scen = tmp_path / "s.toml"
-    text = (a / "scenario.toml").read_text(encoding="utf-8").replace("max_memory_gb = 4.0", "max_memory_gb = 0.5")
+    text = (
+        (a / "scenario.toml")
+        .read_text(encoding="utf-8")
+        .replace("max_memory_gb = 4.0", "max_memory_gb = 0.5")
+    )
     assert "max_memory_gb = 0.5" in text
     scen.write_text(text, encoding="utf-8")
     code = main(["-q", "run", str(scen), "--out", str(tmp_path / "o"), "--rays", "5000000"])
@@ -275,8 +296,14 @@ def test_health_checks_in_summary_manifest_and_appendix(run_a):
     m = json.loads((a / "manifest.json").read_text(encoding="utf-8"))
     assert m["extra"]["health"]["energy_error_relative"] == pytest.approx(h["energy_error_relative"])
     html = (a / "appendix.html").read_text(encoding="utf-8").lower()
-    for needle in ("numerical health checks", "energy bookkeeping error", "rays ending: coast",
-                   "integration step", "steps per ray", "nan holes"):
+    for needle in (
+        "numerical health checks",
+        "energy bookkeeping error",
+        "rays ending: coast",
+        "integration step",
+        "steps per ray",
+        "nan holes",
+    ):
         assert needle in html, needle
 
 
@@ -284,8 +311,9 @@ def test_health_check_fails_loudly_over_tolerance(run_a):
     result, _ = run_a
     a = result.analysis
     assert health_checks(a)["energy_error_relative"] <= 0.01
-    bad = dataclasses.replace(a, focusing=dataclasses.replace(a.focusing, budget={**a.focusing.budget,
-                                                                               "relative_error": 0.05}))
+    bad = dataclasses.replace(
+        a, focusing=dataclasses.replace(a.focusing, budget={**a.focusing.budget, "relative_error": 0.05})
+    )
     with pytest.raises(HealthCheckError, match=r"energy bookkeeping error 5.00 % exceeds 1 %"):
         health_checks(bad)
     with pytest.raises(HealthCheckError, match="exceeds"):
