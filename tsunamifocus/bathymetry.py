@@ -383,6 +383,12 @@ def _read_netcdf(p, variable, bbox, margin_km, limit) -> _Raw:
     if y.size > 1 and y[1] < y[0]:
         y = y[::-1]
         vals = vals[::-1, :]
+    if the_crs.is_geographic and x.size > 2:
+        # a regional grid across the antimeridian in -180..180 numbers (170 ... 180, -175 ...):
+        # continue the longitudes past 180 (same meridians, now ascending)
+        jump = np.flatnonzero(np.diff(x) < -180.0)
+        if jump.size == 1:
+            x = np.concatenate([x[: jump[0] + 1], x[jump[0] + 1 :] + 360.0])
     return _Raw(vals, x, y, the_crs, attrs, str(variable), "netCDF")
 
 
