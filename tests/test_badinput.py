@@ -1080,3 +1080,20 @@ def test_values_given_explicitly_agree_with_metadata(tmp_path):
     raw = xr.open_dataset(p)["z"].values
     np.testing.assert_array_equal(d.values, -raw)
     assert math.isclose(float(d.max()), 4000.0)
+
+
+def test_netcdf_across_antimeridian_in_signed_longitudes_is_unwrapped(tmp_path):
+    """170..180, -175..-170 (a -180..180 file cut across the date line) loads as 170..190 E."""
+    from tsunamifocus.bathymetry import load_bathymetry
+    from tsunamifocus.grid import grid_info
+
+    lon = np.array([170.0, 175.0, 180.0, -175.0, -170.0])
+    lat = np.arange(-2.0, 2.01, 1.0)
+    z = -1000.0 - (lon[None, :] % 360.0) - 0.01 * lat[:, None]  # encodes its own position
+    xr.Dataset(
+        {"z": (("lat", "lon"), z, {"positive": "up"})}, coords={"lat": lat, "lon": lon}
+    ).to_netcdf(tmp_path / "dateline.nc")
+    d = load_bathymetry(tmp_path / "dateline.nc")
+    np.testing.assert_array_equal(d.lon.values, [170.0, 175.0, 180.0, 185.0, 190.0])
+    np.testing.assert_array_equal(d.values, 1000.0 + d.lon.values[None, :] + 0.01 * d.lat.values[:, None])
+    assert not grid_info(d).periodic_x
