@@ -145,8 +145,8 @@ def test_bouguer_invariant_seamount():
     b0 = ((x0 - xc) * sn0 - (y0 - yc) * se0) / c0
     a1 = np.radians(e.azimuth_deg.values)
     b1 = ((e.x.values - xc) * np.cos(a1) - (e.y.values - yc) * np.sin(a1)) / e.c_end.values
-    # the sampled bump is axisymmetric only to interpolation accuracy (~(dx/L)^4)
-    np.testing.assert_allclose(b1, b0, rtol=1e-4)
+    # the sampled bump is axisymmetric only to interpolation accuracy (~(dx/L)^4); measured 2e-6
+    np.testing.assert_allclose(b1, b0, rtol=1e-5)
     assert np.ptp(e.azimuth_deg.values) > 5.0  # strong refraction
 
 
