@@ -338,9 +338,9 @@ def points_table(analysis: SourceAnalysis, points: Sequence[Any], depth: xr.Data
         dists = np.array([g.distance(Point(x, y)) for g in seg["geometry"]]) if len(seg) else np.array([])
         k = int(np.argmin(dists)) if dists.size else -1
         near = seg.iloc[k] if k >= 0 else None
-        first = t_min
-        if near is not None and np.isfinite(near.get("first_arrival_s", np.nan)):
-            first = min(first, near["first_arrival_s"] / 60.0) if np.isfinite(first) else near["first_arrival_s"] / 60.0
+        first = t_min  # rays passed within 6 cells of the point: their earliest time
+        if not np.isfinite(first) and near is not None and np.isfinite(near.get("first_arrival_s", np.nan)):
+            first = near["first_arrival_s"] / 60.0  # inshore of the stop isobath: the nearest segment's
         rows.append({
             "name": p.name, "lon": p.lon, "lat": p.lat,
             "first_arrival_min": first,
@@ -541,7 +541,7 @@ def _figures(a: SourceAnalysis, depth: xr.DataArray, scenario: Any, folder: path
         seg = _with_ensemble_intervals(seg, ensemble.segments)
     title = f"Top {scenario.output.top_k} coastline segments by lensing factor"
     if ensemble is not None:
-        title += f"\n(bars: unperturbed run; whiskers: 5-95 % over {ensemble.n_members} ensemble members)"
+        title += f"\n(ensemble median and 5-95 % interval over {ensemble.n_members} members)"
     else:
         title += "\n(whiskers: 5-95 % bootstrap interval over rays)"
     figs["ranking"] = F.plot_ranking(seg, scenario.output.top_k, out_path=folder / "ranking.png", title=title)
@@ -570,16 +570,23 @@ def _contour_ready(tt: xr.DataArray, sigma_cells: float = 1.5) -> xr.DataArray:
 
 
 def _with_ensemble_intervals(seg: pd.DataFrame, ens: pd.DataFrame) -> pd.DataFrame:
-    """Segments table whose lensing interval is the ensemble's 5-95 % where available."""
+    """Segments table carrying the ensemble's median, 5-95 % interval and rank of the lensing factor."""
     out = seg.copy()
     e = ens.reindex(out["segment_id"].to_numpy())
-    for src, dst in (("lensing_lo", "lensing_lo"), ("lensing_hi", "lensing_hi")):
-        if src in e.columns:
-            vals = e[src].to_numpy(dtype=float)
-            have = np.isfinite(vals)
-            col = out[dst].to_numpy(dtype=float).copy()
-            col[have] = vals[have]
-            out[dst] = col
+    for col in ("lensing_factor", "lensing_lo", "lensing_hi"):
+        if col in e.columns:
+            out[col] = e[col].to_numpy(dtype=float)
+    if "n_valid" in e.columns:
+        # reliable in the ensemble sense: enough rays in at least half of the members
+        n = int(np.nanmax(e["n_valid"].to_numpy(dtype=float))) if len(e) else 0
+        ok = e["n_valid"].to_numpy(dtype=float) >= max(1, math.ceil(n / 2))
+        out["reliable"] = ok
+        v = np.where(ok, out["lensing_factor"].to_numpy(dtype=float), np.nan)
+        order = np.argsort(-np.nan_to_num(v, nan=-np.inf), kind="stable")
+        rank = np.full(len(v), np.nan)
+        good = order[np.isfinite(v[order])]
+        rank[good] = np.arange(1, good.size + 1)
+        out["rank_lensing"] = pd.array([int(r) if np.isfinite(r) else None for r in rank], dtype="Int64")
     return out
 
 
@@ -786,8 +793,7 @@ def _report_context(a: SourceAnalysis, scenario: Any, depth: xr.DataArray, point
                      "sources": [src], "settings": settings},
         "data_sources": [{"name": "Bathymetry", "path": str(scenario.bathymetry.path),
                           "description": f"{g['format']} grid, {g['crs']}"}],
-        "ranking": _plain_dtypes(_with_ensemble_intervals(f.segments, ensemble.segments)
-                                 if ensemble is not None else f.segments),
+        "ranking": _plain_dtypes(f.segments),  # this run, bootstrap intervals; the ensemble has its section
         "top_k": scenario.output.top_k,
         "points": points,
         "health": hl,
@@ -1090,6 +1096,10 @@ def ensemble_member(params: dict, *, depth: xr.DataArray, scenario: Any, segment
     seg = a.focusing.segments
     table = seg[["segment_id", *[c for c in _STATIC_COLUMNS if c in seg], *[c for c in _MEMBER_COLUMNS if c in seg]]]
     table = table.set_index("segment_id")
+    if "reliable" in seg:
+        # a segment reached by too few rays in this member gives no value (not ranked on noise)
+        bad = ~seg.set_index("segment_id")["reliable"].fillna(False).astype(bool)
+        table.loc[bad.to_numpy(), [c for c in ("lensing_factor", "amp_1m_m") if c in table]] = np.nan
     grids = {"energy": a.focusing.energy, "lensing_factor": a.focusing.lensing_factor}
     info = {"mw": float(a.summary.mw), "energy_J": float(a.summary.energy_J),
             "budget_error": float(a.focusing.budget["relative_error"])}
