@@ -531,7 +531,8 @@ def _figures(a: SourceAnalysis, depth: xr.DataArray, scenario: Any, folder: path
     figs = {}
     figs["ray_field"] = F.plot_ray_field(
         depth, f.energy, paths=real.paths, coast_lines=coast, source_outline=a.outline or None,
-        out_path=folder / "ray_field.png", title=f"Ray field over the bathymetry: {a.name}")
+        out_path=folder / "ray_field.png", title=f"Ray field over the bathymetry: {a.name}",
+        coast_label="Coast segments (stop isobath)")
     figs["lensing_map"] = F.plot_lensing_map(
         depth, f.lensing_factor, _contour_ready(f.travel_time_min), _plain_dtypes(f.segments), scenario.output.top_k,
         out_path=folder / "lensing_map.png", source_outline=a.outline or None,
@@ -544,7 +545,13 @@ def _figures(a: SourceAnalysis, depth: xr.DataArray, scenario: Any, folder: path
         title += f"\n(ensemble median and 5-95 % interval over {ensemble.n_members} members)"
     else:
         title += "\n(whiskers: 5-95 % bootstrap interval over rays)"
-    figs["ranking"] = F.plot_ranking(seg, scenario.output.top_k, out_path=folder / "ranking.png", title=title)
+    prob = None
+    if ensemble is not None and "p_topk" in ensemble.segments:
+        seg = seg.copy()
+        seg["p_topk"] = ensemble.segments["p_topk"].reindex(seg["segment_id"].to_numpy()).to_numpy(dtype=float)
+        prob = "p_topk"
+    figs["ranking"] = F.plot_ranking(seg, scenario.output.top_k, out_path=folder / "ranking.png", title=title,
+                                     prob_col=prob)
     figs["uplift"] = F.plot_uplift(a.eta, out_path=folder / "uplift.png", depth=depth,
                                    source_outline=a.outline or None, coast_lines=coast,
                                    title=f"Initial sea-surface displacement (Okada 1985): {a.name}")
