@@ -131,19 +131,15 @@ def run_wave_check(
 
 
 def _clean(v: Any) -> Any:
-    if isinstance(v, dict):
-        return {str(a): _clean(b) for a, b in v.items()}
-    if isinstance(v, (list, tuple)):
-        return [_clean(x) for x in v]
-    if isinstance(v, (np.floating, float)):
-        return float(v) if math.isfinite(float(v)) else None
-    if isinstance(v, np.integer):
-        return int(v)
-    if isinstance(v, (np.bool_,)):
-        return bool(v)
-    if isinstance(v, (str, int, bool)) or v is None:
-        return v
-    return str(v)
+    """JSON-safe copy (non-finite floats -> None, unknown objects -> str)."""
+    from .pipeline import _jsonable
+
+    out = _jsonable(v)
+    if isinstance(out, dict):
+        return {k: _clean(x) for k, x in out.items()}
+    if isinstance(out, list):
+        return [_clean(x) for x in out]
+    return out if isinstance(out, (str, int, float, bool)) or out is None else str(out)
 
 
 def _write_table(df: pd.DataFrame, path: pathlib.Path) -> None:
