@@ -993,6 +993,20 @@ CLI_CASES = [
         lambda t: (["demo", "--out", str(t / "d"), "--rays", "0"], "--rays 0"),
         r"expected a positive number of rays",
     ),
+    # existing results are never overwritten without --overwrite
+    CliCase(
+        "cli-demo-existing-results",
+        lambda t: (["-q", "demo", "--out", str(_empty_run_folder(t))], "not_a_run"),
+        r"not empty; pass --overwrite",
+    ),
+    CliCase(
+        "cli-compare-existing-results",
+        lambda t: (
+            ["compare", str(t / "r1"), str(t / "r2"), "--out", str(_empty_run_folder(t))],
+            "not_a_run",
+        ),
+        r"not empty; pass --overwrite",
+    ),
 ]
 
 
@@ -1090,9 +1104,9 @@ def test_netcdf_across_antimeridian_in_signed_longitudes_is_unwrapped(tmp_path):
     lon = np.array([170.0, 175.0, 180.0, -175.0, -170.0])
     lat = np.arange(-2.0, 2.01, 1.0)
     z = -1000.0 - (lon[None, :] % 360.0) - 0.01 * lat[:, None]  # encodes its own position
-    xr.Dataset(
-        {"z": (("lat", "lon"), z, {"positive": "up"})}, coords={"lat": lat, "lon": lon}
-    ).to_netcdf(tmp_path / "dateline.nc")
+    xr.Dataset({"z": (("lat", "lon"), z, {"positive": "up"})}, coords={"lat": lat, "lon": lon}).to_netcdf(
+        tmp_path / "dateline.nc"
+    )
     d = load_bathymetry(tmp_path / "dateline.nc")
     np.testing.assert_array_equal(d.lon.values, [170.0, 175.0, 180.0, 185.0, 190.0])
     np.testing.assert_array_equal(d.values, 1000.0 + d.lon.values[None, :] + 0.01 * d.lat.values[:, None])

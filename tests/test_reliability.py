@@ -372,3 +372,14 @@ def test_memory_guard_counts_local_ensemble_members(run_a):
     assert sc.ensemble.members == 2
     with pytest.raises(ResourceLimitError, match=r"with 2 ensemble members in memory needs about 1.0 GB"):
         _guard_resources(result.depth, sc, 1_000_000)
+
+
+def test_check_never_overwrites_without_flag(run_a, tmp_path, capsys):
+    _, a = run_a
+    out = tmp_path / "wave"
+    out.mkdir()
+    (out / "keep.txt").write_text("earlier check")
+    code = main(["-q", "check", str(a), "--out", str(out)])
+    err = capsys.readouterr().err.strip().splitlines()
+    assert code == 2 and len(err) == 1 and "overwrite" in err[0] and str(out) in err[0], err
+    assert sorted(p.name for p in out.iterdir()) == ["keep.txt"] and _siblings(out) == []
