@@ -383,3 +383,25 @@ def test_check_never_overwrites_without_flag(run_a, tmp_path, capsys):
     err = capsys.readouterr().err.strip().splitlines()
     assert code == 2 and len(err) == 1 and "overwrite" in err[0] and str(out) in err[0], err
     assert sorted(p.name for p in out.iterdir()) == ["keep.txt"] and _siblings(out) == []
+
+
+def test_cli_health_failure_is_one_line_exit_1(run_a, tmp_path, monkeypatch, capsys):
+    import tsunamifocus.focusing as F
+
+    _, a = run_a
+    real = F.analyse_focusing
+
+    def leaky(*args, **kw):
+        foc = real(*args, **kw)
+        foc.budget["relative_error"] = 0.2
+        return foc
+
+    monkeypatch.setattr(F, "analyse_focusing", leaky)
+    scen = tmp_path / "s.toml"
+    text = (a / "scenario.toml").read_text(encoding="utf-8").replace("members = 2", "members = 0")
+    scen.write_text(text, encoding="utf-8")
+    out = tmp_path / "o"
+    code = main(["-q", "run", str(scen), "--out", str(out), "--rays", "300"])
+    err = capsys.readouterr().err.strip().splitlines()
+    assert code == 1 and err[-1].startswith("error: source ") and "20.00 % exceeds 1 %" in err[-1], err
+    assert not out.exists() and _siblings(out) == []
