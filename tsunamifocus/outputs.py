@@ -250,7 +250,10 @@ class OutputFolder:
         if hasattr(signal, "pthread_sigmask") and threading.current_thread() is threading.main_thread():
             old_mask = signal.pthread_sigmask(signal.SIG_BLOCK, {signal.SIGINT, signal.SIGTERM})
         try:
-            self._swap(final, tmp)
+            # the mask covers the main thread only; a signal caught by another thread still runs its
+            # Python handler here, so the handlers just record it until both renames are done
+            with deferred_interrupts():
+                self._swap(final, tmp)
         finally:
             if old_mask is not None:
                 signal.pthread_sigmask(signal.SIG_SETMASK, old_mask)
