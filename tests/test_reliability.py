@@ -405,3 +405,29 @@ def test_cli_health_failure_is_one_line_exit_1(run_a, tmp_path, monkeypatch, cap
     err = capsys.readouterr().err.strip().splitlines()
     assert code == 1 and err[-1].startswith("error: source ") and "20.00 % exceeds 1 %" in err[-1], err
     assert not out.exists() and _siblings(out) == []
+
+
+def test_interrupt_during_commit_does_not_split_the_renames(tmp_path, monkeypatch):
+    """SIGINT between 'old results aside' and 'new results in' is held until both renames are done."""
+    import tsunamifocus.outputs as O
+
+    out = tmp_path / "res"
+    out.mkdir()
+    (out / "old.txt").write_text("old")
+    real_rename = os.rename
+    calls = []
+
+    def rename_then_interrupt(src, dst):
+        real_rename(src, dst)
+        calls.append(dst)
+        if len(calls) == 1:  # the old folder has just been set aside
+            signal.raise_signal(signal.SIGINT)
+
+    monkeypatch.setattr(O.os, "rename", rename_then_interrupt)
+    # as if the signal went to another thread: the main thread's signal mask does not help then
+    monkeypatch.delattr(O.signal, "pthread_sigmask")
+    with pytest.raises(KeyboardInterrupt):
+        with O.OutputFolder(out, overwrite=True) as of:
+            of.path("new.txt").write_text("new")
+    assert len(calls) == 2  # both renames happened
+    assert sorted(p.name for p in out.iterdir()) == ["new.txt"] and _siblings(out) == []
