@@ -1100,6 +1100,7 @@ def ensemble_member(params: dict, *, depth: xr.DataArray, scenario: Any, segment
     # member bit-identical whichever scheduler runs it
     a = analyse_source(d, scenario, scenario.sources[source_index], perturbation=pert, segments=segments,
                        keep_paths=0, n_rays=n_rays, threads=1)
+    health_checks(a)  # a member whose energy bookkeeping fails is a failed member, not averaged in
     seg = a.focusing.segments
     table = seg[["segment_id", *[c for c in _STATIC_COLUMNS if c in seg], *[c for c in _MEMBER_COLUMNS if c in seg]]]
     table = table.set_index("segment_id")
