@@ -431,3 +431,27 @@ def test_interrupt_during_commit_does_not_split_the_renames(tmp_path, monkeypatc
             of.path("new.txt").write_text("new")
     assert len(calls) == 2  # both renames happened
     assert sorted(p.name for p in out.iterdir()) == ["new.txt"] and _siblings(out) == []
+
+
+def test_ensemble_member_with_broken_bookkeeping_fails(run_a, monkeypatch):
+    """A perturbed member is health-checked too: it fails (and is listed as failed), never averaged in."""
+    import tsunamifocus.focusing as F
+    from tsunamifocus.perturb import draw_member_parameters
+    from tsunamifocus.pipeline import ensemble_member
+
+    result, _ = run_a
+    sc = result.scenario
+    params = draw_member_parameters(sc.ensemble, 2, sc.ensemble.seed)[1]
+    kw = dict(depth=result.depth, scenario=sc, segments=result.analysis.focusing.segments, n_rays=300)
+    ok = ensemble_member(params, **kw)
+    assert ok.info["budget_error"] <= 0.01
+    real = F.analyse_focusing
+
+    def leaky(*args, **k):
+        foc = real(*args, **k)
+        foc.budget["relative_error"] = 0.3
+        return foc
+
+    monkeypatch.setattr(F, "analyse_focusing", leaky)
+    with pytest.raises(HealthCheckError, match="30.00 % exceeds 1 %"):
+        ensemble_member(params, **kw)
