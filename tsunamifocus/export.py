@@ -589,13 +589,24 @@ def write_segments(
     if "geojson" in formats:
         p = stem.with_name(stem.name + ".geojson")
         ll = _to_lonlat(geoms, crs)
+        # JSON has no NaN: non-finite numbers become null (masked) instead of being dropped
+        gj_mask = []
+        for i, arr in enumerate(field_data):
+            m = None if field_mask is None else field_mask[i]
+            if np.asarray(arr).dtype.kind == "f":
+                bad = ~np.isfinite(np.asarray(arr, dtype=float))
+                if bad.any():
+                    m = bad if m is None else (np.asarray(m, dtype=bool) | bad)
+            gj_mask.append(m)
+        if all(m is None for m in gj_mask):
+            gj_mask = None
         with _atomic_file(p) as tmp:
             pyogrio.raw.write(
                 tmp,
                 shapely.to_wkb(ll),
                 field_data,
                 fields,
-                field_mask=field_mask,
+                field_mask=gj_mask,
                 geometry_type=_geometry_type(ll),
                 crs="EPSG:4326",
                 driver="GeoJSON",
