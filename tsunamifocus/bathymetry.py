@@ -306,6 +306,9 @@ def _read_netcdf(p, variable, bbox, margin_km, limit) -> _Raw:
                 variable = two_d[0]
             elif len(two_d) > 1:
                 raise InputError(f"{p}: several 2-D variables {two_d}; choose one with variable=...")
+            elif ds[cands[0]].ndim == 2:  # 2-D but a single row or column
+                raise InputError(f"{p}: variable '{cands[0]}' is {ds[cands[0]].shape[0]} x "
+                                 f"{ds[cands[0]].shape[1]} cells; expected at least 2 x 2 cells")
             else:
                 raise InputError(
                     f"{p}: variable '{cands[0]}' has dims {ds[cands[0]].dims}; expected a 2-D (y, x) grid"
