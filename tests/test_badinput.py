@@ -986,7 +986,7 @@ CLI_CASES = [
     CliCase(
         "cli-check-not-a-run",
         lambda t: (["-q", "check", str(_empty_run_folder(t))], "not_a_run"),
-        r"not_a_run",
+        r"segments table not found \(expected segments.csv in the run folder\)",
     ),
     CliCase(
         "cli-demo-rays-zero",
