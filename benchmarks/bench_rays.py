@@ -14,6 +14,11 @@ Usage::
 
     python benchmarks/bench_rays.py            # full set (several minutes on 2 cores)
     python benchmarks/bench_rays.py --quick    # 1e4 and 1e5 rays, 2e4 rays on the global grid
+    python benchmarks/bench_rays.py --compare  # also the previous kernel, side by side, same run
+
+``--compare`` runs every configuration with the frozen previous kernel
+(benchmarks/_raykernel_ref.py, a private reference copy, not part of the package) and with the
+current one, alternately in the same run, and prints how far their results differ.
 
 The machine's other load is printed (load average): on a shared 2-core box wall times vary.
 """
@@ -58,6 +63,64 @@ def line_source(nrays):
     return np.full(nrays, 5e3), y0, np.full(nrays, 90.0)
 
 
+def use_kernel(kernel):
+    """Point tsunamifocus.rays at the current kernel ("new") or the frozen reference ("ref")."""
+    if kernel == "new":
+        return
+    import importlib.util
+
+    import tsunamifocus.rays as rays
+
+    spec = importlib.util.spec_from_file_location("_raykernel_ref", HERE.parent / "_raykernel_ref.py")
+    mod = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(mod)
+    rays._k = mod
+
+
+def save_result(path, r):
+    """Save end states and accumulation grids of a RayResult for the side-by-side comparison."""
+    e = r.end
+    arrays = {v: e[v].values for v in ("x", "y", "time_s", "q", "p", "azimuth_deg", "path_length_m")}
+    arrays.update(reason=e.reason.values, caustics=e.caustics.values)
+    if r.energy is not None:
+        arrays.update(energy=r.energy.values, first=r.first_arrival_s.values)
+    np.savez(path, **arrays)
+
+
+def compare_saved(a, b):
+    """Largest differences between two saved results (relative to the largest magnitude)."""
+    A, B = np.load(a), np.load(b)
+    out = {}
+    for v in ("x", "y", "time_s", "q", "path_length_m"):
+        scale = np.max(np.abs(A[v]))
+        out[v] = float(np.max(np.abs(A[v] - B[v])) / scale) if scale > 0 else 0.0
+    out["same_reason_caustics"] = bool(
+        np.array_equal(A["reason"], B["reason"]) and np.array_equal(A["caustics"], B["caustics"])
+    )
+    out["bit_identical_end"] = bool(all(np.array_equal(A[v], B[v]) for v in ("x", "y", "time_s", "q", "p")))
+    if "energy" in A:
+        out["energy"] = float(np.max(np.abs(A["energy"] - B["energy"])) / np.max(np.abs(A["energy"])))
+        fa, fb = A["first"], B["first"]
+        out["first_nan_same"] = bool(np.array_equal(np.isnan(fa), np.isnan(fb)))
+        out["first_abs_s"] = float(np.nanmax(np.abs(fa - fb)))
+    return out
+
+
+def fmt_compare(c):
+    """One line of old-vs-new agreement."""
+    s = (
+        f"    ref vs new: end states bit-identical {c['bit_identical_end']}, max rel diff "
+        f"x {c['x']:.1e} y {c['y']:.1e} t {c['time_s']:.1e} q {c['q']:.1e}; "
+        f"reasons/caustics equal {c['same_reason_caustics']}"
+    )
+    if "energy" in c:
+        s += (
+            f"; energy max rel diff {c['energy']:.1e}; first arrival max abs diff {c['first_abs_s']:.1e} s"
+            f" (NaN pattern equal {c['first_nan_same']})"
+        )
+    return s
+
+
 def peak_rss_mb():
     return resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024.0
 
@@ -67,7 +130,8 @@ def peak_rss_mb():
 # ----------------------------------------------------------------------------------------------
 
 
-def child_synthetic(nrays, threads, step):
+def child_synthetic(nrays, threads, step, kernel="new", save=None):
+    use_kernel(kernel)
     from tsunamifocus.rays import trace_rays
     from tsunamifocus.speed import SpeedField
 
@@ -80,6 +144,8 @@ def child_synthetic(nrays, threads, step):
     r = trace_rays(fld, x0, y0, az, weights=w, q0=1.0, p0=0.0, step_s=step, threads=threads)
     wall = time.perf_counter() - t0
     cpu = time.process_time() - c0
+    if save:
+        save_result(save, r)
     return dict(
         nrays=nrays,
         threads=threads,
@@ -178,8 +244,10 @@ def child_scipy(nsample, step):
     )
 
 
-def child_global(nrays, threads, step):
+def child_global(nrays, threads, step, kernel="new", save=None):
     import xarray as xr
+
+    use_kernel(kernel)
 
     from tsunamifocus.rays import trace_rays
     from tsunamifocus.speed import SpeedField
@@ -216,6 +284,8 @@ def child_global(nrays, threads, step):
     )
     wall = time.perf_counter() - t1
     cpu = time.process_time() - c0
+    if save:
+        save_result(save, r)
     e = r.end
     crossed = int(np.sum(e.path_length_m.values > 1.0e7))
     return dict(
@@ -254,6 +324,15 @@ def main():
     ap.add_argument("--global-step", type=float, default=60.0, help="RK4 step [s] on the 0.1-degree grid")
     ap.add_argument("--no-global", action="store_true", help="skip the real-grid run")
     ap.add_argument("--no-compile", action="store_true", help="skip the empty-cache compile timing")
+    ap.add_argument(
+        "--compare",
+        action="store_true",
+        help="also run the frozen previous kernel (benchmarks/_raykernel_ref.py), side by side",
+    )
+    ap.add_argument(
+        "--counts", help="comma-separated ray counts for the synthetic runs (default 1e4,1e5,1e6)"
+    )
+    ap.add_argument("--no-scipy", action="store_true", help="skip the solve_ivp comparison")
     ap.add_argument("--child", help=argparse.SUPPRESS)
     a = ap.parse_args()
     if a.child:
@@ -281,59 +360,83 @@ def main():
         )
 
     counts = [10_000, 100_000] if a.quick else [10_000, 100_000, 1_000_000]
+    if a.counts:
+        counts = [int(float(c)) for c in a.counts.split(",")]
+    kernels = ("ref", "new") if a.compare else ("new",)
+    tmpdir = tempfile.TemporaryDirectory()
     print()
     print(
         f"Synthetic 2000x2000 grid, line source, step {a.step:g} s (targets: 1e6 rays <= 30 s on 2 "
         "threads, >= 12 M ray-steps/s, peak <= 2 GB)"
     )
     hdr = (
-        f"{'rays':>9} {'thr':>3} {'step s':>6} {'steps/ray':>9} {'wall s':>8} {'M steps/s':>9} "
-        f"{'M steps/cpu-s':>13} {'peak MB':>8}"
+        f"{'kernel':>6} {'rays':>9} {'thr':>3} {'step s':>6} {'steps/ray':>9} {'wall s':>8} {'M steps/s':>9} "
+        f"{'M steps/cpu-s':>13} {'peak MB':>8} {'load':>5}"
     )
     print(hdr)
     print("-" * len(hdr))
     for n in counts:
         for th in (1, 2):
-            r = run_child({"mode": "syn", "nrays": n, "threads": th, "step": a.step})
-            print(
-                f"{n:>9} {th:>3} {r['step_s']:>6.1f} {r['steps'] / n:>9.0f} {r['wall_s']:>8.2f} "
-                f"{r['steps'] / r['wall_s'] / 1e6:>9.2f} {r['steps'] / r['cpu_s'] / 1e6:>13.2f} "
-                f"{r['peak_mb']:>8.0f}",
-                flush=True,
-            )
+            saved = {}
+            for kern in kernels:
+                path = os.path.join(tmpdir.name, f"syn_{kern}_{n}_{th}.npz")
+                spec = {"mode": "syn", "nrays": n, "threads": th, "step": a.step, "kernel": kern}
+                if a.compare:
+                    spec["save"] = saved[kern] = path
+                r = run_child(spec)
+                print(
+                    f"{kern:>6} {n:>9} {th:>3} {r['step_s']:>6.1f} {r['steps'] / n:>9.0f} "
+                    f"{r['wall_s']:>8.2f} "
+                    f"{r['steps'] / r['wall_s'] / 1e6:>9.2f} {r['steps'] / r['cpu_s'] / 1e6:>13.2f} "
+                    f"{r['peak_mb']:>8.0f} {os.getloadavg()[0]:>5.1f}",
+                    flush=True,
+                )
+            if a.compare:
+                print(fmt_compare(compare_saved(saved["ref"], saved["new"])), flush=True)
     r = run_child({"mode": "syn", "nrays": 10_000, "threads": 2, "step": None})
     print(
-        f"{10_000:>9} {2:>3} {r['step_s']:>6.1f} {r['steps'] / 1e4:>9.0f} {r['wall_s']:>8.2f} "
+        f"{'new':>6} {10_000:>9} {2:>3} {r['step_s']:>6.1f} {r['steps'] / 1e4:>9.0f} {r['wall_s']:>8.2f} "
         f"{r['steps'] / r['wall_s'] / 1e6:>9.2f} {r['steps'] / r['cpu_s'] / 1e6:>13.2f} "
-        f"{r['peak_mb']:>8.0f}   (default step)",
+        f"{r['peak_mb']:>8.0f} {os.getloadavg()[0]:>5.1f}   (default step)",
         flush=True,
     )
 
-    s = run_child({"mode": "scipy", "nsample": 10 if a.quick else 20, "step": a.step})
-    print()
-    print(
-        f"solve_ivp (RK45, rtol 1e-6) over RegularGridInterpolator, {s['nsample']} rays: "
-        f"{s['ivp_rays_per_s']:.2f} rays/s; trace_rays 1 thread same rays: {s['tf_rays_per_s']:.0f} rays/s "
-        f"-> speed ratio {s['tf_rays_per_s'] / s['ivp_rays_per_s']:.0f}x"
-    )
+    if not a.no_scipy:
+        s = run_child({"mode": "scipy", "nsample": 10 if a.quick else 20, "step": a.step})
+        print()
+        print(
+            f"solve_ivp (RK45, rtol 1e-6) over RegularGridInterpolator, {s['nsample']} rays: "
+            f"{s['ivp_rays_per_s']:.2f} rays/s; trace_rays 1 thread same rays: {s['tf_rays_per_s']:.0f} "
+            f"rays/s -> speed ratio {s['tf_rays_per_s'] / s['ivp_rays_per_s']:.0f}x"
+        )
 
     if not a.no_global:
         if not ETOPO.is_file():
             print(f"\nreal grid not found at {ETOPO}: skipped")
         else:
             n = 20_000 if a.quick else 1_000_000
-            g = run_child({"mode": "global", "nrays": n, "threads": 2, "step": a.global_step})
             print()
             print(
-                f"0.1-degree global grid ({g['grid']}), point source, {n} rays, 24 h, "
-                f"step {g['step_s']:g} s, 2 threads (target 1e6 rays <= 180 s):"
+                f"0.1-degree global grid, point source, {n} rays, 24 h, step {a.global_step:g} s, "
+                "2 threads (target 1e6 rays <= 180 s):"
             )
-            print(
-                f"  wall {g['wall_s']:.1f} s, {g['steps'] / g['wall_s'] / 1e6:.2f} M steps/s, "
-                f"{g['steps'] / g['cpu_s'] / 1e6:.2f} M steps/cpu-s, {g['steps'] / n:.0f} steps/ray, "
-                f"peak {g['peak_mb']:.0f} MB, grid load {g['load_s']:.1f} s; end reasons {g['reasons']}; "
-                f"rays longer than 10,000 km: {g['rays_over_10000km']}"
-            )
+            saved = {}
+            for kern in kernels:
+                spec = {"mode": "global", "nrays": n, "threads": 2, "step": a.global_step, "kernel": kern}
+                if a.compare:
+                    spec["save"] = saved[kern] = os.path.join(tmpdir.name, f"global_{kern}.npz")
+                g = run_child(spec)
+                print(
+                    f"  {kern}: grid {g['grid']}, wall {g['wall_s']:.1f} s, "
+                    f"{g['steps'] / g['wall_s'] / 1e6:.2f} M steps/s, "
+                    f"{g['steps'] / g['cpu_s'] / 1e6:.2f} M steps/cpu-s, {g['steps'] / n:.0f} steps/ray, "
+                    f"peak {g['peak_mb']:.0f} MB, grid load {g['load_s']:.1f} s, "
+                    f"load {os.getloadavg()[0]:.1f}; end reasons {g['reasons']}; "
+                    f"rays longer than 10,000 km: {g['rays_over_10000km']}",
+                    flush=True,
+                )
+            if a.compare:
+                print(fmt_compare(compare_saved(saved["ref"], saved["new"])), flush=True)
     print(f"\nload average at end: {', '.join(f'{x:.1f}' for x in os.getloadavg())}")
 
 

@@ -358,6 +358,49 @@ def test_coast_stop_and_interpolated_end(bench_like):
     ]
 
 
+@pytest.mark.parametrize("step_s", [1.0, 7.0, 40.0])
+def test_energy_is_path_length_in_each_cell(step_s):
+    # The energy grid is sum(weight x path length in cell) / cell area. For a straight ray
+    # (constant depth) the length inside each cell is the length of the intersection of the ray
+    # segment with the cell square, computed here by shapely (reference geometry library). Steps
+    # of 0.2, 1.4 and 8 cells cover the single-cell and the cell-walk branches of the kernel.
+    from shapely.geometry import LineString, box
+
+    dx = 1000.0
+    d = plane(np.full((40, 60), 4000.0), dx)
+    x0, y0, az, t = 5300.0, 7100.0, 63.0, 160.0
+    r = trace_rays(d, [x0], [y0], [az], weights=[2.5], max_time_s=t, step_s=step_s)
+    e = r.end
+    assert int(e.reason[0]) == REASON_CODES["time_limit"]
+    seg = LineString([(x0, y0), (float(e.x[0]), float(e.y[0]))])
+    ref = np.zeros((40, 60))
+    for j in range(40):
+        for i in range(60):
+            ref[j, i] = seg.intersection(
+                box(i * dx - dx / 2, j * dx - dx / 2, i * dx + dx / 2, j * dx + dx / 2)
+            ).length
+    got = r.energy.values * dx * dx / 2.5
+    assert ref.sum() == pytest.approx(float(e.path_length_m[0]), rel=1e-12)
+    np.testing.assert_allclose(got, ref, rtol=0, atol=1e-9 * ref.sum())
+    # first arrival at a crossed node: the wavefront time there is (distance along the ray of
+    # the foot of the node's perpendicular) / c (straight rays, plane wavefront normal). The kernel
+    # extrapolates at most one step beyond a chord, so it is exact when a step spans the cell
+    # (40 s = 8 cells) and within half a cell diagonal of travel (+ one step) otherwise.
+    crossed = ref > 0
+    jj, ii = np.nonzero(crossed)
+    se, sn = math.sin(math.radians(az)), math.cos(math.radians(az))
+    along = (ii * dx - x0) * se + (jj * dx - y0) * sn
+    c = math.sqrt(GRAVITY * 4000.0)
+    inside = (along > c * step_s) & (along < float(e.path_length_m[0]) - c * step_s)
+    got_t = r.first_arrival_s.values[crossed][inside]
+    exact_t = along[inside] / c
+    assert inside.sum() > 10
+    if step_s >= 40.0:
+        np.testing.assert_allclose(got_t, exact_t, rtol=1e-9)
+    else:
+        assert np.max(np.abs(got_t - exact_t)) <= dx / math.sqrt(2.0) / c + step_s
+
+
 def test_nan_hole_stops_ray_without_poisoning():
     h = np.full((60, 100), 4000.0)
     h[25:35, 50:55] = np.nan

@@ -17,7 +17,10 @@ from __future__ import annotations
 import math
 
 import numpy as np
-from numba import njit, prange
+from llvmlite import ir
+from numba import njit, prange, types
+from numba.core import cgutils
+from numba.extending import intrinsic
 
 __all__: list[str] = []
 
@@ -36,6 +39,47 @@ REASON_LEFT = 2
 REASON_NODATA = 3
 REASON_TIME = 4
 REASON_POLAR = 5
+
+
+@intrinsic
+def _prefetch(typingctx, arr, flat):
+    """Hint the CPU to fetch element ``arr.flat[flat]`` into cache (llvm.prefetch; never faults)."""
+    sig = types.void(arr, types.intp)
+
+    def codegen(context, builder, signature, args):
+        ary = context.make_array(signature.args[0])(context, builder, args[0])
+        ptr = builder.gep(ary.data, [args[1]])
+        i32 = ir.IntType(32)
+        fnty = ir.FunctionType(ir.VoidType(), [ptr.type, i32, i32, i32])
+        fn = cgutils.get_or_insert_function(builder.module, fnty, "llvm.prefetch.p0")
+        builder.call(fn, [ptr, i32(0), i32(3), i32(1)])
+        return context.get_dummy_value()
+
+    return sig, codegen
+
+
+@njit(cache=True, inline="always", error_model="numpy", fastmath=_FM)
+def _prefetch_cell(A, u, v, nx, ny, periodic):
+    """Prefetch the accumulation cell whose node is nearest to index point (u, v)."""
+    if periodic:
+        u = u - nx * math.floor(u / nx)
+    i = min(max(int(math.floor(u + 0.5)), 0), nx - 1)
+    j = min(max(int(math.floor(v + 0.5)), 0), ny - 1)
+    _prefetch(A, 2 * (j * nx + i))
+
+
+@njit(cache=True, inline="always", error_model="numpy", fastmath=_FM)
+def _prefetch_stencil(coef, u, v, nx, ny, periodic):
+    """Prefetch the 4 x 4 spline coefficient stencil used at index point (u, v)."""
+    if periodic:
+        u = u - nx * math.floor(u / nx)
+    u = min(max(u, -1.0), float(nx))
+    v = min(max(v, -1.0), float(ny))
+    nc = coef.shape[1]
+    base = (int(math.floor(v)) - 1 + PAD) * nc + (int(math.floor(u)) - 1 + PAD)
+    for r in range(4):
+        _prefetch(coef, base + r * nc)
+        _prefetch(coef, base + r * nc + 3)
 
 
 @njit(cache=True, inline="always", error_model="numpy", fastmath=_FM)
@@ -235,8 +279,11 @@ def _rk4(X, Y, se, sn, q, p, h, coef, X0, Y0, DX, DY, nx, ny, periodic, sph, R, 
 
 
 @njit(cache=True, inline="always", error_model="numpy", fastmath=_FM)
-def _deposit(A, i, j, tin, tout, u0, v0, du, dv, mx2, my2, iden, t0, h, wds, nx, ny, periodic, tcap):
-    ui = i
+def _deposit(A, i, j, e, tau, t0, h, nx, ny, periodic, tcap):
+    """Add energy ``e`` to cell (i, j) and min-reduce its node time ``t0 + tau h``.
+
+    ``tau`` (fraction of the step) is clamped to [-1, 2], the time to [0, tcap].
+    """
     if periodic:
         if i < 0:
             i += nx
@@ -244,19 +291,9 @@ def _deposit(A, i, j, tin, tout, u0, v0, du, dv, mx2, my2, iden, t0, h, wds, nx,
             i -= nx
     if i < 0 or i >= nx or j < 0 or j >= ny:
         return
-    A[j, i, 0] += wds * (tout - tin)
-    # time at the foot of the node's perpendicular on the (locally straight) ray: the wavefront
-    # time at the node to first order, even when the foot lies outside this cell or step
-    tau = ((ui - u0) * du * mx2 + (j - v0) * dv * my2) * iden
-    if tau < -1.0:
-        tau = -1.0
-    elif tau > 2.0:
-        tau = 2.0
-    tt = t0 + tau * h
-    if tt < 0.0:
-        tt = 0.0
-    elif tt > tcap:
-        tt = tcap
+    A[j, i, 0] += e
+    tt = t0 + min(max(tau, -1.0), 2.0) * h
+    tt = min(max(tt, 0.0), tcap)
     if tt < A[j, i, 1]:
         A[j, i, 1] = tt
 
@@ -267,7 +304,8 @@ def _accumulate(A, u0, v0, u1, v1, t0, h, wds, mx, my, nx, ny, periodic, tcap):
 
     Each cell gets ``wds`` times the fraction of the chord inside it (energy) and the time at the
     foot of the perpendicular from its node onto the chord line (first arrival, min-reduced),
-    extrapolated at most one step beyond the chord and capped to [0, tcap].
+    extrapolated at most one step beyond the chord and capped to [0, tcap]. The foot position
+    (fraction of the step) is linear in the node indices: ``tau = (i - u0) ti + (j - v0) tj``.
     """
     if periodic:
         shift = nx * math.floor(u0 / nx)
@@ -277,20 +315,32 @@ def _accumulate(A, u0, v0, u1, v1, t0, h, wds, mx, my, nx, ny, periodic, tcap):
     dv = v1 - v0
     a0 = u0 + 0.5
     b0 = v0 + 0.5
-    i = int(math.floor(a0))
-    j = int(math.floor(b0))
+    fa = math.floor(a0)
+    fb = math.floor(b0)
+    i = int(fa)
+    j = int(fb)
     iend = int(math.floor(a0 + du))
     jend = int(math.floor(b0 + dv))
     ncell = abs(iend - i) + abs(jend - j) + 1
+    mx2 = mx * mx
+    my2 = my * my
+    den = du * du * mx2 + dv * dv * my2
+    iden = 1.0 / den if den > 0.0 else 0.0
+    ti = du * mx2 * iden
+    tj = dv * my2 * iden
+    tb = -(u0 * ti + v0 * tj)
+    if ncell == 1:  # the whole chord lies in one cell
+        _deposit(A, i, j, wds, tb + i * ti + j * tj, t0, h, nx, ny, periodic, tcap)
+        return
     inf = np.inf
     if du > 0.0:
         si = 1
         tdi = 1.0 / du
-        tmi = (i + 1 - a0) / du
+        tmi = (fa + 1.0 - a0) * tdi
     elif du < 0.0:
         si = -1
         tdi = -1.0 / du
-        tmi = (a0 - i) / (-du)
+        tmi = (a0 - fa) * tdi
     else:
         si = 0
         tdi = inf
@@ -298,23 +348,19 @@ def _accumulate(A, u0, v0, u1, v1, t0, h, wds, mx, my, nx, ny, periodic, tcap):
     if dv > 0.0:
         sj = 1
         tdj = 1.0 / dv
-        tmj = (j + 1 - b0) / dv
+        tmj = (fb + 1.0 - b0) * tdj
     elif dv < 0.0:
         sj = -1
         tdj = -1.0 / dv
-        tmj = (b0 - j) / (-dv)
+        tmj = (b0 - fb) * tdj
     else:
         sj = 0
         tdj = inf
         tmj = inf
-    mx2 = mx * mx
-    my2 = my * my
-    den = du * du * mx2 + dv * dv * my2
-    iden = 1.0 / den if den > 0.0 else 0.0
     tin = 0.0
     for _k in range(ncell):
         tout = min(tmi, tmj, 1.0)
-        _deposit(A, i, j, tin, tout, u0, v0, du, dv, mx2, my2, iden, t0, h, wds, nx, ny, periodic, tcap)
+        _deposit(A, i, j, wds * (tout - tin), tb + i * ti + j * tj, t0, h, nx, ny, periodic, tcap)
         if tout >= 1.0:
             break
         if tmi < tmj:
@@ -356,6 +402,8 @@ def _trace_one(k, X, Y, se, sn, q, p, w, coef, depth, X0, Y0, DX, DY, nx, ny, pe
     mx = DX
     my = DY
     maxstep = int(math.ceil(tmax / dt - 1e-9)) + 1
+    dup = 0.0
+    dvp = 0.0
     for _it in range(maxstep):
         h = dt
         if t + h > tmax:
@@ -363,6 +411,13 @@ def _trace_one(k, X, Y, se, sn, q, p, w, coef, depth, X0, Y0, DX, DY, nx, ny, pe
         if h <= 1e-9 * dt:
             reason = REASON_TIME
             break
+        # cache hints (no effect on results): where this step and the next will most likely
+        # evaluate the spline and deposit, extrapolated from the last step's displacement
+        _prefetch_stencil(coef, u + dup, v + dvp, nx, ny, periodic)
+        _prefetch_stencil(coef, u + 2.0 * dup, v + 2.0 * dvp, nx, ny, periodic)
+        if accumulate:
+            for m in range(1, 5):
+                _prefetch_cell(A, u + 0.5 * m * dup, v + 0.5 * m * dvp, nx, ny, periodic)
         Xn, Yn, sen, snn, qn, pn, ds = _rk4(X, Y, se, sn, q, p, h, coef, X0, Y0, DX, DY, nx, ny,
                                             periodic, sph, R, cmin)
         nstep += 1
@@ -429,6 +484,8 @@ def _trace_one(k, X, Y, se, sn, q, p, w, coef, depth, X0, Y0, DX, DY, nx, ny, pe
         p = pn
         s += ds
         t += h
+        dup = un - u
+        dvp = vn - v
         u = un
         v = vn
         d = dn
