@@ -153,11 +153,15 @@ def main(argv: Sequence[str] | None = None) -> int:
         return 2
     _setup_logging(args.verbose, args.quiet)
     run = _COMMANDS[args.command][0]
+    restore = _catch_sigterm()
     try:
         return int(run(args) or 0)
     except KeyboardInterrupt:
         print("error: interrupted; outputs were left as they were", file=sys.stderr)
         return 130
+    except _Terminated:
+        print("error: terminated; outputs were left as they were", file=sys.stderr)
+        return 143
     except (InputError, FileNotFoundError, OutputExistsError) as exc:
         if debug:
             traceback.print_exc()
@@ -175,6 +179,33 @@ def main(argv: Sequence[str] | None = None) -> int:
         print(f"error: unexpected {type(exc).__name__}: {_one_line(exc)} (run with --debug for details)",
               file=sys.stderr)
         return 1
+    finally:
+        restore()
+
+
+class _Terminated(BaseException):
+    """Raised by the SIGTERM handler of the command line so outputs are cleaned up on the way out."""
+
+
+def _catch_sigterm():
+    """Turn SIGTERM into :class:`_Terminated` while a command runs (main thread only)."""
+    import signal
+    import threading
+
+    if threading.current_thread() is not threading.main_thread():
+        return lambda: None
+    try:
+        old = signal.getsignal(signal.SIGTERM)
+    except (ValueError, AttributeError):  # pragma: no cover - platform without SIGTERM
+        return lambda: None
+    if old not in (signal.SIG_DFL, None):
+        return lambda: None
+
+    def handler(signum, frame):
+        raise _Terminated()
+
+    signal.signal(signal.SIGTERM, handler)
+    return lambda: signal.signal(signal.SIGTERM, old)
 
 
 def _versions_text() -> str:
