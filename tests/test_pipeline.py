@@ -8,12 +8,10 @@ import dataclasses
 import html.parser
 import json
 import math
-import pathlib
 
 import numpy as np
 import pytest
 
-from tsunamifocus.cautions import caution_summary
 from tsunamifocus.errors import DataFileError, OutputExistsError
 from tsunamifocus.pipeline import arrival_times, demo_inputs, run_scenario
 from tsunamifocus.scenario import parse_scenario

@@ -1346,7 +1346,7 @@ def summarize_source(
     ``|eta| >= threshold max|eta|`` (rule of thumb, common practice, no source).
     """
     src = _as_rupture(source)
-    gi = GridInfo.from_dataarray(depth)
+    GridInfo.from_dataarray(depth)  # checks the grid convention (raises on a bad grid)
     e = np.asarray(eta.values, dtype=float)
     dep = np.asarray(depth.values, dtype=float)
     sea = _sea_mask(dep)
