@@ -293,10 +293,32 @@ def analyse_source(
         stop_depth=scenario.rays.stop_depth_m, segments=segments, trace_kwargs=kw,
         min_rays=scenario.coast.min_rays, seed=scenario.rays.seed, top_k=scenario.output.top_k,
     )
+    foc.segments["edge_distance_km"] = _edge_distance_km(foc.segments, depth)
+    if "segment_id" in foc.ranking:
+        edge = dict(zip(foc.segments["segment_id"], foc.segments["edge_distance_km"]))
+        foc.ranking["edge_distance_km"] = foc.ranking["segment_id"].map(edge).to_numpy(dtype=float)
     st = foc.runs["real"].stats
     pr.done(f"{st['n_steps'] / max(st['elapsed_s'], 1e-9) / 1e6:.1f} M ray-steps/s; reasons {st['reasons']}")
     return SourceAnalysis(name=src_cfg.name, source=src, eta=eta, fan=fan, summary=summary, focusing=foc,
                           period_s=period, outline=_source_outline(src, depth))
+
+
+def _edge_distance_km(seg: pd.DataFrame, depth: xr.DataArray) -> np.ndarray:
+    """Distance [km] from each segment's centre to the nearest edge of the grid (not wrapping edges).
+
+    Rays that would reach a segment from beyond the grid are missing, so values of segments
+    close to an edge (within a few Fresnel widths) are biased; the summary flags them.
+    """
+    info = GridInfo.from_dataarray(depth)
+    x0, y0, x1, y1 = info.bounds
+    x = seg["x_mid"].to_numpy(dtype=float)
+    y = seg["y_mid"].to_numpy(dtype=float)
+    if info.geographic:
+        k = math.pi / 180.0 * info.radius_m / 1000.0
+        dy = np.minimum(y - y0, y1 - y) * k
+        dx = np.minimum(x - x0, x1 - x) * k * np.cos(np.radians(y))
+        return dy if info.periodic_x else np.minimum(dx, dy)
+    return np.minimum(np.minimum(x - x0, x1 - x), np.minimum(y - y0, y1 - y)) / 1000.0
 
 
 def _sample_nearest_finite(da: xr.DataArray, x: float, y: float, max_cells: int = 6) -> tuple[float, float]:
@@ -638,7 +660,8 @@ def write_run_folder(
     ))
     seg_out = a.focusing.segments.copy()
     if ensemble is not None and getattr(ensemble, "segments", None) is not None:
-        seg_out = seg_out.join(ensemble.segments.add_prefix("ens_"), on="segment_id")
+        ens_cols = [c for c in ensemble.segments.columns if c not in _STATIC_COLUMNS]
+        seg_out = seg_out.join(ensemble.segments[ens_cols].add_prefix("ens_"), on="segment_id")
     seg_files = write_segments(_plain_dtypes(seg_out), folder / RUN_FILES["segments"], info.crs, csv_wkt=True)
     if isinstance(seg_files, dict):
         files.update({f"segments_{k}": pathlib.Path(v) for k, v in seg_files.items()})
@@ -802,6 +825,7 @@ def _report_context(a: SourceAnalysis, scenario: Any, depth: xr.DataArray, point
                           "description": f"{g['format']} grid, {g['crs']}"}],
         "ranking": _plain_dtypes(f.segments),  # this run, bootstrap intervals; the ensemble has its section
         "top_k": scenario.output.top_k,
+        "ranking_columns": [("edge_distance_km", "Grid edge (km)")],
         "points": points,
         "health": hl,
         "figures": {k: str(v) for k, v in figs.items()},
@@ -1011,6 +1035,15 @@ def _guard_resources(depth: xr.DataArray, scenario: Any, rays: int | None) -> No
         print(f"note: this run may take up to {est / 60:.0f} min of ray tracing", file=sys.stderr)
 
 
+def seg_sigma_km(seg: pd.DataFrame) -> np.ndarray:
+    """Fresnel regularisation width at each segment [km] (or 2 segment lengths where unknown)."""
+    if "fresnel_sigma_m" in seg:
+        v = seg["fresnel_sigma_m"].to_numpy(dtype=float) / 1000.0
+        if np.isfinite(v).any():
+            return v
+    return 2.0 * seg["length_m"].to_numpy(dtype=float) / 1000.0
+
+
 def format_run_summary(result: RunResult) -> str:
     """Short end-of-run summary: top hotspots, timings, where outputs are, and the cautions."""
     lines = ["", "== tsunamifocus run summary: " + str(result.scenario.name)]
@@ -1028,10 +1061,14 @@ def format_run_summary(result: RunResult) -> str:
         rk = f.ranking
         rel = rk[rk["reliable"]] if "reliable" in rk else rk
         lines.append(f"  top hotspots by lensing factor (5-95 % interval), of {len(f.segments)} segments:")
+        edge_km = 2.0 * float(np.nanmedian(seg_sigma_km(f.segments)))
         for _, r in rel.head(min(5, len(rel))).iterrows():
+            near = r.get("edge_distance_km", np.inf) < edge_km
             lines.append(f"    #{int(r['rank_lensing']):>2} {r['segment_id']:>6}  lensing {r['lensing_factor']:.2f} "
                          f"[{r['lensing_lo']:.2f}-{r['lensing_hi']:.2f}]  indicative amplitude at 1 m "
-                         f"{r['amp_1m_m']:.2f} m  first arrival {r['first_arrival_s'] / 60:.0f} min")
+                         f"{r['amp_1m_m']:.2f} m  first arrival {r['first_arrival_s'] / 60:.0f} min"
+                         + (f"  (within {edge_km:.0f} km of the grid edge: rays from beyond it are missing)"
+                            if near else ""))
         seg = f.segments
         if "rank_amplitude" in seg:
             by_amp = seg[seg["rank_amplitude"].notna()].sort_values("rank_amplitude").head(3)
