@@ -361,3 +361,17 @@ report = false
     assert main(["-q", "check", str(tmp_path / "out"), "--top", "5"]) == 0
     ag = json.loads((tmp_path / "out" / "wave_check" / "agreement.json").read_text())
     assert ag["n"] >= 10 and -1.0 <= ag["spearman"] <= 1.0
+
+
+def test_edge_distance_of_segments(demo_run):
+    # independent geometry: shapely distance from each segment centre to the grid's outer boundary
+    from shapely.geometry import Point, box
+
+    from tsunamifocus.grid import GridInfo
+
+    result, _ = demo_run
+    seg = result.analysis.focusing.segments
+    b = GridInfo.from_dataarray(result.depth).bounds
+    ring = box(*b).exterior
+    ref = np.array([ring.distance(Point(x, y)) / 1000.0 for x, y in zip(seg["x_mid"], seg["y_mid"])])
+    np.testing.assert_allclose(seg["edge_distance_km"].to_numpy(dtype=float), ref, rtol=1e-9, atol=1e-9)
