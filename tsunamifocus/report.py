@@ -201,8 +201,10 @@ DEFAULT_METHOD: list[dict[str, Any]] = [
             "σ = √(λ L) / 2 with λ = c T the local wavelength and L the distance from the source, since "
             "rays closer than that cannot be told apart by the wave.",
             "The lensing factor compares the energy that reaches a cell or a coastline segment with the "
-            "energy of the same ray fan traced over a reference bathymetry: the sea depths low-passed "
-            "and rescaled to the same mean depth. It isolates focusing by bathymetric features shorter "
+            "energy of the same ray fan traced over a reference bathymetry: the offshore sea depths "
+            "(deeper than 1000 m) low-passed, the shelf (shallower than 200 m) kept, blended in between, "
+            "and rescaled to the same mean depth, so both runs share the coast and the stop isobath. "
+            "It isolates focusing by offshore bathymetric features shorter "
             "than the low-pass length from plain spreading, shoaling and large-scale refraction: "
             "L > 1 means focusing, L < 1 a shadow. Per segment, e is the energy per metre of "
             "coastline; the 5–95 % interval comes from a Poisson bootstrap over the rays.",
