@@ -37,6 +37,7 @@ __all__ = [
     "segment_coastline",
     "line_length_m",
     "SEGMENT_COLUMNS",
+    "STATIC_SEGMENT_COLUMNS",
 ]
 
 #: Columns of the segments table produced by :func:`segment_coastline` (shared data contract).
@@ -51,6 +52,9 @@ SEGMENT_COLUMNS = [
     "normal_azimuth_deg",
     "geometry",
 ]
+#: The geometry/label columns of a segment (all of :data:`SEGMENT_COLUMNS` but the id), which
+#: every run over the same segmentation shares.
+STATIC_SEGMENT_COLUMNS = tuple(c for c in SEGMENT_COLUMNS if c != "segment_id")
 
 
 def _geod(info: GridInfo) -> Geod:

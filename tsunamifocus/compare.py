@@ -40,6 +40,7 @@ import numpy as np
 import pandas as pd
 import xarray as xr
 
+from .coast import STATIC_SEGMENT_COLUMNS
 from .errors import DataFileError, InputError, OutputExistsError
 from .grid import GridInfo, get_crs
 
@@ -70,7 +71,7 @@ ENVELOPE_RULES: dict[str, str] = {
 }
 #: Layers differenced against the first run.
 DIFFERENCE_LAYERS = ("lensing_factor", "focusing_factor", "energy", "travel_time_min")
-_STATIC = ("name", "length_m", "x_mid", "y_mid", "lon_mid", "lat_mid", "normal_azimuth_deg", "geometry")
+_STATIC = STATIC_SEGMENT_COLUMNS
 _PER_RUN = ("lensing_factor", "amp_1m_m", "first_arrival_s")
 
 RunTuple = tuple[str, pd.DataFrame, Mapping[str, xr.DataArray]]

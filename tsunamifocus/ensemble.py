@@ -60,6 +60,7 @@ import numpy as np
 import pandas as pd
 import xarray as xr
 
+from .coast import STATIC_SEGMENT_COLUMNS
 from .errors import EnsembleError, InputError
 
 __all__ = [
@@ -94,16 +95,7 @@ _INTERVAL_COLUMNS: dict[str, tuple[str, str, str]] = {
     "first_arrival_s": ("first_arrival_s", "first_arrival_lo_s", "first_arrival_hi_s"),
 }
 #: Segment columns copied unchanged from the first successful member (geometry and labels).
-_STATIC_COLUMNS = (
-    "name",
-    "length_m",
-    "x_mid",
-    "y_mid",
-    "lon_mid",
-    "lat_mid",
-    "normal_azimuth_deg",
-    "geometry",
-)
+_STATIC_COLUMNS = STATIC_SEGMENT_COLUMNS
 _MEMBER_KEY = "tsunamifocus-member"
 
 

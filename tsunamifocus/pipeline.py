@@ -24,6 +24,7 @@ import xarray as xr
 from pyproj import CRS, Geod, Transformer
 
 from .bathymetry import load_bathymetry, smooth_bathymetry
+from .coast import STATIC_SEGMENT_COLUMNS as _STATIC_COLUMNS
 from .cautions import caution_summary
 from .errors import HealthCheckError, InputError
 from .grid import GridInfo
@@ -1093,7 +1094,6 @@ def format_run_summary(result: RunResult) -> str:
 
 # ------------------------------------------------------------------------------------ ensemble
 _MEMBER_COLUMNS = ["lensing_factor", "amp_1m_m", "energy_per_m", "first_arrival_s"]
-_STATIC_COLUMNS = ["name", "length_m", "x_mid", "y_mid", "lon_mid", "lat_mid", "normal_azimuth_deg", "geometry"]
 
 
 def ensemble_member(params: dict, *, depth: xr.DataArray, scenario: Any, segments: pd.DataFrame,
