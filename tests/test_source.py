@@ -81,8 +81,9 @@ def test_slip_from_magnitude_gives_moment_back():
 
 def test_scaling_warning():
     # Strasser et al. (2010): a Mw 9 rupture 60 km long is far (> x2) from the interface relation.
-    with pytest.warns(ScalingWarning, match="Strasser"):
+    with pytest.warns(ScalingWarning, match="Strasser") as record:
         FaultSegment(trace=((140.0, 35.0), (140.0, 35.54)), top_depth_km=5, dip_deg=12, width_km=150, magnitude=9.0)
+    assert any(issubclass(w.category, ScalingWarning) for w in record)
     with warnings.catch_warnings():
         warnings.simplefilter("error", ScalingWarning)
         FaultSegment.from_magnitude(140.0, 35.0, 20.0, 9.0, top_depth_km=5.0, dip_deg=12.0)
