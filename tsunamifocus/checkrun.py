@@ -22,6 +22,7 @@ import numpy as np
 import pandas as pd
 
 from .errors import DataFileError, InputError
+from .outputs import _jsonable as _clean
 
 __all__ = ["run_wave_check", "CHECK_FOLDER"]
 
@@ -128,18 +129,6 @@ def run_wave_check(
         print("CAUTION: " + caution_summary(), file=sys.stderr)
     print(f"spearman {sp:.3f}  top{k}_overlap {ov}" if isinstance(sp, float) else f"spearman {sp} top{k}_overlap {ov}")
     return {"agreement": ag, "out": out_dir}
-
-
-def _clean(v: Any) -> Any:
-    """JSON-safe copy (non-finite floats -> None, unknown objects -> str)."""
-    from .pipeline import _jsonable
-
-    out = _jsonable(v)
-    if isinstance(out, dict):
-        return {k: _clean(x) for k, x in out.items()}
-    if isinstance(out, list):
-        return [_clean(x) for x in out]
-    return out if isinstance(out, (str, int, float, bool)) or out is None else str(out)
 
 
 def _write_table(df: pd.DataFrame, path: pathlib.Path) -> None:

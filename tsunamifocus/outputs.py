@@ -463,6 +463,8 @@ def _jsonable(obj: Any) -> Any:
             return _jsonable(obj.tolist())
     except ImportError:  # pragma: no cover
         pass
+    if hasattr(obj, "to_dict") and hasattr(obj, "columns"):  # a pandas DataFrame: column -> list
+        return _jsonable(obj.to_dict(orient="list"))
     return str(obj)
 
 

@@ -28,6 +28,7 @@ from .coast import STATIC_SEGMENT_COLUMNS as _STATIC_COLUMNS
 from .cautions import caution_summary
 from .errors import HealthCheckError, InputError
 from .grid import GridInfo
+from .outputs import _jsonable
 
 __all__ = [
     "SourceAnalysis",
@@ -715,27 +716,6 @@ def _version() -> str:
     from . import __version__
 
     return __version__
-
-
-def _jsonable(obj: Any) -> Any:
-    if isinstance(obj, dict):
-        return {str(k): _jsonable(v) for k, v in obj.items()}
-    if isinstance(obj, (list, tuple)):
-        return [_jsonable(v) for v in obj]
-    if isinstance(obj, (np.floating, float)):
-        v = float(obj)
-        return v if math.isfinite(v) else None
-    if isinstance(obj, (np.integer,)):
-        return int(obj)
-    if isinstance(obj, (np.bool_,)):
-        return bool(obj)
-    if isinstance(obj, np.ndarray):
-        return _jsonable(obj.tolist())
-    if isinstance(obj, pathlib.Path):
-        return str(obj)
-    if isinstance(obj, pd.DataFrame):
-        return _jsonable(obj.to_dict(orient="list"))
-    return obj
 
 
 def _ensemble_layers(ens: Any, depth: xr.DataArray) -> dict[str, xr.DataArray]:
