@@ -4,9 +4,9 @@ Usage::
 
     python benchmarks/bench_ensemble.py [--members 8] [--rays 20000] [--member auto|pipeline|example]
 
-The member function is the pipeline's ``tsunamifocus.pipeline.ensemble_member`` on the invented
+The member function is the pipeline's ``tsunamifocus.studies.run.ensemble_member`` on the invented
 demo scenario when it is importable and a probe member succeeds (``--member auto``), else the
-numpy-only ``tsunamifocus.ensemble.example_member`` on the demo grid (printed in the header).
+numpy-only ``tsunamifocus.studies.toymember.example_member`` on the demo grid (printed in the header).
 Workers are processes of a ``distributed.LocalCluster`` (``threads_per_worker=1``, numba/BLAS
 threads pinned to 1 per worker so the two columns compare like with like); each worker runs one
 untimed warm-up member first (numba compilation, imports). The local default (Dask threads in
@@ -28,8 +28,9 @@ for _v in ("NUMBA_NUM_THREADS", "OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_
 
 import numpy as np  # noqa: E402
 
-from tsunamifocus.ensemble import example_member, run_ensemble  # noqa: E402
-from tsunamifocus.perturb import draw_member_parameters  # noqa: E402
+from tsunamifocus.studies.toymember import example_member
+from tsunamifocus.studies.ensemble import run_ensemble
+from tsunamifocus.ocean.perturb import draw_member_parameters
 
 _ENV = {v: "1" for v in ("NUMBA_NUM_THREADS", "OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS")}
 
@@ -37,10 +38,11 @@ _ENV = {v: "1" for v in ("NUMBA_NUM_THREADS", "OMP_NUM_THREADS", "OPENBLAS_NUM_T
 def _pipeline_setup(rays: int, folder: str):
     from functools import partial
 
-    from tsunamifocus import pipeline
-    from tsunamifocus.scenario import parse_scenario
+    from tsunamifocus.io.scenario import parse_scenario
+    from tsunamifocus.products.demo import demo_inputs
+    from tsunamifocus.studies import run as pipeline
 
-    path = pipeline.demo_inputs(folder)
+    path = demo_inputs(folder)
     sc = parse_scenario(path)
     depth = pipeline.load_scenario_bathymetry(sc)
     segs = pipeline._segments_for(depth, sc)
@@ -54,7 +56,7 @@ def _pipeline_setup(rays: int, folder: str):
 
 
 def _example_setup():
-    from tsunamifocus.demo import make_demo_bathymetry
+    from tsunamifocus.ocean.demo import make_demo_bathymetry
 
     depth = make_demo_bathymetry()
     settings = dict(bathy_rms=0.02, bathy_corr_km=20.0, magnitude=0.1, launch_jitter_deg=0.5)

@@ -1,7 +1,7 @@
-"""Benchmark of the ray engine (tsunamifocus.rays.trace_rays); prints a table.
+"""Benchmark of the ray engine (tsunamifocus.propagation.rays.trace_rays); prints a table.
 
 Synthetic case: seeded 2000 x 2000 grid of 1 km cells, 4 km mean depth, 5 % rms depth
-fluctuations with a 20 km correlation length (tsunamifocus.randomfield), a coast along the east
+fluctuations with a 20 km correlation length (tsunamifocus.ocean.randomfield), a coast along the east
 edge (depth ramps to land over the last 50 km), and a line source of parallel rays (plane wave,
 q0 = 1, p0 = 0) along the west edge. For 1e4, 1e5, 1e6 rays, on 1 and 2 threads: wall time,
 ray-steps per second (wall and per CPU-second), peak resident memory. Each configuration runs in
@@ -14,11 +14,6 @@ Usage::
 
     python benchmarks/bench_rays.py            # full set (several minutes on 2 cores)
     python benchmarks/bench_rays.py --quick    # 1e4 and 1e5 rays, 2e4 rays on the global grid
-    python benchmarks/bench_rays.py --compare  # also the previous kernel, side by side, same run
-
-``--compare`` runs every configuration with the frozen previous kernel
-(benchmarks/_raykernel_ref.py, a private reference copy, not part of the package) and with the
-current one, alternately in the same run, and prints how far their results differ.
 
 The machine's other load is printed (load average): on a shared 2-core box wall times vary.
 """
@@ -50,7 +45,7 @@ DX = 1000.0
 
 def synthetic_depth():
     from tsunamifocus.grid import make_grid
-    from tsunamifocus.randomfield import gaussian_random_field
+    from tsunamifocus.ocean.randomfield import gaussian_random_field
 
     h = 4000.0 * (1.0 + gaussian_random_field((N, N), DX, 20e3, 0.05, seed=2024))
     ramp = np.clip((N - 1 - np.arange(N)) / 50.0, 0.0, 1.0)  # coast: last 50 km shoal to land
@@ -63,64 +58,6 @@ def line_source(nrays):
     return np.full(nrays, 5e3), y0, np.full(nrays, 90.0)
 
 
-def use_kernel(kernel):
-    """Point tsunamifocus.rays at the current kernel ("new") or the frozen reference ("ref")."""
-    if kernel == "new":
-        return
-    import importlib.util
-
-    import tsunamifocus.rays as rays
-
-    spec = importlib.util.spec_from_file_location("_raykernel_ref", HERE.parent / "_raykernel_ref.py")
-    mod = importlib.util.module_from_spec(spec)
-    spec.loader.exec_module(mod)
-    rays._k = mod
-
-
-def save_result(path, r):
-    """Save end states and accumulation grids of a RayResult for the side-by-side comparison."""
-    e = r.end
-    arrays = {v: e[v].values for v in ("x", "y", "time_s", "q", "p", "azimuth_deg", "path_length_m")}
-    arrays.update(reason=e.reason.values, caustics=e.caustics.values)
-    if r.energy is not None:
-        arrays.update(energy=r.energy.values, first=r.first_arrival_s.values)
-    np.savez(path, **arrays)
-
-
-def compare_saved(a, b):
-    """Largest differences between two saved results (relative to the largest magnitude)."""
-    A, B = np.load(a), np.load(b)
-    out = {}
-    for v in ("x", "y", "time_s", "q", "path_length_m"):
-        scale = np.max(np.abs(A[v]))
-        out[v] = float(np.max(np.abs(A[v] - B[v])) / scale) if scale > 0 else 0.0
-    out["same_reason_caustics"] = bool(
-        np.array_equal(A["reason"], B["reason"]) and np.array_equal(A["caustics"], B["caustics"])
-    )
-    out["bit_identical_end"] = bool(all(np.array_equal(A[v], B[v]) for v in ("x", "y", "time_s", "q", "p")))
-    if "energy" in A:
-        out["energy"] = float(np.max(np.abs(A["energy"] - B["energy"])) / np.max(np.abs(A["energy"])))
-        fa, fb = A["first"], B["first"]
-        out["first_nan_same"] = bool(np.array_equal(np.isnan(fa), np.isnan(fb)))
-        out["first_abs_s"] = float(np.nanmax(np.abs(fa - fb)))
-    return out
-
-
-def fmt_compare(c):
-    """One line of old-vs-new agreement."""
-    s = (
-        f"    ref vs new: end states bit-identical {c['bit_identical_end']}, max rel diff "
-        f"x {c['x']:.1e} y {c['y']:.1e} t {c['time_s']:.1e} q {c['q']:.1e}; "
-        f"reasons/caustics equal {c['same_reason_caustics']}"
-    )
-    if "energy" in c:
-        s += (
-            f"; energy max rel diff {c['energy']:.1e}; first arrival max abs diff {c['first_abs_s']:.1e} s"
-            f" (NaN pattern equal {c['first_nan_same']})"
-        )
-    return s
-
-
 def peak_rss_mb():
     return resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024.0
 
@@ -130,10 +67,9 @@ def peak_rss_mb():
 # ----------------------------------------------------------------------------------------------
 
 
-def child_synthetic(nrays, threads, step, kernel="new", save=None):
-    use_kernel(kernel)
-    from tsunamifocus.rays import trace_rays
-    from tsunamifocus.speed import SpeedField
+def child_synthetic(nrays, threads, step):
+    from tsunamifocus.propagation.rays import trace_rays
+    from tsunamifocus.propagation.speedfield import SpeedField
 
     fld = SpeedField(synthetic_depth())
     trace_rays(fld, [5e3], [1e6], [90.0], threads=threads, max_time_s=100.0)  # warm (cache load)
@@ -144,8 +80,6 @@ def child_synthetic(nrays, threads, step, kernel="new", save=None):
     r = trace_rays(fld, x0, y0, az, weights=w, q0=1.0, p0=0.0, step_s=step, threads=threads)
     wall = time.perf_counter() - t0
     cpu = time.process_time() - c0
-    if save:
-        save_result(save, r)
     return dict(
         nrays=nrays,
         threads=threads,
@@ -160,11 +94,11 @@ def child_synthetic(nrays, threads, step, kernel="new", save=None):
 
 def child_compile():
     from tsunamifocus.grid import make_grid
-    from tsunamifocus.rays import trace_rays
+    from tsunamifocus.propagation.rays import trace_rays
 
     d = make_grid(np.full((20, 30), 4000.0), np.arange(30) * 1e3, np.arange(20) * 1e3, "EPSG:3857")
     t0 = time.perf_counter()
-    import tsunamifocus._raykernel  # noqa: F401
+    import tsunamifocus.propagation._raykernel  # noqa: F401
 
     trace_rays(d, [5e3], [10e3], [90.0], max_time_s=100.0)
     t1 = time.perf_counter()
@@ -178,8 +112,8 @@ def child_scipy(nsample, step):
     from scipy.integrate import solve_ivp
     from scipy.interpolate import RegularGridInterpolator
 
-    from tsunamifocus.rays import trace_rays
-    from tsunamifocus.speed import SpeedField
+    from tsunamifocus.propagation.rays import trace_rays
+    from tsunamifocus.propagation.speedfield import SpeedField
 
     d = synthetic_depth()
     h = d.values
@@ -244,17 +178,15 @@ def child_scipy(nsample, step):
     )
 
 
-def child_global(nrays, threads, step, kernel="new", save=None):
+def child_global(nrays, threads, step):
     import xarray as xr
 
-    use_kernel(kernel)
-
-    from tsunamifocus.rays import trace_rays
-    from tsunamifocus.speed import SpeedField
+    from tsunamifocus.propagation.rays import trace_rays
+    from tsunamifocus.propagation.speedfield import SpeedField
 
     t0 = time.perf_counter()
     try:
-        from tsunamifocus.bathymetry import load_bathymetry
+        from tsunamifocus.io.bathymetry import load_bathymetry
 
         depth = load_bathymetry(ETOPO, values="elevation")
     except ImportError:  # pragma: no cover - fallback when the loader is absent
@@ -284,8 +216,6 @@ def child_global(nrays, threads, step, kernel="new", save=None):
     )
     wall = time.perf_counter() - t1
     cpu = time.process_time() - c0
-    if save:
-        save_result(save, r)
     e = r.end
     crossed = int(np.sum(e.path_length_m.values > 1.0e7))
     return dict(
@@ -325,11 +255,6 @@ def main():
     ap.add_argument("--no-global", action="store_true", help="skip the real-grid run")
     ap.add_argument("--no-compile", action="store_true", help="skip the empty-cache compile timing")
     ap.add_argument(
-        "--compare",
-        action="store_true",
-        help="also run the frozen previous kernel (benchmarks/_raykernel_ref.py), side by side",
-    )
-    ap.add_argument(
         "--counts", help="comma-separated ray counts for the synthetic runs (default 1e4,1e5,1e6)"
     )
     ap.add_argument("--no-scipy", action="store_true", help="skip the solve_ivp comparison")
@@ -362,8 +287,6 @@ def main():
     counts = [10_000, 100_000] if a.quick else [10_000, 100_000, 1_000_000]
     if a.counts:
         counts = [int(float(c)) for c in a.counts.split(",")]
-    kernels = ("ref", "new") if a.compare else ("new",)
-    tmpdir = tempfile.TemporaryDirectory()
     print()
     print(
         f"Synthetic 2000x2000 grid, line source, step {a.step:g} s (targets: 1e6 rays <= 30 s on 2 "
@@ -377,13 +300,8 @@ def main():
     print("-" * len(hdr))
     for n in counts:
         for th in (1, 2):
-            saved = {}
-            for kern in kernels:
-                path = os.path.join(tmpdir.name, f"syn_{kern}_{n}_{th}.npz")
-                spec = {"mode": "syn", "nrays": n, "threads": th, "step": a.step, "kernel": kern}
-                if a.compare:
-                    spec["save"] = saved[kern] = path
-                r = run_child(spec)
+            for kern in ("new",):
+                r = run_child({"mode": "syn", "nrays": n, "threads": th, "step": a.step})
                 print(
                     f"{kern:>6} {n:>9} {th:>3} {r['step_s']:>6.1f} {r['steps'] / n:>9.0f} "
                     f"{r['wall_s']:>8.2f} "
@@ -391,8 +309,6 @@ def main():
                     f"{r['peak_mb']:>8.0f} {os.getloadavg()[0]:>5.1f}",
                     flush=True,
                 )
-            if a.compare:
-                print(fmt_compare(compare_saved(saved["ref"], saved["new"])), flush=True)
     r = run_child({"mode": "syn", "nrays": 10_000, "threads": 2, "step": None})
     print(
         f"{'new':>6} {10_000:>9} {2:>3} {r['step_s']:>6.1f} {r['steps'] / 1e4:>9.0f} {r['wall_s']:>8.2f} "
@@ -420,12 +336,8 @@ def main():
                 f"0.1-degree global grid, point source, {n} rays, 24 h, step {a.global_step:g} s, "
                 "2 threads (target 1e6 rays <= 180 s):"
             )
-            saved = {}
-            for kern in kernels:
-                spec = {"mode": "global", "nrays": n, "threads": 2, "step": a.global_step, "kernel": kern}
-                if a.compare:
-                    spec["save"] = saved[kern] = os.path.join(tmpdir.name, f"global_{kern}.npz")
-                g = run_child(spec)
+            for kern in ("new",):
+                g = run_child({"mode": "global", "nrays": n, "threads": 2, "step": a.global_step})
                 print(
                     f"  {kern}: grid {g['grid']}, wall {g['wall_s']:.1f} s, "
                     f"{g['steps'] / g['wall_s'] / 1e6:.2f} M steps/s, "
@@ -435,8 +347,6 @@ def main():
                     f"rays longer than 10,000 km: {g['rays_over_10000km']}",
                     flush=True,
                 )
-            if a.compare:
-                print(fmt_compare(compare_saved(saved["ref"], saved["new"])), flush=True)
     print(f"\nload average at end: {', '.join(f'{x:.1f}' for x in os.getloadavg())}")
 
 

@@ -16,8 +16,10 @@ import time
 import numpy as np
 
 from tsunamifocus.grid import make_grid
-from tsunamifocus.okada import okada85
-from tsunamifocus.source import FaultSegment, make_ray_fan, uplift_on_grid
+from tsunamifocus.source.okada import okada85
+from tsunamifocus.source.faults import FaultSegment
+from tsunamifocus.source.rayfan import make_ray_fan
+from tsunamifocus.source.uplift import uplift_on_grid
 
 
 def _best(fn, repeat: int) -> float:

@@ -21,8 +21,8 @@ import numba
 import numpy as np
 
 from tsunamifocus.grid import make_grid
-from tsunamifocus.randomfield import gaussian_random_field
-from tsunamifocus.wave import simulate_linear_long_wave, wave_time_step
+from tsunamifocus.ocean.randomfield import gaussian_random_field
+from tsunamifocus.propagation.wave import simulate_linear_long_wave, wave_time_step
 
 
 def main() -> None:

@@ -20,8 +20,9 @@ from scipy.special import erf
 
 from tsunamifocus.constants import GRAVITY, RHO_SEAWATER
 from tsunamifocus.grid import make_grid
-from tsunamifocus.source import make_ray_fan, potential_energy
-from tsunamifocus.wave import simulate_linear_long_wave
+from tsunamifocus.source.rayfan import make_ray_fan
+from tsunamifocus.source.energy import potential_energy
+from tsunamifocus.propagation.wave import simulate_linear_long_wave
 
 
 def main() -> None:

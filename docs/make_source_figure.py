@@ -16,7 +16,10 @@ import matplotlib.pyplot as plt  # noqa: E402
 import numpy as np  # noqa: E402
 
 from tsunamifocus.grid import make_grid  # noqa: E402
-from tsunamifocus.source import FaultSegment, make_ray_fan, summarize_source, uplift_on_grid  # noqa: E402
+from tsunamifocus.source.faults import FaultSegment  # noqa: E402
+from tsunamifocus.source.rayfan import make_ray_fan  # noqa: E402
+from tsunamifocus.source.summary import summarize_source  # noqa: E402
+from tsunamifocus.source.uplift import uplift_on_grid  # noqa: E402
 
 OUT = pathlib.Path(__file__).resolve().parent / "img" / "source_uplift.png"
 

@@ -14,53 +14,52 @@ The public API works on xarray objects, one function per stage::
     fan = tf.make_ray_fan(eta, depth, 20000)                           # energy-weighted rays
     rays = tf.trace_rays(depth, fan.x0, fan.y0, fan.azimuth_deg, weights=fan.weights)
     result = tf.run_scenario("scenario.toml")                          # the whole pipeline
+
+The package is layered in the order of the data flow (see DEVELOPERS.md): io, ocean, source,
+propagation, coast, focusing, studies, products, cli; a layer imports only earlier ones.
 """
 
 from __future__ import annotations
 
-__version__ = "0.1.0"
-
+from .constants import __version__
 from .errors import *  # noqa: F401,F403
 from .errors import __all__ as _errors_all
-from .grid import GridInfo, attach_crs, get_crs, grid_info, make_grid
-from .randomfield import gaussian_random_field
-from .bathymetry import (
-    crop_bathymetry,
-    estimate_grid_memory,
-    load_bathymetry,
-    reference_bathymetry,
-    resample_bathymetry,
-    smooth_bathymetry,
-)
-from .speed import group_speed, phase_speed, wave_speed
-from .demo import make_demo_bathymetry, write_demo_data
-from .gridsummary import summarize_grid
-from .okada import okada85
-from .source import (
-    FaultSegment,
-    PointSource,
-    RayFan,
-    Rupture,
-    SourceSummary,
-    magnitude_from_moment,
-    make_ray_fan,
-    moment_from_magnitude,
-    potential_energy,
-    summarize_source,
-    uplift_on_grid,
-)
-from .rays import RayResult, trace_rays
-from .coast import coastline_from_grid, read_coastline, segment_coastline
-from .focusing import FocusingResult, analyse_focusing, energy_budget, rank_segments, segment_arrivals
-from .scenario import Scenario, parse_scenario
-from .pipeline import RunResult, arrival_times, run_scenario
-from .ensemble import EnsembleResult, run_ensemble
-from .perturb import perturb_bathymetry
-from .compare import compare_runs, read_run
-from .wave import simulate_linear_long_wave, wave_check
-from .export import write_cog, write_netcdf, write_segments
-from .outputs import OutputFolder, show_versions
+from .grid import GridInfo, attach_crs, crop_bathymetry, get_crs, grid_info, make_grid, resample_bathymetry
 from .cautions import caution_text
+from .io.bathymetry import estimate_grid_memory, load_bathymetry
+from .io.coastline import read_coastline
+from .io.scenario import Scenario, parse_scenario
+from .io.gis import write_cog, write_netcdf, write_segments
+from .io.runfolder import OutputFolder
+from .io.manifest import show_versions
+from .io.runs import read_run
+from .ocean.randomfield import gaussian_random_field
+from .ocean.smooth import smooth_bathymetry
+from .ocean.reference import reference_bathymetry
+from .ocean.speed import group_speed, phase_speed, wave_speed
+from .ocean.demo import make_demo_bathymetry
+from .ocean.perturb import perturb_bathymetry
+from .source.okada import okada85
+from .source.faults import FaultSegment, PointSource, Rupture, magnitude_from_moment, moment_from_magnitude
+from .source.uplift import uplift_on_grid
+from .source.energy import potential_energy
+from .source.rayfan import RayFan, make_ray_fan
+from .source.summary import SourceSummary, summarize_source
+from .propagation.rays import RayResult, trace_rays
+from .propagation.wave import simulate_linear_long_wave
+from .coast.coastline import coastline_from_grid
+from .coast.segments import segment_coastline
+from .focusing.analysis import FocusingResult, analyse_focusing
+from .focusing.arrivals import segment_arrivals
+from .focusing.ranking import rank_segments
+from .focusing.budget import energy_budget
+from .studies.inspect import summarize_grid
+from .studies.run import RunResult, arrival_times
+from .studies.ensemble import EnsembleResult, run_ensemble
+from .studies.compare import compare_runs
+from .products.check import wave_check
+from .products.runfolder import run_scenario
+from .products.demo import write_demo_data
 
 __all__ = [
     "__version__",

@@ -9,7 +9,12 @@ from __future__ import annotations
 from functools import lru_cache
 from importlib import resources
 
-__all__ = ["caution_text", "caution_summary", "caution_lines"]
+__all__ = ["caution_text", "caution_summary", "caution_lines", "CAUTION_SHORT", "CAUTION_FOOTER"]
+
+#: Short caution repeated in the footer of every appendix page and under every appendix figure.
+CAUTION_SHORT = "Screening estimate only - not for evacuation decisions; see the Cautions box on page 1"
+#: Footer line drawn on every figure (the full text goes into the PNG metadata).
+CAUTION_FOOTER = "Screening estimate only - not for evacuation decisions; see CAUTIONS"
 
 
 @lru_cache(maxsize=1)

@@ -2,7 +2,11 @@
 
 from __future__ import annotations
 
-__all__ = ["GRAVITY", "EARTH_RADIUS_M", "RHO_SEAWATER", "RIGIDITY_PA", "MIN_DEPTH_M"]
+__all__ = [
+    "__version__", "GRAVITY", "EARTH_RADIUS_M", "RHO_SEAWATER", "RIGIDITY_PA", "MIN_DEPTH_M"]
+
+#: Version of the package (also in pyproject.toml).
+__version__ = "0.1.0"
 
 #: Gravitational acceleration [m s-2]. Standard textbook value used for long-wave speed
 #: c = sqrt(g h); configurable wherever it is used.

@@ -28,7 +28,7 @@ from pyproj import CRS
 from .constants import EARTH_RADIUS_M
 from .errors import CRSError, InputError
 
-__all__ = ["GridInfo", "attach_crs", "get_crs", "make_grid", "grid_info"]
+__all__ = ['GridInfo', 'attach_crs', 'get_crs', 'make_grid', 'grid_info', 'crop_bathymetry', 'resample_bathymetry']
 
 _REL_TOL = 1e-6
 
@@ -294,3 +294,124 @@ class GridInfo:
 def grid_info(da: xr.DataArray) -> GridInfo:
     """Shorthand for :meth:`GridInfo.from_dataarray`."""
     return GridInfo.from_dataarray(da)
+
+
+# --------------------------------------------------------------------------------------
+# crop, resample, smooth (pure functions on DataArrays)
+# --------------------------------------------------------------------------------------
+def crop_bathymetry(
+    depth: xr.DataArray, bbox: tuple[float, float, float, float], *, margin_km: float = 0.0
+) -> xr.DataArray:
+    """Crop a grid to ``bbox`` plus a margin.
+
+    Parameters
+    ----------
+    depth : xarray.DataArray
+        Grid in the tsunamifocus convention.
+    bbox : (xmin, ymin, xmax, ymax)
+        Box in the grid CRS units; on geographic grids longitudes may be given in either
+        -180..180 or 0..360, and a box across the grid's seam is handled on global grids.
+    margin_km : float
+        Margin around the box [km] (converted to degrees at the box's poleward edge).
+
+    Returns
+    -------
+    xarray.DataArray
+        The cropped grid (never empty).
+    """
+    info = GridInfo.from_dataarray(depth)
+    xmin, ymin, xmax, ymax = (float(b) for b in bbox)
+    if not (xmax > xmin and ymax > ymin):
+        raise InputError(f"bbox {bbox}: expected xmin < xmax and ymin < ymax")
+    if margin_km < 0:
+        raise InputError(f"margin_km={margin_km}: expected >= 0 km")
+    yd, xd = info.dims
+    if info.geographic:
+        km_per_deg = math.pi / 180 * EARTH_RADIUS_M / 1000
+        mlat = margin_km / km_per_deg
+        lat_edge = min(89.0, max(abs(ymin), abs(ymax)) + mlat)
+        mlon = margin_km / (km_per_deg * math.cos(math.radians(lat_edge)))
+        ymin, ymax, xmin, xmax = ymin - mlat, ymax + mlat, xmin - mlon, xmax + mlon
+        if info.periodic_x and xmax - xmin >= 360:
+            out = depth.sel({yd: slice(ymin, ymax)})
+        elif info.periodic_x:
+            # roll the global grid so the box is contiguous
+            lo = info.x0 - 0.5 * info.dx
+            start = lo + np.mod(xmin - lo, 360.0)
+            shift = int(np.floor((start - info.x0) / info.dx))
+            rolled = depth.roll({xd: -shift}, roll_coords=True)
+            lon = rolled[xd].values.copy()
+            lon[lon < lon[0]] += 360.0
+            rolled = rolled.assign_coords({xd: lon})
+            xmin2 = start
+            xmax2 = start + (xmax - xmin)
+            out = rolled.sel({yd: slice(ymin, ymax), xd: slice(xmin2, xmax2)})
+            # express longitudes in -180..180 when that keeps them monotonic and the box asked for it
+            lonv = out[xd].values
+            if bbox[0] < 0 and lonv.max() > 180:
+                out = out.assign_coords({xd: lonv - 360.0})
+            out.attrs["lon_periodic"] = 0
+        else:
+            xs = info.wrap_lon(np.array([xmin, xmax]))
+            out = depth.sel({yd: slice(ymin, ymax), xd: slice(float(xs[0]), float(xs[1]))})
+    else:
+        m = margin_km * 1000.0
+        out = depth.sel({yd: slice(ymin - m, ymax + m), xd: slice(xmin - m, xmax + m)})
+    if out.sizes[xd] < 2 or out.sizes[yd] < 2:
+        raise InputError(f"bbox {bbox} (margin {margin_km} km) does not overlap the grid {info.bounds}")
+    out.attrs = {**depth.attrs, **{k: v for k, v in out.attrs.items() if k == "lon_periodic"}}
+    if info.geographic and out.sizes[xd] < info.nx:
+        out.attrs["lon_periodic"] = 0
+    return out
+
+
+def resample_bathymetry(depth: xr.DataArray, spacing_km: float, *, min_valid: float = 0.5) -> xr.DataArray:
+    """Downsample by area-averaging integer blocks of cells.
+
+    The block factor is ``round(spacing_km / dy_km)`` (the north-south spacing in km on
+    lon/lat grids), applied to both axes. A block needs at least ``min_valid`` of its cells
+    finite to get a value (the mean of those); otherwise it is NaN. Trailing rows/columns
+    that do not fill a block are dropped.
+
+    Parameters
+    ----------
+    depth : xarray.DataArray
+        Grid in the tsunamifocus convention.
+    spacing_km : float
+        Target spacing [km]; must be at least the current spacing.
+    min_valid : float
+        Fraction of finite cells a block needs.
+
+    Returns
+    -------
+    xarray.DataArray
+    """
+    info = GridInfo.from_dataarray(depth)
+    dxm, dym = info.spacing_m()
+    if not spacing_km > 0:
+        raise InputError(f"resample spacing {spacing_km} km: expected > 0")
+    f = int(round(spacing_km * 1000.0 / dym))
+    if f < 1:
+        raise InputError(
+            f"resample spacing {spacing_km} km is finer than the grid ({dym / 1000:.3f} km); "
+            "only downsampling is supported"
+        )
+    if f == 1:
+        return depth
+    ny, nx = (info.ny // f) * f, (info.nx // f) * f
+    if ny < f * 2 or nx < f * 2:
+        raise InputError(f"resample spacing {spacing_km} km leaves fewer than 2 x 2 cells")
+    v = depth.values[:ny, :nx].reshape(ny // f, f, nx // f, f)
+    valid = np.isfinite(v)
+    cnt = valid.sum(axis=(1, 3))
+    s = np.where(valid, v, 0.0).sum(axis=(1, 3))
+    with np.errstate(invalid="ignore", divide="ignore"):
+        mean = np.where(cnt >= min_valid * f * f, s / np.maximum(cnt, 1), np.nan)
+    x = info.x[:nx].reshape(-1, f).mean(axis=1)
+    y = info.y[:ny].reshape(-1, f).mean(axis=1)
+    periodic = info.periodic_x and nx == info.nx
+    out = make_grid(mean, x, y, info.crs, name=depth.name or "depth", attrs=dict(depth.attrs), lon_periodic=periodic)
+    out.attrs["lon_periodic"] = int(periodic) if info.geographic else out.attrs.get("lon_periodic", 0)
+    if not info.geographic:
+        out.attrs.pop("lon_periodic", None)
+    return out

@@ -1,0 +1,364 @@
+"""Tests of tsunamifocus.bathymetry: loading, conventions, crop, resample, smoothing.
+
+External references: the real ETOPO1 0.1-degree grid read directly with netCDF4 (an
+independent reader), GDAL via rasterio for GeoTIFF/ESRI ASCII, and grids whose values
+encode their own coordinates (an analytical check of registration).
+"""
+
+from __future__ import annotations
+
+import math
+
+import netCDF4
+import numpy as np
+import pytest
+import rasterio
+import xarray as xr
+from rasterio.transform import from_origin
+
+from tsunamifocus import errors
+from tsunamifocus.grid import crop_bathymetry, resample_bathymetry
+from tsunamifocus.io.bathymetry import load_bathymetry
+from tsunamifocus.ocean.smooth import smooth_bathymetry
+from tsunamifocus.grid import GridInfo, make_grid
+
+UTM = "EPSG:32633"
+
+
+def _write_tif(path, arr, transform, crs=UTM, nodata=None, dtype="float32", tags=None, band_tags=None,
+               scale=None, offset=None, units=None):
+    with rasterio.open(path, "w", driver="GTiff", width=arr.shape[1], height=arr.shape[0], count=1,
+                       dtype=dtype, crs=crs, transform=transform, nodata=nodata) as dst:
+        dst.write(arr.astype(dtype), 1)
+        if tags:
+            dst.update_tags(**tags)
+        if band_tags:
+            dst.update_tags(1, **band_tags)
+        if scale is not None:
+            dst.scales = (scale,)
+        if offset is not None:
+            dst.offsets = (offset,)
+        if units:
+            dst.units = (units,)
+    return path
+
+
+def _coord_code(x, y):
+    """Depth value that encodes its own position (positive everywhere)."""
+    return 1000.0 + 0.001 * x + 0.0001 * y
+
+
+# ----------------------------------------------------------------------------- real data
+@pytest.mark.realdata
+def test_real_grid_sign_refused_in_auto(etopo_path):
+    # the file's variable 'z' has no units, no 'positive' attribute and a neutral name
+    # (shared/data/README.md): auto must refuse rather than guess
+    with pytest.raises(errors.SignConventionError, match="values='elevation'"):
+        load_bathymetry(etopo_path)
+
+
+@pytest.fixture(scope="module")
+def etopo_depth(etopo_path):
+    return load_bathymetry(etopo_path, values="elevation")
+
+
+@pytest.mark.realdata
+def test_real_grid_layout(etopo_depth):
+    d = etopo_depth
+    info = GridInfo.from_dataarray(d)
+    # 3601 columns with the 0 and 360 meridian duplicated (shared/data/README.md) -> 3600 kept
+    assert d.shape == (1801, 3600)
+    assert info.periodic_x and info.geographic
+    assert d.lon.values[0] == 0.0 and abs(d.lon.values[-1] - 359.9) < 1e-9
+    assert d.lat.values[0] == -90.0 and d.lat.values[-1] == 90.0  # gridline registered: nodes at the poles
+    assert d.attrs["positive"] == "down" and d.attrs["units"] == "m"
+
+
+@pytest.mark.realdata
+def test_real_grid_deepest_cell_is_mariana_trench(etopo_depth):
+    # Deepest ocean: Challenger Deep, Mariana Trench, ~11.3 N 142.2 E, deeper than 10,000 m
+    # (common practice, no source). At 0.1 degree the grid's maximum must lie there.
+    d = etopo_depth
+    j, i = np.unravel_index(np.nanargmax(d.values), d.shape)
+    assert d.values[j, i] > 10000.0
+    assert 10.0 < d.lat.values[j] < 13.0
+    assert 141.0 < d.lon.values[i] < 144.0
+
+
+@pytest.mark.realdata
+@pytest.mark.parametrize("lon,lat", [(0.0, 0.0), (200.0, 20.0), (359.9, -45.3), (142.5, 11.4), (10.0, 89.9)])
+def test_real_grid_point_lookup_matches_netcdf4(etopo_depth, etopo_path, lon, lat):
+    # independent reader: netCDF4 straight from the file; depth = -elevation
+    with netCDF4.Dataset(etopo_path) as nc:
+        lons = nc["lon"][:]
+        lats = nc["lat"][:]
+        i = int(np.argmin(np.abs(lons - lon)))
+        j = int(np.argmin(np.abs(lats - lat)))
+        ref = -float(nc["z"][j, i])
+    got = float(etopo_depth.sel(lon=lon, lat=lat, method="nearest"))
+    assert got == pytest.approx(ref, abs=1e-3)
+
+
+@pytest.mark.realdata
+def test_real_grid_crop_across_seam(etopo_depth, etopo_path):
+    # a box from 170 E to 170 W crosses the 0/360 seam of a -180..180 request
+    c = crop_bathymetry(etopo_depth, (170.0, -30.0, 190.0, -10.0))
+    lon = c.lon.values
+    assert np.all(np.diff(lon) > 0)
+    assert lon[0] == pytest.approx(170.0) and lon[-1] == pytest.approx(190.0)
+    c2 = crop_bathymetry(etopo_depth, (-10.0, 40.0, 10.0, 50.0))  # across 0 E, asked as -10..10
+    assert c2.lon.values[0] == pytest.approx(-10.0) and c2.lon.values[-1] == pytest.approx(10.0)
+    with netCDF4.Dataset(etopo_path) as nc:  # independent value check on the west side of the seam
+        ref = -float(nc["z"][int(round((45.0 + 90) / 0.1)), int(round(355.0 / 0.1))])
+    assert float(c2.sel(lon=-5.0, lat=45.0, method="nearest")) == pytest.approx(ref, abs=1e-3)
+
+
+# ----------------------------------------------------------------------------- registration
+@pytest.mark.parametrize("area_or_point", ["Area", "Point"])
+@pytest.mark.parametrize("north_up", [True, False])
+def test_geotiff_registration_no_half_cell_shift(tmp_path, area_or_point, north_up):
+    # values encode their own cell-centre coordinates: after loading, the value found at each
+    # coordinate must equal the code of that coordinate (no half-cell shift). GDAL normalises
+    # pixel-is-point files to an area transform itself (GDAL GeoTIFF driver documentation).
+    nx, ny, dx = 40, 30, 1000.0
+    x0, ytop = 500000.0, 4100000.0
+    xc = x0 + dx * (np.arange(nx) + 0.5)
+    yc = ytop - dx * (np.arange(ny) + 0.5)
+    arr = _coord_code(xc[None, :], yc[:, None])
+    if north_up:
+        tr = from_origin(x0, ytop, dx, dx)
+    else:  # south-up raster: positive e
+        arr = arr[::-1]
+        tr = rasterio.Affine(dx, 0, x0, 0, dx, ytop - ny * dx)
+    p = _write_tif(tmp_path / "g.tif", arr, tr, dtype="float64", tags={"AREA_OR_POINT": area_or_point})
+    d = load_bathymetry(p, values="depth")
+    X, Y = np.meshgrid(d.x.values, d.y.values)
+    np.testing.assert_allclose(d.values, _coord_code(X, Y), rtol=0, atol=1e-9)
+    with rasterio.open(p) as src:  # reference: GDAL's own pixel centre of pixel (row 0, col 0)
+        xr0, yr0 = src.xy(0, 0)
+        assert float(d.sel(x=xr0, y=yr0, method="nearest")) == pytest.approx(float(src.read(1)[0, 0]))
+
+
+@pytest.mark.parametrize("lon_kind", ["0..360 with seam", "-180..180", "descending lat"])
+def test_netcdf_lonlat_orientation_and_seam(tmp_path, lon_kind):
+    if lon_kind == "0..360 with seam":
+        lon = np.arange(0, 360.001, 5.0)
+    else:
+        lon = np.arange(-180, 180, 5.0)
+    lat = np.arange(-85, 85.1, 5.0)
+    if lon_kind == "descending lat":
+        lat = lat[::-1]
+    code = 5000.0 + lat[:, None] * 10 + np.mod(lon[None, :], 360.0) * 0.01
+    ds = xr.Dataset({"elev": (("lat", "lon"), -code)}, coords={"lat": lat, "lon": lon})
+    ds["elev"].attrs.update(units="m", positive="up")
+    p = tmp_path / "g.nc"
+    ds.to_netcdf(p)
+    d = load_bathymetry(p)  # positive="up" makes auto unambiguous (CF conventions, 'positive' attribute)
+    info = GridInfo.from_dataarray(d)
+    assert info.periodic_x
+    assert np.all(np.diff(d.lat.values) > 0) and np.all(np.diff(d.lon.values) > 0)
+    assert d.sizes["lon"] == 72
+    LON, LAT = np.meshgrid(d.lon.values, d.lat.values)
+    np.testing.assert_allclose(d.values, 5000.0 + LAT * 10 + np.mod(LON, 360.0) * 0.01, atol=1e-9)
+
+
+def test_esri_ascii_grid(tmp_path):
+    # ESRI ASCII grid: xllcorner/yllcorner are the lower-left cell edge (ESRI format spec);
+    # rows are written north to south. Values encode coordinates.
+    nx, ny, dx, x0, y0 = 6, 4, 100.0, 1000.0, 2000.0
+    xc = x0 + dx * (np.arange(nx) + 0.5)
+    yc = y0 + dx * (np.arange(ny) + 0.5)
+    vals = _coord_code(xc[None, :], yc[:, None])[::-1]
+    vals[0, 0] = -9999
+    lines = [f"ncols {nx}", f"nrows {ny}", f"xllcorner {x0}", f"yllcorner {y0}", f"cellsize {dx}",
+             "NODATA_value -9999"] + [" ".join(f"{v:.6f}" for v in row) for row in vals]
+    p = tmp_path / "g.asc"
+    p.write_text("\n".join(lines) + "\n")
+    with pytest.raises(errors.CRSError, match="no CRS"):
+        load_bathymetry(p, values="depth")
+    d = load_bathymetry(p, values="depth", crs=UTM)
+    assert np.isnan(d.values[-1, 0])  # the north-west cell was nodata
+    X, Y = np.meshgrid(d.x.values, d.y.values)
+    ok = np.isfinite(d.values)
+    np.testing.assert_allclose(d.values[ok], _coord_code(X, Y)[ok], atol=1e-5)
+
+
+# ----------------------------------------------------------------------------- values
+def test_nodata_scale_offset_integer_feet(tmp_path):
+    # int16 raster with scale 0.5, offset -100 and a nodata value; units feet -> metres
+    # (1 international foot = 0.3048 m exactly, by definition since 1959)
+    raw = np.array([[10, 20, -32768], [40, 50, 60]], dtype="int16")
+    p = _write_tif(tmp_path / "i.tif", raw, from_origin(0, 2000, 1000, 1000), nodata=-32768, dtype="int16",
+                   scale=0.5, offset=-100.0, units="ft")
+    d = load_bathymetry(p, values="elevation")
+    expected_elev_ft = raw.astype(float) * 0.5 - 100.0
+    exp = -(expected_elev_ft * 0.3048)[::-1]
+    exp[1, 2] = np.nan
+    np.testing.assert_allclose(d.values, exp, atol=1e-9)
+
+
+def test_auto_sign_from_metadata(tmp_path):
+    arr = np.full((5, 5), 100.0)
+    arr[0, 0] = -5
+    p1 = _write_tif(tmp_path / "a.tif", arr, from_origin(0, 5000, 1000, 1000), band_tags={"positive": "down"})
+    assert float(load_bathymetry(p1).values[-1, 0]) == pytest.approx(-5.0)
+    p2 = _write_tif(tmp_path / "b.tif", -arr, from_origin(0, 5000, 1000, 1000), band_tags={"positive": "up"})
+    assert float(load_bathymetry(p2).values[-1, 0]) == pytest.approx(-5.0)
+    p3 = _write_tif(tmp_path / "c.tif", arr, from_origin(0, 5000, 1000, 1000))
+    with pytest.raises(errors.SignConventionError):
+        load_bathymetry(p3)
+
+
+# ----------------------------------------------------------------------------- crop/resample/smooth
+def _proj_grid(nx=60, ny=40, dx=1000.0):
+    x = dx * (np.arange(nx) + 0.5)
+    y = dx * (np.arange(ny) + 0.5)
+    v = _coord_code(x[None, :], y[:, None])
+    return make_grid(v, x, y, UTM)
+
+
+def test_crop_with_margin():
+    d = _proj_grid()
+    c = crop_bathymetry(d, (10000, 10000, 20000, 15000), margin_km=2.0)
+    assert c.x.values[0] >= 8000 - 1e-9 and c.x.values[0] < 9000
+    assert c.x.values[-1] <= 22000 and c.x.values[-1] > 21000
+    with pytest.raises(errors.InputError, match="does not overlap"):
+        crop_bathymetry(d, (1e7, 1e7, 2e7, 2e7))
+
+
+def test_resample_is_area_average():
+    d = _proj_grid()
+    r = resample_bathymetry(d, 3.0)
+    assert r.shape == (40 // 3, 60 // 3)
+    manual = d.values[:39, :60].reshape(13, 3, 20, 3).mean(axis=(1, 3))
+    np.testing.assert_allclose(r.values, manual)
+    # block-mean coordinates: the centre of each block of cells
+    np.testing.assert_allclose(r.x.values[:3], [1500.0, 4500.0, 7500.0])  # cells 0-3 km -> 1.5 km
+    with pytest.raises(errors.InputError, match="only downsampling"):
+        resample_bathymetry(d, 0.1)
+
+
+def test_smoothing_keeps_mean_and_land():
+    d = _proj_grid()
+    v = d.values.copy()
+    v[:, -5:] = -10.0  # land strip
+    d = d.copy(data=v)
+    s = smooth_bathymetry(d, 3.0)
+    np.testing.assert_array_equal(s.values[:, -5:], -10.0)
+    # a linear field is reproduced by a normalised Gaussian away from edges (symmetric kernel)
+    np.testing.assert_allclose(s.values[15:25, 15:35], d.values[15:25, 15:35], rtol=1e-9)
+    const = d.copy(data=np.where(v > 0, 3000.0, v))
+    np.testing.assert_allclose(smooth_bathymetry(const, 5.0).values[v > 0], 3000.0)
+
+
+def test_smoothing_width_in_km_on_lonlat():
+    # a single bump at the equator and at 60 N: after smoothing, the east-west spread in km
+    # must be the same (a degree of longitude is cos(lat) shorter: spherical geometry)
+    lon = np.arange(0, 20, 0.05)
+    lat = np.arange(-5, 65, 0.05)
+    v = np.full((lat.size, lon.size), 4000.0)
+    j0, j60, i0 = int(np.argmin(abs(lat))), int(np.argmin(abs(lat - 60))), 200
+    v[j0, i0] += 1000.0
+    v[j60, i0] += 1000.0
+    d = make_grid(v, lon, lat, "EPSG:4326")
+    s = smooth_bathymetry(d, 20.0).values - 4000.0
+
+    def width_km(row, lat_deg):
+        prof = row / row.max()
+        km = (lon - lon[i0]) * math.pi / 180 * 6371.0088 * math.cos(math.radians(lat_deg))
+        return math.sqrt(np.sum(prof * km**2) / np.sum(prof))  # rms width = sigma of the kernel
+
+    assert width_km(s[j0], 0.0) == pytest.approx(20.0, rel=0.03)
+    assert width_km(s[j60], lat[j60]) == pytest.approx(20.0, rel=0.03)
+
+
+# ----------------------------------------------------------------------------- bad input
+def test_memory_refusal(tmp_path):
+    p = _write_tif(tmp_path / "m.tif", np.full((50, 50), 100.0), from_origin(0, 5e4, 1000, 1000))
+    with pytest.raises(errors.ResourceLimitError, match="GB"):
+        load_bathymetry(p, values="depth", max_memory_gb=1e-6)
+
+
+def _bad_cases(tmp_path):
+    cases = {}
+    cases["missing"] = (tmp_path / "nope.tif", {}, errors.DataFileError, "not found")
+    (tmp_path / "empty.tif").write_bytes(b"")
+    cases["empty"] = (tmp_path / "empty.tif", {}, errors.DataFileError, "empty")
+    (tmp_path / "junk.tif").write_bytes(b"II*\x00garbage" * 20)
+    cases["corrupt tif"] = (tmp_path / "junk.tif", {}, errors.DataFileError, "not a readable raster")
+    (tmp_path / "junk.nc").write_bytes(b"CDF\x01" + b"\x00\xff" * 50)
+    cases["corrupt nc"] = (tmp_path / "junk.nc", {}, errors.DataFileError, "not a readable NetCDF")
+    _write_tif(tmp_path / "nocrs.tif", np.ones((4, 4)), from_origin(0, 4, 1, 1), crs=None)
+    cases["no crs"] = (tmp_path / "nocrs.tif", {"values": "depth"}, errors.CRSError, "no CRS")
+    _write_tif(tmp_path / "land.tif", np.full((4, 4), 50.0), from_origin(0, 4000, 1000, 1000))
+    cases["all land"] = (tmp_path / "land.tif", {"values": "elevation"}, errors.InputError, "no sea cells")
+    _write_tif(tmp_path / "nan.tif", np.full((4, 4), np.nan), from_origin(0, 4000, 1000, 1000))
+    cases["all nan"] = (tmp_path / "nan.tif", {"values": "depth"}, errors.InputError, "nodata")
+    _write_tif(tmp_path / "rot.tif", np.ones((4, 4)), rasterio.Affine(1000, 10, 0, 10, -1000, 4000))
+    cases["rotated"] = (tmp_path / "rot.tif", {"values": "depth"}, errors.InputError, "rotated or sheared")
+    xr.Dataset({"z": (("time", "lat", "lon"), np.ones((3, 4, 5)))},
+               coords={"lat": np.arange(4.0), "lon": np.arange(5.0)}).to_netcdf(tmp_path / "3d.nc")
+    cases["3-D"] = (tmp_path / "3d.nc", {"values": "depth"}, errors.InputError, "expected a 2-D")
+    xr.Dataset({"a": (("lat", "lon"), np.ones((4, 5))), "b": (("lat", "lon"), np.ones((4, 5)))},
+               coords={"lat": np.arange(4.0), "lon": np.arange(5.0)}).to_netcdf(tmp_path / "two.nc")
+    cases["two vars"] = (tmp_path / "two.nc", {"values": "depth"}, errors.InputError, "several 2-D variables")
+    xr.Dataset({"z": (("lat", "lon"), np.ones((4, 5)))},
+               coords={"lat": np.arange(0, 200.0, 50), "lon": np.arange(5.0)}).to_netcdf(tmp_path / "swap.nc")
+    cases["lat/lon swapped"] = (tmp_path / "swap.nc", {"values": "depth"}, errors.InputError, "swapped")
+    xr.Dataset({"z": (("y", "x"), np.ones((4, 5)))},
+               coords={"y": np.arange(4.0), "x": np.arange(5.0)}).to_netcdf(tmp_path / "xy.nc")
+    cases["projected without grid mapping"] = (tmp_path / "xy.nc", {"values": "depth"}, errors.CRSError,
+                                               "no grid_mapping")
+    cases["bad values kw"] = (tmp_path / "land.tif", {"values": "height"}, errors.InputError, "expected 'auto'")
+    return cases
+
+
+@pytest.mark.parametrize("case", [
+    "missing", "empty", "corrupt tif", "corrupt nc", "no crs", "all land", "all nan", "rotated", "3-D",
+    "two vars", "lat/lon swapped", "projected without grid mapping", "bad values kw",
+])
+def test_bad_input(tmp_path, case):
+    path, kw, exc, msg = _bad_cases(tmp_path)[case]
+    with pytest.raises(exc, match=msg) as info:
+        load_bathymetry(path, **kw)
+    text = str(info.value)
+    assert "\n" not in text
+    if case != "bad values kw":
+        assert path.name in text  # the message names the file
+
+
+def test_projected_netcdf_with_grid_mapping_round_trip(tmp_path):
+    d = _proj_grid()
+    ds = d.to_dataset(name="depth")
+    ds["depth"].attrs["grid_mapping"] = "spatial_ref"
+    p = tmp_path / "p.nc"
+    ds.to_netcdf(p)
+    back = load_bathymetry(p, values="depth")
+    assert GridInfo.from_dataarray(back).crs.to_epsg() == 32633
+    np.testing.assert_array_equal(back.values, d.values)
+    np.testing.assert_array_equal(back.x.values, d.x.values)
+
+
+@pytest.mark.parametrize("kind", ["geotiff", "netcdf"])
+def test_round_trip_geotiff_netcdf_exact(tmp_path, kind):
+    # load -> write with the package's own writers -> load again: CRS, coordinates (hence the
+    # transform) and values identical; the independent reader (rasterio/GDAL) confirms the transform
+    from tsunamifocus.products.demo import write_demo_data
+    from tsunamifocus.io.gis import write_cog, write_netcdf
+
+    src = write_demo_data(tmp_path / "in")[kind]
+    d = load_bathymetry(src)
+    info = GridInfo.from_dataarray(d)
+    tif = write_cog(d.astype("float32"), tmp_path / "back.tif", description="depth", units="m")
+    nc = write_netcdf({"depth": d}, tmp_path / "back.nc", title="round trip")
+    for p in (tif, nc):
+        b = load_bathymetry(p, values="depth")
+        bi = GridInfo.from_dataarray(b)
+        assert bi.crs.equals(info.crs)
+        np.testing.assert_array_equal(b.values, d.values.astype("float32").astype("float64") if p == tif
+                                      else d.values)
+        np.testing.assert_allclose(b[b.dims[1]].values, d[d.dims[1]].values, rtol=0, atol=1e-9 * abs(info.dx))
+        np.testing.assert_allclose(b[b.dims[0]].values, d[d.dims[0]].values, rtol=0, atol=1e-9 * abs(info.dy))
+    with rasterio.open(tif) as r:
+        assert r.transform.a == pytest.approx(info.dx) and r.transform.c == pytest.approx(info.bounds[0])
+        assert r.transform.f == pytest.approx(info.bounds[3])

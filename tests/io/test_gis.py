@@ -1,0 +1,337 @@
+"""Tests of the GIS/data exports (tsunamifocus.export), read back with independent libraries.
+
+External references:
+* GDAL raster data model (gdal.org/user/raster_data_model.html): the geotransform maps pixel
+  corners; pixel (row, col) covers [x0 + col dx, x0 + (col + 1) dx); "AREA_OR_POINT=Area".
+* rasterio ``DatasetReader.xy(row, col)`` returns the pixel centre by default (rasterio docs).
+* Cloud-Optimized GeoTIFF layout checked by rio-cogeo's ``cog_validate`` (a port of GDAL's
+  ``validate_cloud_optimized_geotiff.py``).
+* CF Conventions 1.8: section 2.6 (global attributes), 3.1 (units), 5.6 (grid mappings),
+  Appendix F (``transverse_mercator`` / ``latitude_longitude``).
+* RFC 7946 (GeoJSON): section 3.1.1 lon/lat order, 4 (WGS 84, no "crs" member), 6.1 foreign
+  members, 3.1.9 antimeridian cutting.
+* Reproducibility: the same inputs give byte-identical files (reproducible-builds.org practice).
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import math
+
+import netCDF4
+import numpy as np
+import pandas as pd
+import pyogrio
+import pyogrio.raw
+import pytest
+import rasterio
+import shapely
+import xarray as xr
+from pyproj import CRS, Transformer
+from rio_cogeo.cogeo import cog_validate
+
+from tsunamifocus.cautions import caution_text
+from tsunamifocus.errors import CRSError, InputError
+from tsunamifocus.io.gis import write_cog, write_netcdf, write_points_csv, write_segments
+from tsunamifocus.grid import make_grid
+
+CAUTION_MARK = "SCREENING ESTIMATES ONLY"
+
+
+def _sha(p):
+    return hashlib.sha256(p.read_bytes()).hexdigest()
+
+
+@pytest.fixture
+def utm_grid():
+    """Projected grid (UTM 54N) whose values encode their own coordinates: v = x/1000 + 1000*y/1000."""
+    x = 500_000.0 + 2000.0 * np.arange(700)  # > 512 columns: the COG gets internal tiles and overviews
+    y = 4_000_000.0 + 1000.0 * np.arange(600)
+    v = (x[None, :] / 1000.0) + 1000.0 * (y[:, None] / 1000.0)
+    da = make_grid(v, x, y, "EPSG:32654", name="travel_time_min")
+    da.values[5, 7] = np.nan
+    return da
+
+
+@pytest.fixture
+def geo_grid():
+    """Geographic 0.5-degree grid, values encode lon and lat: v = lon + 1000 * lat."""
+    lon = -20.0 + 0.5 * np.arange(40)
+    lat = -10.0 + 0.5 * np.arange(30)
+    v = lon[None, :] + 1000.0 * lat[:, None]
+    return make_grid(v, lon, lat, "EPSG:4326", name="lensing_factor")
+
+
+def test_cog_round_trip_projected(tmp_path, utm_grid):
+    p = write_cog(utm_grid, tmp_path / "tt.tif", tags={"scenario": "bay"})
+    ok, errors, warnings = cog_validate(str(p))
+    assert ok, errors
+    with rasterio.open(p) as r:
+        assert r.crs.to_epsg() == 32654
+        # pixel-is-area transform: edge half a cell before the first centre, north-up
+        assert r.transform.a == 2000.0 and r.transform.e == -1000.0
+        assert r.transform.c == pytest.approx(500_000.0 - 1000.0)
+        assert r.transform.f == pytest.approx(4_000_000.0 + 599 * 1000.0 + 500.0)
+        assert r.tags()["AREA_OR_POINT"] == "Area"
+        assert r.tags()["CAUTION"] == caution_text()
+        assert r.tags()["scenario"] == "bay"
+        assert r.descriptions[0].startswith("first-arrival travel time")
+        assert r.units[0] == "min"
+        assert math.isnan(r.nodata)
+        assert len(r.overviews(1)) >= 1
+        data = r.read(1)
+        # each value sits at its own coordinates (pixel centre from rasterio.xy)
+        for row, col in [(0, 0), (599, 699), (123, 456), (300, 1)]:
+            xc, yc = r.xy(row, col)
+            expect = xc / 1000.0 + yc
+            assert data[row, col] == pytest.approx(expect, rel=1e-6)
+        # the NaN cell written as nodata, at the right place
+        rr, cc = r.index(500_000.0 + 7 * 2000.0, 4_000_000.0 + 5 * 1000.0)
+        assert np.isnan(data[rr, cc])
+        assert r.read_masks(1)[rr, cc] == 0
+
+
+def test_cog_geographic_registration_and_nodata(tmp_path, geo_grid):
+    da = geo_grid.copy()
+    da.values[0, 0] = np.nan
+    p = write_cog(da, tmp_path / "lf.tif", nodata=-9999.0, units="1", description="lensing factor")
+    assert cog_validate(str(p))[0]
+    with rasterio.open(p) as r:
+        assert r.crs.to_epsg() == 4326
+        assert (r.transform.c, r.transform.f) == pytest.approx((-20.25, -10.0 + 29 * 0.5 + 0.25))
+        assert r.nodata == -9999.0
+        d = r.read(1)
+        lon, lat = r.xy(0, 0)  # north-west corner pixel: northernmost latitude first
+        assert (lon, lat) == pytest.approx((-20.0, 4.5))
+        assert d[0, 0] == pytest.approx(lon + 1000 * lat)
+        row, col = r.index(-20.0, -10.0)  # the NaN cell (first row of the ascending grid)
+        assert d[row, col] == -9999.0
+        assert r.descriptions == ("lensing factor",) and r.units == ("1",)
+
+
+def test_cog_needs_crs(tmp_path):
+    da = xr.DataArray(np.zeros((3, 4)), dims=("y", "x"), coords={"y": np.arange(3.0), "x": np.arange(4.0)})
+    with pytest.raises(CRSError):
+        write_cog(da, tmp_path / "x.tif")
+
+
+def test_netcdf_cf_round_trip(tmp_path, utm_grid):
+    energy = utm_grid.copy().rename("energy")
+    energy.attrs = {}
+    p = write_netcdf({"travel_time_min": utm_grid, "energy": energy}, tmp_path / "run.nc", title="Test run",
+                     history="unit test", references="Okada (1985)")
+    ds = xr.open_dataset(p)
+    assert ds.attrs["Conventions"] == "CF-1.8"
+    assert ds.attrs["title"] == "Test run" and "unit test" in ds.attrs["history"]
+    assert ds.attrs["comment"] == caution_text() and ds.attrs["caution"] == caution_text()
+    assert ds.attrs["references"] == "Okada (1985)"
+    for name, unit in (("travel_time_min", "min"), ("energy", "J m-1")):
+        v = ds[name]
+        assert v.attrs["units"] == unit and v.attrs["long_name"]
+        assert v.encoding.get("grid_mapping", v.attrs.get("grid_mapping")) == "spatial_ref"
+    gm = ds["spatial_ref"].attrs
+    assert gm["grid_mapping_name"] == "transverse_mercator"  # CF Appendix F for UTM
+    assert CRS.from_cf(gm).to_epsg() == 32654  # pyproj reads the grid mapping back
+    assert ds["x"].attrs["standard_name"] == "projection_x_coordinate" and ds["x"].attrs["axis"] == "X"
+    ds.close()
+    with netCDF4.Dataset(p) as nc:
+        v = nc.variables["travel_time_min"]
+        assert v.getncattr("grid_mapping") == "spatial_ref"
+        vals = v[:]
+        assert np.ma.is_masked(vals[5, 7])  # NaN written with the CF _FillValue
+        assert float(vals[10, 20]) == pytest.approx(utm_grid.values[10, 20])
+        assert "_FillValue" not in nc.variables["x"].ncattrs()  # coordinates have no missing values
+        assert "coordinates" not in v.ncattrs()
+
+
+def test_netcdf_geographic_and_mismatch(tmp_path, geo_grid, utm_grid):
+    p = write_netcdf({"lensing_factor": geo_grid}, tmp_path / "g.nc", title="g")
+    ds = xr.open_dataset(p)
+    assert ds["spatial_ref"].attrs["grid_mapping_name"] == "latitude_longitude"
+    assert ds["lat"].attrs["units"] == "degrees_north" and ds["lon"].attrs["units"] == "degrees_east"
+    np.testing.assert_array_equal(ds["lensing_factor"].values, geo_grid.values)
+    ds.close()
+    with pytest.raises(CRSError):
+        write_netcdf({"a": geo_grid, "b": utm_grid}, tmp_path / "bad.nc", title="x")
+    shifted = geo_grid.assign_coords(lon=geo_grid.lon + 0.25)
+    with pytest.raises(InputError, match="not on the grid"):
+        write_netcdf({"a": geo_grid, "b": shifted}, tmp_path / "bad.nc", title="x")
+    assert not (tmp_path / "bad.nc").exists()
+
+
+@pytest.fixture
+def segments():
+    x0, y0 = 500_000.0, 4_000_000.0
+    geoms = [shapely.LineString([(x0 + 1000 * i, y0 + 500 * i), (x0 + 1000 * (i + 1), y0 + 500 * (i + 1))])
+             for i in range(3)]
+    return pd.DataFrame({
+        "segment_id": ["S0001", "S0002", "S0003"],
+        "name": ["North cove", None, "Bay \u00e9"],
+        "length_m": [1118.0, 1118.0, 1118.0],
+        "n_rays": np.array([12, 0, 40], dtype=np.int64),
+        "lensing_factor": [1.8, np.nan, 0.7],
+        "rank_lensing": [1, 3, 2],
+        "reliable": [True, False, True],
+        "geometry": geoms,
+    })
+
+
+def test_segments_gpkg_geojson_csv(tmp_path, segments):
+    out = write_segments(segments, tmp_path / "segments", "EPSG:32654")
+    assert set(out) == {"gpkg", "geojson", "csv"}
+    # GeoPackage: grid CRS, all features and fields
+    info = pyogrio.read_info(out["gpkg"])
+    assert CRS.from_user_input(info["crs"]).to_epsg() == 32654
+    assert info["features"] == 3 and info["geometry_type"] == "LineString"
+    assert list(info["fields"]) == ["segment_id", "name", "length_m", "n_rays", "lensing_factor",
+                                    "rank_lensing", "reliable"]
+    assert info["layer_metadata"]["CAUTION"] == caution_text()
+    assert info["dataset_metadata"]["CAUTION"] == caution_text()
+    meta, _, geom, fields = pyogrio.raw.read(out["gpkg"])
+    got = shapely.from_wkb(geom)
+    assert all(g.equals_exact(e, 1e-6) for g, e in zip(got, segments["geometry"]))
+    names = dict(zip(meta["fields"], fields))
+    assert list(names["segment_id"]) == ["S0001", "S0002", "S0003"]
+    assert names["name"][2] == "Bay \u00e9" and names["name"][1] is None
+    assert list(names["reliable"]) == [True, False, True]
+    # GeoJSON: RFC 7946 lon/lat WGS 84, no crs member, caution as foreign member
+    info = pyogrio.read_info(out["geojson"])
+    assert CRS.from_user_input(info["crs"]).to_epsg() == 4326 and info["features"] == 3
+    doc = json.loads(out["geojson"].read_text(encoding="utf-8"))
+    assert doc["type"] == "FeatureCollection" and "crs" not in doc
+    assert doc["caution"] == caution_text()
+    tr = Transformer.from_crs("EPSG:32654", "EPSG:4326", always_xy=True)
+    for feat, g in zip(doc["features"], segments["geometry"]):
+        coords = np.array(feat["geometry"]["coordinates"])
+        lon, lat = tr.transform(*np.array(g.coords).T)
+        # lon first (UTM 54N centre meridian 141 E, y = 4000 km ~ 36 N)
+        assert 138 < coords[0, 0] < 144 and 35 < coords[0, 1] < 37
+        np.testing.assert_allclose(coords[:, 0], lon, atol=2e-7)
+        np.testing.assert_allclose(coords[:, 1], lat, atol=2e-7)
+    props = [f["properties"] for f in doc["features"]]
+    assert props[0]["lensing_factor"] == 1.8 and props[1].get("lensing_factor") is None
+    # CSV: caution header then the table
+    text = out["csv"].read_text(encoding="utf-8")
+    assert text.startswith("# CAUTION:")
+    df = pd.read_csv(out["csv"], comment="#")
+    assert list(df.columns) == ["segment_id", "name", "length_m", "n_rays", "lensing_factor",
+                                "rank_lensing", "reliable"]
+    assert df["n_rays"].tolist() == [12, 0, 40]
+
+
+def test_segments_csv_wkt_and_errors(tmp_path, segments):
+    out = write_segments(segments, tmp_path / "s", "EPSG:32654", formats=("csv",), csv_wkt=True)
+    df = pd.read_csv(out["csv"], comment="#")
+    assert shapely.from_wkt(df["geometry_wkt"][0]).equals_exact(segments["geometry"][0], 1e-6)
+    with pytest.raises(InputError, match="no 'geometry' column"):
+        write_segments(segments.drop(columns=["geometry"]), tmp_path / "s", "EPSG:32654")
+    with pytest.raises(InputError, match="no rows"):
+        write_segments(segments.iloc[:0], tmp_path / "s", "EPSG:32654")
+    with pytest.raises(CRSError):
+        write_segments(segments, tmp_path / "s", "EPSG:999999")
+
+
+def test_geojson_antimeridian_cut(tmp_path):
+    """RFC 7946 3.1.9: a line crossing the antimeridian is cut in two, longitudes within [-180, 180]."""
+    df = pd.DataFrame({"segment_id": ["S0001", "S0002"],
+                       "geometry": [shapely.LineString([(179.5, -17.0), (180.5, -17.2)]),
+                                    shapely.LineString([(200.0, 10.0), (201.0, 10.5)])]})  # 0..360 grid
+    out = write_segments(df, tmp_path / "am", "EPSG:4326", formats=("geojson",))
+    feats = json.loads(out["geojson"].read_text())["features"]
+    assert feats[1]["geometry"]["coordinates"] == [[-160.0, 10.0], [-159.0, 10.5]]  # RFC 7946: -180..180
+    g = feats[0]["geometry"]
+    assert g["type"] == "MultiLineString"
+    lons = [c[0] for part in g["coordinates"] for c in part]
+    assert min(lons) >= -180 and max(lons) <= 180
+    assert any(abs(v - 179.5) < 1e-9 for v in lons) and any(abs(v + 179.5) < 1e-9 for v in lons)
+
+
+def test_points_csv(tmp_path):
+    pts = [{"name": "Harbour A", "lon": 135.5, "lat": 34.5, "first_arrival_min": 42.5, "lensing_factor": 1.3,
+            "amp_1m_m": 2.1, "nearest_segment": "S0004", "distance_km": 1.2}]
+    p = write_points_csv(pts, tmp_path / "points.csv")
+    text = p.read_text(encoding="utf-8")
+    assert text.startswith("# CAUTION:") and CAUTION_MARK in text
+    df = pd.read_csv(p, comment="#")
+    assert list(df.columns)[:7] == ["name", "lon", "lat", "first_arrival_min", "lensing_factor", "amp_1m_m",
+                                    "nearest_segment"]
+    assert df["distance_km"][0] == 1.2 and df["first_arrival_min"][0] == 42.5
+    with pytest.raises(InputError, match="missing column"):
+        write_points_csv([{"name": "x", "lon": 1, "lat": 2}], tmp_path / "bad.csv")
+    assert not (tmp_path / "bad.csv").exists()
+
+
+def test_every_writer_carries_caution_and_is_reproducible(tmp_path, utm_grid, segments):
+    """The caution is in the bytes of every file; writing twice gives identical bytes."""
+    small = utm_grid.isel(x=slice(0, 50), y=slice(0, 40))
+    hashes = []
+    for run in ("a", "b"):
+        d = tmp_path / run
+        d.mkdir()
+        files = [write_cog(small, d / "t.tif"), write_netcdf({"travel_time_min": small}, d / "t.nc", title="t")]
+        files += list(write_segments(segments, d / "seg", "EPSG:32654").values())
+        files.append(write_points_csv([{"name": "A", "lon": 1.0, "lat": 2.0, "first_arrival_min": 3.0,
+                                        "lensing_factor": 1.0, "amp_1m_m": 0.5, "nearest_segment": "S0001"}],
+                                      d / "points.csv"))
+        for f in files:
+            assert CAUTION_MARK.encode() in f.read_bytes(), f.name
+        assert sorted(p.name for p in d.iterdir()) == sorted(f.name for f in files)  # no temporary leftovers
+        hashes.append([_sha(f) for f in files])
+    assert hashes[0] == hashes[1]
+
+
+def test_write_layers(tmp_path, geo_grid):
+    from tsunamifocus.io.gis import write_layers
+
+    tt = geo_grid.rename("travel_time_min")
+    out = write_layers({"travel_time_min": tt, "lensing_factor": geo_grid}, tmp_path, title="run")
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["layers.nc", "lensing_factor.tif", "travel_time_min.tif"]
+    with rasterio.open(out["travel_time_min"]) as r:
+        assert r.units == ("min",)
+    ds = xr.open_dataset(out["netcdf"])
+    assert set(ds.data_vars) == {"travel_time_min", "lensing_factor", "spatial_ref"}
+    ds.close()
+    with pytest.raises(InputError, match="not usable as a file name"):
+        write_layers({"../x": tt}, tmp_path, title="run")
+
+
+def test_nullable_columns_keep_their_types(tmp_path, segments):
+    """Ranks with gaps (pandas Int64) and booleans with gaps stay integer/boolean fields with nulls."""
+    df = segments.assign(rank_amplitude=pd.array([2, None, 1], dtype="Int64"),
+                         robust=pd.array([True, None, False], dtype="boolean"),
+                         flag_obj=pd.Series([True, None, False], dtype=object))
+    out = write_segments(df, tmp_path / "n", "EPSG:32654", formats=("gpkg", "geojson"))
+    info = pyogrio.read_info(out["gpkg"])
+    types = dict(zip(info["fields"], zip(info["ogr_types"], info["ogr_subtypes"])))
+    assert types["rank_amplitude"][0] == "OFTInteger64"
+    assert types["robust"] == ("OFTInteger", "OFSTBoolean") and types["flag_obj"][1] == "OFSTBoolean"
+    meta, _, _, fields = pyogrio.raw.read(out["gpkg"])
+    col = dict(zip(meta["fields"], fields))
+    assert col["rank_amplitude"][0] == 2 and col["rank_amplitude"][2] == 1
+    props = [f["properties"] for f in json.loads(out["geojson"].read_text())["features"]]
+    assert [p.get("rank_amplitude") for p in props] == [2, None, 1]
+    assert [p.get("robust") for p in props] == [True, None, False]
+
+
+def test_statistic_layers_inherit_units(tmp_path, geo_grid):
+    """Ensemble statistics of a standard layer keep its units (a spread has the units of the field)."""
+    p = write_cog(geo_grid.rename("travel_time_min_p95"), tmp_path / "p95.tif")
+    with rasterio.open(p) as r:
+        assert r.units == ("min",) and r.descriptions[0].startswith("ensemble 95th percentile of first-arrival")
+    q = write_netcdf({"energy_std": geo_grid.rename("energy_std")}, tmp_path / "s.nc", title="t")
+    with xr.open_dataset(q) as ds:
+        assert ds["energy_std"].attrs["units"] == "J m-1"
+
+
+def test_netcdf_attrs_sanitised(tmp_path, geo_grid):
+    """Attributes netCDF cannot hold (None, bool, dict) are dropped or stored as 0/1 / JSON text."""
+    da = geo_grid.copy()
+    da.attrs.update(flag=True, nothing=None, meta={"a": 1}, levels=[1.0, 2.0])
+    p = write_netcdf({"lensing_factor": da}, tmp_path / "a.nc", title="t", attrs={"run": {"n": 3}})
+    with netCDF4.Dataset(p) as nc:
+        v = nc.variables["lensing_factor"]
+        assert v.getncattr("flag") == 1 and "nothing" not in v.ncattrs()
+        assert json.loads(v.getncattr("meta")) == {"a": 1}
+        assert list(v.getncattr("levels")) == [1.0, 2.0]
+        assert json.loads(nc.getncattr("run")) == {"n": 3}

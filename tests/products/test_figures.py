@@ -1,0 +1,491 @@
+"""Tests of tsunamifocus.figures on synthetic projected and lon/lat inputs.
+
+The inputs are invented (a smooth random bathymetry with a wavy coast to the north); the
+checks look at the written PNG files (signature, size, dpi, text chunks) and at the pixels
+(colour-map centring, hatching of unreliable bars), not at hard-coded images.
+"""
+
+from __future__ import annotations
+
+import math
+import struct
+import zlib
+
+import numpy as np
+import pandas as pd
+import pytest
+from shapely.geometry import LineString, Polygon
+
+from tsunamifocus.products import figures
+from tsunamifocus.constants import GRAVITY
+from tsunamifocus.errors import InputError
+from tsunamifocus.grid import make_grid
+from tsunamifocus.ocean.randomfield import gaussian_random_field
+
+PNG_SIGNATURE = b"\x89PNG\r\n\x1a\n"  # PNG specification (ISO/IEC 15948), section 5.2
+
+
+# --------------------------------------------------------------------------------------
+# synthetic inputs
+# --------------------------------------------------------------------------------------
+
+
+def _coast_y(x, y_coast, amp, wavelength):
+    return y_coast + amp * np.sin(2 * np.pi * x / wavelength)
+
+
+def synthetic_case(geographic: bool, n_seg: int = 18, seed: int = 3) -> dict:
+    """Invented region: ocean to the south, wavy coast to the north, source in the south."""
+    if geographic:
+        x = np.linspace(150.0, 154.0, 161)  # lon
+        y = np.linspace(-41.0, -38.0, 121)  # lat
+        crs = "EPSG:4326"
+        kx = math.pi / 180 * 6371008.8 * math.cos(math.radians(-39.5))
+        ky = math.pi / 180 * 6371008.8
+        spacing = ((x[1] - x[0]) * kx, (y[1] - y[0]) * ky)
+        y_coast, amp, wl = -38.6, 0.12, 1.3
+        src = (151.5, -40.5)
+        scale = (kx, ky)
+    else:
+        # UTM 33S (a real projected CRS, about 40 S, west of the central meridian)
+        x0, y0 = 300e3, 5.5e6
+        x = x0 + np.arange(0.0, 400e3 + 1, 2.5e3)
+        y = y0 + np.arange(0.0, 300e3 + 1, 2.5e3)
+        crs = "EPSG:32733"
+        spacing = (2.5e3, 2.5e3)
+        y_coast, amp, wl = y0 + 255e3, 10e3, 130e3
+        src = (x0 + 150e3, y0 + 40e3)
+        scale = (1.0, 1.0)
+    X, Y = np.meshgrid(x, y)
+    yc = _coast_y(X, y_coast, amp, wl)
+    dist = (yc - Y) * scale[1]  # metres seaward of the coast
+    h = np.clip(dist / 60e3, -1, 1) * 3000.0 + 40.0
+    h = h * (1 + gaussian_random_field(h.shape, spacing, 20e3, rms=0.08, seed=seed))
+    h = np.where(dist < 0, -50.0, np.maximum(h, 5.0))
+    h[5:9, 10:14] = np.nan  # a small no-data hole
+    depth = make_grid(h, x, y, crs)
+    r = np.hypot((X - src[0]) * scale[0], (Y - src[1]) * scale[1])
+    c = np.sqrt(GRAVITY * np.where(h > 0, h, np.nan))
+    tt = r / np.nanmean(c) / 60.0
+    tt = np.where(np.isfinite(h) & (h > 0), tt, np.nan)
+    travel = make_grid(tt, x, y, crs, name="travel_time_min")
+    lf = np.exp(gaussian_random_field(h.shape, spacing, 15e3, rms=0.5, seed=seed + 1))
+    lf = np.where(np.isfinite(h) & (h > 0), lf, np.nan)
+    lensing = make_grid(lf, x, y, crs, name="lensing_factor")
+    en = np.exp(gaussian_random_field(h.shape, spacing, 6e3, rms=1.4, seed=seed + 2)) / (1 + r / 50e3)
+    en = np.where(np.isfinite(h) & (h > 0), en * 1e9, 0.0)
+    energy = make_grid(en, x, y, crs, name="energy")
+    # paths: wiggly rays from the source
+    rng = np.random.default_rng(seed)
+    paths = []
+    for az in np.linspace(-70, 70, 80):
+        s = np.linspace(0, 1, 60)
+        ang = np.radians(az) + 0.15 * np.cumsum(rng.normal(0, 0.05, s.size))
+        L = (y_coast - src[1]) * 1.05
+        px = src[0] + np.cumsum(np.sin(ang)) * L / s.size * (scale[1] / scale[0])
+        py = src[1] + np.cumsum(np.cos(ang)) * L / s.size
+        paths.append(np.column_stack([px, py]))
+    # coastline and segments
+    xs = np.linspace(x[3], x[-4], n_seg + 1)
+    rows = []
+    for i in range(n_seg):
+        xx = np.linspace(xs[i], xs[i + 1], 8)
+        geom = LineString(np.column_stack([xx, _coast_y(xx, y_coast, amp, wl) - 0.01 * (y[-1] - y[0])]))
+        mid = geom.interpolate(0.5, normalized=True)
+        lfi = float(np.exp(rng.normal(0.2, 0.5)))
+        rows.append(
+            dict(
+                segment_id=f"S{i + 1:04d}",
+                name=f"Segment {i + 1}" if i % 3 else "",
+                length_m=float(geom.length * scale[0]),
+                x_mid=mid.x,
+                y_mid=mid.y,
+                lon_mid=mid.x,
+                lat_mid=mid.y,
+                normal_azimuth_deg=180.0,
+                geometry=geom,
+                lensing_factor=lfi,
+                lensing_lo=lfi * 0.7,
+                lensing_hi=lfi * 1.45,
+                amp_1m_m=lfi * 0.8,
+                amp_lo=lfi * 0.55,
+                amp_hi=lfi * 1.2,
+                reliable=bool(i % 5 != 2),
+            )
+        )
+    seg = pd.DataFrame(rows)
+    seg["rank_lensing"] = seg["lensing_factor"].rank(ascending=False, method="first").astype(int)
+    seg["rank_amplitude"] = seg["amp_1m_m"].rank(ascending=False, method="first").astype(int)
+    coast = LineString(np.column_stack([x, _coast_y(x, y_coast, amp, wl) - 0.01 * (y[-1] - y[0])]))
+    dxs, dys = (0.5, 0.25) if geographic else (60e3, 25e3)
+    fault = Polygon(
+        [
+            (src[0] - dxs, src[1] - dys),
+            (src[0] + dxs, src[1] - dys),
+            (src[0] + dxs, src[1] + dys),
+            (src[0] - dxs, src[1] + dys),
+        ]
+    )
+    Xe, Ye = (X - src[0]) * scale[0], (Y - src[1]) * scale[1]
+    eta = 2.0 * np.exp(-((Xe - 10e3) ** 2 + Ye**2) / (2 * 25e3**2)) - 0.8 * np.exp(
+        -((Xe + 40e3) ** 2 + Ye**2) / (2 * 25e3**2)
+    )
+    uplift = make_grid(eta, x, y, crs, name="eta")
+    return dict(
+        depth=depth,
+        travel=travel,
+        lensing=lensing,
+        energy=energy,
+        paths=paths,
+        segments=seg,
+        coast=coast,
+        fault=fault,
+        eta=uplift,
+    )
+
+
+@pytest.fixture(scope="module", params=[False, True], ids=["projected", "lonlat"])
+def case(request):
+    return synthetic_case(request.param)
+
+
+# --------------------------------------------------------------------------------------
+# PNG readers (stdlib only)
+# --------------------------------------------------------------------------------------
+
+
+def png_chunks(path):
+    """Yield (type, data) of the chunks of a PNG file (PNG specification section 5.3)."""
+    data = path.read_bytes()
+    assert data[:8] == PNG_SIGNATURE
+    pos = 8
+    while pos < len(data):
+        (length,) = struct.unpack(">I", data[pos : pos + 4])
+        ctype = data[pos + 4 : pos + 8]
+        yield ctype, data[pos + 8 : pos + 8 + length]
+        pos += 12 + length
+
+
+def png_info(path):
+    """Width, height, pixels per metre and tEXt/iTXt keywords of a PNG."""
+    info = {"text": {}}
+    for ctype, chunk in png_chunks(path):
+        if ctype == b"IHDR":
+            info["width"], info["height"] = struct.unpack(">II", chunk[:8])
+        elif ctype == b"pHYs":
+            info["ppm"] = struct.unpack(">IIB", chunk)
+        elif ctype == b"tEXt":
+            k, v = chunk.split(b"\x00", 1)
+            info["text"][k.decode("latin-1")] = v.decode("latin-1")
+        elif ctype == b"zTXt":
+            k, rest = chunk.split(b"\x00", 1)
+            info["text"][k.decode("latin-1")] = zlib.decompress(rest[1:]).decode("latin-1")
+        elif ctype == b"iTXt":
+            k, rest = chunk.split(b"\x00", 1)
+            comp = rest[0]
+            rest = rest[2:]
+            _lang, rest = rest.split(b"\x00", 1)
+            _tk, txt = rest.split(b"\x00", 1)
+            info["text"][k.decode("latin-1")] = (zlib.decompress(txt) if comp else txt).decode("utf-8")
+    return info
+
+
+def read_rgb(path):
+    """Decode the PNG pixels with matplotlib's reader (RGBA floats)."""
+    import matplotlib.image as mpimg
+
+    return mpimg.imread(path)
+
+
+def check_png(path, min_w=600, min_h=400):
+    info = png_info(path)
+    assert info["width"] >= min_w and info["height"] >= min_h
+    # 150 dpi = 5905.5 pixels per metre (1 inch = 0.0254 m, exact by definition)
+    ppm = info["ppm"]
+    assert ppm[2] == 1 and abs(ppm[0] - 150 / 0.0254) < 1.0
+    assert "SCREENING ESTIMATES ONLY" in info["text"]["Disclaimer"]
+    return info
+
+
+# --------------------------------------------------------------------------------------
+# tests
+# --------------------------------------------------------------------------------------
+
+
+def test_ray_field_energy_and_paths(case, tmp_path):
+    out = figures.plot_ray_field(
+        case["depth"],
+        case["energy"],
+        paths=case["paths"],
+        coast_lines=case["coast"],
+        source_outline=case["fault"],
+        out_path=tmp_path / "rays.png",
+        title="Ray field",
+    )
+    assert out == tmp_path / "rays.png"
+    check_png(out)
+    assert not list(tmp_path.glob(".*.part"))  # atomic write leaves no temporary file
+
+
+def test_ray_field_paths_only_with_dataset_paths(case, tmp_path):
+    import xarray as xr
+
+    # paths as a NaN-padded (ray, step) Dataset, the layout a ray engine would naturally return
+    p = case["paths"]
+    n = max(len(a) for a in p)
+    xs = np.full((len(p), n + 5), np.nan)
+    ys = np.full_like(xs, np.nan)
+    for i, a in enumerate(p):
+        xs[i, : len(a)] = a[:, 0]
+        ys[i, : len(a)] = a[:, 1]
+    ds = xr.Dataset({"x": (("ray", "step"), xs), "y": (("ray", "step"), ys)})
+    out = figures.plot_ray_field(case["depth"], None, paths=ds, out_path=tmp_path / "rays_only.png")
+    check_png(out)
+    assert len(figures._normalize_paths(ds)) == len(p)
+
+
+def test_ray_field_needs_something(case, tmp_path):
+    with pytest.raises(InputError, match="energy grid or ray paths"):
+        figures.plot_ray_field(case["depth"], None, out_path=tmp_path / "x.png")
+
+
+def test_lensing_map(case, tmp_path):
+    out = figures.plot_lensing_map(
+        case["depth"],
+        case["lensing"],
+        case["travel"],
+        case["segments"],
+        top_k=5,
+        out_path=tmp_path / "lensing.png",
+        title="Lensing",
+        source_outline=case["fault"],
+    )
+    check_png(out)
+
+
+def test_lensing_colour_scale_is_centred_at_one():
+    # A diverging colour map on a log scale symmetric about 1 puts 1 at the neutral middle
+    # of the map and x and 1/x at mirror positions (common practice, no source).
+    import matplotlib.colors as mcolors
+
+    r = figures._symmetric_log_range([np.array([0.3, 0.8, 1.0, 2.5, 4.0])])
+    assert r >= 4.0 and 1.0 / r <= 0.3
+    norm = mcolors.LogNorm(vmin=1 / r, vmax=r)
+    assert abs(float(norm(1.0)) - 0.5) < 1e-12
+    assert abs(float(norm(2.0)) + float(norm(0.5)) - 1.0) < 1e-12
+
+
+def test_ranking_chart_hatches_unreliable(case, tmp_path):
+    seg = case["segments"].copy()
+    seg["reliable"] = True
+    top = seg.sort_values("lensing_factor", ascending=False).index[0]
+    seg.loc[top, "reliable"] = False
+    out = figures.plot_ranking(seg, top_k=8, out_path=tmp_path / "rank.png")
+    check_png(out, min_w=800, min_h=300)
+    img = read_rgb(out)
+    # the bar of an unreliable segment is grey (c8c8c8 = 0.784) with black hatching, a
+    # reliable bar is Okabe-Ito blue (0072B2); count both colours in the picture
+    rgb = img[..., :3]
+    blue = np.all(np.abs(rgb - np.array([0.0, 0x72 / 255, 0xB2 / 255])) < 0.03, axis=-1).sum()
+    grey = np.all(np.abs(rgb - 0.784) < 0.03, axis=-1).sum()
+    assert blue > 2000 and grey > 200
+
+
+def test_ranking_orders_by_rank_column(case):
+    seg = case["segments"]
+    ordered = figures._rank_order(seg, "lensing_factor", "rank_lensing")
+    # rank 1 = largest lensing factor (definition of rank_lensing in the segments contract)
+    assert ordered["lensing_factor"].iloc[0] == seg["lensing_factor"].max()
+    assert list(ordered["_rank"].iloc[:3]) == [1, 2, 3]
+
+
+def test_ranking_by_amplitude_and_errors(case, tmp_path):
+    out = figures.plot_ranking(case["segments"], 6, out_path=tmp_path / "amp.png", by="amp_1m_m")
+    check_png(out, min_w=800, min_h=300)
+    with pytest.raises(InputError, match="lacks column"):
+        figures.plot_ranking(case["segments"].drop(columns="lensing_factor"), 5, out_path=tmp_path / "a.png")
+    with pytest.raises(InputError, match="top_k"):
+        figures.plot_ranking(case["segments"], 0, out_path=tmp_path / "b.png")
+
+
+def test_uplift_colour_centre_and_outline(case, tmp_path):
+    out = figures.plot_uplift(
+        case["eta"],
+        out_path=tmp_path / "uplift.png",
+        depth=case["depth"],
+        source_outline=case["fault"],
+        coast_lines=case["coast"],
+    )
+    check_png(out)
+
+
+def test_agreement_scatter(tmp_path):
+    rng = np.random.default_rng(1)
+    a = np.exp(rng.normal(0, 0.5, 40))
+    b = a * np.exp(rng.normal(0, 0.2, 40))
+    out = figures.plot_agreement(
+        a,
+        b,
+        out_path=tmp_path / "agree.png",
+        xlabel="Ray lensing factor (-)",
+        ylabel="Wave amplitude ratio (-)",
+        labels=[f"S{i:04d}" for i in range(40)],
+        highlight=a > np.quantile(a, 0.8),
+        annotate="Spearman 0.9",
+    )
+    check_png(out)
+    with pytest.raises(InputError, match="equal length"):
+        figures.plot_agreement(a, b[:-1], out_path=tmp_path / "x.png", xlabel="a", ylabel="b")
+
+
+def test_bad_inputs_rejected(case, tmp_path):
+    with pytest.raises(InputError, match="DataArray"):
+        figures.plot_uplift(np.zeros((3, 3)), out_path=tmp_path / "x.png")
+    with pytest.raises(InputError, match=r"\.png"):
+        figures.plot_uplift(case["eta"], out_path=tmp_path / "x.jpg")
+    geographic = "lat" in case["depth"].dims
+    other = synthetic_case(not geographic)
+    with pytest.raises(InputError, match="like the depth grid"):
+        figures.plot_lensing_map(case["depth"], other["lensing"], None, None, out_path=tmp_path / "y.png")
+
+
+def test_north_arrow_follows_grid_convergence():
+    # UTM grid convergence: gamma ~ (lon - lon0) * sin(lat) (Snyder 1987, "Map Projections - A
+    # Working Manual", USGS PP 1395, eq. 8-9 to first order). Zone 33 has lon0 = 15 E; a grid
+    # centred near 18 E, 40 S gives gamma ~ 3 * sin(-40 deg) ~ -1.9 deg, i.e. true north is
+    # rotated clockwise from grid up by ~1.9 deg (negative = clockwise in _north_angle_deg).
+    from pyproj import Transformer
+
+    from tsunamifocus.grid import GridInfo
+
+    t = Transformer.from_crs("EPSG:4326", "EPSG:32733", always_xy=True)
+    xc, yc = t.transform(18.0, -40.0)
+    x = np.linspace(xc - 50e3, xc + 50e3, 11)
+    y = np.linspace(yc - 50e3, yc + 50e3, 11)
+    info = GridInfo.from_dataarray(make_grid(np.ones((11, 11)), x, y, "EPSG:32733"))
+    ang = figures._north_angle_deg(info)
+    expected = -3.0 * math.sin(math.radians(40.0))
+    assert abs(ang - expected) < 0.15
+    geo = GridInfo.from_dataarray(make_grid(np.ones((3, 3)), [0, 1, 2], [0, 1, 2], "EPSG:4326"))
+    assert figures._north_angle_deg(geo) == 0.0
+
+
+def test_labels_and_scale_helpers():
+    assert figures._lon_label(200.0) == "160°W"
+    assert figures._lon_label(-30.0) == "30°W"
+    assert figures._lat_label(-12.5) == "12.5°S"
+    assert figures._nice_length(73e3) == 50e3
+    assert figures._nice_length(19.9) == 10.0
+    assert figures._nice_time_step(300.0) == 30.0
+
+
+def test_ranking_with_nullable_columns(case, tmp_path):
+    seg = case["segments"].copy()
+    seg["reliable"] = pd.array([None] + [True] * (len(seg) - 1), dtype="boolean")
+    seg["rank_lensing"] = pd.array([pd.NA] + list(range(1, len(seg))), dtype="Int64")
+    check_png(figures.plot_ranking(seg, 5, out_path=tmp_path / "r.png"), min_w=800, min_h=300)
+
+
+def test_contour_field_fills_small_holes_only():
+    # A normalised symmetric (Gaussian) smoothing reproduces a linear field away from the edges
+    # (the kernel's first moment is zero; common practice, no source). A one-cell hole filled by
+    # its nearest neighbour is off by at most |grad t| x 1 cell, and a weighted mean of values
+    # each within that bound stays within it: so a travel-time ramp with small holes comes back
+    # within |grad t| everywhere in the interior and much closer on average; a region far from
+    # any data stays empty (no contour may be drawn where no ray went).
+    y, x = np.mgrid[0:80, 0:120].astype(float)
+    t = 2.0 * x + 0.5 * y
+    holes = t.copy()
+    holes[::3, ::3] = np.nan  # isolated one-cell holes between "rays"
+    holes[:, 90:] = np.nan  # 30 columns without rays
+    out = figures._contour_ready(holes)
+    inner = (slice(10, 70), slice(10, 80))
+    assert np.all(np.isfinite(out[inner]))
+    grad = math.hypot(2.0, 0.5)
+    err = np.abs(out[inner] - t[inner])
+    assert err.max() <= grad and err.mean() < 0.25 * grad
+    assert np.all(np.isnan(out[:, 100:]))
+
+
+def test_degree_ticks_are_round():
+    # graticule steps that divide 90 degrees (or are decimal fractions of a degree), multiples of
+    # the step, at most 8 intervals over the span (common practice, no source)
+    for lo, hi, step in ((0.0, 360.0, 45.0), (150.0, 153.0, 0.5), (-41.0, -38.0, 0.5), (10.0, 10.3, 0.05)):
+        t = figures._degree_locator(hi - lo).tick_values(lo, hi)
+        t = t[(t >= lo - 1e-9) & (t <= hi + 1e-9)]
+        assert np.allclose(np.diff(t), step)
+        assert np.allclose(np.round(t / step) * step, t)
+
+
+def test_global_periodic_grid_with_seam_crossing_paths(tmp_path):
+    # 2-degree global grid (0..358 E, no duplicated seam column, lon_periodic=1); a path that is
+    # unwrapped beyond 360 E must be wrapped and split at the seam, not drawn across the map.
+    lon = np.arange(0.0, 360.0, 2.0)
+    lat = np.arange(-80.0, 81.0, 2.0)
+    depth = make_grid(np.full((lat.size, lon.size), 4000.0), lon, lat, "EPSG:4326")
+    depth[:5, :] = -100.0  # some land in the south
+    assert depth.attrs["lon_periodic"] == 1
+    px = np.linspace(300.0, 420.0, 61)  # unwrapped: crosses 360
+    path = np.column_stack([px, np.linspace(-10, 10, 61)])
+    energy = depth.copy(data=np.where(depth.values > 0, 1.0, 0.0))
+    out = figures.plot_ray_field(depth, energy, paths=[path], out_path=tmp_path / "g.png")
+    check_png(out)
+    from tsunamifocus.grid import GridInfo
+
+    info = GridInfo.from_dataarray(depth)
+    wrapped = np.column_stack([info.wrap_lon(path[:, 0]), path[:, 1]])
+    pieces = figures._split_wrap(wrapped, True)
+    assert len(pieces) == 2 and all(np.ptp(p[:, 0]) <= 180 for p in pieces)
+
+
+def test_rank_labels_do_not_overlap():
+    # ten segment midpoints 5 points apart along a straight coast: the greedy placement must
+    # keep every pair of label centres at least one label diameter (15 pt) apart
+    placed = []
+    for i in range(10):
+        figures._label_offset((100.0 + 5.0 * i, 50.0), 180.0, placed)
+    d = [math.hypot(a[0] - b[0], a[1] - b[1]) for i, a in enumerate(placed) for b in placed[i + 1 :]]
+    assert len(placed) == 10 and min(d) >= 15.0 - 1e-9
+
+
+def test_ranking_with_topk_probability(case, tmp_path):
+    seg = case["segments"].copy()
+    seg["p_topk"] = np.linspace(1.0, 0.1, len(seg))
+    check_png(
+        figures.plot_ranking(seg, 8, out_path=tmp_path / "p.png", prob_col="p_topk"), min_w=800, min_h=300
+    )
+    with pytest.raises(InputError, match="prob_col"):
+        figures.plot_ranking(seg, 8, out_path=tmp_path / "q.png", prob_col="nope")
+
+
+def test_ranking_labels_without_names():
+    # NaN/None names must not print as "nan"/"None"; unranked (unreliable) segments show "-"
+    assert figures._bar_label("S0001", np.nan, 1) == "1. S0001"
+    assert figures._bar_label("S0002", None, 2.0) == "2. S0002"
+    assert figures._bar_label("S0003", "S0003", 3) == "3. S0003"
+    assert figures._bar_label("S0004", "Harbour", pd.NA) == "- S0004  Harbour"
+    assert len(figures._bar_label("S0005", "x" * 60, 5)) == 34
+
+
+def test_plain_log_ticks():
+    # 1-2-5 ticks labelled as plain numbers ("0.2", not "2x10^-1") on a 1.5-decade log axis
+    from matplotlib.figure import Figure
+
+    ax = Figure().add_subplot()
+    ax.set_xscale("log")
+    ax.set_xlim(0.15, 7.0)
+    figures._plain_log_ticks(ax.xaxis, 0.15, 7.0)
+    ticks = [t for t in ax.xaxis.get_major_locator().tick_values(0.15, 7.0) if 0.15 <= t <= 7.0]
+    assert np.allclose(ticks, [0.2, 0.5, 1, 2, 5])
+    assert [ax.xaxis.get_major_formatter()(t, 0) for t in ticks] == ["0.2", "0.5", "1", "2", "5"]
+
+
+def test_all_nan_grids_give_clear_errors_or_plots(tmp_path):
+    # an all-NaN energy grid draws nothing but must not crash or warn; an all-NaN eta is refused
+    x = np.arange(0.0, 50e3, 5e3)
+    depth = make_grid(np.full((10, 10), 100.0), x, x, "EPSG:32633")
+    nan = depth.copy(data=np.full((10, 10), np.nan))
+    check_png(figures.plot_ray_field(depth, nan, out_path=tmp_path / "e.png"), min_w=500, min_h=300)
+    with pytest.raises(InputError, match="no finite values"):
+        figures.plot_uplift(nan, out_path=tmp_path / "u.png")
+    check_png(figures.plot_lensing_map(nan, nan, nan, None, 0, out_path=tmp_path / "l.png"), min_w=500, min_h=300)

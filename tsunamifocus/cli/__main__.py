@@ -1,0 +1,7 @@
+"""``python -m tsunamifocus.cli``: the command line."""
+
+import sys
+
+from .app import main
+
+sys.exit(main())

@@ -1,0 +1,26 @@
+"""``tsunamifocus check RUN_DIR``: check a run's ranking against the linear long-wave solver."""
+
+from __future__ import annotations
+
+import argparse
+
+from ..products.check import run_wave_check
+
+NAME = "check"
+HELP = "check a run's ranking against a linear long-wave (shallow-water) simulation"
+
+
+def configure(p: argparse.ArgumentParser) -> None:
+    """Add the command's arguments."""
+    p.add_argument("run_dir", help="a finished run folder")
+    p.add_argument("--out", help="output folder (default: RUN_DIR/wave_check)")
+    p.add_argument("--overwrite", action="store_true", help="replace an existing output folder")
+    p.add_argument("--hours", type=float, help="simulated duration [h] (default: the latest first arrival + 30 min)")
+    p.add_argument("--top", type=int, default=10, help="k of the top-k overlap (default 10)")
+
+
+def run(args: argparse.Namespace) -> int:
+    """Run the check; returns the exit code."""
+    run_wave_check(args.run_dir, out=args.out, overwrite=args.overwrite, hours=args.hours, k=args.top,
+                   progress=getattr(args, "quiet", 0) == 0)
+    return 0

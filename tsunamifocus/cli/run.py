@@ -1,0 +1,41 @@
+"""``tsunamifocus run SCENARIO``: run a scenario end to end (or reproduce a run from its manifest)."""
+
+from __future__ import annotations
+
+import argparse
+import sys
+
+from ..errors import InputError
+from ..io.manifest import scenario_from_manifest, verify_inputs
+from ..io.scenario import parse_scenario
+from ..products.runfolder import run_scenario
+
+NAME = "run"
+HELP = "run a scenario end to end (rays, focusing, exports, appendix)"
+
+
+def configure(p: argparse.ArgumentParser) -> None:
+    """Add the command's arguments."""
+    p.add_argument("scenario", help="scenario file (TOML, see docs/scenario.md), or the manifest.json of an "
+                   "earlier run to reproduce it")
+    p.add_argument("--out", help="output folder (default: the scenario's [output] folder)")
+    p.add_argument("--overwrite", action="store_true", help="replace an existing output folder")
+    p.add_argument("--rays", type=int, help="override the number of rays per source")
+    p.add_argument("--scheduler", help="dask.distributed scheduler address for the ensemble (default: local)")
+
+
+def run(args: argparse.Namespace) -> int:
+    """Run the scenario; returns the exit code."""
+    if args.rays is not None and args.rays < 1:
+        raise InputError(f"--rays {args.rays}: expected a positive number of rays")
+    if str(args.scenario).lower().endswith(".json"):
+        sc = scenario_from_manifest(args.scenario)
+        bad = [b for b in verify_inputs(args.scenario) if "scenario_file" not in b]
+        if bad:
+            raise InputError(f"{args.scenario}: cannot reproduce the run: {'; '.join(bad)}")
+    else:
+        sc = parse_scenario(args.scenario)
+    quiet = getattr(args, "quiet", 0) > 0
+    run_scenario(sc, out=args.out, overwrite=args.overwrite, rays=args.rays, scheduler=args.scheduler,
+                 progress=not quiet, command=["tsunamifocus", *sys.argv[1:]])
+    return 0

@@ -1,0 +1,2 @@
+"""The coastline: from the grid, segmentation, and per-segment values from waves.
+"""

@@ -1,0 +1,145 @@
+"""Per-segment values from the linear long-wave solver (maximum amplitude along the coast)."""
+
+from __future__ import annotations
+
+import math
+from typing import Any
+
+import numpy as np
+import xarray as xr
+
+from ..cautions import caution_text
+from ..errors import CoastError, InputError
+from ..propagation.wave import WaveResult, _check_depth, _wet_mask
+
+__all__ = ['segment_max_amplitude']
+
+
+# --------------------------------------------------------------------------------------------------
+# segments and agreement
+# --------------------------------------------------------------------------------------------------
+
+
+def _coastal_cells(wet: np.ndarray, periodic: bool) -> np.ndarray:
+    """Wet cells with at least one dry 4-neighbour (the stop isobath band); grid edges are not coast."""
+    dry = ~wet
+    nb = np.zeros_like(wet)
+    nb[1:, :] |= dry[:-1, :]
+    nb[:-1, :] |= dry[1:, :]
+    nb[:, 1:] |= dry[:, :-1]
+    nb[:, :-1] |= dry[:, 1:]
+    if periodic:
+        nb[:, 0] |= dry[:, -1]
+        nb[:, -1] |= dry[:, 0]
+    return wet & nb
+
+
+def segment_max_amplitude(
+    wave_result: WaveResult,
+    segments: Any,
+    depth: xr.DataArray,
+    stop_depth: float = 20.0,
+    *,
+    search_radius_cells: float = 2.0,
+    statistic: str = "max",
+    field: str = "max_amplitude",
+) -> Any:
+    """Maximum wave amplitude per coastline segment, sampled along the stop isobath.
+
+    The stop-isobath band is the set of wet cells (depth ``> stop_depth``) with a dry 4-neighbour.
+    Each band cell is given to the segment nearest to its centre if that lies within
+    ``search_radius_cells`` cell sizes (so neighbouring segments never share a cell); the
+    ``wave_result.max_amplitude`` of a segment's cells is reduced by ``statistic``.
+
+    Parameters
+    ----------
+    wave_result : WaveResult
+        Output of :func:`simulate_linear_long_wave` on ``depth``.
+    segments : pandas.DataFrame
+        Coastline segments table with columns ``segment_id`` and ``geometry`` (shapely geometries in
+        the grid CRS).
+    depth : xarray.DataArray
+        Depth grid [m] the wave was computed on.
+    stop_depth : float
+        Stop isobath [m] (use the value of the run).
+    search_radius_cells : float
+        Search distance around each segment, in cell sizes (the larger of dx, dy; degrees on lon/lat
+        grids).
+    statistic : {"max", "mean", "p90", "min"}
+        Reduction over the gathered cells (NaN cells ignored).
+    field : {"max_amplitude", "arrival_time_s", "max_time_s"}
+        Which map of the result to sample (e.g. ``"arrival_time_s"`` with ``statistic="min"`` gives the
+        wave's first arrival per segment [s]).
+
+    Returns
+    -------
+    pandas.Series
+        Amplitude [m] indexed by ``segment_id`` (name ``wave_amp_stop_m``; ``wave_<field>`` for the other
+        fields); NaN where no band cell lies near the segment.
+
+    Raises
+    ------
+    CoastError
+        If the table lacks the required columns or holds non-geometries.
+    InputError
+        If the grids do not match or a parameter is out of range.
+    """
+    import pandas as pd
+    import shapely
+
+    if not hasattr(segments, "columns") or not {"segment_id", "geometry"} <= set(segments.columns):
+        raise CoastError("segments table must be a DataFrame with columns 'segment_id' and 'geometry'")
+    if statistic not in ("max", "mean", "p90", "min"):
+        raise InputError(f"statistic={statistic!r}: expected 'max', 'mean', 'p90' or 'min'")
+    if field not in ("max_amplitude", "arrival_time_s", "max_time_s"):
+        raise InputError(f"field={field!r}: expected 'max_amplitude', 'arrival_time_s' or 'max_time_s'")
+    if not (math.isfinite(search_radius_cells) and search_radius_cells > 0):
+        raise InputError(f"search_radius_cells={search_radius_cells!r}: expected a positive number of cells")
+    info = _check_depth(depth)
+    amp = wave_result.max_amplitude
+    if amp.shape != depth.shape:
+        raise InputError(f"wave result grid {amp.shape} does not match depth grid {depth.shape}")
+    wet = _wet_mask(np.asarray(depth.values, float), stop_depth) & np.isfinite(amp.values)
+    band = _coastal_cells(wet, info.periodic_x)
+    jj, ii = np.nonzero(band)
+    vals = np.asarray(getattr(wave_result, field).values, float)[jj, ii]
+    px = info.x[ii]
+    py = info.y[jj]
+    geoms = np.asarray(segments["geometry"].values, dtype=object)
+    ok = np.array([g is not None and isinstance(g, shapely.Geometry) for g in geoms])
+    if not ok.all():
+        raise CoastError(f"segments table: {int((~ok).sum())} rows have no shapely geometry in column 'geometry'")
+    radius = search_radius_cells * max(info.dx, info.dy)
+    ids = segments["segment_id"].astype(str).values
+    out = np.full(len(geoms), np.nan)
+    if len(vals) and len(geoms):
+        # each band cell goes to its nearest segment within the radius (ties: lowest row of the table)
+        tree = shapely.STRtree(geoms)
+        pt_idx, seg_idx = tree.query_nearest(shapely.points(px, py), max_distance=radius, all_matches=True)
+        if pt_idx.size:
+            order = np.lexsort((seg_idx, pt_idx))
+            pt_idx, seg_idx = pt_idx[order], seg_idx[order]
+            first = np.r_[True, pt_idx[1:] != pt_idx[:-1]]
+            pt_idx, seg_idx = pt_idx[first], seg_idx[first]
+        order = np.argsort(seg_idx, kind="stable")
+        seg_idx, pt_idx = seg_idx[order], pt_idx[order]
+        starts = np.searchsorted(seg_idx, np.arange(len(geoms)))
+        ends = np.searchsorted(seg_idx, np.arange(len(geoms)), side="right")
+        for s in range(len(geoms)):
+            v = vals[pt_idx[starts[s] : ends[s]]]
+            v = v[np.isfinite(v)]
+            if v.size == 0:
+                continue
+            if statistic == "max":
+                out[s] = v.max()
+            elif statistic == "min":
+                out[s] = v.min()
+            elif statistic == "mean":
+                out[s] = v.mean()
+            else:
+                out[s] = np.percentile(v, 90)
+    name = "wave_amp_stop_m" if field == "max_amplitude" else f"wave_{field}"
+    ser = pd.Series(out, index=pd.Index(ids, name="segment_id"), name=name)
+    ser.attrs.update(units="m" if field == "max_amplitude" else "s", statistic=statistic, field=field,
+                     search_radius_cells=search_radius_cells, cautions=caution_text())
+    return ser

@@ -1,0 +1,111 @@
+"""Ranking of coastline segments by lensing factor and indicative amplitude."""
+
+from __future__ import annotations
+
+import warnings
+
+import numpy as np
+import pandas as pd
+
+from ..cautions import caution_summary
+from ..errors import CoastError, InputError, ResolutionWarning
+
+__all__ = ['rank_segments']
+
+
+def _rank_desc(values: np.ndarray, eligible: np.ndarray) -> pd.arrays.IntegerArray:
+    r = np.zeros(len(values), dtype=np.int64)
+    ok = eligible & np.isfinite(values)
+    order = np.argsort(-values[ok], kind="stable")
+    pos = np.flatnonzero(ok)[order]
+    r[pos] = np.arange(1, pos.size + 1)
+    return pd.arrays.IntegerArray(r, ~ok)
+
+
+def _add_ranks(table: pd.DataFrame, have_lensing: bool) -> pd.DataFrame:
+    rel = table["reliable"].to_numpy(bool)
+    if have_lensing:
+        table["rank_lensing"] = _rank_desc(table["lensing_factor"].to_numpy(float), rel)
+    else:
+        table["rank_lensing"] = pd.array([pd.NA] * len(table), dtype="Int64")
+    table["rank_amplitude"] = _rank_desc(table["amp_1m_m"].to_numpy(float), rel)
+    return table
+
+
+def _pct(a: np.ndarray, q: float) -> np.ndarray:
+    """Column-wise nan-percentile; NaN for all-NaN columns (no warning)."""
+    out = np.full(a.shape[1], np.nan)
+    ok = np.isfinite(a).any(axis=0) | np.isinf(a).any(axis=0)
+    if ok.any():
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", RuntimeWarning)
+            out[ok] = np.nanpercentile(a[:, ok], q, axis=0)
+    return out
+
+
+_BY = {
+    "lensing_factor": ("lensing_factor", "rank_lensing"),
+    "lensing": ("lensing_factor", "rank_lensing"),
+    "amp_1m_m": ("amp_1m_m", "rank_amplitude"),
+    "amplitude": ("amp_1m_m", "rank_amplitude"),
+}
+
+
+def rank_segments(table: pd.DataFrame, top_k: int = 20, by: str = "lensing_factor") -> pd.DataFrame:
+    """Top-``k`` hotspot segments, reliable ones first, unreliable ones flagged after them.
+
+    Parameters
+    ----------
+    table : pandas.DataFrame
+        Output of :func:`segment_arrivals`.
+    top_k : int
+        Number of reliable segments to list.
+    by : {"lensing_factor", "amp_1m_m"} (aliases "lensing", "amplitude")
+        Ranking quantity (descending).
+
+    Returns
+    -------
+    pandas.DataFrame
+        The ``top_k`` reliable segments in rank order, followed (``reliable == False``, no rank)
+        by the unreliable segments whose value would have placed them among them. ``attrs``
+        keep the cautions and method notes.
+
+    Raises
+    ------
+    CoastError
+        If no segment received any ray (nothing to rank), or ``by`` is unknown / unavailable.
+    """
+    if by not in _BY:
+        raise InputError(f"rank_segments: by='{by}' unknown; expected one of {sorted(_BY)}")
+    col, rcol = _BY[by]
+    if col not in table.columns or "reliable" not in table.columns:
+        raise InputError("rank_segments: table lacks arrival columns; build it with segment_arrivals")
+    if int(top_k) < 1:
+        raise InputError(f"top_k={top_k}: expected >= 1")
+    vals = table[col].to_numpy(float)
+    if not np.isfinite(vals).any():
+        raise CoastError(
+            f"rank_segments: no segment has a finite {col} (no rays reached the segments"
+            + (" or no reference run was given" if col == "lensing_factor" else "")
+            + "); nothing to rank"
+        )
+    rel = table["reliable"].to_numpy(bool)
+    ranked = table[rel & np.isfinite(vals)].sort_values(rcol).head(int(top_k))
+    if len(ranked):
+        floor = float(ranked[col].min()) if len(ranked) == int(top_k) else -np.inf
+    else:
+        floor = -np.inf
+        warnings.warn(
+            f"rank_segments: no reliable segment (>= {table.attrs.get('min_rays', '?')} rays); "
+            "listing unreliable segments only, flagged reliable=False",
+            ResolutionWarning,
+            stacklevel=2,
+        )
+    unrel = table[(~rel) & np.isfinite(vals) & (vals >= floor)].sort_values(col, ascending=False)
+    if len(ranked) == 0:
+        unrel = unrel.head(int(top_k))
+    out = pd.concat([ranked, unrel])
+    out.attrs = dict(table.attrs)
+    out.attrs["ranked_by"] = col
+    out.attrs["cautions"] = caution_summary()
+    return out

@@ -1,0 +1,478 @@
+"""Bathymetry loading, cropping, resampling and low-pass smoothing.
+
+:func:`load_bathymetry` is the one entry point that takes file names: GeoTIFF (and any
+other single-band raster GDAL reads, e.g. ESRI ASCII grids) and NetCDF (CF lon/lat, or
+projected x/y with a grid mapping). It returns **depth in metres, positive down**, NaN
+where there is no data, following the grid convention of :mod:`tsunamifocus.grid`.
+Everything else here is pure computation on DataArrays.
+"""
+
+from __future__ import annotations
+
+import logging
+import os
+import pathlib
+import warnings
+from dataclasses import dataclass
+
+import numpy as np
+import xarray as xr
+from pyproj import CRS
+
+from ..errors import CRSError, DataFileError, InputError, ResourceLimitError, SignConventionError
+from ..grid import GridInfo, crop_bathymetry, make_grid, resample_bathymetry
+
+__all__ = ['load_bathymetry', 'estimate_grid_memory', 'DEFAULT_MAX_MEMORY_GB']
+
+log = logging.getLogger(__name__)
+
+#: Default refusal limit for loading a grid [GB] (configurable per call or by the
+#: environment variable ``TSUNAMIFOCUS_MAX_MEMORY_GB``).
+DEFAULT_MAX_MEMORY_GB: float = 8.0
+
+_FEET = {"ft", "feet", "foot", "us_survey_foot", "international_foot", "ft_us"}
+_METRES = {"m", "meter", "meters", "metre", "metres"}
+_NETCDF_EXT = {".nc", ".nc4", ".cdf", ".netcdf", ".grd"}
+_ELEV_WORDS = ("elevation", "height", "altitude", "topograph", "relief", "orography")
+_DEPTH_WORDS = ("depth",)
+#: Working copies the loader holds at once, per grid cell (float64 + mask + one copy).
+_BYTES_PER_CELL = 8 * 3
+
+
+@dataclass
+class _Raw:
+    values: np.ndarray
+    x: np.ndarray
+    y: np.ndarray
+    crs: CRS
+    attrs: dict
+    name: str
+    fmt: str
+
+
+# --------------------------------------------------------------------------------------
+# public entry point
+# --------------------------------------------------------------------------------------
+def load_bathymetry(
+    path: str | os.PathLike,
+    *,
+    values: str = "auto",
+    variable: str | None = None,
+    bbox: tuple[float, float, float, float] | None = None,
+    margin_km: float = 0.0,
+    resample_km: float | None = None,
+    units: str | None = None,
+    crs: CRS | str | int | None = None,
+    max_memory_gb: float | None = None,
+) -> xr.DataArray:
+    """Load a bathymetry grid as depth in metres, positive down.
+
+    Parameters
+    ----------
+    path : str or path-like
+        GeoTIFF / GDAL raster (``.tif``, ``.asc`` ...) or NetCDF (``.nc``, ``.grd``) file.
+    values : {"auto", "elevation", "depth"}
+        What the stored numbers are. ``"elevation"``: height above sea level (negative
+        below it); ``"depth"``: positive down. ``"auto"`` decides from metadata only
+        (``positive`` attribute, ``standard_name``, names) and refuses when it cannot.
+    variable : str, optional
+        NetCDF variable to read; needed only when the file holds several 2-D variables.
+    bbox : (xmin, ymin, xmax, ymax), optional
+        Crop box in the grid's CRS units (degrees lon/lat on geographic grids).
+    margin_km : float
+        Margin added around ``bbox`` [km].
+    resample_km : float, optional
+        Target spacing [km] for area-average downsampling (integer block factor).
+    units : str, optional
+        Override the vertical unit (``"m"`` or ``"ft"``) when the file does not declare it.
+    crs : CRS-like, optional
+        CRS to assume for a file that carries none (e.g. an ESRI ASCII grid without .prj).
+    max_memory_gb : float, optional
+        Refuse to load when the estimated memory exceeds this [GB]. Defaults to
+        ``TSUNAMIFOCUS_MAX_MEMORY_GB`` or :data:`DEFAULT_MAX_MEMORY_GB`.
+
+    Returns
+    -------
+    xarray.DataArray
+        Depth [m], positive down, NaN where no data; land is depth <= 0.
+
+    Raises
+    ------
+    DataFileError
+        Missing, unreadable or corrupt file; unsupported layout.
+    SignConventionError
+        ``values="auto"`` cannot decide between elevation and depth.
+    CRSError
+        No CRS in the file and none given.
+    ResourceLimitError
+        The grid would need more memory than allowed.
+    InputError
+        Any other bad value (3-D variable, rotated transform, all land, ...).
+
+    Examples
+    --------
+    >>> depth = load_bathymetry("grid.nc", values="elevation")  # doctest: +SKIP
+    >>> float(depth.max())  # doctest: +SKIP
+    10714.0
+    """
+    if values not in ("auto", "elevation", "depth"):
+        raise InputError(f"values={values!r}: expected 'auto', 'elevation' or 'depth'")
+    p = pathlib.Path(path)
+    if not p.exists():
+        raise DataFileError(f"{p}: file not found")
+    if not p.is_file():
+        raise DataFileError(f"{p}: not a regular file")
+    if p.stat().st_size == 0:
+        raise DataFileError(f"{p}: file is empty")
+    limit = _memory_limit(max_memory_gb)
+    if _is_netcdf(p):
+        raw = _read_netcdf(p, variable, bbox, margin_km, limit)
+    else:
+        if variable is not None:
+            raise InputError(f"{p}: 'variable' applies to NetCDF files only")
+        raw = _read_raster(p, crs, bbox, margin_km, limit)
+    if crs is not None and raw.crs is None:  # pragma: no cover - handled in readers
+        raw.crs = CRS.from_user_input(crs)
+    depth = _to_depth(raw, values, units, p)
+    da = _assemble(raw, depth, p)
+    if bbox is not None:
+        da = crop_bathymetry(da, bbox, margin_km=margin_km)
+    if resample_km is not None:
+        da = resample_bathymetry(da, resample_km)
+    _check_usable(da, p)
+    return da
+
+
+def estimate_grid_memory(shape: tuple[int, int], bytes_per_cell: int = _BYTES_PER_CELL) -> int:
+    """Estimated bytes needed to hold and process a grid of ``shape`` (rows, columns)."""
+    return int(shape[0]) * int(shape[1]) * int(bytes_per_cell)
+
+
+# --------------------------------------------------------------------------------------
+# readers
+# --------------------------------------------------------------------------------------
+def _memory_limit(max_memory_gb: float | None) -> float:
+    if max_memory_gb is None:
+        env = os.environ.get("TSUNAMIFOCUS_MAX_MEMORY_GB")
+        if env:
+            try:
+                max_memory_gb = float(env)
+            except ValueError as exc:
+                raise InputError(f"TSUNAMIFOCUS_MAX_MEMORY_GB={env!r}: expected a number of GB") from exc
+        else:
+            max_memory_gb = DEFAULT_MAX_MEMORY_GB
+    if not max_memory_gb > 0:
+        raise InputError(f"max_memory_gb={max_memory_gb}: expected a positive number of GB")
+    return float(max_memory_gb) * 1e9
+
+
+def _check_memory(p: pathlib.Path, shape: tuple[int, int], limit: float) -> None:
+    need = estimate_grid_memory(shape)
+    if need > limit:
+        raise ResourceLimitError(
+            f"{p}: loading a {shape[0]} x {shape[1]} grid needs about {need / 1e9:.1f} GB, above the "
+            f"limit of {limit / 1e9:.1f} GB; crop it (bbox), resample it (resample_km) or raise max_memory_gb"
+        )
+
+
+def _is_netcdf(p: pathlib.Path) -> bool:
+    with open(p, "rb") as fh:
+        head = fh.read(8)
+    if head[:3] == b"CDF" or head[:8] == b"\x89HDF\r\n\x1a\n":
+        return True
+    return p.suffix.lower() in _NETCDF_EXT and not head.lower().startswith(b"ncols")
+
+
+def _read_raster(p, crs, bbox, margin_km, limit) -> _Raw:
+    import rasterio
+    from rasterio.errors import RasterioIOError
+
+    try:
+        src = rasterio.open(p)
+    except RasterioIOError as exc:
+        raise DataFileError(f"{p}: not a readable raster ({str(exc).splitlines()[0]})") from exc
+    with src:
+        if src.count != 1:
+            raise InputError(f"{p}: has {src.count} bands; expected a single-band bathymetry raster")
+        t = src.transform
+        if abs(t.b) > 1e-12 * abs(t.a) or abs(t.d) > 1e-12 * abs(t.e):
+            raise InputError(f"{p}: rotated or sheared geotransform {tuple(t)[:6]}; expected a north-up grid")
+        file_crs = src.crs
+        if file_crs is None:
+            if crs is None:
+                raise CRSError(f"{p}: raster has no CRS; pass crs=... (e.g. 'EPSG:4326')")
+            the_crs = CRS.from_user_input(crs)
+        else:
+            the_crs = CRS.from_user_input(file_crs.to_wkt())
+        _check_memory(p, (src.height, src.width), limit)
+        try:
+            arr = src.read(1, masked=True)
+        except Exception as exc:  # GDAL raises various errors on truncated files
+            raise DataFileError(f"{p}: cannot read raster data ({exc})") from exc
+        scale = src.scales[0] if src.scales else 1.0
+        offset = src.offsets[0] if src.offsets else 0.0
+        vals = np.ma.filled(arr.astype("float64"), np.nan)
+        nod = src.nodata
+        if nod is not None and not np.isnan(nod):
+            vals[np.isclose(vals, nod, rtol=0, atol=abs(nod) * 1e-9 + 1e-12)] = np.nan
+        vals = vals * scale + offset
+        # pixel-is-area transform: cell centres; GDAL already normalises pixel-is-point files
+        cols = np.arange(src.width) + 0.5
+        rows = np.arange(src.height) + 0.5
+        x = t.c + t.a * cols
+        y = t.f + t.e * rows
+        attrs = {k.lower(): v for k, v in src.tags().items()}
+        try:
+            attrs.update({k.lower(): v for k, v in src.tags(1).items()})
+        except Exception:  # pragma: no cover
+            pass
+        if src.units and src.units[0]:
+            attrs["units"] = src.units[0]
+        if src.descriptions and src.descriptions[0]:
+            attrs["long_name"] = src.descriptions[0]
+        fmt = src.driver
+    if t.a < 0:
+        x = x[::-1]
+        vals = vals[:, ::-1]
+    if t.e < 0:
+        y = y[::-1]
+        vals = vals[::-1, :]
+    return _Raw(np.ascontiguousarray(vals), x, y, the_crs, attrs, p.stem, fmt)
+
+
+def _find_coord(ds: xr.Dataset, da: xr.DataArray, axis: str) -> str:
+    names_x = ("lon", "longitude", "x", "easting", "nav_lon", "xc")
+    names_y = ("lat", "latitude", "y", "northing", "nav_lat", "yc")
+    for d in da.dims:
+        c = ds[d] if d in ds.variables else None
+        attrs = c.attrs if c is not None else {}
+        units = str(attrs.get("units", "")).lower()
+        std = str(attrs.get("standard_name", "")).lower()
+        ax = str(attrs.get("axis", "")).upper()
+        if axis == "x" and (
+            ax == "X" or std in ("longitude", "projection_x_coordinate") or units.startswith("degrees_e")
+            or d.lower() in names_x
+        ):
+            return d
+        if axis == "y" and (
+            ax == "Y" or std in ("latitude", "projection_y_coordinate") or units.startswith("degrees_n")
+            or d.lower() in names_y
+        ):
+            return d
+    raise DataFileError(
+        f"variable '{da.name}' has dims {da.dims}; cannot tell which is the {axis} axis "
+        "(expected CF axis/standard_name/units attributes or names like lon/lat or x/y)"
+    )
+
+
+def _read_netcdf(p, variable, bbox, margin_km, limit) -> _Raw:
+    try:
+        ds = xr.open_dataset(p, mask_and_scale=True, decode_times=False, cache=False)
+    except Exception as exc:
+        raise DataFileError(f"{p}: not a readable NetCDF file ({type(exc).__name__}: {exc})") from exc
+    with ds:
+        if variable is None:
+            cands = [
+                n for n, v in ds.data_vars.items()
+                if v.ndim >= 2 and np.issubdtype(v.dtype, np.number) and "grid_mapping_name" not in v.attrs
+            ]
+            if not cands:
+                raise DataFileError(f"{p}: no 2-D numeric variable found")
+            two_d = [n for n in cands if ds[n].squeeze().ndim == 2]
+            if len(two_d) == 1:
+                variable = two_d[0]
+            elif len(two_d) > 1:
+                raise InputError(f"{p}: several 2-D variables {two_d}; choose one with variable=...")
+            elif ds[cands[0]].ndim == 2:  # 2-D but a single row or column
+                raise InputError(f"{p}: variable '{cands[0]}' is {ds[cands[0]].shape[0]} x "
+                                 f"{ds[cands[0]].shape[1]} cells; expected at least 2 x 2 cells")
+            else:
+                raise InputError(
+                    f"{p}: variable '{cands[0]}' has dims {ds[cands[0]].dims}; expected a 2-D (y, x) grid"
+                )
+        if variable not in ds.data_vars:
+            raise InputError(f"{p}: no variable '{variable}' (has {list(ds.data_vars)})")
+        da = ds[variable]
+        extra = [d for d in da.dims if da.sizes[d] == 1]
+        if da.ndim != 2:
+            if da.ndim - len(extra) == 2:
+                da = da.squeeze(extra, drop=True)
+            else:
+                raise InputError(
+                    f"{p}: variable '{variable}' has dims {da.dims}; expected a 2-D (y, x) grid "
+                    "(select a time/level first)"
+                )
+        xd = _find_coord(ds, da, "x")
+        yd = _find_coord(ds, da, "y")
+        gm_name = da.attrs.get("grid_mapping") or da.encoding.get("grid_mapping")
+        the_crs = None
+        if gm_name and gm_name in ds.variables:
+            gattrs = ds[gm_name].attrs
+            wkt = gattrs.get("crs_wkt") or gattrs.get("spatial_ref")
+            try:
+                the_crs = CRS.from_wkt(wkt) if wkt else CRS.from_cf(gattrs)
+            except Exception as exc:
+                raise CRSError(f"{p}: grid mapping '{gm_name}' is not a usable CRS ({exc})") from exc
+        xunits = str(ds[xd].attrs.get("units", "")).lower() if xd in ds.variables else ""
+        geog_names = xd.lower() in ("lon", "longitude") or xunits.startswith("degree")
+        if the_crs is None:
+            if geog_names:
+                the_crs = CRS.from_epsg(4326)
+            else:
+                raise CRSError(
+                    f"{p}: variable '{variable}' is on projected x/y coordinates but has no grid_mapping "
+                    "with crs_wkt; add one or convert the file to GeoTIFF with a CRS"
+                )
+        x = np.asarray(ds[xd].values, dtype=float)
+        y = np.asarray(ds[yd].values, dtype=float)
+        if the_crs.is_geographic:
+            if np.nanmax(np.abs(y)) > 90.0 + 1e-9:
+                raise InputError(
+                    f"{p}: '{yd}' values reach {np.nanmax(np.abs(y)):.1f}, beyond +/-90 degrees; "
+                    "are longitude and latitude swapped?"
+                )
+        da = da.transpose(yd, xd)
+        sel = {}
+        if bbox is not None and not the_crs.is_geographic:
+            m = margin_km * 1000.0
+            xs = np.nonzero((x >= bbox[0] - m - abs(x[1] - x[0])) & (x <= bbox[2] + m + abs(x[1] - x[0])))[0]
+            ys = np.nonzero((y >= bbox[1] - m - abs(y[1] - y[0])) & (y <= bbox[3] + m + abs(y[1] - y[0])))[0]
+            if xs.size == 0 or ys.size == 0:
+                raise InputError(f"{p}: bbox {bbox} does not overlap the grid")
+            sel = {xd: slice(xs[0], xs[-1] + 1), yd: slice(ys[0], ys[-1] + 1)}
+            x, y = x[sel[xd]], y[sel[yd]]
+        elif bbox is not None:
+            m_lat = margin_km / 111.19
+            ys = np.nonzero((y >= bbox[1] - m_lat - abs(y[1] - y[0])) & (y <= bbox[3] + m_lat + abs(y[1] - y[0])))[0]
+            if ys.size == 0:
+                raise InputError(f"{p}: bbox {bbox} latitudes do not overlap the grid")
+            sel = {yd: slice(ys[0], ys[-1] + 1)}
+            y = y[sel[yd]]
+        _check_memory(p, (y.size, x.size), limit)
+        try:
+            vals = np.asarray(da.isel(sel).values, dtype="float64")
+        except Exception as exc:
+            raise DataFileError(f"{p}: cannot read variable '{variable}' ({exc})") from exc
+        attrs = dict(da.attrs)
+        attrs["_varname"] = variable
+        if "node_offset" in ds.attrs:
+            attrs["node_offset"] = ds.attrs["node_offset"]
+    if x.size > 1 and x[1] < x[0]:
+        x = x[::-1]
+        vals = vals[:, ::-1]
+    if y.size > 1 and y[1] < y[0]:
+        y = y[::-1]
+        vals = vals[::-1, :]
+    if the_crs.is_geographic and x.size > 2:
+        # a regional grid across the antimeridian in -180..180 numbers (170 ... 180, -175 ...):
+        # continue the longitudes past 180 (same meridians, now ascending)
+        jump = np.flatnonzero(np.diff(x) < -180.0)
+        if jump.size == 1:
+            x = np.concatenate([x[: jump[0] + 1], x[jump[0] + 1 :] + 360.0])
+    return _Raw(vals, x, y, the_crs, attrs, str(variable), "netCDF")
+
+
+# --------------------------------------------------------------------------------------
+# sign, units, assembly
+# --------------------------------------------------------------------------------------
+def _to_depth(raw: _Raw, values: str, units: str | None, p: pathlib.Path) -> np.ndarray:
+    attrs = raw.attrs
+    u = (units or str(attrs.get("units", ""))).strip().lower()
+    if u in _FEET or u.startswith("feet") or u == "us survey foot":
+        factor = 0.3048 if "us" not in u else 1200.0 / 3937.0
+    elif u in _METRES or u == "":
+        factor = 1.0
+    elif u in ("km", "kilometre", "kilometer", "kilometres", "kilometers"):
+        factor = 1000.0
+    else:
+        raise InputError(f"{p}: vertical units {u!r} not understood; expected metres or feet (pass units=...)")
+    if u == "":
+        log.info("%s: no vertical units declared; assuming metres", p)
+    mode = values
+    if mode == "auto":
+        mode = _decide_sign(attrs, raw.name, p, raw.values)
+    else:  # an explicit choice must not contradict the file's CF 'positive' attribute
+        pos = str(attrs.get("positive", "")).strip().lower()
+        declared = {"up": "elevation", "down": "depth"}.get(pos)
+        if declared is not None and declared != mode:
+            raise SignConventionError(
+                f"{p}: values={values!r} contradicts the file's attribute positive={pos!r} (which means "
+                f"{declared}); pass values={declared!r} (or 'auto'), or correct the file's metadata"
+            )
+    vals = raw.values * factor
+    return -vals if mode == "elevation" else vals
+
+
+def _decide_sign(attrs: dict, name: str, p: pathlib.Path, vals: np.ndarray) -> str:
+    pos = str(attrs.get("positive", "")).strip().lower()
+    if pos == "up":
+        return "elevation"
+    if pos == "down":
+        return "depth"
+    std = str(attrs.get("standard_name", "")).lower()
+    if std in ("height_above_mean_sea_level", "altitude", "height", "surface_altitude", "height_above_reference_ellipsoid"):
+        return "elevation"
+    if std in ("sea_floor_depth_below_sea_level", "sea_floor_depth_below_geoid", "depth", "sea_floor_depth"):
+        return "depth"
+    words = " ".join([str(attrs.get("long_name", "")), str(attrs.get("description", "")), name]).lower()
+    is_e = any(w in words for w in _ELEV_WORDS)
+    is_d = any(w in words for w in _DEPTH_WORDS)
+    if is_e != is_d:
+        return "elevation" if is_e else "depth"
+    finite = vals[np.isfinite(vals)]
+    hint = ""
+    if finite.size:
+        neg = float(np.mean(finite < 0))
+        hint = f" ({neg:.0%} of values are negative)"
+    raise SignConventionError(
+        f"{p}: cannot tell whether '{name}' holds elevation or depth{hint}; pass values='elevation' "
+        "(negative below sea level) or values='depth' (positive down)"
+    )
+
+
+def _assemble(raw: _Raw, depth: np.ndarray, p: pathlib.Path) -> xr.DataArray:
+    x, y = raw.x, raw.y
+    if x.size < 2 or y.size < 2:
+        raise InputError(f"{p}: grid is {y.size} x {x.size}; expected at least 2 x 2 cells")
+    lon_periodic = False
+    if raw.crs.is_geographic:
+        dx = (x[-1] - x[0]) / (x.size - 1)
+        span = x[-1] - x[0]
+        if abs(span - 360.0) < 1e-6 * 360:
+            # duplicated seam column (e.g. 0 and 360): drop the last, it is the same meridian
+            a, b = depth[:, 0], depth[:, -1]
+            both = np.isfinite(a) & np.isfinite(b)
+            if both.any() and np.nanmax(np.abs(a[both] - b[both])) > 1e-3 * (np.nanmax(np.abs(a)) + 1):
+                warnings.warn(f"{p}: seam columns at {x[0]} and {x[-1]} differ; keeping the first", stacklevel=3)
+            x = x[:-1]
+            depth = depth[:, :-1]
+            lon_periodic = True
+        elif abs(span + dx - 360.0) < 1e-6 * 360:
+            lon_periodic = True
+        if np.nanmax(np.abs(y)) > 90.0 + 1e-9:
+            raise InputError(f"{p}: latitudes reach {np.nanmax(np.abs(y)):.1f}; beyond +/-90 degrees")
+    attrs = {
+        "units": "m",
+        "long_name": "depth below mean sea level",
+        "standard_name": "sea_floor_depth_below_sea_level",
+        "positive": "down",
+        "source_file": str(p),
+        "source_format": raw.fmt,
+    }
+    da = make_grid(depth, x, y, raw.crs, name="depth", attrs=attrs, lon_periodic=lon_periodic)
+    try:
+        GridInfo.from_dataarray(da)
+    except InputError as exc:
+        raise InputError(f"{p}: {exc}") from exc
+    return da
+
+
+def _check_usable(da: xr.DataArray, p: pathlib.Path) -> None:
+    v = da.values
+    fin = np.isfinite(v)
+    if not fin.any():
+        raise InputError(f"{p}: every cell is nodata (NaN); nothing to use")
+    if not (v[fin] > 0).any():
+        raise InputError(
+            f"{p}: no sea cells (all depths <= 0 after sign conversion); check values='elevation'/'depth'"
+        )

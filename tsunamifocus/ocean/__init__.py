@@ -1,0 +1,3 @@
+"""Operations on depth grids: the one smoother, reference and flat oceans, perturbations, random
+fields, long-wave speed, the invented demo sea floor.
+"""

@@ -1,0 +1,3 @@
+"""Products of a study: figures, the appendix (HTML, PDF), text summaries, run and comparison
+folders, the demo files.
+"""

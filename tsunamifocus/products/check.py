@@ -1,0 +1,218 @@
+"""``tsunamifocus check RUN_DIR``: an independent linear long-wave check of a finished run.
+
+The run folder is self-contained for this: its ``layers.nc`` holds the depth grid and the
+source's initial sea surface, ``segments.csv`` the ray ranking and ``scenario.toml`` the stop
+isobath. The check simulates the linear shallow-water equations (:mod:`tsunamifocus.wave`) from
+that initial sea surface, takes the maximum amplitude per coastline segment at the stop
+isobath, and compares its ranking with the ray-based indicative amplitude at the same place.
+
+Screening estimates only: not a tsunami warning, forecast or inundation map (see CAUTIONS.md).
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import pathlib
+import sys
+import tomllib
+from typing import Any
+
+import numpy as np
+import pandas as pd
+
+from ..cautions import caution_summary
+from ..errors import DataFileError, InputError
+from ..io.gis import write_cog, write_netcdf
+from ..io.manifest import _jsonable as _clean
+from ..io.manifest import write_manifest
+from ..io.runfolder import OutputFolder
+from ..io.runs import read_run
+from ..studies.check import WaveCheck, compare_with_waves
+from .appendix import build_appendix
+from .figures import plot_ray_vs_wave
+
+__all__ = ['wave_check', 'run_wave_check', 'CHECK_FOLDER']
+
+#: Default sub-folder of a run that receives the check's outputs.
+CHECK_FOLDER = "wave_check"
+
+
+def wave_check(depth, eta0, segments, *, figure_path=None, **kwargs) -> WaveCheck:
+    """Compare the wave solver with the ray ranking (:func:`~tsunamifocus.studies.check.compare_with_waves`).
+
+    Parameters
+    ----------
+    depth, eta0, segments, **kwargs
+        As :func:`tsunamifocus.studies.check.compare_with_waves`.
+    figure_path : str or pathlib.Path, optional
+        Write the scatter figure (:func:`~tsunamifocus.products.figures.plot_ray_vs_wave`) there.
+
+    Returns
+    -------
+    WaveCheck
+        With ``figure`` set when ``figure_path`` was given.
+    """
+    chk = compare_with_waves(depth, eta0, segments, **kwargs)
+    if figure_path is not None:
+        ray_column = chk.agreement["ray_column"]
+        label = "Ray-theory amplitude at stop isobath [m]" if ray_column == "amp_stop_m" else f"Ray {ray_column}"
+        t = chk.table.set_index("segment_id")
+        ray = t["ray_value"].rename("ray_value")
+        wave = t["wave_amp_stop_m"]
+        chk.figure = plot_ray_vs_wave(ray, wave, figure_path, k=chk.agreement["k"], ray_label=label)
+    return chk
+
+
+def _stop_depth(run_dir: pathlib.Path) -> float:
+    p = run_dir / "scenario.toml"
+    if not p.is_file():
+        raise DataFileError(f"{p}: missing; is {run_dir} a tsunamifocus run folder?")
+    try:
+        d = tomllib.loads(p.read_text(encoding="utf-8"))
+    except (tomllib.TOMLDecodeError, UnicodeDecodeError) as exc:
+        raise DataFileError(f"{p}: not readable as TOML ({exc})") from exc
+    return float(d.get("rays", {}).get("stop_depth_m", 20.0))
+
+
+def _max_memory_bytes(run_dir: pathlib.Path) -> float:
+    """The run's ``[bathymetry] max_memory_gb`` in bytes (the limit applies to the wave check too)."""
+    d = tomllib.loads((run_dir / "scenario.toml").read_text(encoding="utf-8"))
+    return float(d.get("bathymetry", {}).get("max_memory_gb", 4.0)) * 1e9
+
+
+def run_wave_check(
+    run_dir: str | pathlib.Path,
+    *,
+    out: str | pathlib.Path | None = None,
+    overwrite: bool = False,
+    hours: float | None = None,
+    k: int = 10,
+    progress: bool = True,
+) -> dict[str, Any]:
+    """Run the wave-equation check of a finished run and write its outputs.
+
+    Parameters
+    ----------
+    run_dir : path
+        A folder written by ``tsunamifocus run`` / ``demo``.
+    out : path, optional
+        Output folder (default ``RUN_DIR/wave_check``).
+    overwrite : bool
+        Replace an existing output folder.
+    hours : float, optional
+        Simulated duration [h]; default from the latest ray first arrival.
+    k : int
+        Top-k of the overlap statistic.
+    progress : bool
+        Messages and a progress bar on stderr.
+
+    Returns
+    -------
+    dict
+        The agreement statistics (``spearman``, ``kendall``, ``topk_overlap`` ...) and output paths.
+    """
+
+    run_dir = pathlib.Path(run_dir)
+    if k < 1:
+        raise InputError(f"--top {k}: expected k >= 1")
+    if hours is not None and not hours > 0:
+        raise InputError(f"--hours {hours}: expected a positive duration in hours")
+    out_dir = pathlib.Path(out) if out is not None else run_dir / CHECK_FOLDER
+    name, segments, layers = read_run(run_dir)
+    for need in ("depth", "initial_sea_surface"):
+        if need not in layers:
+            raise DataFileError(f"{run_dir / 'layers.nc'}: has no '{need}' layer; re-run with this version")
+    stop = _stop_depth(run_dir)
+    seg = segments.reset_index() if "segment_id" not in segments.columns else segments
+    if progress:
+        print(f"linear long-wave check of '{name}' (stop isobath {stop:g} m) ...", file=sys.stderr)
+    with OutputFolder(out_dir, overwrite=overwrite) as of:
+        tmp = pathlib.Path(of.tmp_dir)
+        chk = wave_check(layers["depth"], layers["initial_sea_surface"], seg, k=k, stop_depth=stop,
+                         duration_s=None if hours is None else hours * 3600.0,
+                         figure_path=tmp / "ray_vs_wave.png", progress=progress,
+                         max_memory_bytes=_max_memory_bytes(run_dir))
+        amp = chk.wave.max_amplitude.copy()
+        amp.name = "wave_max_amplitude"
+        amp.attrs.update(units="m", long_name="maximum sea-surface elevation, linear long-wave solver")
+        write_cog(amp, tmp / "wave_max_amplitude.tif", description="maximum sea-surface elevation (linear "
+                  "long-wave check)", units="m")
+        write_netcdf({"wave_max_amplitude": amp}, tmp / "wave_check.nc",
+                     title=f"tsunamifocus wave-equation check: {name}",
+                     source="tsunamifocus linear long-wave solver (C grid, forward-backward)")
+        table = pd.DataFrame(chk.table)
+        _write_table(table, tmp / "wave_segments.csv")
+        ag = {k2: (float(v) if isinstance(v, (float, np.floating)) and math.isfinite(v) else v)
+              for k2, v in chk.agreement.items()}
+        (tmp / "agreement.json").write_text(json.dumps(_clean(ag), indent=2), encoding="utf-8")
+        _appendix(tmp, run_dir, name, seg, table, ag, chk)
+        write_manifest(tmp / "manifest.json", output_dir=tmp, inputs={"run_layers": run_dir / "layers.nc",
+                       "run_segments": run_dir / "segments.csv"},
+                       extra={"wave_stats": _clean(chk.wave.stats), "agreement": _clean(ag)})
+    sp, ov = ag.get("spearman"), ag.get("topk_overlap")
+    if progress:
+        print(f"ray vs wave ranking of {ag.get('n', '?')} segments: Spearman {sp:.3f}, "
+              f"top-{k} overlap {ov}" if isinstance(sp, float) else f"agreement: {ag}", file=sys.stderr)
+        print(f"outputs: {out_dir}", file=sys.stderr)
+        print("CAUTION: " + caution_summary(), file=sys.stderr)
+    print(f"spearman {sp:.3f}  top{k}_overlap {ov}" if isinstance(sp, float) else f"spearman {sp} top{k}_overlap {ov}")
+    return {"agreement": ag, "out": out_dir}
+
+
+def _write_table(df: pd.DataFrame, path: pathlib.Path) -> None:
+
+    out = df.drop(columns=[c for c in ("geometry",) if c in df.columns])
+    for c in out.columns:
+        if isinstance(out[c].dtype, pd.api.extensions.ExtensionDtype) and out[c].dtype.kind in "iu":
+            out[c] = out[c].astype("float64")
+    with open(path, "w", encoding="utf-8", newline="") as fh:
+        fh.write(f"# CAUTION: {caution_summary()}\n")
+        out.to_csv(fh, index=False)
+
+
+def _appendix(tmp: pathlib.Path, run_dir: pathlib.Path, name: str, seg: pd.DataFrame, table: pd.DataFrame,
+              ag: dict, chk: Any) -> None:
+    """A supplement to the run's appendix: the cautions, the ranked table and the check section."""
+
+    st = chk.wave.stats
+    k = ag.get("k", 10)
+    text = [
+        "The same initial sea surface was propagated with the linear long-wave (shallow-water) equations on "
+        "the same grid (staggered C grid, forward-backward time stepping under the CFL condition, absorbing "
+        "open boundaries, absorbing coast at the stop isobath). Its maximum elevation per coastline segment "
+        "at the stop isobath is compared with the ray-based indicative amplitude there.",
+        "The wave solution includes diffraction, which ray theory leaves out: where they disagree, the "
+        "ray ranking of that segment is not supported and should not be used on its own.",
+    ]
+    section = {
+        "text": text,
+        "metrics": {
+            "segments compared": ag.get("n"),
+            "Spearman rank correlation": f"{ag.get('spearman', float('nan')):.3f}" if ag.get("spearman") is not None else "n/a",
+            "Kendall tau": f"{ag.get('kendall', float('nan')):.3f}" if ag.get("kendall") is not None else "n/a",
+            f"top-{k} overlap": ag.get("topk_overlap"),
+            "time step (s)": f"{st.get('dt_s', float('nan')):.2f}",
+            "simulated time (h)": f"{st.get('duration_s', float('nan')) / 3600:.2f}",
+            "mass error (relative)": f"{st.get('mass_error', float('nan')):.1e}",
+        },
+        "table": table.drop(columns=[c for c in ("geometry",) if c in table.columns]).head(20),
+        "table_caption": "Per segment: ray value, wave-solver maximum amplitude and both ranks",
+        "figures": {"ray_vs_wave": str(tmp / "ray_vs_wave.png")},
+    }
+    manifest = {}
+    mp = run_dir / "manifest.json"
+    if mp.is_file():
+        try:
+            manifest = json.loads(mp.read_text(encoding="utf-8"))
+        except (json.JSONDecodeError, UnicodeDecodeError):
+            manifest = {}
+    desc = (manifest.get("parameters", {}) or {}).get("description", "") if isinstance(manifest, dict) else ""
+    ctx = {
+        "title": f"Wave-equation check of the ray screening: {name}",
+        "subtitle": "Supplement to the planning-study appendix (screening level)",
+        "scenario": {"name": name, "description": desc or f"Check of run folder {run_dir.name}"},
+        "ranking": seg.drop(columns=[c for c in seg.columns if c == "wkt"]),
+        "wave_check": section,
+    }
+    build_appendix(ctx, tmp / "wave_check_appendix.html", tmp / "wave_check_appendix.pdf")

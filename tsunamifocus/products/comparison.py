@@ -1,0 +1,166 @@
+"""Writing a comparison of runs: tables, difference layers and the comparison appendix."""
+
+from __future__ import annotations
+
+import json
+import pathlib
+from collections.abc import Sequence
+from pathlib import Path
+
+import pandas as pd
+import xarray as xr
+
+from ..cautions import caution_lines, caution_text
+from ..errors import OutputExistsError
+from ..grid import get_crs
+from ..io.gis import write_cog, write_netcdf, write_segments
+from ..studies.compare import Comparison, RunTuple, _safe, compare_runs
+from .appendix import build_appendix
+from .figures import plot_agreement
+
+__all__ = ['compare_to_folder']
+
+
+def _write_csv(df: pd.DataFrame, path: Path) -> None:
+    """Write a CSV whose leading ``#`` comment lines carry the caution (read with comment="#")."""
+
+    header = "".join(f"# {line}\n" if line else "#\n" for line in ["CAUTION:", *caution_lines(width=100)])
+    tmp = path.with_name(f".{path.name}.part")
+    with open(tmp, "w", encoding="utf-8", newline="") as fh:
+        fh.write(header)
+        df.to_csv(fh, index=False, lineterminator="\n")
+    tmp.replace(path)
+
+
+def compare_to_folder(
+    runs: Sequence[RunTuple] | Comparison,
+    out_dir: str | Path,
+    *,
+    top_k: int = 10,
+    overwrite: bool = False,
+) -> dict[str, Path]:
+    """Compare runs and write the comparison into a folder (every file carries the cautions).
+
+    Parameters
+    ----------
+    runs : sequence of (name, segments, layers), or a Comparison
+        Runs (see :func:`compare_runs`) or an existing comparison.
+    out_dir : str or path-like
+        Output folder (created).
+    top_k : int
+        k of the top-k counts (ignored for a given Comparison).
+    overwrite : bool
+        Replace files of an earlier comparison in ``out_dir``.
+
+    Returns
+    -------
+    dict of str -> pathlib.Path
+        ``ranking_gpkg`` / ``ranking_geojson`` (when segment geometries and a CRS exist),
+        ``ranking_csv``, ``correlations_csv``, ``envelope_nc``, ``envelope_<layer>_tif``,
+        ``differences_nc``, ``summary_md``, ``comparison_json``.
+    """
+
+    comp = runs if isinstance(runs, Comparison) else compare_runs(runs, top_k=top_k)
+    out = Path(out_dir)
+    out.mkdir(parents=True, exist_ok=True)
+    planned = ["comparison_ranking.csv", "comparison_correlations.csv", "comparison_summary.md", "comparison.json"]
+    if not overwrite:
+        exist = [p for p in planned if (out / p).exists()]
+        if exist:
+            raise OutputExistsError(f"{out}: already holds a comparison ({exist[0]}); pass overwrite=True to replace it")
+    written: dict[str, Path] = {}
+    rank = comp.ranking.reset_index()
+    crs = None
+    for da in comp.envelope.values():
+        crs = get_crs(da)
+        break
+    has_geom = "geometry" in rank.columns and rank["geometry"].notna().all()
+    if has_geom and crs is not None:
+        w = write_segments(rank, out / "comparison_ranking", crs, layer="comparison_ranking", csv_wkt=True)
+        written.update({f"ranking_{k}": v for k, v in w.items()})
+    else:
+        _write_csv(rank.drop(columns=["geometry"], errors="ignore"), out / "comparison_ranking.csv")
+        written["ranking_csv"] = out / "comparison_ranking.csv"
+    _write_csv(comp.correlations, out / "comparison_correlations.csv")
+    written["correlations_csv"] = out / "comparison_correlations.csv"
+    title = f"Scenario comparison envelope ({', '.join(comp.names)})"
+    if comp.envelope:
+        written["envelope_nc"] = write_netcdf(comp.envelope, out / "comparison_envelope.nc", title=title)
+        for lay, da in comp.envelope.items():
+            written[f"envelope_{lay}_tif"] = write_cog(da, out / f"comparison_envelope_{lay}.tif")
+    diff_layers: dict[str, xr.DataArray] = {}
+    for run, d in comp.differences.items():
+        for lay, da in d.items():
+            diff_layers[f"{lay}_{comp.column_names.get(run, _safe(run))}_minus_first"] = da
+    if diff_layers:
+        written["differences_nc"] = write_netcdf(
+            diff_layers,
+            out / "comparison_differences.nc",
+            title=f"Scenario differences relative to '{comp.names[0]}'",
+        )
+    md = out / "comparison_summary.md"
+    md.write_text(
+        "# Scenario comparison\n\n" + comp.summary + "\n\n## Cautions\n\n" + caution_text() + "\n", encoding="utf-8"
+    )
+    written["summary_md"] = md
+    js = out / "comparison.json"
+    js.write_text(
+        json.dumps({**comp.to_dict(), "caution": caution_text()}, indent=2, allow_nan=False) + "\n", encoding="utf-8"
+    )
+    written["comparison_json"] = js
+    return written
+
+
+def comparison_appendix(cmp, runs, folder: pathlib.Path) -> None:
+    """Write ``comparison_appendix.html/.pdf``: cautions, the first run's ranking and the comparison section."""
+    import numpy as np
+    import pandas as pd
+
+
+    names = list(cmp.names)
+    rk = cmp.ranking.reset_index()
+    cols = [c for c in rk.columns if c.startswith(("lensing_factor_", "rank_")) or c in ("segment_id", "n_topk")]
+    table = rk.sort_values("rank_envelope" if "rank_envelope" in rk else cols[1]).head(cmp.top_k)[cols].copy()
+    for c in table.columns:
+        if table[c].dtype.kind == "f":
+            table[c] = table[c].map(lambda v: f"{v:.2f}" if np.isfinite(v) else "")
+    corr = pd.DataFrame(cmp.correlations).copy()
+    figs = {}
+    first, second = runs[0], runs[1]
+    a = first[1]["lensing_factor"].astype(float)
+    b = second[1]["lensing_factor"].reindex(a.index).astype(float)
+    ok = np.isfinite(a.to_numpy()) & np.isfinite(b.to_numpy())
+    if ok.sum() >= 3:
+        fig = folder / "comparison_scatter.png"
+        plot_agreement(a.to_numpy()[ok], b.to_numpy()[ok], out_path=fig, xlabel=f"lensing factor, {names[0]}",
+                       ylabel=f"lensing factor, {names[1]}", title="Lensing factor per coastline segment: "
+                       f"{names[0]} vs {names[1]}", labels=list(a.index[ok]))
+        figs["comparison_scatter"] = str(fig)
+    metrics = {}
+    for _, r in corr.iterrows():
+        metrics[f"{r['run_a']} vs {r['run_b']}"] = (f"Spearman {r['spearman_rho']:.3f}, Kendall {r['kendall_tau']:.3f}"
+                                                   f" over {int(r['n'])} segments")
+    section = {
+        "text": [f"Runs compared: {', '.join(names)}. They share the grid, coastline and segmentation (runs that "
+                 "do not are refused). The envelope layer holds the maximum lensing factor and the earliest "
+                 "arrival over the runs; difference layers are each run minus the first."],
+        "metrics": metrics,
+        "table": table,
+        "table_caption": f"Top {cmp.top_k} segments of the envelope ranking, lensing factor and rank per run",
+        "figures": figs,
+    }
+    ranking = first[1].reset_index() if "segment_id" not in first[1].columns else first[1]
+    ctx = {
+        "title": "Comparison of tsunami-energy focusing screening runs",
+        "subtitle": "Supplement to the planning-study appendices (screening level)",
+        "scenario": {"name": " vs ".join(names), "description": f"Comparison of {len(names)} runs; the ranked "
+                     f"table below is that of the first run, {names[0]}."},
+        "ranking": ranking.drop(columns=[c for c in ("wkt",) if c in ranking.columns]),
+        "comparison": section,
+    }
+    build_appendix(ctx, folder / "comparison_appendix.html", folder / "comparison_appendix.pdf")
+
+
+def _summary_of(cmp) -> str:
+    s = getattr(cmp, "summary", None)
+    return s() if callable(s) else str(s if s is not None else cmp)

@@ -1,0 +1,1566 @@
+"""Figures of a tsunamifocus run (matplotlib, PNG, 150 dpi).
+
+Every function takes plain data (grid :class:`xarray.DataArray` objects following the
+tsunamifocus grid convention, a segments :class:`pandas.DataFrame` following the shared
+segments contract, shapely geometries) and writes one PNG. The figures are built on
+:class:`matplotlib.figure.Figure` directly (Agg canvas, no pyplot), so calling them never
+changes the user's interactive backend.
+
+Common furniture of every map (see :func:`_new_map` / :func:`_finish`):
+
+* projected grids: axes in km, a scale bar and a north arrow pointing to true north
+  (grid convergence computed with pyproj);
+* geographic grids: a graticule with degree labels (E/W, N/S), aspect corrected by
+  ``1 / cos(mid latitude)``, and a north arrow;
+* colour bars with units, colour-blind-safe colour maps (cividis, viridis, magma, and
+  the diverging ``PuOr_r`` / ``RdBu_r`` centred on a neutral value);
+* a footer line with the short caution (:data:`CAUTION_FOOTER`), and the full cautions
+  text of CAUTIONS.md in the PNG text chunk ``Disclaimer``.
+
+Adding a figure: build it with ``fig, ax, geo = _new_map(grid, title)`` (maps) or
+``fig, ax = _new_chart(size, title)`` (charts), draw, then ``return _finish(fig, out_path,
+ax=ax, geo=geo)``.
+"""
+
+from __future__ import annotations
+
+import math
+import os
+import pathlib
+from collections.abc import Iterable, Sequence
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+import pandas as pd
+import xarray as xr
+from matplotlib import colors as mcolors
+from matplotlib import patheffects
+from matplotlib.collections import LineCollection
+from matplotlib.figure import Figure
+from matplotlib.lines import Line2D
+from matplotlib.patches import Patch, Rectangle
+from matplotlib.ticker import FixedLocator, FuncFormatter, MaxNLocator, NullFormatter
+
+from ..cautions import CAUTION_FOOTER, caution_text
+from ..constants import __version__
+from ..errors import InputError
+from ..focusing.agreement import _paired, _topk, compare_rankings
+from ..grid import GridInfo
+from ..propagation.wave import WAVE_CAUTION
+from ..studies.check import _wrap
+
+__all__ = ['plot_ray_vs_wave', 'CAUTION_FOOTER', 'DPI', 'plot_ray_field', 'plot_lensing_map', 'plot_ranking', 'plot_uplift', 'plot_agreement', 'RANK_FIELDS']
+
+
+# Okabe & Ito (2008) colour-blind-safe palette
+_OI = {"blue": "#0072B2", "orange": "#E69F00", "vermillion": "#D55E00", "sky": "#56B4E9", "grey": "#999999"}
+
+
+def plot_ray_vs_wave(
+    ray_values: Any,
+    wave_values: Any,
+    path: str | Path,
+    *,
+    k: int = 10,
+    ray_label: str = "Ray-theory amplitude at stop isobath [m]",
+    wave_label: str = "Wave-solver maximum amplitude at stop isobath [m]",
+    title: str | None = "Ray screening vs linear long-wave check, per coastline segment",
+    log: bool = True,
+    annotate_top: bool = True,
+    dpi: int = 150,
+) -> Path:
+    """Save a scatter figure (PNG) of ray vs wave per-segment values with the ranking agreement.
+
+    Top-``k`` segments of both rankings, of the ray ranking only and of the wave ranking only are
+    drawn with distinct colours *and* marker shapes (Okabe-Ito palette); the Spearman and Kendall
+    correlations and the top-``k`` overlap from :func:`compare_rankings` are printed in the panel,
+    and the cautions line at the bottom.
+
+    Parameters
+    ----------
+    ray_values, wave_values : array-like or pandas.Series
+        Per-segment values [m] (Series are aligned on index; index labels annotate the top segments).
+    path : str or pathlib.Path
+        Output PNG path (parent folder must exist).
+    k : int
+        Size of the top sets.
+    ray_label, wave_label : str
+        Axis labels (with units).
+    title : str or None
+        Figure title.
+    log : bool
+        Logarithmic axes when all values are positive.
+    annotate_top : bool
+        Write the labels of the top-``k`` segments of either ranking beside their points.
+    dpi : int
+        Resolution.
+
+    Returns
+    -------
+    pathlib.Path
+        The written file.
+    """
+
+    from matplotlib.figure import Figure
+    from matplotlib.lines import Line2D
+
+    path = Path(path)
+    if not path.parent.is_dir():
+        raise InputError(f"figure folder {str(path.parent)!r} does not exist")
+    a, b, labels = _paired(ray_values, wave_values)
+    agree = compare_rankings(a, b, k=k)
+    kk = agree["k"]
+    ta, tb = set(_topk(a, kk).tolist()), set(_topk(b, kk).tolist())
+    cat = np.zeros(a.size, dtype=int)
+    for i in range(a.size):
+        cat[i] = 3 if (i in ta and i in tb) else 1 if i in ta else 2 if i in tb else 0
+    fig = Figure(figsize=(7.5, 7.2), dpi=dpi)
+    ax = fig.add_axes((0.13, 0.22, 0.82, 0.70))
+    styles = {
+        0: ("other segments", _OI["grey"], "o", 22),
+        1: (f"top {kk} by rays only", _OI["vermillion"], "^", 46),
+        2: (f"top {kk} by wave only", _OI["sky"], "s", 40),
+        3: (f"top {kk} in both", _OI["blue"], "D", 46),
+    }
+    handles = []
+    for c, (lab, col, mk, sz) in styles.items():
+        sel = cat == c
+        if sel.any():
+            ax.scatter(a[sel], b[sel], s=sz, c=col, marker=mk, edgecolors="black", linewidths=0.4, zorder=2 + c)
+        handles.append(Line2D([], [], ls="", marker=mk, color=col, markeredgecolor="black", label=f"{lab} ({int(sel.sum())})"))
+    use_log = log and np.all(a > 0) and np.all(b > 0)
+    if use_log:
+        from matplotlib.ticker import FuncFormatter, LogLocator
+
+        ax.set_xscale("log")
+        ax.set_yscale("log")
+        fmt = FuncFormatter(lambda v, _pos: f"{v:g}")
+        for axis in (ax.xaxis, ax.yaxis):
+            axis.set_major_locator(LogLocator(base=10.0, subs=(1.0, 2.0, 5.0)))
+            axis.set_major_formatter(fmt)
+            axis.set_minor_formatter(FuncFormatter(lambda v, _pos: ""))
+    lo = min(a.min(), b.min())
+    hi = max(a.max(), b.max())
+    ax.plot([lo, hi], [lo, hi], color="black", lw=0.8, ls="--", zorder=1)
+    handles.append(Line2D([], [], color="black", lw=0.8, ls="--", label="1:1"))
+    if annotate_top and labels is not None:
+        for i in sorted(ta | tb):
+            ax.annotate(str(labels[i]), (a[i], b[i]), xytext=(4, 3), textcoords="offset points", fontsize=7)
+    ax.set_xlabel(ray_label, fontsize=11)
+    ax.set_ylabel(wave_label, fontsize=11)
+    ax.tick_params(labelsize=10)
+    ax.grid(True, which="major", color="#dddddd", lw=0.6)
+    ax.legend(handles=handles, loc="lower right", fontsize=8.5, framealpha=0.9)
+    txt = (
+        f"n = {agree['n']} segments\nSpearman rho = {agree['spearman']:.2f}\n"
+        f"Kendall tau = {agree['kendall']:.2f}\ntop-{kk} overlap = {agree['topk_common']}/{kk}"
+    )
+    ax.text(0.03, 0.97, txt, transform=ax.transAxes, va="top", ha="left", fontsize=10,
+            bbox={"facecolor": "white", "edgecolor": "#888888", "alpha": 0.9})
+    if title:
+        ax.set_title(title, fontsize=11.5)
+    fig.text(0.02, 0.02, _wrap(WAVE_CAUTION, 135), fontsize=7, va="bottom", ha="left", color="#333333")
+    fig.savefig(path, dpi=dpi)
+    return path
+
+#: Short caution printed at the foot of every figure.
+
+#: Resolution of the PNG files [dots per inch].
+DPI = 150
+
+_LAND = "#d8cfb4"  # land fill (tan)
+_NODATA = "#ffffff"
+_OKABE_BLUE = "#0072B2"  # Okabe-Ito palette (colour-blind safe)
+_OKABE_VERMILLION = "#D55E00"
+_OKABE_GREEN = "#009E73"
+_HALO = [patheffects.withStroke(linewidth=2.5, foreground="white")]
+
+plt_rc = {
+    "font.size": 9.5,
+    "axes.titlesize": 11.5,
+    "axes.labelsize": 9.5,
+    "xtick.labelsize": 8.5,
+    "ytick.labelsize": 8.5,
+    "legend.fontsize": 8.5,
+}
+
+
+# --------------------------------------------------------------------------------------
+# helpers shared by all figures
+# --------------------------------------------------------------------------------------
+
+
+def _cautions_full() -> str:
+    """Full cautions text for the PNG metadata."""
+    return caution_text()
+
+
+def _check_grid(da: Any, what: str) -> GridInfo:
+    if not isinstance(da, xr.DataArray):
+        raise InputError(f"{what}: expected a 2-D xarray.DataArray grid, got {type(da).__name__}")
+    return GridInfo.from_dataarray(da)
+
+
+def _extent(info: GridInfo) -> tuple[float, float, float, float]:
+    xmin, ymin, xmax, ymax = info.bounds
+    return (xmin, xmax, ymin, ymax)
+
+
+def _values(da: xr.DataArray) -> np.ndarray:
+    return np.asarray(da.values, dtype=float)
+
+
+def _same_kind(ref: GridInfo, other: GridInfo, what: str) -> None:
+    if ref.geographic != other.geographic:
+        kind = "geographic (lon/lat)" if ref.geographic else "projected (x/y)"
+        raise InputError(f"{what}: grid must be {kind} like the depth grid")
+
+
+def _lon_label(v: float) -> str:
+    v = ((v + 180.0) % 360.0) - 180.0
+    if abs(v) < 1e-9 or abs(abs(v) - 180.0) < 1e-9:
+        return f"{abs(v):g}°"
+    return f"{abs(v):g}°{'E' if v > 0 else 'W'}"
+
+
+def _lat_label(v: float) -> str:
+    if abs(v) < 1e-9:
+        return "0°"
+    return f"{abs(v):g}°{'N' if v > 0 else 'S'}"
+
+
+def _new_chart(size: tuple[float, float], title: str | None) -> tuple[Figure, Any]:
+    fig = Figure(figsize=size, dpi=DPI, layout="constrained")
+    ax = fig.add_subplot(1, 1, 1)
+    if title:
+        ax.set_title(title, fontsize=plt_rc["axes.titlesize"], loc="left")
+    return fig, ax
+
+
+def _styled(func):
+    """Run a figure function with the package's font sizes (matplotlib rc_context)."""
+    import functools
+
+    @functools.wraps(func)
+    def wrapper(*args, **kwargs):
+        import matplotlib as mpl
+
+        with mpl.rc_context(plt_rc):
+            return func(*args, **kwargs)
+
+    return wrapper
+
+
+def _new_map(info: GridInfo, title: str | None):
+    """Create a figure with one map axes set up for the grid's CRS kind.
+
+    The figure size is fixed later by :func:`_finish` from the map's aspect ratio, the
+    colour bars and the legend, so maps of any shape come out without large margins.
+    """
+    xmin, xmax, ymin, ymax = _extent(info)
+    if info.geographic:
+        lat_mid = 0.5 * (ymin + ymax)
+        aspect = 1.0 / max(math.cos(math.radians(lat_mid)), 0.05)
+    else:
+        aspect = 1.0
+    ratio = (ymax - ymin) * aspect / max(xmax - xmin, 1e-12)
+    fig = Figure(figsize=(8.0, 6.0), dpi=DPI, layout="constrained")
+    ax = fig.add_subplot(1, 1, 1)
+    ax._tf_ratio = ratio  # height / width of the map box
+    ax._tf_aspect = aspect  # re-applied in _finish (imshow resets the aspect)
+    ax.set_anchor("S")  # any spare height ends up above the map (trimmed in _finish)
+    ax.set_xlim(xmin, xmax)
+    ax.set_ylim(ymin, ymax)
+    ax.set_aspect(aspect)
+    if title:
+        ax.set_title(title, fontsize=plt_rc["axes.titlesize"], loc="left")
+    if info.geographic:
+        ax.xaxis.set_major_locator(_degree_locator(xmax - xmin))
+        ax.yaxis.set_major_locator(_degree_locator(ymax - ymin))
+        ax.xaxis.set_major_formatter(FuncFormatter(lambda v, _: _lon_label(v)))
+        ax.yaxis.set_major_formatter(FuncFormatter(lambda v, _: _lat_label(v)))
+        ax.grid(True, color="0.35", linewidth=0.4, alpha=0.6, linestyle=":")
+        ax.set_xlabel("Longitude")
+        ax.set_ylabel("Latitude")
+    else:
+        km = FuncFormatter(lambda v, _: f"{v / 1000.0:g}")
+        ax.xaxis.set_major_formatter(km)
+        ax.yaxis.set_major_formatter(km)
+        ax.xaxis.set_major_locator(MaxNLocator(nbins=7))
+        ax.yaxis.set_major_locator(MaxNLocator(nbins=7))
+        ax.set_xlabel("Easting (km)")
+        ax.set_ylabel("Northing (km)")
+    ax.tick_params(direction="out", length=3)
+    return fig, ax, info
+
+
+def _degree_locator(span_deg: float, max_ticks: int = 8):
+    """Tick locator at 'round' degree steps (..., 1, 2, 5, 10, 15, 30, 45, 60, 90) for a span."""
+    from matplotlib.ticker import MultipleLocator
+
+    steps = (0.01, 0.02, 0.05, 0.1, 0.2, 0.25, 0.5, 1, 2, 2.5, 5, 10, 15, 20, 30, 45, 60, 90)
+    for st in steps:
+        if span_deg / st <= max_ticks:
+            return MultipleLocator(st)
+    return MultipleLocator(90)
+
+
+def _contour_ready(t: np.ndarray, max_sigma: float = 6.0) -> np.ndarray:
+    """Copy of a gridded field fit for contouring: NaN holes between rays filled, smoothed.
+
+    First-arrival grids from rays have empty cells where rays are sparse; contouring them
+    directly draws rings around every hole. The typical hole radius ``r`` (90th percentile of the
+    distance of empty cells to the nearest filled one, counting only holes of at most 12 cells)
+    sets the treatment: holes up to ``1.5 r + 1`` cells get the nearest valid value, then a normalised
+    Gaussian of ``r`` cells (1 to ``max_sigma``) smooths the result. Cells farther from data stay
+    NaN (no contour there). For display only; the exported layers are untouched.
+    """
+    from scipy import ndimage
+
+    good = np.isfinite(t)
+    if good.all() or not good.any():
+        return t
+    dist, (iy, ix) = ndimage.distance_transform_edt(~good, return_indices=True)
+    holes = dist[(dist > 0) & (dist <= 12)]
+    sigma = float(np.clip(np.percentile(holes, 90), 1.0, max_sigma)) if holes.size else 1.0
+    filled = t[iy, ix]
+    filled[dist > 1.5 * sigma + 1.0] = np.nan
+    w = np.isfinite(filled).astype(float)
+    num = ndimage.gaussian_filter(np.where(w > 0, filled, 0.0), sigma, mode="nearest")
+    den = ndimage.gaussian_filter(w, sigma, mode="nearest")
+    with np.errstate(invalid="ignore", divide="ignore"):
+        return np.where(w > 0, num / np.maximum(den, 1e-12), np.nan)
+
+
+def _nice_length(target: float) -> float:
+    """Largest 1/2/5 x 10^n not above ``target`` (> 0)."""
+    if not target > 0:
+        return 1.0
+    e = math.floor(math.log10(target))
+    for m in (5.0, 2.0, 1.0):
+        if m * 10**e <= target:
+            return m * 10**e
+    return 10**e
+
+
+def _add_scale_bar(ax, info: GridInfo) -> None:
+    """Two-tone scale bar in the lower left corner (projected grids, metres)."""
+    xmin, xmax, ymin, ymax = _extent(info)
+    width = xmax - xmin
+    length = _nice_length(0.22 * width)
+    x0 = xmin + 0.04 * width
+    y0 = ymin + 0.05 * (ymax - ymin)
+    h = 0.012 * (ymax - ymin)
+    bg = Rectangle(
+        (x0 - 0.015 * width, y0 - 2.2 * h),
+        length + 0.03 * width,
+        6.0 * h,
+        facecolor="white",
+        edgecolor="none",
+        alpha=0.75,
+        zorder=20,
+    )
+    ax.add_patch(bg)
+    half = length / 2.0
+    ax.add_patch(Rectangle((x0, y0), half, h, facecolor="black", edgecolor="black", lw=0.6, zorder=21))
+    ax.add_patch(Rectangle((x0 + half, y0), half, h, facecolor="white", edgecolor="black", lw=0.6, zorder=21))
+    label = f"{length / 1000.0:g} km" if length >= 1000.0 else f"{length:g} m"
+    ax.text(x0 + length / 2.0, y0 + 1.6 * h, label, ha="center", va="bottom", fontsize=8, zorder=22)
+    ax.text(x0, y0 - 0.4 * h, "0", ha="center", va="top", fontsize=7, zorder=22)
+
+
+def _north_angle_deg(info: GridInfo) -> float:
+    """Angle of true north from grid up, counter-clockwise positive [degrees]."""
+    if info.geographic:
+        return 0.0
+    try:
+        from pyproj import Transformer
+
+        crs = info.crs
+        geo = crs.geodetic_crs
+        if geo is None:
+            return 0.0
+        fwd = Transformer.from_crs(crs, geo, always_xy=True)
+        inv = Transformer.from_crs(geo, crs, always_xy=True)
+        xmin, xmax, ymin, ymax = _extent(info)
+        xc, yc = 0.5 * (xmin + xmax), 0.5 * (ymin + ymax)
+        lon, lat = fwd.transform(xc, yc)
+        x2, y2 = inv.transform(lon, min(lat + 0.05, 89.9))
+        ang = math.degrees(math.atan2(-(x2 - xc), y2 - yc))
+        return ang if np.isfinite(ang) else 0.0
+    except Exception:  # noqa: BLE001 - an arrow pointing up is the safe fallback
+        return 0.0
+
+
+def _add_north_arrow(ax, info: GridInfo) -> None:
+    """North arrow (pointing to true north) in the upper right corner of the map."""
+    ang = math.radians(_north_angle_deg(info))
+    ratio = getattr(ax, "_tf_ratio", 1.0)
+    length = 0.06  # in units of the axes width
+    cx, cy = 0.935, 1.0 - 0.06 / max(ratio, 0.2) - 0.5 * length / max(ratio, 0.2)
+    dx = -math.sin(ang) * length
+    dy = math.cos(ang) * length / max(ratio, 1e-6)
+    tail = (cx - dx / 2, cy - dy / 2)
+    tip = (cx + dx / 2, cy + dy / 2)
+    ax.add_patch(
+        Rectangle(
+            (cx - 0.035, cy - 0.5 * length / ratio - 0.012 / ratio),
+            0.07,
+            (length + 0.065) / ratio,
+            transform=ax.transAxes,
+            facecolor="white",
+            alpha=0.6,
+            edgecolor="none",
+            zorder=29,
+        )
+    )
+    ax.annotate(
+        "",
+        xy=tip,
+        xytext=tail,
+        xycoords="axes fraction",
+        textcoords="axes fraction",
+        arrowprops=dict(
+            arrowstyle="simple,head_width=0.9,head_length=0.9,tail_width=0.35",
+            facecolor="black",
+            edgecolor="black",
+        ),
+        zorder=30,
+    )
+    ax.text(
+        tip[0] - math.sin(ang) * 0.02,
+        tip[1] + math.cos(ang) * 0.02 / ratio,
+        "N",
+        transform=ax.transAxes,
+        ha="center",
+        va="bottom",
+        fontsize=10,
+        fontweight="bold",
+        zorder=31,
+    )
+
+
+def _right_colorbar(fig: Figure, ax, mappable, index: int = 0, **kw):
+    """Colour bar beside a map axes with exactly the map's height (inset axes)."""
+    x0 = 1.03 + index * 0.2
+    cax = ax.inset_axes([x0, 0.0, 0.035, 1.0])
+    return fig.colorbar(mappable, cax=cax, **kw)
+
+
+def _finish(
+    fig: Figure,
+    out_path: str | os.PathLike,
+    *,
+    ax=None,
+    geo: GridInfo | None = None,
+    handles: list | None = None,
+    right_cbars: int = 0,
+    bottom_cbars: int = 0,
+) -> pathlib.Path:
+    """Add map furniture, legend and caution footer, size the figure and write the PNG.
+
+    The PNG is written to a hidden temporary name and renamed (atomic on POSIX).
+    """
+    ncol = 3
+    if handles:
+        ncol = min(len(handles), 3)
+        leg = fig.legend(
+            handles=handles,
+            loc="outside lower center",
+            ncol=ncol,
+            frameon=False,
+            fontsize=8.5,
+            borderaxespad=1.8,
+        )
+        leg.set_zorder(40)
+    if ax is not None and geo is not None:
+        ax.set_aspect(getattr(ax, "_tf_aspect", 1.0))
+        ax.set_anchor("S")
+        xmin, xmax, ymin, ymax = _extent(geo)
+        ax.set_xlim(xmin, xmax)
+        ax.set_ylim(ymin, ymax)
+        ratio = getattr(ax, "_tf_ratio", 0.75)
+        w = 8.0
+        axw = w - 0.9 - 0.95 * right_cbars
+        rows = math.ceil(len(handles) / ncol) if handles else 0
+        h = axw * ratio + 1.45 + 0.85 * bottom_cbars + (0.2 * rows + 0.15 if rows else 0.0)
+        h = float(np.clip(h, 3.6, 11.0))
+        fig.set_size_inches(w, h)
+        if not geo.geographic:
+            _add_scale_bar(ax, geo)
+        _add_north_arrow(ax, geo)
+    fig.text(
+        0.5,
+        0.004,
+        CAUTION_FOOTER,
+        ha="center",
+        va="bottom",
+        fontsize=7.5,
+        color="0.25",
+        style="italic",
+    )
+    engine = fig.get_layout_engine()
+    if engine is not None:
+        try:
+            fig_h = fig.get_size_inches()[1]
+            foot = 0.22 / fig_h
+            engine.set(rect=(0.0, foot, 1.0, 1.0 - foot))  # (left, bottom, width, height)
+        except Exception:  # noqa: BLE001 - layout tweak only
+            pass
+    if ax is not None and geo is not None and engine is not None:
+        _trim_vertical_slack(fig, ax)
+    out = pathlib.Path(out_path)
+    if out.suffix.lower() != ".png":
+        raise InputError(f"figure path '{out}': expected a .png file name")
+    out.parent.mkdir(parents=True, exist_ok=True)
+    tmp = out.with_name(f".{out.name}.part")
+    meta = {
+        "Title": str(ax.get_title(loc="left")) if ax is not None else out.stem,
+        "Software": _software(),
+        "Disclaimer": _cautions_full(),
+    }
+    try:
+        fig.savefig(tmp, format="png", dpi=DPI, metadata=meta)
+        os.replace(tmp, out)
+    finally:
+        if tmp.exists():
+            tmp.unlink()
+    return out
+
+
+def _trim_vertical_slack(fig: Figure, ax) -> None:
+    """Shrink the figure height by the empty band a fixed-aspect map leaves above/below it."""
+    try:
+        fig.draw_without_rendering()
+        orig = ax.get_position(original=True)
+        act = ax.get_position(original=False)
+        w, h = fig.get_size_inches()
+        slack = (orig.height - act.height) * h
+        if slack > 0.08:
+            new_h = max(h - slack + 0.42, 3.0)  # the title sits in the slack band before trimming
+            fig.set_size_inches(w, new_h)
+            foot = 0.22 / new_h
+            fig.get_layout_engine().set(rect=(0.0, foot, 1.0, 1.0 - foot))
+    except Exception:  # noqa: BLE001 - cosmetic only
+        pass
+
+
+def _software() -> str:
+    return f"tsunamifocus {__version__}"
+
+
+def _iter_lines(obj: Any) -> Iterable[np.ndarray]:
+    """Yield (N, 2) coordinate arrays from shapely geometries, arrays or sequences of them."""
+    if obj is None:
+        return
+    if isinstance(obj, pd.DataFrame):
+        if "geometry" not in obj.columns:
+            raise InputError("line table: expected a 'geometry' column of shapely geometries")
+        for g in obj["geometry"]:
+            yield from _iter_lines(g)
+        return
+    if hasattr(obj, "geom_type"):
+        gt = obj.geom_type
+        if obj.is_empty:
+            return
+        if gt in ("LineString", "LinearRing"):
+            yield np.asarray(obj.coords, dtype=float)[:, :2]
+        elif gt == "Polygon":
+            yield np.asarray(obj.exterior.coords, dtype=float)[:, :2]
+            for ring in obj.interiors:
+                yield np.asarray(ring.coords, dtype=float)[:, :2]
+        elif gt.startswith("Multi") or gt == "GeometryCollection":
+            for g in obj.geoms:
+                yield from _iter_lines(g)
+        elif gt == "Point":
+            return
+        else:
+            raise InputError(f"line geometry: unsupported geometry type '{gt}'")
+        return
+    if isinstance(obj, np.ndarray) and obj.ndim == 2 and obj.shape[1] >= 2 and obj.dtype != object:
+        yield np.asarray(obj, dtype=float)[:, :2]
+        return
+    if isinstance(obj, np.ndarray) and obj.ndim == 3 and obj.shape[2] >= 2:
+        for a in obj:
+            yield np.asarray(a, dtype=float)[:, :2]
+        return
+    if isinstance(obj, (list, tuple)):
+        for item in obj:
+            yield from _iter_lines(item)
+        return
+    raise InputError(f"line geometry: expected shapely geometries or (N, 2) arrays, got {type(obj).__name__}")
+
+
+def _normalize_paths(paths: Any) -> list[np.ndarray]:
+    """Turn ray paths into a list of (N, 2) arrays (NaN-separated pieces are split).
+
+    Accepted: an :class:`xarray.Dataset` with variables ``x``, ``y`` on dims ``(ray, step)``
+    (NaN padded), a dict with ``x``/``y`` 2-D arrays, a 3-D array ``(ray, step, 2)``, a
+    sequence of ``(N, 2)`` arrays, of ``(xs, ys)`` pairs, or of shapely LineStrings.
+    """
+    if paths is None:
+        return []
+    out: list[np.ndarray] = []
+    if isinstance(paths, (xr.Dataset, dict)) and "x" in paths and "y" in paths:
+        xs = np.atleast_2d(np.asarray(paths["x"], dtype=float))
+        ys = np.atleast_2d(np.asarray(paths["y"], dtype=float))
+        if xs.shape != ys.shape:
+            raise InputError(f"ray paths: x and y shapes differ ({xs.shape} vs {ys.shape})")
+        arrays = [np.column_stack([a, b]) for a, b in zip(xs, ys, strict=True)]
+    elif (
+        isinstance(paths, (list, tuple))
+        and paths
+        and isinstance(paths[0], (list, tuple))
+        and len(paths[0]) == 2
+        and np.ndim(paths[0][0]) == 1
+        and np.size(paths[0][0]) != 2
+    ):
+        arrays = [np.column_stack([np.asarray(a, float), np.asarray(b, float)]) for a, b in paths]
+    else:
+        arrays = list(_iter_lines(paths))
+    for a in arrays:
+        good = np.all(np.isfinite(a), axis=1)
+        if good.all():
+            if len(a) >= 2:
+                out.append(a)
+            continue
+        # split at NaN gaps
+        idx = np.flatnonzero(np.diff(np.concatenate([[0], good.astype(int), [0]])))
+        for s, e in zip(idx[0::2], idx[1::2], strict=True):
+            if e - s >= 2:
+                out.append(a[s:e])
+    return out
+
+
+def _split_wrap(line: np.ndarray, geographic: bool) -> list[np.ndarray]:
+    """Split a lon/lat line where it jumps across the seam (> 180 degrees)."""
+    if not geographic or len(line) < 2:
+        return [line]
+    jumps = np.flatnonzero(np.abs(np.diff(line[:, 0])) > 180.0)
+    if jumps.size == 0:
+        return [line]
+    return [p for p in np.split(line, jumps + 1) if len(p) >= 2]
+
+
+def _draw_lines(ax, obj, geographic: bool, **kw) -> int:
+    segs = []
+    for a in _iter_lines(obj):
+        segs.extend(_split_wrap(a, geographic))
+    if segs:
+        ax.add_collection(LineCollection(segs, **kw))
+    return len(segs)
+
+
+def _land_and_nodata(ax, depth: xr.DataArray, info: GridInfo, zorder: float = 2) -> tuple[bool, bool]:
+    """Paint land (depth <= 0) and no-data cells; returns (has_land, has_nodata)."""
+    d = _values(depth)
+    land = np.isfinite(d) & (d <= 0)
+    nod = ~np.isfinite(d)
+    rgba = np.zeros(d.shape + (4,))
+    if land.any():
+        rgba[land] = mcolors.to_rgba(_LAND)
+    if nod.any():
+        rgba[nod] = mcolors.to_rgba(_NODATA)
+    if land.any() or nod.any():
+        ax.imshow(rgba, origin="lower", extent=_extent(info), interpolation="nearest", zorder=zorder)
+    return bool(land.any()), bool(nod.any())
+
+
+def _coast_contour(ax, depth: xr.DataArray, info: GridInfo, zorder: float = 6) -> None:
+    """Draw the 0 m depth contour (the grid's own shoreline) when the grid has land and sea."""
+    d = _values(depth)
+    fin = d[np.isfinite(d)]
+    if fin.size and fin.min() <= 0 < fin.max():
+        xd = depth.dims[1]
+        yd = depth.dims[0]
+        ax.contour(
+            depth[xd].values, depth[yd].values, d, levels=[0.0], colors="0.15", linewidths=0.7, zorder=zorder
+        )
+
+
+def _finite_pos(a: np.ndarray) -> np.ndarray:
+    a = np.asarray(a, dtype=float)
+    return a[np.isfinite(a) & (a > 0)]
+
+
+def _land_legend_handles(has_land: bool, has_nodata: bool) -> list:
+    h = []
+    if has_land:
+        h.append(Patch(facecolor=_LAND, edgecolor="0.3", linewidth=0.5, label="Land"))
+    if has_nodata:
+        h.append(Patch(facecolor=_NODATA, edgecolor="0.3", linewidth=0.5, label="No data"))
+    return h
+
+
+# --------------------------------------------------------------------------------------
+# ray field
+# --------------------------------------------------------------------------------------
+
+
+@_styled
+def plot_ray_field(
+    depth: xr.DataArray,
+    energy: xr.DataArray | None,
+    paths: Any = None,
+    coast_lines: Any = None,
+    source_outline: Any = None,
+    *,
+    out_path: str | os.PathLike,
+    title: str = "Ray field over the bathymetry",
+    max_paths: int = 600,
+    coast_label: str = "Coastline",
+) -> pathlib.Path:
+    """Map of the ray field (branches) over the bathymetry.
+
+    Parameters
+    ----------
+    depth : xarray.DataArray
+        Depth grid [m], positive down, NaN = no data, land where depth <= 0.
+    energy : xarray.DataArray or None
+        Accumulated ray energy on a grid of the same CRS kind [J m-1] (energy per unit
+        wavefront width); drawn on a log scale, transparent where small. None = no overlay.
+    paths : optional
+        Decimated ray paths in the grid CRS (see :func:`_normalize_paths` for the accepted
+        layouts); drawn as thin lines with alpha. At most ``max_paths`` are drawn.
+    coast_lines : optional
+        Coastline geometries (shapely lines/polygons, (N, 2) arrays or a DataFrame with a
+        ``geometry`` column) in the grid CRS.
+    source_outline : optional
+        Fault outlines (shapely polygons or rings) in the grid CRS.
+    out_path : str or os.PathLike
+        PNG file to write.
+    title : str
+        Figure title.
+    max_paths : int
+        Upper bound on drawn paths (evenly decimated).
+    coast_label : str
+        Legend entry of ``coast_lines`` (e.g. "Coast segments (stop isobath)").
+
+    Returns
+    -------
+    pathlib.Path
+        The written PNG.
+    """
+    info = _check_grid(depth, "plot_ray_field depth")
+    if energy is None and paths is None:
+        raise InputError("plot_ray_field: give an energy grid or ray paths (both are None)")
+    fig, ax, geo = _new_map(info, title)
+    d = _values(depth)
+    sea = np.where(np.isfinite(d) & (d > 0), d, np.nan)
+    dmax = float(np.nanmax(sea)) if np.isfinite(sea).any() else 1.0
+    bathy_cmap = mcolors.LinearSegmentedColormap.from_list("bathy_greys", ["#f2f2f2", "#8a8a8a"])
+    im = ax.imshow(
+        sea,
+        origin="lower",
+        extent=_extent(info),
+        cmap=bathy_cmap,
+        vmin=0.0,
+        vmax=dmax,
+        interpolation="nearest",
+        zorder=1,
+    )
+    has_land, has_nodata = _land_and_nodata(ax, depth, info)
+    _coast_contour(ax, depth, info)
+    handles = _land_legend_handles(has_land, has_nodata)
+    n_right = 0
+    if energy is not None:
+        einfo = _check_grid(energy, "plot_ray_field energy")
+        _same_kind(info, einfo, "plot_ray_field energy")
+        e = _values(energy)
+        pos = _finite_pos(e)
+        if pos.size:
+            vmax = float(np.percentile(pos, 99.5))
+            vmin = max(float(np.percentile(pos, 5.0)), vmax * 1e-4)
+            if not vmax > vmin:
+                vmin = vmax / 10.0
+            norm = mcolors.LogNorm(vmin=vmin, vmax=vmax, clip=True)
+            cmap = _cmap("magma_r")
+            with np.errstate(invalid="ignore", divide="ignore"):
+                t = np.where(np.isfinite(e) & (e > 0), norm(np.where(e > 0, e, vmin)), 0.0)
+            t = np.clip(np.ma.filled(t, 0.0), 0.0, 1.0)
+            rgba = cmap(t)
+            rgba[..., 3] = np.where(np.isfinite(e) & (e > 0), 0.15 + 0.85 * t**0.8, 0.0)
+            ax.imshow(rgba, origin="lower", extent=_extent(einfo), interpolation="nearest", zorder=3)
+            from matplotlib.cm import ScalarMappable
+
+            sm = ScalarMappable(norm=norm, cmap=cmap)
+            cb = _right_colorbar(fig, ax, sm, extend="both")
+            cb.set_label("Ray energy per unit wavefront width\n(J m$^{-1}$, log scale)")
+            n_right += 1
+    lines = _normalize_paths(paths)
+    if lines:
+        if len(lines) > max_paths:
+            keep = np.linspace(0, len(lines) - 1, max_paths).round().astype(int)
+            lines = [lines[i] for i in keep]
+        segs = []
+        for a in lines:
+            if info.geographic:  # paths carry longitudes unwrapped along the ray
+                a = np.column_stack([info.wrap_lon(a[:, 0]), a[:, 1]])
+            segs.extend(_split_wrap(a, info.geographic))
+        color = _OKABE_BLUE if energy is not None else "#1b3a5c"
+        # fainter lines when there are many, so the energy branches stay visible
+        alpha = float(np.clip(6.0 / math.sqrt(len(lines)), 0.12, 0.5)) * (0.8 if energy is not None else 1.0)
+        lw = 0.45 if len(lines) <= 300 else 0.35
+        ax.add_collection(LineCollection(segs, colors=color, linewidths=lw, alpha=alpha, zorder=4))
+        handles.append(
+            Line2D([], [], color=color, lw=1.0, alpha=0.8, label=f"Ray paths ({len(lines)} shown)")
+        )
+    if coast_lines is not None and _draw_lines(
+        ax, coast_lines, info.geographic, colors="black", linewidths=0.9, zorder=7
+    ):
+        handles.append(Line2D([], [], color="black", lw=1.0, label=coast_label))
+    if source_outline is not None and _draw_lines(
+        ax,
+        source_outline,
+        info.geographic,
+        colors=_OKABE_GREEN,
+        linewidths=1.8,
+        zorder=8,
+        path_effects=_HALO,
+    ):
+        handles.append(Line2D([], [], color=_OKABE_GREEN, lw=1.8, label="Fault outline"))
+    cbd = fig.colorbar(im, ax=ax, shrink=0.55, pad=0.01, location="bottom", aspect=35)
+    cbd.set_label("Water depth (m)")
+    return _finish(fig, out_path, ax=ax, geo=geo, handles=handles, right_cbars=n_right, bottom_cbars=1)
+
+
+def _cmap(name: str):
+    import matplotlib
+
+    return matplotlib.colormaps[name]
+
+
+# --------------------------------------------------------------------------------------
+# lensing map
+# --------------------------------------------------------------------------------------
+
+
+def _symmetric_log_range(values: Sequence[np.ndarray]) -> float:
+    """Half-range r (> 1) of a log colour scale [1/r, r] covering the 2-98 % of the data."""
+    allv = np.concatenate([_finite_pos(v).ravel() for v in values]) if values else np.array([])
+    if allv.size == 0:
+        return 2.0
+    lg = np.abs(np.log10(allv))
+    m = float(np.percentile(lg, 98.0))
+    for r in (1.5, 2.0, 3.0, 5.0, 10.0, 20.0, 50.0, 100.0):
+        if math.log10(r) >= m:
+            return r
+    return 100.0
+
+
+def _log_ticks(r: float) -> list[float]:
+    base = [1.0, 1.5, 2.0, 3.0, 5.0, 10.0, 20.0, 50.0, 100.0]
+    up = [b for b in base if b <= r * 1.0001]
+    if len(up) > 5:
+        up = [b for b in up if b in (1.0, 2.0, 5.0, 10.0, 20.0, 50.0, 100.0) or b == up[-1]]
+    down = sorted({1.0 / b for b in up if b > 1.0})
+    return down + up
+
+
+def _tick_label(v: float) -> str:
+    if v >= 1:
+        return f"{v:g}"
+    s = f"{v:.2f}".rstrip("0").rstrip(".")
+    return s
+
+
+def _nice_time_step(tmax_min: float) -> float:
+    for s in (1, 2, 5, 10, 15, 20, 30, 60, 120, 180, 240, 360, 720):
+        if tmax_min / s <= 12:
+            return float(s)
+    return 1440.0
+
+
+def _rank_order(segments: pd.DataFrame, by: str, rank_col: str | None) -> pd.DataFrame:
+    df = segments.copy()
+    if rank_col and rank_col in df.columns and df[rank_col].notna().any():
+        df = df.assign(_r=pd.to_numeric(df[rank_col], errors="coerce"))
+        df = df.sort_values(["_r", by], ascending=[True, False], na_position="last")
+        df["_rank"] = df["_r"]
+        df = df.drop(columns="_r")
+    else:
+        df = df.sort_values(by, ascending=False, na_position="last")
+        df["_rank"] = np.arange(1, len(df) + 1, dtype=float)
+    return df
+
+
+def _check_segments(segments: Any, needed: Sequence[str], what: str) -> pd.DataFrame:
+    if not isinstance(segments, pd.DataFrame):
+        raise InputError(f"{what}: expected a pandas DataFrame of segments, got {type(segments).__name__}")
+    missing = [c for c in needed if c not in segments.columns]
+    if missing:
+        raise InputError(f"{what}: segments table lacks column(s) {missing}; has {list(segments.columns)}")
+    return segments
+
+
+@_styled
+def plot_lensing_map(
+    depth: xr.DataArray,
+    lensing_factor: xr.DataArray,
+    travel_time_min: xr.DataArray | None,
+    segments: pd.DataFrame | None,
+    top_k: int = 10,
+    *,
+    out_path: str | os.PathLike,
+    title: str = "Lensing factor, travel time and ranked coast segments",
+    source_outline: Any = None,
+    contour_step_min: float | None = None,
+) -> pathlib.Path:
+    """Lensing-factor map with travel-time contours and the ranked coastline segments.
+
+    Parameters
+    ----------
+    depth : xarray.DataArray
+        Depth grid [m], positive down (land painted where depth <= 0).
+    lensing_factor : xarray.DataArray
+        Lensing factor [-] (1 = no focusing); drawn on a log scale with a diverging colour
+        map centred at 1.
+    travel_time_min : xarray.DataArray or None
+        First-arrival travel time [min]; labelled contours.
+    segments : pandas.DataFrame or None
+        Segments table (columns ``geometry``, ``lensing_factor``, ``x_mid``, ``y_mid``,
+        optional ``rank_lensing``, ``normal_azimuth_deg``, ``segment_id``).
+    top_k : int
+        Number of top-ranked segments labelled by rank.
+    out_path : str or os.PathLike
+        PNG file to write.
+    title : str
+        Figure title.
+    source_outline : optional
+        Fault outlines in the grid CRS.
+    contour_step_min : float, optional
+        Contour interval [min]; chosen automatically (about 6-12 contours) when None.
+
+    Returns
+    -------
+    pathlib.Path
+    """
+    info = _check_grid(depth, "plot_lensing_map depth")
+    linfo = _check_grid(lensing_factor, "plot_lensing_map lensing_factor")
+    _same_kind(info, linfo, "plot_lensing_map lensing_factor")
+    if top_k < 0:
+        raise InputError(f"plot_lensing_map: top_k must be >= 0, got {top_k}")
+    fig, ax, geo = _new_map(info, title)
+    lf = _values(lensing_factor)
+    seg_vals = []
+    if segments is not None:
+        _check_segments(segments, ["geometry", "lensing_factor"], "plot_lensing_map")
+        seg_vals.append(pd.to_numeric(segments["lensing_factor"], errors="coerce").to_numpy(float))
+    # colour range: the raster's 2-98 % and most segment values (the few strongest segments may
+    # saturate at the ends of the scale, which the colour bar's arrows show; ranks are labelled)
+    r = _symmetric_log_range([lf])
+    for sv in seg_vals:
+        pos = _finite_pos(sv)
+        if pos.size:
+            m = float(np.percentile(np.abs(np.log10(pos)), 75.0))
+            r = max(r, _symmetric_log_range([np.array([10.0**m])]))
+    norm = mcolors.LogNorm(vmin=1.0 / r, vmax=r, clip=False)
+    cmap = _cmap("PuOr_r").with_extremes(bad=(0.0, 0.0, 0.0, 0.0))
+    lf_plot = np.where(np.isfinite(lf) & (lf > 0), lf, np.nan)
+    ax.add_patch(Rectangle((0, 0), 1, 1, transform=ax.transAxes, facecolor="0.93", zorder=0))
+    im = ax.imshow(
+        np.ma.masked_invalid(lf_plot),
+        origin="lower",
+        extent=_extent(linfo),
+        cmap=cmap,
+        norm=norm,
+        interpolation="nearest",
+        zorder=1,
+    )
+    has_land, has_nodata = _land_and_nodata(ax, depth, info)
+    _coast_contour(ax, depth, info)
+    handles = _land_legend_handles(has_land, has_nodata)
+    handles.append(Patch(facecolor="0.93", edgecolor="0.3", linewidth=0.5, label="No rays"))
+    cb = _right_colorbar(fig, ax, im, extend="both")
+    ticks = _log_ticks(r)
+    cb.ax.yaxis.set_major_locator(FixedLocator(ticks))
+    cb.ax.yaxis.set_major_formatter(FuncFormatter(lambda v, _: _tick_label(v)))
+    cb.ax.yaxis.set_minor_formatter(NullFormatter())
+    cb.set_label("Lensing factor (-), log scale\n1 = no focusing")
+
+    if travel_time_min is not None:
+        tinfo = _check_grid(travel_time_min, "plot_lensing_map travel_time_min")
+        _same_kind(info, tinfo, "plot_lensing_map travel_time_min")
+        t = _contour_ready(_values(travel_time_min))
+        if np.isfinite(t).sum() > 3:
+            tmax = float(np.nanmax(t))
+            tmin = float(np.nanmin(t))
+            step = contour_step_min or _nice_time_step(tmax - max(tmin, 0.0))
+            levels = np.arange(math.ceil(max(tmin, 0.0) / step) * step, tmax + 1e-9, step)
+            levels = levels[levels > 0]
+            if levels.size:
+                xd, yd = travel_time_min.dims[1], travel_time_min.dims[0]
+                cs = ax.contour(
+                    travel_time_min[xd].values,
+                    travel_time_min[yd].values,
+                    t,
+                    levels=levels,
+                    colors="0.1",
+                    linewidths=0.7,
+                    zorder=5,
+                )
+                labels = ax.clabel(
+                    cs, fmt=lambda v: f"{v:g} min", fontsize=7.5, inline=True, inline_spacing=3
+                )
+                for lab in labels:
+                    lab.set_path_effects(_HALO)
+                handles.append(Line2D([], [], color="0.1", lw=0.8, label=f"Travel time (every {step:g} min)"))
+
+    if source_outline is not None and _draw_lines(
+        ax, source_outline, info.geographic, colors=_OKABE_GREEN, linewidths=1.8, zorder=8, path_effects=_HALO
+    ):
+        handles.append(Line2D([], [], color=_OKABE_GREEN, lw=1.8, label="Fault outline"))
+
+    if segments is not None and len(segments):
+        segs, cols = [], []
+        for geom, val in zip(segments["geometry"], seg_vals[0], strict=True):
+            for a in _iter_lines(geom):
+                for piece in _split_wrap(a, info.geographic):
+                    segs.append(piece)
+                    cols.append(val)
+        if segs:
+            cols_arr = np.asarray(cols, dtype=float)
+            rgba = cmap(norm(np.where(np.isfinite(cols_arr) & (cols_arr > 0), cols_arr, 1.0)))
+            rgba[~(np.isfinite(cols_arr) & (cols_arr > 0))] = mcolors.to_rgba("0.6")
+            lc = LineCollection(
+                segs,
+                colors=rgba,
+                linewidths=4.0,
+                zorder=9,
+                path_effects=[patheffects.withStroke(linewidth=6.0, foreground="black")],
+                capstyle="butt",
+            )
+            ax.add_collection(lc)
+            handles.append(
+                Line2D(
+                    [],
+                    [],
+                    color=cmap(norm(min(r, 2.0))),
+                    lw=4,
+                    path_effects=[patheffects.withStroke(linewidth=6.0, foreground="black")],
+                    label="Coast segment (colour = lensing factor)",
+                )
+            )
+        if top_k > 0:
+            ranked = _rank_order(segments, "lensing_factor", "rank_lensing")
+            ranked = ranked[ranked["_rank"].notna() & (ranked["_rank"] <= top_k)].head(top_k)
+            placed: list[tuple[float, float]] = []  # label centres, in points from the axes origin
+            xmin_, xmax_, ymin_, ymax_ = _extent(info)
+            pts_per_unit = 72.0 * (8.0 - 0.9 - 0.95) / max(xmax_ - xmin_, 1e-12)  # see _finish sizing
+            yscale = pts_per_unit * getattr(ax, "_tf_aspect", 1.0)
+            for _, row in ranked.iterrows():
+                xm, ym = _segment_mid(row)
+                if xm is None:
+                    continue
+                az = row.get("normal_azimuth_deg", np.nan)
+                az = float(az) if az is not None and np.isfinite(az) else 0.0
+                box = (xmax_ - xmin_) * pts_per_unit, (ymax_ - ymin_) * yscale
+                off = _label_offset(((xm - xmin_) * pts_per_unit, (ym - ymin_) * yscale), az, placed, box=box)
+                ax.annotate(
+                    f"{int(row['_rank'])}",
+                    xy=(xm, ym),
+                    xytext=off,
+                    textcoords="offset points",
+                    ha="center",
+                    va="center",
+                    fontsize=8,
+                    fontweight="bold",
+                    bbox=dict(boxstyle="circle,pad=0.25", facecolor="white", edgecolor="black", lw=0.7),
+                    arrowprops=dict(arrowstyle="-", color="black", lw=0.7, shrinkA=0, shrinkB=0),
+                    zorder=12,
+                    annotation_clip=True,
+                )
+            if len(ranked):
+                handles.append(
+                    Line2D(
+                        [],
+                        [],
+                        marker="o",
+                        linestyle="none",
+                        markerfacecolor="white",
+                        markeredgecolor="black",
+                        markersize=9,
+                        label=f"Rank (top {min(top_k, len(ranked))})",
+                    )
+                )
+    return _finish(fig, out_path, ax=ax, geo=geo, handles=handles, right_cbars=1)
+
+
+def _label_offset(
+    anchor_pt: tuple[float, float],
+    azimuth_deg: float,
+    placed: list[tuple[float, float]],
+    min_sep: float = 15.0,
+    box: tuple[float, float] | None = None,
+) -> tuple[float, float]:
+    """Offset [points] of a rank label, clear of the labels already placed.
+
+    Seaward along the normal first, then pushed out or turned to avoid labels already placed
+    (greedy, rank order) and to stay inside ``box`` (width, height in points, origin at the
+    lower left); the chosen centre is appended to ``placed``.
+    """
+    best = None
+    for dist in (16.0, 30.0, 44.0, 58.0, 72.0):
+        for turn in (0.0, -35.0, 35.0, -70.0, 70.0, -110.0, 110.0):
+            a = math.radians(azimuth_deg + turn)
+            off = (dist * math.sin(a), dist * math.cos(a))
+            c = (anchor_pt[0] + off[0], anchor_pt[1] + off[1])
+            if box is not None and not (8.0 <= c[0] <= box[0] - 8.0 and 8.0 <= c[1] <= box[1] - 8.0):
+                continue
+            gap = min((math.hypot(c[0] - p[0], c[1] - p[1]) for p in placed), default=1e9)
+            if gap >= min_sep:
+                placed.append(c)
+                return off
+            if best is None or gap > best[0]:
+                best = (gap, off, c)
+    if best is None:  # nowhere inside the box: plain seaward offset
+        a = math.radians(azimuth_deg)
+        best = (0.0, (16.0 * math.sin(a), 16.0 * math.cos(a)), (anchor_pt[0], anchor_pt[1]))
+    placed.append(best[2])
+    return best[1]
+
+
+def _segment_mid(row: pd.Series) -> tuple[float | None, float | None]:
+    xm, ym = row.get("x_mid", np.nan), row.get("y_mid", np.nan)
+    if xm is not None and ym is not None and np.isfinite(xm) and np.isfinite(ym):
+        return float(xm), float(ym)
+    geom = row.get("geometry")
+    if geom is not None and hasattr(geom, "interpolate") and not geom.is_empty:
+        p = geom.interpolate(0.5, normalized=True)
+        return float(p.x), float(p.y)
+    return None, None
+
+
+# --------------------------------------------------------------------------------------
+# ranking chart
+# --------------------------------------------------------------------------------------
+
+#: Known ranking quantities: column -> (lower column, upper column, rank column, axis label, reference)
+RANK_FIELDS: dict[str, tuple[str, str, str, str, float | None]] = {
+    "lensing_factor": ("lensing_lo", "lensing_hi", "rank_lensing", "Lensing factor (-)", 1.0),
+    "amp_1m_m": ("amp_lo", "amp_hi", "rank_amplitude", "Indicative amplitude at 1 m depth (m)", None),
+    "amp_stop_m": (
+        "amp_lo",
+        "amp_hi",
+        "rank_amplitude",
+        "Indicative amplitude at the stop isobath (m)",
+        None,
+    ),
+}
+
+
+@_styled
+def plot_ranking(
+    segments: pd.DataFrame,
+    top_k: int = 10,
+    *,
+    out_path: str | os.PathLike,
+    by: str = "lensing_factor",
+    lo_col: str | None = None,
+    hi_col: str | None = None,
+    title: str | None = None,
+    xlabel: str | None = None,
+    prob_col: str | None = None,
+) -> pathlib.Path:
+    """Horizontal bar chart of the top-k segments with 5-95 % uncertainty bars.
+
+    Parameters
+    ----------
+    segments : pandas.DataFrame
+        Segments table with columns ``segment_id``, ``by`` and, where available, ``name``,
+        the interval columns and ``reliable`` (bool). Unreliable segments are drawn grey and
+        hatched.
+    top_k : int
+        Number of segments shown (rank 1 at the top).
+    out_path : str or os.PathLike
+        PNG file to write.
+    by : str
+        Ranked quantity: ``"lensing_factor"`` [-], ``"amp_1m_m"`` or ``"amp_stop_m"`` [m], or
+        any numeric column (then give ``lo_col``/``hi_col`` for intervals).
+    lo_col, hi_col : str, optional
+        Interval columns; default from :data:`RANK_FIELDS`.
+    title, xlabel : str, optional
+        Figure title and x-axis label (defaults from ``by``).
+    prob_col : str, optional
+        Column holding the ensemble probability [0-1] of being among the top k; printed beside
+        each value as ``P(top k) = ...``.
+
+    Returns
+    -------
+    pathlib.Path
+    """
+    if top_k < 1:
+        raise InputError(f"plot_ranking: top_k must be >= 1, got {top_k}")
+    _check_segments(segments, ["segment_id", by], "plot_ranking")
+    lo_d, hi_d, rank_col, label_d, ref = RANK_FIELDS.get(by, (None, None, None, by, None))
+    lo_col = lo_col or lo_d
+    hi_col = hi_col or hi_d
+    df = _rank_order(segments, by, rank_col)
+    df = df[pd.to_numeric(df[by], errors="coerce").notna()].head(top_k)
+    if df.empty:
+        raise InputError(f"plot_ranking: column '{by}' has no finite values")
+    n = len(df)
+    fig, ax = _new_chart(
+        (7.6, 1.7 + 0.36 * n), title or f"Top {n} coastline segments by {label_d.split(' (')[0].lower()}"
+    )
+    vals = pd.to_numeric(df[by], errors="coerce").to_numpy(float)
+    if "reliable" in df.columns:  # missing/unknown reliability counts as unreliable
+        rel = np.array(
+            [bool(v) if v is not None and v is not pd.NA and v == v else False for v in df["reliable"]]
+        )
+    else:
+        rel = np.ones(n, bool)
+    ypos = np.arange(n)[::-1]
+    colors = np.where(rel, _OKABE_BLUE, "#c8c8c8")
+    bars = ax.barh(ypos, vals, height=0.62, color=colors, edgecolor="0.25", linewidth=0.6, zorder=2)
+    for b, ok in zip(bars, rel, strict=True):
+        if not ok:
+            b.set_hatch("///")
+    has_int = lo_col in df.columns and hi_col in df.columns if lo_col and hi_col else False
+    xmax = np.nanmax(vals)
+    if has_int:
+        lo = pd.to_numeric(df[lo_col], errors="coerce").to_numpy(float)
+        hi = pd.to_numeric(df[hi_col], errors="coerce").to_numpy(float)
+        ok = np.isfinite(lo) & np.isfinite(hi)
+        if ok.any():
+            err = np.vstack([np.clip(vals - lo, 0, None), np.clip(hi - vals, 0, None)])
+            ax.errorbar(
+                vals[ok],
+                ypos[ok],
+                xerr=err[:, ok],
+                fmt="none",
+                ecolor="black",
+                elinewidth=1.1,
+                capsize=3.5,
+                zorder=3,
+            )
+            xmax = max(xmax, np.nanmax(hi[ok]))
+    ends = vals.copy()
+    if has_int:
+        ends = np.where(np.isfinite(hi), np.maximum(vals, hi), vals)
+    span = xmax if xmax > 0 else 1.0
+    if prob_col is not None and prob_col not in df.columns:
+        raise InputError(f"plot_ranking: prob_col '{prob_col}' is not a column of the segments table")
+    probs = pd.to_numeric(df[prob_col], errors="coerce").to_numpy(float) if prob_col else np.full(n, np.nan)
+    for yv, v, e_, pr in zip(ypos, vals, ends, probs, strict=True):
+        txt = f"{v:.3g}" + (f"   P(top {top_k}) = {pr:.2f}" if np.isfinite(pr) else "")
+        ax.text(e_ + 0.015 * span, yv, txt, va="center", ha="left", fontsize=8, color="0.15", zorder=4)
+    labels = [_bar_label(row["segment_id"], row.get("name", ""), row["_rank"]) for _, row in df.iterrows()]
+    ax.set_yticks(ypos)
+    ax.set_yticklabels(labels)
+    ax.set_ylim(-0.7, n - 0.3)
+    ax.set_xlim(0, (xmax * (1.45 if prob_col else 1.14)) if xmax > 0 else 1.0)
+    ax.set_xlabel(xlabel or label_d)
+    ax.grid(True, axis="x", color="0.85", linewidth=0.6, zorder=0)
+    ax.set_axisbelow(True)
+    handles = [Patch(facecolor=_OKABE_BLUE, edgecolor="0.25", label="Reliable")]
+    if (~rel).any():
+        handles.append(
+            Patch(facecolor="#c8c8c8", edgecolor="0.25", hatch="///", label="Unreliable (see table)")
+        )
+    if has_int:
+        handles.append(
+            Line2D([], [], color="black", lw=1.1, marker="|", markersize=8, label="5-95 % interval")
+        )
+    if ref is not None:
+        ax.axvline(ref, color=_OKABE_VERMILLION, linestyle="--", linewidth=1.2, zorder=3)
+        handles.append(
+            Line2D([], [], color=_OKABE_VERMILLION, linestyle="--", lw=1.2, label=f"{ref:g} = no focusing")
+        )
+    leg = ax.legend(handles=handles, loc="lower right", framealpha=0.9, fontsize=8)
+    leg.set_zorder(10)
+    return _finish(fig, out_path, ax=ax)
+
+
+def _bar_label(segment_id: Any, name: Any, rank: Any) -> str:
+    """``"1. S0001  Harbour"``; no name part for None/NaN/empty names or a name equal to the id."""
+    sid = str(segment_id)
+    nm = name.strip() if isinstance(name, str) else ""
+    try:
+        rk = float(rank)
+    except (TypeError, ValueError):
+        rk = math.nan
+    rk_s = f"{int(rk)}." if np.isfinite(rk) else "-"
+    lab = f"{rk_s} {sid}" + (f"  {nm}" if nm and nm != sid else "")
+    return lab if len(lab) <= 34 else lab[:33] + "…"
+
+
+# --------------------------------------------------------------------------------------
+# source uplift
+# --------------------------------------------------------------------------------------
+
+
+@_styled
+def plot_uplift(
+    eta: xr.DataArray,
+    *,
+    out_path: str | os.PathLike,
+    title: str = "Initial sea-surface displacement (Okada 1985)",
+    depth: xr.DataArray | None = None,
+    source_outline: Any = None,
+    coast_lines: Any = None,
+    crop: bool = True,
+) -> pathlib.Path:
+    """Map of the initial sea-surface displacement of the source.
+
+    Parameters
+    ----------
+    eta : xarray.DataArray
+        Vertical displacement [m], positive up, on a grid following the convention.
+    out_path : str or os.PathLike
+        PNG file to write.
+    title : str
+        Figure title.
+    depth : xarray.DataArray, optional
+        Depth grid [m] of the same CRS kind; land is painted and the 0 m contour drawn.
+    source_outline, coast_lines : optional
+        Fault outlines / coastlines in the grid CRS.
+    crop : bool
+        Zoom on the deformed area (|eta| >= 1 % of its maximum, padded by half its size).
+
+    Returns
+    -------
+    pathlib.Path
+    """
+    _check_grid(eta, "plot_uplift eta")
+    e = _values(eta)
+    if not np.isfinite(e).any():
+        raise InputError("plot_uplift: eta has no finite values")
+    if crop:
+        eta = _crop_to_signal(eta, np.abs(np.nan_to_num(e)) >= 0.01 * np.nanmax(np.abs(e)))
+        if depth is not None:
+            yd0, xd0 = eta.dims
+            depth = depth.sel(
+                {
+                    xd0: slice(float(eta[xd0][0]), float(eta[xd0][-1])),
+                    yd0: slice(float(eta[yd0][0]), float(eta[yd0][-1])),
+                }
+            )
+            if depth.shape[0] < 2 or depth.shape[1] < 2:
+                depth = None
+        e = _values(eta)
+    info = _check_grid(eta, "plot_uplift eta")
+    fig, ax, geo = _new_map(info, title)
+    m = float(np.nanmax(np.abs(e)))
+    m = m if m > 0 else 1.0
+    norm = mcolors.TwoSlopeNorm(vcenter=0.0, vmin=-m, vmax=m)
+    im = ax.imshow(
+        e,
+        origin="lower",
+        extent=_extent(info),
+        cmap=_cmap("RdBu_r"),
+        norm=norm,
+        interpolation="nearest",
+        zorder=1,
+    )
+    handles: list = []
+    if depth is not None:
+        dinfo = _check_grid(depth, "plot_uplift depth")
+        _same_kind(info, dinfo, "plot_uplift depth")
+        d = _values(depth)
+        land = np.isfinite(d) & (d <= 0)
+        if land.any():
+            rgba = np.zeros(d.shape + (4,))
+            rgba[land] = mcolors.to_rgba(_LAND, alpha=0.55)
+            ax.imshow(rgba, origin="lower", extent=_extent(dinfo), interpolation="nearest", zorder=2)
+            handles.append(Patch(facecolor=_LAND, alpha=0.55, edgecolor="0.3", label="Land (shaded)"))
+        _coast_contour(ax, depth, dinfo)
+    xd, yd = eta.dims[1], eta.dims[0]
+    lev = _nice_length(m / 3.0)
+    levels = np.concatenate([-np.arange(lev, m + 1e-12, lev)[::-1], np.arange(lev, m + 1e-12, lev)])
+    if levels.size:
+        ax.contour(eta[xd].values, eta[yd].values, e, levels=levels, colors="0.2", linewidths=0.5, zorder=4)
+        handles.append(Line2D([], [], color="0.2", lw=0.6, label=f"Contours every {lev:g} m"))
+    if coast_lines is not None and _draw_lines(
+        ax, coast_lines, info.geographic, colors="black", linewidths=0.9, zorder=6
+    ):
+        handles.append(Line2D([], [], color="black", lw=1.0, label="Coastline"))
+    if source_outline is not None and _draw_lines(
+        ax, source_outline, info.geographic, colors=_OKABE_GREEN, linewidths=1.8, zorder=7, path_effects=_HALO
+    ):
+        handles.append(Line2D([], [], color=_OKABE_GREEN, lw=1.8, label="Fault outline (surface projection)"))
+    jmax = np.unravel_index(np.nanargmax(e), e.shape)
+    jmin = np.unravel_index(np.nanargmin(e), e.shape)
+    xs, ys = eta[xd].values, eta[yd].values
+    ax.plot(xs[jmax[1]], ys[jmax[0]], marker="^", color="black", markersize=7, zorder=9, linestyle="none")
+    ax.plot(xs[jmin[1]], ys[jmin[0]], marker="v", color="black", markersize=7, zorder=9, linestyle="none")
+    handles.append(
+        Line2D([], [], marker="^", color="black", linestyle="none", label=f"Max uplift {np.nanmax(e):+.2f} m")
+    )
+    handles.append(
+        Line2D(
+            [], [], marker="v", color="black", linestyle="none", label=f"Max subsidence {np.nanmin(e):+.2f} m"
+        )
+    )
+    cb = _right_colorbar(fig, ax, im)
+    cb.set_label("Sea-surface displacement (m), positive up")
+    return _finish(fig, out_path, ax=ax, geo=geo, handles=handles, right_cbars=1)
+
+
+def _scatter_labels(fig: Figure, ax, xa: np.ndarray, ya: np.ndarray, labels: Sequence[str], idx) -> None:
+    """Point labels placed greedily (8 candidate offsets) so that their boxes do not overlap."""
+    fig.draw_without_rendering()
+    to_pt = 72.0 / fig.dpi
+    pts = ax.transData.transform(np.column_stack([xa[idx], ya[idx]])) * to_pt
+    fs = 7.0
+    boxes: list[tuple[float, float, float, float]] = []
+    cands = [(4, 3), (4, -9), (-4, 3), (-4, -9), (4, 11), (-4, 11), (4, -17), (-4, -17)]
+    for (px, py), i in zip(pts, idx, strict=True):
+        text = str(labels[i])
+        w, h = 0.62 * fs * len(text), 1.15 * fs
+        chosen = cands[0]
+        for dx, dy in cands:
+            x0 = px + dx if dx >= 0 else px + dx - w
+            box = (x0, py + dy, x0 + w, py + dy + h)
+            if all(box[2] <= b[0] or box[0] >= b[2] or box[3] <= b[1] or box[1] >= b[3] for b in boxes):
+                chosen = (dx, dy)
+                break
+        dx, dy = chosen
+        x0 = px + dx if dx >= 0 else px + dx - w
+        boxes.append((x0, py + dy, x0 + w, py + dy + h))
+        ax.annotate(
+            text,
+            (xa[i], ya[i]),
+            xytext=(dx, dy),
+            textcoords="offset points",
+            fontsize=fs,
+            ha="left" if dx >= 0 else "right",
+            va="bottom",
+        )
+
+
+def _plain_log_ticks(axis, lo: float, hi: float) -> None:
+    """Log-axis ticks at 1, 2, 5 x 10^n (fewer for wide ranges) labelled as plain numbers."""
+    from matplotlib.ticker import LogLocator
+
+    decades = math.log10(max(hi, 1e-300) / max(lo, 1e-300))
+    subs = (1.0, 2.0, 5.0) if decades <= 3 else ((1.0, 3.0) if decades <= 5 else (1.0,))
+    axis.set_major_locator(LogLocator(base=10.0, subs=subs))
+    axis.set_minor_locator(LogLocator(base=10.0, subs=tuple(range(2, 10)) if decades <= 5 else ()))
+    axis.set_major_formatter(FuncFormatter(lambda v, _: f"{v:g}"))
+    axis.set_minor_formatter(NullFormatter())
+
+
+def _crop_to_signal(da: xr.DataArray, mask: np.ndarray) -> xr.DataArray:
+    """Sub-grid around the True cells of ``mask``, padded by half the box size each side."""
+    if not mask.any():
+        return da
+    rows = np.flatnonzero(mask.any(axis=1))
+    cols = np.flatnonzero(mask.any(axis=0))
+    r0, r1 = rows[0], rows[-1]
+    c0, c1 = cols[0], cols[-1]
+    pr = max(int(0.5 * (r1 - r0 + 1)), 3)
+    pc = max(int(0.5 * (c1 - c0 + 1)), 3)
+    ny, nx = mask.shape
+    r0, r1 = max(r0 - pr, 0), min(r1 + pr, ny - 1)
+    c0, c1 = max(c0 - pc, 0), min(c1 + pc, nx - 1)
+    out = da.isel({da.dims[0]: slice(r0, r1 + 1), da.dims[1]: slice(c0, c1 + 1)})
+    if out.shape[0] < 2 or out.shape[1] < 2:
+        return da
+    if "lon_periodic" in out.attrs and out.shape[1] < da.shape[1]:
+        out.attrs["lon_periodic"] = 0
+    return out
+
+
+# --------------------------------------------------------------------------------------
+# agreement scatter (ray ranking vs. another estimate, or scenario vs. scenario)
+# --------------------------------------------------------------------------------------
+
+
+@_styled
+def plot_agreement(
+    x: Sequence[float] | np.ndarray,
+    y: Sequence[float] | np.ndarray,
+    *,
+    out_path: str | os.PathLike,
+    xlabel: str,
+    ylabel: str,
+    title: str = "Agreement between two estimates per coastline segment",
+    labels: Sequence[str] | None = None,
+    highlight: Sequence[bool] | None = None,
+    log: bool = True,
+    annotate: str | None = None,
+) -> pathlib.Path:
+    """Scatter of two per-segment quantities with a 1:1 line (e.g. ray vs. wave solution).
+
+    Parameters
+    ----------
+    x, y : array-like
+        The two quantities, one value per segment (same units if a 1:1 line is meaningful).
+    out_path : str or os.PathLike
+        PNG file to write.
+    xlabel, ylabel : str
+        Axis labels with units.
+    title : str
+        Figure title.
+    labels : sequence of str, optional
+        Point labels; only highlighted points are labelled.
+    highlight : sequence of bool, optional
+        Points drawn prominently (e.g. top-k of either ranking).
+    log : bool
+        Log-log axes (positive values only).
+    annotate : str, optional
+        Text box in the upper left (e.g. "Spearman 0.82, top-10 overlap 7/10").
+
+    Returns
+    -------
+    pathlib.Path
+    """
+    xa = np.asarray(x, dtype=float)
+    ya = np.asarray(y, dtype=float)
+    if xa.shape != ya.shape or xa.ndim != 1:
+        raise InputError(
+            f"plot_agreement: x and y must be 1-D of equal length, got {xa.shape} and {ya.shape}"
+        )
+    ok = np.isfinite(xa) & np.isfinite(ya)
+    if log:
+        ok &= (xa > 0) & (ya > 0)
+    if not ok.any():
+        raise InputError("plot_agreement: no finite (and, for log axes, positive) pairs to plot")
+    hl = np.zeros_like(ok) if highlight is None else np.asarray(highlight, dtype=bool)
+    fig, ax = _new_chart((6.4, 6.0), title)
+    ax.scatter(xa[ok & ~hl], ya[ok & ~hl], s=18, color="0.55", edgecolor="none", label="Segments", zorder=2)
+    if (ok & hl).any():
+        ax.scatter(
+            xa[ok & hl],
+            ya[ok & hl],
+            s=36,
+            color=_OKABE_VERMILLION,
+            edgecolor="black",
+            lw=0.5,
+            label="Highlighted",
+            zorder=3,
+        )
+    lo = min(xa[ok].min(), ya[ok].min())
+    hi = max(xa[ok].max(), ya[ok].max())
+    if log:
+        ax.set_xscale("log")
+        ax.set_yscale("log")
+        lo, hi = lo / 1.3, hi * 1.3
+        _plain_log_ticks(ax.xaxis, lo, hi)
+        _plain_log_ticks(ax.yaxis, lo, hi)
+    else:
+        pad = 0.05 * (hi - lo if hi > lo else 1.0)
+        lo, hi = lo - pad, hi + pad
+    ax.plot([lo, hi], [lo, hi], color="black", linestyle="--", lw=1.0, label="1:1", zorder=1)
+    ax.set_xlim(lo, hi)
+    ax.set_ylim(lo, hi)
+    ax.set_xlabel(xlabel)
+    ax.set_ylabel(ylabel)
+    ax.grid(True, color="0.9", linewidth=0.6)
+    if labels is not None and (ok & hl).any():
+        _scatter_labels(fig, ax, xa, ya, labels, np.flatnonzero(ok & hl))
+    if annotate:
+        ax.text(
+            0.03,
+            0.97,
+            annotate,
+            transform=ax.transAxes,
+            va="top",
+            ha="left",
+            fontsize=8.5,
+            bbox=dict(facecolor="white", edgecolor="0.6", boxstyle="round,pad=0.4"),
+        )
+    ax.legend(loc="lower right", fontsize=8)
+    return _finish(fig, out_path, ax=ax)

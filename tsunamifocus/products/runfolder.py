@@ -1,0 +1,324 @@
+"""Writing a run folder (layers, segments, points, figures, appendix, manifest) and run_scenario."""
+
+from __future__ import annotations
+
+import math
+import os
+import pathlib
+import sys
+from collections.abc import Sequence
+from typing import Any
+
+import numpy as np
+import pandas as pd
+import xarray as xr
+
+from ..coast.segments import STATIC_SEGMENT_COLUMNS as _STATIC_COLUMNS
+from ..constants import __version__
+from ..errors import InputError, OutputExistsError
+from ..grid import GridInfo
+from ..io.gis import _plain_dtypes, write_cog, write_netcdf, write_points_csv, write_segments
+from ..io.manifest import _jsonable, write_manifest
+from ..io.runfolder import RUN_FILES, OutputFolder
+from ..io.scenario import parse_scenario
+from ..studies.run import (
+    RunResult,
+    SourceAnalysis,
+    _Progress,
+    analyse_scenario,
+)
+from . import figures as F
+from .appendix import build_appendix
+from .comparison import compare_to_folder
+from .context import _report_context
+from .summaries import format_run_summary
+
+__all__ = ['run_scenario']
+#: Raster layers written as Cloud-Optimized GeoTIFF: name -> (description, units).
+COG_LAYERS = {
+    "travel_time_min": ("first ray arrival time", "min"),
+    "energy": ("regularised ray energy per unit wavefront width", "J m-1"),
+    "lensing_factor": ("lensing factor: energy over real / same-mean smoothed bathymetry", "1"),
+    "focusing_factor": ("focusing factor: energy over real bathymetry / constant-depth ocean", "1"),
+}
+
+
+def _layers(a: SourceAnalysis, depth: xr.DataArray) -> dict[str, xr.DataArray]:
+    f = a.focusing
+    lay = {
+        "travel_time_min": f.travel_time_min,
+        "energy": f.energy,
+        "lensing_factor": f.lensing_factor,
+        "focusing_factor": f.focusing_factor,
+        "depth": depth,
+        "reference_depth": f.reference_depth,
+        "initial_sea_surface": a.eta,
+    }
+    out = {}
+    for k, v in lay.items():
+        v = v.copy()
+        v.name = k
+        out[k] = v
+    out["depth"].attrs.update(units="m", long_name="depth below mean sea level", positive="down")
+    out["reference_depth"].attrs.update(units="m", long_name="same-mean low-passed reference depth",
+                                        positive="down")
+    out["initial_sea_surface"].attrs.update(units="m", long_name="initial sea-surface displacement")
+    out["energy"].attrs.setdefault("units", "J m-1")
+    out["lensing_factor"].attrs.setdefault("units", "1")
+    out["focusing_factor"].attrs.setdefault("units", "1")
+    return out
+
+
+def _figures(a: SourceAnalysis, depth: xr.DataArray, scenario: Any, folder: pathlib.Path,
+             ensemble: Any = None) -> dict[str, pathlib.Path]:
+
+    folder.mkdir(parents=True, exist_ok=True)
+    f = a.focusing
+    real = f.runs["real"]
+    coast = list(f.segments["geometry"]) if len(f.segments) else None
+    figs = {}
+    figs["ray_field"] = F.plot_ray_field(
+        depth, f.energy, paths=real.paths, coast_lines=coast, source_outline=a.outline or None,
+        out_path=folder / "ray_field.png", title=f"Ray field over the bathymetry: {a.name}",
+        coast_label="Coast segments (stop isobath)")
+    figs["lensing_map"] = F.plot_lensing_map(
+        depth, f.lensing_factor, _contour_ready(f.travel_time_min), _plain_dtypes(f.segments), scenario.output.top_k,
+        out_path=folder / "lensing_map.png", source_outline=a.outline or None,
+        title=f"Lensing factor, travel time and ranked segments: {a.name}")
+    seg = _plain_dtypes(f.segments)
+    if ensemble is not None and getattr(ensemble, "segments", None) is not None:
+        seg = _with_ensemble_intervals(seg, ensemble.segments)
+    title = f"Top {scenario.output.top_k} coastline segments by lensing factor"
+    if ensemble is not None:
+        title += f"\n(ensemble median and 5-95 % interval over {ensemble.n_members} members)"
+    else:
+        title += "\n(whiskers: 5-95 % bootstrap interval over rays)"
+    prob = None
+    if ensemble is not None and "p_topk" in ensemble.segments:
+        seg = seg.copy()
+        seg["p_topk"] = ensemble.segments["p_topk"].reindex(seg["segment_id"].to_numpy()).to_numpy(dtype=float)
+        prob = "p_topk"
+    figs["ranking"] = F.plot_ranking(seg, scenario.output.top_k, out_path=folder / "ranking.png", title=title,
+                                     prob_col=prob)
+    figs["uplift"] = F.plot_uplift(a.eta, out_path=folder / "uplift.png", depth=depth,
+                                   source_outline=a.outline or None, coast_lines=coast,
+                                   title=f"Initial sea-surface displacement (Okada 1985): {a.name}")
+    return {k: pathlib.Path(v) if v is not None else folder / f"{k}.png" for k, v in figs.items()}
+
+
+def _contour_ready(tt: xr.DataArray, sigma_cells: float = 1.5) -> xr.DataArray:
+    """Travel time lightly smoothed (NaN-aware Gaussian, ~1.5 cells) for contour lines only.
+
+    The per-cell first-arrival grid of a finite ray fan is ragged at the cell scale (a cell
+    records the earliest ray that happened to cross it); contouring that raw field draws
+    saw-tooth lines. The exported layer stays unsmoothed.
+    """
+    from scipy import ndimage
+
+    v = tt.values.astype(float)
+    ok = np.isfinite(v)
+    num = ndimage.gaussian_filter(np.where(ok, v, 0.0), sigma_cells, mode="nearest")
+    den = ndimage.gaussian_filter(ok.astype(float), sigma_cells, mode="nearest")
+    with np.errstate(invalid="ignore", divide="ignore"):
+        sm = np.where(ok & (den > 0.2), num / den, np.nan)
+    return tt.copy(data=sm)
+
+
+def _with_ensemble_intervals(seg: pd.DataFrame, ens: pd.DataFrame) -> pd.DataFrame:
+    """Segments table carrying the ensemble's median, 5-95 % interval and rank of the lensing factor."""
+    out = seg.copy()
+    e = ens.reindex(out["segment_id"].to_numpy())
+    for col in ("lensing_factor", "lensing_lo", "lensing_hi"):
+        if col in e.columns:
+            out[col] = e[col].to_numpy(dtype=float)
+    if "n_valid" in e.columns:
+        # reliable in the ensemble sense: enough rays in at least half of the members
+        n = int(np.nanmax(e["n_valid"].to_numpy(dtype=float))) if len(e) else 0
+        ok = e["n_valid"].to_numpy(dtype=float) >= max(1, math.ceil(n / 2))
+        out["reliable"] = ok
+        v = np.where(ok, out["lensing_factor"].to_numpy(dtype=float), np.nan)
+        order = np.argsort(-np.nan_to_num(v, nan=-np.inf), kind="stable")
+        rank = np.full(len(v), np.nan)
+        good = order[np.isfinite(v[order])]
+        rank[good] = np.arange(1, good.size + 1)
+        out["rank_lensing"] = pd.array([int(r) if np.isfinite(r) else None for r in rank], dtype="Int64")
+    return out
+
+
+def write_run_folder(
+    folder: pathlib.Path,
+    a: SourceAnalysis,
+    scenario: Any,
+    depth: xr.DataArray,
+    points: pd.DataFrame,
+    health: dict,
+    *,
+    ensemble: Any = None,
+    timings: dict | None = None,
+    command: Sequence[str] | None = None,
+    extra_sections: dict | None = None,
+) -> dict[str, pathlib.Path]:
+    """Write every output of one analysed source into ``folder`` (which must exist).
+
+    Returns
+    -------
+    dict
+        Output kind -> path.
+    """
+
+    info = GridInfo.from_dataarray(depth)
+    files: dict[str, pathlib.Path] = {}
+    layers = _layers(a, depth)
+    if ensemble is not None:
+        for k, v in _ensemble_layers(ensemble, depth).items():
+            layers[k] = v
+    for name, (desc, units) in COG_LAYERS.items():
+        files[name] = pathlib.Path(write_cog(layers[name], folder / f"{name}.tif", description=desc, units=units))
+    files["layers"] = pathlib.Path(write_netcdf(
+        layers, folder / RUN_FILES["layers"],
+        title=f"tsunamifocus screening layers: {scenario.name} / {a.name}",
+        history=f"tsunamifocus {__version__} run of scenario '{scenario.name}' (time and inputs in manifest.json)",
+        source=f"tsunamifocus {__version__} long-wave ray tracing",
+        references="Okada (1985) BSSA 75:1135; Cerveny (2001) Seismic Ray Theory; Green (1838); "
+                   "Kaplan (2002) PRL 89:184103; Degueldre et al. (2016) Nat. Phys. 12:259",
+    ))
+    seg_out = a.focusing.segments.copy()
+    if ensemble is not None and getattr(ensemble, "segments", None) is not None:
+        ens_cols = [c for c in ensemble.segments.columns if c not in _STATIC_COLUMNS]
+        seg_out = seg_out.join(ensemble.segments[ens_cols].add_prefix("ens_"), on="segment_id")
+    seg_files = write_segments(_plain_dtypes(seg_out), folder / RUN_FILES["segments"], info.crs, csv_wkt=True)
+    if isinstance(seg_files, dict):
+        files.update({f"segments_{k}": pathlib.Path(v) for k, v in seg_files.items()})
+    files["points"] = pathlib.Path(write_points_csv(points, folder / RUN_FILES["points"]))
+    (folder / RUN_FILES["scenario"]).write_text(_scenario_toml(scenario), encoding="utf-8")
+    figs = {}
+    if scenario.output.figures:
+        figs = _figures(a, depth, scenario, folder / RUN_FILES["figures"], ensemble=ensemble)
+        files.update({f"figure_{k}": v for k, v in figs.items()})
+    if scenario.output.report:
+
+        ctx = _report_context(a, scenario, depth, points, health, figs, ensemble, extra_sections)
+        html, pdf = folder / RUN_FILES["html"], folder / RUN_FILES["pdf"]
+        build_appendix(ctx, html, pdf)
+        files["html"], files["pdf"] = html, pdf
+    write_manifest(
+        folder / RUN_FILES["manifest"], scenario=scenario, timings=timings or {}, output_dir=folder,
+        command=list(command) if command else None,
+        seeds={"rays": scenario.rays.seed, "ensemble": scenario.ensemble.seed},
+        extra={"source": a.name, "health": health, "source_summary": _jsonable(a.summary.to_dict()),
+               "ensemble": _jsonable(ensemble.to_dict()) if ensemble is not None else None},
+    )
+    files["manifest"] = folder / RUN_FILES["manifest"]
+    return files
+
+
+
+
+def _scenario_toml(scenario: Any) -> str:
+    try:
+        return scenario.to_toml()
+    except Exception:  # pragma: no cover - defensive
+        import json
+
+        return "# scenario as run (JSON)\n# " + json.dumps(_jsonable(scenario.to_dict()))
+
+
+def _ensemble_layers(ens: Any, depth: xr.DataArray) -> dict[str, xr.DataArray]:
+    out = {}
+    for attr, suffix, what in (("mean", "mean", "ensemble mean"), ("std", "std", "ensemble standard deviation")):
+        grids = getattr(ens, attr, None) or {}
+        for k, v in grids.items():
+            da = v if isinstance(v, xr.DataArray) else depth.copy(data=np.asarray(v, dtype=float))
+            da = da.copy()
+            name = f"{k}_ensemble_{suffix}"
+            da.name = name
+            da.attrs = {"long_name": f"{what} of {k}", "units": "J m-1" if k == "energy" else "1"}
+            out[name] = da
+    return out
+
+
+def _resolve_out(scenario: Any, out: str | os.PathLike | None) -> pathlib.Path:
+    if out is not None:
+        return pathlib.Path(out)
+    return pathlib.Path(scenario.output.folder)
+
+
+def run_scenario(
+    scenario: Any,
+    *,
+    out: str | os.PathLike | None = None,
+    overwrite: bool = False,
+    rays: int | None = None,
+    scheduler: Any = None,
+    progress: bool = True,
+    command: Sequence[str] | None = None,
+    write: bool = True,
+) -> RunResult:
+    """Run a parsed scenario end to end and write its output folder atomically.
+
+    Parameters
+    ----------
+    scenario : Scenario or path
+        Parsed scenario (or a TOML path, parsed here).
+    out : path, optional
+        Output folder; default the scenario's ``[output] folder``.
+    overwrite : bool
+        Replace an existing non-empty output folder.
+    rays : int, optional
+        Override the ray count.
+    scheduler : str or distributed.Client, optional
+        Ensemble scheduler: None/"local" (in-process, both cores) or a scheduler address.
+    progress : bool
+        Stage messages on stderr.
+    command : list of str, optional
+        Command line, recorded in the manifest.
+    write : bool
+        Write outputs (False: compute only).
+
+    Returns
+    -------
+    RunResult
+    """
+
+    if isinstance(scenario, (str, os.PathLike)):
+        scenario = parse_scenario(scenario)
+    pr = _Progress(progress)
+    out_dir = _resolve_out(scenario, out)
+    if write:
+        # refuse early, before any work, when results exist and overwrite is not given
+        if out_dir.exists() and not out_dir.is_dir():
+            raise InputError(f"{out_dir}: output path exists and is not a folder")
+        if out_dir.is_dir() and any(out_dir.iterdir()) and not overwrite:
+
+            raise OutputExistsError(f"{out_dir}: folder is not empty; pass --overwrite or choose another --out")
+    result = analyse_scenario(scenario, rays=rays, scheduler=scheduler, progress=progress, stages=pr)
+    if write:
+        result.out_dir = out_dir
+        pr.start("export", f"writing outputs to {out_dir}")
+        with OutputFolder(out_dir, overwrite=overwrite) as of:
+            root = pathlib.Path(of.tmp_dir)
+            analyses = result.analyses
+            multi = len(analyses) > 1
+            for a in analyses:
+                folder = root / _safe_name(a.name) if multi else root
+                folder.mkdir(parents=True, exist_ok=True)
+                write_run_folder(folder, a, scenario, result.depth, result.points[a.name], result.health[a.name],
+                                 ensemble=result.ensemble if a is analyses[0] else None, timings=pr.timings,
+                                 command=command)
+            if multi:
+                _write_comparison(root, analyses, result.depth)
+        pr.done("done")
+    if progress:
+        print(format_run_summary(result), file=sys.stderr)
+    return result
+
+
+def _safe_name(name: str) -> str:
+    keep = "".join(ch if ch.isalnum() or ch in "-_." else "_" for ch in name)
+    return keep or "source"
+
+
+def _write_comparison(root: pathlib.Path, analyses: list[SourceAnalysis], depth: xr.DataArray) -> None:
+
+    runs = [(a.name, a.focusing.segments, _layers(a, depth)) for a in analyses]
+    compare_to_folder(runs, root / "comparison")

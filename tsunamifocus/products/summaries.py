@@ -1,0 +1,118 @@
+"""Plain-text summaries: of a grid (inspect) and of a finished run."""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pandas as pd
+
+from ..cautions import caution_summary
+from ..studies.run import RunResult
+
+__all__ = ['format_summary']
+
+
+def _fmt_bytes(b: float) -> str:
+    for unit in ("B", "KB", "MB", "GB", "TB"):
+        if b < 1000 or unit == "TB":
+            return f"{b:.0f} {unit}" if unit == "B" else f"{b:.1f} {unit}"
+        b /= 1000.0
+    return f"{b:.1f} TB"  # pragma: no cover
+
+
+def _fmt_period(s: float) -> str:
+    if not math.isfinite(s):
+        return "no limit found"
+    return f"{s:.0f} s ({s / 60:.1f} min)"
+
+
+def format_summary(s: dict) -> str:
+    """Format :func:`summarize_grid` output as readable text."""
+    ext = s["extent"]
+    u = "deg" if s["geographic"] else "m"
+    lines = [
+        f"file            {s.get('file') or '-'}",
+        f"format          {s['format']}",
+        f"CRS             {s['crs']}" + (f" (EPSG:{s['crs_epsg']})" if s.get("crs_epsg") else ""),
+        f"geometry        {'geographic lon/lat on a sphere' if s['geographic'] else 'projected plane (metres)'}"
+        + (", wraps in longitude" if s["lon_periodic"] else ""),
+        f"size            {s['shape'][0]} rows x {s['shape'][1]} columns",
+        f"extent          x {ext[0]:.6g} .. {ext[2]:.6g} {u}, y {ext[1]:.6g} .. {ext[3]:.6g} {u}",
+        f"spacing         {s['spacing'][0]:.6g} x {s['spacing'][1]:.6g} {u}"
+        f"  (~{s['spacing_m'][0] / 1000:.3g} km x {s['spacing_m'][1] / 1000:.3g} km"
+        + (" at mid latitude)" if s["geographic"] else ")"),
+        f"sea / land / nodata  {s['sea_fraction']:.1%} / {s['land_fraction']:.1%} / {s['nodata_fraction']:.1%}",
+    ]
+    if "depth_min_m" in s:
+        lines += [
+            f"depth (sea)     min {s['depth_min_m']:.1f} m, median {s['depth_median_m']:.0f} m, "
+            f"mean {s['depth_mean_m']:.0f} m, max {s['depth_max_m']:.0f} m",
+            f"long-wave speed {s['speed_min_ms']:.1f} .. {s['speed_max_ms']:.1f} m/s "
+            f"(median {s['speed_median_ms']:.0f} m/s = {s['speed_median_ms'] * 3.6:.0f} km/h; c = sqrt(g h), "
+            f"g = {s['gravity']} m/s2)",
+            f"ray theory      periods from {_fmt_period(s['shortest_period_s'])} "
+            f"to {_fmt_period(s['longest_ray_period_s'])}",
+            f"                ({s['period_rule']})",
+        ]
+    lines += [
+        f"memory          grid {_fmt_bytes(s['memory_grid_bytes'])}, loading ~{_fmt_bytes(s['memory_load_bytes'])}, "
+        f"ray tracing ~{_fmt_bytes(s['memory_trace_bytes'])} plus rays",
+    ]
+    return "\n".join(lines)
+
+
+def seg_sigma_km(seg: pd.DataFrame) -> np.ndarray:
+    """Fresnel regularisation width at each segment [km] (or 2 segment lengths where unknown)."""
+    if "fresnel_sigma_m" in seg:
+        v = seg["fresnel_sigma_m"].to_numpy(dtype=float) / 1000.0
+        if np.isfinite(v).any():
+            return v
+    return 2.0 * seg["length_m"].to_numpy(dtype=float) / 1000.0
+
+
+def format_run_summary(result: RunResult) -> str:
+    """Short end-of-run summary: top hotspots, timings, where outputs are, and the cautions."""
+    lines = ["", "== tsunamifocus run summary: " + str(result.scenario.name)]
+    for a in result.analyses:
+        f = a.focusing
+        lines.append(f"source {a.name}: Mw {a.summary.mw:.2f}, E = {a.summary.energy_J:.3g} J, "
+                     f"dominant period {a.period_s / 60:.1f} min")
+        h = result.health[a.name]
+        tf = ", ".join(f"{k} {v:.1%}" for k, v in h["termination_fraction"].items() if v > 0)
+        lines.append(f"  rays: {h['n_rays']} ({tf}); energy bookkeeping error {h['energy_error_relative']:.2e}"
+                     f" (limit {h['energy_tolerance']:.0e})")
+        lines.append(f"  integration step {h['step_s']:.2f} s, steps per ray {h['steps_per_ray_mean']:.0f} mean / "
+                     f"{h['steps_per_ray_max']:.0f} max; rays stopped in NaN holes or on land "
+                     f"{h['nan_or_land_fraction']:.2%}")
+        rk = f.ranking
+        rel = rk[rk["reliable"]] if "reliable" in rk else rk
+        lines.append(f"  top hotspots by lensing factor (5-95 % interval), of {len(f.segments)} segments:")
+        edge_km = 2.0 * float(np.nanmedian(seg_sigma_km(f.segments)))
+        for _, r in rel.head(min(5, len(rel))).iterrows():
+            near = r.get("edge_distance_km", np.inf) < edge_km
+            lines.append(f"    #{int(r['rank_lensing']):>2} {r['segment_id']:>6}  lensing {r['lensing_factor']:.2f} "
+                         f"[{r['lensing_lo']:.2f}-{r['lensing_hi']:.2f}]  indicative amplitude at 1 m "
+                         f"{r['amp_1m_m']:.2f} m  first arrival {r['first_arrival_s'] / 60:.0f} min"
+                         + (f"  (within {edge_km:.0f} km of the grid edge: rays from beyond it are missing)"
+                            if near else ""))
+        seg = f.segments
+        if "rank_amplitude" in seg:
+            by_amp = seg[seg["rank_amplitude"].notna()].sort_values("rank_amplitude").head(3)
+            if len(by_amp):
+                lines.append("  largest indicative amplitude at 1 m depth (Green's law, indicative only): " + ", ".join(
+                    f"{r['segment_id']} {r['amp_1m_m']:.2f} m" for _, r in by_amp.iterrows()))
+    if result.ensemble is not None:
+        e = result.ensemble
+        lines.append(f"ensemble: {e.n_members} members, {len(e.failures)} failed")
+        es = e.segments
+        if "p_topk" in es:
+            top = es.sort_values("p_topk", ascending=False).head(5)
+            lines.append(f"  most robust hotspots, P(top {e.top_k}): " + ", ".join(
+                f"{sid} {r['p_topk']:.2f} ({r.get('robustness', '')})" for sid, r in top.iterrows()))
+    if result.timings:
+        lines.append("timings: " + ", ".join(f"{k} {v:.1f} s" for k, v in result.timings.items()))
+    if result.out_dir is not None:
+        lines.append(f"outputs: {result.out_dir}")
+    lines.append("CAUTION: " + caution_summary())
+    return "\n".join(lines)

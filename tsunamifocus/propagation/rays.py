@@ -1,0 +1,443 @@
+"""Long-wave ray engine: kinematic + dynamic rays with streaming energy / first-arrival maps.
+
+Screening tool only: not a tsunami warning, forecast or inundation map (see CAUTIONS.md).
+
+Rays of the linear long-wave equation travel with ``c = sqrt(g h)``. :func:`trace_rays` integrates,
+for every ray, position, direction, travel time, arc length and the paraxial pair ``(q, p)`` of
+dynamic ray tracing (Cerveny 2001) with a fixed-step classical RK4 over the C2 cubic B-spline of
+``c`` (:class:`tsunamifocus.speed.SpeedField`). The geometry follows the grid CRS: a plane in metres
+for projected grids, the sphere of radius ``EARTH_RADIUS_M`` for lon/lat grids (periodic in
+longitude for global grids). While tracing, each chunk of rays streams into its own energy and
+first-arrival grids, reduced in a fixed order at the end (deterministic, O(grid + rays) memory).
+Equations, accuracy and limits: docs/rays.md.
+"""
+
+from __future__ import annotations
+
+import math
+import time
+from dataclasses import dataclass, field
+
+import numba
+import numpy as np
+import xarray as xr
+
+from ..cautions import caution_summary
+from ..constants import EARTH_RADIUS_M, GRAVITY, MIN_DEPTH_M
+from ..errors import RayError
+from . import _raykernel as _k
+from .speedfield import SpeedField
+
+__all__ = ['RayResult', 'trace_rays', 'default_step_s', 'REASON_CODES', 'REASON_MEANINGS']
+
+#: Termination reasons (int8 codes of ``RayResult.end.reason``).
+REASON_CODES = {"coast": 1, "left_grid": 2, "land_or_nodata": 3, "time_limit": 4, "polar_limit": 5}
+REASON_MEANINGS = {v: k for k, v in REASON_CODES.items()}
+
+#: Largest allowed step, in cell crossings at the fastest speed of the grid.
+_MAX_CELLS_PER_STEP = 20.0
+#: Largest allowed number of steps per ray.
+_MAX_STEPS = 50_000_000
+
+
+@dataclass
+class RayResult:
+    """Result of :func:`trace_rays`.
+
+    Attributes
+    ----------
+    end : xarray.Dataset
+        One row per ray (dim ``ray``): end state ``x, y`` (grid CRS), ``time_s``, ``azimuth_deg``
+        (clockwise from north), launch values, ``q`` [m per rad for a point source], ``p``,
+        ``caustics``, ``reason`` (int8, CF flag attributes), ``weight`` [J], ``depth_end`` [m],
+        ``c_end`` [m s-1], ``path_length_m``, ``first_caustic_m`` (NaN if none), ``n_steps``.
+    energy : xarray.DataArray or None
+        Sum over rays of weight x path length in cell / cell area [J m-1] on the depth grid.
+    first_arrival_s : xarray.DataArray or None
+        Earliest ray time at each cell's node [s], NaN where no ray passed.
+    paths : xarray.Dataset or None
+        Decimated paths of a subset of rays (dims ``path``, ``point``), else None.
+    stats : dict
+        ``n_rays, n_steps, reasons (dict name -> count), elapsed_s, threads, step_s, geometry``.
+    """
+
+    end: xr.Dataset
+    energy: xr.DataArray | None
+    first_arrival_s: xr.DataArray | None
+    paths: xr.Dataset | None
+    stats: dict = field(default_factory=dict)
+
+
+def default_step_s(field: SpeedField, cells_per_step: float = 1.0) -> float:
+    """Return the default RK4 time step [s].
+
+    It is the time to cross ``cells_per_step`` of the smallest cell side (on the sphere:
+    ``R dlat`` and ``R dlon cos 60deg``, whichever is smaller) at the grid's largest speed.
+    """
+    i = field.info
+    if i.geographic:
+        k = math.pi / 180.0 * field.radius_m
+        side = min(i.dy * k, i.dx * k * 0.5)
+    else:
+        side = min(i.dx, i.dy)
+    return cells_per_step * side / field.c_max
+
+
+def _as1d(name: str, a, n: int | None = None) -> np.ndarray:
+    arr = np.atleast_1d(np.asarray(a, dtype=float)).ravel()
+    if n is not None and arr.size == 1 and n > 1:
+        arr = np.full(n, arr[0])
+    if n is not None and arr.size != n:
+        raise RayError(f"{name} has {arr.size} values, expected {n} (one per ray) or a scalar")
+    return arr
+
+
+def trace_rays(
+    depth: xr.DataArray | SpeedField,
+    x0,
+    y0,
+    azimuth_deg,
+    *,
+    weights=None,
+    stop_depth: float = 20.0,
+    max_time_s: float = 86400.0,
+    step_s: float | None = None,
+    gravity: float = GRAVITY,
+    min_depth: float = MIN_DEPTH_M,
+    threads: int | None = None,
+    accumulate: bool = True,
+    keep_paths: int = 0,
+    path_points: int = 500,
+    q0=None,
+    p0=None,
+    polar_lat_deg: float = 89.0,
+    radius_m: float = EARTH_RADIUS_M,
+) -> RayResult:
+    """Trace long-wave rays over a depth grid.
+
+    Parameters
+    ----------
+    depth : xarray.DataArray or SpeedField
+        Depth [m] positive down (grid convention), or a prebuilt :class:`SpeedField` (reuse it
+        when tracing many fans over one grid).
+    x0, y0 : array_like
+        Launch points in the grid CRS (metres, or lon/lat degrees on geographic grids).
+    azimuth_deg : array_like
+        Launch direction [degrees clockwise from north].
+    weights : array_like, optional
+        Energy per ray [J]; default 1 J each. Must be finite and >= 0.
+    stop_depth : float
+        Coastal stop isobath [m] (> 0): a ray ends when the bilinear depth falls to it (reason 1);
+        the end state is interpolated onto the isobath within the last step.
+    max_time_s : float
+        Time limit [s] (reason 4).
+    step_s : float, optional
+        RK4 time step [s]. Default :func:`default_step_s` (one smallest-cell crossing at the
+        fastest speed of the grid).
+    gravity, min_depth : float
+        Long-wave speed ``c = sqrt(g max(h, min_depth))`` [m s-2], [m].
+    threads : int, optional
+        Threads (= accumulation chunks) to use; default all numba threads. Results are
+        bit-identical run to run for a given value.
+    accumulate : bool
+        Build the energy and first-arrival grids.
+    keep_paths : int
+        Keep decimated paths of this many rays (evenly spaced in launch order).
+    path_points : int
+        Maximum points per kept path.
+    q0, p0 : array_like, optional
+        Initial paraxial values. Default a point source: ``q0 = 0``, ``p0 = 1 / c(launch)``
+        (then ``q`` is the spreading per radian of launch angle [m rad-1]). For a plane/line
+        source use ``q0 = 1, p0 = 0``.
+    polar_lat_deg : float
+        On lon/lat grids rays stop beyond this latitude (reason 5, ``polar_limit``).
+    radius_m : float
+        Sphere radius [m] for lon/lat grids.
+
+    Returns
+    -------
+    RayResult
+
+    Raises
+    ------
+    RayError
+        Launch on land/no data or outside the grid, launch depth not deeper than ``stop_depth``,
+        no rays, NaN/negative weights, bad step or time limit.
+    """
+    t_start = time.perf_counter()
+    if isinstance(depth, SpeedField):
+        fld = depth
+    else:
+        fld = SpeedField(depth, gravity=gravity, min_depth=min_depth, radius_m=radius_m)
+    info = fld.info
+    x0 = _as1d("x0", x0)
+    n = x0.size
+    if n == 0:
+        raise RayError("no rays to trace: x0 is empty (expected at least one launch point)")
+    y0 = _as1d("y0", y0, n)
+    az = _as1d("azimuth_deg", azimuth_deg, n)
+    for name, a in (("x0", x0), ("y0", y0), ("azimuth_deg", az)):
+        bad = np.flatnonzero(~np.isfinite(a))
+        if bad.size:
+            raise RayError(f"{name}[{bad[0]}] = {a[bad[0]]} is not finite")
+    if weights is None:
+        w = np.ones(n)
+    else:
+        w = _as1d("weights", weights, n)
+        bad = np.flatnonzero(~np.isfinite(w) | (w < 0))
+        if bad.size:
+            raise RayError(f"weights[{bad[0]}] = {w[bad[0]]} J: expected a finite energy >= 0")
+    if not (np.isfinite(stop_depth) and stop_depth > 0):
+        raise RayError(f"stop_depth = {stop_depth!r} m: expected a positive depth (e.g. 10-50 m)")
+    if not (np.isfinite(max_time_s) and max_time_s > 0):
+        raise RayError(f"max_time_s = {max_time_s!r}: expected a positive time in seconds")
+    if step_s is None:
+        dt = default_step_s(fld)
+    else:
+        dt = float(step_s)
+        max_dt = _MAX_CELLS_PER_STEP * default_step_s(fld)
+        if not (np.isfinite(dt) and 0 < dt <= max_dt):
+            raise RayError(
+                f"step_s = {step_s!r} s: expected 0 < step_s <= {max_dt:.4g} s "
+                f"({_MAX_CELLS_PER_STEP:g} cell crossings at the fastest speed)"
+            )
+    if max_time_s / dt > _MAX_STEPS:
+        raise RayError(
+            f"step_s = {dt:.4g} s with max_time_s = {max_time_s:g} s needs more than "
+            f"{_MAX_STEPS} steps per ray"
+        )
+    keep_paths = int(keep_paths)
+    if keep_paths < 0:
+        raise RayError(f"keep_paths = {keep_paths}: expected a count >= 0")
+    if int(path_points) < 2:
+        raise RayError(f"path_points = {path_points}: expected at least 2")
+    nthreads_avail = numba.config.NUMBA_NUM_THREADS
+    if threads is None:
+        threads = numba.get_num_threads()
+    threads = int(threads)
+    if not 1 <= threads <= nthreads_avail:
+        raise RayError(f"threads = {threads}: expected 1..{nthreads_avail}")
+
+    # launch checks -----------------------------------------------------------------------
+    inside = np.asarray(info.contains(x0, y0))
+    bad = np.flatnonzero(~inside)
+    if bad.size:
+        raise RayError(
+            f"ray {bad[0]} launched outside the grid at ({x0[bad[0]]:.6g}, {y0[bad[0]]:.6g}) "
+            f"(grid bounds {tuple(round(b, 6) for b in info.bounds)})"
+        )
+    if info.geographic:
+        lat_ok = np.abs(y0) < polar_lat_deg
+        bad = np.flatnonzero(~lat_ok)
+        if bad.size:
+            raise RayError(
+                f"ray {bad[0]} launched at latitude {y0[bad[0]]} beyond polar_lat_deg={polar_lat_deg}"
+            )
+    d0 = fld.bilinear_depth(x0, y0)
+    bad = np.flatnonzero(~np.isfinite(d0))
+    if bad.size:
+        raise RayError(
+            f"ray {bad[0]} launched on a no-data (NaN) cell at ({x0[bad[0]]:.6g}, {y0[bad[0]]:.6g})"
+        )
+    bad = np.flatnonzero(d0 <= 0)
+    if bad.size:
+        raise RayError(
+            f"ray {bad[0]} launched on land at ({x0[bad[0]]:.6g}, {y0[bad[0]]:.6g}): depth {d0[bad[0]]:.4g} m"
+        )
+    bad = np.flatnonzero(d0 <= stop_depth)
+    if bad.size:
+        raise RayError(
+            f"stop_depth = {stop_depth} m is not shallower than the launch depth {d0[bad[0]]:.4g} m "
+            f"of ray {bad[0]}: expected launch depth > stop_depth"
+        )
+
+    c0 = np.maximum(fld.evaluate(x0, y0)["c"], fld.c_min)
+    q0a = np.zeros(n) if q0 is None else _as1d("q0", q0, n)
+    p0a = 1.0 / c0 if p0 is None else _as1d("p0", p0, n)
+    if not (np.all(np.isfinite(q0a)) and np.all(np.isfinite(p0a))):
+        raise RayError("q0/p0 must be finite")
+
+    X0, Y0, DX, DY = fld.kernel_geometry
+    if info.geographic:
+        xw = np.asarray(info.wrap_lon(x0), float)
+        Xs = np.radians(xw)
+        Ys = np.radians(y0)
+    else:
+        Xs, Ys = x0.copy(), y0.copy()
+    azr = np.radians(az)
+    se0, sn0 = np.sin(azr), np.cos(azr)
+
+    ny, nx = info.ny, info.nx
+    nchunk = threads
+    shape = (nchunk, ny, nx, 2) if accumulate else (nchunk, 1, 1, 2)
+    Ach = np.empty(shape)
+    Ach[..., 0] = 0.0
+    Ach[..., 1] = np.inf
+    npaths = min(keep_paths, n)
+    path_slot = np.full(n, -1, dtype=np.int64)
+    if npaths:
+        ids = np.unique(np.linspace(0, n - 1, npaths).round().astype(np.int64))
+        npaths = ids.size
+        path_slot[ids] = np.arange(npaths)
+    else:
+        ids = np.zeros(0, dtype=np.int64)
+    paths_buf = np.zeros((max(npaths, 1), int(path_points), 3))
+    path_n = np.zeros(max(npaths, 1), dtype=np.int64)
+    max_steps = int(math.ceil(max_time_s / dt))
+    path_every = max(1, int(math.ceil(max_steps / (int(path_points) - 2)))) if npaths else 1
+
+    polar = math.radians(polar_lat_deg)
+    old = numba.get_num_threads()
+    numba.set_num_threads(threads)
+    try:
+        out, outi = _k.trace_all(
+            Xs,
+            Ys,
+            se0,
+            sn0,
+            q0a,
+            p0a,
+            w,
+            fld.coef,
+            fld.depth_padded,
+            X0,
+            Y0,
+            DX,
+            DY,
+            nx,
+            ny,
+            bool(info.periodic_x),
+            bool(info.geographic),
+            float(fld.radius_m),
+            float(fld.c_min),
+            float(dt),
+            float(max_time_s),
+            float(stop_depth),
+            polar,
+            Ach,
+            bool(accumulate),
+            path_slot,
+            paths_buf,
+            path_n,
+            path_every,
+        )
+        if accumulate:
+            area = np.ascontiguousarray(np.broadcast_to(info.cell_area_m2()[:, 0], (ny,)), dtype=float)
+            E, T = _k.reduce_chunks(Ach, area)
+        del Ach
+    finally:
+        numba.set_num_threads(old)
+
+    # end-state dataset -------------------------------------------------------------------
+    if info.geographic:
+        xe = np.asarray(info.wrap_lon(np.degrees(out[:, _k.O_X])), float)
+        ye = np.degrees(out[:, _k.O_Y])
+    else:
+        xe, ye = out[:, _k.O_X], out[:, _k.O_Y]
+    aze = np.mod(np.degrees(np.arctan2(out[:, _k.O_SE], out[:, _k.O_SN])), 360.0)
+    reason = outi[:, 0].astype(np.int8)
+    codes = np.array(sorted(REASON_MEANINGS), dtype=np.int8)
+    xu = "degrees_east" if info.geographic else "m"
+    yu = "degrees_north" if info.geographic else "m"
+    ray = np.arange(n)
+    end = xr.Dataset(
+        {
+            "x": ("ray", xe, {"units": xu, "long_name": "end x (grid CRS)"}),
+            "y": ("ray", ye, {"units": yu, "long_name": "end y (grid CRS)"}),
+            "time_s": ("ray", out[:, _k.O_T], {"units": "s"}),
+            "azimuth_deg": (
+                "ray",
+                aze,
+                {"units": "degree", "long_name": "end direction, clockwise from north"},
+            ),
+            "launch_x": ("ray", x0, {"units": xu}),
+            "launch_y": ("ray", y0, {"units": yu}),
+            "launch_azimuth_deg": ("ray", np.mod(az, 360.0), {"units": "degree"}),
+            "q": ("ray", out[:, _k.O_Q], {"long_name": "paraxial spreading q (dq/dt = c^2 p)"}),
+            "p": ("ray", out[:, _k.O_P], {"long_name": "paraxial slowness perturbation p"}),
+            "caustics": ("ray", outi[:, 1].astype(np.int32), {"long_name": "sign changes of q"}),
+            "reason": (
+                "ray",
+                reason,
+                {
+                    "flag_values": codes,
+                    "flag_meanings": " ".join(REASON_MEANINGS[int(c)] for c in codes),
+                },
+            ),
+            "weight": ("ray", w, {"units": "J"}),
+            "depth_end": ("ray", out[:, _k.O_DEPTH], {"units": "m"}),
+            "c_end": ("ray", out[:, _k.O_C], {"units": "m s-1"}),
+            "path_length_m": ("ray", out[:, _k.O_S], {"units": "m"}),
+            "first_caustic_m": ("ray", out[:, _k.O_FC], {"units": "m"}),
+            "n_steps": ("ray", outi[:, 2]),
+        },
+        coords={"ray": ray},
+        attrs={"caution": caution_summary(), "step_s": dt, "stop_depth_m": float(stop_depth)},
+    )
+
+    energy = first = None
+    if accumulate:
+        yd, xd = info.dims
+        coords = {yd: fld.depth[yd].values, xd: fld.depth[xd].values}
+        energy = xr.DataArray(
+            E,
+            dims=(yd, xd),
+            coords=coords,
+            name="energy",
+            attrs={
+                "units": "J m-1",
+                "long_name": "ray energy density (energy per unit wavefront width)",
+                "caution": caution_summary(),
+            },
+        )
+        first = xr.DataArray(
+            T,
+            dims=(yd, xd),
+            coords=coords,
+            name="first_arrival_s",
+            attrs={"units": "s", "long_name": "first ray arrival time", "caution": caution_summary()},
+        )
+        if "spatial_ref" in fld.depth.coords:
+            sr = fld.depth.coords["spatial_ref"]
+            energy = energy.assign_coords(spatial_ref=sr)
+            first = first.assign_coords(spatial_ref=sr)
+            energy.attrs["grid_mapping"] = first.attrs["grid_mapping"] = "spatial_ref"
+        if info.geographic:
+            energy.attrs["lon_periodic"] = first.attrs["lon_periodic"] = int(info.periodic_x)
+
+    paths = None
+    if npaths:
+        npt = int(path_n[:npaths].max())
+        buf = paths_buf[:npaths, :npt].copy()
+        mask = np.arange(npt)[None, :] >= path_n[:npaths, None]
+        buf[mask] = np.nan
+        px, py = buf[:, :, 0], buf[:, :, 1]
+        if info.geographic:
+            px = np.degrees(px)  # unwrapped longitude, continuous along the path
+            py = np.degrees(py)
+        paths = xr.Dataset(
+            {
+                "x": (
+                    ("path", "point"),
+                    px,
+                    {"units": xu, "note": "longitude unwrapped along the path" if info.geographic else ""},
+                ),
+                "y": (("path", "point"), py, {"units": yu}),
+                "time_s": (("path", "point"), buf[:, :, 2], {"units": "s"}),
+                "ray": ("path", ids),
+                "n_points": ("path", path_n[:npaths].copy()),
+            },
+            attrs={"decimation_steps": path_every, "caution": caution_summary()},
+        )
+
+    counts = {name: int(np.sum(reason == code)) for name, code in REASON_CODES.items()}
+    stats = {
+        "n_rays": int(n),
+        "n_steps": int(outi[:, 2].sum()),
+        "reasons": counts,
+        "elapsed_s": time.perf_counter() - t_start,
+        "threads": threads,
+        "step_s": dt,
+        "geometry": "sphere" if info.geographic else "plane",
+    }
+    return RayResult(end=end, energy=energy, first_arrival_s=first, paths=paths, stats=stats)

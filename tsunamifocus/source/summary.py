@@ -1,0 +1,176 @@
+"""What a source is, in numbers (magnitude, moment, slip, uplift, energy, wavelength)."""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+import xarray as xr
+
+from ..cautions import caution_summary
+from ..constants import GRAVITY
+from ..grid import GridInfo
+from ..ocean.smooth import sea_mask
+from .energy import potential_energy
+from .faults import FaultSegment, PointSource, Rupture
+from .rayfan import RayFan
+from .uplift import _as_rupture
+
+__all__ = ['SourceSummary', 'summarize_source']
+
+
+# --------------------------------------------------------------------------- summary
+
+
+@dataclass
+class SourceSummary:
+    """Key figures of a source on a grid.
+
+    Attributes
+    ----------
+    name, kind : str
+        Label and ``"rupture"`` / ``"point"``.
+    segments : list of dict
+        Per segment: trace, strike_deg, dip_deg, rake_deg, top_depth_km, width_km, length_km, slip_m.
+    mw, m0_nm, rigidity_pa, mean_slip_m : float
+        Magnitude, moment [N m], rigidity [Pa], mean slip [m] (NaN for a point source).
+    max_uplift_m, max_subsidence_m : float
+        Largest positive and most negative ``eta`` over sea cells [m].
+    energy_J : float
+        Initial potential energy [J].
+    source_width_km : float
+        Across-strike width setting the initial wavelength [km].
+    mean_depth_m : float
+        Mean depth over the source area [m].
+    wavelength_km, period_s : float
+        Dominant initial wavelength ``~ 2 x width`` [km] and period ``wavelength / sqrt(g h)`` [s].
+    rays : dict
+        Ray count and energy by side (empty without a fan).
+    """
+
+    name: str
+    kind: str
+    segments: list[dict[str, Any]]
+    mw: float
+    m0_nm: float
+    rigidity_pa: float
+    mean_slip_m: float
+    max_uplift_m: float
+    max_subsidence_m: float
+    energy_J: float
+    source_width_km: float
+    mean_depth_m: float
+    wavelength_km: float
+    period_s: float
+    rays: dict[str, dict[str, float]]
+
+    def to_dict(self) -> dict[str, Any]:
+        """Plain-Python dict (strict-JSON serialisable: NaN becomes None) with the cautions text."""
+        def clean(v: Any) -> Any:
+            if isinstance(v, float) and not math.isfinite(v):
+                return None
+            if isinstance(v, dict):
+                return {k: clean(x) for k, x in v.items()}
+            if isinstance(v, (list, tuple)):
+                return [clean(x) for x in v]
+            return v
+
+        d = {k: clean(getattr(self, k)) for k in self.__dataclass_fields__}
+        d["cautions"] = caution_summary()
+        return d
+
+    def __str__(self) -> str:
+        lines = [f"Source '{self.name}' ({self.kind})"]
+        if self.kind == "rupture":
+            lines.append(f"  Mw {self.mw:.2f}   M0 {self.m0_nm:.3e} N m   rigidity {self.rigidity_pa / 1e9:.0f} GPa   "
+                         f"mean slip {self.mean_slip_m:.2f} m")
+            for i, s in enumerate(self.segments):
+                lines.append(
+                    f"  segment {i} {s['name']!r}: strike {s['strike_deg']:.1f} deg, dip {s['dip_deg']:.1f} deg, "
+                    f"rake {s['rake_deg']:.0f} deg, L {s['length_km']:.1f} km, W {s['width_km']:.1f} km, "
+                    f"top {s['top_depth_km']:.1f} km, slip {s['slip_m']:.2f} m"
+                )
+        else:
+            s = self.segments[0]
+            lines.append(f"  hump radius {s['radius_km']:.1f} km, amplitude {s['amplitude_m']:.2f} m")
+        lines += [
+            f"  max uplift {self.max_uplift_m:.2f} m, max subsidence {self.max_subsidence_m:.2f} m",
+            f"  initial potential energy E = {self.energy_J:.3e} J",
+            f"  source width {self.source_width_km:.0f} km, mean depth {self.mean_depth_m:.0f} m -> "
+            f"wavelength ~{self.wavelength_km:.0f} km, period ~{self.period_s / 60:.1f} min",
+        ]
+        for side, v in self.rays.items():
+            lines.append(f"  rays {side.replace('_', ' ')}: {v['n_rays']} carrying {v['energy_J']:.3e} J")
+        lines.append("  " + caution_summary())
+        return "\n".join(lines)
+
+
+def summarize_source(
+    source: Rupture | FaultSegment | PointSource,
+    eta: xr.DataArray,
+    depth: xr.DataArray,
+    fan: RayFan | None = None,
+    *,
+    threshold: float = 0.1,
+) -> SourceSummary:
+    """Summarise a source, its initial sea surface on the grid and (optionally) its ray fan.
+
+    The width setting the wavelength is, for a rupture, the length-weighted horizontal
+    projection of the fault width ``W cos(dip)``, but at least the lower-edge depth (a buried
+    steep fault deforms the surface over a width of the order of its depth); for a point
+    source, the hump diameter. Dominant wavelength ``~ 2 x width`` and period
+    ``wavelength / sqrt(g h)`` with ``h`` the mean depth of the sea cells where
+    ``|eta| >= threshold max|eta|`` (rule of thumb, common practice, no source).
+    """
+    src = _as_rupture(source)
+    GridInfo.from_dataarray(depth)  # checks the grid convention (raises on a bad grid)
+    e = np.asarray(eta.values, dtype=float)
+    dep = np.asarray(depth.values, dtype=float)
+    sea = sea_mask(dep)
+    es = np.where(sea, e, 0.0)
+    amax = float(np.max(np.abs(es))) if es.size else 0.0
+    sig = sea & (np.abs(es) >= threshold * amax) if amax > 0 else sea & False
+    h = float(np.mean(dep[sig])) if np.any(sig) else float("nan")
+    energy = potential_energy(eta, depth)
+    if isinstance(src, PointSource):
+        segs = [{"name": src.name, "x": src.x, "y": src.y, "crs": str(src.crs), "radius_km": src.radius_km,
+                 "amplitude_m": src.amplitude_m}]
+        width = 2.0 * src.radius_km
+        mw = m0 = mean_slip = float("nan")
+        mu = float("nan")
+        kind = "point"
+    else:
+        segs = []
+        wsum = 0.0
+        for s, d in zip(src.segments, src.slips_m):
+            segs.append({"name": s.name, "trace": [list(p) for p in s.trace], "trace_crs": str(s.trace_crs),
+                         "strike_deg": s.strike_deg, "dip_deg": float(s.dip_deg), "rake_deg": float(s.rake_deg),
+                         "top_depth_km": float(s.top_depth_km), "width_km": float(s.width_km),
+                         "length_km": s.length_km, "slip_m": float(d)})
+            wh = max(float(s.width_km) * math.cos(math.radians(s.dip_deg)), s.bottom_depth_km)
+            wsum += s.length_km * wh
+        width = wsum / src.length_km
+        mw, m0, mean_slip = src.mw, src.moment_nm, src.mean_slip_m
+        mu = float(np.mean([s.rigidity_pa for s in src.segments]))
+        kind = "rupture"
+    lam = 2.0 * width
+    period = lam * 1e3 / math.sqrt(GRAVITY * h) if h > 0 else float("nan")
+    return SourceSummary(
+        name=src.name,
+        kind=kind,
+        segments=segs,
+        mw=mw,
+        m0_nm=m0,
+        rigidity_pa=mu,
+        mean_slip_m=mean_slip,
+        max_uplift_m=float(max(np.max(es), 0.0)),
+        max_subsidence_m=float(min(np.min(es), 0.0)),
+        energy_J=energy,
+        source_width_km=width,
+        mean_depth_m=h,
+        wavelength_km=lam,
+        period_s=period,
+        rays=fan.by_side() if fan is not None else {},
+    )

@@ -1,0 +1,191 @@
+"""The wave check: the linear long-wave solver against the ray screening of a finished run."""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Callable, Mapping, Sequence
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+import xarray as xr
+
+from ..cautions import caution_text
+from ..coast.waves import segment_max_amplitude
+from ..constants import GRAVITY
+from ..errors import CoastError, InputError
+from ..focusing.agreement import compare_rankings
+from ..propagation.wave import WAVE_CAUTION, WaveResult, _check_depth, _wet_mask, simulate_linear_long_wave
+
+__all__ = ['WaveCheck', 'compare_with_waves', 'default_check_duration_s']
+
+
+def _wrap(text: str, width: int) -> str:
+    import textwrap
+
+    return "\n".join(textwrap.wrap(text, width))
+
+
+# --------------------------------------------------------------------------------------------------
+# one-call check for the pipeline
+# --------------------------------------------------------------------------------------------------
+
+
+@dataclass
+class WaveCheck:
+    """Result of :func:`compare_with_waves` (and of :func:`tsunamifocus.products.check.wave_check`).
+
+    Attributes
+    ----------
+    wave : WaveResult
+        The wave-solver run.
+    table : pandas.DataFrame
+        One row per segment: ``segment_id``, ``name`` (if present), ``ray_value`` (the compared ray
+        column, [m] for ``amp_stop_m``), ``wave_amp_stop_m`` [m], ``wave_first_arrival_s`` [s] (earliest
+        threshold exceedance on the segment's stop-isobath cells), ``rank_ray``, ``rank_wave`` (1 =
+        largest, <NA> where the value is missing), ``ratio_wave_to_ray``.
+    agreement : dict
+        :func:`compare_rankings` of the two columns plus ``ray_column``.
+    figure : pathlib.Path or None
+        The scatter figure, when ``figure_path`` was given.
+    """
+
+    wave: WaveResult
+    table: Any
+    agreement: dict[str, Any]
+    figure: Path | None = None
+
+    def summary(self) -> str:
+        """A few printable lines: agreement figures, run statistics and the cautions line."""
+        a = self.agreement
+        st = self.wave.stats
+        return "\n".join(
+            [
+                f"wave check ({a.get('ray_column', 'ray')} vs linear long-wave maximum at the stop isobath): "
+                f"{a['n']} segments",
+                f"  Spearman rank correlation {a['spearman']:.2f}, Kendall tau {a['kendall']:.2f}, "
+                f"top-{a['k']} overlap {a['topk_common']}/{a['k']}",
+                f"  {st['steps']} steps of {st['dt_s']:.2f} s ({st['duration_s'] / 3600:.2f} h), "
+                f"{st['elapsed_s']:.1f} s wall, volume budget residual {st['mass_error']:.1e}",
+                "  " + WAVE_CAUTION,
+            ]
+        )
+
+
+def default_check_duration_s(depth: xr.DataArray, segments: Any = None, *, stop_depth: float = 20.0,
+                             gravity: float = GRAVITY) -> float:
+    """Simulated time [s] used by :func:`wave_check` when none is given.
+
+    ``1.2 * max(first_arrival_s) + 3600 s`` over the segments when the table has finite ray first
+    arrivals (the maximum usually follows the first crest within the first hour of direct arrivals);
+    otherwise 1.5 times the grid diagonal divided by the long-wave speed of the median wet depth.
+    """
+    if segments is not None and hasattr(segments, "columns") and "first_arrival_s" in segments.columns:
+        t = np.asarray(segments["first_arrival_s"], dtype=float)
+        if np.isfinite(t).any():
+            return float(1.2 * np.nanmax(t) + 3600.0)
+    info = _check_depth(depth)
+    d = np.asarray(depth.values, float)
+    wet = _wet_mask(d, stop_depth)
+    if not wet.any():
+        raise InputError(f"depth grid '{depth.name}': no wet cell deeper than the stop depth")
+    if info.geographic:
+        geod_r = info.radius_m
+        w = math.radians(info.dx * info.nx) * geod_r * math.cos(math.radians(float(np.clip(np.mean(info.y), -80, 80))))
+        h = math.radians(info.dy * info.ny) * geod_r
+    else:
+        w, h = info.dx * info.nx, info.dy * info.ny
+    c = math.sqrt(gravity * float(np.median(d[wet])))
+    return float(1.5 * math.hypot(w, h) / c)
+
+
+def compare_with_waves(
+    depth: xr.DataArray,
+    eta0: xr.DataArray,
+    segments: Any,
+    *,
+    ray_column: str = "amp_stop_m",
+    duration_s: float | None = None,
+    stop_depth: float = 20.0,
+    coast: str = "absorb",
+    boundary: str | Mapping[str, str] | Sequence[str] = "absorb",
+    k: int = 10,
+    search_radius_cells: float = 2.0,
+    statistic: str = "max",
+    cfl: float = 0.8,
+    gravity: float = GRAVITY,
+    threads: int | None = None,
+    progress: bool | Callable[[int, int], None] | None = None,
+    **simulate_kwargs: Any,
+) -> WaveCheck:
+    """Run the wave solver for a source and compare its per-segment maxima with the ray ranking.
+
+    Parameters
+    ----------
+    depth : xarray.DataArray
+        Depth grid [m] of the run.
+    eta0 : xarray.DataArray
+        Initial sea surface [m] of the source on ``depth`` (e.g. ``uplift_on_grid``).
+    segments : pandas.DataFrame
+        Coastline segments table after arrivals (needs ``segment_id``, ``geometry`` and ``ray_column``).
+    ray_column : str
+        Ray-based value to compare (default ``amp_stop_m``, the ray amplitude at the stop isobath [m];
+        ``lensing_factor`` or ``energy_per_m`` give the same ranking comparison for their quantity).
+    duration_s : float, optional
+        Simulated time [s]; default :func:`default_check_duration_s`.
+    stop_depth : float
+        Stop isobath [m], the same as the ray run.
+    coast : {"absorb", "reflect"}
+        Default "absorb": the ray amplitude at the stop isobath is an incident amplitude, so the coast
+        should not add its reflection (a wall would roughly double the elevation at the wall).
+    boundary, cfl, gravity, threads, progress, **simulate_kwargs
+        Passed to :func:`simulate_linear_long_wave`.
+    k : int
+        Top-k size of the overlap.
+    search_radius_cells, statistic
+        Passed to :func:`segment_max_amplitude`.
+
+    Returns
+    -------
+    WaveCheck
+
+    Raises
+    ------
+    CoastError
+        If the segments table lacks ``ray_column`` or the geometry columns.
+    """
+    import pandas as pd
+
+    if not hasattr(segments, "columns") or ray_column not in segments.columns:
+        raise CoastError(f"segments table has no column {ray_column!r} to compare with the wave solver")
+    if duration_s is None:
+        duration_s = default_check_duration_s(depth, segments, stop_depth=stop_depth, gravity=gravity)
+    res = simulate_linear_long_wave(
+        depth, eta0, duration_s=duration_s, stop_depth=stop_depth, coast=coast, boundary=boundary, cfl=cfl,
+        gravity=gravity, threads=threads, progress=progress, **simulate_kwargs,
+    )
+    wave = segment_max_amplitude(res, segments, depth, stop_depth, search_radius_cells=search_radius_cells,
+                                 statistic=statistic)
+    ray = pd.Series(np.asarray(segments[ray_column], dtype=float), index=wave.index, name="ray_value")
+    table = pd.DataFrame({"segment_id": wave.index.values})
+    if "name" in segments.columns:
+        table["name"] = np.asarray(segments["name"])
+    table["ray_value"] = ray.values
+    table["wave_amp_stop_m"] = wave.values
+    arr = segment_max_amplitude(res, segments, depth, stop_depth, search_radius_cells=search_radius_cells,
+                                statistic="min", field="arrival_time_s")
+    table["wave_first_arrival_s"] = arr.values
+    for col, src in (("rank_ray", ray.values), ("rank_wave", wave.values)):
+        ok = np.isfinite(src)
+        rank = np.full(src.size, -1, dtype=np.int64)
+        order = np.argsort(-np.where(ok, src, -np.inf), kind="stable")
+        rank[order[: int(ok.sum())]] = np.arange(1, int(ok.sum()) + 1)
+        table[col] = pd.array(np.where(rank > 0, rank, 0), dtype="Int64")
+        table.loc[~ok, col] = pd.NA
+    with np.errstate(divide="ignore", invalid="ignore"):
+        table["ratio_wave_to_ray"] = table["wave_amp_stop_m"] / table["ray_value"]
+    table.attrs.update(ray_column=ray_column, cautions=caution_text())
+    agree = compare_rankings(ray.set_axis(wave.index), wave, k=k)
+    agree["ray_column"] = ray_column
+    return WaveCheck(res, table, agree)

@@ -1,0 +1,639 @@
+"""The end-to-end screening pipeline: scenario -> bathymetry -> source -> rays -> focusing -> outputs.
+
+Each stage is a function on in-memory objects, so a notebook can call any of them;
+:func:`run_scenario` chains them and writes one output folder atomically.
+
+Screening estimates only: not a tsunami warning, forecast or inundation map (see CAUTIONS.md).
+"""
+
+from __future__ import annotations
+
+import logging
+import math
+import pathlib
+import sys
+import time
+from collections.abc import Sequence
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+import pandas as pd
+import xarray as xr
+from pyproj import CRS, Geod, Transformer
+
+from ..coast.coastline import coastline_from_grid
+from ..coast.segments import STATIC_SEGMENT_COLUMNS as _STATIC_COLUMNS
+from ..coast.segments import segment_coastline
+from ..errors import HealthCheckError, ResourceLimitError
+from ..focusing.analysis import analyse_focusing
+from ..grid import GridInfo
+from ..io.bathymetry import load_bathymetry
+from ..io.coastline import read_coastline
+from ..ocean.perturb import draw_member_parameters, perturb_bathymetry
+from ..ocean.smooth import smooth_bathymetry
+from ..propagation.rays import trace_rays
+from ..source.faults import FaultSegment, PointSource, Rupture
+from ..source.rayfan import make_ray_fan
+from ..source.summary import summarize_source
+from ..source.uplift import uplift_on_grid
+from .ensemble import MemberResult, run_ensemble
+
+__all__ = [
+    'analyse_scenario','SourceAnalysis', 'RunResult', 'load_scenario_bathymetry', 'build_source', 'analyse_source', 'points_table', 'health_checks', 'arrival_times', 'ensemble_member']
+
+log = logging.getLogger(__name__)
+#: Allowed relative error of the energy bookkeeping before a run fails.
+BUDGET_TOLERANCE = 0.01
+_GEOD = Geod(ellps="WGS84")
+
+
+# ------------------------------------------------------------------------------------ progress
+class _Progress:
+    """Stage messages on stderr (suppressed when quiet)."""
+
+    def __init__(self, enabled: bool = True) -> None:
+        self.enabled = enabled
+        self.t0 = time.perf_counter()
+        self.timings: dict[str, float] = {}
+        self._stage: str | None = None
+        self._ts = 0.0
+
+    def start(self, stage: str, what: str) -> None:
+        self._stage, self._ts = stage, time.perf_counter()
+        if self.enabled:
+            print(f"[{time.perf_counter() - self.t0:7.1f} s] {what} ...", file=sys.stderr, flush=True)
+
+    def done(self, note: str = "") -> None:
+        dt = time.perf_counter() - self._ts
+        if self._stage:
+            self.timings[self._stage] = self.timings.get(self._stage, 0.0) + dt
+        if self.enabled and note:
+            print(f"            {note} ({dt:.1f} s)", file=sys.stderr, flush=True)
+
+
+# ------------------------------------------------------------------------------------ stages
+def load_scenario_bathymetry(scenario: Any) -> xr.DataArray:
+    """Load, crop, resample and optionally pre-smooth the scenario's bathymetry.
+
+    Parameters
+    ----------
+    scenario : tsunamifocus.scenario.Scenario
+        Parsed scenario.
+
+    Returns
+    -------
+    xarray.DataArray
+        Depth [m], positive down.
+    """
+    b = scenario.bathymetry
+    depth = load_bathymetry(
+        b.path, values=b.values, variable=b.variable, bbox=b.crop, margin_km=b.crop_margin_km,
+        resample_km=b.resample_km, max_memory_gb=b.max_memory_gb,
+    )
+    if b.smooth_km:
+        depth = smooth_bathymetry(depth, b.smooth_km)
+    return depth
+
+
+def _shift_trace(trace, d_strike: float, d_along_km: float, d_across_km: float):
+    (lo1, la1), (lo2, la2) = trace
+    az, _, length = _GEOD.inv(lo1, la1, lo2, la2)
+    mlon, mlat, _ = _GEOD.fwd(lo1, la1, az, length / 2)
+    if d_along_km:
+        mlon, mlat, _ = _GEOD.fwd(mlon, mlat, az, d_along_km * 1000.0)
+    if d_across_km:
+        mlon, mlat, _ = _GEOD.fwd(mlon, mlat, az + 90.0, d_across_km * 1000.0)
+    az2 = az + d_strike
+    a = _GEOD.fwd(mlon, mlat, az2 + 180.0, length / 2)
+    b = _GEOD.fwd(mlon, mlat, az2, length / 2)
+    return ((float(a[0]), float(a[1])), (float(b[0]), float(b[1])))
+
+
+def build_source(cfg: Any, perturbation: dict | None = None):
+    """Turn a scenario ``[[source]]`` into a :class:`~tsunamifocus.source.Rupture` or ``PointSource``.
+
+    Parameters
+    ----------
+    cfg : tsunamifocus.scenario.SourceConfig
+        The source description.
+    perturbation : dict, optional
+        Ensemble deltas: ``strike_deg``, ``dip_deg``, ``along_km``, ``across_km``
+        (shift of each segment's trace), ``magnitude`` (added to every magnitude).
+
+    Returns
+    -------
+    Rupture or PointSource
+    """
+
+    p = perturbation or {}
+    if cfg.kind == "point":
+        lon, lat = cfg.lon, cfg.lat
+        if p.get("along_km") or p.get("across_km"):
+            lon, lat, _ = _GEOD.fwd(lon, lat, 0.0, 1000.0 * p.get("along_km", 0.0))
+            lon, lat, _ = _GEOD.fwd(lon, lat, 90.0, 1000.0 * p.get("across_km", 0.0))
+        return PointSource(x=float(lon), y=float(lat), radius_km=cfg.radius_km, amplitude_m=cfg.amplitude_m,
+                             name=cfg.name)
+    dmag = float(p.get("magnitude", 0.0))
+    segs = []
+    for i, sg in enumerate(cfg.segments):
+        trace = _shift_trace(sg.trace, float(p.get("strike_deg", 0.0)), float(p.get("along_km", 0.0)),
+                             float(p.get("across_km", 0.0))) if p else sg.trace
+        dip = min(90.0, max(1.0, sg.dip_deg + float(p.get("dip_deg", 0.0))))
+        segs.append(FaultSegment(
+            trace=trace, top_depth_km=sg.top_depth_km, dip_deg=dip, width_km=sg.width_km, rake_deg=sg.rake_deg,
+            slip_m=sg.slip_m, magnitude=None if sg.magnitude is None else sg.magnitude + dmag,
+            rigidity_pa=sg.rigidity_pa, name=f"{cfg.name}-{i + 1}", force=cfg.force,
+        ))
+    mag = None if cfg.magnitude is None else cfg.magnitude + dmag
+    return Rupture(segs, magnitude=mag, name=cfg.name, force=cfg.force)
+
+
+def _source_outline(source: Any, depth: xr.DataArray) -> list[np.ndarray]:
+    """Surface projection of each fault segment as a closed polyline in grid coordinates."""
+
+    if not isinstance(source, Rupture):
+        return []
+    info = GridInfo.from_dataarray(depth)
+    out = []
+    to_grid = Transformer.from_crs("EPSG:4326", info.crs, always_xy=True)
+    for seg in source.segments:
+        (lo1, la1), (lo2, la2) = seg.trace
+        az, _, _ = _GEOD.inv(lo1, la1, lo2, la2)
+        wh = seg.width_km * 1000.0 * math.cos(math.radians(seg.dip_deg))
+        c = _GEOD.fwd(lo2, la2, az + 90.0, wh)
+        d = _GEOD.fwd(lo1, la1, az + 90.0, wh)
+        lons = np.array([lo1, lo2, c[0], d[0], lo1])
+        lats = np.array([la1, la2, c[1], d[1], la1])
+        x, y = to_grid.transform(lons, lats)
+        out.append(np.column_stack([x, y]))
+    return out
+
+
+@dataclass
+class SourceAnalysis:
+    """One source traced and analysed on one bathymetry."""
+
+    name: str
+    source: Any
+    eta: xr.DataArray
+    fan: Any
+    summary: Any
+    focusing: Any
+    period_s: float
+    outline: list = field(default_factory=list)
+    timings: dict = field(default_factory=dict)
+
+
+def _segments_for(depth: xr.DataArray, scenario: Any):
+
+    c = scenario.coast
+    names = None
+    if str(c.source) == "grid":
+        lines = coastline_from_grid(depth, c.isobath_m)
+    else:
+        got = read_coastline(c.source, depth, layer=c.layer, name_field=c.name_field)
+        if isinstance(got, tuple):
+            lines, names = got
+        else:
+            lines = got
+    return segment_coastline(lines, c.segment_km * 1000.0, depth, names=names)
+
+
+def analyse_source(
+    depth: xr.DataArray,
+    scenario: Any,
+    src_cfg: Any,
+    *,
+    perturbation: dict | None = None,
+    segments: pd.DataFrame | None = None,
+    keep_paths: int = 600,
+    n_rays: int | None = None,
+    threads: int | None = None,
+    progress: _Progress | None = None,
+) -> SourceAnalysis:
+    """Build one source, its ray fan, and trace/analyse it on ``depth``.
+
+    Parameters
+    ----------
+    depth : xarray.DataArray
+        Depth [m], positive down.
+    scenario : Scenario
+        Ray, focusing and coast settings.
+    src_cfg : SourceConfig
+        The source.
+    perturbation : dict, optional
+        Ensemble deltas (see :func:`build_source`) and ``launch_jitter_deg`` (fan rotation).
+    segments : pandas.DataFrame, optional
+        Coastline segments (built from the scenario when None).
+    keep_paths : int
+        Decimated ray paths kept for figures.
+    n_rays : int, optional
+        Override of ``scenario.rays.count``.
+    threads : int, optional
+        Ray-engine threads (results are bit-identical for a given value); default all cores.
+    progress : optional
+        Stage reporter.
+
+    Returns
+    -------
+    SourceAnalysis
+    """
+
+    pr = progress or _Progress(False)
+    p = perturbation or {}
+    pr.start("source", f"source '{src_cfg.name}': Okada uplift and ray fan")
+    src = build_source(src_cfg, p)
+    eta = uplift_on_grid(src, depth)
+    count = int(n_rays or scenario.rays.count)
+    fan = make_ray_fan(eta, depth, count, seed=scenario.rays.seed,
+                         azimuth_offset_deg=float(p.get("launch_jitter_deg", 0.0)))
+    summary = summarize_source(src, eta, depth, fan)
+    period = float(scenario.focusing.period_s or summary.period_s)
+    pr.done(f"Mw {summary.mw:.2f}, E = {summary.energy_J:.3g} J, period {period / 60:.1f} min, {fan.n_rays} rays")
+    if segments is None:
+        pr.start("coast", "coastline segments")
+        segments = _segments_for(depth, scenario)
+        pr.done(f"{len(segments)} segments of ~{scenario.coast.segment_km:g} km")
+    pr.start("trace", f"tracing {fan.n_rays} rays over real, reference and constant-depth oceans")
+    kw = {"max_time_s": scenario.rays.max_time_h * 3600.0, "keep_paths": keep_paths}
+    if threads is not None:
+        kw["threads"] = int(threads)
+    if scenario.rays.step_s:
+        kw["step_s"] = scenario.rays.step_s
+    foc = analyse_focusing(
+        depth, fan, period_s=period, reference_km=scenario.focusing.reference_smooth_km,
+        stop_depth=scenario.rays.stop_depth_m, segments=segments, trace_kwargs=kw,
+        min_rays=scenario.coast.min_rays, seed=scenario.rays.seed, top_k=scenario.output.top_k,
+    )
+    foc.segments["edge_distance_km"] = _edge_distance_km(foc.segments, depth)
+    if "segment_id" in foc.ranking:
+        edge = dict(zip(foc.segments["segment_id"], foc.segments["edge_distance_km"]))
+        foc.ranking["edge_distance_km"] = foc.ranking["segment_id"].map(edge).to_numpy(dtype=float)
+    st = foc.runs["real"].stats
+    pr.done(f"{st['n_steps'] / max(st['elapsed_s'], 1e-9) / 1e6:.1f} M ray-steps/s; reasons {st['reasons']}")
+    return SourceAnalysis(name=src_cfg.name, source=src, eta=eta, fan=fan, summary=summary, focusing=foc,
+                          period_s=period, outline=_source_outline(src, depth))
+
+
+def _edge_distance_km(seg: pd.DataFrame, depth: xr.DataArray) -> np.ndarray:
+    """Distance [km] from each segment's centre to the nearest edge of the grid (not wrapping edges).
+
+    Rays that would reach a segment from beyond the grid are missing, so values of segments
+    close to an edge (within a few Fresnel widths) are biased; the summary flags them.
+    """
+    info = GridInfo.from_dataarray(depth)
+    x0, y0, x1, y1 = info.bounds
+    x = seg["x_mid"].to_numpy(dtype=float)
+    y = seg["y_mid"].to_numpy(dtype=float)
+    if info.geographic:
+        k = math.pi / 180.0 * info.radius_m / 1000.0
+        dy = np.minimum(y - y0, y1 - y) * k
+        dx = np.minimum(x - x0, x1 - x) * k * np.cos(np.radians(y))
+        return dy if info.periodic_x else np.minimum(dx, dy)
+    return np.minimum(np.minimum(x - x0, x1 - x), np.minimum(y - y0, y1 - y)) / 1000.0
+
+
+def _sample_nearest_finite(da: xr.DataArray, x: float, y: float, max_cells: int = 6) -> tuple[float, float]:
+    """Value of the nearest finite cell to (x, y) within ``max_cells``, and its distance in cells."""
+    info = GridInfo.from_dataarray(da)
+    fi, fj = info.index_of(x, y)
+    i0, j0 = int(round(float(fi))), int(round(float(fj)))
+    v = da.values
+    best, bd = math.nan, math.inf
+    for dj in range(-max_cells, max_cells + 1):
+        for di in range(-max_cells, max_cells + 1):
+            j, i = j0 + dj, i0 + di
+            if info.periodic_x:
+                i %= info.nx
+            if 0 <= j < info.ny and 0 <= i < info.nx and np.isfinite(v[j, i]):
+                d = math.hypot(di, dj)
+                if d < bd:
+                    best, bd = float(v[j, i]), d
+    return best, bd
+
+
+def points_table(analysis: SourceAnalysis, points: Sequence[Any], depth: xr.DataArray) -> pd.DataFrame:
+    """Per point of interest: first arrival, lensing factor, indicative amplitude, nearest segment.
+
+    A point closer to shore than the stop isobath has no ray of its own; its values are those of
+    the nearest cell that rays reached (within 6 cells) and of the nearest coastline segment.
+    """
+    info = GridInfo.from_dataarray(depth)
+    foc = analysis.focusing
+    seg = foc.segments
+    to_grid = Transformer.from_crs("EPSG:4326", info.crs, always_xy=True)
+    rows = []
+    from shapely.geometry import Point
+
+    for p in points:
+        x, y = to_grid.transform(p.lon, p.lat)
+        t_min, dcell = _sample_nearest_finite(foc.travel_time_min, x, y)
+        lf, _ = _sample_nearest_finite(foc.lensing_factor, x, y)
+        dists = np.array([g.distance(Point(x, y)) for g in seg["geometry"]]) if len(seg) else np.array([])
+        k = int(np.argmin(dists)) if dists.size else -1
+        near = seg.iloc[k] if k >= 0 else None
+        first = t_min  # rays passed within 6 cells of the point: their earliest time
+        if not np.isfinite(first) and near is not None and np.isfinite(near.get("first_arrival_s", np.nan)):
+            first = near["first_arrival_s"] / 60.0  # inshore of the stop isobath: the nearest segment's
+        rows.append({
+            "name": p.name, "lon": p.lon, "lat": p.lat,
+            "first_arrival_min": first,
+            "lensing_factor": float(near["lensing_factor"]) if near is not None else lf,
+            "lensing_factor_map": lf,
+            "amp_1m_m": float(near["amp_1m_m"]) if near is not None else math.nan,
+            "nearest_segment": str(near["segment_id"]) if near is not None else "",
+            "segment_distance_km": float(dists[k] / 1000.0) if k >= 0 and not info.geographic else math.nan,
+        })
+    return pd.DataFrame(rows)
+
+
+def health_checks(analysis: SourceAnalysis, tolerance: float = BUDGET_TOLERANCE) -> dict:
+    """Numerical health of a traced source: termination fractions, bookkeeping, steps, NaN holes.
+
+    Raises
+    ------
+    HealthCheckError
+        When the energy bookkeeping error exceeds ``tolerance``.
+    """
+    foc = analysis.focusing
+    real = foc.runs["real"]
+    st = real.stats
+    n = max(1, int(st["n_rays"]))
+    fr = {k: v / n for k, v in st["reasons"].items()}
+    steps = np.asarray(real.end["n_steps"].values, dtype=float)
+    b = foc.budget
+    out = {
+        "n_rays": int(st["n_rays"]),
+        "termination_fraction": fr,
+        "energy_budget": {k: (float(v) if isinstance(v, (int, float, np.floating)) else v) for k, v in b.items()},
+        "energy_error_relative": float(b["relative_error"]),
+        "energy_tolerance": tolerance,
+        "step_s": float(st["step_s"]),
+        "steps_per_ray_mean": float(steps.mean()),
+        "steps_per_ray_max": float(steps.max()),
+        "nan_or_land_fraction": float(fr.get("land_or_nodata", 0.0)),
+        "ray_steps_per_s": float(st["n_steps"] / max(st["elapsed_s"], 1e-9)),
+        "threads": st.get("threads"),
+    }
+    if not b["relative_error"] <= tolerance:
+        raise HealthCheckError(
+            f"source '{analysis.name}': energy bookkeeping error {100 * b['relative_error']:.2f} % exceeds "
+            f"{100 * tolerance:g} %; the run is not trustworthy"
+        )
+    return out
+
+
+# ------------------------------------------------------------------------------------ arrival times
+def arrival_times(
+    depth: xr.DataArray,
+    source: Any,
+    points: Sequence[tuple[float, float]],
+    *,
+    n_rays: int = 3600,
+    stop_depth: float = 20.0,
+    max_time_s: float = 86400.0,
+    points_crs: str | None = "EPSG:4326",
+    **ray_options: Any,
+) -> np.ndarray:
+    """First-arrival times [s] at points, for a point ``(lon, lat)`` or a fault/rupture source.
+
+    Parameters
+    ----------
+    depth : xarray.DataArray
+        Depth [m], positive down.
+    source : (lon, lat) tuple, PointSource, FaultSegment or Rupture
+        A bare ``(lon, lat)`` launches ``n_rays`` rays in all directions from that point.
+        Fault sources launch their energy-weighted fan from the uplift area.
+    points : sequence of (x, y)
+        Where to report, in ``points_crs`` (lon/lat by default; None: the grid CRS).
+    n_rays : int
+        Rays to trace.
+    stop_depth, max_time_s : float
+        Ray settings [m], [s].
+    **ray_options
+        Passed to :func:`tsunamifocus.rays.trace_rays`.
+
+    Returns
+    -------
+    numpy.ndarray
+        Seconds, NaN where no ray came within 6 cells of a point.
+    """
+
+    info = GridInfo.from_dataarray(depth)
+    if isinstance(source, (tuple, list)) and len(source) == 2 and all(np.isscalar(v) for v in source):
+        to_grid = Transformer.from_crs("EPSG:4326", info.crs, always_xy=True)
+        x0, y0 = to_grid.transform(float(source[0]), float(source[1]))
+        az = (np.arange(n_rays) + 0.5) * 360.0 / n_rays
+        x0 = np.full(n_rays, x0)
+        y0 = np.full(n_rays, y0)
+        res = trace_rays(depth, x0, y0, az, stop_depth=stop_depth, max_time_s=max_time_s, **ray_options)
+    else:
+        eta = uplift_on_grid(source, depth)
+        fan = make_ray_fan(eta, depth, n_rays)
+        res = trace_rays(depth, fan.x0, fan.y0, fan.azimuth_deg, weights=fan.weights, stop_depth=stop_depth,
+                         max_time_s=max_time_s, **ray_options)
+    pts = np.asarray(points, dtype=float).reshape(-1, 2)
+    if points_crs is not None:
+        t = Transformer.from_crs(CRS.from_user_input(points_crs), info.crs, always_xy=True)
+        px, py = t.transform(pts[:, 0], pts[:, 1])
+    else:
+        px, py = pts[:, 0], pts[:, 1]
+    out = np.empty(len(pts))
+    for k, (x, y) in enumerate(zip(np.atleast_1d(px), np.atleast_1d(py))):
+        out[k] = _sample_bilinear_finite(res.first_arrival_s, float(x), float(y))
+    return out
+
+
+def _sample_bilinear_finite(da: xr.DataArray, x: float, y: float) -> float:
+    """Bilinear value at (x, y) from the finite corners; nearest finite within 6 cells otherwise."""
+    info = GridInfo.from_dataarray(da)
+    fi, fj = info.index_of(x, y)
+    fi, fj = float(fi), float(fj)
+    i0, j0 = int(math.floor(fi)), int(math.floor(fj))
+    tx, ty = fi - i0, fj - j0
+    v = da.values
+    acc = wsum = 0.0
+    for dj, wy in ((0, 1 - ty), (1, ty)):
+        for di, wx in ((0, 1 - tx), (1, tx)):
+            j, i = j0 + dj, i0 + di
+            if info.periodic_x:
+                i %= info.nx
+            if 0 <= j < info.ny and 0 <= i < info.nx and np.isfinite(v[j, i]):
+                acc += wx * wy * v[j, i]
+                wsum += wx * wy
+    if wsum > 0.5:
+        return acc / wsum
+    return _sample_nearest_finite(da, x, y)[0]
+
+
+# ------------------------------------------------------------------------------------ outputs
+@dataclass
+class RunResult:
+    """Everything a run produced, in memory (plus where it was written)."""
+
+    scenario: Any
+    depth: xr.DataArray
+    analyses: list[SourceAnalysis]
+    points: dict[str, pd.DataFrame]
+    health: dict[str, dict]
+    ensemble: Any = None
+    timings: dict = field(default_factory=dict)
+    out_dir: pathlib.Path | None = None
+
+    @property
+    def analysis(self) -> SourceAnalysis:
+        """The first (often only) source analysis."""
+        return self.analyses[0]
+
+
+def _guard_resources(depth: xr.DataArray, scenario: Any, rays: int | None) -> None:
+    """Refuse runs whose tracing memory would exceed the scenario's limit; log a time estimate."""
+
+    info = GridInfo.from_dataarray(depth)
+    n = int(rays or scenario.rays.count)
+    cells = info.nx * info.ny
+    grid_bytes = cells * 8 * 14  # depth, speed, spline coefficients, 3 runs of accumulation
+    ray_bytes = n * 8 * 40  # launch + end state + bootstrap per ray
+    need = grid_bytes + ray_bytes
+    e = scenario.ensemble
+    # local ensemble: up to 4 members alive at once (ensemble.run_ensemble window), each its own working set
+    alive = min(e.members, 4) if e.members > 0 and str(e.scheduler or "local") == "local" else 0
+    need += alive * (grid_bytes + ray_bytes)
+    with_ens = f" with {alive} ensemble members in memory" if alive else ""
+    limit = scenario.bathymetry.max_memory_gb * 1e9
+    if need > limit:
+        raise ResourceLimitError(
+            f"tracing {n} rays on a {info.ny} x {info.nx} grid{with_ens} needs about {need / 1e9:.1f} GB, above the limit "
+            f"of {limit / 1e9:.1f} GB ([bathymetry] max_memory_gb); resample the grid or use fewer rays"
+        )
+    dxm, dym = info.spacing_m()
+    steps = scenario.rays.max_time_h * 3600.0 * 250.0 / min(dxm, dym)  # upper bound, c ~ 250 m/s
+    est = 3 * n * steps / 8e6 * (1 + scenario.ensemble.members)
+    log.info("time estimate: up to %.0f s of ray tracing (3 runs x %d rays, ~8 M ray-steps/s)", est, n)
+    if est > 600:
+        print(f"note: this run may take up to {est / 60:.0f} min of ray tracing", file=sys.stderr)
+
+
+# ------------------------------------------------------------------------------------ ensemble
+_MEMBER_COLUMNS = ["lensing_factor", "amp_1m_m", "energy_per_m", "first_arrival_s"]
+
+
+def ensemble_member(params: dict, *, depth: xr.DataArray, scenario: Any, segments: pd.DataFrame,
+                    source_index: int = 0, n_rays: int | None = None):
+    """Run one ensemble member: perturb bathymetry and source, trace, analyse; return small results.
+
+    Parameters
+    ----------
+    params : dict
+        One member of :func:`tsunamifocus.perturb.draw_member_parameters`.
+    depth : xarray.DataArray
+        Unperturbed depth [m].
+    scenario : Scenario
+        Settings.
+    segments : pandas.DataFrame
+        The run's coastline segments (identical for every member).
+    source_index : int
+        Which ``[[source]]`` of the scenario.
+    n_rays : int, optional
+        Ray-count override.
+
+    Returns
+    -------
+    tsunamifocus.ensemble.MemberResult
+    """
+
+    d = depth
+    if params.get("bathy_seed") is not None and params.get("bathy_rms", 0.0) > 0:
+        d = perturb_bathymetry(depth, params["bathy_rms"], params["bathy_corr_km"], params["bathy_seed"])
+    pert = {
+        "strike_deg": params.get("strike_delta_deg", 0.0),
+        "dip_deg": params.get("dip_delta_deg", 0.0),
+        "along_km": params.get("along_shift_km", 0.0),
+        "across_km": params.get("across_shift_km", 0.0),
+        "magnitude": params.get("magnitude_delta", 0.0),
+        "launch_jitter_deg": params.get("launch_jitter_deg", 0.0),
+    }
+    # one ray thread per member: members run in parallel, and a fixed thread count makes every
+    # member bit-identical whichever scheduler runs it
+    a = analyse_source(d, scenario, scenario.sources[source_index], perturbation=pert, segments=segments,
+                       keep_paths=0, n_rays=n_rays, threads=1)
+    health_checks(a)  # a member whose energy bookkeeping fails is a failed member, not averaged in
+    seg = a.focusing.segments
+    table = seg[["segment_id", *[c for c in _STATIC_COLUMNS if c in seg], *[c for c in _MEMBER_COLUMNS if c in seg]]]
+    table = table.set_index("segment_id")
+    if "reliable" in seg:
+        # a segment reached by too few rays in this member gives no value (not ranked on noise)
+        bad = ~seg.set_index("segment_id")["reliable"].fillna(False).astype(bool)
+        table.loc[bad.to_numpy(), [c for c in ("lensing_factor", "amp_1m_m") if c in table]] = np.nan
+    grids = {"energy": a.focusing.energy, "lensing_factor": a.focusing.lensing_factor}
+    info = {"mw": float(a.summary.mw), "energy_J": float(a.summary.energy_J),
+            "budget_error": float(a.focusing.budget["relative_error"])}
+    return MemberResult(segments=table, grids=grids, info=info)
+
+
+def run_scenario_ensemble(scenario: Any, depth: xr.DataArray, segments: pd.DataFrame, *, rays: int | None = None,
+                          scheduler: Any = None, progress: bool = True, source_index: int = 0):
+    """Run the scenario's ``[ensemble]`` for one source (Dask; local by default).
+
+    Returns
+    -------
+    tsunamifocus.ensemble.EnsembleResult
+    """
+    from functools import partial
+
+
+    e = scenario.ensemble
+    members = draw_member_parameters(e, e.members, e.seed)
+    sched = scheduler if scheduler is not None else (e.scheduler or "local")
+    fn = partial(ensemble_member, source_index=source_index, n_rays=rays)
+    return run_ensemble(fn, members, scheduler=sched, progress=progress,
+                        shared={"depth": depth, "scenario": scenario, "segments": segments},
+                        top_k=scenario.output.top_k)
+
+
+def analyse_scenario(scenario: Any, *, rays: int | None = None, scheduler: Any = None, progress: bool = True,
+                     stages: _Progress | None = None) -> RunResult:
+    """Compute a parsed scenario end to end in memory: bathymetry, segments, every source, the ensemble.
+
+    Parameters
+    ----------
+    scenario : Scenario
+        Parsed scenario.
+    rays : int, optional
+        Override the ray count.
+    scheduler : str or distributed.Client, optional
+        Ensemble scheduler: None/"local" (in-process, both cores) or a scheduler address.
+    progress : bool
+        Stage messages on stderr.
+    stages : _Progress, optional
+        Stage timer to continue (a new one by default).
+
+    Returns
+    -------
+    RunResult
+        With ``out_dir`` None (nothing is written here).
+    """
+    pr = stages if stages is not None else _Progress(progress)
+    pr.start("load", f"loading bathymetry {scenario.bathymetry.path.name}")
+    depth = load_scenario_bathymetry(scenario)
+    info = GridInfo.from_dataarray(depth)
+    pr.done(f"{info.ny} x {info.nx} cells, {'lon/lat sphere' if info.geographic else 'projected plane'}")
+    _guard_resources(depth, scenario, rays)
+    pr.start("coast", "coastline segments")
+    segments = _segments_for(depth, scenario)
+    pr.done(f"{len(segments)} segments of ~{scenario.coast.segment_km:g} km")
+    analyses, points, health = [], {}, {}
+    for src_cfg in scenario.sources:
+        a = analyse_source(depth, scenario, src_cfg, segments=segments, n_rays=rays, progress=pr)
+        analyses.append(a)
+        points[a.name] = points_table(a, scenario.points, depth)
+        health[a.name] = health_checks(a)
+    ens = None
+    if scenario.ensemble.members > 0:
+        pr.start("ensemble", f"ensemble of {scenario.ensemble.members} members")
+        ens = run_scenario_ensemble(scenario, depth, segments, rays=rays, scheduler=scheduler,
+                                    progress=progress)
+        pr.done(f"{ens.n_members} members done, {len(ens.failures)} failed")
+    return RunResult(scenario=scenario, depth=depth, analyses=analyses, points=points, health=health,
+                     ensemble=ens, timings=pr.timings)
