@@ -5,8 +5,8 @@ from __future__ import annotations
 import argparse
 import pathlib
 
-from ..errors import InputError, OutputExistsError
-from ..io.runfolder import OutputFolder
+from ..errors import InputError
+from ..io.runfolder import OutputFolder, refuse_filled_folder
 from ..io.runs import read_run
 from ..products.comparison import _summary_of, compare_to_folder, comparison_appendix
 from ..studies.compare import compare_runs
@@ -28,8 +28,7 @@ def run(args: argparse.Namespace) -> int:
     if len(args.runs) < 2:
         raise InputError("compare needs at least two run folders")
     out = pathlib.Path(args.out)
-    if out.is_dir() and any(out.iterdir()) and not args.overwrite:
-        raise OutputExistsError(f"{out}: folder is not empty; pass --overwrite or choose another --out")
+    refuse_filled_folder(out, args.overwrite)
     runs = [read_run(r) for r in args.runs]
     names = [r[0] for r in runs]
     if len(set(names)) < len(names):  # same scenario name: tell the runs apart by their folders

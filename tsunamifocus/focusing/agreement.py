@@ -5,10 +5,11 @@ from __future__ import annotations
 from typing import Any
 
 import numpy as np
+from scipy import stats
 
 from ..errors import InputError
 
-__all__ = ['compare_rankings']
+__all__ = ['compare_rankings', 'rank_correlations', 'topk_mask']
 
 
 def _paired(ray_values: Any, wave_values: Any) -> tuple[np.ndarray, np.ndarray, np.ndarray | None]:
@@ -28,8 +29,41 @@ def _paired(ray_values: Any, wave_values: Any) -> tuple[np.ndarray, np.ndarray, 
     return a[keep], b[keep], (labels[keep] if labels is not None else None)
 
 
-def _topk(v: np.ndarray, k: int) -> np.ndarray:
-    return np.argsort(-v, kind="stable")[:k]
+def topk_mask(values: Any, k: int) -> np.ndarray:
+    """True for the ``k`` largest finite values; ties go to the earlier position, NaN is never in.
+
+    Parameters
+    ----------
+    values : array-like
+        One value per item (e.g. per segment).
+    k : int
+        Size of the top set (at most the number of items).
+
+    Returns
+    -------
+    numpy.ndarray of bool
+        Same length as ``values``.
+    """
+    v = np.asarray(values, dtype=float).ravel()
+    finite = np.isfinite(v)
+    order = np.lexsort((np.arange(v.size), np.where(finite, -v, np.inf)))  # -value first, then position
+    top = order[: min(int(k), v.size)]
+    mask = np.zeros(v.size, dtype=bool)
+    mask[top[finite[top]]] = True
+    return mask
+
+
+def rank_correlations(a: np.ndarray, b: np.ndarray) -> tuple[float, float, float, float]:
+    """Spearman's rho and Kendall's tau-b of two paired samples with their p-values.
+
+    Returns
+    -------
+    (rho, rho_p, tau, tau_p) : floats
+        From :func:`scipy.stats.spearmanr` and :func:`scipy.stats.kendalltau`.
+    """
+    sp = stats.spearmanr(a, b)
+    kt = stats.kendalltau(a, b)
+    return float(sp.statistic), float(sp.pvalue), float(kt.statistic), float(kt.pvalue)
 
 
 def compare_rankings(ray_values: Any, wave_values: Any, k: int = 10) -> dict[str, Any]:
@@ -57,23 +91,20 @@ def compare_rankings(ray_values: Any, wave_values: Any, k: int = 10) -> dict[str
     InputError
         Fewer than 3 finite pairs, or ``k < 1``.
     """
-    from scipy import stats
-
     if int(k) < 1:
         raise InputError(f"k={k!r}: expected a positive number of top segments")
     a, b, _ = _paired(ray_values, wave_values)
     n = int(a.size)
     if n < 3:
         raise InputError(f"need at least 3 segments with finite ray and wave values to compare rankings, got {n}")
-    sp = stats.spearmanr(a, b)
-    kt = stats.kendalltau(a, b)
+    rho, rho_p, tau, tau_p = rank_correlations(a, b)
     kk = min(int(k), n)
-    common = len(set(_topk(a, kk).tolist()) & set(_topk(b, kk).tolist()))
+    common = int((topk_mask(a, kk) & topk_mask(b, kk)).sum())
     return {
-        "spearman": float(sp.statistic),
-        "spearman_p": float(sp.pvalue),
-        "kendall": float(kt.statistic),
-        "kendall_p": float(kt.pvalue),
+        "spearman": rho,
+        "spearman_p": rho_p,
+        "kendall": tau,
+        "kendall_p": tau_p,
         "topk_overlap": common / kk,
         "topk_common": common,
         "k": kk,

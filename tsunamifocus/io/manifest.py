@@ -17,13 +17,15 @@ from importlib import metadata
 from pathlib import Path
 from typing import Any
 
+import numpy as np
+
 from ..cautions import caution_text
 from ..constants import __version__
 from ..errors import DataFileError, InputError
 from .runfolder import OutputFolder
 from .scenario import scenario_from_dict
 
-__all__ = ['MANIFEST_NAME', 'sha256_file', 'build_manifest', 'write_manifest', 'read_manifest', 'verify_outputs', 'verify_inputs', 'scenario_from_manifest', 'software_versions', 'show_versions']
+__all__ = ['jsonable', 'MANIFEST_NAME', 'sha256_file', 'build_manifest', 'write_manifest', 'read_manifest', 'verify_outputs', 'verify_inputs', 'scenario_from_manifest', 'software_versions', 'show_versions']
 
 MANIFEST_NAME = "manifest.json"
 MANIFEST_FORMAT = "tsunamifocus-manifest"
@@ -119,12 +121,12 @@ def show_versions() -> str:
     return "\n".join(f"{k:<{w}} : {val if val is not None else '(not installed)'}" for k, val in v.items())
 
 
-def _jsonable(obj: Any) -> Any:
+def jsonable(obj: Any) -> Any:
     """Convert to strict JSON data: paths -> str, tuples -> lists, non-finite floats -> None."""
     if isinstance(obj, Mapping):
-        return {str(k): _jsonable(v) for k, v in obj.items()}
+        return {str(k): jsonable(v) for k, v in obj.items()}
     if isinstance(obj, (list, tuple, set, frozenset)):
-        return [_jsonable(v) for v in obj]
+        return [jsonable(v) for v in obj]
     if isinstance(obj, Path):
         return str(obj)
     if isinstance(obj, bool) or obj is None or isinstance(obj, str):
@@ -133,17 +135,12 @@ def _jsonable(obj: Any) -> Any:
         return int(obj)
     if isinstance(obj, float):
         return obj if math.isfinite(obj) else None
-    try:  # numpy scalars
-        import numpy as np
-
-        if isinstance(obj, np.generic):
-            return _jsonable(obj.item())
-        if isinstance(obj, np.ndarray):
-            return _jsonable(obj.tolist())
-    except ImportError:  # pragma: no cover
-        pass
+    if isinstance(obj, np.generic):  # numpy scalars
+        return jsonable(obj.item())
+    if isinstance(obj, np.ndarray):
+        return jsonable(obj.tolist())
     if hasattr(obj, "to_dict") and hasattr(obj, "columns"):  # a pandas DataFrame: column -> list
-        return _jsonable(obj.to_dict(orient="list"))
+        return jsonable(obj.to_dict(orient="list"))
     return str(obj)
 
 
@@ -217,7 +214,7 @@ def build_manifest(
         "outputs": out_records,
         "extra": dict(extra or {}),
     }
-    return _jsonable(m)
+    return jsonable(m)
 
 
 def write_manifest(target: OutputFolder | str | os.PathLike, **kwargs: Any) -> Path:

@@ -36,7 +36,7 @@ from typing import Any
 
 from ..errors import DataFileError, InputError, OutputExistsError
 
-__all__ = ['RUN_FILES', 'OutputFolder', 'StageTimer', 'deferred_interrupts']
+__all__ = ['safe_name', 'refuse_filled_folder', 'RUN_FILES', 'OutputFolder', 'StageTimer', 'deferred_interrupts']
 
 #: File names inside a run folder (one place to change them).
 RUN_FILES = {
@@ -334,3 +334,24 @@ class StageTimer:
         d = {k: round(v, 6) for k, v in self._stages.items()}
         d["total"] = round(time.perf_counter() - self._t0, 6)
         return d
+
+
+def refuse_filled_folder(folder: str | os.PathLike, overwrite: bool) -> None:
+    """Refuse, before any work, an output folder that already holds files (unless ``overwrite``).
+
+    Raises
+    ------
+    OutputExistsError
+        ``folder`` is a non-empty folder and ``overwrite`` is false.
+    """
+    folder = Path(folder)
+    if folder.is_dir() and any(folder.iterdir()) and not overwrite:
+        raise OutputExistsError(f"{folder}: folder is not empty; pass --overwrite or choose another --out")
+
+
+def safe_name(name: str, fallback: str = "output") -> str:
+    """A file-name-safe form of ``name``: runs of characters other than ASCII letters, digits,
+    ``.``, ``_`` and ``-`` become one ``_``; leading/trailing ``.``/``_`` are dropped; at most 100
+    characters; ``fallback`` when nothing is left."""
+    s = re.sub(r"[^A-Za-z0-9._-]+", "_", name).strip("._") or fallback
+    return s[:100]

@@ -40,6 +40,7 @@ from typing import Any
 from ..cautions import caution_lines
 from ..constants import RIGIDITY_PA
 from ..errors import ScenarioError
+from .runfolder import safe_name
 
 __all__ = ['Scenario', 'BathymetryConfig', 'FaultSegmentConfig', 'SourceConfig', 'RaysConfig', 'FocusingConfig', 'CoastConfig', 'PointOfInterest', 'OutputConfig', 'EnsembleConfig', 'parse_scenario', 'scenario_from_dict', 'scenario_schema']
 
@@ -991,7 +992,7 @@ def _build(data: Mapping[str, Any], ctx: _Ctx, default_name: str | None) -> Scen
 
     ov = _table(ctx, ("output",), data.get("output", {}), _keys("output"))
     if ov["folder"] is None:
-        ov["folder"] = Path(os.path.normpath(ctx.base_dir / f"{_safe_name(name)}_results"))
+        ov["folder"] = Path(os.path.normpath(ctx.base_dir / f"{safe_name(name, 'scenario')}_results"))
     output = OutputConfig(**ov)
     ensemble = EnsembleConfig(**_table(ctx, ("ensemble",), data.get("ensemble", {}), _keys("ensemble")))
     return Scenario(
@@ -1006,11 +1007,6 @@ def _build(data: Mapping[str, Any], ctx: _Ctx, default_name: str | None) -> Scen
         output=output,
         ensemble=ensemble,
     )
-
-
-def _safe_name(name: str) -> str:
-    s = re.sub(r"[^A-Za-z0-9._-]+", "_", name).strip("._") or "scenario"
-    return s[:100]
 
 
 def _strip_none(obj: Any) -> Any:

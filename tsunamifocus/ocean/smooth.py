@@ -48,27 +48,7 @@ def smooth_bathymetry(depth: xr.DataArray, length_km: float) -> xr.DataArray:
     info = GridInfo.from_dataarray(depth)
     v = depth.values.astype(float)
     sea = np.isfinite(v) & (v > 0)
-    w = sea.astype(float)
-    f = np.where(sea, v, 0.0)
-    L = length_km * 1000.0
-    if info.geographic:
-        k = math.pi / 180.0 * info.radius_m
-        sy = L / (info.dy * k)
-        mode_x = "wrap" if info.periodic_x else "constant"
-        fs = ndimage.gaussian_filter1d(f, sy, axis=0, mode="constant", truncate=3.0)
-        ws = ndimage.gaussian_filter1d(w, sy, axis=0, mode="constant", truncate=3.0)
-        coslat = np.cos(np.radians(np.clip(info.y, -89.5, 89.5)))
-        for j in range(info.ny):
-            sx = L / (info.dx * k * coslat[j])
-            sx = min(sx, 4.0 * info.nx)
-            fs[j] = ndimage.gaussian_filter1d(fs[j], sx, mode=mode_x, truncate=3.0)
-            ws[j] = ndimage.gaussian_filter1d(ws[j], sx, mode=mode_x, truncate=3.0)
-    else:
-        sx, sy = L / info.dx, L / info.dy
-        fs = ndimage.gaussian_filter(f, (sy, sx), mode="constant", truncate=3.0)
-        ws = ndimage.gaussian_filter(w, (sy, sx), mode="constant", truncate=3.0)
-    with np.errstate(invalid="ignore", divide="ignore"):
-        sm = np.where(ws > 1e-12, fs / ws, np.nan)
+    sm = _normalised_gauss(v, sea, info, length_km * 1000.0, min_cells=0.0)
     out_v = np.where(sea, sm, v)
     out = depth.copy(data=out_v)
     out.attrs["smoothing_km"] = float(length_km)
@@ -97,26 +77,38 @@ def _to_xyz(info: GridInfo, x: np.ndarray, y: np.ndarray) -> np.ndarray:
 # --------------------------------------------------------------------------------------
 # smoothing
 # --------------------------------------------------------------------------------------
-def _gauss_pass(f: np.ndarray, info: GridInfo, sigma_m: float) -> np.ndarray:
-    """Separable Gaussian [std sigma_m metres]; on lon/lat the x width follows cos(lat)."""
+def _gauss_pass(f: np.ndarray, info: GridInfo, sigma_m: float, min_cells: float = 0.2) -> np.ndarray:
+    """Separable Gaussian [std sigma_m metres]; on lon/lat the x width follows cos(lat).
+
+    Axes (rows on lon/lat) whose width is below ``min_cells`` cells are left as they are.
+    """
     if sigma_m <= 0:
         return f.copy()
     dxm, dym = info.spacing_m()
     sy = sigma_m / dym
-    out = ndimage.gaussian_filter1d(f, sy, axis=0, mode="constant", truncate=3.0) if sy >= 0.2 else f.copy()
+    out = ndimage.gaussian_filter1d(f, sy, axis=0, mode="constant", truncate=3.0) if sy >= min_cells else f.copy()
     if info.geographic:
         k = math.pi / 180.0 * info.radius_m
         coslat = np.cos(np.radians(np.clip(info.y, -89.5, 89.5)))
         mode = "wrap" if info.periodic_x else "constant"
         for j in range(info.ny):
             sx = min(sigma_m / (info.dx * k * coslat[j]), 4.0 * info.nx)
-            if sx >= 0.2:
+            if sx >= min_cells:
                 out[j] = ndimage.gaussian_filter1d(out[j], sx, mode=mode, truncate=3.0)
     else:
         sx = sigma_m / dxm
-        if sx >= 0.2:
+        if sx >= min_cells:
             out = ndimage.gaussian_filter1d(out, sx, axis=1, mode="constant", truncate=3.0)
     return out
+
+
+def _normalised_gauss(f: np.ndarray, mask: np.ndarray, info: GridInfo, sigma_m: float,
+                      min_cells: float = 0.2) -> np.ndarray:
+    """Gaussian-weighted mean of ``f`` over the ``mask`` nodes (normalised convolution); NaN where no weight."""
+    a = _gauss_pass(np.where(mask, f, 0.0), info, sigma_m, min_cells)
+    b = _gauss_pass(mask.astype(float), info, sigma_m, min_cells)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        return np.where(b > 1e-12, a / b, np.nan)
 
 
 def smooth_field(
@@ -153,15 +145,10 @@ def smooth_field(
     info = GridInfo.from_dataarray(field)
     f = np.asarray(field.values, dtype=float)
     m = np.isfinite(f) if mask is None else (np.asarray(mask, dtype=bool) & np.isfinite(f))
-    fm = np.where(m, f, 0.0)
-    wm = m.astype(float)
     sig = np.asarray(sigma_m.values if isinstance(sigma_m, xr.DataArray) else sigma_m, dtype=float)
 
     def level(s: float) -> np.ndarray:
-        a = _gauss_pass(fm, info, s)
-        b = _gauss_pass(wm, info, s)
-        with np.errstate(invalid="ignore", divide="ignore"):
-            return np.where(b > 1e-12, a / b, np.nan)
+        return _normalised_gauss(f, m, info, s)
 
     if sig.ndim == 0:
         if not (np.isfinite(sig) and sig >= 0):

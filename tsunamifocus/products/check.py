@@ -24,8 +24,7 @@ import pandas as pd
 from ..cautions import caution_summary
 from ..errors import DataFileError, InputError
 from ..io.gis import write_cog, write_netcdf
-from ..io.manifest import _jsonable as _clean
-from ..io.manifest import write_manifest
+from ..io.manifest import jsonable, write_manifest
 from ..io.runfolder import OutputFolder
 from ..io.runs import read_run
 from ..studies.check import WaveCheck, compare_with_waves
@@ -145,11 +144,11 @@ def run_wave_check(
         _write_table(table, tmp / "wave_segments.csv")
         ag = {k2: (float(v) if isinstance(v, (float, np.floating)) and math.isfinite(v) else v)
               for k2, v in chk.agreement.items()}
-        (tmp / "agreement.json").write_text(json.dumps(_clean(ag), indent=2), encoding="utf-8")
+        (tmp / "agreement.json").write_text(json.dumps(jsonable(ag), indent=2), encoding="utf-8")
         _appendix(tmp, run_dir, name, seg, table, ag, chk)
         write_manifest(tmp / "manifest.json", output_dir=tmp, inputs={"run_layers": run_dir / "layers.nc",
                        "run_segments": run_dir / "segments.csv"},
-                       extra={"wave_stats": _clean(chk.wave.stats), "agreement": _clean(ag)})
+                       extra={"wave_stats": jsonable(chk.wave.stats), "agreement": jsonable(ag)})
     sp, ov = ag.get("spearman"), ag.get("topk_overlap")
     if progress:
         print(f"ray vs wave ranking of {ag.get('n', '?')} segments: Spearman {sp:.3f}, "

@@ -14,7 +14,7 @@ from ..cautions import caution_lines, caution_text
 from ..errors import OutputExistsError
 from ..grid import get_crs
 from ..io.gis import write_cog, write_netcdf, write_segments
-from ..studies.compare import Comparison, RunTuple, _safe, compare_runs
+from ..studies.compare import Comparison, RunTuple, _column_suffix, compare_runs
 from .appendix import build_appendix
 from .figures import plot_agreement
 
@@ -91,7 +91,7 @@ def compare_to_folder(
     diff_layers: dict[str, xr.DataArray] = {}
     for run, d in comp.differences.items():
         for lay, da in d.items():
-            diff_layers[f"{lay}_{comp.column_names.get(run, _safe(run))}_minus_first"] = da
+            diff_layers[f"{lay}_{comp.column_names.get(run, _column_suffix(run))}_minus_first"] = da
     if diff_layers:
         written["differences_nc"] = write_netcdf(
             diff_layers,

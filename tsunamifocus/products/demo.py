@@ -12,8 +12,8 @@ import xarray as xr
 from pyproj import CRS, Transformer
 
 from ..constants import __version__
-from ..errors import OutputExistsError
 from ..grid import GridInfo, make_grid
+from ..io.runfolder import refuse_filled_folder
 from ..io.scenario import parse_scenario
 from ..ocean.demo import DEMO_CRS, DemoRegion, demo_to_lonlat, make_demo_bathymetry
 from .runfolder import run_scenario
@@ -133,8 +133,7 @@ def run_demo(out: str | os.PathLike, *, overwrite: bool = False, rays: int | Non
     """
 
     out = pathlib.Path(out)
-    if out.is_dir() and any(out.iterdir()) and not overwrite:
-        raise OutputExistsError(f"{out}: folder is not empty; pass --overwrite or choose another --out")
+    refuse_filled_folder(out, overwrite)
     sc = parse_scenario(demo_inputs(demo_cache_dir()))
     if progress:
         print(f"demo inputs (invented Meridane coast): {sc.bathymetry.path.parent}", file=sys.stderr)

@@ -41,20 +41,19 @@ from matplotlib.figure import Figure
 from matplotlib.lines import Line2D
 from matplotlib.patches import Patch, Rectangle
 from matplotlib.ticker import FixedLocator, FuncFormatter, MaxNLocator, NullFormatter
+from scipy import ndimage
 
 from ..cautions import CAUTION_FOOTER, caution_text
 from ..constants import __version__
 from ..errors import InputError
-from ..focusing.agreement import _paired, _topk, compare_rankings
+from ..focusing.agreement import _paired, compare_rankings, topk_mask
 from ..grid import GridInfo
-from ..propagation.wave import WAVE_CAUTION
-from ..studies.check import _wrap
+from ..propagation.wave import WAVE_LIMITS
 
 __all__ = ['plot_ray_vs_wave', 'CAUTION_FOOTER', 'DPI', 'plot_ray_field', 'plot_lensing_map', 'plot_ranking', 'plot_uplift', 'plot_agreement', 'RANK_FIELDS']
 
 
 # Okabe & Ito (2008) colour-blind-safe palette
-_OI = {"blue": "#0072B2", "orange": "#E69F00", "vermillion": "#D55E00", "sky": "#56B4E9", "grey": "#999999"}
 
 
 def plot_ray_vs_wave(
@@ -72,10 +71,10 @@ def plot_ray_vs_wave(
 ) -> Path:
     """Save a scatter figure (PNG) of ray vs wave per-segment values with the ranking agreement.
 
-    Top-``k`` segments of both rankings, of the ray ranking only and of the wave ranking only are
-    drawn with distinct colours *and* marker shapes (Okabe-Ito palette); the Spearman and Kendall
-    correlations and the top-``k`` overlap from :func:`compare_rankings` are printed in the panel,
-    and the cautions line at the bottom.
+    Drawn by :func:`plot_agreement`: top-``k`` segments of both rankings, of the ray ranking only and
+    of the wave ranking only in distinct colours *and* marker shapes (Okabe-Ito palette); the Spearman
+    and Kendall correlations, the top-``k`` overlap (:func:`compare_rankings`) and the limits of the
+    wave check are printed in the panel.
 
     Parameters
     ----------
@@ -94,75 +93,28 @@ def plot_ray_vs_wave(
     annotate_top : bool
         Write the labels of the top-``k`` segments of either ranking beside their points.
     dpi : int
-        Resolution.
+        Unused (figures share one resolution); kept for callers.
 
     Returns
     -------
     pathlib.Path
         The written file.
     """
-
-    from matplotlib.figure import Figure
-    from matplotlib.lines import Line2D
-
     path = Path(path)
     if not path.parent.is_dir():
         raise InputError(f"figure folder {str(path.parent)!r} does not exist")
     a, b, labels = _paired(ray_values, wave_values)
     agree = compare_rankings(a, b, k=k)
     kk = agree["k"]
-    ta, tb = set(_topk(a, kk).tolist()), set(_topk(b, kk).tolist())
-    cat = np.zeros(a.size, dtype=int)
-    for i in range(a.size):
-        cat[i] = 3 if (i in ta and i in tb) else 1 if i in ta else 2 if i in tb else 0
-    fig = Figure(figsize=(7.5, 7.2), dpi=dpi)
-    ax = fig.add_axes((0.13, 0.22, 0.82, 0.70))
-    styles = {
-        0: ("other segments", _OI["grey"], "o", 22),
-        1: (f"top {kk} by rays only", _OI["vermillion"], "^", 46),
-        2: (f"top {kk} by wave only", _OI["sky"], "s", 40),
-        3: (f"top {kk} in both", _OI["blue"], "D", 46),
-    }
-    handles = []
-    for c, (lab, col, mk, sz) in styles.items():
-        sel = cat == c
-        if sel.any():
-            ax.scatter(a[sel], b[sel], s=sz, c=col, marker=mk, edgecolors="black", linewidths=0.4, zorder=2 + c)
-        handles.append(Line2D([], [], ls="", marker=mk, color=col, markeredgecolor="black", label=f"{lab} ({int(sel.sum())})"))
-    use_log = log and np.all(a > 0) and np.all(b > 0)
-    if use_log:
-        from matplotlib.ticker import FuncFormatter, LogLocator
-
-        ax.set_xscale("log")
-        ax.set_yscale("log")
-        fmt = FuncFormatter(lambda v, _pos: f"{v:g}")
-        for axis in (ax.xaxis, ax.yaxis):
-            axis.set_major_locator(LogLocator(base=10.0, subs=(1.0, 2.0, 5.0)))
-            axis.set_major_formatter(fmt)
-            axis.set_minor_formatter(FuncFormatter(lambda v, _pos: ""))
-    lo = min(a.min(), b.min())
-    hi = max(a.max(), b.max())
-    ax.plot([lo, hi], [lo, hi], color="black", lw=0.8, ls="--", zorder=1)
-    handles.append(Line2D([], [], color="black", lw=0.8, ls="--", label="1:1"))
-    if annotate_top and labels is not None:
-        for i in sorted(ta | tb):
-            ax.annotate(str(labels[i]), (a[i], b[i]), xytext=(4, 3), textcoords="offset points", fontsize=7)
-    ax.set_xlabel(ray_label, fontsize=11)
-    ax.set_ylabel(wave_label, fontsize=11)
-    ax.tick_params(labelsize=10)
-    ax.grid(True, which="major", color="#dddddd", lw=0.6)
-    ax.legend(handles=handles, loc="lower right", fontsize=8.5, framealpha=0.9)
     txt = (
         f"n = {agree['n']} segments\nSpearman rho = {agree['spearman']:.2f}\n"
-        f"Kendall tau = {agree['kendall']:.2f}\ntop-{kk} overlap = {agree['topk_common']}/{kk}"
+        f"Kendall tau = {agree['kendall']:.2f}\ntop-{kk} overlap = {agree['topk_common']}/{kk}\n"
+        f"{WAVE_LIMITS}"
     )
-    ax.text(0.03, 0.97, txt, transform=ax.transAxes, va="top", ha="left", fontsize=10,
-            bbox={"facecolor": "white", "edgecolor": "#888888", "alpha": 0.9})
-    if title:
-        ax.set_title(title, fontsize=11.5)
-    fig.text(0.02, 0.02, _wrap(WAVE_CAUTION, 135), fontsize=7, va="bottom", ha="left", color="#333333")
-    fig.savefig(path, dpi=dpi)
-    return path
+    names = [str(x) for x in labels] if (annotate_top and labels is not None) else None
+    return plot_agreement(a, b, out_path=path, xlabel=ray_label, ylabel=wave_label, title=title or "",
+                          labels=names, log=log and bool(np.all(a > 0) and np.all(b > 0)), annotate=txt,
+                          top_x=topk_mask(a, kk), top_y=topk_mask(b, kk), top_names=("rays", "wave"))
 
 #: Short caution printed at the foot of every figure.
 
@@ -172,6 +124,7 @@ DPI = 150
 _LAND = "#d8cfb4"  # land fill (tan)
 _NODATA = "#ffffff"
 _OKABE_BLUE = "#0072B2"  # Okabe-Ito palette (colour-blind safe)
+_OKABE_SKY = "#56B4E9"
 _OKABE_VERMILLION = "#D55E00"
 _OKABE_GREEN = "#009E73"
 _HALO = [patheffects.withStroke(linewidth=2.5, foreground="white")]
@@ -306,6 +259,28 @@ def _degree_locator(span_deg: float, max_ticks: int = 8):
     return MultipleLocator(90)
 
 
+def _nan_gaussian(v: np.ndarray, ok: np.ndarray, sigma: float) -> tuple[np.ndarray, np.ndarray]:
+    """Numerator and weight of a normalised Gaussian over the ``ok`` cells (edges: nearest)."""
+    num = ndimage.gaussian_filter(np.where(ok, v, 0.0), sigma, mode="nearest")
+    den = ndimage.gaussian_filter(ok.astype(float), sigma, mode="nearest")
+    return num, den
+
+
+def smooth_for_contours(tt: xr.DataArray, sigma_cells: float = 1.5) -> xr.DataArray:
+    """Travel time lightly smoothed (NaN-aware Gaussian, ~1.5 cells) for contour lines only.
+
+    The per-cell first-arrival grid of a finite ray fan is ragged at the cell scale (a cell
+    records the earliest ray that happened to cross it); contouring that raw field draws
+    saw-tooth lines. The exported layer stays unsmoothed.
+    """
+    v = tt.values.astype(float)
+    ok = np.isfinite(v)
+    num, den = _nan_gaussian(v, ok, sigma_cells)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        sm = np.where(ok & (den > 0.2), num / den, np.nan)
+    return tt.copy(data=sm)
+
+
 def _contour_ready(t: np.ndarray, max_sigma: float = 6.0) -> np.ndarray:
     """Copy of a gridded field fit for contouring: NaN holes between rays filled, smoothed.
 
@@ -316,8 +291,6 @@ def _contour_ready(t: np.ndarray, max_sigma: float = 6.0) -> np.ndarray:
     Gaussian of ``r`` cells (1 to ``max_sigma``) smooths the result. Cells farther from data stay
     NaN (no contour there). For display only; the exported layers are untouched.
     """
-    from scipy import ndimage
-
     good = np.isfinite(t)
     if good.all() or not good.any():
         return t
@@ -326,11 +299,10 @@ def _contour_ready(t: np.ndarray, max_sigma: float = 6.0) -> np.ndarray:
     sigma = float(np.clip(np.percentile(holes, 90), 1.0, max_sigma)) if holes.size else 1.0
     filled = t[iy, ix]
     filled[dist > 1.5 * sigma + 1.0] = np.nan
-    w = np.isfinite(filled).astype(float)
-    num = ndimage.gaussian_filter(np.where(w > 0, filled, 0.0), sigma, mode="nearest")
-    den = ndimage.gaussian_filter(w, sigma, mode="nearest")
+    ok = np.isfinite(filled)
+    num, den = _nan_gaussian(filled, ok, sigma)
     with np.errstate(invalid="ignore", divide="ignore"):
-        return np.where(w > 0, num / np.maximum(den, 1e-12), np.nan)
+        return np.where(ok, num / np.maximum(den, 1e-12), np.nan)
 
 
 def _nice_length(target: float) -> float:
@@ -1481,6 +1453,9 @@ def plot_agreement(
     highlight: Sequence[bool] | None = None,
     log: bool = True,
     annotate: str | None = None,
+    top_x: Sequence[bool] | None = None,
+    top_y: Sequence[bool] | None = None,
+    top_names: tuple[str, str] = ("x", "y"),
 ) -> pathlib.Path:
     """Scatter of two per-segment quantities with a 1:1 line (e.g. ray vs. wave solution).
 
@@ -1502,6 +1477,12 @@ def plot_agreement(
         Log-log axes (positive values only).
     annotate : str, optional
         Text box in the upper left (e.g. "Spearman 0.82, top-10 overlap 7/10").
+    top_x, top_y : sequence of bool, optional
+        Top sets of the two rankings: points in both, in one only and in neither are drawn in
+        distinct colours and marker shapes (Okabe-Ito), their labels beside the top points;
+        ``highlight`` is then ignored.
+    top_names : (str, str)
+        Names of the two rankings in the legend.
 
     Returns
     -------
@@ -1518,20 +1499,35 @@ def plot_agreement(
         ok &= (xa > 0) & (ya > 0)
     if not ok.any():
         raise InputError("plot_agreement: no finite (and, for log axes, positive) pairs to plot")
-    hl = np.zeros_like(ok) if highlight is None else np.asarray(highlight, dtype=bool)
     fig, ax = _new_chart((6.4, 6.0), title)
-    ax.scatter(xa[ok & ~hl], ya[ok & ~hl], s=18, color="0.55", edgecolor="none", label="Segments", zorder=2)
-    if (ok & hl).any():
-        ax.scatter(
-            xa[ok & hl],
-            ya[ok & hl],
-            s=36,
-            color=_OKABE_VERMILLION,
-            edgecolor="black",
-            lw=0.5,
-            label="Highlighted",
-            zorder=3,
-        )
+    if top_x is not None and top_y is not None:
+        tx, ty = np.asarray(top_x, dtype=bool), np.asarray(top_y, dtype=bool)
+        hl = tx | ty
+        nx_, ny_ = top_names
+        k = int(max(tx.sum(), ty.sum()))
+        for sel, lab, col, mk, sz, z in (
+            (~hl, "other segments", "0.55", "o", 18, 2),
+            (tx & ~ty, f"top {k} by {nx_} only", _OKABE_VERMILLION, "^", 40, 3),
+            (ty & ~tx, f"top {k} by {ny_} only", _OKABE_SKY, "s", 36, 4),
+            (tx & ty, f"top {k} in both", _OKABE_BLUE, "D", 40, 5),
+        ):
+            if (ok & sel).any():
+                ax.scatter(xa[ok & sel], ya[ok & sel], s=sz, color=col, marker=mk, edgecolor="black", lw=0.4,
+                           label=f"{lab} ({int((ok & sel).sum())})", zorder=z)
+    else:
+        hl = np.zeros_like(ok) if highlight is None else np.asarray(highlight, dtype=bool)
+        ax.scatter(xa[ok & ~hl], ya[ok & ~hl], s=18, color="0.55", edgecolor="none", label="Segments", zorder=2)
+        if (ok & hl).any():
+            ax.scatter(
+                xa[ok & hl],
+                ya[ok & hl],
+                s=36,
+                color=_OKABE_VERMILLION,
+                edgecolor="black",
+                lw=0.5,
+                label="Highlighted",
+                zorder=3,
+            )
     lo = min(xa[ok].min(), ya[ok].min())
     hi = max(xa[ok].max(), ya[ok].max())
     if log:

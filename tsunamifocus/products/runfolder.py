@@ -15,16 +15,16 @@ import xarray as xr
 
 from ..coast.segments import STATIC_SEGMENT_COLUMNS as _STATIC_COLUMNS
 from ..constants import __version__
-from ..errors import InputError, OutputExistsError
+from ..errors import InputError
 from ..grid import GridInfo
 from ..io.gis import _plain_dtypes, write_cog, write_netcdf, write_points_csv, write_segments
-from ..io.manifest import _jsonable, write_manifest
-from ..io.runfolder import RUN_FILES, OutputFolder
+from ..io.manifest import jsonable, write_manifest
+from ..io.runfolder import RUN_FILES, OutputFolder, refuse_filled_folder, safe_name
 from ..io.scenario import parse_scenario
+from ..studies.progress import StageProgress
 from ..studies.run import (
     RunResult,
     SourceAnalysis,
-    _Progress,
     analyse_scenario,
 )
 from . import figures as F
@@ -82,7 +82,7 @@ def _figures(a: SourceAnalysis, depth: xr.DataArray, scenario: Any, folder: path
         out_path=folder / "ray_field.png", title=f"Ray field over the bathymetry: {a.name}",
         coast_label="Coast segments (stop isobath)")
     figs["lensing_map"] = F.plot_lensing_map(
-        depth, f.lensing_factor, _contour_ready(f.travel_time_min), _plain_dtypes(f.segments), scenario.output.top_k,
+        depth, f.lensing_factor, F.smooth_for_contours(f.travel_time_min), _plain_dtypes(f.segments), scenario.output.top_k,
         out_path=folder / "lensing_map.png", source_outline=a.outline or None,
         title=f"Lensing factor, travel time and ranked segments: {a.name}")
     seg = _plain_dtypes(f.segments)
@@ -106,22 +106,6 @@ def _figures(a: SourceAnalysis, depth: xr.DataArray, scenario: Any, folder: path
     return {k: pathlib.Path(v) if v is not None else folder / f"{k}.png" for k, v in figs.items()}
 
 
-def _contour_ready(tt: xr.DataArray, sigma_cells: float = 1.5) -> xr.DataArray:
-    """Travel time lightly smoothed (NaN-aware Gaussian, ~1.5 cells) for contour lines only.
-
-    The per-cell first-arrival grid of a finite ray fan is ragged at the cell scale (a cell
-    records the earliest ray that happened to cross it); contouring that raw field draws
-    saw-tooth lines. The exported layer stays unsmoothed.
-    """
-    from scipy import ndimage
-
-    v = tt.values.astype(float)
-    ok = np.isfinite(v)
-    num = ndimage.gaussian_filter(np.where(ok, v, 0.0), sigma_cells, mode="nearest")
-    den = ndimage.gaussian_filter(ok.astype(float), sigma_cells, mode="nearest")
-    with np.errstate(invalid="ignore", divide="ignore"):
-        sm = np.where(ok & (den > 0.2), num / den, np.nan)
-    return tt.copy(data=sm)
 
 
 def _with_ensemble_intervals(seg: pd.DataFrame, ens: pd.DataFrame) -> pd.DataFrame:
@@ -205,8 +189,8 @@ def write_run_folder(
         folder / RUN_FILES["manifest"], scenario=scenario, timings=timings or {}, output_dir=folder,
         command=list(command) if command else None,
         seeds={"rays": scenario.rays.seed, "ensemble": scenario.ensemble.seed},
-        extra={"source": a.name, "health": health, "source_summary": _jsonable(a.summary.to_dict()),
-               "ensemble": _jsonable(ensemble.to_dict()) if ensemble is not None else None},
+        extra={"source": a.name, "health": health, "source_summary": jsonable(a.summary.to_dict()),
+               "ensemble": jsonable(ensemble.to_dict()) if ensemble is not None else None},
     )
     files["manifest"] = folder / RUN_FILES["manifest"]
     return files
@@ -220,7 +204,7 @@ def _scenario_toml(scenario: Any) -> str:
     except Exception:  # pragma: no cover - defensive
         import json
 
-        return "# scenario as run (JSON)\n# " + json.dumps(_jsonable(scenario.to_dict()))
+        return "# scenario as run (JSON)\n# " + json.dumps(jsonable(scenario.to_dict()))
 
 
 def _ensemble_layers(ens: Any, depth: xr.DataArray) -> dict[str, xr.DataArray]:
@@ -282,15 +266,13 @@ def run_scenario(
 
     if isinstance(scenario, (str, os.PathLike)):
         scenario = parse_scenario(scenario)
-    pr = _Progress(progress)
+    pr = StageProgress(progress)
     out_dir = _resolve_out(scenario, out)
     if write:
         # refuse early, before any work, when results exist and overwrite is not given
         if out_dir.exists() and not out_dir.is_dir():
             raise InputError(f"{out_dir}: output path exists and is not a folder")
-        if out_dir.is_dir() and any(out_dir.iterdir()) and not overwrite:
-
-            raise OutputExistsError(f"{out_dir}: folder is not empty; pass --overwrite or choose another --out")
+        refuse_filled_folder(out_dir, overwrite)
     result = analyse_scenario(scenario, rays=rays, scheduler=scheduler, progress=progress, stages=pr)
     if write:
         result.out_dir = out_dir
@@ -300,7 +282,7 @@ def run_scenario(
             analyses = result.analyses
             multi = len(analyses) > 1
             for a in analyses:
-                folder = root / _safe_name(a.name) if multi else root
+                folder = root / safe_name(a.name, "source") if multi else root
                 folder.mkdir(parents=True, exist_ok=True)
                 write_run_folder(folder, a, scenario, result.depth, result.points[a.name], result.health[a.name],
                                  ensemble=result.ensemble if a is analyses[0] else None, timings=pr.timings,
@@ -311,11 +293,6 @@ def run_scenario(
     if progress:
         print(format_run_summary(result), file=sys.stderr)
     return result
-
-
-def _safe_name(name: str) -> str:
-    keep = "".join(ch if ch.isalnum() or ch in "-_." else "_" for ch in name)
-    return keep or "source"
 
 
 def _write_comparison(root: pathlib.Path, analyses: list[SourceAnalysis], depth: xr.DataArray) -> None:

@@ -52,14 +52,13 @@ from ..errors import InputError, ResolutionWarning, ResourceLimitError
 from ..grid import GridInfo
 from . import _wavekernel as _k
 
-__all__ = ['WaveResult', 'simulate_linear_long_wave', 'wave_time_step', 'WAVE_CAUTION']
+__all__ = ['WaveResult', 'simulate_linear_long_wave', 'wave_time_step', 'WAVE_CAUTION', 'WAVE_LIMITS']
 
 #: Cautions line carried by the figure of this module: the first paragraph of CAUTIONS.md plus the
 #: limits of the wave check. Grids carry the full text in ``attrs["cautions"]``.
-WAVE_CAUTION = (
-    caution_summary()
-    + " Wave check: linear long-wave equations, no friction, no nonlinearity, no inundation."
-)
+#: What the wave check leaves out.
+WAVE_LIMITS = "Wave check: linear long-wave equations, no friction, no nonlinearity, no inundation."
+WAVE_CAUTION = caution_summary() + " " + WAVE_LIMITS
 
 _EDGES = ("west", "east", "south", "north")
 # bytes per cell: eta, qx, qy, coef_x, coef_y, max, max_time, arrival (float64) + wet masks (uint8, bool)

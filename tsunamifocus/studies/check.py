@@ -21,12 +21,6 @@ from ..propagation.wave import WAVE_CAUTION, WaveResult, _check_depth, _wet_mask
 __all__ = ['WaveCheck', 'compare_with_waves', 'default_check_duration_s']
 
 
-def _wrap(text: str, width: int) -> str:
-    import textwrap
-
-    return "\n".join(textwrap.wrap(text, width))
-
-
 # --------------------------------------------------------------------------------------------------
 # one-call check for the pipeline
 # --------------------------------------------------------------------------------------------------

@@ -41,6 +41,7 @@ import xarray as xr
 from ..cautions import caution_summary
 from ..coast.segments import STATIC_SEGMENT_COLUMNS
 from ..errors import InputError
+from ..focusing.agreement import rank_correlations, topk_mask
 from ..grid import GridInfo, get_crs
 from ..io.runs import RunTuple
 
@@ -119,7 +120,7 @@ class Comparison:
         }
 
 
-def _safe(name: str) -> str:
+def _column_suffix(name: str) -> str:
     return re.sub(r"\W+", "_", name).strip("_") or "run"
 
 
@@ -239,8 +240,6 @@ def compare_runs(runs: Sequence[RunTuple], *, top_k: int = 10) -> Comparison:
         Fewer than two runs, duplicate names, or runs on different grids / coastlines /
         segmentations (refused, see the module docstring).
     """
-    from scipy import stats
-
     runs = list(runs)
     if len(runs) < 2:
         raise InputError(f"compare: need at least 2 runs, got {len(runs)}")
@@ -256,7 +255,7 @@ def compare_runs(runs: Sequence[RunTuple], *, top_k: int = 10) -> Comparison:
     dup = sorted({n for n in names if names.count(n) > 1})
     if dup:
         raise InputError(f"compare: duplicate run names {dup}; give each run a unique name")
-    safe = [_safe(n) for n in names]
+    safe = [_column_suffix(n) for n in names]
     if len(set(safe)) != len(safe):
         safe = [f"{s}_{k + 1}" for k, s in enumerate(safe)]
     ref_name = names[0]
@@ -302,8 +301,7 @@ def compare_runs(runs: Sequence[RunTuple], *, top_k: int = 10) -> Comparison:
     k = min(int(top_k), len(ref_seg))
     n_top = np.zeros(len(ref_seg), dtype=np.int64)
     for s in segs:
-        r = _rank_desc(s["lensing_factor"]).to_numpy()
-        n_top += (r <= k) & np.isfinite(s["lensing_factor"].to_numpy(dtype=float))
+        n_top += topk_mask(s["lensing_factor"].to_numpy(dtype=float), k)
     ranking["n_topk"] = n_top
     ranking["rank_envelope"] = _rank_desc(ranking["lensing_factor_max"]).to_numpy()
 
@@ -314,9 +312,7 @@ def compare_runs(runs: Sequence[RunTuple], *, top_k: int = 10) -> Comparison:
         ok = np.isfinite(a) & np.isfinite(b)
         n_ok = int(ok.sum())
         if n_ok >= 3 and np.ptp(a[ok]) > 0 and np.ptp(b[ok]) > 0:
-            sp = stats.spearmanr(a[ok], b[ok])
-            kt = stats.kendalltau(a[ok], b[ok])
-            rho, rp, tau, tp = float(sp.statistic), float(sp.pvalue), float(kt.statistic), float(kt.pvalue)
+            rho, rp, tau, tp = rank_correlations(a[ok], b[ok])
         else:
             rho = rp = tau = tp = float("nan")
         rows.append(

@@ -46,9 +46,7 @@ states the measured sizes.
 
 from __future__ import annotations
 
-import math
 import os
-import sys
 import time
 import traceback
 import uuid
@@ -62,6 +60,9 @@ import xarray as xr
 
 from ..coast.segments import STATIC_SEGMENT_COLUMNS
 from ..errors import EnsembleError, InputError
+from ..focusing.agreement import topk_mask
+from ..io.manifest import jsonable
+from .progress import MemberProgress
 
 __all__ = ['MemberResult', 'MemberFailure', 'EnsembleResult', 'run_ensemble', 'segment_statistics', 'robustness_label', 'ROBUSTNESS_LABELS']
 
@@ -153,7 +154,7 @@ class MemberFailure:
         return {
             "member": self.member,
             "seed": self.seed,
-            "params": _jsonable(self.params),
+            "params": jsonable(self.params),
             "error": self.error,
             "attempts": self.attempts,
         }
@@ -225,23 +226,6 @@ def _run_member(
 def _seed_of(params: Mapping[str, Any]) -> int | None:
     s = params.get("seed") if isinstance(params, Mapping) else None
     return int(s) if isinstance(s, (int, np.integer)) else None
-
-
-def _jsonable(obj: Any) -> Any:
-    if isinstance(obj, Mapping):
-        return {str(k): _jsonable(v) for k, v in obj.items()}
-    if isinstance(obj, (list, tuple)):
-        return [_jsonable(v) for v in obj]
-    if isinstance(obj, (bool, np.bool_)):
-        return bool(obj)
-    if isinstance(obj, (int, np.integer)):
-        return int(obj)
-    if isinstance(obj, (float, np.floating)):
-        v = float(obj)
-        return v if math.isfinite(v) else None
-    if obj is None or isinstance(obj, str):
-        return obj
-    return repr(obj)
 
 
 # ---------------------------------------------------------------------------------------------
@@ -364,34 +348,6 @@ def _fold_task(acc: _Accumulator, outcome: _Outcome, params: dict[str, Any]) -> 
 # ---------------------------------------------------------------------------------------------
 
 
-class _Progress:
-    def __init__(self, total: int, progress: bool | Callable[..., Any] | None) -> None:
-        self.total = total
-        self.done = 0
-        self.failed = 0
-        self.t0 = time.perf_counter()
-        self.cb = progress if callable(progress) else None
-        self.bar = None
-        if progress is True:
-            from tqdm import tqdm
-
-            self.bar = tqdm(total=total, file=sys.stderr, unit="member", desc="ensemble members", dynamic_ncols=True)
-
-    def update(self, failed: bool = False) -> None:
-        self.done += 1
-        self.failed += int(failed)
-        if self.bar is not None:
-            self.bar.update(1)
-            if self.failed:
-                self.bar.set_postfix(failed=self.failed)
-        if self.cb is not None:
-            elapsed = time.perf_counter() - self.t0
-            eta = elapsed / self.done * (self.total - self.done) if self.done else None
-            self.cb(self.done, self.total, elapsed, eta)
-
-    def close(self) -> None:
-        if self.bar is not None:
-            self.bar.close()
 
 
 # ---------------------------------------------------------------------------------------------
@@ -487,7 +443,7 @@ class EnsembleResult:
 
     def to_dict(self) -> dict[str, Any]:
         """JSON-safe record for the run manifest (no grids, no tables)."""
-        return _jsonable(
+        return jsonable(
             {
                 "n_members": self.n_members,
                 "n_succeeded": self.n_succeeded,
@@ -521,19 +477,7 @@ def _topk_mask(values: np.ndarray, k: int) -> np.ndarray:
 
     Ties are broken by segment order (the earlier segment wins); NaN is never in the top k.
     """
-    n_mem, n_seg = values.shape
-    k = min(k, n_seg)
-    mask = np.zeros_like(values, dtype=bool)
-    pos = np.arange(n_seg)
-    for m in range(n_mem):
-        v = values[m]
-        finite = np.isfinite(v)
-        key = np.where(finite, -v, np.inf)
-        order = np.lexsort((pos, key))  # primary: -value (NaN last), secondary: segment position
-        top = order[:k]
-        top = top[finite[top]]
-        mask[m, top] = True
-    return mask
+    return np.array([topk_mask(row, k) for row in values], dtype=bool).reshape(values.shape)
 
 
 def segment_statistics(
@@ -851,7 +795,7 @@ def run_ensemble(
     workers = int(workers) if workers else (os.cpu_count() or 1)
     kind, client, own = _resolve_scheduler(scheduler, workers, connect_timeout_s)
     acc = _Accumulator(len(members), reduce_list)
-    prog = _Progress(len(members), progress)
+    prog = MemberProgress(len(members), progress)
     t0 = time.perf_counter()
     sched_info: dict[str, Any] = {"kind": kind}
     try:

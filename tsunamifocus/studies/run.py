@@ -12,7 +12,6 @@ import logging
 import math
 import pathlib
 import sys
-import time
 from collections.abc import Sequence
 from dataclasses import dataclass, field
 from typing import Any
@@ -38,6 +37,7 @@ from ..source.rayfan import make_ray_fan
 from ..source.summary import summarize_source
 from ..source.uplift import uplift_on_grid
 from .ensemble import MemberResult, run_ensemble
+from .progress import StageProgress
 
 __all__ = [
     'analyse_scenario','SourceAnalysis', 'RunResult', 'load_scenario_bathymetry', 'build_source', 'analyse_source', 'points_table', 'health_checks', 'arrival_times', 'ensemble_member']
@@ -48,28 +48,6 @@ BUDGET_TOLERANCE = 0.01
 _GEOD = Geod(ellps="WGS84")
 
 
-# ------------------------------------------------------------------------------------ progress
-class _Progress:
-    """Stage messages on stderr (suppressed when quiet)."""
-
-    def __init__(self, enabled: bool = True) -> None:
-        self.enabled = enabled
-        self.t0 = time.perf_counter()
-        self.timings: dict[str, float] = {}
-        self._stage: str | None = None
-        self._ts = 0.0
-
-    def start(self, stage: str, what: str) -> None:
-        self._stage, self._ts = stage, time.perf_counter()
-        if self.enabled:
-            print(f"[{time.perf_counter() - self.t0:7.1f} s] {what} ...", file=sys.stderr, flush=True)
-
-    def done(self, note: str = "") -> None:
-        dt = time.perf_counter() - self._ts
-        if self._stage:
-            self.timings[self._stage] = self.timings.get(self._stage, 0.0) + dt
-        if self.enabled and note:
-            print(f"            {note} ({dt:.1f} s)", file=sys.stderr, flush=True)
 
 
 # ------------------------------------------------------------------------------------ stages
@@ -210,7 +188,7 @@ def analyse_source(
     keep_paths: int = 600,
     n_rays: int | None = None,
     threads: int | None = None,
-    progress: _Progress | None = None,
+    progress: StageProgress | None = None,
 ) -> SourceAnalysis:
     """Build one source, its ray fan, and trace/analyse it on ``depth``.
 
@@ -240,7 +218,7 @@ def analyse_source(
     SourceAnalysis
     """
 
-    pr = progress or _Progress(False)
+    pr = progress or StageProgress(False)
     p = perturbation or {}
     pr.start("source", f"source '{src_cfg.name}': Okada uplift and ray fan")
     src = build_source(src_cfg, p)
@@ -593,7 +571,7 @@ def run_scenario_ensemble(scenario: Any, depth: xr.DataArray, segments: pd.DataF
 
 
 def analyse_scenario(scenario: Any, *, rays: int | None = None, scheduler: Any = None, progress: bool = True,
-                     stages: _Progress | None = None) -> RunResult:
+                     stages: StageProgress | None = None) -> RunResult:
     """Compute a parsed scenario end to end in memory: bathymetry, segments, every source, the ensemble.
 
     Parameters
@@ -606,7 +584,7 @@ def analyse_scenario(scenario: Any, *, rays: int | None = None, scheduler: Any =
         Ensemble scheduler: None/"local" (in-process, both cores) or a scheduler address.
     progress : bool
         Stage messages on stderr.
-    stages : _Progress, optional
+    stages : StageProgress, optional
         Stage timer to continue (a new one by default).
 
     Returns
@@ -614,7 +592,7 @@ def analyse_scenario(scenario: Any, *, rays: int | None = None, scheduler: Any =
     RunResult
         With ``out_dir`` None (nothing is written here).
     """
-    pr = stages if stages is not None else _Progress(progress)
+    pr = stages if stages is not None else StageProgress(progress)
     pr.start("load", f"loading bathymetry {scenario.bathymetry.path.name}")
     depth = load_scenario_bathymetry(scenario)
     info = GridInfo.from_dataarray(depth)
