@@ -459,7 +459,9 @@ def test_no_ray_reaches_the_stop_isobath():
 
 def test_too_few_rays_warns_and_rank_needs_data():
     d = shelf()
-    r = plane_wave(d, 30, 0.0, 100e3)  # 3 rays per 10 km segment
+    # 4 rays 25 km apart: each 10 km segment lies within the footprint of at most 3 ray tubes,
+    # fewer than the 10 that make a segment reliable (common practice, no source)
+    r = plane_wave(d, 4, 0.0, 100e3)
     seg = segment_coastline(coastline_from_grid(d, 20.0), 10e3, d)
     with pytest.warns(ResolutionWarning, match="unreliable"):
         tab = segment_arrivals(seg, r, d, period_s=T)
@@ -485,8 +487,10 @@ def test_rays_far_from_a_partial_coastline_are_not_assigned():
     r = plane_wave(d, 1000, 0.0, 100e3)
     line = LineString([(139.2e3, 0.0), (139.2e3, 30e3)])
     seg = segment_coastline([line], 10e3, d)
+    # min_width_factor=0: exact ray tubes, no wavelength-wide regularisation (which would smear
+    # energy over a wavelength, 8 km here, around the end of the partial line)
     with pytest.warns(ResolutionWarning, match="max_distance_m"):
-        tab = segment_arrivals(seg, r, d, period_s=T)
+        tab = segment_arrivals(seg, r, d, period_s=T, min_width_factor=0.0)
     # the last segment gets the rays within max_distance_m (3 cells) beyond its end: 13 km worth
     np.testing.assert_allclose(tab["energy_per_m"].iloc[:2], E_SRC / 100e3, rtol=0.01)
     assert tab["energy_per_m"].iloc[2] == pytest.approx(1.3 * E_SRC / 100e3, rel=0.01)
@@ -577,7 +581,9 @@ def test_shoreline_inshore_of_the_stop_isobath_is_reached():
     d = shelf()
     r = plane_wave(d, 1000, 0.0, 100e3, stop_depth=200.0)
     seg = segment_coastline([LineString([(140e3, 0.0), (140e3, 100e3)])], 10e3, d)
-    tab = segment_arrivals(seg, r, d, period_s=T)
+    # exact ray tubes (no regularisation over the 26 km wavelength at 200 m, which would bias the
+    # segments within a wavelength of the coast's two ends, see docs/focusing.md)
+    tab = segment_arrivals(seg, r, d, period_s=T, min_width_factor=0.0)
     assert tab.attrs["max_distance_m"] == pytest.approx(3 * DX + 1.5 * 8000.0, rel=0.01)
     np.testing.assert_allclose(tab["energy_per_m"], E_SRC / 100e3, rtol=0.01)
     np.testing.assert_allclose(tab["h_stop_m"], 200.0, rtol=1e-6)

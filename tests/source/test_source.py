@@ -382,7 +382,8 @@ def test_beaming_matches_angular_spectrum(strike):
     d = flat_grid(cell_km=5.0, half_km=500.0)
     L, W, s = 300e3, 60e3, 15e3
     eta = _erf_rectangle(d, L, W, s, strike)
-    fan = make_ray_fan(eta, d, 360, seed=3, threshold=0.3)
+    # one launch point per side: the fan's 360 rays then sample 360 azimuths, 1 degree apart
+    fan = make_ray_fan(eta, d, 360, seed=None, threshold=0.3, blocks=1)
     az, w = fan.azimuth_deg, fan.weights
     # maximum perpendicular to strike (either way)
     amax = az[np.argmax(w)]
@@ -407,7 +408,7 @@ def test_gaussian_beaming_closed_form():
     E, N = np.meshgrid(d.x.values - 500e3, d.y.values - 4000e3)
     a, b = 60e3, 20e3  # along north, across
     eta = d.copy(data=np.exp(-(N**2) / (2 * a * a) - E**2 / (2 * b * b)))
-    fan = make_ray_fan(eta, d, 180, seed=0)
+    fan = make_ray_fan(eta, d, 180, seed=None, blocks=1)  # 180 azimuths, 2 degrees apart
     az, w = fan.azimuth_deg, fan.weights
     along = w[np.argmin(np.abs(((az - 0.0) + 180) % 360 - 180))]
     perp = w[np.argmin(np.abs(((az - 90.0) + 180) % 360 - 180))]
@@ -438,12 +439,18 @@ def test_fan_weights_sum_to_energy_and_launch_on_sea():
     jj = np.rint((fan.y0 - d.y.values[0]) / 4e3).astype(int)
     assert np.all(vals[jj, ii] > 0)
     assert np.all(np.abs(eta.values[jj, ii]) >= 0.1 * np.abs(np.where(vals > 0, eta.values, 0)).max() * 0.5)
-    # both sides present, deterministic for a seed, different for another
+    # both sides present; launch points deterministic (8 equal-energy blocks per side), the seed
+    # only rotates the azimuth set by a fraction of its spacing
     assert set(np.unique(fan.side)) == {-1, 1}
+    assert len(set(zip(fan.x0, fan.y0))) == 16
     again = make_ray_fan(eta, dl, 240, seed=11, strike_deg=0.0)
     np.testing.assert_array_equal(again.x0, fan.x0)
+    np.testing.assert_array_equal(again.azimuth_deg, fan.azimuth_deg)
     other = make_ray_fan(eta, dl, 240, seed=12)
-    assert not np.array_equal(other.x0, fan.x0)
+    np.testing.assert_array_equal(other.x0, fan.x0)
+    assert not np.array_equal(other.azimuth_deg, fan.azimuth_deg)
+    spacing = np.diff(np.unique(fan.azimuth_deg))
+    np.testing.assert_allclose(spacing, fan.dtheta_deg, rtol=1e-9)
     # rays heading right of the strike (east) start east of those heading west, on average
     assert fan.x0[fan.side == 1].mean() > fan.x0[fan.side == -1].mean()
     ds = fan.to_dataset()
@@ -548,9 +555,11 @@ def test_real_relief_trench_source(etopo_path):
     E = potential_energy(eta, d)
     assert E > 1e14
     fan = make_ray_fan(eta, d, 360, seed=0)
-    assert fan.weights.sum() == pytest.approx(E, rel=1e-12)
+    # energy bookkeeping: launched + uplift on cells at or above the 20 m stop isobath = E
+    assert fan.weights.sum() + fan.energy_shallow_J == pytest.approx(E, rel=1e-12)
+    assert 0.0 <= fan.energy_shallow_J < 0.01 * E
     dep_at = d.sel(lon=xr_points(fan.x0), lat=xr_points(fan.y0), method="nearest").values
-    assert np.all(dep_at > 0)
+    assert np.all(dep_at > 40.0)  # twice the stop isobath
     with pytest.raises(SourceError, match="on land"):
         uplift_on_grid(FaultSegment(trace=((138.5, 36.0), (140.0, 38.0)), top_depth_km=5.0, dip_deg=30.0,
                                     magnitude=7.5), d)

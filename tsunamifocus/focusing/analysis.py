@@ -33,6 +33,8 @@ Units: SI throughout (m, s, J); azimuths in degrees clockwise from (grid) north.
 
 from __future__ import annotations
 
+import math
+from collections.abc import Sequence
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -44,18 +46,20 @@ from scipy.spatial import cKDTree
 from ..cautions import caution_summary
 from ..coast.coastline import coastline_from_grid
 from ..coast.segments import segment_coastline
+from ..constants import GRAVITY
 from ..errors import InputError
 from ..grid import GridInfo
 from ..ocean.reference import flat_depth, reference_depth
+from ..ocean.wavelength import WAVELENGTH_FRACTION, wavelength_smoothed_depth
 from ..ocean.smooth import _sea, _to_xyz
 from ..propagation.rays import trace_rays
-from .arrivals import REASON_COAST, segment_arrivals
+from .arrivals import REASON_COAST, BandTrace, segment_arrivals
 from .branches import branch_diagnostics
 from .budget import energy_budget
 from .energy import distance_to_launch_m, fresnel_sigma_m, ratio_map, regularised_energy
 from .ranking import rank_segments
 
-__all__ = ['REASON_COAST', 'FocusingResult', 'analyse_focusing']
+__all__ = ['REASON_COAST', 'FocusingResult', 'analyse_focusing', 'default_reference_km']
 
 
 
@@ -90,9 +94,16 @@ class FocusingResult:
     budget : dict
         :func:`energy_budget`.
     runs : dict
-        The RayResults ``real``, ``reference``, ``flat``.
+        The RayResults ``real``, ``reference`` (dominant band), ``flat``, and ``bands`` (all
+        :class:`~tsunamifocus.focusing.arrivals.BandTrace`).
     cautions : str
         Caution text.
+    ray_depth : xarray.DataArray
+        The real bathymetry as the dominant band's wave sees it (what its rays were traced on) [m].
+    reference_km : float
+        Low-pass scale of the reference [km].
+    bands : list of (float, float)
+        ``(period_s, weight)`` of the bands.
     """
 
     energy: xr.DataArray
@@ -108,6 +119,9 @@ class FocusingResult:
     budget: dict
     runs: dict = field(default_factory=dict)
     cautions: str = ""
+    ray_depth: xr.DataArray | None = None
+    reference_km: float = float("nan")
+    bands: list = field(default_factory=list)
 
 
 def _fan_arrays(fan: Any) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray, float | None]:
@@ -120,13 +134,51 @@ def _fan_arrays(fan: Any) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarra
     raise InputError("fan: expected a RayFan or a tuple (x0, y0, azimuth_deg, weights)")
 
 
+def default_reference_km(depth: xr.DataArray, period_s: float, *, gravity: float = GRAVITY) -> float:
+    """Default low-pass scale of the lensing reference: the deep-water wavelength ``c T`` [km].
+
+    ``c = sqrt(g h)`` at the mean depth of the sea cells deeper than 1000 m (all sea cells if
+    none are). The reference then lacks every offshore feature of the wavelength's size and
+    larger - the features the wave itself refracts on - while the shelf and coast stay as they
+    are (:func:`tsunamifocus.ocean.reference.reference_depth`).
+    """
+    if not (np.isfinite(period_s) and period_s > 0):
+        raise InputError(f"period_s={period_s}: expected the source's dominant period in seconds (> 0)")
+    h = np.asarray(depth.values, dtype=float)
+    sea = np.isfinite(h) & (h > 0)
+    if not sea.any():
+        raise InputError(f"depth grid '{depth.name}' has no sea cell")
+    deep = sea & (h > 1000.0)
+    h_deep = float(np.mean(h[deep] if deep.any() else h[sea]))
+    return math.sqrt(gravity * h_deep) * period_s / 1000.0
+
+
+def _trace_band(depth: xr.DataArray, ref: xr.DataArray, fan_arrays: tuple, period_s: float, weight: float,
+                fraction: float, stop_depth: float, kw: dict) -> tuple[BandTrace, xr.DataArray]:
+    """Both oceans of one band, each as a wave of that period sees it, traced with the same fan."""
+    x0, y0, az, w = fan_arrays
+    medium = wavelength_smoothed_depth(depth, period_s, fraction=fraction, stop_depth_m=stop_depth)
+    ref_medium = wavelength_smoothed_depth(ref, period_s, fraction=fraction, stop_depth_m=stop_depth)
+    real = trace_rays(medium, x0, y0, az, weights=w, **kw)
+    reference = trace_rays(ref_medium, x0, y0, az, weights=w, **kw)
+    return BandTrace(float(period_s), float(weight), real, reference), medium
+
+
+def _weighted_map(maps: list[xr.DataArray], weights: list[float], name: str) -> xr.DataArray:
+    out = maps[0].copy(data=sum(wb * np.asarray(m.values, float) for m, wb in zip(maps, weights)))
+    out.name = name
+    return out
+
+
 def analyse_focusing(
     depth: xr.DataArray,
     fan: Any,
     *,
     period_s: float,
-    reference_km: float,
+    reference_km: float | None = None,
     stop_depth: float = 20.0,
+    bands: Sequence[tuple[float, float]] | None = None,
+    wavelength_fraction: float = WAVELENGTH_FRACTION,
     segments: pd.DataFrame | None = None,
     segment_length_m: float | None = None,
     trace_kwargs: dict | None = None,
@@ -136,7 +188,16 @@ def analyse_focusing(
     seed: int = 0,
     top_k: int = 20,
 ) -> FocusingResult:
-    """Trace a source over the real, reference and constant-depth bathymetries and analyse it.
+    """Trace a source, band by band, over the real and reference oceans as the wave sees them.
+
+    For every period band ``(T_b, w_b)`` (default: the one band ``(period_s, 1)``; the pipeline
+    passes :func:`tsunamifocus.source.energy.period_bands`), the real bathymetry and the
+    reference (:func:`tsunamifocus.ocean.reference.reference_depth` at ``reference_km``) are
+    each wavelength-smoothed for ``T_b``
+    (:func:`tsunamifocus.ocean.wavelength.wavelength_smoothed_depth`) and traced with the same
+    fan; a constant-depth ocean is traced once. Segment energies come from ray tubes and are
+    combined over the bands with the weights ``w_b`` (:func:`segment_arrivals`); the maps are
+    the share-weighted sums of the bands' energy maps, Fresnel-regularised.
 
     Parameters
     ----------
@@ -145,18 +206,23 @@ def analyse_focusing(
     fan : RayFan or (x0, y0, azimuth_deg, weights)
         Rays of the source (weights in J).
     period_s : float
-        Dominant period of the source [s] (regularisation wavelength, pulse length).
-    reference_km : float
-        Low-pass scale of the reference bathymetry [km] (Gaussian std).
+        Dominant period of the source [s] (regularisation wavelength of the maps).
+    reference_km : float, optional
+        Low-pass scale of the reference bathymetry [km] (Gaussian std); default
+        :func:`default_reference_km` (the deep-water wavelength at ``period_s``).
     stop_depth : float
         Stop isobath [m].
+    bands : sequence of (float, float), optional
+        ``(period_s, weight)`` of each band.
+    wavelength_fraction : float
+        Gaussian std of the wavelength smoothing in local wavelengths.
     segments : pandas.DataFrame, optional
         Coastline segments; default: the ``stop_depth`` contour of the grid cut into
         ``segment_length_m`` pieces.
     segment_length_m : float, optional
         Default 10 grid cells.
     trace_kwargs : dict, optional
-        Extra arguments of :func:`tsunamifocus.rays.trace_rays` (e.g. ``q0``, ``p0``, ``max_time_s``).
+        Extra arguments of :func:`tsunamifocus.propagation.rays.trace_rays` (e.g. ``max_time_s``).
     max_distance_m, min_rays, n_boot, seed : see :func:`segment_arrivals`.
     top_k : int
         Length of the ranking.
@@ -165,49 +231,65 @@ def analyse_focusing(
     -------
     FocusingResult
     """
-
     info = GridInfo.from_dataarray(depth)
     x0, y0, az, w, e_src = _fan_arrays(fan)
     kw = dict(trace_kwargs or {})
     kw.setdefault("stop_depth", stop_depth)
+    if reference_km is None:
+        reference_km = default_reference_km(depth, period_s)
+    band_list = [(float(t), float(wb)) for t, wb in (bands or [(period_s, 1.0)])]
     ref = reference_depth(depth, reference_km)
-    flat = flat_depth(depth)
-    real = trace_rays(depth, x0, y0, az, weights=w, **kw)
-    refr = trace_rays(ref, x0, y0, az, weights=w, **kw)
-    flatr = trace_rays(flat, x0, y0, az, weights=w, **kw)
-    dist = distance_to_launch_m(depth, x0, y0)
-    sigma = fresnel_sigma_m(depth, period_s, dist)
-    sea = _sea(depth)
-    e_real = regularised_energy(real.energy, sigma, sea)
-    e_ref = regularised_energy(refr.energy, sigma, sea)
-    e_flat = regularised_energy(flatr.energy, sigma, sea)
-    lens = ratio_map(e_real, e_ref, "lensing_factor",
-                     f"energy over real / over same-mean reference bathymetry (low-pass {reference_km:g} km)")
-    foc = ratio_map(e_real, e_flat, "focusing_factor", "energy over real bathymetry / over constant-depth ocean")
-    tt = real.first_arrival_s / 60.0
-    tt.name = "travel_time_min"
-    tt.attrs = {"units": "min", "long_name": "first ray arrival time", "caution": caution_summary()}
+    traced = [_trace_band(depth, ref, (x0, y0, az, w), t, wb, wavelength_fraction, stop_depth, kw)
+              for t, wb in band_list]
+    runs = [b for b, _ in traced]
+    dom = int(np.argmax([b.weight for b in runs]))
+    flatr = trace_rays(flat_depth(depth), x0, y0, az, weights=w, **kw)
+    maps = _focusing_maps(depth, runs, flatr, x0, y0, period_s, reference_km)
     if segments is None:
         if segment_length_m is None:
             segment_length_m = 10.0 * max(info.spacing_m())
         segments = segment_coastline(coastline_from_grid(depth, stop_depth), segment_length_m, depth)
-    table = segment_arrivals(segments, real, depth, period_s=period_s, ref_result=refr,
+    table = segment_arrivals(segments, None, depth, period_s=period_s, bands=runs,
                              max_distance_m=max_distance_m, min_rays=min_rays, n_boot=n_boot, seed=seed)
     ranking = rank_segments(table, top_k=top_k, by="lensing_factor")
     d_coast = _segment_distance(table, info, x0, y0)
-    diag = branch_diagnostics(real, depth, lowpass_km=reference_km, coast_distance_m=d_coast)
-    budget = energy_budget(real, table, source_energy_J=e_src)
+    diag = branch_diagnostics(runs[dom].real, depth, lowpass_km=reference_km, coast_distance_m=d_coast)
+    budget = energy_budget([(b.real, b.weight) for b in runs], table, source_energy_J=e_src,
+                           shallow_J=float(getattr(fan, "energy_shallow_J", 0.0)))
     return FocusingResult(
-        energy=e_real, energy_raw=real.energy, lensing_factor=lens, focusing_factor=foc,
-        travel_time_min=tt, kernel_sigma_m=sigma, reference_depth=ref, segments=table,
-        ranking=ranking, diagnostics=diag, budget=budget,
-        runs={"real": real, "reference": refr, "flat": flatr}, cautions=caution_summary(),
+        energy=maps["energy"], energy_raw=maps["energy_raw"], lensing_factor=maps["lensing"],
+        focusing_factor=maps["focusing"], travel_time_min=maps["travel_time"], kernel_sigma_m=maps["sigma"],
+        reference_depth=ref, segments=table, ranking=ranking, diagnostics=diag, budget=budget,
+        runs={"real": runs[dom].real, "reference": runs[dom].reference, "flat": flatr, "bands": runs},
+        cautions=caution_summary(), ray_depth=traced[dom][1], reference_km=float(reference_km),
+        bands=band_list,
     )
+
+
+def _focusing_maps(depth: xr.DataArray, runs: list[BandTrace], flatr: Any, x0: np.ndarray, y0: np.ndarray,
+                   period_s: float, reference_km: float) -> dict[str, xr.DataArray]:
+    """Energy, lensing and focusing rasters (band-weighted, Fresnel-regularised) and travel time."""
+    wts = [b.weight for b in runs]
+    raw = _weighted_map([b.real.energy for b in runs], wts, "energy")
+    raw_ref = _weighted_map([b.reference.energy for b in runs], wts, "energy")
+    sigma = fresnel_sigma_m(depth, period_s, distance_to_launch_m(depth, x0, y0))
+    sea = _sea(depth)
+    e_real = regularised_energy(raw, sigma, sea)
+    e_ref = regularised_energy(raw_ref, sigma, sea)
+    e_flat = regularised_energy(flatr.energy, sigma, sea)
+    lens = ratio_map(e_real, e_ref, "lensing_factor",
+                     f"energy over real / over same-mean reference bathymetry (low-pass {reference_km:g} km)")
+    foc = ratio_map(e_real, e_flat, "focusing_factor", "energy over real bathymetry / over constant-depth ocean")
+    first = runs[int(np.argmax(wts))].real.first_arrival_s
+    tt = first / 60.0
+    tt.name = "travel_time_min"
+    tt.attrs = {"units": "min", "long_name": "first ray arrival time", "caution": caution_summary()}
+    return {"energy": e_real, "energy_raw": raw, "lensing": lens, "focusing": foc, "travel_time": tt, "sigma": sigma}
 
 
 def _segment_distance(table: pd.DataFrame, info: GridInfo, x0: np.ndarray, y0: np.ndarray) -> float:
     """Energy-weighted median distance [m] from the source to the segments that received rays."""
-    hit = table["n_rays"].to_numpy() > 0
+    hit = table["energy_J"].to_numpy(float) > 0
     if not hit.any():
         return float("nan")
     tree = cKDTree(np.unique(np.round(_to_xyz(info, x0, y0), 3), axis=0))

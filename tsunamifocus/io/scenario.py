@@ -177,7 +177,7 @@ class RaysConfig:
 class FocusingConfig:
     """``[focusing]``: reference-bathymetry low-pass length [km] and optional wave period [s]."""
 
-    reference_smooth_km: float = 50.0
+    reference_smooth_km: float | None = None
     period_s: float | None = None
 
 
@@ -469,7 +469,7 @@ _SPEC: dict[str, tuple[_Key, ...]] = {
     ),
     "focusing": (
         _f("reference_smooth_km", "low-pass length of the reference bathymetry (lensing factor)", "km",
-           50.0, lo=0.0, hi=5000.0, lo_open=True),
+           lo=0.0, hi=5000.0, lo_open=True, default_doc="the deep-water wavelength at the dominant period"),
         _f("period_s", "dominant wave period (sets the caustic regularisation)", "s", lo=0.0, hi=36000.0,
            lo_open=True, default_doc="from the source width"),
     ),

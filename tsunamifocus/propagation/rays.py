@@ -353,6 +353,7 @@ def trace_rays(
             "launch_x": ("ray", x0, {"units": xu}),
             "launch_y": ("ray", y0, {"units": yu}),
             "launch_azimuth_deg": ("ray", np.mod(az, 360.0), {"units": "degree"}),
+            "q0": ("ray", q0a, {"long_name": "initial paraxial q (0: point source; else line source)"}),
             "q": ("ray", out[:, _k.O_Q], {"long_name": "paraxial spreading q (dq/dt = c^2 p)"}),
             "p": ("ray", out[:, _k.O_P], {"long_name": "paraxial slowness perturbation p"}),
             "caustics": ("ray", outi[:, 1].astype(np.int32), {"long_name": "sign changes of q"}),

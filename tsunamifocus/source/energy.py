@@ -12,7 +12,7 @@ from ..errors import SourceError
 from ..grid import GridInfo
 from ..ocean.smooth import sea_mask
 
-__all__ = ['potential_energy', 'directional_spectrum']
+__all__ = ['potential_energy', 'directional_spectrum', 'period_bands']
 
 
 def _sig_window(gi: GridInfo, sig: np.ndarray, margin: float = 0.5, extra: int = 0) -> tuple[np.ndarray, np.ndarray]:
@@ -135,3 +135,75 @@ def directional_spectrum(
     KY = k[None, :] * np.cos(az)[:, None]
     vals = interp(np.stack([KY.ravel(), KX.ravel()], axis=1)).reshape(KX.shape)
     return np.trapezoid(vals * k[None, :], k, axis=1)
+
+
+def period_bands(
+    eta: xr.DataArray,
+    depth: xr.DataArray,
+    period_s: float,
+    *,
+    threshold: float = 0.1,
+    pad: int = 4,
+) -> list[tuple[float, float]]:
+    """Octave period bands of the source and the share of its energy in each.
+
+    The initial sea surface's wavenumber power spectrum ``|F(k)|^2`` (FFT of the uplift window,
+    zero-padded ``pad``-fold) is mapped to periods with the long-wave relation
+    ``T = 2 pi / (k c_s)``, ``c_s = sqrt(g h_s)`` at the mean depth ``h_s`` of the cells where
+    ``|eta| >= threshold max|eta|`` (linear long-wave theory: each Fourier component of the
+    initial surface travels as a wave of that period). Three octave bands centred on
+    ``T0 / 2``, ``T0`` and ``2 T0`` (``T0 = period_s``; edges ``T0 / sqrt(2)``,
+    ``sqrt(2) T0``) receive the energy below, within and above the central octave.
+
+    Parameters
+    ----------
+    eta : xarray.DataArray
+        Initial sea surface [m].
+    depth : xarray.DataArray
+        Depth [m], positive down.
+    period_s : float
+        Dominant period ``T0`` [s] (e.g. ``SourceSummary.period_s``).
+    threshold : float
+        Fraction of the peak ``|eta|`` defining the source area for ``h_s``.
+    pad : int
+        Zero-padding factor of the FFT.
+
+    Returns
+    -------
+    list of (float, float)
+        ``(period_s, weight)`` for the three bands, shortest first; weights sum to 1.
+
+    Raises
+    ------
+    SourceError
+        Non-positive period, or no displacement over sea cells.
+    """
+    if not (np.isfinite(period_s) and period_s > 0):
+        raise SourceError(f"period_s = {period_s!r}: expected the source's dominant period in seconds (> 0)")
+    gi = GridInfo.from_dataarray(depth)
+    dep = np.asarray(depth.values, dtype=float)
+    sea = sea_mask(dep)
+    e = np.where(sea, np.nan_to_num(np.asarray(eta.values, dtype=float)), 0.0)
+    amax = float(np.max(np.abs(e))) if e.size else 0.0
+    if amax == 0.0:
+        raise SourceError("the source has no sea-surface displacement over sea cells of the grid")
+    c_s = math.sqrt(GRAVITY * float(np.mean(dep[sea & (np.abs(e) >= threshold * amax)])))
+    rows, cols = _sig_window(gi, np.abs(e) >= 1e-3 * amax, margin=0.5)
+    block = e[np.ix_(rows, cols)]
+    lat = float(gi.y[rows].mean()) if gi.geographic else 0.0
+    if gi.geographic:
+        k_deg = math.pi / 180.0 * gi.radius_m
+        dx, dy = gi.dx * k_deg * math.cos(math.radians(lat)), gi.dy * k_deg
+    else:
+        dx, dy = gi.dx, gi.dy
+    py, px = pad * block.shape[0], pad * block.shape[1]
+    power = np.abs(np.fft.fft2(block, s=(py, px))) ** 2
+    kx = 2 * np.pi * np.fft.fftfreq(px, d=dx)
+    ky = 2 * np.pi * np.fft.fftfreq(py, d=dy)
+    k = np.hypot(*np.meshgrid(kx, ky))
+    with np.errstate(divide="ignore"):
+        period = np.where(k > 0, 2 * np.pi / (k * c_s), np.inf)
+    edges = period_s * np.array([0.0, 2**-0.5, 2**0.5, np.inf])
+    share = np.array([power[(period >= edges[i]) & (period < edges[i + 1])].sum() for i in range(3)])
+    share = share / share.sum()
+    return [(float(t), float(s)) for t, s in zip(period_s * np.array([0.5, 1.0, 2.0]), share)]

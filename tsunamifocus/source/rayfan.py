@@ -9,6 +9,7 @@ import numpy as np
 import xarray as xr
 
 from ..cautions import caution_summary
+from ..constants import GRAVITY, RHO_SEAWATER
 from ..errors import SourceError
 from ..grid import GridInfo
 from ..ocean.smooth import sea_mask
@@ -29,7 +30,7 @@ class RayFan:
     azimuth_deg : numpy.ndarray
         Launch direction [degrees clockwise from (grid) north].
     weights : numpy.ndarray
-        Energy per ray [J]; sums to ``energy_J``.
+        Energy per ray [J]; sums to ``energy_J - energy_shallow_J``.
     side : numpy.ndarray
         int8: +1 for rays heading to the right of the strike (the dip side), -1 to the left.
     energy_J : float
@@ -42,7 +43,11 @@ class RayFan:
         The directional energy distribution: fraction of E in each 0.1-degree bin centred at
         ``pattern_azimuth_deg``.
     seed : int
-        Seed of the launch-point sampling.
+        Seed of the rotation of the azimuth set.
+    dtheta_deg : float
+        Azimuth spacing of the half fan leaving each launch point [degrees] (ray-tube width).
+    energy_shallow_J : float
+        Uplift energy on sea cells at or shallower than the stop isobath [J], not launched.
     method : str
         Basis of the directional weights.
     """
@@ -58,6 +63,8 @@ class RayFan:
     pattern_azimuth_deg: np.ndarray
     pattern: np.ndarray
     seed: int | None = 0
+    dtheta_deg: float = float("nan")
+    energy_shallow_J: float = 0.0
     method: str = "far-field angular spectrum of the initial sea surface (linear long-wave theory)"
 
     def __len__(self) -> int:
@@ -105,6 +112,26 @@ def _principal_strike(E: np.ndarray, N: np.ndarray, w: np.ndarray) -> float:
     return math.degrees(math.atan2(ve, vn)) % 180.0
 
 
+def _local_metric(gi: GridInfo, xs: np.ndarray, ys: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """East/north coordinates [m] of points near each other (local equirectangular on lon/lat)."""
+    if not gi.geographic:
+        return np.asarray(xs, float), np.asarray(ys, float)
+    k = math.pi / 180.0 * gi.radius_m
+    lat0 = float(np.mean(ys))
+    lon0 = math.degrees(float(np.angle(np.mean(np.exp(1j * np.radians(xs))))))
+    return (((xs - lon0 + 180.0) % 360.0) - 180.0) * k * math.cos(math.radians(lat0)), (ys - lat0) * k
+
+
+def _equal_energy_blocks(cells: np.ndarray, along: np.ndarray, w: np.ndarray,
+                         blocks: int) -> list[tuple[np.ndarray, float]]:
+    """Cut ``cells`` along strike into up to ``blocks`` pieces of equal energy: (cells, share)."""
+    order = cells[np.argsort(along[cells], kind="stable")]
+    cw = np.cumsum(w[order])
+    k = np.minimum((cw / cw[-1] * blocks - 1e-12).astype(int), blocks - 1)
+    total = w[cells].sum()
+    return [(order[k == b], float(w[order[k == b]].sum() / total)) for b in range(blocks) if np.any(k == b)]
+
+
 def make_ray_fan(
     eta: xr.DataArray,
     depth: xr.DataArray,
@@ -114,21 +141,28 @@ def make_ray_fan(
     threshold: float = 0.1,
     strike_deg: float | None = None,
     azimuth_offset_deg: float = 0.0,
+    stop_depth_m: float = 20.0,
+    blocks: int = 8,
 ) -> RayFan:
     """Energy-weighted ray fan from an initial sea surface.
 
-    Directions: ``n_rays`` azimuths evenly spaced (``360 / n_rays`` apart, starting at
-    ``azimuth_offset_deg + 180 / n_rays``); ray ``i`` carries ``E x`` the fraction of the
-    far-field directional energy ``P(theta)`` (:func:`directional_spectrum`, evaluated every
-    0.1 degree and integrated over the ray's bin) falling in its bin — so the weights sum to
-    ``E`` and an elongated source beams most energy perpendicular to its long axis. The
-    azimuths are clockwise from north on lon/lat grids and from grid north (the ``y`` axis) on
-    projected grids.
+    Directions: ``M = n_rays / blocks`` azimuths evenly spaced ``360 / M`` degrees apart (the
+    set rotated by ``azimuth_offset_deg`` and, when ``seed`` is given, by a seeded fraction of
+    one spacing). The energy ``E`` of each azimuth bin is the fraction of the far-field
+    directional energy ``P(theta)`` (:func:`directional_spectrum`, evaluated every 0.1 degree
+    and integrated over the bin) falling in it — so an elongated source beams most energy
+    perpendicular to its long axis. Azimuths are clockwise from north on lon/lat grids and from
+    grid north (the ``y`` axis) on projected grids.
 
-    Launch points: sampled (``numpy.random.default_rng(seed)``, with ``eta^2 x cell area`` as
-    probability) among sea cells with ``|eta| >= threshold x max|eta|``; a ray heading to the
-    right of the strike starts on the right half of that region, and vice versa, when that half
-    has sea cells (else anywhere in the region). Points are jittered uniformly within the cell.
+    Launch points: deterministic. The launch area (sea cells deeper than twice ``stop_depth_m``
+    with ``|eta| >= threshold x max|eta|``) is split by the strike line through its energy
+    centroid; each side is cut along strike into ``blocks`` pieces of equal ``eta^2`` energy,
+    and each piece launches, from its cell nearest to its energy centroid, one ray per azimuth
+    heading to its side, carrying the bin's energy times the piece's share of that side. Every
+    launch point thus emits an ordered half fan, whose neighbouring rays bound ray tubes of
+    ``dtheta_deg`` (what :func:`tsunamifocus.coast.tubes.tube_deposit` needs). Uplift energy on
+    sea cells at or shallower than the stop isobath is already at the coast: it is not
+    launched and is booked as ``energy_shallow_J`` (weights sum to ``E - energy_shallow_J``).
 
     Parameters
     ----------
@@ -137,9 +171,9 @@ def make_ray_fan(
     depth : xarray.DataArray
         Depth grid [m].
     n_rays : int
-        Number of rays (>= 8).
+        Number of rays, about (>= 8); the fan has ``blocks x round(n_rays / blocks)`` rays.
     seed : int, optional
-        Seed for the launch-point sampling.
+        Seed of the rotation of the azimuth set by a fraction of one spacing (None: no rotation).
     threshold : float
         Fraction of the peak |eta| bounding the launch area (0 < threshold < 1).
     strike_deg : float, optional
@@ -148,6 +182,10 @@ def make_ray_fan(
         (oriented 0-180 degrees).
     azimuth_offset_deg : float
         Rotation of the azimuth set [degrees].
+    stop_depth_m : float
+        Stop isobath [m] of the run: launch points lie deeper than twice this depth.
+    blocks : int
+        Launch points on each side of the strike (>= 1).
 
     Returns
     -------
@@ -162,6 +200,10 @@ def make_ray_fan(
         raise SourceError(f"n_rays must be an integer >= 8, got {n_rays!r}")
     if not (0.0 < threshold < 1.0):
         raise SourceError(f"threshold must be in (0, 1), got {threshold}")
+    if not (isinstance(blocks, (int, np.integer)) and blocks >= 1):
+        raise SourceError(f"blocks must be an integer >= 1, got {blocks!r}")
+    if not (np.isfinite(stop_depth_m) and stop_depth_m > 0):
+        raise SourceError(f"stop_depth_m = {stop_depth_m!r}: expected a positive depth in metres")
     gi = GridInfo.from_dataarray(depth)
     e = np.asarray(eta.values, dtype=float)
     if e.shape != (gi.ny, gi.nx):
@@ -193,62 +235,60 @@ def make_ray_fan(
         turns = np.floor(a / 360.0)
         return turns + np.interp(a - 360.0 * turns, dfine * np.arange(n_fine + 1), cum)
 
-    width = 360.0 / n_rays
-    edges = azimuth_offset_deg + width * np.arange(n_rays + 1)
+    rng = np.random.default_rng(seed) if seed is not None else None
+    n_az = max(8, int(round(n_rays / blocks)))
+    width = 360.0 / n_az
+    offset = azimuth_offset_deg + (float(rng.uniform(0.0, width)) if rng is not None else 0.0)
+    edges = offset + width * np.arange(n_az + 1)
     centres = (edges[:-1] + 0.5 * width) % 360.0
-    c = cdf(edges)
-    frac = np.diff(c)
-    frac = np.maximum(frac, 0.0)
-    weights = energy * (frac / frac.sum())
+    frac = np.maximum(np.diff(cdf(edges)), 0.0)
+    frac = frac / frac.sum()
 
-    # launch area in local metric coordinates
-    jj, ii = np.nonzero(sig)
-    xs, ys = gi.x[ii], gi.y[jj]
-    if gi.geographic:
-        k = math.pi / 180.0 * gi.radius_m
-        lat0 = float(np.mean(ys))
-        dl = np.angle(np.mean(np.exp(1j * np.radians(xs))))
-        lon0 = math.degrees(dl)
-        Ex = (((xs - lon0 + 180.0) % 360.0) - 180.0) * k * math.cos(math.radians(lat0))
-        Ny = (ys - lat0) * k
-    else:
-        Ex, Ny = xs, ys
+    shallow = sea & (dep <= stop_depth_m)
+    energy_shallow = float(RHO_SEAWATER * GRAVITY * 0.5 * np.sum(
+        (es**2 * np.broadcast_to(gi.cell_area_m2(), e.shape))[shallow]))
+    launch_ok = sig & (dep > 2.0 * stop_depth_m)
+    if not launch_ok.any():
+        raise SourceError(
+            f"no sea cell deeper than {2 * stop_depth_m:g} m (twice the stop isobath) lies under the source: "
+            "the rupture is on land or in the shallows; move it offshore or lower stop_depth_m")
+    jj, ii = np.nonzero(launch_ok)
+    Ex, Ny = _local_metric(gi, gi.x[ii], gi.y[jj])
     area = np.broadcast_to(gi.cell_area_m2(), e.shape)[jj, ii]
     w = es[jj, ii] ** 2 * area
     if strike_deg is None and "strike_deg" in eta.attrs:
         strike_deg = float(eta.attrs["strike_deg"])
-    if strike_deg is None:
-        strike = _principal_strike(Ex, Ny, w)
-    else:
-        strike = float(strike_deg) % 360.0
+    strike = _principal_strike(Ex, Ny, w) if strike_deg is None else float(strike_deg) % 360.0
     s = math.radians(strike)
     me, mn = np.sum(w * Ex) / w.sum(), np.sum(w * Ny) / w.sum()
-    # signed distance to the right of the strike line through the energy centroid
+    # signed distance to the right of the strike line through the energy centroid, and along it
     right = (Ex - me) * math.cos(s) - (Ny - mn) * math.sin(s)
-    ray_side = np.where(np.sin(np.radians(centres - strike)) >= 0.0, 1, -1).astype(np.int8)
-
-    rng = np.random.default_rng(seed)
-    x0 = np.empty(n_rays)
-    y0 = np.empty(n_rays)
+    along = (Ex - me) * math.sin(s) + (Ny - mn) * math.cos(s)
+    az_side = np.where(np.sin(np.radians(centres - strike)) >= 0.0, 1, -1).astype(np.int8)
+    launched = energy - energy_shallow
+    parts = []
     for sval, msk in ((1, right >= 0.0), (-1, right < 0.0)):
-        idx_rays = np.nonzero(ray_side == sval)[0]
-        if idx_rays.size == 0:
+        az_idx = np.flatnonzero(az_side == sval)
+        cells = np.flatnonzero(msk) if np.any(msk) else np.arange(w.size)
+        if az_idx.size == 0:
             continue
-        cand = np.nonzero(msk)[0] if np.any(msk) else np.arange(w.size)
-        p = w[cand] / w[cand].sum()
-        pick = cand[rng.choice(cand.size, size=idx_rays.size, p=p)]
-        jit = rng.uniform(-0.5, 0.5, size=(2, idx_rays.size))
-        x0[idx_rays] = xs[pick] + jit[0] * gi.dx
-        y0[idx_rays] = ys[pick] + jit[1] * gi.dy
+        for block, share in _equal_energy_blocks(cells, along, w, blocks):
+            bx, by = np.sum(w[block] * Ex[block]) / w[block].sum(), np.sum(w[block] * Ny[block]) / w[block].sum()
+            pick = block[np.argmin((Ex[block] - bx) ** 2 + (Ny[block] - by) ** 2)]
+            parts.append((np.full(az_idx.size, gi.x[ii[pick]]), np.full(az_idx.size, gi.y[jj[pick]]),
+                          centres[az_idx], launched * frac[az_idx] * share, np.full(az_idx.size, sval, np.int8)))
+    x0, y0, az, weights, ray_side = (np.concatenate(p) for p in zip(*parts))
     if gi.geographic:
         x0 = gi.wrap_lon(x0)
     return RayFan(
         x0=x0,
         y0=y0,
-        azimuth_deg=centres,
+        azimuth_deg=az,
         weights=weights,
         side=ray_side,
         energy_J=energy,
+        dtheta_deg=width,
+        energy_shallow_J=energy_shallow,
         strike_deg=strike,
         crs_wkt=gi.crs_wkt,
         pattern_azimuth_deg=fine_az,

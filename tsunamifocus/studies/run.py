@@ -33,6 +33,7 @@ from ..ocean.perturb import draw_member_parameters, perturb_bathymetry
 from ..ocean.smooth import smooth_bathymetry
 from ..propagation.rays import trace_rays
 from ..source.faults import FaultSegment, PointSource, Rupture
+from ..source.energy import period_bands
 from ..source.rayfan import make_ray_fan
 from ..source.summary import summarize_source
 from ..source.uplift import uplift_on_grid
@@ -225,22 +226,25 @@ def analyse_source(
     eta = uplift_on_grid(src, depth)
     count = int(n_rays or scenario.rays.count)
     fan = make_ray_fan(eta, depth, count, seed=scenario.rays.seed,
-                         azimuth_offset_deg=float(p.get("launch_jitter_deg", 0.0)))
+                       azimuth_offset_deg=float(p.get("launch_jitter_deg", 0.0)),
+                       stop_depth_m=scenario.rays.stop_depth_m)
     summary = summarize_source(src, eta, depth, fan)
     period = float(scenario.focusing.period_s or summary.period_s)
+    bands = period_bands(eta, depth, period)
     pr.done(f"Mw {summary.mw:.2f}, E = {summary.energy_J:.3g} J, period {period / 60:.1f} min, {fan.n_rays} rays")
     if segments is None:
         pr.start("coast", "coastline segments")
         segments = _segments_for(depth, scenario)
         pr.done(f"{len(segments)} segments of ~{scenario.coast.segment_km:g} km")
-    pr.start("trace", f"tracing {fan.n_rays} rays over real, reference and constant-depth oceans")
+    pr.start("trace", f"tracing {fan.n_rays} rays in {len(bands)} period bands over the real and reference "
+             "oceans as the wave sees them, and over a constant-depth ocean")
     kw = {"max_time_s": scenario.rays.max_time_h * 3600.0, "keep_paths": keep_paths}
     if threads is not None:
         kw["threads"] = int(threads)
     if scenario.rays.step_s:
         kw["step_s"] = scenario.rays.step_s
     foc = analyse_focusing(
-        depth, fan, period_s=period, reference_km=scenario.focusing.reference_smooth_km,
+        depth, fan, period_s=period, reference_km=scenario.focusing.reference_smooth_km, bands=bands,
         stop_depth=scenario.rays.stop_depth_m, segments=segments, trace_kwargs=kw,
         min_rays=scenario.coast.min_rays, seed=scenario.rays.seed, top_k=scenario.output.top_k,
     )
@@ -408,7 +412,7 @@ def arrival_times(
         res = trace_rays(depth, x0, y0, az, stop_depth=stop_depth, max_time_s=max_time_s, **ray_options)
     else:
         eta = uplift_on_grid(source, depth)
-        fan = make_ray_fan(eta, depth, n_rays)
+        fan = make_ray_fan(eta, depth, n_rays, stop_depth_m=stop_depth)
         res = trace_rays(depth, fan.x0, fan.y0, fan.azimuth_deg, weights=fan.weights, stop_depth=stop_depth,
                          max_time_s=max_time_s, **ray_options)
     pts = np.asarray(points, dtype=float).reshape(-1, 2)
