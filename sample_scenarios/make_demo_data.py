@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import pathlib
 
-from tsunamifocus.demo import write_demo_data
+from tsunamifocus.products.demo import write_demo_data
 
 if __name__ == "__main__":
     here = pathlib.Path(__file__).resolve().parent

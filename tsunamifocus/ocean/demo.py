@@ -1,11 +1,12 @@
 """The invented demo region: the Meridane coast.
 
 Everything here is made up and generated deterministically by code: an ocean basin west of
-an invented coastline with a trench, an abyssal plain at 4-5 km, a seamount chain (the
-Orrin Seamounts), a ridge (Tallis Rise), a continental slope and shelf cut by a submarine
-canyon (Vell Canyon), bays and headlands, and smooth Gaussian-correlated random depth
-fluctuations of a few percent with a correlation length of tens of km - the ingredient of
-branched flow. No real place is depicted.
+an invented coastline with a trench, an abyssal plain at 4-5 km, a plateau (Brannock
+Plateau), a ridge aimed at the coast (Tallis Rise), a seamount chain (the Orrin Seamounts), a
+fracture zone (Sorrel Fracture Zone), random relief with a red spectrum (power growing with
+scale), a continental slope and shelf cut by a submarine canyon (Vell Canyon), bays and
+headlands. The features are tens to hundreds of kilometres across, the scales at which a
+tsunami's wavelength lets it refract and focus. No real place is depicted.
 
 The grid sits on a local transverse Mercator projection centred on an arbitrary point of
 open ocean (so that coordinates are valid on Earth); the names are fictional.
@@ -21,7 +22,7 @@ from pyproj import CRS, Transformer
 
 from ..errors import InputError
 from ..grid import make_grid
-from .randomfield import gaussian_random_field
+from .randomfield import red_noise_field
 
 __all__ = ['DemoRegion', 'DEMO_CRS', 'DEMO_PLACES', 'make_demo_bathymetry', 'demo_to_lonlat']
 
@@ -37,10 +38,10 @@ DEMO_CRS = _demo_crs()
 
 #: Invented harbours and gauges of the Meridane coast: name -> (x_km, y_km) in DEMO_CRS.
 DEMO_PLACES: dict[str, tuple[float, float]] = {
-    "Port Aldwyn harbour entrance": (648.0, 130.0),
-    "Saltmere gauge": (640.0, 300.0),
-    "Corran Head": (625.0, 420.0),
-    "Fenwick Bay marina": (668.0, 510.0),
+    "Port Aldwyn harbour entrance": (848.0, 330.0),
+    "Saltmere gauge": (834.0, 520.0),
+    "Corran Head": (847.0, 700.0),
+    "Fenwick Bay marina": (846.0, 880.0),
 }
 
 
@@ -48,38 +49,65 @@ DEMO_PLACES: dict[str, tuple[float, float]] = {
 class DemoRegion:
     """Parameters of the invented Meridane coast (lengths in km, depths in m)."""
 
-    width_km: float = 760.0
-    height_km: float = 640.0
-    spacing_km: float = 2.0
+    width_km: float = 1000.0
+    height_km: float = 1200.0
+    spacing_km: float = 3.0
     abyssal_depth_m: float = 4600.0
-    trench_x_km: float = 110.0
-    trench_depth_m: float = 6800.0
-    slope_start_km: float = 470.0
-    shelf_break_km: float = 565.0
-    shelf_depth_m: float = 160.0
-    coast_x_km: float = 650.0
-    fluct_rms: float = 0.04
-    fluct_corr_km: float = 22.0
-    seed: int = 20261201
+    trench_x_km: float = 150.0
+    trench_extra_m: float = 2200.0
+    coast_x_km: float = 840.0
+    shelf_depth_m: float = 150.0
+    relief_rms_m: float = 250.0
+    relief_slope: float = 3.0
+    seed: int = 20261202
 
 
 def _coast_position(y_km: np.ndarray, r: DemoRegion) -> np.ndarray:
-    """x of the shoreline [km] as a function of y: headlands and bays."""
+    """x of the shoreline [km] as a function of y: bays and headlands; turns east near both ends."""
     y = y_km
-    c = r.coast_x_km + 14.0 * np.sin(2 * np.pi * y / 210.0) + 6.0 * np.sin(2 * np.pi * y / 67.0 + 1.0)
-    c += 26.0 * np.exp(-(((y - 510.0) / 38.0) ** 2))  # Fenwick Bay
-    c -= 22.0 * np.exp(-(((y - 420.0) / 22.0) ** 2))  # Corran Head
-    c += 10.0 * np.exp(-(((y - 130.0) / 18.0) ** 2))  # Port Aldwyn inlet
-    return c
+    c = r.coast_x_km + 18.0 * np.sin(2 * np.pi * y / 260.0) + 8.0 * np.sin(2 * np.pi * y / 90.0 + 1.0)
+    c += 30.0 * np.exp(-(((y - 700.0) / 40.0) ** 2))  # Corran bight
+    c -= 28.0 * np.exp(-(((y - 420.0) / 28.0) ** 2))  # Saltmere headland
+    north = np.clip((y - (r.height_km - 190.0)) / 190.0, 0.0, None)
+    south = np.clip((190.0 - y) / 190.0, 0.0, None)
+    return c + 400.0 * (north**1.5 + south**1.5)
+
+
+def _offshore_features(X: np.ndarray, Y: np.ndarray) -> np.ndarray:
+    """Height [m] of the named features above the abyssal plain: each tens to hundreds of km across."""
+    h = np.zeros_like(X)
+    # Brannock Plateau: ~220 x 160 km, rising 2600 m, steep-sided
+    u = ((X - 470.0) / 110.0) ** 2 + ((Y - 330.0) / 80.0) ** 2
+    h += 2600.0 / (1.0 + np.exp((u - 1.0) * 5.0))
+    # Tallis Rise: a ridge 500 km long, 70 km wide, 1700 m high, aimed at the coast
+    a = np.radians(-12.0)
+    uu = (X - 470.0) * np.cos(a) + (Y - 760.0) * np.sin(a)
+    vv = -(X - 470.0) * np.sin(a) + (Y - 760.0) * np.cos(a)
+    h += 1700.0 * np.exp(-((vv / 35.0) ** 2)) * np.exp(-((uu / 260.0) ** 4))
+    # Orrin Seamounts: a chain of five, 45-65 km across
+    for sx, sy, hgt, rad in ((250, 940, 2000, 22), (330, 980, 2600, 28), (420, 1010, 3000, 32),
+                             (510, 1040, 2400, 26), (600, 1060, 2800, 30)):
+        h += hgt * np.exp(-((X - sx) ** 2 + (Y - sy) ** 2) / (2.0 * rad * rad))
+    # Sorrel Fracture Zone: an east-west trough with a 500 m step across it
+    inside = (X > 220.0) & (X < 680.0)
+    h -= inside * (250.0 * np.tanh((Y - 560.0) / 15.0) + 700.0 * np.exp(-(((Y - 560.0) / 12.0) ** 2)))
+    return h
 
 
 def make_demo_bathymetry(region: DemoRegion | None = None) -> xr.DataArray:
     """Generate the Meridane demo bathymetry as a depth grid (projected, metres).
 
+    The focusing comes from features a tsunami sees, tens to hundreds of kilometres across (a
+    plateau, a ridge aimed at the coast, a seamount chain, a fracture zone) and from random
+    relief with a red spectrum (:func:`tsunamifocus.ocean.randomfield.red_noise_field`), not
+    from short fluctuations below the wavelength. The coast of interest lies far from the grid
+    edges: the shoreline runs north-south 800-870 km east of the trench and turns east near the
+    northern and southern ends.
+
     Parameters
     ----------
     region : DemoRegion, optional
-        Parameters; the defaults give a 380 x 320 grid of 2 km cells.
+        Parameters; the defaults give a 400 x 333 grid of 3 km cells.
 
     Returns
     -------
@@ -93,48 +121,24 @@ def make_demo_bathymetry(region: DemoRegion | None = None) -> xr.DataArray:
     x_km = np.arange(r.spacing_km / 2, r.width_km, r.spacing_km)
     y_km = np.arange(r.spacing_km / 2, r.height_km, r.spacing_km)
     X, Y = np.meshgrid(x_km, y_km)
-    coast = _coast_position(y_km, r)[:, None]
-    # distance seaward of the shoreline, shifted so shelf/slope follow the coast shape (softened)
-    soft = r.coast_x_km + 0.6 * (coast - r.coast_x_km)
-    xs = X - (soft - r.coast_x_km)
-
-    # abyssal plain with a gentle trend and the trench
-    depth = r.abyssal_depth_m - 0.4 * (X - 300.0)
-    depth += (r.trench_depth_m - r.abyssal_depth_m) * np.exp(-(((X - r.trench_x_km - 0.03 * Y) / 28.0) ** 2))
-    # continental slope (tanh) to the shelf
-    mid = 0.5 * (r.slope_start_km + r.shelf_break_km)
-    half = 0.5 * (r.shelf_break_km - r.slope_start_km)
-    slope = 0.5 * (1 - np.tanh((xs - mid) / (0.5 * half)))
-    depth = r.shelf_depth_m + (depth - r.shelf_depth_m) * slope
-    # shelf: linear to the shoreline
-    on_shelf = xs > r.shelf_break_km - 20
-    shelf_prof = r.shelf_depth_m * np.clip((coast - X) / (coast - r.shelf_break_km + 20), -1.5, 1.0)
-    blend = np.clip((xs - (r.shelf_break_km - 20)) / 25.0, 0, 1)
-    depth = np.where(on_shelf, (1 - blend) * depth + blend * shelf_prof, depth)
-    # land: rises east of the shoreline
-    land = X > coast
-    depth = np.where(land, -(X - coast) * 12.0 - 2.0, depth)
-
-    # seamount chain (Orrin Seamounts): Gaussian peaks along a line
-    for k, (cx, cy, hgt, rad) in enumerate(
-        [(250, 120, 2600, 16), (285, 190, 3100, 18), (318, 262, 2200, 14), (352, 330, 3300, 20), (380, 405, 1800, 12)]
-    ):
-        depth -= hgt * np.exp(-((X - cx) ** 2 + (Y - cy) ** 2) / (2 * rad**2)) * (X < r.slope_start_km)
-    # ridge (Tallis Rise): elongated rise oblique to the coast
-    u = (X - 200) * np.cos(0.5) + (Y - 520) * np.sin(0.5)
-    v = -(X - 200) * np.sin(0.5) + (Y - 520) * np.cos(0.5)
-    depth -= 1400 * np.exp(-(v / 30.0) ** 2) * np.exp(-(u / 170.0) ** 2)
-    # submarine canyon (Vell Canyon) cutting the shelf and slope near y = 250 km
-    canyon = np.exp(-(((Y - 250.0 - 0.15 * (X - 560)) / 4.5) ** 2)) * (X > 500) * (X < coast - 8)
-    depth += canyon * np.clip(0.5 * depth, 0, 900)
-
-    # smooth random fluctuations of a few percent, tapered to zero on the upper shelf
-    fl = gaussian_random_field(X.shape, r.spacing_km * 1000.0, r.fluct_corr_km * 1000.0, r.fluct_rms, seed=r.seed)
-    taper = np.clip((depth - 100.0) / 900.0, 0.0, 1.0)
-    depth = np.where(land, depth, depth * (1.0 + fl * taper))
-    # keep the sea side strictly wet down to a few metres near the shore
-    depth = np.where(~land & (depth < 2.0), 2.0, depth)
-    da = make_grid(
+    off = _coast_position(y_km, r)[:, None] - X  # km seaward of the shoreline
+    base = r.abyssal_depth_m - 0.3 * (X - 400.0)
+    base += r.trench_extra_m * np.exp(-(((X - r.trench_x_km - 0.02 * (Y - 600.0)) / 30.0) ** 2))
+    base -= red_noise_field(X.shape, r.spacing_km * 1e3, slope=r.relief_slope, largest_m=500e3,
+                            smallest_m=12e3, rms=r.relief_rms_m, seed=r.seed)
+    base = np.maximum(base - _offshore_features(X, Y), 300.0)
+    # continental slope and a 40-70 km wide shelf
+    shelf_w = 55.0 + 15.0 * np.sin(2 * np.pi * y_km / 330.0)[:, None]
+    slope = 0.5 * (1.0 + np.tanh((off - shelf_w - 45.0) / 18.0))
+    shelf = 20.0 + r.shelf_depth_m * np.clip(off / shelf_w, 0.0, 1.0) ** 0.8
+    depth = shelf + (base - shelf) * slope
+    # Vell Canyon cuts the shelf near y = 600 km
+    canyon = np.exp(-(((Y - 600.0 - 0.2 * (X - 780.0)) / 5.0) ** 2)) * (off > 4.0) * (off < 110.0)
+    depth += canyon * np.clip(0.6 * depth, 0.0, 800.0)
+    land = off < 0.0
+    # land rises inland; the sea side stays wet, shoaling to ~2 m at the shoreline
+    depth = np.where(land, off * 12.0 - 2.0, np.maximum(depth, 2.0 + 18.0 * np.clip(off / 3.0, 0.0, 1.0)))
+    return make_grid(
         depth.astype("float64"),
         x_km * 1000.0,
         y_km * 1000.0,
@@ -148,7 +152,6 @@ def make_demo_bathymetry(region: DemoRegion | None = None) -> xr.DataArray:
             "title": "Meridane coast (invented demo region)",
         },
     )
-    return da
 
 
 def demo_to_lonlat(x_m: np.ndarray | float, y_m: np.ndarray | float) -> tuple[np.ndarray, np.ndarray]:

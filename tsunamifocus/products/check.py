@@ -12,7 +12,6 @@ Screening estimates only: not a tsunami warning, forecast or inundation map (see
 from __future__ import annotations
 
 import json
-import math
 import pathlib
 import sys
 import tomllib
@@ -57,9 +56,17 @@ def wave_check(depth, eta0, segments, *, figure_path=None, **kwargs) -> WaveChec
         ray_column = chk.agreement["ray_column"]
         label = "Ray-theory amplitude at stop isobath [m]" if ray_column == "amp_stop_m" else f"Ray {ray_column}"
         t = chk.table.set_index("segment_id")
-        ray = t["ray_value"].rename("ray_value")
-        wave = t["wave_amp_stop_m"]
-        chk.figure = plot_ray_vs_wave(ray, wave, figure_path, k=chk.agreement["k"], ray_label=label)
+        ranked = t["ranked"]
+        chk.figure = plot_ray_vs_wave(t["ray_value"].where(ranked).rename("ray_value"),
+                                      t["wave_amp_stop_m"].where(ranked), figure_path, k=chk.agreement["k"],
+                                      ray_label=label)
+        if "lensing" in chk.agreement:
+            lens_path = pathlib.Path(figure_path).with_name(pathlib.Path(figure_path).stem + "_lensing.png")
+            chk.figure_lensing = plot_ray_vs_wave(
+                t["ray_lensing"].where(ranked).rename("ray_lensing"), t["wave_lensing"].where(ranked), lens_path,
+                k=chk.agreement["k"], ray_label="Ray lensing factor (energy, real / reference ocean)",
+                wave_label="Wave lensing factor (max amplitude ratio squared)",
+                title="Lensing ranking: rays vs linear long-wave check, per coastline segment")
     return chk
 
 
@@ -129,6 +136,7 @@ def run_wave_check(
     with OutputFolder(out_dir, overwrite=overwrite) as of:
         tmp = pathlib.Path(of.tmp_dir)
         chk = wave_check(layers["depth"], layers["initial_sea_surface"], seg, k=k, stop_depth=stop,
+                         reference_depth=layers.get("reference_depth"),
                          duration_s=None if hours is None else hours * 3600.0,
                          figure_path=tmp / "ray_vs_wave.png", progress=progress,
                          max_memory_bytes=_max_memory_bytes(run_dir))
@@ -142,21 +150,34 @@ def run_wave_check(
                      source="tsunamifocus linear long-wave solver (C grid, forward-backward)")
         table = pd.DataFrame(chk.table)
         _write_table(table, tmp / "wave_segments.csv")
-        ag = {k2: (float(v) if isinstance(v, (float, np.floating)) and math.isfinite(v) else v)
-              for k2, v in chk.agreement.items()}
+        ag = jsonable(chk.agreement)
         (tmp / "agreement.json").write_text(json.dumps(jsonable(ag), indent=2), encoding="utf-8")
         _appendix(tmp, run_dir, name, seg, table, ag, chk)
         write_manifest(tmp / "manifest.json", output_dir=tmp, inputs={"run_layers": run_dir / "layers.nc",
                        "run_segments": run_dir / "segments.csv"},
                        extra={"wave_stats": jsonable(chk.wave.stats), "agreement": jsonable(ag)})
-    sp, ov = ag.get("spearman"), ag.get("topk_overlap")
     if progress:
-        print(f"ray vs wave ranking of {ag.get('n', '?')} segments: Spearman {sp:.3f}, "
-              f"top-{k} overlap {ov}" if isinstance(sp, float) else f"agreement: {ag}", file=sys.stderr)
+        print(chk.summary(), file=sys.stderr)
         print(f"outputs: {out_dir}", file=sys.stderr)
         print("CAUTION: " + caution_summary(), file=sys.stderr)
-    print(f"spearman {sp:.3f}  top{k}_overlap {ov}" if isinstance(sp, float) else f"spearman {sp} top{k}_overlap {ov}")
+    lens = ag.get("lensing") or {}
+    sp, lsp = ag.get("spearman"), lens.get("spearman")
+    print(f"amplitude spearman {sp if sp is None else round(sp, 3)}  top{k}_overlap {ag.get('topk_overlap')}"
+          + (f"  lensing spearman {lsp if lsp is None else round(lsp, 3)}  top{k}_overlap {lens.get('topk_overlap')}"
+             if lens else ""))
     return {"agreement": ag, "out": out_dir}
+
+
+def _lensing_metrics(ag: dict, k: int) -> dict[str, Any]:
+    lens = ag.get("lensing") or {}
+    if not lens:
+        return {}
+    def fmt(v: Any) -> str:
+        return f"{v:.3f}" if isinstance(v, (int, float)) else "n/a"
+
+    return {"lensing ranking: Spearman": fmt(lens.get("spearman")),
+            "lensing ranking: Kendall tau": fmt(lens.get("kendall")),
+            f"lensing ranking: top-{k} overlap": lens.get("topk_overlap")}
 
 
 def _write_table(df: pd.DataFrame, path: pathlib.Path) -> None:
@@ -178,9 +199,11 @@ def _appendix(tmp: pathlib.Path, run_dir: pathlib.Path, name: str, seg: pd.DataF
     k = ag.get("k", 10)
     text = [
         "The same initial sea surface was propagated with the linear long-wave (shallow-water) equations on "
-        "the same grid (staggered C grid, forward-backward time stepping under the CFL condition, absorbing "
-        "open boundaries, absorbing coast at the stop isobath). Its maximum elevation per coastline segment "
-        "at the stop isobath is compared with the ray-based indicative amplitude there.",
+        "the same grid, over the unsmoothed sea floor and over the run's lensing reference (staggered C grid, "
+        "forward-backward time stepping under the CFL condition, absorbing open boundaries, absorbing coast "
+        "at the stop isobath). Like is compared with like on the segments the run ranks: the maximum "
+        "elevation per segment with the ray-based indicative amplitude there, and the wave lensing factor "
+        "(the squared ratio of the two maxima, an energy ratio) with the ray lensing factor.",
         "The wave solution includes diffraction, which ray theory leaves out: where they disagree, the "
         "ray ranking of that segment is not supported and should not be used on its own.",
     ]
@@ -191,13 +214,15 @@ def _appendix(tmp: pathlib.Path, run_dir: pathlib.Path, name: str, seg: pd.DataF
             "Spearman rank correlation": f"{ag.get('spearman', float('nan')):.3f}" if ag.get("spearman") is not None else "n/a",
             "Kendall tau": f"{ag.get('kendall', float('nan')):.3f}" if ag.get("kendall") is not None else "n/a",
             f"top-{k} overlap": ag.get("topk_overlap"),
+            **_lensing_metrics(ag, k),
             "time step (s)": f"{st.get('dt_s', float('nan')):.2f}",
             "simulated time (h)": f"{st.get('duration_s', float('nan')) / 3600:.2f}",
             "mass error (relative)": f"{st.get('mass_error', float('nan')):.1e}",
         },
         "table": table.drop(columns=[c for c in ("geometry",) if c in table.columns]).head(20),
         "table_caption": "Per segment: ray value, wave-solver maximum amplitude and both ranks",
-        "figures": {"ray_vs_wave": str(tmp / "ray_vs_wave.png")},
+        "figures": {"ray_vs_wave": str(tmp / "ray_vs_wave.png"),
+                    **({"ray_vs_wave_lensing": str(chk.figure_lensing)} if chk.figure_lensing else {})},
     }
     manifest = {}
     mp = run_dir / "manifest.json"

@@ -9,6 +9,7 @@ from pathlib import Path
 from typing import Any
 
 import numpy as np
+import pandas as pd
 import xarray as xr
 
 from ..cautions import caution_text
@@ -49,22 +50,30 @@ class WaveCheck:
     table: Any
     agreement: dict[str, Any]
     figure: Path | None = None
+    wave_reference: WaveResult | None = None
+    figure_lensing: Path | None = None
 
     def summary(self) -> str:
         """A few printable lines: agreement figures, run statistics and the cautions line."""
         a = self.agreement
         st = self.wave.stats
-        return "\n".join(
-            [
-                f"wave check ({a.get('ray_column', 'ray')} vs linear long-wave maximum at the stop isobath): "
-                f"{a['n']} segments",
-                f"  Spearman rank correlation {a['spearman']:.2f}, Kendall tau {a['kendall']:.2f}, "
-                f"top-{a['k']} overlap {a['topk_common']}/{a['k']}",
-                f"  {st['steps']} steps of {st['dt_s']:.2f} s ({st['duration_s'] / 3600:.2f} h), "
-                f"{st['elapsed_s']:.1f} s wall, volume budget residual {st['mass_error']:.1e}",
-                "  " + WAVE_CAUTION,
-            ]
-        )
+        lines = [
+            f"wave check on {a['n']} ranked segments ({a.get('ray_column', 'ray')} vs linear long-wave maximum "
+            "at the stop isobath, unsmoothed sea floor):",
+            f"  amplitude ranking: Spearman {a['spearman']:.2f}, Kendall tau {a['kendall']:.2f}, "
+            f"top-{a['k']} overlap {a['topk_common']}/{a['k']}",
+        ]
+        lens = a.get("lensing")
+        if lens:
+            lines.append(f"  lensing ranking (wave over the real / over the reference sea floor): Spearman "
+                         f"{lens['spearman']:.2f}, Kendall tau {lens['kendall']:.2f}, top-{lens['k']} overlap "
+                         f"{lens['topk_common']}/{lens['k']}")
+        lines += [
+            f"  {st['steps']} steps of {st['dt_s']:.2f} s ({st['duration_s'] / 3600:.2f} h), "
+            f"{st['elapsed_s']:.1f} s wall, volume budget residual {st['mass_error']:.1e}",
+            "  " + WAVE_CAUTION,
+        ]
+        return "\n".join(lines)
 
 
 def default_check_duration_s(depth: xr.DataArray, segments: Any = None, *, stop_depth: float = 20.0,
@@ -100,6 +109,8 @@ def compare_with_waves(
     segments: Any,
     *,
     ray_column: str = "amp_stop_m",
+    reference_depth: xr.DataArray | None = None,
+    lensing_column: str = "lensing_factor",
     duration_s: float | None = None,
     stop_depth: float = 20.0,
     coast: str = "absorb",
@@ -124,8 +135,13 @@ def compare_with_waves(
     segments : pandas.DataFrame
         Coastline segments table after arrivals (needs ``segment_id``, ``geometry`` and ``ray_column``).
     ray_column : str
-        Ray-based value to compare (default ``amp_stop_m``, the ray amplitude at the stop isobath [m];
-        ``lensing_factor`` or ``energy_per_m`` give the same ranking comparison for their quantity).
+        Ray-based amplitude to compare (default ``amp_stop_m``, the ray amplitude at the stop isobath [m]).
+    reference_depth : xarray.DataArray, optional
+        The run's lensing reference ocean (unsmoothed by wavelength, like ``depth``): the wave is then
+        solved over it too, and the wave lensing factor ``(A_real / A_reference)^2`` per segment (an
+        energy ratio, like the ray lensing factor) is compared with ``lensing_column``.
+    lensing_column : str
+        Ray lensing factor column.
     duration_s : float, optional
         Simulated time [s]; default :func:`default_check_duration_s`.
     stop_depth : float
@@ -143,43 +159,65 @@ def compare_with_waves(
     Returns
     -------
     WaveCheck
+        Agreement on the segments the run ranks (``reliable``, when the table has it): Spearman,
+        Kendall, top-k overlap of the amplitude ranking, and under ``agreement["lensing"]`` of the
+        lensing ranking.
 
     Raises
     ------
     CoastError
         If the segments table lacks ``ray_column`` or the geometry columns.
     """
-    import pandas as pd
-
     if not hasattr(segments, "columns") or ray_column not in segments.columns:
         raise CoastError(f"segments table has no column {ray_column!r} to compare with the wave solver")
+    if reference_depth is not None and lensing_column not in segments.columns:
+        raise CoastError(f"segments table has no column {lensing_column!r} to compare with the wave lensing")
     if duration_s is None:
         duration_s = default_check_duration_s(depth, segments, stop_depth=stop_depth, gravity=gravity)
-    res = simulate_linear_long_wave(
-        depth, eta0, duration_s=duration_s, stop_depth=stop_depth, coast=coast, boundary=boundary, cfl=cfl,
-        gravity=gravity, threads=threads, progress=progress, **simulate_kwargs,
-    )
-    wave = segment_max_amplitude(res, segments, depth, stop_depth, search_radius_cells=search_radius_cells,
-                                 statistic=statistic)
-    ray = pd.Series(np.asarray(segments[ray_column], dtype=float), index=wave.index, name="ray_value")
+    opts = dict(duration_s=duration_s, stop_depth=stop_depth, coast=coast, boundary=boundary, cfl=cfl,
+                gravity=gravity, threads=threads, progress=progress, **simulate_kwargs)
+    res = simulate_linear_long_wave(depth, eta0, **opts)
+    sample = dict(search_radius_cells=search_radius_cells, statistic=statistic)
+    wave = segment_max_amplitude(res, segments, depth, stop_depth, **sample)
     table = pd.DataFrame({"segment_id": wave.index.values})
     if "name" in segments.columns:
         table["name"] = np.asarray(segments["name"])
-    table["ray_value"] = ray.values
-    table["wave_amp_stop_m"] = wave.values
+    ranked = np.asarray(segments["reliable"], dtype=bool) if "reliable" in segments.columns else np.ones(len(table), bool)
+    table["ranked"] = ranked
+    _paired_columns(table, "ray_value", np.asarray(segments[ray_column], dtype=float), "wave_amp_stop_m",
+                    wave.values, ranked, ("rank_ray", "rank_wave"))
     arr = segment_max_amplitude(res, segments, depth, stop_depth, search_radius_cells=search_radius_cells,
                                 statistic="min", field="arrival_time_s")
     table["wave_first_arrival_s"] = arr.values
-    for col, src in (("rank_ray", ray.values), ("rank_wave", wave.values)):
-        ok = np.isfinite(src)
-        rank = np.full(src.size, -1, dtype=np.int64)
-        order = np.argsort(-np.where(ok, src, -np.inf), kind="stable")
-        rank[order[: int(ok.sum())]] = np.arange(1, int(ok.sum()) + 1)
-        table[col] = pd.array(np.where(rank > 0, rank, 0), dtype="Int64")
-        table.loc[~ok, col] = pd.NA
     with np.errstate(divide="ignore", invalid="ignore"):
         table["ratio_wave_to_ray"] = table["wave_amp_stop_m"] / table["ray_value"]
-    table.attrs.update(ray_column=ray_column, cautions=caution_text())
-    agree = compare_rankings(ray.set_axis(wave.index), wave, k=k)
+    agree = compare_rankings(table["ray_value"].where(ranked), table["wave_amp_stop_m"].where(ranked), k=k)
     agree["ray_column"] = ray_column
-    return WaveCheck(res, table, agree)
+    res_ref = None
+    if reference_depth is not None:
+        res_ref = simulate_linear_long_wave(reference_depth, eta0, **opts)
+        wave_ref = segment_max_amplitude(res_ref, segments, reference_depth, stop_depth, **sample)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            wave_lensing = (wave.values / wave_ref.values) ** 2
+        table["wave_amp_reference_m"] = wave_ref.values
+        _paired_columns(table, "ray_lensing", np.asarray(segments[lensing_column], dtype=float), "wave_lensing",
+                        wave_lensing, ranked, ("rank_ray_lensing", "rank_wave_lensing"))
+        lens = compare_rankings(table["ray_lensing"].where(ranked), table["wave_lensing"].where(ranked), k=k)
+        lens["ray_column"] = lensing_column
+        agree["lensing"] = lens
+    table.attrs.update(ray_column=ray_column, cautions=caution_text())
+    return WaveCheck(res, table, agree, wave_reference=res_ref)
+
+
+def _paired_columns(table: pd.DataFrame, ray_name: str, ray: np.ndarray, wave_name: str, wave: np.ndarray,
+                    ranked: np.ndarray, rank_names: tuple[str, str]) -> None:
+    """Add a ray and a wave column and their ranks (1 = largest) among the ranked segments."""
+    table[ray_name] = ray
+    table[wave_name] = np.where(np.isfinite(wave), wave, np.nan)
+    for col, src in zip(rank_names, (ray, table[wave_name].to_numpy(float))):
+        ok = np.isfinite(src) & ranked
+        rank = np.zeros(src.size, dtype=np.int64)
+        order = np.argsort(-np.where(ok, src, -np.inf), kind="stable")
+        rank[order[: int(ok.sum())]] = np.arange(1, int(ok.sum()) + 1)
+        table[col] = pd.array(rank, dtype="Int64")
+        table.loc[~ok, col] = pd.NA
