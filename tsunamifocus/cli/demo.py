@@ -18,6 +18,8 @@ def configure(p: argparse.ArgumentParser) -> None:
     p.add_argument("--overwrite", action="store_true", help="replace an existing output folder")
     p.add_argument("--rays", type=int, default=None, help="override the ray count of the demo scenario")
     p.add_argument("--scheduler", default=None, help="dask.distributed scheduler address for the ensemble")
+    p.add_argument("--no-check", dest="check", action="store_false", help="skip the linear long-wave check of "
+                   "the rankings (run by default on the demo)")
 
 
 def run(args: argparse.Namespace) -> int:
@@ -25,4 +27,4 @@ def run(args: argparse.Namespace) -> int:
     if args.rays is not None and args.rays < 1:
         raise InputError(f"--rays {args.rays}: expected a positive number of rays")
     return run_demo(pathlib.Path(args.out), overwrite=args.overwrite, rays=args.rays, scheduler=args.scheduler,
-                    progress=getattr(args, "quiet", 0) == 0)
+                    progress=getattr(args, "quiet", 0) == 0, check=args.check)

@@ -22,6 +22,8 @@ def configure(p: argparse.ArgumentParser) -> None:
     p.add_argument("--overwrite", action="store_true", help="replace an existing output folder")
     p.add_argument("--rays", type=int, help="override the number of rays per source")
     p.add_argument("--scheduler", help="dask.distributed scheduler address for the ensemble (default: local)")
+    p.add_argument("--check", action="store_true", help="also solve the linear long-wave equations and report how "
+                   "far the amplitude and lensing rankings hold (seconds to minutes)")
 
 
 def run(args: argparse.Namespace) -> int:
@@ -37,5 +39,5 @@ def run(args: argparse.Namespace) -> int:
         sc = parse_scenario(args.scenario)
     quiet = getattr(args, "quiet", 0) > 0
     run_scenario(sc, out=args.out, overwrite=args.overwrite, rays=args.rays, scheduler=args.scheduler,
-                 progress=not quiet, command=["tsunamifocus", *sys.argv[1:]])
+                 progress=not quiet, command=["tsunamifocus", *sys.argv[1:]], check=args.check)
     return 0

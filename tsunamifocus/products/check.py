@@ -30,7 +30,7 @@ from ..studies.check import WaveCheck, compare_with_waves
 from .appendix import build_appendix
 from .figures import plot_ray_vs_wave
 
-__all__ = ['wave_check', 'run_wave_check', 'CHECK_FOLDER']
+__all__ = ['wave_check', 'run_wave_check', 'check_figures', 'check_section', 'write_check_table', 'CHECK_FOLDER']
 
 #: Default sub-folder of a run that receives the check's outputs.
 CHECK_FOLDER = "wave_check"
@@ -53,21 +53,29 @@ def wave_check(depth, eta0, segments, *, figure_path=None, **kwargs) -> WaveChec
     """
     chk = compare_with_waves(depth, eta0, segments, **kwargs)
     if figure_path is not None:
-        ray_column = chk.agreement["ray_column"]
-        label = "Ray-theory amplitude at stop isobath [m]" if ray_column == "amp_stop_m" else f"Ray {ray_column}"
-        t = chk.table.set_index("segment_id")
-        ranked = t["ranked"]
-        chk.figure = plot_ray_vs_wave(t["ray_value"].where(ranked).rename("ray_value"),
-                                      t["wave_amp_stop_m"].where(ranked), figure_path, k=chk.agreement["k"],
-                                      ray_label=label)
-        if "lensing" in chk.agreement:
-            lens_path = pathlib.Path(figure_path).with_name(pathlib.Path(figure_path).stem + "_lensing.png")
-            chk.figure_lensing = plot_ray_vs_wave(
-                t["ray_lensing"].where(ranked).rename("ray_lensing"), t["wave_lensing"].where(ranked), lens_path,
-                k=chk.agreement["k"], ray_label="Ray lensing factor (energy, real / reference ocean)",
-                wave_label="Wave lensing factor (max amplitude ratio squared)",
-                title="Lensing ranking: rays vs linear long-wave check, per coastline segment")
+        figs = check_figures(chk, pathlib.Path(figure_path).parent, stem=pathlib.Path(figure_path).stem)
+        chk.figure = figs["ray_vs_wave"]
+        chk.figure_lensing = figs.get("ray_vs_wave_lensing")
     return chk
+
+
+def check_figures(chk: WaveCheck, folder: pathlib.Path, *, stem: str = "ray_vs_wave") -> dict[str, pathlib.Path]:
+    """Scatter figures of the ranked segments: amplitude (``stem.png``) and lensing (``stem_lensing.png``)."""
+    t = chk.table.set_index("segment_id")
+    ranked = t["ranked"]
+    k = chk.agreement["k"]
+    ray_column = chk.agreement["ray_column"]
+    label = "Ray-theory amplitude at stop isobath [m]" if ray_column == "amp_stop_m" else f"Ray {ray_column}"
+    out = {"ray_vs_wave": plot_ray_vs_wave(t["ray_value"].where(ranked).rename("ray_value"),
+                                           t["wave_amp_stop_m"].where(ranked), folder / f"{stem}.png", k=k,
+                                           ray_label=label)}
+    if "lensing" in chk.agreement:
+        out["ray_vs_wave_lensing"] = plot_ray_vs_wave(
+            t["ray_lensing"].where(ranked).rename("ray_lensing"), t["wave_lensing"].where(ranked),
+            folder / f"{stem}_lensing.png", k=k, ray_label="Ray lensing factor (energy, real / reference ocean)",
+            wave_label="Wave lensing factor (squared ratio of the maxima)",
+            title="Lensing ranking: rays vs linear long-wave check, per coastline segment")
+    return out
 
 
 def _stop_depth(run_dir: pathlib.Path) -> float:
@@ -149,7 +157,7 @@ def run_wave_check(
                      title=f"tsunamifocus wave-equation check: {name}",
                      source="tsunamifocus linear long-wave solver (C grid, forward-backward)")
         table = pd.DataFrame(chk.table)
-        _write_table(table, tmp / "wave_segments.csv")
+        write_check_table(table, tmp / "wave_segments.csv")
         ag = jsonable(chk.agreement)
         (tmp / "agreement.json").write_text(json.dumps(jsonable(ag), indent=2), encoding="utf-8")
         _appendix(tmp, run_dir, name, seg, table, ag, chk)
@@ -168,20 +176,8 @@ def run_wave_check(
     return {"agreement": ag, "out": out_dir}
 
 
-def _lensing_metrics(ag: dict, k: int) -> dict[str, Any]:
-    lens = ag.get("lensing") or {}
-    if not lens:
-        return {}
-    def fmt(v: Any) -> str:
-        return f"{v:.3f}" if isinstance(v, (int, float)) else "n/a"
-
-    return {"lensing ranking: Spearman": fmt(lens.get("spearman")),
-            "lensing ranking: Kendall tau": fmt(lens.get("kendall")),
-            f"lensing ranking: top-{k} overlap": lens.get("topk_overlap")}
-
-
-def _write_table(df: pd.DataFrame, path: pathlib.Path) -> None:
-
+def write_check_table(df: pd.DataFrame, path: pathlib.Path) -> pathlib.Path:
+    """Write the check's per-segment table as CSV, cautions first (integer ranks as numbers)."""
     out = df.drop(columns=[c for c in ("geometry",) if c in df.columns])
     for c in out.columns:
         if isinstance(out[c].dtype, pd.api.extensions.ExtensionDtype) and out[c].dtype.kind in "iu":
@@ -189,41 +185,15 @@ def _write_table(df: pd.DataFrame, path: pathlib.Path) -> None:
     with open(path, "w", encoding="utf-8", newline="") as fh:
         fh.write(f"# CAUTION: {caution_summary()}\n")
         out.to_csv(fh, index=False)
+    return path
 
 
 def _appendix(tmp: pathlib.Path, run_dir: pathlib.Path, name: str, seg: pd.DataFrame, table: pd.DataFrame,
               ag: dict, chk: Any) -> None:
     """A supplement to the run's appendix: the cautions, the ranked table and the check section."""
 
-    st = chk.wave.stats
-    k = ag.get("k", 10)
-    text = [
-        "The same initial sea surface was propagated with the linear long-wave (shallow-water) equations on "
-        "the same grid, over the unsmoothed sea floor and over the run's lensing reference (staggered C grid, "
-        "forward-backward time stepping under the CFL condition, absorbing open boundaries, absorbing coast "
-        "at the stop isobath). Like is compared with like on the segments the run ranks: the maximum "
-        "elevation per segment with the ray-based indicative amplitude there, and the wave lensing factor "
-        "(the squared ratio of the two maxima, an energy ratio) with the ray lensing factor.",
-        "The wave solution includes diffraction, which ray theory leaves out: where they disagree, the "
-        "ray ranking of that segment is not supported and should not be used on its own.",
-    ]
-    section = {
-        "text": text,
-        "metrics": {
-            "segments compared": ag.get("n"),
-            "Spearman rank correlation": f"{ag.get('spearman', float('nan')):.3f}" if ag.get("spearman") is not None else "n/a",
-            "Kendall tau": f"{ag.get('kendall', float('nan')):.3f}" if ag.get("kendall") is not None else "n/a",
-            f"top-{k} overlap": ag.get("topk_overlap"),
-            **_lensing_metrics(ag, k),
-            "time step (s)": f"{st.get('dt_s', float('nan')):.2f}",
-            "simulated time (h)": f"{st.get('duration_s', float('nan')) / 3600:.2f}",
-            "mass error (relative)": f"{st.get('mass_error', float('nan')):.1e}",
-        },
-        "table": table.drop(columns=[c for c in ("geometry",) if c in table.columns]).head(20),
-        "table_caption": "Per segment: ray value, wave-solver maximum amplitude and both ranks",
-        "figures": {"ray_vs_wave": str(tmp / "ray_vs_wave.png"),
-                    **({"ray_vs_wave_lensing": str(chk.figure_lensing)} if chk.figure_lensing else {})},
-    }
+    section = check_section(chk, {"ray_vs_wave": str(tmp / "ray_vs_wave.png"),
+                                  **({"ray_vs_wave_lensing": str(chk.figure_lensing)} if chk.figure_lensing else {})})
     manifest = {}
     mp = run_dir / "manifest.json"
     if mp.is_file():
@@ -240,3 +210,46 @@ def _appendix(tmp: pathlib.Path, run_dir: pathlib.Path, name: str, seg: pd.DataF
         "wave_check": section,
     }
     build_appendix(ctx, tmp / "wave_check_appendix.html", tmp / "wave_check_appendix.pdf")
+
+
+def check_section(chk: WaveCheck, figures: dict[str, str]) -> dict[str, Any]:
+    """The appendix section of a wave check: method text, agreement metrics, table and figures."""
+    ag = jsonable(chk.agreement)
+    st = chk.wave.stats
+    k = ag.get("k", 10)
+
+    def fmt(v: Any) -> str:
+        return f"{v:.3f}" if isinstance(v, (int, float)) else "n/a"
+
+    text = [
+        "The same initial sea surface was propagated with the linear long-wave (shallow-water) equations on "
+        "the same grid, over the unsmoothed sea floor and over the run's lensing reference (staggered C grid, "
+        "forward-backward time stepping under the CFL condition, absorbing open boundaries, absorbing coast "
+        "at the stop isobath). Like is compared with like on the segments the run ranks: the maximum "
+        "elevation per segment with the ray-based indicative amplitude there, and the wave lensing factor "
+        "(the squared ratio of the two maxima, an energy ratio) with the ray lensing factor.",
+        "The wave solution includes diffraction, which ray theory leaves out: where they disagree, the "
+        "ray ranking of that segment is not supported and should not be used on its own.",
+    ]
+    lens = ag.get("lensing") or {}
+    metrics = {
+        "segments compared (ranked)": ag.get("n"),
+        "amplitude ranking: Spearman": fmt(ag.get("spearman")),
+        "amplitude ranking: Kendall tau": fmt(ag.get("kendall")),
+        f"amplitude ranking: top-{k} overlap": ag.get("topk_overlap"),
+    }
+    if lens:
+        metrics.update({"lensing ranking: Spearman": fmt(lens.get("spearman")),
+                        "lensing ranking: Kendall tau": fmt(lens.get("kendall")),
+                        f"lensing ranking: top-{k} overlap": lens.get("topk_overlap")})
+    metrics.update({"time step (s)": fmt(st.get("dt_s")),
+                    "simulated time (h)": fmt(st.get("duration_s", float("nan")) / 3600),
+                    "mass error (relative)": f"{st.get('mass_error', float('nan')):.1e}"})
+    table = chk.table
+    return {
+        "text": text,
+        "metrics": metrics,
+        "table": table.drop(columns=[c for c in ("geometry",) if c in table.columns]).head(20),
+        "table_caption": "Per segment: ray and wave-solver amplitude and lensing factor, and their ranks",
+        "figures": figures,
+    }

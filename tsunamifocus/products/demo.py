@@ -125,7 +125,7 @@ def demo_cache_dir() -> pathlib.Path:
 
 
 def run_demo(out: str | os.PathLike, *, overwrite: bool = False, rays: int | None = None,
-             scheduler: Any = None, progress: bool = True) -> int:
+             scheduler: Any = None, progress: bool = True, check: bool = True) -> int:
     """Run the bundled invented demo scenario end to end into ``out``; returns an exit code.
 
     The demo inputs (generated deterministically) are written to :func:`demo_cache_dir`, so the
@@ -137,6 +137,8 @@ def run_demo(out: str | os.PathLike, *, overwrite: bool = False, rays: int | Non
     sc = parse_scenario(demo_inputs(demo_cache_dir()))
     if progress:
         print(f"demo inputs (invented Meridane coast): {sc.bathymetry.path.parent}", file=sys.stderr)
-    cmd = ["tsunamifocus", "demo", "--out", str(out)] + (["--rays", str(rays)] if rays else [])
-    run_scenario(sc, out=out, overwrite=overwrite, rays=rays, scheduler=scheduler, progress=progress, command=cmd)
+    cmd = ["tsunamifocus", "demo", "--out", str(out)] + (["--rays", str(rays)] if rays else []) \
+        + ([] if check else ["--no-check"])
+    run_scenario(sc, out=out, overwrite=overwrite, rays=rays, scheduler=scheduler, progress=progress, command=cmd,
+                 check=check)
     return 0

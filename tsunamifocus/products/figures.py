@@ -50,7 +50,8 @@ from ..focusing.agreement import _paired, compare_rankings, topk_mask
 from ..grid import GridInfo
 from ..propagation.wave import WAVE_LIMITS
 
-__all__ = ['plot_ray_vs_wave', 'CAUTION_FOOTER', 'DPI', 'plot_ray_field', 'plot_lensing_map', 'plot_ranking', 'plot_uplift', 'plot_agreement', 'RANK_FIELDS']
+__all__ = ['plot_ray_vs_wave', 'CAUTION_FOOTER', 'DPI', 'plot_ray_field', 'plot_lensing_map', 'plot_ranking',
+           'plot_uplift', 'plot_agreement', 'plot_oceans', 'RANK_FIELDS']
 
 
 # Okabe & Ito (2008) colour-blind-safe palette
@@ -482,16 +483,17 @@ def _finish(
             pass
     if ax is not None and geo is not None and engine is not None:
         _trim_vertical_slack(fig, ax)
+    return _save_png(fig, out_path, str(ax.get_title(loc="left")) if ax is not None else None)
+
+
+def _save_png(fig: Figure, out_path: str | os.PathLike, title: str | None) -> pathlib.Path:
+    """Write the PNG (title, software and cautions in its metadata) under a hidden name, then rename."""
     out = pathlib.Path(out_path)
     if out.suffix.lower() != ".png":
         raise InputError(f"figure path '{out}': expected a .png file name")
     out.parent.mkdir(parents=True, exist_ok=True)
     tmp = out.with_name(f".{out.name}.part")
-    meta = {
-        "Title": str(ax.get_title(loc="left")) if ax is not None else out.stem,
-        "Software": _software(),
-        "Disclaimer": _cautions_full(),
-    }
+    meta = {"Title": title or out.stem, "Software": _software(), "Disclaimer": _cautions_full()}
     try:
         fig.savefig(tmp, format="png", dpi=DPI, metadata=meta)
         os.replace(tmp, out)
@@ -1560,3 +1562,77 @@ def plot_agreement(
         )
     ax.legend(loc="lower right", fontsize=8)
     return _finish(fig, out_path, ax=ax)
+
+
+@_styled
+def plot_oceans(
+    ray_depth: xr.DataArray,
+    reference_depth: xr.DataArray,
+    *,
+    out_path: str | os.PathLike,
+    period_s: float,
+    reference_km: float,
+    title: str = "The two oceans of the lensing factor",
+) -> pathlib.Path:
+    """Side by side: the sea floor as the dominant-period wave sees it, and the lensing reference.
+
+    Parameters
+    ----------
+    ray_depth : xarray.DataArray
+        Depth [m] the rays of the dominant band were traced on (wavelength-smoothed real ocean).
+    reference_depth : xarray.DataArray
+        The lensing reference [m] (offshore features of the wavelength's size and larger removed,
+        shelf and coast kept).
+    out_path : path-like
+        PNG file to write.
+    period_s : float
+        Dominant period [s] (for the panel title).
+    reference_km : float
+        Low-pass scale of the reference [km] (for the panel title).
+    title : str
+        Figure title.
+
+    Returns
+    -------
+    pathlib.Path
+    """
+    info = _check_grid(ray_depth, "plot_oceans ray_depth")
+    _same_kind(info, _check_grid(reference_depth, "plot_oceans reference_depth"), "plot_oceans reference_depth")
+    xmin, xmax, ymin, ymax = _extent(info)
+    aspect = 1.0 / max(math.cos(math.radians(0.5 * (ymin + ymax))), 0.05) if info.geographic else 1.0
+    ratio = (ymax - ymin) * aspect / max(xmax - xmin, 1e-12)
+    w = 11.0
+    fig = Figure(figsize=(w, float(np.clip((w - 1.6) / 2 * ratio + 1.6, 3.5, 10.0))), dpi=DPI, layout="constrained")
+    axes = fig.subplots(1, 2, sharey=True)
+    vmax = float(np.nanpercentile(_values(ray_depth)[_values(ray_depth) > 0], 99.5)) / 1000.0
+    panels = ((ray_depth, f"Sea floor as a {period_s / 60:.0f}-min wave sees it (rays traced here)"),
+              (reference_depth, f"Lensing reference: features >= {reference_km:.0f} km removed, shelf kept"))
+    for ax, (d, label) in zip(axes, panels):
+        v = _values(d)
+        im = ax.imshow(np.where(v > 0, v / 1000.0, np.nan), origin="lower", extent=_extent(info),
+                       cmap=_cmap("viridis_r"), vmin=0.0, vmax=vmax, interpolation="nearest", zorder=1)
+        land = np.isfinite(v) & (v <= 0)
+        rgba = np.zeros(v.shape + (4,))
+        rgba[land] = mcolors.to_rgba(_LAND)
+        ax.imshow(rgba, origin="lower", extent=_extent(info), interpolation="nearest", zorder=2)
+        ax.contour(d[d.dims[1]].values, d[d.dims[0]].values, v, levels=[200.0, 1000.0, 3000.0], colors="0.15",
+                   linewidths=[0.5, 0.5, 0.5], linestyles=[":", "--", "-"], zorder=3)
+        ax.set_title(label, fontsize=9.5, loc="left")
+        ax.set_aspect(aspect)
+        if not info.geographic:
+            km = FuncFormatter(lambda t, _: f"{t / 1000.0:g}")
+            ax.xaxis.set_major_formatter(km)
+            ax.yaxis.set_major_formatter(km)
+            ax.set_xlabel("Easting (km)")
+        else:
+            ax.set_xlabel("Longitude (deg)")
+    axes[0].set_ylabel("Northing (km)" if not info.geographic else "Latitude (deg)")
+    cb = fig.colorbar(im, ax=list(axes), shrink=0.85, pad=0.01)
+    cb.set_label("Depth (km); contours 200 m (dotted), 1000 m (dashed), 3000 m")
+    fig.suptitle(title, fontsize=plt_rc["axes.titlesize"], x=0.01, ha="left")
+    fig.text(0.5, 0.004, CAUTION_FOOTER, ha="center", va="bottom", fontsize=7.5, color="0.25", style="italic")
+    engine = fig.get_layout_engine()
+    if engine is not None:
+        foot = 0.22 / fig.get_size_inches()[1]
+        engine.set(rect=(0.0, foot, 1.0, 1.0 - foot))
+    return _save_png(fig, out_path, title)

@@ -29,6 +29,7 @@ from ..studies.run import (
 )
 from . import figures as F
 from .appendix import build_appendix
+from .check import check_figures, check_section, write_check_table
 from .comparison import compare_to_folder
 from .context import _report_context
 from .summaries import format_run_summary
@@ -103,6 +104,12 @@ def _figures(a: SourceAnalysis, depth: xr.DataArray, scenario: Any, folder: path
     figs["uplift"] = F.plot_uplift(a.eta, out_path=folder / "uplift.png", depth=depth,
                                    source_outline=a.outline or None, coast_lines=coast,
                                    title=f"Initial sea-surface displacement (Okada 1985): {a.name}")
+    if f.ray_depth is not None:
+        figs["oceans"] = F.plot_oceans(f.ray_depth, f.reference_depth, out_path=folder / "oceans.png",
+                                       period_s=a.period_s, reference_km=f.reference_km,
+                                       title=f"The two oceans of the lensing factor: {a.name}")
+    if a.check is not None:
+        figs.update(check_figures(a.check, folder))
     return {k: pathlib.Path(v) if v is not None else folder / f"{k}.png" for k, v in figs.items()}
 
 
@@ -174,6 +181,8 @@ def write_run_folder(
     if isinstance(seg_files, dict):
         files.update({f"segments_{k}": pathlib.Path(v) for k, v in seg_files.items()})
     files["points"] = pathlib.Path(write_points_csv(points, folder / RUN_FILES["points"]))
+    if a.check is not None:
+        files["wave_check"] = write_check_table(a.check.table, folder / "wave_check.csv")
     (folder / RUN_FILES["scenario"]).write_text(_scenario_toml(scenario), encoding="utf-8")
     figs = {}
     if scenario.output.figures:
@@ -182,6 +191,8 @@ def write_run_folder(
     if scenario.output.report:
 
         ctx = _report_context(a, scenario, depth, points, health, figs, ensemble, extra_sections)
+        if a.check is not None:
+            ctx["wave_check"] = check_section(a.check, {k: str(v) for k, v in figs.items() if k.startswith("ray_vs")})
         html, pdf = folder / RUN_FILES["html"], folder / RUN_FILES["pdf"]
         build_appendix(ctx, html, pdf)
         files["html"], files["pdf"] = html, pdf
@@ -190,6 +201,7 @@ def write_run_folder(
         command=list(command) if command else None,
         seeds={"rays": scenario.rays.seed, "ensemble": scenario.ensemble.seed},
         extra={"source": a.name, "health": health, "source_summary": jsonable(a.summary.to_dict()),
+               "wave_check": jsonable(a.check.agreement) if a.check is not None else None,
                "ensemble": jsonable(ensemble.to_dict()) if ensemble is not None else None},
     )
     files["manifest"] = folder / RUN_FILES["manifest"]
@@ -237,6 +249,7 @@ def run_scenario(
     progress: bool = True,
     command: Sequence[str] | None = None,
     write: bool = True,
+    check: bool = False,
 ) -> RunResult:
     """Run a parsed scenario end to end and write its output folder atomically.
 
@@ -258,6 +271,9 @@ def run_scenario(
         Command line, recorded in the manifest.
     write : bool
         Write outputs (False: compute only).
+    check : bool
+        Run the wave check of every source (:func:`tsunamifocus.studies.run.analyse_scenario`); its
+        figures, table and agreement go to the run folder, its figures to the summary and appendix.
 
     Returns
     -------
@@ -273,7 +289,7 @@ def run_scenario(
         if out_dir.exists() and not out_dir.is_dir():
             raise InputError(f"{out_dir}: output path exists and is not a folder")
         refuse_filled_folder(out_dir, overwrite)
-    result = analyse_scenario(scenario, rays=rays, scheduler=scheduler, progress=progress, stages=pr)
+    result = analyse_scenario(scenario, rays=rays, scheduler=scheduler, progress=progress, stages=pr, check=check)
     if write:
         result.out_dir = out_dir
         pr.start("export", f"writing outputs to {out_dir}")

@@ -71,6 +71,20 @@ def seg_sigma_km(seg: pd.DataFrame) -> np.ndarray:
     return 2.0 * seg["length_m"].to_numpy(dtype=float) / 1000.0
 
 
+def _check_lines(ag: dict) -> list[str]:
+    """How far the rankings held against the linear long-wave check."""
+
+    def held(a: dict) -> str:
+        return (f"Spearman {a['spearman']:.2f}, top-{a['k']} overlap {a['topk_common']}/{a['k']}"
+                if a and np.isfinite(a.get("spearman", np.nan)) else "not measurable")
+
+    out = [f"  wave check (linear long-wave solver, unsmoothed sea floor) on {ag.get('n', 0)} ranked segments:",
+           f"    amplitude ranking held: {held(ag)}"]
+    if ag.get("lensing"):
+        out.append(f"    lensing ranking held:   {held(ag['lensing'])}")
+    return out
+
+
 def format_run_summary(result: RunResult) -> str:
     """Short end-of-run summary: top hotspots, timings, where outputs are, and the cautions."""
     lines = ["", "== tsunamifocus run summary: " + str(result.scenario.name)]
@@ -96,6 +110,8 @@ def format_run_summary(result: RunResult) -> str:
                          f"{r['amp_1m_m']:.2f} m  first arrival {r['first_arrival_s'] / 60:.0f} min"
                          + (f"  (within {edge_km:.0f} km of the grid edge: rays from beyond it are missing)"
                             if near else ""))
+        if a.check is not None:
+            lines.extend(_check_lines(a.check.agreement))
         seg = f.segments
         if "rank_amplitude" in seg:
             by_amp = seg[seg["rank_amplitude"].notna()].sort_values("rank_amplitude").head(3)

@@ -34,6 +34,7 @@ from ..ocean.smooth import smooth_bathymetry
 from ..propagation.rays import trace_rays
 from ..source.faults import FaultSegment, PointSource, Rupture
 from ..source.energy import period_bands
+from .check import compare_with_waves
 from ..source.rayfan import make_ray_fan
 from ..source.summary import summarize_source
 from ..source.uplift import uplift_on_grid
@@ -162,6 +163,7 @@ class SourceAnalysis:
     period_s: float
     outline: list = field(default_factory=list)
     timings: dict = field(default_factory=dict)
+    check: Any = None
 
 
 def _segments_for(depth: xr.DataArray, scenario: Any):
@@ -575,7 +577,7 @@ def run_scenario_ensemble(scenario: Any, depth: xr.DataArray, segments: pd.DataF
 
 
 def analyse_scenario(scenario: Any, *, rays: int | None = None, scheduler: Any = None, progress: bool = True,
-                     stages: StageProgress | None = None) -> RunResult:
+                     stages: StageProgress | None = None, check: bool = False) -> RunResult:
     """Compute a parsed scenario end to end in memory: bathymetry, segments, every source, the ensemble.
 
     Parameters
@@ -590,6 +592,10 @@ def analyse_scenario(scenario: Any, *, rays: int | None = None, scheduler: Any =
         Stage messages on stderr.
     stages : StageProgress, optional
         Stage timer to continue (a new one by default).
+    check : bool
+        Also solve the linear long-wave equations for every source over the real and the reference
+        oceans and compare the amplitude and lensing rankings (:func:`compare_with_waves`); the
+        result is kept in ``SourceAnalysis.check``.
 
     Returns
     -------
@@ -611,6 +617,14 @@ def analyse_scenario(scenario: Any, *, rays: int | None = None, scheduler: Any =
         analyses.append(a)
         points[a.name] = points_table(a, scenario.points, depth)
         health[a.name] = health_checks(a)
+        if check:
+            pr.start("check", f"linear long-wave check of '{a.name}' over the real and reference oceans")
+            a.check = compare_with_waves(depth, a.eta, a.focusing.segments,
+                                         reference_depth=a.focusing.reference_depth,
+                                         stop_depth=scenario.rays.stop_depth_m, k=scenario.output.top_k)
+            lens = a.check.agreement.get("lensing", {})
+            pr.done(f"amplitude Spearman {a.check.agreement['spearman']:.2f}, lensing Spearman "
+                    f"{lens.get('spearman', float('nan')):.2f}")
     ens = None
     if scenario.ensemble.members > 0:
         pr.start("ensemble", f"ensemble of {scenario.ensemble.members} members")
