@@ -569,3 +569,48 @@ def xr_points(v):
     import xarray as xr
 
     return xr.DataArray(np.asarray(v), dims="ray")
+
+
+def test_period_bands_of_a_gaussian_hump_match_the_closed_form():
+    # eta = exp(-r^2 / (2 s^2)) has |F(k)|^2 ~ exp(-k^2 s^2), so the energy between wavenumbers
+    # k1 < k2 is proportional to exp(-k1^2 s^2) - exp(-k2^2 s^2) (radial integral of k exp(-k^2 s^2));
+    # a band of periods [T1, T2] is k in [2 pi / (c T2), 2 pi / (c T1)] (long waves, c = sqrt(g h)).
+    from tsunamifocus.source.energy import period_bands
+
+    d = flat_grid(cell_km=4.0, half_km=600.0)
+    E, N = np.meshgrid(d.x.values - 500e3, d.y.values - 4000e3)
+    s = 40e3
+    eta = d.copy(data=np.exp(-(E**2 + N**2) / (2 * s * s)))
+    c = math.sqrt(9.81 * 4000.0)
+    T0 = 2 * math.pi * s / c * 2.0  # any period; the shares follow from the spectrum
+    bands = period_bands(eta, d, T0)
+    assert [t for t, _ in bands] == pytest.approx([T0 / 2, T0, 2 * T0])
+    assert sum(w for _, w in bands) == pytest.approx(1.0)
+
+    def share(t_lo, t_hi):
+        k_hi = 2 * math.pi / (c * t_lo) if t_lo > 0 else math.inf
+        k_lo = 2 * math.pi / (c * t_hi) if math.isfinite(t_hi) else 0.0
+        return math.exp(-(k_lo * s) ** 2) - (math.exp(-(k_hi * s) ** 2) if math.isfinite(k_hi) else 0.0)
+
+    edges = [0.0, T0 / math.sqrt(2), T0 * math.sqrt(2), math.inf]
+    expected = [share(edges[i], edges[i + 1]) for i in range(3)]
+    np.testing.assert_allclose([w for _, w in bands], expected, atol=0.01)
+
+
+@pytest.mark.realdata
+def test_fan_launches_only_deeper_than_the_stop_isobath_near_a_coast(etopo_path):
+    # A Mw 9.0 thrust whose rupture reaches the coast of a real island arc (ETOPO1, Amante and
+    # Eakins 2009): the fan launches only from cells deeper than twice the stop isobath, and the
+    # uplift energy on the shallow cells is booked (common practice, no source: nothing is lost).
+    from tsunamifocus.io.bathymetry import load_bathymetry
+
+    d = load_bathymetry(etopo_path, bbox=(135.0, 30.0, 150.0, 45.0), values="elevation")
+    seg = FaultSegment(trace=((141.2, 36.0), (142.2, 39.6)), top_depth_km=5.0, dip_deg=12.0, width_km=175.0,
+                       magnitude=9.0)
+    eta = uplift_on_grid(seg, d)
+    fan = make_ray_fan(eta, d, 2000, seed=1, stop_depth_m=20.0)
+    dep_at = d.sel(lon=xr_points(fan.x0), lat=xr_points(fan.y0), method="nearest").values
+    assert np.all(dep_at > 40.0)
+    E = potential_energy(eta, d)
+    assert fan.weights.sum() + fan.energy_shallow_J == pytest.approx(E, rel=1e-12)
+    assert fan.energy_shallow_J > 0.0  # this rupture does lift water over the shelf

@@ -53,3 +53,36 @@ def test_topk_mask_ties_and_nan():
     r = pd.Series(v).rank(ascending=False, method="first", na_option="bottom").to_numpy()
     for k in range(1, 6):
         np.testing.assert_array_equal(topk_mask(v, k), (r <= k) & np.isfinite(v))
+
+
+def test_lensing_check_compares_energy_ratios_of_the_two_wave_runs():
+    """The wave lensing factor is (A_real / A_reference)^2: identical oceans give exactly 1 (identity), and
+    a shoal in front of part of a straight coast raises it there and only there (a long-wave lens focuses
+    behind it; Lamb 1932, section 170: c = sqrt(g h) is slower over the shoal)."""
+    from shapely.geometry import LineString
+
+    from tsunamifocus.coast.segments import segment_coastline
+    from tsunamifocus.studies.check import compare_with_waves
+
+    dx = 2000.0
+    x = np.arange(0.0, 300e3 + 1, dx)
+    y = np.arange(0.0, 400e3 + 1, dx)
+    X, Y = np.meshgrid(x, y)
+    flat = np.where(X < 280e3, 3000.0, -5.0)
+    shoal = flat - np.where(X < 280e3, 2000.0 * np.exp(-((X - 150e3) ** 2 + (Y - 200e3) ** 2) / (2 * 25e3**2)), 0.0)
+    ref = make_grid(flat, x, y, "EPSG:32633")
+    real = make_grid(shoal, x, y, "EPSG:32633")
+    # a plane wave launched as a 20 km wide ridge of water along the western edge
+    eta = make_grid(np.exp(-((X - 30e3) ** 2) / (2 * 10e3**2)), x, y, "EPSG:32633")
+    seg = segment_coastline([LineString([(279e3, 40e3), (279e3, 360e3)])], 20e3, real)
+    seg["amp_stop_m"] = 1.0 + np.arange(len(seg))  # arbitrary ray values: only the wave side is checked
+    seg["lensing_factor"] = 1.0 + np.arange(len(seg))
+    same = compare_with_waves(ref, eta, seg, reference_depth=ref, duration_s=1800.0, k=3, threads=1)
+    np.testing.assert_allclose(same.table["wave_lensing"], 1.0, rtol=1e-12)
+    chk = compare_with_waves(real, eta, seg, reference_depth=ref, duration_s=1800.0, k=3, threads=1)
+    wl = chk.table["wave_lensing"].to_numpy()
+    middle = np.abs(seg["y_mid"].to_numpy() - 200e3) < 30e3
+    far = np.abs(seg["y_mid"].to_numpy() - 200e3) > 120e3
+    assert wl[middle].min() > 1.3 and np.all(np.abs(wl[far] - 1.0) < 0.15)
+    assert set(chk.agreement["lensing"]) >= {"spearman", "kendall", "topk_common", "k", "n"}
+    assert chk.agreement["lensing"]["n"] == len(seg)

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import math
+
 from typing import Any
 
 import numpy as np
@@ -59,8 +61,11 @@ def rank_correlations(a: np.ndarray, b: np.ndarray) -> tuple[float, float, float
     Returns
     -------
     (rho, rho_p, tau, tau_p) : floats
-        From :func:`scipy.stats.spearmanr` and :func:`scipy.stats.kendalltau`.
+        From :func:`scipy.stats.spearmanr` and :func:`scipy.stats.kendalltau`; NaN when either
+        sample is constant (a ranking of ties has no correlation).
     """
+    if np.size(a) < 2 or np.ptp(np.asarray(a, float)) == 0 or np.ptp(np.asarray(b, float)) == 0:
+        return (math.nan,) * 4
     sp = stats.spearmanr(a, b)
     kt = stats.kendalltau(a, b)
     return float(sp.statistic), float(sp.pvalue), float(kt.statistic), float(kt.pvalue)

@@ -143,7 +143,7 @@ def period_bands(
     period_s: float,
     *,
     threshold: float = 0.1,
-    pad: int = 4,
+    pad: int = 8,
 ) -> list[tuple[float, float]]:
     """Octave period bands of the source and the share of its energy in each.
 
@@ -196,7 +196,7 @@ def period_bands(
         dx, dy = gi.dx * k_deg * math.cos(math.radians(lat)), gi.dy * k_deg
     else:
         dx, dy = gi.dx, gi.dy
-    py, px = pad * block.shape[0], pad * block.shape[1]
+    py, px = min(pad * block.shape[0], 4096), min(pad * block.shape[1], 4096)
     power = np.abs(np.fft.fft2(block, s=(py, px))) ** 2
     kx = 2 * np.pi * np.fft.fftfreq(px, d=dx)
     ky = 2 * np.pi * np.fft.fftfreq(py, d=dy)

@@ -1,0 +1,228 @@
+"""Benchmark of the focusing screening against its judge, the linear long-wave check, side by side.
+
+Two cases:
+
+* ``demo`` - the invented Meridane scenario (``sample_scenarios/meridane.toml``) at its own settings.
+* ``real`` - the 0.1 degree global relief grid (``$TSUNAMIFOCUS_SHARED_DATA/etopo1_0p1deg.nc``, see
+  that folder's README) cropped to lon 120..250 E, lat 0..65 N; a Mw 9.0 thrust off the Japan Trench
+  (trace (141.9, 36.3)-(143.4, 39.8), top 5 km, dip 12, width 175 km, rake 90); travel-time limit
+  15 h; the screened coast: the 20 m contour cut into 20 km segments whose centres lie in
+  lon 235..244 E, lat 32..49 N (the mainland coast of North America).
+
+For each case the script reports
+
+* the ray pipeline's wall time (:func:`tsunamifocus.studies.run.analyse_source`: Okada source, ray
+  fan, period bands, tracing over the real, reference and constant-depth oceans, segment arrivals;
+  the grid and the coastline segments are prepared beforehand and not timed) at the default
+  settings (20000 rays, 3 period bands) against the wave check's wall time
+  (:func:`tsunamifocus.studies.check.compare_with_waves`: the solver over the real and over the
+  reference ocean, default duration) on the same grid, and their ratio; the process CPU time
+  (all threads) is printed too, since it stays meaningful when other jobs share the cores;
+* the agreement of the ray rankings with the wave's (amplitude at the stop isobath and lensing
+  factor: Spearman and top-10 overlap) for both ray seeds;
+* the stability of the ray rankings between two ray seeds (top-10 overlap and Spearman of the
+  amplitude and of the lensing rankings).
+
+Numba is warmed first (a small ray run and a short wave run on the demo and on a small crop of
+the real grid) so compilation is not counted. The load average at the start is printed.
+
+Run:  python benchmarks/bench_focusing.py [--demo-only] [--rays N] [--seeds 7 8]
+"""
+
+from __future__ import annotations
+
+import argparse
+import dataclasses
+import os
+import pathlib
+import platform
+import time
+import warnings
+
+import numpy as np
+import pandas as pd
+
+from tsunamifocus.coast.coastline import coastline_from_grid
+from tsunamifocus.coast.segments import segment_coastline
+from tsunamifocus.errors import ResolutionWarning
+from tsunamifocus.focusing.agreement import compare_rankings
+from tsunamifocus.io.scenario import parse_scenario, scenario_from_dict
+from tsunamifocus.propagation.wave import simulate_linear_long_wave
+from tsunamifocus.studies.check import compare_with_waves
+from tsunamifocus.studies.run import _segments_for, analyse_source, load_scenario_bathymetry
+
+REPO = pathlib.Path(__file__).resolve().parents[1]
+DEMO_SCENARIO = REPO / "sample_scenarios" / "meridane.toml"
+K = 10
+
+#: The real-grid case (see the module docstring).
+REAL_CROP = (120.0, 0.0, 250.0, 65.0)
+REAL_COAST_BOX = (235.0, 32.0, 244.0, 49.0)  # lon0, lat0, lon1, lat1 of the segment centres [degrees E/N]
+
+
+def shared_data_dir() -> pathlib.Path | None:
+    """The folder of the shared open data (``$TSUNAMIFOCUS_SHARED_DATA`` or ``<repo>/../shared/data``)."""
+    env = os.environ.get("TSUNAMIFOCUS_SHARED_DATA")
+    for c in ([pathlib.Path(env)] if env else []) + [REPO.parent / "shared" / "data"]:
+        if (c / "etopo1_0p1deg.nc").is_file():
+            return c
+    return None
+
+
+def real_scenario(etopo: pathlib.Path, rays: int = 20000, seed: int = 0):
+    """The real-grid case as a scenario (grid, source, ray settings; the coast is selected separately)."""
+    return scenario_from_dict({
+        "scenario": {"name": "japan-trench-mw90"},
+        "bathymetry": {"path": str(etopo), "values": "elevation", "crop": list(REAL_CROP)},
+        "source": [{"name": "japan-trench-mw90", "kind": "fault", "magnitude": 9.0,
+                    "segment": [{"trace": [[141.9, 36.3], [143.4, 39.8]], "top_depth_km": 5.0, "dip_deg": 12.0,
+                                 "width_km": 175.0, "rake_deg": 90.0}]}],
+        "rays": {"count": rays, "stop_depth_m": 20.0, "max_time_h": 15.0, "seed": seed},
+        "coast": {"segment_km": 20.0},
+    }, base_dir=etopo.parent, origin="real-grid case")
+
+
+def real_segments(depth) -> pd.DataFrame:
+    """Segments of the 20 m contour, 20 km long, with centres in :data:`REAL_COAST_BOX`."""
+    seg = segment_coastline(coastline_from_grid(depth, 20.0), 20e3, depth)
+    lon = np.mod(seg["lon_mid"].to_numpy(float), 360.0)
+    lat = seg["lat_mid"].to_numpy(float)
+    x0, y0, x1, y1 = REAL_COAST_BOX
+    keep = (lon >= x0) & (lon <= x1) & (lat >= y0) & (lat <= y1)
+    return seg[keep].reset_index(drop=True)
+
+
+def with_seed(scenario, seed: int, rays: int | None):
+    """The scenario with another ray seed (and ray count)."""
+    r = scenario.rays
+    return dataclasses.replace(scenario, rays=dataclasses.replace(r, seed=seed, count=rays or r.count))
+
+
+def _series(seg: pd.DataFrame, col: str) -> pd.Series:
+    """A ray column indexed by segment, NaN where the segment is not ranked (not ``reliable``)."""
+    s = pd.Series(seg[col].to_numpy(float), index=seg["segment_id"].to_numpy())
+    if "reliable" in seg:
+        s[~seg["reliable"].fillna(False).astype(bool).to_numpy()] = np.nan
+    return s
+
+
+def warm_up(demo_sc, real_sc) -> None:
+    """Compile (or load from the numba cache) the ray and wave kernels on small runs."""
+    sc = with_seed(demo_sc, demo_sc.rays.seed, 400)
+    depth = load_scenario_bathymetry(sc)
+    a = analyse_source(depth, sc, sc.sources[0], segments=_segments_for(depth, sc), keep_paths=0)
+    simulate_linear_long_wave(depth, a.eta, duration_s=300.0)
+    if real_sc is not None:  # lon/lat sphere: a small crop around the source
+        d = load_scenario_bathymetry(real_sc).sel(lon=slice(135.0, 150.0), lat=slice(30.0, 45.0))
+        sc = with_seed(real_sc, 0, 400)
+        a = analyse_source(d, sc, sc.sources[0], segments=segment_coastline(coastline_from_grid(d, 20.0), 20e3, d),
+                           keep_paths=0)
+        simulate_linear_long_wave(d, a.eta, duration_s=300.0)
+
+
+def run_case(name: str, scenario, segments, depth, seeds: tuple[int, int], rays: int | None) -> dict:
+    """Ray pipeline for two seeds, the wave check once, and the figures of the table."""
+    out: dict = {"case": name, "n_segments": len(segments)}
+    runs = []
+    for s in seeds:
+        sc = with_seed(scenario, s, rays)
+        c0, t0 = time.process_time(), time.perf_counter()
+        a = analyse_source(depth, sc, sc.sources[0], segments=segments)
+        runs.append((time.perf_counter() - t0, time.process_time() - c0, a))
+    out["rays"] = runs[0][2].fan.n_rays
+    out["bands"] = len(runs[0][2].focusing.bands)
+    out["ray_wall_s"], out["ray_cpu_s"] = runs[0][0], runs[0][1]
+    out["ray_wall_s_2"] = runs[1][0]
+    a = runs[0][2]
+    seg = a.focusing.segments
+    c0, t0 = time.process_time(), time.perf_counter()
+    chk = compare_with_waves(depth, a.eta, seg, reference_depth=a.focusing.reference_depth,
+                             stop_depth=scenario.rays.stop_depth_m, k=K)
+    out["wave_wall_s"], out["wave_cpu_s"] = time.perf_counter() - t0, time.process_time() - c0
+    out["wave_hours"] = chk.wave.stats["duration_s"] / 3600.0
+    out["wave_cells"] = int(np.isfinite(np.asarray(depth.values, float)).sum())
+    wave = chk.table.set_index("segment_id")
+    for i, (_, _, ai) in enumerate(runs):
+        sg = ai.focusing.segments
+        out[f"amp_vs_wave_{i}"] = compare_rankings(_series(sg, "amp_stop_m"), wave["wave_amp_stop_m"], k=K)
+        out[f"lens_vs_wave_{i}"] = compare_rankings(_series(sg, "lensing_factor"), wave["wave_lensing"], k=K)
+    # the check's own figures must be those recomputed here for the first seed
+    assert abs(chk.agreement["spearman"] - out["amp_vs_wave_0"]["spearman"]) < 1e-12
+    s0, s1 = runs[0][2].focusing.segments, runs[1][2].focusing.segments
+    out["amp_seeds"] = compare_rankings(_series(s0, "amp_stop_m"), _series(s1, "amp_stop_m"), k=K)
+    out["lens_seeds"] = compare_rankings(_series(s0, "lensing_factor"), _series(s1, "lensing_factor"), k=K)
+    out["reliable"] = int(seg["reliable"].sum()) if "reliable" in seg else len(seg)
+    return out
+
+
+def _ag(d: dict) -> str:
+    return f"{d['spearman']:>6.3f} {d['topk_common']:>2d}/{d['k']:<2d}"
+
+
+def print_table(rows: list[dict]) -> None:
+    """The side-by-side table."""
+    print()
+    print(f"{'case':<6} {'segs':>5} {'rays':>6} {'bands':>5} {'ray wall':>9} {'ray CPU':>8} "
+          f"{'wave h':>7} {'wave wall':>10} {'wave CPU':>9} {'wave/ray':>9}")
+    for r in rows:
+        print(f"{r['case']:<6} {r['reliable']:>2d}/{r['n_segments']:<3d}{r['rays']:>6d} {r['bands']:>5d} "
+              f"{r['ray_wall_s']:>8.1f}s {r['ray_cpu_s']:>7.1f}s {r['wave_hours']:>7.2f} {r['wave_wall_s']:>9.1f}s "
+              f"{r['wave_cpu_s']:>8.1f}s {r['wave_wall_s'] / r['ray_wall_s']:>9.2f}")
+    print("  (ray = one analyse_source run, first seed; second seed's wall time: %s; wave = real + reference "
+          "solver runs)" % ", ".join(f"{r['case']} {r['ray_wall_s_2']:.1f} s" for r in rows))
+    print()
+    print("agreement with the wave (Spearman, top-10 common)")
+    print(f"{'case':<6} {'seed':>5}   {'amplitude':>11}   {'lensing':>11}")
+    for r in rows:
+        for i, s in enumerate(r["seeds"]):
+            print(f"{r['case']:<6} {s:>5d}   {_ag(r[f'amp_vs_wave_{i}'])}   {_ag(r[f'lens_vs_wave_{i}'])}")
+    print()
+    print("stability between the two ray seeds (Spearman, top-10 common)")
+    print(f"{'case':<6} {'seeds':>7}   {'amplitude':>11}   {'lensing':>11}")
+    for r in rows:
+        sd = "%d,%d" % tuple(r["seeds"])
+        print(f"{r['case']:<6} {sd:>7}   {_ag(r['amp_seeds'])}   {_ag(r['lens_seeds'])}")
+
+
+def main() -> None:
+    """Run the benchmark and print the table."""
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--demo-only", action="store_true", help="skip the real-grid case")
+    ap.add_argument("--rays", type=int, default=None, help="ray count (default: 20000, the scenario default)")
+    ap.add_argument("--seeds", type=int, nargs=2, default=None,
+                    help="two ray seeds (default: the scenario's seed and the next one)")
+    args = ap.parse_args()
+    load0 = os.getloadavg()
+    import numba
+
+    print(f"machine: {platform.processor() or platform.machine()}, {os.cpu_count()} CPUs, numba {numba.__version__}; "
+          f"load average at start {load0[0]:.2f} {load0[1]:.2f} {load0[2]:.2f}")
+    warnings.simplefilter("ignore", ResolutionWarning)  # the real case screens only part of the coast
+    demo_sc = parse_scenario(DEMO_SCENARIO)
+    real_sc = None
+    if not args.demo_only:
+        d = shared_data_dir()
+        if d is None:
+            raise SystemExit("shared open data not found: set TSUNAMIFOCUS_SHARED_DATA (or use --demo-only)")
+        real_sc = real_scenario(d / "etopo1_0p1deg.nc")
+    t0 = time.perf_counter()
+    warm_up(demo_sc, real_sc)
+    print(f"warm-up (numba) {time.perf_counter() - t0:.1f} s")
+
+    rows = []
+    cases = [("demo", demo_sc)] + ([("real", real_sc)] if real_sc is not None else [])
+    for name, sc in cases:
+        depth = load_scenario_bathymetry(sc)
+        segments = real_segments(depth) if name == "real" else _segments_for(depth, sc)
+        seeds = tuple(args.seeds) if args.seeds else (sc.rays.seed, sc.rays.seed + 1)
+        print(f"{name}: grid {depth.shape[0]} x {depth.shape[1]}, {len(segments)} segments, seeds {seeds} ...",
+              flush=True)
+        r = run_case(name, sc, segments, depth, seeds, args.rays)
+        r["seeds"] = seeds
+        rows.append(r)
+    print(f"load average at end {os.getloadavg()[0]:.2f}")
+    print_table(rows)
+
+
+if __name__ == "__main__":
+    main()
