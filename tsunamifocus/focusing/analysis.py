@@ -44,15 +44,17 @@ from scipy.spatial import cKDTree
 from ..cautions import caution_summary
 from ..coast.coastline import coastline_from_grid
 from ..coast.segments import segment_coastline
+from ..constants import REFERENCE_SMOOTH_KM, STOP_DEPTH_M
 from ..errors import InputError
 from ..grid import GridInfo
 from ..ocean.reference import flat_depth, reference_depth
-from ..ocean.smooth import _sea, _to_xyz
+from ..ocean.smooth import _sea, _to_xyz, smooth_bathymetry
 from ..propagation.rays import trace_rays
 from .arrivals import REASON_COAST, segment_arrivals
 from .branches import branch_diagnostics
 from .budget import energy_budget
 from .energy import distance_to_launch_m, fresnel_sigma_m, ratio_map, regularised_energy
+from .randommedium import fluctuation_statistics
 from .ranking import rank_segments
 
 __all__ = ['REASON_COAST', 'FocusingResult', 'analyse_focusing']
@@ -125,8 +127,8 @@ def analyse_focusing(
     fan: Any,
     *,
     period_s: float,
-    reference_km: float,
-    stop_depth: float = 20.0,
+    reference_smooth_km: float = REFERENCE_SMOOTH_KM,
+    stop_depth_m: float = STOP_DEPTH_M,
     segments: pd.DataFrame | None = None,
     segment_length_m: float | None = None,
     trace_kwargs: dict | None = None,
@@ -146,12 +148,12 @@ def analyse_focusing(
         Rays of the source (weights in J).
     period_s : float
         Dominant period of the source [s] (regularisation wavelength, pulse length).
-    reference_km : float
+    reference_smooth_km : float
         Low-pass scale of the reference bathymetry [km] (Gaussian std).
-    stop_depth : float
+    stop_depth_m : float
         Stop isobath [m].
     segments : pandas.DataFrame, optional
-        Coastline segments; default: the ``stop_depth`` contour of the grid cut into
+        Coastline segments; default: the ``stop_depth_m`` contour of the grid cut into
         ``segment_length_m`` pieces.
     segment_length_m : float, optional
         Default 10 grid cells.
@@ -169,8 +171,10 @@ def analyse_focusing(
     info = GridInfo.from_dataarray(depth)
     x0, y0, az, w, e_src = _fan_arrays(fan)
     kw = dict(trace_kwargs or {})
-    kw.setdefault("stop_depth", stop_depth)
-    ref = reference_depth(depth, reference_km)
+    kw.setdefault("stop_depth_m", stop_depth_m)
+    # one low-pass serves the reference ocean and the fluctuation statistics
+    lowpass = smooth_bathymetry(depth, reference_smooth_km)
+    ref = reference_depth(depth, reference_smooth_km, lowpass=lowpass)
     flat = flat_depth(depth)
     real = trace_rays(depth, x0, y0, az, weights=w, **kw)
     refr = trace_rays(ref, x0, y0, az, weights=w, **kw)
@@ -182,7 +186,7 @@ def analyse_focusing(
     e_ref = regularised_energy(refr.energy, sigma, sea)
     e_flat = regularised_energy(flatr.energy, sigma, sea)
     lens = ratio_map(e_real, e_ref, "lensing_factor",
-                     f"energy over real / over same-mean reference bathymetry (low-pass {reference_km:g} km)")
+                     f"energy over real / over same-mean reference bathymetry (low-pass {reference_smooth_km:g} km)")
     foc = ratio_map(e_real, e_flat, "focusing_factor", "energy over real bathymetry / over constant-depth ocean")
     tt = real.first_arrival_s / 60.0
     tt.name = "travel_time_min"
@@ -190,12 +194,14 @@ def analyse_focusing(
     if segments is None:
         if segment_length_m is None:
             segment_length_m = 10.0 * max(info.spacing_m())
-        segments = segment_coastline(coastline_from_grid(depth, stop_depth), segment_length_m, depth)
+        segments = segment_coastline(coastline_from_grid(depth, stop_depth_m), segment_length_m, depth)
     table = segment_arrivals(segments, real, depth, period_s=period_s, ref_result=refr,
                              max_distance_m=max_distance_m, min_rays=min_rays, n_boot=n_boot, seed=seed)
     ranking = rank_segments(table, top_k=top_k, by="lensing_factor")
     d_coast = _segment_distance(table, info, x0, y0)
-    diag = branch_diagnostics(real, depth, lowpass_km=reference_km, coast_distance_m=d_coast)
+    fluct = fluctuation_statistics(depth, reference_smooth_km, lowpass=lowpass)
+    diag = branch_diagnostics(real, depth, reference_smooth_km=reference_smooth_km, coast_distance_m=d_coast,
+                              fluctuations=fluct)
     budget = energy_budget(real, table, source_energy_J=e_src)
     return FocusingResult(
         energy=e_real, energy_raw=real.energy, lensing_factor=lens, focusing_factor=foc,

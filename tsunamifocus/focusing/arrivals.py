@@ -67,16 +67,16 @@ def _assign(segments: pd.DataFrame, info: GridInfo, x: np.ndarray, y: np.ndarray
     return idx, dist
 
 
-def _default_max_distance(segments: pd.DataFrame, depth: xr.DataArray, info: GridInfo, stop: float) -> float:
+def _default_max_distance(segments: pd.DataFrame, depth: xr.DataArray, info: GridInfo, stop_depth_m: float) -> float:
     """3 cells + 1.5 x median offset [m] of the segment centres from the stop-isobath contour."""
     import shapely
 
 
     base = 3.0 * max(info.spacing_m())
-    if not (np.isfinite(stop) and stop > 0):
+    if not (np.isfinite(stop_depth_m) and stop_depth_m > 0):
         return base
     try:
-        lines = coastline_from_grid(depth, stop, min_length_m=0.0)
+        lines = coastline_from_grid(depth, stop_depth_m, min_length_m=0.0)
     except CoastError:
         return base
     kx = math.cos(math.radians(float(np.median(segments["y_mid"])))) if info.geographic else 1.0
@@ -241,11 +241,11 @@ def segment_arrivals(
         max_distance_m = _default_max_distance(segments, depth, info, float(end.attrs.get("stop_depth_m", np.nan)))
     reason = np.asarray(end["reason"].values)
     coast = reason == REASON_COAST
-    stop = float(end.attrs.get("stop_depth_m", np.nan))
+    stop_depth_m = float(end.attrs.get("stop_depth_m", np.nan))
     if not coast.any():
         counts = {REASON_MEANINGS.get(int(c), str(c)): int((reason == c).sum()) for c in np.unique(reason)}
         raise CoastError(
-            f"no ray reached the stop isobath ({stop:g} m); ray ends: {counts}. Lower stop_depth, "
+            f"no ray reached the stop isobath ({stop_depth_m:g} m); ray ends: {counts}. Lower stop_depth_m, "
             f"raise max_time_s, widen the grid or aim the source at the coast - no ranking can be made"
         )
     nseg = len(segments)
@@ -259,7 +259,7 @@ def segment_arrivals(
         raise CoastError(
             f"{ci.size} rays reached the stop isobath but none within max_distance_m="
             f"{max_distance_m:.0f} m of a coastline segment: raise max_distance_m or use a "
-            f"coastline nearer the stop isobath (e.g. coastline_from_grid(depth, {stop:g}))"
+            f"coastline nearer the stop isobath (e.g. coastline_from_grid(depth, {stop_depth_m:g}))"
         )
     agg = _per_segment(end, idx, nseg)
     length = segments["length_m"].to_numpy(float)

@@ -13,7 +13,7 @@ import xarray as xr
 
 from ..cautions import caution_text
 from ..coast.waves import segment_max_amplitude
-from ..constants import GRAVITY
+from ..constants import GRAVITY, STOP_DEPTH_M
 from ..errors import CoastError, InputError
 from ..focusing.agreement import compare_rankings
 from ..propagation.wave import WAVE_CAUTION, WaveResult, _check_depth, _wet_mask, simulate_linear_long_wave
@@ -67,7 +67,7 @@ class WaveCheck:
         )
 
 
-def default_check_duration_s(depth: xr.DataArray, segments: Any = None, *, stop_depth: float = 20.0,
+def default_check_duration_s(depth: xr.DataArray, segments: Any = None, *, stop_depth_m: float = STOP_DEPTH_M,
                              gravity: float = GRAVITY) -> float:
     """Simulated time [s] used by :func:`wave_check` when none is given.
 
@@ -81,7 +81,7 @@ def default_check_duration_s(depth: xr.DataArray, segments: Any = None, *, stop_
             return float(1.2 * np.nanmax(t) + 3600.0)
     info = _check_depth(depth)
     d = np.asarray(depth.values, float)
-    wet = _wet_mask(d, stop_depth)
+    wet = _wet_mask(d, stop_depth_m)
     if not wet.any():
         raise InputError(f"depth grid '{depth.name}': no wet cell deeper than the stop depth")
     if info.geographic:
@@ -101,7 +101,7 @@ def compare_with_waves(
     *,
     ray_column: str = "amp_stop_m",
     duration_s: float | None = None,
-    stop_depth: float = 20.0,
+    stop_depth_m: float = STOP_DEPTH_M,
     coast: str = "absorb",
     boundary: str | Mapping[str, str] | Sequence[str] = "absorb",
     k: int = 10,
@@ -128,7 +128,7 @@ def compare_with_waves(
         ``lensing_factor`` or ``energy_per_m`` give the same ranking comparison for their quantity).
     duration_s : float, optional
         Simulated time [s]; default :func:`default_check_duration_s`.
-    stop_depth : float
+    stop_depth_m : float
         Stop isobath [m], the same as the ray run.
     coast : {"absorb", "reflect"}
         Default "absorb": the ray amplitude at the stop isobath is an incident amplitude, so the coast
@@ -154,12 +154,12 @@ def compare_with_waves(
     if not hasattr(segments, "columns") or ray_column not in segments.columns:
         raise CoastError(f"segments table has no column {ray_column!r} to compare with the wave solver")
     if duration_s is None:
-        duration_s = default_check_duration_s(depth, segments, stop_depth=stop_depth, gravity=gravity)
+        duration_s = default_check_duration_s(depth, segments, stop_depth_m=stop_depth_m, gravity=gravity)
     res = simulate_linear_long_wave(
-        depth, eta0, duration_s=duration_s, stop_depth=stop_depth, coast=coast, boundary=boundary, cfl=cfl,
+        depth, eta0, duration_s=duration_s, stop_depth_m=stop_depth_m, coast=coast, boundary=boundary, cfl=cfl,
         gravity=gravity, threads=threads, progress=progress, **simulate_kwargs,
     )
-    wave = segment_max_amplitude(res, segments, depth, stop_depth, search_radius_cells=search_radius_cells,
+    wave = segment_max_amplitude(res, segments, depth, stop_depth_m, search_radius_cells=search_radius_cells,
                                  statistic=statistic)
     ray = pd.Series(np.asarray(segments[ray_column], dtype=float), index=wave.index, name="ray_value")
     table = pd.DataFrame({"segment_id": wave.index.values})
@@ -167,7 +167,7 @@ def compare_with_waves(
         table["name"] = np.asarray(segments["name"])
     table["ray_value"] = ray.values
     table["wave_amp_stop_m"] = wave.values
-    arr = segment_max_amplitude(res, segments, depth, stop_depth, search_radius_cells=search_radius_cells,
+    arr = segment_max_amplitude(res, segments, depth, stop_depth_m, search_radius_cells=search_radius_cells,
                                 statistic="min", field="arrival_time_s")
     table["wave_first_arrival_s"] = arr.values
     for col, src in (("rank_ray", ray.values), ("rank_wave", wave.values)):
