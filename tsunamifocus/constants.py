@@ -1,9 +1,10 @@
-"""Physical constants and defaults used throughout tsunamifocus (SI units)."""
+"""Physical constants, the package version and the one table of scenario defaults (SI units)."""
 
 from __future__ import annotations
 
 __all__ = [
-    "__version__", "GRAVITY", "EARTH_RADIUS_M", "RHO_SEAWATER", "RIGIDITY_PA", "MIN_DEPTH_M"]
+    "__version__", "GRAVITY", "EARTH_RADIUS_M", "RHO_SEAWATER", "RIGIDITY_PA", "MIN_DEPTH_M", "DEFAULTS",
+    "STOP_DEPTH_M"]
 
 #: Version of the package (also in pyproject.toml).
 __version__ = "0.1.0"
@@ -26,3 +27,24 @@ RIGIDITY_PA: float = 4.0e10
 
 #: Default minimum depth [m] used to clamp the long-wave speed in very shallow water.
 MIN_DEPTH_M: float = 1.0
+
+#: The one table of defaults of a scenario: section -> key -> default value (SI-style units in the
+#: key names). The scenario schema and its dataclasses (:mod:`tsunamifocus.io.scenario`), the
+#: command-line help and the tables of docs/scenario.md (generated from the schema) all read it;
+#: keys that have no fixed default (required keys, or defaults derived from other values) are absent.
+DEFAULTS: dict[str, dict[str, object]] = {
+    "scenario": {"description": ""},
+    "bathymetry": {"values": "auto", "crop_margin_km": 0.0, "max_memory_gb": 4.0},
+    "source": {"kind": "fault", "force": False, "radius_km": 50.0, "amplitude_m": 1.0},
+    "source.segment": {"rake_deg": 90.0, "rigidity_pa": RIGIDITY_PA},
+    "rays": {"count": 20000, "stop_depth_m": 20.0, "max_time_h": 24.0, "seed": 0},
+    "coast": {"from": "grid", "segment_km": 10.0, "min_rays": 10},
+    "output": {"top_k": 10, "figures": True, "report": True},
+    "ensemble": {
+        "members": 0, "seed": 0, "bathy_rms": 0.0, "bathy_corr_km": 20.0, "strike_deg": 0.0, "dip_deg": 0.0,
+        "along_km": 0.0, "across_km": 0.0, "magnitude": 0.0, "launch_jitter_deg": 0.0, "scheduler": "local",
+    },
+}
+
+#: Default stop isobath [m]: rays end, and the wave check's coast lies, where the depth falls below it.
+STOP_DEPTH_M: float = float(DEFAULTS["rays"]["stop_depth_m"])  # type: ignore[arg-type]

@@ -506,7 +506,7 @@ def test_analyse_focusing_end_to_end():
     n = 3000
     y0 = (np.arange(n) + 0.5) * 200e3 / n
     fan = (np.full(n, 2000.0), y0, np.full(n, 90.0), np.full(n, E_SRC / n))
-    res = analyse_focusing(d, fan, period_s=20.0, reference_km=30.0, segment_length_m=5e3,
+    res = analyse_focusing(d, fan, period_s=20.0, reference_smooth_km=30.0, segment_length_m=5e3,
                              trace_kwargs={"q0": 1.0, "p0": 0.0})
     assert res.energy.attrs["units"] == "J m-1"
     assert res.lensing_factor.name == "lensing_factor" and res.focusing_factor.name == "focusing_factor"
@@ -579,7 +579,7 @@ def test_shoreline_inshore_of_the_stop_isobath_is_reached():
     from shapely.geometry import LineString
 
     d = shelf()
-    r = plane_wave(d, 1000, 0.0, 100e3, stop_depth=200.0)
+    r = plane_wave(d, 1000, 0.0, 100e3, stop_depth_m=200.0)
     seg = segment_coastline([LineString([(140e3, 0.0), (140e3, 100e3)])], 10e3, d)
     # exact ray tubes (no regularisation over the 26 km wavelength at 200 m, which would bias the
     # segments within a wavelength of the coast's two ends, see docs/focusing.md)

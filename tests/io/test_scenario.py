@@ -12,6 +12,8 @@ External references used below:
 
 from __future__ import annotations
 
+import importlib.util
+
 import json
 import math
 import pathlib
@@ -25,7 +27,15 @@ from hypothesis import strategies as st
 
 from tsunamifocus.constants import RIGIDITY_PA
 from tsunamifocus.errors import InputError, ScenarioError
-from tsunamifocus.io.scenario import FaultSegmentConfig, Scenario, parse_scenario, scenario_from_dict, scenario_schema
+from tsunamifocus.constants import DEFAULTS
+from tsunamifocus.io.scenario import (
+    FaultSegmentConfig,
+    Scenario,
+    parse_scenario,
+    scenario_from_dict,
+    scenario_schema,
+    scenario_table_markdown,
+)
 
 REPO = pathlib.Path(__file__).resolve().parents[2]
 
@@ -421,3 +431,37 @@ def test_bundled_sample_scenarios_parse():
         sc = parse_scenario(f)
         assert sc.bathymetry.path.is_file(), sc.bathymetry.path
         assert sc.bathymetry.path.is_relative_to(f.parent.resolve())
+
+
+# ---------------------------------------------------------------------------------------------
+# One table of defaults; generated documentation
+# ---------------------------------------------------------------------------------------------
+
+
+def test_doc_tables_are_the_generated_ones():
+    """docs/scenario.md shows, under each section heading, exactly the table generated from the schema
+    (regenerate with ``python docs/make_scenario_tables.py``)."""
+    doc = (REPO / "docs" / "scenario.md").read_text(encoding="utf-8")
+    spec = importlib.util.spec_from_file_location("make_scenario_tables", REPO / "docs" / "make_scenario_tables.py")
+    mod = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(mod)
+    assert mod.regenerate(doc) == doc
+    for sec in scenario_schema():
+        assert scenario_table_markdown(sec) in doc, sec
+
+
+def test_defaults_table_is_the_schema_and_dataclass_source():
+    """Every default of constants.DEFAULTS is the schema's default and the parsed value of a minimal file."""
+    schema = scenario_schema()
+    for sec, table in DEFAULTS.items():
+        keys = {k["key"]: k for k in schema[sec]}
+        for key, value in table.items():
+            assert keys[key]["default"] == value, (sec, key)
+    sc = scenario_from_dict({"bathymetry": {"path": "g.nc"},
+                             "source": [{"name": "p", "kind": "point", "lon": 1.0, "lat": 2.0}]}, "/")
+    for sec in ("rays", "focusing", "output", "ensemble"):
+        for key, value in DEFAULTS[sec].items():
+            assert getattr(getattr(sc, sec), key) == value, (sec, key)
+    assert sc.coast.isobath_m == DEFAULTS["rays"]["stop_depth_m"]
+    assert sc.sources[0].radius_km == DEFAULTS["source"]["radius_km"]
+    assert sc.bathymetry.max_memory_gb == DEFAULTS["bathymetry"]["max_memory_gb"]

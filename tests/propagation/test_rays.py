@@ -74,7 +74,7 @@ def test_constant_depth_sphere_great_circles_across_seam(lon0):
     lons = np.array([150.0, 170.0, -20.0, 350.0, 160.0])
     lats = np.array([10.0, -35.0, 40.0, 0.0, 50.0])
     azs = np.array([80.0, 100.0, 70.0, 95.0, 45.0])
-    r = trace_rays(d, lons, lats, azs, max_time_s=dist / c, stop_depth=20.0)
+    r = trace_rays(d, lons, lats, azs, max_time_s=dist / c, stop_depth_m=20.0)
     e = r.end
     assert (e.reason == REASON_CODES["time_limit"]).all()
     lo_ref, la_ref, baz = GEOD.fwd(lons, lats, azs, np.full(lons.size, dist))
@@ -117,7 +117,7 @@ def test_snell_invariant_linear_slope():
     d = plane(h)
     az = np.array([30.0, 60.0, 100.0, 130.0, 250.0, 300.0])
     x0 = np.full(az.size, 120e3)
-    r = trace_rays(d, x0, np.full(az.size, 40e3), az, max_time_s=120.0, stop_depth=50.0)
+    r = trace_rays(d, x0, np.full(az.size, 40e3), az, max_time_s=120.0, stop_depth_m=50.0)
     e = r.end
     fld = SpeedField(d)
     c0 = fld.evaluate(x0, np.full(az.size, 40e3))["c"]
@@ -166,7 +166,7 @@ def test_greens_law_normal_incidence_on_slope():
     per_cell = 8
     y0 = (np.arange(ny * per_cell) + 0.5) / per_cell * 1000.0 - 500.0
     r = trace_rays(
-        d, np.full(y0.size, 2000.0), y0, 90.0, weights=1.0, q0=1.0, p0=0.0, stop_depth=250.0, max_time_s=5e4
+        d, np.full(y0.size, 2000.0), y0, 90.0, weights=1.0, q0=1.0, p0=0.0, stop_depth_m=250.0, max_time_s=5e4
     )
     e = r.end
     assert (e.reason == REASON_CODES["coast"]).all()
@@ -343,7 +343,7 @@ def test_statistical_convergence_of_coastal_energy_ranking(bench_like):
 
 def test_coast_stop_and_interpolated_end(bench_like):
     y0 = np.linspace(50e3, 350e3, 50)
-    r = trace_rays(bench_like, np.full(y0.size, 3e3), y0, 90.0, stop_depth=30.0, step_s=20.0)
+    r = trace_rays(bench_like, np.full(y0.size, 3e3), y0, 90.0, stop_depth_m=30.0, step_s=20.0)
     e = r.end
     coast = e.reason.values == REASON_CODES["coast"]
     assert coast.mean() > 0.8
@@ -441,8 +441,8 @@ def test_keep_paths_end_at_end_state():
         (dict(x0=[]), "no rays"),
         (dict(weights=[np.nan]), "weights"),
         (dict(weights=[-1.0]), "weights"),
-        (dict(stop_depth=5000.0), "stop_depth"),
-        (dict(stop_depth=0.0), "stop_depth"),
+        (dict(stop_depth_m=5000.0), "stop_depth_m"),
+        (dict(stop_depth_m=0.0), "stop_depth_m"),
         (dict(step_s=0.0), "step_s"),
         (dict(step_s=1e6), "step_s"),
         (dict(step_s=1e-6), "steps per ray"),

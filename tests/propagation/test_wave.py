@@ -107,7 +107,7 @@ def test_greens_law_on_plane_slope():
     depth = make_grid(np.tile(h, (3, 1)), x, np.arange(3) * dx, "EPSG:3857")
     eta0 = depth.copy(data=np.tile(np.exp(-((x - 100e3) ** 2) / (2 * 15e3**2)), (3, 1)))
     res = simulate_linear_long_wave(
-        depth, eta0, duration_s=9000.0, stop_depth=30.0, coast="absorb",
+        depth, eta0, duration_s=9000.0, stop_depth_m=30.0, coast="absorb",
         boundary={"west": "absorb", "east": "absorb", "south": "reflect", "north": "reflect"}, threads=1,
     )
     amp = res.max_amplitude.values[1]
@@ -301,7 +301,7 @@ def test_bad_inputs_are_refused():
     with pytest.raises(InputError, match="NaN"):
         simulate_linear_long_wave(depth, bad, duration_s=10.0, threads=1)
     with pytest.raises(InputError, match="no wet cell"):
-        simulate_linear_long_wave(depth, eta, duration_s=10.0, stop_depth=200.0, threads=1)
+        simulate_linear_long_wave(depth, eta, duration_s=10.0, stop_depth_m=200.0, threads=1)
 
 
 # ------------------------------------------------------------------------------------------------
@@ -483,7 +483,7 @@ def test_crest_times_on_real_bathymetry_match_fast_marching(etopo_path):
     _, _, dist = geod.inv(np.full(lo.size, 160.0), np.zeros(lo.size), lo.ravel(), la.ravel())
     dist = dist.reshape(lo.shape)
     eta0 = depth.copy(data=np.exp(-(dist**2) / (2 * 30e3**2)))
-    res = simulate_linear_long_wave(depth, eta0, duration_s=12 * 3600.0, stop_depth=20.0, coast="absorb", threads=1)
+    res = simulate_linear_long_wave(depth, eta0, duration_s=12 * 3600.0, stop_depth_m=20.0, coast="absorb", threads=1)
     assert abs(res.stats["mass_error"]) < 1e-12
     d = depth.values
     wet = np.isfinite(d) & (d > 20.0)

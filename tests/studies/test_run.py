@@ -203,7 +203,7 @@ def test_global_point_source_arrivals_match_eikonal(etopo_path):
     d = crop_bathymetry(d, (130.0, -55.0, 290.0, 55.0))
     src = (250.0, -30.0)  # open South Pacific
     targets = [(200.0, 10.0), (180.0, -20.0), (160.0, 30.0), (215.0, -45.0)]
-    t_ray = arrival_times(d, src, targets, n_rays=7200, stop_depth=20.0, max_time_s=30 * 3600.0)
+    t_ray = arrival_times(d, src, targets, n_rays=7200, stop_depth_m=20.0, max_time_s=30 * 3600.0)
 
     R = 6371008.8
     lon = np.radians(d.lon.values)

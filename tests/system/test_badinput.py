@@ -627,9 +627,9 @@ RAY_CASES = [
     _ray_case("rays-zero-rays", r"no rays to trace: x0 is empty", "x0", x0=[], y0=[], azimuth_deg=[]),
     _ray_case(
         "rays-stop-isobath-deeper-than-launch",
-        r"stop_depth = 3900.0 m is not shallower than the launch depth",
+        r"stop_depth_m = 3900.0 m is not shallower than the launch depth",
         "3900",
-        stop_depth=3900.0,
+        stop_depth_m=3900.0,
     ),
     _ray_case(
         "rays-absurd-step", r"step_s = 1000000.0 s: expected 0 < step_s <= [0-9.]+ s", "step_s", step_s=1e6

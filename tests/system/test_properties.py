@@ -240,7 +240,7 @@ def test_ray_invariants(rough_sea, rays, seed):
     fx, fy, az, w = (np.array(c, dtype=float) for c in zip(*rays, strict=True))
     x0 = b[0] + fx * (b[2] - b[0])
     y0 = b[1] + fy * (b[3] - b[1])
-    kw = dict(weights=w, stop_depth=50.0, max_time_s=4 * 3600.0, keep_paths=len(w), threads=1)
+    kw = dict(weights=w, stop_depth_m=50.0, max_time_s=4 * 3600.0, keep_paths=len(w), threads=1)
     res = trace_rays(rough_sea, x0, y0, az, **kw)
     end = res.end
     # energy never created: each ray keeps its weight; the budget over end reasons closes

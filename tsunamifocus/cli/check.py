@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import argparse
 
+from ..constants import DEFAULTS
 from ..products.check import run_wave_check
 
 NAME = "check"
@@ -16,7 +17,8 @@ def configure(p: argparse.ArgumentParser) -> None:
     p.add_argument("--out", help="output folder (default: RUN_DIR/wave_check)")
     p.add_argument("--overwrite", action="store_true", help="replace an existing output folder")
     p.add_argument("--hours", type=float, help="simulated duration [h] (default: the latest first arrival + 30 min)")
-    p.add_argument("--top", type=int, default=10, help="k of the top-k overlap (default 10)")
+    top_k = DEFAULTS["output"]["top_k"]
+    p.add_argument("--top", type=int, default=top_k, help=f"k of the top-k overlap (default {top_k}, as [output] top_k)")
 
 
 def run(args: argparse.Namespace) -> int:

@@ -5,6 +5,7 @@ from __future__ import annotations
 import argparse
 import pathlib
 
+from ..constants import DEFAULTS
 from ..errors import InputError
 from ..io.runfolder import OutputFolder, refuse_filled_folder
 from ..io.runs import read_run
@@ -20,7 +21,8 @@ def configure(p: argparse.ArgumentParser) -> None:
     p.add_argument("runs", nargs="+", help="two or more finished run folders")
     p.add_argument("--out", required=True, help="folder for the comparison outputs")
     p.add_argument("--overwrite", action="store_true", help="replace an existing output folder")
-    p.add_argument("--top", type=int, default=10, help="k of the top-k counts (default 10)")
+    top_k = DEFAULTS["output"]["top_k"]
+    p.add_argument("--top", type=int, default=top_k, help=f"k of the top-k counts (default {top_k}, as [output] top_k)")
 
 
 def run(args: argparse.Namespace) -> int:

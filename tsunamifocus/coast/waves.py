@@ -9,6 +9,7 @@ import numpy as np
 import xarray as xr
 
 from ..cautions import caution_text
+from ..constants import STOP_DEPTH_M
 from ..errors import CoastError, InputError
 from ..propagation.wave import WaveResult, _check_depth, _wet_mask
 
@@ -38,7 +39,7 @@ def segment_max_amplitude(
     wave_result: WaveResult,
     segments: Any,
     depth: xr.DataArray,
-    stop_depth: float = 20.0,
+    stop_depth_m: float = STOP_DEPTH_M,
     *,
     search_radius_cells: float = 2.0,
     statistic: str = "max",
@@ -46,7 +47,7 @@ def segment_max_amplitude(
 ) -> Any:
     """Maximum wave amplitude per coastline segment, sampled along the stop isobath.
 
-    The stop-isobath band is the set of wet cells (depth ``> stop_depth``) with a dry 4-neighbour.
+    The stop-isobath band is the set of wet cells (depth ``> stop_depth_m``) with a dry 4-neighbour.
     Each band cell is given to the segment nearest to its centre if that lies within
     ``search_radius_cells`` cell sizes (so neighbouring segments never share a cell); the
     ``wave_result.max_amplitude`` of a segment's cells is reduced by ``statistic``.
@@ -60,7 +61,7 @@ def segment_max_amplitude(
         the grid CRS).
     depth : xarray.DataArray
         Depth grid [m] the wave was computed on.
-    stop_depth : float
+    stop_depth_m : float
         Stop isobath [m] (use the value of the run).
     search_radius_cells : float
         Search distance around each segment, in cell sizes (the larger of dx, dy; degrees on lon/lat
@@ -99,7 +100,7 @@ def segment_max_amplitude(
     amp = wave_result.max_amplitude
     if amp.shape != depth.shape:
         raise InputError(f"wave result grid {amp.shape} does not match depth grid {depth.shape}")
-    wet = _wet_mask(np.asarray(depth.values, float), stop_depth) & np.isfinite(amp.values)
+    wet = _wet_mask(np.asarray(depth.values, float), stop_depth_m) & np.isfinite(amp.values)
     band = _coastal_cells(wet, info.periodic_x)
     jj, ii = np.nonzero(band)
     vals = np.asarray(getattr(wave_result, field).values, float)[jj, ii]

@@ -46,20 +46,21 @@ from scipy.spatial import cKDTree
 from ..cautions import caution_summary
 from ..coast.coastline import coastline_from_grid
 from ..coast.segments import segment_coastline
-from ..constants import GRAVITY
+from ..constants import GRAVITY, STOP_DEPTH_M
 from ..errors import InputError
 from ..grid import GridInfo
 from ..ocean.reference import flat_depth, reference_depth
+from ..ocean.smooth import _sea, _to_xyz, smooth_bathymetry
 from ..ocean.wavelength import WAVELENGTH_FRACTION, wavelength_smoothed_depth
-from ..ocean.smooth import _sea, _to_xyz
 from ..propagation.rays import trace_rays
 from .arrivals import REASON_COAST, BandTrace, segment_arrivals
 from .branches import branch_diagnostics
 from .budget import energy_budget
 from .energy import distance_to_launch_m, fresnel_sigma_m, ratio_map, regularised_energy
+from .randommedium import fluctuation_statistics
 from .ranking import rank_segments
 
-__all__ = ['REASON_COAST', 'FocusingResult', 'analyse_focusing', 'default_reference_km']
+__all__ = ['REASON_COAST', 'FocusingResult', 'analyse_focusing', 'default_reference_smooth_km']
 
 
 
@@ -100,7 +101,7 @@ class FocusingResult:
         Caution text.
     ray_depth : xarray.DataArray
         The real bathymetry as the dominant band's wave sees it (what its rays were traced on) [m].
-    reference_km : float
+    reference_smooth_km : float
         Low-pass scale of the reference [km].
     bands : list of (float, float)
         ``(period_s, weight)`` of the bands.
@@ -120,7 +121,7 @@ class FocusingResult:
     runs: dict = field(default_factory=dict)
     cautions: str = ""
     ray_depth: xr.DataArray | None = None
-    reference_km: float = float("nan")
+    reference_smooth_km: float = float("nan")
     bands: list = field(default_factory=list)
 
 
@@ -134,7 +135,7 @@ def _fan_arrays(fan: Any) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarra
     raise InputError("fan: expected a RayFan or a tuple (x0, y0, azimuth_deg, weights)")
 
 
-def default_reference_km(depth: xr.DataArray, period_s: float, *, gravity: float = GRAVITY) -> float:
+def default_reference_smooth_km(depth: xr.DataArray, period_s: float, *, gravity: float = GRAVITY) -> float:
     """Default low-pass scale of the lensing reference: the deep-water wavelength ``c T`` [km].
 
     ``c = sqrt(g h)`` at the mean depth of the sea cells deeper than 1000 m (all sea cells if
@@ -154,11 +155,11 @@ def default_reference_km(depth: xr.DataArray, period_s: float, *, gravity: float
 
 
 def _trace_band(depth: xr.DataArray, ref: xr.DataArray, fan_arrays: tuple, period_s: float, weight: float,
-                fraction: float, stop_depth: float, kw: dict) -> tuple[BandTrace, xr.DataArray]:
+                fraction: float, stop_depth_m: float, kw: dict) -> tuple[BandTrace, xr.DataArray]:
     """Both oceans of one band, each as a wave of that period sees it, traced with the same fan."""
     x0, y0, az, w = fan_arrays
-    medium = wavelength_smoothed_depth(depth, period_s, fraction=fraction, stop_depth_m=stop_depth)
-    ref_medium = wavelength_smoothed_depth(ref, period_s, fraction=fraction, stop_depth_m=stop_depth)
+    medium = wavelength_smoothed_depth(depth, period_s, fraction=fraction, stop_depth_m=stop_depth_m)
+    ref_medium = wavelength_smoothed_depth(ref, period_s, fraction=fraction, stop_depth_m=stop_depth_m)
     real = trace_rays(medium, x0, y0, az, weights=w, **kw)
     reference = trace_rays(ref_medium, x0, y0, az, weights=w, **kw)
     return BandTrace(float(period_s), float(weight), real, reference), medium
@@ -175,8 +176,8 @@ def analyse_focusing(
     fan: Any,
     *,
     period_s: float,
-    reference_km: float | None = None,
-    stop_depth: float = 20.0,
+    reference_smooth_km: float | None = None,
+    stop_depth_m: float = STOP_DEPTH_M,
     bands: Sequence[tuple[float, float]] | None = None,
     wavelength_fraction: float = WAVELENGTH_FRACTION,
     segments: pd.DataFrame | None = None,
@@ -192,7 +193,7 @@ def analyse_focusing(
 
     For every period band ``(T_b, w_b)`` (default: the one band ``(period_s, 1)``; the pipeline
     passes :func:`tsunamifocus.source.energy.period_bands`), the real bathymetry and the
-    reference (:func:`tsunamifocus.ocean.reference.reference_depth` at ``reference_km``) are
+    reference (:func:`tsunamifocus.ocean.reference.reference_depth` at ``reference_smooth_km``) are
     each wavelength-smoothed for ``T_b``
     (:func:`tsunamifocus.ocean.wavelength.wavelength_smoothed_depth`) and traced with the same
     fan; a constant-depth ocean is traced once. Segment energies come from ray tubes and are
@@ -207,17 +208,17 @@ def analyse_focusing(
         Rays of the source (weights in J).
     period_s : float
         Dominant period of the source [s] (regularisation wavelength of the maps).
-    reference_km : float, optional
+    reference_smooth_km : float, optional
         Low-pass scale of the reference bathymetry [km] (Gaussian std); default
-        :func:`default_reference_km` (the deep-water wavelength at ``period_s``).
-    stop_depth : float
+        :func:`default_reference_smooth_km` (the deep-water wavelength at ``period_s``).
+    stop_depth_m : float
         Stop isobath [m].
     bands : sequence of (float, float), optional
         ``(period_s, weight)`` of each band.
     wavelength_fraction : float
         Gaussian std of the wavelength smoothing in local wavelengths.
     segments : pandas.DataFrame, optional
-        Coastline segments; default: the ``stop_depth`` contour of the grid cut into
+        Coastline segments; default: the ``stop_depth_m`` contour of the grid cut into
         ``segment_length_m`` pieces.
     segment_length_m : float, optional
         Default 10 grid cells.
@@ -234,26 +235,30 @@ def analyse_focusing(
     info = GridInfo.from_dataarray(depth)
     x0, y0, az, w, e_src = _fan_arrays(fan)
     kw = dict(trace_kwargs or {})
-    kw.setdefault("stop_depth", stop_depth)
-    if reference_km is None:
-        reference_km = default_reference_km(depth, period_s)
+    kw.setdefault("stop_depth_m", stop_depth_m)
+    if reference_smooth_km is None:
+        reference_smooth_km = default_reference_smooth_km(depth, period_s)
     band_list = [(float(t), float(wb)) for t, wb in (bands or [(period_s, 1.0)])]
-    ref = reference_depth(depth, reference_km)
-    traced = [_trace_band(depth, ref, (x0, y0, az, w), t, wb, wavelength_fraction, stop_depth, kw)
+    # one low-pass serves the reference ocean and the fluctuation statistics
+    lowpass = smooth_bathymetry(depth, reference_smooth_km)
+    ref = reference_depth(depth, reference_smooth_km, lowpass=lowpass)
+    traced = [_trace_band(depth, ref, (x0, y0, az, w), t, wb, wavelength_fraction, stop_depth_m, kw)
               for t, wb in band_list]
     runs = [b for b, _ in traced]
     dom = int(np.argmax([b.weight for b in runs]))
     flatr = trace_rays(flat_depth(depth), x0, y0, az, weights=w, **kw)
-    maps = _focusing_maps(depth, runs, flatr, x0, y0, period_s, reference_km)
+    maps = _focusing_maps(depth, runs, flatr, x0, y0, period_s, reference_smooth_km)
     if segments is None:
         if segment_length_m is None:
             segment_length_m = 10.0 * max(info.spacing_m())
-        segments = segment_coastline(coastline_from_grid(depth, stop_depth), segment_length_m, depth)
+        segments = segment_coastline(coastline_from_grid(depth, stop_depth_m), segment_length_m, depth)
     table = segment_arrivals(segments, None, depth, period_s=period_s, bands=runs,
                              max_distance_m=max_distance_m, min_rays=min_rays, n_boot=n_boot, seed=seed)
     ranking = rank_segments(table, top_k=top_k, by="lensing_factor")
     d_coast = _segment_distance(table, info, x0, y0)
-    diag = branch_diagnostics(runs[dom].real, depth, lowpass_km=reference_km, coast_distance_m=d_coast)
+    fluct = fluctuation_statistics(depth, reference_smooth_km, lowpass=lowpass)
+    diag = branch_diagnostics(runs[dom].real, depth, reference_smooth_km=reference_smooth_km,
+                              coast_distance_m=d_coast, fluctuations=fluct)
     budget = energy_budget([(b.real, b.weight) for b in runs], table, source_energy_J=e_src,
                            shallow_J=float(getattr(fan, "energy_shallow_J", 0.0)))
     return FocusingResult(
@@ -261,13 +266,13 @@ def analyse_focusing(
         focusing_factor=maps["focusing"], travel_time_min=maps["travel_time"], kernel_sigma_m=maps["sigma"],
         reference_depth=ref, segments=table, ranking=ranking, diagnostics=diag, budget=budget,
         runs={"real": runs[dom].real, "reference": runs[dom].reference, "flat": flatr, "bands": runs},
-        cautions=caution_summary(), ray_depth=traced[dom][1], reference_km=float(reference_km),
+        cautions=caution_summary(), ray_depth=traced[dom][1], reference_smooth_km=float(reference_smooth_km),
         bands=band_list,
     )
 
 
 def _focusing_maps(depth: xr.DataArray, runs: list[BandTrace], flatr: Any, x0: np.ndarray, y0: np.ndarray,
-                   period_s: float, reference_km: float) -> dict[str, xr.DataArray]:
+                   period_s: float, reference_smooth_km: float) -> dict[str, xr.DataArray]:
     """Energy, lensing and focusing rasters (band-weighted, Fresnel-regularised) and travel time."""
     wts = [b.weight for b in runs]
     raw = _weighted_map([b.real.energy for b in runs], wts, "energy")
@@ -278,7 +283,7 @@ def _focusing_maps(depth: xr.DataArray, runs: list[BandTrace], flatr: Any, x0: n
     e_ref = regularised_energy(raw_ref, sigma, sea)
     e_flat = regularised_energy(flatr.energy, sigma, sea)
     lens = ratio_map(e_real, e_ref, "lensing_factor",
-                     f"energy over real / over same-mean reference bathymetry (low-pass {reference_km:g} km)")
+                     f"energy over real / over same-mean reference bathymetry (low-pass {reference_smooth_km:g} km)")
     foc = ratio_map(e_real, e_flat, "focusing_factor", "energy over real bathymetry / over constant-depth ocean")
     first = runs[int(np.argmax(wts))].real.first_arrival_s
     tt = first / 60.0

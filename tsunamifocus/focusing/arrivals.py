@@ -36,16 +36,16 @@ BAND_NAMES = ("short", "dominant", "long")
 # --------------------------------------------------------------------------------------
 # arrivals on coastline segments
 # --------------------------------------------------------------------------------------
-def _default_max_distance(segments: pd.DataFrame, depth: xr.DataArray, info: GridInfo, stop: float) -> float:
+def _default_max_distance(segments: pd.DataFrame, depth: xr.DataArray, info: GridInfo, stop_depth_m: float) -> float:
     """3 cells + 1.5 x median offset [m] of the segment centres from the stop-isobath contour."""
     import shapely
 
 
     base = 3.0 * max(info.spacing_m())
-    if not (np.isfinite(stop) and stop > 0):
+    if not (np.isfinite(stop_depth_m) and stop_depth_m > 0):
         return base
     try:
-        lines = coastline_from_grid(depth, stop, min_length_m=0.0)
+        lines = coastline_from_grid(depth, stop_depth_m, min_length_m=0.0)
     except CoastError:
         return base
     kx = math.cos(math.radians(float(np.median(segments["y_mid"])))) if info.geographic else 1.0
@@ -225,7 +225,7 @@ def _descriptive(segments: pd.DataFrame, end: xr.Dataset, info: GridInfo, max_di
     if not coast.any():
         counts = {REASON_MEANINGS.get(int(c), str(c)): int((reason == c).sum()) for c in np.unique(reason)}
         raise CoastError(
-            f"no ray reached the stop isobath ({stop:g} m); ray ends: {counts}. Lower stop_depth, "
+            f"no ray reached the stop isobath ({stop:g} m); ray ends: {counts}. Lower stop_depth_m, "
             f"raise max_time_s, widen the grid or aim the source at the coast - no ranking can be made"
         )
     idx = np.full(int(end.sizes["ray"]), -1, dtype=np.int64)

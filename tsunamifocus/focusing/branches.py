@@ -25,7 +25,7 @@ def branch_diagnostics(
     result: Any,
     depth: xr.DataArray,
     *,
-    lowpass_km: float | None = None,
+    reference_smooth_km: float | None = None,
     bin_m: float | None = None,
     coast_distance_m: float | None = None,
     fluctuations: dict | None = None,
@@ -39,7 +39,7 @@ def branch_diagnostics(
         ray density at grid resolution).
     depth : xarray.DataArray
         Depth [m] the run was traced over.
-    lowpass_km : float, optional
+    reference_smooth_km : float, optional
         Scale separating "small" variations (for :func:`fluctuation_statistics`); without it
         (and without ``fluctuations``) no prediction is made.
     bin_m : float, optional
@@ -105,8 +105,8 @@ def branch_diagnostics(
     )
     out["scintillation_profile"] = prof
     stats = fluctuations
-    if stats is None and lowpass_km is not None:
-        stats = fluctuation_statistics(depth, lowpass_km)
+    if stats is None and reference_smooth_km is not None:
+        stats = fluctuation_statistics(depth, reference_smooth_km)
     pred = float("nan")
     if stats is not None:
         out.update({k: v for k, v in stats.items()})

@@ -58,7 +58,8 @@ def _corr_length_from_acf(f: np.ndarray, m: np.ndarray, dx: float, dy: float) ->
 
 
 def fluctuation_statistics(
-    depth: xr.DataArray, lowpass_km: float, *, min_depth_m: float | None = None
+    depth: xr.DataArray, reference_smooth_km: float, *, min_depth_m: float | None = None,
+    lowpass: xr.DataArray | None = None,
 ) -> dict[str, float]:
     """Strength and correlation length of the small depth variations.
 
@@ -82,20 +83,25 @@ def fluctuation_statistics(
     ----------
     depth : xarray.DataArray
         Depth [m].
-    lowpass_km : float
-        Low-pass scale [km]; should be several times the correlation length.
+    reference_smooth_km : float
+        Low-pass scale [km] (``[focusing] reference_smooth_km``); should be several times the
+        correlation length.
     min_depth_m : float, optional
         Exclude nodes shallower than this (in the low-pass) [m].
+    lowpass : xarray.DataArray, optional
+        ``smooth_bathymetry(depth, reference_smooth_km)`` when the caller has it already.
 
     Returns
     -------
     dict
-        ``eps_depth, eps_speed, corr_length_m, lowpass_km, n_nodes``.
+        ``eps_depth, eps_speed, corr_length_m, lowpass_km`` (= ``reference_smooth_km``), ``n_nodes``.
     """
 
     info = GridInfo.from_dataarray(depth)
     h = np.asarray(depth.values, dtype=float)
-    lp = np.asarray(smooth_bathymetry(depth, lowpass_km).values, dtype=float)
+    if lowpass is None:
+        lowpass = smooth_bathymetry(depth, reference_smooth_km)
+    lp = np.asarray(lowpass.values, dtype=float)
     sea = np.isfinite(h) & (h > 0) & np.isfinite(lp) & (lp > 0)
     if not sea.any():
         raise InputError(f"depth grid '{depth.name}' has no sea node for fluctuation statistics")
@@ -114,7 +120,7 @@ def fluctuation_statistics(
         "eps_depth": eps_h,
         "eps_speed": eps_c,
         "corr_length_m": ell,
-        "lowpass_km": float(lowpass_km),
+        "lowpass_km": float(reference_smooth_km),
         "n_nodes": int(m.sum()),
     }
 

@@ -38,11 +38,11 @@ from pathlib import Path
 from typing import Any
 
 from ..cautions import caution_lines
-from ..constants import RIGIDITY_PA
+from ..constants import DEFAULTS, STOP_DEPTH_M
 from ..errors import ScenarioError
 from .runfolder import safe_name
 
-__all__ = ['Scenario', 'BathymetryConfig', 'FaultSegmentConfig', 'SourceConfig', 'RaysConfig', 'FocusingConfig', 'CoastConfig', 'PointOfInterest', 'OutputConfig', 'EnsembleConfig', 'parse_scenario', 'scenario_from_dict', 'scenario_schema']
+__all__ = ['Scenario', 'BathymetryConfig', 'FaultSegmentConfig', 'SourceConfig', 'RaysConfig', 'FocusingConfig', 'CoastConfig', 'PointOfInterest', 'OutputConfig', 'EnsembleConfig', 'parse_scenario', 'scenario_from_dict', 'scenario_schema', 'scenario_table_markdown']
 
 #: Sane moment-magnitude range accepted without ``force = true`` (issue "Sources"); with
 #: ``force`` the wider physical range below is accepted.
@@ -81,12 +81,12 @@ class BathymetryConfig:
 
     path: Path
     variable: str | None = None
-    values: str = "auto"
+    values: str = DEFAULTS["bathymetry"]["values"]  # type: ignore[assignment]
     crop: tuple[float, float, float, float] | None = None
-    crop_margin_km: float = 0.0
+    crop_margin_km: float = DEFAULTS["bathymetry"]["crop_margin_km"]  # type: ignore[assignment]
     resample_km: float | None = None
     smooth_km: float | None = None
-    max_memory_gb: float = 4.0
+    max_memory_gb: float = DEFAULTS["bathymetry"]["max_memory_gb"]  # type: ignore[assignment]
 
 
 @dataclass(frozen=True)
@@ -118,11 +118,11 @@ class FaultSegmentConfig:
     trace: tuple[tuple[float, float], tuple[float, float]]
     top_depth_km: float
     dip_deg: float
-    rake_deg: float = 90.0
+    rake_deg: float = DEFAULTS["source.segment"]["rake_deg"]  # type: ignore[assignment]
     width_km: float | None = None
     slip_m: float | None = None
     magnitude: float | None = None
-    rigidity_pa: float = RIGIDITY_PA
+    rigidity_pa: float = DEFAULTS["source.segment"]["rigidity_pa"]  # type: ignore[assignment]
 
 
 @dataclass(frozen=True)
@@ -152,25 +152,25 @@ class SourceConfig:
     """
 
     name: str
-    kind: str = "fault"
-    force: bool = False
+    kind: str = DEFAULTS["source"]["kind"]  # type: ignore[assignment]
+    force: bool = DEFAULTS["source"]["force"]  # type: ignore[assignment]
     segments: tuple[FaultSegmentConfig, ...] = ()
     magnitude: float | None = None
     lon: float | None = None
     lat: float | None = None
-    radius_km: float | None = None
-    amplitude_m: float | None = None
+    radius_km: float | None = None  # point sources only (filled from DEFAULTS by the parser)
+    amplitude_m: float | None = None  # point sources only (filled from DEFAULTS by the parser)
 
 
 @dataclass(frozen=True)
 class RaysConfig:
     """``[rays]``: ray-tracing settings (count, stop isobath [m], time limit [h], step [s], seed)."""
 
-    count: int = 20000
-    stop_depth_m: float = 20.0
-    max_time_h: float = 24.0
+    count: int = DEFAULTS["rays"]["count"]  # type: ignore[assignment]
+    stop_depth_m: float = DEFAULTS["rays"]["stop_depth_m"]  # type: ignore[assignment]
+    max_time_h: float = DEFAULTS["rays"]["max_time_h"]  # type: ignore[assignment]
     step_s: float | None = None
-    seed: int = 0
+    seed: int = DEFAULTS["rays"]["seed"]  # type: ignore[assignment]
 
 
 @dataclass(frozen=True)
@@ -202,12 +202,12 @@ class CoastConfig:
         Fewest contributing rays for a segment to count as reliable.
     """
 
-    source: str | Path = "grid"
+    source: str | Path = DEFAULTS["coast"]["from"]  # type: ignore[assignment]
     layer: str | None = None
     name_field: str | None = None
-    isobath_m: float = 20.0
-    segment_km: float = 10.0
-    min_rays: int = 10
+    isobath_m: float = STOP_DEPTH_M
+    segment_km: float = DEFAULTS["coast"]["segment_km"]  # type: ignore[assignment]
+    min_rays: int = DEFAULTS["coast"]["min_rays"]  # type: ignore[assignment]
 
 
 @dataclass(frozen=True)
@@ -224,9 +224,9 @@ class OutputConfig:
     """``[output]``: output folder (absolute), number of hotspots listed, figures/report switches."""
 
     folder: Path
-    top_k: int = 10
-    figures: bool = True
-    report: bool = True
+    top_k: int = DEFAULTS["output"]["top_k"]  # type: ignore[assignment]
+    figures: bool = DEFAULTS["output"]["figures"]  # type: ignore[assignment]
+    report: bool = DEFAULTS["output"]["report"]  # type: ignore[assignment]
 
 
 @dataclass(frozen=True)
@@ -259,17 +259,17 @@ class EnsembleConfig:
         dask.distributed scheduler (e.g. ``"tcp://10.0.0.5:8786"``).
     """
 
-    members: int = 0
-    seed: int = 0
-    bathy_rms: float = 0.0
-    bathy_corr_km: float = 20.0
-    strike_deg: float = 0.0
-    dip_deg: float = 0.0
-    along_km: float = 0.0
-    across_km: float = 0.0
-    magnitude: float = 0.0
-    launch_jitter_deg: float = 0.0
-    scheduler: str = "local"
+    members: int = DEFAULTS["ensemble"]["members"]  # type: ignore[assignment]
+    seed: int = DEFAULTS["ensemble"]["seed"]  # type: ignore[assignment]
+    bathy_rms: float = DEFAULTS["ensemble"]["bathy_rms"]  # type: ignore[assignment]
+    bathy_corr_km: float = DEFAULTS["ensemble"]["bathy_corr_km"]  # type: ignore[assignment]
+    strike_deg: float = DEFAULTS["ensemble"]["strike_deg"]  # type: ignore[assignment]
+    dip_deg: float = DEFAULTS["ensemble"]["dip_deg"]  # type: ignore[assignment]
+    along_km: float = DEFAULTS["ensemble"]["along_km"]  # type: ignore[assignment]
+    across_km: float = DEFAULTS["ensemble"]["across_km"]  # type: ignore[assignment]
+    magnitude: float = DEFAULTS["ensemble"]["magnitude"]  # type: ignore[assignment]
+    launch_jitter_deg: float = DEFAULTS["ensemble"]["launch_jitter_deg"]  # type: ignore[assignment]
+    scheduler: str = DEFAULTS["ensemble"]["scheduler"]  # type: ignore[assignment]
 
 
 @dataclass(frozen=True)
@@ -412,26 +412,26 @@ _SEGMENT_KEYS: tuple[_Key, ...] = (
          "degrees", required=True),
     _f("top_depth_km", "depth of the top edge below the sea floor", "km", required=True, lo=0.0, hi=100.0),
     _f("dip_deg", "dip angle", "degrees", required=True, lo=0.0, hi=90.0, lo_open=True),
-    _f("rake_deg", "rake (90 = pure thrust)", "degrees", 90.0, lo=-180.0, hi=180.0),
+    _f("rake_deg", "rake (90 = pure thrust)", "degrees", lo=-180.0, hi=180.0),
     _f("width_km", "down-dip width (unset: from the magnitude scaling relation)", "km",
        lo=0.0, hi=1000.0, lo_open=True, default_doc="from scaling relation"),
     _f("slip_m", "uniform slip; give slip_m or magnitude", "m", lo=0.0, hi=100.0, lo_open=True,
        default_doc="unset"),
     _f("magnitude", "moment magnitude of this segment; give slip_m or magnitude", "Mw",
        lo=MAGNITUDE_RANGE[0], hi=MAGNITUDE_RANGE[1], default_doc="unset"),
-    _f("rigidity_pa", "crustal rigidity", "Pa", RIGIDITY_PA, lo=1.0e9, hi=2.0e11),
+    _f("rigidity_pa", "crustal rigidity", "Pa", lo=1.0e9, hi=2.0e11),
 )
 
 _SOURCE_KEYS: tuple[_Key, ...] = (
     _Key("name", "str", "unique source name", required=True),
-    _Key("kind", "choice", "source type", default="fault", choices=("fault", "point")),
-    _Key("force", "bool", "accept magnitudes outside 6.5-9.6 (4.0-10.0 then)", default=False),
+    _Key("kind", "choice", "source type", choices=("fault", "point")),
+    _Key("force", "bool", "accept magnitudes outside 6.5-9.6 (4.0-10.0 then)"),
     _f("magnitude", "fault: total Mw of the rupture; segments without slip_m share the moment left "
        "as one uniform slip", "Mw", lo=MAGNITUDE_RANGE[0], hi=MAGNITUDE_RANGE[1], default_doc="unset"),
     _f("lon", "point: centre longitude", "degrees", required=True, **_LON),
     _f("lat", "point: centre latitude", "degrees", required=True, **_LAT),
-    _f("radius_km", "point: radius of the initial hump", "km", 50.0, lo=0.0, hi=2000.0, lo_open=True),
-    _f("amplitude_m", "point: peak initial sea-surface displacement (negative = trough), not 0", "m", 1.0,
+    _f("radius_km", "point: radius of the initial hump", "km", lo=0.0, hi=2000.0, lo_open=True),
+    _f("amplitude_m", "point: peak initial sea-surface displacement (negative = trough), not 0", "m",
        lo=-100.0, hi=100.0),
 )
 _POINT_SOURCE_ONLY = ("lon", "lat", "radius_km", "amplitude_m")
@@ -439,33 +439,33 @@ _POINT_SOURCE_ONLY = ("lon", "lat", "radius_km", "amplitude_m")
 _SPEC: dict[str, tuple[_Key, ...]] = {
     "scenario": (
         _Key("name", "str", "scenario name", default_doc="file name without .toml"),
-        _Key("description", "str", "free text", default=""),
+        _Key("description", "str", "free text"),
     ),
     "bathymetry": (
         _Key("path", "path", "grid file (GeoTIFF, NetCDF, ESRI ASCII); relative to the scenario file",
              required=True),
         _Key("variable", "str", "NetCDF variable name", default_doc="the only 2-D variable"),
-        _Key("values", "choice", "sign convention of the values", default="auto",
+        _Key("values", "choice", "sign convention of the values",
              choices=("auto", "elevation", "depth")),
         _Key("crop", "box", "crop box [xmin, ymin, xmax, ymax] in the grid CRS units",
              "grid CRS units", default_doc="no crop"),
-        _f("crop_margin_km", "margin around the crop box", "km", 0.0, lo=0.0, hi=5000.0),
+        _f("crop_margin_km", "margin around the crop box", "km", lo=0.0, hi=5000.0),
         _f("resample_km", "coarser target spacing (area average)", "km", lo=0.0, hi=500.0, lo_open=True,
            default_doc="native spacing"),
         _f("smooth_km", "low-pass pre-smoothing length", "km", lo=0.0, hi=1000.0, lo_open=True,
            default_doc="no smoothing"),
-        _f("max_memory_gb", "memory limit for loading and tracing", "GB", 4.0, lo=0.0, hi=4096.0,
+        _f("max_memory_gb", "memory limit for loading and tracing", "GB", lo=0.0, hi=4096.0,
            lo_open=True),
     ),
     "source": _SOURCE_KEYS,
     "rays": (
-        _i("count", "number of rays per source", "rays", 20000, lo=1, hi=100_000_000),
-        _f("stop_depth_m", "stop isobath: rays end where the depth falls below it", "m", 20.0,
+        _i("count", "number of rays per source", "rays", lo=1, hi=100_000_000),
+        _f("stop_depth_m", "stop isobath: rays end where the depth falls below it", "m",
            lo=0.0, hi=2000.0, lo_open=True),
-        _f("max_time_h", "travel-time limit", "h", 24.0, lo=0.0, hi=72.0, lo_open=True),
+        _f("max_time_h", "travel-time limit", "h", lo=0.0, hi=72.0, lo_open=True),
         _f("step_s", "integration time step", "s", lo=0.0, hi=3600.0, lo_open=True,
            default_doc="chosen from the grid spacing"),
-        _i("seed", "random seed of the ray fan", "", 0, lo=0, hi=_SEED_MAX),
+        _i("seed", "random seed of the ray fan", "", lo=0, hi=_SEED_MAX),
     ),
     "focusing": (
         _f("reference_smooth_km", "low-pass length of the reference bathymetry (lensing factor)", "km",
@@ -475,13 +475,13 @@ _SPEC: dict[str, tuple[_Key, ...]] = {
     ),
     "coast": (
         _Key("from", "coastfrom", '"grid" (isobath contour of the bathymetry) or a GeoJSON/GeoPackage '
-             "file, relative to the scenario file", default="grid"),
+             "file, relative to the scenario file"),
         _Key("layer", "str", "layer name in a multi-layer file", default_doc="first layer"),
         _Key("name_field", "str", "attribute giving segment names", default_doc="no names"),
         _f("isobath_m", "depth of the coastal contour", "m", lo=0.0, hi=2000.0, lo_open=True,
            default_doc="rays.stop_depth_m"),
-        _f("segment_km", "segment length along the coast", "km", 10.0, lo=0.0, hi=1000.0, lo_open=True),
-        _i("min_rays", "fewest contributing rays for a reliable segment", "rays", 10, lo=1, hi=1_000_000),
+        _f("segment_km", "segment length along the coast", "km", lo=0.0, hi=1000.0, lo_open=True),
+        _i("min_rays", "fewest contributing rays for a reliable segment", "rays", lo=1, hi=1_000_000),
     ),
     "point": (
         _Key("name", "str", "unique point name", required=True),
@@ -490,28 +490,39 @@ _SPEC: dict[str, tuple[_Key, ...]] = {
     ),
     "output": (
         _Key("folder", "path", "output folder; relative to the scenario file", default_doc="<name>_results"),
-        _i("top_k", "number of hotspots listed", "segments", 10, lo=1, hi=10000),
-        _Key("figures", "bool", "write PNG figures", default=True),
-        _Key("report", "bool", "write the HTML/PDF appendix", default=True),
+        _i("top_k", "number of hotspots listed", "segments", lo=1, hi=10000),
+        _Key("figures", "bool", "write PNG figures"),
+        _Key("report", "bool", "write the HTML/PDF appendix"),
     ),
     "ensemble": (
-        _i("members", "number of ensemble members (0 = off)", "members", 0, lo=0, hi=1_000_000),
-        _i("seed", "root seed of the ensemble", "", 0, lo=0, hi=_SEED_MAX),
-        _f("bathy_rms", "relative rms of smooth random depth errors", "fraction of depth", 0.0,
+        _i("members", "number of ensemble members (0 = off)", "members", lo=0, hi=1_000_000),
+        _i("seed", "root seed of the ensemble", "", lo=0, hi=_SEED_MAX),
+        _f("bathy_rms", "relative rms of smooth random depth errors", "fraction of depth",
            lo=0.0, hi=0.5),
-        _f("bathy_corr_km", "correlation length of the depth errors", "km", 20.0, lo=0.0, hi=5000.0,
+        _f("bathy_corr_km", "correlation length of the depth errors", "km", lo=0.0, hi=5000.0,
            lo_open=True),
-        _f("strike_deg", "strike half-range", "degrees", 0.0, lo=0.0, hi=90.0),
-        _f("dip_deg", "dip half-range", "degrees", 0.0, lo=0.0, hi=45.0),
-        _f("along_km", "half-range of the shift along strike", "km", 0.0, lo=0.0, hi=1000.0),
-        _f("across_km", "half-range of the shift across strike", "km", 0.0, lo=0.0, hi=500.0),
-        _f("magnitude", "magnitude half-range", "Mw", 0.0, lo=0.0, hi=1.0),
-        _f("launch_jitter_deg", "half-range of the ray-fan rotation", "degrees", 0.0, lo=0.0, hi=10.0),
-        _Key("scheduler", "scheduler", '"local" or a dask.distributed scheduler address', default="local"),
+        _f("strike_deg", "strike half-range", "degrees", lo=0.0, hi=90.0),
+        _f("dip_deg", "dip half-range", "degrees", lo=0.0, hi=45.0),
+        _f("along_km", "half-range of the shift along strike", "km", lo=0.0, hi=1000.0),
+        _f("across_km", "half-range of the shift across strike", "km", lo=0.0, hi=500.0),
+        _f("magnitude", "magnitude half-range", "Mw", lo=0.0, hi=1.0),
+        _f("launch_jitter_deg", "half-range of the ray-fan rotation", "degrees", lo=0.0, hi=10.0),
+        _Key("scheduler", "scheduler", '"local" or a dask.distributed scheduler address'),
     ),
 }
 _ARRAY_SECTIONS = ("source", "point")
 _SUBSECTION = "segment"  # [[source.segment]]
+
+
+def _with_defaults(section: str, keys: tuple[_Key, ...]) -> tuple[_Key, ...]:
+    """The keys of ``section`` with their defaults from :data:`tsunamifocus.constants.DEFAULTS`."""
+    table = DEFAULTS.get(section, {})
+    return tuple(dataclasses.replace(k, default=table[k.name]) if k.name in table else k for k in keys)
+
+
+_SEGMENT_KEYS = _with_defaults("source.segment", _SEGMENT_KEYS)
+_SOURCE_KEYS = _with_defaults("source", _SOURCE_KEYS)
+_SPEC = {sec: (_SOURCE_KEYS if sec == "source" else _with_defaults(sec, keys)) for sec, keys in _SPEC.items()}
 
 
 def scenario_schema() -> dict[str, list[dict[str, Any]]]:
@@ -537,6 +548,53 @@ def scenario_schema() -> dict[str, list[dict[str, Any]]]:
             for k in keys
         ]
     return out
+
+
+_DOC_TYPES = {"float": "number", "int": "integer", "str": "string", "path": "path", "choice": "string",
+              "box": "array of 4 numbers", "trace": "array of 2 [lon, lat]", "bool": "boolean",
+              "coastfrom": "string or path", "scheduler": "string"}
+
+
+def _doc_default(k: _Key) -> str:
+    if k.required:
+        return "**required**"
+    if k.default_doc is not None:
+        return k.default_doc.replace("<", "&lt;").replace(">", "&gt;")
+    v = k.default
+    if isinstance(v, bool):
+        return f"`{'true' if v else 'false'}`"
+    if isinstance(v, str):
+        return f"`{json.dumps(v, ensure_ascii=False)}`"
+    if isinstance(v, int):
+        return f"`{v}`"
+    if isinstance(v, float):
+        return f"`{v:g}`"
+    return ""
+
+
+def _doc_allowed(k: _Key) -> str:
+    if k.choices:
+        return " / ".join(f"`{json.dumps(c)}`" for c in k.choices)
+    if k.kind not in ("float", "int"):
+        return ""
+    if k.hi == _SEED_MAX:
+        return f"{'>' if k.lo_open else '>='} {_num_txt(k.lo)} and <= 2^63 - 1"
+    return _range_text(k)
+
+
+def scenario_table_markdown(section: str) -> str:
+    """The Markdown table of one section's keys as docs/scenario.md shows it (generated, not edited).
+
+    Parameters
+    ----------
+    section : str
+        A section of :func:`scenario_schema` (``"rays"``, ``"source.segment"`` ...).
+    """
+    keys = _SEGMENT_KEYS if section == "source.segment" else _SPEC[section]
+    rows = ["| key | type | unit | default | allowed | meaning |", "|---|---|---|---|---|---|"]
+    for k in keys:
+        rows.append(f"| `{k.name}` | {_DOC_TYPES[k.kind]} | {k.unit} | {_doc_default(k)} | {_doc_allowed(k)} | {k.doc} |")
+    return "\n".join(rows)
 
 
 # ---------------------------------------------------------------------------------------------

@@ -30,6 +30,7 @@ from typing import Any
 import numpy as np
 import xarray as xr
 
+from ..constants import DEFAULTS
 from ..errors import InputError
 from ..grid import GridInfo
 from .randomfield import gaussian_random_field
@@ -55,16 +56,7 @@ PERTURBATION_KEYS: dict[str, str] = {
 }
 #: Keys of the ``[ensemble]`` section that are accepted but not used for drawing.
 _IGNORED_KEYS = ("members", "seed", "scheduler")
-_DEFAULTS = {
-    "bathy_rms": 0.0,
-    "bathy_corr_km": 20.0,
-    "strike_deg": 0.0,
-    "dip_deg": 0.0,
-    "along_km": 0.0,
-    "across_km": 0.0,
-    "magnitude": 0.0,
-    "launch_jitter_deg": 0.0,
-}
+_DEFAULTS = {k: float(DEFAULTS["ensemble"][k]) for k in PERTURBATION_KEYS}  # type: ignore[arg-type]
 #: Order in which the uniform source deltas are drawn (part of the reproducibility contract).
 _DRAW_ORDER = (
     ("strike_delta_deg", "strike_deg"),

@@ -15,15 +15,16 @@ __all__ = ['reference_bathymetry', 'reference_depth', 'flat_depth']
 
 def reference_bathymetry(
     depth: xr.DataArray,
-    length_km: float,
+    reference_smooth_km: float,
     *,
     keep_shallower_m: float = 200.0,
     smooth_deeper_m: float = 1000.0,
+    lowpass: xr.DataArray | None = None,
 ) -> xr.DataArray:
     """Reference ocean for the lensing factor: offshore variations low-passed, the shelf kept.
 
     Where the real depth exceeds ``smooth_deeper_m`` the reference is
-    :func:`smooth_bathymetry` of ``length_km``; where it is shallower than
+    :func:`smooth_bathymetry` of ``reference_smooth_km``; where it is shallower than
     ``keep_shallower_m`` the reference is the real depth; in between the two are blended
     linearly in log-depth. A plain low-pass of tens of km would also flatten the narrow
     continental shelf and move the coastal stop isobath, so rays over the reference would end
@@ -35,10 +36,12 @@ def reference_bathymetry(
     ----------
     depth : xarray.DataArray
         Depth [m], positive down.
-    length_km : float
-        Gaussian standard deviation of the low-pass [km].
+    reference_smooth_km : float
+        Gaussian standard deviation of the low-pass [km] (``[focusing] reference_smooth_km``).
     keep_shallower_m, smooth_deeper_m : float
         Depths [m] bounding the blend (``0 < keep_shallower_m < smooth_deeper_m``).
+    lowpass : xarray.DataArray, optional
+        ``smooth_bathymetry(depth, reference_smooth_km)`` when the caller has it already.
 
     Returns
     -------
@@ -50,7 +53,7 @@ def reference_bathymetry(
             f"reference blend depths: expected 0 < keep_shallower_m ({keep_shallower_m}) < "
             f"smooth_deeper_m ({smooth_deeper_m}) m"
         )
-    sm = smooth_bathymetry(depth, length_km)
+    sm = lowpass if lowpass is not None else smooth_bathymetry(depth, reference_smooth_km)
     v = depth.values.astype(float)
     s = sm.values
     sea = np.isfinite(v) & (v > 0)
@@ -60,7 +63,7 @@ def reference_bathymetry(
     w = np.clip(w, 0.0, 1.0)
     out_v = np.where(sea, w * v + (1.0 - w) * s, v)
     out = depth.copy(data=out_v)
-    out.attrs.update(smoothing_km=float(length_km), reference_keep_shallower_m=float(keep_shallower_m),
+    out.attrs.update(smoothing_km=float(reference_smooth_km), reference_keep_shallower_m=float(keep_shallower_m),
                      reference_smooth_deeper_m=float(smooth_deeper_m))
     return out
 
@@ -68,20 +71,23 @@ def reference_bathymetry(
 # --------------------------------------------------------------------------------------
 # reference bathymetries
 # --------------------------------------------------------------------------------------
-def reference_depth(depth: xr.DataArray, length_km: float) -> xr.DataArray:
-    """Same-mean reference bathymetry without variations shorter than ``length_km``.
+def reference_depth(depth: xr.DataArray, reference_smooth_km: float, *,
+                    lowpass: xr.DataArray | None = None) -> xr.DataArray:
+    """Same-mean reference bathymetry without variations shorter than ``reference_smooth_km``.
 
-    The sea depths are low-passed with :func:`tsunamifocus.bathymetry.smooth_bathymetry`
-    (normalised Gaussian of std ``length_km``, land and coastline unchanged) and rescaled so
+    The sea depths are low-passed with :func:`tsunamifocus.ocean.smooth.smooth_bathymetry`
+    (normalised Gaussian of std ``reference_smooth_km``, land and coastline unchanged) and rescaled so
     the mean sea depth equals that of ``depth`` exactly.
 
     Parameters
     ----------
     depth : xarray.DataArray
         Depth [m], positive down.
-    length_km : float
-        Low-pass scale [km] (Gaussian std), set by the user: variations much shorter than this
-        are the ones whose focusing the lensing factor measures.
+    reference_smooth_km : float
+        Low-pass scale [km] (Gaussian std, ``[focusing] reference_smooth_km``): variations much
+        shorter than this are the ones whose focusing the lensing factor measures.
+    lowpass : xarray.DataArray, optional
+        ``smooth_bathymetry(depth, reference_smooth_km)`` when the caller has it already.
 
     Returns
     -------
@@ -91,7 +97,7 @@ def reference_depth(depth: xr.DataArray, length_km: float) -> xr.DataArray:
 
     # offshore variations low-passed; the shelf (< 200 m, blended up to 1000 m) kept, so the
     # coast and stop isobath are the same in both runs (see reference_bathymetry)
-    ref = reference_bathymetry(depth, length_km)
+    ref = reference_bathymetry(depth, reference_smooth_km, lowpass=lowpass)
     sea = _sea(depth)
     v = np.asarray(depth.values, dtype=float)
     r = np.asarray(ref.values, dtype=float).copy()
@@ -100,7 +106,7 @@ def reference_depth(depth: xr.DataArray, length_km: float) -> xr.DataArray:
         scale = v[sea].mean() / r[ok].mean()
         r[ok] *= scale
     out = ref.copy(data=r)
-    out.attrs["reference_lowpass_km"] = float(length_km)
+    out.attrs["reference_lowpass_km"] = float(reference_smooth_km)
     return out
 
 

@@ -14,7 +14,6 @@ from __future__ import annotations
 import json
 import pathlib
 import sys
-import tomllib
 from typing import Any
 
 import numpy as np
@@ -26,6 +25,7 @@ from ..io.gis import write_cog, write_netcdf
 from ..io.manifest import jsonable, write_manifest
 from ..io.runfolder import OutputFolder
 from ..io.runs import read_run
+from ..io.scenario import Scenario, parse_scenario
 from ..studies.check import WaveCheck, compare_with_waves
 from .appendix import build_appendix
 from .figures import plot_ray_vs_wave
@@ -78,21 +78,12 @@ def check_figures(chk: WaveCheck, folder: pathlib.Path, *, stem: str = "ray_vs_w
     return out
 
 
-def _stop_depth(run_dir: pathlib.Path) -> float:
+def _run_scenario(run_dir: pathlib.Path) -> Scenario:
+    """The scenario a run folder was made with (its ``scenario.toml``, read by the scenario parser)."""
     p = run_dir / "scenario.toml"
     if not p.is_file():
         raise DataFileError(f"{p}: missing; is {run_dir} a tsunamifocus run folder?")
-    try:
-        d = tomllib.loads(p.read_text(encoding="utf-8"))
-    except (tomllib.TOMLDecodeError, UnicodeDecodeError) as exc:
-        raise DataFileError(f"{p}: not readable as TOML ({exc})") from exc
-    return float(d.get("rays", {}).get("stop_depth_m", 20.0))
-
-
-def _max_memory_bytes(run_dir: pathlib.Path) -> float:
-    """The run's ``[bathymetry] max_memory_gb`` in bytes (the limit applies to the wave check too)."""
-    d = tomllib.loads((run_dir / "scenario.toml").read_text(encoding="utf-8"))
-    return float(d.get("bathymetry", {}).get("max_memory_gb", 4.0)) * 1e9
+    return parse_scenario(p)
 
 
 def run_wave_check(
@@ -137,17 +128,18 @@ def run_wave_check(
     for need in ("depth", "initial_sea_surface"):
         if need not in layers:
             raise DataFileError(f"{run_dir / 'layers.nc'}: has no '{need}' layer; re-run with this version")
-    stop = _stop_depth(run_dir)
+    sc = _run_scenario(run_dir)
+    stop_depth_m = sc.rays.stop_depth_m
     seg = segments.reset_index() if "segment_id" not in segments.columns else segments
     if progress:
-        print(f"linear long-wave check of '{name}' (stop isobath {stop:g} m) ...", file=sys.stderr)
+        print(f"linear long-wave check of '{name}' (stop isobath {stop_depth_m:g} m) ...", file=sys.stderr)
     with OutputFolder(out_dir, overwrite=overwrite) as of:
         tmp = pathlib.Path(of.tmp_dir)
-        chk = wave_check(layers["depth"], layers["initial_sea_surface"], seg, k=k, stop_depth=stop,
+        chk = wave_check(layers["depth"], layers["initial_sea_surface"], seg, k=k, stop_depth_m=stop_depth_m,
                          reference_depth=layers.get("reference_depth"),
                          duration_s=None if hours is None else hours * 3600.0,
                          figure_path=tmp / "ray_vs_wave.png", progress=progress,
-                         max_memory_bytes=_max_memory_bytes(run_dir))
+                         max_memory_bytes=sc.bathymetry.max_memory_gb * 1e9)
         amp = chk.wave.max_amplitude.copy()
         amp.name = "wave_max_amplitude"
         amp.attrs.update(units="m", long_name="maximum sea-surface elevation, linear long-wave solver")

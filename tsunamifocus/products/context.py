@@ -53,7 +53,7 @@ def _report_context(a: SourceAnalysis, scenario: Any, depth: xr.DataArray, point
         "stop isobath (m)": scenario.rays.stop_depth_m,
         "time limit (h)": scenario.rays.max_time_h,
         "integration step (s)": f"{health['step_s']:.2f}",
-        "reference low-pass (km)": f"{a.focusing.reference_km:.0f}"
+        "reference low-pass (km)": f"{a.focusing.reference_smooth_km:.0f}"
         + ("" if scenario.focusing.reference_smooth_km else " (deep-water wavelength at the dominant period)"),
         "period bands (min: share)": ", ".join(f"{t / 60:.1f}: {w:.2f}" for t, w in a.focusing.bands),
         "segment length (km)": scenario.coast.segment_km,

@@ -1571,7 +1571,7 @@ def plot_oceans(
     *,
     out_path: str | os.PathLike,
     period_s: float,
-    reference_km: float,
+    reference_smooth_km: float,
     title: str = "The two oceans of the lensing factor",
 ) -> pathlib.Path:
     """Side by side: the sea floor as the dominant-period wave sees it, and the lensing reference.
@@ -1587,7 +1587,7 @@ def plot_oceans(
         PNG file to write.
     period_s : float
         Dominant period [s] (for the panel title).
-    reference_km : float
+    reference_smooth_km : float
         Low-pass scale of the reference [km] (for the panel title).
     title : str
         Figure title.
@@ -1606,7 +1606,7 @@ def plot_oceans(
     axes = fig.subplots(1, 2, sharey=True)
     vmax = float(np.nanpercentile(_values(ray_depth)[_values(ray_depth) > 0], 99.5)) / 1000.0
     panels = ((ray_depth, f"Sea floor as a {period_s / 60:.0f}-min wave sees it (rays traced here)"),
-              (reference_depth, f"Lensing reference: features >= {reference_km:.0f} km removed, shelf kept"))
+              (reference_depth, f"Lensing reference: features >= {reference_smooth_km:.0f} km removed, shelf kept"))
     for ax, (d, label) in zip(axes, panels):
         v = _values(d)
         im = ax.imshow(np.where(v > 0, v / 1000.0, np.nan), origin="lower", extent=_extent(info),

@@ -106,7 +106,7 @@ def _figures(a: SourceAnalysis, depth: xr.DataArray, scenario: Any, folder: path
                                    title=f"Initial sea-surface displacement (Okada 1985): {a.name}")
     if f.ray_depth is not None:
         figs["oceans"] = F.plot_oceans(f.ray_depth, f.reference_depth, out_path=folder / "oceans.png",
-                                       period_s=a.period_s, reference_km=f.reference_km,
+                                       period_s=a.period_s, reference_smooth_km=f.reference_smooth_km,
                                        title=f"The two oceans of the lensing factor: {a.name}")
     if a.check is not None:
         figs.update(check_figures(a.check, folder))

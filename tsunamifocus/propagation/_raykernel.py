@@ -376,7 +376,7 @@ def _accumulate(A, u0, v0, u1, v1, t0, h, wds, mx, my, nx, ny, periodic, tcap):
 
 @njit(cache=True, error_model="numpy", fastmath=_FM)
 def _trace_one(k, X, Y, se, sn, q, p, w, coef, depth, X0, Y0, DX, DY, nx, ny, periodic, sph, R,
-               cmin, dt, tmax, stop_depth, polar, A, accumulate, out, outi, path_slot, paths,
+               cmin, dt, tmax, stop_depth_m, polar, A, accumulate, out, outi, path_slot, paths,
                path_n, path_every):
     """Trace ray k to its end; write its end state into out[k], outi[k]."""
     s = 0.0
@@ -439,9 +439,9 @@ def _trace_one(k, X, Y, se, sn, q, p, w, coef, depth, X0, Y0, DX, DY, nx, ny, pe
             reason = REASON_NODATA
             break
         frac = 1.0
-        if dn <= stop_depth:
+        if dn <= stop_depth_m:
             # end on the stop isobath: linear interpolation of the state within the step
-            frac = (d - stop_depth) / (d - dn)
+            frac = (d - stop_depth_m) / (d - dn)
             if frac < 0.0:
                 frac = 0.0
             elif frac > 1.0:
@@ -459,7 +459,7 @@ def _trace_one(k, X, Y, se, sn, q, p, w, coef, depth, X0, Y0, DX, DY, nx, ny, pe
             h = frac * h
             un = (Xn - X0) / DX
             vn = (Yn - Y0) / DY
-            dn = stop_depth
+            dn = stop_depth_m
             reason = REASON_COAST
         # caustic: sign change of q
         if qsign == 0.0:
@@ -526,7 +526,7 @@ def _trace_one(k, X, Y, se, sn, q, p, w, coef, depth, X0, Y0, DX, DY, nx, ny, pe
 
 @njit(cache=True, parallel=True, error_model="numpy", fastmath=_FM)
 def trace_all(X0s, Y0s, se0, sn0, q0, p0, wts, coef, depth, X0, Y0, DX, DY, nx, ny, periodic, sph,
-              R, cmin, dt, tmax, stop_depth, polar, Ach, accumulate, path_slot, paths, path_n,
+              R, cmin, dt, tmax, stop_depth_m, polar, Ach, accumulate, path_slot, paths, path_n,
               path_every):
     """Trace all rays; chunk m (one per thread) handles rays m, m + nchunk, ... in order.
 
@@ -542,7 +542,7 @@ def trace_all(X0s, Y0s, se0, sn0, q0, p0, wts, coef, depth, X0, Y0, DX, DY, nx, 
         A = Ach[m]
         for k in range(m, n, nchunk):
             _trace_one(k, X0s[k], Y0s[k], se0[k], sn0[k], q0[k], p0[k], wts[k], coef, depth, X0, Y0,
-                       DX, DY, nx, ny, periodic, sph, R, cmin, dt, tmax, stop_depth, polar, A,
+                       DX, DY, nx, ny, periodic, sph, R, cmin, dt, tmax, stop_depth_m, polar, A,
                        accumulate, out, outi, path_slot, paths, path_n, path_every)
     return out, outi
 

@@ -23,7 +23,7 @@ import numpy as np
 import xarray as xr
 
 from ..cautions import caution_summary
-from ..constants import EARTH_RADIUS_M, GRAVITY, MIN_DEPTH_M
+from ..constants import EARTH_RADIUS_M, GRAVITY, MIN_DEPTH_M, STOP_DEPTH_M
 from ..errors import RayError
 from . import _raykernel as _k
 from .speedfield import SpeedField
@@ -99,7 +99,7 @@ def trace_rays(
     azimuth_deg,
     *,
     weights=None,
-    stop_depth: float = 20.0,
+    stop_depth_m: float = STOP_DEPTH_M,
     max_time_s: float = 86400.0,
     step_s: float | None = None,
     gravity: float = GRAVITY,
@@ -126,7 +126,7 @@ def trace_rays(
         Launch direction [degrees clockwise from north].
     weights : array_like, optional
         Energy per ray [J]; default 1 J each. Must be finite and >= 0.
-    stop_depth : float
+    stop_depth_m : float
         Coastal stop isobath [m] (> 0): a ray ends when the bilinear depth falls to it (reason 1);
         the end state is interpolated onto the isobath within the last step.
     max_time_s : float
@@ -161,7 +161,7 @@ def trace_rays(
     Raises
     ------
     RayError
-        Launch on land/no data or outside the grid, launch depth not deeper than ``stop_depth``,
+        Launch on land/no data or outside the grid, launch depth not deeper than ``stop_depth_m``,
         no rays, NaN/negative weights, bad step or time limit.
     """
     t_start = time.perf_counter()
@@ -187,8 +187,8 @@ def trace_rays(
         bad = np.flatnonzero(~np.isfinite(w) | (w < 0))
         if bad.size:
             raise RayError(f"weights[{bad[0]}] = {w[bad[0]]} J: expected a finite energy >= 0")
-    if not (np.isfinite(stop_depth) and stop_depth > 0):
-        raise RayError(f"stop_depth = {stop_depth!r} m: expected a positive depth (e.g. 10-50 m)")
+    if not (np.isfinite(stop_depth_m) and stop_depth_m > 0):
+        raise RayError(f"stop_depth_m = {stop_depth_m!r} m: expected a positive depth (e.g. 10-50 m)")
     if not (np.isfinite(max_time_s) and max_time_s > 0):
         raise RayError(f"max_time_s = {max_time_s!r}: expected a positive time in seconds")
     if step_s is None:
@@ -244,11 +244,11 @@ def trace_rays(
         raise RayError(
             f"ray {bad[0]} launched on land at ({x0[bad[0]]:.6g}, {y0[bad[0]]:.6g}): depth {d0[bad[0]]:.4g} m"
         )
-    bad = np.flatnonzero(d0 <= stop_depth)
+    bad = np.flatnonzero(d0 <= stop_depth_m)
     if bad.size:
         raise RayError(
-            f"stop_depth = {stop_depth} m is not shallower than the launch depth {d0[bad[0]]:.4g} m "
-            f"of ray {bad[0]}: expected launch depth > stop_depth"
+            f"stop_depth_m = {stop_depth_m} m is not shallower than the launch depth {d0[bad[0]]:.4g} m "
+            f"of ray {bad[0]}: expected launch depth > stop_depth_m"
         )
 
     c0 = np.maximum(fld.evaluate(x0, y0)["c"], fld.c_min)
@@ -312,7 +312,7 @@ def trace_rays(
             float(fld.c_min),
             float(dt),
             float(max_time_s),
-            float(stop_depth),
+            float(stop_depth_m),
             polar,
             Ach,
             bool(accumulate),
@@ -373,7 +373,7 @@ def trace_rays(
             "n_steps": ("ray", outi[:, 2]),
         },
         coords={"ray": ray},
-        attrs={"caution": caution_summary(), "step_s": dt, "stop_depth_m": float(stop_depth)},
+        attrs={"caution": caution_summary(), "step_s": dt, "stop_depth_m": float(stop_depth_m)},
     )
 
     energy = first = None

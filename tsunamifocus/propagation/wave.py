@@ -26,7 +26,7 @@ the budget residual.
 Boundaries: open edges use a first-order radiation (Sommerfeld) condition for the normal component,
 ``q_n = sqrt(g h) eta`` of the adjacent wet cell (exact for a long wave leaving at normal
 incidence, partly reflecting at oblique incidence); ``"reflect"`` closes the edge (``q_n = 0``).
-Cells with depth ``<= stop_depth`` (and NaN depth) are dry. The coast between a wet and a dry cell
+Cells with depth ``<= stop_depth_m`` (and NaN depth) are dry. The coast between a wet and a dry cell
 is a reflecting wall (``coast="reflect"``) or the same radiation condition (``coast="absorb"``, the
 wave leaves towards the shore without reflection — the stop isobath acts as a sink).
 
@@ -47,7 +47,7 @@ import numpy as np
 import xarray as xr
 
 from ..cautions import caution_summary, caution_text
-from ..constants import GRAVITY
+from ..constants import GRAVITY, STOP_DEPTH_M
 from ..errors import InputError, ResolutionWarning, ResourceLimitError
 from ..grid import GridInfo
 from . import _wavekernel as _k
@@ -161,9 +161,9 @@ def _metric(info: GridInfo) -> _Metric:
     return _Metric(dxm=r * dlon * cos_c, dym=r * dlat, lx=r * dlat, ly=r * dlon * cos_f, area=area)
 
 
-def _wet_mask(depth: np.ndarray, stop_depth: float) -> np.ndarray:
+def _wet_mask(depth: np.ndarray, stop_depth_m: float) -> np.ndarray:
     with np.errstate(invalid="ignore"):
-        return np.isfinite(depth) & (depth > stop_depth)
+        return np.isfinite(depth) & (depth > stop_depth_m)
 
 
 def _check_depth(depth: xr.DataArray) -> GridInfo:
@@ -192,7 +192,7 @@ def _polar_dry(info: GridInfo, wet: np.ndarray, polar_cutoff_deg: float | None) 
 def wave_time_step(
     depth: xr.DataArray,
     *,
-    stop_depth: float = 20.0,
+    stop_depth_m: float = STOP_DEPTH_M,
     cfl: float = 0.8,
     gravity: float = GRAVITY,
     polar_cutoff_deg: float | None = 80.0,
@@ -207,7 +207,7 @@ def wave_time_step(
     ----------
     depth : xarray.DataArray
         Depth [m], positive down.
-    stop_depth : float
+    stop_depth_m : float
         Cells with depth [m] at or below this value are dry.
     cfl : float
         Courant number in (0, 1].
@@ -221,12 +221,12 @@ def wave_time_step(
     float
         Time step [s].
     """
-    _check_scalars(cfl=cfl, stop_depth=stop_depth, gravity=gravity)
+    _check_scalars(cfl=cfl, stop_depth_m=stop_depth_m, gravity=gravity)
     info = _check_depth(depth)
     d = np.asarray(depth.values, dtype=float)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", ResolutionWarning)
-        wet = _polar_dry(info, _wet_mask(d, stop_depth), polar_cutoff_deg)
+        wet = _polar_dry(info, _wet_mask(d, stop_depth_m), polar_cutoff_deg)
     return _dt_from(d, wet, _metric(info), cfl, gravity, depth.name)
 
 
@@ -240,14 +240,14 @@ def _dt_from(d: np.ndarray, wet: np.ndarray, m: _Metric, cfl: float, gravity: fl
     return float(cfl / rate.max())
 
 
-def _check_scalars(*, cfl: float, stop_depth: float, gravity: float) -> None:
+def _check_scalars(*, cfl: float, stop_depth_m: float, gravity: float) -> None:
     if not (isinstance(cfl, (int, float)) and math.isfinite(cfl) and 0.0 < cfl <= 1.0):
         raise InputError(
             f"cfl={cfl!r}: the Courant number must be in (0, 1] for forward-backward time stepping "
             "(stability limit 1; 0.8 recommended)"
         )
-    if not (math.isfinite(stop_depth) and stop_depth >= 0.0):
-        raise InputError(f"stop_depth={stop_depth!r} m: expected a finite depth >= 0 m")
+    if not (math.isfinite(stop_depth_m) and stop_depth_m >= 0.0):
+        raise InputError(f"stop_depth_m={stop_depth_m!r} m: expected a finite depth >= 0 m")
     if not (math.isfinite(gravity) and gravity > 0.0):
         raise InputError(f"gravity={gravity!r} m s-2: expected a positive value")
 
@@ -362,7 +362,7 @@ def simulate_linear_long_wave(
     eta0: xr.DataArray,
     *,
     duration_s: float,
-    stop_depth: float = 20.0,
+    stop_depth_m: float = STOP_DEPTH_M,
     coast: str = "reflect",
     boundary: str | Mapping[str, str] | Sequence[str] = "absorb",
     cfl: float = 0.8,
@@ -380,13 +380,13 @@ def simulate_linear_long_wave(
     ----------
     depth : xarray.DataArray
         Depth [m], positive down, on the tsunamifocus grid convention (projected metres or lon/lat
-        degrees). NaN and depth ``<= stop_depth`` are dry (land).
+        degrees). NaN and depth ``<= stop_depth_m`` are dry (land).
     eta0 : xarray.DataArray
         Initial surface elevation [m] on the same grid (e.g. the sea-floor uplift of the source);
         values on dry cells are ignored. The initial velocity is zero.
     duration_s : float
         Simulated time [s].
-    stop_depth : float
+    stop_depth_m : float
         Stop isobath [m]: cells with depth at or below it are dry.
     coast : {"reflect", "absorb"}
         Wet/dry faces: reflecting wall, or first-order radiation (no reflection at normal incidence).
@@ -426,7 +426,7 @@ def simulate_linear_long_wave(
     ResourceLimitError
         The working arrays would exceed ``max_memory_bytes``.
     """
-    _check_scalars(cfl=cfl, stop_depth=stop_depth, gravity=gravity)
+    _check_scalars(cfl=cfl, stop_depth_m=stop_depth_m, gravity=gravity)
     if coast not in ("reflect", "absorb"):
         raise InputError(f"coast={coast!r}: expected 'reflect' or 'absorb'")
     if not (isinstance(duration_s, (int, float)) and math.isfinite(duration_s) and duration_s > 0):
@@ -461,7 +461,7 @@ def simulate_linear_long_wave(
         )
 
     d = np.asarray(depth.values, dtype=float)
-    wet = _polar_dry(info, _wet_mask(d, stop_depth), polar_cutoff_deg)
+    wet = _polar_dry(info, _wet_mask(d, stop_depth_m), polar_cutoff_deg)
     e0 = np.asarray(eta0.values, dtype=float)
     bad = wet & ~np.isfinite(e0)
     if bad.any():
@@ -564,14 +564,14 @@ def simulate_linear_long_wave(
         "mass_error_m3": resid,
         "mass_error": resid / abs0 if abs0 > 0 else 0.0,
         "arrival_threshold_m": thr,
-        "stop_depth_m": float(stop_depth),
+        "stop_depth_m": float(stop_depth_m),
         "coast": coast,
         "boundary": bnd,
         "gravity": float(gravity),
         "polar_cutoff_deg": polar_cutoff_deg,
         "memory_bytes": mem,
     }
-    common = {"stop_depth_m": float(stop_depth), "coast": coast, "model": "linear long-wave (C grid, forward-backward)"}
+    common = {"stop_depth_m": float(stop_depth_m), "coast": coast, "model": "linear long-wave (C grid, forward-backward)"}
     max_amp = _as_grid(
         depth,
         np.where(wet, max_eta, np.nan),

@@ -14,7 +14,7 @@ import xarray as xr
 
 from ..cautions import caution_text
 from ..coast.waves import segment_max_amplitude
-from ..constants import GRAVITY
+from ..constants import GRAVITY, STOP_DEPTH_M
 from ..errors import CoastError, InputError
 from ..focusing.agreement import compare_rankings
 from ..propagation.wave import WAVE_CAUTION, WaveResult, _check_depth, _wet_mask, simulate_linear_long_wave
@@ -76,7 +76,7 @@ class WaveCheck:
         return "\n".join(lines)
 
 
-def default_check_duration_s(depth: xr.DataArray, segments: Any = None, *, stop_depth: float = 20.0,
+def default_check_duration_s(depth: xr.DataArray, segments: Any = None, *, stop_depth_m: float = STOP_DEPTH_M,
                              gravity: float = GRAVITY) -> float:
     """Simulated time [s] used by :func:`wave_check` when none is given.
 
@@ -90,7 +90,7 @@ def default_check_duration_s(depth: xr.DataArray, segments: Any = None, *, stop_
             return float(1.2 * np.nanmax(t) + 3600.0)
     info = _check_depth(depth)
     d = np.asarray(depth.values, float)
-    wet = _wet_mask(d, stop_depth)
+    wet = _wet_mask(d, stop_depth_m)
     if not wet.any():
         raise InputError(f"depth grid '{depth.name}': no wet cell deeper than the stop depth")
     if info.geographic:
@@ -112,7 +112,7 @@ def compare_with_waves(
     reference_depth: xr.DataArray | None = None,
     lensing_column: str = "lensing_factor",
     duration_s: float | None = None,
-    stop_depth: float = 20.0,
+    stop_depth_m: float = STOP_DEPTH_M,
     coast: str = "absorb",
     boundary: str | Mapping[str, str] | Sequence[str] = "absorb",
     k: int = 10,
@@ -144,7 +144,7 @@ def compare_with_waves(
         Ray lensing factor column.
     duration_s : float, optional
         Simulated time [s]; default :func:`default_check_duration_s`.
-    stop_depth : float
+    stop_depth_m : float
         Stop isobath [m], the same as the ray run.
     coast : {"absorb", "reflect"}
         Default "absorb": the ray amplitude at the stop isobath is an incident amplitude, so the coast
@@ -173,12 +173,12 @@ def compare_with_waves(
     if reference_depth is not None and lensing_column not in segments.columns:
         raise CoastError(f"segments table has no column {lensing_column!r} to compare with the wave lensing")
     if duration_s is None:
-        duration_s = default_check_duration_s(depth, segments, stop_depth=stop_depth, gravity=gravity)
-    opts = dict(duration_s=duration_s, stop_depth=stop_depth, coast=coast, boundary=boundary, cfl=cfl,
+        duration_s = default_check_duration_s(depth, segments, stop_depth_m=stop_depth_m, gravity=gravity)
+    opts = dict(duration_s=duration_s, stop_depth_m=stop_depth_m, coast=coast, boundary=boundary, cfl=cfl,
                 gravity=gravity, threads=threads, progress=progress, **simulate_kwargs)
     res = simulate_linear_long_wave(depth, eta0, **opts)
     sample = dict(search_radius_cells=search_radius_cells, statistic=statistic)
-    wave = segment_max_amplitude(res, segments, depth, stop_depth, **sample)
+    wave = segment_max_amplitude(res, segments, depth, stop_depth_m, **sample)
     table = pd.DataFrame({"segment_id": wave.index.values})
     if "name" in segments.columns:
         table["name"] = np.asarray(segments["name"])
@@ -186,7 +186,7 @@ def compare_with_waves(
     table["ranked"] = ranked
     _paired_columns(table, "ray_value", np.asarray(segments[ray_column], dtype=float), "wave_amp_stop_m",
                     wave.values, ranked, ("rank_ray", "rank_wave"))
-    arr = segment_max_amplitude(res, segments, depth, stop_depth, search_radius_cells=search_radius_cells,
+    arr = segment_max_amplitude(res, segments, depth, stop_depth_m, search_radius_cells=search_radius_cells,
                                 statistic="min", field="arrival_time_s")
     table["wave_first_arrival_s"] = arr.values
     with np.errstate(divide="ignore", invalid="ignore"):
@@ -196,7 +196,7 @@ def compare_with_waves(
     res_ref = None
     if reference_depth is not None:
         res_ref = simulate_linear_long_wave(reference_depth, eta0, **opts)
-        wave_ref = segment_max_amplitude(res_ref, segments, reference_depth, stop_depth, **sample)
+        wave_ref = segment_max_amplitude(res_ref, segments, reference_depth, stop_depth_m, **sample)
         with np.errstate(divide="ignore", invalid="ignore"):
             wave_lensing = (wave.values / wave_ref.values) ** 2
         table["wave_amp_reference_m"] = wave_ref.values

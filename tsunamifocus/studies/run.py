@@ -24,6 +24,7 @@ from pyproj import CRS, Geod, Transformer
 from ..coast.coastline import coastline_from_grid
 from ..coast.segments import STATIC_SEGMENT_COLUMNS as _STATIC_COLUMNS
 from ..coast.segments import segment_coastline
+from ..constants import STOP_DEPTH_M
 from ..errors import HealthCheckError, ResourceLimitError
 from ..focusing.analysis import analyse_focusing
 from ..grid import GridInfo
@@ -246,8 +247,8 @@ def analyse_source(
     if scenario.rays.step_s:
         kw["step_s"] = scenario.rays.step_s
     foc = analyse_focusing(
-        depth, fan, period_s=period, reference_km=scenario.focusing.reference_smooth_km, bands=bands,
-        stop_depth=scenario.rays.stop_depth_m, segments=segments, trace_kwargs=kw,
+        depth, fan, period_s=period, reference_smooth_km=scenario.focusing.reference_smooth_km, bands=bands,
+        stop_depth_m=scenario.rays.stop_depth_m, segments=segments, trace_kwargs=kw,
         min_rays=scenario.coast.min_rays, seed=scenario.rays.seed, top_k=scenario.output.top_k,
     )
     foc.segments["edge_distance_km"] = _edge_distance_km(foc.segments, depth)
@@ -375,7 +376,7 @@ def arrival_times(
     points: Sequence[tuple[float, float]],
     *,
     n_rays: int = 3600,
-    stop_depth: float = 20.0,
+    stop_depth_m: float = STOP_DEPTH_M,
     max_time_s: float = 86400.0,
     points_crs: str | None = "EPSG:4326",
     **ray_options: Any,
@@ -393,7 +394,7 @@ def arrival_times(
         Where to report, in ``points_crs`` (lon/lat by default; None: the grid CRS).
     n_rays : int
         Rays to trace.
-    stop_depth, max_time_s : float
+    stop_depth_m, max_time_s : float
         Ray settings [m], [s].
     **ray_options
         Passed to :func:`tsunamifocus.rays.trace_rays`.
@@ -411,11 +412,11 @@ def arrival_times(
         az = (np.arange(n_rays) + 0.5) * 360.0 / n_rays
         x0 = np.full(n_rays, x0)
         y0 = np.full(n_rays, y0)
-        res = trace_rays(depth, x0, y0, az, stop_depth=stop_depth, max_time_s=max_time_s, **ray_options)
+        res = trace_rays(depth, x0, y0, az, stop_depth_m=stop_depth_m, max_time_s=max_time_s, **ray_options)
     else:
         eta = uplift_on_grid(source, depth)
-        fan = make_ray_fan(eta, depth, n_rays, stop_depth_m=stop_depth)
-        res = trace_rays(depth, fan.x0, fan.y0, fan.azimuth_deg, weights=fan.weights, stop_depth=stop_depth,
+        fan = make_ray_fan(eta, depth, n_rays, stop_depth_m=stop_depth_m)
+        res = trace_rays(depth, fan.x0, fan.y0, fan.azimuth_deg, weights=fan.weights, stop_depth_m=stop_depth_m,
                          max_time_s=max_time_s, **ray_options)
     pts = np.asarray(points, dtype=float).reshape(-1, 2)
     if points_crs is not None:
