@@ -33,7 +33,7 @@ def test_point_source_on_a_straight_coast_matches_the_geometric_flux():
     d = basin()
     n = 720
     az = (np.arange(n) + 0.5) * 360.0 / n
-    r = trace_rays(d, np.zeros(n), np.zeros(n), az, weights=np.full(n, E / n), stop_depth=20.0,
+    r = trace_rays(d, np.zeros(n), np.zeros(n), az, weights=np.full(n, E / n), stop_depth_m=20.0,
                    max_time_s=4 * 3600.0)
     seg = segment_coastline(coastline_from_grid(d, 20.0), 10e3, d)
     info = GridInfo.from_dataarray(d)
@@ -59,7 +59,7 @@ def test_few_rays_still_give_a_smooth_answer():
     d = basin()
     n = 72
     az = (np.arange(n) + 0.5) * 360.0 / n
-    r = trace_rays(d, np.zeros(n), np.zeros(n), az, weights=np.full(n, E / n), stop_depth=20.0,
+    r = trace_rays(d, np.zeros(n), np.zeros(n), az, weights=np.full(n, E / n), stop_depth_m=20.0,
                    max_time_s=4 * 3600.0)
     seg = segment_coastline(coastline_from_grid(d, 20.0), 10e3, d)
     dep = tube_deposit(seg, r.end, d, steps=tube_steps(r.end, GridInfo.from_dataarray(d)), period_s=300.0,
@@ -76,5 +76,5 @@ def test_line_source_step_is_the_launch_spacing():
     # plane-wave rays (q0 = 1) launched 250 m apart: the tube step is that spacing
     d = basin()
     y0 = np.arange(-50e3, 50e3, 250.0)
-    r = trace_rays(d, np.full(y0.size, 1000.0), y0, 90.0, q0=1.0, p0=0.0, stop_depth=20.0, max_time_s=3600.0)
+    r = trace_rays(d, np.full(y0.size, 1000.0), y0, 90.0, q0=1.0, p0=0.0, stop_depth_m=20.0, max_time_s=3600.0)
     np.testing.assert_allclose(tube_steps(r.end, GridInfo.from_dataarray(d)), 250.0, rtol=1e-9)

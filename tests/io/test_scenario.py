@@ -459,7 +459,7 @@ def test_defaults_table_is_the_schema_and_dataclass_source():
             assert keys[key]["default"] == value, (sec, key)
     sc = scenario_from_dict({"bathymetry": {"path": "g.nc"},
                              "source": [{"name": "p", "kind": "point", "lon": 1.0, "lat": 2.0}]}, "/")
-    for sec in ("rays", "focusing", "output", "ensemble"):
+    for sec in ("rays", "output", "ensemble"):
         for key, value in DEFAULTS[sec].items():
             assert getattr(getattr(sc, sec), key) == value, (sec, key)
     assert sc.coast.isobath_m == DEFAULTS["rays"]["stop_depth_m"]

@@ -445,7 +445,7 @@ def test_wave_check_ranks_segments_like_cylindrical_spreading(straight_coast, tm
     assert np.all(t_arr >= (r - 4 * 8e3) / c) and np.all(t_arr <= r / c)
     assert wc.figure is not None and wc.figure.stat().st_size > 10_000
     text = wc.summary()
-    assert "Spearman rank correlation" in text and "top-6 overlap 6/6" in text and "SCREENING" in text
+    assert "amplitude ranking: Spearman" in text and "top-6 overlap 6/6" in text and "SCREENING" in text
     with pytest.raises(CoastError, match="lensing_factor"):
         wave_check(depth, eta0, segs, ray_column="lensing_factor", duration_s=100.0)
 

@@ -92,16 +92,16 @@ def test_demo_rankings_are_stable_between_ray_seeds(demo_runs):
     sa, sb = a.focusing.segments, b.focusing.segments
     amp = compare_rankings(_ranked(sa, "amp_stop_m"), _ranked(sb, "amp_stop_m"), k=K)
     lens = compare_rankings(_ranked(sa, "lensing_factor"), _ranked(sb, "lensing_factor"), k=K)
-    # Measured on 2026-12-02 (seeds 7 and 8): amplitude Spearman AMP_S, top-10 AMP_T/10;
-    # lensing Spearman LENS_S, top-10 LENS_T/10.
-    assert amp["spearman"] >= AMP_S - 0.03
-    assert amp["topk_common"] >= AMP_T - 2
-    assert lens["spearman"] >= LENS_S - 0.05
-    assert lens["topk_common"] >= LENS_T - 2
+    # Measured on 2026-12-02 (seeds 7 and 8): amplitude Spearman 1.000, top-10 10/10;
+    # lensing Spearman 0.995, top-10 9/10.
+    assert amp["spearman"] >= 1.000 - 0.03
+    assert amp["topk_common"] >= 10 - 2
+    assert lens["spearman"] >= 0.995 - 0.05
+    assert lens["topk_common"] >= 9 - 2
     # the second seed is judged by the same wave run as well as the first.
-    # Measured on 2026-12-02: seed 8 amplitude Spearman B_S vs the wave.
+    # Measured on 2026-12-02: seed 8 amplitude Spearman 0.969 vs the wave.
     wave = chk.table.set_index("segment_id")["wave_amp_stop_m"]
-    assert compare_rankings(_ranked(sb, "amp_stop_m"), wave, k=K)["spearman"] >= B_S - 0.05
+    assert compare_rankings(_ranked(sb, "amp_stop_m"), wave, k=K)["spearman"] >= 0.969 - 0.05
 
 
 # ------------------------------------------------------------------------------------------------
@@ -136,5 +136,7 @@ def test_real_grid_amplitude_ranking_meets_target(etopo_path):
         a = analyse_source(depth, sc, sc.sources[0], segments=seg, keep_paths=0)
     chk = compare_with_waves(depth, a.eta, a.focusing.segments, stop_depth=20.0, k=K)
     assert chk.agreement["n"] >= 150  # measured: REAL_N ranked segments with a wave value
-    # Project target: Spearman >= 0.8. Measured on 2026-12-02: REAL_S (top-10 common REAL_T/10).
-    assert chk.agreement["spearman"] >= REAL_THRESHOLD
+    # Project target: Spearman >= 0.8. Measured on 2026-12-02: 0.875 (top-10 common 5/10; seed 1: 0.840),
+    # so the target itself is asserted (margin 0.075 below the measured value).
+    print(chk.summary().splitlines()[1], f"n={chk.agreement['n']}")
+    assert chk.agreement["spearman"] >= 0.8, chk.agreement

@@ -162,9 +162,9 @@ def run_wave_check(
         print("CAUTION: " + caution_summary(), file=sys.stderr)
     lens = ag.get("lensing") or {}
     sp, lsp = ag.get("spearman"), lens.get("spearman")
-    print(f"amplitude spearman {sp if sp is None else round(sp, 3)}  top{k}_overlap {ag.get('topk_overlap')}"
-          + (f"  lensing spearman {lsp if lsp is None else round(lsp, 3)}  top{k}_overlap {lens.get('topk_overlap')}"
-             if lens else ""))
+    print(f"spearman {sp if sp is None else round(sp, 3)}  top{k}_overlap {ag.get('topk_overlap')}"
+          + (f"  lensing_spearman {lsp if lsp is None else round(lsp, 3)}  lensing_top{k}_overlap "
+             f"{lens.get('topk_overlap')}" if lens else ""))
     return {"agreement": ag, "out": out_dir}
 
 
