@@ -20,7 +20,7 @@ import xarray as xr
 from pyproj import CRS
 
 from ..errors import CRSError, DataFileError, InputError, ResourceLimitError, SignConventionError
-from ..grid import GridInfo, crop_bathymetry, make_grid, resample_bathymetry
+from ..grid import GridInfo, check_bbox, crop_bathymetry, make_grid, resample_bathymetry
 
 __all__ = ['load_bathymetry', 'estimate_grid_memory', 'DEFAULT_MAX_MEMORY_GB']
 
@@ -340,6 +340,8 @@ def _read_netcdf(p, variable, bbox, margin_km, limit) -> _Raw:
                 )
         da = da.transpose(yd, xd)
         sel = {}
+        if bbox is not None:
+            bbox = check_bbox(bbox, the_crs.is_geographic)
         if bbox is not None and not the_crs.is_geographic:
             m = margin_km * 1000.0
             xs = np.nonzero((x >= bbox[0] - m - abs(x[1] - x[0])) & (x <= bbox[2] + m + abs(x[1] - x[0])))[0]
