@@ -50,11 +50,78 @@ def _coord_code(x, y):
 
 # ----------------------------------------------------------------------------- real data
 @pytest.mark.realdata
-def test_real_grid_sign_refused_in_auto(etopo_path):
-    # the file's variable 'z' has no units, no 'positive' attribute and a neutral name
-    # (shared/data/README.md): auto must refuse rather than guess
-    with pytest.raises(errors.SignConventionError, match="values='elevation'"):
-        load_bathymetry(etopo_path)
+def test_real_grid_sign_decided_from_physical_bounds(etopo_path):
+    # The file's variable 'z' has no units, no 'positive' attribute and a neutral name
+    # (shared/data/README.md), so metadata cannot tell. Its minimum, -10,714 m (the file's own
+    # actual_range attribute, read independently with netCDF4), lies below -8,900 m: no land is
+    # that high (Mount Everest 8,849 m; common practice, no source), so it can only be sea floor
+    # stored as negative elevation. auto must now agree with an explicit values='elevation'.
+    with netCDF4.Dataset(etopo_path) as nc:
+        lo = float(nc["z"].actual_range[0])
+    assert lo < -8900.0
+    auto = load_bathymetry(etopo_path)
+    explicit = load_bathymetry(etopo_path, values="elevation")
+    np.testing.assert_array_equal(auto.values, explicit.values)
+    assert "sea floor stored as negative elevation" in auto.attrs["sign_decided_by"]
+    assert auto.attrs["sign_decided_by"].startswith("values: minimum -10,714 m")
+
+
+@pytest.mark.realdata
+def test_real_grid_inspect_without_values(etopo_path, capsys):
+    # `inspect` without --values used to refuse this grid ("cannot tell ... 71% negative")
+    from tsunamifocus.cli.app import main
+
+    assert main(["inspect", str(etopo_path)]) == 0
+    out = capsys.readouterr().out
+    assert "sign            values: minimum -10,714 m" in out
+    # deepest sea cell: Challenger Deep at 0.1 degree, 10,714 m (the file's actual_range)
+    assert "max 10714 m" in out
+
+
+def _relief(lo, hi, shape=(6, 8)):
+    """A grid whose values run linearly from lo to hi (no metadata at all)."""
+    return np.linspace(lo, hi, shape[0] * shape[1]).reshape(shape)
+
+
+@pytest.mark.parametrize(
+    "lo, hi, units, expected",
+    [
+        # Physical bounds (common practice, no source): highest land 8,849 m (Everest), deepest sea
+        # floor ~10,935 m (Challenger Deep). Elevation grids span about [-10,935, 8,849] m, depth
+        # grids about [-8,849, 10,935] m.
+        (-9500.0, 3000.0, None, "elevation"),   # below -8,900 m: only sea floor as negative elevation
+        (-3000.0, 9500.0, None, "depth"),       # above +8,900 m: only sea floor as positive depth
+        (-31000.0, 9000.0, "ft", "elevation"),  # -9,449 m after converting feet (NIST: 1 ft = 0.3048 m)
+        (-9000.0, 31000.0, "ft", "depth"),      # +9,449 m
+    ],
+)
+def test_auto_sign_from_physical_bounds(tmp_path, lo, hi, units, expected):
+    arr = _relief(lo, hi)
+    p = _write_tif(tmp_path / "g.tif", arr, from_origin(0, 6000, 1000, 1000), units=units)
+    got = load_bathymetry(p)
+    ref = load_bathymetry(p, values=expected)
+    np.testing.assert_array_equal(got.values, ref.values)
+    assert got.attrs["sign_decided_by"].startswith("values:")
+
+
+@pytest.mark.parametrize(
+    "lo, hi, units, match",
+    [
+        (-6000.0, 3000.0, None, "all within"),  # a plausible elevation grid AND a plausible depth grid
+        (-3000.0, 6000.0, None, "all within"),
+        # -20,000 ft = -6,096 m: within the bounds once in metres, so still undecidable (the
+        # bound applies to metres, not to the stored numbers)
+        (-20000.0, 5000.0, "ft", "all within"),
+        (-9500.0, 9500.0, None, "beyond"),     # impossible either way: refuse, never guess
+    ],
+)
+def test_auto_sign_still_refused_when_values_cannot_tell(tmp_path, lo, hi, units, match):
+    arr = _relief(lo, hi)
+    p = _write_tif(tmp_path / "g.tif", arr, from_origin(0, 6000, 1000, 1000), units=units)
+    with pytest.raises(errors.SignConventionError, match=match) as ei:
+        load_bathymetry(p)
+    msg = str(ei.value)
+    assert "values='elevation'" in msg and "\n" not in msg and str(p) in msg
 
 
 @pytest.fixture(scope="module")
@@ -111,6 +178,42 @@ def test_real_grid_crop_across_seam(etopo_depth, etopo_path):
     with netCDF4.Dataset(etopo_path) as nc:  # independent value check on the west side of the seam
         ref = -float(nc["z"][int(round((45.0 + 90) / 0.1)), int(round(355.0 / 0.1))])
     assert float(c2.sel(lon=-5.0, lat=45.0, method="nearest")) == pytest.approx(ref, abs=1e-3)
+
+
+@pytest.mark.realdata
+def test_real_grid_crop_across_antimeridian_written_in_180_numbers(etopo_path):
+    # [120, 0, -110, 65]: xmin in 0..180 and xmax in -180..0 is the -180..180 way of writing a
+    # box across the antimeridian, i.e. 120..250 E (common practice, no source). It used to be
+    # refused with "expected xmin < xmax" and no hint.
+    a = load_bathymetry(etopo_path, bbox=(120.0, 0.0, -110.0, 65.0))
+    b = load_bathymetry(etopo_path, bbox=(120.0, 0.0, 250.0, 65.0))
+    assert a.lon.values[0] == pytest.approx(120.0) and a.lon.values[-1] == pytest.approx(250.0)
+    np.testing.assert_array_equal(a.values, b.values)
+    with netCDF4.Dataset(etopo_path) as nc:  # independent read east of the antimeridian (235 E = 125 W)
+        ref = -float(nc["z"][int(round((40.0 + 90) / 0.1)), int(round(235.0 / 0.1))])
+    assert float(a.sel(lon=235.0, lat=40.0, method="nearest")) == pytest.approx(ref, abs=1e-3)
+
+
+def test_crop_across_antimeridian_needs_a_lonlat_grid():
+    d = _proj_grid()
+    with pytest.raises(errors.InputError, match=r"antimeridian \(120 \.\. 250 E\) needs a lon/lat grid"):
+        crop_bathymetry(d, (120.0, 0.0, -110.0, 65.0))
+    # a plainly inverted box (both east) stays refused, with the way to write a crossing box
+    g = make_grid(np.full((10, 40), 100.0), 100.0 + np.arange(40.0), np.arange(10.0), "EPSG:4326")
+    with pytest.raises(errors.InputError, match=r"expected xmin < xmax.*\(120, 0, -110, 65\) for 120\.\.250 E"):
+        crop_bathymetry(g, (130.0, 1.0, 120.0, 5.0))
+    # a global grid held in -180..180 is rolled so the crossing box is contiguous, 120..250
+    lon = -179.5 + np.arange(360.0)
+    glob = make_grid(np.tile(lon, (20, 1)), lon, -9.5 + np.arange(20.0), "EPSG:4326", lon_periodic=True)
+    c = crop_bathymetry(glob, (120.0, -5.0, -110.0, 5.0))
+    assert c.lon.values[0] == pytest.approx(120.5) and c.lon.values[-1] == pytest.approx(249.5)
+    assert np.all(np.diff(c.lon.values) > 0)
+    # each value is its own -180..180 longitude: 235.5 E holds -124.5 (the same meridian)
+    assert float(c.sel(lon=235.5, lat=0.5)) == pytest.approx(-124.5)
+    # on a regional lon/lat grid in 0..360 numbers the crossing box is cut out at 120..250 E
+    g = make_grid(np.arange(10 * 200.0).reshape(10, 200), 100.5 + np.arange(200.0), np.arange(10.0), "EPSG:4326")
+    c = crop_bathymetry(g, (120.0, 1.0, -110.0, 5.0))
+    assert c.lon.values[0] == pytest.approx(120.5) and c.lon.values[-1] == pytest.approx(249.5)
 
 
 # ----------------------------------------------------------------------------- registration
