@@ -1231,9 +1231,11 @@ def plot_ranking(
     probs = pd.to_numeric(df[prob_col], errors="coerce").to_numpy(float) if prob_col else np.full(n, np.nan)
     for yv, v, e_, pr, cl in zip(ypos, vals, ends, probs, clipped | wclip, strict=True):
         txt = f"{v:.3g}" + (f"   P(top {top_k}) = {pr:.2f}" if np.isfinite(pr) else "")
-        if cl:  # clipped: the value goes inside the axis, left of the edge
-            ax.text(clip_at - 0.02 * span, yv + 0.36, txt + (" (off scale)" if v > clip_at else ""),
-                    va="bottom", ha="right", fontsize=7.5, color="0.15", zorder=4)
+        if cl and v > clip_at:  # bar off scale: its value inside the bar, left of the edge
+            ax.text(clip_at - 0.03 * span, yv, txt + " (off scale)", va="center", ha="right", fontsize=8,
+                    color="0.1", zorder=5, bbox={"facecolor": "white", "edgecolor": "none", "alpha": 0.85, "pad": 1.0})
+        elif cl:  # only the whisker runs off scale: the value just above the bar's end
+            ax.text(v + 0.015 * span, yv + 0.34, txt, va="bottom", ha="left", fontsize=8, color="0.15", zorder=4)
         else:
             ax.text(e_ + 0.015 * span, yv, txt, va="center", ha="left", fontsize=8, color="0.15", zorder=4)
     labels = [_bar_label(row["segment_id"], row.get("name", ""), row["_rank"] if ok_ else None,
@@ -1264,7 +1266,9 @@ def plot_ranking(
         handles.append(
             Line2D([], [], color=_OKABE_VERMILLION, linestyle="--", lw=1.2, label=f"{ref:g} = no focusing")
         )
-    leg = ax.legend(handles=handles, loc="lower right", framealpha=0.9, fontsize=8)
+    # below the bars, so it never hides a bar or a printed value
+    leg = ax.legend(handles=handles, loc="upper center", bbox_to_anchor=(0.5, -0.16), ncol=min(3, len(handles)),
+                    framealpha=0.9, fontsize=8)
     leg.set_zorder(10)
     return _finish(fig, out_path, ax=ax)
 
