@@ -137,7 +137,7 @@ def run_case(name: str, scenario, segments, depth, seeds: tuple[int, int], rays:
     seg = a.focusing.segments
     c0, t0 = time.process_time(), time.perf_counter()
     chk = compare_with_waves(depth, a.eta, seg, reference_depth=a.focusing.reference_depth,
-                             stop_depth=scenario.rays.stop_depth_m, k=K)
+                             stop_depth_m=scenario.rays.stop_depth_m, k=K)
     out["wave_wall_s"], out["wave_cpu_s"] = time.perf_counter() - t0, time.process_time() - c0
     out["wave_hours"] = chk.wave.stats["duration_s"] / 3600.0
     out["wave_cells"] = int(np.isfinite(np.asarray(depth.values, float)).sum())

@@ -380,3 +380,90 @@ def test_edge_distance_of_segments(demo_run):
     ring = box(*b).exterior
     ref = np.array([ring.distance(Point(x, y)) / 1000.0 for x, y in zip(seg["x_mid"], seg["y_mid"])])
     np.testing.assert_allclose(seg["edge_distance_km"].to_numpy(dtype=float), ref, rtol=1e-9, atol=1e-9)
+
+
+def test_rays_override_recorded_and_no_reliable_segment_said_plainly(tmp_path, capsys):
+    """``--rays`` is recorded where a rerun reads it (manifest, scenario.toml, appendix); a run with
+    no reliable segment says so instead of an empty list."""
+    from tsunamifocus.cli.app import main
+    from tsunamifocus.io.manifest import scenario_from_manifest
+
+    sc = _small(parse_scenario(demo_inputs(tmp_path / "in")), rays=6000, members=0)
+    sc = dataclasses.replace(sc, coast=dataclasses.replace(sc.coast, min_rays=100000),
+                             output=dataclasses.replace(sc.output, folder=tmp_path / "out"))
+    p = tmp_path / "s.toml"
+    p.write_text(sc.to_toml(), encoding="utf-8")
+    assert main(["run", str(p), "--rays", "400"]) == 0
+    err = capsys.readouterr().err
+    out = tmp_path / "out"
+    m = json.loads((out / "manifest.json").read_text())
+    assert m["parameters"]["rays"]["count"] == 400
+    assert m["extra"]["settings_chosen"]["rays"] == {"value": 400, "origin": "override", "why": ""}
+    assert parse_scenario(out / "scenario.toml").rays.count == 400
+    assert scenario_from_manifest(out / "manifest.json").rays.count == 400  # a rerun repeats the run
+    assert "400 (command-line override)" in (out / "appendix.html").read_text(encoding="utf-8")
+    assert "ray count per source: 400 rays (command-line override)" in err
+    assert "no reliable segment: none of the" in err and "top 5 hotspots" not in err
+    assert "No segment of the" in (out / "appendix.html").read_text(encoding="utf-8")
+
+
+def test_scenario_max_distance_and_region_reach_the_analysis(tmp_path):
+    """``[coast] max_distance_m`` is the distance used to assign rays, and ``region`` keeps only the
+    segments whose midpoints lie in the box (checked against the box itself)."""
+    from tsunamifocus.studies.run import analyse_scenario
+
+    sc = _small(parse_scenario(demo_inputs(tmp_path / "in")), rays=1500, members=0)
+    full = analyse_scenario(sc, progress=False).analysis.focusing.segments
+    lat = full["lat_mid"].to_numpy(float)
+    box = (-180.0, float(np.quantile(lat, 0.3)), 180.0, float(np.quantile(lat, 0.7)))
+    sc2 = dataclasses.replace(sc, coast=dataclasses.replace(sc.coast, max_distance_m=7000.0, region=box))
+    res = analyse_scenario(sc2, progress=False)
+    seg = res.analysis.focusing.segments
+    assert seg.attrs["max_distance_m"] == 7000.0
+    inside = (full["lat_mid"] >= box[1]) & (full["lat_mid"] <= box[3])
+    assert list(seg["segment_id"]) == list(full.loc[inside, "segment_id"])
+    rk = res.analysis.focusing.ranking
+    assert set(rk["segment_id"]) <= set(seg["segment_id"])
+
+
+def test_coastline_file_sets_the_coast_whose_energy_the_warnings_count(tmp_path):
+    """With a coastline file and no region, the coverage warnings compare with the energy reaching
+    the file's stretch of coast (its bounding box grown by 5 cells), not every coast of the grid."""
+    from tsunamifocus.grid import make_grid
+    from tsunamifocus.studies.run import _segments_for
+
+    lon = np.arange(225.0, 240.0 + 1e-9, 0.1)
+    lat = np.arange(30.0, 50.0 + 1e-9, 0.1)
+    d = make_grid(np.where(lon[None, :] < 235.5, 3000.0, -100.0) * np.ones((lat.size, 1)), lon, lat, "EPSG:4326")
+    coast = tmp_path / "coast.geojson"  # RFC 7946: WGS84, written in -180..180 numbers
+    coast.write_text(json.dumps({"type": "FeatureCollection", "features": [{"type": "Feature", "properties": {},
+                     "geometry": {"type": "LineString", "coordinates": [[-124.5, 40.0], [-124.5, 42.0]]}}]}))
+    p = tmp_path / "s.toml"
+    p.write_text(f'[bathymetry]\npath = "g.nc"\n[[source]]\nname = "p"\nkind = "point"\nlon = 230\nlat = 40\n'
+                 f'[coast]\nfrom = "{coast}"\nsegment_km = 20\n')
+    seg = _segments_for(d, parse_scenario(p))
+    area = seg.attrs["coast_area"]
+    assert area is not None and seg["in_region"].all()
+    # 5 cells of 0.1 deg of latitude (11.1 km) beyond the line's ends, in either longitude numbering
+    assert area.contains_lonlat(235.5, 41.0) and area.contains_lonlat(-124.5, 42.45)
+    assert not area.contains_lonlat(235.5, 42.7) and not area.contains_lonlat(235.5, 45.0)
+    assert not area.contains_lonlat(230.0, 41.0)
+
+
+def test_region_without_coast_is_a_one_line_error(tmp_path):
+    import dataclasses as dc
+
+    from tsunamifocus.errors import CoastError
+    from tsunamifocus.grid import make_grid
+    from tsunamifocus.studies.run import _segments_for
+
+    lon = np.arange(225.0, 240.0 + 1e-9, 0.1)
+    lat = np.arange(30.0, 50.0 + 1e-9, 0.1)
+    d = make_grid(np.where(lon[None, :] < 235.5, 3000.0, -100.0) * np.ones((lat.size, 1)), lon, lat, "EPSG:4326")
+    p = tmp_path / "s.toml"
+    p.write_text('[bathymetry]\npath = "g.nc"\n[[source]]\nname = "p"\nkind = "point"\nlon = 230\nlat = 40\n'
+                 "[coast]\nregion = [140, 30, 145, 40]\n")
+    sc = parse_scenario(p)
+    with pytest.raises(CoastError, match=r"\[coast\] region \(lon 140\.\.145, lat 30\.\.40\) holds none of the") as ei:
+        _segments_for(d, dc.replace(sc, coast=dc.replace(sc.coast, segment_km=20.0)))
+    assert "\n" not in str(ei.value)

@@ -1144,69 +1144,101 @@ def plot_ranking(
     else:
         rel = np.ones(n, bool)
     ypos = np.arange(n)[::-1]
+    has_int = lo_col in df.columns and hi_col in df.columns if lo_col and hi_col else False
+    lo = pd.to_numeric(df[lo_col], errors="coerce").to_numpy(float) if has_int else np.full(n, np.nan)
+    hi = pd.to_numeric(df[hi_col], errors="coerce").to_numpy(float) if has_int else np.full(n, np.nan)
+    # the axis is set by the reliable bars and their intervals; unreliable values (few rays, often
+    # huge) and unbounded intervals are clipped at the axis edge and marked, not allowed to squash
+    # the reliable ones
+    base = rel if rel.any() else np.ones(n, bool)
+    xmax = float(np.nanmax(vals[base]))
+    if has_int:
+        hb = hi[base & np.isfinite(hi)]
+        if hb.size:
+            xmax = max(xmax, float(np.nanmax(hb)))
+    if not rel.any():  # nothing reliable: bars only (their intervals are noise)
+        xmax = float(np.nanmax(vals))
+    xlim = (xmax * (1.45 if prob_col else 1.14)) if xmax > 0 else 1.0
+    clip_at = xlim / (1.45 if prob_col else 1.14) * 1.04 if xmax > 0 else xlim
+    shown = np.minimum(vals, clip_at)
+    clipped = vals > clip_at
     colors = np.where(rel, _OKABE_BLUE, "#c8c8c8")
-    bars = ax.barh(ypos, vals, height=0.62, color=colors, edgecolor="0.25", linewidth=0.6, zorder=2)
+    bars = ax.barh(ypos, shown, height=0.62, color=colors, edgecolor="0.25", linewidth=0.6, zorder=2)
     for b, ok in zip(bars, rel, strict=True):
         if not ok:
             b.set_hatch("///")
-    has_int = lo_col in df.columns and hi_col in df.columns if lo_col and hi_col else False
-    xmax = np.nanmax(vals)
+    for yv in ypos[clipped]:  # a break mark at the clipped end
+        ax.plot([clip_at], [yv], marker=">", color="0.15", markersize=7, zorder=4, clip_on=False)
+    wclip = np.zeros(n, bool)
     if has_int:
-        lo = pd.to_numeric(df[lo_col], errors="coerce").to_numpy(float)
-        hi = pd.to_numeric(df[hi_col], errors="coerce").to_numpy(float)
-        ok = np.isfinite(lo) & np.isfinite(hi)
+        ok = np.isfinite(lo) & np.isfinite(vals) & ~clipped
+        hi_d = np.where(np.isfinite(hi), hi, np.inf)
+        wclip = ok & (hi_d > clip_at)
+        hi_s = np.minimum(hi_d, clip_at)
         if ok.any():
-            err = np.vstack([np.clip(vals - lo, 0, None), np.clip(hi - vals, 0, None)])
-            ax.errorbar(
-                vals[ok],
-                ypos[ok],
-                xerr=err[:, ok],
-                fmt="none",
-                ecolor="black",
-                elinewidth=1.1,
-                capsize=3.5,
-                zorder=3,
-            )
-            xmax = max(xmax, np.nanmax(hi[ok]))
-    ends = vals.copy()
-    if has_int:
-        ends = np.where(np.isfinite(hi), np.maximum(vals, hi), vals)
-    span = xmax if xmax > 0 else 1.0
+            err = np.vstack([np.clip(vals - lo, 0, None), np.clip(hi_s - vals, 0, None)])
+            ax.errorbar(vals[ok & ~wclip], ypos[ok & ~wclip], xerr=err[:, ok & ~wclip], fmt="none",
+                        ecolor="black", elinewidth=1.1, capsize=3.5, zorder=3)
+            if wclip.any():  # whiskers running off the axis: no cap, an arrow head at the edge
+                ax.errorbar(vals[wclip], ypos[wclip], xerr=err[:, wclip], fmt="none", ecolor="black",
+                            elinewidth=1.1, capsize=0, zorder=3)
+                for yv in ypos[wclip]:
+                    ax.plot([clip_at], [yv], marker=">", color="black", markersize=5, zorder=4, clip_on=False)
+    ends = np.where(has_int & np.isfinite(hi), np.maximum(shown, np.minimum(hi, clip_at)), shown)
+    span = xlim
     if prob_col is not None and prob_col not in df.columns:
         raise InputError(f"plot_ranking: prob_col '{prob_col}' is not a column of the segments table")
     probs = pd.to_numeric(df[prob_col], errors="coerce").to_numpy(float) if prob_col else np.full(n, np.nan)
-    for yv, v, e_, pr in zip(ypos, vals, ends, probs, strict=True):
+    for yv, v, e_, pr, cl in zip(ypos, vals, ends, probs, clipped | wclip, strict=True):
         txt = f"{v:.3g}" + (f"   P(top {top_k}) = {pr:.2f}" if np.isfinite(pr) else "")
-        ax.text(e_ + 0.015 * span, yv, txt, va="center", ha="left", fontsize=8, color="0.15", zorder=4)
-    labels = [_bar_label(row["segment_id"], row.get("name", ""), row["_rank"]) for _, row in df.iterrows()]
+        if cl and v > clip_at:  # bar off scale: its value inside the bar, left of the edge
+            ax.text(clip_at - 0.03 * span, yv, txt + " (off scale)", va="center", ha="right", fontsize=8,
+                    color="0.1", zorder=5, bbox={"facecolor": "white", "edgecolor": "none", "alpha": 0.85, "pad": 1.0})
+        elif cl:  # only the whisker runs off scale: the value just above the bar's end
+            ax.text(v + 0.015 * span, yv + 0.34, txt, va="bottom", ha="left", fontsize=8, color="0.15", zorder=4)
+        else:
+            ax.text(e_ + 0.015 * span, yv, txt, va="center", ha="left", fontsize=8, color="0.15", zorder=4)
+    labels = [_bar_label(row["segment_id"], row.get("name", ""), row["_rank"] if ok_ else None,
+                         row.get("lat_mid"), row.get("lon_mid"))
+              for ok_, (_, row) in zip(rel, df.iterrows(), strict=True)]
     ax.set_yticks(ypos)
     ax.set_yticklabels(labels)
     ax.set_ylim(-0.7, n - 0.3)
-    ax.set_xlim(0, (xmax * (1.45 if prob_col else 1.14)) if xmax > 0 else 1.0)
+    ax.set_xlim(0, xlim)
     ax.set_xlabel(xlabel or label_d)
     ax.grid(True, axis="x", color="0.85", linewidth=0.6, zorder=0)
     ax.set_axisbelow(True)
-    handles = [Patch(facecolor=_OKABE_BLUE, edgecolor="0.25", label="Reliable")]
+    handles = []
+    if rel.any():
+        handles.append(Patch(facecolor=_OKABE_BLUE, edgecolor="0.25", label="Reliable (ranked)"))
     if (~rel).any():
         handles.append(
-            Patch(facecolor="#c8c8c8", edgecolor="0.25", hatch="///", label="Unreliable (see table)")
+            Patch(facecolor="#c8c8c8", edgecolor="0.25", hatch="///", label="Unreliable, not ranked (see table)")
         )
     if has_int:
         handles.append(
             Line2D([], [], color="black", lw=1.1, marker="|", markersize=8, label="5-95 % interval")
         )
+    if clipped.any() or wclip.any():
+        handles.append(Line2D([], [], color="0.15", lw=0, marker=">", markersize=6, label="Off scale (value printed)"))
     if ref is not None:
         ax.axvline(ref, color=_OKABE_VERMILLION, linestyle="--", linewidth=1.2, zorder=3)
         handles.append(
             Line2D([], [], color=_OKABE_VERMILLION, linestyle="--", lw=1.2, label=f"{ref:g} = no focusing")
         )
-    leg = ax.legend(handles=handles, loc="lower right", framealpha=0.9, fontsize=8)
+    # below the bars, so it never hides a bar or a printed value
+    leg = ax.legend(handles=handles, loc="upper center", bbox_to_anchor=(0.5, -0.16), ncol=min(3, len(handles)),
+                    framealpha=0.9, fontsize=8)
     leg.set_zorder(10)
     return _finish(fig, out_path, ax=ax)
 
 
-def _bar_label(segment_id: Any, name: Any, rank: Any) -> str:
-    """``"1. S0001  Harbour"``; no name part for None/NaN/empty names or a name equal to the id."""
+def _bar_label(segment_id: Any, name: Any, rank: Any, lat: Any = None, lon: Any = None) -> str:
+    """``"1. S0001  Harbour"`` or ``"1. S0001  41.75N 124.20W"``; ``"-"`` instead of a rank when unranked.
+
+    The name is used when there is one (and it differs from the id), else the latitude and
+    longitude of the segment's midpoint when given.
+    """
     sid = str(segment_id)
     nm = name.strip() if isinstance(name, str) else ""
     try:
@@ -1214,8 +1246,17 @@ def _bar_label(segment_id: Any, name: Any, rank: Any) -> str:
     except (TypeError, ValueError):
         rk = math.nan
     rk_s = f"{int(rk)}." if np.isfinite(rk) else "-"
-    lab = f"{rk_s} {sid}" + (f"  {nm}" if nm and nm != sid else "")
-    return lab if len(lab) <= 34 else lab[:33] + "…"
+    where = ""
+    if not (nm and nm != sid):
+        try:
+            la, lo = float(lat), float(lon)
+        except (TypeError, ValueError):
+            la = lo = math.nan
+        if np.isfinite(la) and np.isfinite(lo):
+            lo = ((lo + 180.0) % 360.0) - 180.0
+            where = f"{abs(la):.2f}°{'N' if la >= 0 else 'S'} {abs(lo):.2f}°{'E' if lo >= 0 else 'W'}"
+    lab = f"{rk_s} {sid}" + (f"  {nm}" if nm and nm != sid else (f"  {where}" if where else ""))
+    return lab if len(lab) <= 40 else lab[:39] + "…"
 
 
 # --------------------------------------------------------------------------------------
