@@ -159,7 +159,9 @@ def format_run_summary(result: RunResult) -> str:
             lines.append(_no_reliable_line(f, int(result.scenario.coast.min_rays)))
         else:
             shown = min(5, len(rel))
-            lines.append(f"  top {shown} hotspots by lensing factor (5-95 % interval), of {len(rel)} reliable "
+            n_rel = int(f.segments["reliable"].fillna(False).astype(bool).sum()) if "reliable" in f.segments \
+                else len(f.segments)
+            lines.append(f"  top {shown} hotspots by lensing factor (5-95 % interval), of {n_rel} reliable "
                          f"among {len(f.segments)} segments:")
         edge_km = 2.0 * float(np.nanmedian(seg_sigma_km(f.segments))) if len(f.segments) else 0.0
         for _, r in rel.head(min(5, len(rel))).iterrows():
