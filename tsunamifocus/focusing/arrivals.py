@@ -239,28 +239,8 @@ def segment_arrivals(
     end = result.end
     if max_distance_m is None:
         max_distance_m = _default_max_distance(segments, depth, info, float(end.attrs.get("stop_depth_m", np.nan)))
-    reason = np.asarray(end["reason"].values)
-    coast = reason == REASON_COAST
-    stop_depth_m = float(end.attrs.get("stop_depth_m", np.nan))
-    if not coast.any():
-        counts = {REASON_MEANINGS.get(int(c), str(c)): int((reason == c).sum()) for c in np.unique(reason)}
-        raise CoastError(
-            f"no ray reached the stop isobath ({stop_depth_m:g} m); ray ends: {counts}. Lower stop_depth_m, "
-            f"raise max_time_s, widen the grid or aim the source at the coast - no ranking can be made"
-        )
+    idx, coast = _assign_coast_rays(segments, info, end, max_distance_m)
     nseg = len(segments)
-    x = np.asarray(end["x"].values, dtype=float)
-    y = np.asarray(end["y"].values, dtype=float)
-    idx = np.full(x.size, -1, dtype=np.int64)
-    ci = np.flatnonzero(coast)
-    idx_c, _ = _assign(segments, info, x[ci], y[ci], max_distance_m)
-    idx[ci] = idx_c
-    if not (idx >= 0).any():
-        raise CoastError(
-            f"{ci.size} rays reached the stop isobath but none within max_distance_m="
-            f"{max_distance_m:.0f} m of a coastline segment: raise max_distance_m or use a "
-            f"coastline nearer the stop isobath (e.g. coastline_from_grid(depth, {stop_depth_m:g}))"
-        )
     agg = _per_segment(end, idx, nseg)
     length = segments["length_m"].to_numpy(float)
     out = segments.copy()
@@ -275,41 +255,114 @@ def segment_arrivals(
     out["incidence_deg"] = inc
     rng = np.random.default_rng(seed)
     boot = _boot_energy(end, idx, nseg, n_boot, rng) / length
+    ref_energy = None
     if ref_result is not None:
-        rend = ref_result.end
-        rreason = np.asarray(rend["reason"].values)
-        ridx = np.full(rend.sizes["ray"], -1, dtype=np.int64)
-        rci = np.flatnonzero(rreason == REASON_COAST)
-        if rci.size:
-            ridx[rci], _ = _assign(segments, info, np.asarray(rend["x"].values, float)[rci],
-                                   np.asarray(rend["y"].values, float)[rci], max_distance_m)
-        ragg = _per_segment(rend, ridx, nseg)
-        rw = np.asarray(rend["weight"].values, float)
-        ref_coast_e = float(rw[rci].sum())
-        ref_unassigned = float(rw[rci][ridx[rci] < 0].sum())
-        out["ref_n_rays"] = ragg["n"].astype(np.int64)
-        out["ref_energy_per_m"] = ragg["e"] / length
-        rboot = _boot_energy(rend, ridx, nseg, n_boot, rng) / length
-        with np.errstate(invalid="ignore", divide="ignore"):
-            lf = np.where(ragg["e"] > 0, agg["e"] / np.where(ragg["e"] > 0, ragg["e"], 1.0), np.nan)
-            lf = np.where((agg["n"] == 0) & (ragg["n"] == 0), np.nan, lf)
-            lb = np.where(rboot > 0, boot / np.where(rboot > 0, rboot, 1.0), np.inf)
-            lb = np.where((boot == 0) & (rboot == 0), np.nan, lb)
-        out["lensing_factor"] = lf
-        lo = _pct(np.where(np.isinf(lb), 1e300, lb), 5) if n_boot else np.full(nseg, np.nan)
-        hi = _pct(np.where(np.isinf(lb), 1e300, lb), 95) if n_boot else np.full(nseg, np.nan)
-        lo = np.where(lo >= 1e299, np.inf, lo)
-        hi = np.where(hi >= 1e299, np.inf, hi)
-        nodata = (agg["n"] == 0) & (ragg["n"] == 0)
-        out["lensing_lo"] = np.where(nodata, np.nan, lo)
-        out["lensing_hi"] = np.where(nodata, np.nan, hi)
+        ref_energy = _lensing_columns(out, segments, info, ref_result.end, agg, boot, n_boot, rng, max_distance_m)
     else:
         out["ref_n_rays"] = pd.array([pd.NA] * nseg, dtype="Int64")
         out["ref_energy_per_m"] = np.nan
         out["lensing_factor"] = np.nan
         out["lensing_lo"] = np.nan
         out["lensing_hi"] = np.nan
-    # indicative amplitudes -------------------------------------------------------------
+    c_stop = _amplitude_columns(out, agg, inc, boot, n_boot, period_s, rho, gravity, max_incidence_deg)
+    out["fresnel_sigma_m"] = _fresnel_sigma_at_segments(out, info, end, c_stop, period_s)
+    rel = agg["n"] >= int(min_rays)
+    if ref_result is not None:
+        rel &= out["ref_n_rays"].to_numpy(np.int64) >= int(min_rays)
+    out["reliable"] = rel
+    out = _add_ranks(out, ref_result is not None)
+    out.attrs.update(
+        {
+            "cautions": caution_summary(),
+            "n_rays_total": int(idx.size),
+            "n_rays_coast": int(coast.sum()),
+            "n_rays_assigned": int((idx >= 0).sum()),
+            "energy_assigned_J": float(agg["e"].sum()),
+            "energy_coast_unassigned_J": float(np.asarray(end["weight"].values, float)[coast & (idx < 0)].sum()),
+            "max_distance_m": float(max_distance_m),
+            "min_rays": int(min_rays),
+            "n_boot": int(n_boot),
+            "seed": int(seed),
+            "period_s": float(period_s),
+            "amplitude_method": "a_stop = sqrt(2 E_w / (rho g c_stop T)), E_w = energy_per_m / cos(incidence); "
+            "a_1m = a_stop (h_stop / 1 m)^(1/4) (Green's law) - indicative",
+            "interval_method": f"5-95 % Poisson bootstrap over rays, {n_boot} replicates, seed {seed}",
+        }
+    )
+    if ref_energy is not None:
+        out.attrs["ref_energy_coast_J"], out.attrs["ref_energy_coast_unassigned_J"] = ref_energy
+    _warn_on_coverage(out, end, coast, agg, ref_energy, min_rays, max_distance_m)
+    return out
+
+
+def _assign_coast_rays(segments: pd.DataFrame, info: GridInfo, end: xr.Dataset,
+                       max_distance_m: float) -> tuple[np.ndarray, np.ndarray]:
+    """Segment index of every ray that ended on the stop isobath within reach (-1 otherwise), and that mask."""
+    reason = np.asarray(end["reason"].values)
+    coast = reason == REASON_COAST
+    stop_depth_m = float(end.attrs.get("stop_depth_m", np.nan))
+    if not coast.any():
+        counts = {REASON_MEANINGS.get(int(c), str(c)): int((reason == c).sum()) for c in np.unique(reason)}
+        raise CoastError(
+            f"no ray reached the stop isobath ({stop_depth_m:g} m); ray ends: {counts}. Lower stop_depth_m, "
+            f"raise max_time_s, widen the grid or aim the source at the coast - no ranking can be made"
+        )
+    x = np.asarray(end["x"].values, dtype=float)
+    y = np.asarray(end["y"].values, dtype=float)
+    idx = np.full(x.size, -1, dtype=np.int64)
+    ci = np.flatnonzero(coast)
+    idx_c, _ = _assign(segments, info, x[ci], y[ci], max_distance_m)
+    idx[ci] = idx_c
+    if not (idx >= 0).any():
+        raise CoastError(
+            f"{ci.size} rays reached the stop isobath but none within max_distance_m="
+            f"{max_distance_m:.0f} m of a coastline segment: raise max_distance_m or use a "
+            f"coastline nearer the stop isobath (e.g. coastline_from_grid(depth, {stop_depth_m:g}))"
+        )
+    return idx, coast
+
+
+def _lensing_columns(out: pd.DataFrame, segments: pd.DataFrame, info: GridInfo, rend: xr.Dataset, agg: dict,
+                     boot: np.ndarray, n_boot: int, rng: np.random.Generator,
+                     max_distance_m: float) -> tuple[float, float]:
+    """Reference-run columns and the lensing factor with its bootstrap interval (in place).
+
+    Returns the reference run's energy reaching the stop isobath and the part of it left unassigned [J].
+    """
+    nseg = len(segments)
+    length = segments["length_m"].to_numpy(float)
+    rreason = np.asarray(rend["reason"].values)
+    ridx = np.full(rend.sizes["ray"], -1, dtype=np.int64)
+    rci = np.flatnonzero(rreason == REASON_COAST)
+    if rci.size:
+        ridx[rci], _ = _assign(segments, info, np.asarray(rend["x"].values, float)[rci],
+                               np.asarray(rend["y"].values, float)[rci], max_distance_m)
+    ragg = _per_segment(rend, ridx, nseg)
+    rw = np.asarray(rend["weight"].values, float)
+    ref_coast_e = float(rw[rci].sum())
+    ref_unassigned = float(rw[rci][ridx[rci] < 0].sum())
+    out["ref_n_rays"] = ragg["n"].astype(np.int64)
+    out["ref_energy_per_m"] = ragg["e"] / length
+    rboot = _boot_energy(rend, ridx, nseg, n_boot, rng) / length
+    with np.errstate(invalid="ignore", divide="ignore"):
+        lf = np.where(ragg["e"] > 0, agg["e"] / np.where(ragg["e"] > 0, ragg["e"], 1.0), np.nan)
+        lf = np.where((agg["n"] == 0) & (ragg["n"] == 0), np.nan, lf)
+        lb = np.where(rboot > 0, boot / np.where(rboot > 0, rboot, 1.0), np.inf)
+        lb = np.where((boot == 0) & (rboot == 0), np.nan, lb)
+    out["lensing_factor"] = lf
+    lo = _pct(np.where(np.isinf(lb), 1e300, lb), 5) if n_boot else np.full(nseg, np.nan)
+    hi = _pct(np.where(np.isinf(lb), 1e300, lb), 95) if n_boot else np.full(nseg, np.nan)
+    lo = np.where(lo >= 1e299, np.inf, lo)
+    hi = np.where(hi >= 1e299, np.inf, hi)
+    nodata = (agg["n"] == 0) & (ragg["n"] == 0)
+    out["lensing_lo"] = np.where(nodata, np.nan, lo)
+    out["lensing_hi"] = np.where(nodata, np.nan, hi)
+    return ref_coast_e, ref_unassigned
+
+
+def _amplitude_columns(out: pd.DataFrame, agg: dict, inc: np.ndarray, boot: np.ndarray, n_boot: int,
+                       period_s: float, rho: float, gravity: float, max_incidence_deg: float) -> np.ndarray:
+    """Indicative amplitudes at the stop isobath and at 1 m depth with intervals (in place); returns c_stop."""
     cos_inc = np.cos(np.radians(np.minimum(inc, max_incidence_deg)))
     with np.errstate(invalid="ignore", divide="ignore"):
         ew = out["energy_per_m"].to_numpy(float) / cos_inc
@@ -327,40 +380,25 @@ def segment_arrivals(
         out["amp_lo"] = out["amp_hi"] = np.nan
     out["c_stop_m_s"] = c_stop
     out["h_stop_m"] = agg["h"]
-    # regularisation width at the segment: first Fresnel zone radius sqrt(lambda L)/2 with the
-    # wavelength at the stop isobath and L the distance from the nearest launch point
+    return c_stop
+
+
+def _fresnel_sigma_at_segments(out: pd.DataFrame, info: GridInfo, end: xr.Dataset, c_stop: np.ndarray,
+                               period_s: float) -> np.ndarray:
+    """Regularisation width at each segment: first Fresnel zone radius sqrt(lambda L) / 2, with the
+    wavelength at the stop isobath and L the distance from the nearest launch point."""
     lp = np.unique(np.round(_to_xyz(info, end["launch_x"].values, end["launch_y"].values), 3), axis=0)
     dseg, _ = cKDTree(lp).query(_to_xyz(info, out["x_mid"].to_numpy(float), out["y_mid"].to_numpy(float)))
     if info.geographic:
         dseg = 2 * info.radius_m * np.arcsin(np.clip(dseg / (2 * info.radius_m), 0, 1))
-    out["fresnel_sigma_m"] = 0.5 * np.sqrt(c_stop * period_s * dseg)
-    rel = agg["n"] >= int(min_rays)
-    if ref_result is not None:
-        rel &= out["ref_n_rays"].to_numpy(np.int64) >= int(min_rays)
-    out["reliable"] = rel
-    out = _add_ranks(out, ref_result is not None)
-    n_assigned = int((idx >= 0).sum())
-    out.attrs.update(
-        {
-            "cautions": caution_summary(),
-            "n_rays_total": int(x.size),
-            "n_rays_coast": int(ci.size),
-            "n_rays_assigned": n_assigned,
-            "energy_assigned_J": float(agg["e"].sum()),
-            "energy_coast_unassigned_J": float(np.asarray(end["weight"].values, float)[coast & (idx < 0)].sum()),
-            "max_distance_m": float(max_distance_m),
-            "min_rays": int(min_rays),
-            "n_boot": int(n_boot),
-            "seed": int(seed),
-            "period_s": float(period_s),
-            "amplitude_method": "a_stop = sqrt(2 E_w / (rho g c_stop T)), E_w = energy_per_m / cos(incidence); "
-            "a_1m = a_stop (h_stop / 1 m)^(1/4) (Green's law) - indicative",
-            "interval_method": f"5-95 % Poisson bootstrap over rays, {n_boot} replicates, seed {seed}",
-        }
-    )
-    if ref_result is not None:
-        out.attrs["ref_energy_coast_J"] = ref_coast_e
-        out.attrs["ref_energy_coast_unassigned_J"] = ref_unassigned
+    return 0.5 * np.sqrt(c_stop * period_s * dseg)
+
+
+def _warn_on_coverage(out: pd.DataFrame, end: xr.Dataset, coast: np.ndarray, agg: dict,
+                      ref_energy: tuple[float, float] | None, min_rays: int, max_distance_m: float) -> None:
+    """Warn (at the caller of segment_arrivals) when much energy is unassigned or no segment is reliable."""
+    if ref_energy is not None:
+        ref_coast_e, ref_unassigned = ref_energy
         if ref_coast_e > 0 and ref_unassigned > 0.25 * ref_coast_e:
             warnings.warn(
                 f"{100 * ref_unassigned / ref_coast_e:.0f} % of the reference run's coastal energy ends farther "
@@ -368,7 +406,7 @@ def segment_arrivals(
                 "isobath): lensing factors near the coast are biased high; raise max_distance_m or use a "
                 "larger stop depth",
                 ResolutionWarning,
-                stacklevel=2,
+                stacklevel=3,
             )
     e_coast = float(np.asarray(end["weight"].values, float)[coast].sum())
     if e_coast > 0 and out.attrs["energy_coast_unassigned_J"] > 0.5 * e_coast:
@@ -377,15 +415,14 @@ def segment_arrivals(
             f"isobath lies farther than max_distance_m={max_distance_m:.0f} m from every segment: raise "
             "max_distance_m if the coastline lies inshore of the stop isobath, or segment the whole coast",
             ResolutionWarning,
-            stacklevel=2,
+            stacklevel=3,
         )
-    if not rel.any():
+    if not out["reliable"].to_numpy(bool).any():
         warnings.warn(
             f"no coastline segment has >= {min_rays} contributing rays"
-            + (" in both runs" if ref_result is not None else "")
-            + f" ({n_assigned} rays on {int((agg['n'] > 0).sum())} segments): rankings are unreliable; "
-            "trace more rays or use longer segments",
+            + (" in both runs" if ref_energy is not None else "")
+            + f" ({out.attrs['n_rays_assigned']} rays on {int((agg['n'] > 0).sum())} segments): rankings are "
+            "unreliable; trace more rays or use longer segments",
             ResolutionWarning,
-            stacklevel=2,
+            stacklevel=3,
         )
-    return out

@@ -533,7 +533,6 @@ def write_segments(
     * CSV: no geometry (unless ``csv_wkt``); leading ``#`` comment lines carry the caution
       (read with ``pandas.read_csv(path, comment="#")``).
     """
-    import pyogrio.raw
     import shapely
 
     table = _check_table(table, "write_segments")
@@ -558,55 +557,14 @@ def write_segments(
     if "gpkg" in formats:
         p = stem.with_name(stem.name + ".gpkg")
         with _atomic_file(p) as tmp, _gdal_config(OGR_CURRENT_DATE=_fixed_timestamp()):
-            pyogrio.raw.write(
-                tmp,
-                shapely.to_wkb(geoms),
-                field_data,
-                fields,
-                field_mask=field_mask,
-                geometry_type=_geometry_type(geoms),
-                crs=crs.to_wkt(),
-                driver="GPKG",
-                layer=layer,
-                encoding="UTF-8",
-                layer_metadata={"CAUTION": caution},
-                dataset_metadata={"CAUTION": caution},
-                layer_options={"DESCRIPTION": caution_summary(), "IDENTIFIER": layer},
-            )
+            _write_vector(tmp, geoms, field_data, fields, field_mask, crs.to_wkt(), "GPKG", layer,
+                          layer_metadata={"CAUTION": caution}, dataset_metadata={"CAUTION": caution},
+                          layer_options={"DESCRIPTION": caution_summary(), "IDENTIFIER": layer})
         written["gpkg"] = p
     if "geojson" in formats:
         p = stem.with_name(stem.name + ".geojson")
-        ll = _to_lonlat(geoms, crs)
-        # JSON has no NaN: non-finite numbers become null (masked) instead of being dropped
-        gj_mask = []
-        for i, arr in enumerate(field_data):
-            m = None if field_mask is None else field_mask[i]
-            if np.asarray(arr).dtype.kind == "f":
-                bad = ~np.isfinite(np.asarray(arr, dtype=float))
-                if bad.any():
-                    m = bad if m is None else (np.asarray(m, dtype=bool) | bad)
-            gj_mask.append(m)
-        if all(m is None for m in gj_mask):
-            gj_mask = None
-        with _atomic_file(p) as tmp:
-            pyogrio.raw.write(
-                tmp,
-                shapely.to_wkb(ll),
-                field_data,
-                fields,
-                field_mask=gj_mask,
-                geometry_type=_geometry_type(ll),
-                crs="EPSG:4326",
-                driver="GeoJSON",
-                layer=layer,
-                encoding="UTF-8",
-                layer_options={"RFC7946": "YES", "WRITE_NAME": "YES"},
-            )
-            doc = json.loads(tmp.read_text(encoding="utf-8"))
-            doc.pop("crs", None)
-            out = {"type": doc.pop("type"), "name": doc.pop("name", layer), "caution": caution}
-            out.update(doc)
-            tmp.write_text(json.dumps(out, ensure_ascii=False, allow_nan=False) + "\n", encoding="utf-8")
+        _write_geojson(p, _to_lonlat(geoms, crs), field_data, fields, _json_mask(field_data, field_mask), layer,
+                       caution)
         written["geojson"] = p
     if "csv" in formats:
         p = stem.with_name(stem.name + ".csv")
@@ -616,6 +574,43 @@ def write_segments(
         _write_csv(df, p)
         written["csv"] = p
     return written
+
+
+def _write_vector(path: Path, geoms: np.ndarray, field_data: list, fields: list[str], mask: Any, crs_wkt: str,
+                  driver: str, layer: str, **options: Any) -> None:
+    """One vector layer through pyogrio (WKB geometries, UTF-8 attributes)."""
+    import pyogrio.raw
+    import shapely
+
+    pyogrio.raw.write(path, shapely.to_wkb(geoms), field_data, fields, field_mask=mask,
+                      geometry_type=_geometry_type(geoms), crs=crs_wkt, driver=driver, layer=layer,
+                      encoding="UTF-8", **options)
+
+
+def _json_mask(field_data: list, field_mask: list | None) -> list | None:
+    """JSON has no NaN: non-finite numbers become null (masked) instead of being dropped."""
+    gj_mask = []
+    for i, arr in enumerate(field_data):
+        m = None if field_mask is None else field_mask[i]
+        if np.asarray(arr).dtype.kind == "f":
+            bad = ~np.isfinite(np.asarray(arr, dtype=float))
+            if bad.any():
+                m = bad if m is None else (np.asarray(m, dtype=bool) | bad)
+        gj_mask.append(m)
+    return None if all(m is None for m in gj_mask) else gj_mask
+
+
+def _write_geojson(p: Path, ll: np.ndarray, field_data: list, fields: list[str], mask: list | None, layer: str,
+                   caution: str) -> None:
+    """RFC 7946 GeoJSON in lon/lat with the caution as the top-level foreign member ``caution``."""
+    with _atomic_file(p) as tmp:
+        _write_vector(tmp, ll, field_data, fields, mask, "EPSG:4326", "GeoJSON", layer,
+                      layer_options={"RFC7946": "YES", "WRITE_NAME": "YES"})
+        doc = json.loads(tmp.read_text(encoding="utf-8"))
+        doc.pop("crs", None)
+        out = {"type": doc.pop("type"), "name": doc.pop("name", layer), "caution": caution}
+        out.update(doc)
+        tmp.write_text(json.dumps(out, ensure_ascii=False, allow_nan=False) + "\n", encoding="utf-8")
 
 
 def _write_csv(df: Any, path: Path) -> None:

@@ -35,6 +35,7 @@ import numpy as np
 import pandas as pd
 import xarray as xr
 from matplotlib import colors as mcolors
+from matplotlib.cm import ScalarMappable
 from matplotlib import patheffects
 from matplotlib.collections import LineCollection
 from matplotlib.figure import Figure
@@ -718,66 +719,12 @@ def plot_ray_field(
     if energy is None and paths is None:
         raise InputError("plot_ray_field: give an energy grid or ray paths (both are None)")
     fig, ax, geo = _new_map(info, title)
-    d = _values(depth)
-    sea = np.where(np.isfinite(d) & (d > 0), d, np.nan)
-    dmax = float(np.nanmax(sea)) if np.isfinite(sea).any() else 1.0
-    bathy_cmap = mcolors.LinearSegmentedColormap.from_list("bathy_greys", ["#f2f2f2", "#8a8a8a"])
-    im = ax.imshow(
-        sea,
-        origin="lower",
-        extent=_extent(info),
-        cmap=bathy_cmap,
-        vmin=0.0,
-        vmax=dmax,
-        interpolation="nearest",
-        zorder=1,
-    )
-    has_land, has_nodata = _land_and_nodata(ax, depth, info)
-    _coast_contour(ax, depth, info)
-    handles = _land_legend_handles(has_land, has_nodata)
+    im = _depth_backdrop(ax, depth, info)
+    handles = _land_and_coast(ax, depth, info)
     n_right = 0
-    if energy is not None:
-        einfo = _check_grid(energy, "plot_ray_field energy")
-        _same_kind(info, einfo, "plot_ray_field energy")
-        e = _values(energy)
-        pos = _finite_pos(e)
-        if pos.size:
-            vmax = float(np.percentile(pos, 99.5))
-            vmin = max(float(np.percentile(pos, 5.0)), vmax * 1e-4)
-            if not vmax > vmin:
-                vmin = vmax / 10.0
-            norm = mcolors.LogNorm(vmin=vmin, vmax=vmax, clip=True)
-            cmap = _cmap("magma_r")
-            with np.errstate(invalid="ignore", divide="ignore"):
-                t = np.where(np.isfinite(e) & (e > 0), norm(np.where(e > 0, e, vmin)), 0.0)
-            t = np.clip(np.ma.filled(t, 0.0), 0.0, 1.0)
-            rgba = cmap(t)
-            rgba[..., 3] = np.where(np.isfinite(e) & (e > 0), 0.15 + 0.85 * t**0.8, 0.0)
-            ax.imshow(rgba, origin="lower", extent=_extent(einfo), interpolation="nearest", zorder=3)
-            from matplotlib.cm import ScalarMappable
-
-            sm = ScalarMappable(norm=norm, cmap=cmap)
-            cb = _right_colorbar(fig, ax, sm, extend="both")
-            cb.set_label("Ray energy per unit wavefront width\n(J m$^{-1}$, log scale)")
-            n_right += 1
-    lines = _normalize_paths(paths)
-    if lines:
-        if len(lines) > max_paths:
-            keep = np.linspace(0, len(lines) - 1, max_paths).round().astype(int)
-            lines = [lines[i] for i in keep]
-        segs = []
-        for a in lines:
-            if info.geographic:  # paths carry longitudes unwrapped along the ray
-                a = np.column_stack([info.wrap_lon(a[:, 0]), a[:, 1]])
-            segs.extend(_split_wrap(a, info.geographic))
-        color = _OKABE_BLUE if energy is not None else "#1b3a5c"
-        # fainter lines when there are many, so the energy branches stay visible
-        alpha = float(np.clip(6.0 / math.sqrt(len(lines)), 0.12, 0.5)) * (0.8 if energy is not None else 1.0)
-        lw = 0.45 if len(lines) <= 300 else 0.35
-        ax.add_collection(LineCollection(segs, colors=color, linewidths=lw, alpha=alpha, zorder=4))
-        handles.append(
-            Line2D([], [], color=color, lw=1.0, alpha=0.8, label=f"Ray paths ({len(lines)} shown)")
-        )
+    if energy is not None and _energy_overlay(fig, ax, energy, info):
+        n_right += 1
+    handles += _ray_paths(ax, paths, info, max_paths, faint=energy is not None)
     if coast_lines is not None and _draw_lines(
         ax, coast_lines, info.geographic, colors="black", linewidths=0.9, zorder=7
     ):
@@ -795,6 +742,80 @@ def plot_ray_field(
     cbd = fig.colorbar(im, ax=ax, shrink=0.55, pad=0.01, location="bottom", aspect=35)
     cbd.set_label("Water depth (m)")
     return _finish(fig, out_path, ax=ax, geo=geo, handles=handles, right_cbars=n_right, bottom_cbars=1)
+
+def _depth_backdrop(ax, depth: xr.DataArray, info: GridInfo):
+    """Sea depths in light greys (the image, for the depth colour bar)."""
+    d = _values(depth)
+    sea = np.where(np.isfinite(d) & (d > 0), d, np.nan)
+    dmax = float(np.nanmax(sea)) if np.isfinite(sea).any() else 1.0
+    bathy_cmap = mcolors.LinearSegmentedColormap.from_list("bathy_greys", ["#f2f2f2", "#8a8a8a"])
+    return ax.imshow(
+        sea,
+        origin="lower",
+        extent=_extent(info),
+        cmap=bathy_cmap,
+        vmin=0.0,
+        vmax=dmax,
+        interpolation="nearest",
+        zorder=1,
+    )
+
+
+def _land_and_coast(ax, depth: xr.DataArray, info: GridInfo) -> list:
+    """Land and no-data cells, the coast contour; their legend entries."""
+    has_land, has_nodata = _land_and_nodata(ax, depth, info)
+    _coast_contour(ax, depth, info)
+    return _land_legend_handles(has_land, has_nodata)
+
+
+def _energy_overlay(fig, ax, energy: xr.DataArray, info: GridInfo) -> bool:
+    """Ray energy on a log scale, opacity rising with the value, and its colour bar; False if empty."""
+    einfo = _check_grid(energy, "plot_ray_field energy")
+    _same_kind(info, einfo, "plot_ray_field energy")
+    e = _values(energy)
+    pos = _finite_pos(e)
+    if pos.size:
+        vmax = float(np.percentile(pos, 99.5))
+        vmin = max(float(np.percentile(pos, 5.0)), vmax * 1e-4)
+        if not vmax > vmin:
+            vmin = vmax / 10.0
+        norm = mcolors.LogNorm(vmin=vmin, vmax=vmax, clip=True)
+        cmap = _cmap("magma_r")
+        with np.errstate(invalid="ignore", divide="ignore"):
+            t = np.where(np.isfinite(e) & (e > 0), norm(np.where(e > 0, e, vmin)), 0.0)
+        t = np.clip(np.ma.filled(t, 0.0), 0.0, 1.0)
+        rgba = cmap(t)
+        rgba[..., 3] = np.where(np.isfinite(e) & (e > 0), 0.15 + 0.85 * t**0.8, 0.0)
+        ax.imshow(rgba, origin="lower", extent=_extent(einfo), interpolation="nearest", zorder=3)
+        sm = ScalarMappable(norm=norm, cmap=cmap)
+        cb = _right_colorbar(fig, ax, sm, extend="both")
+        cb.set_label("Ray energy per unit wavefront width\n(J m$^{-1}$, log scale)")
+        return True
+    return False
+
+
+def _ray_paths(ax, paths: Any, info: GridInfo, max_paths: int, *, faint: bool) -> list:
+    """At most ``max_paths`` ray paths (evenly chosen), fainter over an energy map; their legend entry."""
+    handles: list = []
+    lines = _normalize_paths(paths)
+    if lines:
+        if len(lines) > max_paths:
+            keep = np.linspace(0, len(lines) - 1, max_paths).round().astype(int)
+            lines = [lines[i] for i in keep]
+        segs = []
+        for a in lines:
+            if info.geographic:  # paths carry longitudes unwrapped along the ray
+                a = np.column_stack([info.wrap_lon(a[:, 0]), a[:, 1]])
+            segs.extend(_split_wrap(a, info.geographic))
+        color = _OKABE_BLUE if faint else "#1b3a5c"
+        # fainter lines when there are many, so the energy branches stay visible
+        alpha = float(np.clip(6.0 / math.sqrt(len(lines)), 0.12, 0.5)) * (0.8 if faint else 1.0)
+        lw = 0.45 if len(lines) <= 300 else 0.35
+        ax.add_collection(LineCollection(segs, colors=color, linewidths=lw, alpha=alpha, zorder=4))
+        handles.append(
+            Line2D([], [], color=color, lw=1.0, alpha=0.8, label=f"Ray paths ({len(lines)} shown)")
+        )
+    return handles
 
 
 def _cmap(name: str):
@@ -915,20 +936,41 @@ def plot_lensing_map(
         raise InputError(f"plot_lensing_map: top_k must be >= 0, got {top_k}")
     fig, ax, geo = _new_map(info, title)
     lf = _values(lensing_factor)
-    seg_vals = []
+    seg_vals = None
     if segments is not None:
         _check_segments(segments, ["geometry", "lensing_factor"], "plot_lensing_map")
-        seg_vals.append(pd.to_numeric(segments["lensing_factor"], errors="coerce").to_numpy(float))
-    # colour range: the raster's 2-98 % and most segment values (the few strongest segments may
-    # saturate at the ends of the scale, which the colour bar's arrows show; ranks are labelled)
+        seg_vals = pd.to_numeric(segments["lensing_factor"], errors="coerce").to_numpy(float)
+    r = _lensing_range(lf, seg_vals)
+    norm = mcolors.LogNorm(vmin=1.0 / r, vmax=r, clip=False)
+    cmap = _cmap("PuOr_r").with_extremes(bad=(0.0, 0.0, 0.0, 0.0))
+    handles = _lensing_raster(fig, ax, lf, linfo, depth, info, cmap, norm, r)
+    if travel_time_min is not None:
+        handles += _travel_time_contours(ax, travel_time_min, info, contour_step_min)
+    if source_outline is not None and _draw_lines(
+        ax, source_outline, info.geographic, colors=_OKABE_GREEN, linewidths=1.8, zorder=8, path_effects=_HALO
+    ):
+        handles.append(Line2D([], [], color=_OKABE_GREEN, lw=1.8, label="Fault outline"))
+    if segments is not None and len(segments):
+        handles += _coloured_segments(ax, segments, seg_vals, info, cmap, norm, r)
+        if top_k > 0:
+            handles += _rank_labels(ax, segments, top_k, info)
+    return _finish(fig, out_path, ax=ax, geo=geo, handles=handles, right_cbars=1)
+
+
+def _lensing_range(lf: np.ndarray, seg_vals: np.ndarray | None) -> float:
+    """Colour range r (scale 1/r .. r): the raster's 2-98 % and most segment values (the few strongest
+    segments may saturate at the ends of the scale, which the colour bar's arrows show; ranks are labelled)."""
     r = _symmetric_log_range([lf])
-    for sv in seg_vals:
+    for sv in [] if seg_vals is None else [seg_vals]:
         pos = _finite_pos(sv)
         if pos.size:
             m = float(np.percentile(np.abs(np.log10(pos)), 75.0))
             r = max(r, _symmetric_log_range([np.array([10.0**m])]))
-    norm = mcolors.LogNorm(vmin=1.0 / r, vmax=r, clip=False)
-    cmap = _cmap("PuOr_r").with_extremes(bad=(0.0, 0.0, 0.0, 0.0))
+    return r
+
+
+def _lensing_raster(fig, ax, lf, linfo, depth, info, cmap, norm, r) -> list:
+    """The lensing-factor raster over a 'no rays' background, land, coast and the log colour bar."""
     lf_plot = np.where(np.isfinite(lf) & (lf > 0), lf, np.nan)
     ax.add_patch(Rectangle((0, 0), 1, 1, transform=ax.transAxes, facecolor="0.93", zorder=0))
     im = ax.imshow(
@@ -940,9 +982,7 @@ def plot_lensing_map(
         interpolation="nearest",
         zorder=1,
     )
-    has_land, has_nodata = _land_and_nodata(ax, depth, info)
-    _coast_contour(ax, depth, info)
-    handles = _land_legend_handles(has_land, has_nodata)
+    handles = _land_and_coast(ax, depth, info)
     handles.append(Patch(facecolor="0.93", edgecolor="0.3", linewidth=0.5, label="No rays"))
     cb = _right_colorbar(fig, ax, im, extend="both")
     ticks = _log_ticks(r)
@@ -950,113 +990,121 @@ def plot_lensing_map(
     cb.ax.yaxis.set_major_formatter(FuncFormatter(lambda v, _: _tick_label(v)))
     cb.ax.yaxis.set_minor_formatter(NullFormatter())
     cb.set_label("Lensing factor (-), log scale\n1 = no focusing")
+    return handles
 
-    if travel_time_min is not None:
-        tinfo = _check_grid(travel_time_min, "plot_lensing_map travel_time_min")
-        _same_kind(info, tinfo, "plot_lensing_map travel_time_min")
-        t = _contour_ready(_values(travel_time_min))
-        if np.isfinite(t).sum() > 3:
-            tmax = float(np.nanmax(t))
-            tmin = float(np.nanmin(t))
-            step = contour_step_min or _nice_time_step(tmax - max(tmin, 0.0))
-            levels = np.arange(math.ceil(max(tmin, 0.0) / step) * step, tmax + 1e-9, step)
-            levels = levels[levels > 0]
-            if levels.size:
-                xd, yd = travel_time_min.dims[1], travel_time_min.dims[0]
-                cs = ax.contour(
-                    travel_time_min[xd].values,
-                    travel_time_min[yd].values,
-                    t,
-                    levels=levels,
-                    colors="0.1",
-                    linewidths=0.7,
-                    zorder=5,
-                )
-                labels = ax.clabel(
-                    cs, fmt=lambda v: f"{v:g} min", fontsize=7.5, inline=True, inline_spacing=3
-                )
-                for lab in labels:
-                    lab.set_path_effects(_HALO)
-                handles.append(Line2D([], [], color="0.1", lw=0.8, label=f"Travel time (every {step:g} min)"))
 
-    if source_outline is not None and _draw_lines(
-        ax, source_outline, info.geographic, colors=_OKABE_GREEN, linewidths=1.8, zorder=8, path_effects=_HALO
-    ):
-        handles.append(Line2D([], [], color=_OKABE_GREEN, lw=1.8, label="Fault outline"))
+def _travel_time_contours(ax, travel_time_min: xr.DataArray, info: GridInfo, contour_step_min: float | None) -> list:
+    """Labelled first-arrival contours [min] (about 6-12 unless a step is given); their legend entry."""
+    handles: list = []
+    tinfo = _check_grid(travel_time_min, "plot_lensing_map travel_time_min")
+    _same_kind(info, tinfo, "plot_lensing_map travel_time_min")
+    t = _contour_ready(_values(travel_time_min))
+    if np.isfinite(t).sum() > 3:
+        tmax = float(np.nanmax(t))
+        tmin = float(np.nanmin(t))
+        step = contour_step_min or _nice_time_step(tmax - max(tmin, 0.0))
+        levels = np.arange(math.ceil(max(tmin, 0.0) / step) * step, tmax + 1e-9, step)
+        levels = levels[levels > 0]
+        if levels.size:
+            xd, yd = travel_time_min.dims[1], travel_time_min.dims[0]
+            cs = ax.contour(
+                travel_time_min[xd].values,
+                travel_time_min[yd].values,
+                t,
+                levels=levels,
+                colors="0.1",
+                linewidths=0.7,
+                zorder=5,
+            )
+            labels = ax.clabel(
+                cs, fmt=lambda v: f"{v:g} min", fontsize=7.5, inline=True, inline_spacing=3
+            )
+            for lab in labels:
+                lab.set_path_effects(_HALO)
+            handles.append(Line2D([], [], color="0.1", lw=0.8, label=f"Travel time (every {step:g} min)"))
+    return handles
 
-    if segments is not None and len(segments):
-        segs, cols = [], []
-        for geom, val in zip(segments["geometry"], seg_vals[0], strict=True):
-            for a in _iter_lines(geom):
-                for piece in _split_wrap(a, info.geographic):
-                    segs.append(piece)
-                    cols.append(val)
-        if segs:
-            cols_arr = np.asarray(cols, dtype=float)
-            rgba = cmap(norm(np.where(np.isfinite(cols_arr) & (cols_arr > 0), cols_arr, 1.0)))
-            rgba[~(np.isfinite(cols_arr) & (cols_arr > 0))] = mcolors.to_rgba("0.6")
-            lc = LineCollection(
-                segs,
-                colors=rgba,
-                linewidths=4.0,
-                zorder=9,
+
+def _coloured_segments(ax, segments: pd.DataFrame, seg_vals: np.ndarray, info: GridInfo, cmap, norm, r) -> list:
+    """Coast segments drawn in the colour of their lensing factor (grey without one); their legend entry."""
+    handles: list = []
+    segs, cols = [], []
+    for geom, val in zip(segments["geometry"], seg_vals, strict=True):
+        for a in _iter_lines(geom):
+            for piece in _split_wrap(a, info.geographic):
+                segs.append(piece)
+                cols.append(val)
+    if segs:
+        cols_arr = np.asarray(cols, dtype=float)
+        rgba = cmap(norm(np.where(np.isfinite(cols_arr) & (cols_arr > 0), cols_arr, 1.0)))
+        rgba[~(np.isfinite(cols_arr) & (cols_arr > 0))] = mcolors.to_rgba("0.6")
+        lc = LineCollection(
+            segs,
+            colors=rgba,
+            linewidths=4.0,
+            zorder=9,
+            path_effects=[patheffects.withStroke(linewidth=6.0, foreground="black")],
+            capstyle="butt",
+        )
+        ax.add_collection(lc)
+        handles.append(
+            Line2D(
+                [],
+                [],
+                color=cmap(norm(min(r, 2.0))),
+                lw=4,
                 path_effects=[patheffects.withStroke(linewidth=6.0, foreground="black")],
-                capstyle="butt",
+                label="Coast segment (colour = lensing factor)",
             )
-            ax.add_collection(lc)
-            handles.append(
-                Line2D(
-                    [],
-                    [],
-                    color=cmap(norm(min(r, 2.0))),
-                    lw=4,
-                    path_effects=[patheffects.withStroke(linewidth=6.0, foreground="black")],
-                    label="Coast segment (colour = lensing factor)",
-                )
+        )
+    return handles
+
+
+def _rank_labels(ax, segments: pd.DataFrame, top_k: int, info: GridInfo) -> list:
+    """Numbered circles beside the top-k segments, placed to avoid each other; their legend entry."""
+    handles: list = []
+    ranked = _rank_order(segments, "lensing_factor", "rank_lensing")
+    ranked = ranked[ranked["_rank"].notna() & (ranked["_rank"] <= top_k)].head(top_k)
+    placed: list[tuple[float, float]] = []  # label centres, in points from the axes origin
+    xmin_, xmax_, ymin_, ymax_ = _extent(info)
+    pts_per_unit = 72.0 * (8.0 - 0.9 - 0.95) / max(xmax_ - xmin_, 1e-12)  # see _finish sizing
+    yscale = pts_per_unit * getattr(ax, "_tf_aspect", 1.0)
+    for _, row in ranked.iterrows():
+        xm, ym = _segment_mid(row)
+        if xm is None:
+            continue
+        az = row.get("normal_azimuth_deg", np.nan)
+        az = float(az) if az is not None and np.isfinite(az) else 0.0
+        box = (xmax_ - xmin_) * pts_per_unit, (ymax_ - ymin_) * yscale
+        off = _label_offset(((xm - xmin_) * pts_per_unit, (ym - ymin_) * yscale), az, placed, box=box)
+        ax.annotate(
+            f"{int(row['_rank'])}",
+            xy=(xm, ym),
+            xytext=off,
+            textcoords="offset points",
+            ha="center",
+            va="center",
+            fontsize=8,
+            fontweight="bold",
+            bbox=dict(boxstyle="circle,pad=0.25", facecolor="white", edgecolor="black", lw=0.7),
+            arrowprops=dict(arrowstyle="-", color="black", lw=0.7, shrinkA=0, shrinkB=0),
+            zorder=12,
+            annotation_clip=True,
+        )
+    if len(ranked):
+        handles.append(
+            Line2D(
+                [],
+                [],
+                marker="o",
+                linestyle="none",
+                markerfacecolor="white",
+                markeredgecolor="black",
+                markersize=9,
+                label=f"Rank (top {min(top_k, len(ranked))})",
             )
-        if top_k > 0:
-            ranked = _rank_order(segments, "lensing_factor", "rank_lensing")
-            ranked = ranked[ranked["_rank"].notna() & (ranked["_rank"] <= top_k)].head(top_k)
-            placed: list[tuple[float, float]] = []  # label centres, in points from the axes origin
-            xmin_, xmax_, ymin_, ymax_ = _extent(info)
-            pts_per_unit = 72.0 * (8.0 - 0.9 - 0.95) / max(xmax_ - xmin_, 1e-12)  # see _finish sizing
-            yscale = pts_per_unit * getattr(ax, "_tf_aspect", 1.0)
-            for _, row in ranked.iterrows():
-                xm, ym = _segment_mid(row)
-                if xm is None:
-                    continue
-                az = row.get("normal_azimuth_deg", np.nan)
-                az = float(az) if az is not None and np.isfinite(az) else 0.0
-                box = (xmax_ - xmin_) * pts_per_unit, (ymax_ - ymin_) * yscale
-                off = _label_offset(((xm - xmin_) * pts_per_unit, (ym - ymin_) * yscale), az, placed, box=box)
-                ax.annotate(
-                    f"{int(row['_rank'])}",
-                    xy=(xm, ym),
-                    xytext=off,
-                    textcoords="offset points",
-                    ha="center",
-                    va="center",
-                    fontsize=8,
-                    fontweight="bold",
-                    bbox=dict(boxstyle="circle,pad=0.25", facecolor="white", edgecolor="black", lw=0.7),
-                    arrowprops=dict(arrowstyle="-", color="black", lw=0.7, shrinkA=0, shrinkB=0),
-                    zorder=12,
-                    annotation_clip=True,
-                )
-            if len(ranked):
-                handles.append(
-                    Line2D(
-                        [],
-                        [],
-                        marker="o",
-                        linestyle="none",
-                        markerfacecolor="white",
-                        markeredgecolor="black",
-                        markersize=9,
-                        label=f"Rank (top {min(top_k, len(ranked))})",
-                    )
-                )
-    return _finish(fig, out_path, ax=ax, geo=geo, handles=handles, right_cbars=1)
+        )
+    return handles
 
 
 def _label_offset(
@@ -1177,18 +1225,52 @@ def plot_ranking(
         (7.6, 1.7 + 0.36 * n), title or f"Top {n} coastline segments by {label_d.split(' (')[0].lower()}"
     )
     vals = pd.to_numeric(df[by], errors="coerce").to_numpy(float)
+    ypos = np.arange(n)[::-1]
+    rel = _ranking_bars(ax, df, vals, ypos)
+    has_int, hi, xmax = _ranking_intervals(ax, df, vals, ypos, lo_col, hi_col)
+    ends = vals.copy()
+    if has_int:
+        ends = np.where(np.isfinite(hi), np.maximum(vals, hi), vals)
+    span = xmax if xmax > 0 else 1.0
+    if prob_col is not None and prob_col not in df.columns:
+        raise InputError(f"plot_ranking: prob_col '{prob_col}' is not a column of the segments table")
+    probs = pd.to_numeric(df[prob_col], errors="coerce").to_numpy(float) if prob_col else np.full(n, np.nan)
+    for yv, v, e_, pr in zip(ypos, vals, ends, probs, strict=True):
+        txt = f"{v:.3g}" + (f"   P(top {top_k}) = {pr:.2f}" if np.isfinite(pr) else "")
+        ax.text(e_ + 0.015 * span, yv, txt, va="center", ha="left", fontsize=8, color="0.15", zorder=4)
+    labels = [_bar_label(row["segment_id"], row.get("name", ""), row["_rank"]) for _, row in df.iterrows()]
+    ax.set_yticks(ypos)
+    ax.set_yticklabels(labels)
+    ax.set_ylim(-0.7, n - 0.3)
+    ax.set_xlim(0, (xmax * (1.45 if prob_col else 1.14)) if xmax > 0 else 1.0)
+    ax.set_xlabel(xlabel or label_d)
+    ax.grid(True, axis="x", color="0.85", linewidth=0.6, zorder=0)
+    ax.set_axisbelow(True)
+    _ranking_legend(ax, rel, has_int, ref)
+    return _finish(fig, out_path, ax=ax)
+
+
+def _ranking_bars(ax, df: pd.DataFrame, vals: np.ndarray, ypos: np.ndarray) -> np.ndarray:
+    """Horizontal bars, hatched grey for unreliable segments; the reliability flags."""
+    n = len(df)
     if "reliable" in df.columns:  # missing/unknown reliability counts as unreliable
         rel = np.array(
             [bool(v) if v is not None and v is not pd.NA and v == v else False for v in df["reliable"]]
         )
     else:
         rel = np.ones(n, bool)
-    ypos = np.arange(n)[::-1]
     colors = np.where(rel, _OKABE_BLUE, "#c8c8c8")
     bars = ax.barh(ypos, vals, height=0.62, color=colors, edgecolor="0.25", linewidth=0.6, zorder=2)
     for b, ok in zip(bars, rel, strict=True):
         if not ok:
             b.set_hatch("///")
+    return rel
+
+
+def _ranking_intervals(ax, df: pd.DataFrame, vals: np.ndarray, ypos: np.ndarray, lo_col: str | None,
+                       hi_col: str | None) -> tuple[bool, np.ndarray | None, float]:
+    """5-95 % whiskers where the table has them; (drawn?, upper ends, largest x to show)."""
+    hi = None
     has_int = lo_col in df.columns and hi_col in df.columns if lo_col and hi_col else False
     xmax = np.nanmax(vals)
     if has_int:
@@ -1208,24 +1290,11 @@ def plot_ranking(
                 zorder=3,
             )
             xmax = max(xmax, np.nanmax(hi[ok]))
-    ends = vals.copy()
-    if has_int:
-        ends = np.where(np.isfinite(hi), np.maximum(vals, hi), vals)
-    span = xmax if xmax > 0 else 1.0
-    if prob_col is not None and prob_col not in df.columns:
-        raise InputError(f"plot_ranking: prob_col '{prob_col}' is not a column of the segments table")
-    probs = pd.to_numeric(df[prob_col], errors="coerce").to_numpy(float) if prob_col else np.full(n, np.nan)
-    for yv, v, e_, pr in zip(ypos, vals, ends, probs, strict=True):
-        txt = f"{v:.3g}" + (f"   P(top {top_k}) = {pr:.2f}" if np.isfinite(pr) else "")
-        ax.text(e_ + 0.015 * span, yv, txt, va="center", ha="left", fontsize=8, color="0.15", zorder=4)
-    labels = [_bar_label(row["segment_id"], row.get("name", ""), row["_rank"]) for _, row in df.iterrows()]
-    ax.set_yticks(ypos)
-    ax.set_yticklabels(labels)
-    ax.set_ylim(-0.7, n - 0.3)
-    ax.set_xlim(0, (xmax * (1.45 if prob_col else 1.14)) if xmax > 0 else 1.0)
-    ax.set_xlabel(xlabel or label_d)
-    ax.grid(True, axis="x", color="0.85", linewidth=0.6, zorder=0)
-    ax.set_axisbelow(True)
+    return has_int, hi, xmax
+
+
+def _ranking_legend(ax, rel: np.ndarray, has_int: bool, ref: float | None) -> None:
+    """Legend of the ranking chart (and the no-focusing reference line)."""
     handles = [Patch(facecolor=_OKABE_BLUE, edgecolor="0.25", label="Reliable")]
     if (~rel).any():
         handles.append(
@@ -1242,7 +1311,6 @@ def plot_ranking(
         )
     leg = ax.legend(handles=handles, loc="lower right", framealpha=0.9, fontsize=8)
     leg.set_zorder(10)
-    return _finish(fig, out_path, ax=ax)
 
 
 def _bar_label(segment_id: Any, name: Any, rank: Any) -> str:
@@ -1501,44 +1569,10 @@ def plot_agreement(
         raise InputError("plot_agreement: no finite (and, for log axes, positive) pairs to plot")
     fig, ax = _new_chart((6.4, 6.0), title)
     if top_x is not None and top_y is not None:
-        tx, ty = np.asarray(top_x, dtype=bool), np.asarray(top_y, dtype=bool)
-        hl = tx | ty
-        nx_, ny_ = top_names
-        k = int(max(tx.sum(), ty.sum()))
-        for sel, lab, col, mk, sz, z in (
-            (~hl, "other segments", "0.55", "o", 18, 2),
-            (tx & ~ty, f"top {k} by {nx_} only", _OKABE_VERMILLION, "^", 40, 3),
-            (ty & ~tx, f"top {k} by {ny_} only", _OKABE_SKY, "s", 36, 4),
-            (tx & ty, f"top {k} in both", _OKABE_BLUE, "D", 40, 5),
-        ):
-            if (ok & sel).any():
-                ax.scatter(xa[ok & sel], ya[ok & sel], s=sz, color=col, marker=mk, edgecolor="black", lw=0.4,
-                           label=f"{lab} ({int((ok & sel).sum())})", zorder=z)
+        hl = _scatter_top_sets(ax, xa, ya, ok, top_x, top_y, top_names)
     else:
-        hl = np.zeros_like(ok) if highlight is None else np.asarray(highlight, dtype=bool)
-        ax.scatter(xa[ok & ~hl], ya[ok & ~hl], s=18, color="0.55", edgecolor="none", label="Segments", zorder=2)
-        if (ok & hl).any():
-            ax.scatter(
-                xa[ok & hl],
-                ya[ok & hl],
-                s=36,
-                color=_OKABE_VERMILLION,
-                edgecolor="black",
-                lw=0.5,
-                label="Highlighted",
-                zorder=3,
-            )
-    lo = min(xa[ok].min(), ya[ok].min())
-    hi = max(xa[ok].max(), ya[ok].max())
-    if log:
-        ax.set_xscale("log")
-        ax.set_yscale("log")
-        lo, hi = lo / 1.3, hi * 1.3
-        _plain_log_ticks(ax.xaxis, lo, hi)
-        _plain_log_ticks(ax.yaxis, lo, hi)
-    else:
-        pad = 0.05 * (hi - lo if hi > lo else 1.0)
-        lo, hi = lo - pad, hi + pad
+        hl = _scatter_highlighted(ax, xa, ya, ok, highlight)
+    lo, hi = _one_to_one_limits(ax, xa[ok], ya[ok], log)
     ax.plot([lo, hi], [lo, hi], color="black", linestyle="--", lw=1.0, label="1:1", zorder=1)
     ax.set_xlim(lo, hi)
     ax.set_ylim(lo, hi)
@@ -1560,3 +1594,55 @@ def plot_agreement(
         )
     ax.legend(loc="lower right", fontsize=8)
     return _finish(fig, out_path, ax=ax)
+
+
+def _scatter_top_sets(ax, xa, ya, ok, top_x, top_y, top_names) -> np.ndarray:
+    """Points in both top sets, in one only and in neither, in distinct colours and shapes; the union."""
+    tx, ty = np.asarray(top_x, dtype=bool), np.asarray(top_y, dtype=bool)
+    hl = tx | ty
+    nx_, ny_ = top_names
+    k = int(max(tx.sum(), ty.sum()))
+    for sel, lab, col, mk, sz, z in (
+        (~hl, "other segments", "0.55", "o", 18, 2),
+        (tx & ~ty, f"top {k} by {nx_} only", _OKABE_VERMILLION, "^", 40, 3),
+        (ty & ~tx, f"top {k} by {ny_} only", _OKABE_SKY, "s", 36, 4),
+        (tx & ty, f"top {k} in both", _OKABE_BLUE, "D", 40, 5),
+    ):
+        if (ok & sel).any():
+            ax.scatter(xa[ok & sel], ya[ok & sel], s=sz, color=col, marker=mk, edgecolor="black", lw=0.4,
+                       label=f"{lab} ({int((ok & sel).sum())})", zorder=z)
+    return hl
+
+
+def _scatter_highlighted(ax, xa, ya, ok, highlight) -> np.ndarray:
+    """Grey points, the highlighted ones in vermillion; the highlight mask."""
+    hl = np.zeros_like(ok) if highlight is None else np.asarray(highlight, dtype=bool)
+    ax.scatter(xa[ok & ~hl], ya[ok & ~hl], s=18, color="0.55", edgecolor="none", label="Segments", zorder=2)
+    if (ok & hl).any():
+        ax.scatter(
+            xa[ok & hl],
+            ya[ok & hl],
+            s=36,
+            color=_OKABE_VERMILLION,
+            edgecolor="black",
+            lw=0.5,
+            label="Highlighted",
+            zorder=3,
+        )
+    return hl
+
+
+def _one_to_one_limits(ax, xv: np.ndarray, yv: np.ndarray, log: bool) -> tuple[float, float]:
+    """Shared axis limits around both samples (log axes with plain tick labels, or 5 % padding)."""
+    lo = min(xv.min(), yv.min())
+    hi = max(xv.max(), yv.max())
+    if log:
+        ax.set_xscale("log")
+        ax.set_yscale("log")
+        lo, hi = lo / 1.3, hi * 1.3
+        _plain_log_ticks(ax.xaxis, lo, hi)
+        _plain_log_ticks(ax.yaxis, lo, hi)
+    else:
+        pad = 0.05 * (hi - lo if hi > lo else 1.0)
+        lo, hi = lo - pad, hi + pad
+    return lo, hi

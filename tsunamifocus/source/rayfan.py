@@ -179,6 +179,33 @@ def make_ray_fan(
     lat_mid = float(gi.y[rows].mean()) if gi.geographic else 0.0
     dx_m, dy_m = _metric_spacing(gi, lat_mid)
 
+    fine_az, pattern, centres, weights = _ray_bins(block, dx_m, dy_m, energy, n_rays, azimuth_offset_deg)
+    if strike_deg is None and "strike_deg" in eta.attrs:
+        strike_deg = float(eta.attrs["strike_deg"])
+    x0, y0, ray_side, strike = _launch_points(gi, sig, es, centres, strike_deg, seed)
+    if gi.geographic:
+        x0 = gi.wrap_lon(x0)
+    return RayFan(
+        x0=x0,
+        y0=y0,
+        azimuth_deg=centres,
+        weights=weights,
+        side=ray_side,
+        energy_J=energy,
+        strike_deg=strike,
+        crs_wkt=gi.crs_wkt,
+        pattern_azimuth_deg=fine_az,
+        pattern=pattern,
+        seed=seed,
+    )
+
+def _ray_bins(block: np.ndarray, dx_m: float, dy_m: float, energy: float, n_rays: int,
+              azimuth_offset_deg: float) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """Fine directional pattern of the source and the energy of each ray's azimuth bin.
+
+    Returns the fine azimuths, the normalised pattern on them, the ray azimuths (bin centres) and
+    the ray weights [J] (the pattern integrated over each bin, summing to ``energy``).
+    """
     # directional pattern on a fine azimuth set, then integrated over each ray's bin
     n_fine = 3600
     dfine = 360.0 / n_fine
@@ -200,7 +227,13 @@ def make_ray_fan(
     frac = np.diff(c)
     frac = np.maximum(frac, 0.0)
     weights = energy * (frac / frac.sum())
+    return fine_az, pattern, centres, weights
 
+
+def _launch_points(gi: GridInfo, sig: np.ndarray, es: np.ndarray, centres: np.ndarray, strike_deg: float | None,
+                   seed: int) -> tuple[np.ndarray, np.ndarray, np.ndarray, float]:
+    """Launch points drawn from the significant source cells (weight eta^2 x area), each ray on the side
+    of the strike line it travels to; returns x0, y0, the side (+1 right, -1 left) and the strike used."""
     # launch area in local metric coordinates
     jj, ii = np.nonzero(sig)
     xs, ys = gi.x[ii], gi.y[jj]
@@ -213,10 +246,8 @@ def make_ray_fan(
         Ny = (ys - lat0) * k
     else:
         Ex, Ny = xs, ys
-    area = np.broadcast_to(gi.cell_area_m2(), e.shape)[jj, ii]
+    area = np.broadcast_to(gi.cell_area_m2(), es.shape)[jj, ii]
     w = es[jj, ii] ** 2 * area
-    if strike_deg is None and "strike_deg" in eta.attrs:
-        strike_deg = float(eta.attrs["strike_deg"])
     if strike_deg is None:
         strike = _principal_strike(Ex, Ny, w)
     else:
@@ -227,6 +258,7 @@ def make_ray_fan(
     right = (Ex - me) * math.cos(s) - (Ny - mn) * math.sin(s)
     ray_side = np.where(np.sin(np.radians(centres - strike)) >= 0.0, 1, -1).astype(np.int8)
 
+    n_rays = centres.size
     rng = np.random.default_rng(seed)
     x0 = np.empty(n_rays)
     y0 = np.empty(n_rays)
@@ -240,18 +272,5 @@ def make_ray_fan(
         jit = rng.uniform(-0.5, 0.5, size=(2, idx_rays.size))
         x0[idx_rays] = xs[pick] + jit[0] * gi.dx
         y0[idx_rays] = ys[pick] + jit[1] * gi.dy
-    if gi.geographic:
-        x0 = gi.wrap_lon(x0)
-    return RayFan(
-        x0=x0,
-        y0=y0,
-        azimuth_deg=centres,
-        weights=weights,
-        side=ray_side,
-        energy_J=energy,
-        strike_deg=strike,
-        crs_wkt=gi.crs_wkt,
-        pattern_azimuth_deg=fine_az,
-        pattern=pattern,
-        seed=seed,
-    )
+    return x0, y0, ray_side, strike
+
