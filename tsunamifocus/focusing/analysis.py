@@ -167,7 +167,6 @@ def analyse_focusing(
     -------
     FocusingResult
     """
-
     info = GridInfo.from_dataarray(depth)
     x0, y0, az, w, e_src = _fan_arrays(fan)
     kw = dict(trace_kwargs or {})

@@ -102,7 +102,6 @@ def run_wave_check(
     dict
         The agreement statistics (``spearman``, ``kendall``, ``topk_overlap`` ...) and output paths.
     """
-
     run_dir = pathlib.Path(run_dir)
     if k < 1:
         raise InputError(f"--top {k}: expected k >= 1")
@@ -165,7 +164,6 @@ def _write_table(df: pd.DataFrame, path: pathlib.Path) -> None:
 def _appendix(tmp: pathlib.Path, run_dir: pathlib.Path, name: str, seg: pd.DataFrame, table: pd.DataFrame,
               ag: dict, chk: Any) -> None:
     """A supplement to the run's appendix: the cautions, the ranked table and the check section."""
-
     st = chk.wave.stats
     k = ag.get("k", 10)
     text = [

@@ -18,7 +18,6 @@ __all__ = []
 def _report_context(a: SourceAnalysis, scenario: Any, depth: xr.DataArray, points: pd.DataFrame,
                     health: dict, figs: dict, ensemble: Any, extra_sections: dict | None) -> dict:
     """The data the appendix needs (keys of tsunamifocus.report.CONTEXT_KEYS)."""
-
     f = a.focusing
     g = summarize_grid(depth)
     grid = {

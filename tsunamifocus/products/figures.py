@@ -1368,17 +1368,7 @@ def plot_uplift(
     if not np.isfinite(e).any():
         raise InputError("plot_uplift: eta has no finite values")
     if crop:
-        eta = _crop_to_signal(eta, np.abs(np.nan_to_num(e)) >= 0.01 * np.nanmax(np.abs(e)))
-        if depth is not None:
-            yd0, xd0 = eta.dims
-            depth = depth.sel(
-                {
-                    xd0: slice(float(eta[xd0][0]), float(eta[xd0][-1])),
-                    yd0: slice(float(eta[yd0][0]), float(eta[yd0][-1])),
-                }
-            )
-            if depth.shape[0] < 2 or depth.shape[1] < 2:
-                depth = None
+        eta, depth = _crop_uplift(eta, e, depth)
         e = _values(eta)
     info = _check_grid(eta, "plot_uplift eta")
     fig, ax, geo = _new_map(info, title)
@@ -1396,16 +1386,7 @@ def plot_uplift(
     )
     handles: list = []
     if depth is not None:
-        dinfo = _check_grid(depth, "plot_uplift depth")
-        _same_kind(info, dinfo, "plot_uplift depth")
-        d = _values(depth)
-        land = np.isfinite(d) & (d <= 0)
-        if land.any():
-            rgba = np.zeros(d.shape + (4,))
-            rgba[land] = mcolors.to_rgba(_LAND, alpha=0.55)
-            ax.imshow(rgba, origin="lower", extent=_extent(dinfo), interpolation="nearest", zorder=2)
-            handles.append(Patch(facecolor=_LAND, alpha=0.55, edgecolor="0.3", label="Land (shaded)"))
-        _coast_contour(ax, depth, dinfo)
+        handles += _shaded_land(ax, depth, info)
     xd, yd = eta.dims[1], eta.dims[0]
     lev = _nice_length(m / 3.0)
     levels = np.concatenate([-np.arange(lev, m + 1e-12, lev)[::-1], np.arange(lev, m + 1e-12, lev)])
@@ -1420,6 +1401,48 @@ def plot_uplift(
         ax, source_outline, info.geographic, colors=_OKABE_GREEN, linewidths=1.8, zorder=7, path_effects=_HALO
     ):
         handles.append(Line2D([], [], color=_OKABE_GREEN, lw=1.8, label="Fault outline (surface projection)"))
+    handles += _extremes(ax, eta, e)
+    cb = _right_colorbar(fig, ax, im)
+    cb.set_label("Sea-surface displacement (m), positive up")
+    return _finish(fig, out_path, ax=ax, geo=geo, handles=handles, right_cbars=1)
+
+
+def _crop_uplift(eta: xr.DataArray, e: np.ndarray, depth: xr.DataArray | None):
+    """eta (and depth) cut to the deformed area: |eta| >= 1 % of its maximum, padded by half its size."""
+    eta = _crop_to_signal(eta, np.abs(np.nan_to_num(e)) >= 0.01 * np.nanmax(np.abs(e)))
+    if depth is not None:
+        yd0, xd0 = eta.dims
+        depth = depth.sel(
+            {
+                xd0: slice(float(eta[xd0][0]), float(eta[xd0][-1])),
+                yd0: slice(float(eta[yd0][0]), float(eta[yd0][-1])),
+            }
+        )
+        if depth.shape[0] < 2 or depth.shape[1] < 2:
+            depth = None
+    return eta, depth
+
+
+def _shaded_land(ax, depth: xr.DataArray, info: GridInfo) -> list:
+    """Land shaded over the displacement and the coast contour; the land legend entry."""
+    handles: list = []
+    dinfo = _check_grid(depth, "plot_uplift depth")
+    _same_kind(info, dinfo, "plot_uplift depth")
+    d = _values(depth)
+    land = np.isfinite(d) & (d <= 0)
+    if land.any():
+        rgba = np.zeros(d.shape + (4,))
+        rgba[land] = mcolors.to_rgba(_LAND, alpha=0.55)
+        ax.imshow(rgba, origin="lower", extent=_extent(dinfo), interpolation="nearest", zorder=2)
+        handles.append(Patch(facecolor=_LAND, alpha=0.55, edgecolor="0.3", label="Land (shaded)"))
+    _coast_contour(ax, depth, dinfo)
+    return handles
+
+
+def _extremes(ax, eta: xr.DataArray, e: np.ndarray) -> list:
+    """Markers at the largest uplift and subsidence; their legend entries."""
+    xd, yd = eta.dims[1], eta.dims[0]
+    handles: list = []
     jmax = np.unravel_index(np.nanargmax(e), e.shape)
     jmin = np.unravel_index(np.nanargmin(e), e.shape)
     xs, ys = eta[xd].values, eta[yd].values
@@ -1433,9 +1456,7 @@ def plot_uplift(
             [], [], marker="v", color="black", linestyle="none", label=f"Max subsidence {np.nanmin(e):+.2f} m"
         )
     )
-    cb = _right_colorbar(fig, ax, im)
-    cb.set_label("Sea-surface displacement (m), positive up")
-    return _finish(fig, out_path, ax=ax, geo=geo, handles=handles, right_cbars=1)
+    return handles
 
 
 def _scatter_labels(fig: Figure, ax, xa: np.ndarray, ya: np.ndarray, labels: Sequence[str], idx) -> None:
