@@ -6,8 +6,9 @@ Two cases:
 * ``real`` - the 0.1 degree global relief grid (``$TSUNAMIFOCUS_SHARED_DATA/etopo1_0p1deg.nc``, see
   that folder's README) cropped to lon 120..250 E, lat 0..65 N; a Mw 9.0 thrust off the Japan Trench
   (trace (141.9, 36.3)-(143.4, 39.8), top 5 km, dip 12, width 175 km, rake 90); travel-time limit
-  15 h; the screened coast: the 20 m contour cut into 20 km segments whose centres lie in
-  lon 235..244 E, lat 32..49 N (the mainland coast of North America).
+  15 h; the whole 20 m contour is cut into 20 km segments and the coast of interest (``[coast]
+  region``) is the segments whose centres lie in lon 235..244 E, lat 32..49 N (the mainland coast of
+  North America).
 
 For each case the script reports
 
@@ -42,8 +43,6 @@ import warnings
 import numpy as np
 import pandas as pd
 
-from tsunamifocus.coast.coastline import coastline_from_grid
-from tsunamifocus.coast.segments import segment_coastline
 from tsunamifocus.errors import ResolutionWarning
 from tsunamifocus.focusing.agreement import compare_rankings
 from tsunamifocus.io.scenario import parse_scenario, scenario_from_dict
@@ -57,11 +56,11 @@ K = 10
 
 #: The real-grid case (see the module docstring).
 REAL_CROP = (120.0, 0.0, 250.0, 65.0)
-REAL_COAST_BOX = (235.0, 32.0, 244.0, 49.0)  # lon0, lat0, lon1, lat1 of the segment centres [degrees E/N]
+REAL_COAST_BOX = (235.0, 32.0, 244.0, 49.0)  # coast of interest: lon0, lat0, lon1, lat1 of segment centres
 
 
 def shared_data_dir() -> pathlib.Path | None:
-    """The folder of the shared open data (``$TSUNAMIFOCUS_SHARED_DATA`` or ``<repo>/../shared/data``)."""
+    """Return the shared open-data folder (``$TSUNAMIFOCUS_SHARED_DATA`` or ``<repo>/../shared/data``)."""
     env = os.environ.get("TSUNAMIFOCUS_SHARED_DATA")
     for c in ([pathlib.Path(env)] if env else []) + [REPO.parent / "shared" / "data"]:
         if (c / "etopo1_0p1deg.nc").is_file():
@@ -70,36 +69,26 @@ def shared_data_dir() -> pathlib.Path | None:
 
 
 def real_scenario(etopo: pathlib.Path, rays: int = 20000, seed: int = 0):
-    """The real-grid case as a scenario (grid, source, ray settings; the coast is selected separately)."""
+    """Return the real-grid case as a scenario (grid, source, rays, coast of interest)."""
     return scenario_from_dict({
         "scenario": {"name": "japan-trench-mw90"},
         "bathymetry": {"path": str(etopo), "values": "elevation", "crop": list(REAL_CROP)},
         "source": [{"name": "japan-trench-mw90", "kind": "fault", "magnitude": 9.0,
-                    "segment": [{"trace": [[141.9, 36.3], [143.4, 39.8]], "top_depth_km": 5.0, "dip_deg": 12.0,
-                                 "width_km": 175.0, "rake_deg": 90.0}]}],
+                    "segment": [{"trace": [[141.9, 36.3], [143.4, 39.8]], "top_depth_km": 5.0,
+                                 "dip_deg": 12.0, "width_km": 175.0, "rake_deg": 90.0}]}],
         "rays": {"count": rays, "stop_depth_m": 20.0, "max_time_h": 15.0, "seed": seed},
-        "coast": {"segment_km": 20.0},
+        "coast": {"segment_km": 20.0, "region": list(REAL_COAST_BOX)},
     }, base_dir=etopo.parent, origin="real-grid case")
 
 
-def real_segments(depth) -> pd.DataFrame:
-    """Segments of the 20 m contour, 20 km long, with centres in :data:`REAL_COAST_BOX`."""
-    seg = segment_coastline(coastline_from_grid(depth, 20.0), 20e3, depth)
-    lon = np.mod(seg["lon_mid"].to_numpy(float), 360.0)
-    lat = seg["lat_mid"].to_numpy(float)
-    x0, y0, x1, y1 = REAL_COAST_BOX
-    keep = (lon >= x0) & (lon <= x1) & (lat >= y0) & (lat <= y1)
-    return seg[keep].reset_index(drop=True)
-
-
 def with_seed(scenario, seed: int, rays: int | None):
-    """The scenario with another ray seed (and ray count)."""
+    """Return the scenario with another ray seed (and ray count)."""
     r = scenario.rays
     return dataclasses.replace(scenario, rays=dataclasses.replace(r, seed=seed, count=rays or r.count))
 
 
 def _series(seg: pd.DataFrame, col: str) -> pd.Series:
-    """A ray column indexed by segment, NaN where the segment is not ranked (not ``reliable``)."""
+    """Return a ray column indexed by segment, NaN where the segment is not ranked (not ``reliable``)."""
     s = pd.Series(seg[col].to_numpy(float), index=seg["segment_id"].to_numpy())
     if "reliable" in seg:
         s[~seg["reliable"].fillna(False).astype(bool).to_numpy()] = np.nan
@@ -115,14 +104,14 @@ def warm_up(demo_sc, real_sc) -> None:
     if real_sc is not None:  # lon/lat sphere: a small crop around the source
         d = load_scenario_bathymetry(real_sc).sel(lon=slice(135.0, 150.0), lat=slice(30.0, 45.0))
         sc = with_seed(real_sc, 0, 400)
-        a = analyse_source(d, sc, sc.sources[0], segments=segment_coastline(coastline_from_grid(d, 20.0), 20e3, d),
-                           keep_paths=0)
+        sc = dataclasses.replace(sc, coast=dataclasses.replace(sc.coast, region=None))
+        a = analyse_source(d, sc, sc.sources[0], keep_paths=0)
         simulate_linear_long_wave(d, a.eta, duration_s=300.0)
 
 
 def run_case(name: str, scenario, segments, depth, seeds: tuple[int, int], rays: int | None) -> dict:
     """Ray pipeline for two seeds, the wave check once, and the figures of the table."""
-    out: dict = {"case": name, "n_segments": len(segments)}
+    out: dict = {"case": name}
     runs = []
     for s in seeds:
         sc = with_seed(scenario, s, rays)
@@ -135,6 +124,7 @@ def run_case(name: str, scenario, segments, depth, seeds: tuple[int, int], rays:
     out["ray_wall_s_2"] = runs[1][0]
     a = runs[0][2]
     seg = a.focusing.segments
+    out["n_segments"] = len(seg)
     c0, t0 = time.process_time(), time.perf_counter()
     chk = compare_with_waves(depth, a.eta, seg, reference_depth=a.focusing.reference_depth,
                              stop_depth_m=scenario.rays.stop_depth_m, k=K)
@@ -160,16 +150,18 @@ def _ag(d: dict) -> str:
 
 
 def print_table(rows: list[dict]) -> None:
-    """The side-by-side table."""
+    """Print the side-by-side table."""
     print()
     print(f"{'case':<6} {'segs':>5} {'rays':>6} {'bands':>5} {'ray wall':>9} {'ray CPU':>8} "
           f"{'wave h':>7} {'wave wall':>10} {'wave CPU':>9} {'wave/ray':>9}")
     for r in rows:
         print(f"{r['case']:<6} {r['reliable']:>2d}/{r['n_segments']:<3d}{r['rays']:>6d} {r['bands']:>5d} "
-              f"{r['ray_wall_s']:>8.1f}s {r['ray_cpu_s']:>7.1f}s {r['wave_hours']:>7.2f} {r['wave_wall_s']:>9.1f}s "
-              f"{r['wave_cpu_s']:>8.1f}s {r['wave_wall_s'] / r['ray_wall_s']:>9.2f}")
-    print("  (ray = one analyse_source run, first seed; second seed's wall time: %s; wave = real + reference "
-          "solver runs)" % ", ".join(f"{r['case']} {r['ray_wall_s_2']:.1f} s" for r in rows))
+              f"{r['ray_wall_s']:>8.1f}s {r['ray_cpu_s']:>7.1f}s {r['wave_hours']:>7.2f} "
+              f"{r['wave_wall_s']:>9.1f}s {r['wave_cpu_s']:>8.1f}s "
+              f"{r['wave_wall_s'] / r['ray_wall_s']:>9.2f}")
+    second = ", ".join(f"{r['case']} {r['ray_wall_s_2']:.1f} s" for r in rows)
+    print(f"  (segs = ranked / in the coast of interest; ray = one analyse_source run, first seed; "
+          f"second seed's wall time: {second}; wave = real + reference solver runs)")
     print()
     print("agreement with the wave (Spearman, top-10 common)")
     print(f"{'case':<6} {'seed':>5}   {'amplitude':>11}   {'lensing':>11}")
@@ -180,7 +172,7 @@ def print_table(rows: list[dict]) -> None:
     print("stability between the two ray seeds (Spearman, top-10 common)")
     print(f"{'case':<6} {'seeds':>7}   {'amplitude':>11}   {'lensing':>11}")
     for r in rows:
-        sd = "%d,%d" % tuple(r["seeds"])
+        sd = f"{r['seeds'][0]},{r['seeds'][1]}"
         print(f"{r['case']:<6} {sd:>7}   {_ag(r['amp_seeds'])}   {_ag(r['lens_seeds'])}")
 
 
@@ -195,9 +187,9 @@ def main() -> None:
     load0 = os.getloadavg()
     import numba
 
-    print(f"machine: {platform.processor() or platform.machine()}, {os.cpu_count()} CPUs, numba {numba.__version__}; "
-          f"load average at start {load0[0]:.2f} {load0[1]:.2f} {load0[2]:.2f}")
-    warnings.simplefilter("ignore", ResolutionWarning)  # the real case screens only part of the coast
+    print(f"machine: {platform.processor() or platform.machine()}, {os.cpu_count()} CPUs, "
+          f"numba {numba.__version__}; load average at start {load0[0]:.2f} {load0[1]:.2f} {load0[2]:.2f}")
+    warnings.simplefilter("ignore", ResolutionWarning)  # coverage notes of the coasts of interest
     demo_sc = parse_scenario(DEMO_SCENARIO)
     real_sc = None
     if not args.demo_only:
@@ -213,10 +205,11 @@ def main() -> None:
     cases = [("demo", demo_sc)] + ([("real", real_sc)] if real_sc is not None else [])
     for name, sc in cases:
         depth = load_scenario_bathymetry(sc)
-        segments = real_segments(depth) if name == "real" else _segments_for(depth, sc)
+        segments = _segments_for(depth, sc)  # the whole coast; the coast of interest is ranked
         seeds = tuple(args.seeds) if args.seeds else (sc.rays.seed, sc.rays.seed + 1)
-        print(f"{name}: grid {depth.shape[0]} x {depth.shape[1]}, {len(segments)} segments, seeds {seeds} ...",
-              flush=True)
+        n_in = int(segments["in_region"].sum())
+        print(f"{name}: grid {depth.shape[0]} x {depth.shape[1]}, {n_in} segments in the coast of interest "
+              f"(of {len(segments)}), seeds {seeds} ...", flush=True)
         r = run_case(name, sc, segments, depth, seeds, args.rays)
         r["seeds"] = seeds
         rows.append(r)

@@ -27,8 +27,6 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from tsunamifocus.coast.coastline import coastline_from_grid
-from tsunamifocus.coast.segments import segment_coastline
 from tsunamifocus.errors import ResolutionWarning
 from tsunamifocus.focusing.agreement import compare_rankings
 from tsunamifocus.io.scenario import parse_scenario, scenario_from_dict
@@ -41,7 +39,7 @@ K = 10
 
 
 def _ranked(seg: pd.DataFrame, col: str) -> pd.Series:
-    """A ray column per segment, NaN where the run does not rank the segment (not ``reliable``)."""
+    """Return a ray column per segment, NaN where the run does not rank the segment (not ``reliable``)."""
     s = pd.Series(seg[col].to_numpy(float), index=seg["segment_id"].to_numpy())
     s[~seg["reliable"].fillna(False).astype(bool).to_numpy()] = np.nan
     return s
@@ -58,12 +56,13 @@ def _with_seed(scenario, seed: int):
 
 @pytest.fixture(scope="module")
 def demo_runs():
-    """The demo traced with its own ray seed (7) and with seed 8, and the wave check of the first."""
+    """Trace the demo with its own ray seed (7) and with seed 8; wave-check the first."""
     sc = parse_scenario(DEMO_SCENARIO)
     depth = load_scenario_bathymetry(sc)
     segments = _segments_for(depth, sc)
     a = analyse_source(depth, sc, sc.sources[0], segments=segments, keep_paths=0)
-    b = analyse_source(depth, _with_seed(sc, sc.rays.seed + 1), sc.sources[0], segments=segments, keep_paths=0)
+    sc8 = _with_seed(sc, sc.rays.seed + 1)
+    b = analyse_source(depth, sc8, sc.sources[0], segments=segments, keep_paths=0)
     chk = compare_with_waves(depth, a.eta, a.focusing.segments, reference_depth=a.focusing.reference_depth,
                              stop_depth_m=sc.rays.stop_depth_m, k=K)
     return sc, a, b, chk
@@ -71,15 +70,19 @@ def demo_runs():
 
 @pytest.mark.slow
 def test_demo_ray_rankings_agree_with_the_wave_solver(demo_runs):
+    """Amplitude and lensing rankings of the demo against the wave solver over both oceans."""
     sc, a, _, chk = demo_runs
+    print("demo vs wave:", chk.summary().splitlines()[1:3], f"n={chk.agreement['n']}")
     assert sc.rays.count == 20000 and len(a.focusing.bands) == 3  # the default settings are what is judged
     seg = a.focusing.segments
-    assert chk.agreement["n"] >= 80  # measured: all 91 segments ranked
-    # amplitude at the stop isobath. Measured on 2026-12-02: Spearman 0.969, top-10 common 7/10.
-    assert chk.agreement["spearman"] >= 0.969 - 0.05
+    assert chk.agreement["n"] >= 60  # measured: all 66 segments of the coast of interest ranked
+    # amplitude at the stop isobath. Measured on 2026-12-02: Spearman 0.93, top-10 common 7/10.
+    assert chk.agreement["spearman"] >= 0.93 - 0.05
     assert chk.agreement["topk_common"] >= 7 - 2
-    # lensing factor (wave: (A_real / A_reference)^2). Measured on 2026-12-02: Spearman 0.797.
-    assert chk.agreement["lensing"]["spearman"] >= 0.797 - 0.1
+    # lensing factor (wave: (A_real / A_reference)^2). Measured on 2026-12-02: Spearman 0.76,
+    # top-10 common 7/10.
+    assert chk.agreement["lensing"]["spearman"] >= 0.76 - 0.1
+    assert chk.agreement["lensing"]["topk_common"] >= 7 - 2
     # the check's figures are those of the ranked ray column against the wave column
     wave = chk.table.set_index("segment_id")["wave_amp_stop_m"]
     again = compare_rankings(_ranked(seg, "amp_stop_m"), wave, k=K)
@@ -88,20 +91,24 @@ def test_demo_ray_rankings_agree_with_the_wave_solver(demo_runs):
 
 @pytest.mark.slow
 def test_demo_rankings_are_stable_between_ray_seeds(demo_runs):
+    """Two ray seeds give nearly the same rankings, and the second is judged as good as the first."""
     _, a, b, chk = demo_runs
     sa, sb = a.focusing.segments, b.focusing.segments
     amp = compare_rankings(_ranked(sa, "amp_stop_m"), _ranked(sb, "amp_stop_m"), k=K)
     lens = compare_rankings(_ranked(sa, "lensing_factor"), _ranked(sb, "lensing_factor"), k=K)
-    # Measured on 2026-12-02 (seeds 7 and 8): amplitude Spearman 1.000, top-10 10/10;
-    # lensing Spearman 0.995, top-10 9/10.
-    assert amp["spearman"] >= 1.000 - 0.03
-    assert amp["topk_common"] >= 10 - 2
-    assert lens["spearman"] >= 0.995 - 0.05
-    assert lens["topk_common"] >= 9 - 2
-    # the second seed is judged by the same wave run as well as the first.
-    # Measured on 2026-12-02: seed 8 amplitude Spearman 0.969 vs the wave.
     wave = chk.table.set_index("segment_id")["wave_amp_stop_m"]
-    assert compare_rankings(_ranked(sb, "amp_stop_m"), wave, k=K)["spearman"] >= 0.969 - 0.05
+    b_wave = compare_rankings(_ranked(sb, "amp_stop_m"), wave, k=K)
+    print("demo seeds:", {k: (v["spearman"], v["topk_common"]) for k, v in
+                          (("amp", amp), ("lens", lens), ("seed8_vs_wave", b_wave))})
+    # Measured on 2026-12-02 (seeds 7 and 8): amplitude Spearman 0.999, top-10 10/10;
+    # lensing Spearman 0.998, top-10 10/10.
+    assert amp["spearman"] >= 0.999 - 0.03
+    assert amp["topk_common"] >= 10 - 2
+    assert lens["spearman"] >= 0.998 - 0.05
+    assert lens["topk_common"] >= 10 - 2
+    # the second seed is judged by the same wave run as well as the first.
+    # Measured on 2026-12-02: seed 8 amplitude Spearman 0.934 vs the wave.
+    assert b_wave["spearman"] >= 0.934 - 0.05
 
 
 # ------------------------------------------------------------------------------------------------
@@ -112,28 +119,27 @@ def test_demo_rankings_are_stable_between_ray_seeds(demo_runs):
 @pytest.mark.realdata
 @pytest.mark.slow
 def test_real_grid_amplitude_ranking_meets_target(etopo_path):
+    """Real ocean, real coast: the ray amplitude ranking meets the project target against the wave."""
     # Global relief cropped to lon 120..250 E, lat 0..65 N (across the antimeridian); a Mw 9.0 thrust
-    # off the Japan Trench; the screened coast: 20 km segments of the 20 m contour with centres in
-    # lon 235..244 E, lat 32..49 N; rays at the default settings (20000 rays, 3 period bands, seed 0),
-    # 15 h travel-time limit. The wave solver runs over the real ocean only (amplitude ranking).
+    # off the Japan Trench; the coast of interest: 20 km segments of the 20 m contour with centres in
+    # lon 235..244 E, lat 32..49 N (the mainland coast of North America); rays at the default settings
+    # (20000 rays, 3 period bands, seed 0), 15 h travel-time limit. The wave solver runs over the
+    # real ocean only (the amplitude ranking; one wave run keeps the test shorter).
     sc = scenario_from_dict({
         "scenario": {"name": "japan-trench-mw90"},
         "bathymetry": {"path": str(etopo_path), "values": "elevation", "crop": [120.0, 0.0, 250.0, 65.0]},
         "source": [{"name": "japan-trench-mw90", "kind": "fault", "magnitude": 9.0,
-                    "segment": [{"trace": [[141.9, 36.3], [143.4, 39.8]], "top_depth_km": 5.0, "dip_deg": 12.0,
-                                 "width_km": 175.0, "rake_deg": 90.0}]}],
+                    "segment": [{"trace": [[141.9, 36.3], [143.4, 39.8]], "top_depth_km": 5.0,
+                                 "dip_deg": 12.0, "width_km": 175.0, "rake_deg": 90.0}]}],
         "rays": {"count": 20000, "stop_depth_m": 20.0, "max_time_h": 15.0, "seed": 0},
-        "coast": {"segment_km": 20.0},
+        "coast": {"segment_km": 20.0, "region": [235.0, 32.0, 244.0, 49.0]},
     }, base_dir=pathlib.Path(etopo_path).parent)
     depth = load_scenario_bathymetry(sc)
-    seg = segment_coastline(coastline_from_grid(depth, 20.0), 20e3, depth)
-    lon = np.mod(seg["lon_mid"].to_numpy(float), 360.0)
-    lat = seg["lat_mid"].to_numpy(float)
-    seg = seg[(lon >= 235.0) & (lon <= 244.0) & (lat >= 32.0) & (lat <= 49.0)].reset_index(drop=True)
-    assert len(seg) > 150  # measured: 183 segments
+    seg = _segments_for(depth, sc)  # the whole 20 m contour; the coast of interest is ranked
     with warnings.catch_warnings():
-        warnings.simplefilter("ignore", ResolutionWarning)  # only part of the coast is screened, by design
+        warnings.simplefilter("ignore", ResolutionWarning)  # coverage of a coast of interest, said elsewhere
         a = analyse_source(depth, sc, sc.sources[0], segments=seg, keep_paths=0)
+    assert len(a.focusing.segments) > 150  # measured: 183 segments in the coast of interest
     chk = compare_with_waves(depth, a.eta, a.focusing.segments, stop_depth_m=20.0, k=K)
     assert chk.agreement["n"] >= 150  # measured: REAL_N ranked segments with a wave value
     # Project target: Spearman >= 0.8. Measured on 2026-12-02: 0.875 (top-10 common 5/10; seed 1: 0.840),

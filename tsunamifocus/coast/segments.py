@@ -205,44 +205,58 @@ def segment_coastline(
     v = np.asarray(depth.values, dtype=float)
     rows = []
     for li, (xy, cum) in enumerate(zip(xys, cums, strict=True)):
-        L = cum[-1]
-        if L <= 0:
-            continue
-        n = max(1, int(round(L / segment_length_m)))
-        cuts = np.linspace(0.0, L, n + 1)
-        pieces = _cut_line(xy, cum, cuts)
-        for k, pxy in enumerate(pieces):
-            s0, s1 = cuts[k], cuts[k + 1]
-            smid = 0.5 * (s0 + s1)
-            mid = _point_at(xy, cum, smid)
-            h = min(0.25 * (s1 - s0), spacing)
-            pa = _point_at(xy, cum, max(smid - h, 0.0))
-            pb = _point_at(xy, cum, min(smid + h, L))
-            tangent = _azimuth(info, pa, pb)
-            normal = _seaward_normal(info, v, mid, tangent)
-            rows.append(
-                {
-                    "name": "" if names is None else str(names[li]),
-                    "length_m": float(s1 - s0),
-                    "x_mid": float(mid[0]),
-                    "y_mid": float(mid[1]),
-                    "normal_azimuth_deg": float(normal),
-                    "geometry": LineString(pxy),
-                }
-            )
+        name = "" if names is None else str(names[li])
+        rows += _line_segments(xy, cum, segment_length_m, spacing, info, v, name)
     width = max(4, len(str(len(rows))))
     df = pd.DataFrame(rows)
     df.insert(0, "segment_id", [f"S{i + 1:0{width}d}" for i in range(len(rows))])
-    if info.geographic:
-        df["x_mid"] = np.asarray(info.wrap_lon(df["x_mid"].to_numpy(float)), dtype=float)
-        lon = ((df["x_mid"].to_numpy() + 180.0) % 360.0) - 180.0
-        lat = df["y_mid"].to_numpy()
-    else:
-        tr = Transformer.from_crs(info.crs, CRS.from_epsg(4326), always_xy=True)
-        lon, lat = tr.transform(df["x_mid"].to_numpy(), df["y_mid"].to_numpy())
-    df["lon_mid"] = np.asarray(lon, dtype=float)
-    df["lat_mid"] = np.asarray(lat, dtype=float)
+    df["x_mid"], df["lon_mid"], df["lat_mid"] = _lonlat_of(df["x_mid"].to_numpy(float), df["y_mid"].to_numpy(float),
+                                                           info)
     df = df[SEGMENT_COLUMNS]
     df.attrs["segment_length_m"] = float(segment_length_m)
     df.attrs["crs_wkt"] = info.crs_wkt
     return df
+
+
+def _line_segments(xy: np.ndarray, cum: np.ndarray, segment_length_m: float, spacing: float, info: GridInfo,
+                   v: np.ndarray, name: str) -> list[dict]:
+    """One line cut into ``max(1, round(L / segment_length_m))`` equal pieces with mid points and seaward normals."""
+    rows: list[dict] = []
+    L = cum[-1]
+    if L <= 0:
+        return rows
+    n = max(1, int(round(L / segment_length_m)))
+    cuts = np.linspace(0.0, L, n + 1)
+    pieces = _cut_line(xy, cum, cuts)
+    for k, pxy in enumerate(pieces):
+        s0, s1 = cuts[k], cuts[k + 1]
+        smid = 0.5 * (s0 + s1)
+        mid = _point_at(xy, cum, smid)
+        h = min(0.25 * (s1 - s0), spacing)
+        pa = _point_at(xy, cum, max(smid - h, 0.0))
+        pb = _point_at(xy, cum, min(smid + h, L))
+        tangent = _azimuth(info, pa, pb)
+        normal = _seaward_normal(info, v, mid, tangent)
+        rows.append(
+            {
+                "name": name,
+                "length_m": float(s1 - s0),
+                "x_mid": float(mid[0]),
+                "y_mid": float(mid[1]),
+                "normal_azimuth_deg": float(normal),
+                "geometry": LineString(pxy),
+            }
+        )
+    return rows
+
+
+def _lonlat_of(x: np.ndarray, y: np.ndarray, info: GridInfo) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Mid points: x (longitudes wrapped onto a lon/lat grid), longitude in -180..180 and latitude."""
+    if info.geographic:
+        x = np.asarray(info.wrap_lon(x), dtype=float)
+        lon = ((x + 180.0) % 360.0) - 180.0
+        lat = y
+    else:
+        tr = Transformer.from_crs(info.crs, CRS.from_epsg(4326), always_xy=True)
+        lon, lat = tr.transform(x, y)
+    return x, np.asarray(lon, dtype=float), np.asarray(lat, dtype=float)

@@ -77,21 +77,7 @@ def branch_diagnostics(
     out["mean_first_caustic_m"] = float(fc[has].mean()) if has.any() else float("nan")
     out["median_first_caustic_m"] = float(np.median(fc[has])) if has.any() else float("nan")
     out["mean_caustics_per_ray"] = float(ncau.mean()) if ncau.size else float("nan")
-    sea = _sea(depth)
-    dist = distance_to_launch_m(depth, end["launch_x"].values, end["launch_y"].values)
-    reached = sea & np.isfinite(np.asarray(result.first_arrival_s.values, dtype=float)) \
-        if result.first_arrival_s is not None else sea
-    prof = scintillation_profile(result.energy, dist, bin_m=bin_m, where=reached) \
-        if result.energy is not None else pd.DataFrame(columns=["distance_m", "scintillation"])
-    out["scintillation_index"] = scintillation_index(result.energy, reached) if result.energy is not None \
-        else float("nan")
-    if len(prof):
-        k = int(np.nanargmax(prof["scintillation"].to_numpy()))
-        out["peak_scintillation_distance_m"] = float(prof["distance_m"].iloc[k])
-        out["peak_scintillation"] = float(prof["scintillation"].iloc[k])
-    else:
-        out["peak_scintillation_distance_m"] = float("nan")
-        out["peak_scintillation"] = float("nan")
+    prof = _scintillation(out, result, depth, bin_m)
     centres = edges
     si_interp = np.interp(centres, prof["distance_m"].to_numpy(float), prof["scintillation"].to_numpy(float),
                           left=np.nan, right=np.nan) if len(prof) else np.full(centres.shape, np.nan)
@@ -107,6 +93,33 @@ def branch_diagnostics(
     stats = fluctuations
     if stats is None and reference_smooth_km is not None:
         stats = fluctuation_statistics(depth, reference_smooth_km)
+    _focusing_prediction(out, stats, coast_distance_m)
+    return out
+
+
+def _scintillation(out: dict, result: Any, depth: xr.DataArray, bin_m: float) -> pd.DataFrame:
+    """Scintillation of the ray energy over the reached sea (whole map and against distance; in ``out``)."""
+    end = result.end
+    sea = _sea(depth)
+    dist = distance_to_launch_m(depth, end["launch_x"].values, end["launch_y"].values)
+    reached = sea & np.isfinite(np.asarray(result.first_arrival_s.values, dtype=float)) \
+        if result.first_arrival_s is not None else sea
+    prof = scintillation_profile(result.energy, dist, bin_m=bin_m, where=reached) \
+        if result.energy is not None else pd.DataFrame(columns=["distance_m", "scintillation"])
+    out["scintillation_index"] = scintillation_index(result.energy, reached) if result.energy is not None \
+        else float("nan")
+    if len(prof):
+        k = int(np.nanargmax(prof["scintillation"].to_numpy()))
+        out["peak_scintillation_distance_m"] = float(prof["distance_m"].iloc[k])
+        out["peak_scintillation"] = float(prof["scintillation"].iloc[k])
+    else:
+        out["peak_scintillation_distance_m"] = float("nan")
+        out["peak_scintillation"] = float("nan")
+    return prof
+
+
+def _focusing_prediction(out: dict, stats: dict | None, coast_distance_m: float | None) -> None:
+    """The expected distance to strong random focusing and whether the coast lies beyond it (in ``out``)."""
     pred = float("nan")
     if stats is not None:
         out.update({k: v for k, v in stats.items()})
@@ -133,4 +146,3 @@ def branch_diagnostics(
     else:
         out["coast_beyond_focusing"] = None
         out["message"] = "no prediction of the random-focusing distance (no low-pass scale or no coast distance)"
-    return out

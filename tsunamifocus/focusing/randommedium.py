@@ -96,7 +96,6 @@ def fluctuation_statistics(
     dict
         ``eps_depth, eps_speed, corr_length_m, lowpass_km`` (= ``reference_smooth_km``), ``n_nodes``.
     """
-
     info = GridInfo.from_dataarray(depth)
     h = np.asarray(depth.values, dtype=float)
     if lowpass is None:

@@ -20,7 +20,7 @@ import xarray as xr
 from pyproj import CRS
 
 from ..errors import CRSError, DataFileError, InputError, ResourceLimitError, SignConventionError
-from ..grid import GridInfo, check_bbox, crop_bathymetry, make_grid, resample_bathymetry
+from ..grid import GridInfo, crop_bathymetry, make_grid, resample_bathymetry
 
 __all__ = ['load_bathymetry', 'estimate_grid_memory', 'DEFAULT_MAX_MEMORY_GB']
 
@@ -35,12 +35,6 @@ _METRES = {"m", "meter", "meters", "metre", "metres"}
 _NETCDF_EXT = {".nc", ".nc4", ".cdf", ".netcdf", ".grd"}
 _ELEV_WORDS = ("elevation", "height", "altitude", "topograph", "relief", "orography")
 _DEPTH_WORDS = ("depth",)
-#: Physical bound [m] used to tell elevation from depth by the values alone: higher than the
-#: highest land (Mount Everest, 8,849 m) and shallower than the deepest sea floor (Challenger
-#: Deep, about 10,935 m). A value below -PHYSICAL_SIGN_BOUND_M cannot be a land height, so the
-#: grid stores elevation (positive up); a value above +PHYSICAL_SIGN_BOUND_M cannot be a land
-#: height either, so the grid stores depth (positive down).
-PHYSICAL_SIGN_BOUND_M: float = 8900.0
 #: Working copies the loader holds at once, per grid cell (float64 + mask + one copy).
 _BYTES_PER_CELL = 8 * 3
 
@@ -141,7 +135,6 @@ def load_bathymetry(
         raw.crs = CRS.from_user_input(crs)
     depth = _to_depth(raw, values, units, p)
     da = _assemble(raw, depth, p)
-    da.attrs["sign_decided_by"] = raw.attrs.get("sign_decided_by") or f"given: values={values!r}"
     if bbox is not None:
         da = crop_bathymetry(da, bbox, margin_km=margin_km)
     if resample_km is not None:
@@ -278,27 +271,7 @@ def _read_netcdf(p, variable, bbox, margin_km, limit) -> _Raw:
     except Exception as exc:
         raise DataFileError(f"{p}: not a readable NetCDF file ({type(exc).__name__}: {exc})") from exc
     with ds:
-        if variable is None:
-            cands = [
-                n for n, v in ds.data_vars.items()
-                if v.ndim >= 2 and np.issubdtype(v.dtype, np.number) and "grid_mapping_name" not in v.attrs
-            ]
-            if not cands:
-                raise DataFileError(f"{p}: no 2-D numeric variable found")
-            two_d = [n for n in cands if ds[n].squeeze().ndim == 2]
-            if len(two_d) == 1:
-                variable = two_d[0]
-            elif len(two_d) > 1:
-                raise InputError(f"{p}: several 2-D variables {two_d}; choose one with variable=...")
-            elif ds[cands[0]].ndim == 2:  # 2-D but a single row or column
-                raise InputError(f"{p}: variable '{cands[0]}' is {ds[cands[0]].shape[0]} x "
-                                 f"{ds[cands[0]].shape[1]} cells; expected at least 2 x 2 cells")
-            else:
-                raise InputError(
-                    f"{p}: variable '{cands[0]}' has dims {ds[cands[0]].dims}; expected a 2-D (y, x) grid"
-                )
-        if variable not in ds.data_vars:
-            raise InputError(f"{p}: no variable '{variable}' (has {list(ds.data_vars)})")
+        variable = _nc_variable(ds, variable, p)
         da = ds[variable]
         extra = [d for d in da.dims if da.sizes[d] == 1]
         if da.ndim != 2:
@@ -311,25 +284,7 @@ def _read_netcdf(p, variable, bbox, margin_km, limit) -> _Raw:
                 )
         xd = _find_coord(ds, da, "x")
         yd = _find_coord(ds, da, "y")
-        gm_name = da.attrs.get("grid_mapping") or da.encoding.get("grid_mapping")
-        the_crs = None
-        if gm_name and gm_name in ds.variables:
-            gattrs = ds[gm_name].attrs
-            wkt = gattrs.get("crs_wkt") or gattrs.get("spatial_ref")
-            try:
-                the_crs = CRS.from_wkt(wkt) if wkt else CRS.from_cf(gattrs)
-            except Exception as exc:
-                raise CRSError(f"{p}: grid mapping '{gm_name}' is not a usable CRS ({exc})") from exc
-        xunits = str(ds[xd].attrs.get("units", "")).lower() if xd in ds.variables else ""
-        geog_names = xd.lower() in ("lon", "longitude") or xunits.startswith("degree")
-        if the_crs is None:
-            if geog_names:
-                the_crs = CRS.from_epsg(4326)
-            else:
-                raise CRSError(
-                    f"{p}: variable '{variable}' is on projected x/y coordinates but has no grid_mapping "
-                    "with crs_wkt; add one or convert the file to GeoTIFF with a CRS"
-                )
+        the_crs = _nc_crs(ds, da, xd, variable, p)
         x = np.asarray(ds[xd].values, dtype=float)
         y = np.asarray(ds[yd].values, dtype=float)
         if the_crs.is_geographic:
@@ -339,24 +294,7 @@ def _read_netcdf(p, variable, bbox, margin_km, limit) -> _Raw:
                     "are longitude and latitude swapped?"
                 )
         da = da.transpose(yd, xd)
-        sel = {}
-        if bbox is not None:
-            bbox = check_bbox(bbox, the_crs.is_geographic)
-        if bbox is not None and not the_crs.is_geographic:
-            m = margin_km * 1000.0
-            xs = np.nonzero((x >= bbox[0] - m - abs(x[1] - x[0])) & (x <= bbox[2] + m + abs(x[1] - x[0])))[0]
-            ys = np.nonzero((y >= bbox[1] - m - abs(y[1] - y[0])) & (y <= bbox[3] + m + abs(y[1] - y[0])))[0]
-            if xs.size == 0 or ys.size == 0:
-                raise InputError(f"{p}: bbox {bbox} does not overlap the grid")
-            sel = {xd: slice(xs[0], xs[-1] + 1), yd: slice(ys[0], ys[-1] + 1)}
-            x, y = x[sel[xd]], y[sel[yd]]
-        elif bbox is not None:
-            m_lat = margin_km / 111.19
-            ys = np.nonzero((y >= bbox[1] - m_lat - abs(y[1] - y[0])) & (y <= bbox[3] + m_lat + abs(y[1] - y[0])))[0]
-            if ys.size == 0:
-                raise InputError(f"{p}: bbox {bbox} latitudes do not overlap the grid")
-            sel = {yd: slice(ys[0], ys[-1] + 1)}
-            y = y[sel[yd]]
+        sel, x, y = _nc_window(x, y, xd, yd, bbox, margin_km, the_crs.is_geographic, p)
         _check_memory(p, (y.size, x.size), limit)
         try:
             vals = np.asarray(da.isel(sel).values, dtype="float64")
@@ -366,19 +304,97 @@ def _read_netcdf(p, variable, bbox, margin_km, limit) -> _Raw:
         attrs["_varname"] = variable
         if "node_offset" in ds.attrs:
             attrs["node_offset"] = ds.attrs["node_offset"]
+    x, y, vals = _ascending(x, y, vals, the_crs.is_geographic)
+    return _Raw(vals, x, y, the_crs, attrs, str(variable), "netCDF")
+
+
+def _nc_variable(ds: xr.Dataset, variable: str | None, p: pathlib.Path) -> str:
+    """The variable to read: the one given, or the only 2-D numeric one."""
+    if variable is None:
+        cands = [
+            n for n, v in ds.data_vars.items()
+            if v.ndim >= 2 and np.issubdtype(v.dtype, np.number) and "grid_mapping_name" not in v.attrs
+        ]
+        if not cands:
+            raise DataFileError(f"{p}: no 2-D numeric variable found")
+        two_d = [n for n in cands if ds[n].squeeze().ndim == 2]
+        if len(two_d) == 1:
+            variable = two_d[0]
+        elif len(two_d) > 1:
+            raise InputError(f"{p}: several 2-D variables {two_d}; choose one with variable=...")
+        elif ds[cands[0]].ndim == 2:  # 2-D but a single row or column
+            raise InputError(f"{p}: variable '{cands[0]}' is {ds[cands[0]].shape[0]} x "
+                             f"{ds[cands[0]].shape[1]} cells; expected at least 2 x 2 cells")
+        else:
+            raise InputError(
+                f"{p}: variable '{cands[0]}' has dims {ds[cands[0]].dims}; expected a 2-D (y, x) grid"
+            )
+    if variable not in ds.data_vars:
+        raise InputError(f"{p}: no variable '{variable}' (has {list(ds.data_vars)})")
+    return variable
+
+
+def _nc_crs(ds: xr.Dataset, da: xr.DataArray, xd: str, variable: str, p: pathlib.Path) -> CRS:
+    """The CRS of the grid mapping, else lon/lat for degree coordinates; refuses projected x/y without one."""
+    gm_name = da.attrs.get("grid_mapping") or da.encoding.get("grid_mapping")
+    the_crs = None
+    if gm_name and gm_name in ds.variables:
+        gattrs = ds[gm_name].attrs
+        wkt = gattrs.get("crs_wkt") or gattrs.get("spatial_ref")
+        try:
+            the_crs = CRS.from_wkt(wkt) if wkt else CRS.from_cf(gattrs)
+        except Exception as exc:
+            raise CRSError(f"{p}: grid mapping '{gm_name}' is not a usable CRS ({exc})") from exc
+    xunits = str(ds[xd].attrs.get("units", "")).lower() if xd in ds.variables else ""
+    geog_names = xd.lower() in ("lon", "longitude") or xunits.startswith("degree")
+    if the_crs is None:
+        if geog_names:
+            the_crs = CRS.from_epsg(4326)
+        else:
+            raise CRSError(
+                f"{p}: variable '{variable}' is on projected x/y coordinates but has no grid_mapping "
+                "with crs_wkt; add one or convert the file to GeoTIFF with a CRS"
+            )
+    return the_crs
+
+
+def _nc_window(x: np.ndarray, y: np.ndarray, xd: str, yd: str, bbox, margin_km: float, geographic: bool,
+               p: pathlib.Path) -> tuple[dict, np.ndarray, np.ndarray]:
+    """Index slices of the crop box (plus margin and one cell; latitudes only on lon/lat grids)."""
+    sel = {}
+    if bbox is not None and not geographic:
+        m = margin_km * 1000.0
+        xs = np.nonzero((x >= bbox[0] - m - abs(x[1] - x[0])) & (x <= bbox[2] + m + abs(x[1] - x[0])))[0]
+        ys = np.nonzero((y >= bbox[1] - m - abs(y[1] - y[0])) & (y <= bbox[3] + m + abs(y[1] - y[0])))[0]
+        if xs.size == 0 or ys.size == 0:
+            raise InputError(f"{p}: bbox {bbox} does not overlap the grid")
+        sel = {xd: slice(xs[0], xs[-1] + 1), yd: slice(ys[0], ys[-1] + 1)}
+        x, y = x[sel[xd]], y[sel[yd]]
+    elif bbox is not None:
+        m_lat = margin_km / 111.19
+        ys = np.nonzero((y >= bbox[1] - m_lat - abs(y[1] - y[0])) & (y <= bbox[3] + m_lat + abs(y[1] - y[0])))[0]
+        if ys.size == 0:
+            raise InputError(f"{p}: bbox {bbox} latitudes do not overlap the grid")
+        sel = {yd: slice(ys[0], ys[-1] + 1)}
+        y = y[sel[yd]]
+    return sel, x, y
+
+
+def _ascending(x: np.ndarray, y: np.ndarray, vals: np.ndarray, geographic: bool) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Coordinates ascending (values flipped to match); longitudes continued past 180 across the antimeridian."""
     if x.size > 1 and x[1] < x[0]:
         x = x[::-1]
         vals = vals[:, ::-1]
     if y.size > 1 and y[1] < y[0]:
         y = y[::-1]
         vals = vals[::-1, :]
-    if the_crs.is_geographic and x.size > 2:
+    if geographic and x.size > 2:
         # a regional grid across the antimeridian in -180..180 numbers (170 ... 180, -175 ...):
         # continue the longitudes past 180 (same meridians, now ascending)
         jump = np.flatnonzero(np.diff(x) < -180.0)
         if jump.size == 1:
             x = np.concatenate([x[: jump[0] + 1], x[jump[0] + 1 :] + 360.0])
-    return _Raw(vals, x, y, the_crs, attrs, str(variable), "netCDF")
+    return x, y, vals
 
 
 # --------------------------------------------------------------------------------------
@@ -399,7 +415,7 @@ def _to_depth(raw: _Raw, values: str, units: str | None, p: pathlib.Path) -> np.
         log.info("%s: no vertical units declared; assuming metres", p)
     mode = values
     if mode == "auto":
-        mode, raw.attrs["sign_decided_by"] = _decide_sign(attrs, raw.name, p, raw.values * factor)
+        mode = _decide_sign(attrs, raw.name, p, raw.values)
     else:  # an explicit choice must not contradict the file's CF 'positive' attribute
         pos = str(attrs.get("positive", "")).strip().lower()
         declared = {"up": "elevation", "down": "depth"}.get(pos)
@@ -412,46 +428,27 @@ def _to_depth(raw: _Raw, values: str, units: str | None, p: pathlib.Path) -> np.
     return -vals if mode == "elevation" else vals
 
 
-def _decide_sign(attrs: dict, name: str, p: pathlib.Path, vals: np.ndarray) -> tuple[str, str]:
-    """``("elevation" | "depth", reason)`` from metadata, else from physical bounds on the values [m]."""
+def _decide_sign(attrs: dict, name: str, p: pathlib.Path, vals: np.ndarray) -> str:
     pos = str(attrs.get("positive", "")).strip().lower()
     if pos == "up":
-        return "elevation", "attribute positive='up'"
+        return "elevation"
     if pos == "down":
-        return "depth", "attribute positive='down'"
+        return "depth"
     std = str(attrs.get("standard_name", "")).lower()
-    if std in ("height_above_mean_sea_level", "altitude", "height", "surface_altitude",
-               "height_above_reference_ellipsoid"):
-        return "elevation", f"standard_name={std!r}"
+    if std in ("height_above_mean_sea_level", "altitude", "height", "surface_altitude", "height_above_reference_ellipsoid"):
+        return "elevation"
     if std in ("sea_floor_depth_below_sea_level", "sea_floor_depth_below_geoid", "depth", "sea_floor_depth"):
-        return "depth", f"standard_name={std!r}"
+        return "depth"
     words = " ".join([str(attrs.get("long_name", "")), str(attrs.get("description", "")), name]).lower()
     is_e = any(w in words for w in _ELEV_WORDS)
     is_d = any(w in words for w in _DEPTH_WORDS)
     if is_e != is_d:
-        kind = "elevation" if is_e else "depth"
-        return kind, f"name or long_name mentions {kind}"
+        return "elevation" if is_e else "depth"
     finite = vals[np.isfinite(vals)]
     hint = ""
     if finite.size:
-        lo, hi = float(finite.min()), float(finite.max())
-        b = PHYSICAL_SIGN_BOUND_M
-        # No land is higher than b, so a value beyond b on either side can only be sea floor:
-        # below -b it is sea floor stored as negative elevation, above +b as positive depth.
-        deep_neg, deep_pos = lo < -b, hi > b
-        if deep_neg and not deep_pos:
-            return "elevation", (f"values: minimum {lo:,.0f} m lies below -{b:,.0f} m, which no land height "
-                                 "reaches, so it is sea floor stored as negative elevation")
-        if deep_pos and not deep_neg:
-            return "depth", (f"values: maximum {hi:,.0f} m lies above {b:,.0f} m, which no land height "
-                             "reaches, so it is sea floor stored as positive depth")
         neg = float(np.mean(finite < 0))
-        if deep_neg and deep_pos:
-            hint = (f" (values span {lo:,.0f} to {hi:,.0f} m, beyond +/-{b:,.0f} m on both sides, which no "
-                    "real relief grid does; check units and nodata)")
-        else:
-            hint = (f" ({neg:.0%} of values are negative; all within +/-{b:,.0f} m, so the values alone "
-                    "cannot tell)")
+        hint = f" ({neg:.0%} of values are negative)"
     raise SignConventionError(
         f"{p}: cannot tell whether '{name}' holds elevation or depth{hint}; pass values='elevation' "
         "(negative below sea level) or values='depth' (positive down)"

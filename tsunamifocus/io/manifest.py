@@ -73,7 +73,6 @@ def _version_of(dist: str) -> str | None:
 
 def software_versions() -> dict[str, str | None]:
     """Versions of Python, the platform and the libraries a run depends on (None if absent)."""
-
     v: dict[str, str | None] = {
         "tsunamifocus": __version__,
         "python": sys.version.split()[0],
@@ -173,7 +172,6 @@ def build_manifest(
     extra : mapping, optional
         Anything else (health checks, run summary), stored under ``extra``.
     """
-
     if inputs is None:
         inputs = {}
         if scenario is not None:
@@ -357,7 +355,6 @@ def verify_inputs(manifest: Mapping[str, Any] | str | os.PathLike) -> list[str]:
 
 def scenario_from_manifest(manifest: Mapping[str, Any] | str | os.PathLike):
     """Rebuild the :class:`~tsunamifocus.scenario.Scenario` recorded in a manifest."""
-
     m = manifest if isinstance(manifest, Mapping) else read_manifest(manifest)
     if not m.get("parameters"):
         raise DataFileError(f"{m.get('_path', 'manifest')}: manifest records no scenario parameters")

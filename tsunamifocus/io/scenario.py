@@ -362,7 +362,6 @@ class Scenario:
 
         The text starts with the caution as comment lines; unset optional values are left out.
         """
-
         head = ["# Effective tsunamifocus scenario (every parameter after defaults)."]
         head += ["# " + line if line else "#" for line in caution_lines(width=96)]
         return "\n".join(head) + "\n\n" + _dump_toml(self.to_dict())

@@ -83,18 +83,15 @@ def reference_depth(depth: xr.DataArray, reference_smooth_km: float, *,
     ----------
     depth : xarray.DataArray
         Depth [m], positive down.
-    reference_smooth_km : float
-        Low-pass scale [km] (Gaussian std, ``[focusing] reference_smooth_km``): variations much
-        shorter than this are the ones whose focusing the lensing factor measures.
-    lowpass : xarray.DataArray, optional
-        ``smooth_bathymetry(depth, reference_smooth_km)`` when the caller has it already.
+    reference_smooth_km, lowpass
+        As :func:`reference_bathymetry`: variations much shorter than ``reference_smooth_km`` are
+        the ones whose focusing the lensing factor measures.
 
     Returns
     -------
     xarray.DataArray
-        Reference depth [m].
+        Reference depth [m], same mean sea depth as ``depth``.
     """
-
     # offshore variations low-passed; the shelf (< 200 m, blended up to 1000 m) kept, so the
     # coast and stop isobath are the same in both runs (see reference_bathymetry)
     ref = reference_bathymetry(depth, reference_smooth_km, lowpass=lowpass)

@@ -18,6 +18,7 @@ from __future__ import annotations
 
 import base64
 import datetime as _dt
+import functools
 import html
 import math
 import numbers
@@ -538,13 +539,7 @@ def _ranking_table(
         ranks = df["rank_lensing"].tolist()
     else:
         df = df.sort_values("lensing_factor", ascending=False, na_position="last")
-        # no rank column: rank by value, but never rank a segment flagged unreliable
-        rel = df["reliable"].tolist() if "reliable" in df.columns else [True] * len(df)
-        ranks, k = [], 0
-        for ok in rel:
-            good = not pd.isna(ok) and bool(ok)
-            k += int(good)
-            ranks.append(k if good else math.nan)
+        ranks = list(range(1, len(df) + 1))
     df = df.head(top_k)
     ranks = ranks[: len(df)]
     cols = ["Rank"]
@@ -568,11 +563,11 @@ def _ranking_table(
             if key == "lensing_factor":
                 s = _fmt3(v)
                 if "lensing_lo" in df.columns and "lensing_hi" in df.columns:
-                    s += _interval(r["lensing_lo"], r["lensing_hi"])
+                    s += f" ({_fmt3(r['lensing_lo'])}–{_fmt3(r['lensing_hi'])})"
             elif key == "amp_1m_m":
                 s = _fmt3(v)
                 if "amp_lo" in df.columns and "amp_hi" in df.columns:
-                    s += _interval(r["amp_lo"], r["amp_hi"])
+                    s += f" ({_fmt3(r['amp_lo'])}–{_fmt3(r['amp_hi'])})"
             elif key == "first_arrival_s":
                 s = f"{_num(v) / 60.0:.1f}" if math.isfinite(_num(v)) else "–"
             elif key == "length_m":
@@ -584,20 +579,6 @@ def _ranking_table(
             row.append(s)
         rows.append(row)
     return cols, rows, len(df)
-
-
-def _interval(lo: Any, hi: Any) -> str:
-    """`` (0.8–2.1)``; `` (0.8 to ∞)`` for an unbounded side; nothing when a bound is unknown."""
-    a, b = _num(lo), _num(hi)
-    if math.isnan(a) or math.isnan(b):
-        return ""
-    if math.isinf(a) or math.isinf(b):
-        return f" ({_fmt_bound(a)} to {_fmt_bound(b)})"
-    return f" ({_fmt3(a)}–{_fmt3(b)})"
-
-
-def _fmt_bound(x: float) -> str:
-    return ("∞" if x > 0 else "−∞") if math.isinf(x) else _fmt3(x)
 
 
 def _health_table(health: Any) -> tuple[list[str], list[list[str]]]:
@@ -686,7 +667,51 @@ def document_blocks(context: Mapping[str, Any]) -> tuple[dict[str, str], list[_B
     if not isinstance(sc, Mapping) or not str(sc.get("name", "")).strip():
         raise InputError("appendix context['scenario']: expected a dict with a non-empty 'name'")
 
+    meta = _document_meta(context, sc)
+    top_k = int(context.get("top_k", 10))
+    if top_k < 1:
+        raise InputError(f"appendix context['top_k'] = {top_k}: expected an integer >= 1")
 
+    blocks: list[_Block] = []
+    paras, lists = _caution_parts(caution_text())
+    blocks.append(_b("caution", paragraphs=paras, lists=lists))
+    sections = [
+        ("Scenario", "scenario", _scenario_blocks(sc)),
+        ("Data sources", "data", _data_source_blocks(context.get("data_sources"))),
+        ("Method summary", "method", _method_blocks(context)),
+        ("Assumptions and limits of ray theory", "limits",
+         [_b("bullets", items=[str(a) for a in (context.get("assumptions") or DEFAULT_ASSUMPTIONS)])]),
+        ("Ranked coastline segments", "ranking", _ranking_blocks(context, top_k)),
+    ]
+    figs = _figure_items(context.get("figures"), "figures")
+    if figs:
+        sections.append(("Figures", "figures", [_b("figure", path=path, caption=f"Figure {i}. {cap}")
+                                                for i, (path, cap) in enumerate(figs, start=1)]))
+    if context.get("points") is not None:
+        cols, rows = _as_table(context["points"], "points")
+        sections.append(("Points of interest", "points", [
+            _b("table", columns=[_pretty_key(c) for c in cols], rows=rows, caption="", small=True)]))
+    sections.append(("Validation summary", "validation", _validation_blocks(context)))
+    sections.append(("Numerical health checks", "health", _health_blocks(context.get("health"))))
+    n = 0
+    for title, anchor, body in sections:
+        n += 1
+        blocks.append(_b("h2", text=f"{n}. {title}", anchor=anchor))
+        blocks.extend(body)
+    for key in ("ensemble", "comparison", "wave_check"):
+        if context.get(key) is not None:
+            n += 1
+            blocks.extend(_optional_section(key, context[key], n))
+    if context.get("run_info") is not None:
+        n += 1
+        blocks.append(_b("h2", text=f"{n}. Run information", anchor="run"))
+        cols, rows = _as_table(context["run_info"], "run_info")
+        blocks.append(_b("table", columns=cols, rows=rows, caption="", kv=True))
+    return meta, blocks
+
+
+def _document_meta(context: Mapping[str, Any], sc: Mapping[str, Any]) -> dict[str, str]:
+    """Title, subtitle, date (UTC, to the minute), tool version and run id of the document."""
     date = context.get("date")
     if date is None:
         date = _dt.datetime.now(_dt.UTC)
@@ -705,7 +730,7 @@ def document_blocks(context: Mapping[str, Any]) -> tuple[dict[str, str], list[_B
         raise InputError(
             f"appendix context['date']: expected an ISO string or datetime, got {type(date).__name__}"
         )
-    meta = {
+    return {
         "title": str(
             context.get("title") or "Planning-study appendix: coastal tsunami-energy focusing screening"
         ),
@@ -714,18 +739,11 @@ def document_blocks(context: Mapping[str, Any]) -> tuple[dict[str, str], list[_B
         "version": str(context.get("tool_version") or __version__),
         "run_id": str(context.get("run_id") or ""),
     }
-    top_k = int(context.get("top_k", 10))
-    if top_k < 1:
-        raise InputError(f"appendix context['top_k'] = {top_k}: expected an integer >= 1")
 
+
+def _scenario_blocks(sc: Mapping[str, Any]) -> list[_Block]:
+    """Section "Scenario": name, description, grid, sources and run settings."""
     blocks: list[_Block] = []
-    paras, lists = _caution_parts(caution_text())
-    blocks.append(_b("caution", paragraphs=paras, lists=lists))
-    n = 0
-
-    # 1 scenario
-    n += 1
-    blocks.append(_b("h2", text=f"{n}. Scenario", anchor="scenario"))
     blocks.append(_b("p", text=f"Name: {sc['name']}", strong=True))
     for p in _paragraphs(sc.get("description"), "scenario.description"):
         blocks.append(_b("p", text=p))
@@ -761,11 +779,12 @@ def document_blocks(context: Mapping[str, Any]) -> tuple[dict[str, str], list[_B
         cols, rows = _as_table(sc["settings"], "scenario.settings")
         blocks.append(_b("h3", text="Run settings"))
         blocks.append(_b("table", columns=cols, rows=rows, caption="", kv=True))
+    return blocks
 
-    # 2 data sources
-    n += 1
-    blocks.append(_b("h2", text=f"{n}. Data sources", anchor="data"))
-    ds = context.get("data_sources")
+
+def _data_source_blocks(ds: Any) -> list[_Block]:
+    """Section "Data sources": one bullet per source (name, description, citation, licence, path, hash)."""
+    blocks: list[_Block] = []
     if ds:
         items = []
         for d in ds if isinstance(ds, Sequence) and not isinstance(ds, str) else [ds]:
@@ -782,10 +801,12 @@ def document_blocks(context: Mapping[str, Any]) -> tuple[dict[str, str], list[_B
         blocks.append(_b("bullets", items=items))
     else:
         blocks.append(_b("note", text="No data sources were supplied for this run."))
+    return blocks
 
-    # 3 method
-    n += 1
-    blocks.append(_b("h2", text=f"{n}. Method summary", anchor="method"))
+
+def _method_blocks(context: Mapping[str, Any]) -> list[_Block]:
+    """Section "Method summary": the method texts and equations, then the references."""
+    blocks: list[_Block] = []
     method = context.get("method") or DEFAULT_METHOD
     method = list(method) + list(context.get("extra_method") or [])
     for sec in method:
@@ -799,46 +820,30 @@ def document_blocks(context: Mapping[str, Any]) -> tuple[dict[str, str], list[_B
     refs = list(context.get("references") or DEFAULT_REFERENCES) + list(context.get("extra_references") or [])
     blocks.append(_b("h3", text="References"))
     blocks.append(_b("refs", items=[str(r) for r in refs]))
+    return blocks
 
-    # 4 assumptions
-    n += 1
-    blocks.append(_b("h2", text=f"{n}. Assumptions and limits of ray theory", anchor="limits"))
-    blocks.append(_b("bullets", items=[str(a) for a in (context.get("assumptions") or DEFAULT_ASSUMPTIONS)]))
 
-    # 5 results: ranking + figures
-    n += 1
-    blocks.append(_b("h2", text=f"{n}. Ranked coastline segments", anchor="ranking"))
+def _ranking_blocks(context: Mapping[str, Any], top_k: int) -> list[_Block]:
+    """Section "Ranked coastline segments": the explanation and the table."""
+    blocks: list[_Block] = []
     cols, rows, shown = _ranking_table(context["ranking"], top_k, context.get("ranking_columns") or [])
     nseg = len(context["ranking"])
-    n_ranked = sum(1 for r in rows if r[0] != "–")
-    n_unrel = shown - n_ranked
-    if n_ranked == 0:
-        lead = (f"No segment of the {nseg} coastline segments is reliable (each has too few contributing rays), "
-                f"so there is no ranking. The table lists the {n_unrel} highest lensing factors, all unreliable: "
-                "read them as a prompt for a run with more rays or longer segments, not as a result.")
-    else:
-        lead = (f"The {n_ranked} highest-ranked of {nseg} coastline segments by lensing factor, with 5–95 % "
-                "intervals where available"
-                + (f", followed by {n_unrel} segment{'s' if n_unrel != 1 else ''} flagged unreliable (too few "
-                   "contributing rays) whose value would place them among the ranked ones; unreliable segments "
-                   "carry no rank: read them as a prompt for a finer run, not as a result." if n_unrel else "."))
-    blocks.append(_b("p", text=lead))
+    blocks.append(
+        _b(
+            "p",
+            text=f"The {shown} highest-ranked of {nseg} coastline segments by lensing factor, with 5–95 % "
+            "intervals where available. Segments flagged unreliable (too few contributing rays) carry "
+            "no rank and are listed after the ranked ones when their value would place them among "
+            "them: read them as a prompt for a finer run, not as a result.",
+        )
+    )
     blocks.append(_b("table", columns=cols, rows=rows, caption="Ranked coastline segments", small=True))
-    figs = _figure_items(context.get("figures"), "figures")
-    if figs:
-        n += 1
-        blocks.append(_b("h2", text=f"{n}. Figures", anchor="figures"))
-        for i, (path, cap) in enumerate(figs, start=1):
-            blocks.append(_b("figure", path=path, caption=f"Figure {i}. {cap}"))
-    if context.get("points") is not None:
-        n += 1
-        blocks.append(_b("h2", text=f"{n}. Points of interest", anchor="points"))
-        cols, rows = _as_table(context["points"], "points")
-        blocks.append(_b("table", columns=[_pretty_key(c) for c in cols], rows=rows, caption="", small=True))
+    return blocks
 
-    # validation and health
-    n += 1
-    blocks.append(_b("h2", text=f"{n}. Validation summary", anchor="validation"))
+
+def _validation_blocks(context: Mapping[str, Any]) -> list[_Block]:
+    """Section "Validation summary": the outside-reference checks and their notes."""
+    blocks: list[_Block] = []
     if context.get("validation") is not None:
         cols, rows = _as_table(context["validation"], "validation")
         blocks.append(_b("table", columns=[_pretty_key(c) for c in cols], rows=rows, caption=""))
@@ -846,25 +851,15 @@ def document_blocks(context: Mapping[str, Any]) -> tuple[dict[str, str], list[_B
         blocks.append(_b("note", text="No validation summary was supplied for this run."))
     for p in _paragraphs(context.get("validation_notes"), "validation_notes"):
         blocks.append(_b("p", text=p))
-    n += 1
-    blocks.append(_b("h2", text=f"{n}. Numerical health checks", anchor="health"))
-    if context.get("health") is not None:
-        cols, rows = _health_table(context["health"])
-        blocks.append(_b("table", columns=cols, rows=rows, caption="", kv=len(cols) == 2))
-    else:
-        blocks.append(_b("note", text="No numerical health checks were supplied for this run."))
+    return blocks
 
-    for key in ("ensemble", "comparison", "wave_check"):
-        if context.get(key) is not None:
-            n += 1
-            blocks.extend(_optional_section(key, context[key], n))
 
-    if context.get("run_info") is not None:
-        n += 1
-        blocks.append(_b("h2", text=f"{n}. Run information", anchor="run"))
-        cols, rows = _as_table(context["run_info"], "run_info")
-        blocks.append(_b("table", columns=cols, rows=rows, caption="", kv=True))
-    return meta, blocks
+def _health_blocks(health: Any) -> list[_Block]:
+    """Section "Numerical health checks"."""
+    if health is None:
+        return [_b("note", text="No numerical health checks were supplied for this run.")]
+    cols, rows = _health_table(health)
+    return [_b("table", columns=cols, rows=rows, caption="", kv=len(cols) == 2)]
 
 
 # --------------------------------------------------------------------------------------
@@ -1071,15 +1066,38 @@ def _png_size(path: pathlib.Path) -> tuple[int, int]:
 
 
 def _render_pdf(
-    meta: Mapping[str, str], blocks: list[_Block], out_pdf: pathlib.Path, *, compress: bool = True,
-    block_pages: list[int] | None = None,
+    meta: Mapping[str, str], blocks: list[_Block], out_pdf: pathlib.Path, *, compress: bool = True
 ) -> int:
-    from fpdf import FPDF
-    from fpdf.fonts import FontFace
+    from fpdf.fonts import FontFace  # fpdf2 is needed only for the PDF: imported when one is written
 
     fonts = _font_paths()
     fam = "DejaVu" if fonts else "Helvetica"
     T = (lambda s: str(s)) if fonts else _latin1  # noqa: E731
+    pdf = _pdf_document(meta, fonts, fam, T, compress)
+    _pdf_title_block(pdf, fam, T, meta)
+    for bi, b in enumerate(blocks):
+        k = b["kind"]
+        if k == "caution":
+            _pdf_caution_box(pdf, fam, T, b)
+        elif k == "table":
+            _pdf_table(pdf, fam, T, b, FontFace)
+        elif k == "figure":
+            _pdf_figure(pdf, fam, T, b)
+        else:
+            _pdf_text_block(pdf, fam, T, b, functools.partial(_pdf_next_height, pdf, blocks, bi))
+    tmp = out_pdf.with_name(f".{out_pdf.name}.part")
+    try:
+        pdf.output(str(tmp))
+        os.replace(tmp, out_pdf)
+    finally:
+        if tmp.exists():
+            tmp.unlink()
+    return pdf.pages_count
+
+
+def _pdf_document(meta: Mapping[str, str], fonts: dict, fam: str, T, compress: bool):
+    """An A4 document with the running header and footer, the fonts and the metadata, on its first page."""
+    from fpdf import FPDF  # fpdf2 is needed only for the PDF: imported when one is written
 
     class _PDF(FPDF):
         def header(self) -> None:  # noqa: D401 - fpdf2 hook
@@ -1132,9 +1150,11 @@ def _render_pdf(
         d = _dt.datetime.strptime(str(meta["date"]), "%Y-%m-%d").replace(tzinfo=_dt.UTC)
     pdf.set_creation_date(d)
     pdf.add_page()
-    epw = pdf.epw
+    return pdf
 
-    # title block
+
+def _pdf_title_block(pdf, fam: str, T, meta: Mapping[str, str]) -> None:
+    epw = pdf.epw
     pdf.set_font(fam, "B", 16)
     pdf.set_text_color(31, 59, 87)
     pdf.multi_cell(epw, 7.5, T(meta["title"]), align="L", new_x="LMARGIN", new_y="NEXT")
@@ -1158,163 +1178,165 @@ def _render_pdf(
     pdf.set_line_width(0.2)
     pdf.ln(5)
 
-    def ensure(h: float) -> None:
-        if pdf.get_y() + h > pdf.page_break_trigger:
-            pdf.add_page()
 
-    def fig_size(b: Mapping[str, Any]) -> tuple[float, float]:
-        wpx, hpx = _png_size(b["path"])
-        w_mm = min(epw, 0.9 * epw * (wpx / 1200.0) if wpx < 1200 else 0.9 * epw)
-        h_mm = w_mm * hpx / wpx
-        max_h = pdf.page_break_trigger - pdf.t_margin - 24
-        if h_mm > max_h:
-            h_mm = max_h
-            w_mm = h_mm * wpx / hpx
-        return w_mm, h_mm
-
-    def next_height(i: int) -> float:
-        """Rough height of the block after a heading (to keep headings with their content)."""
-        if i + 1 >= len(blocks):
-            return 0.0
-        nb = blocks[i + 1]
-        # exactly what the next block demands before it starts on this page (keep-with-next)
-        if nb["kind"] == "figure":
-            pdf.set_font(fam, "", 8.5)
-            cap_lines = (len(pdf.multi_cell(epw, 4.2, T(nb["caption"]), dry_run=True, output="LINES"))
-                         if nb["caption"] else 0)
-            return 0.85 * fig_size(nb)[1] + cap_lines * 4.2 + 4 + 1.0
-        if nb["kind"] == "table":
-            return _table_need(pdf, fam, T, nb) + 1.0
-        if nb["kind"] in ("h3",):
-            return 8.0 + next_height(i + 1)
-        return 12.0
-
-    starts = block_pages if block_pages is not None else []
-    for bi, b in enumerate(blocks):
-        k = b["kind"]
-        starts.append(pdf.page)  # corrected below where a block moves itself to a new page
-        if k == "caution":
-            x0, y0 = pdf.get_x(), pdf.get_y()
-            lines: list[tuple[str, str]] = []
-            for i, p in enumerate(b["paragraphs"]):
-                lines.append(("B" if i == 0 else "", p))
-            for head, items in b["lists"]:
-                if head:
-                    lines.append(("", head))
-                for it in items:
-                    lines.append(("bullet", it))
-            # measure the box height first (dry run), then draw the box and the text
-            pad = 3.0
-            inner = epw - 2 * pad
-            total = 7.0
-            for style, text in lines:
-                pdf.set_font(fam, "B" if style == "B" else "", 9)
-                w_ = inner - (4 if style == "bullet" else 0)
-                n = len(pdf.multi_cell(w_, 4.4, T(text), dry_run=True, output="LINES"))
-                total += n * 4.4 + 1.2
-            pdf.set_fill_color(255, 243, 224)
-            pdf.set_draw_color(160, 82, 45)
-            pdf.set_line_width(0.6)
-            pdf.rect(x0, y0, epw, total + pad, style="DF")
-            pdf.set_line_width(0.2)
-            pdf.set_xy(x0 + pad, y0 + pad)
-            pdf.set_font(fam, "B", 11)
-            pdf.set_text_color(122, 51, 0)
-            pdf.cell(inner, 6, T("Cautions"), new_x="LMARGIN", new_y="NEXT")
-            pdf.set_text_color(0, 0, 0)
-            pdf.set_y(pdf.get_y() + 1)
-            for style, text in lines:
-                if style == "bullet":
-                    pdf.set_font(fam, "", 9)
-                    pdf.set_x(x0 + pad)
-                    pdf.cell(4, 4.4, T("•"))
-                    pdf.multi_cell(inner - 4, 4.4, T(text), align="L", new_x="LMARGIN", new_y="NEXT")
-                else:
-                    pdf.set_font(fam, "B" if style == "B" else "", 9)
-                    pdf.set_x(x0 + pad)
-                    pdf.multi_cell(inner, 4.4, T(text), align="L", new_x="LMARGIN", new_y="NEXT")
-                pdf.set_y(pdf.get_y() + 1.2)
-            pdf.set_y(y0 + total + pad + 4)
-        elif k == "h2":
-            ensure(10 + next_height(bi))
-            starts[-1] = pdf.page
-            pdf.ln(2)
-            pdf.set_font(fam, "B", 12.5)
-            pdf.set_text_color(31, 59, 87)
-            pdf.multi_cell(epw, 6.5, T(b["text"]), new_x="LMARGIN", new_y="NEXT")
-            pdf.set_draw_color(200, 211, 221)
-            pdf.line(pdf.l_margin, pdf.get_y(), pdf.w - pdf.r_margin, pdf.get_y())
-            pdf.set_text_color(0, 0, 0)
-            pdf.ln(2)
-        elif k == "h3":
-            ensure(7 + next_height(bi))
-            starts[-1] = pdf.page
-            pdf.ln(1)
-            pdf.set_font(fam, "B", 10.5)
-            pdf.multi_cell(epw, 5.5, T(b["text"]), new_x="LMARGIN", new_y="NEXT")
-        elif k in ("p", "note"):
-            pdf.set_font(fam, "I" if k == "note" else ("B" if b.get("strong") else ""), 9.5)
-            if k == "note":
-                pdf.set_text_color(100, 100, 100)
-            pdf.multi_cell(
-                epw, 4.8, T(b["text"]), align="J" if k == "p" else "L", new_x="LMARGIN", new_y="NEXT"
-            )
-            pdf.set_text_color(0, 0, 0)
-            pdf.ln(1.2)
-        elif k == "eq":
-            pdf.set_font(fam, "", 10)
-            ensure(8)
-            pdf.set_fill_color(243, 246, 249)
-            pdf.set_x(pdf.l_margin + 6)
-            pdf.multi_cell(epw - 6, 6, T("  " + b["text"]), fill=True, new_x="LMARGIN", new_y="NEXT")
-            pdf.ln(1)
-        elif k in ("bullets", "refs"):
-            pdf.set_font(fam, "", 9.5 if k == "bullets" else 8.8)
-            for i, it in enumerate(b["items"], start=1):
-                mark = "•" if k == "bullets" else f"{i}."
-                ensure(6)
-                pdf.set_x(pdf.l_margin + 2)
-                pdf.cell(6, 4.8, T(mark))
-                pdf.multi_cell(epw - 8, 4.8, T(it), new_x="LMARGIN", new_y="NEXT")
-                pdf.ln(0.8)
-        elif k == "table":
-            starts[-1] = _pdf_table(pdf, fam, T, b, FontFace)
-        elif k == "figure":
-            w_mm, h_mm = fig_size(b)
-            pdf.set_font(fam, "", 8.5)
-            cap_lines = (
-                len(pdf.multi_cell(epw, 4.2, T(b["caption"]), dry_run=True, output="LINES"))
-                if b["caption"]
-                else 0
-            )
-            cap_h = cap_lines * 4.2 + 4
-            room = pdf.page_break_trigger - pdf.get_y() - cap_h
-            if h_mm > room and room >= 0.85 * h_mm:  # shrink a little rather than leave a gap
-                w_mm, h_mm = w_mm * room / h_mm, room
-            ensure(h_mm + cap_h)
-            starts[-1] = pdf.page
-            x = pdf.l_margin + (epw - w_mm) / 2
-            pdf.image(str(b["path"]), x=x, y=pdf.get_y(), w=w_mm, h=h_mm)
-            pdf.set_y(pdf.get_y() + h_mm + 1.5)
-            if b["caption"]:
-                pdf.multi_cell(epw, 4.2, T(b["caption"]), new_x="LMARGIN", new_y="NEXT")
-            pdf.ln(3)
-    tmp = out_pdf.with_name(f".{out_pdf.name}.part")
-    try:
-        pdf.output(str(tmp))
-        os.replace(tmp, out_pdf)
-    finally:
-        if tmp.exists():
-            tmp.unlink()
-    return pdf.pages_count
+def _pdf_ensure(pdf, h: float) -> None:
+    """Start a new page unless ``h`` mm still fit on this one."""
+    if pdf.get_y() + h > pdf.page_break_trigger:
+        pdf.add_page()
 
 
-def _table_layout(pdf, fam: str, T, b: Mapping[str, Any]):
-    """Column widths and the estimated height of a table block (None for a table without columns)."""
+def _pdf_fig_size(pdf, b: Mapping[str, Any]) -> tuple[float, float]:
+    """Width and height [mm] of a figure block on the page."""
+    epw = pdf.epw
+    wpx, hpx = _png_size(b["path"])
+    w_mm = min(epw, 0.9 * epw * (wpx / 1200.0) if wpx < 1200 else 0.9 * epw)
+    h_mm = w_mm * hpx / wpx
+    max_h = pdf.page_break_trigger - pdf.t_margin - 24
+    if h_mm > max_h:
+        h_mm = max_h
+        w_mm = h_mm * wpx / hpx
+    return w_mm, h_mm
+
+
+def _pdf_next_height(pdf, blocks: list[_Block], i: int) -> float:
+    """Rough height of the block after a heading (to keep headings with their content)."""
+    if i + 1 >= len(blocks):
+        return 0.0
+    nb = blocks[i + 1]
+    if nb["kind"] == "figure":
+        return 0.7 * _pdf_fig_size(pdf, nb)[1]
+    if nb["kind"] == "table":
+        size = 7.2 if nb.get("small") else 8.2
+        est = (len(nb["rows"]) + 1) * (size * 0.5 + 2.2) + 4
+        return est if est < 110 else 14.0
+    if nb["kind"] in ("h3",):
+        return 8.0 + _pdf_next_height(pdf, blocks, i + 1)
+    return 12.0
+
+
+def _pdf_caution_box(pdf, fam: str, T, b: Mapping[str, Any]) -> None:
+    """The cautions: a framed box, its height measured first (dry run)."""
+    epw = pdf.epw
+    x0, y0 = pdf.get_x(), pdf.get_y()
+    lines: list[tuple[str, str]] = []
+    for i, p in enumerate(b["paragraphs"]):
+        lines.append(("B" if i == 0 else "", p))
+    for head, items in b["lists"]:
+        if head:
+            lines.append(("", head))
+        for it in items:
+            lines.append(("bullet", it))
+    # measure the box height first (dry run), then draw the box and the text
+    pad = 3.0
+    inner = epw - 2 * pad
+    total = 7.0
+    for style, text in lines:
+        pdf.set_font(fam, "B" if style == "B" else "", 9)
+        w_ = inner - (4 if style == "bullet" else 0)
+        n = len(pdf.multi_cell(w_, 4.4, T(text), dry_run=True, output="LINES"))
+        total += n * 4.4 + 1.2
+    pdf.set_fill_color(255, 243, 224)
+    pdf.set_draw_color(160, 82, 45)
+    pdf.set_line_width(0.6)
+    pdf.rect(x0, y0, epw, total + pad, style="DF")
+    pdf.set_line_width(0.2)
+    pdf.set_xy(x0 + pad, y0 + pad)
+    pdf.set_font(fam, "B", 11)
+    pdf.set_text_color(122, 51, 0)
+    pdf.cell(inner, 6, T("Cautions"), new_x="LMARGIN", new_y="NEXT")
+    pdf.set_text_color(0, 0, 0)
+    pdf.set_y(pdf.get_y() + 1)
+    for style, text in lines:
+        if style == "bullet":
+            pdf.set_font(fam, "", 9)
+            pdf.set_x(x0 + pad)
+            pdf.cell(4, 4.4, T("•"))
+            pdf.multi_cell(inner - 4, 4.4, T(text), align="L", new_x="LMARGIN", new_y="NEXT")
+        else:
+            pdf.set_font(fam, "B" if style == "B" else "", 9)
+            pdf.set_x(x0 + pad)
+            pdf.multi_cell(inner, 4.4, T(text), align="L", new_x="LMARGIN", new_y="NEXT")
+        pdf.set_y(pdf.get_y() + 1.2)
+    pdf.set_y(y0 + total + pad + 4)
+
+
+def _pdf_text_block(pdf, fam: str, T, b: Mapping[str, Any], next_height) -> None:
+    """Headings, paragraphs, notes, equations, bullet and reference lists (``next_height()``: the height
+    of what follows, to keep a heading with it)."""
+    epw = pdf.epw
+    ensure = functools.partial(_pdf_ensure, pdf)
+    k = b["kind"]
+    if k == "h2":
+        ensure(10 + next_height())
+        pdf.ln(2)
+        pdf.set_font(fam, "B", 12.5)
+        pdf.set_text_color(31, 59, 87)
+        pdf.multi_cell(epw, 6.5, T(b["text"]), new_x="LMARGIN", new_y="NEXT")
+        pdf.set_draw_color(200, 211, 221)
+        pdf.line(pdf.l_margin, pdf.get_y(), pdf.w - pdf.r_margin, pdf.get_y())
+        pdf.set_text_color(0, 0, 0)
+        pdf.ln(2)
+    elif k == "h3":
+        ensure(7 + next_height())
+        pdf.ln(1)
+        pdf.set_font(fam, "B", 10.5)
+        pdf.multi_cell(epw, 5.5, T(b["text"]), new_x="LMARGIN", new_y="NEXT")
+    elif k in ("p", "note"):
+        pdf.set_font(fam, "I" if k == "note" else ("B" if b.get("strong") else ""), 9.5)
+        if k == "note":
+            pdf.set_text_color(100, 100, 100)
+        pdf.multi_cell(
+            epw, 4.8, T(b["text"]), align="J" if k == "p" else "L", new_x="LMARGIN", new_y="NEXT"
+        )
+        pdf.set_text_color(0, 0, 0)
+        pdf.ln(1.2)
+    elif k == "eq":
+        pdf.set_font(fam, "", 10)
+        ensure(8)
+        pdf.set_fill_color(243, 246, 249)
+        pdf.set_x(pdf.l_margin + 6)
+        pdf.multi_cell(epw - 6, 6, T("  " + b["text"]), fill=True, new_x="LMARGIN", new_y="NEXT")
+        pdf.ln(1)
+    elif k in ("bullets", "refs"):
+        pdf.set_font(fam, "", 9.5 if k == "bullets" else 8.8)
+        for i, it in enumerate(b["items"], start=1):
+            mark = "•" if k == "bullets" else f"{i}."
+            ensure(6)
+            pdf.set_x(pdf.l_margin + 2)
+            pdf.cell(6, 4.8, T(mark))
+            pdf.multi_cell(epw - 8, 4.8, T(it), new_x="LMARGIN", new_y="NEXT")
+            pdf.ln(0.8)
+
+
+def _pdf_figure(pdf, fam: str, T, b: Mapping[str, Any]) -> None:
+    """A figure scaled to the page, kept with its caption."""
+    epw = pdf.epw
+    ensure = functools.partial(_pdf_ensure, pdf)
+    w_mm, h_mm = _pdf_fig_size(pdf, b)
+    pdf.set_font(fam, "", 8.5)
+    cap_lines = (
+        len(pdf.multi_cell(epw, 4.2, T(b["caption"]), dry_run=True, output="LINES"))
+        if b["caption"]
+        else 0
+    )
+    cap_h = cap_lines * 4.2 + 4
+    room = pdf.page_break_trigger - pdf.get_y() - cap_h
+    if h_mm > room and room >= 0.85 * h_mm:  # shrink a little rather than leave a gap
+        w_mm, h_mm = w_mm * room / h_mm, room
+    ensure(h_mm + cap_h)
+    x = pdf.l_margin + (epw - w_mm) / 2
+    pdf.image(str(b["path"]), x=x, y=pdf.get_y(), w=w_mm, h=h_mm)
+    pdf.set_y(pdf.get_y() + h_mm + 1.5)
+    if b["caption"]:
+        pdf.multi_cell(epw, 4.2, T(b["caption"]), new_x="LMARGIN", new_y="NEXT")
+    pdf.ln(3)
+
+
+def _pdf_table(pdf, fam: str, T, b: Mapping[str, Any], FontFace) -> None:
     cols = [T(c) for c in b["columns"]]
     rows = [[T(c) for c in r] for r in b["rows"]]
     if not cols:
-        return None
+        return
     size = 7.2 if b.get("small") else 8.2
     pdf.set_font(fam, "", size)
     # column widths: never narrower than the longest word, as wide as the content if it fits
@@ -1363,29 +1385,10 @@ def _table_layout(pdf, fam: str, T, b: Mapping[str, Any]):
         return n * size * 0.5 + 1.8
 
     est = _row_h(cols) + sum(_row_h(r) for r in rows) + 4 + (5 if b.get("caption") else 0)
-    return cols, rows, size, widths, width, epw, est
-
-
-def _table_need(pdf, fam: str, T, b: Mapping[str, Any]) -> float:
-    """Height [mm] a table block needs on the current page before it starts (see :func:`_pdf_table`)."""
-    lay = _table_layout(pdf, fam, T, b)
-    if lay is None:
-        return 0.0
-    est = lay[-1]
-    return est if est < 110 else 18.0
-
-
-def _pdf_table(pdf, fam: str, T, b: Mapping[str, Any], FontFace) -> int:
-    """Draw a table block; returns the page it starts on."""
-    lay = _table_layout(pdf, fam, T, b)
-    if lay is None:
-        return pdf.page
-    cols, rows, size, widths, width, epw, est = lay
     if est < 110 and pdf.get_y() + est > pdf.page_break_trigger:
         pdf.add_page()
     elif pdf.get_y() + 18 > pdf.page_break_trigger:
         pdf.add_page()
-    start = pdf.page
     if b.get("caption"):
         pdf.set_font(fam, "B", 8.5)
         pdf.cell(epw, 5, T(b["caption"]), new_x="LMARGIN", new_y="NEXT")
@@ -1412,7 +1415,6 @@ def _pdf_table(pdf, fam: str, T, b: Mapping[str, Any], FontFace) -> int:
             for j in range(len(cols)):
                 row.cell(r[j] if j < len(r) else "")
     pdf.ln(3)
-    return start
 
 
 # --------------------------------------------------------------------------------------
@@ -1443,8 +1445,7 @@ def build_appendix(
     Returns
     -------
     dict
-        ``{"html": Path, "pdf": Path | None, "pdf_pages": int | None, "sections": [str]}``, and with
-        a PDF ``"pdf_block_pages"``: ``(kind, text, page)`` of every document block.
+        ``{"html": Path, "pdf": Path | None, "pdf_pages": int | None, "sections": [str]}``.
 
     Raises
     ------
@@ -1470,14 +1471,9 @@ def build_appendix(
     if out_pdf is not None:
         pdf_path = pathlib.Path(out_pdf)
         pdf_path.parent.mkdir(parents=True, exist_ok=True)
-        starts: list[int] = []
-        pages = _render_pdf(meta, blocks, pdf_path, compress=_compress_pdf, block_pages=starts)
+        pages = _render_pdf(meta, blocks, pdf_path, compress=_compress_pdf)
     sections = [b["text"] for b in blocks if b["kind"] == "h2"]
-    out = {"html": out_html, "pdf": pdf_path, "pdf_pages": pages, "sections": sections}
-    if pdf_path is not None:
-        # the page each block starts on (headings must start on the page of the block after them)
-        out["pdf_block_pages"] = [(b["kind"], str(b.get("text", "")), pg) for b, pg in zip(blocks, starts)]
-    return out
+    return {"html": out_html, "pdf": pdf_path, "pdf_pages": pages, "sections": sections}
 
 
 def _iter_texts(blocks: Iterable[_Block]) -> Iterable[str]:

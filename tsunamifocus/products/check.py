@@ -117,7 +117,6 @@ def run_wave_check(
     dict
         The agreement statistics (``spearman``, ``kendall``, ``topk_overlap`` ...) and output paths.
     """
-
     run_dir = pathlib.Path(run_dir)
     if k < 1:
         raise InputError(f"--top {k}: expected k >= 1")

@@ -23,7 +23,6 @@ __all__ = ['compare_to_folder']
 
 def _write_csv(df: pd.DataFrame, path: Path) -> None:
     """Write a CSV whose leading ``#`` comment lines carry the caution (read with comment="#")."""
-
     header = "".join(f"# {line}\n" if line else "#\n" for line in ["CAUTION:", *caution_lines(width=100)])
     tmp = path.with_name(f".{path.name}.part")
     with open(tmp, "w", encoding="utf-8", newline="") as fh:
@@ -59,7 +58,6 @@ def compare_to_folder(
         ``ranking_csv``, ``correlations_csv``, ``envelope_nc``, ``envelope_<layer>_tif``,
         ``differences_nc``, ``summary_md``, ``comparison_json``.
     """
-
     comp = runs if isinstance(runs, Comparison) else compare_runs(runs, top_k=top_k)
     out = Path(out_dir)
     out.mkdir(parents=True, exist_ok=True)

@@ -20,7 +20,6 @@ def _report_context(a: SourceAnalysis, scenario: Any, depth: xr.DataArray, point
                     health: dict, figs: dict, ensemble: Any, extra_sections: dict | None, *,
                     choices: dict | None = None) -> dict:
     """The data the appendix needs (keys of tsunamifocus.report.CONTEXT_KEYS)."""
-
     f = a.focusing
     g = summarize_grid(depth)
     grid = {

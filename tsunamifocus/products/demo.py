@@ -131,7 +131,6 @@ def run_demo(out: str | os.PathLike, *, overwrite: bool = False, rays: int | Non
     The demo inputs (generated deterministically) are written to :func:`demo_cache_dir`, so the
     run's manifest keeps pointing at readable inputs and the run can be reproduced from it.
     """
-
     out = pathlib.Path(out)
     refuse_filled_folder(out, overwrite)
     sc = parse_scenario(demo_inputs(demo_cache_dir()))

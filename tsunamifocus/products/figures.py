@@ -35,6 +35,7 @@ import numpy as np
 import pandas as pd
 import xarray as xr
 from matplotlib import colors as mcolors
+from matplotlib.cm import ScalarMappable
 from matplotlib import patheffects
 from matplotlib.collections import LineCollection
 from matplotlib.figure import Figure
@@ -48,10 +49,6 @@ from ..constants import __version__
 from ..errors import InputError
 from ..focusing.agreement import _paired, compare_rankings, topk_mask
 from ..grid import GridInfo
-from ..io.styles import NO_VALUE_COLOUR, SEGMENT_CASING_PT, SEGMENT_WIDTH_PT, energy_scale, lensing_scale
-from ..io.styles import nice_time_step as _nice_time_step
-from ..io.styles import symmetric_log_range as _symmetric_log_range
-from ..io.styles import tick_label as _tick_label
 from ..propagation.wave import WAVE_LIMITS
 
 __all__ = ['plot_ray_vs_wave', 'CAUTION_FOOTER', 'DPI', 'plot_ray_field', 'plot_lensing_map', 'plot_ranking',
@@ -657,6 +654,11 @@ def _coast_contour(ax, depth: xr.DataArray, info: GridInfo, zorder: float = 6) -
         )
 
 
+def _finite_pos(a: np.ndarray) -> np.ndarray:
+    a = np.asarray(a, dtype=float)
+    return a[np.isfinite(a) & (a > 0)]
+
+
 def _land_legend_handles(has_land: bool, has_nodata: bool) -> list:
     h = []
     if has_land:
@@ -719,64 +721,12 @@ def plot_ray_field(
     if energy is None and paths is None:
         raise InputError("plot_ray_field: give an energy grid or ray paths (both are None)")
     fig, ax, geo = _new_map(info, title)
-    d = _values(depth)
-    sea = np.where(np.isfinite(d) & (d > 0), d, np.nan)
-    dmax = float(np.nanmax(sea)) if np.isfinite(sea).any() else 1.0
-    bathy_cmap = mcolors.LinearSegmentedColormap.from_list("bathy_greys", ["#f2f2f2", "#8a8a8a"])
-    im = ax.imshow(
-        sea,
-        origin="lower",
-        extent=_extent(info),
-        cmap=bathy_cmap,
-        vmin=0.0,
-        vmax=dmax,
-        interpolation="nearest",
-        zorder=1,
-    )
-    has_land, has_nodata = _land_and_nodata(ax, depth, info)
-    _coast_contour(ax, depth, info)
-    handles = _land_legend_handles(has_land, has_nodata)
+    im = _depth_backdrop(ax, depth, info)
+    handles = _land_and_coast(ax, depth, info)
     n_right = 0
-    if energy is not None:
-        einfo = _check_grid(energy, "plot_ray_field energy")
-        _same_kind(info, einfo, "plot_ray_field energy")
-        e = _values(energy)
-        escale = energy_scale(e)  # the one definition shared with the GIS style files
-        if escale is not None:
-            vmin, vmax = escale.vmin, escale.vmax
-            norm = mcolors.LogNorm(vmin=vmin, vmax=vmax, clip=True)
-            cmap = _cmap(escale.cmap)
-            with np.errstate(invalid="ignore", divide="ignore"):
-                t = np.where(np.isfinite(e) & (e > 0), norm(np.where(e > 0, e, vmin)), 0.0)
-            t = np.clip(np.ma.filled(t, 0.0), 0.0, 1.0)
-            rgba = cmap(t)
-            a0, a1, gamma = escale.alpha
-            rgba[..., 3] = np.where(np.isfinite(e) & (e > 0), a0 + a1 * t**gamma, 0.0)
-            ax.imshow(rgba, origin="lower", extent=_extent(einfo), interpolation="nearest", zorder=3)
-            from matplotlib.cm import ScalarMappable
-
-            sm = ScalarMappable(norm=norm, cmap=cmap)
-            cb = _right_colorbar(fig, ax, sm, extend="both")
-            cb.set_label("Ray energy per unit wavefront width\n(J m$^{-1}$, log scale)")
-            n_right += 1
-    lines = _normalize_paths(paths)
-    if lines:
-        if len(lines) > max_paths:
-            keep = np.linspace(0, len(lines) - 1, max_paths).round().astype(int)
-            lines = [lines[i] for i in keep]
-        segs = []
-        for a in lines:
-            if info.geographic:  # paths carry longitudes unwrapped along the ray
-                a = np.column_stack([info.wrap_lon(a[:, 0]), a[:, 1]])
-            segs.extend(_split_wrap(a, info.geographic))
-        color = _OKABE_BLUE if energy is not None else "#1b3a5c"
-        # fainter lines when there are many, so the energy branches stay visible
-        alpha = float(np.clip(6.0 / math.sqrt(len(lines)), 0.12, 0.5)) * (0.8 if energy is not None else 1.0)
-        lw = 0.45 if len(lines) <= 300 else 0.35
-        ax.add_collection(LineCollection(segs, colors=color, linewidths=lw, alpha=alpha, zorder=4))
-        handles.append(
-            Line2D([], [], color=color, lw=1.0, alpha=0.8, label=f"Ray paths ({len(lines)} shown)")
-        )
+    if energy is not None and _energy_overlay(fig, ax, energy, info):
+        n_right += 1
+    handles += _ray_paths(ax, paths, info, max_paths, faint=energy is not None)
     if coast_lines is not None and _draw_lines(
         ax, coast_lines, info.geographic, colors="black", linewidths=0.9, zorder=7
     ):
@@ -795,6 +745,80 @@ def plot_ray_field(
     cbd.set_label("Water depth (m)")
     return _finish(fig, out_path, ax=ax, geo=geo, handles=handles, right_cbars=n_right, bottom_cbars=1)
 
+def _depth_backdrop(ax, depth: xr.DataArray, info: GridInfo):
+    """Sea depths in light greys (the image, for the depth colour bar)."""
+    d = _values(depth)
+    sea = np.where(np.isfinite(d) & (d > 0), d, np.nan)
+    dmax = float(np.nanmax(sea)) if np.isfinite(sea).any() else 1.0
+    bathy_cmap = mcolors.LinearSegmentedColormap.from_list("bathy_greys", ["#f2f2f2", "#8a8a8a"])
+    return ax.imshow(
+        sea,
+        origin="lower",
+        extent=_extent(info),
+        cmap=bathy_cmap,
+        vmin=0.0,
+        vmax=dmax,
+        interpolation="nearest",
+        zorder=1,
+    )
+
+
+def _land_and_coast(ax, depth: xr.DataArray, info: GridInfo) -> list:
+    """Land and no-data cells, the coast contour; their legend entries."""
+    has_land, has_nodata = _land_and_nodata(ax, depth, info)
+    _coast_contour(ax, depth, info)
+    return _land_legend_handles(has_land, has_nodata)
+
+
+def _energy_overlay(fig, ax, energy: xr.DataArray, info: GridInfo) -> bool:
+    """Ray energy on a log scale, opacity rising with the value, and its colour bar; False if empty."""
+    einfo = _check_grid(energy, "plot_ray_field energy")
+    _same_kind(info, einfo, "plot_ray_field energy")
+    e = _values(energy)
+    pos = _finite_pos(e)
+    if pos.size:
+        vmax = float(np.percentile(pos, 99.5))
+        vmin = max(float(np.percentile(pos, 5.0)), vmax * 1e-4)
+        if not vmax > vmin:
+            vmin = vmax / 10.0
+        norm = mcolors.LogNorm(vmin=vmin, vmax=vmax, clip=True)
+        cmap = _cmap("magma_r")
+        with np.errstate(invalid="ignore", divide="ignore"):
+            t = np.where(np.isfinite(e) & (e > 0), norm(np.where(e > 0, e, vmin)), 0.0)
+        t = np.clip(np.ma.filled(t, 0.0), 0.0, 1.0)
+        rgba = cmap(t)
+        rgba[..., 3] = np.where(np.isfinite(e) & (e > 0), 0.15 + 0.85 * t**0.8, 0.0)
+        ax.imshow(rgba, origin="lower", extent=_extent(einfo), interpolation="nearest", zorder=3)
+        sm = ScalarMappable(norm=norm, cmap=cmap)
+        cb = _right_colorbar(fig, ax, sm, extend="both")
+        cb.set_label("Ray energy per unit wavefront width\n(J m$^{-1}$, log scale)")
+        return True
+    return False
+
+
+def _ray_paths(ax, paths: Any, info: GridInfo, max_paths: int, *, faint: bool) -> list:
+    """At most ``max_paths`` ray paths (evenly chosen), fainter over an energy map; their legend entry."""
+    handles: list = []
+    lines = _normalize_paths(paths)
+    if lines:
+        if len(lines) > max_paths:
+            keep = np.linspace(0, len(lines) - 1, max_paths).round().astype(int)
+            lines = [lines[i] for i in keep]
+        segs = []
+        for a in lines:
+            if info.geographic:  # paths carry longitudes unwrapped along the ray
+                a = np.column_stack([info.wrap_lon(a[:, 0]), a[:, 1]])
+            segs.extend(_split_wrap(a, info.geographic))
+        color = _OKABE_BLUE if faint else "#1b3a5c"
+        # fainter lines when there are many, so the energy branches stay visible
+        alpha = float(np.clip(6.0 / math.sqrt(len(lines)), 0.12, 0.5)) * (0.8 if faint else 1.0)
+        lw = 0.45 if len(lines) <= 300 else 0.35
+        ax.add_collection(LineCollection(segs, colors=color, linewidths=lw, alpha=alpha, zorder=4))
+        handles.append(
+            Line2D([], [], color=color, lw=1.0, alpha=0.8, label=f"Ray paths ({len(lines)} shown)")
+        )
+    return handles
+
 
 def _cmap(name: str):
     import matplotlib
@@ -805,6 +829,42 @@ def _cmap(name: str):
 # --------------------------------------------------------------------------------------
 # lensing map
 # --------------------------------------------------------------------------------------
+
+
+def _symmetric_log_range(values: Sequence[np.ndarray]) -> float:
+    """Half-range r (> 1) of a log colour scale [1/r, r] covering the 2-98 % of the data."""
+    allv = np.concatenate([_finite_pos(v).ravel() for v in values]) if values else np.array([])
+    if allv.size == 0:
+        return 2.0
+    lg = np.abs(np.log10(allv))
+    m = float(np.percentile(lg, 98.0))
+    for r in (1.5, 2.0, 3.0, 5.0, 10.0, 20.0, 50.0, 100.0):
+        if math.log10(r) >= m:
+            return r
+    return 100.0
+
+
+def _log_ticks(r: float) -> list[float]:
+    base = [1.0, 1.5, 2.0, 3.0, 5.0, 10.0, 20.0, 50.0, 100.0]
+    up = [b for b in base if b <= r * 1.0001]
+    if len(up) > 5:
+        up = [b for b in up if b in (1.0, 2.0, 5.0, 10.0, 20.0, 50.0, 100.0) or b == up[-1]]
+    down = sorted({1.0 / b for b in up if b > 1.0})
+    return down + up
+
+
+def _tick_label(v: float) -> str:
+    if v >= 1:
+        return f"{v:g}"
+    s = f"{v:.2f}".rstrip("0").rstrip(".")
+    return s
+
+
+def _nice_time_step(tmax_min: float) -> float:
+    for s in (1, 2, 5, 10, 15, 20, 30, 60, 120, 180, 240, 360, 720):
+        if tmax_min / s <= 12:
+            return float(s)
+    return 1440.0
 
 
 def _rank_order(segments: pd.DataFrame, by: str, rank_col: str | None) -> pd.DataFrame:
@@ -878,17 +938,41 @@ def plot_lensing_map(
         raise InputError(f"plot_lensing_map: top_k must be >= 0, got {top_k}")
     fig, ax, geo = _new_map(info, title)
     lf = _values(lensing_factor)
-    seg_vals = []
+    seg_vals = None
     if segments is not None:
         _check_segments(segments, ["geometry", "lensing_factor"], "plot_lensing_map")
-        seg_vals.append(pd.to_numeric(segments["lensing_factor"], errors="coerce").to_numpy(float))
-    # colour range: the raster's 2-98 % and most segment values (the few strongest segments may
-    # saturate at the ends of the scale, which the colour bar's arrows show; ranks are labelled)
-    # (the one definition shared with the GIS style files: io.styles.lensing_scale)
-    scale = lensing_scale(lf, seg_vals[0] if seg_vals else None)
-    r = scale.vmax
-    norm = mcolors.LogNorm(vmin=scale.vmin, vmax=scale.vmax, clip=False)
-    cmap = _cmap(scale.cmap).with_extremes(bad=(0.0, 0.0, 0.0, 0.0))
+        seg_vals = pd.to_numeric(segments["lensing_factor"], errors="coerce").to_numpy(float)
+    r = _lensing_range(lf, seg_vals)
+    norm = mcolors.LogNorm(vmin=1.0 / r, vmax=r, clip=False)
+    cmap = _cmap("PuOr_r").with_extremes(bad=(0.0, 0.0, 0.0, 0.0))
+    handles = _lensing_raster(fig, ax, lf, linfo, depth, info, cmap, norm, r)
+    if travel_time_min is not None:
+        handles += _travel_time_contours(ax, travel_time_min, info, contour_step_min)
+    if source_outline is not None and _draw_lines(
+        ax, source_outline, info.geographic, colors=_OKABE_GREEN, linewidths=1.8, zorder=8, path_effects=_HALO
+    ):
+        handles.append(Line2D([], [], color=_OKABE_GREEN, lw=1.8, label="Fault outline"))
+    if segments is not None and len(segments):
+        handles += _coloured_segments(ax, segments, seg_vals, info, cmap, norm, r)
+        if top_k > 0:
+            handles += _rank_labels(ax, segments, top_k, info)
+    return _finish(fig, out_path, ax=ax, geo=geo, handles=handles, right_cbars=1)
+
+
+def _lensing_range(lf: np.ndarray, seg_vals: np.ndarray | None) -> float:
+    """Colour range r (scale 1/r .. r): the raster's 2-98 % and most segment values (the few strongest
+    segments may saturate at the ends of the scale, which the colour bar's arrows show; ranks are labelled)."""
+    r = _symmetric_log_range([lf])
+    for sv in [] if seg_vals is None else [seg_vals]:
+        pos = _finite_pos(sv)
+        if pos.size:
+            m = float(np.percentile(np.abs(np.log10(pos)), 75.0))
+            r = max(r, _symmetric_log_range([np.array([10.0**m])]))
+    return r
+
+
+def _lensing_raster(fig, ax, lf, linfo, depth, info, cmap, norm, r) -> list:
+    """The lensing-factor raster over a 'no rays' background, land, coast and the log colour bar."""
     lf_plot = np.where(np.isfinite(lf) & (lf > 0), lf, np.nan)
     ax.add_patch(Rectangle((0, 0), 1, 1, transform=ax.transAxes, facecolor="0.93", zorder=0))
     im = ax.imshow(
@@ -900,123 +984,129 @@ def plot_lensing_map(
         interpolation="nearest",
         zorder=1,
     )
-    has_land, has_nodata = _land_and_nodata(ax, depth, info)
-    _coast_contour(ax, depth, info)
-    handles = _land_legend_handles(has_land, has_nodata)
+    handles = _land_and_coast(ax, depth, info)
     handles.append(Patch(facecolor="0.93", edgecolor="0.3", linewidth=0.5, label="No rays"))
     cb = _right_colorbar(fig, ax, im, extend="both")
-    ticks = list(scale.ticks)
+    ticks = _log_ticks(r)
     cb.ax.yaxis.set_major_locator(FixedLocator(ticks))
     cb.ax.yaxis.set_major_formatter(FuncFormatter(lambda v, _: _tick_label(v)))
     cb.ax.yaxis.set_minor_formatter(NullFormatter())
     cb.set_label("Lensing factor (-), log scale\n1 = no focusing")
+    return handles
 
-    if travel_time_min is not None:
-        tinfo = _check_grid(travel_time_min, "plot_lensing_map travel_time_min")
-        _same_kind(info, tinfo, "plot_lensing_map travel_time_min")
-        t = _contour_ready(_values(travel_time_min))
-        if np.isfinite(t).sum() > 3:
-            tmax = float(np.nanmax(t))
-            tmin = float(np.nanmin(t))
-            step = contour_step_min or _nice_time_step(tmax - max(tmin, 0.0))
-            levels = np.arange(math.ceil(max(tmin, 0.0) / step) * step, tmax + 1e-9, step)
-            levels = levels[levels > 0]
-            if levels.size:
-                xd, yd = travel_time_min.dims[1], travel_time_min.dims[0]
-                cs = ax.contour(
-                    travel_time_min[xd].values,
-                    travel_time_min[yd].values,
-                    t,
-                    levels=levels,
-                    colors="0.1",
-                    linewidths=0.7,
-                    zorder=5,
-                )
-                labels = ax.clabel(
-                    cs, fmt=lambda v: f"{v:g} min", fontsize=7.5, inline=True, inline_spacing=3
-                )
-                for lab in labels:
-                    lab.set_path_effects(_HALO)
-                handles.append(Line2D([], [], color="0.1", lw=0.8, label=f"Travel time (every {step:g} min)"))
 
-    if source_outline is not None and _draw_lines(
-        ax, source_outline, info.geographic, colors=_OKABE_GREEN, linewidths=1.8, zorder=8, path_effects=_HALO
-    ):
-        handles.append(Line2D([], [], color=_OKABE_GREEN, lw=1.8, label="Fault outline"))
-
-    if segments is not None and len(segments):
-        segs, cols = [], []
-        for geom, val in zip(segments["geometry"], seg_vals[0], strict=True):
-            for a in _iter_lines(geom):
-                for piece in _split_wrap(a, info.geographic):
-                    segs.append(piece)
-                    cols.append(val)
-        if segs:
-            cols_arr = np.asarray(cols, dtype=float)
-            rgba = cmap(norm(np.where(np.isfinite(cols_arr) & (cols_arr > 0), cols_arr, 1.0)))
-            rgba[~(np.isfinite(cols_arr) & (cols_arr > 0))] = NO_VALUE_COLOUR
-            lc = LineCollection(
-                segs,
-                colors=rgba,
-                linewidths=SEGMENT_WIDTH_PT,
-                zorder=9,
-                path_effects=[patheffects.withStroke(linewidth=SEGMENT_CASING_PT, foreground="black")],
-                capstyle="butt",
+def _travel_time_contours(ax, travel_time_min: xr.DataArray, info: GridInfo, contour_step_min: float | None) -> list:
+    """Labelled first-arrival contours [min] (about 6-12 unless a step is given); their legend entry."""
+    handles: list = []
+    tinfo = _check_grid(travel_time_min, "plot_lensing_map travel_time_min")
+    _same_kind(info, tinfo, "plot_lensing_map travel_time_min")
+    t = _contour_ready(_values(travel_time_min))
+    if np.isfinite(t).sum() > 3:
+        tmax = float(np.nanmax(t))
+        tmin = float(np.nanmin(t))
+        step = contour_step_min or _nice_time_step(tmax - max(tmin, 0.0))
+        levels = np.arange(math.ceil(max(tmin, 0.0) / step) * step, tmax + 1e-9, step)
+        levels = levels[levels > 0]
+        if levels.size:
+            xd, yd = travel_time_min.dims[1], travel_time_min.dims[0]
+            cs = ax.contour(
+                travel_time_min[xd].values,
+                travel_time_min[yd].values,
+                t,
+                levels=levels,
+                colors="0.1",
+                linewidths=0.7,
+                zorder=5,
             )
-            ax.add_collection(lc)
-            handles.append(
-                Line2D(
-                    [],
-                    [],
-                    color=cmap(norm(min(r, 2.0))),
-                    lw=4,
-                    path_effects=[patheffects.withStroke(linewidth=6.0, foreground="black")],
-                    label="Coast segment (colour = lensing factor)",
-                )
+            labels = ax.clabel(
+                cs, fmt=lambda v: f"{v:g} min", fontsize=7.5, inline=True, inline_spacing=3
             )
-        if top_k > 0:
-            ranked = _rank_order(segments, "lensing_factor", "rank_lensing")
-            ranked = ranked[ranked["_rank"].notna() & (ranked["_rank"] <= top_k)].head(top_k)
-            placed: list[tuple[float, float]] = []  # label centres, in points from the axes origin
-            xmin_, xmax_, ymin_, ymax_ = _extent(info)
-            pts_per_unit = 72.0 * (8.0 - 0.9 - 0.95) / max(xmax_ - xmin_, 1e-12)  # see _finish sizing
-            yscale = pts_per_unit * getattr(ax, "_tf_aspect", 1.0)
-            for _, row in ranked.iterrows():
-                xm, ym = _segment_mid(row)
-                if xm is None:
-                    continue
-                az = row.get("normal_azimuth_deg", np.nan)
-                az = float(az) if az is not None and np.isfinite(az) else 0.0
-                box = (xmax_ - xmin_) * pts_per_unit, (ymax_ - ymin_) * yscale
-                off = _label_offset(((xm - xmin_) * pts_per_unit, (ym - ymin_) * yscale), az, placed, box=box)
-                ax.annotate(
-                    f"{int(row['_rank'])}",
-                    xy=(xm, ym),
-                    xytext=off,
-                    textcoords="offset points",
-                    ha="center",
-                    va="center",
-                    fontsize=8,
-                    fontweight="bold",
-                    bbox=dict(boxstyle="circle,pad=0.25", facecolor="white", edgecolor="black", lw=0.7),
-                    arrowprops=dict(arrowstyle="-", color="black", lw=0.7, shrinkA=0, shrinkB=0),
-                    zorder=12,
-                    annotation_clip=True,
-                )
-            if len(ranked):
-                handles.append(
-                    Line2D(
-                        [],
-                        [],
-                        marker="o",
-                        linestyle="none",
-                        markerfacecolor="white",
-                        markeredgecolor="black",
-                        markersize=9,
-                        label=f"Rank (top {min(top_k, len(ranked))})",
-                    )
-                )
-    return _finish(fig, out_path, ax=ax, geo=geo, handles=handles, right_cbars=1)
+            for lab in labels:
+                lab.set_path_effects(_HALO)
+            handles.append(Line2D([], [], color="0.1", lw=0.8, label=f"Travel time (every {step:g} min)"))
+    return handles
+
+
+def _coloured_segments(ax, segments: pd.DataFrame, seg_vals: np.ndarray, info: GridInfo, cmap, norm, r) -> list:
+    """Coast segments drawn in the colour of their lensing factor (grey without one); their legend entry."""
+    handles: list = []
+    segs, cols = [], []
+    for geom, val in zip(segments["geometry"], seg_vals, strict=True):
+        for a in _iter_lines(geom):
+            for piece in _split_wrap(a, info.geographic):
+                segs.append(piece)
+                cols.append(val)
+    if segs:
+        cols_arr = np.asarray(cols, dtype=float)
+        rgba = cmap(norm(np.where(np.isfinite(cols_arr) & (cols_arr > 0), cols_arr, 1.0)))
+        rgba[~(np.isfinite(cols_arr) & (cols_arr > 0))] = mcolors.to_rgba("0.6")
+        lc = LineCollection(
+            segs,
+            colors=rgba,
+            linewidths=4.0,
+            zorder=9,
+            path_effects=[patheffects.withStroke(linewidth=6.0, foreground="black")],
+            capstyle="butt",
+        )
+        ax.add_collection(lc)
+        handles.append(
+            Line2D(
+                [],
+                [],
+                color=cmap(norm(min(r, 2.0))),
+                lw=4,
+                path_effects=[patheffects.withStroke(linewidth=6.0, foreground="black")],
+                label="Coast segment (colour = lensing factor)",
+            )
+        )
+    return handles
+
+
+def _rank_labels(ax, segments: pd.DataFrame, top_k: int, info: GridInfo) -> list:
+    """Numbered circles beside the top-k segments, placed to avoid each other; their legend entry."""
+    handles: list = []
+    ranked = _rank_order(segments, "lensing_factor", "rank_lensing")
+    ranked = ranked[ranked["_rank"].notna() & (ranked["_rank"] <= top_k)].head(top_k)
+    placed: list[tuple[float, float]] = []  # label centres, in points from the axes origin
+    xmin_, xmax_, ymin_, ymax_ = _extent(info)
+    pts_per_unit = 72.0 * (8.0 - 0.9 - 0.95) / max(xmax_ - xmin_, 1e-12)  # see _finish sizing
+    yscale = pts_per_unit * getattr(ax, "_tf_aspect", 1.0)
+    for _, row in ranked.iterrows():
+        xm, ym = _segment_mid(row)
+        if xm is None:
+            continue
+        az = row.get("normal_azimuth_deg", np.nan)
+        az = float(az) if az is not None and np.isfinite(az) else 0.0
+        box = (xmax_ - xmin_) * pts_per_unit, (ymax_ - ymin_) * yscale
+        off = _label_offset(((xm - xmin_) * pts_per_unit, (ym - ymin_) * yscale), az, placed, box=box)
+        ax.annotate(
+            f"{int(row['_rank'])}",
+            xy=(xm, ym),
+            xytext=off,
+            textcoords="offset points",
+            ha="center",
+            va="center",
+            fontsize=8,
+            fontweight="bold",
+            bbox=dict(boxstyle="circle,pad=0.25", facecolor="white", edgecolor="black", lw=0.7),
+            arrowprops=dict(arrowstyle="-", color="black", lw=0.7, shrinkA=0, shrinkB=0),
+            zorder=12,
+            annotation_clip=True,
+        )
+    if len(ranked):
+        handles.append(
+            Line2D(
+                [],
+                [],
+                marker="o",
+                linestyle="none",
+                markerfacecolor="white",
+                markeredgecolor="black",
+                markersize=9,
+                label=f"Rank (top {min(top_k, len(ranked))})",
+            )
+        )
+    return handles
 
 
 def _label_offset(
@@ -1137,108 +1227,96 @@ def plot_ranking(
         (7.6, 1.7 + 0.36 * n), title or f"Top {n} coastline segments by {label_d.split(' (')[0].lower()}"
     )
     vals = pd.to_numeric(df[by], errors="coerce").to_numpy(float)
+    ypos = np.arange(n)[::-1]
+    rel = _ranking_bars(ax, df, vals, ypos)
+    has_int, hi, xmax = _ranking_intervals(ax, df, vals, ypos, lo_col, hi_col)
+    ends = vals.copy()
+    if has_int:
+        ends = np.where(np.isfinite(hi), np.maximum(vals, hi), vals)
+    span = xmax if xmax > 0 else 1.0
+    if prob_col is not None and prob_col not in df.columns:
+        raise InputError(f"plot_ranking: prob_col '{prob_col}' is not a column of the segments table")
+    probs = pd.to_numeric(df[prob_col], errors="coerce").to_numpy(float) if prob_col else np.full(n, np.nan)
+    for yv, v, e_, pr in zip(ypos, vals, ends, probs, strict=True):
+        txt = f"{v:.3g}" + (f"   P(top {top_k}) = {pr:.2f}" if np.isfinite(pr) else "")
+        ax.text(e_ + 0.015 * span, yv, txt, va="center", ha="left", fontsize=8, color="0.15", zorder=4)
+    labels = [_bar_label(row["segment_id"], row.get("name", ""), row["_rank"]) for _, row in df.iterrows()]
+    ax.set_yticks(ypos)
+    ax.set_yticklabels(labels)
+    ax.set_ylim(-0.7, n - 0.3)
+    ax.set_xlim(0, (xmax * (1.45 if prob_col else 1.14)) if xmax > 0 else 1.0)
+    ax.set_xlabel(xlabel or label_d)
+    ax.grid(True, axis="x", color="0.85", linewidth=0.6, zorder=0)
+    ax.set_axisbelow(True)
+    _ranking_legend(ax, rel, has_int, ref)
+    return _finish(fig, out_path, ax=ax)
+
+
+def _ranking_bars(ax, df: pd.DataFrame, vals: np.ndarray, ypos: np.ndarray) -> np.ndarray:
+    """Horizontal bars, hatched grey for unreliable segments; the reliability flags."""
+    n = len(df)
     if "reliable" in df.columns:  # missing/unknown reliability counts as unreliable
         rel = np.array(
             [bool(v) if v is not None and v is not pd.NA and v == v else False for v in df["reliable"]]
         )
     else:
         rel = np.ones(n, bool)
-    ypos = np.arange(n)[::-1]
-    has_int = lo_col in df.columns and hi_col in df.columns if lo_col and hi_col else False
-    lo = pd.to_numeric(df[lo_col], errors="coerce").to_numpy(float) if has_int else np.full(n, np.nan)
-    hi = pd.to_numeric(df[hi_col], errors="coerce").to_numpy(float) if has_int else np.full(n, np.nan)
-    # the axis is set by the reliable bars and their intervals; unreliable values (few rays, often
-    # huge) and unbounded intervals are clipped at the axis edge and marked, not allowed to squash
-    # the reliable ones
-    base = rel if rel.any() else np.ones(n, bool)
-    xmax = float(np.nanmax(vals[base]))
-    if has_int:
-        hb = hi[base & np.isfinite(hi)]
-        if hb.size:
-            xmax = max(xmax, float(np.nanmax(hb)))
-    if not rel.any():  # nothing reliable: bars only (their intervals are noise)
-        xmax = float(np.nanmax(vals))
-    xlim = (xmax * (1.45 if prob_col else 1.14)) if xmax > 0 else 1.0
-    clip_at = xlim / (1.45 if prob_col else 1.14) * 1.04 if xmax > 0 else xlim
-    shown = np.minimum(vals, clip_at)
-    clipped = vals > clip_at
     colors = np.where(rel, _OKABE_BLUE, "#c8c8c8")
-    bars = ax.barh(ypos, shown, height=0.62, color=colors, edgecolor="0.25", linewidth=0.6, zorder=2)
+    bars = ax.barh(ypos, vals, height=0.62, color=colors, edgecolor="0.25", linewidth=0.6, zorder=2)
     for b, ok in zip(bars, rel, strict=True):
         if not ok:
             b.set_hatch("///")
-    for yv in ypos[clipped]:  # a break mark at the clipped end
-        ax.plot([clip_at], [yv], marker=">", color="0.15", markersize=7, zorder=4, clip_on=False)
-    wclip = np.zeros(n, bool)
+    return rel
+
+
+def _ranking_intervals(ax, df: pd.DataFrame, vals: np.ndarray, ypos: np.ndarray, lo_col: str | None,
+                       hi_col: str | None) -> tuple[bool, np.ndarray | None, float]:
+    """5-95 % whiskers where the table has them; (drawn?, upper ends, largest x to show)."""
+    hi = None
+    has_int = lo_col in df.columns and hi_col in df.columns if lo_col and hi_col else False
+    xmax = np.nanmax(vals)
     if has_int:
-        ok = np.isfinite(lo) & np.isfinite(vals) & ~clipped
-        hi_d = np.where(np.isfinite(hi), hi, np.inf)
-        wclip = ok & (hi_d > clip_at)
-        hi_s = np.minimum(hi_d, clip_at)
+        lo = pd.to_numeric(df[lo_col], errors="coerce").to_numpy(float)
+        hi = pd.to_numeric(df[hi_col], errors="coerce").to_numpy(float)
+        ok = np.isfinite(lo) & np.isfinite(hi)
         if ok.any():
-            err = np.vstack([np.clip(vals - lo, 0, None), np.clip(hi_s - vals, 0, None)])
-            ax.errorbar(vals[ok & ~wclip], ypos[ok & ~wclip], xerr=err[:, ok & ~wclip], fmt="none",
-                        ecolor="black", elinewidth=1.1, capsize=3.5, zorder=3)
-            if wclip.any():  # whiskers running off the axis: no cap, an arrow head at the edge
-                ax.errorbar(vals[wclip], ypos[wclip], xerr=err[:, wclip], fmt="none", ecolor="black",
-                            elinewidth=1.1, capsize=0, zorder=3)
-                for yv in ypos[wclip]:
-                    ax.plot([clip_at], [yv], marker=">", color="black", markersize=5, zorder=4, clip_on=False)
-    ends = np.where(has_int & np.isfinite(hi), np.maximum(shown, np.minimum(hi, clip_at)), shown)
-    span = xlim
-    if prob_col is not None and prob_col not in df.columns:
-        raise InputError(f"plot_ranking: prob_col '{prob_col}' is not a column of the segments table")
-    probs = pd.to_numeric(df[prob_col], errors="coerce").to_numpy(float) if prob_col else np.full(n, np.nan)
-    for yv, v, e_, pr, cl in zip(ypos, vals, ends, probs, clipped | wclip, strict=True):
-        txt = f"{v:.3g}" + (f"   P(top {top_k}) = {pr:.2f}" if np.isfinite(pr) else "")
-        if cl and v > clip_at:  # bar off scale: its value inside the bar, left of the edge
-            ax.text(clip_at - 0.03 * span, yv, txt + " (off scale)", va="center", ha="right", fontsize=8,
-                    color="0.1", zorder=5, bbox={"facecolor": "white", "edgecolor": "none", "alpha": 0.85, "pad": 1.0})
-        elif cl:  # only the whisker runs off scale: the value just above the bar's end
-            ax.text(v + 0.015 * span, yv + 0.34, txt, va="bottom", ha="left", fontsize=8, color="0.15", zorder=4)
-        else:
-            ax.text(e_ + 0.015 * span, yv, txt, va="center", ha="left", fontsize=8, color="0.15", zorder=4)
-    labels = [_bar_label(row["segment_id"], row.get("name", ""), row["_rank"] if ok_ else None,
-                         row.get("lat_mid"), row.get("lon_mid"))
-              for ok_, (_, row) in zip(rel, df.iterrows(), strict=True)]
-    ax.set_yticks(ypos)
-    ax.set_yticklabels(labels)
-    ax.set_ylim(-0.7, n - 0.3)
-    ax.set_xlim(0, xlim)
-    ax.set_xlabel(xlabel or label_d)
-    ax.grid(True, axis="x", color="0.85", linewidth=0.6, zorder=0)
-    ax.set_axisbelow(True)
-    handles = []
-    if rel.any():
-        handles.append(Patch(facecolor=_OKABE_BLUE, edgecolor="0.25", label="Reliable (ranked)"))
+            err = np.vstack([np.clip(vals - lo, 0, None), np.clip(hi - vals, 0, None)])
+            ax.errorbar(
+                vals[ok],
+                ypos[ok],
+                xerr=err[:, ok],
+                fmt="none",
+                ecolor="black",
+                elinewidth=1.1,
+                capsize=3.5,
+                zorder=3,
+            )
+            xmax = max(xmax, np.nanmax(hi[ok]))
+    return has_int, hi, xmax
+
+
+def _ranking_legend(ax, rel: np.ndarray, has_int: bool, ref: float | None) -> None:
+    """Legend of the ranking chart (and the no-focusing reference line)."""
+    handles = [Patch(facecolor=_OKABE_BLUE, edgecolor="0.25", label="Reliable")]
     if (~rel).any():
         handles.append(
-            Patch(facecolor="#c8c8c8", edgecolor="0.25", hatch="///", label="Unreliable, not ranked (see table)")
+            Patch(facecolor="#c8c8c8", edgecolor="0.25", hatch="///", label="Unreliable (see table)")
         )
     if has_int:
         handles.append(
             Line2D([], [], color="black", lw=1.1, marker="|", markersize=8, label="5-95 % interval")
         )
-    if clipped.any() or wclip.any():
-        handles.append(Line2D([], [], color="0.15", lw=0, marker=">", markersize=6, label="Off scale (value printed)"))
     if ref is not None:
         ax.axvline(ref, color=_OKABE_VERMILLION, linestyle="--", linewidth=1.2, zorder=3)
         handles.append(
             Line2D([], [], color=_OKABE_VERMILLION, linestyle="--", lw=1.2, label=f"{ref:g} = no focusing")
         )
-    # below the bars, so it never hides a bar or a printed value
-    leg = ax.legend(handles=handles, loc="upper center", bbox_to_anchor=(0.5, -0.16), ncol=min(3, len(handles)),
-                    framealpha=0.9, fontsize=8)
+    leg = ax.legend(handles=handles, loc="lower right", framealpha=0.9, fontsize=8)
     leg.set_zorder(10)
-    return _finish(fig, out_path, ax=ax)
 
 
-def _bar_label(segment_id: Any, name: Any, rank: Any, lat: Any = None, lon: Any = None) -> str:
-    """``"1. S0001  Harbour"`` or ``"1. S0001  41.75N 124.20W"``; ``"-"`` instead of a rank when unranked.
-
-    The name is used when there is one (and it differs from the id), else the latitude and
-    longitude of the segment's midpoint when given.
-    """
+def _bar_label(segment_id: Any, name: Any, rank: Any) -> str:
+    """``"1. S0001  Harbour"``; no name part for None/NaN/empty names or a name equal to the id."""
     sid = str(segment_id)
     nm = name.strip() if isinstance(name, str) else ""
     try:
@@ -1246,17 +1324,8 @@ def _bar_label(segment_id: Any, name: Any, rank: Any, lat: Any = None, lon: Any 
     except (TypeError, ValueError):
         rk = math.nan
     rk_s = f"{int(rk)}." if np.isfinite(rk) else "-"
-    where = ""
-    if not (nm and nm != sid):
-        try:
-            la, lo = float(lat), float(lon)
-        except (TypeError, ValueError):
-            la = lo = math.nan
-        if np.isfinite(la) and np.isfinite(lo):
-            lo = ((lo + 180.0) % 360.0) - 180.0
-            where = f"{abs(la):.2f}°{'N' if la >= 0 else 'S'} {abs(lo):.2f}°{'E' if lo >= 0 else 'W'}"
-    lab = f"{rk_s} {sid}" + (f"  {nm}" if nm and nm != sid else (f"  {where}" if where else ""))
-    return lab if len(lab) <= 40 else lab[:39] + "…"
+    lab = f"{rk_s} {sid}" + (f"  {nm}" if nm and nm != sid else "")
+    return lab if len(lab) <= 34 else lab[:33] + "…"
 
 
 # --------------------------------------------------------------------------------------
@@ -1301,17 +1370,7 @@ def plot_uplift(
     if not np.isfinite(e).any():
         raise InputError("plot_uplift: eta has no finite values")
     if crop:
-        eta = _crop_to_signal(eta, np.abs(np.nan_to_num(e)) >= 0.01 * np.nanmax(np.abs(e)))
-        if depth is not None:
-            yd0, xd0 = eta.dims
-            depth = depth.sel(
-                {
-                    xd0: slice(float(eta[xd0][0]), float(eta[xd0][-1])),
-                    yd0: slice(float(eta[yd0][0]), float(eta[yd0][-1])),
-                }
-            )
-            if depth.shape[0] < 2 or depth.shape[1] < 2:
-                depth = None
+        eta, depth = _crop_uplift(eta, e, depth)
         e = _values(eta)
     info = _check_grid(eta, "plot_uplift eta")
     fig, ax, geo = _new_map(info, title)
@@ -1329,16 +1388,7 @@ def plot_uplift(
     )
     handles: list = []
     if depth is not None:
-        dinfo = _check_grid(depth, "plot_uplift depth")
-        _same_kind(info, dinfo, "plot_uplift depth")
-        d = _values(depth)
-        land = np.isfinite(d) & (d <= 0)
-        if land.any():
-            rgba = np.zeros(d.shape + (4,))
-            rgba[land] = mcolors.to_rgba(_LAND, alpha=0.55)
-            ax.imshow(rgba, origin="lower", extent=_extent(dinfo), interpolation="nearest", zorder=2)
-            handles.append(Patch(facecolor=_LAND, alpha=0.55, edgecolor="0.3", label="Land (shaded)"))
-        _coast_contour(ax, depth, dinfo)
+        handles += _shaded_land(ax, depth, info)
     xd, yd = eta.dims[1], eta.dims[0]
     lev = _nice_length(m / 3.0)
     levels = np.concatenate([-np.arange(lev, m + 1e-12, lev)[::-1], np.arange(lev, m + 1e-12, lev)])
@@ -1353,6 +1403,48 @@ def plot_uplift(
         ax, source_outline, info.geographic, colors=_OKABE_GREEN, linewidths=1.8, zorder=7, path_effects=_HALO
     ):
         handles.append(Line2D([], [], color=_OKABE_GREEN, lw=1.8, label="Fault outline (surface projection)"))
+    handles += _extremes(ax, eta, e)
+    cb = _right_colorbar(fig, ax, im)
+    cb.set_label("Sea-surface displacement (m), positive up")
+    return _finish(fig, out_path, ax=ax, geo=geo, handles=handles, right_cbars=1)
+
+
+def _crop_uplift(eta: xr.DataArray, e: np.ndarray, depth: xr.DataArray | None):
+    """eta (and depth) cut to the deformed area: |eta| >= 1 % of its maximum, padded by half its size."""
+    eta = _crop_to_signal(eta, np.abs(np.nan_to_num(e)) >= 0.01 * np.nanmax(np.abs(e)))
+    if depth is not None:
+        yd0, xd0 = eta.dims
+        depth = depth.sel(
+            {
+                xd0: slice(float(eta[xd0][0]), float(eta[xd0][-1])),
+                yd0: slice(float(eta[yd0][0]), float(eta[yd0][-1])),
+            }
+        )
+        if depth.shape[0] < 2 or depth.shape[1] < 2:
+            depth = None
+    return eta, depth
+
+
+def _shaded_land(ax, depth: xr.DataArray, info: GridInfo) -> list:
+    """Land shaded over the displacement and the coast contour; the land legend entry."""
+    handles: list = []
+    dinfo = _check_grid(depth, "plot_uplift depth")
+    _same_kind(info, dinfo, "plot_uplift depth")
+    d = _values(depth)
+    land = np.isfinite(d) & (d <= 0)
+    if land.any():
+        rgba = np.zeros(d.shape + (4,))
+        rgba[land] = mcolors.to_rgba(_LAND, alpha=0.55)
+        ax.imshow(rgba, origin="lower", extent=_extent(dinfo), interpolation="nearest", zorder=2)
+        handles.append(Patch(facecolor=_LAND, alpha=0.55, edgecolor="0.3", label="Land (shaded)"))
+    _coast_contour(ax, depth, dinfo)
+    return handles
+
+
+def _extremes(ax, eta: xr.DataArray, e: np.ndarray) -> list:
+    """Markers at the largest uplift and subsidence; their legend entries."""
+    xd, yd = eta.dims[1], eta.dims[0]
+    handles: list = []
     jmax = np.unravel_index(np.nanargmax(e), e.shape)
     jmin = np.unravel_index(np.nanargmin(e), e.shape)
     xs, ys = eta[xd].values, eta[yd].values
@@ -1366,9 +1458,7 @@ def plot_uplift(
             [], [], marker="v", color="black", linestyle="none", label=f"Max subsidence {np.nanmin(e):+.2f} m"
         )
     )
-    cb = _right_colorbar(fig, ax, im)
-    cb.set_label("Sea-surface displacement (m), positive up")
-    return _finish(fig, out_path, ax=ax, geo=geo, handles=handles, right_cbars=1)
+    return handles
 
 
 def _scatter_labels(fig: Figure, ax, xa: np.ndarray, ya: np.ndarray, labels: Sequence[str], idx) -> None:
@@ -1502,44 +1592,10 @@ def plot_agreement(
         raise InputError("plot_agreement: no finite (and, for log axes, positive) pairs to plot")
     fig, ax = _new_chart((6.4, 6.0), title)
     if top_x is not None and top_y is not None:
-        tx, ty = np.asarray(top_x, dtype=bool), np.asarray(top_y, dtype=bool)
-        hl = tx | ty
-        nx_, ny_ = top_names
-        k = int(max(tx.sum(), ty.sum()))
-        for sel, lab, col, mk, sz, z in (
-            (~hl, "other segments", "0.55", "o", 18, 2),
-            (tx & ~ty, f"top {k} by {nx_} only", _OKABE_VERMILLION, "^", 40, 3),
-            (ty & ~tx, f"top {k} by {ny_} only", _OKABE_SKY, "s", 36, 4),
-            (tx & ty, f"top {k} in both", _OKABE_BLUE, "D", 40, 5),
-        ):
-            if (ok & sel).any():
-                ax.scatter(xa[ok & sel], ya[ok & sel], s=sz, color=col, marker=mk, edgecolor="black", lw=0.4,
-                           label=f"{lab} ({int((ok & sel).sum())})", zorder=z)
+        hl = _scatter_top_sets(ax, xa, ya, ok, top_x, top_y, top_names)
     else:
-        hl = np.zeros_like(ok) if highlight is None else np.asarray(highlight, dtype=bool)
-        ax.scatter(xa[ok & ~hl], ya[ok & ~hl], s=18, color="0.55", edgecolor="none", label="Segments", zorder=2)
-        if (ok & hl).any():
-            ax.scatter(
-                xa[ok & hl],
-                ya[ok & hl],
-                s=36,
-                color=_OKABE_VERMILLION,
-                edgecolor="black",
-                lw=0.5,
-                label="Highlighted",
-                zorder=3,
-            )
-    lo = min(xa[ok].min(), ya[ok].min())
-    hi = max(xa[ok].max(), ya[ok].max())
-    if log:
-        ax.set_xscale("log")
-        ax.set_yscale("log")
-        lo, hi = lo / 1.3, hi * 1.3
-        _plain_log_ticks(ax.xaxis, lo, hi)
-        _plain_log_ticks(ax.yaxis, lo, hi)
-    else:
-        pad = 0.05 * (hi - lo if hi > lo else 1.0)
-        lo, hi = lo - pad, hi + pad
+        hl = _scatter_highlighted(ax, xa, ya, ok, highlight)
+    lo, hi = _one_to_one_limits(ax, xa[ok], ya[ok], log)
     ax.plot([lo, hi], [lo, hi], color="black", linestyle="--", lw=1.0, label="1:1", zorder=1)
     ax.set_xlim(lo, hi)
     ax.set_ylim(lo, hi)
@@ -1561,6 +1617,58 @@ def plot_agreement(
         )
     ax.legend(loc="lower right", fontsize=8)
     return _finish(fig, out_path, ax=ax)
+
+
+def _scatter_top_sets(ax, xa, ya, ok, top_x, top_y, top_names) -> np.ndarray:
+    """Points in both top sets, in one only and in neither, in distinct colours and shapes; the union."""
+    tx, ty = np.asarray(top_x, dtype=bool), np.asarray(top_y, dtype=bool)
+    hl = tx | ty
+    nx_, ny_ = top_names
+    k = int(max(tx.sum(), ty.sum()))
+    for sel, lab, col, mk, sz, z in (
+        (~hl, "other segments", "0.55", "o", 18, 2),
+        (tx & ~ty, f"top {k} by {nx_} only", _OKABE_VERMILLION, "^", 40, 3),
+        (ty & ~tx, f"top {k} by {ny_} only", _OKABE_SKY, "s", 36, 4),
+        (tx & ty, f"top {k} in both", _OKABE_BLUE, "D", 40, 5),
+    ):
+        if (ok & sel).any():
+            ax.scatter(xa[ok & sel], ya[ok & sel], s=sz, color=col, marker=mk, edgecolor="black", lw=0.4,
+                       label=f"{lab} ({int((ok & sel).sum())})", zorder=z)
+    return hl
+
+
+def _scatter_highlighted(ax, xa, ya, ok, highlight) -> np.ndarray:
+    """Grey points, the highlighted ones in vermillion; the highlight mask."""
+    hl = np.zeros_like(ok) if highlight is None else np.asarray(highlight, dtype=bool)
+    ax.scatter(xa[ok & ~hl], ya[ok & ~hl], s=18, color="0.55", edgecolor="none", label="Segments", zorder=2)
+    if (ok & hl).any():
+        ax.scatter(
+            xa[ok & hl],
+            ya[ok & hl],
+            s=36,
+            color=_OKABE_VERMILLION,
+            edgecolor="black",
+            lw=0.5,
+            label="Highlighted",
+            zorder=3,
+        )
+    return hl
+
+
+def _one_to_one_limits(ax, xv: np.ndarray, yv: np.ndarray, log: bool) -> tuple[float, float]:
+    """Shared axis limits around both samples (log axes with plain tick labels, or 5 % padding)."""
+    lo = min(xv.min(), yv.min())
+    hi = max(xv.max(), yv.max())
+    if log:
+        ax.set_xscale("log")
+        ax.set_yscale("log")
+        lo, hi = lo / 1.3, hi * 1.3
+        _plain_log_ticks(ax.xaxis, lo, hi)
+        _plain_log_ticks(ax.yaxis, lo, hi)
+    else:
+        pad = 0.05 * (hi - lo if hi > lo else 1.0)
+        lo, hi = lo - pad, hi + pad
+    return lo, hi
 
 
 @_styled

@@ -173,7 +173,6 @@ def write_run_folder(
     dict
         Output kind -> path.
     """
-
     info = GridInfo.from_dataarray(depth)
     files: dict[str, pathlib.Path] = {}
     layers = _layers(a, depth)
@@ -287,12 +286,9 @@ def run_scenario(
         Output folder; default the scenario's ``[output] folder``.
     overwrite : bool
         Replace an existing non-empty output folder.
-    rays : int, optional
-        Override the ray count.
-    scheduler : str or distributed.Client, optional
-        Ensemble scheduler: None/"local" (in-process, both cores) or a scheduler address.
-    progress : bool
-        Stage messages on stderr.
+    rays, scheduler, progress
+        As :func:`tsunamifocus.studies.run.analyse_scenario` (ray count override, ensemble
+        scheduler, stage messages on stderr).
     command : list of str, optional
         Command line, recorded in the manifest.
     write : bool
@@ -305,7 +301,6 @@ def run_scenario(
     -------
     RunResult
     """
-
     if isinstance(scenario, (str, os.PathLike)):
         scenario = parse_scenario(scenario)
     pr = StageProgress(progress)

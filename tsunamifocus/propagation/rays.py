@@ -170,6 +170,43 @@ def trace_rays(
     else:
         fld = SpeedField(depth, gravity=gravity, min_depth=min_depth, radius_m=radius_m)
     info = fld.info
+    x0, y0, az, w = _check_rays(x0, y0, azimuth_deg, weights)
+    n = x0.size
+    dt, threads = _check_settings(fld, stop_depth_m, max_time_s, step_s, keep_paths, path_points, threads)
+    _check_launch(fld, x0, y0, stop_depth_m, polar_lat_deg)
+    q0a, p0a = _initial_paraxial(fld, x0, y0, q0, p0)
+    run = _run_kernel(fld, x0, y0, az, w, q0a, p0a, dt=dt, max_time_s=max_time_s, stop_depth_m=stop_depth_m,
+                      polar_lat_deg=polar_lat_deg, threads=threads, accumulate=accumulate,
+                      keep_paths=int(keep_paths), path_points=int(path_points))
+    out, outi = run["out"], run["outi"]
+    end = _end_dataset(info, out, outi, x0, y0, az, w, dt, stop_depth_m)
+    energy = first = None
+    if accumulate:
+        energy, first = _grids(fld, run["E"], run["T"])
+    paths = _paths_dataset(info, run) if run["npaths"] else None
+    reason = outi[:, 0].astype(np.int8)
+    stats = {
+        "n_rays": int(n), "n_steps": int(outi[:, 2].sum()),
+        "reasons": {name: int(np.sum(reason == code)) for name, code in REASON_CODES.items()},
+        "elapsed_s": time.perf_counter() - t_start, "threads": threads, "step_s": dt,
+        "geometry": "sphere" if info.geographic else "plane",
+    }
+    return RayResult(end=end, energy=energy, first_arrival_s=first, paths=paths, stats=stats)
+
+
+def _initial_paraxial(fld: SpeedField, x0, y0, q0, p0) -> tuple[np.ndarray, np.ndarray]:
+    """Initial q and p: given, or a point source (q = 0, p = 1 / c at the launch point)."""
+    n = x0.size
+    c0 = np.maximum(fld.evaluate(x0, y0)["c"], fld.c_min)
+    q0a = np.zeros(n) if q0 is None else _as1d("q0", q0, n)
+    p0a = 1.0 / c0 if p0 is None else _as1d("p0", p0, n)
+    if not (np.all(np.isfinite(q0a)) and np.all(np.isfinite(p0a))):
+        raise RayError("q0/p0 must be finite")
+    return q0a, p0a
+
+
+def _check_rays(x0, y0, azimuth_deg, weights) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """Launch points, azimuths and weights as finite 1-D arrays of one length."""
     x0 = _as1d("x0", x0)
     n = x0.size
     if n == 0:
@@ -187,6 +224,12 @@ def trace_rays(
         bad = np.flatnonzero(~np.isfinite(w) | (w < 0))
         if bad.size:
             raise RayError(f"weights[{bad[0]}] = {w[bad[0]]} J: expected a finite energy >= 0")
+    return x0, y0, az, w
+
+
+def _check_settings(fld: SpeedField, stop_depth_m, max_time_s, step_s, keep_paths, path_points,
+                    threads) -> tuple[float, int]:
+    """Validate the scalar settings; return the time step [s] and the thread count."""
     if not (np.isfinite(stop_depth_m) and stop_depth_m > 0):
         raise RayError(f"stop_depth_m = {stop_depth_m!r} m: expected a positive depth (e.g. 10-50 m)")
     if not (np.isfinite(max_time_s) and max_time_s > 0):
@@ -217,8 +260,12 @@ def trace_rays(
     threads = int(threads)
     if not 1 <= threads <= nthreads_avail:
         raise RayError(f"threads = {threads}: expected 1..{nthreads_avail}")
+    return dt, threads
 
-    # launch checks -----------------------------------------------------------------------
+
+def _check_launch(fld: SpeedField, x0: np.ndarray, y0: np.ndarray, stop_depth_m: float, polar_lat_deg: float) -> None:
+    """Refuse launches outside the grid, beyond the polar limit, on no data, on land or inside the stop isobath."""
+    info = fld.info
     inside = np.asarray(info.contains(x0, y0))
     bad = np.flatnonzero(~inside)
     if bad.size:
@@ -251,12 +298,12 @@ def trace_rays(
             f"of ray {bad[0]}: expected launch depth > stop_depth_m"
         )
 
-    c0 = np.maximum(fld.evaluate(x0, y0)["c"], fld.c_min)
-    q0a = np.zeros(n) if q0 is None else _as1d("q0", q0, n)
-    p0a = 1.0 / c0 if p0 is None else _as1d("p0", p0, n)
-    if not (np.all(np.isfinite(q0a)) and np.all(np.isfinite(p0a))):
-        raise RayError("q0/p0 must be finite")
 
+def _run_kernel(fld: SpeedField, x0, y0, az, w, q0a, p0a, *, dt, max_time_s, stop_depth_m, polar_lat_deg, threads,
+                accumulate, keep_paths, path_points) -> dict:
+    """Lay out the kernel's buffers, run it on ``threads`` threads and reduce the accumulation grids."""
+    info = fld.info
+    n = x0.size
     X0, Y0, DX, DY = fld.kernel_geometry
     if info.geographic:
         xw = np.asarray(info.wrap_lon(x0), float)
@@ -281,44 +328,19 @@ def trace_rays(
         path_slot[ids] = np.arange(npaths)
     else:
         ids = np.zeros(0, dtype=np.int64)
-    paths_buf = np.zeros((max(npaths, 1), int(path_points), 3))
+    paths_buf = np.zeros((max(npaths, 1), path_points, 3))
     path_n = np.zeros(max(npaths, 1), dtype=np.int64)
     max_steps = int(math.ceil(max_time_s / dt))
-    path_every = max(1, int(math.ceil(max_steps / (int(path_points) - 2)))) if npaths else 1
+    path_every = max(1, int(math.ceil(max_steps / (path_points - 2)))) if npaths else 1
 
     polar = math.radians(polar_lat_deg)
     old = numba.get_num_threads()
     numba.set_num_threads(threads)
     try:
         out, outi = _k.trace_all(
-            Xs,
-            Ys,
-            se0,
-            sn0,
-            q0a,
-            p0a,
-            w,
-            fld.coef,
-            fld.depth_padded,
-            X0,
-            Y0,
-            DX,
-            DY,
-            nx,
-            ny,
-            bool(info.periodic_x),
-            bool(info.geographic),
-            float(fld.radius_m),
-            float(fld.c_min),
-            float(dt),
-            float(max_time_s),
-            float(stop_depth_m),
-            polar,
-            Ach,
-            bool(accumulate),
-            path_slot,
-            paths_buf,
-            path_n,
+            Xs, Ys, se0, sn0, q0a, p0a, w, fld.coef, fld.depth_padded, X0, Y0, DX, DY, nx, ny,
+            bool(info.periodic_x), bool(info.geographic), float(fld.radius_m), float(fld.c_min), float(dt),
+            float(max_time_s), float(stop_depth_m), polar, Ach, bool(accumulate), path_slot, paths_buf, path_n,
             path_every,
         )
         if accumulate:
@@ -327,8 +349,20 @@ def trace_rays(
         del Ach
     finally:
         numba.set_num_threads(old)
+    run = {"out": out, "outi": outi, "npaths": npaths, "ids": ids, "paths_buf": paths_buf, "path_n": path_n,
+           "path_every": path_every}
+    if accumulate:
+        run.update(E=E, T=T)
+    return run
 
-    # end-state dataset -------------------------------------------------------------------
+
+def _units(info) -> tuple[str, str]:
+    return ("degrees_east", "degrees_north") if info.geographic else ("m", "m")
+
+
+def _end_dataset(info, out, outi, x0, y0, az, w, dt, stop_depth_m) -> xr.Dataset:
+    """The per-ray end states as a Dataset (grid CRS coordinates, SI units)."""
+    n = x0.size
     if info.geographic:
         xe = np.asarray(info.wrap_lon(np.degrees(out[:, _k.O_X])), float)
         ye = np.degrees(out[:, _k.O_Y])
@@ -337,10 +371,9 @@ def trace_rays(
     aze = np.mod(np.degrees(np.arctan2(out[:, _k.O_SE], out[:, _k.O_SN])), 360.0)
     reason = outi[:, 0].astype(np.int8)
     codes = np.array(sorted(REASON_MEANINGS), dtype=np.int8)
-    xu = "degrees_east" if info.geographic else "m"
-    yu = "degrees_north" if info.geographic else "m"
+    xu, yu = _units(info)
     ray = np.arange(n)
-    end = xr.Dataset(
+    return xr.Dataset(
         {
             "x": ("ray", xe, {"units": xu, "long_name": "end x (grid CRS)"}),
             "y": ("ray", ye, {"units": yu, "long_name": "end y (grid CRS)"}),
@@ -376,69 +409,64 @@ def trace_rays(
         attrs={"caution": caution_summary(), "step_s": dt, "stop_depth_m": float(stop_depth_m)},
     )
 
-    energy = first = None
-    if accumulate:
-        yd, xd = info.dims
-        coords = {yd: fld.depth[yd].values, xd: fld.depth[xd].values}
-        energy = xr.DataArray(
-            E,
-            dims=(yd, xd),
-            coords=coords,
-            name="energy",
-            attrs={
-                "units": "J m-1",
-                "long_name": "ray energy density (energy per unit wavefront width)",
-                "caution": caution_summary(),
-            },
-        )
-        first = xr.DataArray(
-            T,
-            dims=(yd, xd),
-            coords=coords,
-            name="first_arrival_s",
-            attrs={"units": "s", "long_name": "first ray arrival time", "caution": caution_summary()},
-        )
-        if "spatial_ref" in fld.depth.coords:
-            sr = fld.depth.coords["spatial_ref"]
-            energy = energy.assign_coords(spatial_ref=sr)
-            first = first.assign_coords(spatial_ref=sr)
-            energy.attrs["grid_mapping"] = first.attrs["grid_mapping"] = "spatial_ref"
-        if info.geographic:
-            energy.attrs["lon_periodic"] = first.attrs["lon_periodic"] = int(info.periodic_x)
 
-    paths = None
-    if npaths:
-        npt = int(path_n[:npaths].max())
-        buf = paths_buf[:npaths, :npt].copy()
-        mask = np.arange(npt)[None, :] >= path_n[:npaths, None]
-        buf[mask] = np.nan
-        px, py = buf[:, :, 0], buf[:, :, 1]
-        if info.geographic:
-            px = np.degrees(px)  # unwrapped longitude, continuous along the path
-            py = np.degrees(py)
-        paths = xr.Dataset(
-            {
-                "x": (
-                    ("path", "point"),
-                    px,
-                    {"units": xu, "note": "longitude unwrapped along the path" if info.geographic else ""},
-                ),
-                "y": (("path", "point"), py, {"units": yu}),
-                "time_s": (("path", "point"), buf[:, :, 2], {"units": "s"}),
-                "ray": ("path", ids),
-                "n_points": ("path", path_n[:npaths].copy()),
-            },
-            attrs={"decimation_steps": path_every, "caution": caution_summary()},
-        )
+def _grids(fld: SpeedField, E: np.ndarray, T: np.ndarray) -> tuple[xr.DataArray, xr.DataArray]:
+    """Energy per unit wavefront width and first-arrival time as grids like the depth."""
+    info = fld.info
+    yd, xd = info.dims
+    coords = {yd: fld.depth[yd].values, xd: fld.depth[xd].values}
+    energy = xr.DataArray(
+        E,
+        dims=(yd, xd),
+        coords=coords,
+        name="energy",
+        attrs={
+            "units": "J m-1",
+            "long_name": "ray energy density (energy per unit wavefront width)",
+            "caution": caution_summary(),
+        },
+    )
+    first = xr.DataArray(
+        T,
+        dims=(yd, xd),
+        coords=coords,
+        name="first_arrival_s",
+        attrs={"units": "s", "long_name": "first ray arrival time", "caution": caution_summary()},
+    )
+    if "spatial_ref" in fld.depth.coords:
+        sr = fld.depth.coords["spatial_ref"]
+        energy = energy.assign_coords(spatial_ref=sr)
+        first = first.assign_coords(spatial_ref=sr)
+        energy.attrs["grid_mapping"] = first.attrs["grid_mapping"] = "spatial_ref"
+    if info.geographic:
+        energy.attrs["lon_periodic"] = first.attrs["lon_periodic"] = int(info.periodic_x)
+    return energy, first
 
-    counts = {name: int(np.sum(reason == code)) for name, code in REASON_CODES.items()}
-    stats = {
-        "n_rays": int(n),
-        "n_steps": int(outi[:, 2].sum()),
-        "reasons": counts,
-        "elapsed_s": time.perf_counter() - t_start,
-        "threads": threads,
-        "step_s": dt,
-        "geometry": "sphere" if info.geographic else "plane",
-    }
-    return RayResult(end=end, energy=energy, first_arrival_s=first, paths=paths, stats=stats)
+
+def _paths_dataset(info, run: dict) -> xr.Dataset:
+    """The kept, decimated ray paths (NaN after each path's last point)."""
+    npaths, path_n, paths_buf, ids, path_every = (run["npaths"], run["path_n"], run["paths_buf"], run["ids"],
+                                                   run["path_every"])
+    xu, yu = _units(info)
+    npt = int(path_n[:npaths].max())
+    buf = paths_buf[:npaths, :npt].copy()
+    mask = np.arange(npt)[None, :] >= path_n[:npaths, None]
+    buf[mask] = np.nan
+    px, py = buf[:, :, 0], buf[:, :, 1]
+    if info.geographic:
+        px = np.degrees(px)  # unwrapped longitude, continuous along the path
+        py = np.degrees(py)
+    return xr.Dataset(
+        {
+            "x": (
+                ("path", "point"),
+                px,
+                {"units": xu, "note": "longitude unwrapped along the path" if info.geographic else ""},
+            ),
+            "y": (("path", "point"), py, {"units": yu}),
+            "time_s": (("path", "point"), buf[:, :, 2], {"units": "s"}),
+            "ray": ("path", ids),
+            "n_points": ("path", path_n[:npaths].copy()),
+        },
+        attrs={"decimation_steps": path_every, "caution": caution_summary()},
+    )

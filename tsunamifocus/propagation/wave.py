@@ -427,6 +427,90 @@ def simulate_linear_long_wave(
     ResourceLimitError
         The working arrays would exceed ``max_memory_bytes``.
     """
+    info, bnd = _check_inputs(depth, eta0, coast=coast, boundary=boundary, duration_s=duration_s,
+                              record_every_s=record_every_s, polar_cutoff_deg=polar_cutoff_deg, cfl=cfl,
+                              stop_depth_m=stop_depth_m, gravity=gravity)
+    ny, nx = info.ny, info.nx
+    mem = _memory_needed(ny, nx, duration_s, record_every_s, max_memory_bytes)
+    d = np.asarray(depth.values, dtype=float)
+    wet = _polar_dry(info, _wet_mask(d, stop_depth_m), polar_cutoff_deg)
+    e0 = np.asarray(eta0.values, dtype=float)
+    bad = wet & ~np.isfinite(e0)
+    if bad.any():
+        raise InputError(f"eta0 has {int(bad.sum())} NaN/inf values over wet cells; expected finite elevations [m]")
+    eta = np.where(wet, e0, 0.0)
+    m = _metric(info)
+    dt = _dt_from(d, wet, m, cfl, gravity, depth.name)
+    n_steps = max(1, int(math.ceil(duration_s / dt - 1e-9)))
+    dt = float(duration_s) / n_steps
+    hrow = np.where(wet, d, 0.0).max(axis=1)
+    courant = float((np.sqrt(gravity * hrow) * np.sqrt(1.0 / m.dxm**2 + 1.0 / m.dym**2)).max() * dt)
+
+    faces = _face_arrays(d, wet, m, dt, gravity, coast, bnd, info.periodic_x)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        inv_a = np.where(m.area > 0, 1.0 / m.area, 0.0)
+    bx = dt * m.lx * inv_a
+    byn = dt * m.ly[1:] * inv_a
+    bys = dt * m.ly[:-1] * inv_a
+
+    thr = _arrival_threshold(eta, arrival_threshold_m)
+    qx = np.full((ny, nx + 1), 0.0)
+    qy = np.full((ny + 1, nx), 0.0)
+    max_eta = np.where(wet, eta, -np.inf)
+    # np.full, not np.zeros: calloc-backed pages that are only conditionally written make masked vector
+    # stores very slow (microcode assists on the shared zero page)
+    max_time = np.full((ny, nx), 0.0)
+    arrival = np.where(wet & (np.abs(eta) > thr), 0.0, np.nan)
+    wet_u8 = wet.astype(np.uint8)
+    area2d = m.area[:, None]
+    vol0 = float(np.sum(eta * area2d))
+    abs0 = float(np.sum(np.abs(eta) * area2d))
+
+    loop = _time_loop(eta, qx, qy, faces, wet_u8, bx, byn, bys, thr, max_eta, max_time, arrival,
+                      n_steps=n_steps, dt=dt, periodic=bool(info.periodic_x), threads=threads,
+                      record_every_s=record_every_s, progress=progress)
+    stats = _run_stats(loop, n_steps=n_steps, dt=dt, duration_s=duration_s, cfl=cfl, courant=courant,
+                       ny=ny, nx=nx, wet=wet, vol0=vol0, vol1=float(np.sum(eta * area2d)), abs0=abs0, thr=thr,
+                       stop_depth_m=stop_depth_m, coast=coast, bnd=bnd, gravity=gravity,
+                       polar_cutoff_deg=polar_cutoff_deg, mem=mem)
+    return _wave_result(depth, wet, eta, max_eta, max_time, arrival, loop["snaps"], loop["snap_t"], thr, stats)
+
+
+def _run_stats(loop: dict, *, n_steps, dt, duration_s, cfl, courant, ny, nx, wet, vol0, vol1, abs0, thr, stop_depth_m,
+               coast, bnd, gravity, polar_cutoff_deg, mem) -> dict[str, Any]:
+    """The run's statistics, with the volume budget (start + outflow = end, residual relative to |eta0|)."""
+    outflow, elapsed, use_threads = loop["outflow"], loop["elapsed"], loop["threads"]
+    resid = vol1 + outflow - vol0
+    stats: dict[str, Any] = {
+        "steps": n_steps,
+        "dt_s": dt,
+        "duration_s": float(duration_s),
+        "cfl": float(cfl),
+        "courant_max": courant,
+        "elapsed_s": elapsed,
+        "cell_updates_per_s": ny * nx * n_steps / elapsed if elapsed > 0 else math.inf,
+        "threads": use_threads,
+        "n_cells": ny * nx,
+        "n_wet": int(wet.sum()),
+        "volume0_m3": vol0,
+        "volume_end_m3": vol1,
+        "outflow_m3": outflow,
+        "mass_error_m3": resid,
+        "mass_error": resid / abs0 if abs0 > 0 else 0.0,
+        "arrival_threshold_m": thr,
+        "stop_depth_m": float(stop_depth_m),
+        "coast": coast,
+        "boundary": bnd,
+        "gravity": float(gravity),
+        "polar_cutoff_deg": polar_cutoff_deg,
+        "memory_bytes": mem,
+    }
+    return stats
+
+
+def _check_inputs(depth: xr.DataArray, eta0: Any, *, coast, boundary, duration_s, record_every_s, polar_cutoff_deg,
+                  cfl, stop_depth_m, gravity) -> tuple[GridInfo, dict]:
+    """Validate the solver's inputs; return the grid and the parsed open boundaries."""
     _check_scalars(cfl=cfl, stop_depth_m=stop_depth_m, gravity=gravity)
     if coast not in ("reflect", "absorb"):
         raise InputError(f"coast={coast!r}: expected 'reflect' or 'absorb'")
@@ -449,8 +533,12 @@ def simulate_linear_long_wave(
         step = abs(a[1] - a[0])
         if np.max(np.abs(a - b)) > 1e-6 * step:
             raise InputError(f"eta0 coordinate '{dim}' does not match the depth grid (max offset {np.max(np.abs(a - b))})")
+    return info, bnd
 
-    ny, nx = info.ny, info.nx
+
+def _memory_needed(ny: int, nx: int, duration_s: float, record_every_s: float | None,
+                   max_memory_bytes: float | None) -> int:
+    """Working-array bytes of a run (snapshots included); refuses above ``max_memory_bytes``."""
     n_snap_bytes = 0
     if record_every_s is not None:
         n_snap_bytes = 4 * ny * nx * (int(duration_s // record_every_s) + 1)
@@ -460,28 +548,11 @@ def simulate_linear_long_wave(
             f"wave solver on a {ny} x {nx} grid needs about {mem / 2**30:.2f} GiB "
             f"(max_memory_bytes={max_memory_bytes / 2**30:.2f} GiB); coarsen the grid or record fewer snapshots"
         )
+    return mem
 
-    d = np.asarray(depth.values, dtype=float)
-    wet = _polar_dry(info, _wet_mask(d, stop_depth_m), polar_cutoff_deg)
-    e0 = np.asarray(eta0.values, dtype=float)
-    bad = wet & ~np.isfinite(e0)
-    if bad.any():
-        raise InputError(f"eta0 has {int(bad.sum())} NaN/inf values over wet cells; expected finite elevations [m]")
-    eta = np.where(wet, e0, 0.0)
-    m = _metric(info)
-    dt = _dt_from(d, wet, m, cfl, gravity, depth.name)
-    n_steps = max(1, int(math.ceil(duration_s / dt - 1e-9)))
-    dt = float(duration_s) / n_steps
-    hrow = np.where(wet, d, 0.0).max(axis=1)
-    courant = float((np.sqrt(gravity * hrow) * np.sqrt(1.0 / m.dxm**2 + 1.0 / m.dym**2)).max() * dt)
 
-    faces = _face_arrays(d, wet, m, dt, gravity, coast, bnd, info.periodic_x)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        inv_a = np.where(m.area > 0, 1.0 / m.area, 0.0)
-    bx = dt * m.lx * inv_a
-    byn = dt * m.ly[1:] * inv_a
-    bys = dt * m.ly[:-1] * inv_a
-
+def _arrival_threshold(eta: np.ndarray, arrival_threshold_m: float | None) -> float:
+    """Elevation [m] whose first exceedance is the arrival time (default 1e-3 of the initial maximum)."""
     amax = float(np.max(np.abs(eta))) if eta.size else 0.0
     if arrival_threshold_m is None:
         thr = 1e-3 * amax if amax > 0 else math.inf
@@ -489,20 +560,14 @@ def simulate_linear_long_wave(
         if not (math.isfinite(arrival_threshold_m) and arrival_threshold_m > 0):
             raise InputError(f"arrival_threshold_m={arrival_threshold_m!r}: expected a positive elevation [m]")
         thr = float(arrival_threshold_m)
+    return thr
 
-    qx = np.full((ny, nx + 1), 0.0)
-    qy = np.full((ny + 1, nx), 0.0)
-    max_eta = np.where(wet, eta, -np.inf)
-    # np.full, not np.zeros: calloc-backed pages that are only conditionally written make masked vector
-    # stores very slow (microcode assists on the shared zero page)
-    max_time = np.full((ny, nx), 0.0)
-    arrival = np.where(wet & (np.abs(eta) > thr), 0.0, np.nan)
+
+def _time_loop(eta, qx, qy, faces, wet_u8, bx, byn, bys, thr, max_eta, max_time, arrival, *, n_steps, dt, periodic,
+               threads, record_every_s, progress) -> dict:
+    """Step the fields in place on ``threads`` numba threads; returns outflow, wall time, snapshots."""
+    ny, nx = eta.shape
     outflow = 0.0
-    wet_u8 = wet.astype(np.uint8)
-    area2d = m.area[:, None]
-    vol0 = float(np.sum(eta * area2d))
-    abs0 = float(np.sum(np.abs(eta) * area2d))
-
     snaps: list[np.ndarray] = []
     snap_t: list[float] = []
     next_rec = 0.0
@@ -513,7 +578,6 @@ def simulate_linear_long_wave(
 
     prog_cb, bar = _progress(progress, n_steps)
     every = max(1, n_steps // 100)
-    periodic = bool(info.periodic_x)
 
     old_threads = numba.get_num_threads()
     use_threads = old_threads if threads is None else int(threads)
@@ -545,33 +609,13 @@ def simulate_linear_long_wave(
         numba.set_num_threads(old_threads)
         if bar is not None:
             bar.close()
+    return {"outflow": outflow, "elapsed": elapsed, "threads": use_threads, "snaps": snaps, "snap_t": snap_t}
 
-    vol1 = float(np.sum(eta * area2d))
-    resid = vol1 + outflow - vol0
-    stats: dict[str, Any] = {
-        "steps": n_steps,
-        "dt_s": dt,
-        "duration_s": float(duration_s),
-        "cfl": float(cfl),
-        "courant_max": courant,
-        "elapsed_s": elapsed,
-        "cell_updates_per_s": ny * nx * n_steps / elapsed if elapsed > 0 else math.inf,
-        "threads": use_threads,
-        "n_cells": ny * nx,
-        "n_wet": int(wet.sum()),
-        "volume0_m3": vol0,
-        "volume_end_m3": vol1,
-        "outflow_m3": outflow,
-        "mass_error_m3": resid,
-        "mass_error": resid / abs0 if abs0 > 0 else 0.0,
-        "arrival_threshold_m": thr,
-        "stop_depth_m": float(stop_depth_m),
-        "coast": coast,
-        "boundary": bnd,
-        "gravity": float(gravity),
-        "polar_cutoff_deg": polar_cutoff_deg,
-        "memory_bytes": mem,
-    }
+
+def _wave_result(depth: xr.DataArray, wet: np.ndarray, eta: np.ndarray, max_eta: np.ndarray, max_time: np.ndarray,
+                 arrival: np.ndarray, snaps: list, snap_t: list, thr: float, stats: dict) -> WaveResult:
+    """The solver's fields as grids like the depth (NaN on dry cells), with the run statistics."""
+    stop_depth_m, coast = stats["stop_depth_m"], stats["coast"]
     common = {"stop_depth_m": float(stop_depth_m), "coast": coast, "model": "linear long-wave (C grid, forward-backward)"}
     max_amp = _as_grid(
         depth,

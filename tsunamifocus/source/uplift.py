@@ -214,53 +214,13 @@ def uplift_on_grid(
             what = f"rupture {src.name!r} segment {iseg} ({seg.name!r})"
             geo = _segment_geometry(seg, gi)
             _check_inside(gi, geo["gx"], geo["gy"], what)
-            # trace over land only? (41 points along the trace, nearest cell)
-            t = np.linspace(0.0, 1.0, 41)
-            if gi.geographic:
-                pts = Geod(ellps="WGS84").npts(geo["gx"][0], geo["gy"][0], geo["gx"][1], geo["gy"][1], 39)
-                sx = np.r_[geo["gx"][0], [p[0] for p in pts], geo["gx"][1]]
-                sy = np.r_[geo["gy"][0], [p[1] for p in pts], geo["gy"][1]]
-            else:
-                sx = geo["gx"][0] + t * (geo["gx"][1] - geo["gx"][0])
-                sy = geo["gy"][0] + t * (geo["gy"][1] - geo["gy"][0])
-            dv = _nearest_values(gi, dep, sx, sy)
-            if not np.any(sea_mask(dv)):
-                raise SourceError(
-                    f"{what}: the whole fault trace {seg.trace} lies on land or no-data cells of the depth grid"
-                )
+            _check_trace_at_sea(seg, geo, gi, dep, what)
             radius = _window_radius_m(seg) if window_km is None else float(window_km) * 1e3
             rows, cols = _window_slices(gi, geo["mid"][0], geo["mid"][1], radius)
             if cols.size == 0 or rows.stop <= rows.start:
                 continue
             X, Y = np.meshgrid(gi.x[cols], gi.y[rows])
-            if geo["transformer"] is not None:
-                E, N = geo["transformer"].transform(X.ravel(), Y.ravel())
-                E, N = np.asarray(E), np.asarray(N)
-            else:
-                E, N = X.ravel(), Y.ravel()
-            # evaluate inside the circle of the window radius, with a cos^2 taper over its
-            # outer quarter so the neglected far field leaves no step in eta
-            if geo["transformer"] is not None:
-                r = np.hypot(E, N)  # local frame centred on the trace mid point
-            else:
-                r = np.hypot(E - geo["mid"][0], N - geo["mid"][1])
-            inside = np.nonzero(r < radius)[0]
-            taper = np.clip((radius - r[inside]) / (0.25 * radius), 0.0, 1.0)
-            taper = np.sin(0.5 * np.pi * taper) ** 2
-            uz = np.zeros(E.size)
-            uE = np.zeros(E.size) if horizontal else None
-            uN = np.zeros(E.size) if horizontal else None
-            e1, e2 = float(geo["e"][0]), float(geo["e"][1])
-            n1, n2 = float(geo["n"][0]), float(geo["n"][1])
-            for a in range(0, inside.size, chunk):
-                idx = inside[a : a + chunk]
-                tp = taper[a : a + chunk]
-                ue_, un_, uz_ = _okada_segment(seg, slip, e1, n1, e2, n2, E[idx], N[idx], src.poisson,
-                                               horizontal)
-                uz[idx] = uz_ * tp
-                if horizontal:
-                    uE[idx] = ue_ * tp  # type: ignore[index]
-                    uN[idx] = un_ * tp  # type: ignore[index]
+            uz, uE, uN = _segment_window(seg, slip, geo, X, Y, radius, src.poisson, horizontal, chunk)
             sub = np.ix_(np.arange(rows.start, rows.stop), cols)
             eta[sub] += uz.reshape(X.shape)
             if horizontal:
@@ -283,6 +243,56 @@ def uplift_on_grid(
                            "cautions": caution_summary(), **attrs_src},
                     lon_periodic=gi.periodic_x if gi.geographic else None)
     return out
+
+def _check_trace_at_sea(seg: FaultSegment, geo: dict, gi: GridInfo, dep: np.ndarray, what: str) -> None:
+    """Refuse a fault whose whole trace lies on land or no data (41 points along it, nearest cell)."""
+    t = np.linspace(0.0, 1.0, 41)
+    if gi.geographic:
+        pts = Geod(ellps="WGS84").npts(geo["gx"][0], geo["gy"][0], geo["gx"][1], geo["gy"][1], 39)
+        sx = np.r_[geo["gx"][0], [p[0] for p in pts], geo["gx"][1]]
+        sy = np.r_[geo["gy"][0], [p[1] for p in pts], geo["gy"][1]]
+    else:
+        sx = geo["gx"][0] + t * (geo["gx"][1] - geo["gx"][0])
+        sy = geo["gy"][0] + t * (geo["gy"][1] - geo["gy"][0])
+    dv = _nearest_values(gi, dep, sx, sy)
+    if not np.any(sea_mask(dv)):
+        raise SourceError(
+            f"{what}: the whole fault trace {seg.trace} lies on land or no-data cells of the depth grid"
+        )
+
+
+def _segment_window(seg: FaultSegment, slip: float, geo: dict, X: np.ndarray, Y: np.ndarray, radius: float,
+                    poisson: float, horizontal: bool, chunk: int) -> tuple[np.ndarray, Any, Any]:
+    """Okada displacements of one segment on the window nodes (X, Y), tapered to zero at ``radius``."""
+    if geo["transformer"] is not None:
+        E, N = geo["transformer"].transform(X.ravel(), Y.ravel())
+        E, N = np.asarray(E), np.asarray(N)
+    else:
+        E, N = X.ravel(), Y.ravel()
+    # evaluate inside the circle of the window radius, with a cos^2 taper over its
+    # outer quarter so the neglected far field leaves no step in eta
+    if geo["transformer"] is not None:
+        r = np.hypot(E, N)  # local frame centred on the trace mid point
+    else:
+        r = np.hypot(E - geo["mid"][0], N - geo["mid"][1])
+    inside = np.nonzero(r < radius)[0]
+    taper = np.clip((radius - r[inside]) / (0.25 * radius), 0.0, 1.0)
+    taper = np.sin(0.5 * np.pi * taper) ** 2
+    uz = np.zeros(E.size)
+    uE = np.zeros(E.size) if horizontal else None
+    uN = np.zeros(E.size) if horizontal else None
+    e1, e2 = float(geo["e"][0]), float(geo["e"][1])
+    n1, n2 = float(geo["n"][0]), float(geo["n"][1])
+    for a in range(0, inside.size, chunk):
+        idx = inside[a : a + chunk]
+        tp = taper[a : a + chunk]
+        ue_, un_, uz_ = _okada_segment(seg, slip, e1, n1, e2, n2, E[idx], N[idx], poisson,
+                                       horizontal)
+        uz[idx] = uz_ * tp
+        if horizontal:
+            uE[idx] = ue_ * tp  # type: ignore[index]
+            uN[idx] = un_ * tp  # type: ignore[index]
+    return uz, uE, uN
 
 
 def _mean_strike(src: Rupture, gi: GridInfo) -> float:

@@ -241,6 +241,27 @@ def compare_runs(runs: Sequence[RunTuple], *, top_k: int = 10) -> Comparison:
         segmentations (refused, see the module docstring).
     """
     runs = list(runs)
+    names = _check_runs(runs, top_k)
+    safe = [_column_suffix(n) for n in names]
+    if len(set(safe)) != len(safe):
+        safe = [f"{s}_{k + 1}" for k, s in enumerate(safe)]
+    ref_name = names[0]
+    ref_seg = _segments_indexed(runs[0][1], ref_name)
+    segs = [ref_seg]
+    for name, seg, _ in runs[1:]:
+        segs.append(_check_segmentation(ref_name, ref_seg, str(name), _segments_indexed(seg, str(name))))
+    layers, common = _common_layers(runs, ref_name)
+    ranking, colmap, k = _ranking_table(names, safe, segs, ref_seg, top_k)
+    lens = np.vstack([s["lensing_factor"].to_numpy(dtype=float) for s in segs])
+    corr = _rank_correlation_table(names, lens)
+    envelope = _envelopes(names, layers, common)
+    differences = _differences(names, layers, common)
+    summary = _summary(names, ranking, corr, k, colmap)
+    return Comparison(names, ranking, corr, envelope, differences, k, summary, colmap)
+
+
+def _check_runs(runs: list, top_k: int) -> list[str]:
+    """Refuse too few runs, a bad top_k, malformed run tuples and empty or repeated names; the names."""
     if len(runs) < 2:
         raise InputError(f"compare: need at least 2 runs, got {len(runs)}")
     if isinstance(top_k, bool) or not isinstance(top_k, (int, np.integer)) or top_k < 1:
@@ -255,14 +276,11 @@ def compare_runs(runs: Sequence[RunTuple], *, top_k: int = 10) -> Comparison:
     dup = sorted({n for n in names if names.count(n) > 1})
     if dup:
         raise InputError(f"compare: duplicate run names {dup}; give each run a unique name")
-    safe = [_column_suffix(n) for n in names]
-    if len(set(safe)) != len(safe):
-        safe = [f"{s}_{k + 1}" for k, s in enumerate(safe)]
-    ref_name = names[0]
-    ref_seg = _segments_indexed(runs[0][1], ref_name)
-    segs = [ref_seg]
-    for name, seg, _ in runs[1:]:
-        segs.append(_check_segmentation(ref_name, ref_seg, str(name), _segments_indexed(seg, str(name))))
+    return names
+
+
+def _common_layers(runs: list, ref_name: str) -> tuple[list[dict[str, xr.DataArray]], list[str]]:
+    """The runs' layer dicts and the names of the layers all runs have (all on one grid)."""
     layers: list[dict[str, xr.DataArray]] = []
     for name, _, lay in runs:
         if not isinstance(lay, Mapping):
@@ -275,8 +293,12 @@ def compare_runs(runs: Sequence[RunTuple], *, top_k: int = 10) -> Comparison:
     # grids of different layers of the first run must agree too (one grid per run)
     for k in common[1:]:
         _check_grid(ref_name, layers[0][common[0]], ref_name, k, layers[0][k])
+    return layers, common
 
-    # ---- ranking table
+
+def _ranking_table(names: list[str], safe: list[str], segs: list[pd.DataFrame], ref_seg: pd.DataFrame,
+                   top_k: int) -> tuple[pd.DataFrame, dict[str, str], int]:
+    """Side-by-side ranking: per-run values and ranks, the envelope maximum, earliest arrival, top-k counts."""
     static = [c for c in _STATIC if c in ref_seg.columns]
     ranking = ref_seg[static].copy()
     colmap: dict[str, str] = {}
@@ -304,8 +326,11 @@ def compare_runs(runs: Sequence[RunTuple], *, top_k: int = 10) -> Comparison:
         n_top += topk_mask(s["lensing_factor"].to_numpy(dtype=float), k)
     ranking["n_topk"] = n_top
     ranking["rank_envelope"] = _rank_desc(ranking["lensing_factor_max"]).to_numpy()
+    return ranking, colmap, k
 
-    # ---- rank correlations
+
+def _rank_correlation_table(names: list[str], lens: np.ndarray) -> pd.DataFrame:
+    """Spearman's rho and Kendall's tau of every pair of runs over the segments finite in both."""
     rows = []
     for i, j in itertools.combinations(range(len(names)), 2):
         a, b = lens[i], lens[j]
@@ -319,9 +344,11 @@ def compare_runs(runs: Sequence[RunTuple], *, top_k: int = 10) -> Comparison:
             {"run_a": names[i], "run_b": names[j], "n": n_ok, "spearman_rho": rho, "spearman_p": rp,
              "kendall_tau": tau, "kendall_p": tp}
         )
-    corr = pd.DataFrame(rows, columns=["run_a", "run_b", "n", "spearman_rho", "spearman_p", "kendall_tau", "kendall_p"])
+    return pd.DataFrame(rows, columns=["run_a", "run_b", "n", "spearman_rho", "spearman_p", "kendall_tau", "kendall_p"])
 
-    # ---- envelope and differences
+
+def _envelopes(names: list[str], layers: list[dict[str, xr.DataArray]], common: list[str]) -> dict[str, xr.DataArray]:
+    """Per-cell maximum (or earliest) over the runs of the layers in ENVELOPE_RULES."""
     envelope: dict[str, xr.DataArray] = {}
     for lay in [k for k in common if k in ENVELOPE_RULES]:
         stack = np.stack([np.asarray(L[lay].values, dtype=float) for L in layers])
@@ -334,6 +361,13 @@ def compare_runs(runs: Sequence[RunTuple], *, top_k: int = 10) -> Comparison:
         da.attrs["long_name"] = f"envelope over {len(names)} scenarios: {what} of {tpl.attrs.get('long_name', lay)}"
         da.attrs["envelope_of"] = ", ".join(names)
         envelope[lay] = da
+    return envelope
+
+
+def _differences(names: list[str], layers: list[dict[str, xr.DataArray]],
+                 common: list[str]) -> dict[str, dict[str, xr.DataArray]]:
+    """Each later run minus the first, for the layers in DIFFERENCE_LAYERS."""
+    ref_name = names[0]
     differences: dict[str, dict[str, xr.DataArray]] = {}
     for n, L in zip(names[1:], layers[1:]):
         d: dict[str, xr.DataArray] = {}
@@ -345,9 +379,7 @@ def compare_runs(runs: Sequence[RunTuple], *, top_k: int = 10) -> Comparison:
             da.attrs["long_name"] = f"{tpl.attrs.get('long_name', lay)}: '{n}' minus '{ref_name}'"
             d[lay] = da
         differences[n] = d
-
-    summary = _summary(names, ranking, corr, k, colmap)
-    return Comparison(names, ranking, corr, envelope, differences, k, summary, colmap)
+    return differences
 
 
 def _summary(names: list[str], ranking: pd.DataFrame, corr: pd.DataFrame, k: int, colmap: dict[str, str]) -> str:

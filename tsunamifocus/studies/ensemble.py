@@ -780,6 +780,27 @@ def run_ensemble(
         Every member failed (the first failure's seed and error are named), or the scheduler
         cannot be reached.
     """
+    members = _check_arguments(member_fn, members, retries, shared)
+    reduce_list = None if reduce is None else [str(r) for r in reduce]
+    workers = int(workers) if workers else (os.cpu_count() or 1)
+    kind, client, own = _resolve_scheduler(scheduler, workers, connect_timeout_s)
+    acc = _Accumulator(len(members), reduce_list)
+    prog = MemberProgress(len(members), progress)
+    t0 = time.perf_counter()
+    try:
+        sched_info = _execute(kind, client, member_fn, members, retries, shared, acc, prog, workers, max_buffered)
+    finally:
+        prog.close()
+        if own and client is not None:
+            client.close()
+    total = time.perf_counter() - t0
+    if acc.next_index != len(members):  # pragma: no cover - defensive
+        raise EnsembleError(f"ensemble bookkeeping error: folded {acc.next_index} of {len(members)} members")
+    return _ensemble_result(acc, members, sched_info, total, top_k=top_k, rank_by=rank_by)
+
+
+def _check_arguments(member_fn, members, retries, shared) -> list[dict]:
+    """Validate run_ensemble's arguments; the members as a list of dicts."""
     if not callable(member_fn):
         raise InputError(f"run_ensemble: member_fn {member_fn!r} is not callable")
     if not all(isinstance(m, Mapping) for m in members):
@@ -791,40 +812,38 @@ def run_ensemble(
         raise InputError(f"run_ensemble: retries = {retries!r}; expected an integer >= 0")
     if shared is not None and not isinstance(shared, Mapping):
         raise InputError(f"run_ensemble: shared must be a dict of keyword arguments, got {type(shared).__name__}")
-    reduce_list = None if reduce is None else [str(r) for r in reduce]
-    workers = int(workers) if workers else (os.cpu_count() or 1)
-    kind, client, own = _resolve_scheduler(scheduler, workers, connect_timeout_s)
-    acc = _Accumulator(len(members), reduce_list)
-    prog = MemberProgress(len(members), progress)
-    t0 = time.perf_counter()
+    return members
+
+
+def _execute(kind: str, client: Any, member_fn, members, retries, shared, acc: _Accumulator, prog: MemberProgress,
+             workers: int, max_buffered: int | None) -> dict[str, Any]:
+    """Run every member on the resolved scheduler, folding results into ``acc``; the scheduler's description."""
     sched_info: dict[str, Any] = {"kind": kind}
-    try:
-        if kind == "serial":
-            sched_info["workers"] = 1
-            _run_serial(member_fn, members, retries, shared, acc, prog)
-        elif kind in ("local", "synchronous"):
-            sched_info["workers"] = 1 if kind == "synchronous" else workers
-            window = int(max_buffered) if max_buffered else max(4, 2 * workers)
-            if window < 1:
-                raise InputError(f"run_ensemble: max_buffered = {max_buffered!r}; expected >= 1")
-            sched_info["max_buffered"] = window
-            _run_dask_local(member_fn, members, retries, shared, acc, prog, kind, workers, window)
-        else:
-            info = client.scheduler_info()
-            nthreads = sum(w.get("nthreads", 1) for w in info.get("workers", {}).values()) or 1
-            sched_info.update(address=client.scheduler.address, workers=len(info.get("workers", {})), threads=nthreads)
-            buf = int(max_buffered) if max_buffered else max(4, 2 * nthreads)
-            if buf < 1:
-                raise InputError(f"run_ensemble: max_buffered = {max_buffered!r}; expected >= 1")
-            sched_info["max_buffered"] = buf
-            _run_distributed(member_fn, members, retries, shared, acc, prog, client, buf)
-    finally:
-        prog.close()
-        if own and client is not None:
-            client.close()
-    total = time.perf_counter() - t0
-    if acc.next_index != len(members):  # pragma: no cover - defensive
-        raise EnsembleError(f"ensemble bookkeeping error: folded {acc.next_index} of {len(members)} members")
+    if kind == "serial":
+        sched_info["workers"] = 1
+        _run_serial(member_fn, members, retries, shared, acc, prog)
+    elif kind in ("local", "synchronous"):
+        sched_info["workers"] = 1 if kind == "synchronous" else workers
+        window = int(max_buffered) if max_buffered else max(4, 2 * workers)
+        if window < 1:
+            raise InputError(f"run_ensemble: max_buffered = {max_buffered!r}; expected >= 1")
+        sched_info["max_buffered"] = window
+        _run_dask_local(member_fn, members, retries, shared, acc, prog, kind, workers, window)
+    else:
+        info = client.scheduler_info()
+        nthreads = sum(w.get("nthreads", 1) for w in info.get("workers", {}).values()) or 1
+        sched_info.update(address=client.scheduler.address, workers=len(info.get("workers", {})), threads=nthreads)
+        buf = int(max_buffered) if max_buffered else max(4, 2 * nthreads)
+        if buf < 1:
+            raise InputError(f"run_ensemble: max_buffered = {max_buffered!r}; expected >= 1")
+        sched_info["max_buffered"] = buf
+        _run_distributed(member_fn, members, retries, shared, acc, prog, client, buf)
+    return sched_info
+
+
+def _ensemble_result(acc: _Accumulator, members: list[dict], sched_info: dict, total: float, *, top_k: int,
+                     rank_by: str) -> EnsembleResult:
+    """Statistics, grids, member table, timings and memory bounds of a finished ensemble."""
     failures = sorted(acc.failures, key=lambda f: f.member)
     if not acc.tables:
         f0 = failures[0]

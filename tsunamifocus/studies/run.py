@@ -111,7 +111,6 @@ def build_source(cfg: Any, perturbation: dict | None = None):
     -------
     Rupture or PointSource
     """
-
     p = perturbation or {}
     if cfg.kind == "point":
         lon, lat = cfg.lon, cfg.lat
@@ -137,7 +136,6 @@ def build_source(cfg: Any, perturbation: dict | None = None):
 
 def _source_outline(source: Any, depth: xr.DataArray) -> list[np.ndarray]:
     """Surface projection of each fault segment as a closed polyline in grid coordinates."""
-
     if not isinstance(source, Rupture):
         return []
     info = GridInfo.from_dataarray(depth)
@@ -303,7 +301,6 @@ def analyse_source(
     -------
     SourceAnalysis
     """
-
     pr = progress or StageProgress(False)
     p = perturbation or {}
     pr.start("source", f"source '{src_cfg.name}': Okada uplift and ray fan")
@@ -441,7 +438,6 @@ def arrival_times(
     numpy.ndarray
         Seconds, NaN where no ray came within 6 cells of a point.
     """
-
     info = GridInfo.from_dataarray(depth)
     if isinstance(source, (tuple, list)) and len(source) == 2 and all(np.isscalar(v) for v in source):
         to_grid = Transformer.from_crs("EPSG:4326", info.crs, always_xy=True)
@@ -513,7 +509,6 @@ class RunResult:
 
 def _guard_resources(depth: xr.DataArray, scenario: Any, rays: int | None) -> None:
     """Refuse runs whose tracing memory would exceed the scenario's limit; log a time estimate."""
-
     info = GridInfo.from_dataarray(depth)
     n = int(rays or scenario.rays.count)
     cells = info.nx * info.ny
@@ -566,7 +561,6 @@ def ensemble_member(params: dict, *, depth: xr.DataArray, scenario: Any, segment
     -------
     tsunamifocus.ensemble.MemberResult
     """
-
     d = depth
     if params.get("bathy_seed") is not None and params.get("bathy_rms", 0.0) > 0:
         d = perturb_bathymetry(depth, params["bathy_rms"], params["bathy_corr_km"], params["bathy_seed"])

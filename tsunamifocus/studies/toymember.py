@@ -68,7 +68,6 @@ def example_member(
         Segments with ``lensing_factor``, ``amp_1m_m``, ``energy_per_m``, ``first_arrival_s``;
         grids ``energy`` and ``lensing_factor`` (DataArrays on the depth grid).
     """
-
     info = GridInfo.from_dataarray(depth)
     dx, dy = info.spacing_m()
     if params.get("bathy_seed") is not None and params.get("bathy_rms", 0.0) > 0:
