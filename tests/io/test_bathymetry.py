@@ -50,11 +50,78 @@ def _coord_code(x, y):
 
 # ----------------------------------------------------------------------------- real data
 @pytest.mark.realdata
-def test_real_grid_sign_refused_in_auto(etopo_path):
-    # the file's variable 'z' has no units, no 'positive' attribute and a neutral name
-    # (shared/data/README.md): auto must refuse rather than guess
-    with pytest.raises(errors.SignConventionError, match="values='elevation'"):
-        load_bathymetry(etopo_path)
+def test_real_grid_sign_decided_from_physical_bounds(etopo_path):
+    # The file's variable 'z' has no units, no 'positive' attribute and a neutral name
+    # (shared/data/README.md), so metadata cannot tell. Its minimum, -10,714 m (the file's own
+    # actual_range attribute, read independently with netCDF4), lies below -8,900 m: no land is
+    # that high (Mount Everest 8,849 m; common practice, no source), so it can only be sea floor
+    # stored as negative elevation. auto must now agree with an explicit values='elevation'.
+    with netCDF4.Dataset(etopo_path) as nc:
+        lo = float(nc["z"].actual_range[0])
+    assert lo < -8900.0
+    auto = load_bathymetry(etopo_path)
+    explicit = load_bathymetry(etopo_path, values="elevation")
+    np.testing.assert_array_equal(auto.values, explicit.values)
+    assert "sea floor stored as negative elevation" in auto.attrs["sign_decided_by"]
+    assert auto.attrs["sign_decided_by"].startswith("values: minimum -10,714 m")
+
+
+@pytest.mark.realdata
+def test_real_grid_inspect_without_values(etopo_path, capsys):
+    # `inspect` without --values used to refuse this grid ("cannot tell ... 71% negative")
+    from tsunamifocus.cli.app import main
+
+    assert main(["inspect", str(etopo_path)]) == 0
+    out = capsys.readouterr().out
+    assert "sign            values: minimum -10,714 m" in out
+    # deepest sea cell: Challenger Deep at 0.1 degree, 10,714 m (the file's actual_range)
+    assert "max 10714 m" in out
+
+
+def _relief(lo, hi, shape=(6, 8)):
+    """A grid whose values run linearly from lo to hi (no metadata at all)."""
+    return np.linspace(lo, hi, shape[0] * shape[1]).reshape(shape)
+
+
+@pytest.mark.parametrize(
+    "lo, hi, units, expected",
+    [
+        # Physical bounds (common practice, no source): highest land 8,849 m (Everest), deepest sea
+        # floor ~10,935 m (Challenger Deep). Elevation grids span about [-10,935, 8,849] m, depth
+        # grids about [-8,849, 10,935] m.
+        (-9500.0, 3000.0, None, "elevation"),   # below -8,900 m: only sea floor as negative elevation
+        (-3000.0, 9500.0, None, "depth"),       # above +8,900 m: only sea floor as positive depth
+        (-31000.0, 9000.0, "ft", "elevation"),  # -9,449 m after converting feet (NIST: 1 ft = 0.3048 m)
+        (-9000.0, 31000.0, "ft", "depth"),      # +9,449 m
+    ],
+)
+def test_auto_sign_from_physical_bounds(tmp_path, lo, hi, units, expected):
+    arr = _relief(lo, hi)
+    p = _write_tif(tmp_path / "g.tif", arr, from_origin(0, 6000, 1000, 1000), units=units)
+    got = load_bathymetry(p)
+    ref = load_bathymetry(p, values=expected)
+    np.testing.assert_array_equal(got.values, ref.values)
+    assert got.attrs["sign_decided_by"].startswith("values:")
+
+
+@pytest.mark.parametrize(
+    "lo, hi, units, match",
+    [
+        (-6000.0, 3000.0, None, "all within"),  # a plausible elevation grid AND a plausible depth grid
+        (-3000.0, 6000.0, None, "all within"),
+        # -20,000 ft = -6,096 m: within the bounds once in metres, so still undecidable (the
+        # bound applies to metres, not to the stored numbers)
+        (-20000.0, 5000.0, "ft", "all within"),
+        (-9500.0, 9500.0, None, "beyond"),     # impossible either way: refuse, never guess
+    ],
+)
+def test_auto_sign_still_refused_when_values_cannot_tell(tmp_path, lo, hi, units, match):
+    arr = _relief(lo, hi)
+    p = _write_tif(tmp_path / "g.tif", arr, from_origin(0, 6000, 1000, 1000), units=units)
+    with pytest.raises(errors.SignConventionError, match=match) as ei:
+        load_bathymetry(p)
+    msg = str(ei.value)
+    assert "values='elevation'" in msg and "\n" not in msg and str(p) in msg
 
 
 @pytest.fixture(scope="module")

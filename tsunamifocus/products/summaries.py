@@ -34,6 +34,7 @@ def format_summary(s: dict) -> str:
     lines = [
         f"file            {s.get('file') or '-'}",
         f"format          {s['format']}",
+        *([f"sign            {s['sign_decided_by']}"] if s.get("sign_decided_by") else []),
         f"CRS             {s['crs']}" + (f" (EPSG:{s['crs_epsg']})" if s.get("crs_epsg") else ""),
         f"geometry        {'geographic lon/lat on a sphere' if s['geographic'] else 'projected plane (metres)'}"
         + (", wraps in longitude" if s["lon_periodic"] else ""),

@@ -61,6 +61,7 @@ def summarize_grid(depth: xr.DataArray, *, gravity: float = GRAVITY) -> dict:
     out: dict = {
         "format": depth.attrs.get("source_format", "in memory"),
         "file": depth.attrs.get("source_file"),
+        "sign_decided_by": depth.attrs.get("sign_decided_by"),
         "crs": info.crs.name,
         "crs_epsg": info.crs.to_epsg(),
         "geographic": info.geographic,
