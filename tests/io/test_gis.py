@@ -145,6 +145,97 @@ def test_netcdf_cf_round_trip(tmp_path, utm_grid):
         assert "coordinates" not in v.ncattrs()
 
 
+def _strip_coord_attrs(da):
+    """The grid as the run's layers reach the writer: coordinates without attributes."""
+    da = da.copy()
+    for d in da.dims:
+        da[d].attrs = {}
+    return da
+
+
+@pytest.mark.parametrize("which", ["geo", "utm"])
+def test_netcdf_coordinates_carry_cf_attributes(tmp_path, geo_grid, utm_grid, which):
+    # CF-1.8 section 4.1 (latitude: units degrees_north, standard_name latitude), 4.2 (longitude:
+    # degrees_east / longitude), 4.4 + Appendix A (axis X/Y), 5.6 (projection_x_coordinate /
+    # projection_y_coordinate for projected grids); long_name is the CF descriptive attribute.
+    # The run's layers reach the writer with bare coordinates: the writer must add everything.
+    da = _strip_coord_attrs(geo_grid if which == "geo" else utm_grid)
+    p = write_netcdf({"lensing_factor": da}, tmp_path / "c.nc", title="t")
+    if which == "geo":
+        want = {
+            "lon": {"units": "degrees_east", "standard_name": "longitude", "long_name": "longitude", "axis": "X"},
+            "lat": {"units": "degrees_north", "standard_name": "latitude", "long_name": "latitude", "axis": "Y"},
+        }
+    else:
+        want = {
+            "x": {"units": "m", "standard_name": "projection_x_coordinate",
+                  "long_name": "x coordinate of projection", "axis": "X"},
+            "y": {"units": "m", "standard_name": "projection_y_coordinate",
+                  "long_name": "y coordinate of projection", "axis": "Y"},
+        }
+    with netCDF4.Dataset(p) as nc:
+        for name, attrs in want.items():
+            got = {k: nc.variables[name].getncattr(k) for k in nc.variables[name].ncattrs()}
+            for k, v in attrs.items():
+                assert got.get(k) == v, (name, k, got)
+            assert nc.variables[name].dtype == np.float64  # positions keep full precision
+            assert "_FillValue" not in got
+    # and xarray (a CF decoder) sees the same attributes on its index coordinates
+    with xr.open_dataset(p) as ds:
+        for name, attrs in want.items():
+            assert {k: ds[name].attrs.get(k) for k in attrs} == attrs
+
+
+def test_netcdf_layers_float32_with_fill_value(tmp_path, geo_grid):
+    # netCDF4 (reference library): the stored type is float32 and the missing cells hold the
+    # declared _FillValue, netCDF's default float fill 9.96921e+36 (netcdf.h NC_FILL_FLOAT,
+    # = netCDF4.default_fillvals["f4"]); masked reads and xarray give NaN back there.
+    da = _strip_coord_attrs(geo_grid).copy()
+    da.values = da.values + 0.123456789  # not exactly representable: exercises the float32 rounding
+    da.values[3, 4] = np.nan
+    p = write_netcdf({"lensing_factor": da, "energy": da.rename("energy")}, tmp_path / "f.nc", title="t")
+    fill = netCDF4.default_fillvals["f4"]
+    with netCDF4.Dataset(p) as nc:
+        for name in ("lensing_factor", "energy"):
+            v = nc.variables[name]
+            assert v.dtype == np.float32
+            assert v.getncattr("_FillValue") == np.float32(fill)
+            v.set_auto_mask(False)
+            raw = v[:]
+            assert raw[3, 4] == np.float32(fill)
+            assert np.isfinite(raw).all()  # no NaN stored: the fill value marks the gaps
+            v.set_auto_mask(True)
+            assert np.ma.is_masked(v[:][3, 4]) and int(np.ma.count_masked(v[:])) == 1
+    with xr.open_dataset(p) as ds:
+        got = ds["lensing_factor"].values
+        assert np.isnan(got[3, 4]) and np.isnan(got).sum() == 1
+        np.testing.assert_array_equal(got, da.values.astype(np.float32))
+        # float32: relative rounding error below 2**-24 (IEEE 754 binary32, 24-bit significand)
+        ok = np.isfinite(da.values)
+        rel = np.abs(got[ok].astype(float) - da.values[ok]) / np.abs(da.values[ok])
+        assert rel.max() <= 2.0**-24
+    # float64 stays available on request, with netCDF's default double fill value
+    q = write_netcdf({"lensing_factor": da}, tmp_path / "d.nc", title="t", dtype="float64")
+    with netCDF4.Dataset(q) as nc:
+        assert nc.variables["lensing_factor"].dtype == np.float64
+        assert nc.variables["lensing_factor"].getncattr("_FillValue") == netCDF4.default_fillvals["f8"]
+    with pytest.raises(InputError, match="dtype='float16'.*'float32' or 'float64'"):
+        write_netcdf({"lensing_factor": da}, tmp_path / "e.nc", title="t", dtype="float16")
+    assert not (tmp_path / "e.nc").exists()
+
+
+def test_netcdf_float32_halves_a_noisy_layer(tmp_path):
+    # 8-byte versus 4-byte IEEE 754 values: on a field without redundancy (zlib cannot shrink
+    # random mantissas much) the float32 file must be well under the float64 one.
+    rng = np.random.default_rng(3)
+    lon = 120.0 + 0.1 * np.arange(400)
+    lat = -30.0 + 0.1 * np.arange(300)
+    da = make_grid(rng.lognormal(0.0, 1.0, (300, 400)), lon, lat, "EPSG:4326", name="energy")
+    a = write_netcdf({"energy": da}, tmp_path / "a.nc", title="t")
+    b = write_netcdf({"energy": da}, tmp_path / "b.nc", title="t", dtype="float64")
+    assert a.stat().st_size < 0.65 * b.stat().st_size
+
+
 def test_netcdf_geographic_and_mismatch(tmp_path, geo_grid, utm_grid):
     p = write_netcdf({"lensing_factor": geo_grid}, tmp_path / "g.nc", title="g")
     ds = xr.open_dataset(p)

@@ -233,6 +233,32 @@ def _nc_attrs(attrs: Mapping[str, Any]) -> dict[str, Any]:
     return out
 
 
+#: netCDF's default fill values (netcdf.h NC_FILL_FLOAT / NC_FILL_DOUBLE).
+_NC_FILL = {"float32": 9.9692099683868690e36, "float64": 9.9692099683868690e36}
+
+
+def _coordinate_attrs(crs: CRS, geographic: bool) -> tuple[dict[str, str], dict[str, str]]:
+    """CF attributes of the x and y coordinate variables (CF-1.8 sections 4.1, 4.2, 5.6)."""
+    if geographic:
+        return (
+            {"standard_name": "longitude", "long_name": "longitude", "units": "degrees_east", "axis": "X"},
+            {"standard_name": "latitude", "long_name": "latitude", "units": "degrees_north", "axis": "Y"},
+        )
+    unit = "m"
+    try:
+        ax = crs.axis_info[0]
+        if ax.unit_name not in ("metre", "meter") and ax.unit_conversion_factor:
+            unit = f"{ax.unit_conversion_factor:.12g} m"  # UDUNITS: a scaled metre (e.g. US survey foot)
+    except (IndexError, AttributeError):  # pragma: no cover - every projected CRS has axes
+        pass
+    return (
+        {"standard_name": "projection_x_coordinate", "long_name": "x coordinate of projection",
+         "units": unit, "axis": "X"},
+        {"standard_name": "projection_y_coordinate", "long_name": "y coordinate of projection",
+         "units": unit, "axis": "Y"},
+    )
+
+
 def write_netcdf(
     layers: Mapping[str, xr.DataArray] | xr.Dataset,
     path: str | os.PathLike,
@@ -243,6 +269,7 @@ def write_netcdf(
     references: str | None = None,
     institution: str | None = None,
     attrs: Mapping[str, Any] | None = None,
+    dtype: str = "float32",
 ) -> Path:
     """Write layers on one grid into a CF-1.8 NetCDF-4 file.
 
@@ -257,6 +284,9 @@ def write_netcdf(
         tool prepended; ``source`` defaults to the tool name and version.
     attrs : mapping, optional
         Extra global attributes.
+    dtype : {"float32", "float64"}
+        Storage type of floating-point layers (coordinates stay float64). float32 keeps about
+        7 significant digits, far beyond the accuracy of a screening estimate, at half the size.
 
     Returns
     -------
@@ -265,9 +295,14 @@ def write_netcdf(
     Notes
     -----
     Each variable has ``long_name``, ``units`` (UDUNITS) and ``grid_mapping = "spatial_ref"``;
-    the ``spatial_ref`` variable holds the CF grid-mapping attributes from pyproj plus
-    ``crs_wkt``. The caution text is in the global ``comment`` and ``caution`` attributes.
+    missing values are stored as ``_FillValue`` (netCDF's default fill value of the type,
+    9.96921e+36 for float32; NaN again when read with xarray or netCDF4's masking). The
+    ``spatial_ref`` variable holds the CF grid-mapping attributes from pyproj plus ``crs_wkt``.
+    Coordinates carry ``standard_name``, ``long_name``, ``units`` and ``axis`` (CF-1.8 sections
+    4.1, 4.2 and 5.6). The caution text is in the global ``comment`` and ``caution`` attributes.
     """
+    if dtype not in ("float32", "float64"):
+        raise InputError(f"write_netcdf: dtype={dtype!r}; expected 'float32' or 'float64'")
     items = dict(layers.data_vars) if isinstance(layers, xr.Dataset) else dict(layers)
     if not items:
         raise InputError("write_netcdf: no layers to write")
@@ -288,15 +323,17 @@ def write_netcdf(
         long_name, unit = _layer_meta(da.rename(name), None, None)
         v = da.drop_vars("spatial_ref", errors="ignore")
         v = v.assign_coords({d: first[d].values for d in first.dims})
-        v.attrs = _nc_attrs({k: val for k, val in da.attrs.items() if k not in ("grid_mapping",)})
+        v.attrs = _nc_attrs({k: val for k, val in da.attrs.items()
+                             if k not in ("grid_mapping", "_FillValue", "missing_value")})
         v.attrs.update(long_name=long_name, units=unit, grid_mapping="spatial_ref")
         data_vars[name] = v
     ds = xr.Dataset(data_vars)
     # the grid-mapping variable is a plain variable (CF-1.8 section 5.6), not an auxiliary coordinate
     ds["spatial_ref"] = xr.DataArray(ref.values, attrs=dict(ref.attrs))
     ydim, xdim = info0.dims
-    ds[xdim].attrs.update(first[xdim].attrs, axis="X")
-    ds[ydim].attrs.update(first[ydim].attrs, axis="Y")
+    cx, cy = _coordinate_attrs(crs0, info0.geographic)
+    ds[xdim].attrs = {**_nc_attrs(first[xdim].attrs), **cx}
+    ds[ydim].attrs = {**_nc_attrs(first[ydim].attrs), **cy}
     line = f"written by tsunamifocus {__version__}"
     caution = caution_text()
     ds.attrs = {
@@ -314,7 +351,8 @@ def write_netcdf(
     for name, v in ds.data_vars.items():
         enc: dict[str, Any] = {"zlib": True, "complevel": 4}
         if v.dtype.kind == "f":
-            enc["_FillValue"] = np.nan if v.dtype == np.float64 else np.float32(np.nan)
+            enc["dtype"] = dtype
+            enc["_FillValue"] = np.dtype(dtype).type(_NC_FILL[dtype])
         encoding[name] = enc
     for c in (xdim, ydim):
         encoding[c] = {"_FillValue": None}
