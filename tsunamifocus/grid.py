@@ -299,6 +299,34 @@ def grid_info(da: xr.DataArray) -> GridInfo:
 # --------------------------------------------------------------------------------------
 # crop, resample, smooth (pure functions on DataArrays)
 # --------------------------------------------------------------------------------------
+def check_bbox(bbox: tuple[float, float, float, float], geographic: bool) -> tuple[float, float, float, float]:
+    """Validate a box ``(xmin, ymin, xmax, ymax)``; return it with ascending x.
+
+    On geographic grids a box written in -180..180 numbers across the antimeridian, i.e.
+    ``0 <= xmin <= 180`` and ``-180 <= xmax < 0`` (``(120, 0, -110, 65)``), means
+    ``xmin .. xmax + 360`` (120..250 E). Any other ``xmin >= xmax`` or ``ymin >= ymax`` is
+    refused with a one-line message.
+    """
+    xmin, ymin, xmax, ymax = (float(b) for b in bbox)
+    shown = "(" + ", ".join(f"{b:g}" for b in (xmin, ymin, xmax, ymax)) + ")"
+    if not ymax > ymin:
+        raise InputError(f"bbox {shown}: expected ymin < ymax")
+    crossing = 0.0 <= xmin <= 180.0 and -180.0 <= xmax < 0.0
+    if not xmax > xmin:
+        if crossing and geographic:
+            return xmin, ymin, xmax + 360.0, ymax
+        if crossing:
+            raise InputError(
+                f"bbox {shown}: xmin > xmax; a box across the antimeridian ({xmin:g} .. {xmax + 360.0:g} E) "
+                "needs a lon/lat grid, and this grid is projected: give xmin < xmax in its units"
+            )
+        raise InputError(
+            f"bbox {shown}: expected xmin < xmax and ymin < ymax (a box across the antimeridian is "
+            f"written xmin 0..180, xmax -180..0, e.g. (120, 0, -110, 65) for 120..250 E)"
+        )
+    return xmin, ymin, xmax, ymax
+
+
 def crop_bathymetry(
     depth: xr.DataArray, bbox: tuple[float, float, float, float], *, margin_km: float = 0.0
 ) -> xr.DataArray:
@@ -311,6 +339,8 @@ def crop_bathymetry(
     bbox : (xmin, ymin, xmax, ymax)
         Box in the grid CRS units; on geographic grids longitudes may be given in either
         -180..180 or 0..360, and a box across the grid's seam is handled on global grids.
+        A box across the antimeridian may also be written with ``xmin > xmax`` in -180..180
+        numbers: ``(120, 0, -110, 65)`` means 120..250 E (see :func:`check_bbox`).
     margin_km : float
         Margin around the box [km] (converted to degrees at the box's poleward edge).
 
@@ -320,9 +350,7 @@ def crop_bathymetry(
         The cropped grid (never empty).
     """
     info = GridInfo.from_dataarray(depth)
-    xmin, ymin, xmax, ymax = (float(b) for b in bbox)
-    if not (xmax > xmin and ymax > ymin):
-        raise InputError(f"bbox {bbox}: expected xmin < xmax and ymin < ymax")
+    xmin, ymin, xmax, ymax = check_bbox(bbox, info.geographic)
     if margin_km < 0:
         raise InputError(f"margin_km={margin_km}: expected >= 0 km")
     yd, xd = info.dims

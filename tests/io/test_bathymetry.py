@@ -180,6 +180,34 @@ def test_real_grid_crop_across_seam(etopo_depth, etopo_path):
     assert float(c2.sel(lon=-5.0, lat=45.0, method="nearest")) == pytest.approx(ref, abs=1e-3)
 
 
+@pytest.mark.realdata
+def test_real_grid_crop_across_antimeridian_written_in_180_numbers(etopo_path):
+    # [120, 0, -110, 65]: xmin in 0..180 and xmax in -180..0 is the -180..180 way of writing a
+    # box across the antimeridian, i.e. 120..250 E (common practice, no source). It used to be
+    # refused with "expected xmin < xmax" and no hint.
+    a = load_bathymetry(etopo_path, bbox=(120.0, 0.0, -110.0, 65.0))
+    b = load_bathymetry(etopo_path, bbox=(120.0, 0.0, 250.0, 65.0))
+    assert a.lon.values[0] == pytest.approx(120.0) and a.lon.values[-1] == pytest.approx(250.0)
+    np.testing.assert_array_equal(a.values, b.values)
+    with netCDF4.Dataset(etopo_path) as nc:  # independent read east of the antimeridian (235 E = 125 W)
+        ref = -float(nc["z"][int(round((40.0 + 90) / 0.1)), int(round(235.0 / 0.1))])
+    assert float(a.sel(lon=235.0, lat=40.0, method="nearest")) == pytest.approx(ref, abs=1e-3)
+
+
+def test_crop_across_antimeridian_needs_a_lonlat_grid():
+    d = _proj_grid()
+    with pytest.raises(errors.InputError, match=r"antimeridian \(120 \.\. 250 E\) needs a lon/lat grid"):
+        crop_bathymetry(d, (120.0, 0.0, -110.0, 65.0))
+    # a plainly inverted box (both east) stays refused, with the way to write a crossing box
+    g = make_grid(np.full((10, 40), 100.0), 100.0 + np.arange(40.0), np.arange(10.0), "EPSG:4326")
+    with pytest.raises(errors.InputError, match=r"expected xmin < xmax.*\(120, 0, -110, 65\) for 120\.\.250 E"):
+        crop_bathymetry(g, (130.0, 1.0, 120.0, 5.0))
+    # on a regional lon/lat grid in 0..360 numbers the crossing box is cut out at 120..250 E
+    g = make_grid(np.arange(10 * 200.0).reshape(10, 200), 100.5 + np.arange(200.0), np.arange(10.0), "EPSG:4326")
+    c = crop_bathymetry(g, (120.0, 1.0, -110.0, 5.0))
+    assert c.lon.values[0] == pytest.approx(120.5) and c.lon.values[-1] == pytest.approx(249.5)
+
+
 # ----------------------------------------------------------------------------- registration
 @pytest.mark.parametrize("area_or_point", ["Area", "Point"])
 @pytest.mark.parametrize("north_up", [True, False])

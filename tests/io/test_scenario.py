@@ -113,6 +113,16 @@ def _write(tmp_path: pathlib.Path, text: str, name: str = "scen.toml") -> pathli
     return p
 
 
+def test_crop_across_antimeridian_accepted(tmp_path):
+    # [120, 0, -110, 65] is a lon/lat box across the antimeridian written in -180..180 numbers
+    # (120..250 E; common practice, no source); it used to be refused as "xmin < xmax". It is
+    # kept as written (the loader resolves it against the grid's CRS) and round-trips.
+    p = _write(tmp_path, GOOD.replace("crop = [130.0, 30.0, 140.0, 40.0]", "crop = [120, 0, -110, 65]"))
+    sc = parse_scenario(p)
+    assert sc.bathymetry.crop == (120.0, 0.0, -110.0, 65.0)
+    assert scenario_from_dict(sc.to_dict()).bathymetry.crop == (120.0, 0.0, -110.0, 65.0)
+
+
 def test_valid_file_defaults_and_paths(tmp_path, monkeypatch):
     p = _write(tmp_path, GOOD)
     monkeypatch.chdir(tmp_path)  # relative paths must resolve against the file, not the cwd

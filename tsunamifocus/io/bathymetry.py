@@ -20,7 +20,7 @@ import xarray as xr
 from pyproj import CRS
 
 from ..errors import CRSError, DataFileError, InputError, ResourceLimitError, SignConventionError
-from ..grid import GridInfo, crop_bathymetry, make_grid, resample_bathymetry
+from ..grid import GridInfo, check_bbox, crop_bathymetry, make_grid, resample_bathymetry
 
 __all__ = ['load_bathymetry', 'estimate_grid_memory', 'DEFAULT_MAX_MEMORY_GB']
 
@@ -369,6 +369,8 @@ def _nc_window(x: np.ndarray, y: np.ndarray, xd: str, yd: str, bbox, margin_km: 
                p: pathlib.Path) -> tuple[dict, np.ndarray, np.ndarray]:
     """Index slices of the crop box (plus margin and one cell; latitudes only on lon/lat grids)."""
     sel = {}
+    if bbox is not None:
+        bbox = check_bbox(bbox, geographic)
     if bbox is not None and not geographic:
         m = margin_km * 1000.0
         xs = np.nonzero((x >= bbox[0] - m - abs(x[1] - x[0])) & (x <= bbox[2] + m + abs(x[1] - x[0])))[0]

@@ -447,7 +447,8 @@ _SPEC: dict[str, tuple[_Key, ...]] = {
         _Key("variable", "str", "NetCDF variable name", default_doc="the only 2-D variable"),
         _Key("values", "choice", "sign convention of the values",
              choices=("auto", "elevation", "depth")),
-        _Key("crop", "box", "crop box [xmin, ymin, xmax, ymax] in the grid CRS units",
+        _Key("crop", "box", "crop box [xmin, ymin, xmax, ymax] in the grid CRS units "
+             "([120, 0, -110, 65] = 120..250 E across the antimeridian)",
              "grid CRS units", default_doc="no crop"),
         _f("crop_margin_km", "margin around the crop box", "km", lo=0.0, hi=5000.0),
         _f("resample_km", "coarser target spacing (area average)", "km", lo=0.0, hi=500.0, lo_open=True,
@@ -797,13 +798,18 @@ def _check_value(ctx: _Ctx, sect: tuple, k: _Key, v: Any) -> Any:
             return v
         raise ctx.bad(sect, k, v, '"local" or a scheduler address such as "tcp://10.0.0.5:8786"')
     if kind == "box":
-        what = "4 numbers [xmin, ymin, xmax, ymax] in the grid CRS units with xmin < xmax and ymin < ymax"
+        what = ("4 numbers [xmin, ymin, xmax, ymax] in the grid CRS units with xmin < xmax and ymin < ymax "
+                "(on a lon/lat grid a box across the antimeridian is xmin 0..180, xmax -180..0, "
+                "e.g. [120, 0, -110, 65] for 120..250 E)")
         if not isinstance(v, (list, tuple)) or len(v) != 4:
             raise ctx.bad(sect, k, v, what)
         if any(isinstance(a, bool) or not isinstance(a, (int, float)) or not math.isfinite(a) for a in v):
             raise ctx.bad(sect, k, v, what)
         box = tuple(float(a) for a in v)
-        if not (box[0] < box[2] and box[1] < box[3]):
+        # xmin 0..180 with xmax -180..0 is a lon/lat box across the antimeridian
+        # ([120, 0, -110, 65] = 120..250 E); the loader checks it against the grid's CRS
+        across = 0.0 <= box[0] <= 180.0 and -180.0 <= box[2] < 0.0
+        if not ((box[0] < box[2] or across) and box[1] < box[3]):
             raise ctx.bad(sect, k, v, what)
         return box
     if kind == "trace":
