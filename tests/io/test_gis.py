@@ -426,3 +426,144 @@ def test_netcdf_attrs_sanitised(tmp_path, geo_grid):
         assert json.loads(v.getncattr("meta")) == {"a": 1}
         assert list(v.getncattr("levels")) == [1.0, 2.0]
         assert json.loads(nc.getncattr("run")) == {"n": 3}
+
+
+# ----------------------------------------------------------------------------- antimeridian
+# Convention (docs/outputs.md "Longitudes"): vectors and CSV longitudes in -180..180, cut at the
+# antimeridian (RFC 7946 section 3.1.9); rasters in -180..180 unless they cross it, then kept in
+# 0..360 numbers with a GDAL VRT beside them that shows the same cells in -180..180.
+# References: GDAL VRT driver (gdal.org/drivers/raster/vrt.html) read through rasterio; pyogrio
+# (GDAL/OGR) for the vectors; a longitude L and L - 360 are the same meridian (common practice,
+# no source). The test grids' values encode their own 0..360 longitude, so every value read
+# back says where it came from.
+
+
+def _pacific(lon0=120.05, lon1=249.95, dlon=0.1, lat0=-2.95, nlat=60):
+    """Geographic grid across the antimeridian (120..250 E); value = lon (0..360) + 1000 * lat."""
+    lon = lon0 + dlon * np.arange(int(round((lon1 - lon0) / dlon)) + 1)
+    lat = lat0 + dlon * np.arange(nlat)
+    v = lon[None, :] + 1000.0 * lat[:, None]
+    da = make_grid(v, lon, lat, "EPSG:4326", name="lensing_factor")
+    da.values[0, 5] = np.nan
+    return da
+
+
+def test_raster_across_antimeridian_keeps_0_360_and_adds_a_180_alternative(tmp_path):
+    da = _pacific()
+    p = write_cog(da, tmp_path / "lensing_factor.tif")
+    alt = tmp_path / "lensing_factor_lon180.vrt"
+    assert alt.is_file()
+    assert cog_validate(str(p))[0]
+    with rasterio.open(p) as r:
+        # one contiguous raster, 120..250 in EPSG:4326 numbers, with the note in its tags
+        assert r.crs.to_epsg() == 4326
+        assert (r.bounds.left, r.bounds.right) == pytest.approx((120.0, 250.0))
+        assert "crosses the antimeridian" in r.tags()["LONGITUDES"] and alt.name in r.tags()["LONGITUDES"]
+        main = r.read(1)
+    with rasterio.open(alt) as r:
+        assert r.crs.to_epsg() == 4326
+        assert r.bounds.left >= -180.0 - 1e-9 and r.bounds.right <= 180.0 + 1e-9
+        assert r.transform.a == pytest.approx(0.1) and r.transform.f == pytest.approx(-2.95 + 59 * 0.1 + 0.05)
+        assert r.descriptions[0].startswith("lensing factor") and r.units[0] == "1"
+        assert math.isnan(r.nodata)
+        alt_data = r.read(1)
+        # every cell once: same count of values, same multiset, nothing invented in between
+        assert np.isfinite(alt_data).sum() == np.isfinite(main).sum() == da.size - 1
+        np.testing.assert_array_equal(np.sort(alt_data[np.isfinite(alt_data)]), np.sort(main[np.isfinite(main)]))
+        # sample by -180..180 longitude: 125 W is 235 E, 170 E is 170 E
+        for lon180, lat in ((-125.05, 0.05), (170.05, -2.05), (-179.95, 2.05), (179.95, 2.05), (-110.05, 0.05)):
+            (val,) = next(r.sample([(lon180, lat)]))
+            lon360 = lon180 % 360.0
+            assert val == pytest.approx(lon360 + 1000.0 * lat, abs=0.02)
+        (gap,) = next(r.sample([(0.0, 0.05)]))  # Greenwich: outside the grid, no data
+        assert math.isnan(gap)
+
+
+def test_global_0_360_raster_written_in_180(tmp_path):
+    # a longitude-periodic grid is rolled (same cells, no duplicate) to start at -180
+    lon = 0.5 + np.arange(360.0)
+    lat = -59.5 + np.arange(120.0)
+    v = lon[None, :] + 1000.0 * lat[:, None]
+    da = make_grid(v, lon, lat, "EPSG:4326", name="energy", lon_periodic=True)
+    p = write_cog(da, tmp_path / "energy.tif")
+    assert not (tmp_path / "energy_lon180.vrt").exists()
+    with rasterio.open(p) as r:
+        assert (r.bounds.left, r.bounds.right) == pytest.approx((-180.0, 180.0))
+        assert r.tags()["LON_PERIODIC"] == "1"
+        for lon180, lat in ((-170.5, 10.5), (-0.5, -20.5), (179.5, 0.5), (0.5, 0.5)):
+            (val,) = next(r.sample([(lon180, lat)]))
+            assert val == pytest.approx(lon180 % 360.0 + 1000.0 * lat, abs=0.02)
+
+
+@pytest.mark.parametrize("lon0, lon1, left", [(200.05, 249.95, -160.0), (-29.95, -0.05, -30.0),
+                                               (-209.95, -190.05, 150.0)])
+def test_regional_raster_not_crossing_written_in_180(tmp_path, lon0, lon1, left):
+    # 200..250 E is 160..110 W; -210..-190 is 150..170 E: both drop onto a -180..180 basemap
+    da = _pacific(lon0, lon1)
+    p = write_cog(da, tmp_path / "t.tif")
+    assert not (tmp_path / "t_lon180.vrt").exists()
+    with rasterio.open(p) as r:
+        assert r.bounds.left == pytest.approx(left)
+        assert -180.0 <= r.bounds.left and r.bounds.right <= 180.0
+        assert "LONGITUDES" not in r.tags()
+        x, y = r.xy(10, 10)
+        (val,) = next(r.sample([(x, y)]))
+        lon_stored = val - 1000.0 * y  # the longitude the value was made from, in the input's numbers
+        assert (lon_stored - x) % 360.0 == pytest.approx(0.0, abs=0.05) or (lon_stored - x) % 360.0 == pytest.approx(360.0, abs=0.05)
+
+
+def test_vectors_in_180_and_cut_at_the_antimeridian(tmp_path):
+    # segments of a grid in 0..360 numbers: one on a coast at 125 W (= 235 E), one across 180
+    table = pd.DataFrame({
+        "segment_id": ["S1", "S2", "S3"],
+        "x_mid": [235.0, 180.0, 150.1],
+        "lon_mid": [235.0, 180.0, 150.1],
+        "lat_mid": [40.1, -20.25, 10.05],
+        "lensing_factor": [1.5, 2.0, 0.5],
+        "geometry": [shapely.LineString([(234.9, 40.0), (235.1, 40.2)]),
+                     shapely.LineString([(179.5, -20.0), (180.5, -20.5)]),
+                     shapely.LineString([(150.0, 10.0), (150.2, 10.1)])],
+    })
+    w = write_segments(table, tmp_path / "segments", "EPSG:4326", csv_wkt=True)
+    for fmt in ("gpkg", "geojson"):
+        info = pyogrio.read_info(w[fmt])
+        lo, _, hi, _ = info["total_bounds"]
+        assert -180.0 <= lo and hi <= 180.0, (fmt, info["total_bounds"])
+        _, _, wkb, fields = pyogrio.raw.read(w[fmt])
+        geoms = shapely.from_wkb(wkb)
+        g1, g2, g3 = geoms
+        assert g1.bounds == pytest.approx((-125.1, 40.0, -124.9, 40.2))
+        # the line across 180 is one feature with a piece on each side, touching +/-180
+        assert g2.geom_type == "MultiLineString" and len(g2.geoms) == 2
+        assert sorted(round(p.bounds[0], 6) for p in g2.geoms) == [-180.0, 179.5]
+        assert g2.length == pytest.approx(shapely.LineString([(179.5, -20.0), (180.5, -20.5)]).length)
+        assert g3.bounds == pytest.approx((150.0, 10.0, 150.2, 10.1))
+    # GeoPackage geometries keep the grid CRS (geographic) and its lon/lat axis meaning
+    assert CRS.from_user_input(pyogrio.read_info(w["gpkg"])["crs"]).to_epsg() == 4326
+    df = pd.read_csv(w["csv"], comment="#")
+    np.testing.assert_allclose(df["lon_mid"], [-125.0, -180.0, 150.1])
+    # grid coordinates stay as the grid holds them (x_mid, geometry_wkt read back by `compare`)
+    np.testing.assert_allclose(df["x_mid"], [235.0, 180.0, 150.1])
+    assert df["geometry_wkt"][0] == "LINESTRING (234.9 40, 235.1 40.2)"
+
+
+def test_points_csv_longitudes_in_180(tmp_path):
+    pts = [{"name": "Harbour", "lon": 235.5, "lat": 40.0, "first_arrival_min": 600.0, "lensing_factor": 1.1,
+            "amp_1m_m": 0.4, "nearest_segment": "S1"},
+           {"name": "Gauge", "lon": -170.0, "lat": -10.0, "first_arrival_min": 300.0, "lensing_factor": 0.9,
+            "amp_1m_m": 0.2, "nearest_segment": "S2"}]
+    df = pd.read_csv(write_points_csv(pts, tmp_path / "points.csv"), comment="#")
+    np.testing.assert_allclose(df["lon"], [-124.5, -170.0])
+
+
+def test_longitude_note_names_the_alternative():
+    from tsunamifocus.grid import GridInfo
+    from tsunamifocus.io.gis import longitude_note
+
+    cross = GridInfo.from_dataarray(_pacific())
+    note = longitude_note(cross)
+    assert "120..250" in note and "<layer>_lon180.vrt" in note and "-180..180" in note
+    inside = GridInfo.from_dataarray(_pacific(200.05, 249.95))
+    assert "GeoTIFF rasters are in -180..180" in longitude_note(inside)
+    proj = GridInfo.from_dataarray(make_grid(np.ones((3, 4)), np.arange(4.0), np.arange(3.0), "EPSG:32654"))
+    assert longitude_note(proj) is None

@@ -8,7 +8,8 @@ import numpy as np
 import pandas as pd
 import xarray as xr
 
-from ..io.gis import _plain_dtypes
+from ..grid import GridInfo
+from ..io.gis import _plain_dtypes, longitude_note
 from ..studies.inspect import summarize_grid
 from ..studies.run import SourceAnalysis
 
@@ -30,6 +31,9 @@ def _report_context(a: SourceAnalysis, scenario: Any, depth: xr.DataArray, point
         "sea depth (median / max)": f"{g.get('depth_median_m', float('nan')):.0f} m / {g.get('depth_max_m', float('nan')):.0f} m",
         "long-wave speed (median)": f"{g.get('speed_median_ms', float('nan')):.0f} m/s",
     }
+    lon_note = longitude_note(GridInfo.from_dataarray(depth))
+    if lon_note:
+        grid["GIS longitudes"] = lon_note
     sm = a.summary.to_dict()
     src = {
         "name": a.name,

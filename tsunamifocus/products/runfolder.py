@@ -17,7 +17,7 @@ from ..coast.segments import STATIC_SEGMENT_COLUMNS as _STATIC_COLUMNS
 from ..constants import __version__
 from ..errors import InputError
 from ..grid import GridInfo
-from ..io.gis import _plain_dtypes, write_cog, write_netcdf, write_points_csv, write_segments
+from ..io.gis import _plain_dtypes, longitude_note, write_cog, write_netcdf, write_points_csv, write_segments
 from ..io.manifest import jsonable, write_manifest
 from ..io.runfolder import RUN_FILES, OutputFolder, refuse_filled_folder, safe_name
 from ..io.scenario import parse_scenario
@@ -189,7 +189,8 @@ def write_run_folder(
         folder / RUN_FILES["manifest"], scenario=scenario, timings=timings or {}, output_dir=folder,
         command=list(command) if command else None,
         seeds={"rays": scenario.rays.seed, "ensemble": scenario.ensemble.seed},
-        extra={"source": a.name, "health": health, "source_summary": jsonable(a.summary.to_dict()),
+        extra={"source": a.name, "health": health, "gis_longitudes": longitude_note(info),
+               "source_summary": jsonable(a.summary.to_dict()),
                "ensemble": jsonable(ensemble.to_dict()) if ensemble is not None else None},
     )
     files["manifest"] = folder / RUN_FILES["manifest"]
