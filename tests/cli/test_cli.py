@@ -6,9 +6,12 @@ import json
 import subprocess
 import sys
 
+import numpy as np
 import pytest
 
 from tsunamifocus.cli.app import main
+from tsunamifocus.grid import make_grid
+from tsunamifocus.io.gis import write_cog
 
 
 def test_inspect_real_grid_json(etopo_path, capsys):
@@ -20,10 +23,19 @@ def test_inspect_real_grid_json(etopo_path, capsys):
     assert 0.0 < s["shortest_period_s"] < s["longest_ray_period_s"]
 
 
-def test_inspect_text_and_errors(etopo_path, capsys):
-    assert main(["inspect", str(etopo_path)]) == 2  # ambiguous sign: refused
+def test_inspect_text_and_errors(etopo_path, tmp_path, capsys):
+    # the global relief grid has no sign metadata, but its minimum (-10,714 m) is deeper than
+    # any land is high (Everest 8,849 m; common practice, no source): elevation, decided
+    assert main(["inspect", str(etopo_path)]) == 0
+    assert "sign            values: minimum -10,714 m" in capsys.readouterr().out
+    # values all within +/-8,900 m and no metadata: still ambiguous, refused in one line
+    v = np.linspace(-3000.0, 2000.0, 20).reshape(4, 5)
+    g = make_grid(v, 1000.0 * np.arange(5), 1000.0 * np.arange(4), "EPSG:32633", name="z")
+    amb = write_cog(g, tmp_path / "z.tif", description="z", units="m")
+    assert main(["inspect", str(amb)]) == 2
     err = capsys.readouterr().err
     assert err.startswith("error: ") and err.count("\n") == 1 and "Traceback" not in err
+    assert "cannot tell" in err and "values='elevation'" in err
     assert main(["inspect", "/no/such/file.tif"]) == 2
     assert "file not found" in capsys.readouterr().err
 
