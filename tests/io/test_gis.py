@@ -272,14 +272,14 @@ def test_segments_gpkg_geojson_csv(tmp_path, segments):
     out = write_segments(segments, tmp_path / "segments", "EPSG:32654")
     assert set(out) == {"gpkg", "geojson", "csv"}
     # GeoPackage: grid CRS, all features and fields
-    info = pyogrio.read_info(out["gpkg"])
+    info = pyogrio.read_info(out["gpkg"], layer="segments")
     assert CRS.from_user_input(info["crs"]).to_epsg() == 32654
     assert info["features"] == 3 and info["geometry_type"] == "LineString"
     assert list(info["fields"]) == ["segment_id", "name", "length_m", "n_rays", "lensing_factor",
                                     "rank_lensing", "reliable"]
     assert info["layer_metadata"]["CAUTION"] == caution_text()
     assert info["dataset_metadata"]["CAUTION"] == caution_text()
-    meta, _, geom, fields = pyogrio.raw.read(out["gpkg"])
+    meta, _, geom, fields = pyogrio.raw.read(out["gpkg"], layer="segments")
     got = shapely.from_wkb(geom)
     assert all(g.equals_exact(e, 1e-6) for g, e in zip(got, segments["geometry"]))
     names = dict(zip(meta["fields"], fields))
@@ -360,7 +360,8 @@ def test_every_writer_carries_caution_and_is_reproducible(tmp_path, utm_grid, se
     for run in ("a", "b"):
         d = tmp_path / run
         d.mkdir()
-        files = [write_cog(small, d / "t.tif"), write_netcdf({"travel_time_min": small}, d / "t.nc", title="t")]
+        files = [write_cog(small, d / "t.tif"), d / "t.qml",  # the raster's QGIS style beside it
+                 write_netcdf({"travel_time_min": small}, d / "t.nc", title="t")]
         files += list(write_segments(segments, d / "seg", "EPSG:32654").values())
         files.append(write_points_csv([{"name": "A", "lon": 1.0, "lat": 2.0, "first_arrival_min": 3.0,
                                         "lensing_factor": 1.0, "amp_1m_m": 0.5, "nearest_segment": "S0001"}],
@@ -377,7 +378,8 @@ def test_write_layers(tmp_path, geo_grid):
 
     tt = geo_grid.rename("travel_time_min")
     out = write_layers({"travel_time_min": tt, "lensing_factor": geo_grid}, tmp_path, title="run")
-    assert sorted(p.name for p in tmp_path.iterdir()) == ["layers.nc", "lensing_factor.tif", "travel_time_min.tif"]
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["layers.nc", "lensing_factor.qml", "lensing_factor.tif",
+                                                          "travel_time_min.qml", "travel_time_min.tif"]
     with rasterio.open(out["travel_time_min"]) as r:
         assert r.units == ("min",)
     ds = xr.open_dataset(out["netcdf"])
@@ -393,11 +395,11 @@ def test_nullable_columns_keep_their_types(tmp_path, segments):
                          robust=pd.array([True, None, False], dtype="boolean"),
                          flag_obj=pd.Series([True, None, False], dtype=object))
     out = write_segments(df, tmp_path / "n", "EPSG:32654", formats=("gpkg", "geojson"))
-    info = pyogrio.read_info(out["gpkg"])
+    info = pyogrio.read_info(out["gpkg"], layer="segments")
     types = dict(zip(info["fields"], zip(info["ogr_types"], info["ogr_subtypes"])))
     assert types["rank_amplitude"][0] == "OFTInteger64"
     assert types["robust"] == ("OFTInteger", "OFSTBoolean") and types["flag_obj"][1] == "OFSTBoolean"
-    meta, _, _, fields = pyogrio.raw.read(out["gpkg"])
+    meta, _, _, fields = pyogrio.raw.read(out["gpkg"], layer="segments")
     col = dict(zip(meta["fields"], fields))
     assert col["rank_amplitude"][0] == 2 and col["rank_amplitude"][2] == 1
     props = [f["properties"] for f in json.loads(out["geojson"].read_text())["features"]]
@@ -526,10 +528,10 @@ def test_vectors_in_180_and_cut_at_the_antimeridian(tmp_path):
     })
     w = write_segments(table, tmp_path / "segments", "EPSG:4326", csv_wkt=True)
     for fmt in ("gpkg", "geojson"):
-        info = pyogrio.read_info(w[fmt])
+        info = pyogrio.read_info(w[fmt], layer="segments")
         lo, _, hi, _ = info["total_bounds"]
         assert -180.0 <= lo and hi <= 180.0, (fmt, info["total_bounds"])
-        _, _, wkb, fields = pyogrio.raw.read(w[fmt])
+        _, _, wkb, fields = pyogrio.raw.read(w[fmt], layer="segments")
         geoms = shapely.from_wkb(wkb)
         g1, g2, g3 = geoms
         assert g1.bounds == pytest.approx((-125.1, 40.0, -124.9, 40.2))
@@ -539,7 +541,7 @@ def test_vectors_in_180_and_cut_at_the_antimeridian(tmp_path):
         assert g2.length == pytest.approx(shapely.LineString([(179.5, -20.0), (180.5, -20.5)]).length)
         assert g3.bounds == pytest.approx((150.0, 10.0, 150.2, 10.1))
     # GeoPackage geometries keep the grid CRS (geographic) and its lon/lat axis meaning
-    assert CRS.from_user_input(pyogrio.read_info(w["gpkg"])["crs"]).to_epsg() == 4326
+    assert CRS.from_user_input(pyogrio.read_info(w["gpkg"], layer="segments")["crs"]).to_epsg() == 4326
     df = pd.read_csv(w["csv"], comment="#")
     np.testing.assert_allclose(df["lon_mid"], [-125.0, -180.0, 150.1])
     # grid coordinates stay as the grid holds them (x_mid, geometry_wkt read back by `compare`)

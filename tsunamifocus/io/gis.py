@@ -33,6 +33,7 @@ from ..constants import __version__
 from ..errors import CRSError, DataFileError, InputError
 from ..grid import GridInfo, get_crs
 from .runfolder import deferred_interrupts
+from .styles import ColourScale, lensing_scale, raster_qml, scale_for_layer, segments_qml, segments_sld
 
 __all__ = ['LAYER_INFO', 'POINT_COLUMNS', 'LON180_SUFFIX', 'LonLayout', 'lon_layout', 'longitude_note', 'write_cog', 'write_netcdf', 'write_layers', 'write_segments', 'write_points_csv']
 
@@ -243,6 +244,7 @@ def write_cog(
     nodata: float | None = None,
     dtype: str | None = None,
     resampling: str = "average",
+    style: ColourScale | bool | None = True,
 ) -> Path:
     """Write one grid as a Cloud-Optimized GeoTIFF (GDAL ``COG`` driver through rasterio).
 
@@ -267,6 +269,11 @@ def write_cog(
         Output data type; float grids default to ``float32``.
     resampling : str
         Overview resampling (GDAL name: ``"average"``, ``"nearest"``, ...).
+    style : ColourScale, bool or None
+        Colour scale written as a QGIS style ``<stem>.qml`` beside the file (QGIS loads it with
+        the raster): a :class:`~tsunamifocus.io.styles.ColourScale`, or True for the figures'
+        scale of a standard layer computed from the grid (:func:`~tsunamifocus.io.styles.scale_for_layer`;
+        other layers get none), or None/False for no style file.
 
     Returns
     -------
@@ -346,6 +353,14 @@ def write_cog(
     if vrt_path is not None:
         _write_lon180_vrt(vrt_path, path.name, layout, info, transform, out_dtype, nodata, long_name, unit,
                           {k: all_tags[k] for k in ("CAUTION", "LAYER", "LONGITUDES")})
+    if style is True:
+        style = scale_for_layer(str(da.name) if da.name is not None else path.stem, arr)
+    if isinstance(style, ColourScale):
+        qml = raster_qml(style)
+        for target in (path, vrt_path):
+            if target is not None:
+                with _atomic_file(target.with_suffix(".qml")) as tmp:
+                    tmp.write_text(qml, encoding="utf-8")
     return path
 
 
@@ -683,6 +698,7 @@ def write_segments(
     layer: str = "segments",
     formats: tuple[str, ...] = ("gpkg", "geojson", "csv"),
     csv_wkt: bool = False,
+    style: ColourScale | bool | None = True,
 ) -> dict[str, Path]:
     """Write the coastline-segment table as GeoPackage, GeoJSON and CSV.
 
@@ -701,6 +717,11 @@ def write_segments(
         Formats to write.
     csv_wkt : bool
         Add a ``geometry_wkt`` column (grid CRS) to the CSV.
+    style : ColourScale, bool or None
+        Default style of the GeoPackage layer (table ``layer_styles``, QML and SLD), colouring
+        the segments by ``style.layer`` (``lensing_factor``) as the lensing map does. True: the
+        lensing map's scale from the table's ``lensing_factor`` column alone (pass the run's
+        shared scale to match a figure drawn with a raster); None/False: no style.
 
     Returns
     -------
@@ -745,6 +766,11 @@ def write_segments(
             _write_vector(tmp, gpkg_geoms, field_data, fields, field_mask, crs.to_wkt(), "GPKG", layer,
                           layer_metadata={"CAUTION": caution}, dataset_metadata={"CAUTION": caution},
                           layer_options={"DESCRIPTION": caution_summary(), "IDENTIFIER": layer})
+            if style is True and "lensing_factor" in table.columns:
+                sv = pd.to_numeric(table["lensing_factor"], errors="coerce").to_numpy(dtype=float)
+                style = lensing_scale(sv, sv)
+            if isinstance(style, ColourScale) and style.layer in table.columns:
+                _add_layer_style(tmp, layer, style)
         written["gpkg"] = p
     if "geojson" in formats:
         p = stem.with_name(stem.name + ".geojson")
@@ -807,6 +833,48 @@ def _is_lon_column(name: Any) -> bool:
 def _lon180(v: np.ndarray) -> np.ndarray:
     """Longitudes in [-180, 180) (NaN stays NaN)."""
     return np.mod(np.asarray(v, dtype=float) + 180.0, 360.0) - 180.0
+
+
+#: The ``layer_styles`` table as QGIS creates it in a GeoPackage (its default-style store).
+_LAYER_STYLES_DDL = (
+    "CREATE TABLE IF NOT EXISTS layer_styles (id INTEGER PRIMARY KEY AUTOINCREMENT, f_table_catalog TEXT(256), "
+    "f_table_schema TEXT(256), f_table_name TEXT(256), f_geometry_column TEXT(256), styleName TEXT(30), "
+    "styleQML TEXT, styleSLD TEXT, useAsDefault BOOLEAN, description TEXT, owner TEXT(30), ui TEXT(30), "
+    "update_time DATETIME DEFAULT (strftime('%Y-%m-%dT%H:%M:%fZ','now')))"
+)
+
+
+def _add_layer_style(gpkg: Path, layer: str, scale: ColourScale) -> None:
+    """Store ``scale`` as the default style of ``layer`` (QML and SLD) in the GeoPackage's ``layer_styles``.
+
+    The table is registered in ``gpkg_contents`` as an attributes table (GeoPackage 1.2,
+    requirement 13 for non-spatial tables), as QGIS does; timestamps follow
+    :func:`_fixed_timestamp` so the file stays reproducible.
+    """
+    import sqlite3
+
+    stamp = _fixed_timestamp()
+    con = sqlite3.connect(gpkg)
+    try:
+        with con:
+            row = con.execute("SELECT column_name FROM gpkg_geometry_columns WHERE table_name = ?", (layer,)).fetchone()
+            geom_col = row[0] if row else "geom"
+            con.execute(_LAYER_STYLES_DDL)
+            con.execute(
+                "INSERT INTO layer_styles (f_table_catalog, f_table_schema, f_table_name, f_geometry_column, "
+                "styleName, styleQML, styleSLD, useAsDefault, description, owner, ui, update_time) "
+                "VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)",
+                ("", "", layer, geom_col, f"{layer} by {scale.layer}", segments_qml(scale, scale.layer),
+                 segments_sld(scale, layer, scale.layer), 1,
+                 f"{scale.title}; colours and classes of the tsunamifocus lensing map", "", None, stamp),
+            )
+            con.execute(
+                "INSERT OR REPLACE INTO gpkg_contents (table_name, data_type, identifier, description, last_change) "
+                "VALUES ('layer_styles', 'attributes', 'layer_styles', 'default styles of the layers', ?)",
+                (stamp,),
+            )
+    finally:
+        con.close()
 
 
 def _write_csv(df: Any, path: Path) -> None:

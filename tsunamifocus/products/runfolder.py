@@ -19,6 +19,7 @@ from ..errors import InputError
 from ..grid import GridInfo
 from ..io.gis import _plain_dtypes, longitude_note, write_cog, write_netcdf, write_points_csv, write_segments
 from ..io.manifest import jsonable, write_manifest
+from ..io.styles import lensing_scale
 from ..io.runfolder import RUN_FILES, OutputFolder, refuse_filled_folder, safe_name
 from ..io.scenario import parse_scenario
 from ..studies.progress import StageProgress
@@ -156,8 +157,12 @@ def write_run_folder(
     if ensemble is not None:
         for k, v in _ensemble_layers(ensemble, depth).items():
             layers[k] = v
+    # the lensing map's colour scale (raster and segments), shared by the GIS style files
+    lens = lensing_scale(layers["lensing_factor"].values,
+                         pd.to_numeric(a.focusing.segments["lensing_factor"], errors="coerce").to_numpy(float))
     for name, (desc, units) in COG_LAYERS.items():
-        files[name] = pathlib.Path(write_cog(layers[name], folder / f"{name}.tif", description=desc, units=units))
+        files[name] = pathlib.Path(write_cog(layers[name], folder / f"{name}.tif", description=desc, units=units,
+                                             style=lens if name == "lensing_factor" else True))
     files["layers"] = pathlib.Path(write_netcdf(
         layers, folder / RUN_FILES["layers"],
         title=f"tsunamifocus screening layers: {scenario.name} / {a.name}",
@@ -170,7 +175,8 @@ def write_run_folder(
     if ensemble is not None and getattr(ensemble, "segments", None) is not None:
         ens_cols = [c for c in ensemble.segments.columns if c not in _STATIC_COLUMNS]
         seg_out = seg_out.join(ensemble.segments[ens_cols].add_prefix("ens_"), on="segment_id")
-    seg_files = write_segments(_plain_dtypes(seg_out), folder / RUN_FILES["segments"], info.crs, csv_wkt=True)
+    seg_files = write_segments(_plain_dtypes(seg_out), folder / RUN_FILES["segments"], info.crs, csv_wkt=True,
+                               style=lens)
     if isinstance(seg_files, dict):
         files.update({f"segments_{k}": pathlib.Path(v) for k, v in seg_files.items()})
     files["points"] = pathlib.Path(write_points_csv(points, folder / RUN_FILES["points"]))
