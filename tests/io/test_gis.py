@@ -569,3 +569,26 @@ def test_longitude_note_names_the_alternative():
     assert "GeoTIFF rasters are in -180..180" in longitude_note(inside)
     proj = GridInfo.from_dataarray(make_grid(np.ones((3, 4)), np.arange(4.0), np.arange(3.0), "EPSG:32654"))
     assert longitude_note(proj) is None
+
+
+@pytest.mark.realdata
+def test_real_grid_across_antimeridian_drops_onto_a_180_basemap(etopo_path, tmp_path):
+    # the shared global relief grid cropped across the antimeridian ([160, 10, -150, 40] =
+    # 160..210 E), written as GeoTIFF: the VRT alternative read at a -180..180 longitude gives
+    # the depth the file holds at the same meridian in its own 0..360 numbers (netCDF4 read).
+    from tsunamifocus.io.bathymetry import load_bathymetry
+
+    depth = load_bathymetry(etopo_path, bbox=(160.0, 10.0, -150.0, 40.0))
+    p = write_cog(depth, tmp_path / "depth.tif")
+    assert (tmp_path / "depth_lon180.vrt").is_file()
+    with netCDF4.Dataset(etopo_path) as nc:
+        lon, lat = nc["lon"][:], nc["lat"][:]
+        for lon180, la in ((-157.8, 21.3), (-175.0, 30.0), (170.0, 15.0)):
+            i = int(np.argmin(np.abs(lon - lon180 % 360.0)))
+            j = int(np.argmin(np.abs(lat - la)))
+            want = -float(nc["z"][j, i])  # elevation -> depth
+            with rasterio.open(tmp_path / "depth_lon180.vrt") as r:
+                (got,) = next(r.sample([(float(lon[i]) - (360.0 if lon[i] > 180 else 0.0), float(lat[j]))]))
+            assert got == pytest.approx(want, abs=0.5)
+    with rasterio.open(p) as r:
+        assert r.bounds.left == pytest.approx(159.95) and r.bounds.right == pytest.approx(210.05)

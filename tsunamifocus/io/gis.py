@@ -181,10 +181,10 @@ def longitude_note(info: GridInfo) -> str | None:
         return f"{vec} GeoTIFF rasters are in -180..180 longitudes."
     west = layout.x0 - 0.5 * info.dx
     east = west + info.nx * info.dx
-    return (f"{vec} The grid crosses the antimeridian: GeoTIFF rasters keep longitudes {west:.6g}..{east:.6g} "
-            f"(EPSG:4326, one contiguous raster; a GIS shows them 360 degrees east of a -180..180 basemap's "
-            f"Pacific edge); each has a -180..180 alternative '<layer>{LON180_SUFFIX}' (GDAL VRT over the same "
-            "file, split at 180) for use on a standard basemap. The NetCDF keeps the grid's own longitudes.")
+    return (f"{vec} The grid crosses the antimeridian: each GeoTIFF keeps longitudes {west:.6g}..{east:.6g} "
+            f"(EPSG:4326, one contiguous raster), so on a -180..180 basemap its part east of 180 lies beyond the "
+            f"map's edge; use '<layer>{LON180_SUFFIX}' beside it (a GDAL VRT over the same file, split at 180 "
+            "into -180..180 longitudes) on a standard basemap. The NetCDF keeps the grid's own longitudes.")
 
 
 def _write_lon180_vrt(vrt: Path, src_name: str, layout: LonLayout, info: GridInfo, transform: Any,
