@@ -202,6 +202,14 @@ def test_crop_across_antimeridian_needs_a_lonlat_grid():
     g = make_grid(np.full((10, 40), 100.0), 100.0 + np.arange(40.0), np.arange(10.0), "EPSG:4326")
     with pytest.raises(errors.InputError, match=r"expected xmin < xmax.*\(120, 0, -110, 65\) for 120\.\.250 E"):
         crop_bathymetry(g, (130.0, 1.0, 120.0, 5.0))
+    # a global grid held in -180..180 is rolled so the crossing box is contiguous, 120..250
+    lon = -179.5 + np.arange(360.0)
+    glob = make_grid(np.tile(lon, (20, 1)), lon, -9.5 + np.arange(20.0), "EPSG:4326", lon_periodic=True)
+    c = crop_bathymetry(glob, (120.0, -5.0, -110.0, 5.0))
+    assert c.lon.values[0] == pytest.approx(120.5) and c.lon.values[-1] == pytest.approx(249.5)
+    assert np.all(np.diff(c.lon.values) > 0)
+    # each value is its own -180..180 longitude: 235.5 E holds -124.5 (the same meridian)
+    assert float(c.sel(lon=235.5, lat=0.5)) == pytest.approx(-124.5)
     # on a regional lon/lat grid in 0..360 numbers the crossing box is cut out at 120..250 E
     g = make_grid(np.arange(10 * 200.0).reshape(10, 200), 100.5 + np.arange(200.0), np.arange(10.0), "EPSG:4326")
     c = crop_bathymetry(g, (120.0, 1.0, -110.0, 5.0))
