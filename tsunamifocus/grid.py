@@ -299,7 +299,9 @@ def grid_info(da: xr.DataArray) -> GridInfo:
 # --------------------------------------------------------------------------------------
 # crop, resample, smooth (pure functions on DataArrays)
 # --------------------------------------------------------------------------------------
-def check_bbox(bbox: tuple[float, float, float, float], geographic: bool) -> tuple[float, float, float, float]:
+def check_bbox(
+    bbox: tuple[float, float, float, float], geographic: bool
+) -> tuple[float, float, float, float]:
     """Validate a box ``(xmin, ymin, xmax, ymax)``; return it with ascending x.
 
     On geographic grids a box written in -180..180 numbers across the antimeridian, i.e.

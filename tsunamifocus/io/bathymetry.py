@@ -445,7 +445,8 @@ def _decide_sign(attrs: dict, name: str, p: pathlib.Path, vals: np.ndarray) -> t
     if pos == "down":
         return "depth", "attribute positive='down'"
     std = str(attrs.get("standard_name", "")).lower()
-    if std in ("height_above_mean_sea_level", "altitude", "height", "surface_altitude", "height_above_reference_ellipsoid"):
+    if std in ("height_above_mean_sea_level", "altitude", "height", "surface_altitude",
+               "height_above_reference_ellipsoid"):
         return "elevation", f"standard_name={std!r}"
     if std in ("sea_floor_depth_below_sea_level", "sea_floor_depth_below_geoid", "depth", "sea_floor_depth"):
         return "depth", f"standard_name={std!r}"
@@ -453,7 +454,8 @@ def _decide_sign(attrs: dict, name: str, p: pathlib.Path, vals: np.ndarray) -> t
     is_e = any(w in words for w in _ELEV_WORDS)
     is_d = any(w in words for w in _DEPTH_WORDS)
     if is_e != is_d:
-        return ("elevation" if is_e else "depth"), f"name or long_name mentions {'elevation' if is_e else 'depth'}"
+        kind = "elevation" if is_e else "depth"
+        return kind, f"name or long_name mentions {kind}"
     finite = vals[np.isfinite(vals)]
     hint = ""
     if finite.size:

@@ -22,6 +22,7 @@ from dataclasses import dataclass
 from datetime import datetime, timezone
 from pathlib import Path
 from typing import Any
+from xml.sax.saxutils import escape, quoteattr
 
 import numpy as np
 import pandas as pd
@@ -35,7 +36,8 @@ from ..grid import GridInfo, get_crs
 from .runfolder import deferred_interrupts
 from .styles import ColourScale, lensing_scale, raster_qml, scale_for_layer, segments_qml, segments_sld
 
-__all__ = ['LAYER_INFO', 'POINT_COLUMNS', 'LON180_SUFFIX', 'LonLayout', 'lon_layout', 'longitude_note', 'write_cog', 'write_netcdf', 'write_layers', 'write_segments', 'write_points_csv']
+__all__ = ['LAYER_INFO', 'POINT_COLUMNS', 'LON180_SUFFIX', 'LonLayout', 'lon_layout', 'longitude_note',
+           'write_cog', 'write_netcdf', 'write_layers', 'write_segments', 'write_points_csv']
 
 #: Long names and units (UDUNITS spelling) of the standard raster layers of a run.
 LAYER_INFO: dict[str, tuple[str, str]] = {
@@ -138,7 +140,7 @@ class LonLayout:
 
 
 def lon_layout(info: GridInfo) -> LonLayout | None:
-    """The longitude convention of raster outputs; None for projected grids.
+    """Return the longitude layout of a grid's raster outputs; None for projected grids.
 
     * a global (longitude-periodic) grid is rolled to start at -180 (lossless: same cells);
     * a regional grid is shifted by a multiple of 360 so its west edge lies in [-180, 180);
@@ -182,9 +184,10 @@ def longitude_note(info: GridInfo) -> str | None:
     west = layout.x0 - 0.5 * info.dx
     east = west + info.nx * info.dx
     return (f"{vec} The grid crosses the antimeridian: each GeoTIFF keeps longitudes {west:.6g}..{east:.6g} "
-            f"(EPSG:4326, one contiguous raster), so on a -180..180 basemap its part east of 180 lies beyond the "
-            f"map's edge; use '<layer>{LON180_SUFFIX}' beside it (a GDAL VRT over the same file, split at 180 "
-            "into -180..180 longitudes) on a standard basemap. The NetCDF keeps the grid's own longitudes.")
+            "(EPSG:4326, one contiguous raster), so on a -180..180 basemap its part east of 180 lies "
+            f"beyond the map's edge; use '<layer>{LON180_SUFFIX}' beside it (a GDAL VRT over the same file, "
+            "split at 180 into -180..180 longitudes) on a standard basemap. The NetCDF keeps the grid's own "
+            "longitudes.")
 
 
 def _write_lon180_vrt(vrt: Path, src_name: str, layout: LonLayout, info: GridInfo, transform: Any,
@@ -196,8 +199,6 @@ def _write_lon180_vrt(vrt: Path, src_name: str, layout: LonLayout, info: GridInf
     columns west of 180 at their own longitudes, on one 360-degree-wide grid with the source's
     cell size (GDAL VRT format, gdal.org/drivers/raster/vrt.html). No data is copied.
     """
-    from xml.sax.saxutils import escape, quoteattr
-
     crs = CRS.from_wkt(info.crs_wkt)
     j, nx, ny = layout.split, info.nx, info.ny
     ncol_f = 360.0 / info.dx
@@ -206,11 +207,15 @@ def _write_lon180_vrt(vrt: Path, src_name: str, layout: LonLayout, info: GridInf
     off_west = ncol_f - j
     mapping = "2,1" if crs.axis_info and crs.axis_info[0].direction.lower() == "north" else "1,2"
     gdal_type = {"float32": "Float32", "float64": "Float64", "uint8": "Byte", "int16": "Int16",
-                 "uint16": "UInt16", "int32": "Int32", "uint32": "UInt32"}.get(np.dtype(dtype).name, "Float32")
-    nod = "" if nodata is None else f"    <NoDataValue>{'nan' if math.isnan(nodata) else repr(float(nodata))}</NoDataValue>\n"
+                 "uint16": "UInt16", "int32": "Int32", "uint32": "UInt32"}.get(np.dtype(dtype).name,
+                                                                             "Float32")
+    nod = ""
+    if nodata is not None:
+        nod = f"    <NoDataValue>{'nan' if math.isnan(nodata) else repr(float(nodata))}</NoDataValue>\n"
 
     def source(sx: float, sw: int, dx_off: float) -> str:
-        return (f"    <SimpleSource>\n      <SourceFilename relativeToVRT=\"1\">{escape(src_name)}</SourceFilename>\n"
+        return ("    <SimpleSource>\n"
+                f"      <SourceFilename relativeToVRT=\"1\">{escape(src_name)}</SourceFilename>\n"
                 f"      <SourceBand>1</SourceBand>\n"
                 f"      <SrcRect xOff=\"{sx}\" yOff=\"0\" xSize=\"{sw}\" ySize=\"{ny}\" />\n"
                 f"      <DstRect xOff=\"{dx_off:.12g}\" yOff=\"0\" xSize=\"{sw}\" ySize=\"{ny}\" />\n"
@@ -837,8 +842,8 @@ def _lon180(v: np.ndarray) -> np.ndarray:
 
 #: The ``layer_styles`` table as QGIS creates it in a GeoPackage (its default-style store).
 _LAYER_STYLES_DDL = (
-    "CREATE TABLE IF NOT EXISTS layer_styles (id INTEGER PRIMARY KEY AUTOINCREMENT, f_table_catalog TEXT(256), "
-    "f_table_schema TEXT(256), f_table_name TEXT(256), f_geometry_column TEXT(256), styleName TEXT(30), "
+    "CREATE TABLE IF NOT EXISTS layer_styles (id INTEGER PRIMARY KEY AUTOINCREMENT, "
+    "f_table_catalog TEXT(256), f_table_schema TEXT(256), f_table_name TEXT(256), f_geometry_column TEXT(256), styleName TEXT(30), "
     "styleQML TEXT, styleSLD TEXT, useAsDefault BOOLEAN, description TEXT, owner TEXT(30), ui TEXT(30), "
     "update_time DATETIME DEFAULT (strftime('%Y-%m-%dT%H:%M:%fZ','now')))"
 )
@@ -857,7 +862,8 @@ def _add_layer_style(gpkg: Path, layer: str, scale: ColourScale) -> None:
     con = sqlite3.connect(gpkg)
     try:
         with con:
-            row = con.execute("SELECT column_name FROM gpkg_geometry_columns WHERE table_name = ?", (layer,)).fetchone()
+            row = con.execute("SELECT column_name FROM gpkg_geometry_columns WHERE table_name = ?",
+                              (layer,)).fetchone()
             geom_col = row[0] if row else "geom"
             con.execute(_LAYER_STYLES_DDL)
             con.execute(
@@ -869,8 +875,8 @@ def _add_layer_style(gpkg: Path, layer: str, scale: ColourScale) -> None:
                  f"{scale.title}; colours and classes of the tsunamifocus lensing map", "", None, stamp),
             )
             con.execute(
-                "INSERT OR REPLACE INTO gpkg_contents (table_name, data_type, identifier, description, last_change) "
-                "VALUES ('layer_styles', 'attributes', 'layer_styles', 'default styles of the layers', ?)",
+                "INSERT OR REPLACE INTO gpkg_contents "
+                "(table_name, data_type, identifier, description, last_change) VALUES ('layer_styles', 'attributes', 'layer_styles', 'default styles of the layers', ?)",
                 (stamp,),
             )
     finally:

@@ -290,10 +290,11 @@ def raster_qml(scale: ColourScale) -> str:
     lines = [
         '<qgis version="3.28.0" styleCategories="Symbology">',
         "  <pipe>",
-        f'    <rasterrenderer type="singlebandpseudocolor" band="1" opacity="1" alphaBand="-1" '
+        '    <rasterrenderer type="singlebandpseudocolor" band="1" opacity="1" alphaBand="-1" '
         "classificationMin=" + lo_hi.format("classificationMax") + ' nodataColor="">',
         "      <rasterTransparency/>",
-        "      <minMaxOrigin><limits>None</limits><extent>WholeRaster</extent><statAccuracy>Estimated</statAccuracy>"
+        "      <minMaxOrigin><limits>None</limits><extent>WholeRaster</extent>"
+        "<statAccuracy>Estimated</statAccuracy>"
         "<cumulativeCutLower>0.02</cumulativeCutLower><cumulativeCutUpper>0.98</cumulativeCutUpper>"
         "<stdDevFactor>2</stdDevFactor></minMaxOrigin>",
         "      <rastershader>",
@@ -396,7 +397,8 @@ def segments_sld(scale: ColourScale, layer: str = "segments", column: str = "len
         sym = "".join(
             f'<sld:LineSymbolizer><sld:Stroke><sld:CssParameter name="stroke">{c}</sld:CssParameter>'
             f'<sld:CssParameter name="stroke-width">{w:g}</sld:CssParameter>'
-            f'<sld:CssParameter name="stroke-linecap">butt</sld:CssParameter></sld:Stroke></sld:LineSymbolizer>'
+            '<sld:CssParameter name="stroke-linecap">butt</sld:CssParameter></sld:Stroke>'
+            "</sld:LineSymbolizer>"
             for c, w in (("#000000", SEGMENT_CASING_PT), (_hex(rgba), SEGMENT_WIDTH_PT))
         )
         rules.append(f"<sld:Rule><sld:Name>{escape(label)}</sld:Name><sld:Title>{escape(label)}</sld:Title>"

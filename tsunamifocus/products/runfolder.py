@@ -158,11 +158,12 @@ def write_run_folder(
         for k, v in _ensemble_layers(ensemble, depth).items():
             layers[k] = v
     # the lensing map's colour scale (raster and segments), shared by the GIS style files
-    lens = lensing_scale(layers["lensing_factor"].values,
-                         pd.to_numeric(a.focusing.segments["lensing_factor"], errors="coerce").to_numpy(float))
+    seg_lf = pd.to_numeric(a.focusing.segments["lensing_factor"], errors="coerce").to_numpy(float)
+    lens = lensing_scale(layers["lensing_factor"].values, seg_lf)
     for name, (desc, units) in COG_LAYERS.items():
+        style = lens if name == "lensing_factor" else True
         files[name] = pathlib.Path(write_cog(layers[name], folder / f"{name}.tif", description=desc, units=units,
-                                             style=lens if name == "lensing_factor" else True))
+                                             style=style))
     files["layers"] = pathlib.Path(write_netcdf(
         layers, folder / RUN_FILES["layers"],
         title=f"tsunamifocus screening layers: {scenario.name} / {a.name}",
