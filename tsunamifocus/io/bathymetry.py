@@ -20,7 +20,7 @@ import xarray as xr
 from pyproj import CRS
 
 from ..errors import CRSError, DataFileError, InputError, ResourceLimitError, SignConventionError
-from ..grid import GridInfo, crop_bathymetry, make_grid, resample_bathymetry
+from ..grid import GridInfo, check_bbox, crop_bathymetry, make_grid, resample_bathymetry
 
 __all__ = ['load_bathymetry', 'estimate_grid_memory', 'DEFAULT_MAX_MEMORY_GB']
 
@@ -35,6 +35,12 @@ _METRES = {"m", "meter", "meters", "metre", "metres"}
 _NETCDF_EXT = {".nc", ".nc4", ".cdf", ".netcdf", ".grd"}
 _ELEV_WORDS = ("elevation", "height", "altitude", "topograph", "relief", "orography")
 _DEPTH_WORDS = ("depth",)
+#: Physical bound [m] used to tell elevation from depth by the values alone: higher than the
+#: highest land (Mount Everest, 8,849 m) and shallower than the deepest sea floor (Challenger
+#: Deep, about 10,935 m). A value below -PHYSICAL_SIGN_BOUND_M cannot be a land height, so the
+#: grid stores elevation (positive up); a value above +PHYSICAL_SIGN_BOUND_M cannot be a land
+#: height either, so the grid stores depth (positive down).
+PHYSICAL_SIGN_BOUND_M: float = 8900.0
 #: Working copies the loader holds at once, per grid cell (float64 + mask + one copy).
 _BYTES_PER_CELL = 8 * 3
 
@@ -135,6 +141,7 @@ def load_bathymetry(
         raw.crs = CRS.from_user_input(crs)
     depth = _to_depth(raw, values, units, p)
     da = _assemble(raw, depth, p)
+    da.attrs["sign_decided_by"] = raw.attrs.get("sign_decided_by") or f"given: values={values!r}"
     if bbox is not None:
         da = crop_bathymetry(da, bbox, margin_km=margin_km)
     if resample_km is not None:
@@ -362,6 +369,8 @@ def _nc_window(x: np.ndarray, y: np.ndarray, xd: str, yd: str, bbox, margin_km: 
                p: pathlib.Path) -> tuple[dict, np.ndarray, np.ndarray]:
     """Index slices of the crop box (plus margin and one cell; latitudes only on lon/lat grids)."""
     sel = {}
+    if bbox is not None:
+        bbox = check_bbox(bbox, geographic)
     if bbox is not None and not geographic:
         m = margin_km * 1000.0
         xs = np.nonzero((x >= bbox[0] - m - abs(x[1] - x[0])) & (x <= bbox[2] + m + abs(x[1] - x[0])))[0]
@@ -415,7 +424,7 @@ def _to_depth(raw: _Raw, values: str, units: str | None, p: pathlib.Path) -> np.
         log.info("%s: no vertical units declared; assuming metres", p)
     mode = values
     if mode == "auto":
-        mode = _decide_sign(attrs, raw.name, p, raw.values)
+        mode, raw.attrs["sign_decided_by"] = _decide_sign(attrs, raw.name, p, raw.values * factor)
     else:  # an explicit choice must not contradict the file's CF 'positive' attribute
         pos = str(attrs.get("positive", "")).strip().lower()
         declared = {"up": "elevation", "down": "depth"}.get(pos)
@@ -428,27 +437,46 @@ def _to_depth(raw: _Raw, values: str, units: str | None, p: pathlib.Path) -> np.
     return -vals if mode == "elevation" else vals
 
 
-def _decide_sign(attrs: dict, name: str, p: pathlib.Path, vals: np.ndarray) -> str:
+def _decide_sign(attrs: dict, name: str, p: pathlib.Path, vals: np.ndarray) -> tuple[str, str]:
+    """``("elevation" | "depth", reason)`` from metadata, else from physical bounds on the values [m]."""
     pos = str(attrs.get("positive", "")).strip().lower()
     if pos == "up":
-        return "elevation"
+        return "elevation", "attribute positive='up'"
     if pos == "down":
-        return "depth"
+        return "depth", "attribute positive='down'"
     std = str(attrs.get("standard_name", "")).lower()
-    if std in ("height_above_mean_sea_level", "altitude", "height", "surface_altitude", "height_above_reference_ellipsoid"):
-        return "elevation"
+    if std in ("height_above_mean_sea_level", "altitude", "height", "surface_altitude",
+               "height_above_reference_ellipsoid"):
+        return "elevation", f"standard_name={std!r}"
     if std in ("sea_floor_depth_below_sea_level", "sea_floor_depth_below_geoid", "depth", "sea_floor_depth"):
-        return "depth"
+        return "depth", f"standard_name={std!r}"
     words = " ".join([str(attrs.get("long_name", "")), str(attrs.get("description", "")), name]).lower()
     is_e = any(w in words for w in _ELEV_WORDS)
     is_d = any(w in words for w in _DEPTH_WORDS)
     if is_e != is_d:
-        return "elevation" if is_e else "depth"
+        kind = "elevation" if is_e else "depth"
+        return kind, f"name or long_name mentions {kind}"
     finite = vals[np.isfinite(vals)]
     hint = ""
     if finite.size:
+        lo, hi = float(finite.min()), float(finite.max())
+        b = PHYSICAL_SIGN_BOUND_M
+        # No land is higher than b, so a value beyond b on either side can only be sea floor:
+        # below -b it is sea floor stored as negative elevation, above +b as positive depth.
+        deep_neg, deep_pos = lo < -b, hi > b
+        if deep_neg and not deep_pos:
+            return "elevation", (f"values: minimum {lo:,.0f} m lies below -{b:,.0f} m, which no land height "
+                                 "reaches, so it is sea floor stored as negative elevation")
+        if deep_pos and not deep_neg:
+            return "depth", (f"values: maximum {hi:,.0f} m lies above {b:,.0f} m, which no land height "
+                             "reaches, so it is sea floor stored as positive depth")
         neg = float(np.mean(finite < 0))
-        hint = f" ({neg:.0%} of values are negative)"
+        if deep_neg and deep_pos:
+            hint = (f" (values span {lo:,.0f} to {hi:,.0f} m, beyond +/-{b:,.0f} m on both sides, which no "
+                    "real relief grid does; check units and nodata)")
+        else:
+            hint = (f" ({neg:.0%} of values are negative; all within +/-{b:,.0f} m, so the values alone "
+                    "cannot tell)")
     raise SignConventionError(
         f"{p}: cannot tell whether '{name}' holds elevation or depth{hint}; pass values='elevation' "
         "(negative below sea level) or values='depth' (positive down)"

@@ -18,9 +18,11 @@ import os
 import re
 import tempfile
 from collections.abc import Iterator, Mapping
+from dataclasses import dataclass
 from datetime import datetime, timezone
 from pathlib import Path
 from typing import Any
+from xml.sax.saxutils import escape, quoteattr
 
 import numpy as np
 import pandas as pd
@@ -32,8 +34,10 @@ from ..constants import __version__
 from ..errors import CRSError, DataFileError, InputError
 from ..grid import GridInfo, get_crs
 from .runfolder import deferred_interrupts
+from .styles import ColourScale, lensing_scale, raster_qml, scale_for_layer, segments_qml, segments_sld
 
-__all__ = ['LAYER_INFO', 'POINT_COLUMNS', 'write_cog', 'write_netcdf', 'write_layers', 'write_segments', 'write_points_csv']
+__all__ = ['LAYER_INFO', 'POINT_COLUMNS', 'LON180_SUFFIX', 'LonLayout', 'lon_layout', 'longitude_note',
+           'write_cog', 'write_netcdf', 'write_layers', 'write_segments', 'write_points_csv']
 
 #: Long names and units (UDUNITS spelling) of the standard raster layers of a run.
 LAYER_INFO: dict[str, tuple[str, str]] = {
@@ -108,6 +112,133 @@ def _layer_meta(da: xr.DataArray, description: str | None, units: str | None) ->
     return str(long_name), str(unit)
 
 
+#: Suffix of the -180..180 alternative (GDAL VRT) written beside a raster that crosses the antimeridian.
+LON180_SUFFIX = "_lon180.vrt"
+
+
+@dataclass(frozen=True)
+class LonLayout:
+    """Where a geographic grid's columns go in a GeoTIFF (see :func:`lon_layout`).
+
+    Attributes
+    ----------
+    roll : int
+        Columns rolled from the front to the back (global grids: start at -180).
+    x0 : float
+        Longitude of the first written column centre.
+    crosses : bool
+        The grid crosses the antimeridian and keeps 0..360 longitudes (``x0`` in -180..180, the
+        east edge beyond 180).
+    split : int
+        Crossing grids: number of columns with centres at or west of 180.
+    """
+
+    roll: int
+    x0: float
+    crosses: bool
+    split: int
+
+
+def lon_layout(info: GridInfo) -> LonLayout | None:
+    """Return the longitude layout of a grid's raster outputs; None for projected grids.
+
+    * a global (longitude-periodic) grid is rolled to start at -180 (lossless: same cells);
+    * a regional grid is shifted by a multiple of 360 so its west edge lies in [-180, 180);
+      if its last column centre is then still east of 180 it crosses the antimeridian and
+      keeps longitudes beyond 180 (e.g. 120..250): ``crosses`` is True, and the writer adds a
+      -180..180 alternative (:data:`LON180_SUFFIX`).
+    """
+    if not info.geographic:
+        return None
+    x = info.x0 + info.dx * np.arange(info.nx)
+    if info.periodic_x:
+        w = np.mod(x + 180.0, 360.0) - 180.0
+        k = int(np.argmin(w))
+        return LonLayout(roll=k, x0=float(w[k]), crosses=False, split=0)
+    west = info.x0 - 0.5 * info.dx
+    shift = -360.0 * math.floor((west + 180.0) / 360.0)
+    xs = x + shift
+    tol = 1e-9 * max(1.0, info.dx)
+    crosses = bool(xs[-1] > 180.0 + tol)
+    split = int(np.count_nonzero(xs <= 180.0 + tol)) if crosses else 0
+    return LonLayout(roll=0, x0=float(xs[0]), crosses=crosses, split=split)
+
+
+def antimeridian_note(name: str, layout: LonLayout, info: GridInfo, alt_name: str) -> str:
+    """One-paragraph note on a raster that crosses the antimeridian (tag, manifest, appendix)."""
+    west = layout.x0 - 0.5 * info.dx
+    east = west + info.nx * info.dx
+    return (f"{name} crosses the antimeridian and keeps longitudes {west:.6g}..{east:.6g} (EPSG:4326 numbers "
+            f"beyond 180 E, one contiguous raster); on a -180..180 basemap use {alt_name}, the same cells "
+            f"split at 180 (east part at {west + layout.split * info.dx - 360.0:.6g}..{east - 360.0:.6g})")
+
+
+def longitude_note(info: GridInfo) -> str | None:
+    """How a run's GIS files place the longitudes of this grid (manifest, appendix); None if projected."""
+    layout = lon_layout(info)
+    if layout is None:
+        return None
+    vec = "Vectors (GeoPackage, GeoJSON) and CSV longitude columns are in -180..180, cut at the antimeridian."
+    if not layout.crosses:
+        return f"{vec} GeoTIFF rasters are in -180..180 longitudes."
+    west = layout.x0 - 0.5 * info.dx
+    east = west + info.nx * info.dx
+    return (f"{vec} The grid crosses the antimeridian: each GeoTIFF keeps longitudes {west:.6g}..{east:.6g} "
+            "(EPSG:4326, one contiguous raster), so on a -180..180 basemap its part east of 180 lies "
+            f"beyond the map's edge; use '<layer>{LON180_SUFFIX}' beside it (a GDAL VRT over the same file, "
+            "split at 180 into -180..180 longitudes) on a standard basemap. The NetCDF keeps the grid's own "
+            "longitudes.")
+
+
+def _write_lon180_vrt(vrt: Path, src_name: str, layout: LonLayout, info: GridInfo, transform: Any,
+                      dtype: np.dtype, nodata: float | None, long_name: str, unit: str,
+                      meta: Mapping[str, str]) -> Path:
+    """GDAL VRT showing a raster that crosses the antimeridian in -180..180 longitudes.
+
+    Two simple sources: the columns east of 180 placed first (longitudes minus 360), then the
+    columns west of 180 at their own longitudes, on one 360-degree-wide grid with the source's
+    cell size (GDAL VRT format, gdal.org/drivers/raster/vrt.html). No data is copied.
+    """
+    crs = CRS.from_wkt(info.crs_wkt)
+    j, nx, ny = layout.split, info.nx, info.ny
+    ncol_f = 360.0 / info.dx
+    ncol = int(round(ncol_f)) if abs(ncol_f - round(ncol_f)) < 1e-6 else int(math.ceil(ncol_f))
+    a = transform.c + j * info.dx - 360.0
+    off_west = ncol_f - j
+    mapping = "2,1" if crs.axis_info and crs.axis_info[0].direction.lower() == "north" else "1,2"
+    gdal_type = {"float32": "Float32", "float64": "Float64", "uint8": "Byte", "int16": "Int16",
+                 "uint16": "UInt16", "int32": "Int32", "uint32": "UInt32"}.get(np.dtype(dtype).name,
+                                                                             "Float32")
+    nod = ""
+    if nodata is not None:
+        nod = f"    <NoDataValue>{'nan' if math.isnan(nodata) else repr(float(nodata))}</NoDataValue>\n"
+
+    def source(sx: float, sw: int, dx_off: float) -> str:
+        return ("    <SimpleSource>\n"
+                f"      <SourceFilename relativeToVRT=\"1\">{escape(src_name)}</SourceFilename>\n"
+                f"      <SourceBand>1</SourceBand>\n"
+                f"      <SrcRect xOff=\"{sx}\" yOff=\"0\" xSize=\"{sw}\" ySize=\"{ny}\" />\n"
+                f"      <DstRect xOff=\"{dx_off:.12g}\" yOff=\"0\" xSize=\"{sw}\" ySize=\"{ny}\" />\n"
+                f"    </SimpleSource>\n")
+
+    mdi = "".join(f"    <MDI key={quoteattr(k)}>{escape(v)}</MDI>\n" for k, v in meta.items())
+    text = (
+        f"<VRTDataset rasterXSize=\"{ncol}\" rasterYSize=\"{ny}\">\n"
+        f"  <SRS dataAxisToSRSAxisMapping=\"{mapping}\">{escape(crs.to_wkt())}</SRS>\n"
+        f"  <GeoTransform>{a!r}, {info.dx!r}, 0.0, {transform.f!r}, 0.0, {transform.e!r}</GeoTransform>\n"
+        f"  <Metadata>\n{mdi}  </Metadata>\n"
+        f"  <VRTRasterBand dataType=\"{gdal_type}\" band=\"1\">\n"
+        f"{nod}"
+        f"    <Description>{escape(long_name)}</Description>\n"
+        f"    <UnitType>{escape(unit)}</UnitType>\n"
+        + source(j, nx - j, 0.0) + source(0, j, off_west) +
+        "  </VRTRasterBand>\n</VRTDataset>\n"
+    )
+    with _atomic_file(vrt) as tmp:
+        tmp.write_text(text, encoding="utf-8")
+    return vrt
+
+
 def write_cog(
     da: xr.DataArray,
     path: str | os.PathLike,
@@ -118,6 +249,7 @@ def write_cog(
     nodata: float | None = None,
     dtype: str | None = None,
     resampling: str = "average",
+    style: ColourScale | bool | None = True,
 ) -> Path:
     """Write one grid as a Cloud-Optimized GeoTIFF (GDAL ``COG`` driver through rasterio).
 
@@ -142,6 +274,11 @@ def write_cog(
         Output data type; float grids default to ``float32``.
     resampling : str
         Overview resampling (GDAL name: ``"average"``, ``"nearest"``, ...).
+    style : ColourScale, bool or None
+        Colour scale written as a QGIS style ``<stem>.qml`` beside the file (QGIS loads it with
+        the raster): a :class:`~tsunamifocus.io.styles.ColourScale`, or True for the figures'
+        scale of a standard layer computed from the grid (:func:`~tsunamifocus.io.styles.scale_for_layer`;
+        other layers get none), or None/False for no style file.
 
     Returns
     -------
@@ -160,7 +297,10 @@ def write_cog(
     from rasterio.transform import Affine
 
     info = GridInfo.from_dataarray(da)
+    layout = lon_layout(info)
     arr = np.asarray(da.values)
+    if layout is not None and layout.roll:
+        arr = np.roll(arr, -layout.roll, axis=1)
     if arr.dtype == bool:
         arr = arr.astype(np.uint8)
     if not (np.issubdtype(arr.dtype, np.floating) or np.issubdtype(arr.dtype, np.integer)):
@@ -176,7 +316,8 @@ def write_cog(
         data = arr.astype(out_dtype)
     data = np.ascontiguousarray(data[::-1, :])  # ascending y -> north-up rows
     top = info.y0 + (info.ny - 1) * info.dy
-    transform = Affine(info.dx, 0.0, info.x0 - 0.5 * info.dx, 0.0, -info.dy, top + 0.5 * info.dy)
+    x0 = layout.x0 if layout is not None else info.x0
+    transform = Affine(info.dx, 0.0, x0 - 0.5 * info.dx, 0.0, -info.dy, top + 0.5 * info.dy)
     long_name, unit = _layer_meta(da, description, units)
     all_tags = {
         "CAUTION": caution_text(),
@@ -186,6 +327,10 @@ def write_cog(
     }
     if info.periodic_x:
         all_tags["LON_PERIODIC"] = "1"
+    path = Path(path)
+    vrt_path = path.with_name(path.stem + LON180_SUFFIX) if layout is not None and layout.crosses else None
+    if vrt_path is not None:
+        all_tags["LONGITUDES"] = antimeridian_note(path.name, layout, info, vrt_path.name)
     all_tags.update({str(k): str(v) for k, v in (tags or {}).items()})
     profile = dict(
         driver="COG",
@@ -203,7 +348,6 @@ def write_cog(
         RESAMPLING=resampling.upper(),
         BIGTIFF="IF_SAFER",
     )
-    path = Path(path)
     with _atomic_file(path) as tmp:
         with rasterio.open(tmp, "w", **profile) as dst:
             dst.write(data, 1)
@@ -211,6 +355,17 @@ def write_cog(
             dst.update_tags(1, units=unit, long_name=long_name)
             dst.set_band_description(1, long_name)
             dst.set_band_unit(1, unit)
+    if vrt_path is not None:
+        _write_lon180_vrt(vrt_path, path.name, layout, info, transform, out_dtype, nodata, long_name, unit,
+                          {k: all_tags[k] for k in ("CAUTION", "LAYER", "LONGITUDES")})
+    if style is True:
+        style = scale_for_layer(str(da.name) if da.name is not None else path.stem, arr)
+    if isinstance(style, ColourScale):
+        qml = raster_qml(style)
+        for target in (path, vrt_path):
+            if target is not None:
+                with _atomic_file(target.with_suffix(".qml")) as tmp:
+                    tmp.write_text(qml, encoding="utf-8")
     return path
 
 
@@ -233,6 +388,32 @@ def _nc_attrs(attrs: Mapping[str, Any]) -> dict[str, Any]:
     return out
 
 
+#: netCDF's default fill values (netcdf.h NC_FILL_FLOAT / NC_FILL_DOUBLE).
+_NC_FILL = {"float32": 9.9692099683868690e36, "float64": 9.9692099683868690e36}
+
+
+def _coordinate_attrs(crs: CRS, geographic: bool) -> tuple[dict[str, str], dict[str, str]]:
+    """CF attributes of the x and y coordinate variables (CF-1.8 sections 4.1, 4.2, 5.6)."""
+    if geographic:
+        return (
+            {"standard_name": "longitude", "long_name": "longitude", "units": "degrees_east", "axis": "X"},
+            {"standard_name": "latitude", "long_name": "latitude", "units": "degrees_north", "axis": "Y"},
+        )
+    unit = "m"
+    try:
+        ax = crs.axis_info[0]
+        if ax.unit_name not in ("metre", "meter") and ax.unit_conversion_factor:
+            unit = f"{ax.unit_conversion_factor:.12g} m"  # UDUNITS: a scaled metre (e.g. US survey foot)
+    except (IndexError, AttributeError):  # pragma: no cover - every projected CRS has axes
+        pass
+    return (
+        {"standard_name": "projection_x_coordinate", "long_name": "x coordinate of projection",
+         "units": unit, "axis": "X"},
+        {"standard_name": "projection_y_coordinate", "long_name": "y coordinate of projection",
+         "units": unit, "axis": "Y"},
+    )
+
+
 def write_netcdf(
     layers: Mapping[str, xr.DataArray] | xr.Dataset,
     path: str | os.PathLike,
@@ -243,6 +424,7 @@ def write_netcdf(
     references: str | None = None,
     institution: str | None = None,
     attrs: Mapping[str, Any] | None = None,
+    dtype: str = "float32",
 ) -> Path:
     """Write layers on one grid into a CF-1.8 NetCDF-4 file.
 
@@ -257,6 +439,9 @@ def write_netcdf(
         tool prepended; ``source`` defaults to the tool name and version.
     attrs : mapping, optional
         Extra global attributes.
+    dtype : {"float32", "float64"}
+        Storage type of floating-point layers (coordinates stay float64). float32 keeps about
+        7 significant digits, far beyond the accuracy of a screening estimate, at half the size.
 
     Returns
     -------
@@ -265,9 +450,14 @@ def write_netcdf(
     Notes
     -----
     Each variable has ``long_name``, ``units`` (UDUNITS) and ``grid_mapping = "spatial_ref"``;
-    the ``spatial_ref`` variable holds the CF grid-mapping attributes from pyproj plus
-    ``crs_wkt``. The caution text is in the global ``comment`` and ``caution`` attributes.
+    missing values are stored as ``_FillValue`` (netCDF's default fill value of the type,
+    9.96921e+36 for float32; NaN again when read with xarray or netCDF4's masking). The
+    ``spatial_ref`` variable holds the CF grid-mapping attributes from pyproj plus ``crs_wkt``.
+    Coordinates carry ``standard_name``, ``long_name``, ``units`` and ``axis`` (CF-1.8 sections
+    4.1, 4.2 and 5.6). The caution text is in the global ``comment`` and ``caution`` attributes.
     """
+    if dtype not in ("float32", "float64"):
+        raise InputError(f"write_netcdf: dtype={dtype!r}; expected 'float32' or 'float64'")
     items = dict(layers.data_vars) if isinstance(layers, xr.Dataset) else dict(layers)
     if not items:
         raise InputError("write_netcdf: no layers to write")
@@ -288,15 +478,17 @@ def write_netcdf(
         long_name, unit = _layer_meta(da.rename(name), None, None)
         v = da.drop_vars("spatial_ref", errors="ignore")
         v = v.assign_coords({d: first[d].values for d in first.dims})
-        v.attrs = _nc_attrs({k: val for k, val in da.attrs.items() if k not in ("grid_mapping",)})
+        v.attrs = _nc_attrs({k: val for k, val in da.attrs.items()
+                             if k not in ("grid_mapping", "_FillValue", "missing_value")})
         v.attrs.update(long_name=long_name, units=unit, grid_mapping="spatial_ref")
         data_vars[name] = v
     ds = xr.Dataset(data_vars)
     # the grid-mapping variable is a plain variable (CF-1.8 section 5.6), not an auxiliary coordinate
     ds["spatial_ref"] = xr.DataArray(ref.values, attrs=dict(ref.attrs))
     ydim, xdim = info0.dims
-    ds[xdim].attrs.update(first[xdim].attrs, axis="X")
-    ds[ydim].attrs.update(first[ydim].attrs, axis="Y")
+    cx, cy = _coordinate_attrs(crs0, info0.geographic)
+    ds[xdim].attrs = {**_nc_attrs(first[xdim].attrs), **cx}
+    ds[ydim].attrs = {**_nc_attrs(first[ydim].attrs), **cy}
     line = f"written by tsunamifocus {__version__}"
     caution = caution_text()
     ds.attrs = {
@@ -314,7 +506,8 @@ def write_netcdf(
     for name, v in ds.data_vars.items():
         enc: dict[str, Any] = {"zlib": True, "complevel": 4}
         if v.dtype.kind == "f":
-            enc["_FillValue"] = np.nan if v.dtype == np.float64 else np.float32(np.nan)
+            enc["dtype"] = dtype
+            enc["_FillValue"] = np.dtype(dtype).type(_NC_FILL[dtype])
         encoding[name] = enc
     for c in (xdim, ydim):
         encoding[c] = {"_FillValue": None}
@@ -419,7 +612,6 @@ def _geometry_type(geoms: np.ndarray) -> str:
 def _to_lonlat(geoms: np.ndarray, crs: CRS) -> np.ndarray:
     """Reproject geometries to WGS 84 lon/lat and cut lines crossing the antimeridian (RFC 7946 3.1.9)."""
     import shapely
-    from shapely import affinity
 
     tr = Transformer.from_crs(crs, CRS.from_epsg(4326), always_xy=True)
 
@@ -427,9 +619,21 @@ def _to_lonlat(geoms: np.ndarray, crs: CRS) -> np.ndarray:
         lon, lat = tr.transform(xy[:, 0], xy[:, 1])
         return np.column_stack([lon, lat])
 
-    out = shapely.transform(geoms, fn)
+    return _wrap_split(shapely.transform(geoms, fn))
+
+
+def _wrap_split(geoms: np.ndarray) -> np.ndarray:
+    """Lon/lat geometries moved by whole turns into -180..180 and cut at the antimeridian.
+
+    Each geometry is shifted by a multiple of 360 degrees so its centre lies in -180..180; a
+    part still beyond +/-180 is cut there and moved by 360 degrees (RFC 7946 section 3.1.9),
+    so a line across the antimeridian becomes a MultiLineString with a piece on each side.
+    """
+    import shapely
+    from shapely import affinity
+
     result = []
-    for g in out:
+    for g in geoms:
         if g is None or g.is_empty:
             result.append(g)
             continue
@@ -499,6 +703,7 @@ def write_segments(
     layer: str = "segments",
     formats: tuple[str, ...] = ("gpkg", "geojson", "csv"),
     csv_wkt: bool = False,
+    style: ColourScale | bool | None = True,
 ) -> dict[str, Path]:
     """Write the coastline-segment table as GeoPackage, GeoJSON and CSV.
 
@@ -517,6 +722,11 @@ def write_segments(
         Formats to write.
     csv_wkt : bool
         Add a ``geometry_wkt`` column (grid CRS) to the CSV.
+    style : ColourScale, bool or None
+        Default style of the GeoPackage layer (table ``layer_styles``, QML and SLD), colouring
+        the segments by ``style.layer`` (``lensing_factor``) as the lensing map does. True: the
+        lensing map's scale from the table's ``lensing_factor`` column alone (pass the run's
+        shared scale to match a figure drawn with a raster); None/False: no style.
 
     Returns
     -------
@@ -556,10 +766,16 @@ def write_segments(
     caution = caution_text()
     if "gpkg" in formats:
         p = stem.with_name(stem.name + ".gpkg")
+        gpkg_geoms = _wrap_split(geoms) if crs.is_geographic else geoms
         with _atomic_file(p) as tmp, _gdal_config(OGR_CURRENT_DATE=_fixed_timestamp()):
-            _write_vector(tmp, geoms, field_data, fields, field_mask, crs.to_wkt(), "GPKG", layer,
+            _write_vector(tmp, gpkg_geoms, field_data, fields, field_mask, crs.to_wkt(), "GPKG", layer,
                           layer_metadata={"CAUTION": caution}, dataset_metadata={"CAUTION": caution},
                           layer_options={"DESCRIPTION": caution_summary(), "IDENTIFIER": layer})
+            if style is True and "lensing_factor" in table.columns:
+                sv = pd.to_numeric(table["lensing_factor"], errors="coerce").to_numpy(dtype=float)
+                style = lensing_scale(sv, sv)
+            if isinstance(style, ColourScale) and style.layer in table.columns:
+                _add_layer_style(tmp, layer, style)
         written["gpkg"] = p
     if "geojson" in formats:
         p = stem.with_name(stem.name + ".geojson")
@@ -613,7 +829,66 @@ def _write_geojson(p: Path, ll: np.ndarray, field_data: list, fields: list[str],
         tmp.write_text(json.dumps(out, ensure_ascii=False, allow_nan=False) + "\n", encoding="utf-8")
 
 
+def _is_lon_column(name: Any) -> bool:
+    """Longitude columns of a table: ``lon``, ``lon_*`` or ``*_lon`` (e.g. ``lon_mid``)."""
+    n = str(name).lower()
+    return n == "lon" or n.startswith("lon_") or n.endswith("_lon")
+
+
+def _lon180(v: np.ndarray) -> np.ndarray:
+    """Longitudes in [-180, 180) (NaN stays NaN)."""
+    return np.mod(np.asarray(v, dtype=float) + 180.0, 360.0) - 180.0
+
+
+#: The ``layer_styles`` table as QGIS creates it in a GeoPackage (its default-style store).
+_LAYER_STYLES_DDL = (
+    "CREATE TABLE IF NOT EXISTS layer_styles (id INTEGER PRIMARY KEY AUTOINCREMENT, "
+    "f_table_catalog TEXT(256), f_table_schema TEXT(256), f_table_name TEXT(256), f_geometry_column TEXT(256), styleName TEXT(30), "
+    "styleQML TEXT, styleSLD TEXT, useAsDefault BOOLEAN, description TEXT, owner TEXT(30), ui TEXT(30), "
+    "update_time DATETIME DEFAULT (strftime('%Y-%m-%dT%H:%M:%fZ','now')))"
+)
+
+
+def _add_layer_style(gpkg: Path, layer: str, scale: ColourScale) -> None:
+    """Store ``scale`` as the default style of ``layer`` (QML and SLD) in the GeoPackage's ``layer_styles``.
+
+    The table is registered in ``gpkg_contents`` as an attributes table (GeoPackage 1.2,
+    requirement 13 for non-spatial tables), as QGIS does; timestamps follow
+    :func:`_fixed_timestamp` so the file stays reproducible.
+    """
+    import sqlite3
+
+    stamp = _fixed_timestamp()
+    con = sqlite3.connect(gpkg)
+    try:
+        with con:
+            row = con.execute("SELECT column_name FROM gpkg_geometry_columns WHERE table_name = ?",
+                              (layer,)).fetchone()
+            geom_col = row[0] if row else "geom"
+            con.execute(_LAYER_STYLES_DDL)
+            con.execute(
+                "INSERT INTO layer_styles (f_table_catalog, f_table_schema, f_table_name, f_geometry_column, "
+                "styleName, styleQML, styleSLD, useAsDefault, description, owner, ui, update_time) "
+                "VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)",
+                ("", "", layer, geom_col, f"{layer} by {scale.layer}", segments_qml(scale, scale.layer),
+                 segments_sld(scale, layer, scale.layer), 1,
+                 f"{scale.title}; colours and classes of the tsunamifocus lensing map", "", None, stamp),
+            )
+            con.execute(
+                "INSERT OR REPLACE INTO gpkg_contents "
+                "(table_name, data_type, identifier, description, last_change) VALUES ('layer_styles', 'attributes', 'layer_styles', 'default styles of the layers', ?)",
+                (stamp,),
+            )
+    finally:
+        con.close()
+
+
 def _write_csv(df: Any, path: Path) -> None:
+    cols = [c for c in df.columns if _is_lon_column(c) and pd.api.types.is_numeric_dtype(df[c].dtype)]
+    if cols:
+        df = df.copy()
+        for c in cols:
+            df[c] = _lon180(df[c].to_numpy(dtype=float))
     with _atomic_file(path) as tmp:
         with open(tmp, "w", encoding="utf-8", newline="") as fh:
             fh.write(_comment_header())

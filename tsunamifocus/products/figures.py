@@ -49,6 +49,11 @@ from ..constants import __version__
 from ..errors import InputError
 from ..focusing.agreement import _paired, compare_rankings, topk_mask
 from ..grid import GridInfo
+from ..io.styles import NO_VALUE_COLOUR, SEGMENT_CASING_PT, SEGMENT_WIDTH_PT, energy_scale, lensing_scale
+from ..io.styles import log_ticks as _log_ticks
+from ..io.styles import nice_time_step as _nice_time_step
+from ..io.styles import symmetric_log_range as _symmetric_log_range  # noqa: F401 (old name, used by tests)
+from ..io.styles import tick_label as _tick_label
 from ..propagation.wave import WAVE_LIMITS
 
 __all__ = ['plot_ray_vs_wave', 'CAUTION_FOOTER', 'DPI', 'plot_ray_field', 'plot_lensing_map', 'plot_ranking',
@@ -654,11 +659,6 @@ def _coast_contour(ax, depth: xr.DataArray, info: GridInfo, zorder: float = 6) -
         )
 
 
-def _finite_pos(a: np.ndarray) -> np.ndarray:
-    a = np.asarray(a, dtype=float)
-    return a[np.isfinite(a) & (a > 0)]
-
-
 def _land_legend_handles(has_land: bool, has_nodata: bool) -> list:
     h = []
     if has_land:
@@ -775,19 +775,17 @@ def _energy_overlay(fig, ax, energy: xr.DataArray, info: GridInfo) -> bool:
     einfo = _check_grid(energy, "plot_ray_field energy")
     _same_kind(info, einfo, "plot_ray_field energy")
     e = _values(energy)
-    pos = _finite_pos(e)
-    if pos.size:
-        vmax = float(np.percentile(pos, 99.5))
-        vmin = max(float(np.percentile(pos, 5.0)), vmax * 1e-4)
-        if not vmax > vmin:
-            vmin = vmax / 10.0
+    escale = energy_scale(e)  # the one definition shared with the GIS style files (io.styles)
+    if escale is not None:
+        vmin, vmax = escale.vmin, escale.vmax
         norm = mcolors.LogNorm(vmin=vmin, vmax=vmax, clip=True)
-        cmap = _cmap("magma_r")
+        cmap = _cmap(escale.cmap)
         with np.errstate(invalid="ignore", divide="ignore"):
             t = np.where(np.isfinite(e) & (e > 0), norm(np.where(e > 0, e, vmin)), 0.0)
         t = np.clip(np.ma.filled(t, 0.0), 0.0, 1.0)
         rgba = cmap(t)
-        rgba[..., 3] = np.where(np.isfinite(e) & (e > 0), 0.15 + 0.85 * t**0.8, 0.0)
+        a0, a1, gamma = escale.alpha
+        rgba[..., 3] = np.where(np.isfinite(e) & (e > 0), a0 + a1 * t**gamma, 0.0)
         ax.imshow(rgba, origin="lower", extent=_extent(einfo), interpolation="nearest", zorder=3)
         sm = ScalarMappable(norm=norm, cmap=cmap)
         cb = _right_colorbar(fig, ax, sm, extend="both")
@@ -829,42 +827,6 @@ def _cmap(name: str):
 # --------------------------------------------------------------------------------------
 # lensing map
 # --------------------------------------------------------------------------------------
-
-
-def _symmetric_log_range(values: Sequence[np.ndarray]) -> float:
-    """Half-range r (> 1) of a log colour scale [1/r, r] covering the 2-98 % of the data."""
-    allv = np.concatenate([_finite_pos(v).ravel() for v in values]) if values else np.array([])
-    if allv.size == 0:
-        return 2.0
-    lg = np.abs(np.log10(allv))
-    m = float(np.percentile(lg, 98.0))
-    for r in (1.5, 2.0, 3.0, 5.0, 10.0, 20.0, 50.0, 100.0):
-        if math.log10(r) >= m:
-            return r
-    return 100.0
-
-
-def _log_ticks(r: float) -> list[float]:
-    base = [1.0, 1.5, 2.0, 3.0, 5.0, 10.0, 20.0, 50.0, 100.0]
-    up = [b for b in base if b <= r * 1.0001]
-    if len(up) > 5:
-        up = [b for b in up if b in (1.0, 2.0, 5.0, 10.0, 20.0, 50.0, 100.0) or b == up[-1]]
-    down = sorted({1.0 / b for b in up if b > 1.0})
-    return down + up
-
-
-def _tick_label(v: float) -> str:
-    if v >= 1:
-        return f"{v:g}"
-    s = f"{v:.2f}".rstrip("0").rstrip(".")
-    return s
-
-
-def _nice_time_step(tmax_min: float) -> float:
-    for s in (1, 2, 5, 10, 15, 20, 30, 60, 120, 180, 240, 360, 720):
-        if tmax_min / s <= 12:
-            return float(s)
-    return 1440.0
 
 
 def _rank_order(segments: pd.DataFrame, by: str, rank_col: str | None) -> pd.DataFrame:
@@ -942,9 +904,10 @@ def plot_lensing_map(
     if segments is not None:
         _check_segments(segments, ["geometry", "lensing_factor"], "plot_lensing_map")
         seg_vals = pd.to_numeric(segments["lensing_factor"], errors="coerce").to_numpy(float)
-    r = _lensing_range(lf, seg_vals)
-    norm = mcolors.LogNorm(vmin=1.0 / r, vmax=r, clip=False)
-    cmap = _cmap("PuOr_r").with_extremes(bad=(0.0, 0.0, 0.0, 0.0))
+    scale = lensing_scale(lf, seg_vals)  # the one definition shared with the GIS style files (io.styles)
+    r = scale.vmax
+    norm = mcolors.LogNorm(vmin=scale.vmin, vmax=scale.vmax, clip=False)
+    cmap = _cmap(scale.cmap).with_extremes(bad=(0.0, 0.0, 0.0, 0.0))
     handles = _lensing_raster(fig, ax, lf, linfo, depth, info, cmap, norm, r)
     if travel_time_min is not None:
         handles += _travel_time_contours(ax, travel_time_min, info, contour_step_min)
@@ -957,18 +920,6 @@ def plot_lensing_map(
         if top_k > 0:
             handles += _rank_labels(ax, segments, top_k, info)
     return _finish(fig, out_path, ax=ax, geo=geo, handles=handles, right_cbars=1)
-
-
-def _lensing_range(lf: np.ndarray, seg_vals: np.ndarray | None) -> float:
-    """Colour range r (scale 1/r .. r): the raster's 2-98 % and most segment values (the few strongest
-    segments may saturate at the ends of the scale, which the colour bar's arrows show; ranks are labelled)."""
-    r = _symmetric_log_range([lf])
-    for sv in [] if seg_vals is None else [seg_vals]:
-        pos = _finite_pos(sv)
-        if pos.size:
-            m = float(np.percentile(np.abs(np.log10(pos)), 75.0))
-            r = max(r, _symmetric_log_range([np.array([10.0**m])]))
-    return r
 
 
 def _lensing_raster(fig, ax, lf, linfo, depth, info, cmap, norm, r) -> list:
@@ -1039,13 +990,13 @@ def _coloured_segments(ax, segments: pd.DataFrame, seg_vals: np.ndarray, info: G
     if segs:
         cols_arr = np.asarray(cols, dtype=float)
         rgba = cmap(norm(np.where(np.isfinite(cols_arr) & (cols_arr > 0), cols_arr, 1.0)))
-        rgba[~(np.isfinite(cols_arr) & (cols_arr > 0))] = mcolors.to_rgba("0.6")
+        rgba[~(np.isfinite(cols_arr) & (cols_arr > 0))] = NO_VALUE_COLOUR
         lc = LineCollection(
             segs,
             colors=rgba,
-            linewidths=4.0,
+            linewidths=SEGMENT_WIDTH_PT,
             zorder=9,
-            path_effects=[patheffects.withStroke(linewidth=6.0, foreground="black")],
+            path_effects=[patheffects.withStroke(linewidth=SEGMENT_CASING_PT, foreground="black")],
             capstyle="butt",
         )
         ax.add_collection(lc)
