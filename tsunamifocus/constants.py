@@ -37,9 +37,9 @@ DEFAULTS: dict[str, dict[str, object]] = {
     "bathymetry": {"values": "auto", "crop_margin_km": 0.0, "max_memory_gb": 4.0},
     "source": {"kind": "fault", "force": False, "radius_km": 50.0, "amplitude_m": 1.0},
     "source.segment": {"rake_deg": 90.0, "rigidity_pa": RIGIDITY_PA},
-    "rays": {"count": 20000, "stop_depth_m": 20.0, "max_time_h": 24.0, "seed": 0},
+    "rays": {"stop_depth_m": 20.0, "max_time_h": 24.0, "seed": 0},
     "focusing": {"reference_smooth_km": 50.0},
-    "coast": {"from": "grid", "segment_km": 10.0, "min_rays": 10},
+    "coast": {"from": "grid", "min_rays": 10},
     "output": {"top_k": 10, "figures": True, "report": True},
     "ensemble": {
         "members": 0, "seed": 0, "bathy_rms": 0.0, "bathy_corr_km": 20.0, "strike_deg": 0.0, "dip_deg": 0.0,

@@ -125,7 +125,9 @@ def test_valid_file_defaults_and_paths(tmp_path, monkeypatch):
     # defaults filled (documented in docs/scenario.md)
     assert sc.rays.max_time_h == 24.0 and sc.rays.seed == 0 and sc.rays.step_s is None
     assert sc.coast.isobath_m == 30.0  # defaults to rays.stop_depth_m
-    assert sc.coast.segment_km == 10.0
+    # left open ("auto"): the run chooses them and records what it used (studies/settings.py)
+    assert sc.coast.segment_km is None and sc.rays.count == 5000
+    assert sc.coast.region is None and sc.coast.max_distance_m is None
     s0, s1, s2 = sc.sources
     assert s0.kind == "fault" and len(s0.segments) == 1 and s0.segments[0].magnitude == 8.5
     assert s0.segments[0].rake_deg == 90.0 and s0.segments[0].rigidity_pa == RIGIDITY_PA
@@ -222,6 +224,13 @@ BAD_CASES = [
     ("lat/lon swapped in a trace", _mod("trace = [[135.0, 33.0], [136.0, 34.0]]", "trace = [[33.0, 135.0], [34.0, 136.0]]"),
      [r"are lon and lat swapped\? \(lon first\)"]),
     ("syntax error with line", _mod("count = 5000", "count = [1"), [r"line 3\d, column \d+", r"invalid TOML"]),
+    ("region latitudes inverted", _mod("[coast]", "[coast]\nregion = [-125, 49, -117, 32]"),
+     [r"\[coast\] region = \[-125, 49, -117, 32\]", r"lat_min < lat_max"]),
+    ("region of zero width", _mod("[coast]", "[coast]\nregion = [235, 32, -125, 49]"),
+     [r"zero width in longitude"]),
+    ("region of 3 numbers", _mod("[coast]", "[coast]\nregion = [-125, 32, -117]"),
+     [r"region = \[-125, 32, -117\]", r"4 numbers \[lon_min, lat_min, lon_max, lat_max\]"]),
+    ("negative max distance", _mod("[coast]", "[coast]\nmax_distance_m = -5"), [r"max_distance_m = -5", r"> 0"]),
 ]
 
 
@@ -276,6 +285,21 @@ def test_to_dict_json_and_round_trips(tmp_path):
     q.write_text(sc.to_toml(), encoding="utf-8")
     assert parse_scenario(q) == sc
     assert "SCREENING ESTIMATES ONLY" in sc.to_toml()
+
+
+def test_coast_region_and_distances_round_trip(tmp_path):
+    # a box across the antimeridian (lon_min > lon_max) and one in -180..180 numbers are both kept as
+    # written; the manifest form (to_dict -> JSON) and the output TOML read back to the same scenario
+    for box in ([170.0, -50.0, -170.0, -30.0], [-125.0, 32.0, -117.0, 49.0], [235.0, 32.0, 243.0, 49.0]):
+        text = _mod("[coast]", f"[coast]\nregion = {box}\nmax_distance_m = 40000\npoint_max_distance_km = 12.5")
+        sc = parse_scenario(_write(tmp_path, text))
+        assert sc.coast.region == tuple(box)
+        assert sc.coast.max_distance_m == 40000.0 and sc.coast.point_max_distance_km == 12.5
+        d = json.loads(json.dumps(sc.to_dict(), allow_nan=False))
+        assert scenario_from_dict(d, base_dir="/elsewhere") == sc
+        q = tmp_path / "effective.toml"
+        q.write_text(sc.to_toml(), encoding="utf-8")
+        assert parse_scenario(q) == sc
 
 
 def test_from_dict_errors_name_origin():

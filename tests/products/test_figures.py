@@ -464,7 +464,10 @@ def test_ranking_labels_without_names():
     assert figures._bar_label("S0002", None, 2.0) == "2. S0002"
     assert figures._bar_label("S0003", "S0003", 3) == "3. S0003"
     assert figures._bar_label("S0004", "Harbour", pd.NA) == "- S0004  Harbour"
-    assert len(figures._bar_label("S0005", "x" * 60, 5)) == 34
+    assert len(figures._bar_label("S0005", "x" * 60, 5)) == 40
+    # without a name: the midpoint's latitude and longitude (-180..180, hemisphere letters)
+    assert figures._bar_label("S0006", "", 6, 41.75, 235.8) == "6. S0006  41.75°N 124.20°W"
+    assert figures._bar_label("S0007", None, None, -33.5, 151.25) == "- S0007  33.50°S 151.25°E"
 
 
 def test_plain_log_ticks():

@@ -137,6 +137,7 @@ def analyse_focusing(
     n_boot: int = 200,
     seed: int = 0,
     top_k: int = 20,
+    coast_area: Any = None,
 ) -> FocusingResult:
     """Trace a source over the real, reference and constant-depth bathymetries and analyse it.
 
@@ -162,6 +163,8 @@ def analyse_focusing(
     max_distance_m, min_rays, n_boot, seed : see :func:`segment_arrivals`.
     top_k : int
         Length of the ranking.
+    coast_area : callable, optional
+        See :func:`segment_arrivals`.
 
     Returns
     -------
@@ -195,7 +198,8 @@ def analyse_focusing(
             segment_length_m = 10.0 * max(info.spacing_m())
         segments = segment_coastline(coastline_from_grid(depth, stop_depth_m), segment_length_m, depth)
     table = segment_arrivals(segments, real, depth, period_s=period_s, ref_result=refr,
-                             max_distance_m=max_distance_m, min_rays=min_rays, n_boot=n_boot, seed=seed)
+                             max_distance_m=max_distance_m, min_rays=min_rays, n_boot=n_boot, seed=seed,
+                             coast_area=coast_area)
     ranking = rank_segments(table, top_k=top_k, by="lensing_factor")
     d_coast = _segment_distance(table, info, x0, y0)
     fluct = fluctuation_statistics(depth, reference_smooth_km, lowpass=lowpass)

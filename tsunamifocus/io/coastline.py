@@ -14,7 +14,7 @@ from shapely.geometry import LineString
 from ..errors import CoastError
 from ..grid import GridInfo
 
-__all__ = ['read_coastline']
+__all__ = ['read_coastline', 'read_region_polygons']
 
 
 def read_coastline(
@@ -147,3 +147,55 @@ def _explode_lines(geom) -> list[LineString]:
             res.extend(_explode_lines(g))
         return res
     return []
+
+
+def read_region_polygons(path: str | pathlib.Path, layer: str | int | None = None):
+    """Read the polygons of a region file (GeoJSON / GeoPackage) as one geometry in lon/lat degrees.
+
+    Parameters
+    ----------
+    path : str or pathlib.Path
+        Vector file with Polygon / MultiPolygon features and a defined CRS.
+    layer : str or int, optional
+        Layer of a multi-layer file.
+
+    Returns
+    -------
+    shapely geometry
+        The union of the polygons, in WGS84 longitude/latitude [degrees].
+
+    Raises
+    ------
+    CoastError
+        If the file is missing, unreadable, has no CRS or no polygon.
+    """
+    import pyogrio
+
+    p = pathlib.Path(path)
+    if not p.exists():
+        raise CoastError(f"coast region file {p} does not exist")
+    try:
+        meta, _fids, wkb, _fields = pyogrio.raw.read(p, layer=layer)
+    except Exception as exc:  # pyogrio raises several kinds
+        raise CoastError(f"coast region file {p}: cannot be read as a vector file ({exc})") from exc
+    src_crs = meta.get("crs")
+    if not src_crs:
+        raise CoastError(f"coast region file {p}: has no CRS; expected a file with a defined CRS (e.g. EPSG:4326)")
+    geoms = shapely.from_wkb(wkb, on_invalid="ignore") if wkb is not None else np.array([])
+    polys = []
+    for g in geoms:
+        if g is None or g.is_empty:
+            continue
+        if g.geom_type in ("Polygon", "MultiPolygon"):
+            polys.append(g)
+        elif g.geom_type == "GeometryCollection":
+            polys.extend(h for h in g.geoms if h.geom_type in ("Polygon", "MultiPolygon"))
+    if not polys:
+        raise CoastError(f"coast region file {p}: no Polygon or MultiPolygon features; expected the area of the "
+                         "coast of interest as polygons")
+    tr = Transformer.from_crs(CRS.from_user_input(src_crs), CRS.from_epsg(4326), always_xy=True)
+    out = shapely.transform(shapely.union_all(polys),
+                            lambda c: np.column_stack(tr.transform(c[:, 0], c[:, 1])))
+    if not out.is_valid:
+        out = shapely.make_valid(out)
+    return out

@@ -164,9 +164,13 @@ class SourceConfig:
 
 @dataclass(frozen=True)
 class RaysConfig:
-    """``[rays]``: ray-tracing settings (count, stop isobath [m], time limit [h], step [s], seed)."""
+    """``[rays]``: ray-tracing settings (count, stop isobath [m], time limit [h], step [s], seed).
 
-    count: int = DEFAULTS["rays"]["count"]  # type: ignore[assignment]
+    ``count`` None means "auto": the run decides (see :mod:`tsunamifocus.studies.settings`) and
+    records the number it used in its manifest and output scenario.
+    """
+
+    count: int | None = None
     stop_depth_m: float = DEFAULTS["rays"]["stop_depth_m"]  # type: ignore[assignment]
     max_time_h: float = DEFAULTS["rays"]["max_time_h"]  # type: ignore[assignment]
     step_s: float | None = None
@@ -196,18 +200,33 @@ class CoastConfig:
         Attribute giving segment names.
     isobath_m : float
         Depth of the coastal contour [m]; defaults to ``rays.stop_depth_m``.
-    segment_km : float
-        Segment length along the coast [km].
+    segment_km : float or None
+        Segment length along the coast [km]; None: chosen from the grid spacing by the run.
     min_rays : int
         Fewest contributing rays for a segment to count as reliable.
+    region : (lon_min, lat_min, lon_max, lat_max) or None
+        Coast of interest [degrees]: segments, rankings and summaries are restricted to it while
+        rays still travel the whole grid. ``lon_min > lon_max`` (after bringing both into one
+        360-degree turn) is a box across the antimeridian; -180..180 and 0..360 numbers both work.
+    region_file : pathlib.Path or None
+        Polygon file (GeoJSON / GeoPackage) further restricting the coast of interest.
+    max_distance_m : float or None
+        Largest distance [m] from a ray's end to its segment; None: chosen by the arrivals step.
+    point_max_distance_km : float or None
+        Farthest a point of interest may lie from its segment or from the sea cell it is read at
+        [km] and still get values; None: 3 grid cells, at least 25 km.
     """
 
     source: str | Path = DEFAULTS["coast"]["from"]  # type: ignore[assignment]
     layer: str | None = None
     name_field: str | None = None
     isobath_m: float = STOP_DEPTH_M
-    segment_km: float = DEFAULTS["coast"]["segment_km"]  # type: ignore[assignment]
+    segment_km: float | None = None
     min_rays: int = DEFAULTS["coast"]["min_rays"]  # type: ignore[assignment]
+    region: tuple[float, float, float, float] | None = None
+    region_file: Path | None = None
+    max_distance_m: float | None = None
+    point_max_distance_km: float | None = None
 
 
 @dataclass(frozen=True)
@@ -322,6 +341,10 @@ class Scenario:
                 "isobath_m": self.coast.isobath_m,
                 "segment_km": self.coast.segment_km,
                 "min_rays": self.coast.min_rays,
+                "region": None if self.coast.region is None else list(self.coast.region),
+                "region_file": None if self.coast.region_file is None else str(self.coast.region_file),
+                "max_distance_m": self.coast.max_distance_m,
+                "point_max_distance_km": self.coast.point_max_distance_km,
             },
             "point": [{"name": p.name, "lon": p.lon, "lat": p.lat} for p in self.points],
             "output": {
@@ -354,6 +377,8 @@ class Scenario:
         files = {"bathymetry": self.bathymetry.path}
         if isinstance(self.coast.source, Path):
             files["coastline"] = self.coast.source
+        if self.coast.region_file is not None:
+            files["coast_region"] = self.coast.region_file
         return files
 
 
@@ -458,7 +483,8 @@ _SPEC: dict[str, tuple[_Key, ...]] = {
     ),
     "source": _SOURCE_KEYS,
     "rays": (
-        _i("count", "number of rays per source", "rays", lo=1, hi=100_000_000),
+        _i("count", "number of rays per source", "rays", lo=1, hi=100_000_000,
+           default_doc="auto (the run summary says what was chosen and why)"),
         _f("stop_depth_m", "stop isobath: rays end where the depth falls below it", "m",
            lo=0.0, hi=2000.0, lo_open=True),
         _f("max_time_h", "travel-time limit", "h", lo=0.0, hi=72.0, lo_open=True),
@@ -478,8 +504,17 @@ _SPEC: dict[str, tuple[_Key, ...]] = {
         _Key("name_field", "str", "attribute giving segment names", default_doc="no names"),
         _f("isobath_m", "depth of the coastal contour", "m", lo=0.0, hi=2000.0, lo_open=True,
            default_doc="rays.stop_depth_m"),
-        _f("segment_km", "segment length along the coast", "km", lo=0.0, hi=1000.0, lo_open=True),
+        _f("segment_km", "segment length along the coast", "km", lo=0.0, hi=1000.0, lo_open=True,
+           default_doc="2 grid cells, at least 10 km"),
         _i("min_rays", "fewest contributing rays for a reliable segment", "rays", lo=1, hi=1_000_000),
+        _Key("region", "region", "coast of interest [lon_min, lat_min, lon_max, lat_max]; lon_min > lon_max "
+             "crosses the antimeridian", "degrees", default_doc="the whole grid"),
+        _Key("region_file", "path", "polygon file (GeoJSON/GeoPackage) restricting the coast of interest; "
+             "relative to the scenario file", default_doc="none"),
+        _f("max_distance_m", "largest distance from a ray's end to its coastline segment", "m", lo=0.0,
+           hi=1.0e6, lo_open=True, default_doc="3 grid cells + 1.5 x the coastline's offset from the stop isobath"),
+        _f("point_max_distance_km", "farthest a point of interest may lie from its segment or sea cell and "
+           "still get values", "km", lo=0.0, hi=20000.0, lo_open=True, default_doc="3 grid cells, at least 25 km"),
     ),
     "point": (
         _Key("name", "str", "unique point name", required=True),
@@ -804,6 +839,21 @@ def _check_value(ctx: _Ctx, sect: tuple, k: _Key, v: Any) -> Any:
         box = tuple(float(a) for a in v)
         if not (box[0] < box[2] and box[1] < box[3]):
             raise ctx.bad(sect, k, v, what)
+        return box
+    if kind == "region":
+        what = ("4 numbers [lon_min, lat_min, lon_max, lat_max] in degrees (lon -180..360, lat -90..90, "
+                "lat_min < lat_max; lon_min > lon_max for a box across the antimeridian)")
+        if not isinstance(v, (list, tuple)) or len(v) != 4:
+            raise ctx.bad(sect, k, v, what)
+        if any(isinstance(a, bool) or not isinstance(a, (int, float)) or not math.isfinite(a) for a in v):
+            raise ctx.bad(sect, k, v, what)
+        box = tuple(float(a) for a in v)
+        if not (-180.0 <= box[0] <= 360.0 and -180.0 <= box[2] <= 360.0):
+            raise ctx.bad(sect, k, v, what)
+        if not (-90.0 <= box[1] < box[3] <= 90.0):
+            raise ctx.bad(sect, k, v, what)
+        if (box[2] - box[0]) % 360.0 == 0.0 and box[2] - box[0] != 360.0:
+            raise ctx.bad(sect, k, v, what + " (zero width in longitude)")
         return box
     if kind == "trace":
         what = "two points [[lon, lat], [lon, lat]] in degrees (lon -180..360, lat -90..90), not equal"

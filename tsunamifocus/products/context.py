@@ -16,7 +16,8 @@ __all__ = []
 
 
 def _report_context(a: SourceAnalysis, scenario: Any, depth: xr.DataArray, points: pd.DataFrame,
-                    health: dict, figs: dict, ensemble: Any, extra_sections: dict | None) -> dict:
+                    health: dict, figs: dict, ensemble: Any, extra_sections: dict | None, *,
+                    choices: dict | None = None) -> dict:
     """The data the appendix needs (keys of tsunamifocus.report.CONTEXT_KEYS)."""
     f = a.focusing
     g = summarize_grid(depth)
@@ -47,14 +48,24 @@ def _report_context(a: SourceAnalysis, scenario: Any, depth: xr.DataArray, point
             f"rake {seg.get('rake_deg', float('nan')):.0f} deg, L {seg.get('length_km', float('nan')):.0f} km, "
             f"W {seg.get('width_km', float('nan')):.0f} km, top {seg.get('top_depth_km', float('nan')):.1f} km, "
             f"slip {seg.get('slip_m', float('nan')):.2f} m")
+    ch = choices or {}
+
+    def chosen(key: str, value: Any) -> Any:
+        c = ch.get(key)
+        if c is None or c.origin == "scenario":
+            return value
+        how = "command-line override" if c.origin == "override" else "default"
+        return f"{_fmt_setting(value)} ({how}{': ' + c.why if c.why else ''})"
+
     settings = {
-        "rays per source": scenario.rays.count,
+        "rays per source": chosen("rays", scenario.rays.count),
         "stop isobath (m)": scenario.rays.stop_depth_m,
         "time limit (h)": scenario.rays.max_time_h,
         "integration step (s)": f"{health['step_s']:.2f}",
         "reference low-pass (km)": scenario.focusing.reference_smooth_km,
-        "segment length (km)": scenario.coast.segment_km,
+        "segment length (km)": chosen("segment_km", scenario.coast.segment_km),
         "coastline from": str(scenario.coast.source),
+        "coast of interest": _region_text(scenario, f.segments),
         "min rays per reliable segment": scenario.coast.min_rays,
         "ray seed": scenario.rays.seed,
     }
@@ -100,6 +111,24 @@ def _report_context(a: SourceAnalysis, scenario: Any, depth: xr.DataArray, point
     if extra_sections:
         ctx.update(extra_sections)
     return ctx
+
+
+def _fmt_setting(v: Any) -> str:
+    return f"{v:g}" if isinstance(v, float) else str(v)
+
+
+def _region_text(scenario: Any, seg: pd.DataFrame) -> str:
+    c = scenario.coast
+    n_all = int(seg.attrs.get("n_segments_all", len(seg)))
+    parts = []
+    if getattr(c, "region", None) is not None:
+        b = c.region
+        parts.append(f"lon {b[0]:g} to {b[2]:g}, lat {b[1]:g} to {b[3]:g}")
+    if getattr(c, "region_file", None) is not None:
+        parts.append(f"inside {c.region_file.name}")
+    if not parts:
+        return f"the whole coastline ({len(seg)} segments)"
+    return "; ".join(parts) + f" ({len(seg)} of {n_all} segments)"
 
 
 def _ensemble_section(ens: Any, scenario: Any) -> dict:

@@ -88,7 +88,7 @@ def _figures(a: SourceAnalysis, depth: xr.DataArray, scenario: Any, folder: path
     seg = _plain_dtypes(f.segments)
     if ensemble is not None and getattr(ensemble, "segments", None) is not None:
         seg = _with_ensemble_intervals(seg, ensemble.segments)
-    title = f"Top {scenario.output.top_k} coastline segments by lensing factor"
+    title = _ranking_title(seg, scenario.output.top_k)
     if ensemble is not None:
         title += f"\n(ensemble median and 5-95 % interval over {ensemble.n_members} members)"
     else:
@@ -98,14 +98,25 @@ def _figures(a: SourceAnalysis, depth: xr.DataArray, scenario: Any, folder: path
         seg = seg.copy()
         seg["p_topk"] = ensemble.segments["p_topk"].reindex(seg["segment_id"].to_numpy()).to_numpy(dtype=float)
         prob = "p_topk"
-    figs["ranking"] = F.plot_ranking(seg, scenario.output.top_k, out_path=folder / "ranking.png", title=title,
-                                     prob_col=prob)
+    if np.isfinite(pd.to_numeric(seg["lensing_factor"], errors="coerce").to_numpy(float)).any():
+        figs["ranking"] = F.plot_ranking(seg, scenario.output.top_k, out_path=folder / "ranking.png", title=title,
+                                         prob_col=prob)
     figs["uplift"] = F.plot_uplift(a.eta, out_path=folder / "uplift.png", depth=depth,
                                    source_outline=a.outline or None, coast_lines=coast,
                                    title=f"Initial sea-surface displacement (Okada 1985): {a.name}")
     return {k: pathlib.Path(v) if v is not None else folder / f"{k}.png" for k, v in figs.items()}
 
 
+def _ranking_title(seg: pd.DataFrame, top_k: int) -> str:
+    """First title line of the ranking chart, with the counts actually drawn (ranked, then unreliable)."""
+    v = pd.to_numeric(seg["lensing_factor"], errors="coerce").to_numpy(float)
+    rel = seg["reliable"].fillna(False).to_numpy(bool) if "reliable" in seg else np.ones(len(seg), bool)
+    n_rel = min(top_k, int((rel & np.isfinite(v)).sum()))
+    n_unrel = min(top_k - n_rel, int((~rel & np.isfinite(v)).sum()))
+    if n_rel == 0:
+        return f"No reliable segment: the {n_unrel} highest lensing factors, all unreliable (not ranked)"
+    return (f"Top {n_rel} ranked coastline segments by lensing factor"
+            + (f" + {n_unrel} unreliable (hatched)" if n_unrel else ""))
 
 
 def _with_ensemble_intervals(seg: pd.DataFrame, ens: pd.DataFrame) -> pd.DataFrame:
@@ -141,8 +152,13 @@ def write_run_folder(
     timings: dict | None = None,
     command: Sequence[str] | None = None,
     extra_sections: dict | None = None,
+    choices: dict | None = None,
 ) -> dict[str, pathlib.Path]:
     """Write every output of one analysed source into ``folder`` (which must exist).
+
+    ``scenario`` is the effective scenario (every setting the run chose written in), so the
+    manifest, ``scenario.toml`` and the appendix record what was run; ``choices`` (name ->
+    :class:`~tsunamifocus.studies.settings.Choice`) says how the open settings were chosen.
 
     Returns
     -------
@@ -180,7 +196,7 @@ def write_run_folder(
         files.update({f"figure_{k}": v for k, v in figs.items()})
     if scenario.output.report:
 
-        ctx = _report_context(a, scenario, depth, points, health, figs, ensemble, extra_sections)
+        ctx = _report_context(a, scenario, depth, points, health, figs, ensemble, extra_sections, choices=choices)
         html, pdf = folder / RUN_FILES["html"], folder / RUN_FILES["pdf"]
         build_appendix(ctx, html, pdf)
         files["html"], files["pdf"] = html, pdf
@@ -189,6 +205,8 @@ def write_run_folder(
         command=list(command) if command else None,
         seeds={"rays": scenario.rays.seed, "ensemble": scenario.ensemble.seed},
         extra={"source": a.name, "health": health, "source_summary": jsonable(a.summary.to_dict()),
+               "settings_chosen": {k: jsonable(c.to_dict()) for k, c in (choices or {}).items()},
+               "points_warnings": list(points.attrs.get("warnings", [])) if points is not None else [],
                "ensemble": jsonable(ensemble.to_dict()) if ensemble is not None else None},
     )
     files["manifest"] = folder / RUN_FILES["manifest"]
@@ -279,9 +297,9 @@ def run_scenario(
             for a in analyses:
                 folder = root / safe_name(a.name, "source") if multi else root
                 folder.mkdir(parents=True, exist_ok=True)
-                write_run_folder(folder, a, scenario, result.depth, result.points[a.name], result.health[a.name],
-                                 ensemble=result.ensemble if a is analyses[0] else None, timings=pr.timings,
-                                 command=command)
+                write_run_folder(folder, a, result.scenario, result.depth, result.points[a.name],
+                                 result.health[a.name], ensemble=result.ensemble if a is analyses[0] else None,
+                                 timings=pr.timings, command=command, choices=result.choices)
             if multi:
                 _write_comparison(root, analyses, result.depth)
         pr.done("done")

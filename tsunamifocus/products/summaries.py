@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import math
+import pathlib
 
 import numpy as np
 import pandas as pd
@@ -62,6 +63,19 @@ def format_summary(s: dict) -> str:
     return "\n".join(lines)
 
 
+def _place(r) -> str:
+    """``"41.75N 124.20W"`` (and the name when there is one) of a segment row."""
+    lat, lon = float(r.get("lat_mid", np.nan)), float(r.get("lon_mid", np.nan))
+    nm = r.get("name", "")
+    where = ""
+    if math.isfinite(lat) and math.isfinite(lon):
+        lon = ((lon + 180.0) % 360.0) - 180.0
+        where = f"{abs(lat):.2f}{'N' if lat >= 0 else 'S'} {abs(lon):.2f}{'E' if lon >= 0 else 'W'}"
+    if isinstance(nm, str) and nm.strip():
+        return f"{nm.strip()}, {where}" if where else nm.strip()
+    return where
+
+
 def seg_sigma_km(seg: pd.DataFrame) -> np.ndarray:
     """Fresnel regularisation width at each segment [km] (or 2 segment lengths where unknown)."""
     if "fresnel_sigma_m" in seg:
@@ -71,9 +85,48 @@ def seg_sigma_km(seg: pd.DataFrame) -> np.ndarray:
     return 2.0 * seg["length_m"].to_numpy(dtype=float) / 1000.0
 
 
+def settings_lines(result: RunResult) -> list[str]:
+    """What the run chose for the settings the scenario left open, and why (summary lines)."""
+    sc = result.scenario
+    ch = result.choices or {}
+    out = []
+    if "rays" in ch:
+        out.append(f"ray count per source: {ch['rays'].describe('rays')}")
+    if "segment_km" in ch:
+        out.append(f"segment length: {ch['segment_km'].describe('km')}")
+    a = result.analyses[0] if result.analyses else None
+    if a is not None:
+        seg = a.focusing.segments
+        n_all = int(seg.attrs.get("n_segments_all", len(seg)))
+        reg = sc.coast
+        if getattr(reg, "region", None) is not None or getattr(reg, "region_file", None) is not None:
+            box = reg.region
+            what = (f"lon {box[0]:g}..{box[2]:g}, lat {box[1]:g}..{box[3]:g}" if box is not None else "")
+            if getattr(reg, "region_file", None) is not None:
+                what = (what + "; " if what else "") + f"inside {pathlib.Path(reg.region_file).name}"
+            out.append(f"coast of interest: {what} ({len(seg)} of {n_all} segments; rays travel the whole grid)")
+        else:
+            out.append(f"coast of interest: the whole coastline ({len(seg)} segments)")
+    return out
+
+
+def _no_reliable_line(f, min_rays: int) -> str:
+    seg = f.segments
+    n = np.asarray(seg["n_rays"], dtype=float) if "n_rays" in seg else np.zeros(len(seg))
+    nref = np.asarray(seg["ref_n_rays"], dtype=float) if "ref_n_rays" in seg else n
+    both = np.fmin(n, nref) if len(seg) else n
+    best = int(np.nanmax(both)) if both.size else 0
+    reached = int((n > 0).sum())
+    return (f"  no reliable segment: none of the {len(seg)} segments of the coast of interest has >= {min_rays} "
+            f"contributing rays in the real and reference runs ({reached} segments were reached, the best by "
+            f"{best} rays); there is no ranking. Trace more rays ([rays] count or --rays) or use longer "
+            "segments ([coast] segment_km)")
+
+
 def format_run_summary(result: RunResult) -> str:
-    """Short end-of-run summary: top hotspots, timings, where outputs are, and the cautions."""
+    """Short end-of-run summary: settings and why, top hotspots, points, timings, outputs, cautions."""
     lines = ["", "== tsunamifocus run summary: " + str(result.scenario.name)]
+    lines += settings_lines(result)
     for a in result.analyses:
         f = a.focusing
         lines.append(f"source {a.name}: Mw {a.summary.mw:.2f}, E = {a.summary.energy_J:.3g} J, "
@@ -86,14 +139,19 @@ def format_run_summary(result: RunResult) -> str:
                      f"{h['steps_per_ray_max']:.0f} max; rays stopped in NaN holes or on land "
                      f"{h['nan_or_land_fraction']:.2%}")
         rk = f.ranking
-        rel = rk[rk["reliable"]] if "reliable" in rk else rk
-        lines.append(f"  top hotspots by lensing factor (5-95 % interval), of {len(f.segments)} segments:")
-        edge_km = 2.0 * float(np.nanmedian(seg_sigma_km(f.segments)))
+        rel = rk[rk["reliable"].fillna(False).astype(bool)] if "reliable" in rk else rk
+        if len(rel) == 0:
+            lines.append(_no_reliable_line(f, int(result.scenario.coast.min_rays)))
+        else:
+            shown = min(5, len(rel))
+            lines.append(f"  top {shown} hotspots by lensing factor (5-95 % interval), of {len(rel)} reliable "
+                         f"among {len(f.segments)} segments:")
+        edge_km = 2.0 * float(np.nanmedian(seg_sigma_km(f.segments))) if len(f.segments) else 0.0
         for _, r in rel.head(min(5, len(rel))).iterrows():
             near = r.get("edge_distance_km", np.inf) < edge_km
-            lines.append(f"    #{int(r['rank_lensing']):>2} {r['segment_id']:>6}  lensing {r['lensing_factor']:.2f} "
-                         f"[{r['lensing_lo']:.2f}-{r['lensing_hi']:.2f}]  indicative amplitude at 1 m "
-                         f"{r['amp_1m_m']:.2f} m  first arrival {r['first_arrival_s'] / 60:.0f} min"
+            lines.append(f"    #{int(r['rank_lensing']):>2} {r['segment_id']:>6} ({_place(r)})  lensing "
+                         f"{r['lensing_factor']:.2f} [{r['lensing_lo']:.2f}-{r['lensing_hi']:.2f}]  indicative "
+                         f"amplitude at 1 m {r['amp_1m_m']:.2f} m  first arrival {r['first_arrival_s'] / 60:.0f} min"
                          + (f"  (within {edge_km:.0f} km of the grid edge: rays from beyond it are missing)"
                             if near else ""))
         seg = f.segments
@@ -102,6 +160,15 @@ def format_run_summary(result: RunResult) -> str:
             if len(by_amp):
                 lines.append("  largest indicative amplitude at 1 m depth (Green's law, indicative only): " + ", ".join(
                     f"{r['segment_id']} {r['amp_1m_m']:.2f} m" for _, r in by_amp.iterrows()))
+        pts = result.points.get(a.name)
+        if pts is not None and len(pts):
+            warn = list(pts.attrs.get("warnings", []))
+            lim = pts.attrs.get("max_distance_km")
+            ok = int((pts["note"] == "").sum()) if "note" in pts else len(pts)
+            lines.append(f"  points of interest: {ok} of {len(pts)} with every value"
+                         + (f" (limit {lim:.0f} km to the segment and sea cell read)" if lim else ""))
+            for w in warn:
+                lines.append(f"    WARNING: {w}")
     if result.ensemble is not None:
         e = result.ensemble
         lines.append(f"ensemble: {e.n_members} members, {len(e.failures)} failed")

@@ -50,6 +50,7 @@ from ..cautions import caution_summary, caution_text
 from ..constants import GRAVITY, STOP_DEPTH_M
 from ..errors import InputError, ResolutionWarning, ResourceLimitError
 from ..grid import GridInfo
+from ..progressbar import progress_bar
 from . import _wavekernel as _k
 
 __all__ = ['WaveResult', 'simulate_linear_long_wave', 'wave_time_step', 'WAVE_CAUTION', 'WAVE_LIMITS']
@@ -650,10 +651,8 @@ def _wave_result(depth: xr.DataArray, wet: np.ndarray, eta: np.ndarray, max_eta:
 def _progress(progress: Any, n_steps: int) -> tuple[Callable[[int, int], None] | None, Any]:
     if progress is None or progress is False:
         return None, None
-    if progress is True:
-        from tqdm import tqdm
-
-        bar = tqdm(total=n_steps, unit="step", desc="wave solver")
+    if progress is True:  # a bar on a terminal, a few plain lines in a log
+        bar = progress_bar(n_steps, "wave solver", unit="step")
         state = {"done": 0}
 
         def cb(step: int, total: int) -> None:

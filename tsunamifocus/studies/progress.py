@@ -7,7 +7,7 @@ import time
 from collections.abc import Callable
 from typing import Any
 
-from tqdm import tqdm
+from ..progressbar import progress_bar
 
 __all__ = ["StageProgress", "MemberProgress"]
 
@@ -46,8 +46,8 @@ class MemberProgress:
         self.t0 = time.perf_counter()
         self.cb = progress if callable(progress) else None
         self.bar = None
-        if progress is True:
-            self.bar = tqdm(total=total, file=sys.stderr, unit="member", desc="ensemble members", dynamic_ncols=True)
+        if progress is True:  # a bar on a terminal, a few plain lines in a log
+            self.bar = progress_bar(total, "ensemble members", unit="member", file=sys.stderr, dynamic_ncols=True)
 
     def update(self, failed: bool = False) -> None:
         self.done += 1

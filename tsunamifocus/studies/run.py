@@ -12,6 +12,7 @@ import logging
 import math
 import pathlib
 import sys
+import warnings
 from collections.abc import Sequence
 from dataclasses import dataclass, field
 from typing import Any
@@ -22,14 +23,16 @@ import xarray as xr
 from pyproj import CRS, Geod, Transformer
 
 from ..coast.coastline import coastline_from_grid
+from ..coast.region import CoastRegion, region_from_config
 from ..coast.segments import STATIC_SEGMENT_COLUMNS as _STATIC_COLUMNS
 from ..coast.segments import segment_coastline
 from ..constants import STOP_DEPTH_M
-from ..errors import HealthCheckError, ResourceLimitError
+from ..errors import CoastError, HealthCheckError, ResolutionWarning, ResourceLimitError
 from ..focusing.analysis import analyse_focusing
+from ..focusing.ranking import _add_ranks, rank_segments
 from ..grid import GridInfo
 from ..io.bathymetry import load_bathymetry
-from ..io.coastline import read_coastline
+from ..io.coastline import read_coastline, read_region_polygons
 from ..ocean.perturb import draw_member_parameters, perturb_bathymetry
 from ..ocean.smooth import smooth_bathymetry
 from ..propagation.rays import trace_rays
@@ -38,7 +41,9 @@ from ..source.rayfan import make_ray_fan
 from ..source.summary import summarize_source
 from ..source.uplift import uplift_on_grid
 from .ensemble import MemberResult, run_ensemble
+from .points import _sample_nearest_finite, points_table
 from .progress import StageProgress
+from .settings import Choice, choose_ray_count, choose_segment_km, with_choices
 
 __all__ = [
     'analyse_scenario','SourceAnalysis', 'RunResult', 'load_scenario_bathymetry', 'build_source', 'analyse_source', 'points_table', 'health_checks', 'arrival_times', 'ensemble_member']
@@ -162,9 +167,24 @@ class SourceAnalysis:
     timings: dict = field(default_factory=dict)
 
 
-def _segments_for(depth: xr.DataArray, scenario: Any):
-
+def coast_region(scenario: Any) -> CoastRegion:
+    """The scenario's coast of interest (``[coast] region`` box and ``region_file`` polygons)."""
     c = scenario.coast
+    polys = read_region_polygons(c.region_file) if getattr(c, "region_file", None) is not None else None
+    return region_from_config(getattr(c, "region", None), polys)
+
+
+def _segments_for(depth: xr.DataArray, scenario: Any) -> pd.DataFrame:
+    """Segments of the whole coastline, with a boolean ``in_region`` column (the coast of interest).
+
+    Every coast of the grid (or of the coastline file) is segmented so that rays ending on a
+    coast next to the region are assigned to their own segments rather than to the region's
+    edge segments; only the segments inside the region are ranked and reported.
+    ``attrs["coast_area"]`` holds the box (lon/lat) whose coast-reaching energy the coverage
+    warnings compare with (None: the whole grid).
+    """
+    c = scenario.coast
+    info = GridInfo.from_dataarray(depth)
     names = None
     if str(c.source) == "grid":
         lines = coastline_from_grid(depth, c.isobath_m)
@@ -174,7 +194,66 @@ def _segments_for(depth: xr.DataArray, scenario: Any):
             lines, names = got
         else:
             lines = got
-    return segment_coastline(lines, c.segment_km * 1000.0, depth, names=names)
+    km = c.segment_km if c.segment_km is not None else choose_segment_km(depth).value
+    seg = segment_coastline(lines, km * 1000.0, depth, names=names)
+    region = coast_region(scenario)
+    inside = region.contains_grid_xy(info, seg["x_mid"].to_numpy(float), seg["y_mid"].to_numpy(float))
+    if not inside.any():
+        raise CoastError(
+            f"[coast] region ({region.describe()}) holds none of the {len(seg)} coastline segments; expected a "
+            "box [lon_min, lat_min, lon_max, lat_max] around the coast of interest (lon_min > lon_max crosses "
+            "the antimeridian; -180..180 and 0..360 numbers both work)"
+        )
+    seg["in_region"] = inside
+    area = None
+    if not region.is_everything:
+        area = region
+    elif str(c.source) != "grid":
+        area = _lines_box(lines, info)
+    seg.attrs["coast_area"] = area
+    return seg
+
+
+def _lines_box(lines: Sequence[Any], info: GridInfo, cells: float = 5.0) -> CoastRegion:
+    """Lon/lat box around coastline lines, grown by a few grid cells (the coast a file describes)."""
+    xy = np.vstack([np.asarray(ln.coords, dtype=float)[:, :2] for ln in lines])
+    if info.geographic:
+        lon, lat = xy[:, 0], xy[:, 1]
+    else:
+        tr = Transformer.from_crs(info.crs, "EPSG:4326", always_xy=True)
+        lon, lat = (np.asarray(a, dtype=float) for a in tr.transform(xy[:, 0], xy[:, 1]))
+        lon = np.degrees(np.unwrap(np.radians(lon)))
+    grow_m = cells * max(info.spacing_m())
+    dlat = math.degrees(grow_m / info.radius_m)
+    lat0, lat1 = max(-90.0, float(lat.min()) - dlat), min(90.0, float(lat.max()) + dlat)
+    coslat = max(math.cos(math.radians(max(abs(lat0), abs(lat1)))), 0.05)
+    dlon = dlat / coslat
+    lon0, lon1 = float(lon.min()) - dlon, float(lon.max()) + dlon
+    if lon1 - lon0 >= 360.0:
+        lon0, lon1 = -180.0, 180.0
+    return CoastRegion(box=(lon0, lat0, lon1, lat1))
+
+
+def restrict_to_region(foc: Any, top_k: int) -> None:
+    """Keep only the segments of the coast of interest in ``foc`` (segments, ranks, ranking), in place."""
+    seg = foc.segments
+    if "in_region" not in seg:
+        return
+    attrs = dict(seg.attrs)
+    keep = seg["in_region"].to_numpy(bool)
+    out = seg[keep].drop(columns="in_region").reset_index(drop=True)
+    out.attrs = attrs
+    out.attrs["n_segments_all"] = int(len(seg))
+    out.attrs["energy_region_J"] = float(out["energy_J"].sum()) if "energy_J" in out else float("nan")
+    out = _add_ranks(out, bool(np.isfinite(out["lensing_factor"].to_numpy(float)).any()
+                               or "ref_n_rays" in out))
+    foc.segments = out
+    try:
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", ResolutionWarning)  # said once, in the summary
+            foc.ranking = rank_segments(out, top_k=top_k, by="lensing_factor")
+    except CoastError:  # no ray reached the region's segments: nothing to rank, the summary says so
+        foc.ranking = out.head(0).copy()
 
 
 def analyse_source(
@@ -221,16 +300,14 @@ def analyse_source(
     pr.start("source", f"source '{src_cfg.name}': Okada uplift and ray fan")
     src = build_source(src_cfg, p)
     eta = uplift_on_grid(src, depth)
-    count = int(n_rays or scenario.rays.count)
+    if segments is None:
+        segments = _segments_for(depth, scenario)
+    count = int(n_rays or scenario.rays.count or choose_ray_count(scenario, depth, segments).value)
     fan = make_ray_fan(eta, depth, count, seed=scenario.rays.seed,
                          azimuth_offset_deg=float(p.get("launch_jitter_deg", 0.0)))
     summary = summarize_source(src, eta, depth, fan)
     period = float(scenario.focusing.period_s or summary.period_s)
     pr.done(f"Mw {summary.mw:.2f}, E = {summary.energy_J:.3g} J, period {period / 60:.1f} min, {fan.n_rays} rays")
-    if segments is None:
-        pr.start("coast", "coastline segments")
-        segments = _segments_for(depth, scenario)
-        pr.done(f"{len(segments)} segments of ~{scenario.coast.segment_km:g} km")
     pr.start("trace", f"tracing {fan.n_rays} rays over real, reference and constant-depth oceans")
     kw = {"max_time_s": scenario.rays.max_time_h * 3600.0, "keep_paths": keep_paths}
     if threads is not None:
@@ -241,7 +318,10 @@ def analyse_source(
         depth, fan, period_s=period, reference_smooth_km=scenario.focusing.reference_smooth_km,
         stop_depth_m=scenario.rays.stop_depth_m, segments=segments, trace_kwargs=kw,
         min_rays=scenario.coast.min_rays, seed=scenario.rays.seed, top_k=scenario.output.top_k,
+        max_distance_m=getattr(scenario.coast, "max_distance_m", None),
+        coast_area=_area_mask(segments.attrs.get("coast_area"), depth),
     )
+    restrict_to_region(foc, scenario.output.top_k)
     foc.segments["edge_distance_km"] = _edge_distance_km(foc.segments, depth)
     if "segment_id" in foc.ranking:
         edge = dict(zip(foc.segments["segment_id"], foc.segments["edge_distance_km"]))
@@ -250,6 +330,14 @@ def analyse_source(
     pr.done(f"{st['n_steps'] / max(st['elapsed_s'], 1e-9) / 1e6:.1f} M ray-steps/s; reasons {st['reasons']}")
     return SourceAnalysis(name=src_cfg.name, source=src, eta=eta, fan=fan, summary=summary, focusing=foc,
                           period_s=period, outline=_source_outline(src, depth))
+
+
+def _area_mask(area: CoastRegion | None, depth: xr.DataArray):
+    """Mask function (grid x, y) -> bool of the coast of interest, or None for the whole grid."""
+    if area is None:
+        return None
+    info = GridInfo.from_dataarray(depth)
+    return lambda x, y: area.contains_grid_xy(info, x, y)
 
 
 def _edge_distance_km(seg: pd.DataFrame, depth: xr.DataArray) -> np.ndarray:
@@ -268,60 +356,6 @@ def _edge_distance_km(seg: pd.DataFrame, depth: xr.DataArray) -> np.ndarray:
         dx = np.minimum(x - x0, x1 - x) * k * np.cos(np.radians(y))
         return dy if info.periodic_x else np.minimum(dx, dy)
     return np.minimum(np.minimum(x - x0, x1 - x), np.minimum(y - y0, y1 - y)) / 1000.0
-
-
-def _sample_nearest_finite(da: xr.DataArray, x: float, y: float, max_cells: int = 6) -> tuple[float, float]:
-    """Value of the nearest finite cell to (x, y) within ``max_cells``, and its distance in cells."""
-    info = GridInfo.from_dataarray(da)
-    fi, fj = info.index_of(x, y)
-    i0, j0 = int(round(float(fi))), int(round(float(fj)))
-    v = da.values
-    best, bd = math.nan, math.inf
-    for dj in range(-max_cells, max_cells + 1):
-        for di in range(-max_cells, max_cells + 1):
-            j, i = j0 + dj, i0 + di
-            if info.periodic_x:
-                i %= info.nx
-            if 0 <= j < info.ny and 0 <= i < info.nx and np.isfinite(v[j, i]):
-                d = math.hypot(di, dj)
-                if d < bd:
-                    best, bd = float(v[j, i]), d
-    return best, bd
-
-
-def points_table(analysis: SourceAnalysis, points: Sequence[Any], depth: xr.DataArray) -> pd.DataFrame:
-    """Per point of interest: first arrival, lensing factor, indicative amplitude, nearest segment.
-
-    A point closer to shore than the stop isobath has no ray of its own; its values are those of
-    the nearest cell that rays reached (within 6 cells) and of the nearest coastline segment.
-    """
-    info = GridInfo.from_dataarray(depth)
-    foc = analysis.focusing
-    seg = foc.segments
-    to_grid = Transformer.from_crs("EPSG:4326", info.crs, always_xy=True)
-    rows = []
-    from shapely.geometry import Point
-
-    for p in points:
-        x, y = to_grid.transform(p.lon, p.lat)
-        t_min, dcell = _sample_nearest_finite(foc.travel_time_min, x, y)
-        lf, _ = _sample_nearest_finite(foc.lensing_factor, x, y)
-        dists = np.array([g.distance(Point(x, y)) for g in seg["geometry"]]) if len(seg) else np.array([])
-        k = int(np.argmin(dists)) if dists.size else -1
-        near = seg.iloc[k] if k >= 0 else None
-        first = t_min  # rays passed within 6 cells of the point: their earliest time
-        if not np.isfinite(first) and near is not None and np.isfinite(near.get("first_arrival_s", np.nan)):
-            first = near["first_arrival_s"] / 60.0  # inshore of the stop isobath: the nearest segment's
-        rows.append({
-            "name": p.name, "lon": p.lon, "lat": p.lat,
-            "first_arrival_min": first,
-            "lensing_factor": float(near["lensing_factor"]) if near is not None else lf,
-            "lensing_factor_map": lf,
-            "amp_1m_m": float(near["amp_1m_m"]) if near is not None else math.nan,
-            "nearest_segment": str(near["segment_id"]) if near is not None else "",
-            "segment_distance_km": float(dists[k] / 1000.0) if k >= 0 and not info.geographic else math.nan,
-        })
-    return pd.DataFrame(rows)
 
 
 def health_checks(analysis: SourceAnalysis, tolerance: float = BUDGET_TOLERANCE) -> dict:
@@ -455,6 +489,8 @@ class RunResult:
     ensemble: Any = None
     timings: dict = field(default_factory=dict)
     out_dir: pathlib.Path | None = None
+    #: How the settings the scenario left open were chosen (name -> :class:`~.settings.Choice`).
+    choices: dict = field(default_factory=dict)
 
     @property
     def analysis(self) -> SourceAnalysis:
@@ -592,21 +628,38 @@ def analyse_scenario(scenario: Any, *, rays: int | None = None, scheduler: Any =
     depth = load_scenario_bathymetry(scenario)
     info = GridInfo.from_dataarray(depth)
     pr.done(f"{info.ny} x {info.nx} cells, {'lon/lat sphere' if info.geographic else 'projected plane'}")
-    _guard_resources(depth, scenario, rays)
+    choices: dict[str, Choice] = {}
+    if scenario.coast.segment_km is None:
+        choices["segment_km"] = choose_segment_km(depth)
+    else:
+        choices["segment_km"] = Choice(scenario.coast.segment_km, "scenario")
+    scenario = with_choices(scenario, choices)
     pr.start("coast", "coastline segments")
     segments = _segments_for(depth, scenario)
-    pr.done(f"{len(segments)} segments of ~{scenario.coast.segment_km:g} km")
+    n_in = int(segments["in_region"].sum())
+    pr.done(f"{len(segments)} segments of ~{scenario.coast.segment_km:g} km"
+            + (f", {n_in} in the coast of interest" if n_in < len(segments) else ""))
+    if rays is not None:
+        choices["rays"] = Choice(int(rays), "override")
+    elif scenario.rays.count is not None:
+        choices["rays"] = Choice(int(scenario.rays.count), "scenario")
+    else:
+        region_segments = segments[segments["in_region"].to_numpy(bool)]
+        choices["rays"] = choose_ray_count(scenario, depth, region_segments)
+    # the effective scenario: what the manifest, scenario.toml and the appendix record
+    scenario = with_choices(scenario, choices)
+    _guard_resources(depth, scenario, None)
+    limit_km = getattr(scenario.coast, "point_max_distance_km", None)
     analyses, points, health = [], {}, {}
     for src_cfg in scenario.sources:
-        a = analyse_source(depth, scenario, src_cfg, segments=segments, n_rays=rays, progress=pr)
+        a = analyse_source(depth, scenario, src_cfg, segments=segments, progress=pr)
         analyses.append(a)
-        points[a.name] = points_table(a, scenario.points, depth)
+        points[a.name] = points_table(a, scenario.points, depth, max_distance_km=limit_km)
         health[a.name] = health_checks(a)
     ens = None
     if scenario.ensemble.members > 0:
         pr.start("ensemble", f"ensemble of {scenario.ensemble.members} members")
-        ens = run_scenario_ensemble(scenario, depth, segments, rays=rays, scheduler=scheduler,
-                                    progress=progress)
+        ens = run_scenario_ensemble(scenario, depth, segments, scheduler=scheduler, progress=progress)
         pr.done(f"{ens.n_members} members done, {len(ens.failures)} failed")
     return RunResult(scenario=scenario, depth=depth, analyses=analyses, points=points, health=health,
-                     ensemble=ens, timings=pr.timings)
+                     ensemble=ens, timings=pr.timings, choices=choices)
