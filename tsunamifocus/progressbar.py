@@ -34,6 +34,7 @@ class _PlainBar:
         self.t0 = time.perf_counter()
         self._next_quarter = 1
         self._closed = False
+        self._postfix = ""
         self._say(f"{desc}: 0/{self.total} {unit}")
 
     def _say(self, text: str) -> None:
@@ -46,11 +47,12 @@ class _PlainBar:
         while self._next_quarter <= 3 and self.n * 4 >= self._next_quarter * self.total:
             dt = time.perf_counter() - self.t0
             self._say(f"{self.desc}: {min(self.n, self.total)}/{self.total} {self.unit} "
-                      f"({25 * self._next_quarter} %, {dt:.0f} s)")
+                      f"({25 * self._next_quarter} %, {dt:.0f} s){self._postfix}")
             self._next_quarter += 1
 
-    def set_postfix(self, *_a: Any, **_k: Any) -> None:
-        """Accepted for tqdm compatibility; nothing is printed."""
+    def set_postfix(self, **kw: Any) -> None:
+        """Remember ``key=value`` notes (tqdm's postfix) for the next line printed."""
+        self._postfix = " (" + ", ".join(f"{k}={v}" for k, v in kw.items()) + ")" if kw else ""
 
     def set_postfix_str(self, *_a: Any, **_k: Any) -> None:
         """Accepted for tqdm compatibility; nothing is printed."""
@@ -63,7 +65,7 @@ class _PlainBar:
             return
         self._closed = True
         dt = time.perf_counter() - self.t0
-        self._say(f"{self.desc}: done, {self.n}/{self.total} {self.unit} in {dt:.0f} s")
+        self._say(f"{self.desc}: done, {self.n}/{self.total} {self.unit} in {dt:.0f} s{self._postfix}")
 
     def __enter__(self) -> _PlainBar:
         return self

@@ -494,6 +494,37 @@ def test_rays_far_from_a_partial_coastline_are_not_assigned():
     assert b["coast_unassigned_J"] == pytest.approx(0.67 * E_SRC, rel=0.01)
 
 
+def test_coverage_warnings_fire_only_when_true():
+    # The same partial coastline file. (1) Energy reaching the coast north of the file's stretch is
+    # another coast, not energy missing from this one: with coast_area = the file's stretch no
+    # warning. (2) A reference run identical to the real run (the low-pass moved nothing) must not
+    # be blamed on the low-pass, whatever the coastline covers. (3) True case: the coastline lies
+    # 14 km seaward of where the rays end (north of y = 6 km), beyond max_distance_m = 5 km: only rays
+    # with y < 11 km are assigned, 25 of the 36 km of coast in the area are off: the warning fires.
+    from shapely.geometry import LineString
+
+    d = shelf()
+    r = plane_wave(d, 1000, 0.0, 100e3)
+    line = LineString([(139.2e3, 0.0), (139.2e3, 30e3)])
+    seg = segment_coastline([line], 10e3, d)
+    with warnings.catch_warnings(record=True) as got:
+        warnings.simplefilter("always")
+        tab = segment_arrivals(seg, r, d, period_s=T, ref_result=r, coast_area=lambda x, y: y <= 36e3)
+    assert not [w for w in got if issubclass(w.category, ResolutionWarning)], [str(w.message) for w in got]
+    assert tab["energy_per_m"].iloc[0] == pytest.approx(E_SRC / 100e3, rel=0.01)
+    assert tab.attrs["energy_area_coast_J"] == pytest.approx(0.36 * E_SRC, rel=0.02)
+    with warnings.catch_warnings(record=True) as got:
+        warnings.simplefilter("always")
+        segment_arrivals(seg, r, d, period_s=T, ref_result=r)
+    msgs = [str(w.message) for w in got if issubclass(w.category, ResolutionWarning)]
+    assert not any("low-pass" in m for m in msgs), msgs  # (2)
+    assert any("max_distance_m" in m for m in msgs)  # whole grid as the coast of interest: 64 % off
+    off = segment_coastline([LineString([(139.2e3, 0.0), (139.2e3, 6e3)]),
+                             LineString([(125.2e3, 6e3), (125.2e3, 30e3)])], 6e3, d)
+    with pytest.warns(ResolutionWarning, match=r"69 % of the energy reaching the stop isobath on the coast of"):
+        segment_arrivals(off, r, d, period_s=T, max_distance_m=5e3, coast_area=lambda x, y: y <= 36e3)
+
+
 # --------------------------------------------------------------------------------------
 # one-call analysis
 # --------------------------------------------------------------------------------------

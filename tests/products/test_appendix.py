@@ -388,3 +388,59 @@ def test_empty_names_column_is_left_out(figs):
     seg.loc[seg.index[0], "name"] = "Harbour mouth"
     cols, _, _ = report._ranking_table(seg, len(seg), [])
     assert "Name" in cols
+
+
+def test_intervals_never_print_an_empty_bound(figs):
+    # an unbounded bootstrap interval (reference energy 0 in some replicates) reads "0 to ∞", never
+    # "21.3 (0––)"; an unknown bound drops the interval (common practice, no source)
+    ctx = base_context(figs)
+    seg = ctx["ranking"].copy()
+    seg["lensing_factor"] = [21.3] + [1.0] * (len(seg) - 1)
+    seg["lensing_lo"] = [0.0] + [0.5] * (len(seg) - 1)
+    seg["lensing_hi"] = [np.inf] + [np.nan] + [2.0] * (len(seg) - 2)
+    seg["rank_lensing"] = pd.array(list(range(1, len(seg) + 1)), dtype="Int64")
+    cols, rows, _ = report._ranking_table(seg, 3, [])
+    j = cols.index("Lensing factor (5–95 %)")
+    assert rows[0][j] == "21.3 (0 to ∞)"
+    assert rows[1][j] == "1"
+    assert rows[2][j] == "1 (0.5–2)"
+    assert not any("––" in c or "(–" in c or "–)" in c for r in rows for c in r)
+
+
+def test_ranking_text_counts_what_the_table_shows(figs):
+    ctx = base_context(figs)
+    seg = ctx["ranking"].copy()
+    n = len(seg)
+    seg["reliable"] = [True] * 4 + [False] * (n - 4)
+    seg["rank_lensing"] = pd.array([1, 2, 3, 4] + [pd.NA] * (n - 4), dtype="Int64")
+    ctx["ranking"], ctx["top_k"] = seg, 6
+    _, blocks = report.document_blocks(ctx)
+    i = next(k for k, b in enumerate(blocks) if b["kind"] == "h2" and "Ranked" in b["text"])
+    text = blocks[i + 1]["text"]
+    assert text.startswith(f"The 4 highest-ranked of {n} coastline segments") and "followed by 2 segments" in text
+    seg["reliable"] = False
+    seg["rank_lensing"] = pd.array([pd.NA] * n, dtype="Int64")
+    _, blocks = report.document_blocks(ctx)
+    text = blocks[i + 1]["text"]
+    assert text.startswith(f"No segment of the {n} coastline segments is reliable") and "6 highest" in text
+
+
+@pytest.mark.slow
+def test_headings_start_on_the_page_of_what_follows(figs, tmp_path):
+    # keep-with-next (common practice of typesetting, no source): a heading never ends a page. The
+    # description's length shifts every later block down the pages; tables with wrapping cells follow
+    # headings, the case where a rough height estimate used to leave the heading behind.
+    ctx = base_context(figs)
+    long_note = "nearest coastline segment far away; no sea cell reached by rays nearby (limit 33 km) " * 2
+    pts = pd.DataFrame({"name": [f"Harbour {i}" for i in range(14)], "lon": np.linspace(150, 151, 14),
+                        "lat": -39.0, "first_arrival_min": 40.0, "note": long_note})
+    ctx["points"] = pts
+    stranded = []
+    for k in range(0, 40, 5):
+        ctx["scenario"] = dict(ctx["scenario"], description="Synthetic inputs. " + "More words here. " * (12 * k))
+        res = report.build_appendix(ctx, tmp_path / f"k{k}.html", tmp_path / f"k{k}.pdf")
+        pages = res["pdf_block_pages"]
+        for (kind, text, pg), nxt in zip(pages, pages[1:]):
+            if kind in ("h2", "h3") and nxt[2] != pg:
+                stranded.append((k, text, pg, nxt[0]))
+    assert not stranded, stranded

@@ -291,6 +291,36 @@ def test_ranking_chart_hatches_unreliable(case, tmp_path):
     assert blue > 2000 and grey > 200
 
 
+def test_ranking_axis_is_set_by_the_reliable_bars(case, tmp_path, monkeypatch):
+    # reliable lensing factors of 1-2 and two unreliable ones of 59.6 and 30 (few rays): the axis must
+    # show the reliable bars readably (common practice, no source: an axis is scaled to the data it is
+    # meant to show); the unreliable ones are clipped at the edge and their values still printed
+    seg = case["segments"].head(8).copy()
+    seg["lensing_factor"] = [59.6, 30.0, 2.0, 1.8, 1.6, 1.4, 1.2, 1.0]
+    seg["lensing_lo"] = seg["lensing_factor"] * 0.8
+    seg["lensing_hi"] = seg["lensing_factor"] * 1.2
+    seg.loc[seg.index[3], "lensing_hi"] = np.inf  # an unbounded interval must not set the axis either
+    seg["reliable"] = [False, False] + [True] * 6
+    seg["rank_lensing"] = pd.array([pd.NA, pd.NA, 1, 2, 3, 4, 5, 6], dtype="Int64")
+    seen = {}
+    orig = figures._finish
+
+    def spy(fig, out_path, **kw):
+        ax = kw["ax"]
+        seen["xlim"] = ax.get_xlim()
+        seen["texts"] = [t.get_text() for t in ax.texts]
+        seen["labels"] = [t.get_text() for t in ax.get_yticklabels()]
+        return orig(fig, out_path, **kw)
+
+    monkeypatch.setattr(figures, "_finish", spy)
+    check_png(figures.plot_ranking(seg, 8, out_path=tmp_path / "r.png"), min_w=800, min_h=300)
+    assert seen["xlim"][1] < 3.0  # 2.0 * 1.2 (largest reliable whisker) plus a margin, not 59.6
+    assert any(t.startswith("59.6") for t in seen["texts"]) and any(t.startswith("30") for t in seen["texts"])
+    # ranks only for ranked (reliable) segments, unranked shown with "-"
+    assert sum(lab.startswith("- ") for lab in seen["labels"]) == 2
+    assert sorted(lab.split(".")[0] for lab in seen["labels"] if not lab.startswith("- ")) == list("123456")
+
+
 def test_ranking_orders_by_rank_column(case):
     seg = case["segments"]
     ordered = figures._rank_order(seg, "lensing_factor", "rank_lensing")

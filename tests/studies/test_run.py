@@ -378,3 +378,28 @@ def test_edge_distance_of_segments(demo_run):
     ring = box(*b).exterior
     ref = np.array([ring.distance(Point(x, y)) / 1000.0 for x, y in zip(seg["x_mid"], seg["y_mid"])])
     np.testing.assert_allclose(seg["edge_distance_km"].to_numpy(dtype=float), ref, rtol=1e-9, atol=1e-9)
+
+
+def test_rays_override_recorded_and_no_reliable_segment_said_plainly(tmp_path, capsys):
+    """``--rays`` is recorded where a rerun reads it (manifest, scenario.toml, appendix); a run with
+    no reliable segment says so instead of an empty list."""
+    from tsunamifocus.cli.app import main
+    from tsunamifocus.io.manifest import scenario_from_manifest
+
+    sc = _small(parse_scenario(demo_inputs(tmp_path / "in")), rays=6000, members=0)
+    sc = dataclasses.replace(sc, coast=dataclasses.replace(sc.coast, min_rays=100000),
+                             output=dataclasses.replace(sc.output, folder=tmp_path / "out"))
+    p = tmp_path / "s.toml"
+    p.write_text(sc.to_toml(), encoding="utf-8")
+    assert main(["run", str(p), "--rays", "400"]) == 0
+    err = capsys.readouterr().err
+    out = tmp_path / "out"
+    m = json.loads((out / "manifest.json").read_text())
+    assert m["parameters"]["rays"]["count"] == 400
+    assert m["extra"]["settings_chosen"]["rays"] == {"value": 400, "origin": "override", "why": ""}
+    assert parse_scenario(out / "scenario.toml").rays.count == 400
+    assert scenario_from_manifest(out / "manifest.json").rays.count == 400  # a rerun repeats the run
+    assert "400 (command-line override)" in (out / "appendix.html").read_text(encoding="utf-8")
+    assert "ray count per source: 400 rays (command-line override)" in err
+    assert "no reliable segment: none of the" in err and "top 5 hotspots" not in err
+    assert "No segment of the" in (out / "appendix.html").read_text(encoding="utf-8")

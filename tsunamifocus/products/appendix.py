@@ -539,7 +539,13 @@ def _ranking_table(
         ranks = df["rank_lensing"].tolist()
     else:
         df = df.sort_values("lensing_factor", ascending=False, na_position="last")
-        ranks = list(range(1, len(df) + 1))
+        # no rank column: rank by value, but never rank a segment flagged unreliable
+        rel = df["reliable"].tolist() if "reliable" in df.columns else [True] * len(df)
+        ranks, k = [], 0
+        for ok in rel:
+            good = not pd.isna(ok) and bool(ok)
+            k += int(good)
+            ranks.append(k if good else math.nan)
     df = df.head(top_k)
     ranks = ranks[: len(df)]
     cols = ["Rank"]

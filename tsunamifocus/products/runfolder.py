@@ -114,9 +114,9 @@ def _ranking_title(seg: pd.DataFrame, top_k: int) -> str:
     n_rel = min(top_k, int((rel & np.isfinite(v)).sum()))
     n_unrel = min(top_k - n_rel, int((~rel & np.isfinite(v)).sum()))
     if n_rel == 0:
-        return f"No reliable segment: the {n_unrel} highest lensing factors, all unreliable (not ranked)"
+        return f"No reliable segment: the {n_unrel} highest lensing factors\n(all unreliable, not ranked)"
     return (f"Top {n_rel} ranked coastline segments by lensing factor"
-            + (f" + {n_unrel} unreliable (hatched)" if n_unrel else ""))
+            + (f"\nand {n_unrel} unreliable (hatched, not ranked)" if n_unrel else ""))
 
 
 def _with_ensemble_intervals(seg: pd.DataFrame, ens: pd.DataFrame) -> pd.DataFrame:
