@@ -56,3 +56,27 @@ def test_region_on_projected_grid_uses_pyproj():
     got = r.contains_grid_xy(info, X, Y)
     assert expect.any() and (~expect).any()
     np.testing.assert_array_equal(got, expect)
+
+
+def test_region_polygon_file_across_the_antimeridian(tmp_path):
+    # RFC 7946 GeoJSON (WGS84 lon/lat): a polygon written in 0..360 numbers around 180 E, read with
+    # pyogrio; points given in -180..180 numbers are tested against it modulo 360
+    import json
+
+    from tsunamifocus.io.coastline import read_region_polygons
+
+    p = tmp_path / "region.geojson"
+    ring = [[170.0, -50.0], [190.0, -50.0], [190.0, -30.0], [170.0, -30.0], [170.0, -50.0]]
+    p.write_text(json.dumps({"type": "FeatureCollection", "features": [
+        {"type": "Feature", "properties": {}, "geometry": {"type": "Polygon", "coordinates": [ring]}}]}))
+    r = CoastRegion(polygons=read_region_polygons(p))
+    assert r.contains_lonlat(-175.0, -40.0) and r.contains_lonlat(175.0, -40.0)
+    assert not r.contains_lonlat(-165.0, -40.0) and not r.contains_lonlat(175.0, -20.0)
+    lines = tmp_path / "lines.geojson"
+    lines.write_text(json.dumps({"type": "FeatureCollection", "features": [
+        {"type": "Feature", "properties": {}, "geometry": {"type": "LineString", "coordinates": ring}}]}))
+    with pytest.raises(CoastError, match=r"lines\.geojson: no Polygon or MultiPolygon features") as ei:
+        read_region_polygons(lines)
+    assert "\n" not in str(ei.value)
+    with pytest.raises(CoastError, match="does not exist"):
+        read_region_polygons(tmp_path / "missing.geojson")

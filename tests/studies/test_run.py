@@ -403,3 +403,22 @@ def test_rays_override_recorded_and_no_reliable_segment_said_plainly(tmp_path, c
     assert "ray count per source: 400 rays (command-line override)" in err
     assert "no reliable segment: none of the" in err and "top 5 hotspots" not in err
     assert "No segment of the" in (out / "appendix.html").read_text(encoding="utf-8")
+
+
+def test_scenario_max_distance_and_region_reach_the_analysis(tmp_path):
+    """``[coast] max_distance_m`` is the distance used to assign rays, and ``region`` keeps only the
+    segments whose midpoints lie in the box (checked against the box itself)."""
+    from tsunamifocus.studies.run import analyse_scenario
+
+    sc = _small(parse_scenario(demo_inputs(tmp_path / "in")), rays=1500, members=0)
+    full = analyse_scenario(sc, progress=False).analysis.focusing.segments
+    lat = full["lat_mid"].to_numpy(float)
+    box = (-180.0, float(np.quantile(lat, 0.3)), 180.0, float(np.quantile(lat, 0.7)))
+    sc2 = dataclasses.replace(sc, coast=dataclasses.replace(sc.coast, max_distance_m=7000.0, region=box))
+    res = analyse_scenario(sc2, progress=False)
+    seg = res.analysis.focusing.segments
+    assert seg.attrs["max_distance_m"] == 7000.0
+    inside = (full["lat_mid"] >= box[1]) & (full["lat_mid"] <= box[3])
+    assert list(seg["segment_id"]) == list(full.loc[inside, "segment_id"])
+    rk = res.analysis.focusing.ranking
+    assert set(rk["segment_id"]) <= set(seg["segment_id"])
