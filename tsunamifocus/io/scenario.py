@@ -585,7 +585,7 @@ def scenario_schema() -> dict[str, list[dict[str, Any]]]:
 
 _DOC_TYPES = {"float": "number", "int": "integer", "str": "string", "path": "path", "choice": "string",
               "box": "array of 4 numbers", "trace": "array of 2 [lon, lat]", "bool": "boolean",
-              "coastfrom": "string or path", "scheduler": "string"}
+              "coastfrom": "string or path", "scheduler": "string", "region": "array of 4 numbers"}
 
 
 def _doc_default(k: _Key) -> str:
