@@ -422,3 +422,27 @@ def test_scenario_max_distance_and_region_reach_the_analysis(tmp_path):
     assert list(seg["segment_id"]) == list(full.loc[inside, "segment_id"])
     rk = res.analysis.focusing.ranking
     assert set(rk["segment_id"]) <= set(seg["segment_id"])
+
+
+def test_coastline_file_sets_the_coast_whose_energy_the_warnings_count(tmp_path):
+    """With a coastline file and no region, the coverage warnings compare with the energy reaching
+    the file's stretch of coast (its bounding box grown by 5 cells), not every coast of the grid."""
+    from tsunamifocus.grid import make_grid
+    from tsunamifocus.studies.run import _segments_for
+
+    lon = np.arange(225.0, 240.0 + 1e-9, 0.1)
+    lat = np.arange(30.0, 50.0 + 1e-9, 0.1)
+    d = make_grid(np.where(lon[None, :] < 235.5, 3000.0, -100.0) * np.ones((lat.size, 1)), lon, lat, "EPSG:4326")
+    coast = tmp_path / "coast.geojson"  # RFC 7946: WGS84, written in -180..180 numbers
+    coast.write_text(json.dumps({"type": "FeatureCollection", "features": [{"type": "Feature", "properties": {},
+                     "geometry": {"type": "LineString", "coordinates": [[-124.5, 40.0], [-124.5, 42.0]]}}]}))
+    p = tmp_path / "s.toml"
+    p.write_text(f'[bathymetry]\npath = "g.nc"\n[[source]]\nname = "p"\nkind = "point"\nlon = 230\nlat = 40\n'
+                 f'[coast]\nfrom = "{coast}"\nsegment_km = 20\n')
+    seg = _segments_for(d, parse_scenario(p))
+    area = seg.attrs["coast_area"]
+    assert area is not None and seg["in_region"].all()
+    # 5 cells of 0.1 deg of latitude (11.1 km) beyond the line's ends, in either longitude numbering
+    assert area.contains_lonlat(235.5, 41.0) and area.contains_lonlat(-124.5, 42.45)
+    assert not area.contains_lonlat(235.5, 42.7) and not area.contains_lonlat(235.5, 45.0)
+    assert not area.contains_lonlat(230.0, 41.0)
