@@ -50,7 +50,7 @@ from ..cautions import caution_summary, caution_text
 from ..constants import GRAVITY, STOP_DEPTH_M
 from ..errors import InputError, ResolutionWarning, ResourceLimitError
 from ..grid import GridInfo
-from ..progressbar import progress_bar
+from ..io.progress import progress_bar
 from . import _wavekernel as _k
 
 __all__ = ['WaveResult', 'simulate_linear_long_wave', 'wave_time_step', 'WAVE_CAUTION', 'WAVE_LIMITS']

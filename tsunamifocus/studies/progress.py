@@ -7,7 +7,7 @@ import time
 from collections.abc import Callable
 from typing import Any
 
-from ..progressbar import progress_bar
+from ..io.progress import progress_bar
 
 __all__ = ["StageProgress", "MemberProgress"]
 

@@ -1,4 +1,4 @@
-"""Progress bars that behave in logs: a tqdm bar on a terminal, a few plain lines otherwise.
+"""Progress bars on stderr that behave in logs: a tqdm bar on a terminal, a few plain lines otherwise.
 
 A redrawn bar written to a file or pipe leaves hundreds of carriage-return updates in the log.
 :func:`progress_bar` therefore draws tqdm only when the stream is a terminal and otherwise

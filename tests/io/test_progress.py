@@ -1,4 +1,4 @@
-"""Tests of tsunamifocus.progressbar: bars on a terminal, a few plain lines in a redirected log.
+"""Tests of tsunamifocus.io.progress: bars on a terminal, a few plain lines in a redirected log.
 
 Reference: a terminal is what ``isatty()`` says (Python io, POSIX isatty); a redrawn bar writes
 carriage returns, which a log file shows as one endless line (common practice, no source).
@@ -8,7 +8,7 @@ from __future__ import annotations
 
 import io
 
-from tsunamifocus.progressbar import PLAIN_LINES, progress_bar
+from tsunamifocus.io.progress import PLAIN_LINES, progress_bar
 from tsunamifocus.propagation import wave
 
 
