@@ -446,3 +446,22 @@ def test_coastline_file_sets_the_coast_whose_energy_the_warnings_count(tmp_path)
     assert area.contains_lonlat(235.5, 41.0) and area.contains_lonlat(-124.5, 42.45)
     assert not area.contains_lonlat(235.5, 42.7) and not area.contains_lonlat(235.5, 45.0)
     assert not area.contains_lonlat(230.0, 41.0)
+
+
+def test_region_without_coast_is_a_one_line_error(tmp_path):
+    import dataclasses as dc
+
+    from tsunamifocus.errors import CoastError
+    from tsunamifocus.grid import make_grid
+    from tsunamifocus.studies.run import _segments_for
+
+    lon = np.arange(225.0, 240.0 + 1e-9, 0.1)
+    lat = np.arange(30.0, 50.0 + 1e-9, 0.1)
+    d = make_grid(np.where(lon[None, :] < 235.5, 3000.0, -100.0) * np.ones((lat.size, 1)), lon, lat, "EPSG:4326")
+    p = tmp_path / "s.toml"
+    p.write_text('[bathymetry]\npath = "g.nc"\n[[source]]\nname = "p"\nkind = "point"\nlon = 230\nlat = 40\n'
+                 "[coast]\nregion = [140, 30, 145, 40]\n")
+    sc = parse_scenario(p)
+    with pytest.raises(CoastError, match=r"\[coast\] region \(lon 140\.\.145, lat 30\.\.40\) holds none of the") as ei:
+        _segments_for(d, dc.replace(sc, coast=dc.replace(sc.coast, segment_km=20.0)))
+    assert "\n" not in str(ei.value)
