@@ -27,6 +27,15 @@ def test_redirected_stream_gets_a_few_plain_lines():
     assert "\r" not in text
     lines = text.strip().splitlines()
     assert 2 <= len(lines) <= PLAIN_LINES and lines[-1].startswith("wave solver: done, 1000/1000 step")
+    assert "250/1000 step (25 %" in text
+    # the percentage printed is the fraction done (2 of 6 is 33 %), one line per update
+    buf = io.StringIO()
+    bar = progress_bar(6, "members", unit="member", file=buf)
+    bar.update(2)
+    bar.update(3)
+    bar.close()
+    assert len(buf.getvalue().splitlines()) == 4  # start, two updates, done
+    assert "2/6 member (33 %" in buf.getvalue() and "5/6 member (83 %" in buf.getvalue()
 
 
 def test_terminal_gets_a_redrawn_bar():

@@ -44,11 +44,13 @@ class _PlainBar:
         self.n += int(k)
         if self.total <= 0:
             return
-        while self._next_quarter <= 3 and self.n * 4 >= self._next_quarter * self.total:
+        if self._next_quarter <= 3 and self.n * 4 >= self._next_quarter * self.total:
+            while self._next_quarter <= 3 and self.n * 4 >= self._next_quarter * self.total:
+                self._next_quarter += 1  # one line per update, however many quarters it crossed
             dt = time.perf_counter() - self.t0
-            self._say(f"{self.desc}: {min(self.n, self.total)}/{self.total} {self.unit} "
-                      f"({25 * self._next_quarter} %, {dt:.0f} s){self._postfix}")
-            self._next_quarter += 1
+            done = min(self.n, self.total)
+            self._say(f"{self.desc}: {done}/{self.total} {self.unit} "
+                      f"({100 * done // self.total} %, {dt:.0f} s){self._postfix}")
 
     def set_postfix(self, **kw: Any) -> None:
         """Remember ``key=value`` notes (tqdm's postfix) for the next line printed."""

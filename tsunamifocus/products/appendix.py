@@ -539,7 +539,13 @@ def _ranking_table(
         ranks = df["rank_lensing"].tolist()
     else:
         df = df.sort_values("lensing_factor", ascending=False, na_position="last")
-        ranks = list(range(1, len(df) + 1))
+        # no rank column: rank by value, but never rank a segment flagged unreliable
+        rel = df["reliable"].tolist() if "reliable" in df.columns else [True] * len(df)
+        ranks, k = [], 0
+        for ok in rel:
+            good = not pd.isna(ok) and bool(ok)
+            k += int(good)
+            ranks.append(k if good else math.nan)
     df = df.head(top_k)
     ranks = ranks[: len(df)]
     cols = ["Rank"]
@@ -563,11 +569,11 @@ def _ranking_table(
             if key == "lensing_factor":
                 s = _fmt3(v)
                 if "lensing_lo" in df.columns and "lensing_hi" in df.columns:
-                    s += f" ({_fmt3(r['lensing_lo'])}–{_fmt3(r['lensing_hi'])})"
+                    s += _interval(r["lensing_lo"], r["lensing_hi"])
             elif key == "amp_1m_m":
                 s = _fmt3(v)
                 if "amp_lo" in df.columns and "amp_hi" in df.columns:
-                    s += f" ({_fmt3(r['amp_lo'])}–{_fmt3(r['amp_hi'])})"
+                    s += _interval(r["amp_lo"], r["amp_hi"])
             elif key == "first_arrival_s":
                 s = f"{_num(v) / 60.0:.1f}" if math.isfinite(_num(v)) else "–"
             elif key == "length_m":
@@ -579,6 +585,20 @@ def _ranking_table(
             row.append(s)
         rows.append(row)
     return cols, rows, len(df)
+
+
+def _interval(lo: Any, hi: Any) -> str:
+    """`` (0.8–2.1)``; `` (0.8 to ∞)`` for an unbounded side; nothing when a bound is unknown."""
+    a, b = _num(lo), _num(hi)
+    if math.isnan(a) or math.isnan(b):
+        return ""
+    if math.isinf(a) or math.isinf(b):
+        return f" ({_fmt_bound(a)} to {_fmt_bound(b)})"
+    return f" ({_fmt3(a)}–{_fmt3(b)})"
+
+
+def _fmt_bound(x: float) -> str:
+    return ("∞" if x > 0 else "−∞") if math.isinf(x) else _fmt3(x)
 
 
 def _health_table(health: Any) -> tuple[list[str], list[list[str]]]:
@@ -828,15 +848,19 @@ def _ranking_blocks(context: Mapping[str, Any], top_k: int) -> list[_Block]:
     blocks: list[_Block] = []
     cols, rows, shown = _ranking_table(context["ranking"], top_k, context.get("ranking_columns") or [])
     nseg = len(context["ranking"])
-    blocks.append(
-        _b(
-            "p",
-            text=f"The {shown} highest-ranked of {nseg} coastline segments by lensing factor, with 5–95 % "
-            "intervals where available. Segments flagged unreliable (too few contributing rays) carry "
-            "no rank and are listed after the ranked ones when their value would place them among "
-            "them: read them as a prompt for a finer run, not as a result.",
-        )
-    )
+    n_ranked = sum(1 for r in rows if r[0] != "–")
+    n_unrel = shown - n_ranked
+    if n_ranked == 0:
+        lead = (f"No segment of the {nseg} coastline segments is reliable (each has too few contributing rays), "
+                f"so there is no ranking. The table lists the {n_unrel} highest lensing factors, all unreliable: "
+                "read them as a prompt for a run with more rays or longer segments, not as a result.")
+    else:
+        lead = (f"The {n_ranked} highest-ranked of {nseg} coastline segments by lensing factor, with 5–95 % "
+                "intervals where available"
+                + (f", followed by {n_unrel} segment{'s' if n_unrel != 1 else ''} flagged unreliable (too few "
+                   "contributing rays) whose value would place them among the ranked ones; unreliable segments "
+                   "carry no rank: read them as a prompt for a finer run, not as a result." if n_unrel else "."))
+    blocks.append(_b("p", text=lead))
     blocks.append(_b("table", columns=cols, rows=rows, caption="Ranked coastline segments", small=True))
     return blocks
 
@@ -1066,7 +1090,8 @@ def _png_size(path: pathlib.Path) -> tuple[int, int]:
 
 
 def _render_pdf(
-    meta: Mapping[str, str], blocks: list[_Block], out_pdf: pathlib.Path, *, compress: bool = True
+    meta: Mapping[str, str], blocks: list[_Block], out_pdf: pathlib.Path, *, compress: bool = True,
+    block_pages: list[int] | None = None,
 ) -> int:
     from fpdf.fonts import FontFace  # fpdf2 is needed only for the PDF: imported when one is written
 
@@ -1075,16 +1100,22 @@ def _render_pdf(
     T = (lambda s: str(s)) if fonts else _latin1  # noqa: E731
     pdf = _pdf_document(meta, fonts, fam, T, compress)
     _pdf_title_block(pdf, fam, T, meta)
+    starts = block_pages if block_pages is not None else []
     for bi, b in enumerate(blocks):
         k = b["kind"]
+        start = pdf.page
         if k == "caution":
             _pdf_caution_box(pdf, fam, T, b)
         elif k == "table":
-            _pdf_table(pdf, fam, T, b, FontFace)
+            start = _pdf_table(pdf, fam, T, b, FontFace)
         elif k == "figure":
             _pdf_figure(pdf, fam, T, b)
+            start = pdf.page  # a figure never spans pages: it starts where it ends
         else:
-            _pdf_text_block(pdf, fam, T, b, functools.partial(_pdf_next_height, pdf, blocks, bi))
+            _pdf_text_block(pdf, fam, T, b, functools.partial(_pdf_next_height, pdf, fam, T, blocks, bi))
+            if k in ("h2", "h3"):  # one line, drawn after any page break it asked for
+                start = pdf.page
+        starts.append(start)
     tmp = out_pdf.with_name(f".{out_pdf.name}.part")
     try:
         pdf.output(str(tmp))
@@ -1198,19 +1229,20 @@ def _pdf_fig_size(pdf, b: Mapping[str, Any]) -> tuple[float, float]:
     return w_mm, h_mm
 
 
-def _pdf_next_height(pdf, blocks: list[_Block], i: int) -> float:
-    """Rough height of the block after a heading (to keep headings with their content)."""
+def _pdf_next_height(pdf, fam: str, T, blocks: list[_Block], i: int) -> float:
+    """Height the block after a heading demands on this page before it starts (keep-with-next)."""
     if i + 1 >= len(blocks):
         return 0.0
     nb = blocks[i + 1]
-    if nb["kind"] == "figure":
-        return 0.7 * _pdf_fig_size(pdf, nb)[1]
+    if nb["kind"] == "figure":  # _pdf_figure stays on the page when 85 % of it and its caption fit
+        pdf.set_font(fam, "", 8.5)
+        cap_lines = (len(pdf.multi_cell(pdf.epw, 4.2, T(nb["caption"]), dry_run=True, output="LINES"))
+                     if nb["caption"] else 0)
+        return 0.85 * _pdf_fig_size(pdf, nb)[1] + cap_lines * 4.2 + 4 + 1.0
     if nb["kind"] == "table":
-        size = 7.2 if nb.get("small") else 8.2
-        est = (len(nb["rows"]) + 1) * (size * 0.5 + 2.2) + 4
-        return est if est < 110 else 14.0
+        return _table_need(pdf, fam, T, nb) + 1.0
     if nb["kind"] in ("h3",):
-        return 8.0 + _pdf_next_height(pdf, blocks, i + 1)
+        return 8.0 + _pdf_next_height(pdf, fam, T, blocks, i + 1)
     return 12.0
 
 
@@ -1332,11 +1364,12 @@ def _pdf_figure(pdf, fam: str, T, b: Mapping[str, Any]) -> None:
     pdf.ln(3)
 
 
-def _pdf_table(pdf, fam: str, T, b: Mapping[str, Any], FontFace) -> None:
+def _table_layout(pdf, fam: str, T, b: Mapping[str, Any]):
+    """Column widths and the estimated height of a table block (None for a table without columns)."""
     cols = [T(c) for c in b["columns"]]
     rows = [[T(c) for c in r] for r in b["rows"]]
     if not cols:
-        return
+        return None
     size = 7.2 if b.get("small") else 8.2
     pdf.set_font(fam, "", size)
     # column widths: never narrower than the longest word, as wide as the content if it fits
@@ -1385,10 +1418,29 @@ def _pdf_table(pdf, fam: str, T, b: Mapping[str, Any], FontFace) -> None:
         return n * size * 0.5 + 1.8
 
     est = _row_h(cols) + sum(_row_h(r) for r in rows) + 4 + (5 if b.get("caption") else 0)
+    return cols, rows, size, widths, width, epw, est
+
+
+def _table_need(pdf, fam: str, T, b: Mapping[str, Any]) -> float:
+    """Height [mm] a table block needs on the current page before it starts (see :func:`_pdf_table`)."""
+    lay = _table_layout(pdf, fam, T, b)
+    if lay is None:
+        return 0.0
+    est = lay[-1]
+    return est if est < 110 else 18.0
+
+
+def _pdf_table(pdf, fam: str, T, b: Mapping[str, Any], FontFace) -> int:
+    """Draw a table block; returns the page it starts on."""
+    lay = _table_layout(pdf, fam, T, b)
+    if lay is None:
+        return pdf.page
+    cols, rows, size, widths, width, epw, est = lay
     if est < 110 and pdf.get_y() + est > pdf.page_break_trigger:
         pdf.add_page()
     elif pdf.get_y() + 18 > pdf.page_break_trigger:
         pdf.add_page()
+    start = pdf.page
     if b.get("caption"):
         pdf.set_font(fam, "B", 8.5)
         pdf.cell(epw, 5, T(b["caption"]), new_x="LMARGIN", new_y="NEXT")
@@ -1415,6 +1467,7 @@ def _pdf_table(pdf, fam: str, T, b: Mapping[str, Any], FontFace) -> None:
             for j in range(len(cols)):
                 row.cell(r[j] if j < len(r) else "")
     pdf.ln(3)
+    return start
 
 
 # --------------------------------------------------------------------------------------
@@ -1445,7 +1498,8 @@ def build_appendix(
     Returns
     -------
     dict
-        ``{"html": Path, "pdf": Path | None, "pdf_pages": int | None, "sections": [str]}``.
+        ``{"html": Path, "pdf": Path | None, "pdf_pages": int | None, "sections": [str]}``, and with
+        a PDF ``"pdf_block_pages"``: ``(kind, text, page)`` of every document block.
 
     Raises
     ------
@@ -1471,9 +1525,14 @@ def build_appendix(
     if out_pdf is not None:
         pdf_path = pathlib.Path(out_pdf)
         pdf_path.parent.mkdir(parents=True, exist_ok=True)
-        pages = _render_pdf(meta, blocks, pdf_path, compress=_compress_pdf)
+        starts: list[int] = []
+        pages = _render_pdf(meta, blocks, pdf_path, compress=_compress_pdf, block_pages=starts)
     sections = [b["text"] for b in blocks if b["kind"] == "h2"]
-    return {"html": out_html, "pdf": pdf_path, "pdf_pages": pages, "sections": sections}
+    out = {"html": out_html, "pdf": pdf_path, "pdf_pages": pages, "sections": sections}
+    if pdf_path is not None:
+        # the page each block starts on (headings must start on the page of the block after them)
+        out["pdf_block_pages"] = [(b["kind"], str(b.get("text", "")), pg) for b, pg in zip(blocks, starts)]
+    return out
 
 
 def _iter_texts(blocks: Iterable[_Block]) -> Iterable[str]:

@@ -1177,97 +1177,142 @@ def plot_ranking(
     fig, ax = _new_chart(
         (7.6, 1.7 + 0.36 * n), title or f"Top {n} coastline segments by {label_d.split(' (')[0].lower()}"
     )
-    vals = pd.to_numeric(df[by], errors="coerce").to_numpy(float)
-    ypos = np.arange(n)[::-1]
-    rel = _ranking_bars(ax, df, vals, ypos)
-    has_int, hi, xmax = _ranking_intervals(ax, df, vals, ypos, lo_col, hi_col)
-    ends = vals.copy()
-    if has_int:
-        ends = np.where(np.isfinite(hi), np.maximum(vals, hi), vals)
-    span = xmax if xmax > 0 else 1.0
     if prob_col is not None and prob_col not in df.columns:
         raise InputError(f"plot_ranking: prob_col '{prob_col}' is not a column of the segments table")
+    vals = pd.to_numeric(df[by], errors="coerce").to_numpy(float)
+    ypos = np.arange(n)[::-1]
+    rel = _reliable_flags(df)
+    has_int = bool(lo_col and hi_col and lo_col in df.columns and hi_col in df.columns)
+    lo = pd.to_numeric(df[lo_col], errors="coerce").to_numpy(float) if has_int else np.full(n, np.nan)
+    hi = pd.to_numeric(df[hi_col], errors="coerce").to_numpy(float) if has_int else np.full(n, np.nan)
+    xlim, clip_at = _ranking_axis(vals, hi, rel, prob_col is not None)
+    clipped = vals > clip_at
+    shown = np.minimum(vals, clip_at)
+    _ranking_bars(ax, shown, ypos, rel, clipped, clip_at)
+    wclip = _ranking_intervals(ax, vals, lo, hi, ypos, clipped, clip_at) if has_int else np.zeros(n, bool)
     probs = pd.to_numeric(df[prob_col], errors="coerce").to_numpy(float) if prob_col else np.full(n, np.nan)
-    for yv, v, e_, pr in zip(ypos, vals, ends, probs, strict=True):
-        txt = f"{v:.3g}" + (f"   P(top {top_k}) = {pr:.2f}" if np.isfinite(pr) else "")
-        ax.text(e_ + 0.015 * span, yv, txt, va="center", ha="left", fontsize=8, color="0.15", zorder=4)
-    labels = [_bar_label(row["segment_id"], row.get("name", ""), row["_rank"]) for _, row in df.iterrows()]
+    _ranking_values(ax, vals, shown, hi, ypos, probs, clipped, wclip, clip_at, xlim, top_k)
+    labels = [_bar_label(row["segment_id"], row.get("name", ""), row["_rank"] if ok else None,
+                         row.get("lat_mid"), row.get("lon_mid"))
+              for ok, (_, row) in zip(rel, df.iterrows(), strict=True)]
     ax.set_yticks(ypos)
     ax.set_yticklabels(labels)
     ax.set_ylim(-0.7, n - 0.3)
-    ax.set_xlim(0, (xmax * (1.45 if prob_col else 1.14)) if xmax > 0 else 1.0)
+    ax.set_xlim(0, xlim)
     ax.set_xlabel(xlabel or label_d)
     ax.grid(True, axis="x", color="0.85", linewidth=0.6, zorder=0)
     ax.set_axisbelow(True)
-    _ranking_legend(ax, rel, has_int, ref)
+    _ranking_legend(ax, rel, has_int, ref, bool(clipped.any() or wclip.any()))
     return _finish(fig, out_path, ax=ax)
 
 
-def _ranking_bars(ax, df: pd.DataFrame, vals: np.ndarray, ypos: np.ndarray) -> np.ndarray:
-    """Horizontal bars, hatched grey for unreliable segments; the reliability flags."""
-    n = len(df)
-    if "reliable" in df.columns:  # missing/unknown reliability counts as unreliable
-        rel = np.array(
-            [bool(v) if v is not None and v is not pd.NA and v == v else False for v in df["reliable"]]
-        )
+def _reliable_flags(df: pd.DataFrame) -> np.ndarray:
+    """The ``reliable`` column as booleans; missing/unknown reliability counts as unreliable."""
+    if "reliable" not in df.columns:
+        return np.ones(len(df), bool)
+    return np.array([bool(v) if v is not None and v is not pd.NA and v == v else False for v in df["reliable"]])
+
+
+def _ranking_axis(vals: np.ndarray, hi: np.ndarray, rel: np.ndarray, with_prob: bool) -> tuple[float, float]:
+    """Upper x limit and the clip value of the ranking chart.
+
+    The axis is set by the reliable bars and their finite interval ends; unreliable values (few
+    rays, often huge) and unbounded intervals would squash the reliable ones, so they are clipped
+    at the axis edge and marked. With no reliable bar, the bars alone set it.
+    """
+    if rel.any():
+        xmax = float(np.nanmax(vals[rel]))
+        hb = hi[rel & np.isfinite(hi)]
+        if hb.size:
+            xmax = max(xmax, float(np.nanmax(hb)))
     else:
-        rel = np.ones(n, bool)
+        xmax = float(np.nanmax(vals))
+    if not xmax > 0:
+        return 1.0, 1.0
+    return xmax * (1.45 if with_prob else 1.14), xmax * 1.04
+
+
+def _ranking_bars(ax, shown: np.ndarray, ypos: np.ndarray, rel: np.ndarray, clipped: np.ndarray,
+                  clip_at: float) -> None:
+    """Horizontal bars, hatched grey for unreliable segments; an arrow head where a bar is clipped."""
     colors = np.where(rel, _OKABE_BLUE, "#c8c8c8")
-    bars = ax.barh(ypos, vals, height=0.62, color=colors, edgecolor="0.25", linewidth=0.6, zorder=2)
+    bars = ax.barh(ypos, shown, height=0.62, color=colors, edgecolor="0.25", linewidth=0.6, zorder=2)
     for b, ok in zip(bars, rel, strict=True):
         if not ok:
             b.set_hatch("///")
-    return rel
+    for yv in ypos[clipped]:
+        ax.plot([clip_at], [yv], marker=">", color="0.15", markersize=7, zorder=4, clip_on=False)
 
 
-def _ranking_intervals(ax, df: pd.DataFrame, vals: np.ndarray, ypos: np.ndarray, lo_col: str | None,
-                       hi_col: str | None) -> tuple[bool, np.ndarray | None, float]:
-    """5-95 % whiskers where the table has them; (drawn?, upper ends, largest x to show)."""
-    hi = None
-    has_int = lo_col in df.columns and hi_col in df.columns if lo_col and hi_col else False
-    xmax = np.nanmax(vals)
-    if has_int:
-        lo = pd.to_numeric(df[lo_col], errors="coerce").to_numpy(float)
-        hi = pd.to_numeric(df[hi_col], errors="coerce").to_numpy(float)
-        ok = np.isfinite(lo) & np.isfinite(hi)
-        if ok.any():
-            err = np.vstack([np.clip(vals - lo, 0, None), np.clip(hi - vals, 0, None)])
-            ax.errorbar(
-                vals[ok],
-                ypos[ok],
-                xerr=err[:, ok],
-                fmt="none",
-                ecolor="black",
-                elinewidth=1.1,
-                capsize=3.5,
-                zorder=3,
-            )
-            xmax = max(xmax, np.nanmax(hi[ok]))
-    return has_int, hi, xmax
+def _ranking_intervals(ax, vals: np.ndarray, lo: np.ndarray, hi: np.ndarray, ypos: np.ndarray,
+                       clipped: np.ndarray, clip_at: float) -> np.ndarray:
+    """5-95 % whiskers (none on clipped bars); whiskers running off the axis end in an arrow head.
+
+    Returns where a whisker was clipped.
+    """
+    ok = np.isfinite(lo) & np.isfinite(vals) & ~clipped
+    hi_d = np.where(np.isfinite(hi), hi, np.inf)
+    wclip = ok & (hi_d > clip_at)
+    err = np.vstack([np.clip(vals - lo, 0, None), np.clip(np.minimum(hi_d, clip_at) - vals, 0, None)])
+    full = ok & ~wclip
+    if full.any():
+        ax.errorbar(vals[full], ypos[full], xerr=err[:, full], fmt="none", ecolor="black", elinewidth=1.1,
+                    capsize=3.5, zorder=3)
+    if wclip.any():
+        ax.errorbar(vals[wclip], ypos[wclip], xerr=err[:, wclip], fmt="none", ecolor="black", elinewidth=1.1,
+                    capsize=0, zorder=3)
+        for yv in ypos[wclip]:
+            ax.plot([clip_at], [yv], marker=">", color="black", markersize=5, zorder=4, clip_on=False)
+    return wclip
 
 
-def _ranking_legend(ax, rel: np.ndarray, has_int: bool, ref: float | None) -> None:
-    """Legend of the ranking chart (and the no-focusing reference line)."""
-    handles = [Patch(facecolor=_OKABE_BLUE, edgecolor="0.25", label="Reliable")]
+def _ranking_values(ax, vals: np.ndarray, shown: np.ndarray, hi: np.ndarray, ypos: np.ndarray, probs: np.ndarray,
+                    clipped: np.ndarray, wclip: np.ndarray, clip_at: float, span: float, top_k: int) -> None:
+    """The value of each bar: beside its end, inside the bar when it is off scale."""
+    ends = np.where(np.isfinite(hi) & ~clipped, np.maximum(shown, np.minimum(hi, clip_at)), shown)
+    for yv, v, e_, pr, cl, wc in zip(ypos, vals, ends, probs, clipped, wclip, strict=True):
+        txt = f"{v:.3g}" + (f"   P(top {top_k}) = {pr:.2f}" if np.isfinite(pr) else "")
+        if cl:
+            ax.text(clip_at - 0.03 * span, yv, txt + " (off scale)", va="center", ha="right", fontsize=8,
+                    color="0.1", zorder=5, bbox={"facecolor": "white", "edgecolor": "none", "alpha": 0.85, "pad": 1.0})
+        elif wc:  # only the whisker runs off scale: the value just above the bar's end
+            ax.text(v + 0.015 * span, yv + 0.34, txt, va="bottom", ha="left", fontsize=8, color="0.15", zorder=4)
+        else:
+            ax.text(e_ + 0.015 * span, yv, txt, va="center", ha="left", fontsize=8, color="0.15", zorder=4)
+
+
+def _ranking_legend(ax, rel: np.ndarray, has_int: bool, ref: float | None, off_scale: bool = False) -> None:
+    """Legend of the ranking chart (and the no-focusing reference line), below the bars."""
+    handles = []
+    if rel.any():
+        handles.append(Patch(facecolor=_OKABE_BLUE, edgecolor="0.25", label="Reliable (ranked)"))
     if (~rel).any():
         handles.append(
-            Patch(facecolor="#c8c8c8", edgecolor="0.25", hatch="///", label="Unreliable (see table)")
+            Patch(facecolor="#c8c8c8", edgecolor="0.25", hatch="///", label="Unreliable, not ranked (see table)")
         )
     if has_int:
         handles.append(
             Line2D([], [], color="black", lw=1.1, marker="|", markersize=8, label="5-95 % interval")
         )
+    if off_scale:
+        handles.append(Line2D([], [], color="0.15", lw=0, marker=">", markersize=6, label="Off scale (value printed)"))
     if ref is not None:
         ax.axvline(ref, color=_OKABE_VERMILLION, linestyle="--", linewidth=1.2, zorder=3)
         handles.append(
             Line2D([], [], color=_OKABE_VERMILLION, linestyle="--", lw=1.2, label=f"{ref:g} = no focusing")
         )
-    leg = ax.legend(handles=handles, loc="lower right", framealpha=0.9, fontsize=8)
+    # below the bars, so it never hides a bar or a printed value
+    leg = ax.legend(handles=handles, loc="upper center", bbox_to_anchor=(0.5, -0.16), ncol=min(3, len(handles)),
+                    framealpha=0.9, fontsize=8)
     leg.set_zorder(10)
 
 
-def _bar_label(segment_id: Any, name: Any, rank: Any) -> str:
-    """``"1. S0001  Harbour"``; no name part for None/NaN/empty names or a name equal to the id."""
+def _bar_label(segment_id: Any, name: Any, rank: Any, lat: Any = None, lon: Any = None) -> str:
+    """``"1. S0001  Harbour"`` or ``"1. S0001  41.75°N 124.20°W"``; ``"-"`` instead of a rank when unranked.
+
+    The name is used when there is one (and it differs from the id), else the latitude and
+    longitude of the segment's midpoint when given.
+    """
     sid = str(segment_id)
     nm = name.strip() if isinstance(name, str) else ""
     try:
@@ -1275,8 +1320,17 @@ def _bar_label(segment_id: Any, name: Any, rank: Any) -> str:
     except (TypeError, ValueError):
         rk = math.nan
     rk_s = f"{int(rk)}." if np.isfinite(rk) else "-"
-    lab = f"{rk_s} {sid}" + (f"  {nm}" if nm and nm != sid else "")
-    return lab if len(lab) <= 34 else lab[:33] + "…"
+    where = ""
+    if not (nm and nm != sid):
+        try:
+            la, lo = float(lat), float(lon)
+        except (TypeError, ValueError):
+            la = lo = math.nan
+        if np.isfinite(la) and np.isfinite(lo):
+            lo = ((lo + 180.0) % 360.0) - 180.0
+            where = f"{abs(la):.2f}°{'N' if la >= 0 else 'S'} {abs(lo):.2f}°{'E' if lo >= 0 else 'W'}"
+    lab = f"{rk_s} {sid}" + (f"  {nm}" if nm and nm != sid else (f"  {where}" if where else ""))
+    return lab if len(lab) <= 40 else lab[:39] + "…"
 
 
 # --------------------------------------------------------------------------------------
