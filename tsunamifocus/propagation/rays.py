@@ -179,7 +179,7 @@ def trace_rays(
                       polar_lat_deg=polar_lat_deg, threads=threads, accumulate=accumulate,
                       keep_paths=int(keep_paths), path_points=int(path_points))
     out, outi = run["out"], run["outi"]
-    end = _end_dataset(info, out, outi, x0, y0, az, w, dt, stop_depth_m)
+    end = _end_dataset(info, out, outi, x0, y0, az, w, dt, stop_depth_m, q0a)
     energy = first = None
     if accumulate:
         energy, first = _grids(fld, run["E"], run["T"])
@@ -360,7 +360,7 @@ def _units(info) -> tuple[str, str]:
     return ("degrees_east", "degrees_north") if info.geographic else ("m", "m")
 
 
-def _end_dataset(info, out, outi, x0, y0, az, w, dt, stop_depth_m) -> xr.Dataset:
+def _end_dataset(info, out, outi, x0, y0, az, w, dt, stop_depth_m, q0a) -> xr.Dataset:
     """The per-ray end states as a Dataset (grid CRS coordinates, SI units)."""
     n = x0.size
     if info.geographic:
