@@ -76,12 +76,12 @@ def test_demo_ray_rankings_agree_with_the_wave_solver(demo_runs):
     assert sc.rays.count == 20000 and len(a.focusing.bands) == 3  # the default settings are what is judged
     seg = a.focusing.segments
     assert chk.agreement["n"] >= 60  # measured: all 66 segments of the coast of interest ranked
-    # amplitude at the stop isobath. Measured on 2026-12-02: Spearman 0.93, top-10 common 7/10.
-    assert chk.agreement["spearman"] >= 0.93 - 0.05
+    # amplitude at the stop isobath. Measured on 2026-12-02: Spearman 0.933, top-10 common 7/10.
+    assert chk.agreement["spearman"] >= 0.933 - 0.05
     assert chk.agreement["topk_common"] >= 7 - 2
-    # lensing factor (wave: (A_real / A_reference)^2). Measured on 2026-12-02: Spearman 0.76,
+    # lensing factor (wave: (A_real / A_reference)^2). Measured on 2026-12-02: Spearman 0.764,
     # top-10 common 7/10.
-    assert chk.agreement["lensing"]["spearman"] >= 0.76 - 0.1
+    assert chk.agreement["lensing"]["spearman"] >= 0.764 - 0.1
     assert chk.agreement["lensing"]["topk_common"] >= 7 - 2
     # the check's figures are those of the ranked ray column against the wave column
     wave = chk.table.set_index("segment_id")["wave_amp_stop_m"]
@@ -142,7 +142,7 @@ def test_real_grid_amplitude_ranking_meets_target(etopo_path):
     assert len(a.focusing.segments) > 150  # measured: 183 segments in the coast of interest
     chk = compare_with_waves(depth, a.eta, a.focusing.segments, stop_depth_m=20.0, k=K)
     assert chk.agreement["n"] >= 150  # measured: 178 ranked segments with a wave value
-    # Project target: Spearman >= 0.8. Measured on 2026-12-02: 0.88 (Kendall 0.71, top-10 common 5/10),
-    # so the target itself is asserted (margin 0.08 below the measured value).
+    # Project target: Spearman >= 0.8. Measured on 2026-12-02: 0.879 (Kendall 0.71, top-10 common 5/10;
+    # seed 1: 0.867), so the target itself is asserted (margin 0.079 below the measured value).
     print(chk.summary().splitlines()[1], f"n={chk.agreement['n']}")
     assert chk.agreement["spearman"] >= 0.8, chk.agreement
