@@ -112,6 +112,11 @@ def _principal_strike(E: np.ndarray, N: np.ndarray, w: np.ndarray) -> float:
     return math.degrees(math.atan2(ve, vn)) % 180.0
 
 
+#: The directional pattern is evaluated on this many azimuths (every 0.1 degree).
+_N_FINE = 3600
+_FINE_STEP = 360.0 / _N_FINE
+
+
 def _local_metric(gi: GridInfo, xs: np.ndarray, ys: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """East/north coordinates [m] of points near each other (local equirectangular on lon/lat)."""
     if not gi.geographic:
@@ -130,6 +135,64 @@ def _equal_energy_blocks(cells: np.ndarray, along: np.ndarray, w: np.ndarray,
     k = np.minimum((cw / cw[-1] * blocks - 1e-12).astype(int), blocks - 1)
     total = w[cells].sum()
     return [(order[k == b], float(w[order[k == b]].sum() / total)) for b in range(blocks) if np.any(k == b)]
+
+
+def _fine_pattern(gi: GridInfo, es: np.ndarray, amax: float) -> tuple[np.ndarray, np.ndarray]:
+    """The far-field directional energy pattern every 0.1 degree (fractions summing to 1)."""
+    rows, cols = _sig_window(gi, np.abs(es) >= 1e-3 * amax, margin=0.25)
+    block = es[np.ix_(rows, cols)]
+    lat_mid = float(gi.y[rows].mean()) if gi.geographic else 0.0
+    dx_m, dy_m = _metric_spacing(gi, lat_mid)
+    fine_az = _FINE_STEP * (np.arange(_N_FINE) + 0.5)
+    pf = np.maximum(directional_spectrum(block, dx_m, dy_m, fine_az), 0.0)
+    if not pf.sum() > 0:
+        raise SourceError("directional spectrum of the source is empty (source smaller than a grid cell?)")
+    return fine_az, pf / pf.sum()
+
+
+def _azimuth_bins(pattern: np.ndarray, n_rays: int, blocks: int, seed: int | None,
+                  offset_deg: float) -> tuple[float, np.ndarray, np.ndarray]:
+    """Spacing [deg], centres [deg] and energy fractions of the fan's evenly spaced azimuth bins."""
+    cum = np.concatenate([[0.0], np.cumsum(pattern)])  # at fine bin edges 0, 0.1, ..., 360
+
+    def cdf(a: np.ndarray) -> np.ndarray:
+        turns = np.floor(a / 360.0)
+        return turns + np.interp(a - 360.0 * turns, _FINE_STEP * np.arange(_N_FINE + 1), cum)
+
+    n_az = max(8, int(round(n_rays / blocks)))
+    width = 360.0 / n_az
+    rng = np.random.default_rng(seed) if seed is not None else None
+    offset = offset_deg + (float(rng.uniform(0.0, width)) if rng is not None else 0.0)
+    edges = offset + width * np.arange(n_az + 1)
+    frac = np.maximum(np.diff(cdf(edges)), 0.0)
+    return width, (edges[:-1] + 0.5 * width) % 360.0, frac / frac.sum()
+
+
+def _block_half_fans(gi: GridInfo, es: np.ndarray, launch_ok: np.ndarray, strike_deg: float | None,
+                     centres: np.ndarray, frac: np.ndarray, blocks: int, launched: float) -> tuple[list, float]:
+    """One ordered half fan per equal-energy block on each side of the strike line; and the strike used."""
+    jj, ii = np.nonzero(launch_ok)
+    Ex, Ny = _local_metric(gi, gi.x[ii], gi.y[jj])
+    w = es[jj, ii] ** 2 * np.broadcast_to(gi.cell_area_m2(), es.shape)[jj, ii]
+    strike = _principal_strike(Ex, Ny, w) if strike_deg is None else float(strike_deg) % 360.0
+    s = math.radians(strike)
+    me, mn = np.sum(w * Ex) / w.sum(), np.sum(w * Ny) / w.sum()
+    # signed distance to the right of the strike line through the energy centroid, and along it
+    right = (Ex - me) * math.cos(s) - (Ny - mn) * math.sin(s)
+    along = (Ex - me) * math.sin(s) + (Ny - mn) * math.cos(s)
+    az_side = np.where(np.sin(np.radians(centres - strike)) >= 0.0, 1, -1).astype(np.int8)
+    parts = []
+    for sval, msk in ((1, right >= 0.0), (-1, right < 0.0)):
+        az_idx = np.flatnonzero(az_side == sval)
+        cells = np.flatnonzero(msk) if np.any(msk) else np.arange(w.size)
+        if az_idx.size == 0:
+            continue
+        for block, share in _equal_energy_blocks(cells, along, w, blocks):
+            bx, by = np.sum(w[block] * Ex[block]) / w[block].sum(), np.sum(w[block] * Ny[block]) / w[block].sum()
+            pick = block[np.argmin((Ex[block] - bx) ** 2 + (Ny[block] - by) ** 2)]
+            parts.append((np.full(az_idx.size, gi.x[ii[pick]]), np.full(az_idx.size, gi.y[jj[pick]]),
+                          centres[az_idx], launched * frac[az_idx] * share, np.full(az_idx.size, sval, np.int8)))
+    return parts, strike
 
 
 def make_ray_fan(
@@ -216,34 +279,8 @@ def make_ray_fan(
         raise SourceError("the source has no sea-surface displacement over sea cells of the grid")
     energy = potential_energy(eta, depth)
     sig = sea & (np.abs(es) >= threshold * amax)
-    rows, cols = _sig_window(gi, np.abs(es) >= 1e-3 * amax, margin=0.25)
-    block = es[np.ix_(rows, cols)]
-    lat_mid = float(gi.y[rows].mean()) if gi.geographic else 0.0
-    dx_m, dy_m = _metric_spacing(gi, lat_mid)
-
-    # directional pattern on a fine azimuth set, then integrated over each ray's bin
-    n_fine = 3600
-    dfine = 360.0 / n_fine
-    fine_az = dfine * (np.arange(n_fine) + 0.5)
-    Pf = np.maximum(directional_spectrum(block, dx_m, dy_m, fine_az), 0.0)
-    if not Pf.sum() > 0:
-        raise SourceError("directional spectrum of the source is empty (source smaller than a grid cell?)")
-    pattern = Pf / Pf.sum()
-    cum = np.concatenate([[0.0], np.cumsum(pattern)])  # at fine bin edges 0, dfine, ..., 360
-
-    def cdf(a: np.ndarray) -> np.ndarray:
-        turns = np.floor(a / 360.0)
-        return turns + np.interp(a - 360.0 * turns, dfine * np.arange(n_fine + 1), cum)
-
-    rng = np.random.default_rng(seed) if seed is not None else None
-    n_az = max(8, int(round(n_rays / blocks)))
-    width = 360.0 / n_az
-    offset = azimuth_offset_deg + (float(rng.uniform(0.0, width)) if rng is not None else 0.0)
-    edges = offset + width * np.arange(n_az + 1)
-    centres = (edges[:-1] + 0.5 * width) % 360.0
-    frac = np.maximum(np.diff(cdf(edges)), 0.0)
-    frac = frac / frac.sum()
-
+    fine_az, pattern = _fine_pattern(gi, es, amax)
+    width, centres, frac = _azimuth_bins(pattern, n_rays, blocks, seed, azimuth_offset_deg)
     shallow = sea & (dep <= stop_depth_m)
     energy_shallow = float(RHO_SEAWATER * GRAVITY * 0.5 * np.sum(
         (es**2 * np.broadcast_to(gi.cell_area_m2(), e.shape))[shallow]))
@@ -252,31 +289,9 @@ def make_ray_fan(
         raise SourceError(
             f"no sea cell deeper than {2 * stop_depth_m:g} m (twice the stop isobath) lies under the source: "
             "the rupture is on land or in the shallows; move it offshore or lower stop_depth_m")
-    jj, ii = np.nonzero(launch_ok)
-    Ex, Ny = _local_metric(gi, gi.x[ii], gi.y[jj])
-    area = np.broadcast_to(gi.cell_area_m2(), e.shape)[jj, ii]
-    w = es[jj, ii] ** 2 * area
     if strike_deg is None and "strike_deg" in eta.attrs:
         strike_deg = float(eta.attrs["strike_deg"])
-    strike = _principal_strike(Ex, Ny, w) if strike_deg is None else float(strike_deg) % 360.0
-    s = math.radians(strike)
-    me, mn = np.sum(w * Ex) / w.sum(), np.sum(w * Ny) / w.sum()
-    # signed distance to the right of the strike line through the energy centroid, and along it
-    right = (Ex - me) * math.cos(s) - (Ny - mn) * math.sin(s)
-    along = (Ex - me) * math.sin(s) + (Ny - mn) * math.cos(s)
-    az_side = np.where(np.sin(np.radians(centres - strike)) >= 0.0, 1, -1).astype(np.int8)
-    launched = energy - energy_shallow
-    parts = []
-    for sval, msk in ((1, right >= 0.0), (-1, right < 0.0)):
-        az_idx = np.flatnonzero(az_side == sval)
-        cells = np.flatnonzero(msk) if np.any(msk) else np.arange(w.size)
-        if az_idx.size == 0:
-            continue
-        for block, share in _equal_energy_blocks(cells, along, w, blocks):
-            bx, by = np.sum(w[block] * Ex[block]) / w[block].sum(), np.sum(w[block] * Ny[block]) / w[block].sum()
-            pick = block[np.argmin((Ex[block] - bx) ** 2 + (Ny[block] - by) ** 2)]
-            parts.append((np.full(az_idx.size, gi.x[ii[pick]]), np.full(az_idx.size, gi.y[jj[pick]]),
-                          centres[az_idx], launched * frac[az_idx] * share, np.full(az_idx.size, sval, np.int8)))
+    parts, strike = _block_half_fans(gi, es, launch_ok, strike_deg, centres, frac, blocks, energy - energy_shallow)
     x0, y0, az, weights, ray_side = (np.concatenate(p) for p in zip(*parts))
     if gi.geographic:
         x0 = gi.wrap_lon(x0)
