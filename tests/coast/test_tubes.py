@@ -26,23 +26,34 @@ def basin(D=100e3, h0=2000.0, dx=1000.0):
     return make_grid(h, x, y, CRS)
 
 
-def test_point_source_on_a_straight_coast_matches_the_geometric_flux():
-    # Isotropic point source at distance D from a straight coast, constant depth: straight rays,
-    # so the energy crossing the coast per metre is E cos^2(theta) / (2 pi D), theta the angle
-    # from the normal, s = D tan(theta) (geometry of a fan of rays; exact for ray theory).
+def point_source_on_basin(n):
+    """n rays evenly spaced in azimuth from (0, 0) over :func:`basin`, each carrying E / n, and the
+    20 m contour cut into 10 km segments; returns (depth, end states, segments, tube deposit)."""
     d = basin()
-    n = 720
     az = (np.arange(n) + 0.5) * 360.0 / n
     r = trace_rays(d, np.zeros(n), np.zeros(n), az, weights=np.full(n, E / n), stop_depth_m=20.0,
                    max_time_s=4 * 3600.0)
     seg = segment_coastline(coastline_from_grid(d, 20.0), 10e3, d)
-    info = GridInfo.from_dataarray(d)
-    steps = tube_steps(r.end, info)
-    np.testing.assert_allclose(steps, 2 * math.pi / n, rtol=1e-9)
+    steps = tube_steps(r.end, GridInfo.from_dataarray(d))
     dep = tube_deposit(seg, r.end, d, steps=steps, period_s=300.0, max_distance_m=3000.0)
+    return r, seg, steps, dep
+
+
+def geometric_flux(seg):
+    """E cos^2(theta) / (2 pi D) at the segment centres, D the distance of the (straight) coast."""
     xc = float(np.median(seg["x_mid"]))  # the 20 m contour, about half a cell west of the land
     theta = np.arctan2(seg["y_mid"].to_numpy(float), xc)
-    expected = E * np.cos(theta) ** 2 / (2 * np.pi * xc)
+    return theta, E * np.cos(theta) ** 2 / (2 * np.pi * xc)
+
+
+def test_point_source_on_a_straight_coast_matches_the_geometric_flux():
+    # Isotropic point source at distance D from a straight coast, constant depth: straight rays,
+    # so the energy crossing the coast per metre is E cos^2(theta) / (2 pi D), theta the angle
+    # from the normal, s = D tan(theta) (geometry of a fan of rays; exact for ray theory).
+    n = 720
+    r, seg, steps, dep = point_source_on_basin(n)
+    np.testing.assert_allclose(steps, 2 * math.pi / n, rtol=1e-9)
+    theta, expected = geometric_flux(seg)
     got = dep.energy_J / seg["length_m"].to_numpy(float)
     inner = np.abs(theta) < math.radians(50.0)
     np.testing.assert_allclose(got[inner], expected[inner], rtol=0.03)
@@ -56,17 +67,8 @@ def test_point_source_on_a_straight_coast_matches_the_geometric_flux():
 def test_few_rays_still_give_a_smooth_answer():
     # With 72 rays (5 degrees apart, ~9 km apart at the coast) the tube estimate stays within
     # 5 % of the geometric flux where counting hits on 10 km segments would be off by +-100 %.
-    d = basin()
-    n = 72
-    az = (np.arange(n) + 0.5) * 360.0 / n
-    r = trace_rays(d, np.zeros(n), np.zeros(n), az, weights=np.full(n, E / n), stop_depth_m=20.0,
-                   max_time_s=4 * 3600.0)
-    seg = segment_coastline(coastline_from_grid(d, 20.0), 10e3, d)
-    dep = tube_deposit(seg, r.end, d, steps=tube_steps(r.end, GridInfo.from_dataarray(d)), period_s=300.0,
-                       max_distance_m=3000.0)
-    xc = float(np.median(seg["x_mid"]))
-    theta = np.arctan2(seg["y_mid"].to_numpy(float), xc)
-    expected = E * np.cos(theta) ** 2 / (2 * np.pi * xc)
+    _, seg, _, dep = point_source_on_basin(72)
+    theta, expected = geometric_flux(seg)
     inner = np.abs(theta) < math.radians(40.0)
     got = dep.energy_J / seg["length_m"].to_numpy(float)
     np.testing.assert_allclose(got[inner], expected[inner], rtol=0.05)
