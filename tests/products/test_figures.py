@@ -321,6 +321,35 @@ def test_ranking_axis_is_set_by_the_reliable_bars(case, tmp_path, monkeypatch):
     assert sorted(lab.split(".")[0] for lab in seen["labels"] if not lab.startswith("- ")) == list("123456")
 
 
+def test_ranking_without_reliable_bars_draws_no_runaway_whiskers(case, tmp_path, monkeypatch):
+    # every segment unreliable with unbounded intervals (no reference ray in most replicates): the
+    # bars set the axis and no whisker runs to its edge (an arrow per bar would hide the values)
+    seg = case["segments"].head(6).copy()
+    seg["lensing_factor"] = [15.0, 4.0, 2.4, 2.0, 1.1, 0.9]
+    seg["lensing_lo"] = 0.0
+    seg["lensing_hi"] = [np.inf, np.inf, 23.9, np.inf, 6.0, np.inf]
+    seg["reliable"] = False
+    seg["rank_lensing"] = pd.array([pd.NA] * 6, dtype="Int64")
+    seen = {}
+    orig = figures._finish
+
+    def spy(fig, out_path, **kw):
+        ax = kw["ax"]
+        seen["xlim"] = ax.get_xlim()
+        seen["markers"] = [ln for ln in ax.lines if ln.get_marker() == ">"]
+        seen["text_objs"] = list(ax.texts)
+        return orig(fig, out_path, **kw)
+
+    monkeypatch.setattr(figures, "_finish", spy)
+    check_png(figures.plot_ranking(seg, 6, out_path=tmp_path / "u.png"), min_w=800, min_h=300)
+    assert seen["xlim"][1] == pytest.approx(15.0 * 1.14)
+    assert seen["markers"] == []  # no clipped whisker, no clipped bar
+    assert sorted(t.get_text() for t in seen["text_objs"]) == sorted(["15", "4", "2.4", "2", "1.1", "0.9"])
+    # each value beside its bar (or its drawn whisker), not at the edge of the chart
+    x = {t.get_text(): t.get_position()[0] for t in seen["text_objs"]}
+    assert x["2.4"] < 4.0 and x["1.1"] == pytest.approx(6.0 + 0.015 * 15.0 * 1.14)
+
+
 def test_ranking_orders_by_rank_column(case):
     seg = case["segments"]
     ordered = figures._rank_order(seg, "lensing_factor", "rank_lensing")

@@ -1189,9 +1189,13 @@ def plot_ranking(
     clipped = vals > clip_at
     shown = np.minimum(vals, clip_at)
     _ranking_bars(ax, shown, ypos, rel, clipped, clip_at)
-    wclip = _ranking_intervals(ax, vals, lo, hi, ypos, clipped, clip_at) if has_int else np.zeros(n, bool)
+    no_whisker = clipped.copy()
+    if not rel.any():  # nothing reliable: whiskers running off the chart are noise, leave them out
+        no_whisker |= ~(np.isfinite(hi) & (hi <= clip_at))
+    wclip = _ranking_intervals(ax, vals, lo, hi, ypos, no_whisker, clip_at) if has_int else np.zeros(n, bool)
     probs = pd.to_numeric(df[prob_col], errors="coerce").to_numpy(float) if prob_col else np.full(n, np.nan)
-    _ranking_values(ax, vals, shown, hi, ypos, probs, clipped, wclip, clip_at, xlim, top_k)
+    hi_drawn = np.where(no_whisker | ~np.isfinite(lo), np.nan, hi)  # values sit beside the drawn whiskers
+    _ranking_values(ax, vals, shown, hi_drawn, ypos, probs, clipped, wclip, clip_at, xlim, top_k)
     labels = [_bar_label(row["segment_id"], row.get("name", ""), row["_rank"] if ok else None,
                          row.get("lat_mid"), row.get("lon_mid"))
               for ok, (_, row) in zip(rel, df.iterrows(), strict=True)]
@@ -1246,7 +1250,7 @@ def _ranking_bars(ax, shown: np.ndarray, ypos: np.ndarray, rel: np.ndarray, clip
 
 def _ranking_intervals(ax, vals: np.ndarray, lo: np.ndarray, hi: np.ndarray, ypos: np.ndarray,
                        clipped: np.ndarray, clip_at: float) -> np.ndarray:
-    """5-95 % whiskers (none on clipped bars); whiskers running off the axis end in an arrow head.
+    """5-95 % whiskers (none where ``clipped``); whiskers running off the axis end in an arrow head.
 
     Returns where a whisker was clipped.
     """
