@@ -16,7 +16,6 @@ import pathlib
 import sys
 from typing import Any
 
-import numpy as np
 import pandas as pd
 
 from ..cautions import caution_summary
