@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import pathlib
+from typing import Any
 from collections.abc import Sequence
 
 import numpy as np
@@ -15,6 +16,22 @@ from ..errors import CoastError
 from ..grid import GridInfo
 
 __all__ = ['read_coastline', 'read_region_polygons']
+
+
+def _read_vector(p: pathlib.Path, layer: Any, what: str) -> tuple[dict, Any, Any, Any]:
+    """Read a vector file with pyogrio: (meta, WKB geometries, field data, CRS); one-line errors."""
+    import pyogrio  # deferred on purpose: GDAL vector drivers load only when a file is read
+
+    if not p.exists():
+        raise CoastError(f"{what} {p} does not exist")
+    try:
+        meta, _fids, wkb, field_data = pyogrio.raw.read(p, layer=layer)
+    except Exception as exc:  # pyogrio raises several kinds
+        raise CoastError(f"{what} {p}: cannot be read as a vector file ({exc})") from exc
+    src_crs = meta.get("crs")
+    if not src_crs:
+        raise CoastError(f"{what} {p}: has no CRS; expected a file with a defined CRS (e.g. EPSG:4326)")
+    return meta, wkb, field_data, src_crs
 
 
 def read_coastline(
@@ -54,20 +71,8 @@ def read_coastline(
         If the file is missing or unreadable, has no CRS, no linear features, or only
         empty/invalid geometries, or ``name_field`` is not one of its fields.
     """
-    import pyogrio
-
     p = pathlib.Path(path)
-    if not p.exists():
-        raise CoastError(f"coastline file {p} does not exist")
-    try:
-        meta, _fids, wkb, field_data = pyogrio.raw.read(p, layer=layer)
-    except Exception as exc:  # pyogrio raises several kinds
-        raise CoastError(f"coastline file {p}: cannot be read as a vector file ({exc})") from exc
-    src_crs = meta.get("crs")
-    if not src_crs:
-        raise CoastError(
-            f"coastline file {p}: has no CRS; expected a file with a defined CRS (e.g. EPSG:4326)"
-        )
+    meta, wkb, field_data, src_crs = _read_vector(p, layer, "coastline file")
     fields = list(meta.get("fields", []))
     names_raw: Sequence | None = None
     if name_field is not None:
@@ -169,18 +174,8 @@ def read_region_polygons(path: str | pathlib.Path, layer: str | int | None = Non
     CoastError
         If the file is missing, unreadable, has no CRS or no polygon.
     """
-    import pyogrio
-
     p = pathlib.Path(path)
-    if not p.exists():
-        raise CoastError(f"coast region file {p} does not exist")
-    try:
-        meta, _fids, wkb, _fields = pyogrio.raw.read(p, layer=layer)
-    except Exception as exc:  # pyogrio raises several kinds
-        raise CoastError(f"coast region file {p}: cannot be read as a vector file ({exc})") from exc
-    src_crs = meta.get("crs")
-    if not src_crs:
-        raise CoastError(f"coast region file {p}: has no CRS; expected a file with a defined CRS (e.g. EPSG:4326)")
+    meta, wkb, _fields, src_crs = _read_vector(p, layer, "coast region file")
     geoms = shapely.from_wkb(wkb, on_invalid="ignore") if wkb is not None else np.array([])
     polys = []
     for g in geoms:
