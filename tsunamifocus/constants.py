@@ -38,8 +38,8 @@ DEFAULTS: dict[str, dict[str, object]] = {
     "source": {"kind": "fault", "force": False, "radius_km": 50.0, "amplitude_m": 1.0},
     "source.segment": {"rake_deg": 90.0, "rigidity_pa": RIGIDITY_PA},
     "rays": {"stop_depth_m": 20.0, "max_time_h": 24.0, "seed": 0},
-    "coast": {"from": "grid", "min_rays": 10},
-    "output": {"top_k": 10, "figures": True, "report": True},
+    "coast": {"from": "grid", "min_rays": 10, "point_max_distance_km": 25.0},
+    "output": {"top_k": 10, "figures": True, "report": True, "isochrone_step_min": 30.0},
     "ensemble": {
         "members": 0, "seed": 0, "bathy_rms": 0.0, "bathy_corr_km": 20.0, "strike_deg": 0.0, "dip_deg": 0.0,
         "along_km": 0.0, "across_km": 0.0, "magnitude": 0.0, "launch_jitter_deg": 0.0, "scheduler": "local",

@@ -29,7 +29,7 @@ __all__ = [
     "EnsembleError",
     "TsunamiFocusWarning",
     "ScalingWarning",
-    "ResolutionWarning",
+    "ResolutionWarning", "PointWarning",
 ]
 
 
@@ -95,3 +95,7 @@ class ScalingWarning(TsunamiFocusWarning):
 
 class ResolutionWarning(TsunamiFocusWarning):
     """Grid resolution, ray count or segment length limits what a result can say."""
+
+
+class PointWarning(TsunamiFocusWarning):
+    """A point of interest got no value (outside the grid, or no sea cell / segment within its radius)."""

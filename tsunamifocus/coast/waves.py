@@ -1,4 +1,5 @@
-"""Per-segment values from the linear long-wave solver (maximum amplitude along the coast)."""
+"""Per-segment values along the stop isobath: the linear long-wave solver's maximum amplitude and
+arrival, and the first-arrival travel time of the eikonal solver."""
 
 from __future__ import annotations
 
@@ -13,7 +14,7 @@ from ..constants import STOP_DEPTH_M
 from ..errors import CoastError, InputError
 from ..propagation.wave import WaveResult, _check_depth, _wet_mask
 
-__all__ = ['segment_max_amplitude']
+__all__ = ['segment_max_amplitude', 'segment_first_arrivals']
 
 
 # --------------------------------------------------------------------------------------------------
@@ -101,9 +102,56 @@ def segment_max_amplitude(
     if amp.shape != depth.shape:
         raise InputError(f"wave result grid {amp.shape} does not match depth grid {depth.shape}")
     wet = _wet_mask(np.asarray(depth.values, float), stop_depth_m) & np.isfinite(amp.values)
+    ids = segments["segment_id"].astype(str).values
+    out = _reduce_per_segment(np.asarray(getattr(wave_result, field).values, float), wet, segments, info,
+                              search_radius_cells, statistic)
+    name = "wave_amp_stop_m" if field == "max_amplitude" else f"wave_{field}"
+    ser = pd.Series(out, index=pd.Index(ids, name="segment_id"), name=name)
+    ser.attrs.update(units="m" if field == "max_amplitude" else "s", statistic=statistic, field=field,
+                     search_radius_cells=search_radius_cells, cautions=caution_text())
+    return ser
+
+
+def segment_first_arrivals(travel_time_s: xr.DataArray, segments: Any, *,
+                           search_radius_cells: float = 2.0) -> np.ndarray:
+    """Earliest first-arrival time [s] per coastline segment along the stop isobath.
+
+    The band cells are the cells with a travel time (water deeper than the stop isobath, reached)
+    next to a cell without one; each goes to its nearest segment within ``search_radius_cells``
+    cell sizes, and a segment's time is the earliest of its cells (the same assignment as the
+    wave check's :func:`segment_max_amplitude`).
+
+    Parameters
+    ----------
+    travel_time_s : xarray.DataArray
+        First-arrival times [s] (:func:`tsunamifocus.propagation.traveltime.first_arrival_times`).
+    segments : pandas.DataFrame
+        Segments with a ``geometry`` column (shapely, grid CRS).
+    search_radius_cells : float
+        Search distance around each segment in cell sizes.
+
+    Returns
+    -------
+    numpy.ndarray
+        Seconds per row of ``segments``; NaN where no band cell lies near.
+    """
+    if not hasattr(segments, "columns") or "geometry" not in segments.columns:
+        raise CoastError("segments table must be a DataFrame with a 'geometry' column")
+    if not (math.isfinite(search_radius_cells) and search_radius_cells > 0):
+        raise InputError(f"search_radius_cells={search_radius_cells!r}: expected a positive number of cells")
+    info = _check_depth(travel_time_s)
+    t = np.asarray(travel_time_s.values, float)
+    return _reduce_per_segment(t, np.isfinite(t), segments, info, search_radius_cells, "min")
+
+
+def _reduce_per_segment(values: np.ndarray, wet: np.ndarray, segments: Any, info: Any, search_radius_cells: float,
+                        statistic: str) -> np.ndarray:
+    """Reduce ``values`` over the stop-isobath band cells nearest to each segment (NaN: none near)."""
+    import shapely
+
     band = _coastal_cells(wet, info.periodic_x)
     jj, ii = np.nonzero(band)
-    vals = np.asarray(getattr(wave_result, field).values, float)[jj, ii]
+    vals = values[jj, ii]
     px = info.x[ii]
     py = info.y[jj]
     geoms = np.asarray(segments["geometry"].values, dtype=object)
@@ -111,7 +159,6 @@ def segment_max_amplitude(
     if not ok.all():
         raise CoastError(f"segments table: {int((~ok).sum())} rows have no shapely geometry in column 'geometry'")
     radius = search_radius_cells * max(info.dx, info.dy)
-    ids = segments["segment_id"].astype(str).values
     out = np.full(len(geoms), np.nan)
     if len(vals) and len(geoms):
         # each band cell goes to its nearest segment within the radius (ties: lowest row of the table)
@@ -139,8 +186,4 @@ def segment_max_amplitude(
                 out[s] = v.mean()
             else:
                 out[s] = np.percentile(v, 90)
-    name = "wave_amp_stop_m" if field == "max_amplitude" else f"wave_{field}"
-    ser = pd.Series(out, index=pd.Index(ids, name="segment_id"), name=name)
-    ser.attrs.update(units="m" if field == "max_amplitude" else "s", statistic=statistic, field=field,
-                     search_radius_cells=search_radius_cells, cautions=caution_text())
-    return ser
+    return out

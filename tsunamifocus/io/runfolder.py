@@ -43,6 +43,7 @@ RUN_FILES = {
     "layers": "layers.nc",
     "segments": "segments",  # stem: .gpkg, .geojson, .csv
     "points": "points.csv",
+    "isochrones": "isochrones",  # stem: .gpkg, .geojson
     "manifest": "manifest.json",
     "scenario": "scenario.toml",
     "html": "appendix.html",

@@ -212,9 +212,10 @@ class CoastConfig:
         Polygon file (GeoJSON / GeoPackage) further restricting the coast of interest.
     max_distance_m : float or None
         Largest distance [m] from a ray's end to its segment; None: chosen by the arrivals step.
-    point_max_distance_km : float or None
-        Farthest a point of interest may lie from its segment or from the sea cell it is read at
-        [km] and still get values; None: 3 grid cells, at least 25 km.
+    point_max_distance_km : float
+        Search radius [km] of a point of interest: its first arrival (and lensing-map value) is read
+        at the nearest sea cell deeper than the stop isobath within it, its segment values at the
+        nearest segment within it; farther away the value is left out with a warning.
     """
 
     source: str | Path = DEFAULTS["coast"]["from"]  # type: ignore[assignment]
@@ -226,7 +227,7 @@ class CoastConfig:
     region: tuple[float, float, float, float] | None = None
     region_file: Path | None = None
     max_distance_m: float | None = None
-    point_max_distance_km: float | None = None
+    point_max_distance_km: float = DEFAULTS["coast"]["point_max_distance_km"]  # type: ignore[assignment]
 
 
 @dataclass(frozen=True)
@@ -240,12 +241,14 @@ class PointOfInterest:
 
 @dataclass(frozen=True)
 class OutputConfig:
-    """``[output]``: output folder (absolute), number of hotspots listed, figures/report switches."""
+    """``[output]``: output folder (absolute), number of hotspots listed, figures/report switches, the
+    interval [min] of the isochrones between the hourly ones."""
 
     folder: Path
     top_k: int = DEFAULTS["output"]["top_k"]  # type: ignore[assignment]
     figures: bool = DEFAULTS["output"]["figures"]  # type: ignore[assignment]
     report: bool = DEFAULTS["output"]["report"]  # type: ignore[assignment]
+    isochrone_step_min: float = DEFAULTS["output"]["isochrone_step_min"]  # type: ignore[assignment]
 
 
 @dataclass(frozen=True)
@@ -352,6 +355,7 @@ class Scenario:
                 "top_k": self.output.top_k,
                 "figures": self.output.figures,
                 "report": self.output.report,
+                "isochrone_step_min": self.output.isochrone_step_min,
             },
             "ensemble": dataclasses.asdict(self.ensemble),
         }
@@ -515,8 +519,9 @@ _SPEC: dict[str, tuple[_Key, ...]] = {
              "relative to the scenario file", default_doc="none"),
         _f("max_distance_m", "largest distance from a ray's end to its coastline segment", "m", lo=0.0,
            hi=1.0e6, lo_open=True, default_doc="3 grid cells + 1.5 x the coastline's offset from the stop isobath"),
-        _f("point_max_distance_km", "farthest a point of interest may lie from its segment or sea cell and "
-           "still get values", "km", lo=0.0, hi=20000.0, lo_open=True, default_doc="3 grid cells, at least 25 km"),
+        _f("point_max_distance_km", "search radius of a point of interest: its first arrival is read at the "
+           "nearest sea cell deeper than the stop isobath, its segment values at the nearest segment, within "
+           "this distance (farther: no value and a warning)", "km", lo=0.0, hi=20000.0, lo_open=True),
     ),
     "point": (
         _Key("name", "str", "unique point name", required=True),
@@ -528,6 +533,8 @@ _SPEC: dict[str, tuple[_Key, ...]] = {
         _i("top_k", "number of hotspots listed", "segments", lo=1, hi=10000),
         _Key("figures", "bool", "write PNG figures"),
         _Key("report", "bool", "write the HTML/PDF appendix"),
+        _f("isochrone_step_min", "interval of the travel-time isochrones between the hourly ones (60: hourly "
+           "only)", "min", lo=1.0, hi=1440.0),
     ),
     "ensemble": (
         _i("members", "number of ensemble members (0 = off)", "members", lo=0, hi=1_000_000),

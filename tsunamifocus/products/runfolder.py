@@ -22,6 +22,7 @@ from ..io.manifest import jsonable, write_manifest
 from ..io.styles import lensing_scale
 from ..io.runfolder import RUN_FILES, OutputFolder, refuse_filled_folder, safe_name
 from ..io.scenario import parse_scenario
+from ..propagation.traveltime import isochrone_lines
 from ..studies.progress import StageProgress
 from ..studies.run import (
     RunResult,
@@ -38,7 +39,7 @@ from .summaries import format_run_summary
 __all__ = ['run_scenario']
 #: Raster layers written as Cloud-Optimized GeoTIFF: name -> (description, units).
 COG_LAYERS = {
-    "travel_time_min": ("first ray arrival time", "min"),
+    "travel_time_min": ("first-arrival travel time (eikonal, fast marching)", "min"),
     "energy": ("regularised ray energy per unit wavefront width", "J m-1"),
     "lensing_factor": ("lensing factor: energy over real / same-mean smoothed bathymetry", "1"),
     "focusing_factor": ("focusing factor: energy over real bathymetry / constant-depth ocean", "1"),
@@ -69,6 +70,11 @@ def _layers(a: SourceAnalysis, depth: xr.DataArray) -> dict[str, xr.DataArray]:
     out["lensing_factor"].attrs.setdefault("units", "1")
     out["focusing_factor"].attrs.setdefault("units", "1")
     return out
+
+
+def run_isochrones(a: SourceAnalysis, scenario: Any) -> pd.DataFrame:
+    """The isochrones of a source's travel-time layer: hourly and every ``[output] isochrone_step_min``."""
+    return isochrone_lines(a.travel_times.travel_time_s, scenario.output.isochrone_step_min)
 
 
 def _figures(a: SourceAnalysis, depth: xr.DataArray, scenario: Any, folder: pathlib.Path,
@@ -203,6 +209,10 @@ def write_run_folder(
     if isinstance(seg_files, dict):
         files.update({f"segments_{k}": pathlib.Path(v) for k, v in seg_files.items()})
     files["points"] = pathlib.Path(write_points_csv(points, folder / RUN_FILES["points"]))
+    iso = run_isochrones(a, scenario)
+    iso_files = write_segments(iso, folder / RUN_FILES["isochrones"], info.crs, layer="isochrones",
+                               formats=("gpkg", "geojson"), style=None)
+    files.update({f"isochrones_{k}": pathlib.Path(v) for k, v in iso_files.items()})
     if a.check is not None:
         files["wave_check"] = write_check_table(a.check.table, folder / "wave_check.csv")
     (folder / RUN_FILES["scenario"]).write_text(_scenario_toml(scenario), encoding="utf-8")

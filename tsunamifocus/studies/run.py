@@ -27,7 +27,7 @@ from ..coast.region import CoastRegion, region_from_config
 from ..coast.segments import STATIC_SEGMENT_COLUMNS as _STATIC_COLUMNS
 from ..coast.segments import segment_coastline
 from ..constants import STOP_DEPTH_M
-from ..errors import CoastError, HealthCheckError, ResolutionWarning, ResourceLimitError
+from ..errors import CoastError, HealthCheckError, PointWarning, ResolutionWarning, ResourceLimitError
 from ..focusing.analysis import analyse_focusing
 from ..focusing.ranking import _add_ranks, rank_segments
 from ..grid import GridInfo
@@ -35,7 +35,8 @@ from ..io.bathymetry import load_bathymetry
 from ..io.coastline import read_coastline, read_region_polygons
 from ..ocean.perturb import draw_member_parameters, perturb_bathymetry
 from ..ocean.smooth import smooth_bathymetry
-from ..propagation.rays import trace_rays
+from ..coast.waves import segment_first_arrivals
+from ..propagation.traveltime import TravelTimes, first_arrival_times, sample_at_sea
 from ..source.faults import FaultSegment, PointSource, Rupture
 from ..source.energy import period_bands
 from .check import compare_with_waves
@@ -43,7 +44,7 @@ from ..source.rayfan import make_ray_fan
 from ..source.summary import summarize_source
 from ..source.uplift import uplift_on_grid
 from .ensemble import MemberResult, run_ensemble
-from .points import _sample_nearest_finite, points_table
+from .points import point_max_distance_km, points_table
 from .progress import StageProgress
 from .settings import Choice, choose_ray_count, choose_segment_km, with_choices
 
@@ -168,6 +169,8 @@ class SourceAnalysis:
     outline: list = field(default_factory=list)
     timings: dict = field(default_factory=dict)
     check: Any = None
+    #: First-arrival travel times of the eikonal solver (the run's travel-time layer).
+    travel_times: TravelTimes | None = None
 
 
 def coast_region(scenario: Any) -> CoastRegion:
@@ -330,15 +333,70 @@ def analyse_source(
         max_distance_m=getattr(scenario.coast, "max_distance_m", None),
         coast_area=_area_mask(segments.attrs.get("coast_area"), depth),
     )
+    tt = source_travel_times(src, eta, depth, scenario.rays.stop_depth_m)
+    use_travel_times(foc, tt)
     restrict_to_region(foc, scenario.output.top_k)
     foc.segments["edge_distance_km"] = _edge_distance_km(foc.segments, depth)
     if "segment_id" in foc.ranking:
         edge = dict(zip(foc.segments["segment_id"], foc.segments["edge_distance_km"]))
         foc.ranking["edge_distance_km"] = foc.ranking["segment_id"].map(edge).to_numpy(dtype=float)
     st = foc.runs["real"].stats
-    pr.done(f"{st['n_steps'] / max(st['elapsed_s'], 1e-9) / 1e6:.1f} M ray-steps/s; reasons {st['reasons']}")
+    pr.done(f"{st['n_steps'] / max(st['elapsed_s'], 1e-9) / 1e6:.1f} M ray-steps/s; reasons {st['reasons']}; "
+            f"first arrivals by fast marching in {tt.stats['elapsed_s']:.1f} s")
     return SourceAnalysis(name=src_cfg.name, source=src, eta=eta, fan=fan, summary=summary, focusing=foc,
-                          period_s=period, outline=_source_outline(src, depth))
+                          period_s=period, outline=_source_outline(src, depth), travel_times=tt)
+
+
+def source_travel_times(source: Any, eta: xr.DataArray | None, depth: xr.DataArray,
+                        stop_depth_m: float = STOP_DEPTH_M) -> TravelTimes:
+    """First-arrival times of a source: from its point for a point source, else its uplift area.
+
+    Parameters
+    ----------
+    source : PointSource, FaultSegment, Rupture or (lon, lat)
+        The source; a ``(lon, lat)`` pair or a :class:`PointSource` starts from a point.
+    eta : xarray.DataArray or None
+        Uplift [m] on ``depth`` (computed when None and needed).
+    depth : xarray.DataArray
+        Depth [m], positive down.
+    stop_depth_m : float
+        Stop isobath [m] (shallower water is a barrier).
+
+    Returns
+    -------
+    TravelTimes
+    """
+    if isinstance(source, (tuple, list)) and len(source) == 2 and all(np.isscalar(v) for v in source):
+        return first_arrival_times(depth, point=(float(source[0]), float(source[1])), stop_depth_m=stop_depth_m)
+    if isinstance(source, PointSource):
+        return first_arrival_times(depth, point=(source.x, source.y), point_crs=source.crs, stop_depth_m=stop_depth_m)
+    if eta is None:
+        eta = uplift_on_grid(source, depth)
+    return first_arrival_times(depth, uplift=eta, stop_depth_m=stop_depth_m)
+
+
+def use_travel_times(foc: Any, tt: TravelTimes) -> None:
+    """Make the eikonal first arrivals the run's travel-time layer and segment first arrivals, in place.
+
+    ``foc.travel_time_min`` becomes the eikonal layer [min]; the segments' ``first_arrival_s`` [s] the
+    earliest eikonal time along each segment's stretch of the stop isobath; the rays' own arrival
+    (earliest ray ending nearest to the segment) is kept as the diagnostic column ``ray_arrival_s``.
+    """
+    seg = foc.segments
+    cols = list(seg.columns)
+    if "first_arrival_s" in seg:
+        seg["ray_arrival_s"] = seg["first_arrival_s"].to_numpy(dtype=float)
+        cols.insert(cols.index("first_arrival_s") + 1, "ray_arrival_s")
+    else:
+        cols.append("first_arrival_s")
+    seg["first_arrival_s"] = segment_first_arrivals(tt.travel_time_s, seg)
+    attrs = dict(seg.attrs)
+    foc.segments = seg[cols]
+    foc.segments.attrs = attrs
+    tmin = tt.travel_time_s / 60.0
+    tmin.name = "travel_time_min"
+    tmin.attrs = {**tt.travel_time_s.attrs, "units": "min"}
+    foc.travel_time_min = tmin
 
 
 def _area_mask(area: CoastRegion | None, depth: xr.DataArray):
@@ -409,80 +467,54 @@ def arrival_times(
     source: Any,
     points: Sequence[tuple[float, float]],
     *,
-    n_rays: int = 3600,
     stop_depth_m: float = STOP_DEPTH_M,
-    max_time_s: float = 86400.0,
     points_crs: str | None = "EPSG:4326",
-    **ray_options: Any,
+    max_distance_km: float | None = None,
 ) -> np.ndarray:
-    """First-arrival times [s] at points, for a point ``(lon, lat)`` or a fault/rupture source.
+    """First-arrival times [s] at points, for a point ``(lon, lat)``, a point source, a fault or a rupture.
+
+    The times come from the eikonal solver (:func:`tsunamifocus.propagation.traveltime.first_arrival_times`),
+    the same as the run's travel-time layer: the front starts at the point, or on the source's uplift
+    area. Each point is read at the nearest sea cell deeper than the stop isobath within the search
+    radius.
 
     Parameters
     ----------
     depth : xarray.DataArray
         Depth [m], positive down.
     source : (lon, lat) tuple, PointSource, FaultSegment or Rupture
-        A bare ``(lon, lat)`` launches ``n_rays`` rays in all directions from that point.
-        Fault sources launch their energy-weighted fan from the uplift area.
+        The source.
     points : sequence of (x, y)
         Where to report, in ``points_crs`` (lon/lat by default; None: the grid CRS).
-    n_rays : int
-        Rays to trace.
-    stop_depth_m, max_time_s : float
-        Ray settings [m], [s].
-    **ray_options
-        Passed to :func:`tsunamifocus.rays.trace_rays`.
+    stop_depth_m : float
+        Stop isobath [m]: shallower water is a barrier.
+    points_crs : str or None
+        CRS of ``points``.
+    max_distance_km : float, optional
+        Search radius [km]; default ``DEFAULTS["coast"]["point_max_distance_km"]``.
 
     Returns
     -------
     numpy.ndarray
-        Seconds, NaN where no ray came within 6 cells of a point.
+        Seconds; NaN where no sea cell with a time lies within the radius (a
+        :class:`~tsunamifocus.errors.PointWarning` names the points).
     """
     info = GridInfo.from_dataarray(depth)
-    if isinstance(source, (tuple, list)) and len(source) == 2 and all(np.isscalar(v) for v in source):
-        to_grid = Transformer.from_crs("EPSG:4326", info.crs, always_xy=True)
-        x0, y0 = to_grid.transform(float(source[0]), float(source[1]))
-        az = (np.arange(n_rays) + 0.5) * 360.0 / n_rays
-        x0 = np.full(n_rays, x0)
-        y0 = np.full(n_rays, y0)
-        res = trace_rays(depth, x0, y0, az, stop_depth_m=stop_depth_m, max_time_s=max_time_s, **ray_options)
-    else:
-        eta = uplift_on_grid(source, depth)
-        fan = make_ray_fan(eta, depth, n_rays, stop_depth_m=stop_depth_m)
-        res = trace_rays(depth, fan.x0, fan.y0, fan.azimuth_deg, weights=fan.weights, stop_depth_m=stop_depth_m,
-                         max_time_s=max_time_s, **ray_options)
+    tt = source_travel_times(source, None, depth, stop_depth_m)
     pts = np.asarray(points, dtype=float).reshape(-1, 2)
     if points_crs is not None:
         t = Transformer.from_crs(CRS.from_user_input(points_crs), info.crs, always_xy=True)
-        px, py = t.transform(pts[:, 0], pts[:, 1])
+        px, py = (np.atleast_1d(np.asarray(v, dtype=float)) for v in t.transform(pts[:, 0], pts[:, 1]))
     else:
         px, py = pts[:, 0], pts[:, 1]
-    out = np.empty(len(pts))
-    for k, (x, y) in enumerate(zip(np.atleast_1d(px), np.atleast_1d(py))):
-        out[k] = _sample_bilinear_finite(res.first_arrival_s, float(x), float(y))
+    km, _ = point_max_distance_km(depth, max_distance_km)
+    out, _, _, _ = sample_at_sea(tt.travel_time_s, px, py, km * 1000.0)
+    missing = np.flatnonzero(~np.isfinite(out))
+    if missing.size:
+        warnings.warn(f"arrival_times: no sea cell deeper than {stop_depth_m:g} m reached by the front within "
+                      f"{km:g} km of point(s) {', '.join(str(int(k)) for k in missing)}: NaN there",
+                      PointWarning, stacklevel=2)
     return out
-
-
-def _sample_bilinear_finite(da: xr.DataArray, x: float, y: float) -> float:
-    """Bilinear value at (x, y) from the finite corners; nearest finite within 6 cells otherwise."""
-    info = GridInfo.from_dataarray(da)
-    fi, fj = info.index_of(x, y)
-    fi, fj = float(fi), float(fj)
-    i0, j0 = int(math.floor(fi)), int(math.floor(fj))
-    tx, ty = fi - i0, fj - j0
-    v = da.values
-    acc = wsum = 0.0
-    for dj, wy in ((0, 1 - ty), (1, ty)):
-        for di, wx in ((0, 1 - tx), (1, tx)):
-            j, i = j0 + dj, i0 + di
-            if info.periodic_x:
-                i %= info.nx
-            if 0 <= j < info.ny and 0 <= i < info.nx and np.isfinite(v[j, i]):
-                acc += wx * wy * v[j, i]
-                wsum += wx * wy
-    if wsum > 0.5:
-        return acc / wsum
-    return _sample_nearest_finite(da, x, y)[0]
 
 
 # ------------------------------------------------------------------------------------ outputs
