@@ -56,7 +56,7 @@ from ..io.styles import symmetric_log_range as _symmetric_log_range  # noqa: F40
 from ..io.styles import tick_label as _tick_label
 from ..propagation.wave import WAVE_LIMITS
 
-__all__ = ['plot_ray_vs_wave', 'CAUTION_FOOTER', 'DPI', 'plot_ray_field', 'plot_lensing_map', 'plot_ranking',
+__all__ = ['plot_ray_vs_wave', 'plot_travel_time', 'CAUTION_FOOTER', 'DPI', 'plot_ray_field', 'plot_lensing_map', 'plot_ranking',
            'plot_uplift', 'plot_agreement', 'plot_oceans', 'RANK_FIELDS']
 
 
@@ -1752,3 +1752,94 @@ def plot_oceans(
         foot = 0.22 / fig.get_size_inches()[1]
         engine.set(rect=(0.0, foot, 1.0, 1.0 - foot))
     return _save_png(fig, out_path, title)
+
+
+def _isochrone_label(minutes: float) -> str:
+    h, m = divmod(int(round(minutes)), 60)
+    return f"{h} h" if m == 0 else (f"{m} min" if h == 0 else f"{h} h {m:02d}")
+
+
+@_styled
+def plot_travel_time(
+    travel_time_s: xr.DataArray,
+    depth: xr.DataArray,
+    levels_min: Sequence[tuple[float, bool]],
+    *,
+    out_path: str | os.PathLike,
+    title: str = "First-arrival travel time and isochrones",
+    source_outline: Any = None,
+    points: Sequence[tuple[str, float, float]] | None = None,
+) -> pathlib.Path:
+    """Map of the first-arrival travel time with labelled isochrones.
+
+    Parameters
+    ----------
+    travel_time_s : xarray.DataArray
+        First-arrival time [s] (eikonal solver); NaN on barriers.
+    depth : xarray.DataArray
+        Depth [m] of the same grid (land and water shallower than the stop isobath painted).
+    levels_min : sequence of (float, bool)
+        Isochrone times [min] and whether each is an hourly line
+        (:func:`tsunamifocus.propagation.traveltime.isochrone_levels`): hourly lines bold and
+        labelled, the finer ones thin (labelled when there are few lines).
+    out_path : str or os.PathLike
+        PNG file to write.
+    title : str
+        Figure title.
+    source_outline : optional
+        Fault outlines in the grid CRS.
+    points : sequence of (name, x, y), optional
+        Points of interest in the grid CRS, marked and named.
+
+    Returns
+    -------
+    pathlib.Path
+    """
+    info = _check_grid(travel_time_s, "plot_travel_time travel_time_s")
+    _same_kind(info, _check_grid(depth, "plot_travel_time depth"), "plot_travel_time depth")
+    t_h = _values(travel_time_s) / 3600.0
+    if not np.isfinite(t_h).any():
+        raise InputError("plot_travel_time: travel_time_s has no finite values")
+    fig, ax, geo = _new_map(info, title)
+    tmax = float(np.nanmax(t_h))
+    # the colour bar in minutes for short crossings, in hours beyond 3 h
+    unit, k = ("min", 60.0) if tmax < 3.0 else ("h", 1.0)
+    cmap = _cmap("viridis").with_extremes(bad=(0.0, 0.0, 0.0, 0.0))
+    im = ax.imshow(np.ma.masked_invalid(t_h * k), origin="lower", extent=_extent(info), cmap=cmap, vmin=0.0,
+                   vmax=max(tmax * k, 1e-6), interpolation="nearest", zorder=1, alpha=0.85)
+    handles = _land_and_coast(ax, depth, info)
+    xd, yd = travel_time_s.dims[1], travel_time_s.dims[0]
+    xs, ys = travel_time_s[xd].values, travel_time_s[yd].values
+    tm = t_h * 60.0
+    hourly = [m for m, h in levels_min if h]
+    finer = [m for m, h in levels_min if not h]
+    label_finer = len(levels_min) <= 12
+    if finer:
+        cs = ax.contour(xs, ys, tm, levels=finer, colors="white", linewidths=0.6, zorder=5)
+        if label_finer:
+            for lab in ax.clabel(cs, fmt=_isochrone_label, fontsize=7.0, inline=True, inline_spacing=2):
+                lab.set_path_effects([patheffects.withStroke(linewidth=2.0, foreground="0.15")])
+                lab.set_color("white")
+        step = min(np.diff(sorted([0.0, *finer, *hourly]))) if len(finer) else 0.0
+        handles.append(Line2D([], [], color="0.55", lw=0.7, label=f"Isochrone every {step:g} min"))
+    if hourly:
+        cs = ax.contour(xs, ys, tm, levels=hourly, colors="black", linewidths=1.3, zorder=6)
+        for lab in ax.clabel(cs, fmt=_isochrone_label, fontsize=8.0, inline=True, inline_spacing=3):
+            lab.set_path_effects(_HALO)
+        handles.append(Line2D([], [], color="black", lw=1.3, label="Isochrone every hour"))
+    if source_outline is not None and _draw_lines(
+        ax, source_outline, info.geographic, colors=_OKABE_GREEN, linewidths=1.8, zorder=8, path_effects=_HALO
+    ):
+        handles.append(Line2D([], [], color=_OKABE_GREEN, lw=1.8, label="Fault outline"))
+    if points:
+        x0, x1 = _extent(info)[:2]
+        for name, px, py in points:
+            ax.plot([px], [py], marker="o", ms=5, mfc="white", mec="black", zorder=9)
+            right = (px - x0) > 0.6 * (x1 - x0)  # names of points near the right edge go to their left
+            ax.annotate(str(name), (px, py), xytext=(-6 if right else 6, 4), textcoords="offset points",
+                        ha="right" if right else "left", fontsize=7.5, zorder=9, path_effects=_HALO)
+        handles.append(Line2D([], [], ls="none", marker="o", ms=5, mfc="white", mec="black",
+                              label="Point of interest"))
+    cb = _right_colorbar(fig, ax, im)
+    cb.set_label(f"First-arrival travel time ({unit})\n(eikonal, fast marching)")
+    return _finish(fig, out_path, ax=ax, geo=geo, handles=handles, right_cbars=1)

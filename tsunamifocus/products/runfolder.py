@@ -12,6 +12,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 import xarray as xr
+from pyproj import Transformer
 
 from ..coast.segments import STATIC_SEGMENT_COLUMNS as _STATIC_COLUMNS
 from ..constants import __version__
@@ -22,7 +23,7 @@ from ..io.manifest import jsonable, write_manifest
 from ..io.styles import lensing_scale
 from ..io.runfolder import RUN_FILES, OutputFolder, refuse_filled_folder, safe_name
 from ..io.scenario import parse_scenario
-from ..propagation.traveltime import isochrone_lines
+from ..propagation.traveltime import isochrone_levels, isochrone_lines
 from ..studies.progress import StageProgress
 from ..studies.run import (
     RunResult,
@@ -109,6 +110,11 @@ def _figures(a: SourceAnalysis, depth: xr.DataArray, scenario: Any, folder: path
     if np.isfinite(pd.to_numeric(seg["lensing_factor"], errors="coerce").to_numpy(float)).any():
         figs["ranking"] = F.plot_ranking(seg, scenario.output.top_k, out_path=folder / "ranking.png", title=title,
                                          prob_col=prob)
+    tt = a.travel_times.travel_time_s
+    figs["travel_time"] = F.plot_travel_time(
+        tt, depth, isochrone_levels(tt, scenario.output.isochrone_step_min), out_path=folder / "travel_time.png",
+        source_outline=a.outline or None, points=_points_xy(scenario.points, depth),
+        title=f"First-arrival travel time and isochrones: {a.name}")
     figs["uplift"] = F.plot_uplift(a.eta, out_path=folder / "uplift.png", depth=depth,
                                    source_outline=a.outline or None, coast_lines=coast,
                                    title=f"Initial sea-surface displacement (Okada 1985): {a.name}")
@@ -119,6 +125,21 @@ def _figures(a: SourceAnalysis, depth: xr.DataArray, scenario: Any, folder: path
     if a.check is not None:
         figs.update(check_figures(a.check, folder))
     return {k: pathlib.Path(v) if v is not None else folder / f"{k}.png" for k, v in figs.items()}
+
+
+def _points_xy(points: Sequence[Any], depth: xr.DataArray) -> list[tuple[str, float, float]]:
+    """Points of interest inside the grid as (name, x, y) in the grid CRS."""
+    info = GridInfo.from_dataarray(depth)
+    out = []
+    for p in points or []:
+        if info.geographic:
+            x, y = float(info.wrap_lon(p.lon)), float(p.lat)
+        else:
+            x, y = (float(v) for v in Transformer.from_crs("EPSG:4326", info.crs, always_xy=True)
+                    .transform(p.lon, p.lat))
+        if np.isfinite(x) and np.isfinite(y) and bool(np.all(info.contains(x, y))):
+            out.append((p.name, x, y))
+    return out
 
 
 def _ranking_title(seg: pd.DataFrame, top_k: int) -> str:
