@@ -241,8 +241,10 @@ FIGURE_CAPTIONS: dict[str, str] = {
     "ray_field": "Ray field over the bathymetry: accumulated ray energy per unit wavefront width "
     "(log scale) and a subset of ray paths; the branches are where refraction focuses energy.",
     "lensing_map": "Lensing factor (log scale, 1 = no focusing) with first-arrival travel-time "
-    "contours in minutes and the coastline segments coloured by their lensing factor; the top-ranked "
+    "contours in minutes (eikonal solver) and the coastline segments coloured by their lensing factor; the top-ranked "
     "segments are labelled by rank.",
+    "travel_time": "First-arrival travel time (eikonal equation solved by fast marching) with the "
+    "isochrones: hourly (bold) and at the finer interval of the scenario (thin).",
     "ranking": "Top coastline segments ranked by lensing factor with 5–95 % intervals; grey hatched "
     "bars are segments flagged unreliable.",
 }
@@ -274,6 +276,7 @@ CONTEXT_KEYS: dict[str, str] = {
     "ensemble": "optional section: {text, metrics, table, table_caption, figures}",
     "comparison": "optional section: {text, metrics, table, table_caption, figures}",
     "wave_check": "optional section: {text, metrics, table, table_caption, figures}",
+    "travel_times": "optional section: {text, metrics, table, table_caption, figures} (first arrivals, isochrones)",
 }
 
 #: Keys of an optional section (ensemble, comparison, wave_check).
@@ -283,6 +286,7 @@ _OPTIONAL_TITLES = {
     "ensemble": "Uncertainty ensemble",
     "comparison": "Scenario comparison",
     "wave_check": "Independent wave-equation check",
+    "travel_times": "First-arrival travel times and isochrones",
 }
 
 # --------------------------------------------------------------------------------------
@@ -718,7 +722,7 @@ def document_blocks(context: Mapping[str, Any]) -> tuple[dict[str, str], list[_B
         n += 1
         blocks.append(_b("h2", text=f"{n}. {title}", anchor=anchor))
         blocks.extend(body)
-    for key in ("ensemble", "comparison", "wave_check"):
+    for key in ("travel_times", "ensemble", "comparison", "wave_check"):
         if context.get(key) is not None:
             n += 1
             blocks.extend(_optional_section(key, context[key], n))

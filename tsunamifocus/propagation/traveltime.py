@@ -46,7 +46,7 @@ FRONT_FRACTION: float = 0.05
 
 #: Radius [cells] of the disc around a point source whose times are set exactly (distance / c)
 #: before marching; removes the first-order error of a point-like start (common practice, no source).
-POINT_INIT_CELLS: float = 3.0
+POINT_INIT_CELLS: float = 5.0
 
 
 @dataclass
