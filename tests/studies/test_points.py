@@ -16,6 +16,7 @@ import pytest
 from pyproj import Geod
 from shapely.geometry import LineString
 
+from tsunamifocus.constants import DEFAULTS
 from tsunamifocus.grid import GridInfo, make_grid
 from tsunamifocus.io.scenario import PointOfInterest
 from tsunamifocus.studies.points import nearest_segment, point_max_distance_km, points_table
@@ -34,7 +35,7 @@ def _case():
         "geometry": [LineString([(141.0, 41.0), (141.0, 42.0)]), LineString([(235.7, 41.3), (235.7, 42.3)])],
         "lensing_factor": [9.0, 2.0], "amp_1m_m": [5.0, 1.2], "first_arrival_s": [1800.0, 36000.0],
     })
-    # rays reached the sea only west of 235 E (the point on the coast reads the nearest such cell)
+    # the front reached the sea only west of 235 E (the point on the coast reads the nearest such cell)
     tt_v = tt.values.copy()
     tt_v[:, lon > 235.0] = np.nan
     tt = tt.copy(data=tt_v)
@@ -60,17 +61,20 @@ def test_point_in_minus180_numbers_matches_the_right_segment_with_geodesic_dista
     ref = _brute_km(-124.2, 41.75, analysis.focusing.segments["geometry"][1], info.radius_m)
     assert r["segment_distance_km"] == pytest.approx(ref, rel=1e-3)
     assert r["lensing_factor"] == 2.0 and r["amp_1m_m"] == 1.2
-    # the sea cell read: the nearest cell west of 235 E, its geodesic distance reported
+    # the sea cell read: the nearest cell west of 235 E, its geodesic distance (pyproj.Geod) reported
     g = Geod(a=info.radius_m, b=info.radius_m)
     dc = min(g.inv(-124.2, 41.75, 235.0, la)[2] for la in (41.5, 42.0)) / 1000.0
-    assert r["cell_distance_km"] == pytest.approx(dc, rel=1e-6) and 50.0 < dc < 80.0
+    assert r["snap_distance_km"] == pytest.approx(dc, rel=1e-6) and 50.0 < dc < 80.0
     assert r["first_arrival_min"] == 600.0 and r["lensing_factor_map"] == 1.5
     assert r["note"] == ""
-    # with a limit below the cell's distance the map values are left out and the segment's
-    # first arrival (36000 s) is used instead
-    r2 = points_table(analysis, pts, depth, max_distance_km=50.0).iloc[0]
-    assert math.isnan(r2["lensing_factor_map"]) and r2["first_arrival_min"] == 600.0
-    assert r2["note"].startswith("no map value") and r2["lensing_factor"] == 2.0
+    # with a search radius below the cell's distance the first arrival and the map value are left out
+    # (no stand-in value), with a note and a warning
+    t2 = points_table(analysis, pts, depth, max_distance_km=50.0)
+    r2 = t2.iloc[0]
+    assert "Harbour west coast" in t2.attrs["warnings"][0]
+    assert math.isnan(r2["lensing_factor_map"]) and math.isnan(r2["first_arrival_min"])
+    assert math.isnan(r2["snap_distance_km"])
+    assert r2["note"].startswith("no first arrival or map value") and r2["lensing_factor"] == 2.0
 
 
 def test_far_points_get_no_value_and_a_note():
@@ -82,7 +86,7 @@ def test_far_points_get_no_value_and_a_note():
     # ~2,000 km from the nearest segment: no segment values; the sea cell is the point itself
     assert mid["segment_distance_km"] > 1000.0
     assert math.isnan(mid["lensing_factor"]) and math.isnan(mid["amp_1m_m"])
-    assert mid["first_arrival_min"] == 600.0 and "no segment values" in mid["note"] and "limit 50 km" in mid["note"]
+    assert mid["first_arrival_min"] == 600.0 and "no segment values" in mid["note"] and "search radius 50 km" in mid["note"]
     out = tab.loc["outside"]
     assert "outside the grid" in out["note"]
     assert all(math.isnan(out[c]) for c in ("first_arrival_min", "lensing_factor", "amp_1m_m", "lensing_factor_map"))
@@ -95,9 +99,8 @@ def test_far_points_get_no_value_and_a_note():
 def test_default_limit_and_projected_distance():
     _, depth = _case()
     km, why = point_max_distance_km(depth)
-    # 3 cells of the 0.5-degree grid (55.6 km in latitude) exceed the 25 km floor
-    assert km == pytest.approx(3 * math.radians(0.5) * GridInfo.from_dataarray(depth).radius_m / 1000.0, rel=1e-9)
-    assert "3 grid cells" in why
+    # one default, from the table of defaults
+    assert (km, why) == (DEFAULTS["coast"]["point_max_distance_km"], "default")
     assert point_max_distance_km(depth, 12.0) == (12.0, "[coast] point_max_distance_km")
     # planar grid: plain Euclidean distance to the line (shapely-independent arithmetic)
     x = np.arange(0.0, 100e3, 1e3)

@@ -187,7 +187,7 @@ def test_refuses_nonempty_output_and_failed_run_leaves_folder(tmp_path):
 @pytest.mark.realdata
 @pytest.mark.slow
 def test_global_point_source_arrivals_match_eikonal(etopo_path):
-    """First arrivals on the real 0.5-degree Pacific against scikit-fmm on a Mercator grid.
+    """``arrival_times`` (eikonal solver) on the real 0.5-degree Pacific against scikit-fmm on a Mercator grid.
 
     Independent reference: the eikonal equation |grad T| = 1/c solved by fast marching
     (scikit-fmm, general-purpose) on a conformal Mercator grid, where the sphere's metric is
@@ -203,7 +203,7 @@ def test_global_point_source_arrivals_match_eikonal(etopo_path):
     d = crop_bathymetry(d, (130.0, -55.0, 290.0, 55.0))
     src = (250.0, -30.0)  # open South Pacific
     targets = [(200.0, 10.0), (180.0, -20.0), (160.0, 30.0), (215.0, -45.0)]
-    t_ray = arrival_times(d, src, targets, n_rays=7200, stop_depth_m=20.0, max_time_s=30 * 3600.0)
+    t_ray = arrival_times(d, src, targets, stop_depth_m=20.0)
 
     R = 6371008.8
     lon = np.radians(d.lon.values)
@@ -230,7 +230,8 @@ def test_global_point_source_arrivals_match_eikonal(etopo_path):
     for (tl, tb), tr in zip(targets, t_ray):
         te = float(g([[tb, tl]])[0])
         assert math.isfinite(tr) and math.isfinite(te)
-        assert tr == pytest.approx(te, rel=0.04), (tl, tb, tr / 3600, te / 3600)
+        # reference: scikit-fmm on the Mercator grid (independent library and projection), within 2 %
+        assert tr == pytest.approx(te, rel=0.02), (tl, tb, tr / 3600, te / 3600)
 
 
 def test_compare_and_check_commands(demo_run, tmp_path, capsys):

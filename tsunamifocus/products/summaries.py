@@ -185,7 +185,7 @@ def format_run_summary(result: RunResult) -> str:
             lim = pts.attrs.get("max_distance_km")
             ok = int((pts["note"] == "").sum()) if "note" in pts else len(pts)
             lines.append(f"  points of interest: {ok} of {len(pts)} with every value"
-                         + (f" (limit {lim:.0f} km to the segment and sea cell read)" if lim else ""))
+                         + (f" (search radius {lim:g} km for the sea cell and the segment read)" if lim else ""))
             for w in warn:
                 lines.append(f"    WARNING: {w}")
     if result.ensemble is not None:

@@ -18,7 +18,6 @@ value. Longitudes may be given in -180..180 or 0..360 numbers whatever the grid 
 from __future__ import annotations
 
 import math
-import warnings
 from collections.abc import Sequence
 from typing import Any
 
@@ -29,7 +28,6 @@ import xarray as xr
 from pyproj import CRS, Geod, Transformer
 
 from ..constants import DEFAULTS
-from ..errors import PointWarning
 from ..grid import GridInfo
 from ..propagation.traveltime import sample_at_sea
 
@@ -106,8 +104,8 @@ def points_table(analysis: Any, points: Sequence[Any], depth: xr.DataArray, *,
         nearest sea cell deeper than the stop isobath), ``lensing_factor`` (segment), ``amp_1m_m``
         [m], ``nearest_segment``, ``segment_distance_km``, ``lensing_factor_map`` (map value at the
         same cell), ``snap_distance_km`` (distance to that cell), ``note`` (empty when every value
-        was given). ``attrs["warnings"]`` lists the notes as sentences; ``attrs["max_distance_km"]``
-        the radius.
+        was given). ``attrs["warnings"]`` lists the notes as sentences (the run summary prints them
+        as warnings); ``attrs["max_distance_km"]`` the radius.
     """
     info = GridInfo.from_dataarray(depth)
     limit_km, limit_src = point_max_distance_km(depth, max_distance_km)
@@ -163,6 +161,4 @@ def points_table(analysis: Any, points: Sequence[Any], depth: xr.DataArray, *,
     out.attrs["warnings"] = notes
     out.attrs["max_distance_km"] = limit_km
     out.attrs["max_distance_source"] = limit_src
-    if notes:
-        warnings.warn("; ".join(notes), PointWarning, stacklevel=2)
     return out
