@@ -45,7 +45,7 @@ def sphere_times():
 
 
 @pytest.mark.parametrize("lon,lat", [
-    (0.5, 30.0),      # 90 km east, across the 0/360 seam
+    (3.0, 30.0),      # 340 km east, across the 0/360 seam (beyond the exact start disc)
     (40.0, 30.0),     # along a parallel
     (359.5, 75.0),    # due north
     (100.0, -20.0),   # far, south-east
