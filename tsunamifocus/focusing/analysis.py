@@ -81,7 +81,7 @@ class FocusingResult:
     lensing_factor, focusing_factor : xarray.DataArray
         Ratios [-] to the reference-bathymetry and constant-depth runs.
     travel_time_min : xarray.DataArray
-        First ray arrival [min].
+        First-arrival time [min]: the earliest ray here; a run (studies.run) replaces it with the eikonal layer.
     kernel_sigma_m : xarray.DataArray
         Regularisation width [m].
     reference_depth : xarray.DataArray

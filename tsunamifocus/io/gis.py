@@ -41,7 +41,7 @@ __all__ = ['LAYER_INFO', 'POINT_COLUMNS', 'LON180_SUFFIX', 'LonLayout', 'lon_lay
 
 #: Long names and units (UDUNITS spelling) of the standard raster layers of a run.
 LAYER_INFO: dict[str, tuple[str, str]] = {
-    "travel_time_min": ("first-arrival travel time of the long-wave rays", "min"),
+    "travel_time_min": ("first-arrival travel time of the long wave (eikonal, fast marching)", "min"),
     "energy": ("ray energy per unit wavefront width (accumulated over rays)", "J m-1"),
     "lensing_factor": ("lensing factor: energy relative to the smoothed reference bathymetry", "1"),
     "focusing_factor": ("focusing factor: energy relative to spreading on a constant-depth ocean", "1"),
