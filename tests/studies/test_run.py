@@ -10,6 +10,7 @@ import json
 import math
 
 import numpy as np
+import pandas as pd
 import pytest
 
 from tsunamifocus.errors import DataFileError, OutputExistsError
@@ -44,7 +45,8 @@ def test_demo_outputs_exist(demo_run):
               "manifest.json", "scenario.toml", "figures"):
         assert n in names, n
     figs = {p.name for p in (out / "figures").iterdir()}
-    assert {"ray_field.png", "lensing_map.png", "ranking.png", "uplift.png"} <= figs
+    assert {"ray_field.png", "lensing_map.png", "ranking.png", "uplift.png", "travel_time.png"} <= figs
+    assert {"isochrones.gpkg", "isochrones.geojson"} <= names
     assert not any(p.name.startswith(".") for p in out.parent.iterdir())  # no temp folders left
 
 
@@ -79,6 +81,37 @@ def test_netcdf_is_cf(demo_run):
             assert v in ds and "units" in ds[v].attrs and "grid_mapping" in ds[v].encoding | ds[v].attrs
         assert "SCREENING" in (ds.attrs.get("comment", "") + ds.attrs.get("caution", "")).upper()
         assert ds["travel_time_min"].attrs["units"] == "min"
+
+
+def test_first_arrivals_and_isochrones_of_the_run(demo_run):
+    import pyogrio.raw
+    import shapely
+
+    result, out = demo_run
+    seg = result.analysis.focusing.segments
+    t, tray = seg["first_arrival_s"].to_numpy(float), seg["ray_arrival_s"].to_numpy(float)
+    ok = np.isfinite(t) & np.isfinite(tray)
+    assert ok.sum() > 0.8 * len(seg)
+    # Fermat's principle: a ray's time is the time of one path, the first arrival the least over all
+    # paths, so ray arrivals are not earlier (2 % for the rays' wavelength-smoothed sea floor and the
+    # grid; common practice, no source)
+    assert (tray[ok] >= 0.98 * t[ok]).all()
+    # the layer written is the eikonal layer, and the isochrones lie on it
+    tt = result.analysis.travel_times.travel_time_s
+    np.testing.assert_allclose(result.analysis.focusing.travel_time_min.values, tt.values / 60.0)
+    gj = json.loads((out / "isochrones.geojson").read_text())
+    labels = {f["properties"]["label"]: f["properties"]["minutes"] for f in gj["features"]}
+    assert labels.get("1 h") == 60.0 and labels.get("30 min") == 30.0
+    _m, _f, wkb, fields = pyogrio.raw.read(out / "isochrones.gpkg")
+    g = shapely.from_wkb(wkb)[list(fields[0]).index(60.0)]
+    xy = shapely.get_coordinates(g)
+    from scipy.interpolate import RegularGridInterpolator
+
+    f = RegularGridInterpolator((tt.y.values, tt.x.values), tt.values / 60.0, bounds_error=False)
+    v = f(xy[:, ::-1])
+    assert np.nanmedian(np.abs(v - 60.0)) < 0.5  # minutes: the line is the 60-min level (linear interpolation)
+    pts = pd.read_csv(out / "points.csv", comment="#")
+    assert (pts["snap_distance_km"] <= 25.0).all() and np.isfinite(pts["first_arrival_min"]).all()
 
 
 def test_vectors_read_back(demo_run):

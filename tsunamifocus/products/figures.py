@@ -1823,8 +1823,13 @@ def plot_travel_time(
         step = min(np.diff(sorted([0.0, *finer, *hourly]))) if len(finer) else 0.0
         handles.append(Line2D([], [], color="0.55", lw=0.7, label=f"Isochrone every {step:g} min"))
     if hourly:
-        cs = ax.contour(xs, ys, tm, levels=hourly, colors="black", linewidths=1.3, zorder=6)
-        for lab in ax.clabel(cs, fmt=_isochrone_label, fontsize=8.0, inline=True, inline_spacing=3):
+        ax.contour(xs, ys, tm, levels=hourly, colors="black", linewidths=1.3, zorder=6)
+        # labels in deep water only: on shelves the isochrones bunch up and their labels would pile
+        dv = _values(depth)
+        deep = np.isfinite(dv) & (dv > 1000.0)
+        lab_t = np.where(deep, tm, np.nan) if deep.sum() > 0.2 * np.isfinite(tm).sum() else tm
+        cl = ax.contour(xs, ys, lab_t, levels=hourly, colors="none", linewidths=0.0, zorder=6)
+        for lab in ax.clabel(cl, fmt=_isochrone_label, fontsize=8.0, inline=False, colors="black"):
             lab.set_path_effects(_HALO)
         handles.append(Line2D([], [], color="black", lw=1.3, label="Isochrone every hour"))
     if source_outline is not None and _draw_lines(

@@ -153,6 +153,13 @@ def format_run_summary(result: RunResult) -> str:
         lines.append(f"  integration step {h['step_s']:.2f} s, steps per ray {h['steps_per_ray_mean']:.0f} mean / "
                      f"{h['steps_per_ray_max']:.0f} max; rays stopped in NaN holes or on land "
                      f"{h['nan_or_land_fraction']:.2%}")
+        tts = getattr(a, "travel_times", None)
+        if tts is not None and "first_arrival_s" in f.segments:
+            fa = pd.to_numeric(f.segments["first_arrival_s"], errors="coerce").to_numpy(float)
+            n_none = int((~np.isfinite(fa)).sum())
+            lines.append(f"  first arrivals: eikonal equation by fast marching ({tts.stats['elapsed_s']:.1f} s)"
+                         + (f"; {n_none} of {len(fa)} segments not joined to the source by water deeper than the "
+                            "stop isobath on this grid: no first arrival" if n_none else ""))
         rk = f.ranking
         rel = rk[rk["reliable"].fillna(False).astype(bool)] if "reliable" in rk else rk
         if len(rel) == 0:
