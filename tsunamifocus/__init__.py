@@ -47,6 +47,7 @@ from .source.rayfan import RayFan, make_ray_fan
 from .source.summary import SourceSummary, summarize_source
 from .propagation.rays import RayResult, trace_rays
 from .propagation.wave import simulate_linear_long_wave
+from .propagation.traveltime import TravelTimes, first_arrival_times, isochrone_lines
 from .coast.coastline import coastline_from_grid
 from .coast.segments import segment_coastline
 from .focusing.analysis import FocusingResult, analyse_focusing
@@ -79,6 +80,7 @@ __all__ = [
     "analyse_focusing", "FocusingResult", "segment_arrivals", "rank_segments", "energy_budget",
     # pipeline, ensembles, comparison, wave check
     "Scenario", "parse_scenario", "run_scenario", "RunResult", "arrival_times",
+    "first_arrival_times", "TravelTimes", "isochrone_lines",
     "run_ensemble", "EnsembleResult", "perturb_bathymetry", "compare_runs", "read_run",
     "simulate_linear_long_wave", "wave_check",
     # outputs

@@ -501,3 +501,43 @@ def test_region_without_coast_is_a_one_line_error(tmp_path):
     with pytest.raises(CoastError, match=r"\[coast\] region \(lon 140\.\.145, lat 30\.\.40\) holds none of the") as ei:
         _segments_for(d, dc.replace(sc, coast=dc.replace(sc.coast, segment_km=20.0)))
     assert "\n" not in str(ei.value)
+
+
+def test_arrival_times_point_fault_and_rupture_use_the_eikonal_solver():
+    """``arrival_times`` for a (lon, lat) point, a FaultSegment and a Rupture on a constant-depth sphere."""
+    from pyproj import Geod
+
+    from tsunamifocus.constants import EARTH_RADIUS_M
+    from tsunamifocus.errors import PointWarning
+    from tsunamifocus.grid import make_grid
+    from tsunamifocus.propagation.traveltime import first_arrival_times, sample_at_sea
+    from tsunamifocus.source.faults import FaultSegment, Rupture
+    from tsunamifocus.source.uplift import uplift_on_grid
+
+    lon = np.arange(140.0, 180.0, 0.2)
+    lat = np.arange(10.0, 40.0, 0.2)
+    h = np.full((lat.size, lon.size), 4000.0)
+    h[:, lon > 175.0] = -100.0  # land in the east
+    d = make_grid(h, lon, lat, "EPSG:4326")
+    c = math.sqrt(9.81 * 4000.0)
+    pts = [(160.0, 30.0), (150.0, 15.0), (177.0, 25.0)]  # the last one inland, 200 km from the sea
+    with pytest.warns(PointWarning, match="point"):
+        t = arrival_times(d, (145.0, 25.0), pts)
+    g = Geod(a=EARTH_RADIUS_M, b=EARTH_RADIUS_M)
+    for (lo, la), tk in zip(pts[:2], t[:2]):
+        # reference: great-circle distance (pyproj.Geod) / sqrt(g h), within 0.5 %
+        assert tk == pytest.approx(g.inv(145.0, 25.0, lo, la)[2] / c, rel=0.005)
+    assert math.isnan(t[2])  # beyond the search radius: no value
+    seg = FaultSegment(trace=((150.0, 20.0), (151.0, 23.0)), top_depth_km=5.0, dip_deg=15.0, width_km=80.0,
+                       magnitude=8.3)
+    tf_seg = arrival_times(d, seg, pts[:2])
+    tf_rup = arrival_times(d, Rupture([seg]), pts[:2])
+    # the same solver from the uplift area: a fault and a one-segment rupture give the same field
+    np.testing.assert_allclose(tf_seg, tf_rup)
+    direct = first_arrival_times(d, uplift=uplift_on_grid(Rupture([seg]), d)).travel_time_s
+    ref = sample_at_sea(direct, np.array([p[0] for p in pts[:2]]), np.array([p[1] for p in pts[:2]]), 25e3)[0]
+    np.testing.assert_allclose(tf_rup, ref)
+    # the uplift area starts the front ahead of its centre: earlier than from the centre point
+    # (geometry: the front starts up to the area's half-width closer; common practice, no source)
+    t_pt = arrival_times(d, (150.5, 21.5), pts[:2])
+    assert (tf_rup < t_pt).all()
