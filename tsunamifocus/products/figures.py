@@ -1814,10 +1814,16 @@ def plot_travel_time(
     hourly = [m for m, h in levels_min if h]
     finer = [m for m, h in levels_min if not h]
     label_finer = len(levels_min) <= 12
+    # no labels under the north arrow (top right) or the scale bar (bottom left)
+    ny_, nx_ = tm.shape
+    inner = np.ones(tm.shape, bool)
+    inner[int(0.84 * ny_):, int(0.86 * nx_):] = False
+    inner[:int(0.12 * ny_), :int(0.26 * nx_)] = False
     if finer:
-        cs = ax.contour(xs, ys, tm, levels=finer, colors="white", linewidths=0.6, zorder=5)
+        ax.contour(xs, ys, tm, levels=finer, colors="white", linewidths=0.6, zorder=5)
         if label_finer:
-            for lab in ax.clabel(cs, fmt=_isochrone_label, fontsize=7.0, inline=True, inline_spacing=2):
+            cs = ax.contour(xs, ys, np.where(inner, tm, np.nan), levels=finer, colors="none", linewidths=0.0)
+            for lab in ax.clabel(cs, fmt=_isochrone_label, fontsize=7.0, inline=False, colors="white"):
                 lab.set_path_effects([patheffects.withStroke(linewidth=2.0, foreground="0.15")])
                 lab.set_color("white")
         step = min(np.diff(sorted([0.0, *finer, *hourly]))) if len(finer) else 0.0
@@ -1826,11 +1832,16 @@ def plot_travel_time(
         ax.contour(xs, ys, tm, levels=hourly, colors="black", linewidths=1.3, zorder=6)
         # labels in deep water only: on shelves the isochrones bunch up and their labels would pile
         dv = _values(depth)
-        deep = np.isfinite(dv) & (dv > 1000.0)
-        lab_t = np.where(deep, tm, np.nan) if deep.sum() > 0.2 * np.isfinite(tm).sum() else tm
-        cl = ax.contour(xs, ys, lab_t, levels=hourly, colors="none", linewidths=0.0, zorder=6)
-        for lab in ax.clabel(cl, fmt=_isochrone_label, fontsize=8.0, inline=False, colors="black"):
-            lab.set_path_effects(_HALO)
+        deep = np.isfinite(dv) & (dv > 200.0) & inner  # beyond the shelf break (common practice, no source)
+        t_in = np.where(inner, tm, np.nan)
+        lab_t = np.where(deep, tm, np.nan)
+        on_deep = [lv for lv in hourly if np.nanmin(lab_t, initial=np.inf) < lv < np.nanmax(lab_t, initial=-np.inf)]
+        for field, lvs in ((lab_t, on_deep), (t_in, [lv for lv in hourly if lv not in on_deep])):
+            if not lvs or not np.isfinite(field).any():
+                continue
+            cl = ax.contour(xs, ys, field, levels=lvs, colors="none", linewidths=0.0, zorder=6)
+            for lab in ax.clabel(cl, fmt=_isochrone_label, fontsize=8.0, inline=False, colors="black"):
+                lab.set_path_effects(_HALO)
         handles.append(Line2D([], [], color="black", lw=1.3, label="Isochrone every hour"))
     if source_outline is not None and _draw_lines(
         ax, source_outline, info.geographic, colors=_OKABE_GREEN, linewidths=1.8, zorder=8, path_effects=_HALO
