@@ -551,3 +551,20 @@ def test_all_nan_grids_give_clear_errors_or_plots(tmp_path):
     with pytest.raises(InputError, match="no finite values"):
         figures.plot_uplift(nan, out_path=tmp_path / "u.png")
     check_png(figures.plot_lensing_map(nan, nan, nan, None, 0, out_path=tmp_path / "l.png"), min_w=500, min_h=300)
+
+
+def test_travel_time_map_with_isochrones(case, tmp_path):
+    from tsunamifocus.propagation.traveltime import isochrone_levels
+
+    d = case["depth"]
+    tt = case["travel"] * 60.0  # seconds
+    tt.attrs = dict(d.attrs)
+    levels = isochrone_levels(tt, 10.0)
+    assert levels and all(m > 0 for m, _ in levels)
+    xd, yd = d.dims[1], d.dims[0]
+    out = figures.plot_travel_time(tt, d, levels, out_path=tmp_path / "travel_time.png", source_outline=case["fault"],
+                                   points=[("Harbour", float(d[xd][80]), float(d[yd][60]))])
+    check_png(out)  # PNG specification: size, 150 dpi, the caution in the metadata
+    with pytest.raises(InputError, match="no finite values"):
+        figures.plot_travel_time(tt * np.nan, d, levels, out_path=tmp_path / "x.png")
+    assert not (tmp_path / "x.png").exists()
