@@ -72,6 +72,12 @@ class SourceSummary:
     rays: dict[str, dict[str, float]]
     details: dict[str, Any] = field(default_factory=dict)
 
+    @property
+    def headline(self) -> str:
+        """``"Mw 8.60, E = 4.5e+14 J"`` (no magnitude for point and sea-surface sources)."""
+        mw = f"Mw {self.mw:.2f}, " if math.isfinite(self.mw) else ""
+        return f"{mw}E = {self.energy_J:.3g} J"
+
     def to_dict(self) -> dict[str, Any]:
         """Plain-Python dict (strict-JSON serialisable: NaN becomes None) with the cautions text."""
         def clean(v: Any) -> Any:

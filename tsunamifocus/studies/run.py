@@ -326,7 +326,7 @@ def analyse_source(
     summary = summarize_source(src, eta, depth, fan)
     period = float(scenario.focusing.period_s or summary.period_s)
     bands = period_bands(eta, depth, period) if all_bands else [(period, 1.0)]
-    pr.done(f"Mw {summary.mw:.2f}, E = {summary.energy_J:.3g} J, period {period / 60:.1f} min, {fan.n_rays} rays")
+    pr.done(f"{summary.headline}, period {period / 60:.1f} min, {fan.n_rays} rays")
     pr.start("trace", f"tracing {fan.n_rays} rays in {len(bands)} period bands over the real and reference "
              "oceans as the wave sees them, and over a constant-depth ocean")
     kw = {"max_time_s": scenario.rays.max_time_h * 3600.0, "keep_paths": keep_paths}
