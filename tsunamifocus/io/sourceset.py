@@ -35,6 +35,7 @@ positive numbers). Every error is one line naming the file, the line and the key
 
 from __future__ import annotations
 
+import difflib
 import math
 import os
 import re
@@ -110,7 +111,7 @@ def _numbers(ctx: _Ctx, sect: tuple, key: str, v: Any, what: str, lo: float, hi:
         not isinstance(a, bool) and isinstance(a, (int, float)) and math.isfinite(a)
         and (a > lo if lo_open else a >= lo) and a <= hi for a in vals)
     if not ok:
-        raise ctx.fail(sect, key, f"= {v!r}: expected {what}")
+        raise ctx.bad(sect, _Key(key, "float", what), v, what)
     return tuple(float(a) for a in vals)  # type: ignore[union-attr]
 
 
@@ -126,12 +127,14 @@ def _sweep(ctx: _Ctx, i: int, raw: Any) -> SweepConfig:
     what = "a line of at least 2 points [[lon, lat], [lon, lat], ...] in degrees (lon -180..360, lat -90..90)"
     if not (isinstance(tr, (list, tuple)) and len(tr) >= 2
             and all(isinstance(q, (list, tuple)) and len(q) == 2 for q in tr)):
-        raise ctx.fail(sect, "trace", f"= {tr!r}: expected {what}" if tr is not None else f"missing: expected {what}")
+        if tr is None:
+            raise ctx.fail(sect, None, f"missing key 'trace' ({what})")
+        raise ctx.bad(sect, _Key("trace", "trace", what), tr, what)
     pts = list(tr)
     trace = []
     for p in pts:
         if any(isinstance(a, bool) or not isinstance(a, (int, float)) or not math.isfinite(a) for a in p):
-            raise ctx.fail(sect, "trace", f"= {tr!r}: expected {what}")
+            raise ctx.bad(sect, _Key("trace", "trace", what), tr, what)
         lon, lat = float(p[0]), float(p[1])
         if not (-180.0 <= lon <= 360.0 and -90.0 <= lat <= 90.0):
             raise ctx.fail(sect, "trace", f"point {list(p)}: expected {what}")
@@ -149,12 +152,14 @@ def _sweep(ctx: _Ctx, i: int, raw: Any) -> SweepConfig:
     else:
         mw = tuple(1.0 for _ in mags)
     d = raw.get("dip_deg", None)
-    dwhat = (f"a dip in degrees (> 0 and <= 90), or a list of {len(trace) - 1} dips, one per piece of the line")
+    n_pieces = len(trace) - 1
+    dwhat = ("a dip in degrees (> 0 and <= 90)" + (f", or a list of {n_pieces} dips, one per piece of the line"
+                                                  if n_pieces > 1 else ""))
     if d is None:
         raise ctx.fail(sect, None, f"missing key 'dip_deg' ({dwhat})")
     dips = _numbers(ctx, sect, "dip_deg", d if isinstance(d, (list, tuple)) else [d], dwhat, 0.0, 90.0, lo_open=True)
-    if len(dips) not in (1, len(trace) - 1):
-        raise ctx.fail(sect, "dip_deg", f"has {len(dips)} values; expected 1 or {len(trace) - 1} ({dwhat})")
+    if len(dips) not in (1, n_pieces):
+        raise ctx.fail(sect, "dip_deg", f"has {len(dips)} values; expected {dwhat}")
     return SweepConfig(name=v["name"], trace=tuple(trace), spacing_km=v["spacing_km"], magnitudes=mags,
                        magnitude_weights=mw, dip_deg=dips, top_depth_km=v["top_depth_km"], rake_deg=v["rake_deg"],
                        weight=v["weight"])
@@ -196,7 +201,9 @@ def parse_source_set(path: str | os.PathLike) -> SourceSet:
     sections = ("set", "source", "from_scenario", "sweep")
     for key in data:
         if key not in sections:
-            raise ScenarioError(f"{p}: unknown section {key!r}; valid sections: " + ", ".join(f"[{s}]" for s in sections))
+            m = difflib.get_close_matches(key, sections, n=1, cutoff=0.6)
+            hint = f"did you mean [[{m[0]}]]?" if m else "valid sections: " + ", ".join(f"[{s}]" for s in sections)
+            raise ScenarioError(f"{p}: unknown section {key!r}; {hint}")
     if not isinstance(data.get("set"), Mapping):
         raise ScenarioError(f"{p}: missing section [set] (it needs at least scenario = \"base scenario file\")")
     sv = _table(ctx, ("set",), data["set"], SET_KEYS)
@@ -214,7 +221,7 @@ def parse_source_set(path: str | os.PathLike) -> SourceSet:
             raise ctx.fail(("source", i), None, "expected a table of keys")
         w = _table(ctx, ("source", i), {"weight": raw["weight"]} if "weight" in raw else {}, (_WEIGHT,))["weight"]
         cfg = _build_source(ctx, i, {k: x for k, x in raw.items() if k != "weight"})
-        members.append(SetMember(cfg, w, f"{p.name} [[source]] #{i + 1}"))
+        members.append(SetMember(cfg, w, f"{p.name} [[source]] {i + 1}"))
     for i, raw in enumerate(data.get("from_scenario", [])):
         sect = ("from_scenario", i)
         v = _table(ctx, sect, raw, (_Key("path", "path", "scenario file", required=True), _WEIGHT))
@@ -222,7 +229,7 @@ def parse_source_set(path: str | os.PathLike) -> SourceSet:
             other = parse_scenario(v["path"])
         except ScenarioError as exc:
             raise ctx.fail(sect, "path", str(exc)) from None
-        members += [SetMember(s, v["weight"], f"{Path(v['path']).name} [[source]] #{j + 1}")
+        members += [SetMember(s, v["weight"], f"{Path(v['path']).name} [[source]] {j + 1}")
                     for j, s in enumerate(other.sources)]
     sweeps = tuple(_sweep(ctx, i, raw) for i, raw in enumerate(data.get("sweep", [])))
     if not members and not sweeps:

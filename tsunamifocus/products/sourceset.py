@@ -180,6 +180,11 @@ def compute_source_set(sset: SourceSet, *, store: MemberStore, scheduler: Any = 
 
 
 def _write_csv(df: pd.DataFrame, path: pathlib.Path, index: bool = False) -> None:
+    """CSV whose leading ``#`` lines carry the caution (read with ``comment="#"``: text cells lose their ``#``)."""
+    df = df.copy()
+    for c in df.columns:
+        if df[c].dtype == object or pd.api.types.is_string_dtype(df[c]):
+            df[c] = df[c].map(lambda v: v.replace("#", "no. ") if isinstance(v, str) else v)
     header = "".join(f"# {line}\n" if line else "#\n" for line in ["CAUTION:", *caution_lines(width=100)])
     with open(path, "w", encoding="utf-8", newline="") as fh:
         fh.write(header)
