@@ -102,6 +102,7 @@ def test_outputs_and_failed_member_reported(first_run):
         assert any("SCREENING" in str(v).upper() for v in src.tags().values())
     html = (out / "set_appendix.html").read_text()
     assert "NOT a probabilistic tsunami hazard assessment" in html
+    assert {p.name for p in (out / "figures").iterdir()} == {"hotspot_frequency.png", "envelope_lensing_map.png"}
 
 
 def test_envelope_is_the_maximum_over_members(first_run, setdir):

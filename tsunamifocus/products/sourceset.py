@@ -37,7 +37,7 @@ from ..studies.ensemble import MemberFailure, run_ensemble
 from ..studies.sourceset import (SET_GRIDS, PreparedSet, envelope_grids, grid_template, member_key,
                                  prepare_set, set_member, set_statistics)
 from .appendix import build_appendix
-from .figures import _finish
+from .figures import _finish, plot_lensing_map
 
 __all__ = ["SetResult", "compute_source_set", "run_source_set", "SET_CAUTIONS", "plot_hotspot_frequency"]
 
@@ -254,6 +254,11 @@ def write_set_folder(res: SetResult, folder: pathlib.Path) -> dict[str, pathlib.
     fig = plot_hotspot_frequency(stats, prep.sset.top_k, folder / "figures" / "hotspot_frequency.png",
                                  title=f"Hotspot frequency along the coast: {prep.sset.name}", n_members=n_ok)
     files["figure"] = fig
+    env_seg = stats.reset_index().assign(lensing_factor=lambda d: d["lensing_max"])
+    env_fig = plot_lensing_map(prep.depth, res.envelope["lensing_factor"], None, env_seg, prep.sset.top_k,
+                               out_path=folder / "figures" / "envelope_lensing_map.png",
+                               title=f"Envelope (maximum over the sources) of the lensing factor: {prep.sset.name}")
+    files["envelope_figure"] = env_fig
     rec = {"set": prep.sset.name, "n_members": len(res.members), "n_succeeded": n_ok, "top_k": prep.sset.top_k,
            "failures": [f.to_dict() for f in res.failures], "timings": res.timings,
            "grid_sha256": prep.grid_sha256, "settings": {k: prep.scenario.to_dict()[k] for k in ("rays", "coast")},
@@ -278,7 +283,10 @@ def write_set_folder(res: SetResult, folder: pathlib.Path) -> dict[str, pathlib.
         "metrics": {"sources": str(len(res.members)), "succeeded": str(n_ok), "top k": str(prep.sset.top_k)},
         "table": table,
         "table_caption": f"The {len(table)} segments most often among the top-{prep.sset.top_k} hotspots",
-        "figures": {"hotspot_frequency": {"path": str(fig), "caption": "Hotspot frequency along the coast."}},
+        "figures": {"hotspot_frequency": {"path": str(fig), "caption": "Hotspot frequency along the coast."},
+                    "envelope_lensing_map": {"path": str(env_fig), "caption": "Maximum over the sources of the "
+                                             "lensing factor; coastline segments coloured by their maximum, the "
+                                             "highest maxima numbered."}},
     }
     ctx = {"title": "Source-set appendix: coastal tsunami-energy focusing screening",
            "subtitle": f"Set “{prep.sset.name}” on the grid of scenario “{prep.scenario.name}”",
