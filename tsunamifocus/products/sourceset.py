@@ -205,7 +205,8 @@ def plot_hotspot_frequency(stats: pd.DataFrame, top_k: int, out_path: str | os.P
     ax.barh(y, 100 * s["topk_frequency_weighted"].to_numpy(float), color="#c0392b", height=0.4,
             label="weighted by the sources' relative weights")
     ax.set_ylim(-1, len(s))
-    ax.set_xlim(0, 105)
+    ax.set_xlim(0, 132)  # room for the labels right of the bars
+    ax.set_xticks([0, 20, 40, 60, 80, 100])
     ax.set_ylabel("coastline segments, south (bottom) to north (top)")
     ticks = [j for j in range(len(s)) if s["topk_frequency"].iloc[j] > 0 or j % max(1, len(s) // 10) == 0]
     ax.set_yticks(ticks)
