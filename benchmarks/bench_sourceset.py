@@ -56,7 +56,7 @@ def main() -> None:
     lengths = [strasser2010_interface(m)[0] for m in mags]
     spacing = max(1.0, (total_km - max(lengths)) / max(per_mag - 1, 1))
     sweep = SweepConfig(name="demo trench", trace=trace, spacing_km=spacing, magnitudes=mags,
-                        magnitude_weights=tuple(1.0 for _ in mags), dip_deg=(12.0,))
+                        magnitude_weights=tuple(1.0 for _ in mags), dip_deg=(12.0,), top_depth_km=5.0)
     sset = SourceSet(name="bench", scenario=sc, top_k=sc.output.top_k, members=(), sweeps=(sweep,))
 
     t0 = time.perf_counter()

@@ -59,6 +59,7 @@ trace = [[-126.38, -27.84], [-126.36, -25.31]]
 spacing_km = 120
 magnitudes = [8.0]
 dip_deg = 12
+top_depth_km = 5
 """
 
 

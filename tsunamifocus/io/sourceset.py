@@ -45,6 +45,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
+from ..constants import DEFAULTS, SOURCE_SET_DEFAULTS
 from ..errors import ScenarioError
 from .scenario import (MAGNITUDE_RANGE, Scenario, SourceConfig, _build_source, _Ctx, _f, _Key,
                        _table, _Where, parse_scenario)
@@ -61,11 +62,13 @@ SET_KEYS: tuple[_Key, ...] = (
 SWEEP_KEYS: tuple[_Key, ...] = (
     _Key("name", "str", "name of the sweep", required=True),
     _f("spacing_km", "distance between rupture centres along the line", "km", required=True, lo=1.0, hi=5000.0),
-    _f("top_depth_km", "depth of the top edge of each rupture", "km", default=5.0, lo=0.0, hi=100.0),
-    _f("rake_deg", "rake (90 = pure thrust)", "degrees", default=90.0, lo=-180.0, hi=180.0),
-    _f("weight", "relative weight of each rupture of the sweep", "", default=1.0, lo=0.0, lo_open=True, hi=1e12),
+    _f("top_depth_km", "depth of the top edge of each rupture", "km", required=True, lo=0.0, hi=100.0),
+    _f("rake_deg", "rake (90 = pure thrust)", "degrees", default=DEFAULTS["source.segment"]["rake_deg"],
+       lo=-180.0, hi=180.0),
+    _f("weight", "relative weight of each rupture of the sweep", "", default=SOURCE_SET_DEFAULTS["weight"], lo=0.0,
+       lo_open=True, hi=1e12),
 )
-_WEIGHT = _f("weight", "relative weight", "", default=1.0, lo=0.0, lo_open=True, hi=1e12)
+_WEIGHT = _f("weight", "relative weight", "", default=SOURCE_SET_DEFAULTS["weight"], lo=0.0, lo_open=True, hi=1e12)
 
 
 @dataclass(frozen=True)
@@ -78,9 +81,9 @@ class SweepConfig:
     magnitudes: tuple[float, ...]
     magnitude_weights: tuple[float, ...]
     dip_deg: tuple[float, ...]
-    top_depth_km: float = 5.0
-    rake_deg: float = 90.0
-    weight: float = 1.0
+    top_depth_km: float
+    rake_deg: float = DEFAULTS["source.segment"]["rake_deg"]  # type: ignore[assignment]
+    weight: float = SOURCE_SET_DEFAULTS["weight"]  # type: ignore[assignment]
 
 
 @dataclass(frozen=True)
