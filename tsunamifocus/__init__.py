@@ -45,6 +45,10 @@ from .source.uplift import uplift_on_grid
 from .source.energy import potential_energy
 from .source.rayfan import RayFan, make_ray_fan
 from .source.summary import SourceSummary, summarize_source
+from .source.subfaults import SubfaultRupture, rupture_from_subfaults
+from .source.surface import SurfaceSource, initial_surface
+from .io.subfaults import read_subfault_table
+from .io.surface import read_sea_surface
 from .propagation.rays import RayResult, trace_rays
 from .propagation.wave import simulate_linear_long_wave
 from .propagation.traveltime import TravelTimes, first_arrival_times, isochrone_lines
@@ -61,6 +65,7 @@ from .studies.compare import compare_runs
 from .products.check import wave_check
 from .products.runfolder import run_scenario
 from .products.demo import write_demo_data
+from .products.sourceset import run_source_set
 
 __all__ = [
     "__version__",
@@ -74,12 +79,13 @@ __all__ = [
     # sources
     "okada85", "FaultSegment", "Rupture", "PointSource", "RayFan", "SourceSummary",
     "moment_from_magnitude", "magnitude_from_moment", "uplift_on_grid", "potential_energy",
-    "make_ray_fan", "summarize_source",
+    "make_ray_fan", "summarize_source", "read_subfault_table", "rupture_from_subfaults", "SubfaultRupture",
+    "read_sea_surface", "SurfaceSource", "initial_surface",
     # rays and focusing
     "trace_rays", "RayResult", "coastline_from_grid", "read_coastline", "segment_coastline",
     "analyse_focusing", "FocusingResult", "segment_arrivals", "rank_segments", "energy_budget",
     # pipeline, ensembles, comparison, wave check
-    "Scenario", "parse_scenario", "run_scenario", "RunResult", "arrival_times",
+    "Scenario", "parse_scenario", "run_scenario", "run_source_set", "RunResult", "arrival_times",
     "first_arrival_times", "TravelTimes", "isochrone_lines",
     "run_ensemble", "EnsembleResult", "perturb_bathymetry", "compare_runs", "read_run",
     "simulate_linear_long_wave", "wave_check",

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 __all__ = [
     "__version__", "GRAVITY", "EARTH_RADIUS_M", "RHO_SEAWATER", "RIGIDITY_PA", "MIN_DEPTH_M", "DEFAULTS",
-    "STOP_DEPTH_M"]
+    "STOP_DEPTH_M", "SOURCE_SET_DEFAULTS"]
 
 #: Version of the package (also in pyproject.toml).
 __version__ = "0.1.0"
@@ -45,6 +45,10 @@ DEFAULTS: dict[str, dict[str, object]] = {
         "along_km": 0.0, "across_km": 0.0, "magnitude": 0.0, "launch_jitter_deg": 0.0, "scheduler": "local",
     },
 }
+
+#: Defaults of source-set files (:mod:`tsunamifocus.io.sourceset`): the relative weight of a member, and
+#: of a ``[[sweep]]``'s ruptures (their rake is that of ``[[source.segment]]``).
+SOURCE_SET_DEFAULTS: dict[str, object] = {"weight": 1.0}
 
 #: Default stop isobath [m]: rays end, and the wave check's coast lies, where the depth falls below it.
 STOP_DEPTH_M: float = float(DEFAULTS["rays"]["stop_depth_m"])  # type: ignore[arg-type]

@@ -16,9 +16,9 @@ from tsunamifocus.cli.app import COMMANDS, build_parser, main
 
 
 def test_commands_are_listed_explicitly_in_help_order():
-    assert [c.NAME for c in COMMANDS] == ["inspect", "demo", "run", "compare", "check"]
+    assert [c.NAME for c in COMMANDS] == ["inspect", "demo", "run", "compare", "check", "sourceset"]
     sub = next(a for a in build_parser()._actions if a.dest == "command")
-    assert list(sub.choices) == ["inspect", "demo", "run", "compare", "check"]
+    assert list(sub.choices) == ["inspect", "demo", "run", "compare", "check", "sourceset"]
 
 
 def test_version_matches_the_distribution_metadata(capsys):

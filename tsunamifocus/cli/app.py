@@ -18,14 +18,14 @@ from collections.abc import Sequence
 from ..constants import __version__
 from ..errors import InputError, OutputExistsError, TsunamiFocusError
 from ..io.manifest import show_versions
-from . import check, compare, demo, inspect, run
+from . import check, compare, demo, inspect, run, sourceset
 
 __all__ = ["main", "build_parser", "COMMANDS"]
 
 log = logging.getLogger("tsunamifocus")
 
 #: The sub-commands, in the order of the help text; each module has NAME, HELP, configure(parser), run(args).
-COMMANDS = (inspect, demo, run, compare, check)
+COMMANDS = (inspect, demo, run, compare, check, sourceset)
 
 #: Exit codes.
 EXIT_OK, EXIT_RUNTIME, EXIT_USAGE, EXIT_INTERRUPTED, EXIT_TERMINATED = 0, 1, 2, 130, 143

@@ -39,8 +39,9 @@ from typing import Any
 
 from ..cautions import caution_lines
 from ..constants import DEFAULTS, STOP_DEPTH_M
-from ..errors import ScenarioError
+from ..errors import DataFileError, InputError, ScenarioError
 from .runfolder import safe_name
+from .subfaults import read_subfault_table
 
 __all__ = ['Scenario', 'BathymetryConfig', 'FaultSegmentConfig', 'SourceConfig', 'RaysConfig', 'FocusingConfig', 'CoastConfig', 'PointOfInterest', 'OutputConfig', 'EnsembleConfig', 'parse_scenario', 'scenario_from_dict', 'scenario_schema', 'scenario_table_markdown']
 
@@ -133,8 +134,9 @@ class SourceConfig:
     ----------
     name : str
         Unique source name.
-    kind : {"fault", "point"}
-        Source type.
+    kind : {"fault", "point", "subfaults", "surface"}
+        Source type: a fault of rectangular segments, a point hump, a subfault table (CSV of
+        subfaults with variable slip) or an initial sea-surface raster (GeoTIFF/NetCDF).
     force : bool
         Accept magnitudes outside 6.5-9.6 (and let the source module accept geometries far from
         the scaling relation).
@@ -149,6 +151,13 @@ class SourceConfig:
         Radius of a point source's initial hump [km].
     amplitude_m : float or None
         Peak initial sea-surface displacement of a point source [m].
+    path : pathlib.Path or None
+        Subfault table (kind "subfaults") or sea-surface raster (kind "surface"), absolute.
+    depth_at : {"top", "centroid"} or None
+        Kind "subfaults": whether the table's lon, lat, depth_km give the middle of each
+        subfault's top edge or its centroid.
+    variable : str or None
+        Kind "surface": the NetCDF variable (None: the only 2-D variable).
     """
 
     name: str
@@ -160,6 +169,9 @@ class SourceConfig:
     lat: float | None = None
     radius_km: float | None = None  # point sources only (filled from DEFAULTS by the parser)
     amplitude_m: float | None = None  # point sources only (filled from DEFAULTS by the parser)
+    path: Path | None = None  # subfault tables and sea-surface rasters
+    depth_at: str | None = None  # subfault tables only
+    variable: str | None = None  # sea-surface rasters only
 
 
 @dataclass(frozen=True)
@@ -379,6 +391,9 @@ class Scenario:
     def input_files(self) -> dict[str, Path]:
         """Input data files (role -> absolute path): the bathymetry and, if any, the coastline file."""
         files = {"bathymetry": self.bathymetry.path}
+        for s in self.sources:
+            if s.path is not None:
+                files[f"source {s.name}"] = s.path
         if isinstance(self.coast.source, Path):
             files["coastline"] = self.coast.source
         if self.coast.region_file is not None:
@@ -395,6 +410,10 @@ def _source_to_dict(s: SourceConfig) -> dict[str, Any]:
             gd = dataclasses.asdict(g)
             gd["trace"] = [list(p) for p in g.trace]
             d["segment"].append(gd)
+    elif s.kind == "subfaults":
+        d.update(path=str(s.path), depth_at=s.depth_at)
+    elif s.kind == "surface":
+        d.update(path=str(s.path), variable=s.variable)
     else:
         d.update(lon=s.lon, lat=s.lat, radius_km=s.radius_km, amplitude_m=s.amplitude_m)
     return d
@@ -452,7 +471,8 @@ _SEGMENT_KEYS: tuple[_Key, ...] = (
 
 _SOURCE_KEYS: tuple[_Key, ...] = (
     _Key("name", "str", "unique source name", required=True),
-    _Key("kind", "choice", "source type", choices=("fault", "point")),
+    _Key("kind", "choice", "source type: fault segments, a point hump, a subfault table (CSV), an initial "
+         "sea-surface raster", choices=("fault", "point", "subfaults", "surface")),
     _Key("force", "bool", "accept magnitudes outside 6.5-9.6 (4.0-10.0 then)"),
     _f("magnitude", "fault: total Mw of the rupture; segments without slip_m share the moment left "
        "as one uniform slip", "Mw", lo=MAGNITUDE_RANGE[0], hi=MAGNITUDE_RANGE[1], default_doc="unset"),
@@ -461,8 +481,16 @@ _SOURCE_KEYS: tuple[_Key, ...] = (
     _f("radius_km", "point: radius of the initial hump", "km", lo=0.0, hi=2000.0, lo_open=True),
     _f("amplitude_m", "point: peak initial sea-surface displacement (negative = trough), not 0", "m",
        lo=-100.0, hi=100.0),
+    _Key("path", "path", "subfaults: the subfault table (CSV); surface: the sea-surface raster (GeoTIFF or "
+         "NetCDF, any CRS, metres positive up); relative to the scenario file", required=True),
+    _Key("depth_at", "choice", "subfaults: lon, lat and depth_km of each row give the middle of the top edge "
+         "or the centroid of the subfault", required=True, choices=("top", "centroid")),
+    _Key("variable", "str", "surface: NetCDF variable", default_doc="the only 2-D variable"),
 )
 _POINT_SOURCE_ONLY = ("lon", "lat", "radius_km", "amplitude_m")
+_TABLE_SOURCE_ONLY = ("path", "depth_at", "variable")
+#: Keys of the kinds read from a file (besides name, kind, force).
+_FILE_SOURCE_KEYS = {"subfaults": ("path", "depth_at"), "surface": ("path", "variable")}
 
 _SPEC: dict[str, tuple[_Key, ...]] = {
     "scenario": (
@@ -736,10 +764,12 @@ def _show(v: Any) -> str:
 
 
 class _Ctx:
-    def __init__(self, where: _Where, base_dir: Path) -> None:
+    def __init__(self, where: _Where, base_dir: Path, check_files: bool = False) -> None:
         self.where = where
         self.base_dir = base_dir
         self.names: dict[tuple, str] = {}
+        #: Read source files (subfault tables) while parsing: scenario files yes, manifests no.
+        self.check_files = check_files
 
     def fail(self, sect: tuple, key: str | None, msg: str) -> ScenarioError:
         lab = _label(sect, self.names)
@@ -1000,14 +1030,23 @@ def _build_source(ctx: _Ctx, i: int, raw: Any) -> SourceConfig:
             if key in seg_names or key == _SUBSECTION:
                 raise ctx.fail(sect, None, f"key {key!r} belongs to a fault source; this source has "
                                'kind = "point" (keys: name, kind, force, lon, lat, radius_km, amplitude_m)')
-        keys = tuple(k for k in _SOURCE_KEYS if k.name != "magnitude")
+        for key in raw:
+            if key in _TABLE_SOURCE_ONLY:
+                raise ctx.fail(sect, None, f"key {key!r} belongs to a subfaults or surface source; this source "
+                               'has kind = "point"')
+        keys = tuple(k for k in _SOURCE_KEYS if k.name != "magnitude" and k.name not in _TABLE_SOURCE_ONLY)
         v = _table(ctx, sect, raw, keys)
         if v["amplitude_m"] == 0.0:
             raise ctx.bad(sect, _key(_SOURCE_KEYS, "amplitude_m"), raw["amplitude_m"],
                           "a non-zero number >= -100 and <= 100 m (peak initial sea-surface displacement)")
         return SourceConfig(**v)
+    if kind in _FILE_SOURCE_KEYS:
+        return _build_file_source(ctx, sect, raw, kind, head)
     # fault
     for key in raw:
+        if key in _TABLE_SOURCE_ONLY:
+            raise ctx.fail(sect, None, f"key {key!r} belongs to a subfaults or surface source; this source has "
+                           f'kind = "fault" (set kind = "subfaults" or "surface", or remove {key!r})')
         if key in _POINT_SOURCE_ONLY:
             raise ctx.fail(sect, None, f"key {key!r} belongs to a point source; this source has "
                            f'kind = "fault" (add kind = "point" or remove {key!r})')
@@ -1044,6 +1083,39 @@ def _build_source(ctx: _Ctx, i: int, raw: Any) -> SourceConfig:
         segments.append(_build_segment(ctx, sect, seg, force, False))
     return SourceConfig(name=head["name"], kind="fault", force=force, segments=tuple(segments),
                         magnitude=total)
+
+
+def _build_file_source(ctx: _Ctx, sect: tuple, raw: Mapping, kind: str, head: dict) -> SourceConfig:
+    """A ``[[source]]`` read from a file: a subfault table or a sea-surface raster."""
+    own = _FILE_SOURCE_KEYS[kind]
+    allowed = ("name", "kind", "force", *own)
+    for key in raw:
+        if key not in allowed:
+            if key in _POINT_SOURCE_ONLY or key in _TABLE_SOURCE_ONLY or key in [k.name for k in _SEGMENT_KEYS] \
+                    or key in ("magnitude", _SUBSECTION):
+                raise ctx.fail(sect, None, f"key {key!r} does not apply to kind = {json.dumps(kind)} (keys: "
+                               f"{', '.join(allowed)})")
+            raise _unknown(ctx, sect, key, list(allowed))
+    v = _table(ctx, sect, {k: raw[k] for k in own if k in raw},
+               tuple(k for k in _SOURCE_KEYS if k.name in own))
+    cfg = SourceConfig(name=head["name"], kind=kind, force=head["force"], path=v["path"],
+                       depth_at=v.get("depth_at"), variable=v.get("variable"))
+    if ctx.check_files:
+        _check_source_file(ctx, sect, cfg)
+    return cfg
+
+
+def _check_source_file(ctx: _Ctx, sect: tuple, cfg: SourceConfig) -> None:
+    """Read a subfault table now (a bad row is an error before any computation); check a raster exists."""
+    assert cfg.path is not None
+    if cfg.kind == "subfaults":
+        try:
+            read_subfault_table(cfg.path, depth_at=str(cfg.depth_at))
+        except (InputError, DataFileError) as exc:
+            raise ctx.fail(sect, "path", str(exc)) from None
+    elif not cfg.path.is_file():
+        what = "is a folder" if cfg.path.is_dir() else "not found"
+        raise ctx.fail(sect, "path", f"{cfg.path}: {what}; expected a sea-surface raster (GeoTIFF or NetCDF)")
 
 
 def _build(data: Mapping[str, Any], ctx: _Ctx, default_name: str | None) -> Scenario:
@@ -1115,6 +1187,13 @@ def _build(data: Mapping[str, Any], ctx: _Ctx, default_name: str | None) -> Scen
         ov["folder"] = Path(os.path.normpath(ctx.base_dir / f"{safe_name(name, 'scenario')}_results"))
     output = OutputConfig(**ov)
     ensemble = EnsembleConfig(**_table(ctx, ("ensemble",), data.get("ensemble", {}), _keys("ensemble")))
+    if ensemble.members > 0 and sources[0].kind in _FILE_SOURCE_KEYS:
+        moved = [k for k in ("strike_deg", "dip_deg", "along_km", "across_km", "magnitude")
+                 if getattr(ensemble, k) != 0.0]
+        if moved:
+            raise ctx.fail(("ensemble",), moved[0], f"source perturbations ({', '.join(moved)}) do not apply to "
+                           f'the first source, which has kind = "{sources[0].kind}"; set them to 0 (the '
+                           "ensemble may still vary the bathymetry and the launch directions)")
     return Scenario(
         name=name,
         description=sc["description"],
@@ -1184,7 +1263,7 @@ def parse_scenario(path: str | os.PathLike) -> Scenario:
             raise ScenarioError(f"{p}: line {m.group(1)}, column {m.group(2)}: invalid TOML: {msg}") from None
         raise ScenarioError(f"{p}: invalid TOML: {msg}") from None
     base = p.resolve().parent
-    ctx = _Ctx(_Where(str(p), text), base)
+    ctx = _Ctx(_Where(str(p), text), base, check_files=True)
     sc = _build(data, ctx, default_name=p.stem)
     return dataclasses.replace(sc, file=p.resolve())
 

@@ -237,7 +237,7 @@ DEFAULT_ASSUMPTIONS: list[str] = [
 
 #: Default captions of the figures by context key.
 FIGURE_CAPTIONS: dict[str, str] = {
-    "uplift": "Initial sea-surface displacement of the source (Okada 1985), metres, positive up.",
+    "uplift": "Initial sea-surface displacement of the source (Okada 1985 for faults), metres, positive up.",
     "ray_field": "Ray field over the bathymetry: accumulated ray energy per unit wavefront width "
     "(log scale) and a subset of ray paths; the branches are where refraction focuses energy.",
     "lensing_map": "Lensing factor (log scale, 1 = no focusing) with first-arrival travel-time "

@@ -48,6 +48,8 @@ def _report_context(a: SourceAnalysis, scenario: Any, depth: xr.DataArray, point
         "dominant period (min)": f"{a.period_s / 60:.1f}",
         "rays": str(a.fan.n_rays),
     }
+    for k, v in (sm.get("details") or {}).items():  # subfault table / sea-surface raster figures
+        src[k.replace("_", " ")] = f"{v:.4g}" if isinstance(v, float) else str(v)
     for i, seg in enumerate(sm.get("segments", []) or []):
         src[f"segment {i + 1}"] = (
             f"strike {seg.get('strike_deg', float('nan')):.1f} deg, dip {seg.get('dip_deg', float('nan')):.1f} deg, "

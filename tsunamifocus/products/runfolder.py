@@ -78,6 +78,13 @@ def run_isochrones(a: SourceAnalysis, scenario: Any) -> pd.DataFrame:
     return isochrone_lines(a.travel_times.travel_time_s, scenario.output.isochrone_step_min)
 
 
+def _uplift_basis(eta) -> str:
+    """What the initial sea surface was computed from (for the uplift figure's title)."""
+    if eta.attrs.get("source_kind") == "surface":
+        return f"read from {pathlib.Path(str(eta.attrs.get('source_file', 'a raster'))).name}"
+    return "Okada 1985"
+
+
 def _figures(a: SourceAnalysis, depth: xr.DataArray, scenario: Any, folder: pathlib.Path,
              ensemble: Any = None) -> dict[str, pathlib.Path]:
 
@@ -117,7 +124,7 @@ def _figures(a: SourceAnalysis, depth: xr.DataArray, scenario: Any, folder: path
         title=f"First-arrival travel time and isochrones: {a.name}")
     figs["uplift"] = F.plot_uplift(a.eta, out_path=folder / "uplift.png", depth=depth,
                                    source_outline=a.outline or None, coast_lines=coast,
-                                   title=f"Initial sea-surface displacement (Okada 1985): {a.name}")
+                                   title=f"Initial sea-surface displacement ({_uplift_basis(a.eta)}): {a.name}")
     if f.ray_depth is not None:
         figs["oceans"] = F.plot_oceans(f.ray_depth, f.reference_depth, out_path=folder / "oceans.png",
                                        period_s=a.period_s, reference_smooth_km=f.reference_smooth_km,

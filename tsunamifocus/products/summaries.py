@@ -144,7 +144,7 @@ def format_run_summary(result: RunResult) -> str:
     lines += settings_lines(result)
     for a in result.analyses:
         f = a.focusing
-        lines.append(f"source {a.name}: Mw {a.summary.mw:.2f}, E = {a.summary.energy_J:.3g} J, "
+        lines.append(f"source {a.name}: {a.summary.headline}, "
                      f"dominant period {a.period_s / 60:.1f} min")
         h = result.health[a.name]
         tf = ", ".join(f"{k} {v:.1%}" for k, v in h["termination_fraction"].items() if v > 0)

@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
@@ -16,6 +16,8 @@ from ..ocean.smooth import sea_mask
 from .energy import potential_energy
 from .faults import FaultSegment, PointSource, Rupture
 from .rayfan import RayFan
+from .subfaults import SubfaultRupture
+from .surface import SurfaceSource, surface_width_km
 from .uplift import _as_rupture
 
 __all__ = ['SourceSummary', 'summarize_source']
@@ -31,7 +33,7 @@ class SourceSummary:
     Attributes
     ----------
     name, kind : str
-        Label and ``"rupture"`` / ``"point"``.
+        Label and ``"rupture"`` / ``"subfaults"`` / ``"surface"`` / ``"point"``.
     segments : list of dict
         Per segment: trace, strike_deg, dip_deg, rake_deg, top_depth_km, width_km, length_km, slip_m.
     mw, m0_nm, rigidity_pa, mean_slip_m : float
@@ -48,6 +50,9 @@ class SourceSummary:
         Dominant initial wavelength ``~ 2 x width`` [km] and period ``wavelength / sqrt(g h)`` [s].
     rays : dict
         Ray count and energy by side (empty without a fan).
+    details : dict
+        Kind-specific figures: for a subfault model its table, row count, slip and depth
+        ranges (``segments`` is then empty); for a sea-surface raster its file and resampling.
     """
 
     name: str
@@ -65,6 +70,13 @@ class SourceSummary:
     wavelength_km: float
     period_s: float
     rays: dict[str, dict[str, float]]
+    details: dict[str, Any] = field(default_factory=dict)
+
+    @property
+    def headline(self) -> str:
+        """``"Mw 8.60, E = 4.5e+14 J"`` (no magnitude for point and sea-surface sources)."""
+        mw = f"Mw {self.mw:.2f}, " if math.isfinite(self.mw) else ""
+        return f"{mw}E = {self.energy_J:.3g} J"
 
     def to_dict(self) -> dict[str, Any]:
         """Plain-Python dict (strict-JSON serialisable: NaN becomes None) with the cautions text."""
@@ -92,6 +104,17 @@ class SourceSummary:
                     f"rake {s['rake_deg']:.0f} deg, L {s['length_km']:.1f} km, W {s['width_km']:.1f} km, "
                     f"top {s['top_depth_km']:.1f} km, slip {s['slip_m']:.2f} m"
                 )
+        elif self.kind == "subfaults":
+            d = self.details
+            lines.append(f"  Mw {self.mw:.2f}   M0 {self.m0_nm:.3e} N m   mean slip {self.mean_slip_m:.2f} m   "
+                         f"{d['n_subfaults']} subfaults ({d['n_slipping']} with slip) from {d['table']}")
+            lines.append(f"  slip {d['slip_min_m']:.2f}-{d['slip_max_m']:.2f} m, top depths "
+                         f"{d['top_depth_min_km']:.1f}-{d['top_depth_max_km']:.1f} km, along-strike extent "
+                         f"{d['length_km']:.0f} km")
+        elif self.kind == "surface":
+            d = self.details
+            lines.append(f"  initial sea surface read from {d['file']} (block factor {d['block_factor']}, "
+                         f"{100 * d['inside_fraction']:.1f} % inside the grid)")
         else:
             s = self.segments[0]
             lines.append(f"  hump radius {s['radius_km']:.1f} km, amplitude {s['amplitude_m']:.2f} m")
@@ -119,12 +142,15 @@ def summarize_source(
 
     The width setting the wavelength is, for a rupture, the length-weighted horizontal
     projection of the fault width ``W cos(dip)``, but at least the lower-edge depth (a buried
-    steep fault deforms the surface over a width of the order of its depth); for a point
+    steep fault deforms the surface over a width of the order of its depth); for a subfault
+    model, the map-view area of its slipping subfaults over their along-strike extent, but at
+    least their deepest lower edge; for a sea-surface raster, half the median wavelength of its
+    energy spectrum (:func:`~.surface.surface_width_km`); for a point
     source, the hump diameter. Dominant wavelength ``~ 2 x width`` and period
     ``wavelength / sqrt(g h)`` with ``h`` the mean depth of the sea cells where
     ``|eta| >= threshold max|eta|`` (rule of thumb, common practice, no source).
     """
-    src = _as_rupture(source)
+    src = source if isinstance(source, SurfaceSource) else _as_rupture(source)
     GridInfo.from_dataarray(depth)  # checks the grid convention (raises on a bad grid)
     e = np.asarray(eta.values, dtype=float)
     dep = np.asarray(depth.values, dtype=float)
@@ -134,7 +160,29 @@ def summarize_source(
     sig = sea & (np.abs(es) >= threshold * amax) if amax > 0 else sea & False
     h = float(np.mean(dep[sig])) if np.any(sig) else float("nan")
     energy = potential_energy(eta, depth)
-    if isinstance(src, PointSource):
+    details: dict[str, Any] = {}
+    if isinstance(src, SurfaceSource):
+        segs = []
+        width = surface_width_km(eta, depth)
+        mw = m0 = mean_slip = mu = float("nan")
+        kind = "surface"
+        details = {"file": src.origin, "block_factor": int(eta.attrs.get("block_factor", 1)),
+                   "inside_fraction": float(eta.attrs.get("inside_fraction", float("nan")))}
+    elif isinstance(src, SubfaultRupture):
+        segs = []
+        slips = np.asarray(src.slips_m)
+        tops = np.array([float(s.top_depth_km) for s in src.segments])
+        length = src.length_km
+        # horizontal width of the slipping area, at least its deepest lower edge (as for one rectangle)
+        width = max(src.horizontal_width_km, max(s.bottom_depth_km for s in src.segments))
+        mw, m0, mean_slip = src.mw, src.moment_nm, src.mean_slip_m
+        mu = float(np.mean([s.rigidity_pa for s in src.segments]))
+        kind = "subfaults"
+        details = {"table": src.origin, "depth_at": src.depth_at, "n_subfaults": src.n_subfaults,
+                   "n_slipping": len(src.segments), "slip_min_m": float(slips.min()),
+                   "slip_max_m": float(slips.max()), "top_depth_min_km": float(tops.min()),
+                   "top_depth_max_km": float(tops.max()), "length_km": length, "width_km": src.width_km}
+    elif isinstance(src, PointSource):
         segs = [{"name": src.name, "x": src.x, "y": src.y, "crs": str(src.crs), "radius_km": src.radius_km,
                  "amplitude_m": src.amplitude_m}]
         width = 2.0 * src.radius_km
@@ -173,4 +221,5 @@ def summarize_source(
         wavelength_km=lam,
         period_s=period,
         rays=fan.by_side() if fan is not None else {},
+        details=details,
     )

@@ -236,8 +236,10 @@ def _seed_of(params: Mapping[str, Any]) -> int | None:
 class _Accumulator:
     """Fold member outcomes in member-index order: per-cell Welford moments, per-segment tables."""
 
-    def __init__(self, n_members: int, reduce: Sequence[str] | None) -> None:
+    def __init__(self, n_members: int, reduce: Sequence[str] | None,
+                 on_result: Callable[[int, MemberResult, dict[str, Any]], Any] | None = None) -> None:
         self.n_members = n_members
+        self.on_result = on_result
         self.reduce = None if reduce is None else tuple(reduce)
         self.next_index = 0
         self.pending: dict[int, _Outcome] = {}
@@ -335,6 +337,8 @@ class _Accumulator:
                 mean += np.where(ok, delta / np.where(ok, cnt, 1.0), 0.0)
             m2 += np.where(ok, delta * (x - mean), 0.0)
         self.result_bytes = max(self.result_bytes, nbytes)
+        if self.on_result is not None:
+            self.on_result(i, res, params)
 
 
 def _fold_task(acc: _Accumulator, outcome: _Outcome, params: dict[str, Any]) -> _Accumulator:
@@ -729,6 +733,7 @@ def run_ensemble(
     workers: int | None = None,
     max_buffered: int | None = None,
     connect_timeout_s: float = 30.0,
+    on_result: Callable[[int, MemberResult, dict[str, Any]], Any] | None = None,
 ) -> EnsembleResult:
     """Run every member and combine the results (see the module docstring).
 
@@ -767,6 +772,9 @@ def run_ensemble(
         that reduces. Ignored by ``"serial"``.
     connect_timeout_s : float
         How long to try reaching a scheduler given by address [s].
+    on_result : callable, optional
+        ``on_result(index, result, params)``, called in the reducing process for every successful
+        member, in member-index order, as it is folded (e.g. to keep each member's result).
 
     Returns
     -------
@@ -784,7 +792,7 @@ def run_ensemble(
     reduce_list = None if reduce is None else [str(r) for r in reduce]
     workers = int(workers) if workers else (os.cpu_count() or 1)
     kind, client, own = _resolve_scheduler(scheduler, workers, connect_timeout_s)
-    acc = _Accumulator(len(members), reduce_list)
+    acc = _Accumulator(len(members), reduce_list, on_result)
     prog = MemberProgress(len(members), progress)
     t0 = time.perf_counter()
     try:

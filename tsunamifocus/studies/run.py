@@ -33,6 +33,8 @@ from ..focusing.ranking import _add_ranks, rank_segments
 from ..grid import GridInfo
 from ..io.bathymetry import load_bathymetry
 from ..io.coastline import read_coastline, read_region_polygons
+from ..io.subfaults import read_subfault_table
+from ..io.surface import read_sea_surface
 from ..ocean.perturb import draw_member_parameters, perturb_bathymetry
 from ..ocean.smooth import smooth_bathymetry
 from ..coast.waves import segment_first_arrivals
@@ -42,6 +44,8 @@ from ..source.energy import period_bands
 from .check import compare_with_waves
 from ..source.rayfan import make_ray_fan
 from ..source.summary import summarize_source
+from ..source.subfaults import rupture_from_subfaults
+from ..source.surface import SurfaceSource, initial_surface
 from ..source.uplift import uplift_on_grid
 from .ensemble import MemberResult, run_ensemble
 from .points import point_max_distance_km, points_table
@@ -110,9 +114,16 @@ def build_source(cfg: Any, perturbation: dict | None = None):
 
     Returns
     -------
-    Rupture or PointSource
+    Rupture, SubfaultRupture, SurfaceSource or PointSource
+        Subfault tables and sea-surface rasters are read here (``cfg.path``); the scenario
+        parser refuses source perturbations for them.
     """
     p = perturbation or {}
+    if cfg.kind == "subfaults":
+        table = read_subfault_table(cfg.path, depth_at=cfg.depth_at)
+        return rupture_from_subfaults(table, name=cfg.name, force=cfg.force)
+    if cfg.kind == "surface":
+        return SurfaceSource(read_sea_surface(cfg.path, variable=cfg.variable), name=cfg.name)
     if cfg.kind == "point":
         lon, lat = cfg.lon, cfg.lat
         if p.get("along_km") or p.get("across_km"):
@@ -306,9 +317,9 @@ def analyse_source(
     """
     pr = progress or StageProgress(False)
     p = perturbation or {}
-    pr.start("source", f"source '{src_cfg.name}': Okada uplift and ray fan")
+    pr.start("source", f"source '{src_cfg.name}': initial sea surface and ray fan")
     src = build_source(src_cfg, p)
-    eta = uplift_on_grid(src, depth)
+    eta = initial_surface(src, depth)
     if segments is None:
         segments = _segments_for(depth, scenario)
     count = int(n_rays or scenario.rays.count or choose_ray_count(scenario, depth, segments).value)
@@ -318,7 +329,7 @@ def analyse_source(
     summary = summarize_source(src, eta, depth, fan)
     period = float(scenario.focusing.period_s or summary.period_s)
     bands = period_bands(eta, depth, period) if all_bands else [(period, 1.0)]
-    pr.done(f"Mw {summary.mw:.2f}, E = {summary.energy_J:.3g} J, period {period / 60:.1f} min, {fan.n_rays} rays")
+    pr.done(f"{summary.headline}, period {period / 60:.1f} min, {fan.n_rays} rays")
     pr.start("trace", f"tracing {fan.n_rays} rays in {len(bands)} period bands over the real and reference "
              "oceans as the wave sees them, and over a constant-depth ocean")
     kw = {"max_time_s": scenario.rays.max_time_h * 3600.0, "keep_paths": keep_paths}

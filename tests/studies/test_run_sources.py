@@ -1,0 +1,79 @@
+"""A sea-surface raster written from a fault's own uplift, run like the fault: same energy, same ranking."""
+
+from __future__ import annotations
+
+import dataclasses
+
+import numpy as np
+import pytest
+import rasterio
+from affine import Affine
+from pyproj import Transformer
+from scipy.stats import spearmanr
+
+from tsunamifocus.io.bathymetry import load_bathymetry
+from tsunamifocus.io.scenario import SourceConfig, parse_scenario
+from tsunamifocus.products.demo import demo_inputs
+from tsunamifocus.source.uplift import uplift_on_grid
+from tsunamifocus.studies.run import _segments_for, analyse_source, build_source, load_scenario_bathymetry
+
+
+@pytest.fixture(scope="module")
+def demo(tmp_path_factory):
+    base = tmp_path_factory.mktemp("sources")
+    sc = parse_scenario(demo_inputs(base / "inputs"))
+    sc = dataclasses.replace(sc, rays=dataclasses.replace(sc.rays, count=3000),
+                             ensemble=dataclasses.replace(sc.ensemble, members=0))
+    depth = load_scenario_bathymetry(sc)
+    return base, sc, depth, _segments_for(depth, sc)
+
+
+def test_raster_of_the_fault_uplift_gives_the_fault_energy_and_ranking(demo):
+    base, sc, depth, seg = demo
+    fault = analyse_source(depth, sc, sc.sources[0], segments=seg, all_bands=False)
+    # the fault's uplift computed on the lon/lat version of the demo grid, written by rasterio as a
+    # lon/lat GeoTIFF: another CRS and another grid than the projected grid of the run
+    dll = load_bathymetry(base / "inputs" / "meridane_depth_lonlat.nc", values="depth")
+    eta = uplift_on_grid(build_source(sc.sources[0]), dll)
+    x, y = eta.lon.values, eta.lat.values
+    dx, dy = float(x[1] - x[0]), float(y[1] - y[0])
+    p = base / "fault_eta.tif"
+    with rasterio.open(p, "w", driver="GTiff", height=y.size, width=x.size, count=1, dtype="float64",
+                       crs="EPSG:4326", transform=Affine(dx, 0.0, x[0] - dx / 2, 0.0, -dy, y[-1] + dy / 2)) as dst:
+        dst.write(eta.values[::-1], 1)
+    raster = analyse_source(depth, sc, SourceConfig(name="raster", kind="surface", path=p), segments=seg,
+                            all_bands=False)
+    # issue target: the same energy within 1 % (E = 1/2 rho g integral eta^2 dA of both surfaces)
+    assert raster.summary.energy_J == pytest.approx(fault.summary.energy_J, rel=0.01)
+    # the same dominant period from the raster's spectrum as from the fault's geometry (rule of thumb)
+    assert raster.period_s == pytest.approx(fault.period_s, rel=0.05)
+    # the same ranking: identical top 5 in order, rank correlation over the coast (scipy)
+    a = fault.focusing.ranking["segment_id"].head(5).tolist()
+    b = raster.focusing.ranking["segment_id"].head(5).tolist()
+    assert a == b
+    fa = fault.focusing.segments.set_index("segment_id")["lensing_factor"]
+    ra = raster.focusing.segments.set_index("segment_id")["lensing_factor"].reindex(fa.index)
+    ok = np.isfinite(fa) & np.isfinite(ra)
+    assert ok.sum() > 30
+    assert spearmanr(fa[ok], ra[ok])[0] > 0.98
+
+
+def test_subfault_source_from_a_scenario(demo, tmp_path):
+    base, sc, depth, seg = demo
+    # one row per half of the demo rupture's trace, slip on the northern half only (centroid positions)
+    (lo1, la1), (lo2, la2) = sc.sources[0].segments[0].trace
+    lat_mid = 0.5 * (la1 + la2)
+    text = ("lon,lat,depth_km,strike_deg,dip_deg,rake_deg,length_km,width_km,slip_m\n"
+            f"{lo1 + 0.5:.4f},{0.5 * (la1 + lat_mid):.4f},16.4,0.4,12,90,140,110,0\n"
+            f"{lo1 + 0.5:.4f},{0.5 * (lat_mid + la2):.4f},16.4,0.4,12,90,140,110,10\n")
+    (tmp_path / "model.csv").write_text(text)
+    cfg = SourceConfig(name="half", kind="subfaults", path=tmp_path / "model.csv", depth_at="centroid")
+    src = build_source(cfg)
+    # M0 = mu L W D of the one slipping row (definition), 40 GPa default rigidity
+    assert src.moment_nm == pytest.approx(4e10 * 140e3 * 110e3 * 10.0, rel=1e-6)
+    a = analyse_source(depth, sc, cfg, segments=seg, all_bands=False, n_rays=1000)
+    assert a.summary.kind == "subfaults"
+    # the fan leaves from the slipping (northern) half: launch latitudes north of the trace's middle
+    lon, lat = Transformer.from_crs(depth.spatial_ref.attrs["crs_wkt"], "EPSG:4326",
+                                    always_xy=True).transform(a.fan.x0, a.fan.y0)
+    assert np.average(lat, weights=a.fan.weights) > lat_mid
