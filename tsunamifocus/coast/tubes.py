@@ -21,6 +21,7 @@ over which diffraction fills a shadow) and is flagged ``shadow``.
 
 from __future__ import annotations
 
+import itertools
 import math
 from dataclasses import dataclass
 
@@ -86,31 +87,91 @@ def _samples(segments: pd.DataFrame, spacing_m: float, info: GridInfo) -> tuple[
     return np.concatenate(pts), np.concatenate(sid), np.concatenate(ds)
 
 
-def _gauss_rows(tree: cKDTree, pts: np.ndarray, ds: np.ndarray, sid: np.ndarray, xyz: np.ndarray,
-                off: np.ndarray, sigma: np.ndarray, nseg: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+def _pairs(tree: cKDTree, xyz: np.ndarray, radius: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """All (ray, sample) pairs closer than each ray's ``radius``, as two flat index arrays."""
+    if xyz.shape[0] == 0:
+        return np.zeros(0, np.int64), np.zeros(0, np.int64)
+    lists = tree.query_ball_point(xyz, radius)
+    lens = np.fromiter((len(x) for x in lists), dtype=np.int64, count=len(lists))
+    flat = np.fromiter(itertools.chain.from_iterable(lists), dtype=np.int64, count=int(lens.sum()))
+    return np.repeat(np.arange(len(lists), dtype=np.int64), lens), flat
+
+
+@dataclass
+class _Samples:
+    """Points along the segments, ``spacing`` apart, and clusters of them for wide footprints.
+
+    Level ``l`` groups the samples into cubes of side ``spacing * 4**l`` (3-D on the sphere):
+    each cluster is its length-weighted centroid, its length and its make-up by segment (the
+    sparse matrix ``comp``, cluster x segment, in metres). A footprint of std ``sigma`` is
+    summed on the level whose cubes are at most ``sigma / 2`` wide, so the work per ray stays
+    bounded however wide the tube has spread.
+    """
+
+    spacing: float
+    levels: list[tuple[cKDTree, np.ndarray, np.ndarray, sparse.csr_matrix]]
+    sid: np.ndarray
+
+    @classmethod
+    def build(cls, segments: pd.DataFrame, spacing: float, info: GridInfo) -> _Samples:
+        pts, sid, ds = _samples(segments, spacing, info)
+        nseg = len(segments)
+        fine = sparse.csr_matrix((ds, (np.arange(sid.size), sid)), shape=(sid.size, nseg))
+        levels = [(cKDTree(pts), pts, ds, fine)]
+        side = spacing
+        span = float(np.max(np.ptp(pts, axis=0))) if pts.shape[0] else 0.0
+        while levels[-1][1].shape[0] > 1:
+            side *= 4.0
+            if side > span:  # last level: one cluster
+                cl = np.zeros(sid.size, dtype=np.int64)
+            else:
+                key = np.floor((pts - pts.min(axis=0)) / side).astype(np.int64)
+                m = int(key.max()) + 1
+                flat = key[:, 0] * m * m + key[:, 1] * m + (key[:, 2] if key.shape[1] == 3 else 0)
+                _, cl = np.unique(flat, return_inverse=True)
+                cl = np.asarray(cl).ravel()
+            n = int(cl.max()) + 1
+            w = np.bincount(cl, weights=ds, minlength=n)
+            cen = np.column_stack([np.bincount(cl, weights=ds * pts[:, j], minlength=n) for j in range(pts.shape[1])])
+            cen /= w[:, None]
+            comp = sparse.csr_matrix((ds, (cl, sid)), shape=(n, nseg))
+            levels.append((cKDTree(cen), cen, w, comp))
+        return cls(float(spacing), levels, sid)
+
+    def level_of(self, sigma: np.ndarray) -> np.ndarray:
+        """Level index for footprints of std ``sigma`` (cubes at most ``sigma / 2`` wide)."""
+        with np.errstate(divide="ignore", invalid="ignore"):
+            lv = np.floor(np.log(np.maximum(sigma, 1e-9) / (2.0 * self.spacing)) / math.log(4.0))
+        return np.clip(np.nan_to_num(lv, nan=0.0), 0, len(self.levels) - 1).astype(np.int64)
+
+
+def _gauss_rows(smp: _Samples, xyz: np.ndarray, off: np.ndarray, sigma: np.ndarray,
+                nseg: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Per ray, the normalised Gaussian weights of the segments within 4 sigma (COO triplets).
 
     Distances along the coast are taken as ``sqrt(r^2 - off^2)``, ``off`` being the ray end's
-    distance to the nearest coast sample (a coastline inshore of the stop isobath).
+    distance to the nearest coast sample (a coastline inshore of the stop isobath); wide
+    footprints are summed on clusters of samples (:class:`_Samples`).
     """
-    rows, cols, vals = [], [], []
-    for i, near in enumerate(tree.query_ball_point(xyz, np.sqrt(off**2 + (4.0 * sigma) ** 2))):
-        if not near:
+    nray = xyz.shape[0]
+    acc = sparse.csr_matrix((nray, nseg))
+    lv = smp.level_of(sigma)
+    for level in np.unique(lv):
+        rsel = np.flatnonzero(lv == level)
+        tree, pts, w, comp = smp.levels[int(level)]
+        ray, k = _pairs(tree, xyz[rsel], np.sqrt(off[rsel] ** 2 + (4.0 * sigma[rsel]) ** 2))
+        if ray.size == 0:
             continue
-        idx = np.asarray(near, dtype=np.int64)
-        r2 = np.maximum(np.sum((pts[idx] - xyz[i]) ** 2, axis=1) - off[i] ** 2, 0.0)
-        g = np.exp(-0.5 * r2 / sigma[i] ** 2) * ds[idx]
-        per = np.bincount(sid[idx], weights=g, minlength=nseg)
-        tot = per.sum()
-        if tot <= 0:
-            continue
-        nz = np.flatnonzero(per)
-        rows.append(np.full(nz.size, i))
-        cols.append(nz)
-        vals.append(per[nz] / tot)
-    if not rows:
-        return np.zeros(0, np.int64), np.zeros(0, np.int64), np.zeros(0)
-    return np.concatenate(rows), np.concatenate(cols), np.concatenate(vals)
+        ray = rsel[ray]
+        r2 = np.maximum(np.sum((pts[k] - xyz[ray]) ** 2, axis=1) - off[ray] ** 2, 0.0)
+        g = np.exp(-0.5 * r2 / sigma[ray] ** 2)  # comp rows carry the metres of each segment
+        gm = sparse.csr_matrix((g, (ray, k)), shape=(nray, pts.shape[0]))
+        acc = acc + gm @ comp
+    acc = acc.tocoo()
+    tot = np.bincount(acc.row, weights=acc.data, minlength=nray)
+    keep = (acc.data > 0) & (tot[acc.row] > 0)
+    r, c = acc.row[keep].astype(np.int64), acc.col[keep].astype(np.int64)
+    return r, c, acc.data[keep] / tot[r]
 
 
 def nearest_segment(segments: pd.DataFrame, info: GridInfo, x: np.ndarray, y: np.ndarray,
@@ -194,8 +255,8 @@ def tube_deposit(
     nray = int(end.sizes["ray"])
     hit = np.flatnonzero(np.asarray(end["reason"].values) == _REASON_COAST)
     spacing = 0.5 * min(info.spacing_m())
-    pts, sid, ds = _samples(segments, spacing, info)
-    tree = cKDTree(pts)
+    smp = _Samples.build(segments, spacing, info)
+    tree, sid = smp.levels[0][0], smp.sid
     xyz = to_xyz(info, np.asarray(end["x"].values, float)[hit], np.asarray(end["y"].values, float)[hit])
     dist0, i0 = tree.query(xyz) if hit.size else (np.zeros(0), np.zeros(0, np.int64))
     seg_idx, _ = nearest_segment(segments, info, np.asarray(end["x"].values, float)[hit],
@@ -212,22 +273,25 @@ def tube_deposit(
     foot = q * np.asarray(steps, float)[hit] / cos_inc
     lam = c_end * period_s
     sigma = np.maximum(foot, min_width_factor * lam) / math.sqrt(2.0 * math.pi)
-    r, c, v = _gauss_rows(tree, pts, ds, sid, xyz, off, sigma, nseg)
+    r, c, v = _gauss_rows(smp, xyz, off, sigma, nseg)
     mat = sparse.csr_matrix((w[r] * v, (hit[r], c)), shape=(nray, nseg))
     energy = np.asarray(mat.sum(axis=0)).ravel()
     n_rays = np.bincount(c, minlength=nseg)
     # coverage by the unregularised box footprints
     covered = np.zeros(nseg, dtype=bool)
     half = np.maximum(0.5 * foot, 0.5 * spacing)
-    for i, nb in enumerate(tree.query_ball_point(xyz, np.sqrt(off**2 + half**2) * (1 + 1e-9))):
-        if nb:
-            covered[sid[np.asarray(nb, dtype=np.int64)]] = True
+    lv = smp.level_of(half / 2.0)
+    for level in np.unique(lv):
+        sel = np.flatnonzero(lv == level)
+        tree_l, _, _, comp = smp.levels[int(level)]
+        _, k = _pairs(tree_l, xyz[sel], np.sqrt(off[sel] ** 2 + half[sel] ** 2) * (1 + 1e-9))
+        covered[np.unique(comp[np.unique(k)].indices)] = True
     shadow = ~covered
     shadow_e = np.zeros(nseg)
     if shadow.any() and hit.size:
         path = np.asarray(end["path_length_m"].values, float)[hit]
         sig_f = np.maximum(0.5 * np.sqrt(lam * np.maximum(path, 0.0)), sigma)
-        r2_, c2_, v2_ = _gauss_rows(tree, pts, ds, sid, xyz, off, sig_f, nseg)
+        r2_, c2_, v2_ = _gauss_rows(smp, xyz, off, sig_f, nseg)
         est = np.bincount(c2_, weights=w[r2_] * v2_, minlength=nseg)
         shadow_e = np.where(shadow, est, 0.0)
     assigned = np.zeros(nray, dtype=bool)

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import dataclasses
 import math
 
 import numpy as np
@@ -77,6 +78,10 @@ def _to_xyz(info: GridInfo, x: np.ndarray, y: np.ndarray) -> np.ndarray:
 # --------------------------------------------------------------------------------------
 # smoothing
 # --------------------------------------------------------------------------------------
+#: Rows of a lon/lat grid are grouped by their x width in steps of this much in log width.
+_ROW_WIDTH_STEP: float = 0.01
+
+
 def _gauss_pass(f: np.ndarray, info: GridInfo, sigma_m: float, min_cells: float = 0.2) -> np.ndarray:
     """Separable Gaussian [std sigma_m metres]; on lon/lat the x width follows cos(lat).
 
@@ -91,10 +96,13 @@ def _gauss_pass(f: np.ndarray, info: GridInfo, sigma_m: float, min_cells: float 
         k = math.pi / 180.0 * info.radius_m
         coslat = np.cos(np.radians(np.clip(info.y, -89.5, 89.5)))
         mode = "wrap" if info.periodic_x else "constant"
-        for j in range(info.ny):
-            sx = min(sigma_m / (info.dx * k * coslat[j]), 4.0 * info.nx)
-            if sx >= min_cells:
-                out[j] = ndimage.gaussian_filter1d(out[j], sx, mode=mode, truncate=3.0)
+        sx = np.minimum(sigma_m / (info.dx * k * coslat), 4.0 * info.nx)
+        # rows whose widths agree within 0.5 % are filtered together at their common width
+        key = np.round(np.log(np.maximum(sx, 1e-12)) / _ROW_WIDTH_STEP).astype(np.int64)
+        for kk in np.unique(key[sx >= min_cells]):
+            rows = np.flatnonzero((key == kk) & (sx >= min_cells))
+            out[rows] = ndimage.gaussian_filter1d(out[rows], math.exp(kk * _ROW_WIDTH_STEP), axis=1,
+                                                  mode=mode, truncate=3.0)
     else:
         sx = sigma_m / dxm
         if sx >= min_cells:
@@ -104,11 +112,82 @@ def _gauss_pass(f: np.ndarray, info: GridInfo, sigma_m: float, min_cells: float 
 
 def _normalised_gauss(f: np.ndarray, mask: np.ndarray, info: GridInfo, sigma_m: float,
                       min_cells: float = 0.2) -> np.ndarray:
-    """Gaussian-weighted mean of ``f`` over the ``mask`` nodes (normalised convolution); NaN where no weight."""
-    a = _gauss_pass(np.where(mask, f, 0.0), info, sigma_m, min_cells)
-    b = _gauss_pass(mask.astype(float), info, sigma_m, min_cells)
+    """Gaussian-weighted mean of ``f`` over the ``mask`` nodes (normalised convolution); NaN where no weight.
+
+    Widths of many cells are applied on a block-averaged grid (:func:`_decimation`) and
+    interpolated back (bilinear): the cost per level then stays that of a few-cell kernel.
+    """
+    a0 = np.where(mask, f, 0.0)
+    b0 = mask.astype(float)
+    d = _decimation(info, sigma_m)
+    if d > 1:
+        a, b = _coarse_gauss(a0, b0, info, sigma_m, d)
+    else:
+        a = _gauss_pass(a0, info, sigma_m, min_cells)
+        b = _gauss_pass(b0, info, sigma_m, min_cells)
     with np.errstate(invalid="ignore", divide="ignore"):
         return np.where(b > 1e-12, a / b, np.nan)
+
+
+#: Widths of at least this many cells are applied on a block-averaged grid.
+_DECIMATE_FROM_CELLS: float = 8.0
+
+
+def _decimation(info: GridInfo, sigma_m: float) -> int:
+    """Block size (a power of 2) for a Gaussian of ``sigma_m``: 1, or keeping >= 4 coarse cells per std."""
+    dxm, dym = info.spacing_m()
+    cells = sigma_m / (dym if info.geographic else max(dxm, dym))
+    if not (np.isfinite(cells) and cells >= _DECIMATE_FROM_CELLS):
+        return 1
+    d = 2 ** int(math.floor(math.log2(cells / 4.0)))
+    d = min(d, max(1, min(info.ny, info.nx) // 16))
+    while d > 1 and info.periodic_x and info.nx % d:
+        d //= 2
+    return max(1, d)
+
+
+def _coarse_gauss(a0: np.ndarray, b0: np.ndarray, info: GridInfo, sigma_m: float,
+                  d: int) -> tuple[np.ndarray, np.ndarray]:
+    """Gaussian of ``a0`` and ``b0`` through ``d x d`` block means, bilinear back to the grid.
+
+    Block averaging and bilinear interpolation widen the kernel by a variance of about
+    ``(d h)^2 / 4`` (``h`` the cell side: ``1/12`` for the box, ``1/6`` for the hat); the
+    coarse Gaussian is narrowed by as much.
+    """
+    ny, nx = a0.shape
+    nyc, nxc = -(-ny // d), -(-nx // d)
+    cinfo = dataclasses.replace(info, x0=info.x0 + 0.5 * (d - 1) * info.dx, y0=info.y0 + 0.5 * (d - 1) * info.dy,
+                                dx=info.dx * d, dy=info.dy * d, nx=nxc, ny=nyc)
+    h = info.spacing_m()[1] if info.geographic else max(info.spacing_m())
+    s_c = math.sqrt(max(sigma_m**2 - (d * h) ** 2 / 4.0, (0.5 * d * h) ** 2))
+    outs = []
+    for arr in (a0, b0):
+        pad = np.zeros((nyc * d, nxc * d))
+        pad[:ny, :nx] = arr
+        coarse = pad.reshape(nyc, d, nxc, d).mean(axis=(1, 3))
+        sm = _gauss_pass(coarse, cinfo, s_c, 0.2)
+        sm = _lin_axis(sm, 0, ny, d, False)
+        outs.append(_lin_axis(sm, 1, nx, d, info.periodic_x))
+    return outs[0], outs[1]
+
+
+def _lin_axis(arr: np.ndarray, axis: int, n_out: int, d: int, periodic: bool) -> np.ndarray:
+    """Linear interpolation along ``axis`` from block centres (``d`` fine cells each) to ``n_out`` fine cells."""
+    nc = arr.shape[axis]
+    p = (np.arange(n_out) - 0.5 * (d - 1)) / d
+    if periodic:
+        i0 = np.floor(p).astype(np.int64)
+        t = p - i0
+        i0 %= nc
+        i1 = (i0 + 1) % nc
+    else:
+        i0 = np.clip(np.floor(p).astype(np.int64), 0, max(nc - 2, 0))
+        i1 = np.minimum(i0 + 1, nc - 1)
+        t = np.clip(p - i0, 0.0, 1.0)
+    shape = [1, 1]
+    shape[axis] = n_out
+    t = t.reshape(shape)
+    return np.take(arr, i0, axis=axis) * (1.0 - t) + np.take(arr, i1, axis=axis) * t
 
 
 def smooth_field(
@@ -160,21 +239,23 @@ def smooth_field(
         ok = np.isfinite(sig) & (sig > 0) & m
         out = np.where(m, f, np.nan)
         if ok.any():
-            smin, smax = float(sig[ok].min()), float(sig[ok].max())
+            # widths below a fifth of a cell change nothing (_gauss_pass leaves them out)
+            smin = max(float(sig[ok].min()), 0.15 * info.min_spacing_m())
+            smax = max(float(sig[ok].max()), smin)
             ratio = 2.0 ** (1.0 / max(1, int(levels_per_octave)))
             nlev = max(1, int(math.ceil(math.log(smax / smin) / math.log(ratio))) + 1) if smax > smin else 1
             levels = smin * ratio ** np.arange(nlev)
-            maps = [level(float(s)) for s in levels]
             if nlev == 1:
-                out = np.where(ok, maps[0], out)
+                out = np.where(ok, level(float(levels[0])), out)
             else:
-                t = np.log(np.where(ok, sig, smin) / smin) / math.log(ratio)
+                t = np.log(np.where(ok, np.maximum(sig, smin), smin) / smin) / math.log(ratio)
                 k = np.clip(np.floor(t).astype(int), 0, nlev - 2)
                 frac = np.clip(t - k, 0.0, 1.0)
-                stack = np.stack(maps)
-                jj, ii = np.indices(f.shape)
-                lo = stack[k, jj, ii]
-                hi = stack[k + 1, jj, ii]
-                out = np.where(ok, lo * (1 - frac) + hi * frac, out)
+                acc = np.zeros(f.shape)
+                for i, s_i in enumerate(levels):
+                    wt = np.where(k == i, 1.0 - frac, 0.0) + np.where(k == i - 1, frac, 0.0)
+                    if wt.any():
+                        acc += wt * np.nan_to_num(level(float(s_i)))
+                out = np.where(ok, acc, out)
     res = field.copy(data=np.where(m, out, np.nan))
     return res

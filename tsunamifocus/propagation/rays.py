@@ -102,6 +102,7 @@ def trace_rays(
     stop_depth_m: float = STOP_DEPTH_M,
     max_time_s: float = 86400.0,
     step_s: float | None = None,
+    cells_per_step: float = 1.0,
     gravity: float = GRAVITY,
     min_depth: float = MIN_DEPTH_M,
     threads: int | None = None,
@@ -132,8 +133,11 @@ def trace_rays(
     max_time_s : float
         Time limit [s] (reason 4).
     step_s : float, optional
-        RK4 time step [s]. Default :func:`default_step_s` (one smallest-cell crossing at the
-        fastest speed of the grid).
+        RK4 time step [s]. Default :func:`default_step_s` (``cells_per_step`` smallest-cell
+        crossings at the fastest speed of the grid).
+    cells_per_step : float
+        Default time step in cell crossings at the fastest speed (1 for raw grids; media smoothed
+        over many cells can take more, see :data:`tsunamifocus.focusing.analysis.SMOOTHED_CELLS_PER_STEP`).
     gravity, min_depth : float
         Long-wave speed ``c = sqrt(g max(h, min_depth))`` [m s-2], [m].
     threads : int, optional
@@ -172,7 +176,8 @@ def trace_rays(
     info = fld.info
     x0, y0, az, w = _check_rays(x0, y0, azimuth_deg, weights)
     n = x0.size
-    dt, threads = _check_settings(fld, stop_depth_m, max_time_s, step_s, keep_paths, path_points, threads)
+    dt, threads = _check_settings(fld, stop_depth_m, max_time_s, step_s, keep_paths, path_points, threads,
+                                  cells_per_step)
     _check_launch(fld, x0, y0, stop_depth_m, polar_lat_deg)
     q0a, p0a = _initial_paraxial(fld, x0, y0, q0, p0)
     run = _run_kernel(fld, x0, y0, az, w, q0a, p0a, dt=dt, max_time_s=max_time_s, stop_depth_m=stop_depth_m,
@@ -228,14 +233,16 @@ def _check_rays(x0, y0, azimuth_deg, weights) -> tuple[np.ndarray, np.ndarray, n
 
 
 def _check_settings(fld: SpeedField, stop_depth_m, max_time_s, step_s, keep_paths, path_points,
-                    threads) -> tuple[float, int]:
+                    threads, cells_per_step: float = 1.0) -> tuple[float, int]:
     """Validate the scalar settings; return the time step [s] and the thread count."""
     if not (np.isfinite(stop_depth_m) and stop_depth_m > 0):
         raise RayError(f"stop_depth_m = {stop_depth_m!r} m: expected a positive depth (e.g. 10-50 m)")
     if not (np.isfinite(max_time_s) and max_time_s > 0):
         raise RayError(f"max_time_s = {max_time_s!r}: expected a positive time in seconds")
     if step_s is None:
-        dt = default_step_s(fld)
+        if not (np.isfinite(cells_per_step) and 0 < cells_per_step <= _MAX_CELLS_PER_STEP):
+            raise RayError(f"cells_per_step = {cells_per_step!r}: expected 0 < cells_per_step <= {_MAX_CELLS_PER_STEP:g}")
+        dt = default_step_s(fld, cells_per_step)
     else:
         dt = float(step_s)
         max_dt = _MAX_CELLS_PER_STEP * default_step_s(fld)
