@@ -1010,6 +1010,95 @@ CLI_CASES = [
 ]
 
 
+# ------------------------------------------------------------------ issue 16: reliability, round two
+# Each class of failure adds rows here; the rule each row checks is the project's own (never lose a
+# user's files, refuse with one line naming file/field/value and what was expected).
+
+
+def _fake_run(tmp: pathlib.Path, name: str) -> pathlib.Path:
+    """A folder laid out like a finished run (a tsunamifocus manifest with parameters, a segments table)."""
+    d = tmp / name
+    d.mkdir()
+    (d / "segments.csv").write_text("segment_id,lensing_factor\ns1,1.0\n", encoding="utf-8")
+    (d / "manifest.json").write_text(json.dumps({
+        "format": "tsunamifocus-manifest", "format_version": 1, "parameters": {"scenario": {"name": name}},
+        "inputs": [], "outputs": [], "seeds": {}, "software": {}}), encoding="utf-8")
+    return d
+
+
+def _run_into(out_of: Callable[[pathlib.Path], pathlib.Path], names: str | Callable[[pathlib.Path], str], *opts):
+    """``run`` of the small scenario with --out chosen by ``out_of(tmp)``."""
+    def build(tmp):
+        sc = _scenario(tmp)
+        out = out_of(tmp)
+        return ["-q", "run", str(sc), "--out", str(out), *opts], names(tmp) if callable(names) else names
+
+    return build
+
+
+def _symlink_to_folder(tmp: pathlib.Path) -> pathlib.Path:
+    (tmp / "real_results").mkdir()
+    (tmp / "linked_out").symlink_to(tmp / "real_results")
+    return tmp / "linked_out"
+
+
+RELIABILITY_CLI_CASES = [
+    # class 1: --overwrite replaces only an earlier output of the same kind, never the inputs
+    CliCase(
+        "cli-run-overwrite-folder-holding-the-scenario",
+        _run_into(lambda t: t, "scenario_file", "--overwrite"),
+        r"holds the input scenario_file .*scenario.toml; writing there would destroy it",
+    ),
+    CliCase(
+        "cli-run-overwrite-folder-of-user-files",
+        _run_into(_empty_run_folder, "not_a_run", "--overwrite"),
+        r"--overwrite replaces only an earlier run output folder \(with its manifest.json\); this folder holds "
+        r"files that are not tsunamifocus output",
+    ),
+    CliCase(
+        "cli-run-out-inside-the-grid-folder",
+        lambda t: (["-q", "run", str(_scenario(t)), "--out", str(t / "shelf.tif" / "x")], "shelf.tif"),
+        r"lies inside the input bathymetry",
+    ),
+    CliCase(
+        "cli-compare-overwrite-one-of-its-runs",
+        lambda t: (["compare", str(_fake_run(t, "A")), str(_fake_run(t, "B")), "--out", str(t / "A"),
+                    "--overwrite"], "run folder"),
+        r"/A: --out holds the input run folder",
+    ),
+    CliCase(
+        "cli-compare-overwrite-a-run-folder",
+        lambda t: (["compare", str(_fake_run(t, "A")), str(_fake_run(t, "B")), "--out", str(_fake_run(t, "C")),
+                    "--overwrite"], "earlier run output"),
+        r"replaces only an earlier comparison output folder \(with its comparison.json\)",
+    ),
+    CliCase(
+        "cli-check-overwrite-a-run-folder",
+        lambda t: (["-q", "check", str(_fake_run(t, "A")), "--out", str(_fake_run(t, "B")), "--overwrite"],
+                   "earlier run output"),
+        r"replaces only an earlier wave-check output folder",
+    ),
+    # class 11: an output that cannot be created is refused before any computation
+    CliCase(
+        "cli-run-out-under-a-file",
+        _run_into(lambda t: _put(t / "afile", "x") / "sub", "afile"),
+        r"--out cannot be created: .*afile is not a folder",
+    ),
+    CliCase(
+        "cli-run-out-in-read-only-place",  # /sys refuses mkdir even to root (Linux sysfs)
+        _run_into(lambda t: pathlib.Path("/sys/tsunamifocus-out"), "/sys"),
+        r"--out cannot be created: /sys is not writable",
+    ),
+    # class 18: an --out that is a symbolic link is refused, nothing replaced, no link left behind
+    CliCase(
+        "cli-run-out-is-a-symlink",
+        _run_into(_symlink_to_folder, "linked_out", "--overwrite"),
+        r"is a symbolic link \(to .*real_results\); give the real folder",
+    ),
+]
+CLI_CASES += RELIABILITY_CLI_CASES
+
+
 @pytest.mark.parametrize("case", CLI_CASES, ids=[c.id for c in CLI_CASES])
 def test_cli_bad_input(tmp_path, capsys, case: CliCase):
     argv, names = case.build(tmp_path)

@@ -171,7 +171,10 @@ class OutputFolder:
                 f"{parent}: cannot create the output's parent folder ({exc.strerror})"
             ) from None
         self._recover()
-        if final.exists() or final.is_symlink():
+        if final.is_symlink():  # renaming it aside would replace the link, not its folder
+            raise OutputExistsError(f"{final}: output folder is a symbolic link (to {os.readlink(final)}); "
+                                    "give the real folder instead of the link")
+        if final.exists():
             if not final.is_dir():
                 raise OutputExistsError(f"{final}: exists and is not a folder; choose another output folder")
             if any(final.iterdir()) and not self.overwrite:

@@ -22,6 +22,7 @@ from ..cautions import caution_summary
 from ..errors import DataFileError, InputError
 from ..io.gis import write_cog, write_netcdf
 from ..io.manifest import jsonable, write_manifest
+from ..io.guards import check_output_folder
 from ..io.runfolder import OutputFolder
 from ..io.runs import read_run
 from ..io.scenario import Scenario, parse_scenario
@@ -122,6 +123,9 @@ def run_wave_check(
     if hours is not None and not hours > 0:
         raise InputError(f"--hours {hours}: expected a positive duration in hours")
     out_dir = pathlib.Path(out) if out is not None else run_dir / CHECK_FOLDER
+    check_output_folder(out_dir, overwrite=overwrite, kind="wave_check", option="--out" if out else "the check folder",
+                        inputs=[("run file", run_dir / f) for f in ("layers.nc", "segments.csv", "scenario.toml",
+                                                                     "manifest.json")])
     name, segments, layers = read_run(run_dir)
     for need in ("depth", "initial_sea_surface"):
         if need not in layers:
