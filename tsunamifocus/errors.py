@@ -30,6 +30,7 @@ __all__ = [
     "TsunamiFocusWarning",
     "ScalingWarning",
     "ResolutionWarning",
+    "DataWarning",
 ]
 
 
@@ -95,3 +96,7 @@ class ScalingWarning(TsunamiFocusWarning):
 
 class ResolutionWarning(TsunamiFocusWarning):
     """Grid resolution, ray count or segment length limits what a result can say."""
+
+
+class DataWarning(TsunamiFocusWarning):
+    """A few values of an input file are impossible or suspicious and were set aside (named in the message)."""

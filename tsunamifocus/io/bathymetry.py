@@ -19,7 +19,7 @@ import numpy as np
 import xarray as xr
 from pyproj import CRS
 
-from ..errors import CRSError, DataFileError, InputError, ResourceLimitError, SignConventionError
+from ..errors import DataWarning, CRSError, DataFileError, InputError, ResourceLimitError, SignConventionError
 from ..grid import GridInfo, check_bbox, crop_bathymetry, make_grid, resample_bathymetry
 
 __all__ = ['load_bathymetry', 'estimate_grid_memory', 'DEFAULT_MAX_MEMORY_GB']
@@ -41,6 +41,13 @@ _DEPTH_WORDS = ("depth",)
 #: grid stores elevation (positive up); a value above +PHYSICAL_SIGN_BOUND_M cannot be a land
 #: height either, so the grid stores depth (positive down).
 PHYSICAL_SIGN_BOUND_M: float = 8900.0
+#: Physical bounds of a depth grid [m]: no sea floor is deeper than the Challenger Deep (about
+#: 10,935 m, rounded up) and no land higher than Mount Everest (8,849 m, rounded up).
+DEEPEST_SEA_FLOOR_M: float = 11000.0
+HIGHEST_LAND_M: float = 8900.0
+#: Up to this fraction of the valid cells may lie outside the physical bounds (isolated spikes):
+#: they become no data with a warning; beyond it the grid is refused (units or sign are wrong).
+OUT_OF_BOUNDS_MAX_FRACTION: float = 0.001
 #: Working copies the loader holds at once, per grid cell (float64 + mask + one copy).
 _BYTES_PER_CELL = 8 * 3
 
@@ -141,6 +148,7 @@ def load_bathymetry(
         raw.crs = CRS.from_user_input(crs)
     depth = _to_depth(raw, values, units, p)
     da = _assemble(raw, depth, p)
+    _physical_bounds(da, p)
     da.attrs["sign_decided_by"] = raw.attrs.get("sign_decided_by") or f"given: values={values!r}"
     if bbox is not None:
         da = crop_bathymetry(da, bbox, margin_km=margin_km)
@@ -529,3 +537,28 @@ def _check_usable(da: xr.DataArray, p: pathlib.Path) -> None:
         raise InputError(
             f"{p}: no sea cells (all depths <= 0 after sign conversion); check values='elevation'/'depth'"
         )
+
+
+def _physical_bounds(da: xr.DataArray, p: pathlib.Path) -> None:
+    """Refuse a grid with many impossible values; turn a few isolated ones into no data with a warning.
+
+    A depth beyond :data:`DEEPEST_SEA_FLOOR_M` or a height above :data:`HIGHEST_LAND_M` exists
+    nowhere on Earth: such values are spikes, nodata markers without a declaration, or a wrong
+    unit or sign, and would give impossible wave speeds (c = sqrt(g h)).
+    """
+    v = da.values
+    with np.errstate(invalid="ignore"):
+        bad = (v > DEEPEST_SEA_FLOOR_M) | (v < -HIGHEST_LAND_M)
+    n_bad = int(bad.sum())
+    if not n_bad:
+        return
+    n_fin = int(np.isfinite(v).sum())
+    worst = float(v[bad][np.argmax(np.abs(v[bad]))])
+    what = (f"{n_bad} of {n_fin} cells lie outside the physical range (depth at most "
+            f"{DEEPEST_SEA_FLOOR_M:,.0f} m, land at most {HIGHEST_LAND_M:,.0f} m high; the most extreme is "
+            f"{'depth' if worst > 0 else 'height'} {abs(worst):,.6g} m)")
+    if n_bad > OUT_OF_BOUNDS_MAX_FRACTION * n_fin:
+        raise InputError(f"{p}: {what}; expected depths in metres: check the units, the sign (values=) and "
+                         "the nodata value of the file")
+    warnings.warn(f"{p}: {what}; these cells are treated as no data", DataWarning, stacklevel=3)
+    v[bad] = np.nan
