@@ -763,7 +763,41 @@ def _isobath_case():
 
 COAST_CASES.append(_isobath_case())
 
-API_CASES = GRID_CASES + SCENARIO_CASES + SOURCE_CASES + RAY_CASES + COAST_CASES
+# issue 16, class 2: impossible depths. The deepest sea floor (Challenger Deep) is about 10,935 m
+# and the highest land (Mount Everest) 8,849 m (facts of geography, values from memory).
+def _impossible(name, value, ny=7):
+    def make(tmp):
+        lo = np.arange(0.0, 8.01, 1.0)
+        z = np.broadcast_to(-4000.0 + 450.0 * lo, (ny, lo.size)).copy()
+        z[:, :4] = value  # half the sea cells
+        xr.Dataset({"z": (("lat", "lon"), z, {"positive": "up", "units": "m"})},
+                   coords={"lat": np.arange(ny) - 3.0, "lon": lo}).to_netcdf(tmp / name)
+        return tmp / name
+
+    return make
+
+
+def _nan_coordinate(tmp):
+    lo = np.arange(0.0, 8.01, 1.0)
+    lo[3] = np.nan
+    z = np.broadcast_to(-4000.0 + 450.0 * np.arange(9.0), (7, 9))
+    xr.Dataset({"z": (("lat", "lon"), z, {"positive": "up", "units": "m"})},
+               coords={"lat": np.arange(7.0) - 3.0, "lon": lo}).to_netcdf(tmp / "nanlon.nc")
+    return tmp / "nanlon.nc"
+
+
+RELIABILITY_API_CASES = [
+    _grid_case("grid-depth-1e9-m", _impossible("deep.nc", -1e9), E.InputError,
+               r"28 of 63 cells lie outside the physical range \(depth at most 11,000 m.*depth 1e\+09 m\); "
+               r"expected depths in metres"),
+    _grid_case("grid-height-above-highest-land", _impossible("high.nc", 25_000.0), E.InputError,
+               r"outside the physical range .*height 25,000 m"),
+    # class 4: a NaN coordinate is not a coordinate (grid convention: finite, ascending, regular)
+    _grid_case("grid-nan-longitude", _nan_coordinate, E.InputError,
+               r"coordinate 'lon' holds 1 non-finite value\(s\) \(first nan at index 3\)"),
+]
+
+API_CASES = GRID_CASES + SCENARIO_CASES + SOURCE_CASES + RAY_CASES + COAST_CASES + RELIABILITY_API_CASES
 
 
 @pytest.mark.parametrize("case", API_CASES, ids=[c.id for c in API_CASES])
