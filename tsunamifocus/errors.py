@@ -31,7 +31,36 @@ __all__ = [
     "ScalingWarning",
     "ResolutionWarning",
     "DataWarning",
+    "cut",
+    "MESSAGE_VALUE_CHARS",
+    "MESSAGE_LINE_CHARS",
 ]
+
+#: Longest value quoted in a message [characters], and longest message line the command line prints.
+MESSAGE_VALUE_CHARS = 80
+MESSAGE_LINE_CHARS = 1000
+
+
+def cut(text: object, limit: int = MESSAGE_VALUE_CHARS) -> str:
+    """``text`` shortened for a one-line message: head and tail kept, the middle replaced.
+
+    The one place that shortens values quoted in messages, so a huge value (a 10 MB description)
+    never becomes a huge error line. Both ends are kept because they are what tells values apart
+    (the start of a name, the file name at the end of a path).
+
+    Examples
+    --------
+    >>> cut("x" * 10)
+    'xxxxxxxxxx'
+    >>> cut("a" * 50 + "b" * 50, 20)
+    'aaaaaaaa...bbbbbbbbb (100 characters)'
+    """
+    s = str(text)
+    if len(s) <= limit:
+        return s
+    head = (limit - 3) // 2
+    tail = limit - 3 - head
+    return f"{s[:head]}...{s[len(s) - tail:]} ({len(s)} characters)"
 
 
 class TsunamiFocusError(Exception):

@@ -1020,7 +1020,7 @@ CLI_CASES = [
     CliCase(
         "cli-check-not-a-run",
         lambda t: (["-q", "check", str(_empty_run_folder(t))], "not_a_run"),
-        r"segments table not found \(expected segments.csv in the run folder\)",
+        r"manifest.json: not found; expected a finished run folder with its manifest",
     ),
     CliCase(
         "cli-demo-rays-zero",
@@ -1076,7 +1076,79 @@ def _symlink_to_folder(tmp: pathlib.Path) -> pathlib.Path:
     return tmp / "linked_out"
 
 
+def _recorded_run(tmp: pathlib.Path, name: str = "R") -> pathlib.Path:
+    """A run folder as ``run`` leaves it, in miniature: scenario.toml, segments.csv, manifest listing both."""
+    from tsunamifocus.io.manifest import write_manifest
+    from tsunamifocus.io.scenario import parse_scenario
+
+    sc = parse_scenario(_scenario(tmp))
+    d = tmp / name
+    d.mkdir()
+    (d / "scenario.toml").write_text(sc.to_toml(), encoding="utf-8")
+    (d / "segments.csv").write_text("segment_id,lensing_factor\nS0001,1.20\nS0002,0.90\n", encoding="utf-8")
+    write_manifest(d, scenario=sc)
+    return d
+
+
+def _without(d: pathlib.Path, rel: str) -> pathlib.Path:
+    (d / rel).unlink()
+    return d
+
+
+def _edited(rel: str, old: str, new: str, name: str = "R"):
+    def make(tmp):
+        d = _recorded_run(tmp, name)
+        f = d / rel
+        text = f.read_text(encoding="utf-8")
+        assert old in text, old
+        f.write_text(text.replace(old, new, 1), encoding="utf-8")
+        return d
+
+    return make
+
+
+def _edited_manifest_parameter(section: str, key: str, value):
+    def make(tmp):
+        d = _recorded_run(tmp)
+        m = json.loads((d / "manifest.json").read_text(encoding="utf-8"))
+        m["parameters"][section][key] = value
+        (d / "manifest.json").write_text(json.dumps(m), encoding="utf-8")
+        return d / "manifest.json"
+
+    return make
+
+
 RELIABILITY_CLI_CASES = [
+    # class 3: every command that reads a run verifies it against its manifest (sha256, FIPS 180-4)
+    CliCase(
+        "cli-compare-edited-segments",
+        lambda t: (["compare", str(_edited("segments.csv", "1.20", "99.0")(t)), str(_recorded_run(t, "S")),
+                    "--out", str(t / "cmp")], "changed: segments.csv"),
+        r"/R: run folder does not match its manifest: changed: segments.csv \(sha256 differs",
+    ),
+    CliCase(
+        "cli-check-edited-scenario",
+        lambda t: (["-q", "check", str(_edited("scenario.toml", "stop_depth_m = 20", "stop_depth_m = 50")(t))],
+                   "changed: scenario.toml"),
+        r"run folder does not match its manifest: changed: scenario.toml",
+    ),
+    CliCase(
+        "cli-check-deleted-file",
+        lambda t: (["-q", "check", str(_without(_recorded_run(t), "segments.csv"))], "missing: segments.csv"),
+        r"does not match its manifest: missing: segments.csv",
+    ),
+    CliCase(
+        "cli-rerun-edited-ray-count",
+        lambda t: (["-q", "run", str(_edited_manifest_parameter("rays", "count", 5)(t)), "--out", str(t / "out")],
+                   "rays.count: recorded 200, manifest 5"),
+        r"cannot reproduce the run: parameters differ from the recorded run: rays.count: recorded 200, manifest 5",
+    ),
+    CliCase(
+        "cli-rerun-edited-grid-path",
+        lambda t: (["-q", "run", str(_edited_manifest_parameter("bathymetry", "path", str(_good_tif(t, "other.tif")))(t)),
+                    "--out", str(t / "out")], "bathymetry.path: recorded"),
+        r"parameters differ from the recorded run: bathymetry.path: recorded \".*shelf.tif\", manifest \".*other.tif\"",
+    ),
     # class 1: --overwrite replaces only an earlier output of the same kind, never the inputs
     CliCase(
         "cli-run-overwrite-folder-holding-the-scenario",
