@@ -478,3 +478,36 @@ def test_ensemble_member_with_broken_bookkeeping_fails(run_a, monkeypatch):
     monkeypatch.setattr(F, "analyse_focusing", leaky)
     with pytest.raises(HealthCheckError, match="30.00 % exceeds 1 %"):
         ensemble_member(params, **kw)
+
+
+# ------------------------------------------------------------------------ issue 16 class 7: signals
+@pytest.mark.parametrize("sig", [signal.SIGINT, signal.SIGTERM], ids=["SIGINT", "SIGTERM"])
+def test_long_ray_tracing_stops_cleanly_on_a_signal(run_a, tmp_path, sig):
+    """200 000 rays: a signal during tracing ends the run with 128 + signal number (shell convention),
+    one line, no SystemError or crash (rc 139), nothing written. Figures of the time to stop are
+    measured by benchmarks/bench_stop.py; here a hang (30 s) is a failure."""
+    _, a = run_a
+    out = tmp_path / "big"
+    r = _Cli("run", str(a / "manifest.json"), "--rays", "200000", "--out", str(out))
+    assert r.wait_for(lambda: "tracing" in r.err), r.err
+    time.sleep(1.0)  # inside the kernel
+    r.proc.send_signal(sig)
+    rc = r.finish(timeout=30)
+    assert rc == 128 + sig, r.err
+    last = r.err.strip().splitlines()[-1]
+    assert last == ("error: interrupted; outputs were left as they were" if sig == signal.SIGINT
+                    else "error: terminated; outputs were left as they were"), r.err
+    assert "SystemError" not in r.err and "unexpected" not in r.err
+    assert not out.exists() and _siblings(out) == []
+
+
+def test_wave_solver_stops_cleanly_on_a_signal(run_a, tmp_path):
+    _, a = run_a
+    out = tmp_path / "chk"
+    r = _Cli("check", str(a), "--out", str(out), "--hours", "30")
+    assert r.wait_for(lambda: "linear long-wave check" in r.err), r.err
+    time.sleep(1.5)
+    r.proc.send_signal(signal.SIGTERM)
+    assert r.finish(timeout=30) == 128 + signal.SIGTERM, r.err
+    assert r.err.strip().splitlines()[-1] == "error: terminated; outputs were left as they were", r.err
+    assert not out.exists() and _siblings(out) == []

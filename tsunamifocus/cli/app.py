@@ -8,6 +8,7 @@ mapped to logging on stderr.
 from __future__ import annotations
 
 import argparse
+import contextlib
 import logging
 import signal
 import sys
@@ -17,6 +18,7 @@ from collections.abc import Sequence
 
 from ..constants import __version__
 from ..errors import InputError, OutputExistsError, TsunamiFocusError
+from ..io.interrupts import request_stop
 from ..io.manifest import show_versions
 from . import check, compare, demo, inspect, run
 
@@ -65,7 +67,40 @@ def _setup_logging(verbose: int, quiet: int) -> None:
 
 
 def main(argv: Sequence[str] | None = None) -> int:
-    """Entry point of the ``tsunamifocus`` command; returns the exit code."""
+    """Entry point of the ``tsunamifocus`` command; returns the exit code.
+
+    Called as the program (``argv`` None) and stopped by SIGINT/SIGTERM, the process ends right
+    after the clean-up (exit handlers run, outputs already left as they were) instead of returning:
+    tearing down the interpreter's modules would add a second or two to the time to stop.
+    """
+    code = _main(argv)
+    if argv is None and code in (EXIT_INTERRUPTED, EXIT_TERMINATED):
+        _exit_now(code)
+    return code
+
+
+def _exit_now(code: int) -> None:
+    """Flush, remove temporary files, then end the process at once.
+
+    The ordinary exit handlers are not run: they include joining thread pools whose threads may be
+    in the middle of a long library call (an ensemble member smoothing a grid), which is exactly
+    the wait a stop must not have. Temporary files registered with :class:`weakref.finalize`
+    (:mod:`tempfile`, the numba cache fallback) are still removed; the outputs were already left as
+    they were by the output folder's own clean-up.
+    """
+    import os
+    import weakref
+
+    logging.shutdown()
+    with contextlib.suppress(Exception):
+        weakref.finalize._exitfunc()  # the finalizers marked to run at exit
+    for f in (sys.stdout, sys.stderr):
+        with contextlib.suppress(Exception):
+            f.flush()
+    os._exit(code)
+
+
+def _main(argv: Sequence[str] | None) -> int:
     parser = build_parser()
     args = parser.parse_args(argv)
     debug = getattr(args, "debug", False)
@@ -81,9 +116,11 @@ def main(argv: Sequence[str] | None = None) -> int:
     try:
         return int(command.run(args) or 0)
     except KeyboardInterrupt:
+        request_stop()  # kernels still running on worker threads stop after their current piece
         print("error: interrupted; outputs were left as they were", file=sys.stderr)
         return EXIT_INTERRUPTED
     except _Terminated:
+        request_stop()
         print("error: terminated; outputs were left as they were", file=sys.stderr)
         return EXIT_TERMINATED
     except (InputError, FileNotFoundError, OutputExistsError) as exc:
@@ -112,7 +149,8 @@ class _Terminated(BaseException):
 
 
 def _catch_sigterm():
-    """Turn SIGTERM into :class:`_Terminated` while a command runs (main thread only)."""
+    """Turn SIGTERM into :class:`_Terminated` while a command runs (main thread only); both SIGTERM and
+    SIGINT also ask kernels running on other threads to stop (:func:`~tsunamifocus.io.interrupts.request_stop`)."""
     if threading.current_thread() is not threading.main_thread():
         return lambda: None
     try:
@@ -123,10 +161,24 @@ def _catch_sigterm():
         return lambda: None
 
     def handler(signum, frame):
+        request_stop()  # kernels on worker threads (ensemble members) stop after their current piece
         raise _Terminated()
 
+    def on_sigint(signum, frame):
+        request_stop()
+        raise KeyboardInterrupt
+
+    old_int = signal.getsignal(signal.SIGINT)
     signal.signal(signal.SIGTERM, handler)
-    return lambda: signal.signal(signal.SIGTERM, old)
+    if old_int is signal.default_int_handler:
+        signal.signal(signal.SIGINT, on_sigint)
+
+    def restore() -> None:
+        signal.signal(signal.SIGTERM, old)
+        if old_int is signal.default_int_handler:
+            signal.signal(signal.SIGINT, old_int)
+
+    return restore
 
 
 def _versions_text() -> str:

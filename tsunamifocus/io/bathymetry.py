@@ -19,16 +19,17 @@ import numpy as np
 import xarray as xr
 from pyproj import CRS
 
+from ..constants import DEFAULTS
 from ..errors import DataWarning, CRSError, DataFileError, InputError, ResourceLimitError, SignConventionError
 from ..grid import GridInfo, check_bbox, crop_bathymetry, make_grid, resample_bathymetry
 
-__all__ = ['load_bathymetry', 'estimate_grid_memory', 'DEFAULT_MAX_MEMORY_GB']
+__all__ = ['load_bathymetry', 'estimate_grid_memory', 'DEFAULT_MAX_MEMORY_GB', 'PROCESS_BASE_BYTES']
 
 log = logging.getLogger(__name__)
 
 #: Default refusal limit for loading a grid [GB] (configurable per call or by the
 #: environment variable ``TSUNAMIFOCUS_MAX_MEMORY_GB``).
-DEFAULT_MAX_MEMORY_GB: float = 8.0
+DEFAULT_MAX_MEMORY_GB: float = float(DEFAULTS["bathymetry"]["max_memory_gb"])
 
 _FEET = {"ft", "feet", "foot", "us_survey_foot", "international_foot", "ft_us"}
 _METRES = {"m", "meter", "meters", "metre", "metres"}
@@ -48,8 +49,12 @@ HIGHEST_LAND_M: float = 8900.0
 #: Up to this fraction of the valid cells may lie outside the physical bounds (isolated spikes):
 #: they become no data with a warning; beyond it the grid is refused (units or sign are wrong).
 OUT_OF_BOUNDS_MAX_FRACTION: float = 0.001
-#: Working copies the loader holds at once, per grid cell (float64 + mask + one copy).
-_BYTES_PER_CELL = 8 * 3
+#: Peak memory of loading and summarising a grid, per grid cell [bytes], and of the process that
+#: has imported tsunamifocus and its libraries [bytes]: measured as the peak resident set size of
+#: ``tsunamifocus inspect`` on float32 GeoTIFF and NetCDF grids of 0.04 to 36 million cells
+#: (``benchmarks/bench_memory.py``, figures in docs/reliability.md), rounded up.
+_BYTES_PER_CELL = 76
+PROCESS_BASE_BYTES = 380_000_000
 
 
 @dataclass
@@ -158,9 +163,27 @@ def load_bathymetry(
     return da
 
 
-def estimate_grid_memory(shape: tuple[int, int], bytes_per_cell: int = _BYTES_PER_CELL) -> int:
-    """Estimated bytes needed to hold and process a grid of ``shape`` (rows, columns)."""
-    return int(shape[0]) * int(shape[1]) * int(bytes_per_cell)
+def estimate_grid_memory(shape: tuple[int, int], bytes_per_cell: int | None = None) -> int:
+    """Estimated bytes needed to hold and process a grid of ``shape`` (rows, columns).
+
+    Parameters
+    ----------
+    shape : (int, int)
+        Rows and columns.
+    bytes_per_cell : int, optional
+        Bytes per cell of some other computation (the grid alone: 8). None: the peak resident
+        memory of loading and summarising the grid in a fresh process, the process itself
+        included (:data:`PROCESS_BASE_BYTES` + ``_BYTES_PER_CELL`` per cell, measured).
+
+    Returns
+    -------
+    int
+        Bytes.
+    """
+    cells = int(shape[0]) * int(shape[1])
+    if bytes_per_cell is None:
+        return PROCESS_BASE_BYTES + cells * _BYTES_PER_CELL
+    return cells * int(bytes_per_cell)
 
 
 # --------------------------------------------------------------------------------------
