@@ -1118,7 +1118,25 @@ def _edited_manifest_parameter(section: str, key: str, value):
     return make
 
 
+def _sparse_tif(tmp: pathlib.Path, n: int) -> pathlib.Path:
+    """An n x n float32 GeoTIFF whose blocks are never written (GDAL SPARSE_OK): tiny on disk."""
+    with rasterio.open(tmp / "huge.tif", "w", driver="GTiff", width=n, height=n, count=1, dtype="float32",
+                       crs=UTM, transform=from_origin(4e5, 4.56e6, 10.0, 10.0), tiled=True,
+                       sparse_ok=True, nodata=np.nan) as dst:
+        dst.update_tags(1, positive="down", units="m")
+    return tmp / "huge.tif"
+
+
 RELIABILITY_CLI_CASES = [
+    # class 5: the memory estimate holds within 25 % of the measured peak (benchmarks/bench_memory.py:
+    # 0.38 GB + 76 B per cell); a 10000 x 10000 grid peaks near 8 GB, above the one default limit of
+    # 4 GB (the estimate before was 2.4 GB against a limit of 8 GB, and the grid was read)
+    CliCase(
+        "cli-inspect-grid-above-default-memory-limit",
+        lambda t: (["inspect", str(_sparse_tif(t, 10_000)), "--values", "depth"], "huge.tif"),
+        r"loading a 10000 x 10000 grid needs about 8.0 GB, above the limit of 4.0 GB",
+        code=1,
+    ),
     # class 3: every command that reads a run verifies it against its manifest (sha256, FIPS 180-4)
     CliCase(
         "cli-compare-edited-segments",
