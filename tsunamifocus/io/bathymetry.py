@@ -214,8 +214,11 @@ def _check_memory(p: pathlib.Path, shape: tuple[int, int], limit: float) -> None
 
 
 def _is_netcdf(p: pathlib.Path) -> bool:
-    with open(p, "rb") as fh:
-        head = fh.read(8)
+    try:
+        with open(p, "rb") as fh:
+            head = fh.read(8)
+    except OSError as exc:  # no permission, an I/O error: a data-file error, not a crash
+        raise DataFileError(f"{p}: cannot read the grid file ({exc.strerror or exc}); expected a readable file") from None
     if head[:3] == b"CDF" or head[:8] == b"\x89HDF\r\n\x1a\n":
         return True
     return p.suffix.lower() in _NETCDF_EXT and not head.lower().startswith(b"ncols")

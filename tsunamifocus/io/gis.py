@@ -33,7 +33,7 @@ from ..cautions import caution_lines, caution_summary, caution_text
 from ..constants import __version__
 from ..errors import CRSError, DataFileError, InputError
 from ..grid import GridInfo, get_crs
-from .runfolder import deferred_interrupts
+from .runfolder import WRITING_NOTE, deferred_interrupts
 from .styles import ColourScale, lensing_scale, raster_qml, scale_for_layer, segments_qml, segments_sld
 
 __all__ = ['LAYER_INFO', 'POINT_COLUMNS', 'LON180_SUFFIX', 'LonLayout', 'lon_layout', 'longitude_note',
@@ -68,6 +68,9 @@ def _atomic_file(path: Path) -> Iterator[Path]:
     try:
         yield tmp_path
         os.replace(tmp_path, path)
+    except (OSError, RuntimeError) as exc:  # a library's write failure: remember which file it was
+        exc.add_note(f"{WRITING_NOTE}{path}")
+        raise
     finally:
         for p in (tmp_path, *parent.glob(tmp_path.name + "-*")):  # also sqlite -journal/-wal leftovers
             with contextlib.suppress(FileNotFoundError):

@@ -280,6 +280,8 @@ def read_manifest(path: str | os.PathLike) -> dict[str, Any]:
         raise DataFileError(f"{p}: cannot read manifest ({exc})") from None
     try:
         m = json.loads(text)
+    except RecursionError:
+        raise DataFileError(f"{p}: manifest nested too deeply to read; expected a tsunamifocus manifest") from None
     except json.JSONDecodeError as exc:
         raise DataFileError(f"{p}: line {exc.lineno}: manifest is not valid JSON ({exc.msg})") from None
     if not isinstance(m, dict) or m.get("format") != MANIFEST_FORMAT:

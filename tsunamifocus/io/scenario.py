@@ -39,7 +39,7 @@ from typing import Any
 
 from ..cautions import caution_lines
 from ..constants import DEFAULTS, STOP_DEPTH_M
-from ..errors import ScenarioError
+from ..errors import ScenarioError, cut
 from .runfolder import safe_name
 
 __all__ = ['Scenario', 'BathymetryConfig', 'FaultSegmentConfig', 'SourceConfig', 'RaysConfig', 'FocusingConfig', 'CoastConfig', 'PointOfInterest', 'OutputConfig', 'EnsembleConfig', 'parse_scenario', 'scenario_from_dict', 'scenario_schema', 'scenario_table_markdown']
@@ -718,14 +718,13 @@ def _num_txt(v: float) -> str:
 
 
 def _show(v: Any) -> str:
-    if isinstance(v, str):
-        return json.dumps(v, ensure_ascii=False)
+    if isinstance(v, str):  # quoted, and cut: a 10 MB value must not become a 10 MB message
+        return cut(json.dumps(v, ensure_ascii=False))
     if isinstance(v, bool):
         return "true" if v else "false"
     if isinstance(v, dict):
         return "a table"
-    txt = repr(v)
-    return txt if len(txt) <= 60 else txt[:57] + "..."
+    return cut(repr(v))
 
 
 class _Ctx:
@@ -1169,6 +1168,9 @@ def parse_scenario(path: str | os.PathLike) -> Scenario:
                             "save the scenario file as UTF-8") from None
     try:
         data = tomllib.loads(text)
+    except RecursionError:
+        raise ScenarioError(f"{p}: line {_deepest_line(text)}: arrays or tables nested too deeply to read; "
+                            "expected a scenario as in docs/scenario.md (at most a few levels of nesting)") from None
     except tomllib.TOMLDecodeError as exc:
         msg = str(exc)
         m = re.search(r"\(at line (\d+), column (\d+)\)", msg)
@@ -1178,8 +1180,36 @@ def parse_scenario(path: str | os.PathLike) -> Scenario:
         raise ScenarioError(f"{p}: invalid TOML: {msg}") from None
     base = p.resolve().parent
     ctx = _Ctx(_Where(str(p), text), base)
-    sc = _build(data, ctx, default_name=p.stem)
+    try:
+        sc = _build(data, ctx, default_name=p.stem)
+    except RecursionError:
+        raise ScenarioError(f"{p}: line {_deepest_line(text)}: values nested too deeply; expected a scenario as "
+                            "in docs/scenario.md") from None
     return dataclasses.replace(sc, file=p.resolve())
+
+
+def _deepest_line(text: str) -> int:
+    """Line of the most deeply nested ``[`` / ``{`` of a TOML text (strings and comments skipped roughly)."""
+    depth = best = 0
+    line = best_line = 1
+    quote = None
+    for i, ch in enumerate(text):
+        if ch == "\n":
+            line += 1
+            if quote in ("#",):
+                quote = None
+        elif quote:
+            if (quote in "\"'" and ch == quote and text[i - 1] != "\\"):
+                quote = None
+        elif ch in "\"'#":
+            quote = ch
+        elif ch in "[{":
+            depth += 1
+            if depth > best:
+                best, best_line = depth, line
+        elif ch in "]}":
+            depth -= 1
+    return best_line
 
 
 def scenario_from_dict(d: Mapping[str, Any], base_dir: str | os.PathLike = ".", *,
