@@ -38,6 +38,7 @@ from shapely.geometry import LineString
 
 from tsunamifocus import errors as E
 from tsunamifocus.cli.app import main
+from tsunamifocus.errors import MESSAGE_LINE_CHARS
 
 UTM = "EPSG:32633"  # UTM zone 33N: central meridian 15 E
 _TO_LL = Transformer.from_crs(UTM, "EPSG:4326", always_xy=True)
@@ -1128,6 +1129,24 @@ def _sparse_tif(tmp: pathlib.Path, n: int) -> pathlib.Path:
 
 
 RELIABILITY_CLI_CASES = [
+    # class 10: deep nesting, unreadable grids: the file, the line, exit 2 (never "unexpected")
+    CliCase(
+        "cli-run-toml-nested-too-deeply",
+        _run(lambda t: _put(t / "deep.toml", "[rays]\ncount = " + "[" * 3000 + "1" + "]" * 3000 + "\n"), "deep.toml"),
+        r"deep.toml: line 2: arrays or tables nested too deeply to read",
+    ),
+    # class 12: values are cut in messages (a 1 MB description must not give a 1 MB error line)
+    CliCase(
+        "cli-run-megabyte-description",
+        _run(_scen_edit('name = "bad input"', 'name = "bad input"\ndescription = "' + "d" * 1_000_000 + '"'),
+             "(1000002 characters): expected at most 20000 characters"),
+        r'\[scenario\] description = "ddd+\.\.\.ddd+" \(1000002 characters\)',
+    ),
+    CliCase(
+        "cli-run-megabyte-name",
+        _run(_scen_edit('name = "bad input"', 'name = "' + "n" * 1_000_000 + '"'), "[scenario] name"),
+        r"expected at most 200 characters",
+    ),
     # class 5: the memory estimate holds within 25 % of the measured peak (benchmarks/bench_memory.py:
     # 0.38 GB + 76 B per cell); a 10000 x 10000 grid peaks near 8 GB, above the one default limit of
     # 4 GB (the estimate before was 2.4 GB against a limit of 8 GB, and the grid was read)
@@ -1232,6 +1251,7 @@ def test_cli_bad_input(tmp_path, capsys, case: CliCase):
     lines = [ln for ln in err.splitlines() if ln.strip()]
     assert code == case.code, err
     assert len(lines) == 1, err  # exactly one line, no log noise
+    assert len(lines[0]) <= MESSAGE_LINE_CHARS + len("error: "), len(lines[0])  # and a short one (values cut)
     assert lines[0].startswith("error: ") and "unexpected" not in lines[0], lines[0]
     assert "Traceback" not in err
     assert re.search(case.pattern, lines[0]), f"{case.pattern!r} not in {lines[0]!r}"
@@ -1325,3 +1345,25 @@ def test_netcdf_across_antimeridian_in_signed_longitudes_is_unwrapped(tmp_path):
     np.testing.assert_array_equal(d.lon.values, [170.0, 175.0, 180.0, 185.0, 190.0])
     np.testing.assert_array_equal(d.values, 1000.0 + d.lon.values[None, :] + 0.01 * d.lat.values[:, None])
     assert not grid_info(d).periodic_x
+
+
+def test_unreadable_grid_is_a_data_file_error(tmp_path, capsys, monkeypatch):
+    """A grid the process may not read (EACCES) is a data-file error, exit 2, naming the file.
+
+    Root reads any file whatever its mode, so the refusal of the operating system is imitated at
+    the one place the loader opens the file (POSIX errno EACCES, "Permission denied")."""
+    import builtins
+
+    from tsunamifocus.io import bathymetry as B
+
+    p = _good_tif(tmp_path)
+
+    def no_access(path, *a, **k):
+        if pathlib.Path(path) == p:
+            raise PermissionError(13, "Permission denied", str(path))
+        return builtins.open(path, *a, **k)
+
+    monkeypatch.setattr(B, "open", no_access, raising=False)
+    assert main(["inspect", str(p)]) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert err == [f"error: {p}: cannot read the grid file (Permission denied); expected a readable file"]

@@ -99,6 +99,9 @@ class _Cli:
         env = dict(os.environ, PYTHONUNBUFFERED="1")
         self.proc = subprocess.Popen(
             [sys.executable, "-m", "tsunamifocus.cli", *args],
+            # a test session started in the background inherits SIGINT ignored (POSIX: ignored
+            # signals stay ignored across exec); the command under test must see it as a user would
+            preexec_fn=lambda: signal.signal(signal.SIGINT, signal.SIG_DFL),
             stdout=subprocess.DEVNULL,
             stderr=subprocess.PIPE,
             text=True,
@@ -374,6 +377,15 @@ def test_wave_check_respects_the_run_memory_limit(run_a, tmp_path, capsys):
     text = toml.read_text(encoding="utf-8")
     assert "max_memory_gb = 4.0" in text
     toml.write_text(text.replace("max_memory_gb = 4.0", "max_memory_gb = 0.001"), encoding="utf-8")
+    # as if the run had been made with that limit: its manifest records the edited file (a run is
+    # checked against its manifest before use)
+    from tsunamifocus.io.manifest import sha256_file
+
+    m = json.loads((run / "manifest.json").read_text(encoding="utf-8"))
+    for rec in m["outputs"]:
+        if rec["path"] == "scenario.toml":
+            rec["sha256"], rec["bytes"] = sha256_file(toml), toml.stat().st_size
+    (run / "manifest.json").write_text(json.dumps(m), encoding="utf-8")
     code = main(["-q", "check", str(run)])
     err = capsys.readouterr().err.strip().splitlines()
     assert code == 1 and len(err) == 1, err

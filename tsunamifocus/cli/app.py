@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import argparse
 import contextlib
+import errno
 import logging
 import signal
 import sys
@@ -17,7 +18,7 @@ import traceback
 from collections.abc import Sequence
 
 from ..constants import __version__
-from ..errors import InputError, OutputExistsError, TsunamiFocusError
+from ..errors import MESSAGE_LINE_CHARS, InputError, OutputExistsError, TsunamiFocusError, cut
 from ..io.interrupts import request_stop
 from ..io.manifest import show_versions
 from . import check, compare, demo, inspect, run
@@ -134,6 +135,13 @@ def _main(argv: Sequence[str] | None) -> int:
         code = EXIT_USAGE if isinstance(exc, (OSError, ValueError)) else EXIT_RUNTIME
         print(f"error: {_one_line(exc)}", file=sys.stderr)
         return code
+    except OSError as exc:  # a file a library could not read or write: the file and the reason, exit 2
+        if debug:
+            traceback.print_exc()
+        name = f"{exc.filename}: " if getattr(exc, "filename", None) else ""
+        full = "; the disk is full" if exc.errno in (errno.ENOSPC, errno.EDQUOT) else ""
+        print(f"error: {name}{_one_line(exc.strerror or exc)}{full}", file=sys.stderr)
+        return EXIT_USAGE
     except Exception as exc:  # unexpected: still one line unless --debug
         if debug:
             traceback.print_exc()
@@ -186,5 +194,7 @@ def _versions_text() -> str:
     return v if isinstance(v, str) else "\n".join(f"{k:12s} {val}" for k, val in v.items())
 
 
-def _one_line(exc: BaseException) -> str:
-    return " ".join(str(exc).split()) or type(exc).__name__
+def _one_line(exc: BaseException | str) -> str:
+    """The message on one line, at most :data:`~tsunamifocus.errors.MESSAGE_LINE_CHARS` long (errors.cut)."""
+    text = " ".join(str(exc).split()) or type(exc).__name__
+    return cut(text, MESSAGE_LINE_CHARS)
