@@ -46,5 +46,10 @@ DEFAULTS: dict[str, dict[str, object]] = {
     },
 }
 
+#: Ray count per source: the one range, checked once where the count is given (scenario key
+#: ``[rays] count``, ``--rays``): a fan needs at least 8 rays (one per launch block and half fan).
+MIN_RAYS: int = 8
+MAX_RAYS: int = 100_000_000
+
 #: Default stop isobath [m]: rays end, and the wave check's coast lies, where the depth falls below it.
 STOP_DEPTH_M: float = float(DEFAULTS["rays"]["stop_depth_m"])  # type: ignore[arg-type]

@@ -561,7 +561,7 @@ SOURCE_CASES = [
         r"outside the grid \(bounds \(149\.75",
         "dateline",
     ),
-    _fan_case("source-fan-too-few-rays", 3, lambda d: d * 0 + 1.0, r"n_rays must be an integer >= 8", "3"),
+    _fan_case("source-fan-too-few-rays", 3, lambda d: d * 0 + 1.0, r"n_rays=3: expected an integer >= 8 \(\[rays\] count, --rays\)", "3"),
     _fan_case("source-fan-no-uplift-over-sea", 500, lambda d: d * 0.0, r"no sea-surface displacement", "sea"),
 ]
 
@@ -966,7 +966,7 @@ CLI_CASES = [
     CliCase(
         "cli-run-rays-zero",
         _run(lambda t: _scenario(t), "--rays 0", "--rays", "0"),
-        r"expected a positive number of rays",
+        r"expected a number of rays >= 8 and <= 100000000 \(as \[rays\] count\)",
     ),
     # run: data referenced by a valid scenario
     CliCase(
@@ -1026,7 +1026,7 @@ CLI_CASES = [
     CliCase(
         "cli-demo-rays-zero",
         lambda t: (["demo", "--out", str(t / "d"), "--rays", "0"], "--rays 0"),
-        r"expected a positive number of rays",
+        r"expected a number of rays >= 8 and <= 100000000 \(as \[rays\] count\)",
     ),
     # existing results are never overwritten without --overwrite
     CliCase(
@@ -1147,6 +1147,17 @@ RELIABILITY_CLI_CASES = [
         _run(_scen_edit('name = "bad input"', 'name = "' + "n" * 1_000_000 + '"'), "[scenario] name"),
         r"expected at most 200 characters",
     ),
+    # class 13: one ray-count limit (a fan has at least 8 rays), checked where the count is given
+    CliCase(
+        "cli-run-one-ray",
+        _run(_scen_edit("count = 200", "count = 1"), "[rays] count = 1"),
+        r"scenario.toml: line \d+: \[rays\] count = 1: expected an integer >= 8 and <= 100000000 rays",
+    ),
+    CliCase(
+        "cli-run-rays-option-below-fan",
+        _run(lambda t: _scenario(t), "--rays 7", "--rays", "7"),
+        r"--rays 7: expected a number of rays >= 8",
+    ),
     # class 5: the memory estimate holds within 25 % of the measured peak (benchmarks/bench_memory.py:
     # 0.38 GB + 76 B per cell); a 10000 x 10000 grid peaks near 8 GB, above the one default limit of
     # 4 GB (the estimate before was 2.4 GB against a limit of 8 GB, and the grid was read)
@@ -1176,9 +1187,9 @@ RELIABILITY_CLI_CASES = [
     ),
     CliCase(
         "cli-rerun-edited-ray-count",
-        lambda t: (["-q", "run", str(_edited_manifest_parameter("rays", "count", 5)(t)), "--out", str(t / "out")],
-                   "rays.count: recorded 200, manifest 5"),
-        r"cannot reproduce the run: parameters differ from the recorded run: rays.count: recorded 200, manifest 5",
+        lambda t: (["-q", "run", str(_edited_manifest_parameter("rays", "count", 50)(t)), "--out", str(t / "out")],
+                   "rays.count: recorded 200, manifest 50"),
+        r"cannot reproduce the run: parameters differ from the recorded run: rays.count: recorded 200, manifest 50",
     ),
     CliCase(
         "cli-rerun-edited-grid-path",

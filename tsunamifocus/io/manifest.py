@@ -406,7 +406,7 @@ def parameter_differences(manifest: Mapping[str, Any] | str | os.PathLike) -> li
     toml = folder / "scenario.toml" if folder is not None else None
     if rec is not None and toml is not None and toml.is_file() and sha256_file(toml) == rec.get("sha256"):
         recorded = _flat(jsonable(parse_scenario(toml).to_dict()))
-        now = _flat(jsonable(scenario_from_dict(params, folder).to_dict()))
+        now = _flat(jsonable(scenario_from_dict(params, folder, origin=f"{m['_path']} parameters").to_dict()))
         return [f"{k}: recorded {_short(recorded.get(k))}, manifest {_short(now.get(k))}"
                 for k in sorted(set(recorded) | set(now)) if recorded.get(k) != now.get(k)]
     want = m.get("parameters_sha256")

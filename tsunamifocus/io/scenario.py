@@ -38,11 +38,11 @@ from pathlib import Path
 from typing import Any
 
 from ..cautions import caution_lines
-from ..constants import DEFAULTS, STOP_DEPTH_M
+from ..constants import DEFAULTS, MAX_RAYS, MIN_RAYS, STOP_DEPTH_M
 from ..errors import ScenarioError, cut
 from .runfolder import safe_name
 
-__all__ = ['Scenario', 'BathymetryConfig', 'FaultSegmentConfig', 'SourceConfig', 'RaysConfig', 'FocusingConfig', 'CoastConfig', 'PointOfInterest', 'OutputConfig', 'EnsembleConfig', 'parse_scenario', 'scenario_from_dict', 'scenario_schema', 'scenario_table_markdown']
+__all__ = ['Scenario', 'BathymetryConfig', 'FaultSegmentConfig', 'SourceConfig', 'RaysConfig', 'FocusingConfig', 'CoastConfig', 'PointOfInterest', 'OutputConfig', 'EnsembleConfig', 'parse_scenario', 'scenario_from_dict', 'check_ray_count', 'scenario_schema', 'scenario_table_markdown']
 
 #: Sane moment-magnitude range accepted without ``force = true`` (issue "Sources"); with
 #: ``force`` the wider physical range below is accepted.
@@ -484,7 +484,7 @@ _SPEC: dict[str, tuple[_Key, ...]] = {
     ),
     "source": _SOURCE_KEYS,
     "rays": (
-        _i("count", "number of rays per source", "rays", lo=1, hi=100_000_000,
+        _i("count", "number of rays per source", "rays", lo=MIN_RAYS, hi=MAX_RAYS,
            default_doc="auto (the run summary says what was chosen and why)"),
         _f("stop_depth_m", "stop isobath: rays end where the depth falls below it", "m",
            lo=0.0, hi=2000.0, lo_open=True),
@@ -1186,6 +1186,20 @@ def parse_scenario(path: str | os.PathLike) -> Scenario:
         raise ScenarioError(f"{p}: line {_deepest_line(text)}: values nested too deeply; expected a scenario as "
                             "in docs/scenario.md") from None
     return dataclasses.replace(sc, file=p.resolve())
+
+
+def check_ray_count(n: Any, origin: str = "--rays") -> int:
+    """The one check of a ray count given outside a scenario file (``--rays``): the range of ``[rays] count``.
+
+    Raises
+    ------
+    ScenarioError
+        ``n`` is not an integer in ``[MIN_RAYS, MAX_RAYS]``.
+    """
+    if isinstance(n, bool) or not isinstance(n, int) or not MIN_RAYS <= n <= MAX_RAYS:
+        raise ScenarioError(f"{origin} {cut(repr(n))}: expected a number of rays >= {MIN_RAYS} and <= {MAX_RAYS} "
+                            "(as [rays] count)")
+    return n
 
 
 def _deepest_line(text: str) -> int:
