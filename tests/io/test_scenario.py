@@ -378,7 +378,11 @@ def scenario_dicts(draw):
                   "crop": st.tuples(fl(-1e6, 0), fl(-1e6, 0), fl(1, 1e6), fl(1, 1e6)).map(list)})),
         "source": srcs}
     opt = {
-        "scenario": st.fixed_dictionaries({}, optional={"name": names, "description": st.text(max_size=40)}),
+        "scenario": st.fixed_dictionaries({}, optional={"name": names, "description": st.text(
+            # free text: any visible characters and line breaks; controls, format characters (bidi
+            # overrides) and separators are refused (Unicode general categories Cc, Cf, Zl, Zp ...)
+            st.characters(blacklist_categories=("Cc", "Cf", "Zl", "Zp", "Cs", "Co", "Cn"),
+                          whitelist_characters="\n\t"), max_size=40)}),
         "rays": st.fixed_dictionaries({}, optional={
             "count": st.integers(8, 10**8), "stop_depth_m": fl(0.01, 2000), "max_time_h": fl(0.01, 72),
             "step_s": fl(0.01, 3600), "seed": st.integers(0, 2**63 - 1)}),

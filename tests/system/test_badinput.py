@@ -1139,8 +1139,8 @@ RELIABILITY_CLI_CASES = [
     CliCase(
         "cli-run-megabyte-description",
         _run(_scen_edit('name = "bad input"', 'name = "bad input"\ndescription = "' + "d" * 1_000_000 + '"'),
-             "(1000002 characters): expected at most 20000 characters"),
-        r'\[scenario\] description = "ddd+\.\.\.ddd+" \(1000002 characters\)',
+             "(1000000 characters): expected at most 20000 characters"),
+        r'\[scenario\] description = "ddd+\.\.\.ddd+" \(1000000 characters\)',
     ),
     CliCase(
         "cli-run-megabyte-name",
@@ -1157,6 +1157,23 @@ RELIABILITY_CLI_CASES = [
         "cli-run-rays-option-below-fan",
         _run(lambda t: _scenario(t), "--rays 7", "--rays", "7"),
         r"--rays 7: expected a number of rays >= 8",
+    ),
+    # class 14: names are one visible line: no line separators (U+2028, U+0085), no bidirectional
+    # overrides (U+202E) (Unicode Standard: general categories Zl, Cc, Cf)
+    CliCase(
+        "cli-run-name-with-line-separator",
+        _run(_scen_edit('name = "bad input"', 'name = "bad\u2028input"'), "U+2028 LINE SEPARATOR"),
+        r'\[scenario\] name = "bad\\u2028input": expected a single line of text without control, line-separator',
+    ),
+    CliCase(
+        "cli-run-source-name-with-next-line",
+        _run(_scen_edit('name = "hump"', 'name = "hu\u0085mp"'), "U+0085"),
+        r'name = "hu\\x85mp": expected a single line .* \(U\+0085 control character at character 3\)',
+    ),
+    CliCase(
+        "cli-run-name-with-right-to-left-override",
+        _run(_scen_edit('name = "bad input"', 'name = "bad\u202etupni"'), "U+202E RIGHT-TO-LEFT OVERRIDE"),
+        r"direction-changing characters \(U\+202E RIGHT-TO-LEFT OVERRIDE at character 4\)",
     ),
     # class 5: the memory estimate holds within 25 % of the measured peak (benchmarks/bench_memory.py:
     # 0.38 GB + 76 B per cell); a 10000 x 10000 grid peaks near 8 GB, above the one default limit of

@@ -32,6 +32,7 @@ import math
 import os
 import re
 import tomllib
+import unicodedata
 from collections.abc import Mapping
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -39,7 +40,7 @@ from typing import Any
 
 from ..cautions import caution_lines
 from ..constants import DEFAULTS, MAX_RAYS, MIN_RAYS, STOP_DEPTH_M
-from ..errors import ScenarioError, cut
+from ..errors import MESSAGE_VALUE_CHARS, ScenarioError, cut
 from .runfolder import safe_name
 
 __all__ = ['Scenario', 'BathymetryConfig', 'FaultSegmentConfig', 'SourceConfig', 'RaysConfig', 'FocusingConfig', 'CoastConfig', 'PointOfInterest', 'OutputConfig', 'EnsembleConfig', 'parse_scenario', 'scenario_from_dict', 'check_ray_count', 'scenario_schema', 'scenario_table_markdown']
@@ -718,8 +719,16 @@ def _num_txt(v: float) -> str:
 
 
 def _show(v: Any) -> str:
-    if isinstance(v, str):  # quoted, and cut: a 10 MB value must not become a 10 MB message
-        return cut(json.dumps(v, ensure_ascii=False))
+    if isinstance(v, str):  # quoted and cut (a 10 MB value must not become a 10 MB message); characters
+        # that would break or reorder the message line are shown escaped (\u202e)
+        def q(t: str) -> str:
+            return "".join(c if c.isprintable() else c.encode("unicode_escape").decode("ascii")
+                           for c in json.dumps(t, ensure_ascii=False))
+
+        h = MESSAGE_VALUE_CHARS // 2
+        if len(v) > MESSAGE_VALUE_CHARS:
+            return f"{q(v[:h])[:-1]}...{q(v[-h:])[1:]} ({len(v)} characters)"
+        return q(v)
     if isinstance(v, bool):
         return "true" if v else "false"
     if isinstance(v, dict):
@@ -776,11 +785,30 @@ def _check_str(ctx: _Ctx, sect: tuple, k: _Key, v: Any, *, allow_newlines: bool 
             raise ctx.bad(sect, k, v, f"a non-empty text string ({k.doc})")
         if len(v) > 200:
             raise ctx.bad(sect, k, v, "at most 200 characters")
-        if any(ord(c) < 32 or ord(c) == 127 for c in v):
-            raise ctx.bad(sect, k, v, "a single line of text without control characters")
     elif len(v) > 20000:
         raise ctx.bad(sect, k, v, "at most 20000 characters")
+    bad = _hidden_char(v, allow_newlines=k.name == "description")
+    if bad is not None:
+        i, c = bad
+        raise ctx.bad(sect, k, v, f"{'text' if k.name == 'description' else 'a single line of text'} without "
+                      f"control, line-separator or direction-changing characters (U+{ord(c):04X} "
+                      f"{unicodedata.name(c, 'control character')} at character {i + 1})")
     return v
+
+
+#: Unicode general categories refused in names: controls (Cc), format characters such as the
+#: bidirectional overrides and zero-width marks (Cf), line and paragraph separators (Zl, Zp),
+#: surrogates (Cs), private use (Co) and unassigned code points (Cn) (Unicode Standard, chapter 4.5).
+_HIDDEN_CATEGORIES = {"Cc", "Cf", "Zl", "Zp", "Cs", "Co", "Cn"}
+
+
+def _hidden_char(v: str, *, allow_newlines: bool) -> tuple[int, str] | None:
+    """First character of ``v`` that is invisible or changes the layout of a line (position, char), or None."""
+    ok = "\n\t" if allow_newlines else ""
+    for i, c in enumerate(v):
+        if c not in ok and (unicodedata.category(c) in _HIDDEN_CATEGORIES or c == "\x7f"):
+            return i, c
+    return None
 
 
 def _check_path(ctx: _Ctx, sect: tuple, k: _Key, v: Any) -> Path:
