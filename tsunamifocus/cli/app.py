@@ -15,6 +15,7 @@ import signal
 import sys
 import threading
 import traceback
+import warnings
 from collections.abc import Sequence
 
 from ..constants import __version__
@@ -62,9 +63,14 @@ def build_parser() -> argparse.ArgumentParser:
 
 
 def _setup_logging(verbose: int, quiet: int) -> None:
-    level = logging.WARNING - 10 * verbose + 10 * quiet
-    logging.basicConfig(level=max(logging.DEBUG, min(logging.CRITICAL, level)), stream=sys.stderr,
-                        format="%(levelname)s: %(message)s")
+    level = max(logging.DEBUG, min(logging.CRITICAL, logging.WARNING - 10 * verbose + 10 * quiet))
+    logging.basicConfig(level=level, stream=sys.stderr, format="%(levelname)s: %(message)s")
+    logging.getLogger().setLevel(level)  # also when logging was configured before (a second call)
+
+
+def _show_warning(message, category, filename, lineno, file=None, line=None) -> None:  # noqa: ARG001
+    """Warnings on the command line: one short line through logging (so ``-q`` silences them), no source."""
+    logging.getLogger("tsunamifocus").warning("%s: %s", category.__name__, _one_line(message))
 
 
 def main(argv: Sequence[str] | None = None) -> int:
@@ -114,6 +120,7 @@ def _main(argv: Sequence[str] | None) -> int:
     _setup_logging(args.verbose, args.quiet)
     command = {cmd.NAME: cmd for cmd in COMMANDS}[args.command]
     restore = _catch_sigterm()
+    shown, warnings.showwarning = warnings.showwarning, _show_warning
     try:
         return int(command.run(args) or 0)
     except KeyboardInterrupt:
@@ -150,6 +157,7 @@ def _main(argv: Sequence[str] | None) -> int:
         return EXIT_RUNTIME
     finally:
         restore()
+        warnings.showwarning = shown
 
 
 class _Terminated(BaseException):
