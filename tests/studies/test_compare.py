@@ -195,3 +195,15 @@ def test_read_run_missing_files(tmp_path):
     # a run is read only with its manifest, checked against it
     with pytest.raises(DataFileError, match="manifest.json: not found; expected a finished run folder"):
         read_run(tmp_path / "r")
+
+
+def test_comparison_summary_md_carries_no_raw_html(tmp_path):
+    """Run names from scenario files are text in comparison_summary.md: CommonMark passes raw HTML
+    through ("Raw HTML" section), so '<' and '&' must arrive as entities and Markdown marks escaped."""
+    _write_run(tmp_path / "a", "<script>alert(1)</script>", [5, 4, 3, 2, 1], 1)
+    _write_run(tmp_path / "b", "<img src=x onerror=alert(2)> *bold*", [1, 2, 3, 4, 5], 2)
+    runs = [read_run(tmp_path / "a", verify=False), read_run(tmp_path / "b", verify=False)]
+    md = compare_to_folder(runs, tmp_path / "cmp", top_k=2)["summary_md"].read_text(encoding="utf-8")
+    assert "<script>" not in md and "<img" not in md
+    assert "&lt;script&gt;alert\\(1\\)&lt;/script&gt;" in md and "\\*bold\\*" in md
+    assert "not a tsunami warning" in md
