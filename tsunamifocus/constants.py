@@ -51,5 +51,10 @@ DEFAULTS: dict[str, dict[str, object]] = {
 MIN_RAYS: int = 8
 MAX_RAYS: int = 100_000_000
 
+#: Work-size limits, checked before the work starts (errors.check_work), like the memory limit:
+#: coastline segments of one segmentation, and cell updates (wet cells x time steps) of one run of the
+#: linear long-wave solver (``check --force`` lifts the latter).
+WORK_LIMITS: dict[str, float] = {"segments": 100_000, "wave_cell_updates": 2e11}
+
 #: Default stop isobath [m]: rays end, and the wave check's coast lies, where the depth falls below it.
 STOP_DEPTH_M: float = float(DEFAULTS["rays"]["stop_depth_m"])  # type: ignore[arg-type]

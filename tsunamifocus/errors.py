@@ -32,6 +32,7 @@ __all__ = [
     "ResolutionWarning",
     "DataWarning",
     "cut",
+    "check_work",
     "MESSAGE_VALUE_CHARS",
     "MESSAGE_LINE_CHARS",
 ]
@@ -129,3 +130,26 @@ class ResolutionWarning(TsunamiFocusWarning):
 
 class DataWarning(TsunamiFocusWarning):
     """A few values of an input file are impossible or suspicious and were set aside (named in the message)."""
+
+
+def check_work(amount: float, limit: float | None, what: str, advice: str) -> None:
+    """The one work-size guard: refuse, before it starts, work larger than ``limit``.
+
+    Parameters
+    ----------
+    amount : float
+        Estimated size of the work (segments, cell updates ...), counted before any of it is done.
+    limit : float or None
+        The stated limit (``constants.WORK_LIMITS``); None: forced, no limit.
+    what : str
+        The work and where its size comes from, e.g. ``"segment_km=0.001: 3.1e+07 segments"``.
+    advice : str
+        How to make the work smaller (or force it).
+
+    Raises
+    ------
+    ResourceLimitError
+        ``amount`` exceeds ``limit``.
+    """
+    if limit is not None and amount > limit:
+        raise ResourceLimitError(f"{what}, above the limit of {limit:.3g}; {advice}")

@@ -1175,6 +1175,14 @@ RELIABILITY_CLI_CASES = [
         _run(_scen_edit('name = "bad input"', 'name = "bad\u202etupni"'), "U+202E RIGHT-TO-LEFT OVERRIDE"),
         r"direction-changing characters \(U\+202E RIGHT-TO-LEFT OVERRIDE at character 4\)",
     ),
+    # class 15: work size is estimated before the work and refused beyond the stated limit
+    CliCase(
+        "cli-run-segments-of-one-metre",
+        _run(_scen_edit("[output]", "[coast]\nsegment_km = 0.001\n\n[output]"), "segment_length_m=1 m"),
+        r"segment_length_m=1 m cuts \d+ km of coastline into about 1\.\d+e\+05 segments, above the limit of "
+        r"1e\+05; use segments of at least",
+        code=1,
+    ),
     # class 5: the memory estimate holds within 25 % of the measured peak (benchmarks/bench_memory.py:
     # 0.38 GB + 76 B per cell); a 10000 x 10000 grid peaks near 8 GB, above the one default limit of
     # 4 GB (the estimate before was 2.4 GB against a limit of 8 GB, and the grid was read)

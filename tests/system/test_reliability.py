@@ -523,3 +523,17 @@ def test_wave_solver_stops_cleanly_on_a_signal(run_a, tmp_path):
     assert r.finish(timeout=30) == 128 + signal.SIGTERM, r.err
     assert r.err.strip().splitlines()[-1] == "error: terminated; outputs were left as they were", r.err
     assert not out.exists() and _siblings(out) == []
+
+
+# ---------------------------------------------------------------------- issue 16 class 15: work size
+def test_check_refuses_absurd_durations_before_solving(run_a, tmp_path, capsys):
+    """``check --hours 1e9`` would need ~1e11 time steps: refused in one line before any step, with
+    the limit and how to force it (constants.WORK_LIMITS); nothing written."""
+    _, a = run_a
+    out = tmp_path / "chk"
+    code = main(["-q", "check", str(a), "--out", str(out), "--hours", "1e9"])
+    err = capsys.readouterr().err.strip().splitlines()
+    assert code == 1 and len(err) == 1, err
+    assert re.match(r"error: wave solver for 1e\+09 h: [0-9.e+]+ time steps of [0-9.]+ s over \d+ wet cells = "
+                    r"[0-9.e+]+ cell updates, above the limit of 2e\+11; .*check --force", err[0]), err[0]
+    assert not out.exists() and _siblings(out) == []

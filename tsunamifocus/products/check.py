@@ -94,6 +94,7 @@ def run_wave_check(
     hours: float | None = None,
     k: int = 10,
     progress: bool = True,
+    force: bool = False,
 ) -> dict[str, Any]:
     """Run the wave-equation check of a finished run and write its outputs.
 
@@ -111,6 +112,8 @@ def run_wave_check(
         Top-k of the overlap statistic.
     progress : bool
         Messages and a progress bar on stderr.
+    force : bool
+        Run the wave solver beyond the work limit (``constants.WORK_LIMITS["wave_cell_updates"]``).
 
     Returns
     -------
@@ -141,7 +144,8 @@ def run_wave_check(
                          reference_depth=layers.get("reference_depth"),
                          duration_s=None if hours is None else hours * 3600.0,
                          figure_path=tmp / "ray_vs_wave.png", progress=progress,
-                         max_memory_bytes=sc.bathymetry.max_memory_gb * 1e9)
+                         max_memory_bytes=sc.bathymetry.max_memory_gb * 1e9,
+                         **({"max_cell_updates": None} if force else {}))
         amp = chk.wave.max_amplitude.copy()
         amp.name = "wave_max_amplitude"
         amp.attrs.update(units="m", long_name="maximum sea-surface elevation, linear long-wave solver")

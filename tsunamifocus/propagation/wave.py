@@ -47,8 +47,8 @@ import numpy as np
 import xarray as xr
 
 from ..cautions import caution_summary, caution_text
-from ..constants import DEFAULTS, GRAVITY, STOP_DEPTH_M
-from ..errors import InputError, ResolutionWarning, ResourceLimitError
+from ..constants import DEFAULTS, GRAVITY, STOP_DEPTH_M, WORK_LIMITS
+from ..errors import InputError, ResolutionWarning, ResourceLimitError, check_work
 from ..grid import GridInfo
 from ..io.interrupts import KernelStopped, interruptible, stop_requested
 from ..io.progress import progress_bar
@@ -376,6 +376,7 @@ def simulate_linear_long_wave(
     threads: int | None = None,
     progress: bool | Callable[[int, int], None] | None = None,
     max_memory_bytes: float | None = DEFAULTS["bathymetry"]["max_memory_gb"] * 1e9,
+    max_cell_updates: float | None = WORK_LIMITS["wave_cell_updates"],
 ) -> WaveResult:
     """Integrate the linear long-wave equations from an initial surface at rest.
 
@@ -415,6 +416,9 @@ def simulate_linear_long_wave(
         shared with other jobs ``threads=1`` is often faster (the step is memory-bound).
     progress : bool or callable, optional
         True for a tqdm bar, or a function ``f(step, n_steps)`` called about 100 times.
+    max_cell_updates : float or None
+        Refuse, before any step, runs of more wet-cell updates (wet cells x time steps) than this
+        (ResourceLimitError; ``constants.WORK_LIMITS``); None: no limit.
     max_memory_bytes : int or None
         Refuse runs whose working arrays would exceed this size [bytes] (ResourceLimitError); default
         the one memory limit, ``[bathymetry] max_memory_gb`` of ``constants.DEFAULTS``.
@@ -445,6 +449,11 @@ def simulate_linear_long_wave(
     m = _metric(info)
     dt = _dt_from(d, wet, m, cfl, gravity, depth.name)
     n_steps = max(1, int(math.ceil(duration_s / dt - 1e-9)))
+    n_wet = int(wet.sum())
+    check_work(float(n_wet) * n_steps, max_cell_updates,
+               f"wave solver for {duration_s / 3600:.3g} h: {n_steps:.3g} time steps of {dt:.3g} s over {n_wet} wet "
+               f"cells = {float(n_wet) * n_steps:.3g} cell updates",
+               "simulate a shorter time, coarsen the grid, or force it (max_cell_updates=None, check --force)")
     dt = float(duration_s) / n_steps
     hrow = np.where(wet, d, 0.0).max(axis=1)
     courant = float((np.sqrt(gravity * hrow) * np.sqrt(1.0 / m.dxm**2 + 1.0 / m.dym**2)).max() * dt)
