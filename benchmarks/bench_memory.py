@@ -6,7 +6,11 @@ For grids of growing size (float32 GeoTIFF and NetCDF, an invented smooth sea fl
 loader refuses by (:func:`tsunamifocus.io.bathymetry.estimate_grid_memory`). The guard is meant
 to hold within 25 %.
 
-Run: ``python benchmarks/bench_memory.py [--sizes 1000 3000 6000]``
+With ``--run`` it does the same for whole runs (``tsunamifocus run`` of the invented demo scenario
+without ensemble, at its native 3 km grid and resampled to 6 km, with 20,000 and 500,000 rays) against
+the tracing guard's estimate (``studies.run._guard_resources``).
+
+Run: ``python benchmarks/bench_memory.py [--sizes 1000 3000 6000] [--run]``
 """
 
 from __future__ import annotations
@@ -43,6 +47,7 @@ def _write(path: Path, n: int) -> None:
 
 def _peak_rss_bytes(args: list[str]) -> tuple[int, int]:
     env = dict(os.environ, TSUNAMIFOCUS_MAX_MEMORY_GB="1000")
+    env.setdefault("MPLBACKEND", "Agg")
     p = subprocess.Popen([sys.executable, "-m", "tsunamifocus.cli", *args], stdout=subprocess.DEVNULL,
                          stderr=subprocess.PIPE, env=env)
     _, status, ru = os.wait4(p.pid, 0)
@@ -53,12 +58,38 @@ def _peak_rss_bytes(args: list[str]) -> tuple[int, int]:
     return ru.ru_maxrss * 1024, p.returncode
 
 
+def _runs() -> None:
+    from tsunamifocus.io.bathymetry import load_bathymetry
+    from tsunamifocus.products.demo import demo_inputs
+    from tsunamifocus.studies import run as R
+
+    print(f"{'run':22s} {'cells':>8s} {'rays':>8s} {'estimate GB':>12s} {'peak RSS GB':>12s} {'peak/estimate':>14s}")
+    with tempfile.TemporaryDirectory() as tmp:
+        sc = Path(demo_inputs(Path(tmp) / "in"))
+        text = sc.read_text(encoding="utf-8").replace("members = 6", "members = 0")
+        for label, extra in (("demo 3 km", ""), ("demo resampled 6 km", "resample_km = 6.0\n")):
+            f = Path(tmp) / "in" / f"s{len(extra)}.toml"
+            f.write_text(text.replace('values = "elevation"\n', 'values = "elevation"\n' + extra), encoding="utf-8")
+            from tsunamifocus.io.scenario import parse_scenario
+
+            b = parse_scenario(f).bathymetry
+            cells = load_bathymetry(b.path, values=b.values, resample_km=b.resample_km).size
+            for n in (20_000, 500_000):
+                est = R._RUN_BASE_BYTES + cells * R._RUN_BYTES_PER_CELL + n * R._RUN_BYTES_PER_RAY
+                peak, _ = _peak_rss_bytes(["-q", "run", str(f), "--rays", str(n), "--out", str(Path(tmp) / f"o{n}{len(extra)}")])
+                print(f"{label:22s} {cells:8d} {n:8d} {est / 1e9:12.3f} {peak / 1e9:12.3f} {peak / est:14.2f}")
+
+
 def main() -> None:
     from tsunamifocus.io.bathymetry import estimate_grid_memory
 
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--sizes", type=int, nargs="+", default=[500, 2000, 4000, 6000])
+    ap.add_argument("--run", action="store_true", help="measure whole runs against the tracing guard")
     a = ap.parse_args()
+    if a.run:
+        _runs()
+        return
     print(f"{'file':14s} {'cells':>12s} {'estimate GB':>12s} {'peak RSS GB':>12s} {'peak/estimate':>14s}")
     worst = 0.0
     with tempfile.TemporaryDirectory() as tmp:

@@ -268,7 +268,7 @@ def test_memory_guard_refuses_before_tracing(run_a, tmp_path, monkeypatch):
     with pytest.raises(ResourceLimitError) as info:
         run_scenario(sc, out=out, rays=5_000_000, progress=False)
     msg = str(info.value)
-    # 5e6 rays x 40 doubles = 1.6 GB of ray state alone, above 0.5 GB (the guard's own model)
+    # 5e6 rays x 1540 B = 7.7 GB of ray state alone, above 0.5 GB (the guard's measured model)
     assert "5000000 rays" in msg and "above the limit of 0.5 GB" in msg and "max_memory_gb" in msg
     assert "\n" not in msg and not out.exists()
 
@@ -295,7 +295,9 @@ def test_time_estimate_shown_before_long_runs(run_a, capsys):
     from tsunamifocus.studies.run import _guard_resources
 
     result, _ = run_a
-    _guard_resources(result.depth, result.scenario, 1_000_000)
+    sc = dataclasses.replace(result.scenario,  # room for 1e6 rays (5.5 GB with the 2 members)
+                             bathymetry=dataclasses.replace(result.scenario.bathymetry, max_memory_gb=16.0))
+    _guard_resources(result.depth, sc, 1_000_000)
     err = capsys.readouterr().err
     assert "note: this run may take up to" in err and "min of ray tracing" in err
     _guard_resources(result.depth, result.scenario, 100)  # short: silent
@@ -399,13 +401,14 @@ def test_memory_guard_counts_local_ensemble_members(run_a):
 
     result, _ = run_a
     sc = result.scenario
-    sc = dataclasses.replace(sc, bathymetry=dataclasses.replace(sc.bathymetry, max_memory_gb=0.5))
+    sc = dataclasses.replace(sc, bathymetry=dataclasses.replace(sc.bathymetry, max_memory_gb=3.0))
     single = dataclasses.replace(sc, ensemble=dataclasses.replace(sc.ensemble, members=0))
-    # guard model: 112 B per cell + 320 B per ray; 1e6 rays on 320 x 380 cells = 0.33 GB alone,
-    # 1.0 GB with two more members alive
+    # guard model (measured, docs/reliability.md): 0.61 GB + 700 B per cell + 1540 B per ray, a
+    # member's working set once more per member alive; 1e6 rays on 400 x 333 cells = 2.2 GB alone,
+    # 5.5 GB with two more members alive
     _guard_resources(result.depth, single, 1_000_000)
     assert sc.ensemble.members == 2
-    with pytest.raises(ResourceLimitError, match=r"with 2 ensemble members in memory needs about 1.0 GB"):
+    with pytest.raises(ResourceLimitError, match=r"with 2 ensemble members in memory needs about 5.5 GB"):
         _guard_resources(result.depth, sc, 1_000_000)
 
 
