@@ -50,5 +50,15 @@ DEFAULTS: dict[str, dict[str, object]] = {
 #: of a ``[[sweep]]``'s ruptures (their rake is that of ``[[source.segment]]``).
 SOURCE_SET_DEFAULTS: dict[str, object] = {"weight": 1.0}
 
+#: Ray count per source: the one range, checked once where the count is given (scenario key
+#: ``[rays] count``, ``--rays``): a fan needs at least 8 rays (one per launch block and half fan).
+MIN_RAYS: int = 8
+MAX_RAYS: int = 100_000_000
+
+#: Work-size limits, checked before the work starts (errors.check_work), like the memory limit:
+#: coastline segments of one segmentation, and cell updates (wet cells x time steps) of one run of the
+#: linear long-wave solver (``check --force`` lifts the latter).
+WORK_LIMITS: dict[str, float] = {"segments": 100_000, "wave_cell_updates": 2e11}
+
 #: Default stop isobath [m]: rays end, and the wave check's coast lies, where the depth falls below it.
 STOP_DEPTH_M: float = float(DEFAULTS["rays"]["stop_depth_m"])  # type: ignore[arg-type]

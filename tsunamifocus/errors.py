@@ -30,7 +30,38 @@ __all__ = [
     "TsunamiFocusWarning",
     "ScalingWarning",
     "ResolutionWarning", "PointWarning",
+    "DataWarning",
+    "cut",
+    "check_work",
+    "MESSAGE_VALUE_CHARS",
+    "MESSAGE_LINE_CHARS",
 ]
+
+#: Longest value quoted in a message [characters], and longest message line the command line prints.
+MESSAGE_VALUE_CHARS = 80
+MESSAGE_LINE_CHARS = 1000
+
+
+def cut(text: object, limit: int = MESSAGE_VALUE_CHARS) -> str:
+    """``text`` shortened for a one-line message: head and tail kept, the middle replaced.
+
+    The one place that shortens values quoted in messages, so a huge value (a 10 MB description)
+    never becomes a huge error line. Both ends are kept because they are what tells values apart
+    (the start of a name, the file name at the end of a path).
+
+    Examples
+    --------
+    >>> cut("x" * 10)
+    'xxxxxxxxxx'
+    >>> cut("a" * 50 + "b" * 50, 20)
+    'aaaaaaaa...bbbbbbbbb (100 characters)'
+    """
+    s = str(text)
+    if len(s) <= limit:
+        return s
+    head = (limit - 3) // 2
+    tail = limit - 3 - head
+    return f"{s[:head]}...{s[len(s) - tail:]} ({len(s)} characters)"
 
 
 class TsunamiFocusError(Exception):
@@ -99,3 +130,30 @@ class ResolutionWarning(TsunamiFocusWarning):
 
 class PointWarning(TsunamiFocusWarning):
     """A point of interest got no value (outside the grid, or no sea cell / segment within its radius)."""
+
+
+class DataWarning(TsunamiFocusWarning):
+    """A few values of an input file are impossible or suspicious and were set aside (named in the message)."""
+
+
+def check_work(amount: float, limit: float | None, what: str, advice: str) -> None:
+    """The one work-size guard: refuse, before it starts, work larger than ``limit``.
+
+    Parameters
+    ----------
+    amount : float
+        Estimated size of the work (segments, cell updates ...), counted before any of it is done.
+    limit : float or None
+        The stated limit (``constants.WORK_LIMITS``); None: forced, no limit.
+    what : str
+        The work and where its size comes from, e.g. ``"segment_km=0.001: 3.1e+07 segments"``.
+    advice : str
+        How to make the work smaller (or force it).
+
+    Raises
+    ------
+    ResourceLimitError
+        ``amount`` exceeds ``limit``.
+    """
+    if limit is not None and amount > limit:
+        raise ResourceLimitError(f"{what}, above the limit of {limit:.3g}; {advice}")

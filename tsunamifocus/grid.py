@@ -183,6 +183,10 @@ class GridInfo:
         for name, c in ((xd, x), (yd, y)):
             if c.size < 2:
                 raise InputError(f"grid '{da.name}': coordinate '{name}' needs at least 2 values")
+            bad = np.flatnonzero(~np.isfinite(c))
+            if bad.size:  # NaN compares false, so the ordering checks below would let it through
+                raise InputError(f"grid '{da.name}': coordinate '{name}' holds {bad.size} non-finite value(s) "
+                                 f"(first {c[bad[0]]} at index {bad[0]}); expected finite coordinates")
             d = np.diff(c)
             if np.any(d <= 0):
                 raise InputError(f"grid '{da.name}': coordinate '{name}' must be strictly ascending")

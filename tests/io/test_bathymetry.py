@@ -465,3 +465,28 @@ def test_round_trip_geotiff_netcdf_exact(tmp_path, kind):
     with rasterio.open(tif) as r:
         assert r.transform.a == pytest.approx(info.dx) and r.transform.c == pytest.approx(info.bounds[0])
         assert r.transform.f == pytest.approx(info.bounds[3])
+
+
+def test_a_few_impossible_depths_become_no_data_with_a_warning(tmp_path):
+    """One spike of 1e9 m among 10,000 cells: set aside with a warning naming the count, not used.
+
+    No sea floor is deeper than about 11 km (Challenger Deep, about 10,935 m; from memory)."""
+    import warnings
+
+    import numpy as np
+    import xarray as xr
+
+    from tsunamifocus.errors import DataWarning
+    from tsunamifocus.io.bathymetry import load_bathymetry
+
+    z = np.full((100, 100), -3000.0)
+    z[:, -5:] = 50.0
+    z[40, 40] = -1e9
+    xr.Dataset({"z": (("lat", "lon"), z, {"positive": "up", "units": "m"})},
+               coords={"lat": np.linspace(-5, 5, 100), "lon": np.linspace(0, 10, 100)}).to_netcdf(tmp_path / "s.nc")
+    with warnings.catch_warnings(record=True) as w:
+        warnings.simplefilter("always")
+        d = load_bathymetry(tmp_path / "s.nc")
+    msgs = [str(x.message) for x in w if issubclass(x.category, DataWarning)]
+    assert len(msgs) == 1 and "1 of 10000 cells" in msgs[0] and "treated as no data" in msgs[0], msgs
+    assert np.isnan(d.values[40, 40]) and float(np.nanmax(d.values)) == 3000.0

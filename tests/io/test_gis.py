@@ -592,3 +592,15 @@ def test_real_grid_across_antimeridian_drops_onto_a_180_basemap(etopo_path, tmp_
             assert got == pytest.approx(want, abs=0.5)
     with rasterio.open(p) as r:
         assert r.bounds.left == pytest.approx(159.95) and r.bounds.right == pytest.approx(210.05)
+
+
+def test_points_csv_without_points(tmp_path):
+    """A scenario without [[point]] (allowed, docs/scenario.md): the cautions and the header only."""
+    import pandas as pd
+
+    from tsunamifocus.io.gis import POINT_COLUMNS, write_points_csv
+
+    p = write_points_csv(pd.DataFrame(), tmp_path / "points.csv")
+    t = pd.read_csv(p, comment="#")
+    assert len(t) == 0 and list(t.columns) == list(POINT_COLUMNS)
+    assert p.read_text().startswith("# CAUTION")

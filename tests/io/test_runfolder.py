@@ -296,3 +296,28 @@ def test_stage_timer_accumulates():
             time.sleep(0.01)
     d = t.as_dict()
     assert d["a"] >= 0.02 and d["total"] >= d["a"]
+
+
+def test_full_disk_is_named_with_the_file_and_nothing_is_left(tmp_path, monkeypatch):
+    """A library's write failure on a full disk ("NetCDF: HDF error" is what netCDF4/HDF5 raise when
+    a write fails; ENOSPC is the POSIX errno of a full device) becomes one line naming the file."""
+    import errno
+
+    from tsunamifocus.errors import DataFileError
+    from tsunamifocus.io import runfolder as R
+    from tsunamifocus.io.gis import _atomic_file
+
+    monkeypatch.setattr(R, "_free_bytes", lambda folder: 12_000)  # 12 kB left
+    out = tmp_path / "res"
+    with pytest.raises(DataFileError) as info, OutputFolder(out) as of:
+        with _atomic_file(of.path("layers.nc")):
+            raise RuntimeError("NetCDF: HDF error")
+    msg = str(info.value)
+    assert msg.startswith(f"{out / 'layers.nc'}: the disk is full (0.0 MB free on {tmp_path})"), msg
+    assert "NetCDF: HDF error" in msg and "nothing was written" in msg
+    assert not out.exists() and [p.name for p in tmp_path.iterdir()] == []
+    # an OSError with ENOSPC is a full disk whatever the free space reads afterwards
+    monkeypatch.setattr(R, "_free_bytes", lambda folder: 10**9)
+    with pytest.raises(DataFileError, match=r"figures/a.png: the disk is full"), OutputFolder(out) as of:
+        with _atomic_file(of.path("figures/a.png")):
+            raise OSError(errno.ENOSPC, "No space left on device")

@@ -172,7 +172,7 @@ BAD_CASES = [
      [r"\[rays\]", r"unknown key 'cuont'", r"did you mean 'count'\?", r"line 38"]),
     ("unknown section", _mod("[rays]", "[ray]"), [r"unknown section 'ray'", r"did you mean \[rays\]"]),
     ("integer expected", _mod("count = 5000", "count = 12.5"),
-     [r"\[rays\] count = 12\.5", r"expected an integer >= 1"]),
+     [r"\[rays\] count = 12\.5", r"expected an integer >= 8"]),
     ("string for number", _mod("count = 5000", 'count = "many"'), [r"count = \"many\"", r"an integer"]),
     ("negative stop depth with unit", _mod("stop_depth_m = 30", "stop_depth_m = -3"),
      [r"stop_depth_m = -3", r"> 0 and <= 2000 m"]),
@@ -378,9 +378,13 @@ def scenario_dicts(draw):
                   "crop": st.tuples(fl(-1e6, 0), fl(-1e6, 0), fl(1, 1e6), fl(1, 1e6)).map(list)})),
         "source": srcs}
     opt = {
-        "scenario": st.fixed_dictionaries({}, optional={"name": names, "description": st.text(max_size=40)}),
+        "scenario": st.fixed_dictionaries({}, optional={"name": names, "description": st.text(
+            # free text: any visible characters and line breaks; controls, format characters (bidi
+            # overrides) and separators are refused (Unicode general categories Cc, Cf, Zl, Zp ...)
+            st.characters(blacklist_categories=("Cc", "Cf", "Zl", "Zp", "Cs", "Co", "Cn"),
+                          whitelist_characters="\n\t"), max_size=40)}),
         "rays": st.fixed_dictionaries({}, optional={
-            "count": st.integers(1, 10**8), "stop_depth_m": fl(0.01, 2000), "max_time_h": fl(0.01, 72),
+            "count": st.integers(8, 10**8), "stop_depth_m": fl(0.01, 2000), "max_time_h": fl(0.01, 72),
             "step_s": fl(0.01, 3600), "seed": st.integers(0, 2**63 - 1)}),
         "focusing": st.fixed_dictionaries({}, optional={"reference_smooth_km": fl(0.01, 5000),
                                                          "period_s": fl(0.01, 36000)}),

@@ -444,3 +444,24 @@ def test_headings_start_on_the_page_of_what_follows(figs, tmp_path):
             if kind in ("h2", "h3") and nxt[2] != pg:
                 stranded.append((k, text, pg, nxt[0]))
     assert not stranded, stranded
+
+
+def test_pdf_replaces_glyphs_its_font_lacks_and_says_so(figs, tmp_path):
+    """DejaVu Sans has no CJK ideographs and no emoji (its cmap, read with fontTools): such characters
+    become '?' in the PDF with a warning naming them; the HTML keeps them."""
+    import warnings
+
+    from tsunamifocus.errors import TsunamiFocusWarning
+
+    ctx = base_context(figs)
+    ctx["scenario"]["name"] = "Bay \u6d77\u6e7e \U0001f30a"
+    with warnings.catch_warnings(record=True) as w:
+        warnings.simplefilter("always")
+        out = report.build_appendix(ctx, tmp_path / "a.html", tmp_path / "a.pdf")
+    msgs = [str(x.message) for x in w if issubclass(x.category, TsunamiFocusWarning)]
+    assert any("3 character(s) the PDF font (DejaVu Sans) cannot draw were replaced by '?'" in m
+               and "U+6D77" in m and "U+1F30A" in m for m in msgs), msgs
+    assert out["pdf"].read_bytes().startswith(b"%PDF")
+    if HAVE_PDFTOTEXT:
+        assert "Bay ?? ?" in pdf_text(out["pdf"], 1, 1)
+    assert "\u6d77\u6e7e" in (tmp_path / "a.html").read_text(encoding="utf-8")

@@ -307,6 +307,32 @@ def test_determinism_and_thread_agreement(bench_like):
     assert a.stats["threads"] == 2 and c.stats["threads"] == 1
 
 
+def test_tracing_in_pieces_is_bit_identical(bench_like, monkeypatch):
+    """The kernel runs in pieces so a signal is answered between them (io.interrupts); a piece is a
+    whole number of rounds over the threads, so every ray keeps its accumulation chunk and order:
+    the result must equal one call bit for bit (IEEE 754 sums in the same order, common practice)."""
+    import tsunamifocus.propagation.rays as R
+
+    y0 = np.linspace(10e3, 390e3, 1001)  # not a multiple of the piece: the last piece is short
+    kw = dict(step_s=20.0, q0=1.0, p0=0.0, threads=2, keep_paths=7)
+    one = trace_rays(bench_like, np.full(y0.size, 3e3), y0, 90.0, **kw)
+    monkeypatch.setattr(R, "_piece_rays", lambda n, nchunk, max_steps: 6 * nchunk)
+    many = trace_rays(bench_like, np.full(y0.size, 3e3), y0, 90.0, **kw)
+    xr.testing.assert_identical(one.end, many.end)
+    assert np.array_equal(one.energy.values, many.energy.values)
+    assert np.array_equal(one.first_arrival_s.values, many.first_arrival_s.values, equal_nan=True)
+    xr.testing.assert_identical(one.paths, many.paths)
+
+
+def test_piece_sizes_are_whole_rounds():
+    from tsunamifocus.propagation.rays import _piece_rays
+
+    for n, nchunk, steps in ((10, 4, 100), (10**7, 2, 300), (3, 4, 10), (10**6, 3, 10**7)):
+        k = _piece_rays(n, nchunk, steps)
+        assert k >= 1 and (k % nchunk == 0 or k >= n)
+        assert k * steps <= max(nchunk * steps, 2 * 750_000 * nchunk)  # about a quarter second per thread
+
+
 def _coast_bins(res, nbins=40):
     e = res.end
     ok = e.reason.values == REASON_CODES["coast"]

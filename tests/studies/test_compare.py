@@ -146,7 +146,7 @@ def _write_run(folder, name, lensing, seed):
 def test_read_run_and_compare_to_folder(tmp_path):
     lay_a = _write_run(tmp_path / "a", "North source", [5, 4, 3, 2, 1], 1)
     _write_run(tmp_path / "b", "South source", [1, 2, 3, 4, 5], 2)
-    name, seg, layers = read_run(tmp_path / "a")
+    name, seg, layers = read_run(tmp_path / "a", verify=False)
     assert name == "North source"
     assert seg.index.name == "segment_id" and list(seg.index) == [f"S{k + 1:04d}" for k in range(NSEG)]
     assert shapely.equals_exact(seg["geometry"].iloc[2], _segments([1] * 5)["geometry"].iloc[2], 0.0)
@@ -157,7 +157,7 @@ def test_read_run_and_compare_to_folder(tmp_path):
     # the exporter's CSV (geometry_wkt) gives the same segmentation
     exp = pd.read_csv(tmp_path / "a" / "exported.csv", comment="#")
     assert "geometry_wkt" in exp.columns
-    runs = [read_run(tmp_path / "a"), read_run(tmp_path / "b")]
+    runs = [read_run(tmp_path / "a", verify=False), read_run(tmp_path / "b", verify=False)]
     written = compare_to_folder(runs, tmp_path / "cmp", top_k=2)
     for key in ("ranking_csv", "ranking_gpkg", "correlations_csv", "envelope_nc", "differences_nc", "summary_md",
                 "comparison_json", "envelope_lensing_factor_tif"):
@@ -191,4 +191,19 @@ def test_read_run_missing_files(tmp_path):
         read_run(tmp_path / "nope")
     (tmp_path / "r").mkdir()
     with pytest.raises(DataFileError, match=SEGMENTS_FILE):
+        read_run(tmp_path / "r", verify=False)
+    # a run is read only with its manifest, checked against it
+    with pytest.raises(DataFileError, match="manifest.json: not found; expected a finished run folder"):
         read_run(tmp_path / "r")
+
+
+def test_comparison_summary_md_carries_no_raw_html(tmp_path):
+    """Run names from scenario files are text in comparison_summary.md: CommonMark passes raw HTML
+    through ("Raw HTML" section), so '<' and '&' must arrive as entities and Markdown marks escaped."""
+    _write_run(tmp_path / "a", "<script>alert(1)</script>", [5, 4, 3, 2, 1], 1)
+    _write_run(tmp_path / "b", "<img src=x onerror=alert(2)> *bold*", [1, 2, 3, 4, 5], 2)
+    runs = [read_run(tmp_path / "a", verify=False), read_run(tmp_path / "b", verify=False)]
+    md = compare_to_folder(runs, tmp_path / "cmp", top_k=2)["summary_md"].read_text(encoding="utf-8")
+    assert "<script>" not in md and "<img" not in md
+    assert "&lt;script&gt;alert\\(1\\)&lt;/script&gt;" in md and "\\*bold\\*" in md
+    assert "not a tsunami warning" in md

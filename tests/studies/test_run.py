@@ -209,11 +209,15 @@ def test_refuses_nonempty_output_and_failed_run_leaves_folder(tmp_path):
     (out / "keep.txt").write_text("earlier results")
     with pytest.raises(OutputExistsError):
         run_scenario(sc, out=out, progress=False)
+    # --overwrite replaces only an earlier run (a folder with its manifest), never a user's folder
+    with pytest.raises(OutputExistsError, match="replaces only an earlier run output"):
+        run_scenario(sc, out=out, overwrite=True, progress=False)
+    (out / "manifest.json").write_text('{"format": "tsunamifocus-manifest", "parameters": {"a": 1}}')
     bad = tmp_path / "in" / "meridane_elevation.tif"
     bad.write_bytes(b"truncated")
     with pytest.raises(DataFileError):
         run_scenario(sc, out=out, overwrite=True, progress=False)
-    assert [p.name for p in out.iterdir()] == ["keep.txt"]
+    assert sorted(p.name for p in out.iterdir()) == ["keep.txt", "manifest.json"]
     assert (out / "keep.txt").read_text() == "earlier results"
 
 

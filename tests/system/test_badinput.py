@@ -38,6 +38,7 @@ from shapely.geometry import LineString
 
 from tsunamifocus import errors as E
 from tsunamifocus.cli.app import main
+from tsunamifocus.errors import MESSAGE_LINE_CHARS
 
 UTM = "EPSG:32633"  # UTM zone 33N: central meridian 15 E
 _TO_LL = Transformer.from_crs(UTM, "EPSG:4326", always_xy=True)
@@ -560,7 +561,7 @@ SOURCE_CASES = [
         r"outside the grid \(bounds \(149\.75",
         "dateline",
     ),
-    _fan_case("source-fan-too-few-rays", 3, lambda d: d * 0 + 1.0, r"n_rays must be an integer >= 8", "3"),
+    _fan_case("source-fan-too-few-rays", 3, lambda d: d * 0 + 1.0, r"n_rays=3: expected an integer >= 8 \(\[rays\] count, --rays\)", "3"),
     _fan_case("source-fan-no-uplift-over-sea", 500, lambda d: d * 0.0, r"no sea-surface displacement", "sea"),
 ]
 
@@ -763,7 +764,41 @@ def _isobath_case():
 
 COAST_CASES.append(_isobath_case())
 
-API_CASES = GRID_CASES + SCENARIO_CASES + SOURCE_CASES + RAY_CASES + COAST_CASES
+# issue 16, class 2: impossible depths. The deepest sea floor (Challenger Deep) is about 10,935 m
+# and the highest land (Mount Everest) 8,849 m (facts of geography, values from memory).
+def _impossible(name, value, ny=7):
+    def make(tmp):
+        lo = np.arange(0.0, 8.01, 1.0)
+        z = np.broadcast_to(-4000.0 + 450.0 * lo, (ny, lo.size)).copy()
+        z[:, :4] = value  # half the sea cells
+        xr.Dataset({"z": (("lat", "lon"), z, {"positive": "up", "units": "m"})},
+                   coords={"lat": np.arange(ny) - 3.0, "lon": lo}).to_netcdf(tmp / name)
+        return tmp / name
+
+    return make
+
+
+def _nan_coordinate(tmp):
+    lo = np.arange(0.0, 8.01, 1.0)
+    lo[3] = np.nan
+    z = np.broadcast_to(-4000.0 + 450.0 * np.arange(9.0), (7, 9))
+    xr.Dataset({"z": (("lat", "lon"), z, {"positive": "up", "units": "m"})},
+               coords={"lat": np.arange(7.0) - 3.0, "lon": lo}).to_netcdf(tmp / "nanlon.nc")
+    return tmp / "nanlon.nc"
+
+
+RELIABILITY_API_CASES = [
+    _grid_case("grid-depth-1e9-m", _impossible("deep.nc", -1e9), E.InputError,
+               r"28 of 63 cells lie outside the physical range \(depth at most 11,000 m.*depth 1e\+09 m\); "
+               r"expected depths in metres"),
+    _grid_case("grid-height-above-highest-land", _impossible("high.nc", 25_000.0), E.InputError,
+               r"outside the physical range .*height 25,000 m"),
+    # class 4: a NaN coordinate is not a coordinate (grid convention: finite, ascending, regular)
+    _grid_case("grid-nan-longitude", _nan_coordinate, E.InputError,
+               r"coordinate 'lon' holds 1 non-finite value\(s\) \(first nan at index 3\)"),
+]
+
+API_CASES = GRID_CASES + SCENARIO_CASES + SOURCE_CASES + RAY_CASES + COAST_CASES + RELIABILITY_API_CASES
 
 
 @pytest.mark.parametrize("case", API_CASES, ids=[c.id for c in API_CASES])
@@ -931,7 +966,7 @@ CLI_CASES = [
     CliCase(
         "cli-run-rays-zero",
         _run(lambda t: _scenario(t), "--rays 0", "--rays", "0"),
-        r"expected a positive number of rays",
+        r"expected a number of rays >= 8 and <= 100000000 \(as \[rays\] count\)",
     ),
     # run: data referenced by a valid scenario
     CliCase(
@@ -986,12 +1021,12 @@ CLI_CASES = [
     CliCase(
         "cli-check-not-a-run",
         lambda t: (["-q", "check", str(_empty_run_folder(t))], "not_a_run"),
-        r"segments table not found \(expected segments.csv in the run folder\)",
+        r"manifest.json: not found; expected a finished run folder with its manifest",
     ),
     CliCase(
         "cli-demo-rays-zero",
         lambda t: (["demo", "--out", str(t / "d"), "--rays", "0"], "--rays 0"),
-        r"expected a positive number of rays",
+        r"expected a number of rays >= 8 and <= 100000000 \(as \[rays\] count\)",
     ),
     # existing results are never overwritten without --overwrite
     CliCase(
@@ -1010,6 +1045,239 @@ CLI_CASES = [
 ]
 
 
+# ------------------------------------------------------------------ issue 16: reliability, round two
+# Each class of failure adds rows here; the rule each row checks is the project's own (never lose a
+# user's files, refuse with one line naming file/field/value and what was expected).
+
+
+def _fake_run(tmp: pathlib.Path, name: str) -> pathlib.Path:
+    """A folder laid out like a finished run (a tsunamifocus manifest with parameters, a segments table)."""
+    d = tmp / name
+    d.mkdir()
+    (d / "segments.csv").write_text("segment_id,lensing_factor\ns1,1.0\n", encoding="utf-8")
+    (d / "manifest.json").write_text(json.dumps({
+        "format": "tsunamifocus-manifest", "format_version": 1, "parameters": {"scenario": {"name": name}},
+        "inputs": [], "outputs": [], "seeds": {}, "software": {}}), encoding="utf-8")
+    return d
+
+
+def _run_into(out_of: Callable[[pathlib.Path], pathlib.Path], names: str | Callable[[pathlib.Path], str], *opts):
+    """``run`` of the small scenario with --out chosen by ``out_of(tmp)``."""
+    def build(tmp):
+        sc = _scenario(tmp)
+        out = out_of(tmp)
+        return ["-q", "run", str(sc), "--out", str(out), *opts], names(tmp) if callable(names) else names
+
+    return build
+
+
+def _symlink_to_folder(tmp: pathlib.Path) -> pathlib.Path:
+    (tmp / "real_results").mkdir()
+    (tmp / "linked_out").symlink_to(tmp / "real_results")
+    return tmp / "linked_out"
+
+
+def _recorded_run(tmp: pathlib.Path, name: str = "R") -> pathlib.Path:
+    """A run folder as ``run`` leaves it, in miniature: scenario.toml, segments.csv, manifest listing both."""
+    from tsunamifocus.io.manifest import write_manifest
+    from tsunamifocus.io.scenario import parse_scenario
+
+    sc = parse_scenario(_scenario(tmp))
+    d = tmp / name
+    d.mkdir()
+    (d / "scenario.toml").write_text(sc.to_toml(), encoding="utf-8")
+    (d / "segments.csv").write_text("segment_id,lensing_factor\nS0001,1.20\nS0002,0.90\n", encoding="utf-8")
+    write_manifest(d, scenario=sc)
+    return d
+
+
+def _without(d: pathlib.Path, rel: str) -> pathlib.Path:
+    (d / rel).unlink()
+    return d
+
+
+def _edited(rel: str, old: str, new: str, name: str = "R"):
+    def make(tmp):
+        d = _recorded_run(tmp, name)
+        f = d / rel
+        text = f.read_text(encoding="utf-8")
+        assert old in text, old
+        f.write_text(text.replace(old, new, 1), encoding="utf-8")
+        return d
+
+    return make
+
+
+def _edited_manifest_parameter(section: str, key: str, value):
+    def make(tmp):
+        d = _recorded_run(tmp)
+        m = json.loads((d / "manifest.json").read_text(encoding="utf-8"))
+        m["parameters"][section][key] = value
+        (d / "manifest.json").write_text(json.dumps(m), encoding="utf-8")
+        return d / "manifest.json"
+
+    return make
+
+
+def _sparse_tif(tmp: pathlib.Path, n: int) -> pathlib.Path:
+    """An n x n float32 GeoTIFF whose blocks are never written (GDAL SPARSE_OK): tiny on disk."""
+    with rasterio.open(tmp / "huge.tif", "w", driver="GTiff", width=n, height=n, count=1, dtype="float32",
+                       crs=UTM, transform=from_origin(4e5, 4.56e6, 10.0, 10.0), tiled=True,
+                       sparse_ok=True, nodata=np.nan) as dst:
+        dst.update_tags(1, positive="down", units="m")
+    return tmp / "huge.tif"
+
+
+RELIABILITY_CLI_CASES = [
+    # class 10: deep nesting, unreadable grids: the file, the line, exit 2 (never "unexpected")
+    CliCase(
+        "cli-run-toml-nested-too-deeply",
+        _run(lambda t: _put(t / "deep.toml", "[rays]\ncount = " + "[" * 3000 + "1" + "]" * 3000 + "\n"), "deep.toml"),
+        r"deep.toml: line 2: arrays or tables nested too deeply to read",
+    ),
+    # class 12: values are cut in messages (a 1 MB description must not give a 1 MB error line)
+    CliCase(
+        "cli-run-megabyte-description",
+        _run(_scen_edit('name = "bad input"', 'name = "bad input"\ndescription = "' + "d" * 1_000_000 + '"'),
+             "(1000000 characters): expected at most 20000 characters"),
+        r'\[scenario\] description = "ddd+\.\.\.ddd+" \(1000000 characters\)',
+    ),
+    CliCase(
+        "cli-run-megabyte-name",
+        _run(_scen_edit('name = "bad input"', 'name = "' + "n" * 1_000_000 + '"'), "[scenario] name"),
+        r"expected at most 200 characters",
+    ),
+    # class 13: one ray-count limit (a fan has at least 8 rays), checked where the count is given
+    CliCase(
+        "cli-run-one-ray",
+        _run(_scen_edit("count = 200", "count = 1"), "[rays] count = 1"),
+        r"scenario.toml: line \d+: \[rays\] count = 1: expected an integer >= 8 and <= 100000000 rays",
+    ),
+    CliCase(
+        "cli-run-rays-option-below-fan",
+        _run(lambda t: _scenario(t), "--rays 7", "--rays", "7"),
+        r"--rays 7: expected a number of rays >= 8",
+    ),
+    # class 14: names are one visible line: no line separators (U+2028, U+0085), no bidirectional
+    # overrides (U+202E) (Unicode Standard: general categories Zl, Cc, Cf)
+    CliCase(
+        "cli-run-name-with-line-separator",
+        _run(_scen_edit('name = "bad input"', 'name = "bad\u2028input"'), "U+2028 LINE SEPARATOR"),
+        r'\[scenario\] name = "bad\\u2028input": expected a single line of text without control, line-separator',
+    ),
+    CliCase(
+        "cli-run-source-name-with-next-line",
+        _run(_scen_edit('name = "hump"', 'name = "hu\u0085mp"'), "U+0085"),
+        r'name = "hu\\x85mp": expected a single line .* \(U\+0085 control character at character 3\)',
+    ),
+    CliCase(
+        "cli-run-name-with-right-to-left-override",
+        _run(_scen_edit('name = "bad input"', 'name = "bad\u202etupni"'), "U+202E RIGHT-TO-LEFT OVERRIDE"),
+        r"direction-changing characters \(U\+202E RIGHT-TO-LEFT OVERRIDE at character 4\)",
+    ),
+    # class 15: work size is estimated before the work and refused beyond the stated limit
+    CliCase(
+        "cli-run-segments-of-one-metre",
+        _run(_scen_edit("[output]", "[coast]\nsegment_km = 0.001\n\n[output]"), "segment_length_m=1 m"),
+        r"segment_length_m=1 m cuts \d+ km of coastline into about 1\.\d+e\+05 segments, above the limit of "
+        r"1e\+05; use segments of at least",
+        code=1,
+    ),
+    # class 5: the memory estimate holds within 25 % of the measured peak (benchmarks/bench_memory.py:
+    # 0.38 GB + 76 B per cell); a 10000 x 10000 grid peaks near 8 GB, above the one default limit of
+    # 4 GB (the estimate before was 2.4 GB against a limit of 8 GB, and the grid was read)
+    CliCase(
+        "cli-inspect-grid-above-default-memory-limit",
+        lambda t: (["inspect", str(_sparse_tif(t, 10_000)), "--values", "depth"], "huge.tif"),
+        r"loading a 10000 x 10000 grid needs about 8.0 GB, above the limit of 4.0 GB",
+        code=1,
+    ),
+    # class 3: every command that reads a run verifies it against its manifest (sha256, FIPS 180-4)
+    CliCase(
+        "cli-compare-edited-segments",
+        lambda t: (["compare", str(_edited("segments.csv", "1.20", "99.0")(t)), str(_recorded_run(t, "S")),
+                    "--out", str(t / "cmp")], "changed: segments.csv"),
+        r"/R: run folder does not match its manifest: changed: segments.csv \(sha256 differs",
+    ),
+    CliCase(
+        "cli-check-edited-scenario",
+        lambda t: (["-q", "check", str(_edited("scenario.toml", "stop_depth_m = 20", "stop_depth_m = 50")(t))],
+                   "changed: scenario.toml"),
+        r"run folder does not match its manifest: changed: scenario.toml",
+    ),
+    CliCase(
+        "cli-check-deleted-file",
+        lambda t: (["-q", "check", str(_without(_recorded_run(t), "segments.csv"))], "missing: segments.csv"),
+        r"does not match its manifest: missing: segments.csv",
+    ),
+    CliCase(
+        "cli-rerun-edited-ray-count",
+        lambda t: (["-q", "run", str(_edited_manifest_parameter("rays", "count", 50)(t)), "--out", str(t / "out")],
+                   "rays.count: recorded 200, manifest 50"),
+        r"cannot reproduce the run: parameters differ from the recorded run: rays.count: recorded 200, manifest 50",
+    ),
+    CliCase(
+        "cli-rerun-edited-grid-path",
+        lambda t: (["-q", "run", str(_edited_manifest_parameter("bathymetry", "path", str(_good_tif(t, "other.tif")))(t)),
+                    "--out", str(t / "out")], "bathymetry.path: recorded"),
+        r"parameters differ from the recorded run: bathymetry.path: recorded \".*shelf.tif\", manifest \".*other.tif\"",
+    ),
+    # class 1: --overwrite replaces only an earlier output of the same kind, never the inputs
+    CliCase(
+        "cli-run-overwrite-folder-holding-the-scenario",
+        _run_into(lambda t: t, "scenario_file", "--overwrite"),
+        r"holds the input scenario_file .*scenario.toml; writing there would destroy it",
+    ),
+    CliCase(
+        "cli-run-overwrite-folder-of-user-files",
+        _run_into(_empty_run_folder, "not_a_run", "--overwrite"),
+        r"--overwrite replaces only an earlier run output folder \(with its manifest.json\); this folder holds "
+        r"files that are not tsunamifocus output",
+    ),
+    CliCase(
+        "cli-run-out-inside-the-grid-folder",
+        lambda t: (["-q", "run", str(_scenario(t)), "--out", str(t / "shelf.tif" / "x")], "shelf.tif"),
+        r"lies inside the input bathymetry",
+    ),
+    CliCase(
+        "cli-compare-overwrite-one-of-its-runs",
+        lambda t: (["compare", str(_fake_run(t, "A")), str(_fake_run(t, "B")), "--out", str(t / "A"),
+                    "--overwrite"], "run folder"),
+        r"/A: --out holds the input run folder",
+    ),
+    CliCase(
+        "cli-compare-overwrite-a-run-folder",
+        lambda t: (["compare", str(_fake_run(t, "A")), str(_fake_run(t, "B")), "--out", str(_fake_run(t, "C")),
+                    "--overwrite"], "earlier run output"),
+        r"replaces only an earlier comparison output folder \(with its comparison.json\)",
+    ),
+    CliCase(
+        "cli-check-overwrite-a-run-folder",
+        lambda t: (["-q", "check", str(_fake_run(t, "A")), "--out", str(_fake_run(t, "B")), "--overwrite"],
+                   "earlier run output"),
+        r"replaces only an earlier wave-check output folder",
+    ),
+    # class 11: an output that cannot be created is refused before any computation
+    CliCase(
+        "cli-run-out-under-a-file",
+        _run_into(lambda t: _put(t / "afile", "x") / "sub", "afile"),
+        r"--out cannot be created: .*afile is not a folder",
+    ),
+    CliCase(
+        "cli-run-out-in-read-only-place",  # /sys refuses mkdir even to root (Linux sysfs)
+        _run_into(lambda t: pathlib.Path("/sys/tsunamifocus-out"), "/sys"),
+        r"--out cannot be created: /sys is not writable",
+    ),
+    # class 18: an --out that is a symbolic link is refused, nothing replaced, no link left behind
+    CliCase(
+        "cli-run-out-is-a-symlink",
+        _run_into(_symlink_to_folder, "linked_out", "--overwrite"),
+        r"is a symbolic link \(to .*real_results\); give the real folder",
+    ),
+]
+CLI_CASES += RELIABILITY_CLI_CASES
+
+
 @pytest.mark.parametrize("case", CLI_CASES, ids=[c.id for c in CLI_CASES])
 def test_cli_bad_input(tmp_path, capsys, case: CliCase):
     argv, names = case.build(tmp_path)
@@ -1019,6 +1287,7 @@ def test_cli_bad_input(tmp_path, capsys, case: CliCase):
     lines = [ln for ln in err.splitlines() if ln.strip()]
     assert code == case.code, err
     assert len(lines) == 1, err  # exactly one line, no log noise
+    assert len(lines[0]) <= MESSAGE_LINE_CHARS + len("error: "), len(lines[0])  # and a short one (values cut)
     assert lines[0].startswith("error: ") and "unexpected" not in lines[0], lines[0]
     assert "Traceback" not in err
     assert re.search(case.pattern, lines[0]), f"{case.pattern!r} not in {lines[0]!r}"
@@ -1112,3 +1381,25 @@ def test_netcdf_across_antimeridian_in_signed_longitudes_is_unwrapped(tmp_path):
     np.testing.assert_array_equal(d.lon.values, [170.0, 175.0, 180.0, 185.0, 190.0])
     np.testing.assert_array_equal(d.values, 1000.0 + d.lon.values[None, :] + 0.01 * d.lat.values[:, None])
     assert not grid_info(d).periodic_x
+
+
+def test_unreadable_grid_is_a_data_file_error(tmp_path, capsys, monkeypatch):
+    """A grid the process may not read (EACCES) is a data-file error, exit 2, naming the file.
+
+    Root reads any file whatever its mode, so the refusal of the operating system is imitated at
+    the one place the loader opens the file (POSIX errno EACCES, "Permission denied")."""
+    import builtins
+
+    from tsunamifocus.io import bathymetry as B
+
+    p = _good_tif(tmp_path)
+
+    def no_access(path, *a, **k):
+        if pathlib.Path(path) == p:
+            raise PermissionError(13, "Permission denied", str(path))
+        return builtins.open(path, *a, **k)
+
+    monkeypatch.setattr(B, "open", no_access, raising=False)
+    assert main(["inspect", str(p)]) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert err == [f"error: {p}: cannot read the grid file (Permission denied); expected a readable file"]

@@ -99,6 +99,9 @@ class _Cli:
         env = dict(os.environ, PYTHONUNBUFFERED="1")
         self.proc = subprocess.Popen(
             [sys.executable, "-m", "tsunamifocus.cli", *args],
+            # a test session started in the background inherits SIGINT ignored (POSIX: ignored
+            # signals stay ignored across exec); the command under test must see it as a user would
+            preexec_fn=lambda: signal.signal(signal.SIGINT, signal.SIG_DFL),
             stdout=subprocess.DEVNULL,
             stderr=subprocess.PIPE,
             text=True,
@@ -265,7 +268,7 @@ def test_memory_guard_refuses_before_tracing(run_a, tmp_path, monkeypatch):
     with pytest.raises(ResourceLimitError) as info:
         run_scenario(sc, out=out, rays=5_000_000, progress=False)
     msg = str(info.value)
-    # 5e6 rays x 40 doubles = 1.6 GB of ray state alone, above 0.5 GB (the guard's own model)
+    # 5e6 rays x 1540 B = 7.7 GB of ray state alone, above 0.5 GB (the guard's measured model)
     assert "5000000 rays" in msg and "above the limit of 0.5 GB" in msg and "max_memory_gb" in msg
     assert "\n" not in msg and not out.exists()
 
@@ -292,7 +295,9 @@ def test_time_estimate_shown_before_long_runs(run_a, capsys):
     from tsunamifocus.studies.run import _guard_resources
 
     result, _ = run_a
-    _guard_resources(result.depth, result.scenario, 1_000_000)
+    sc = dataclasses.replace(result.scenario,  # room for 1e6 rays (5.5 GB with the 2 members)
+                             bathymetry=dataclasses.replace(result.scenario.bathymetry, max_memory_gb=16.0))
+    _guard_resources(result.depth, sc, 1_000_000)
     err = capsys.readouterr().err
     assert "note: this run may take up to" in err and "min of ray tracing" in err
     _guard_resources(result.depth, result.scenario, 100)  # short: silent
@@ -374,6 +379,15 @@ def test_wave_check_respects_the_run_memory_limit(run_a, tmp_path, capsys):
     text = toml.read_text(encoding="utf-8")
     assert "max_memory_gb = 4.0" in text
     toml.write_text(text.replace("max_memory_gb = 4.0", "max_memory_gb = 0.001"), encoding="utf-8")
+    # as if the run had been made with that limit: its manifest records the edited file (a run is
+    # checked against its manifest before use)
+    from tsunamifocus.io.manifest import sha256_file
+
+    m = json.loads((run / "manifest.json").read_text(encoding="utf-8"))
+    for rec in m["outputs"]:
+        if rec["path"] == "scenario.toml":
+            rec["sha256"], rec["bytes"] = sha256_file(toml), toml.stat().st_size
+    (run / "manifest.json").write_text(json.dumps(m), encoding="utf-8")
     code = main(["-q", "check", str(run)])
     err = capsys.readouterr().err.strip().splitlines()
     assert code == 1 and len(err) == 1, err
@@ -387,13 +401,14 @@ def test_memory_guard_counts_local_ensemble_members(run_a):
 
     result, _ = run_a
     sc = result.scenario
-    sc = dataclasses.replace(sc, bathymetry=dataclasses.replace(sc.bathymetry, max_memory_gb=0.5))
+    sc = dataclasses.replace(sc, bathymetry=dataclasses.replace(sc.bathymetry, max_memory_gb=3.0))
     single = dataclasses.replace(sc, ensemble=dataclasses.replace(sc.ensemble, members=0))
-    # guard model: 112 B per cell + 320 B per ray; 1e6 rays on 320 x 380 cells = 0.33 GB alone,
-    # 1.0 GB with two more members alive
+    # guard model (measured, docs/reliability.md): 0.61 GB + 700 B per cell + 1540 B per ray, a
+    # member's working set once more per member alive; 1e6 rays on 400 x 333 cells = 2.2 GB alone,
+    # 5.5 GB with two more members alive
     _guard_resources(result.depth, single, 1_000_000)
     assert sc.ensemble.members == 2
-    with pytest.raises(ResourceLimitError, match=r"with 2 ensemble members in memory needs about 1.0 GB"):
+    with pytest.raises(ResourceLimitError, match=r"with 2 ensemble members in memory needs about 5.5 GB"):
         _guard_resources(result.depth, sc, 1_000_000)
 
 
@@ -478,3 +493,50 @@ def test_ensemble_member_with_broken_bookkeeping_fails(run_a, monkeypatch):
     monkeypatch.setattr(F, "analyse_focusing", leaky)
     with pytest.raises(HealthCheckError, match="30.00 % exceeds 1 %"):
         ensemble_member(params, **kw)
+
+
+# ------------------------------------------------------------------------ issue 16 class 7: signals
+@pytest.mark.parametrize("sig", [signal.SIGINT, signal.SIGTERM], ids=["SIGINT", "SIGTERM"])
+def test_long_ray_tracing_stops_cleanly_on_a_signal(run_a, tmp_path, sig):
+    """200 000 rays: a signal during tracing ends the run with 128 + signal number (shell convention),
+    one line, no SystemError or crash (rc 139), nothing written. Figures of the time to stop are
+    measured by benchmarks/bench_stop.py; here a hang (30 s) is a failure."""
+    _, a = run_a
+    out = tmp_path / "big"
+    r = _Cli("run", str(a / "manifest.json"), "--rays", "200000", "--out", str(out))
+    assert r.wait_for(lambda: "tracing" in r.err), r.err
+    time.sleep(1.0)  # inside the kernel
+    r.proc.send_signal(sig)
+    rc = r.finish(timeout=30)
+    assert rc == 128 + sig, r.err
+    last = r.err.strip().splitlines()[-1]
+    assert last == ("error: interrupted; outputs were left as they were" if sig == signal.SIGINT
+                    else "error: terminated; outputs were left as they were"), r.err
+    assert "SystemError" not in r.err and "unexpected" not in r.err
+    assert not out.exists() and _siblings(out) == []
+
+
+def test_wave_solver_stops_cleanly_on_a_signal(run_a, tmp_path):
+    _, a = run_a
+    out = tmp_path / "chk"
+    r = _Cli("check", str(a), "--out", str(out), "--hours", "30")
+    assert r.wait_for(lambda: "linear long-wave check" in r.err), r.err
+    time.sleep(1.5)
+    r.proc.send_signal(signal.SIGTERM)
+    assert r.finish(timeout=30) == 128 + signal.SIGTERM, r.err
+    assert r.err.strip().splitlines()[-1] == "error: terminated; outputs were left as they were", r.err
+    assert not out.exists() and _siblings(out) == []
+
+
+# ---------------------------------------------------------------------- issue 16 class 15: work size
+def test_check_refuses_absurd_durations_before_solving(run_a, tmp_path, capsys):
+    """``check --hours 1e9`` would need ~1e11 time steps: refused in one line before any step, with
+    the limit and how to force it (constants.WORK_LIMITS); nothing written."""
+    _, a = run_a
+    out = tmp_path / "chk"
+    code = main(["-q", "check", str(a), "--out", str(out), "--hours", "1e9"])
+    err = capsys.readouterr().err.strip().splitlines()
+    assert code == 1 and len(err) == 1, err
+    assert re.match(r"error: wave solver for 1e\+09 h: [0-9.e+]+ time steps of [0-9.]+ s over \d+ wet cells = "
+                    r"[0-9.e+]+ cell updates, above the limit of 2e\+11; .*check --force", err[0]), err[0]
+    assert not out.exists() and _siblings(out) == []

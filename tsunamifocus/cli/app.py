@@ -8,15 +8,19 @@ mapped to logging on stderr.
 from __future__ import annotations
 
 import argparse
+import contextlib
+import errno
 import logging
 import signal
 import sys
 import threading
 import traceback
+import warnings
 from collections.abc import Sequence
 
 from ..constants import __version__
-from ..errors import InputError, OutputExistsError, TsunamiFocusError
+from ..errors import MESSAGE_LINE_CHARS, InputError, OutputExistsError, TsunamiFocusError, cut
+from ..io.interrupts import request_stop
 from ..io.manifest import show_versions
 from . import check, compare, demo, inspect, run, sourceset
 
@@ -59,13 +63,51 @@ def build_parser() -> argparse.ArgumentParser:
 
 
 def _setup_logging(verbose: int, quiet: int) -> None:
-    level = logging.WARNING - 10 * verbose + 10 * quiet
-    logging.basicConfig(level=max(logging.DEBUG, min(logging.CRITICAL, level)), stream=sys.stderr,
-                        format="%(levelname)s: %(message)s")
+    level = max(logging.DEBUG, min(logging.CRITICAL, logging.WARNING - 10 * verbose + 10 * quiet))
+    logging.basicConfig(level=level, stream=sys.stderr, format="%(levelname)s: %(message)s")
+    logging.getLogger().setLevel(level)  # also when logging was configured before (a second call)
+
+
+def _show_warning(message, category, filename, lineno, file=None, line=None) -> None:  # noqa: ARG001
+    """Warnings on the command line: one short line through logging (so ``-q`` silences them), no source."""
+    logging.getLogger("tsunamifocus").warning("%s: %s", category.__name__, _one_line(message))
 
 
 def main(argv: Sequence[str] | None = None) -> int:
-    """Entry point of the ``tsunamifocus`` command; returns the exit code."""
+    """Entry point of the ``tsunamifocus`` command; returns the exit code.
+
+    Called as the program (``argv`` None) and stopped by SIGINT/SIGTERM, the process ends right
+    after the clean-up (exit handlers run, outputs already left as they were) instead of returning:
+    tearing down the interpreter's modules would add a second or two to the time to stop.
+    """
+    code = _main(argv)
+    if argv is None and code in (EXIT_INTERRUPTED, EXIT_TERMINATED):
+        _exit_now(code)
+    return code
+
+
+def _exit_now(code: int) -> None:
+    """Flush, remove temporary files, then end the process at once.
+
+    The ordinary exit handlers are not run: they include joining thread pools whose threads may be
+    in the middle of a long library call (an ensemble member smoothing a grid), which is exactly
+    the wait a stop must not have. Temporary files registered with :class:`weakref.finalize`
+    (:mod:`tempfile`, the numba cache fallback) are still removed; the outputs were already left as
+    they were by the output folder's own clean-up.
+    """
+    import os
+    import weakref
+
+    logging.shutdown()
+    with contextlib.suppress(Exception):
+        weakref.finalize._exitfunc()  # the finalizers marked to run at exit
+    for f in (sys.stdout, sys.stderr):
+        with contextlib.suppress(Exception):
+            f.flush()
+    os._exit(code)
+
+
+def _main(argv: Sequence[str] | None) -> int:
     parser = build_parser()
     args = parser.parse_args(argv)
     debug = getattr(args, "debug", False)
@@ -78,12 +120,15 @@ def main(argv: Sequence[str] | None = None) -> int:
     _setup_logging(args.verbose, args.quiet)
     command = {cmd.NAME: cmd for cmd in COMMANDS}[args.command]
     restore = _catch_sigterm()
+    shown, warnings.showwarning = warnings.showwarning, _show_warning
     try:
         return int(command.run(args) or 0)
     except KeyboardInterrupt:
+        request_stop()  # kernels still running on worker threads stop after their current piece
         print("error: interrupted; outputs were left as they were", file=sys.stderr)
         return EXIT_INTERRUPTED
     except _Terminated:
+        request_stop()
         print("error: terminated; outputs were left as they were", file=sys.stderr)
         return EXIT_TERMINATED
     except (InputError, FileNotFoundError, OutputExistsError) as exc:
@@ -97,6 +142,13 @@ def main(argv: Sequence[str] | None = None) -> int:
         code = EXIT_USAGE if isinstance(exc, (OSError, ValueError)) else EXIT_RUNTIME
         print(f"error: {_one_line(exc)}", file=sys.stderr)
         return code
+    except OSError as exc:  # a file a library could not read or write: the file and the reason, exit 2
+        if debug:
+            traceback.print_exc()
+        name = f"{exc.filename}: " if getattr(exc, "filename", None) else ""
+        full = "; the disk is full" if exc.errno in (errno.ENOSPC, errno.EDQUOT) else ""
+        print(f"error: {name}{_one_line(exc.strerror or exc)}{full}", file=sys.stderr)
+        return EXIT_USAGE
     except Exception as exc:  # unexpected: still one line unless --debug
         if debug:
             traceback.print_exc()
@@ -105,6 +157,7 @@ def main(argv: Sequence[str] | None = None) -> int:
         return EXIT_RUNTIME
     finally:
         restore()
+        warnings.showwarning = shown
 
 
 class _Terminated(BaseException):
@@ -112,7 +165,8 @@ class _Terminated(BaseException):
 
 
 def _catch_sigterm():
-    """Turn SIGTERM into :class:`_Terminated` while a command runs (main thread only)."""
+    """Turn SIGTERM into :class:`_Terminated` while a command runs (main thread only); both SIGTERM and
+    SIGINT also ask kernels running on other threads to stop (:func:`~tsunamifocus.io.interrupts.request_stop`)."""
     if threading.current_thread() is not threading.main_thread():
         return lambda: None
     try:
@@ -123,10 +177,24 @@ def _catch_sigterm():
         return lambda: None
 
     def handler(signum, frame):
+        request_stop()  # kernels on worker threads (ensemble members) stop after their current piece
         raise _Terminated()
 
+    def on_sigint(signum, frame):
+        request_stop()
+        raise KeyboardInterrupt
+
+    old_int = signal.getsignal(signal.SIGINT)
     signal.signal(signal.SIGTERM, handler)
-    return lambda: signal.signal(signal.SIGTERM, old)
+    if old_int is signal.default_int_handler:
+        signal.signal(signal.SIGINT, on_sigint)
+
+    def restore() -> None:
+        signal.signal(signal.SIGTERM, old)
+        if old_int is signal.default_int_handler:
+            signal.signal(signal.SIGINT, old_int)
+
+    return restore
 
 
 def _versions_text() -> str:
@@ -134,5 +202,7 @@ def _versions_text() -> str:
     return v if isinstance(v, str) else "\n".join(f"{k:12s} {val}" for k, val in v.items())
 
 
-def _one_line(exc: BaseException) -> str:
-    return " ".join(str(exc).split()) or type(exc).__name__
+def _one_line(exc: BaseException | str) -> str:
+    """The message on one line, at most :data:`~tsunamifocus.errors.MESSAGE_LINE_CHARS` long (errors.cut)."""
+    text = " ".join(str(exc).split()) or type(exc).__name__
+    return cut(text, MESSAGE_LINE_CHARS)

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import argparse
 
-from ..constants import DEFAULTS
+from ..constants import DEFAULTS, WORK_LIMITS
 from ..products.check import run_wave_check
 
 NAME = "check"
@@ -17,6 +17,8 @@ def configure(p: argparse.ArgumentParser) -> None:
     p.add_argument("--out", help="output folder (default: RUN_DIR/wave_check)")
     p.add_argument("--overwrite", action="store_true", help="replace an existing output folder")
     p.add_argument("--hours", type=float, help="simulated duration [h] (default: the latest first arrival + 30 min)")
+    p.add_argument("--force", action="store_true", help="run the wave solver even beyond the work limit of "
+                   f"{WORK_LIMITS['wave_cell_updates']:.3g} wet-cell updates (cells x time steps)")
     top_k = DEFAULTS["output"]["top_k"]
     p.add_argument("--top", type=int, default=top_k, help=f"k of the top-k overlap (default {top_k}, as [output] top_k)")
 
@@ -24,5 +26,5 @@ def configure(p: argparse.ArgumentParser) -> None:
 def run(args: argparse.Namespace) -> int:
     """Run the check; returns the exit code."""
     run_wave_check(args.run_dir, out=args.out, overwrite=args.overwrite, hours=args.hours, k=args.top,
-                   progress=getattr(args, "quiet", 0) == 0)
+                   progress=getattr(args, "quiet", 0) == 0, force=args.force)
     return 0

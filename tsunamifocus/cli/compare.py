@@ -7,7 +7,8 @@ import pathlib
 
 from ..constants import DEFAULTS
 from ..errors import InputError
-from ..io.runfolder import OutputFolder, refuse_filled_folder
+from ..io.guards import check_output_folder
+from ..io.runfolder import OutputFolder
 from ..io.runs import read_run
 from ..products.comparison import _summary_of, compare_to_folder, comparison_appendix
 from ..studies.compare import compare_runs
@@ -30,7 +31,8 @@ def run(args: argparse.Namespace) -> int:
     if len(args.runs) < 2:
         raise InputError("compare needs at least two run folders")
     out = pathlib.Path(args.out)
-    refuse_filled_folder(out, args.overwrite)
+    check_output_folder(out, overwrite=args.overwrite, kind="comparison",
+                        inputs=[("run folder", r) for r in args.runs])
     runs = [read_run(r) for r in args.runs]
     names = [r[0] for r in runs]
     if len(set(names)) < len(names):  # same scenario name: tell the runs apart by their folders

@@ -5,7 +5,7 @@ from __future__ import annotations
 import argparse
 import pathlib
 
-from ..errors import InputError
+from ..io.scenario import check_ray_count
 from ..products.demo import run_demo
 
 NAME = "demo"
@@ -24,7 +24,7 @@ def configure(p: argparse.ArgumentParser) -> None:
 
 def run(args: argparse.Namespace) -> int:
     """Run the demo into ``--out``; returns the exit code."""
-    if args.rays is not None and args.rays < 1:
-        raise InputError(f"--rays {args.rays}: expected a positive number of rays")
+    if args.rays is not None:
+        check_ray_count(args.rays)
     return run_demo(pathlib.Path(args.out), overwrite=args.overwrite, rays=args.rays, scheduler=args.scheduler,
                     progress=getattr(args, "quiet", 0) == 0, check=args.check)

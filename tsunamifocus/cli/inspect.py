@@ -5,6 +5,7 @@ from __future__ import annotations
 import argparse
 import json
 
+from ..constants import DEFAULTS
 from ..io.bathymetry import load_bathymetry
 from ..products.summaries import format_summary
 from ..studies.inspect import summarize_grid
@@ -21,7 +22,9 @@ def configure(p: argparse.ArgumentParser) -> None:
     p.add_argument("--variable", help="NetCDF variable name, if the file has several")
     p.add_argument("--crs", help="CRS to assume when the file has none (e.g. EPSG:4326)")
     p.add_argument("--units", help="vertical units when the file declares none (m or ft)")
-    p.add_argument("--max-memory-gb", type=float, default=None, help="refuse grids needing more memory")
+    limit = DEFAULTS["bathymetry"]["max_memory_gb"]
+    p.add_argument("--max-memory-gb", type=float, default=None, help="refuse grids needing more memory [GB] (default "
+                   f"{limit:g}, as [bathymetry] max_memory_gb, or $TSUNAMIFOCUS_MAX_MEMORY_GB)")
     p.add_argument("--json", action="store_true", help="print the summary as JSON")
 
 

@@ -5,9 +5,8 @@ from __future__ import annotations
 import argparse
 import sys
 
-from ..errors import InputError
-from ..io.manifest import scenario_from_manifest, verify_inputs
-from ..io.scenario import parse_scenario
+from ..io.manifest import scenario_for_rerun
+from ..io.scenario import check_ray_count, parse_scenario
 from ..products.runfolder import run_scenario
 
 NAME = "run"
@@ -28,13 +27,10 @@ def configure(p: argparse.ArgumentParser) -> None:
 
 def run(args: argparse.Namespace) -> int:
     """Run the scenario; returns the exit code."""
-    if args.rays is not None and args.rays < 1:
-        raise InputError(f"--rays {args.rays}: expected a positive number of rays")
+    if args.rays is not None:
+        check_ray_count(args.rays)
     if str(args.scenario).lower().endswith(".json"):
-        sc = scenario_from_manifest(args.scenario)
-        bad = [b for b in verify_inputs(args.scenario) if "scenario_file" not in b]
-        if bad:
-            raise InputError(f"{args.scenario}: cannot reproduce the run: {'; '.join(bad)}")
+        sc = scenario_for_rerun(args.scenario)
     else:
         sc = parse_scenario(args.scenario)
     quiet = getattr(args, "quiet", 0) > 0

@@ -12,7 +12,8 @@ import xarray as xr
 from pyproj import CRS, Transformer
 from shapely.geometry import LineString, MultiLineString
 
-from ..errors import CoastError, ResolutionWarning
+from ..constants import WORK_LIMITS
+from ..errors import CoastError, ResolutionWarning, check_work
 from ..grid import GridInfo
 from .coastline import _edge_lengths_m, _geod
 
@@ -193,6 +194,11 @@ def segment_coastline(
             f"segment_length_m={segment_length_m:.0f} m is longer than the whole coastline "
             f"({total:.0f} m): use segment_length_m <= {total:.0f} m"
         )
+    n_est = sum(max(1, round(c[-1] / segment_length_m)) for c in cums)
+    check_work(n_est, WORK_LIMITS["segments"],
+               f"segment_length_m={segment_length_m:g} m cuts {total / 1000:.0f} km of coastline into about {n_est:.3g} "
+               "segments",
+               f"use segments of at least {total / WORK_LIMITS['segments'] / 1000:.3g} km ([coast] segment_km)")
     spacing = max(info.spacing_m())
     if segment_length_m < spacing:
         warnings.warn(

@@ -19,16 +19,17 @@ import numpy as np
 import xarray as xr
 from pyproj import CRS
 
-from ..errors import CRSError, DataFileError, InputError, ResourceLimitError, SignConventionError
+from ..constants import DEFAULTS
+from ..errors import DataWarning, CRSError, DataFileError, InputError, ResourceLimitError, SignConventionError
 from ..grid import GridInfo, check_bbox, crop_bathymetry, make_grid, resample_bathymetry
 
-__all__ = ['load_bathymetry', 'estimate_grid_memory', 'DEFAULT_MAX_MEMORY_GB']
+__all__ = ['load_bathymetry', 'estimate_grid_memory', 'DEFAULT_MAX_MEMORY_GB', 'PROCESS_BASE_BYTES']
 
 log = logging.getLogger(__name__)
 
 #: Default refusal limit for loading a grid [GB] (configurable per call or by the
 #: environment variable ``TSUNAMIFOCUS_MAX_MEMORY_GB``).
-DEFAULT_MAX_MEMORY_GB: float = 8.0
+DEFAULT_MAX_MEMORY_GB: float = float(DEFAULTS["bathymetry"]["max_memory_gb"])
 
 _FEET = {"ft", "feet", "foot", "us_survey_foot", "international_foot", "ft_us"}
 _METRES = {"m", "meter", "meters", "metre", "metres"}
@@ -41,8 +42,19 @@ _DEPTH_WORDS = ("depth",)
 #: grid stores elevation (positive up); a value above +PHYSICAL_SIGN_BOUND_M cannot be a land
 #: height either, so the grid stores depth (positive down).
 PHYSICAL_SIGN_BOUND_M: float = 8900.0
-#: Working copies the loader holds at once, per grid cell (float64 + mask + one copy).
-_BYTES_PER_CELL = 8 * 3
+#: Physical bounds of a depth grid [m]: no sea floor is deeper than the Challenger Deep (about
+#: 10,935 m, rounded up) and no land higher than Mount Everest (8,849 m, rounded up).
+DEEPEST_SEA_FLOOR_M: float = 11000.0
+HIGHEST_LAND_M: float = 8900.0
+#: Up to this fraction of the valid cells may lie outside the physical bounds (isolated spikes):
+#: they become no data with a warning; beyond it the grid is refused (units or sign are wrong).
+OUT_OF_BOUNDS_MAX_FRACTION: float = 0.001
+#: Peak memory of loading and summarising a grid, per grid cell [bytes], and of the process that
+#: has imported tsunamifocus and its libraries [bytes]: measured as the peak resident set size of
+#: ``tsunamifocus inspect`` on float32 GeoTIFF and NetCDF grids of 0.04 to 36 million cells
+#: (``benchmarks/bench_memory.py``, figures in docs/reliability.md), rounded up.
+_BYTES_PER_CELL = 76
+PROCESS_BASE_BYTES = 380_000_000
 
 
 @dataclass
@@ -141,6 +153,7 @@ def load_bathymetry(
         raw.crs = CRS.from_user_input(crs)
     depth = _to_depth(raw, values, units, p)
     da = _assemble(raw, depth, p)
+    _physical_bounds(da, p)
     da.attrs["sign_decided_by"] = raw.attrs.get("sign_decided_by") or f"given: values={values!r}"
     if bbox is not None:
         da = crop_bathymetry(da, bbox, margin_km=margin_km)
@@ -150,9 +163,27 @@ def load_bathymetry(
     return da
 
 
-def estimate_grid_memory(shape: tuple[int, int], bytes_per_cell: int = _BYTES_PER_CELL) -> int:
-    """Estimated bytes needed to hold and process a grid of ``shape`` (rows, columns)."""
-    return int(shape[0]) * int(shape[1]) * int(bytes_per_cell)
+def estimate_grid_memory(shape: tuple[int, int], bytes_per_cell: int | None = None) -> int:
+    """Estimated bytes needed to hold and process a grid of ``shape`` (rows, columns).
+
+    Parameters
+    ----------
+    shape : (int, int)
+        Rows and columns.
+    bytes_per_cell : int, optional
+        Bytes per cell of some other computation (the grid alone: 8). None: the peak resident
+        memory of loading and summarising the grid in a fresh process, the process itself
+        included (:data:`PROCESS_BASE_BYTES` + ``_BYTES_PER_CELL`` per cell, measured).
+
+    Returns
+    -------
+    int
+        Bytes.
+    """
+    cells = int(shape[0]) * int(shape[1])
+    if bytes_per_cell is None:
+        return PROCESS_BASE_BYTES + cells * _BYTES_PER_CELL
+    return cells * int(bytes_per_cell)
 
 
 # --------------------------------------------------------------------------------------
@@ -183,8 +214,11 @@ def _check_memory(p: pathlib.Path, shape: tuple[int, int], limit: float) -> None
 
 
 def _is_netcdf(p: pathlib.Path) -> bool:
-    with open(p, "rb") as fh:
-        head = fh.read(8)
+    try:
+        with open(p, "rb") as fh:
+            head = fh.read(8)
+    except OSError as exc:  # no permission, an I/O error: a data-file error, not a crash
+        raise DataFileError(f"{p}: cannot read the grid file ({exc.strerror or exc}); expected a readable file") from None
     if head[:3] == b"CDF" or head[:8] == b"\x89HDF\r\n\x1a\n":
         return True
     return p.suffix.lower() in _NETCDF_EXT and not head.lower().startswith(b"ncols")
@@ -529,3 +563,28 @@ def _check_usable(da: xr.DataArray, p: pathlib.Path) -> None:
         raise InputError(
             f"{p}: no sea cells (all depths <= 0 after sign conversion); check values='elevation'/'depth'"
         )
+
+
+def _physical_bounds(da: xr.DataArray, p: pathlib.Path) -> None:
+    """Refuse a grid with many impossible values; turn a few isolated ones into no data with a warning.
+
+    A depth beyond :data:`DEEPEST_SEA_FLOOR_M` or a height above :data:`HIGHEST_LAND_M` exists
+    nowhere on Earth: such values are spikes, nodata markers without a declaration, or a wrong
+    unit or sign, and would give impossible wave speeds (c = sqrt(g h)).
+    """
+    v = da.values
+    with np.errstate(invalid="ignore"):
+        bad = (v > DEEPEST_SEA_FLOOR_M) | (v < -HIGHEST_LAND_M)
+    n_bad = int(bad.sum())
+    if not n_bad:
+        return
+    n_fin = int(np.isfinite(v).sum())
+    worst = float(v[bad][np.argmax(np.abs(v[bad]))])
+    what = (f"{n_bad} of {n_fin} cells lie outside the physical range (depth at most "
+            f"{DEEPEST_SEA_FLOOR_M:,.0f} m, land at most {HIGHEST_LAND_M:,.0f} m high; the most extreme is "
+            f"{'depth' if worst > 0 else 'height'} {abs(worst):,.6g} m)")
+    if n_bad > OUT_OF_BOUNDS_MAX_FRACTION * n_fin:
+        raise InputError(f"{p}: {what}; expected depths in metres: check the units, the sign (values=) and "
+                         "the nodata value of the file")
+    warnings.warn(f"{p}: {what}; these cells are treated as no data", DataWarning, stacklevel=3)
+    v[bad] = np.nan

@@ -33,7 +33,7 @@ from ..cautions import caution_lines, caution_summary, caution_text
 from ..constants import __version__
 from ..errors import CRSError, DataFileError, InputError
 from ..grid import GridInfo, get_crs
-from .runfolder import deferred_interrupts
+from .runfolder import WRITING_NOTE, deferred_interrupts
 from .styles import ColourScale, lensing_scale, raster_qml, scale_for_layer, segments_qml, segments_sld
 
 __all__ = ['LAYER_INFO', 'POINT_COLUMNS', 'LON180_SUFFIX', 'LonLayout', 'lon_layout', 'longitude_note',
@@ -68,6 +68,9 @@ def _atomic_file(path: Path) -> Iterator[Path]:
     try:
         yield tmp_path
         os.replace(tmp_path, path)
+    except (OSError, RuntimeError) as exc:  # a library's write failure: remember which file it was
+        exc.add_note(f"{WRITING_NOTE}{path}")
+        raise
     finally:
         for p in (tmp_path, *parent.glob(tmp_path.name + "-*")):  # also sqlite -journal/-wal leftovers
             with contextlib.suppress(FileNotFoundError):
@@ -657,7 +660,7 @@ def _comment_header() -> str:
     return "".join(f"# {line}\n" if line else "#\n" for line in ["CAUTION:", *caution_lines(width=100)])
 
 
-def _check_table(table: Any, what: str) -> Any:
+def _check_table(table: Any, what: str, *, allow_empty: bool = False) -> Any:
     import pandas as pd
 
     if not isinstance(table, pd.DataFrame):
@@ -665,7 +668,7 @@ def _check_table(table: Any, what: str) -> Any:
             table = pd.DataFrame(table)
         except Exception as exc:  # noqa: BLE001
             raise InputError(f"{what}: expected a pandas DataFrame or a list of records ({exc})") from None
-    if len(table) == 0:
+    if len(table) == 0 and not allow_empty:
         raise InputError(f"{what}: the table has no rows; nothing to export")
     return table
 
@@ -903,7 +906,8 @@ def write_points_csv(table: Any, path: str | os.PathLike) -> Path:
     table : pandas.DataFrame or list of dict
         Columns ``name, lon, lat`` [degrees], ``first_arrival_min`` [min], ``lensing_factor`` [1],
         ``amp_1m_m`` (indicative amplitude at 1 m depth by Green's law) [m] and
-        ``nearest_segment`` (segment id); further columns are written after these.
+        ``nearest_segment`` (segment id); further columns are written after these. An empty
+        table (no points of interest) gives the caution and the header line only.
     path : str or path-like
         Target ``.csv`` file.
 
@@ -911,7 +915,9 @@ def write_points_csv(table: Any, path: str | os.PathLike) -> Path:
     -------
     pathlib.Path
     """
-    table = _check_table(table, "write_points_csv")
+    table = _check_table(table, "write_points_csv", allow_empty=True)
+    if len(table) == 0:  # a scenario without [[point]]: the header alone says so
+        table = table.reindex(columns=list(dict.fromkeys([*POINT_COLUMNS, *table.columns])))
     missing = [c for c in POINT_COLUMNS if c not in table.columns]
     if missing:
         raise InputError(f"write_points_csv: missing column(s) {missing}; expected {list(POINT_COLUMNS)}")

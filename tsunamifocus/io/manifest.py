@@ -21,11 +21,11 @@ import numpy as np
 
 from ..cautions import caution_text
 from ..constants import __version__
-from ..errors import DataFileError, InputError
+from ..errors import DataFileError, InputError, cut
 from .runfolder import OutputFolder
-from .scenario import scenario_from_dict
+from .scenario import parse_scenario, scenario_from_dict
 
-__all__ = ['jsonable', 'MANIFEST_NAME', 'sha256_file', 'build_manifest', 'write_manifest', 'read_manifest', 'verify_outputs', 'verify_inputs', 'scenario_from_manifest', 'software_versions', 'show_versions']
+__all__ = ['jsonable', 'MANIFEST_NAME', 'sha256_file', 'build_manifest', 'write_manifest', 'read_manifest', 'verify_outputs', 'verify_inputs', 'scenario_from_manifest', 'software_versions', 'show_versions', 'parameters_sha256', 'parameter_differences', 'scenario_for_rerun']
 
 MANIFEST_NAME = "manifest.json"
 MANIFEST_FORMAT = "tsunamifocus-manifest"
@@ -206,6 +206,7 @@ def build_manifest(
         "command": command if command is not None else None,
         "inputs": in_records,
         "parameters": scenario.to_dict() if scenario is not None else None,
+        "parameters_sha256": parameters_sha256(scenario.to_dict()) if scenario is not None else None,
         "seeds": dict(seeds or {}),
         "timings_s": dict(timings or {}),
         "software": software_versions(),
@@ -279,6 +280,8 @@ def read_manifest(path: str | os.PathLike) -> dict[str, Any]:
         raise DataFileError(f"{p}: cannot read manifest ({exc})") from None
     try:
         m = json.loads(text)
+    except RecursionError:
+        raise DataFileError(f"{p}: manifest nested too deeply to read; expected a tsunamifocus manifest") from None
     except json.JSONDecodeError as exc:
         raise DataFileError(f"{p}: line {exc.lineno}: manifest is not valid JSON ({exc.msg})") from None
     if not isinstance(m, dict) or m.get("format") != MANIFEST_FORMAT:
@@ -360,3 +363,74 @@ def scenario_from_manifest(manifest: Mapping[str, Any] | str | os.PathLike):
         raise DataFileError(f"{m.get('_path', 'manifest')}: manifest records no scenario parameters")
     base = Path(m["_path"]).parent if "_path" in m else Path.cwd()
     return scenario_from_dict(m["parameters"], base, origin=f"{m.get('_path', 'manifest')} parameters")
+
+
+def parameters_sha256(parameters: Mapping[str, Any] | None) -> str:
+    """SHA-256 of the parameters as canonical JSON (sorted keys), recorded to detect later edits."""
+    text = json.dumps(jsonable(parameters), sort_keys=True, ensure_ascii=False, separators=(",", ":"))
+    return hashlib.sha256(text.encode("utf-8")).hexdigest()
+
+
+def _flat(obj: Any, prefix: str = "") -> dict[str, Any]:
+    if isinstance(obj, Mapping):
+        out: dict[str, Any] = {}
+        for k, v in obj.items():
+            out.update(_flat(v, f"{prefix}{k}."))
+        return out
+    if isinstance(obj, list) and any(isinstance(v, (Mapping, list)) for v in obj):
+        out = {}
+        for i, v in enumerate(obj):
+            out.update(_flat(v, f"{prefix[:-1]}[{i}]."))
+        return out
+    return {prefix[:-1]: obj}
+
+
+def _short(v: Any) -> str:
+    return cut(json.dumps(v, ensure_ascii=False) if v is not None else "unset")
+
+
+def parameter_differences(manifest: Mapping[str, Any] | str | os.PathLike) -> list[str]:
+    """Parameters of a manifest that differ from the run it records (one line each; empty if none).
+
+    The run folder's ``scenario.toml`` is the effective scenario of the run, and the manifest lists
+    it with its sha256. When that copy is intact its parameters are the recorded ones and every
+    differing key is named (``rays.count: recorded 800, manifest 5``). Without it, the manifest's
+    ``parameters_sha256`` still tells whether the parameters were edited.
+    """
+    m = manifest if isinstance(manifest, Mapping) else read_manifest(manifest)
+    params = m.get("parameters")
+    if not params:
+        return []
+    folder = Path(m["_path"]).parent if "_path" in m else None
+    rec = next((r for r in m.get("outputs", []) if r.get("path") == "scenario.toml"), None)
+    toml = folder / "scenario.toml" if folder is not None else None
+    if rec is not None and toml is not None and toml.is_file() and sha256_file(toml) == rec.get("sha256"):
+        recorded = _flat(jsonable(parse_scenario(toml).to_dict()))
+        now = _flat(jsonable(scenario_from_dict(params, folder, origin=f"{m['_path']} parameters").to_dict()))
+        return [f"{k}: recorded {_short(recorded.get(k))}, manifest {_short(now.get(k))}"
+                for k in sorted(set(recorded) | set(now)) if recorded.get(k) != now.get(k)]
+    want = m.get("parameters_sha256")
+    if want and parameters_sha256(params) != want:
+        return ["parameters: edited after the run (their sha256 differs from parameters_sha256)"]
+    return []
+
+
+def scenario_for_rerun(manifest_path: str | os.PathLike):
+    """The scenario of a recorded run, refused when its inputs or parameters changed since.
+
+    Raises
+    ------
+    InputError
+        An input file is missing or changed (sha256), or the manifest's parameters differ from the
+        recorded run (each differing parameter named).
+    """
+    m = read_manifest(manifest_path)
+    diffs = parameter_differences(m)
+    if diffs:
+        more = f" (+{len(diffs) - 6} more)" if len(diffs) > 6 else ""
+        raise InputError(f"{manifest_path}: cannot reproduce the run: parameters differ from the recorded run: "
+                         f"{'; '.join(diffs[:6])}{more}; to run other parameters, edit a scenario file and run it")
+    bad = [b for b in verify_inputs(m) if "scenario_file" not in b]
+    if bad:
+        raise InputError(f"{manifest_path}: cannot reproduce the run: {'; '.join(bad)}")
+    return scenario_from_manifest(m)

@@ -23,6 +23,7 @@ run can be re-made from it and checked (:func:`verify_outputs`).
 from __future__ import annotations
 
 import contextlib
+import errno
 import os
 import re
 import secrets
@@ -34,9 +35,9 @@ from collections.abc import Iterator
 from pathlib import Path
 from typing import Any
 
-from ..errors import DataFileError, InputError, OutputExistsError
+from ..errors import DataFileError, InputError, OutputExistsError, TsunamiFocusError, cut
 
-__all__ = ['safe_name', 'refuse_filled_folder', 'RUN_FILES', 'OutputFolder', 'StageTimer', 'deferred_interrupts']
+__all__ = ['safe_name', 'refuse_filled_folder', 'RUN_FILES', 'OutputFolder', 'StageTimer', 'deferred_interrupts', 'WRITING_NOTE']
 
 #: File names inside a run folder (one place to change them).
 RUN_FILES = {
@@ -172,7 +173,10 @@ class OutputFolder:
                 f"{parent}: cannot create the output's parent folder ({exc.strerror})"
             ) from None
         self._recover()
-        if final.exists() or final.is_symlink():
+        if final.is_symlink():  # renaming it aside would replace the link, not its folder
+            raise OutputExistsError(f"{final}: output folder is a symbolic link (to {os.readlink(final)}); "
+                                    "give the real folder instead of the link")
+        if final.exists():
             if not final.is_dir():
                 raise OutputExistsError(f"{final}: exists and is not a folder; choose another output folder")
             if any(final.iterdir()) and not self.overwrite:
@@ -192,10 +196,56 @@ class OutputFolder:
             if exc_type is None:
                 self.commit()
             else:
+                failure = self._write_failure(exc)
                 self.abort()
+                if failure is not None:
+                    raise failure from exc
         finally:
             self._restore_handler()
         return False
+
+    def _write_failure(self, exc: BaseException | None) -> DataFileError | None:
+        """A one-line error for a library's write failure (a full disk above all), naming the file.
+
+        Library writers report a full disk in their own words (``NetCDF: HDF error``, ``No space
+        left on device``, GDAL write errors) and without the file; this names the file being
+        written, the folder, and says whether the disk is full. Errors of tsunamifocus itself and
+        interruptions pass unchanged.
+        """
+        if exc is None or isinstance(exc, TsunamiFocusError) or not isinstance(exc, (OSError, RuntimeError)):
+            return None
+        if isinstance(exc, RuntimeError) and not _looks_like_io(exc):
+            return None
+        noted = [n[len(WRITING_NOTE):] for n in getattr(exc, "__notes__", []) if n.startswith(WRITING_NOTE)]
+        where = self._final_name(Path(noted[0])) if noted else (self._newest_file() or self.final_dir)
+        free = _free_bytes(self.tmp_dir or self.final_dir.parent)
+        full = getattr(exc, "errno", None) in (errno.ENOSPC, errno.EDQUOT) or (free is not None and free < _FULL_BELOW)
+        what = " ".join(str(getattr(exc, "strerror", None) or exc).split())
+        if full:
+            return DataFileError(
+                f"{where}: the disk is full ({(free or 0) / 1e6:.1f} MB free on {self.final_dir.parent}) while "
+                f"writing the outputs ({cut(what)}); nothing was written to {self.final_dir}; free some space or "
+                "choose another output folder")
+        return DataFileError(f"{where}: writing the outputs failed ({cut(what)}); nothing was written to "
+                             f"{self.final_dir}")
+
+    def _final_name(self, p: Path) -> Path:
+        """``p`` inside the temporary folder, named as it will be in the final folder."""
+        if self.tmp_dir is not None:
+            with contextlib.suppress(ValueError):
+                return self.final_dir / p.relative_to(self.tmp_dir)
+        return p
+
+    def _newest_file(self) -> Path | None:
+        """The file most recently written in the temporary folder, named as it would be in the final one."""
+        if self.tmp_dir is None:
+            return None
+        try:
+            files = [p for p in self.tmp_dir.rglob("*") if p.is_file()]
+            newest = max(files, key=lambda p: p.stat().st_mtime_ns) if files else None
+        except OSError:
+            return None
+        return self.final_dir / newest.relative_to(self.tmp_dir) if newest is not None else None
 
     def _install_handler(self) -> None:
         if not self.handle_sigterm or threading.current_thread() is not threading.main_thread():
@@ -265,6 +315,25 @@ class OutputFolder:
         self.tmp_dir = None
         if old is not None:
             shutil.rmtree(old, ignore_errors=True)
+
+
+#: Prefix of the note a file writer adds to a library's write error (the file it was writing).
+WRITING_NOTE = "tsunamifocus writing: "
+#: Free space [bytes] below which a failed write is reported as a full disk.
+_FULL_BELOW = 1 << 20
+
+
+def _free_bytes(folder: Path) -> int | None:
+    try:
+        return shutil.disk_usage(folder).free
+    except OSError:
+        return None
+
+
+def _looks_like_io(exc: BaseException) -> bool:
+    """A RuntimeError of a file library (netCDF4/HDF5, GDAL) rather than a computation."""
+    t = str(exc).lower()
+    return any(w in t for w in ("netcdf", "hdf", "gdal", "write", "disk", "space", "i/o"))
 
 
 @contextlib.contextmanager

@@ -10,11 +10,12 @@ import pandas as pd
 import xarray as xr
 
 from ..errors import DataFileError
+from .manifest import read_manifest, verify_outputs
 
 #: One run as compared: (name, segments table, layers by name).
 RunTuple = tuple[str, pd.DataFrame, Mapping[str, xr.DataArray]]
 
-__all__ = ['read_run', 'LAYERS_FILE', 'SEGMENTS_FILE', 'MANIFEST_FILE', 'WKT_COLUMNS']
+__all__ = ['read_run', 'verify_run', 'LAYERS_FILE', 'SEGMENTS_FILE', 'MANIFEST_FILE', 'WKT_COLUMNS']
 
 #: File names inside a finished run folder (set by the pipeline; change them here only).
 LAYERS_FILE = "layers.nc"
@@ -29,7 +30,41 @@ WKT_COLUMNS = ("wkt", "geometry_wkt")
 # ---------------------------------------------------------------------------------------------
 
 
-def read_run(run_dir: str | Path) -> RunTuple:
+def verify_run(run_dir: str | Path) -> dict:
+    """Check a finished run folder against its manifest before anything of it is used.
+
+    Every file the manifest lists must be present with the recorded sha256 (FIPS 180-4); files
+    added later (notes, a ``wave_check`` sub-folder) are allowed. Every command that reads a run
+    (``compare``, ``check``) goes through here.
+
+    Returns
+    -------
+    dict
+        The manifest (:func:`~tsunamifocus.io.manifest.read_manifest`).
+
+    Raises
+    ------
+    DataFileError
+        No folder, no tsunamifocus manifest, or a listed file missing or changed since the run.
+    """
+    d = Path(run_dir)
+    if not d.is_dir():
+        raise DataFileError(f"{d}: run folder not found")
+    mpath = d / MANIFEST_FILE
+    if not mpath.is_file():
+        raise DataFileError(f"{mpath}: not found; expected a finished run folder with its manifest "
+                            "(a run is checked against it before use)")
+    m = read_manifest(mpath)
+    problems = [p for p in verify_outputs(m, d) if not p.startswith("not in manifest")]
+    if problems:
+        more = f" (+{len(problems) - 3} more)" if len(problems) > 3 else ""
+        raise DataFileError(f"{d}: run folder does not match its manifest: {'; '.join(problems[:3])}{more} "
+                            "(sha256 differs from manifest.json); its results were edited or damaged: "
+                            "expected the files as the run wrote them, re-run it")
+    return m
+
+
+def read_run(run_dir: str | Path, *, verify: bool = True) -> RunTuple:
     """Read a finished run folder: ``(name, segments, layers)`` for :func:`compare_runs`.
 
     Parameters
@@ -40,6 +75,9 @@ def read_run(run_dir: str | Path) -> RunTuple:
         :data:`WKT_COLUMNS`) and optionally :data:`MANIFEST_FILE` (its ``name``,
         ``scenario.name``, ``parameters.name`` or ``parameters.scenario.name`` names the run;
         else the folder name).
+    verify : bool
+        Check the folder against its manifest first (:func:`verify_run`); False only for folders
+        assembled by hand (tests, other tools).
 
     Returns
     -------
@@ -55,6 +93,8 @@ def read_run(run_dir: str | Path) -> RunTuple:
     d = Path(run_dir)
     if not d.is_dir():
         raise DataFileError(f"{d}: run folder not found")
+    if verify:
+        verify_run(d)
     name = d.name
     mpath = d / MANIFEST_FILE
     if mpath.is_file():

@@ -32,18 +32,19 @@ import math
 import os
 import re
 import tomllib
+import unicodedata
 from collections.abc import Mapping
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
 from ..cautions import caution_lines
-from ..constants import DEFAULTS, STOP_DEPTH_M
-from ..errors import DataFileError, InputError, ScenarioError
+from ..constants import DEFAULTS, MAX_RAYS, MIN_RAYS, STOP_DEPTH_M
+from ..errors import MESSAGE_VALUE_CHARS, DataFileError, InputError, ScenarioError, cut
 from .runfolder import safe_name
 from .subfaults import read_subfault_table
 
-__all__ = ['Scenario', 'BathymetryConfig', 'FaultSegmentConfig', 'SourceConfig', 'RaysConfig', 'FocusingConfig', 'CoastConfig', 'PointOfInterest', 'OutputConfig', 'EnsembleConfig', 'parse_scenario', 'scenario_from_dict', 'scenario_schema', 'scenario_table_markdown']
+__all__ = ['Scenario', 'BathymetryConfig', 'FaultSegmentConfig', 'SourceConfig', 'RaysConfig', 'FocusingConfig', 'CoastConfig', 'PointOfInterest', 'OutputConfig', 'EnsembleConfig', 'parse_scenario', 'scenario_from_dict', 'check_ray_count', 'scenario_schema', 'scenario_table_markdown']
 
 #: Sane moment-magnitude range accepted without ``force = true`` (issue "Sources"); with
 #: ``force`` the wider physical range below is accepted.
@@ -516,7 +517,7 @@ _SPEC: dict[str, tuple[_Key, ...]] = {
     ),
     "source": _SOURCE_KEYS,
     "rays": (
-        _i("count", "number of rays per source", "rays", lo=1, hi=100_000_000,
+        _i("count", "number of rays per source", "rays", lo=MIN_RAYS, hi=MAX_RAYS,
            default_doc="auto (the run summary says what was chosen and why)"),
         _f("stop_depth_m", "stop isobath: rays end where the depth falls below it", "m",
            lo=0.0, hi=2000.0, lo_open=True),
@@ -753,14 +754,21 @@ def _num_txt(v: float) -> str:
 
 
 def _show(v: Any) -> str:
-    if isinstance(v, str):
-        return json.dumps(v, ensure_ascii=False)
+    if isinstance(v, str):  # quoted and cut (a 10 MB value must not become a 10 MB message); characters
+        # that would break or reorder the message line are shown escaped (\u202e)
+        def q(t: str) -> str:
+            return "".join(c if c.isprintable() else c.encode("unicode_escape").decode("ascii")
+                           for c in json.dumps(t, ensure_ascii=False))
+
+        h = MESSAGE_VALUE_CHARS // 2
+        if len(v) > MESSAGE_VALUE_CHARS:
+            return f"{q(v[:h])[:-1]}...{q(v[-h:])[1:]} ({len(v)} characters)"
+        return q(v)
     if isinstance(v, bool):
         return "true" if v else "false"
     if isinstance(v, dict):
         return "a table"
-    txt = repr(v)
-    return txt if len(txt) <= 60 else txt[:57] + "..."
+    return cut(repr(v))
 
 
 class _Ctx:
@@ -814,11 +822,30 @@ def _check_str(ctx: _Ctx, sect: tuple, k: _Key, v: Any, *, allow_newlines: bool 
             raise ctx.bad(sect, k, v, f"a non-empty text string ({k.doc})")
         if len(v) > 200:
             raise ctx.bad(sect, k, v, "at most 200 characters")
-        if any(ord(c) < 32 or ord(c) == 127 for c in v):
-            raise ctx.bad(sect, k, v, "a single line of text without control characters")
     elif len(v) > 20000:
         raise ctx.bad(sect, k, v, "at most 20000 characters")
+    bad = _hidden_char(v, allow_newlines=k.name == "description")
+    if bad is not None:
+        i, c = bad
+        raise ctx.bad(sect, k, v, f"{'text' if k.name == 'description' else 'a single line of text'} without "
+                      f"control, line-separator or direction-changing characters (U+{ord(c):04X} "
+                      f"{unicodedata.name(c, 'control character')} at character {i + 1})")
     return v
+
+
+#: Unicode general categories refused in names: controls (Cc), format characters such as the
+#: bidirectional overrides and zero-width marks (Cf), line and paragraph separators (Zl, Zp),
+#: surrogates (Cs), private use (Co) and unassigned code points (Cn) (Unicode Standard, chapter 4.5).
+_HIDDEN_CATEGORIES = {"Cc", "Cf", "Zl", "Zp", "Cs", "Co", "Cn"}
+
+
+def _hidden_char(v: str, *, allow_newlines: bool) -> tuple[int, str] | None:
+    """First character of ``v`` that is invisible or changes the layout of a line (position, char), or None."""
+    ok = "\n\t" if allow_newlines else ""
+    for i, c in enumerate(v):
+        if c not in ok and (unicodedata.category(c) in _HIDDEN_CATEGORIES or c == "\x7f"):
+            return i, c
+    return None
 
 
 def _check_path(ctx: _Ctx, sect: tuple, k: _Key, v: Any) -> Path:
@@ -1255,6 +1282,9 @@ def parse_scenario(path: str | os.PathLike) -> Scenario:
                             "save the scenario file as UTF-8") from None
     try:
         data = tomllib.loads(text)
+    except RecursionError:
+        raise ScenarioError(f"{p}: line {_deepest_line(text)}: arrays or tables nested too deeply to read; "
+                            "expected a scenario as in docs/scenario.md (at most a few levels of nesting)") from None
     except tomllib.TOMLDecodeError as exc:
         msg = str(exc)
         m = re.search(r"\(at line (\d+), column (\d+)\)", msg)
@@ -1264,8 +1294,50 @@ def parse_scenario(path: str | os.PathLike) -> Scenario:
         raise ScenarioError(f"{p}: invalid TOML: {msg}") from None
     base = p.resolve().parent
     ctx = _Ctx(_Where(str(p), text), base, check_files=True)
-    sc = _build(data, ctx, default_name=p.stem)
+    try:
+        sc = _build(data, ctx, default_name=p.stem)
+    except RecursionError:
+        raise ScenarioError(f"{p}: line {_deepest_line(text)}: values nested too deeply; expected a scenario as "
+                            "in docs/scenario.md") from None
     return dataclasses.replace(sc, file=p.resolve())
+
+
+def check_ray_count(n: Any, origin: str = "--rays") -> int:
+    """The one check of a ray count given outside a scenario file (``--rays``): the range of ``[rays] count``.
+
+    Raises
+    ------
+    ScenarioError
+        ``n`` is not an integer in ``[MIN_RAYS, MAX_RAYS]``.
+    """
+    if isinstance(n, bool) or not isinstance(n, int) or not MIN_RAYS <= n <= MAX_RAYS:
+        raise ScenarioError(f"{origin} {cut(repr(n))}: expected a number of rays >= {MIN_RAYS} and <= {MAX_RAYS} "
+                            "(as [rays] count)")
+    return n
+
+
+def _deepest_line(text: str) -> int:
+    """Line of the most deeply nested ``[`` / ``{`` of a TOML text (strings and comments skipped roughly)."""
+    depth = best = 0
+    line = best_line = 1
+    quote = None
+    for i, ch in enumerate(text):
+        if ch == "\n":
+            line += 1
+            if quote in ("#",):
+                quote = None
+        elif quote:
+            if (quote in "\"'" and ch == quote and text[i - 1] != "\\"):
+                quote = None
+        elif ch in "\"'#":
+            quote = ch
+        elif ch in "[{":
+            depth += 1
+            if depth > best:
+                best, best_line = depth, line
+        elif ch in "]}":
+            depth -= 1
+    return best_line
 
 
 def scenario_from_dict(d: Mapping[str, Any], base_dir: str | os.PathLike = ".", *,

@@ -26,6 +26,7 @@ import os
 import pathlib
 import re
 import struct
+import warnings
 from collections.abc import Iterable, Mapping, Sequence
 from typing import Any
 
@@ -34,7 +35,7 @@ import pandas as pd
 
 from ..cautions import CAUTION_SHORT, caution_text
 from ..constants import __version__
-from ..errors import DataFileError, InputError
+from ..errors import DataFileError, InputError, TsunamiFocusWarning
 
 __all__ = ['build_appendix', 'CONTEXT_KEYS', 'SECTION_KEYS', 'DEFAULT_METHOD', 'DEFAULT_REFERENCES', 'DEFAULT_ASSUMPTIONS', 'FIGURE_CAPTIONS', 'document_blocks']
 
@@ -1101,7 +1102,8 @@ def _render_pdf(
 
     fonts = _font_paths()
     fam = "DejaVu" if fonts else "Helvetica"
-    T = (lambda s: str(s)) if fonts else _latin1  # noqa: E731
+    missing: set[str] = set()
+    T = _drawable(fonts, missing) if fonts else _latin1
     pdf = _pdf_document(meta, fonts, fam, T, compress)
     _pdf_title_block(pdf, fam, T, meta)
     starts = block_pages if block_pages is not None else []
@@ -1127,7 +1129,38 @@ def _render_pdf(
     finally:
         if tmp.exists():
             tmp.unlink()
+    if missing:
+        shown = ", ".join(f"U+{ord(c):04X}" for c in sorted(missing)[:8]) + (" ..." if len(missing) > 8 else "")
+        warnings.warn(f"{out_pdf.name}: {len(missing)} character(s) the PDF font (DejaVu Sans) cannot draw were "
+                      f"replaced by '?' ({shown}); the HTML appendix shows them", TsunamiFocusWarning, stacklevel=3)
     return pdf.pages_count
+
+
+def _drawable(fonts: Mapping[str, pathlib.Path], missing: set[str]):
+    """Text filter for the PDF: characters the font has no glyph for become ``?`` and are collected.
+
+    fpdf2 leaves such characters out without a word, so a name in CJK script or with an emoji would
+    silently lose letters; the caller warns about what was replaced.
+    """
+    from fontTools.ttLib import TTFont  # a dependency of fpdf2, imported when a PDF is written
+
+    cmap = set(TTFont(str(fonts[""]), lazy=True).getBestCmap())
+    keep = {ord(c) for c in "\n\r\t"}
+
+    def T(s: Any) -> str:
+        s = str(s)
+        if all(ord(c) in cmap or ord(c) in keep for c in s):
+            return s
+        out = []
+        for c in s:
+            if ord(c) in cmap or ord(c) in keep:
+                out.append(c)
+            else:
+                missing.add(c)
+                out.append("?")
+        return "".join(out)
+
+    return T
 
 
 def _pdf_document(meta: Mapping[str, str], fonts: dict, fam: str, T, compress: bool):

@@ -22,6 +22,7 @@ from ..cautions import caution_summary
 from ..errors import DataFileError, InputError
 from ..io.gis import write_cog, write_netcdf
 from ..io.manifest import jsonable, write_manifest
+from ..io.guards import check_output_folder
 from ..io.runfolder import OutputFolder
 from ..io.runs import read_run
 from ..io.scenario import Scenario, parse_scenario
@@ -93,6 +94,7 @@ def run_wave_check(
     hours: float | None = None,
     k: int = 10,
     progress: bool = True,
+    force: bool = False,
 ) -> dict[str, Any]:
     """Run the wave-equation check of a finished run and write its outputs.
 
@@ -110,6 +112,8 @@ def run_wave_check(
         Top-k of the overlap statistic.
     progress : bool
         Messages and a progress bar on stderr.
+    force : bool
+        Run the wave solver beyond the work limit (``constants.WORK_LIMITS["wave_cell_updates"]``).
 
     Returns
     -------
@@ -122,6 +126,9 @@ def run_wave_check(
     if hours is not None and not hours > 0:
         raise InputError(f"--hours {hours}: expected a positive duration in hours")
     out_dir = pathlib.Path(out) if out is not None else run_dir / CHECK_FOLDER
+    check_output_folder(out_dir, overwrite=overwrite, kind="wave_check", option="--out" if out else "the check folder",
+                        inputs=[("run file", run_dir / f) for f in ("layers.nc", "segments.csv", "scenario.toml",
+                                                                     "manifest.json")])
     name, segments, layers = read_run(run_dir)
     for need in ("depth", "initial_sea_surface"):
         if need not in layers:
@@ -137,7 +144,8 @@ def run_wave_check(
                          reference_depth=layers.get("reference_depth"),
                          duration_s=None if hours is None else hours * 3600.0,
                          figure_path=tmp / "ray_vs_wave.png", progress=progress,
-                         max_memory_bytes=sc.bathymetry.max_memory_gb * 1e9)
+                         max_memory_bytes=sc.bathymetry.max_memory_gb * 1e9,
+                         **({"max_cell_updates": None} if force else {}))
         amp = chk.wave.max_amplitude.copy()
         amp.name = "wave_max_amplitude"
         amp.attrs.update(units="m", long_name="maximum sea-surface elevation, linear long-wave solver")

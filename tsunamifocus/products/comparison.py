@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import html
 import json
 import pathlib
 from collections.abc import Sequence
@@ -98,7 +99,8 @@ def compare_to_folder(
         )
     md = out / "comparison_summary.md"
     md.write_text(
-        "# Scenario comparison\n\n" + comp.summary + "\n\n## Cautions\n\n" + caution_text() + "\n", encoding="utf-8"
+        "# Scenario comparison\n\n" + markdown_text(comp.summary) + "\n\n## Cautions\n\n" + caution_text() + "\n",
+        encoding="utf-8"
     )
     written["summary_md"] = md
     js = out / "comparison.json"
@@ -157,6 +159,21 @@ def comparison_appendix(cmp, runs, folder: pathlib.Path) -> None:
         "comparison": section,
     }
     build_appendix(ctx, folder / "comparison_appendix.html", folder / "comparison_appendix.pdf")
+
+
+#: Characters with a meaning in Markdown (CommonMark 0.31, "Backslash escapes": any ASCII punctuation
+#: may be escaped) that names from scenario files may carry; HTML tags are written as text.
+_MD_SPECIAL = set("\\`*_{}[]()#+!|~")
+
+
+def markdown_text(text: str) -> str:
+    """Plain text made safe for a Markdown file: ``<``, ``>`` and ``&`` as HTML entities (no raw HTML
+    from scenario names reaches a Markdown viewer) and Markdown punctuation backslash-escaped."""
+    out = []
+    for line in str(text).split("\n"):
+        esc = html.escape(line, quote=False)
+        out.append("".join("\\" + c if c in _MD_SPECIAL else c for c in esc))
+    return "  \n".join(out)  # keep the plain text's line breaks (two spaces: a Markdown line break)
 
 
 def _summary_of(cmp) -> str:

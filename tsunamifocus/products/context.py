@@ -18,6 +18,15 @@ from ..studies.run import SourceAnalysis
 __all__ = []
 
 
+def _fmt(v: Any, spec: str) -> str:
+    """``v`` formatted with ``spec``; "n/a" for a missing (None) or non-finite value."""
+    try:
+        x = float(v)
+    except (TypeError, ValueError):
+        return "n/a"
+    return format(x, spec) if np.isfinite(x) else "n/a"
+
+
 def _report_context(a: SourceAnalysis, scenario: Any, depth: xr.DataArray, points: pd.DataFrame,
                     health: dict, figs: dict, ensemble: Any, extra_sections: dict | None, *,
                     choices: dict | None = None) -> dict:
@@ -30,32 +39,36 @@ def _report_context(a: SourceAnalysis, scenario: Any, depth: xr.DataArray, point
         "geometry": "lon/lat on a sphere" if g["geographic"] else "projected plane",
         "size (rows x columns)": f"{g['shape'][0]} x {g['shape'][1]}",
         "spacing": f"{g['spacing_m'][0] / 1000:.3g} km x {g['spacing_m'][1] / 1000:.3g} km",
-        "sea depth (median / max)": f"{g.get('depth_median_m', float('nan')):.0f} m / {g.get('depth_max_m', float('nan')):.0f} m",
-        "long-wave speed (median)": f"{g.get('speed_median_ms', float('nan')):.0f} m/s",
+        "sea depth (median / max)": f"{_fmt(g.get('depth_median_m'), '.0f')} m / {_fmt(g.get('depth_max_m'), '.0f')} m",
+        "long-wave speed (median)": f"{_fmt(g.get('speed_median_ms'), '.0f')} m/s",
     }
     lon_note = longitude_note(GridInfo.from_dataarray(depth))
     if lon_note:
         grid["GIS longitudes"] = lon_note
     sm = a.summary.to_dict()
-    src = {
-        "name": a.name,
-        "Mw": f"{sm.get('mw', float('nan')):.2f}",
-        "M0 (N m)": f"{sm.get('m0_nm', float('nan')):.3g}",
-        "mean slip (m)": f"{sm.get('mean_slip_m', float('nan')):.2f}",
-        "max uplift / subsidence (m)": f"{sm.get('max_uplift_m', float('nan')):.2f} / {sm.get('max_subsidence_m', float('nan')):.2f}",
-        "initial potential energy (J)": f"{sm.get('energy_J', float('nan')):.3g}",
-        "dominant wavelength (km)": f"{sm.get('wavelength_km', float('nan')):.0f}",
-        "dominant period (min)": f"{a.period_s / 60:.1f}",
+    src = {"name": a.name}
+    for label, key, spec in (("Mw", "mw", ".2f"), ("M0 (N m)", "m0_nm", ".3g"), ("mean slip (m)", "mean_slip_m", ".2f")):
+        if sm.get(key) is not None:  # a point source has no magnitude, moment or slip: rows left out
+            src[label] = _fmt(sm[key], spec)
+    src.update({
+        "max uplift / subsidence (m)": f"{_fmt(sm.get('max_uplift_m'), '.2f')} / {_fmt(sm.get('max_subsidence_m'), '.2f')}",
+        "initial potential energy (J)": _fmt(sm.get("energy_J"), ".3g"),
+        "dominant wavelength (km)": _fmt(sm.get("wavelength_km"), ".0f"),
+        "dominant period (min)": _fmt(a.period_s / 60, ".1f"),
         "rays": str(a.fan.n_rays),
-    }
+    })
     for k, v in (sm.get("details") or {}).items():  # subfault table / sea-surface raster figures
         src[k.replace("_", " ")] = f"{v:.4g}" if isinstance(v, float) else str(v)
     for i, seg in enumerate(sm.get("segments", []) or []):
+        if "strike_deg" not in seg:  # a point source: its hump
+            src[f"hump {i + 1}"] = (f"radius {_fmt(seg.get('radius_km'), '.1f')} km, "
+                                    f"amplitude {_fmt(seg.get('amplitude_m'), '.2f')} m")
+            continue
         src[f"segment {i + 1}"] = (
-            f"strike {seg.get('strike_deg', float('nan')):.1f} deg, dip {seg.get('dip_deg', float('nan')):.1f} deg, "
-            f"rake {seg.get('rake_deg', float('nan')):.0f} deg, L {seg.get('length_km', float('nan')):.0f} km, "
-            f"W {seg.get('width_km', float('nan')):.0f} km, top {seg.get('top_depth_km', float('nan')):.1f} km, "
-            f"slip {seg.get('slip_m', float('nan')):.2f} m")
+            f"strike {_fmt(seg.get('strike_deg'), '.1f')} deg, dip {_fmt(seg.get('dip_deg'), '.1f')} deg, "
+            f"rake {_fmt(seg.get('rake_deg'), '.0f')} deg, L {_fmt(seg.get('length_km'), '.0f')} km, "
+            f"W {_fmt(seg.get('width_km'), '.0f')} km, top {_fmt(seg.get('top_depth_km'), '.1f')} km, "
+            f"slip {_fmt(seg.get('slip_m'), '.2f')} m")
     ch = choices or {}
 
     def chosen(key: str, value: Any) -> Any:
@@ -206,7 +219,7 @@ def _ensemble_section(ens: Any, scenario: Any) -> dict:
             "possible >= 0.2, else unlikely).",
         ],
         "metrics": {"members": ens.n_members, "failed": len(ens.failures),
-                    "members per minute": f"{ens.timings.get('members_per_minute', float('nan')):.1f}",
+                    "members per minute": _fmt(ens.timings.get('members_per_minute'), '.1f'),
                     "scheduler": str(ens.scheduler.get("kind", ""))},
         "table": top,
         "table_caption": f"Segments most often among the top {ens.top_k}",

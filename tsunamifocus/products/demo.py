@@ -13,7 +13,7 @@ from pyproj import CRS, Transformer
 
 from ..constants import __version__
 from ..grid import GridInfo, make_grid
-from ..io.runfolder import refuse_filled_folder
+from ..io.guards import check_output_folder
 from ..io.scenario import parse_scenario
 from ..ocean.demo import DEMO_CRS, DemoRegion, demo_to_lonlat, make_demo_bathymetry
 from .runfolder import run_scenario
@@ -132,7 +132,7 @@ def run_demo(out: str | os.PathLike, *, overwrite: bool = False, rays: int | Non
     run's manifest keeps pointing at readable inputs and the run can be reproduced from it.
     """
     out = pathlib.Path(out)
-    refuse_filled_folder(out, overwrite)
+    check_output_folder(out, overwrite=overwrite, kind="run", inputs={"demo_inputs": demo_cache_dir()})
     sc = parse_scenario(demo_inputs(demo_cache_dir()))
     if progress:
         print(f"demo inputs (invented Meridane coast): {sc.bathymetry.path.parent}", file=sys.stderr)

@@ -16,12 +16,12 @@ from pyproj import Transformer
 
 from ..coast.segments import STATIC_SEGMENT_COLUMNS as _STATIC_COLUMNS
 from ..constants import __version__
-from ..errors import InputError
 from ..grid import GridInfo
 from ..io.gis import _plain_dtypes, longitude_note, write_cog, write_netcdf, write_points_csv, write_segments
 from ..io.manifest import jsonable, write_manifest
 from ..io.styles import lensing_scale
-from ..io.runfolder import RUN_FILES, OutputFolder, refuse_filled_folder, safe_name
+from ..io.guards import check_output_folder
+from ..io.runfolder import RUN_FILES, OutputFolder, safe_name
 from ..io.scenario import parse_scenario
 from ..propagation.traveltime import isochrone_levels, isochrone_lines
 from ..studies.progress import StageProgress
@@ -296,6 +296,13 @@ def _ensemble_layers(ens: Any, depth: xr.DataArray) -> dict[str, xr.DataArray]:
     return out
 
 
+def _inputs_of(scenario: Any) -> dict[str, Any]:
+    """The input files of a scenario (role -> path), the scenario file itself included."""
+    files = {"scenario_file": scenario.file} if getattr(scenario, "file", None) is not None else {}
+    files.update(scenario.input_files)
+    return files
+
+
 def _resolve_out(scenario: Any, out: str | os.PathLike | None) -> pathlib.Path:
     if out is not None:
         return pathlib.Path(out)
@@ -344,10 +351,9 @@ def run_scenario(
     pr = StageProgress(progress)
     out_dir = _resolve_out(scenario, out)
     if write:
-        # refuse early, before any work, when results exist and overwrite is not given
-        if out_dir.exists() and not out_dir.is_dir():
-            raise InputError(f"{out_dir}: output path exists and is not a folder")
-        refuse_filled_folder(out_dir, overwrite)
+        # refuse early, before any work: filled folder without overwrite, a folder that is not an
+        # earlier run, a folder holding the inputs, a link, a place that cannot be written
+        check_output_folder(out_dir, overwrite=overwrite, kind="run", inputs=_inputs_of(scenario))
     result = analyse_scenario(scenario, rays=rays, scheduler=scheduler, progress=progress, stages=pr, check=check)
     if write:
         result.out_dir = out_dir

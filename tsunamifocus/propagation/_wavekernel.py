@@ -23,6 +23,10 @@ from __future__ import annotations
 import numpy as np
 from numba import njit, prange
 
+from ._numbacache import ensure_cache_folder
+
+ensure_cache_folder()  # before the cached kernels below are defined
+
 __all__ = ['update_q', 'update_eta', 'radiate', 'update_q_serial', 'update_eta_serial']
 
 

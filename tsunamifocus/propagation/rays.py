@@ -25,7 +25,9 @@ import xarray as xr
 from ..cautions import caution_summary
 from ..constants import EARTH_RADIUS_M, GRAVITY, MIN_DEPTH_M, STOP_DEPTH_M
 from ..errors import RayError
+from ..io.interrupts import PIECE_SECONDS, KernelStopped, interruptible, stop_requested
 from . import _raykernel as _k
+from ._numbacache import warn_cache_fallback
 from .speedfield import SpeedField
 
 __all__ = ['RayResult', 'trace_rays', 'default_step_s', 'REASON_CODES', 'REASON_MEANINGS']
@@ -309,6 +311,7 @@ def _check_launch(fld: SpeedField, x0: np.ndarray, y0: np.ndarray, stop_depth_m:
 def _run_kernel(fld: SpeedField, x0, y0, az, w, q0a, p0a, *, dt, max_time_s, stop_depth_m, polar_lat_deg, threads,
                 accumulate, keep_paths, path_points) -> dict:
     """Lay out the kernel's buffers, run it on ``threads`` threads and reduce the accumulation grids."""
+    warn_cache_fallback()
     info = fld.info
     n = x0.size
     X0, Y0, DX, DY = fld.kernel_geometry
@@ -344,12 +347,27 @@ def _run_kernel(fld: SpeedField, x0, y0, az, w, q0a, p0a, *, dt, max_time_s, sto
     old = numba.get_num_threads()
     numba.set_num_threads(threads)
     try:
-        out, outi = _k.trace_all(
-            Xs, Ys, se0, sn0, q0a, p0a, w, fld.coef, fld.depth_padded, X0, Y0, DX, DY, nx, ny,
-            bool(info.periodic_x), bool(info.geographic), float(fld.radius_m), float(fld.c_min), float(dt),
-            float(max_time_s), float(stop_depth_m), polar, Ach, bool(accumulate), path_slot, paths_buf, path_n,
-            path_every,
-        )
+        # in pieces of whole rounds over the threads: ray k stays on accumulation chunk k % nchunk in
+        # the same order, so the result is bit-identical to one call, and a signal is answered
+        # between pieces (io.interrupts)
+        piece = _piece_rays(n, nchunk, max_steps)
+        outs, outis = [], []
+        with interruptible() as stopped:
+            for a in range(0, n, piece):
+                b = min(n, a + piece)
+                o, oi = _k.trace_all(
+                    Xs[a:b], Ys[a:b], se0[a:b], sn0[a:b], q0a[a:b], p0a[a:b], w[a:b], fld.coef, fld.depth_padded,
+                    X0, Y0, DX, DY, nx, ny, bool(info.periodic_x), bool(info.geographic), float(fld.radius_m),
+                    float(fld.c_min), float(dt), float(max_time_s), float(stop_depth_m), polar, Ach,
+                    bool(accumulate), path_slot[a:b], paths_buf, path_n, path_every,
+                )
+                outs.append(o)
+                outis.append(oi)
+                if stopped():
+                    break
+        if stop_requested() and sum(len(o) for o in outs) < n:  # a worker thread: no signal of its own
+            raise KernelStopped("ray tracing stopped: the process is being interrupted")
+        out, outi = (np.concatenate(outs), np.concatenate(outis)) if len(outs) > 1 else (outs[0], outis[0])
         if accumulate:
             area = np.ascontiguousarray(np.broadcast_to(info.cell_area_m2()[:, 0], (ny,)), dtype=float)
             E, T = _k.reduce_chunks(Ach, area)
@@ -361,6 +379,17 @@ def _run_kernel(fld: SpeedField, x0, y0, az, w, q0a, p0a, *, dt, max_time_s, sto
     if accumulate:
         run.update(E=E, T=T)
     return run
+
+
+#: Ray-steps one thread does in about :data:`~tsunamifocus.io.interrupts.PIECE_SECONDS` (measured
+#: 3 to 6 million ray-steps per second per thread, docs/rays.md; the lower figure).
+_STEPS_PER_PIECE_PER_THREAD = int(3e6 * PIECE_SECONDS)
+
+
+def _piece_rays(n: int, nchunk: int, max_steps: int) -> int:
+    """Rays per kernel call: whole rounds over the ``nchunk`` threads, at most a quarter second or so."""
+    rounds = max(1, _STEPS_PER_PIECE_PER_THREAD // max(1, max_steps))
+    return max(nchunk, min(n, rounds * nchunk) // nchunk * nchunk) if n > nchunk else max(n, 1)
 
 
 def _units(info) -> tuple[str, str]:

@@ -47,11 +47,13 @@ import numpy as np
 import xarray as xr
 
 from ..cautions import caution_summary, caution_text
-from ..constants import GRAVITY, STOP_DEPTH_M
-from ..errors import InputError, ResolutionWarning, ResourceLimitError
+from ..constants import DEFAULTS, GRAVITY, STOP_DEPTH_M, WORK_LIMITS
+from ..errors import InputError, ResolutionWarning, ResourceLimitError, check_work
 from ..grid import GridInfo
+from ..io.interrupts import KernelStopped, interruptible, stop_requested
 from ..io.progress import progress_bar
 from . import _wavekernel as _k
+from ._numbacache import warn_cache_fallback
 
 __all__ = ['WaveResult', 'simulate_linear_long_wave', 'wave_time_step', 'WAVE_CAUTION', 'WAVE_LIMITS']
 
@@ -373,7 +375,8 @@ def simulate_linear_long_wave(
     polar_cutoff_deg: float | None = 80.0,
     threads: int | None = None,
     progress: bool | Callable[[int, int], None] | None = None,
-    max_memory_bytes: int | None = 8 * 2**30,
+    max_memory_bytes: float | None = DEFAULTS["bathymetry"]["max_memory_gb"] * 1e9,
+    max_cell_updates: float | None = WORK_LIMITS["wave_cell_updates"],
 ) -> WaveResult:
     """Integrate the linear long-wave equations from an initial surface at rest.
 
@@ -413,8 +416,12 @@ def simulate_linear_long_wave(
         shared with other jobs ``threads=1`` is often faster (the step is memory-bound).
     progress : bool or callable, optional
         True for a tqdm bar, or a function ``f(step, n_steps)`` called about 100 times.
+    max_cell_updates : float or None
+        Refuse, before any step, runs of more wet-cell updates (wet cells x time steps) than this
+        (ResourceLimitError; ``constants.WORK_LIMITS``); None: no limit.
     max_memory_bytes : int or None
-        Refuse runs whose working arrays would exceed this size (ResourceLimitError).
+        Refuse runs whose working arrays would exceed this size [bytes] (ResourceLimitError); default
+        the one memory limit, ``[bathymetry] max_memory_gb`` of ``constants.DEFAULTS``.
 
     Returns
     -------
@@ -442,6 +449,11 @@ def simulate_linear_long_wave(
     m = _metric(info)
     dt = _dt_from(d, wet, m, cfl, gravity, depth.name)
     n_steps = max(1, int(math.ceil(duration_s / dt - 1e-9)))
+    n_wet = int(wet.sum())
+    check_work(float(n_wet) * n_steps, max_cell_updates,
+               f"wave solver for {duration_s / 3600:.3g} h: {n_steps:.3g} time steps of {dt:.3g} s over {n_wet} wet "
+               f"cells = {float(n_wet) * n_steps:.3g} cell updates",
+               "simulate a shorter time, coarsen the grid, or force it (max_cell_updates=None, check --force)")
     dt = float(duration_s) / n_steps
     hrow = np.where(wet, d, 0.0).max(axis=1)
     courant = float((np.sqrt(gravity * hrow) * np.sqrt(1.0 / m.dxm**2 + 1.0 / m.dym**2)).max() * dt)
@@ -578,6 +590,7 @@ def _time_loop(eta, qx, qy, faces, wet_u8, bx, byn, bys, thr, max_eta, max_time,
 
     prog_cb, bar = _progress(progress, n_steps)
     every = max(1, n_steps // 100)
+    warn_cache_fallback()
 
     old_threads = numba.get_num_threads()
     use_threads = old_threads if threads is None else int(threads)
@@ -592,18 +605,27 @@ def _time_loop(eta, qx, qy, faces, wet_u8, bx, byn, bys, thr, max_eta, max_time,
     ax, ay = faces.ax, faces.ay
     rx, ry = faces.rx, faces.ry
     t_start = time.perf_counter()
+    done = 0
     try:
-        for n in range(n_steps):
-            t_new = (n + 1) * dt
-            f_q(eta, qx, ax, qy, ay, periodic)
-            outflow += _k.radiate(eta, qx, qy, periodic, *rx, *ry)
-            f_eta(eta, qx, qy, wet_u8, bx, byn, bys, t_new, thr, max_eta, max_time, arrival)
-            if record_every_s is not None and t_new >= next_rec - 1e-9 * dt:
-                snaps.append(eta.astype(np.float32))
-                snap_t.append(t_new)
-                next_rec += record_every_s
-            if prog_cb is not None and ((n + 1) % every == 0 or n + 1 == n_steps):
-                prog_cb(n + 1, n_steps)
+        # one compiled call per step: a signal is recorded and answered after the current step
+        # (io.interrupts), never raised inside the compiled code
+        with interruptible() as stopped:
+            for n in range(n_steps):
+                t_new = (n + 1) * dt
+                f_q(eta, qx, ax, qy, ay, periodic)
+                outflow += _k.radiate(eta, qx, qy, periodic, *rx, *ry)
+                f_eta(eta, qx, qy, wet_u8, bx, byn, bys, t_new, thr, max_eta, max_time, arrival)
+                done = n + 1
+                if record_every_s is not None and t_new >= next_rec - 1e-9 * dt:
+                    snaps.append(eta.astype(np.float32))
+                    snap_t.append(t_new)
+                    next_rec += record_every_s
+                if prog_cb is not None and ((n + 1) % every == 0 or n + 1 == n_steps):
+                    prog_cb(n + 1, n_steps)
+                if stopped():
+                    break
+        if done < n_steps and stop_requested():  # a worker thread: no signal of its own
+            raise KernelStopped("wave solver stopped: the process is being interrupted")
     finally:
         elapsed = time.perf_counter() - t_start
         numba.set_num_threads(old_threads)

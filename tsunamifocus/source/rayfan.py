@@ -9,7 +9,7 @@ import numpy as np
 import xarray as xr
 
 from ..cautions import caution_summary
-from ..constants import GRAVITY, RHO_SEAWATER
+from ..constants import GRAVITY, MIN_RAYS, RHO_SEAWATER
 from ..errors import SourceError
 from ..grid import GridInfo
 from ..ocean.smooth import sea_mask
@@ -259,8 +259,8 @@ def make_ray_fan(
     SourceError
         No sea cells under the source, bad counts or thresholds.
     """
-    if not (isinstance(n_rays, (int, np.integer)) and n_rays >= 8):
-        raise SourceError(f"n_rays must be an integer >= 8, got {n_rays!r}")
+    if not (isinstance(n_rays, (int, np.integer)) and n_rays >= MIN_RAYS):
+        raise SourceError(f"n_rays={n_rays!r}: expected an integer >= {MIN_RAYS} ([rays] count, --rays)")
     if not (0.0 < threshold < 1.0):
         raise SourceError(f"threshold must be in (0, 1), got {threshold}")
     if not (isinstance(blocks, (int, np.integer)) and blocks >= 1):

@@ -550,14 +550,24 @@ class RunResult:
         return self.analyses[0]
 
 
+#: Peak memory model of a run [bytes] (fitted to the peak RSS of ``tsunamifocus run`` on the demo at
+#: 33,200 and 133,200 cells with 20,000 and 500,000 rays; the fourth case came out 12 % below it).
+_RUN_BASE_BYTES = 610_000_000
+_RUN_BYTES_PER_CELL = 700
+_RUN_BYTES_PER_RAY = 1540
+
+
 def _guard_resources(depth: xr.DataArray, scenario: Any, rays: int | None) -> None:
     """Refuse runs whose tracing memory would exceed the scenario's limit; log a time estimate."""
     info = GridInfo.from_dataarray(depth)
     n = int(rays or scenario.rays.count)
     cells = info.nx * info.ny
-    grid_bytes = cells * 8 * 14  # depth, speed, spline coefficients, 3 runs of accumulation
-    ray_bytes = n * 8 * 40  # launch + end state + bootstrap per ray
-    need = grid_bytes + ray_bytes
+    # peak resident memory of a run, measured (benchmarks/bench_memory.py --run, docs/reliability.md):
+    # the process with its libraries, then per grid cell (depth, band oceans, speed splines, the
+    # three runs' accumulation grids, figures) and per ray (fan, end states, tubes, bootstrap)
+    grid_bytes = cells * _RUN_BYTES_PER_CELL
+    ray_bytes = n * _RUN_BYTES_PER_RAY
+    need = _RUN_BASE_BYTES + grid_bytes + ray_bytes
     e = scenario.ensemble
     # local ensemble: up to 4 members alive at once (ensemble.run_ensemble window), each its own working set
     alive = min(e.members, 4) if e.members > 0 and str(e.scheduler or "local") == "local" else 0
