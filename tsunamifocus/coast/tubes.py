@@ -75,9 +75,16 @@ class TubeDeposit:
 
 
 def _samples(segments: pd.DataFrame, spacing_m: float, info: GridInfo) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """Points along every segment (metric 2-D or 3-D), their segment index and length share [m]."""
-    pts, sid, ds = [], [], []
+    """Points along every segment (metric 2-D or 3-D), their segment index and length share [m].
+
+    Segments whose ``reachable`` column is False (water the wave cannot reach: no first arrival
+    from the eikonal solver) get no samples, so no tube deposits energy on them.
+    """
+    pts, sid, ds = [np.zeros((0, 3 if info.geographic else 2))], [np.zeros(0, np.int64)], [np.zeros(0)]
+    reach = segments["reachable"].to_numpy(bool) if "reachable" in segments else np.ones(len(segments), bool)
     for k, (g, length) in enumerate(zip(segments["geometry"], segments["length_m"].to_numpy(float))):
+        if not reach[k]:
+            continue
         n = max(4, int(math.ceil(length / spacing_m)))
         f = (np.arange(n) + 0.5) / n
         xy = np.array([g.interpolate(t, normalized=True).coords[0] for t in f])
