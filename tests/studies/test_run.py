@@ -545,3 +545,43 @@ def test_arrival_times_point_fault_and_rupture_use_the_eikonal_solver():
     # (geometry: the front starts up to the area's half-width closer; common practice, no source)
     t_pt = arrival_times(d, (150.5, 21.5), pts[:2])
     assert (tf_rup < t_pt).all()
+
+
+def test_water_the_front_cannot_reach_gets_no_tube_energy_and_no_rank():
+    # A lake below sea level inside the land is not connected to the sea: no long wave reaches it
+    # (connectivity of the water body; common practice, no source). The eikonal front gives it no
+    # first arrival, its segments are marked unreachable, and every coast ray's energy goes to the
+    # reachable coast (the ray tubes' energy is conserved: each row of the deposit sums to the ray's
+    # weight; tube bookkeeping, Cerveny 2001 ch. 4).
+    from tsunamifocus.coast.coastline import coastline_from_grid
+    from tsunamifocus.coast.segments import segment_coastline
+    from tsunamifocus.coast.tubes import tube_deposit, tube_steps
+    from tsunamifocus.grid import GridInfo, make_grid
+    from tsunamifocus.propagation.rays import trace_rays
+    from tsunamifocus.propagation.traveltime import first_arrival_times
+    from tsunamifocus.studies.run import reachable_segments
+
+    x = np.arange(0.0, 200e3 + 1, 1000.0)
+    y = np.arange(-100e3, 100e3 + 1, 1000.0)
+    X, Y = np.meshgrid(x, y)
+    h = np.where(X < 120e3, 2000.0, -10.0)
+    lake = (X - 165e3) ** 2 + Y**2 < 20e3**2  # 40 km lake, 25 km inland
+    h = np.where(lake, 50.0, h)
+    d = make_grid(h, x, y, "EPSG:32631")
+    tt = first_arrival_times(d, point=(10e3, 0.0), point_crs=None, stop_depth_m=20.0)
+    seg = segment_coastline(coastline_from_grid(d, 20.0), 10e3, d)
+    seg = reachable_segments(seg, tt)
+    in_lake = ((seg["x_mid"] - 165e3) ** 2 + seg["y_mid"] ** 2 < 21e3**2).to_numpy()
+    assert in_lake.sum() >= 8 and (~in_lake).sum() >= 15
+    assert not seg["reachable"][in_lake].any() and seg["reachable"][~in_lake].all()
+    n = 720
+    w = np.full(n, 1e15 / n)
+    r = trace_rays(d, np.full(n, 10e3), np.zeros(n), (np.arange(n) + 0.5) * 360.0 / n, weights=w,
+                   stop_depth_m=20.0, max_time_s=3 * 3600.0)
+    # a wide regularisation (10 wavelengths of a 600 s wave) reaches the lake across the land strip
+    dep = tube_deposit(seg, r.end, d, steps=tube_steps(r.end, GridInfo.from_dataarray(d)), period_s=600.0,
+                       max_distance_m=3000.0, min_width_factor=10.0)
+    assert np.all(dep.energy_J[in_lake] == 0.0)
+    rows = np.asarray(dep.matrix.sum(axis=1)).ravel()
+    np.testing.assert_allclose(rows[dep.assigned], w[dep.assigned], rtol=1e-9)
+    assert dep.energy_J[~in_lake].sum() == pytest.approx(w[dep.assigned].sum(), rel=1e-9)

@@ -141,8 +141,10 @@ def test_real_grid_amplitude_ranking_meets_target(etopo_path):
         a = analyse_source(depth, sc, sc.sources[0], segments=seg, keep_paths=0)
     assert len(a.focusing.segments) > 150  # measured: 183 segments in the coast of interest
     chk = compare_with_waves(depth, a.eta, a.focusing.segments, stop_depth_m=20.0, k=K)
-    assert chk.agreement["n"] >= 150  # measured: 178 ranked segments with a wave value
-    # Project target: Spearman >= 0.8. Measured on 2026-12-02: 0.879 (Kendall 0.71, top-10 common 5/10;
-    # seed 1: 0.867), so the target itself is asserted (margin 0.079 below the measured value).
+    # measured: 143 ranked segments with a wave value; the 30 segments of water the eikonal front
+    # cannot reach (inland seas and basins below sea level behind the coast) are not ranked
+    assert chk.agreement["n"] >= 135
+    # Project target: Spearman >= 0.8. Measured on 2026-12-02: 0.915 (top-10 common 5/10; seed 1 in
+    # benchmarks/bench_focusing.py), so the target itself is asserted (margin 0.115 below the measured value).
     print(chk.summary().splitlines()[1], f"n={chk.agreement['n']}")
     assert chk.agreement["spearman"] >= 0.8, chk.agreement

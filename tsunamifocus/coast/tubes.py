@@ -8,7 +8,9 @@ width where it ends, ``W = |q| dtheta`` with ``q`` the paraxial spreading per ra
 angle (point-source initial conditions ``q = 0, p = 1 / c``; Cerveny 2001, *Seismic Ray
 Theory*, ch. 4). Where the tube meets the coast at incidence ``theta`` it covers a length
 ``W / cos(theta)`` of coastline, so its energy is spread over that footprint, centred on the
-ray's end point, as a Gaussian of the same peak (``std = footprint / sqrt(2 pi)``). Summing the
+ray's end point, as a Gaussian of the same peak (``std = footprint / sqrt(2 pi)``) in arc length
+along the coastline line the ray reached (a footprint never jumps across land to an island, the
+far side of a strait or a lake; on an island it wraps around the ring). Summing the
 footprints over all rays gives the energy crossing the stop isobath per metre of coast without
 counting hits: the result changes smoothly with the fan and needs far fewer rays.
 
@@ -21,7 +23,6 @@ over which diffraction fills a shadow) and is flagged ``shadow``.
 
 from __future__ import annotations
 
-import itertools
 import math
 from dataclasses import dataclass
 
@@ -32,6 +33,7 @@ from scipy import sparse
 import shapely
 from pyproj import Geod
 from scipy.spatial import cKDTree
+from scipy.special import ndtr
 
 from ..grid import GridInfo
 from ..ocean.smooth import _to_xyz as to_xyz
@@ -75,9 +77,16 @@ class TubeDeposit:
 
 
 def _samples(segments: pd.DataFrame, spacing_m: float, info: GridInfo) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """Points along every segment (metric 2-D or 3-D), their segment index and length share [m]."""
-    pts, sid, ds = [], [], []
+    """Points along every segment (metric 2-D or 3-D), their segment index and length share [m].
+
+    Segments whose ``reachable`` column is False (water the wave cannot reach: no first arrival
+    from the eikonal solver) get no samples, so no tube deposits energy on them.
+    """
+    pts, sid, ds = [np.zeros((0, 3 if info.geographic else 2))], [np.zeros(0, np.int64)], [np.zeros(0)]
+    reach = segments["reachable"].to_numpy(bool) if "reachable" in segments else np.ones(len(segments), bool)
     for k, (g, length) in enumerate(zip(segments["geometry"], segments["length_m"].to_numpy(float))):
+        if not reach[k]:
+            continue
         n = max(4, int(math.ceil(length / spacing_m)))
         f = (np.arange(n) + 0.5) / n
         xy = np.array([g.interpolate(t, normalized=True).coords[0] for t in f])
@@ -87,91 +96,124 @@ def _samples(segments: pd.DataFrame, spacing_m: float, info: GridInfo) -> tuple[
     return np.concatenate(pts), np.concatenate(sid), np.concatenate(ds)
 
 
-def _pairs(tree: cKDTree, xyz: np.ndarray, radius: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """All (ray, sample) pairs closer than each ray's ``radius``, as two flat index arrays."""
-    if xyz.shape[0] == 0:
-        return np.zeros(0, np.int64), np.zeros(0, np.int64)
-    lists = tree.query_ball_point(xyz, radius)
-    lens = np.fromiter((len(x) for x in lists), dtype=np.int64, count=len(lists))
-    flat = np.fromiter(itertools.chain.from_iterable(lists), dtype=np.int64, count=int(lens.sum()))
-    return np.repeat(np.arange(len(lists), dtype=np.int64), lens), flat
-
-
 @dataclass
-class _Samples:
-    """Points along the segments, ``spacing`` apart, and clusters of them for wide footprints.
+class _Arcs:
+    """The segments as intervals ``[a, b]`` of arc length along their coastline lines [m].
 
-    Level ``l`` groups the samples into cubes of side ``spacing * 4**l`` (3-D on the sphere):
-    each cluster is its length-weighted centroid, its length and its make-up by segment (the
-    sparse matrix ``comp``, cluster x segment, in metres). A footprint of std ``sigma`` is
-    summed on the level whose cubes are at most ``sigma / 2`` wide, so the work per ray stays
-    bounded however wide the tube has spread.
+    Segments come in line order, then along each line (:func:`segment_coastline`): a segment
+    continues the previous one's line when it starts where that one ends. A line whose last
+    segment ends where its first starts is a ring (an island), where arc length wraps.
     """
 
-    spacing: float
-    levels: list[tuple[cKDTree, np.ndarray, np.ndarray, sparse.csr_matrix]]
-    sid: np.ndarray
+    line: np.ndarray
+    a: np.ndarray
+    b: np.ndarray
+    start: np.ndarray
+    stop: np.ndarray
+    perimeter: np.ndarray
+    ring: np.ndarray
 
     @classmethod
-    def build(cls, segments: pd.DataFrame, spacing: float, info: GridInfo) -> _Samples:
-        pts, sid, ds = _samples(segments, spacing, info)
-        nseg = len(segments)
-        fine = sparse.csr_matrix((ds, (np.arange(sid.size), sid)), shape=(sid.size, nseg))
-        levels = [(cKDTree(pts), pts, ds, fine)]
-        side = spacing
-        span = float(np.max(np.ptp(pts, axis=0))) if pts.shape[0] else 0.0
-        while levels[-1][1].shape[0] > 1:
-            side *= 4.0
-            if side > span:  # last level: one cluster
-                cl = np.zeros(sid.size, dtype=np.int64)
-            else:
-                key = np.floor((pts - pts.min(axis=0)) / side).astype(np.int64)
-                m = int(key.max()) + 1
-                flat = key[:, 0] * m * m + key[:, 1] * m + (key[:, 2] if key.shape[1] == 3 else 0)
-                _, cl = np.unique(flat, return_inverse=True)
-                cl = np.asarray(cl).ravel()
-            n = int(cl.max()) + 1
-            w = np.bincount(cl, weights=ds, minlength=n)
-            cen = np.column_stack([np.bincount(cl, weights=ds * pts[:, j], minlength=n) for j in range(pts.shape[1])])
-            cen /= w[:, None]
-            comp = sparse.csr_matrix((ds, (cl, sid)), shape=(n, nseg))
-            levels.append((cKDTree(cen), cen, w, comp))
-        return cls(float(spacing), levels, sid)
-
-    def level_of(self, sigma: np.ndarray) -> np.ndarray:
-        """Level index for footprints of std ``sigma`` (cubes at most ``sigma / 2`` wide)."""
-        with np.errstate(divide="ignore", invalid="ignore"):
-            lv = np.floor(np.log(np.maximum(sigma, 1e-9) / (2.0 * self.spacing)) / math.log(4.0))
-        return np.clip(np.nan_to_num(lv, nan=0.0), 0, len(self.levels) - 1).astype(np.int64)
+    def build(cls, segments: pd.DataFrame) -> _Arcs:
+        geoms = list(segments["geometry"])
+        length = segments["length_m"].to_numpy(float)
+        n = len(geoms)
+        first = np.array([g.coords[0][:2] for g in geoms], float).reshape(n, 2)
+        last = np.array([g.coords[-1][:2] for g in geoms], float).reshape(n, 2)
+        cont = np.all(np.abs(first[1:] - last[:-1]) <= 1e-9 * (1.0 + np.abs(first[1:])), axis=1)
+        line = np.concatenate([[0], np.cumsum(~cont)]).astype(np.int64)
+        start = np.flatnonzero(np.concatenate([[True], ~cont]))
+        stop = np.concatenate([start[1:], [n]])
+        cs = np.cumsum(length)
+        base = cs[start] - length[start]
+        a = cs - length - base[line]
+        b = a + length
+        perimeter = np.add.reduceat(length, start) if n else np.zeros(0)
+        ring = np.all(np.abs(first[start] - last[stop - 1]) <= 1e-9 * (1.0 + np.abs(first[start])), axis=1) & \
+            (stop - start >= 3)
+        return cls(line, a, b, start, stop, perimeter, ring)
 
 
-def _gauss_rows(smp: _Samples, xyz: np.ndarray, off: np.ndarray, sigma: np.ndarray,
-                nseg: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """Per ray, the normalised Gaussian weights of the segments within 4 sigma (COO triplets).
+def _along(pts: np.ndarray, sid: np.ndarray, line: np.ndarray, xyz: np.ndarray, i0: np.ndarray,
+           ds: np.ndarray) -> np.ndarray:
+    """Signed offset [m] along the coast of each ray end from its nearest sample (within a sample)."""
+    if i0.size == 0:
+        return np.zeros(0)
+    n = pts.shape[0]
+    prev = np.maximum(i0 - 1, 0)
+    nxt = np.minimum(i0 + 1, n - 1)
+    same_p = line[sid[prev]] == line[sid[i0]]
+    same_n = line[sid[nxt]] == line[sid[i0]]
+    p0 = np.where(same_p[:, None], pts[prev], pts[i0])
+    p1 = np.where(same_n[:, None], pts[nxt], pts[i0])
+    t = p1 - p0
+    norm = np.linalg.norm(t, axis=1)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        off = np.einsum("ij,ij->i", xyz - pts[i0], t) / norm
+    return np.clip(np.nan_to_num(off), -ds[i0], ds[i0])
 
-    Distances along the coast are taken as ``sqrt(r^2 - off^2)``, ``off`` being the ray end's
-    distance to the nearest coast sample (a coastline inshore of the stop isobath); wide
-    footprints are summed on clusters of samples (:class:`_Samples`).
+
+def _ranges(lo: np.ndarray, hi: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Flat (owner, index) pairs of the integer ranges ``[lo_i, hi_i)``."""
+    cnt = np.maximum(hi - lo, 0)
+    owner = np.repeat(np.arange(lo.size, dtype=np.int64), cnt)
+    first = np.repeat(lo, cnt)
+    offs = np.arange(int(cnt.sum()), dtype=np.int64) - np.repeat(np.cumsum(cnt) - cnt, cnt)
+    return owner, first + offs
+
+
+def _arc_rows(arcs: _Arcs, line_r: np.ndarray, s0: np.ndarray, width: np.ndarray, reach: np.ndarray,
+              nseg: int, box: bool = False) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Per ray, the share of its footprint on each segment of its own coastline line (COO triplets).
+
+    The footprint is a Gaussian of std ``width`` (``box``: a box of half-width ``width``) in arc
+    length, centred at the ray's arc position ``s0`` on the line it reached; on a ring it wraps. A
+    footprint never crosses land to another line (an island, the far side of a strait, a lake).
+    Shares on segments outside ``reach`` are dropped and each ray's shares renormalised to 1
+    (``box``: unnormalised coverage flags).
     """
-    nray = xyz.shape[0]
-    acc = sparse.csr_matrix((nray, nseg))
-    lv = smp.level_of(sigma)
-    for level in np.unique(lv):
-        rsel = np.flatnonzero(lv == level)
-        tree, pts, w, comp = smp.levels[int(level)]
-        ray, k = _pairs(tree, xyz[rsel], np.sqrt(off[rsel] ** 2 + (4.0 * sigma[rsel]) ** 2))
-        if ray.size == 0:
-            continue
-        ray = rsel[ray]
-        r2 = np.maximum(np.sum((pts[k] - xyz[ray]) ** 2, axis=1) - off[ray] ** 2, 0.0)
-        g = np.exp(-0.5 * r2 / sigma[ray] ** 2)  # comp rows carry the metres of each segment
-        gm = sparse.csr_matrix((g, (ray, k)), shape=(nray, pts.shape[0]))
-        acc = acc + gm @ comp
-    acc = acc.tocoo()
-    tot = np.bincount(acc.row, weights=acc.data, minlength=nray)
-    keep = (acc.data > 0) & (tot[acc.row] > 0)
-    r, c = acc.row[keep].astype(np.int64), acc.col[keep].astype(np.int64)
-    return r, c, acc.data[keep] / tot[r]
+    rows, cols, vals = [], [], []
+    half = width if box else 4.0 * width
+    for ln in np.unique(line_r):
+        rs = np.flatnonzero(line_r == ln)
+        i0, i1 = int(arcs.start[ln]), int(arcs.stop[ln])
+        a, b, per = arcs.a[i0:i1], arcs.b[i0:i1], float(arcs.perimeter[ln])
+        ring = bool(arcs.ring[ln])
+        whole = ring & (half[rs] >= 0.5 * per)
+        if whole.any():  # the footprint covers the whole ring: uniform along it
+            rw = rs[whole]
+            o, k = _ranges(np.zeros(rw.size, np.int64), np.full(rw.size, i1 - i0, np.int64))
+            rows.append(rw[o])
+            cols.append(i0 + k)
+            vals.append(np.ones(o.size) if box else (b - a)[k] / per)
+            rs = rs[~whole]
+        for shift in ((-per, 0.0, per) if ring else (0.0,)):
+            c = s0[rs] + shift
+            lo = np.searchsorted(b, c - half[rs], side="right")
+            hi = np.searchsorted(a, c + half[rs], side="left")
+            o, k = _ranges(lo, hi)
+            if o.size == 0:
+                continue
+            rows.append(rs[o])
+            cols.append(i0 + k)
+            if box:
+                vals.append(np.ones(o.size))
+            else:
+                sg = width[rs][o]
+                vals.append(ndtr((b[k] - c[o]) / sg) - ndtr((a[k] - c[o]) / sg))
+    if not rows:
+        return np.zeros(0, np.int64), np.zeros(0, np.int64), np.zeros(0)
+    r, c, v = np.concatenate(rows), np.concatenate(cols), np.concatenate(vals)
+    keep = reach[c] & (v > 0)
+    r, c, v = r[keep], c[keep], v[keep]
+    if box:
+        return r, c, v
+    m = sparse.coo_matrix((v, (r, c)), shape=(int(line_r.size), nseg)).tocsr()
+    m.sum_duplicates()
+    m = m.tocoo()
+    tot = np.bincount(m.row, weights=m.data, minlength=int(line_r.size))
+    ok = tot[m.row] > 0
+    return m.row[ok].astype(np.int64), m.col[ok].astype(np.int64), m.data[ok] / tot[m.row[ok]]
 
 
 def nearest_segment(segments: pd.DataFrame, info: GridInfo, x: np.ndarray, y: np.ndarray,
@@ -255,14 +297,19 @@ def tube_deposit(
     nray = int(end.sizes["ray"])
     hit = np.flatnonzero(np.asarray(end["reason"].values) == _REASON_COAST)
     spacing = 0.5 * min(info.spacing_m())
-    smp = _Samples.build(segments, spacing, info)
-    tree, sid = smp.levels[0][0], smp.sid
+    pts, sid, ds = _samples(segments, spacing, info)
+    reach = segments["reachable"].to_numpy(bool) if "reachable" in segments else np.ones(nseg, bool)
+    arcs = _Arcs.build(segments)
+    # arc position of every sample along its line
+    first = np.searchsorted(sid, sid, side="left")
+    s_smp = arcs.a[sid] + (np.arange(sid.size) - first + 0.5) * ds
+    tree = cKDTree(pts) if sid.size else None
     xyz = to_xyz(info, np.asarray(end["x"].values, float)[hit], np.asarray(end["y"].values, float)[hit])
-    dist0, i0 = tree.query(xyz) if hit.size else (np.zeros(0), np.zeros(0, np.int64))
+    _, i0 = tree.query(xyz) if (hit.size and tree is not None) else (np.zeros(0), np.zeros(0, np.int64))
     seg_idx, _ = nearest_segment(segments, info, np.asarray(end["x"].values, float)[hit],
                                  np.asarray(end["y"].values, float)[hit], max_distance_m)
-    near = seg_idx >= 0
-    hit, xyz, i0, off = hit[near], xyz[near], i0[near], dist0[near]
+    near = (seg_idx >= 0) if tree is not None else np.zeros(hit.size, bool)
+    hit, i0, xyz = hit[near], i0[near], xyz[near]
     w = np.asarray(end["weight"].values, float)[hit]
     q = np.abs(np.asarray(end["q"].values, float)[hit])
     az = np.asarray(end["azimuth_deg"].values, float)[hit]
@@ -273,25 +320,25 @@ def tube_deposit(
     foot = q * np.asarray(steps, float)[hit] / cos_inc
     lam = c_end * period_s
     sigma = np.maximum(foot, min_width_factor * lam) / math.sqrt(2.0 * math.pi)
-    r, c, v = _gauss_rows(smp, xyz, off, sigma, nseg)
+    line_r = arcs.line[sid[i0]]
+    s0 = s_smp[i0] + _along(pts, sid, arcs.line, xyz, i0, ds)
+    per = arcs.perimeter[line_r]
+    s0 = np.where(arcs.ring[line_r], np.mod(s0, np.maximum(per, 1e-9)), np.clip(s0, 0.0, per))
+    r, c, v = _arc_rows(arcs, line_r, s0, sigma, reach, nseg)
     mat = sparse.csr_matrix((w[r] * v, (hit[r], c)), shape=(nray, nseg))
     energy = np.asarray(mat.sum(axis=0)).ravel()
     n_rays = np.bincount(c, minlength=nseg)
     # coverage by the unregularised box footprints
     covered = np.zeros(nseg, dtype=bool)
     half = np.maximum(0.5 * foot, 0.5 * spacing)
-    lv = smp.level_of(half / 2.0)
-    for level in np.unique(lv):
-        sel = np.flatnonzero(lv == level)
-        tree_l, _, _, comp = smp.levels[int(level)]
-        _, k = _pairs(tree_l, xyz[sel], np.sqrt(off[sel] ** 2 + half[sel] ** 2) * (1 + 1e-9))
-        covered[np.unique(comp[np.unique(k)].indices)] = True
-    shadow = ~covered
+    _, cb, _ = _arc_rows(arcs, line_r, s0, half, reach, nseg, box=True)
+    covered[cb] = True
+    shadow = ~covered & reach
     shadow_e = np.zeros(nseg)
     if shadow.any() and hit.size:
         path = np.asarray(end["path_length_m"].values, float)[hit]
         sig_f = np.maximum(0.5 * np.sqrt(lam * np.maximum(path, 0.0)), sigma)
-        r2_, c2_, v2_ = _gauss_rows(smp, xyz, off, sig_f, nseg)
+        r2_, c2_, v2_ = _arc_rows(arcs, line_r, s0, sig_f, reach, nseg)
         est = np.bincount(c2_, weights=w[r2_] * v2_, minlength=nseg)
         shadow_e = np.where(shadow, est, 0.0)
     assigned = np.zeros(nray, dtype=bool)

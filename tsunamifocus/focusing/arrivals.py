@@ -367,6 +367,12 @@ def segment_arrivals(
     rel = ~real["shadow"] & (real["n_tubes"] >= int(min_rays))
     if ref is not None:
         rel &= ~ref["shadow"] & (ref["n_tubes"] >= int(min_rays))
+    if "reachable" in out:  # water the wave cannot reach is neither a shadow nor ranked
+        reach = out["reachable"].to_numpy(bool)
+        rel &= reach
+        for c in ("shadow", "ref_shadow"):
+            if c in out:
+                out[c] = out[c].to_numpy(bool) & reach
     out["reliable"] = rel
     out = _add_ranks(out, ref is not None)
     _arrival_attrs(out, bl, real_d, ref_d, idx, end, max_distance_m, min_rays, n_boot, seed, period_s, coast_area)

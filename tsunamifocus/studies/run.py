@@ -337,6 +337,8 @@ def analyse_source(
         kw["threads"] = int(threads)
     if scenario.rays.step_s:
         kw["step_s"] = scenario.rays.step_s
+    tt = source_travel_times(src, eta, depth, scenario.rays.stop_depth_m)
+    segments = reachable_segments(segments, tt)
     foc = analyse_focusing(
         depth, fan, period_s=period, reference_smooth_km=scenario.focusing.reference_smooth_km, bands=bands,
         stop_depth_m=scenario.rays.stop_depth_m, segments=segments, trace_kwargs=kw,
@@ -344,7 +346,6 @@ def analyse_source(
         max_distance_m=getattr(scenario.coast, "max_distance_m", None),
         coast_area=_area_mask(segments.attrs.get("coast_area"), depth),
     )
-    tt = source_travel_times(src, eta, depth, scenario.rays.stop_depth_m)
     use_travel_times(foc, tt)
     restrict_to_region(foc, scenario.output.top_k)
     foc.segments["edge_distance_km"] = _edge_distance_km(foc.segments, depth)
@@ -384,6 +385,25 @@ def source_travel_times(source: Any, eta: xr.DataArray | None, depth: xr.DataArr
     if eta is None:
         eta = uplift_on_grid(source, depth)
     return first_arrival_times(depth, uplift=eta, stop_depth_m=stop_depth_m)
+
+
+def reachable_segments(segments: pd.DataFrame | None, tt: TravelTimes) -> pd.DataFrame | None:
+    """The segments with a ``reachable`` column: True where the eikonal front reaches the segment.
+
+    Water the front cannot reach from the source (lakes and depressions below sea level, bays cut
+    off at the grid's resolution) gets no tube energy and is not ranked
+    (:func:`tsunamifocus.coast.tubes.tube_deposit`). When no segment is reached the column is
+    left out (the focusing stage then says plainly that no ray reached the coast).
+    """
+    if segments is None or len(segments) == 0:
+        return segments
+    reach = np.isfinite(segment_first_arrivals(tt.travel_time_s, segments))
+    if not reach.any():
+        return segments
+    out = segments.copy()
+    out.attrs = dict(segments.attrs)
+    out["reachable"] = reach
+    return out
 
 
 def use_travel_times(foc: Any, tt: TravelTimes) -> None:
