@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import logging
 import math
 import os
 import pathlib
@@ -37,7 +38,10 @@ from .comparison import compare_to_folder
 from .context import _report_context
 from .summaries import format_run_summary
 
+
 __all__ = ['run_scenario']
+
+log = logging.getLogger(__name__)
 #: Raster layers written as Cloud-Optimized GeoTIFF: name -> (description, units).
 COG_LAYERS = {
     "travel_time_min": ("first-arrival travel time (eikonal, fast marching)", "min"),
@@ -238,9 +242,12 @@ def write_run_folder(
         files.update({f"segments_{k}": pathlib.Path(v) for k, v in seg_files.items()})
     files["points"] = pathlib.Path(write_points_csv(points, folder / RUN_FILES["points"]))
     iso = run_isochrones(a, scenario)
-    iso_files = write_segments(iso, folder / RUN_FILES["isochrones"], info.crs, layer="isochrones",
-                               formats=("gpkg", "geojson"), style=None)
-    files.update({f"isochrones_{k}": pathlib.Path(v) for k, v in iso_files.items()})
+    if len(iso):
+        iso_files = write_segments(iso, folder / RUN_FILES["isochrones"], info.crs, layer="isochrones",
+                                   formats=("gpkg", "geojson"), style=None)
+        files.update({f"isochrones_{k}": pathlib.Path(v) for k, v in iso_files.items()})
+    else:  # every first arrival comes before the first isochrone level
+        log.info("no isochrone file: every first arrival is earlier than %g min", scenario.output.isochrone_step_min)
     if a.check is not None:
         files["wave_check"] = write_check_table(a.check.table, folder / "wave_check.csv")
     (folder / RUN_FILES["scenario"]).write_text(_scenario_toml(scenario), encoding="utf-8")
