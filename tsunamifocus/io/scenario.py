@@ -43,6 +43,7 @@ from ..constants import DEFAULTS, MAX_RAYS, MIN_RAYS, STOP_DEPTH_M
 from ..errors import MESSAGE_VALUE_CHARS, DataFileError, InputError, ScenarioError, cut
 from .runfolder import safe_name
 from .subfaults import read_subfault_table
+from .textfile import read_utf8_text
 
 __all__ = ['Scenario', 'BathymetryConfig', 'FaultSegmentConfig', 'SourceConfig', 'RaysConfig', 'FocusingConfig', 'CoastConfig', 'PointOfInterest', 'OutputConfig', 'EnsembleConfig', 'parse_scenario', 'scenario_from_dict', 'check_ray_count', 'scenario_schema', 'scenario_table_markdown']
 
@@ -1264,22 +1265,8 @@ def parse_scenario(path: str | os.PathLike) -> Scenario:
         keys (with a suggestion), wrong types or out-of-range values (with the unit).
     """
     p = Path(path)
-    try:
-        raw = p.read_bytes()
-    except FileNotFoundError:
-        raise ScenarioError(f"{p}: scenario file not found") from None
-    except IsADirectoryError:
-        raise ScenarioError(f"{p}: is a folder, expected a scenario .toml file") from None
-    except OSError as exc:
-        raise ScenarioError(f"{p}: cannot read scenario file ({exc.strerror or exc})") from None
-    if raw.startswith(b"\xef\xbb\xbf"):
-        raw = raw[3:]
-    try:
-        text = raw.decode("utf-8")
-    except UnicodeDecodeError as exc:
-        line = raw[: exc.start].count(b"\n") + 1
-        raise ScenarioError(f"{p}: line {line}: not UTF-8 text (byte 0x{raw[exc.start]:02x}); "
-                            "save the scenario file as UTF-8") from None
+    text = read_utf8_text(p, "scenario file", ScenarioError, "save the scenario file as UTF-8",
+                          "a scenario .toml file")
     try:
         data = tomllib.loads(text)
     except RecursionError:

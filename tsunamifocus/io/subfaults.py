@@ -35,6 +35,7 @@ import numpy as np
 import pandas as pd
 
 from ..errors import DataFileError, InputError
+from .textfile import read_utf8_text
 
 __all__ = ["SUBFAULT_COLUMNS", "DEPTH_AT", "read_subfault_table", "subfault_table_from_text"]
 
@@ -94,22 +95,8 @@ def read_subfault_table(path: str | os.PathLike, *, depth_at: str) -> pd.DataFra
         (one line: ``file:line: column 'name' = 'value': expected ...``).
     """
     p = pathlib.Path(path)
-    try:
-        raw = p.read_bytes()
-    except FileNotFoundError:
-        raise DataFileError(f"{p}: subfault table not found") from None
-    except IsADirectoryError:
-        raise DataFileError(f"{p}: is a folder, expected a subfault table (.csv)") from None
-    except OSError as exc:
-        raise DataFileError(f"{p}: cannot read subfault table ({exc.strerror or exc})") from None
-    if raw.startswith(b"\xef\xbb\xbf"):
-        raw = raw[3:]
-    try:
-        text = raw.decode("utf-8")
-    except UnicodeDecodeError as exc:
-        line = raw[: exc.start].count(b"\n") + 1
-        raise DataFileError(f"{p}:{line}: not UTF-8 text (byte 0x{raw[exc.start]:02x}); save the table "
-                            "as UTF-8 CSV") from None
+    text = read_utf8_text(p, "subfault table", DataFileError, "save the table as UTF-8 CSV",
+                          "a subfault table (.csv)", where=lambda line: f":{line}")
     return subfault_table_from_text(text, depth_at=depth_at, origin=str(p))
 
 
