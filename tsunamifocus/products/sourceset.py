@@ -140,7 +140,8 @@ def compute_source_set(sset: SourceSet, *, store: MemberStore, scheduler: Any = 
         try:
             ens = run_ensemble(set_member, params, scheduler=scheduler, retries=1, progress=progress,
                                shared={"depth": prep.depth, "scenario": prep.scenario, "segments": prep.segments},
-                               top_k=sset.top_k, reduce=SET_GRIDS, on_result=on_result)
+                               top_k=sset.top_k, reduce=SET_GRIDS, on_result=on_result,
+                               progress_label="set members")
             failures = list(ens.failures)
             mean_s = float(ens.timings.get("member_s_mean", float("nan")))
         except EnsembleError as exc:  # every member to compute failed; the reused ones still count

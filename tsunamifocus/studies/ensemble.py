@@ -734,6 +734,7 @@ def run_ensemble(
     max_buffered: int | None = None,
     connect_timeout_s: float = 30.0,
     on_result: Callable[[int, MemberResult, dict[str, Any]], Any] | None = None,
+    progress_label: str = "ensemble members",
 ) -> EnsembleResult:
     """Run every member and combine the results (see the module docstring).
 
@@ -775,6 +776,8 @@ def run_ensemble(
     on_result : callable, optional
         ``on_result(index, result, params)``, called in the reducing process for every successful
         member, in member-index order, as it is folded (e.g. to keep each member's result).
+    progress_label : str
+        Name of the progress bar (``progress=True``).
 
     Returns
     -------
@@ -793,7 +796,7 @@ def run_ensemble(
     workers = int(workers) if workers else (os.cpu_count() or 1)
     kind, client, own = _resolve_scheduler(scheduler, workers, connect_timeout_s)
     acc = _Accumulator(len(members), reduce_list, on_result)
-    prog = MemberProgress(len(members), progress)
+    prog = MemberProgress(len(members), progress, progress_label)
     t0 = time.perf_counter()
     try:
         sched_info = _execute(kind, client, member_fn, members, retries, shared, acc, prog, workers, max_buffered)

@@ -39,7 +39,7 @@ class MemberProgress:
     """Ensemble members done and failed: a tqdm bar on stderr (``progress=True``) or a callback
     ``progress(done, total, elapsed_s, eta_s)``."""
 
-    def __init__(self, total: int, progress: bool | Callable[..., Any] | None) -> None:
+    def __init__(self, total: int, progress: bool | Callable[..., Any] | None, label: str) -> None:
         self.total = total
         self.done = 0
         self.failed = 0
@@ -47,7 +47,7 @@ class MemberProgress:
         self.cb = progress if callable(progress) else None
         self.bar = None
         if progress is True:  # a bar on a terminal, a few plain lines in a log
-            self.bar = progress_bar(total, "ensemble members", unit="member", file=sys.stderr, dynamic_ncols=True)
+            self.bar = progress_bar(total, label, unit="member", file=sys.stderr, dynamic_ncols=True)
 
     def update(self, failed: bool = False) -> None:
         self.done += 1
