@@ -160,3 +160,27 @@ def test_command_line(setdir, capsys):
     code = main(["sourceset", str(setdir / "set.toml"), "--out", str(setdir / "cli")])
     assert code == 2  # the filled output folder is refused
     assert "error:" in capsys.readouterr().err
+
+
+def test_one_reference_ocean_for_the_whole_set(setdir):
+    # The set measures every member's lensing against one reference ocean, built once: the base
+    # scenario's own source (a 20 km point hump on the demo ocean) fixes its scale, the deep-water
+    # wavelength c T with c = sqrt(g h) (long-wave speed, Lamb 1932 art. 170) at the mean depth of
+    # the water deeper than 1000 m and T that source's dominant period.
+    from tsunamifocus.focusing.analysis import reference_ocean
+    from tsunamifocus.studies.sourceset import prepare_set, set_member
+
+    prep = prepare_set(parse_source_set(setdir / "set.toml"))
+    ref = prep.reference
+    assert ref is not None and prep.scenario.focusing.reference_smooth_km == ref.smooth_km
+    h = np.asarray(prep.depth.values, float)
+    c = np.sqrt(9.81 * h[np.isfinite(h) & (h > 1000.0)].mean())
+    assert 0.5 * c * 60 / 1000 < ref.smooth_km < 5 * c * 3600 / 1000  # a wavelength of a 1-60 min wave
+    member = next(m for m in prep.members if m.source.name == "hump south")
+    params = {"index": 0, "name": member.source.name, "weight": 1.0, "source": member.source}
+    shared = set_member(params, depth=prep.depth, scenario=prep.scenario, segments=prep.segments, reference=ref)
+    # the prepared reference gives exactly what the member builds for itself at the same scale
+    own = set_member(params, depth=prep.depth, scenario=prep.scenario, segments=prep.segments)
+    pd.testing.assert_frame_equal(shared.segments, own.segments)
+    again = reference_ocean(prep.depth, ref.smooth_km)
+    np.testing.assert_array_equal(again.depth.values, ref.depth.values)

@@ -60,8 +60,8 @@ from .energy import distance_to_launch_m, fresnel_sigma_m, ratio_map, regularise
 from .randommedium import fluctuation_statistics
 from .ranking import rank_segments
 
-__all__ = ['REASON_COAST', 'SMOOTHED_CELLS_PER_STEP', 'FocusingResult', 'analyse_focusing',
-           'default_reference_smooth_km']
+__all__ = ['REASON_COAST', 'SMOOTHED_CELLS_PER_STEP', 'FocusingResult', 'ReferenceOcean', 'analyse_focusing',
+           'default_reference_smooth_km', 'reference_ocean']
 
 #: Default RK4 step of the focusing traces, in cell crossings at the fastest speed. The media are
 #: wavelength-smoothed: in deep water, where the speed is highest, the smoothing std (a quarter
@@ -164,6 +164,32 @@ def default_reference_smooth_km(depth: xr.DataArray, period_s: float, *, gravity
     return math.sqrt(gravity * h_deep) * period_s / 1000.0
 
 
+@dataclass(frozen=True)
+class ReferenceOcean:
+    """The lensing reference, prepared once and shared by every source traced on one grid.
+
+    Attributes
+    ----------
+    smooth_km : float
+        Low-pass scale [km] (Gaussian std).
+    lowpass : xarray.DataArray
+        The sea floor low-passed at ``smooth_km`` (also used for the fluctuation statistics) [m].
+    depth : xarray.DataArray
+        The reference: offshore low-pass with the shelf and coast kept
+        (:func:`tsunamifocus.ocean.reference.reference_depth`) [m].
+    """
+
+    smooth_km: float
+    lowpass: xr.DataArray
+    depth: xr.DataArray
+
+
+def reference_ocean(depth: xr.DataArray, smooth_km: float) -> ReferenceOcean:
+    """Build the lensing reference of ``depth`` at ``smooth_km`` (see :class:`ReferenceOcean`)."""
+    lowpass = smooth_bathymetry(depth, smooth_km)
+    return ReferenceOcean(float(smooth_km), lowpass, reference_depth(depth, smooth_km, lowpass=lowpass))
+
+
 def _trace_band(depth: xr.DataArray, ref: xr.DataArray, fan_arrays: tuple, period_s: float, weight: float,
                 fraction: float, stop_depth_m: float, kw: dict) -> tuple[BandTrace, xr.DataArray]:
     """Both oceans of one band, each as a wave of that period sees it, traced with the same fan."""
@@ -199,6 +225,7 @@ def analyse_focusing(
     seed: int = 0,
     top_k: int = 20,
     coast_area: Any = None,
+    reference: ReferenceOcean | None = None,
 ) -> FocusingResult:
     """Trace a source, band by band, over the real and reference oceans as the wave sees them.
 
@@ -240,6 +267,9 @@ def analyse_focusing(
         Length of the ranking.
     coast_area : callable, optional
         See :func:`segment_arrivals`.
+    reference : ReferenceOcean, optional
+        A reference prepared beforehand (:func:`reference_ocean`, e.g. once for a set of sources);
+        its scale is the one used (``reference_smooth_km`` must then be None or equal to it).
 
     Returns
     -------
@@ -252,12 +282,18 @@ def analyse_focusing(
     if kw.get("step_s") is None:
         kw.pop("step_s", None)
         kw.setdefault("cells_per_step", SMOOTHED_CELLS_PER_STEP)
-    if reference_smooth_km is None:
-        reference_smooth_km = default_reference_smooth_km(depth, period_s)
+    if reference is not None:
+        if reference_smooth_km is not None and not math.isclose(reference_smooth_km, reference.smooth_km):
+            raise InputError(f"reference_smooth_km = {reference_smooth_km:g} km differs from the prepared "
+                             f"reference ({reference.smooth_km:g} km): give one of them")
+        if reference.depth.shape != depth.shape:
+            raise InputError(f"the prepared reference ocean has shape {reference.depth.shape}, the grid {depth.shape}")
+    else:
+        if reference_smooth_km is None:
+            reference_smooth_km = default_reference_smooth_km(depth, period_s)
+        reference = reference_ocean(depth, reference_smooth_km)  # one low-pass: reference and statistics
+    reference_smooth_km, lowpass, ref = reference.smooth_km, reference.lowpass, reference.depth
     band_list = [(float(t), float(wb)) for t, wb in (bands or [(period_s, 1.0)])]
-    # one low-pass serves the reference ocean and the fluctuation statistics
-    lowpass = smooth_bathymetry(depth, reference_smooth_km)
-    ref = reference_depth(depth, reference_smooth_km, lowpass=lowpass)
     traced = [_trace_band(depth, ref, (x0, y0, az, w), t, wb, wavelength_fraction, stop_depth_m, kw)
               for t, wb in band_list]
     runs = [b for b, _ in traced]

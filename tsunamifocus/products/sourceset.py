@@ -139,7 +139,8 @@ def compute_source_set(sset: SourceSet, *, store: MemberStore, scheduler: Any = 
                    "source": prep.members[i].source} for i in todo]
         try:
             ens = run_ensemble(set_member, params, scheduler=scheduler, retries=1, progress=progress,
-                               shared={"depth": prep.depth, "scenario": prep.scenario, "segments": prep.segments},
+                               shared={"depth": prep.depth, "scenario": prep.scenario, "segments": prep.segments,
+                                       "reference": prep.reference},
                                top_k=sset.top_k, reduce=SET_GRIDS, on_result=on_result,
                                progress_label="set members")
             failures = list(ens.failures)

@@ -28,7 +28,7 @@ from ..coast.segments import STATIC_SEGMENT_COLUMNS as _STATIC_COLUMNS
 from ..coast.segments import segment_coastline
 from ..constants import STOP_DEPTH_M
 from ..errors import CoastError, HealthCheckError, PointWarning, ResolutionWarning, ResourceLimitError
-from ..focusing.analysis import analyse_focusing
+from ..focusing.analysis import ReferenceOcean, analyse_focusing
 from ..focusing.ranking import _add_ranks, rank_segments
 from ..grid import GridInfo
 from ..io.bathymetry import load_bathymetry
@@ -285,6 +285,7 @@ def analyse_source(
     threads: int | None = None,
     progress: StageProgress | None = None,
     all_bands: bool = True,
+    reference: ReferenceOcean | None = None,
 ) -> SourceAnalysis:
     """Build one source, its ray fan, and trace/analyse it on ``depth``.
 
@@ -310,6 +311,8 @@ def analyse_source(
         Stage reporter.
     all_bands : bool
         Trace the three period bands of the source's spectrum (default), or the dominant period only.
+    reference : ReferenceOcean, optional
+        The lensing reference prepared once for many sources (default: built for this source).
 
     Returns
     -------
@@ -344,7 +347,7 @@ def analyse_source(
         stop_depth_m=scenario.rays.stop_depth_m, segments=segments, trace_kwargs=kw,
         min_rays=scenario.coast.min_rays, seed=scenario.rays.seed, top_k=scenario.output.top_k,
         max_distance_m=getattr(scenario.coast, "max_distance_m", None),
-        coast_area=_area_mask(segments.attrs.get("coast_area"), depth),
+        coast_area=_area_mask(segments.attrs.get("coast_area"), depth), reference=reference,
     )
     use_travel_times(foc, tt)
     restrict_to_region(foc, scenario.output.top_k)

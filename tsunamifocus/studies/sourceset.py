@@ -2,9 +2,12 @@
 
 Screening tool only: not a tsunami warning, forecast or inundation map (see CAUTIONS.md).
 
-* :func:`prepare_set` loads the base scenario's grid once, builds the coastline segments once
-  and fixes the settings the scenario leaves open (segment length, ray count) once, so every
-  member runs with the same grid, coast and settings.
+* :func:`prepare_set` loads the base scenario's grid once, builds the coastline segments once,
+  fixes the settings the scenario leaves open (segment length, ray count) once and builds the
+  lensing reference ocean once, so every member runs with the same grid, coast, settings and
+  reference: one reference for the whole set (low-pass at ``[focusing] reference_smooth_km``,
+  default the deep-water wavelength at the dominant period of the base scenario's own first
+  source), so the members' lensing factors are measured against the same ocean.
 * :func:`set_member` runs one source like an ensemble member (one ray thread, the dominant
   period band, its energy bookkeeping checked) and returns a small
   :class:`~tsunamifocus.studies.ensemble.MemberResult`; members run on Dask through
@@ -19,6 +22,7 @@ Screening tool only: not a tsunami warning, forecast or inundation map (see CAUT
 
 from __future__ import annotations
 
+import dataclasses
 import hashlib
 import json
 import warnings
@@ -37,7 +41,10 @@ from ..io.scenario import _source_to_dict
 from ..io.sourceset import SetMember, SourceSet
 from ..source.sweep import sweep_sources
 from .ensemble import MemberResult, _topk_mask
-from .run import _segments_for, analyse_source, health_checks, load_scenario_bathymetry
+from ..focusing.analysis import ReferenceOcean, default_reference_smooth_km, reference_ocean
+from ..source.summary import summarize_source
+from ..source.surface import initial_surface
+from .run import _segments_for, analyse_source, build_source, health_checks, load_scenario_bathymetry
 from .settings import Choice, choose_ray_count, choose_segment_km, with_choices
 
 __all__ = ["PreparedSet", "prepare_set", "set_members", "member_key", "set_member", "set_statistics",
@@ -59,6 +66,7 @@ class PreparedSet:
     members: list[SetMember]
     choices: dict = field(default_factory=dict)
     grid_sha256: str = ""
+    reference: ReferenceOcean | None = None
 
 
 def set_members(sset: SourceSet) -> list[SetMember]:
@@ -89,9 +97,30 @@ def prepare_set(sset: SourceSet, *, rays: int | None = None) -> PreparedSet:
     else:
         choices["rays"] = choose_ray_count(sc, depth, segments[segments["in_region"].to_numpy(bool)])
     sc = with_choices(sc, choices)
+    sc, reference = _set_reference(sc, depth)
     sha = hashlib.sha256(np.ascontiguousarray(depth.values, dtype=np.float64).tobytes()).hexdigest()
     return PreparedSet(sset=sset, scenario=sc, depth=depth, segments=segments, members=set_members(sset),
-                       choices=choices, grid_sha256=sha)
+                       choices=choices, grid_sha256=sha, reference=reference)
+
+
+def _set_reference(sc: Any, depth: xr.DataArray) -> tuple[Any, ReferenceOcean | None]:
+    """The set's one lensing reference, its scale written into the scenario (so member keys carry it).
+
+    Scale: ``[focusing] reference_smooth_km``, else the deep-water wavelength at ``[focusing]
+    period_s`` or at the dominant period of the base scenario's first source. Without either, each
+    member builds its own reference (None).
+    """
+    km = sc.focusing.reference_smooth_km
+    if km is None:
+        period = sc.focusing.period_s
+        if period is None and sc.sources:
+            src = build_source(sc.sources[0])
+            period = summarize_source(src, initial_surface(src, depth), depth, None).period_s
+        if period is None or not np.isfinite(period):
+            return sc, None
+        km = default_reference_smooth_km(depth, float(period))
+        sc = dataclasses.replace(sc, focusing=dataclasses.replace(sc.focusing, reference_smooth_km=float(km)))
+    return sc, reference_ocean(depth, float(km))
 
 
 def member_key(prep: PreparedSet, member: SetMember) -> str:
@@ -108,7 +137,8 @@ def member_key(prep: PreparedSet, member: SetMember) -> str:
     return hashlib.sha256(json.dumps(doc, sort_keys=True, default=str).encode()).hexdigest()
 
 
-def set_member(params: dict, *, depth: xr.DataArray, scenario: Any, segments: pd.DataFrame) -> MemberResult:
+def set_member(params: dict, *, depth: xr.DataArray, scenario: Any, segments: pd.DataFrame,
+               reference: ReferenceOcean | None = None) -> MemberResult:
     """Run one source of a set and return its per-segment values and grids.
 
     Parameters
@@ -116,7 +146,7 @@ def set_member(params: dict, *, depth: xr.DataArray, scenario: Any, segments: pd
     params : dict
         ``source`` (a :class:`~tsunamifocus.io.scenario.SourceConfig`), ``index``, ``name``,
         ``weight``.
-    depth, scenario, segments
+    depth, scenario, segments, reference
         Shared by every member (see :func:`prepare_set`).
 
     Returns
@@ -127,7 +157,7 @@ def set_member(params: dict, *, depth: xr.DataArray, scenario: Any, segments: pd
         Mw, energy and period.
     """
     a = analyse_source(depth, scenario, params["source"], segments=segments, keep_paths=0, threads=1,
-                       all_bands=False)
+                       all_bands=False, reference=reference)
     health_checks(a)
     seg = a.focusing.segments
     table = seg[["segment_id", *[c for c in STATIC_SEGMENT_COLUMNS if c in seg],
