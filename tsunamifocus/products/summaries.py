@@ -86,6 +86,11 @@ def seg_sigma_km(seg: pd.DataFrame) -> np.ndarray:
     return 2.0 * seg["length_m"].to_numpy(dtype=float) / 1000.0
 
 
+#: Below this Spearman correlation with the wave a ranking is called weak in the summary (a rank
+#: correlation under 0.5 is weak agreement: common practice, no source).
+WEAK_AGREEMENT: float = 0.5
+
+
 def _check_lines(ag: dict) -> list[str]:
     """How far the rankings held against the linear long-wave check."""
 
@@ -93,10 +98,17 @@ def _check_lines(ag: dict) -> list[str]:
         return (f"Spearman {a['spearman']:.2f}, top-{a['k']} overlap {a['topk_common']}/{a['k']}"
                 if a and np.isfinite(a.get("spearman", np.nan)) else "not measurable")
 
+    def weak(a: dict) -> str:
+        rho = a.get("spearman", np.nan) if a else np.nan
+        return (" - weak: the wave does not confirm this ranking" if np.isfinite(rho) and rho < WEAK_AGREEMENT
+                else "")
+
     out = [f"  wave check (linear long-wave solver, unsmoothed sea floor) on {ag.get('n', 0)} ranked segments:",
-           f"    amplitude ranking held: {held(ag)}"]
+           f"    amplitude ranking held: {held(ag)}{weak(ag)}"]
     if ag.get("lensing"):
-        out.append(f"    lensing ranking held:   {held(ag['lensing'])}")
+        out.append(f"    lensing ranking held:   {held(ag['lensing'])}{weak(ag['lensing'])}")
+        if weak(ag["lensing"]) and not weak(ag):
+            out.append("    rank this coast with the amplitude ranking, not the lensing factor (docs/focusing.md)")
     return out
 
 
