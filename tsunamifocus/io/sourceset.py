@@ -49,6 +49,7 @@ from ..constants import DEFAULTS, SOURCE_SET_DEFAULTS
 from ..errors import ScenarioError
 from .scenario import (MAGNITUDE_RANGE, Scenario, SourceConfig, _build_source, _Ctx, _f, _Key,
                        _table, _Where, parse_scenario)
+from .textfile import read_utf8_text
 
 __all__ = ["SourceSet", "SweepConfig", "SetMember", "parse_source_set", "SET_KEYS", "SWEEP_KEYS"]
 
@@ -183,16 +184,8 @@ def parse_source_set(path: str | os.PathLike) -> SourceSet:
         Any problem with the file, its base scenario or its sources, in one line.
     """
     p = Path(path)
-    try:
-        text = p.read_bytes().decode("utf-8-sig")
-    except FileNotFoundError:
-        raise ScenarioError(f"{p}: source-set file not found") from None
-    except IsADirectoryError:
-        raise ScenarioError(f"{p}: is a folder, expected a source-set .toml file") from None
-    except UnicodeDecodeError:
-        raise ScenarioError(f"{p}: not UTF-8 text; save the source-set file as UTF-8") from None
-    except OSError as exc:
-        raise ScenarioError(f"{p}: cannot read source-set file ({exc.strerror or exc})") from None
+    text = read_utf8_text(p, "source-set file", ScenarioError, "save the source-set file as UTF-8",
+                          "a source-set .toml file")
     try:
         data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
