@@ -1827,7 +1827,8 @@ def plot_travel_time(
                 lab.set_path_effects([patheffects.withStroke(linewidth=2.0, foreground="0.15")])
                 lab.set_color("white")
         step = min(np.diff(sorted([0.0, *finer, *hourly]))) if len(finer) else 0.0
-        handles.append(Line2D([], [], color="0.55", lw=0.7, label=f"Isochrone every {step:g} min"))
+        handles.append(Line2D([], [], color="white", lw=0.9, label=f"Isochrone every {step:g} min",
+                              path_effects=[patheffects.withStroke(linewidth=2.4, foreground="0.35")]))
     if hourly:
         ax.contour(xs, ys, tm, levels=hourly, colors="black", linewidths=1.3, zorder=6)
         # labels in deep water only: on shelves the isochrones bunch up and their labels would pile
