@@ -80,3 +80,48 @@ def test_line_source_step_is_the_launch_spacing():
     y0 = np.arange(-50e3, 50e3, 250.0)
     r = trace_rays(d, np.full(y0.size, 1000.0), y0, 90.0, q0=1.0, p0=0.0, stop_depth_m=20.0, max_time_s=3600.0)
     np.testing.assert_allclose(tube_steps(r.end, GridInfo.from_dataarray(d)), 250.0, rtol=1e-9)
+
+
+def test_footprints_stay_on_their_line_even_when_wider_than_the_ocean():
+    # Two separate straight coastlines. A Gaussian footprint's share of a segment is the normal
+    # probability of its arc interval (analytic: normal CDF, Abramowitz & Stegun 26.2.2),
+    # renormalised over the ray's own line; a footprint far wider than the line (a tube that
+    # spread over 10,000 km: here 1e26 m) is uniform along its own line and never reaches the
+    # other one. The lines are placed one after the other on one axis internally: the width
+    # must not spill over (common practice, no source).
+    from shapely.geometry import LineString
+
+    from tsunamifocus.coast.tubes import _Arcs, _arc_rows
+    from scipy.special import ndtr
+
+    d = basin()
+    lines = [LineString([(120e3, -100e3), (120e3, 0.0)]), LineString([(60e3, 150e3), (60e3, 190e3)])]
+    seg = segment_coastline(lines, 10e3, d)
+    arcs = _Arcs.build(seg)
+    on0 = arcs.line == arcs.line[0]
+    assert on0.sum() == 10 and (~on0).sum() == 4
+    reach = np.ones(len(seg), bool)
+    r, c, v = _arc_rows(arcs, np.array([arcs.line[0], arcs.line[0]]), np.array([35e3, 35e3]),
+                        np.array([1e26, 12e3]), reach, len(seg))
+    huge = np.bincount(c[r == 0], weights=v[r == 0], minlength=len(seg))
+    np.testing.assert_allclose(huge[on0], 0.1, rtol=1e-9)
+    assert not huge[~on0].any()
+    mid = np.bincount(c[r == 1], weights=v[r == 1], minlength=len(seg))
+    a, b = arcs.a[on0], arcs.b[on0]
+    exact = ndtr((b - 35e3) / 12e3) - ndtr((a - 35e3) / 12e3)
+    exact[(a >= 35e3 + 4 * 12e3) | (b <= 35e3 - 4 * 12e3)] = 0.0  # footprints end at 4 std (tail 6e-5)
+    np.testing.assert_allclose(mid[on0], exact / exact.sum(), rtol=1e-9)
+    assert not mid[~on0].any()
+
+
+def test_prepared_coast_geometry_gives_the_same_deposit():
+    # Building the segments' samples once for many traces (CoastGeometry) must not change a
+    # deposit (same analytic-flux case as above; common practice, no source)
+    from tsunamifocus.coast.tubes import CoastGeometry
+
+    r, seg, steps, dep = point_source_on_basin(720)
+    d = basin()
+    geo = CoastGeometry.build(seg, d)
+    dep2 = tube_deposit(seg, r.end, d, steps=steps, period_s=300.0, max_distance_m=3000.0, coast=geo)
+    np.testing.assert_array_equal(dep.energy_J, dep2.energy_J)
+    np.testing.assert_array_equal(dep.shadow, dep2.shadow)

@@ -38,7 +38,7 @@ from scipy.special import ndtr
 from ..grid import GridInfo
 from ..ocean.smooth import _to_xyz as to_xyz
 
-__all__ = ["TubeDeposit", "tube_deposit", "tube_steps", "nearest_segment", "TUBE_MIN_WIDTH"]
+__all__ = ["CoastGeometry", "TubeDeposit", "tube_deposit", "tube_steps", "nearest_segment", "TUBE_MIN_WIDTH"]
 
 #: Smallest tube footprint along the coast, in local wavelengths ``c_end T`` (caustic regularisation).
 TUBE_MIN_WIDTH: float = 1.0
@@ -82,18 +82,17 @@ def _samples(segments: pd.DataFrame, spacing_m: float, info: GridInfo) -> tuple[
     Segments whose ``reachable`` column is False (water the wave cannot reach: no first arrival
     from the eikonal solver) get no samples, so no tube deposits energy on them.
     """
-    pts, sid, ds = [np.zeros((0, 3 if info.geographic else 2))], [np.zeros(0, np.int64)], [np.zeros(0)]
     reach = segments["reachable"].to_numpy(bool) if "reachable" in segments else np.ones(len(segments), bool)
-    for k, (g, length) in enumerate(zip(segments["geometry"], segments["length_m"].to_numpy(float))):
-        if not reach[k]:
-            continue
-        n = max(4, int(math.ceil(length / spacing_m)))
-        f = (np.arange(n) + 0.5) / n
-        xy = np.array([g.interpolate(t, normalized=True).coords[0] for t in f])
-        pts.append(to_xyz(info, xy[:, 0], xy[:, 1]))
-        sid.append(np.full(n, k))
-        ds.append(np.full(n, length / n))
-    return np.concatenate(pts), np.concatenate(sid), np.concatenate(ds)
+    length = segments["length_m"].to_numpy(float)
+    k = np.flatnonzero(reach)
+    n = np.maximum(4, np.ceil(length[k] / spacing_m).astype(np.int64))
+    sid = np.repeat(k, n)
+    first = np.repeat(np.cumsum(n) - n, n)
+    f = (np.arange(sid.size) - first + 0.5) / np.repeat(n, n)
+    geoms = np.asarray(list(segments["geometry"]), dtype=object)
+    xy = shapely.get_coordinates(shapely.line_interpolate_point(geoms[sid], f, normalized=True))
+    pts = to_xyz(info, xy[:, 0], xy[:, 1]) if sid.size else np.zeros((0, 3 if info.geographic else 2))
+    return pts, sid.astype(np.int64), np.repeat(length[k] / n, n)
 
 
 @dataclass
@@ -162,6 +161,20 @@ def _ranges(lo: np.ndarray, hi: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     return owner, first + offs
 
 
+def _normal_share(za: np.ndarray, zb: np.ndarray) -> np.ndarray:
+    """Standard normal probability of ``[za, zb]``, accurate for narrow intervals and in the tails.
+
+    The difference of normal CDFs is taken on the side of the mean where it does not cancel
+    (upper tail through ``ndtr(-z)``); intervals narrower than 1e-3 std use the midpoint rule
+    ``(zb - za) phi(z_mid)`` (relative error below 1e-7), so a footprint much wider than the
+    coast (a tube spread over an ocean) still spreads its energy instead of rounding to zero.
+    """
+    dz = zb - za
+    diff = np.where(za > 0.0, ndtr(-za) - ndtr(-zb), ndtr(zb) - ndtr(za))
+    zm = 0.5 * (za + zb)
+    return np.where(dz < 1e-3, dz * np.exp(-0.5 * zm * zm) / math.sqrt(2.0 * math.pi), diff)
+
+
 def _arc_rows(arcs: _Arcs, line_r: np.ndarray, s0: np.ndarray, width: np.ndarray, reach: np.ndarray,
               nseg: int, box: bool = False) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Per ray, the share of its footprint on each segment of its own coastline line (COO triplets).
@@ -174,33 +187,40 @@ def _arc_rows(arcs: _Arcs, line_r: np.ndarray, s0: np.ndarray, width: np.ndarray
     """
     rows, cols, vals = [], [], []
     half = width if box else 4.0 * width
-    for ln in np.unique(line_r):
-        rs = np.flatnonzero(line_r == ln)
-        i0, i1 = int(arcs.start[ln]), int(arcs.stop[ln])
-        a, b, per = arcs.a[i0:i1], arcs.b[i0:i1], float(arcs.perimeter[ln])
-        ring = bool(arcs.ring[ln])
-        whole = ring & (half[rs] >= 0.5 * per)
-        if whole.any():  # the footprint covers the whole ring: uniform along it
-            rw = rs[whole]
-            o, k = _ranges(np.zeros(rw.size, np.int64), np.full(rw.size, i1 - i0, np.int64))
-            rows.append(rw[o])
-            cols.append(i0 + k)
-            vals.append(np.ones(o.size) if box else (b - a)[k] / per)
-            rs = rs[~whole]
-        for shift in ((-per, 0.0, per) if ring else (0.0,)):
-            c = s0[rs] + shift
-            lo = np.searchsorted(b, c - half[rs], side="right")
-            hi = np.searchsorted(a, c + half[rs], side="left")
-            o, k = _ranges(lo, hi)
-            if o.size == 0:
-                continue
-            rows.append(rs[o])
-            cols.append(i0 + k)
-            if box:
-                vals.append(np.ones(o.size))
-            else:
-                sg = width[rs][o]
-                vals.append(ndtr((b[k] - c[o]) / sg) - ndtr((a[k] - c[o]) / sg))
+    rs = np.arange(line_r.size)
+    ring_r = arcs.ring[line_r]
+    per_r = arcs.perimeter[line_r]
+    whole = ring_r & (half >= 0.5 * per_r)
+    if whole.any():  # the footprint covers the whole ring: uniform along it
+        rw = rs[whole]
+        i0w = arcs.start[line_r[rw]]
+        o, k = _ranges(i0w, arcs.stop[line_r[rw]])
+        rows.append(rw[o])
+        cols.append(k)
+        vals.append(np.ones(o.size) if box else (arcs.b - arcs.a)[k] / per_r[rw][o])
+    # all lines on one sorted axis, one after the other; each footprint's range of segments is
+    # then clipped to its own line's, so it never runs onto another line
+    gap = float(np.max(arcs.perimeter, initial=0.0)) + 1.0
+    off = np.arange(arcs.start.size, dtype=float) * gap
+    seg_line = np.repeat(np.arange(arcs.start.size), arcs.stop - arcs.start)
+    ga, gb = arcs.a + off[seg_line], arcs.b + off[seg_line]
+    part = rs[~whole]
+    for shift in (-1.0, 0.0, 1.0):
+        sel = part if shift == 0.0 else part[ring_r[part]]
+        if sel.size == 0:
+            continue
+        c = s0[sel] + shift * per_r[sel] + off[line_r[sel]]
+        lo = np.maximum(np.searchsorted(gb, c - half[sel], side="right"), arcs.start[line_r[sel]])
+        hi = np.minimum(np.searchsorted(ga, c + half[sel], side="left"), arcs.stop[line_r[sel]])
+        o, k = _ranges(lo, hi)
+        if o.size == 0:
+            continue
+        rows.append(sel[o])
+        cols.append(k)
+        if box:
+            vals.append(np.ones(o.size))
+        else:
+            vals.append(_normal_share((ga[k] - c[o]) / width[sel][o], (gb[k] - c[o]) / width[sel][o]))
     if not rows:
         return np.zeros(0, np.int64), np.zeros(0, np.int64), np.zeros(0)
     r, c, v = np.concatenate(rows), np.concatenate(cols), np.concatenate(vals)
@@ -216,31 +236,43 @@ def _arc_rows(arcs: _Arcs, line_r: np.ndarray, s0: np.ndarray, width: np.ndarray
     return m.row[ok].astype(np.int64), m.col[ok].astype(np.int64), m.data[ok] / tot[m.row[ok]]
 
 
+@dataclass
+class _SegmentIndex:
+    """Segments in a locally isotropic frame with their search tree (see :func:`nearest_segment`)."""
+
+    geoms: np.ndarray
+    kx: float
+    tree: shapely.STRtree
+
+    @classmethod
+    def build(cls, segments: pd.DataFrame, info: GridInfo) -> _SegmentIndex:
+        geoms = np.asarray(list(segments["geometry"]), dtype=object)
+        kx = 1.0
+        if info.geographic:
+            # nearest in a locally isotropic frame (longitude scaled by cos of the mid latitude)
+            kx = math.cos(math.radians(float(np.median(segments["y_mid"]))))
+            geoms = shapely.transform(geoms, lambda c: np.column_stack([c[:, 0] * kx, c[:, 1]]))
+        return cls(geoms, kx, shapely.STRtree(geoms))
+
+
 def nearest_segment(segments: pd.DataFrame, info: GridInfo, x: np.ndarray, y: np.ndarray,
-            max_distance_m: float) -> tuple[np.ndarray, np.ndarray]:
+                    max_distance_m: float, index: _SegmentIndex | None = None) -> tuple[np.ndarray, np.ndarray]:
     """Nearest segment of points: index (-1 beyond ``max_distance_m``) and distance [m].
 
     On lon/lat grids the nearest segment is found in a frame with longitude scaled by the cosine
-    of the median segment latitude, and the distance is then measured geodesically.
+    of the median segment latitude, and the distance is then measured geodesically. ``index``
+    is the segments' search structure when already built (:class:`CoastGeometry`).
     """
-    geoms = np.asarray(list(segments["geometry"]), dtype=object)
     if x.size == 0:
         return np.zeros(0, dtype=np.int64), np.zeros(0)
-    if info.geographic:
-        # nearest in a locally isotropic frame (longitude scaled by cos of the mid latitude)
-        lat0 = math.radians(float(np.median(segments["y_mid"])))
-        kx = math.cos(lat0)
-        geoms_s = shapely.transform(geoms, lambda c: np.column_stack([c[:, 0] * kx, c[:, 1]]))
-        pts = shapely.points(np.column_stack([x * kx, y]))
-    else:
-        geoms_s = geoms
-        pts = shapely.points(np.column_stack([x, y]))
-    tree = shapely.STRtree(geoms_s)
-    (ip, ig), _d = tree.query_nearest(pts, return_distance=True, all_matches=False)
+    ix = index if index is not None else _SegmentIndex.build(segments, info)
+    kx = ix.kx
+    pts = shapely.points(np.column_stack([x * kx, y]))
+    (ip, ig), _d = ix.tree.query_nearest(pts, return_distance=True, all_matches=False)
     idx = np.full(x.size, -1, dtype=np.int64)
     idx[ip] = ig
     # true distance to the chosen segment [m]
-    near = shapely.shortest_line(pts[ip], geoms_s[ig])
+    near = shapely.shortest_line(pts[ip], ix.geoms[ig])
     c = shapely.get_coordinates(near).reshape(-1, 2, 2)
     if info.geographic:
         g = Geod(a=info.radius_m, b=info.radius_m)
@@ -254,6 +286,54 @@ def nearest_segment(segments: pd.DataFrame, info: GridInfo, x: np.ndarray, y: np
     return idx, dist
 
 
+@dataclass
+class CoastGeometry:
+    """What tube deposits need of one segments table on one grid, built once for many traces.
+
+    Attributes
+    ----------
+    info : GridInfo
+        The grid.
+    spacing_m : float
+        Sample spacing along the segments [m] (half the smallest cell side).
+    pts, sid, ds, s_smp : numpy.ndarray
+        Samples along the reachable segments (metric 2-D/3-D), their segment, length share [m]
+        and arc position along their coastline line [m].
+    arcs : _Arcs
+        The segments as arc-length intervals of their lines.
+    reach : numpy.ndarray
+        bool per segment: reachable water.
+    tree : scipy.spatial.cKDTree or None
+        Search tree of the samples.
+    index : _SegmentIndex
+        Search structure of the segments (:func:`nearest_segment`).
+    """
+
+    info: GridInfo
+    spacing_m: float
+    pts: np.ndarray
+    sid: np.ndarray
+    ds: np.ndarray
+    s_smp: np.ndarray
+    arcs: _Arcs
+    reach: np.ndarray
+    tree: cKDTree | None
+    index: _SegmentIndex
+
+    @classmethod
+    def build(cls, segments: pd.DataFrame, depth: xr.DataArray) -> CoastGeometry:
+        """Prepare ``segments`` on the grid of ``depth``."""
+        info = GridInfo.from_dataarray(depth)
+        spacing = 0.5 * min(info.spacing_m())
+        pts, sid, ds = _samples(segments, spacing, info)
+        nseg = len(segments)
+        reach = segments["reachable"].to_numpy(bool) if "reachable" in segments else np.ones(nseg, bool)
+        arcs = _Arcs.build(segments)
+        first = np.searchsorted(sid, sid, side="left")  # arc position of every sample along its line
+        s_smp = arcs.a[sid] + (np.arange(sid.size) - first + 0.5) * ds
+        tree = cKDTree(pts) if sid.size else None
+        return cls(info, spacing, pts, sid, ds, s_smp, arcs, reach, tree, _SegmentIndex.build(segments, info))
+
 
 def tube_deposit(
     segments: pd.DataFrame,
@@ -265,6 +345,7 @@ def tube_deposit(
     max_distance_m: float,
     min_width_factor: float = TUBE_MIN_WIDTH,
     max_incidence_deg: float = 80.0,
+    coast: CoastGeometry | None = None,
 ) -> TubeDeposit:
     """Spread each coast ray's energy over its tube footprint on the coastline segments.
 
@@ -287,28 +368,35 @@ def tube_deposit(
         Smallest footprint in local wavelengths (caustic regularisation).
     max_incidence_deg : float
         Incidence cap [deg] (grazing tubes: ray theory fails).
+    coast : CoastGeometry, optional
+        ``segments`` prepared on this grid once for many traces (default: built here).
 
     Returns
     -------
     TubeDeposit
     """
-    info = GridInfo.from_dataarray(depth)
+    geo = coast if coast is not None else CoastGeometry.build(segments, depth)
+    info, spacing, pts, sid, ds, s_smp, arcs, reach, tree = (geo.info, geo.spacing_m, geo.pts, geo.sid, geo.ds,
+                                                             geo.s_smp, geo.arcs, geo.reach, geo.tree)
     nseg = len(segments)
     nray = int(end.sizes["ray"])
     hit = np.flatnonzero(np.asarray(end["reason"].values) == _REASON_COAST)
-    spacing = 0.5 * min(info.spacing_m())
-    pts, sid, ds = _samples(segments, spacing, info)
-    reach = segments["reachable"].to_numpy(bool) if "reachable" in segments else np.ones(nseg, bool)
-    arcs = _Arcs.build(segments)
-    # arc position of every sample along its line
-    first = np.searchsorted(sid, sid, side="left")
-    s_smp = arcs.a[sid] + (np.arange(sid.size) - first + 0.5) * ds
-    tree = cKDTree(pts) if sid.size else None
     xyz = to_xyz(info, np.asarray(end["x"].values, float)[hit], np.asarray(end["y"].values, float)[hit])
-    _, i0 = tree.query(xyz) if (hit.size and tree is not None) else (np.zeros(0), np.zeros(0, np.int64))
-    seg_idx, _ = nearest_segment(segments, info, np.asarray(end["x"].values, float)[hit],
-                                 np.asarray(end["y"].values, float)[hit], max_distance_m)
-    near = (seg_idx >= 0) if tree is not None else np.zeros(hit.size, bool)
+    if hit.size and tree is not None:
+        # the nearest sample of a reachable segment (samples lie half a cell apart along them)
+        d_smp, i0 = tree.query(xyz, workers=-1)
+        if info.geographic:
+            d_smp = 2.0 * info.radius_m * np.arcsin(np.clip(d_smp / (2.0 * info.radius_m), 0.0, 1.0))
+        near = d_smp <= max_distance_m
+        # the samples stand for the segment lines to within a sample spacing: near the limit
+        # the distance to the segment line itself decides
+        edge = np.flatnonzero(np.abs(d_smp - max_distance_m) <= 2.0 * spacing)
+        if edge.size:
+            seg_idx, _ = nearest_segment(segments, info, np.asarray(end["x"].values, float)[hit[edge]],
+                                         np.asarray(end["y"].values, float)[hit[edge]], max_distance_m, geo.index)
+            near[edge] = seg_idx >= 0
+    else:
+        i0, near = np.zeros(0, np.int64), np.zeros(hit.size, bool)
     hit, i0, xyz = hit[near], i0[near], xyz[near]
     w = np.asarray(end["weight"].values, float)[hit]
     q = np.abs(np.asarray(end["q"].values, float)[hit])

@@ -51,16 +51,16 @@ from ..errors import InputError
 from ..grid import GridInfo
 from ..ocean.reference import flat_depth, reference_depth
 from ..ocean.smooth import _sea, _to_xyz, smooth_bathymetry
-from ..ocean.wavelength import WAVELENGTH_FRACTION, wavelength_smoothed_depth
+from ..ocean.wavelength import WAVELENGTH_FRACTION, wavelength_smoothed_depths
 from ..propagation.rays import trace_rays
 from .arrivals import REASON_COAST, BandTrace, segment_arrivals
 from .branches import branch_diagnostics
 from .budget import energy_budget
-from .energy import distance_to_launch_m, fresnel_sigma_m, ratio_map, regularised_energy
+from .energy import distance_to_launch_m, fresnel_sigma_m, ratio_map, regularised_energies
 from .randommedium import fluctuation_statistics
 from .ranking import rank_segments
 
-__all__ = ['REASON_COAST', 'SMOOTHED_CELLS_PER_STEP', 'FocusingResult', 'ReferenceOcean', 'analyse_focusing',
+__all__ = ['FLAT_RAY_STRIDE', 'MAX_STEP_WIDTHS', 'REASON_COAST', 'SMOOTHED_CELLS_PER_STEP', 'FocusingResult', 'ReferenceOcean', 'analyse_focusing',
            'default_reference_smooth_km', 'reference_ocean']
 
 #: Default RK4 step of the focusing traces, in cell crossings at the fastest speed. The media are
@@ -71,6 +71,17 @@ __all__ = ['REASON_COAST', 'SMOOTHED_CELLS_PER_STEP', 'FocusingResult', 'Referen
 #: amplitude rankings agreeing with the wave equally well (Spearman 0.90 and 0.89) at a third of
 #: the tracing time (docs/focusing.md).
 SMOOTHED_CELLS_PER_STEP: float = 3.0
+
+#: Longest RK4 step of the focusing traces, in smoothing widths of the band's medium: each ray
+#: steps :data:`SMOOTHED_CELLS_PER_STEP` crossings of its own cell at its own speed
+#: (:func:`tsunamifocus.propagation.rays.trace_rays` ``max_step_s``), at most the time a wave of
+#: the band takes to cross this many Gaussian widths ``fraction x c T`` of the wavelength
+#: smoothing - ``max_step_s = MAX_STEP_WIDTHS x fraction x T``, whatever the depth.
+MAX_STEP_WIDTHS: float = 1.0
+
+#: The constant-depth trace (the focusing factor's denominator) takes every this-many-th ray of
+#: fans of at least 1000 times as many rays, its weights scaled to the fan's energy.
+FLAT_RAY_STRIDE: int = 4
 
 
 
@@ -190,15 +201,20 @@ def reference_ocean(depth: xr.DataArray, smooth_km: float) -> ReferenceOcean:
     return ReferenceOcean(float(smooth_km), lowpass, reference_depth(depth, smooth_km, lowpass=lowpass))
 
 
-def _trace_band(depth: xr.DataArray, ref: xr.DataArray, fan_arrays: tuple, period_s: float, weight: float,
-                fraction: float, stop_depth_m: float, kw: dict) -> tuple[BandTrace, xr.DataArray]:
+def _band_kwargs(kw: dict, period_s: float, fraction: float) -> dict:
+    """Trace settings of one band: local steps up to :data:`MAX_STEP_WIDTHS` smoothing widths."""
+    if kw.get("step_s") is not None:
+        return kw
+    return {**kw, "max_step_s": MAX_STEP_WIDTHS * fraction * float(period_s)}
+
+
+def _trace_band(medium: xr.DataArray, ref_medium: xr.DataArray, fan_arrays: tuple, period_s: float,
+                weight: float, kw: dict) -> BandTrace:
     """Both oceans of one band, each as a wave of that period sees it, traced with the same fan."""
     x0, y0, az, w = fan_arrays
-    medium = wavelength_smoothed_depth(depth, period_s, fraction=fraction, stop_depth_m=stop_depth_m)
-    ref_medium = wavelength_smoothed_depth(ref, period_s, fraction=fraction, stop_depth_m=stop_depth_m)
     real = trace_rays(medium, x0, y0, az, weights=w, **kw)
     reference = trace_rays(ref_medium, x0, y0, az, weights=w, **kw)
-    return BandTrace(float(period_s), float(weight), real, reference), medium
+    return BandTrace(float(period_s), float(weight), real, reference)
 
 
 def _weighted_map(maps: list[xr.DataArray], weights: list[float], name: str) -> xr.DataArray:
@@ -294,12 +310,21 @@ def analyse_focusing(
         reference = reference_ocean(depth, reference_smooth_km)  # one low-pass: reference and statistics
     reference_smooth_km, lowpass, ref = reference.smooth_km, reference.lowpass, reference.depth
     band_list = [(float(t), float(wb)) for t, wb in (bands or [(period_s, 1.0)])]
-    traced = [_trace_band(depth, ref, (x0, y0, az, w), t, wb, wavelength_fraction, stop_depth_m, kw)
-              for t, wb in band_list]
-    runs = [b for b, _ in traced]
+    # both oceans averaged with the same kernels: the local wavelength of the reference's speed
+    media, ref_media = wavelength_smoothed_depths([depth, ref], [t for t, _ in band_list],
+                                                  fraction=wavelength_fraction, stop_depth_m=stop_depth_m,
+                                                  wavelength_depth=ref)
+    runs = [_trace_band(m, rm, (x0, y0, az, w), t, wb, _band_kwargs(kw, t, wavelength_fraction))
+            for (t, wb), m, rm in zip(band_list, media, ref_media)]
     dom = int(np.argmax([b.weight for b in runs]))
-    flatr = trace_rays(flat_depth(depth), x0, y0, az, weights=w, **kw)
-    maps = _focusing_maps(depth, runs, flatr, x0, y0, period_s, reference_smooth_km)
+    # the constant-depth ocean only sets the focusing-factor map's denominator, a smooth field
+    # regularised over Fresnel widths: a quarter of the fan, weighted up, draws it
+    sub = np.arange(0, x0.size, FLAT_RAY_STRIDE if x0.size >= 1000 * FLAT_RAY_STRIDE else 1)
+    wf = w[sub] * (w.sum() / max(w[sub].sum(), 1e-300))
+    flatr = trace_rays(flat_depth(depth), x0[sub], y0[sub], az[sub], weights=wf,
+                       **_band_kwargs(kw, band_list[dom][0], wavelength_fraction))
+    dist = distance_to_launch_m(depth, x0, y0)
+    maps = _focusing_maps(depth, runs, flatr, dist, period_s, reference_smooth_km)
     if segments is None:
         if segment_length_m is None:
             segment_length_m = 10.0 * max(info.spacing_m())
@@ -311,7 +336,7 @@ def analyse_focusing(
     d_coast = _segment_distance(table, info, x0, y0)
     fluct = fluctuation_statistics(depth, reference_smooth_km, lowpass=lowpass)
     diag = branch_diagnostics(runs[dom].real, depth, reference_smooth_km=reference_smooth_km,
-                              coast_distance_m=d_coast, fluctuations=fluct)
+                              coast_distance_m=d_coast, fluctuations=fluct, launch_distance_m=dist)
     budget = energy_budget([(b.real, b.weight) for b in runs], table, source_energy_J=e_src,
                            shallow_J=float(getattr(fan, "energy_shallow_J", 0.0)))
     return FocusingResult(
@@ -319,22 +344,20 @@ def analyse_focusing(
         focusing_factor=maps["focusing"], travel_time_min=maps["travel_time"], kernel_sigma_m=maps["sigma"],
         reference_depth=ref, segments=table, ranking=ranking, diagnostics=diag, budget=budget,
         runs={"real": runs[dom].real, "reference": runs[dom].reference, "flat": flatr, "bands": runs},
-        cautions=caution_summary(), ray_depth=traced[dom][1], reference_smooth_km=float(reference_smooth_km),
+        cautions=caution_summary(), ray_depth=media[dom], reference_smooth_km=float(reference_smooth_km),
         bands=band_list,
     )
 
 
-def _focusing_maps(depth: xr.DataArray, runs: list[BandTrace], flatr: Any, x0: np.ndarray, y0: np.ndarray,
+def _focusing_maps(depth: xr.DataArray, runs: list[BandTrace], flatr: Any, dist: xr.DataArray,
                    period_s: float, reference_smooth_km: float) -> dict[str, xr.DataArray]:
     """Energy, lensing and focusing rasters (band-weighted, Fresnel-regularised) and travel time."""
     wts = [b.weight for b in runs]
     raw = _weighted_map([b.real.energy for b in runs], wts, "energy")
     raw_ref = _weighted_map([b.reference.energy for b in runs], wts, "energy")
-    sigma = fresnel_sigma_m(depth, period_s, distance_to_launch_m(depth, x0, y0))
+    sigma = fresnel_sigma_m(depth, period_s, dist)
     sea = _sea(depth)
-    e_real = regularised_energy(raw, sigma, sea)
-    e_ref = regularised_energy(raw_ref, sigma, sea)
-    e_flat = regularised_energy(flatr.energy, sigma, sea)
+    e_real, e_ref, e_flat = regularised_energies([raw, raw_ref, flatr.energy], sigma, sea)
     lens = ratio_map(e_real, e_ref, "lensing_factor",
                      f"energy over real / over same-mean reference bathymetry (low-pass {reference_smooth_km:g} km)")
     foc = ratio_map(e_real, e_flat, "focusing_factor", "energy over real bathymetry / over constant-depth ocean")

@@ -16,7 +16,7 @@ from scipy.spatial import cKDTree
 
 from ..cautions import caution_summary
 from ..coast.coastline import coastline_from_grid
-from ..coast.tubes import TUBE_MIN_WIDTH, TubeDeposit, nearest_segment, tube_deposit, tube_steps
+from ..coast.tubes import TUBE_MIN_WIDTH, CoastGeometry, TubeDeposit, nearest_segment, tube_deposit, tube_steps
 from ..constants import GRAVITY, RHO_SEAWATER
 from ..errors import CoastError, InputError, ResolutionWarning
 from ..grid import GridInfo
@@ -145,14 +145,14 @@ def _boot_energy(matrices: Sequence[tuple[float, sparse.csr_matrix]], nseg: int,
 
 
 def _deposits(bands: list[BandTrace], which: str, segments: pd.DataFrame, depth: xr.DataArray,
-              info: GridInfo, max_distance_m: float, min_width_factor: float,
+              geo: CoastGeometry, max_distance_m: float, min_width_factor: float,
               max_incidence_deg: float) -> list[TubeDeposit] | None:
     runs = [getattr(b, which) for b in bands]
     if any(r is None for r in runs):
         return None
-    return [tube_deposit(segments, r.end, depth, steps=tube_steps(r.end, info), period_s=b.period_s,
+    return [tube_deposit(segments, r.end, depth, steps=tube_steps(r.end, geo.info), period_s=b.period_s,
                          max_distance_m=max_distance_m, min_width_factor=min_width_factor,
-                         max_incidence_deg=max_incidence_deg) for b, r in zip(bands, runs)]
+                         max_incidence_deg=max_incidence_deg, coast=geo) for b, r in zip(bands, runs)]
 
 
 def _combined(bands: list[BandTrace], deps: list[TubeDeposit], length: np.ndarray) -> dict[str, np.ndarray]:
@@ -218,7 +218,7 @@ def _fresnel_width(out: pd.DataFrame, end: xr.Dataset, info: GridInfo, c_stop: n
 
 
 def _descriptive(segments: pd.DataFrame, end: xr.Dataset, info: GridInfo, max_distance_m: float,
-                 stop: float) -> tuple[pd.DataFrame, np.ndarray, np.ndarray]:
+                 stop: float, geo: CoastGeometry) -> tuple[pd.DataFrame, np.ndarray, np.ndarray]:
     """Nearest-segment assignment of the dominant band's coast rays: times, directions, depths."""
     reason = np.asarray(end["reason"].values)
     coast = reason == REASON_COAST
@@ -231,7 +231,7 @@ def _descriptive(segments: pd.DataFrame, end: xr.Dataset, info: GridInfo, max_di
     idx = np.full(int(end.sizes["ray"]), -1, dtype=np.int64)
     ci = np.flatnonzero(coast)
     idx[ci], _ = nearest_segment(segments, info, np.asarray(end["x"].values, float)[ci],
-                         np.asarray(end["y"].values, float)[ci], max_distance_m)
+                         np.asarray(end["y"].values, float)[ci], max_distance_m, geo.index)
     if not (idx >= 0).any():
         raise CoastError(
             f"{ci.size} rays reached the stop isobath but none within max_distance_m="
@@ -355,9 +355,10 @@ def segment_arrivals(
     stop = float(end.attrs.get("stop_depth_m", np.nan))
     if max_distance_m is None:
         max_distance_m = _default_max_distance(segments, depth, info, stop)
-    out, h_stop, idx = _descriptive(segments, end, info, max_distance_m, stop)
+    geo = CoastGeometry.build(segments, depth)  # once for all bands and both oceans
+    out, h_stop, idx = _descriptive(segments, end, info, max_distance_m, stop, geo)
     length = segments["length_m"].to_numpy(float)
-    args = (segments, depth, info, max_distance_m, min_width_factor, max_incidence_deg)
+    args = (segments, depth, geo, max_distance_m, min_width_factor, max_incidence_deg)
     real_d = _deposits(bl, "real", *args)
     ref_d = _deposits(bl, "reference", *args)
     rng = np.random.default_rng(seed)

@@ -29,6 +29,7 @@ def branch_diagnostics(
     bin_m: float | None = None,
     coast_distance_m: float | None = None,
     fluctuations: dict | None = None,
+    launch_distance_m: xr.DataArray | None = None,
 ) -> dict[str, Any]:
     """Caustics, scintillation and the expected distance to strong focusing of one ray run.
 
@@ -44,6 +45,8 @@ def branch_diagnostics(
         (and without ``fluctuations``) no prediction is made.
     bin_m : float, optional
         Distance bin [m]; default 2 % of the longest ray path, at least one grid cell.
+    launch_distance_m : xarray.DataArray, optional
+        :func:`distance_to_launch_m` of the run's launch points when already computed.
     coast_distance_m : float, optional
         Distance of the coast from the source [m], compared with the predicted distance.
     fluctuations : dict, optional
@@ -77,7 +80,7 @@ def branch_diagnostics(
     out["mean_first_caustic_m"] = float(fc[has].mean()) if has.any() else float("nan")
     out["median_first_caustic_m"] = float(np.median(fc[has])) if has.any() else float("nan")
     out["mean_caustics_per_ray"] = float(ncau.mean()) if ncau.size else float("nan")
-    prof = _scintillation(out, result, depth, bin_m)
+    prof = _scintillation(out, result, depth, bin_m, launch_distance_m)
     centres = edges
     si_interp = np.interp(centres, prof["distance_m"].to_numpy(float), prof["scintillation"].to_numpy(float),
                           left=np.nan, right=np.nan) if len(prof) else np.full(centres.shape, np.nan)
@@ -97,11 +100,13 @@ def branch_diagnostics(
     return out
 
 
-def _scintillation(out: dict, result: Any, depth: xr.DataArray, bin_m: float) -> pd.DataFrame:
+def _scintillation(out: dict, result: Any, depth: xr.DataArray, bin_m: float,
+                   dist: xr.DataArray | None = None) -> pd.DataFrame:
     """Scintillation of the ray energy over the reached sea (whole map and against distance; in ``out``)."""
     end = result.end
     sea = _sea(depth)
-    dist = distance_to_launch_m(depth, end["launch_x"].values, end["launch_y"].values)
+    if dist is None:
+        dist = distance_to_launch_m(depth, end["launch_x"].values, end["launch_y"].values)
     reached = sea & np.isfinite(np.asarray(result.first_arrival_s.values, dtype=float)) \
         if result.first_arrival_s is not None else sea
     prof = scintillation_profile(result.energy, dist, bin_m=bin_m, where=reached) \

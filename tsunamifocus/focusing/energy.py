@@ -10,9 +10,9 @@ from ..cautions import caution_summary
 from ..constants import GRAVITY, MIN_DEPTH_M
 from ..errors import InputError
 from ..grid import GridInfo
-from ..ocean.smooth import _to_xyz, smooth_field
+from ..ocean.smooth import _to_xyz, smooth_fields
 
-__all__ = ['fresnel_sigma_m', 'regularised_energy', 'ratio_map', 'point_source_energy_width', 'distance_to_launch_m']
+__all__ = ['fresnel_sigma_m', 'regularised_energy', 'regularised_energies', 'ratio_map', 'point_source_energy_width', 'distance_to_launch_m']
 
 
 def distance_to_launch_m(
@@ -40,7 +40,7 @@ def distance_to_launch_m(
     pts = np.unique(np.round(_to_xyz(info, launch_x, launch_y), 3), axis=0)
     tree = cKDTree(pts)
     X, Y = np.meshgrid(info.x, info.y)
-    d, _ = tree.query(_to_xyz(info, X, Y))
+    d, _ = tree.query(_to_xyz(info, X, Y), workers=-1)
     if info.geographic:
         d = 2 * info.radius_m * np.arcsin(np.clip(d / (2 * info.radius_m), 0, 1))
     out = grid.copy(data=d.reshape(X.shape))
@@ -119,16 +119,26 @@ def regularised_energy(
     xarray.DataArray
         Regularised energy map [J m-1], name ``energy``.
     """
-    out = smooth_field(energy, sigma_m, mask=mask)
-    out.name = "energy"
-    out.attrs = {
-        **{k: v for k, v in energy.attrs.items() if k in ("grid_mapping", "lon_periodic")},
-        "units": "J m-1",
-        "long_name": "ray energy per unit wavefront width, Fresnel-zone regularised",
-        "regularisation": "Gaussian, std = sqrt(lambda L)/2 (first Fresnel zone radius at mid-path)",
-        "caution": caution_summary(),
-    }
-    return out
+    return regularised_energies([energy], sigma_m, mask)[0]
+
+
+def regularised_energies(
+    energies: list[xr.DataArray],
+    sigma_m: xr.DataArray | float,
+    mask: np.ndarray | None = None,
+) -> list[xr.DataArray]:
+    """:func:`regularised_energy` of several energy maps with one kernel (each width level computed once)."""
+    outs = smooth_fields(energies, [(i, sigma_m) for i in range(len(energies))], mask=mask)
+    for energy, out in zip(energies, outs):
+        out.name = "energy"
+        out.attrs = {
+            **{k: v for k, v in energy.attrs.items() if k in ("grid_mapping", "lon_periodic")},
+            "units": "J m-1",
+            "long_name": "ray energy per unit wavefront width, Fresnel-zone regularised",
+            "regularisation": "Gaussian, std = sqrt(lambda L)/2 (first Fresnel zone radius at mid-path)",
+            "caution": caution_summary(),
+        }
+    return outs
 
 
 def ratio_map(num: xr.DataArray, den: xr.DataArray, name: str, long_name: str) -> xr.DataArray:

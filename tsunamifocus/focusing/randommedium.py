@@ -8,6 +8,7 @@ from functools import lru_cache
 import numpy as np
 import pandas as pd
 import xarray as xr
+from scipy import fft as sfft
 from scipy import integrate
 
 from ..errors import InputError
@@ -23,11 +24,12 @@ __all__ = ['fluctuation_statistics', 'riccati_caustic_constant', 'riccati_causti
 def _corr_length_from_acf(f: np.ndarray, m: np.ndarray, dx: float, dy: float) -> float:
     """Length where the masked, radially averaged autocorrelation falls to exp(-1/2) [m]."""
     ny, nx = f.shape
-    py, px = 2 * ny, 2 * nx
-    F = np.fft.rfft2(np.where(m, f, 0.0), s=(py, px))
-    M = np.fft.rfft2(m.astype(float), s=(py, px))
-    num = np.fft.irfft2(F * np.conj(F), s=(py, px))
-    den = np.fft.irfft2(M * np.conj(M), s=(py, px))
+    # zero padding to at least twice the size (no wrap-around), at lengths the FFT does fast
+    py, px = sfft.next_fast_len(2 * ny, real=True), sfft.next_fast_len(2 * nx, real=True)
+    F = sfft.rfft2(np.where(m, f, 0.0), s=(py, px), workers=-1)
+    M = sfft.rfft2(m.astype(float), s=(py, px), workers=-1)
+    num = sfft.irfft2(F * np.conj(F), s=(py, px), workers=-1)
+    den = sfft.irfft2(M * np.conj(M), s=(py, px), workers=-1)
     with np.errstate(invalid="ignore", divide="ignore"):
         acf = np.where(den > 0.5 * den.max() * 0.05, num / den, np.nan)
     ky = np.fft.fftfreq(py) * py

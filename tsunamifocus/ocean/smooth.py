@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import dataclasses
 import math
+from collections.abc import Sequence
 
 import numpy as np
 import xarray as xr
@@ -14,7 +15,7 @@ from ..errors import (
 )
 from ..grid import GridInfo
 
-__all__ = ['smooth_bathymetry', 'sea_mask', 'smooth_field']
+__all__ = ['smooth_bathymetry', 'sea_mask', 'smooth_field', 'smooth_fields']
 
 
 def sea_mask(depth: xr.DataArray) -> xr.DataArray:
@@ -110,21 +111,26 @@ def _gauss_pass(f: np.ndarray, info: GridInfo, sigma_m: float, min_cells: float 
     return out
 
 
-def _normalised_gauss(f: np.ndarray, mask: np.ndarray, info: GridInfo, sigma_m: float,
-                      min_cells: float = 0.2) -> np.ndarray:
-    """Gaussian-weighted mean of ``f`` over the ``mask`` nodes (normalised convolution); NaN where no weight.
+def _gauss_any(arr: np.ndarray, info: GridInfo, sigma_m: float, min_cells: float = 0.2) -> np.ndarray:
+    """Gaussian of ``arr`` [std sigma_m metres]: directly, or through block means for widths of many cells.
 
     Widths of many cells are applied on a block-averaged grid (:func:`_decimation`) and
-    interpolated back (bilinear): the cost per level then stays that of a few-cell kernel.
+    interpolated back (bilinear): the cost per width then stays that of a few-cell kernel.
     """
-    a0 = np.where(mask, f, 0.0)
-    b0 = mask.astype(float)
     d = _decimation(info, sigma_m)
     if d > 1:
-        a, b = _coarse_gauss(a0, b0, info, sigma_m, d)
-    else:
-        a = _gauss_pass(a0, info, sigma_m, min_cells)
-        b = _gauss_pass(b0, info, sigma_m, min_cells)
+        return _coarse_gauss(arr, info, sigma_m, d)
+    return _gauss_pass(arr, info, sigma_m, min_cells)
+
+
+def _normalised_gauss(f: np.ndarray, mask: np.ndarray, info: GridInfo, sigma_m: float,
+                      min_cells: float = 0.2, weight: np.ndarray | None = None) -> np.ndarray:
+    """Gaussian-weighted mean of ``f`` over the ``mask`` nodes (normalised convolution); NaN where no weight.
+
+    ``weight`` is the Gaussian of the mask itself at this width when already computed.
+    """
+    a = _gauss_any(np.where(mask, f, 0.0), info, sigma_m, min_cells)
+    b = _gauss_any(mask.astype(float), info, sigma_m, min_cells) if weight is None else weight
     with np.errstate(invalid="ignore", divide="ignore"):
         return np.where(b > 1e-12, a / b, np.nan)
 
@@ -146,29 +152,25 @@ def _decimation(info: GridInfo, sigma_m: float) -> int:
     return max(1, d)
 
 
-def _coarse_gauss(a0: np.ndarray, b0: np.ndarray, info: GridInfo, sigma_m: float,
-                  d: int) -> tuple[np.ndarray, np.ndarray]:
-    """Gaussian of ``a0`` and ``b0`` through ``d x d`` block means, bilinear back to the grid.
+def _coarse_gauss(arr: np.ndarray, info: GridInfo, sigma_m: float, d: int) -> np.ndarray:
+    """Gaussian of ``arr`` through ``d x d`` block means, bilinear back to the grid.
 
     Block averaging and bilinear interpolation widen the kernel by a variance of about
     ``(d h)^2 / 4`` (``h`` the cell side: ``1/12`` for the box, ``1/6`` for the hat); the
     coarse Gaussian is narrowed by as much.
     """
-    ny, nx = a0.shape
+    ny, nx = arr.shape
     nyc, nxc = -(-ny // d), -(-nx // d)
     cinfo = dataclasses.replace(info, x0=info.x0 + 0.5 * (d - 1) * info.dx, y0=info.y0 + 0.5 * (d - 1) * info.dy,
                                 dx=info.dx * d, dy=info.dy * d, nx=nxc, ny=nyc)
     h = info.spacing_m()[1] if info.geographic else max(info.spacing_m())
     s_c = math.sqrt(max(sigma_m**2 - (d * h) ** 2 / 4.0, (0.5 * d * h) ** 2))
-    outs = []
-    for arr in (a0, b0):
-        pad = np.zeros((nyc * d, nxc * d))
-        pad[:ny, :nx] = arr
-        coarse = pad.reshape(nyc, d, nxc, d).mean(axis=(1, 3))
-        sm = _gauss_pass(coarse, cinfo, s_c, 0.2)
-        sm = _lin_axis(sm, 0, ny, d, False)
-        outs.append(_lin_axis(sm, 1, nx, d, info.periodic_x))
-    return outs[0], outs[1]
+    pad = np.zeros((nyc * d, nxc * d))
+    pad[:ny, :nx] = arr
+    coarse = pad.reshape(nyc, d, nxc, d).mean(axis=(1, 3))
+    sm = _gauss_pass(coarse, cinfo, s_c, 0.2)
+    sm = _lin_axis(sm, 0, ny, d, False)
+    return _lin_axis(sm, 1, nx, d, info.periodic_x)
 
 
 def _lin_axis(arr: np.ndarray, axis: int, n_out: int, d: int, periodic: bool) -> np.ndarray:
@@ -221,41 +223,104 @@ def smooth_field(
     xarray.DataArray
         Smoothed grid, NaN outside the mask.
     """
-    info = GridInfo.from_dataarray(field)
-    f = np.asarray(field.values, dtype=float)
-    m = np.isfinite(f) if mask is None else (np.asarray(mask, dtype=bool) & np.isfinite(f))
-    sig = np.asarray(sigma_m.values if isinstance(sigma_m, xr.DataArray) else sigma_m, dtype=float)
+    return smooth_fields([field], [(0, sigma_m)], mask=mask, levels_per_octave=levels_per_octave)[0]
 
-    def level(s: float) -> np.ndarray:
-        return _normalised_gauss(f, m, info, s)
 
-    if sig.ndim == 0:
-        if not (np.isfinite(sig) and sig >= 0):
-            raise InputError(f"smoothing width {float(sig)} m: expected a finite width >= 0 m")
-        out = level(float(sig))
-    else:
-        if sig.shape != f.shape:
-            raise InputError(f"sigma_m grid has shape {sig.shape}, field has {f.shape}")
-        ok = np.isfinite(sig) & (sig > 0) & m
-        out = np.where(m, f, np.nan)
-        if ok.any():
-            # widths below a fifth of a cell change nothing (_gauss_pass leaves them out)
-            smin = max(float(sig[ok].min()), 0.15 * info.min_spacing_m())
-            smax = max(float(sig[ok].max()), smin)
-            ratio = 2.0 ** (1.0 / max(1, int(levels_per_octave)))
-            nlev = max(1, int(math.ceil(math.log(smax / smin) / math.log(ratio))) + 1) if smax > smin else 1
-            levels = smin * ratio ** np.arange(nlev)
-            if nlev == 1:
-                out = np.where(ok, level(float(levels[0])), out)
-            else:
-                t = np.log(np.where(ok, np.maximum(sig, smin), smin) / smin) / math.log(ratio)
-                k = np.clip(np.floor(t).astype(int), 0, nlev - 2)
-                frac = np.clip(t - k, 0.0, 1.0)
-                acc = np.zeros(f.shape)
-                for i, s_i in enumerate(levels):
-                    wt = np.where(k == i, 1.0 - frac, 0.0) + np.where(k == i - 1, frac, 0.0)
-                    if wt.any():
-                        acc += wt * np.nan_to_num(level(float(s_i)))
-                out = np.where(ok, acc, out)
-    res = field.copy(data=np.where(m, out, np.nan))
-    return res
+def smooth_fields(
+    fields: Sequence[xr.DataArray],
+    requests: Sequence[tuple[int, float | xr.DataArray | np.ndarray]],
+    *,
+    mask: np.ndarray | xr.DataArray | None = None,
+    levels_per_octave: int = 2,
+) -> list[xr.DataArray]:
+    """:func:`smooth_field` of several fields at several widths, each width level computed once.
+
+    All requests share one ladder of widths (``2**(1/levels_per_octave)`` apart, from the
+    smallest requested width to the largest); each level's Gaussian of the mask is computed once
+    for all fields that take part in the same nodes, and each field's once for all its requests.
+    Each result equals :func:`smooth_field` of its field at its width over that ladder.
+
+    Parameters
+    ----------
+    fields : sequence of xarray.DataArray
+        Grids of one shape and one grid.
+    requests : sequence of (int, float or array)
+        ``(index into fields, sigma_m)`` for each result (see :func:`smooth_field`).
+    mask : array of bool, optional
+        Nodes that take part (with each field's finite values); default: finite values.
+    levels_per_octave : int
+        Width levels per factor of 2.
+
+    Returns
+    -------
+    list of xarray.DataArray
+        One smoothed grid per request, NaN outside its field's mask.
+    """
+    if not fields:
+        return []
+    info = GridInfo.from_dataarray(fields[0])
+    fs = [np.asarray(f.values, dtype=float) for f in fields]
+    for f in fs:
+        if f.shape != fs[0].shape:
+            raise InputError(f"fields to smooth have shapes {fs[0].shape} and {f.shape}: expected one grid")
+    base = np.ones(fs[0].shape, bool) if mask is None else np.asarray(mask, dtype=bool)
+    ms = [base & np.isfinite(f) for f in fs]
+    sigs = []
+    for j, sg in requests:
+        sig = np.asarray(sg.values if isinstance(sg, xr.DataArray) else sg, dtype=float)
+        if sig.ndim == 0:
+            if not (np.isfinite(sig) and sig >= 0):
+                raise InputError(f"smoothing width {float(sig)} m: expected a finite width >= 0 m")
+            sig = np.where(ms[j], float(sig), np.nan) if sig > 0 else np.full(fs[j].shape, np.nan)
+        elif sig.shape != fs[j].shape:
+            raise InputError(f"sigma_m grid has shape {sig.shape}, field has {fs[j].shape}")
+        sigs.append(sig)
+    outs = _smooth_many(fs, ms, [j for j, _ in requests], sigs, info, levels_per_octave)
+    return [fields[j].copy(data=np.where(ms[j], o, np.nan)) for (j, _), o in zip(requests, outs)]
+
+
+def _smooth_many(fs: list[np.ndarray], ms: list[np.ndarray], which: list[int], sigs: list[np.ndarray],
+                 info: GridInfo, levels_per_octave: int) -> list[np.ndarray]:
+    """Core of :func:`smooth_fields` on arrays: one width ladder, each level's Gaussians computed once."""
+    outs = [np.where(ms[j], fs[j], np.nan) for j in which]
+    oks = [np.isfinite(s) & (s > 0) & ms[j] for j, s in zip(which, sigs)]
+    if not any(ok.any() for ok in oks):
+        return outs
+    # widths below a fifth of a cell change nothing (_gauss_pass leaves them out)
+    smin = max(min(float(s[ok].min()) for s, ok in zip(sigs, oks) if ok.any()), 0.15 * info.min_spacing_m())
+    smax = max(max(float(s[ok].max()) for s, ok in zip(sigs, oks) if ok.any()), smin)
+    ratio = 2.0 ** (1.0 / max(1, int(levels_per_octave)))
+    nlev = max(1, int(math.ceil(math.log(smax / smin) / math.log(ratio))) + 1) if smax > smin else 1
+    plans = []  # per request: flat nodes, lower level, weight of the upper level, nodes grouped by level
+    for s, ok in zip(sigs, oks):
+        idx = np.flatnonzero(ok)
+        t = np.log(np.maximum(s.ravel()[idx], smin) / smin) / math.log(ratio)
+        k = np.clip(np.floor(t).astype(np.int64), 0, max(nlev - 2, 0))
+        frac = np.clip(t - k, 0.0, 1.0) if nlev > 1 else np.zeros(idx.size)
+        order = np.argsort(k, kind="stable")
+        bounds = np.searchsorted(k[order], np.arange(nlev + 1))
+        plans.append((idx, frac, order, bounds, np.zeros(idx.size)))
+    groups: dict[bytes, list[int]] = {}  # fields sharing one node mask share the mask's Gaussian
+    for j in sorted(set(which)):
+        groups.setdefault(np.packbits(ms[j]).tobytes(), []).append(j)
+    for lev in range(nlev):
+        s_i = float(smin * ratio**lev)
+        lower = [(r, p[2][p[3][lev]:p[3][lev + 1]]) for r, p in enumerate(plans)]
+        upper = [(r, p[2][p[3][lev - 1]:p[3][lev]]) if lev > 0 else (r, p[2][:0]) for r, p in enumerate(plans)]
+        need = {which[r] for r, g in lower + upper if g.size}
+        for js in groups.values():
+            js = [j for j in js if j in need]
+            if not js:
+                continue
+            wgt = _gauss_any(ms[js[0]].astype(float), info, s_i)
+            for j in js:
+                lvl = np.nan_to_num(_normalised_gauss(fs[j], ms[j], info, s_i, weight=wgt)).ravel()
+                for (r, lo), (_, up) in zip(lower, upper):
+                    if which[r] != j:
+                        continue
+                    idx, frac, _, _, acc = plans[r]
+                    acc[lo] += (1.0 - frac[lo]) * lvl[idx[lo]]
+                    acc[up] += frac[up] * lvl[idx[up]]
+    for o, p in zip(outs, plans):
+        o.ravel()[p[0]] = p[4]
+    return outs

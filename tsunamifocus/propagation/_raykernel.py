@@ -381,8 +381,13 @@ def _accumulate(A, u0, v0, u1, v1, t0, h, wds, mx, my, nx, ny, periodic, tcap):
 @njit(cache=True, error_model="numpy", fastmath=_FM)
 def _trace_one(k, X, Y, se, sn, q, p, w, coef, depth, X0, Y0, DX, DY, nx, ny, periodic, sph, R,
                cmin, dt, tmax, stop_depth_m, polar, A, accumulate, out, outi, path_slot, paths,
-               path_n, path_every):
-    """Trace ray k to its end; write its end state into out[k], outi[k]."""
+               path_n, path_every, cps, hcap, grav):
+    """Trace ray k to its end; write its end state into out[k], outi[k].
+
+    Time step: ``dt`` when ``hcap <= 0``; otherwise the time to cross ``cps`` local cell sides
+    (on the sphere ``R dlat`` and ``R dlon max(cos lat, 0.5)``, whichever is smaller) at the local
+    speed ``sqrt(grav d)``, capped at ``hcap`` and never below ``dt``.
+    """
     s = 0.0
     t = 0.0
     fc = np.nan
@@ -410,8 +415,21 @@ def _trace_one(k, X, Y, se, sn, q, p, w, coef, depth, X0, Y0, DX, DY, nx, ny, pe
     maxstep = int(math.ceil(tmax / dt - 1e-9)) + 1
     dup = 0.0
     dvp = 0.0
+    sy = abs(R * DY) if sph else abs(DY)
     for _it in range(maxstep):
         h = dt
+        if hcap > 0.0:
+            cl = math.sqrt(grav * d) if d > 0.0 else cmin
+            if cl < cmin:
+                cl = cmin
+            side = abs(R * DX) * max(math.cos(Y), 0.5) if sph else abs(DX)
+            if sy < side:
+                side = sy
+            h = cps * side / cl
+            if h > hcap:
+                h = hcap
+            if h < dt:
+                h = dt
         if t + h > tmax:
             h = tmax - t
         if h <= 1e-9 * dt:
@@ -531,7 +549,7 @@ def _trace_one(k, X, Y, se, sn, q, p, w, coef, depth, X0, Y0, DX, DY, nx, ny, pe
 @njit(cache=True, parallel=True, error_model="numpy", fastmath=_FM)
 def trace_all(X0s, Y0s, se0, sn0, q0, p0, wts, coef, depth, X0, Y0, DX, DY, nx, ny, periodic, sph,
               R, cmin, dt, tmax, stop_depth_m, polar, Ach, accumulate, path_slot, paths, path_n,
-              path_every):
+              path_every, cps, hcap, grav):
     """Trace all rays; chunk m (one per thread) handles rays m, m + nchunk, ... in order.
 
     ``Ach`` has shape (nchunk, ny, nx, 2) (energy, first-arrival time interleaved, one cache line
@@ -547,7 +565,7 @@ def trace_all(X0s, Y0s, se0, sn0, q0, p0, wts, coef, depth, X0, Y0, DX, DY, nx, 
         for k in range(m, n, nchunk):
             _trace_one(k, X0s[k], Y0s[k], se0[k], sn0[k], q0[k], p0[k], wts[k], coef, depth, X0, Y0,
                        DX, DY, nx, ny, periodic, sph, R, cmin, dt, tmax, stop_depth_m, polar, A,
-                       accumulate, out, outi, path_slot, paths, path_n, path_every)
+                       accumulate, out, outi, path_slot, paths, path_n, path_every, cps, hcap, grav)
     return out, outi
 
 

@@ -105,6 +105,7 @@ def trace_rays(
     max_time_s: float = 86400.0,
     step_s: float | None = None,
     cells_per_step: float = 1.0,
+    max_step_s: float | None = None,
     gravity: float = GRAVITY,
     min_depth: float = MIN_DEPTH_M,
     threads: int | None = None,
@@ -140,6 +141,13 @@ def trace_rays(
     cells_per_step : float
         Default time step in cell crossings at the fastest speed (1 for raw grids; media smoothed
         over many cells can take more, see :data:`tsunamifocus.focusing.analysis.SMOOTHED_CELLS_PER_STEP`).
+    max_step_s : float, optional
+        Local time steps (not with ``step_s``): each ray steps ``cells_per_step`` crossings of
+        the cell where it is (on the sphere ``R dlat`` and ``R dlon max(cos lat, 0.5)``, whichever
+        is smaller) at its local speed, at most ``max_step_s`` [s] and never less than the default
+        step. Meant for media smoothed over a known length (the wavelength-smoothed oceans of
+        :func:`tsunamifocus.focusing.analysis.analyse_focusing`, where ``max_step_s`` is the time
+        a wave takes to cross one smoothing width). Default: every ray takes the default step.
     gravity, min_depth : float
         Long-wave speed ``c = sqrt(g max(h, min_depth))`` [m s-2], [m].
     threads : int, optional
@@ -180,11 +188,13 @@ def trace_rays(
     n = x0.size
     dt, threads = _check_settings(fld, stop_depth_m, max_time_s, step_s, keep_paths, path_points, threads,
                                   cells_per_step)
+    hcap = _check_max_step(max_step_s, step_s, dt)
     _check_launch(fld, x0, y0, stop_depth_m, polar_lat_deg)
     q0a, p0a = _initial_paraxial(fld, x0, y0, q0, p0)
     run = _run_kernel(fld, x0, y0, az, w, q0a, p0a, dt=dt, max_time_s=max_time_s, stop_depth_m=stop_depth_m,
                       polar_lat_deg=polar_lat_deg, threads=threads, accumulate=accumulate,
-                      keep_paths=int(keep_paths), path_points=int(path_points))
+                      keep_paths=int(keep_paths), path_points=int(path_points),
+                      local=(float(cells_per_step), hcap, float(fld.gravity)))
     out, outi = run["out"], run["outi"]
     end = _end_dataset(info, out, outi, x0, y0, az, w, dt, stop_depth_m, q0a)
     energy = first = None
@@ -196,6 +206,7 @@ def trace_rays(
         "n_rays": int(n), "n_steps": int(outi[:, 2].sum()),
         "reasons": {name: int(np.sum(reason == code)) for name, code in REASON_CODES.items()},
         "elapsed_s": time.perf_counter() - t_start, "threads": threads, "step_s": dt,
+        "max_step_s": hcap if hcap > 0 else None,
         "geometry": "sphere" if info.geographic else "plane",
     }
     return RayResult(end=end, energy=energy, first_arrival_s=first, paths=paths, stats=stats)
@@ -272,6 +283,19 @@ def _check_settings(fld: SpeedField, stop_depth_m, max_time_s, step_s, keep_path
     return dt, threads
 
 
+def _check_max_step(max_step_s, step_s, dt: float) -> float:
+    """The local-step cap [s] for the kernel (0: fixed steps)."""
+    if max_step_s is None:
+        return 0.0
+    if step_s is not None:
+        raise RayError(f"step_s = {step_s!r} and max_step_s = {max_step_s!r}: give a fixed step or local steps, "
+                       "not both")
+    h = float(max_step_s)
+    if not (np.isfinite(h) and h > 0):
+        raise RayError(f"max_step_s = {max_step_s!r}: expected a positive time in seconds")
+    return max(h, dt)
+
+
 def _check_launch(fld: SpeedField, x0: np.ndarray, y0: np.ndarray, stop_depth_m: float, polar_lat_deg: float) -> None:
     """Refuse launches outside the grid, beyond the polar limit, on no data, on land or inside the stop isobath."""
     info = fld.info
@@ -309,7 +333,7 @@ def _check_launch(fld: SpeedField, x0: np.ndarray, y0: np.ndarray, stop_depth_m:
 
 
 def _run_kernel(fld: SpeedField, x0, y0, az, w, q0a, p0a, *, dt, max_time_s, stop_depth_m, polar_lat_deg, threads,
-                accumulate, keep_paths, path_points) -> dict:
+                accumulate, keep_paths, path_points, local=(1.0, 0.0, GRAVITY)) -> dict:
     """Lay out the kernel's buffers, run it on ``threads`` threads and reduce the accumulation grids."""
     warn_cache_fallback()
     info = fld.info
@@ -360,6 +384,7 @@ def _run_kernel(fld: SpeedField, x0, y0, az, w, q0a, p0a, *, dt, max_time_s, sto
                     X0, Y0, DX, DY, nx, ny, bool(info.periodic_x), bool(info.geographic), float(fld.radius_m),
                     float(fld.c_min), float(dt), float(max_time_s), float(stop_depth_m), polar, Ach,
                     bool(accumulate), path_slot[a:b], paths_buf, path_n, path_every,
+                    float(local[0]), float(local[1]), float(local[2]),
                 )
                 outs.append(o)
                 outis.append(oi)

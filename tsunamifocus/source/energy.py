@@ -5,6 +5,7 @@ from __future__ import annotations
 import math
 
 import numpy as np
+from scipy import fft as sfft
 import xarray as xr
 
 from ..constants import GRAVITY, RHO_SEAWATER
@@ -197,13 +198,19 @@ def period_bands(
     else:
         dx, dy = gi.dx, gi.dy
     py, px = min(pad * block.shape[0], 4096), min(pad * block.shape[1], 4096)
-    power = np.abs(np.fft.fft2(block, s=(py, px))) ** 2
-    kx = 2 * np.pi * np.fft.fftfreq(px, d=dx)
+    # real input: the half plane kx >= 0 of the power spectrum, the columns that stand for
+    # their mirror image (-kx) counted twice
+    power = np.abs(sfft.rfft2(block, s=(py, px), workers=-1)) ** 2
+    wcol = np.full(power.shape[1], 2.0)
+    wcol[0] = 1.0
+    if px % 2 == 0:
+        wcol[-1] = 1.0
+    kx = 2 * np.pi * np.fft.rfftfreq(px, d=dx)
     ky = 2 * np.pi * np.fft.fftfreq(py, d=dy)
-    k = np.hypot(*np.meshgrid(kx, ky))
-    with np.errstate(divide="ignore"):
-        period = np.where(k > 0, 2 * np.pi / (k * c_s), np.inf)
-    edges = period_s * np.array([0.0, 2**-0.5, 2**0.5, np.inf])
-    share = np.array([power[(period >= edges[i]) & (period < edges[i + 1])].sum() for i in range(3)])
+    k = np.hypot(ky[:, None], kx[None, :])
+    # period T = 2 pi / (k c_s): band edges T0 / sqrt(2) and sqrt(2) T0 as wavenumbers
+    k_short, k_long = 2 * np.pi / (period_s * 2**-0.5 * c_s), 2 * np.pi / (period_s * 2**0.5 * c_s)
+    band = np.where(k > k_short, 0, np.where(k > k_long, 1, 2))
+    share = np.bincount(band.ravel(), weights=(power * wcol).ravel(), minlength=3)[:3]
     share = share / share.sum()
     return [(float(t), float(s)) for t, s in zip(period_s * np.array([0.5, 1.0, 2.0]), share)]
