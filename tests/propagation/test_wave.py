@@ -146,6 +146,34 @@ def test_radiating_edge_lets_a_normal_pulse_out():
 # ------------------------------------------------------------------------------------------------
 
 
+@pytest.mark.parametrize("h1, h2", [(4000.0, 1000.0), (1000.0, 4000.0)])
+def test_depth_step_reflects_and_transmits_as_long_wave_theory(h1, h2):
+    # Long waves meeting an abrupt change of depth (Lamb, Hydrodynamics, 6th ed. 1932, the article on
+    # long waves at a sudden change of section; article number from memory): continuity of elevation and
+    # of volume flux h u at the step give the reflected and transmitted amplitude ratios
+    # R = (c1 - c2) / (c1 + c2) and T = 2 c1 / (c1 + c2), c = sqrt(g h). Onto a shelf (c2 < c1) the
+    # reflection keeps the sign of the incident pulse, off it the reflected pulse is inverted.
+    dx = 1000.0
+    x = np.arange(0.0, 800e3, dx)
+    xs, x0, sig = 500e3, 250e3, 10e3
+    depth = make_grid(np.tile(np.where(x < xs, h1, h2), (3, 1)), x, np.arange(3) * dx, "EPSG:3857")
+    eta0 = depth.copy(data=np.tile(np.exp(-((x - x0) ** 2) / (2 * sig**2)), (3, 1)))
+    c1, c2 = math.sqrt(GRAVITY * h1), math.sqrt(GRAVITY * h2)
+    t_step = (xs - x0) / c1
+    # end when the reflected pulse is half-way back to the launch point and the transmitted one has
+    # not reached the east edge (the initial hump's west-going half has left through the west edge)
+    duration = t_step + min(0.5 * (xs - x0) / c1, 0.6 * (x[-1] - xs) / c2)
+    res = simulate_linear_long_wave(depth, eta0, duration_s=duration, stop_depth_m=10.0,
+                                    boundary=("absorb", "absorb", "reflect", "reflect"), threads=1)
+    row = res.eta.values[1]
+    up, down = x < xs, x >= xs
+    r_num = row[up][np.argmax(np.abs(row[up]))] / 0.5  # the incident half-pulse has amplitude 0.5
+    _, t_peak = _crest(np.where(down, row, -np.inf), dx)
+    r_th, t_th = (c1 - c2) / (c1 + c2), 2 * c1 / (c1 + c2)
+    assert r_num == pytest.approx(r_th, abs=0.01)
+    assert t_peak / 0.5 == pytest.approx(t_th, rel=0.01)
+
+
 def _random_basin(n: int = 96, seed: int = 3):
     dx = 2000.0
     d = 3000.0 * (1.0 + gaussian_random_field((n, n), dx, 15e3, rms=0.2, seed=seed))
