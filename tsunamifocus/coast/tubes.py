@@ -169,10 +169,13 @@ def _normal_share(za: np.ndarray, zb: np.ndarray) -> np.ndarray:
     ``(zb - za) phi(z_mid)`` (relative error below 1e-7), so a footprint much wider than the
     coast (a tube spread over an ocean) still spreads its energy instead of rounding to zero.
     """
-    dz = zb - za
-    diff = np.where(za > 0.0, ndtr(-za) - ndtr(-zb), ndtr(zb) - ndtr(za))
-    zm = 0.5 * (za + zb)
-    return np.where(dz < 1e-3, dz * np.exp(-0.5 * zm * zm) / math.sqrt(2.0 * math.pi), diff)
+    upper = za > 0.0
+    out = ndtr(np.where(upper, -za, zb)) - ndtr(np.where(upper, -zb, za))
+    narrow = np.flatnonzero(zb - za < 1e-3)
+    if narrow.size:
+        zm = 0.5 * (za[narrow] + zb[narrow])
+        out[narrow] = (zb[narrow] - za[narrow]) * np.exp(-0.5 * zm * zm) / math.sqrt(2.0 * math.pi)
+    return out
 
 
 def _arc_rows(arcs: _Arcs, line_r: np.ndarray, s0: np.ndarray, width: np.ndarray, reach: np.ndarray,

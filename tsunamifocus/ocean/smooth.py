@@ -8,12 +8,12 @@ from collections.abc import Sequence
 
 import numpy as np
 import xarray as xr
-from scipy import ndimage
 
 from ..errors import (
     InputError,
 )
 from ..grid import GridInfo
+from . import _smoothkernel as _sk
 
 __all__ = ['smooth_bathymetry', 'sea_mask', 'smooth_field', 'smooth_fields']
 
@@ -79,36 +79,29 @@ def _to_xyz(info: GridInfo, x: np.ndarray, y: np.ndarray) -> np.ndarray:
 # --------------------------------------------------------------------------------------
 # smoothing
 # --------------------------------------------------------------------------------------
-#: Rows of a lon/lat grid are grouped by their x width in steps of this much in log width.
-_ROW_WIDTH_STEP: float = 0.01
-
-
 def _gauss_pass(f: np.ndarray, info: GridInfo, sigma_m: float, min_cells: float = 0.2) -> np.ndarray:
-    """Separable Gaussian [std sigma_m metres]; on lon/lat the x width follows cos(lat).
+    """Separable Gaussian [std sigma_m metres]; on lon/lat the x width follows cos(lat), row by row.
 
-    Axes (rows on lon/lat) whose width is below ``min_cells`` cells are left as they are.
+    Axes (rows on lon/lat) whose width is below ``min_cells`` cells are left as they are. The
+    weights are :func:`scipy.ndimage.gaussian_filter1d`'s (truncated at 3 std, zero outside the
+    grid, wrapping around a global longitude grid), applied by the parallel kernels of
+    :mod:`tsunamifocus.ocean._smoothkernel`.
     """
     if sigma_m <= 0:
         return f.copy()
     dxm, dym = info.spacing_m()
+    f = np.ascontiguousarray(f, dtype=float)
     sy = sigma_m / dym
-    out = ndimage.gaussian_filter1d(f, sy, axis=0, mode="constant", truncate=3.0) if sy >= min_cells else f.copy()
+    out = _sk.gauss_y(f, sy, 3.0) if sy >= min_cells else f.copy()
     if info.geographic:
         k = math.pi / 180.0 * info.radius_m
         coslat = np.cos(np.radians(np.clip(info.y, -89.5, 89.5)))
-        mode = "wrap" if info.periodic_x else "constant"
         sx = np.minimum(sigma_m / (info.dx * k * coslat), 4.0 * info.nx)
-        # rows whose widths agree within 0.5 % are filtered together at their common width
-        key = np.round(np.log(np.maximum(sx, 1e-12)) / _ROW_WIDTH_STEP).astype(np.int64)
-        for kk in np.unique(key[sx >= min_cells]):
-            rows = np.flatnonzero((key == kk) & (sx >= min_cells))
-            out[rows] = ndimage.gaussian_filter1d(out[rows], math.exp(kk * _ROW_WIDTH_STEP), axis=1,
-                                                  mode=mode, truncate=3.0)
-    else:
-        sx = sigma_m / dxm
-        if sx >= min_cells:
-            out = ndimage.gaussian_filter1d(out, sx, axis=1, mode="constant", truncate=3.0)
-    return out
+        return _sk.gauss_x(out, np.ascontiguousarray(sx, dtype=float), 3.0, bool(info.periodic_x), float(min_cells))
+    sx = sigma_m / dxm
+    if sx < min_cells:
+        return out
+    return _sk.gauss_x(out, np.full(info.ny, sx), 3.0, False, float(min_cells))
 
 
 def _gauss_any(arr: np.ndarray, info: GridInfo, sigma_m: float, min_cells: float = 0.2) -> np.ndarray:

@@ -9,7 +9,9 @@ does not have. Following the wavelength-smoothing method (Lomax 1994, Geophys. J
 313-334: the velocity at each point is replaced by its average over a neighbourhood whose size
 is proportional to the local wavelength), the long-wave speed ``c = sqrt(g h)`` is averaged with
 a masked Gaussian of standard deviation ``fraction x lambda(x)``, where ``lambda`` is computed
-from the averaged speed itself (two fixed-point passes). Deep water is smoothed over tens of
+from the averaged speed itself (two fixed-point passes), or - as the focusing traces do - from the
+speed of one given large-scale ocean (the lensing reference), so that several oceans are averaged
+with the same kernels. Deep water is smoothed over tens of
 km, the shelf and the coast only over a few km, so the coastline and the stop isobath stay where
 they are. Land, no-data cells and cells at or shallower than the stop depth keep their depth;
 sea cells deeper than the stop depth never become shallower than it.

@@ -22,7 +22,7 @@ from numba import njit, prange, types
 from numba.core import cgutils
 from numba.extending import intrinsic
 
-from ._numbacache import ensure_cache_folder
+from ..io._numbacache import ensure_cache_folder
 
 ensure_cache_folder()  # before the cached kernels below are defined
 

@@ -23,7 +23,7 @@ from __future__ import annotations
 import numpy as np
 from numba import njit, prange
 
-from ._numbacache import ensure_cache_folder
+from ..io._numbacache import ensure_cache_folder
 
 ensure_cache_folder()  # before the cached kernels below are defined
 

@@ -27,7 +27,7 @@ from ..constants import EARTH_RADIUS_M, GRAVITY, MIN_DEPTH_M, STOP_DEPTH_M
 from ..errors import RayError
 from ..io.interrupts import PIECE_SECONDS, KernelStopped, interruptible, stop_requested
 from . import _raykernel as _k
-from ._numbacache import warn_cache_fallback
+from ..io._numbacache import warn_cache_fallback
 from .speedfield import SpeedField
 
 __all__ = ['RayResult', 'trace_rays', 'default_step_s', 'REASON_CODES', 'REASON_MEANINGS']

@@ -53,7 +53,7 @@ from ..grid import GridInfo
 from ..io.interrupts import KernelStopped, interruptible, stop_requested
 from ..io.progress import progress_bar
 from . import _wavekernel as _k
-from ._numbacache import warn_cache_fallback
+from ..io._numbacache import warn_cache_fallback
 
 __all__ = ['WaveResult', 'simulate_linear_long_wave', 'wave_time_step', 'WAVE_CAUTION', 'WAVE_LIMITS']
 

@@ -1,4 +1,4 @@
-"""No writable numba cache folder: the commands still work, with one warning (propagation/_numbacache.py).
+"""No writable numba cache folder: the commands still work, with one warning (io/_numbacache.py).
 
 numba refuses to define a ``cache=True`` function when no cache folder is usable ("cannot cache
 function ...: no locator available", numba.core.caching); the folders it tries are the source's
@@ -21,7 +21,7 @@ _SCRIPT = """
 import warnings
 from tsunamifocus.cli.app import main
 assert main(["inspect", {grid!r}]) == 0
-from tsunamifocus.propagation import _numbacache as c
+from tsunamifocus.io import _numbacache as c
 import tsunamifocus.propagation._raykernel as k
 with warnings.catch_warnings(record=True) as w:
     warnings.simplefilter("always")
@@ -35,7 +35,8 @@ print("CACHE_DIR", c._DONE[0])
 def test_read_only_cache_falls_back_to_a_temporary_folder(tmp_path):
     pkg = pathlib.Path(tsunamifocus.__file__).parent
     shutil.copytree(pkg, tmp_path / "tsunamifocus", ignore=shutil.ignore_patterns("__pycache__"))
-    (tmp_path / "tsunamifocus" / "propagation" / "__pycache__").write_text("not a folder")
+    for folder in ("io", "ocean", "propagation"):  # a read-only installation: no folder writable
+        (tmp_path / "tsunamifocus" / folder / "__pycache__").write_text("not a folder")
     grid = pkg.parent / "sample_scenarios" / "data" / "meridane_depth_lonlat.nc"
     env = {k: v for k, v in os.environ.items() if k != "NUMBA_CACHE_DIR"}
     env.update(PYTHONPATH=str(tmp_path), HOME="/sys/no-home", XDG_CACHE_HOME="/sys/no-cache",

@@ -1,0 +1,83 @@
+"""numba kernels of the separable Gaussian of :mod:`tsunamifocus.ocean.smooth` (private).
+
+One pass along y (one width for the whole grid) and one along x (a width per row: on lon/lat
+grids a degree of longitude shrinks with the cosine of latitude), each parallel over rows. The
+weights are those of :func:`scipy.ndimage.gaussian_filter1d` (a sampled Gaussian truncated at
+``truncate`` standard deviations, radius ``int(truncate sigma + 0.5)``, normalised to sum 1);
+outside the grid the field is zero, or wraps around in x on a global longitude grid.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+from numba import njit, prange
+
+from ..io._numbacache import ensure_cache_folder
+
+ensure_cache_folder()  # before the cached kernels below are defined
+
+__all__: list[str] = []
+
+
+@njit(cache=True)
+def _weights(sigma: float, truncate: float) -> np.ndarray:
+    """Normalised Gaussian weights of radius ``int(truncate sigma + 0.5)``."""
+    r = int(truncate * sigma + 0.5)
+    w = np.empty(2 * r + 1)
+    s = 0.0
+    for k in range(-r, r + 1):
+        v = math.exp(-0.5 * k * k / (sigma * sigma))
+        w[k + r] = v
+        s += v
+    for k in range(2 * r + 1):
+        w[k] /= s
+    return w
+
+
+@njit(cache=True, parallel=True)
+def gauss_y(f: np.ndarray, sigma: float, truncate: float) -> np.ndarray:
+    """Gaussian of std ``sigma`` cells along axis 0 (zero outside the grid)."""
+    ny, nx = f.shape
+    w = _weights(sigma, truncate)
+    r = (w.size - 1) // 2
+    out = np.zeros((ny, nx))
+    for i in prange(ny):
+        for k in range(-r, r + 1):
+            ii = i + k
+            if ii < 0 or ii >= ny:
+                continue
+            wk = w[k + r]
+            for j in range(nx):
+                out[i, j] += wk * f[ii, j]
+    return out
+
+
+@njit(cache=True, parallel=True)
+def gauss_x(f: np.ndarray, sigma_rows: np.ndarray, truncate: float, periodic: bool,
+            min_cells: float) -> np.ndarray:
+    """Gaussian along axis 1 with std ``sigma_rows[i]`` cells in row ``i``; rows below ``min_cells`` copied."""
+    ny, nx = f.shape
+    out = np.empty((ny, nx))
+    for i in prange(ny):
+        s = sigma_rows[i]
+        if not s >= min_cells:
+            for j in range(nx):
+                out[i, j] = f[i, j]
+            continue
+        w = _weights(s, truncate)
+        r = (w.size - 1) // 2
+        buf = np.zeros(nx + 2 * r)  # the row with r cells either side: wrapped or zero
+        for m in range(nx + 2 * r):
+            jj = m - r
+            if periodic:
+                buf[m] = f[i, jj % nx]
+            elif 0 <= jj < nx:
+                buf[m] = f[i, jj]
+        for j in range(nx):
+            acc = 0.0
+            for k in range(2 * r + 1):
+                acc += w[k] * buf[j + k]
+            out[i, j] = acc
+    return out
