@@ -15,7 +15,7 @@ For each case the script reports
 * the ray pipeline's wall time (:func:`tsunamifocus.studies.run.analyse_source`: Okada source, ray
   fan, period bands, tracing over the real, reference and constant-depth oceans, segment arrivals;
   the grid and the coastline segments are prepared beforehand and not timed) at the default
-  settings (20000 rays, 3 period bands) against the wave check's wall time
+  settings (DEFAULT_RAY_COUNT rays, 3 period bands) against the wave check's wall time
   (:func:`tsunamifocus.studies.check.compare_with_waves`: the solver over the real and over the
   reference ocean, default duration) on the same grid, and their ratio; the process CPU time
   (all threads) is printed too, since it stays meaningful when other jobs share the cores;
@@ -49,6 +49,7 @@ from tsunamifocus.io.scenario import parse_scenario, scenario_from_dict
 from tsunamifocus.propagation.wave import simulate_linear_long_wave
 from tsunamifocus.studies.check import compare_with_waves
 from tsunamifocus.studies.run import _segments_for, analyse_source, load_scenario_bathymetry
+from tsunamifocus.studies.settings import DEFAULT_RAY_COUNT
 
 REPO = pathlib.Path(__file__).resolve().parents[1]
 DEMO_SCENARIO = REPO / "sample_scenarios" / "meridane.toml"
@@ -68,7 +69,7 @@ def shared_data_dir() -> pathlib.Path | None:
     return None
 
 
-def real_scenario(etopo: pathlib.Path, rays: int = 20000, seed: int = 0):
+def real_scenario(etopo: pathlib.Path, rays: int = DEFAULT_RAY_COUNT, seed: int = 0):
     """Return the real-grid case as a scenario (grid, source, rays, coast of interest)."""
     return scenario_from_dict({
         "scenario": {"name": "japan-trench-mw90"},
@@ -180,7 +181,7 @@ def main() -> None:
     """Run the benchmark and print the table."""
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--demo-only", action="store_true", help="skip the real-grid case")
-    ap.add_argument("--rays", type=int, default=None, help="ray count (default: 20000, the scenario default)")
+    ap.add_argument("--rays", type=int, default=None, help="ray count (default: the scenario's, the project default)")
     ap.add_argument("--seeds", type=int, nargs=2, default=None,
                     help="two ray seeds (default: the scenario's seed and the next one)")
     args = ap.parse_args()

@@ -32,6 +32,7 @@ from tsunamifocus.focusing.agreement import compare_rankings
 from tsunamifocus.io.scenario import parse_scenario, scenario_from_dict
 from tsunamifocus.studies.check import compare_with_waves
 from tsunamifocus.studies.run import _segments_for, analyse_source, load_scenario_bathymetry
+from tsunamifocus.studies.settings import DEFAULT_RAY_COUNT
 
 REPO = pathlib.Path(__file__).resolve().parents[2]
 DEMO_SCENARIO = REPO / "sample_scenarios" / "meridane.toml"
@@ -50,7 +51,7 @@ def _with_seed(scenario, seed: int):
 
 
 # ------------------------------------------------------------------------------------------------
-# invented demo, default settings (20000 rays, 3 period bands)
+# invented demo, default settings (10000 rays, 3 period bands)
 # ------------------------------------------------------------------------------------------------
 
 
@@ -73,15 +74,17 @@ def test_demo_ray_rankings_agree_with_the_wave_solver(demo_runs):
     """Amplitude and lensing rankings of the demo against the wave solver over both oceans."""
     sc, a, _, chk = demo_runs
     print("demo vs wave:", chk.summary().splitlines()[1:3], f"n={chk.agreement['n']}")
-    assert sc.rays.count == 20000 and len(a.focusing.bands) == 3  # the default settings are what is judged
+    assert sc.rays.count == DEFAULT_RAY_COUNT and len(a.focusing.bands) == 3  # the default settings are what is judged
     seg = a.focusing.segments
     assert chk.agreement["n"] >= 60  # measured: all 66 segments of the coast of interest ranked
-    # amplitude at the stop isobath. Measured on 2026-12-02: Spearman 0.933, top-10 common 7/10.
-    assert chk.agreement["spearman"] >= 0.933 - 0.05
-    assert chk.agreement["topk_common"] >= 7 - 2
-    # lensing factor (wave: (A_real / A_reference)^2). Measured on 2026-12-02: Spearman 0.764,
-    # top-10 common 7/10.
-    assert chk.agreement["lensing"]["spearman"] >= 0.764 - 0.1
+    # amplitude at the stop isobath. Measured on 2026-12-02 (10000 rays): Spearman 0.926, top-10
+    # common 8/10 (the project target: 8/10).
+    assert chk.agreement["spearman"] >= 0.926 - 0.05
+    assert chk.agreement["topk_common"] >= 8 - 2
+    # lensing factor (wave: (A_real / A_reference)^2). Measured on 2026-12-02 (10000 rays, both
+    # oceans averaged over the reference's wavelength): Spearman 0.706, top-10 common 7/10 (the
+    # project target of 0.8 is not met; docs/focusing.md).
+    assert chk.agreement["lensing"]["spearman"] >= 0.706 - 0.1
     assert chk.agreement["lensing"]["topk_common"] >= 7 - 2
     # the check's figures are those of the ranked ray column against the wave column
     wave = chk.table.set_index("segment_id")["wave_amp_stop_m"]
@@ -100,15 +103,15 @@ def test_demo_rankings_are_stable_between_ray_seeds(demo_runs):
     b_wave = compare_rankings(_ranked(sb, "amp_stop_m"), wave, k=K)
     print("demo seeds:", {k: (v["spearman"], v["topk_common"]) for k, v in
                           (("amp", amp), ("lens", lens), ("seed8_vs_wave", b_wave))})
-    # Measured on 2026-12-02 (seeds 7 and 8): amplitude Spearman 0.999, top-10 10/10;
-    # lensing Spearman 0.998, top-10 10/10.
+    # Measured on 2026-12-02 (seeds 7 and 8, 10000 rays): amplitude Spearman 0.999, top-10 10/10;
+    # lensing Spearman 0.993, top-10 9/10.
     assert amp["spearman"] >= 0.999 - 0.03
     assert amp["topk_common"] >= 10 - 2
-    assert lens["spearman"] >= 0.998 - 0.05
-    assert lens["topk_common"] >= 10 - 2
+    assert lens["spearman"] >= 0.993 - 0.05
+    assert lens["topk_common"] >= 9 - 2
     # the second seed is judged by the same wave run as well as the first.
-    # Measured on 2026-12-02: seed 8 amplitude Spearman 0.934 vs the wave.
-    assert b_wave["spearman"] >= 0.934 - 0.05
+    # Measured on 2026-12-02 (10000 rays): seed 8 amplitude Spearman 0.930 vs the wave.
+    assert b_wave["spearman"] >= 0.930 - 0.05
 
 
 # ------------------------------------------------------------------------------------------------
@@ -123,7 +126,7 @@ def test_real_grid_amplitude_ranking_meets_target(etopo_path):
     # Global relief cropped to lon 120..250 E, lat 0..65 N (across the antimeridian); a Mw 9.0 thrust
     # off the Japan Trench; the coast of interest: 20 km segments of the 20 m contour with centres in
     # lon 235..244 E, lat 32..49 N (the mainland coast of North America); rays at the default settings
-    # (20000 rays, 3 period bands, seed 0), 15 h travel-time limit. The wave solver runs over the
+    # (10000 rays, 3 period bands, seed 0), 15 h travel-time limit. The wave solver runs over the
     # real ocean only (the amplitude ranking; one wave run keeps the test shorter).
     sc = scenario_from_dict({
         "scenario": {"name": "japan-trench-mw90"},
@@ -131,7 +134,7 @@ def test_real_grid_amplitude_ranking_meets_target(etopo_path):
         "source": [{"name": "japan-trench-mw90", "kind": "fault", "magnitude": 9.0,
                     "segment": [{"trace": [[141.9, 36.3], [143.4, 39.8]], "top_depth_km": 5.0,
                                  "dip_deg": 12.0, "width_km": 175.0, "rake_deg": 90.0}]}],
-        "rays": {"count": 20000, "stop_depth_m": 20.0, "max_time_h": 15.0, "seed": 0},
+        "rays": {"count": DEFAULT_RAY_COUNT, "stop_depth_m": 20.0, "max_time_h": 15.0, "seed": 0},
         "coast": {"segment_km": 20.0, "region": [235.0, 32.0, 244.0, 49.0]},
     }, base_dir=pathlib.Path(etopo_path).parent)
     depth = load_scenario_bathymetry(sc)
@@ -144,7 +147,8 @@ def test_real_grid_amplitude_ranking_meets_target(etopo_path):
     # measured: 143 ranked segments with a wave value; the 30 segments of water the eikonal front
     # cannot reach (inland seas and basins below sea level behind the coast) are not ranked
     assert chk.agreement["n"] >= 135
-    # Project target: Spearman >= 0.8. Measured on 2026-12-02: 0.915 (top-10 common 5/10; seed 1 in
-    # benchmarks/bench_focusing.py), so the target itself is asserted (margin 0.115 below the measured value).
+    # Project target: Spearman >= 0.8. Measured on 2026-12-02 (10000 rays): 0.901 (top-10 common 4/10;
+    # seed 1 in benchmarks/bench_focusing.py: 0.878), so the target itself is asserted (margin 0.1 below
+    # the measured value).
     print(chk.summary().splitlines()[1], f"n={chk.agreement['n']}")
     assert chk.agreement["spearman"] >= 0.8, chk.agreement

@@ -30,6 +30,7 @@ import shapely
 from pyproj import Geod
 
 from tsunamifocus.cli.app import main
+from tsunamifocus.studies.settings import DEFAULT_RAY_COUNT
 
 REGION = (-125.0, 32.0, -117.0, 49.0)
 POINTS = {
@@ -85,7 +86,7 @@ def test_japan_trench_to_west_coast_from_the_cli(etopo_path, tmp_path, capsys):
     assert main(["run", str(p)]) == 0
     err = capsys.readouterr().err
     # the summary says what was chosen and why; no resolution warning with default settings
-    assert "ray count per source: 20000 rays (default)" in err
+    assert f"ray count per source: {DEFAULT_RAY_COUNT} rays (default)" in err
     assert "segment length: 22.3 km (default: 2 grid cells of 11.1 km)" in err
     assert "coast of interest: lon -125..-117, lat 32..49" in err
     assert "ResolutionWarning: segment_length_m" not in err
@@ -93,9 +94,9 @@ def test_japan_trench_to_west_coast_from_the_cli(etopo_path, tmp_path, capsys):
     # manifest: the count and segment length actually used, how they were chosen, the region
     m = json.loads((out / "manifest.json").read_text())
     prm = m["parameters"]
-    assert prm["rays"]["count"] == 20000 and m["extra"]["settings_chosen"]["rays"]["origin"] == "default"
+    assert prm["rays"]["count"] == DEFAULT_RAY_COUNT and m["extra"]["settings_chosen"]["rays"]["origin"] == "default"
     assert prm["coast"]["segment_km"] == pytest.approx(22.3) and prm["coast"]["region"] == list(REGION)
-    assert m["extra"]["health"]["n_rays"] == 20000
+    assert m["extra"]["health"]["n_rays"] == DEFAULT_RAY_COUNT
 
     # segments: only the coast of interest, at least one reliable ranked segment
     seg = pd.read_csv(out / "segments.csv", comment="#")

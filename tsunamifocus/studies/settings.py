@@ -23,7 +23,7 @@ __all__ = ["Choice", "DEFAULT_RAY_COUNT", "MIN_SEGMENT_KM", "SEGMENT_CELLS", "ch
            "choose_ray_count", "with_choices"]
 
 #: Ray count used when the scenario gives none (until the count is derived from the problem).
-DEFAULT_RAY_COUNT = 20000
+DEFAULT_RAY_COUNT = 10000
 #: Shortest default segment [km] and the default segment length in grid cells.
 MIN_SEGMENT_KM = 10.0
 SEGMENT_CELLS = 2.0
