@@ -25,3 +25,13 @@ def test_a_weak_lensing_ranking_is_said_and_the_amplitude_ranking_recommended():
     # both weak: both said, no recommendation of a ranking that failed too
     both = "\n".join(_check_lines(_ag(0.3, 0.1)))
     assert both.count("weak") == 2 and "rank this coast" not in both
+
+
+def test_step_text_says_when_rays_took_local_steps():
+    # the run summary must not report one integration step when every ray chose its own (local
+    # steps between the grid's default step and the cap; common practice, no source)
+    from tsunamifocus.products.summaries import step_text
+
+    assert step_text({"step_s": 68.06, "max_step_s": 391.9}) == "68-392 s (each ray's own cell and speed)"
+    assert step_text({"step_s": 5.0, "max_step_s": None}) == "5.00 s"
+    assert step_text({"step_s": 5.0}) == "5.00 s"

@@ -14,6 +14,7 @@ from ..propagation.traveltime import isochrone_lines
 from ..io.gis import _plain_dtypes, longitude_note
 from ..studies.inspect import summarize_grid
 from ..studies.run import SourceAnalysis
+from .summaries import step_text
 
 __all__ = []
 
@@ -82,7 +83,7 @@ def _report_context(a: SourceAnalysis, scenario: Any, depth: xr.DataArray, point
         "rays per source": chosen("rays", scenario.rays.count),
         "stop isobath (m)": scenario.rays.stop_depth_m,
         "time limit (h)": scenario.rays.max_time_h,
-        "integration step (s)": f"{health['step_s']:.2f}",
+        "integration step": step_text(health),
         "reference low-pass (km)": f"{a.focusing.reference_smooth_km:.0f}"
         + ("" if scenario.focusing.reference_smooth_km else " (deep-water wavelength at the dominant period)"),
         "period bands (min: share)": ", ".join(f"{t / 60:.1f}: {w:.2f}" for t, w in a.focusing.bands),
@@ -99,7 +100,7 @@ def _report_context(a: SourceAnalysis, scenario: Any, depth: xr.DataArray, point
         "energy bookkeeping error": {"value": f"{health['energy_error_relative']:.2e}",
                                      "limit": f"{health['energy_tolerance']:.0e}",
                                      "ok": health["energy_error_relative"] <= health["energy_tolerance"]},
-        "integration step (s)": f"{health['step_s']:.2f}",
+        "integration step": step_text(health),
         "steps per ray (mean / max)": f"{health['steps_per_ray_mean']:.0f} / {health['steps_per_ray_max']:.0f}",
         "rays stopped in NaN holes or on land": f"{health['nan_or_land_fraction']:.2%}",
         "ray-steps per second": f"{health['ray_steps_per_s'] / 1e6:.1f} M",

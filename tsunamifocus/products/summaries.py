@@ -11,7 +11,15 @@ import pandas as pd
 from ..cautions import caution_summary
 from ..studies.run import RunResult
 
-__all__ = ['format_summary']
+__all__ = ['format_summary', 'step_text']
+
+
+def step_text(health: dict) -> str:
+    """The ray integration step of a run's health record: one step, or the range of local steps."""
+    hi = health.get("max_step_s")
+    if hi:
+        return f"{health['step_s']:.0f}-{hi:.0f} s (each ray's own cell and speed)"
+    return f"{health['step_s']:.2f} s"
 
 
 def _fmt_bytes(b: float) -> str:
@@ -162,7 +170,7 @@ def format_run_summary(result: RunResult) -> str:
         tf = ", ".join(f"{k} {v:.1%}" for k, v in h["termination_fraction"].items() if v > 0)
         lines.append(f"  rays: {h['n_rays']} ({tf}); energy bookkeeping error {h['energy_error_relative']:.2e}"
                      f" (limit {h['energy_tolerance']:.0e})")
-        lines.append(f"  integration step {h['step_s']:.2f} s, steps per ray {h['steps_per_ray_mean']:.0f} mean / "
+        lines.append(f"  integration step {step_text(h)}, steps per ray {h['steps_per_ray_mean']:.0f} mean / "
                      f"{h['steps_per_ray_max']:.0f} max; rays stopped in NaN holes or on land "
                      f"{h['nan_or_land_fraction']:.2%}")
         tts = getattr(a, "travel_times", None)

@@ -481,6 +481,7 @@ def health_checks(analysis: SourceAnalysis, tolerance: float = BUDGET_TOLERANCE)
         "energy_error_relative": float(b["relative_error"]),
         "energy_tolerance": tolerance,
         "step_s": float(st["step_s"]),
+        "max_step_s": float(st["max_step_s"]) if st.get("max_step_s") else None,
         "steps_per_ray_mean": float(steps.mean()),
         "steps_per_ray_max": float(steps.max()),
         "nan_or_land_fraction": float(fr.get("land_or_nodata", 0.0)),
