@@ -1744,8 +1744,9 @@ def plot_oceans(
             ax.set_xlabel("Longitude (deg)")
     axes[0].set_ylabel("Northing (km)" if not info.geographic else "Latitude (deg)")
     cb = fig.colorbar(im, ax=list(axes), shrink=0.85, pad=0.01)
-    cb.set_label("Depth (km); contours 200 m (dotted), 1000 m (dashed), 3000 m")
-    fig.suptitle(title, fontsize=plt_rc["axes.titlesize"], x=0.01, ha="left")
+    cb.set_label("Depth (km)")
+    fig.suptitle(f"{title}\nisobaths: 200 m dotted, 1000 m dashed, 3000 m solid", fontsize=plt_rc["axes.titlesize"],
+                 x=0.01, ha="left")
     fig.text(0.5, 0.004, CAUTION_FOOTER, ha="center", va="bottom", fontsize=7.5, color="0.25", style="italic")
     engine = fig.get_layout_engine()
     if engine is not None:
