@@ -35,6 +35,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Sequence
+from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -323,18 +324,26 @@ def analyse_focusing(
     wf = w[sub] * (w.sum() / max(w[sub].sum(), 1e-300))
     flatr = trace_rays(flat_depth(depth), x0[sub], y0[sub], az[sub], weights=wf,
                        **_band_kwargs(kw, band_list[dom][0], wavelength_fraction))
-    dist = distance_to_launch_m(depth, x0, y0)
-    maps = _focusing_maps(depth, runs, flatr, dist, period_s, reference_smooth_km)
     if segments is None:
         if segment_length_m is None:
             segment_length_m = 10.0 * max(info.spacing_m())
         segments = segment_coastline(coastline_from_grid(depth, stop_depth_m), segment_length_m, depth)
-    table = segment_arrivals(segments, None, depth, period_s=period_s, bands=runs,
-                             max_distance_m=max_distance_m, min_rays=min_rays, n_boot=n_boot, seed=seed,
-                             coast_area=coast_area)
+
+    def grids() -> tuple[dict, dict, xr.DataArray]:
+        dist = distance_to_launch_m(depth, x0, y0)
+        return (_focusing_maps(depth, runs, flatr, dist, period_s, reference_smooth_km),
+                fluctuation_statistics(depth, reference_smooth_km, lowpass=lowpass), dist)
+
+    # the maps (numba Gaussian passes, numpy) and the segment tables (numpy, scipy, shapely) are
+    # independent: the maps are made in a second thread meanwhile
+    with ThreadPoolExecutor(max_workers=1) as pool:
+        later = pool.submit(grids)
+        table = segment_arrivals(segments, None, depth, period_s=period_s, bands=runs,
+                                 max_distance_m=max_distance_m, min_rays=min_rays, n_boot=n_boot, seed=seed,
+                                 coast_area=coast_area)
+        maps, fluct, dist = later.result()
     ranking = rank_segments(table, top_k=top_k, by="lensing_factor")
     d_coast = _segment_distance(table, info, x0, y0)
-    fluct = fluctuation_statistics(depth, reference_smooth_km, lowpass=lowpass)
     diag = branch_diagnostics(runs[dom].real, depth, reference_smooth_km=reference_smooth_km,
                               coast_distance_m=d_coast, fluctuations=fluct, launch_distance_m=dist)
     budget = energy_budget([(b.real, b.weight) for b in runs], table, source_energy_J=e_src,

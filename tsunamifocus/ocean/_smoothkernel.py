@@ -36,7 +36,7 @@ def _weights(sigma: float, truncate: float) -> np.ndarray:
     return w
 
 
-@njit(cache=True, parallel=True)
+@njit(cache=True, parallel=True, nogil=True)
 def gauss_y(f: np.ndarray, sigma: float, truncate: float) -> np.ndarray:
     """Gaussian of std ``sigma`` cells along axis 0 (zero outside the grid)."""
     ny, nx = f.shape
@@ -54,7 +54,7 @@ def gauss_y(f: np.ndarray, sigma: float, truncate: float) -> np.ndarray:
     return out
 
 
-@njit(cache=True, parallel=True)
+@njit(cache=True, parallel=True, nogil=True)
 def gauss_x(f: np.ndarray, sigma_rows: np.ndarray, truncate: float, periodic: bool,
             min_cells: float) -> np.ndarray:
     """Gaussian along axis 1 with std ``sigma_rows[i]`` cells in row ``i``; rows below ``min_cells`` copied."""
@@ -81,3 +81,24 @@ def gauss_x(f: np.ndarray, sigma_rows: np.ndarray, truncate: float, periodic: bo
                 acc += w[k] * buf[j + k]
             out[i, j] = acc
     return out
+
+
+@njit(cache=True, parallel=True, nogil=True)
+def add_level(acc: np.ndarray, idx: np.ndarray, lower: np.ndarray, frac: np.ndarray, num: np.ndarray,
+              wgt: np.ndarray, lev: int) -> None:
+    """Add width level ``lev`` (normalised mean ``num / wgt``, 0 where no weight) to the nodes it brackets.
+
+    Node ``idx[n]`` lies between levels ``lower[n]`` and ``lower[n] + 1``, at ``frac[n]`` of the way
+    (linear in log width): it takes ``1 - frac`` of its lower level and ``frac`` of its upper one.
+    """
+    for n in prange(idx.size):
+        k = lower[n]
+        if k == lev:
+            w = 1.0 - frac[n]
+        elif k == lev - 1:
+            w = frac[n]
+        else:
+            continue
+        b = wgt[idx[n]]
+        if b > 1e-12:
+            acc[n] += w * (num[idx[n]] / b)

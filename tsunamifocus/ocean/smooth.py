@@ -272,6 +272,11 @@ def smooth_fields(
     return [fields[j].copy(data=np.where(ms[j], o, np.nan)) for (j, _), o in zip(requests, outs)]
 
 
+def groups_fields(groups: dict) -> list[int]:
+    """The field indices of mask groups (see :func:`_smooth_many`)."""
+    return [j for js in groups.values() for j in js]
+
+
 def _smooth_many(fs: list[np.ndarray], ms: list[np.ndarray], which: list[int], sigs: list[np.ndarray],
                  info: GridInfo, levels_per_octave: int) -> list[np.ndarray]:
     """Core of :func:`smooth_fields` on arrays: one width ladder, each level's Gaussians computed once."""
@@ -284,36 +289,33 @@ def _smooth_many(fs: list[np.ndarray], ms: list[np.ndarray], which: list[int], s
     smax = max(max(float(s[ok].max()) for s, ok in zip(sigs, oks) if ok.any()), smin)
     ratio = 2.0 ** (1.0 / max(1, int(levels_per_octave)))
     nlev = max(1, int(math.ceil(math.log(smax / smin) / math.log(ratio))) + 1) if smax > smin else 1
-    plans = []  # per request: flat nodes, lower level, weight of the upper level, nodes grouped by level
+    plans = []  # per request: flat nodes, lower level, weight of the upper level, levels used, sums
     for s, ok in zip(sigs, oks):
         idx = np.flatnonzero(ok)
         t = np.log(np.maximum(s.ravel()[idx], smin) / smin) / math.log(ratio)
         k = np.clip(np.floor(t).astype(np.int64), 0, max(nlev - 2, 0))
         frac = np.clip(t - k, 0.0, 1.0) if nlev > 1 else np.zeros(idx.size)
-        order = np.argsort(k, kind="stable")
-        bounds = np.searchsorted(k[order], np.arange(nlev + 1))
-        plans.append((idx, frac, order, bounds, np.zeros(idx.size)))
+        used = np.zeros(nlev + 1, bool)
+        used[np.unique(k)] = True
+        used[np.unique(k) + 1] = True
+        plans.append((idx, k, frac, used[:nlev] if nlev > 1 else used[:1] | True, np.zeros(idx.size)))
     groups: dict[bytes, list[int]] = {}  # fields sharing one node mask share the mask's Gaussian
     for j in sorted(set(which)):
         groups.setdefault(np.packbits(ms[j]).tobytes(), []).append(j)
+    zeroed = {j: np.where(ms[j], fs[j], 0.0) for j in groups_fields(groups)}
     for lev in range(nlev):
         s_i = float(smin * ratio**lev)
-        lower = [(r, p[2][p[3][lev]:p[3][lev + 1]]) for r, p in enumerate(plans)]
-        upper = [(r, p[2][p[3][lev - 1]:p[3][lev]]) if lev > 0 else (r, p[2][:0]) for r, p in enumerate(plans)]
-        need = {which[r] for r, g in lower + upper if g.size}
+        need = {which[r] for r, p in enumerate(plans) if p[3][lev]}
         for js in groups.values():
             js = [j for j in js if j in need]
             if not js:
                 continue
-            wgt = _gauss_any(ms[js[0]].astype(float), info, s_i)
+            wgt = _gauss_any(ms[js[0]].astype(float), info, s_i).ravel()
             for j in js:
-                lvl = np.nan_to_num(_normalised_gauss(fs[j], ms[j], info, s_i, weight=wgt)).ravel()
-                for (r, lo), (_, up) in zip(lower, upper):
-                    if which[r] != j:
-                        continue
-                    idx, frac, _, _, acc = plans[r]
-                    acc[lo] += (1.0 - frac[lo]) * lvl[idx[lo]]
-                    acc[up] += frac[up] * lvl[idx[up]]
+                num = _gauss_any(zeroed[j], info, s_i).ravel()
+                for r, p in enumerate(plans):
+                    if which[r] == j and p[3][lev]:
+                        _sk.add_level(p[4], p[0], p[1], p[2], num, wgt, lev)
     for o, p in zip(outs, plans):
         o.ravel()[p[0]] = p[4]
     return outs

@@ -177,7 +177,7 @@ def _update(k, T, state, slow, hx, hy, nx, ny, periodic, pole_s, pole_n, hpole_s
     return t
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def fast_march(T, state, slow, hx, hy, nx, ny, periodic, pole_s, pole_n, hpole_s, hpole_n, t_max):  # pragma: no cover
     """March the front out of the accepted cells until every reachable cell is accepted.
 

@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import logging
 import math
+from concurrent.futures import ThreadPoolExecutor
 import pathlib
 import sys
 import warnings
@@ -323,15 +324,19 @@ def analyse_source(
     pr.start("source", f"source '{src_cfg.name}': initial sea surface and ray fan")
     src = build_source(src_cfg, p)
     eta = initial_surface(src, depth)
-    if segments is None:
-        segments = _segments_for(depth, scenario)
-    count = int(n_rays or scenario.rays.count or choose_ray_count(scenario, depth, segments).value)
-    fan = make_ray_fan(eta, depth, count, seed=scenario.rays.seed,
-                       azimuth_offset_deg=float(p.get("launch_jitter_deg", 0.0)),
-                       stop_depth_m=scenario.rays.stop_depth_m)
-    summary = summarize_source(src, eta, depth, fan)
-    period = float(scenario.focusing.period_s or summary.period_s)
-    bands = period_bands(eta, depth, period) if all_bands else [(period, 1.0)]
+    # the first arrivals (fast marching) are computed in a second thread meanwhile
+    with ThreadPoolExecutor(max_workers=1) as pool:
+        tt_later = pool.submit(source_travel_times, src, eta, depth, scenario.rays.stop_depth_m)
+        if segments is None:
+            segments = _segments_for(depth, scenario)
+        count = int(n_rays or scenario.rays.count or choose_ray_count(scenario, depth, segments).value)
+        fan = make_ray_fan(eta, depth, count, seed=scenario.rays.seed,
+                           azimuth_offset_deg=float(p.get("launch_jitter_deg", 0.0)),
+                           stop_depth_m=scenario.rays.stop_depth_m)
+        summary = summarize_source(src, eta, depth, fan)
+        period = float(scenario.focusing.period_s or summary.period_s)
+        bands = period_bands(eta, depth, period) if all_bands else [(period, 1.0)]
+        tt = tt_later.result()
     pr.done(f"{summary.headline}, period {period / 60:.1f} min, {fan.n_rays} rays")
     pr.start("trace", f"tracing {fan.n_rays} rays in {len(bands)} period bands over the real and reference "
              "oceans as the wave sees them, and over a constant-depth ocean")
@@ -340,7 +345,6 @@ def analyse_source(
         kw["threads"] = int(threads)
     if scenario.rays.step_s:
         kw["step_s"] = scenario.rays.step_s
-    tt = source_travel_times(src, eta, depth, scenario.rays.stop_depth_m)
     segments = reachable_segments(segments, tt)
     foc = analyse_focusing(
         depth, fan, period_s=period, reference_smooth_km=scenario.focusing.reference_smooth_km, bands=bands,
