@@ -30,18 +30,22 @@ def _corr_length_from_acf(f: np.ndarray, m: np.ndarray, dx: float, dy: float) ->
     M = sfft.rfft2(m.astype(float), s=(py, px), workers=-1)
     num = sfft.irfft2(F * np.conj(F), s=(py, px), workers=-1)
     den = sfft.irfft2(M * np.conj(M), s=(py, px), workers=-1)
-    with np.errstate(invalid="ignore", divide="ignore"):
-        acf = np.where(den > 0.5 * den.max() * 0.05, num / den, np.nan)
+    rmax = 0.5 * min(nx * dx, ny * dy)
     ky = np.fft.fftfreq(py) * py
     kx = np.fft.fftfreq(px) * px
-    R = np.hypot(ky[:, None] * dy, kx[None, :] * dx)
+    # only lags within rmax enter the profile
+    jy, jx = np.flatnonzero(np.abs(ky * dy) <= rmax + dy), np.flatnonzero(np.abs(kx * dx) <= rmax + dx)
+    thr = 0.5 * den.max() * 0.05
+    num, den = num[np.ix_(jy, jx)], den[np.ix_(jy, jx)]
+    with np.errstate(invalid="ignore", divide="ignore"):
+        acf = np.where(den > thr, num / den, np.nan)
+    R = np.hypot(ky[jy][:, None] * dy, kx[jx][None, :] * dx)
     c0 = acf[0, 0]
     if not (np.isfinite(c0) and c0 > 0):
         return float("nan")
-    rmax = 0.5 * min(nx * dx, ny * dy)
     step = min(dx, dy)
     edges = np.arange(0.0, rmax + step, step)
-    idx = np.digitize(R.ravel(), edges) - 1
+    idx = np.floor(R.ravel() / step).astype(np.int64)  # uniform bins: the bin of each lag directly
     vals = acf.ravel()
     good = np.isfinite(vals) & (idx >= 0) & (idx < edges.size - 1)
     s = np.bincount(idx[good], weights=vals[good], minlength=edges.size - 1)
