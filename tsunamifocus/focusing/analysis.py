@@ -123,6 +123,9 @@ class FocusingResult:
         Caution text.
     ray_depth : xarray.DataArray
         The real bathymetry as the dominant band's wave sees it (what its rays were traced on) [m].
+    ray_reference_depth : xarray.DataArray
+        The lensing reference as the dominant band's wave sees it (what its reference rays were
+        traced on) [m].
     reference_smooth_km : float
         Low-pass scale of the reference [km].
     bands : list of (float, float)
@@ -143,6 +146,7 @@ class FocusingResult:
     runs: dict = field(default_factory=dict)
     cautions: str = ""
     ray_depth: xr.DataArray | None = None
+    ray_reference_depth: xr.DataArray | None = None
     reference_smooth_km: float = float("nan")
     bands: list = field(default_factory=list)
 
@@ -353,7 +357,8 @@ def analyse_focusing(
         focusing_factor=maps["focusing"], travel_time_min=maps["travel_time"], kernel_sigma_m=maps["sigma"],
         reference_depth=ref, segments=table, ranking=ranking, diagnostics=diag, budget=budget,
         runs={"real": runs[dom].real, "reference": runs[dom].reference, "flat": flatr, "bands": runs},
-        cautions=caution_summary(), ray_depth=media[dom], reference_smooth_km=float(reference_smooth_km),
+        cautions=caution_summary(), ray_depth=media[dom], ray_reference_depth=ref_media[dom],
+        reference_smooth_km=float(reference_smooth_km),
         bands=band_list,
     )
 

@@ -130,7 +130,8 @@ def _figures(a: SourceAnalysis, depth: xr.DataArray, scenario: Any, folder: path
                                    source_outline=a.outline or None, coast_lines=coast,
                                    title=f"Initial sea-surface displacement ({_uplift_basis(a.eta)}): {a.name}")
     if f.ray_depth is not None:
-        figs["oceans"] = F.plot_oceans(f.ray_depth, f.reference_depth, out_path=folder / "oceans.png",
+        ref_seen = f.ray_reference_depth if f.ray_reference_depth is not None else f.reference_depth
+        figs["oceans"] = F.plot_oceans(f.ray_depth, ref_seen, out_path=folder / "oceans.png",
                                        period_s=a.period_s, reference_smooth_km=f.reference_smooth_km,
                                        title=f"The two oceans of the lensing factor: {a.name}")
     if a.check is not None:
