@@ -525,3 +525,24 @@ def test_real_global_grid_point_source(etopo_path):
     assert np.nanmax(px) > 360.0 or np.nanmin(px) < 0.0
     ta = r.first_arrival_s.values
     assert np.nanmax(ta) <= 86400.0 and np.isfinite(ta).mean() > 0.05
+
+
+def test_local_steps_keep_constant_depth_travel_times_and_refuse_bad_settings():
+    # Local steps (max_step_s): in water of constant depth a ray is a straight line at c = sqrt(g h)
+    # whatever its steps (analytic). A deep strip far from the ray sets the grid's fastest speed, so
+    # the default step is half what the ray's own (4x shallower) water allows: it takes about half
+    # as many steps. A fixed step together with local steps, or a non-positive cap, is a one-line
+    # RayError (common practice, no source).
+    x = np.arange(0.0, 200e3 + 1, 1e3)
+    h = np.full((x.size, x.size), 2000.0)
+    h[x > 180e3, :] = 8000.0
+    d = make_grid(h, x, x, "EPSG:32631")
+    r = trace_rays(d, [10e3], [100e3], [90.0], max_step_s=300.0, cells_per_step=3.0, max_time_s=600.0)
+    c = math.sqrt(GRAVITY * 2000.0)
+    assert float(r.end["x"].values[0]) == pytest.approx(10e3 + c * 600.0, rel=1e-6)
+    assert r.stats["max_step_s"] == 300.0
+    assert r.stats["n_steps"] <= 0.55 * 600.0 / r.stats["step_s"]
+    with pytest.raises(RayError, match="give a fixed step or local steps"):
+        trace_rays(d, [10e3], [100e3], [90.0], step_s=5.0, max_step_s=10.0)
+    with pytest.raises(RayError, match="max_step_s = -1"):
+        trace_rays(d, [10e3], [100e3], [90.0], max_step_s=-1)

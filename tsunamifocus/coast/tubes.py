@@ -35,6 +35,7 @@ from pyproj import Geod
 from scipy.spatial import cKDTree
 from scipy.special import ndtr
 
+from ..errors import InputError
 from ..grid import GridInfo
 from ..ocean.smooth import _to_xyz as to_xyz
 
@@ -379,6 +380,9 @@ def tube_deposit(
     TubeDeposit
     """
     geo = coast if coast is not None else CoastGeometry.build(segments, depth)
+    if geo.reach.size != len(segments):
+        raise InputError(f"coast geometry prepared for {geo.reach.size} segments, the table has {len(segments)}: "
+                         "build it from this segments table (CoastGeometry.build)")
     info, spacing, pts, sid, ds, s_smp, arcs, reach, tree = (geo.info, geo.spacing_m, geo.pts, geo.sid, geo.ds,
                                                              geo.s_smp, geo.arcs, geo.reach, geo.tree)
     nseg = len(segments)

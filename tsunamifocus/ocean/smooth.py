@@ -117,13 +117,10 @@ def _gauss_any(arr: np.ndarray, info: GridInfo, sigma_m: float, min_cells: float
 
 
 def _normalised_gauss(f: np.ndarray, mask: np.ndarray, info: GridInfo, sigma_m: float,
-                      min_cells: float = 0.2, weight: np.ndarray | None = None) -> np.ndarray:
-    """Gaussian-weighted mean of ``f`` over the ``mask`` nodes (normalised convolution); NaN where no weight.
-
-    ``weight`` is the Gaussian of the mask itself at this width when already computed.
-    """
+                      min_cells: float = 0.2) -> np.ndarray:
+    """Gaussian-weighted mean of ``f`` over the ``mask`` nodes (normalised convolution); NaN where no weight."""
     a = _gauss_any(np.where(mask, f, 0.0), info, sigma_m, min_cells)
-    b = _gauss_any(mask.astype(float), info, sigma_m, min_cells) if weight is None else weight
+    b = _gauss_any(mask.astype(float), info, sigma_m, min_cells)
     with np.errstate(invalid="ignore", divide="ignore"):
         return np.where(b > 1e-12, a / b, np.nan)
 
@@ -269,12 +266,7 @@ def smooth_fields(
             raise InputError(f"sigma_m grid has shape {sig.shape}, field has {fs[j].shape}")
         sigs.append(sig)
     outs = _smooth_many(fs, ms, [j for j, _ in requests], sigs, info, levels_per_octave)
-    return [fields[j].copy(data=np.where(ms[j], o, np.nan)) for (j, _), o in zip(requests, outs)]
-
-
-def groups_fields(groups: dict) -> list[int]:
-    """The field indices of mask groups (see :func:`_smooth_many`)."""
-    return [j for js in groups.values() for j in js]
+    return [fields[j].copy(data=o) for (j, _), o in zip(requests, outs)]  # NaN outside the masks already
 
 
 def _smooth_many(fs: list[np.ndarray], ms: list[np.ndarray], which: list[int], sigs: list[np.ndarray],
@@ -298,19 +290,20 @@ def _smooth_many(fs: list[np.ndarray], ms: list[np.ndarray], which: list[int], s
         used = np.zeros(nlev + 1, bool)
         used[np.unique(k)] = True
         used[np.unique(k) + 1] = True
-        plans.append((idx, k, frac, used[:nlev] if nlev > 1 else used[:1] | True, np.zeros(idx.size)))
+        plans.append((idx, k, frac, used[:nlev], np.zeros(idx.size)))
     groups: dict[bytes, list[int]] = {}  # fields sharing one node mask share the mask's Gaussian
     for j in sorted(set(which)):
         groups.setdefault(np.packbits(ms[j]).tobytes(), []).append(j)
-    zeroed = {j: np.where(ms[j], fs[j], 0.0) for j in groups_fields(groups)}
+    zeroed = {j: np.where(ms[j], fs[j], 0.0) for j in set(which)}
+    weights = {g: ms[js[0]].astype(float) for g, js in groups.items()}
     for lev in range(nlev):
         s_i = float(smin * ratio**lev)
         need = {which[r] for r, p in enumerate(plans) if p[3][lev]}
-        for js in groups.values():
+        for g, js in groups.items():
             js = [j for j in js if j in need]
             if not js:
                 continue
-            wgt = _gauss_any(ms[js[0]].astype(float), info, s_i).ravel()
+            wgt = _gauss_any(weights[g], info, s_i).ravel()
             for j in js:
                 num = _gauss_any(zeroed[j], info, s_i).ravel()
                 for r, p in enumerate(plans):

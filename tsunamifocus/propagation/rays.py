@@ -186,9 +186,8 @@ def trace_rays(
     info = fld.info
     x0, y0, az, w = _check_rays(x0, y0, azimuth_deg, weights)
     n = x0.size
-    dt, threads = _check_settings(fld, stop_depth_m, max_time_s, step_s, keep_paths, path_points, threads,
-                                  cells_per_step)
-    hcap = _check_max_step(max_step_s, step_s, dt)
+    dt, threads, hcap = _check_settings(fld, stop_depth_m, max_time_s, step_s, keep_paths, path_points, threads,
+                                        cells_per_step, max_step_s)
     _check_launch(fld, x0, y0, stop_depth_m, polar_lat_deg)
     q0a, p0a = _initial_paraxial(fld, x0, y0, q0, p0)
     run = _run_kernel(fld, x0, y0, az, w, q0a, p0a, dt=dt, max_time_s=max_time_s, stop_depth_m=stop_depth_m,
@@ -246,8 +245,9 @@ def _check_rays(x0, y0, azimuth_deg, weights) -> tuple[np.ndarray, np.ndarray, n
 
 
 def _check_settings(fld: SpeedField, stop_depth_m, max_time_s, step_s, keep_paths, path_points,
-                    threads, cells_per_step: float = 1.0) -> tuple[float, int]:
-    """Validate the scalar settings; return the time step [s] and the thread count."""
+                    threads, cells_per_step: float = 1.0, max_step_s=None) -> tuple[float, int, float]:
+    """Validate the scalar settings; return the time step [s], the thread count and the local-step
+    cap [s] (0: every ray takes the time step)."""
     if not (np.isfinite(stop_depth_m) and stop_depth_m > 0):
         raise RayError(f"stop_depth_m = {stop_depth_m!r} m: expected a positive depth (e.g. 10-50 m)")
     if not (np.isfinite(max_time_s) and max_time_s > 0):
@@ -256,6 +256,9 @@ def _check_settings(fld: SpeedField, stop_depth_m, max_time_s, step_s, keep_path
         if not (np.isfinite(cells_per_step) and 0 < cells_per_step <= _MAX_CELLS_PER_STEP):
             raise RayError(f"cells_per_step = {cells_per_step!r}: expected 0 < cells_per_step <= {_MAX_CELLS_PER_STEP:g}")
         dt = default_step_s(fld, cells_per_step)
+    elif max_step_s is not None:
+        raise RayError(f"step_s = {step_s!r} and max_step_s = {max_step_s!r}: give a fixed step or local steps, "
+                       "not both")
     else:
         dt = float(step_s)
         max_dt = _MAX_CELLS_PER_STEP * default_step_s(fld)
@@ -280,20 +283,13 @@ def _check_settings(fld: SpeedField, stop_depth_m, max_time_s, step_s, keep_path
     threads = int(threads)
     if not 1 <= threads <= nthreads_avail:
         raise RayError(f"threads = {threads}: expected 1..{nthreads_avail}")
-    return dt, threads
-
-
-def _check_max_step(max_step_s, step_s, dt: float) -> float:
-    """The local-step cap [s] for the kernel (0: fixed steps)."""
-    if max_step_s is None:
-        return 0.0
-    if step_s is not None:
-        raise RayError(f"step_s = {step_s!r} and max_step_s = {max_step_s!r}: give a fixed step or local steps, "
-                       "not both")
-    h = float(max_step_s)
-    if not (np.isfinite(h) and h > 0):
-        raise RayError(f"max_step_s = {max_step_s!r}: expected a positive time in seconds")
-    return max(h, dt)
+    hcap = 0.0
+    if max_step_s is not None:
+        hcap = float(max_step_s)
+        if not (np.isfinite(hcap) and hcap > 0):
+            raise RayError(f"max_step_s = {max_step_s!r}: expected a positive time in seconds")
+        hcap = max(hcap, dt)
+    return dt, threads, hcap
 
 
 def _check_launch(fld: SpeedField, x0: np.ndarray, y0: np.ndarray, stop_depth_m: float, polar_lat_deg: float) -> None:
