@@ -77,3 +77,46 @@ def test_crop_and_resample_keep_the_grid_convention():
     r = resample_bathymetry(g, 2.0)
     np.testing.assert_allclose(r.values[0, 0], v[:2, :2].mean())
     np.testing.assert_allclose(r.x.values[:2], [500.0, 2500.0])
+
+
+def test_refine_grid_reproduces_linear_fields_and_subdivides_cells():
+    # bilinear interpolation is exact for a linear field (any interpolation textbook; common practice,
+    # no source); the fine centres subdivide each coarse cell evenly, so block means of the fine
+    # coordinates are the coarse ones and the outer edges do not move.
+    from tsunamifocus.errors import InputError
+    from tsunamifocus.grid import GridInfo, make_grid, refine_grid
+
+    x = 1000.0 + 500.0 * np.arange(7)
+    y = -300.0 + 250.0 * np.arange(5)
+    X, Y = np.meshgrid(x, y)
+    g = make_grid(3.0 * X - 2.0 * Y + 7.0, x, y, "EPSG:3857", attrs={"units": "m"})
+    f = refine_grid(g, 3)
+    fi, gi = GridInfo.from_dataarray(f), GridInfo.from_dataarray(g)
+    assert f.shape == (15, 21) and f.attrs["units"] == "m"
+    assert fi.bounds == pytest.approx(gi.bounds)
+    np.testing.assert_allclose(fi.x.reshape(-1, 3).mean(axis=1), x)
+    Xf, Yf = np.meshgrid(fi.x, fi.y)
+    inner = (Xf >= x[0]) & (Xf <= x[-1]) & (Yf >= y[0]) & (Yf <= y[-1])
+    np.testing.assert_allclose(f.values[inner], (3.0 * Xf - 2.0 * Yf + 7.0)[inner], rtol=1e-12)
+    # within half a coarse cell of the outer edges: the edge centre's value (no extrapolation)
+    assert f.values[0, 0] == pytest.approx(g.values[0, 0])
+    assert refine_grid(g, 1) is g
+    for bad in (0, 9, 2.5, True):
+        with pytest.raises(InputError, match="refine factor"):
+            refine_grid(g, bad)
+
+
+def test_refine_grid_keeps_a_periodic_longitude_grid_periodic():
+    # a global lon/lat grid wraps: fine cells beside the seam interpolate across it (a field
+    # periodic in longitude stays continuous there) and the finer grid is still periodic.
+    from tsunamifocus.grid import GridInfo, make_grid, refine_grid
+
+    lon = np.arange(0.0, 360.0, 30.0) + 15.0
+    lat = np.array([-30.0, 0.0, 30.0])
+    v = np.tile(np.cos(np.radians(lon)), (3, 1))
+    f = refine_grid(make_grid(v, lon, lat, "EPSG:4326"), 2)
+    info = GridInfo.from_dataarray(f)
+    assert info.periodic_x and f.shape == (6, 24)
+    # the first fine column (lon 7.5) lies between lon 345 and lon 15 across the seam
+    expected = 0.25 * np.cos(np.radians(345.0)) + 0.75 * np.cos(np.radians(15.0))
+    assert f.values[2, 0] == pytest.approx(expected)

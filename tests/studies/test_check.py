@@ -86,3 +86,49 @@ def test_lensing_check_compares_energy_ratios_of_the_two_wave_runs():
     assert wl[middle].min() > 1.3 and np.all(np.abs(wl[far] - 1.0) < 0.15)
     assert set(chk.agreement["lensing"]) >= {"spearman", "kendall", "topk_common", "k", "n"}
     assert chk.agreement["lensing"]["n"] == len(seg)
+
+
+def test_refined_check_converges_to_greens_law_at_the_stop_isobath():
+    """Green (1838): a long wave shoaling normally up a gentle slope keeps its energy flux, so its
+    amplitude grows as h**(-1/4); the incident half of a hump released at rest has amplitude 0.5
+    (d'Alembert). On 4 km cells the wave near the 20 m isobath has few cells per wavelength and the
+    check's maximum there falls well short of Green's law; solved on the same sea floor interpolated
+    onto finer grids (``refine``) it converges to it, and the reported resolution grows with it."""
+    import warnings
+
+    import shapely
+
+    from tsunamifocus.errors import InputError, ResolutionWarning
+    from tsunamifocus.studies.check import MIN_CELLS_PER_WAVELENGTH, compare_with_waves
+
+    dx, ny = 4000.0, 6
+    x = np.arange(0.0, 700e3, dx) + dx / 2
+    h = np.interp(x, [0, 150e3, 650e3, 700e3], [4000.0, 4000.0, 8.0, -20.0])
+    depth = make_grid(np.tile(h, (ny, 1)), x, np.arange(ny) * dx + dx / 2, "EPSG:3857")
+    eta0 = depth.copy(data=np.tile(np.exp(-((x - 80e3) ** 2) / (2 * 20e3**2)), (ny, 1)))
+    xs = float(np.interp(20.0, h[::-1], x[::-1]))
+    seg = pd.DataFrame({"segment_id": ["S1", "S2", "S3"], "amp_stop_m": [1.0, 2.0, 3.0],
+                        "geometry": [shapely.LineString([(xs, i * ny * dx / 3), (xs, (i + 1) * ny * dx / 3)])
+                                     for i in range(3)]})
+    walls = {"west": "absorb", "east": "absorb", "south": "reflect", "north": "reflect"}
+    err, cpw = {}, {}
+    for r in (1, 4):
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", ResolutionWarning)  # 3 cells per wavelength at r = 1: tested below
+            chk = compare_with_waves(depth, eta0, seg, duration_s=12000.0, refine=r, period_s=600.0, k=1,
+                                     boundary=walls, threads=1)
+        res = chk.agreement["resolution"]
+        assert chk.agreement["refine"] == r and res["refine"] == r
+        assert chk.wave.max_amplitude.shape == (ny * r, x.size * r)
+        green = 0.5 * (4000.0 / res["band_depth_m"]) ** 0.25
+        amp = chk.table["wave_amp_stop_m"].to_numpy()
+        assert np.ptp(amp) < 1e-6 * amp.max()  # a plane wave: the three segments alike
+        err[r], cpw[r] = abs(amp[0] / green - 1.0), res["cells_per_wavelength"]
+    assert err[1] > 0.2 and err[4] < 0.06  # measured: 33 % and 5 %
+    assert cpw[4] > 3 * cpw[1]
+    # fewer cells per wavelength than the threshold: a ResolutionWarning naming the remedy
+    with pytest.warns(ResolutionWarning, match="--refine 2"):
+        compare_with_waves(depth, eta0, seg, duration_s=600.0, period_s=600.0 * MIN_CELLS_PER_WAVELENGTH / cpw[1] / 1.5,
+                           k=1, boundary=walls, threads=1)
+    with pytest.raises(InputError, match="refine factor"):
+        compare_with_waves(depth, eta0, seg, duration_s=600.0, refine=0, k=1)

@@ -5,6 +5,7 @@ from __future__ import annotations
 import argparse
 
 from ..constants import DEFAULTS, WORK_LIMITS
+from ..grid import MAX_REFINE_FACTOR
 from ..products.check import run_wave_check
 
 NAME = "check"
@@ -19,6 +20,9 @@ def configure(p: argparse.ArgumentParser) -> None:
     p.add_argument("--hours", type=float, help="simulated duration [h] (default: the latest first arrival + 30 min)")
     p.add_argument("--force", action="store_true", help="run the wave solver even beyond the work limit of "
                    f"{WORK_LIMITS['wave_cell_updates']:.3g} wet-cell updates (cells x time steps)")
+    p.add_argument("--refine", type=int, default=1, help="solve the wave on the run's sea floor interpolated onto a grid "
+                   f"N times finer (1-{MAX_REFINE_FACTOR}; more cells per wavelength near the coast, about N^3 times "
+                   "the cost; default 1: the run's grid)")
     top_k = DEFAULTS["output"]["top_k"]
     p.add_argument("--top", type=int, default=top_k, help=f"k of the top-k overlap (default {top_k}, as [output] top_k)")
 
@@ -26,5 +30,6 @@ def configure(p: argparse.ArgumentParser) -> None:
 def run(args: argparse.Namespace) -> int:
     """Run the check; returns the exit code."""
     run_wave_check(args.run_dir, out=args.out, overwrite=args.overwrite, hours=args.hours, k=args.top,
-                   progress=getattr(args, "quiet", 0) == 0, force=args.force)
+                   progress=getattr(args, "quiet", 0) == 0, force=args.force,
+                   refine=args.refine)
     return 0

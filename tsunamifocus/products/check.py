@@ -16,10 +16,12 @@ import pathlib
 import sys
 from typing import Any
 
+import numpy as np
 import pandas as pd
 
 from ..cautions import caution_summary
 from ..errors import DataFileError, InputError
+from ..grid import MAX_REFINE_FACTOR
 from ..io.gis import write_cog, write_netcdf
 from ..io.manifest import jsonable, write_manifest
 from ..io.guards import check_output_folder
@@ -86,6 +88,16 @@ def _run_scenario(run_dir: pathlib.Path) -> Scenario:
     return parse_scenario(p)
 
 
+def _run_period_s(run_dir: pathlib.Path) -> float | None:
+    """The source's dominant period [s] recorded in the run's manifest, or None."""
+    try:
+        m = json.loads((run_dir / "manifest.json").read_text(encoding="utf-8"))
+        p = float(m["extra"]["source_summary"]["period_s"])
+    except (OSError, ValueError, KeyError, TypeError, json.JSONDecodeError):
+        return None
+    return p if np.isfinite(p) and p > 0 else None
+
+
 def run_wave_check(
     run_dir: str | pathlib.Path,
     *,
@@ -95,6 +107,7 @@ def run_wave_check(
     k: int = 10,
     progress: bool = True,
     force: bool = False,
+    refine: int = 1,
 ) -> dict[str, Any]:
     """Run the wave-equation check of a finished run and write its outputs.
 
@@ -114,6 +127,9 @@ def run_wave_check(
         Messages and a progress bar on stderr.
     force : bool
         Run the wave solver beyond the work limit (``constants.WORK_LIMITS["wave_cell_updates"]``).
+    refine : int
+        Solve the wave on the run's sea floor interpolated onto a grid this many times finer
+        (:func:`tsunamifocus.studies.check.compare_with_waves` ``refine``).
 
     Returns
     -------
@@ -125,6 +141,8 @@ def run_wave_check(
         raise InputError(f"--top {k}: expected k >= 1")
     if hours is not None and not hours > 0:
         raise InputError(f"--hours {hours}: expected a positive duration in hours")
+    if isinstance(refine, bool) or not isinstance(refine, int) or not 1 <= refine <= MAX_REFINE_FACTOR:
+        raise InputError(f"--refine {refine!r}: expected an integer from 1 to {MAX_REFINE_FACTOR}")
     out_dir = pathlib.Path(out) if out is not None else run_dir / CHECK_FOLDER
     check_output_folder(out_dir, overwrite=overwrite, kind="wave_check", option="--out" if out else "the check folder",
                         inputs=[("run file", run_dir / f) for f in ("layers.nc", "segments.csv", "scenario.toml",
@@ -144,7 +162,8 @@ def run_wave_check(
                          reference_depth=layers.get("reference_depth"),
                          duration_s=None if hours is None else hours * 3600.0,
                          figure_path=tmp / "ray_vs_wave.png", progress=progress,
-                         max_memory_bytes=sc.bathymetry.max_memory_gb * 1e9,
+                         max_memory_bytes=sc.bathymetry.max_memory_gb * 1e9, refine=refine,
+                         period_s=_run_period_s(run_dir),
                          **({"max_cell_updates": None} if force else {}))
         amp = chk.wave.max_amplitude.copy()
         amp.name = "wave_max_amplitude"
@@ -221,7 +240,10 @@ def check_section(chk: WaveCheck, figures: dict[str, str]) -> dict[str, Any]:
 
     text = [
         "The same initial sea surface was propagated with the linear long-wave (shallow-water) equations on "
-        "the same grid, over the unsmoothed sea floor and over the run's lensing reference (staggered C grid, "
+        + ("the same grid" if ag.get("refine", 1) <= 1 else
+           f"the same sea floor interpolated onto a grid {ag['refine']} times finer (more cells per wavelength "
+           "near the coast, no new detail)")
+        + ", over the unsmoothed sea floor and over the run's lensing reference (staggered C grid, "
         "forward-backward time stepping under the CFL condition, absorbing open boundaries, absorbing coast "
         "at the stop isobath). Like is compared with like on the segments the run ranks: the maximum "
         "elevation per segment with the ray-based indicative amplitude there, and the wave lensing factor "
@@ -240,6 +262,11 @@ def check_section(chk: WaveCheck, figures: dict[str, str]) -> dict[str, Any]:
         metrics.update({"lensing ranking: Spearman": fmt(lens.get("spearman")),
                         "lensing ranking: Kendall tau": fmt(lens.get("kendall")),
                         f"lensing ranking: top-{k} overlap": lens.get("topk_overlap")})
+    res = ag.get("resolution") or {}
+    if ag.get("refine", 1) > 1:
+        metrics["wave grid"] = f"the run's sea floor interpolated onto a grid {ag['refine']} times finer"
+    if res:
+        metrics[f"cells per {res['period_s']:.0f} s wavelength at the stop isobath"] = fmt(res.get("cells_per_wavelength"))
     metrics.update({"time step (s)": fmt(st.get("dt_s")),
                     "simulated time (h)": fmt(st.get("duration_s", float("nan")) / 3600),
                     "mass error (relative)": f"{st.get('mass_error', float('nan')):.1e}"})

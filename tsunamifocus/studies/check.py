@@ -13,13 +13,61 @@ import pandas as pd
 import xarray as xr
 
 from ..cautions import caution_text
-from ..coast.waves import segment_max_amplitude
+import warnings
+
+from ..coast.waves import _coastal_cells, segment_max_amplitude
 from ..constants import GRAVITY, STOP_DEPTH_M
-from ..errors import CoastError, InputError
+from ..errors import CoastError, InputError, ResolutionWarning
 from ..focusing.agreement import compare_rankings
+from ..grid import refine_grid
 from ..propagation.wave import WAVE_CAUTION, WaveResult, _check_depth, _wet_mask, simulate_linear_long_wave
 
-__all__ = ['WaveCheck', 'compare_with_waves', 'default_check_duration_s']
+__all__ = ['MIN_CELLS_PER_WAVELENGTH', 'WaveCheck', 'compare_with_waves', 'default_check_duration_s',
+           'wave_resolution']
+
+#: Fewest grid cells per dominant wavelength at the stop isobath below which the check warns that
+#: its coastal maxima are not converged in grid spacing. Set between two measurements
+#: (docs/wave_check.md): the demo at 3 km (5.3 cells per wavelength there) kept its wave lensing
+#: ranking on its sea floor interpolated to half the spacing (Spearman 0.95 between the two), the
+#: real-grid benchmark case at 0.1 degree (3.4 cells) did not (0.69). Absolute coastal maxima need
+#: more: on a plane slope the check's maximum at the stop isobath was 33 % below Green's law at
+#: about 5 cells per wavelength, 5 % below at 17 (tests/studies/test_check.py).
+MIN_CELLS_PER_WAVELENGTH: float = 4.0
+
+
+def wave_resolution(depth: xr.DataArray, period_s: float, *, stop_depth_m: float = STOP_DEPTH_M,
+                    gravity: float = GRAVITY) -> dict[str, float]:
+    """How many cells of ``depth`` a wave of ``period_s`` has per wavelength at the stop isobath.
+
+    The stop-isobath band is the set of wet cells with a dry 4-neighbour (where the check samples
+    its maxima); its median depth ``h`` gives the wavelength ``sqrt(g h) T``, divided by the
+    larger cell side [m] (on lon/lat grids at the mid latitude).
+
+    Parameters
+    ----------
+    depth : xarray.DataArray
+        Depth grid [m] the wave is solved on.
+    period_s : float
+        Wave period [s] (the source's dominant period).
+    stop_depth_m, gravity
+        As in :func:`compare_with_waves`.
+
+    Returns
+    -------
+    dict
+        ``period_s``, ``band_depth_m`` (median depth of the band), ``wavelength_m``, ``cell_m`` and
+        ``cells_per_wavelength`` (NaN when the grid has no coast).
+    """
+    if not (math.isfinite(period_s) and period_s > 0):
+        raise InputError(f"period_s = {period_s!r}: expected a wave period in seconds (> 0)")
+    info = _check_depth(depth)
+    wet = _wet_mask(np.asarray(depth.values, float), stop_depth_m)
+    band = _coastal_cells(wet, info.periodic_x)
+    h = float(np.median(np.asarray(depth.values, float)[band])) if band.any() else float("nan")
+    lam = math.sqrt(gravity * h) * period_s if math.isfinite(h) else float("nan")
+    cell = float(max(info.spacing_m()))
+    return {"period_s": float(period_s), "band_depth_m": h, "wavelength_m": lam, "cell_m": cell,
+            "cells_per_wavelength": lam / cell}
 
 
 # --------------------------------------------------------------------------------------------------
@@ -68,6 +116,15 @@ class WaveCheck:
             lines.append(f"  lensing ranking (wave over the real / over the reference sea floor): Spearman "
                          f"{lens['spearman']:.2f}, Kendall tau {lens['kendall']:.2f}, top-{lens['k']} overlap "
                          f"{lens['topk_common']}/{lens['k']}")
+        res = a.get("resolution")
+        grid = f"a grid {a['refine']} times finer than the run's" if a.get("refine", 1) > 1 else "the run's grid"
+        if res:
+            lines.append(f"  wave solved on {grid}: {res['cells_per_wavelength']:.1f} cells per {res['period_s']:.0f} s "
+                         f"wavelength at the stop isobath"
+                         + (f" (below {MIN_CELLS_PER_WAVELENGTH:g}: coastal maxima not converged)"
+                            if res["cells_per_wavelength"] < MIN_CELLS_PER_WAVELENGTH else ""))
+        elif a.get("refine", 1) > 1:
+            lines.append(f"  wave solved on {grid}")
         lines += [
             f"  {st['steps']} steps of {st['dt_s']:.2f} s ({st['duration_s'] / 3600:.2f} h), "
             f"{st['elapsed_s']:.1f} s wall, volume budget residual {st['mass_error']:.1e}",
@@ -122,6 +179,8 @@ def compare_with_waves(
     gravity: float = GRAVITY,
     threads: int | None = None,
     progress: bool | Callable[[int, int], None] | None = None,
+    refine: int = 1,
+    period_s: float | None = None,
     **simulate_kwargs: Any,
 ) -> WaveCheck:
     """Run the wave solver for a source and compare its per-segment maxima with the ray ranking.
@@ -154,7 +213,15 @@ def compare_with_waves(
     k : int
         Top-k size of the overlap.
     search_radius_cells, statistic
-        Passed to :func:`segment_max_amplitude`.
+        Passed to :func:`segment_max_amplitude` (the radius in cells of ``depth``).
+    refine : int
+        Solve the wave on ``depth``, ``eta0`` and ``reference_depth`` interpolated onto a grid this
+        many times finer (:func:`tsunamifocus.grid.refine_grid`: the same sea floor, more cells per
+        wavelength; cost about ``refine**3`` times). 1 (default): the run's own grid.
+    period_s : float, optional
+        The source's dominant period [s]: the check then reports :func:`wave_resolution` of the
+        grid it solved on (``agreement["resolution"]``) and warns (:class:`ResolutionWarning`) when
+        it has fewer than :data:`MIN_CELLS_PER_WAVELENGTH` cells per wavelength at the stop isobath.
 
     Returns
     -------
@@ -174,11 +241,24 @@ def compare_with_waves(
         raise CoastError(f"segments table has no column {lensing_column!r} to compare with the wave lensing")
     if duration_s is None:
         duration_s = default_check_duration_s(depth, segments, stop_depth_m=stop_depth_m, gravity=gravity)
+    depth_w, eta_w = refine_grid(depth, refine), refine_grid(eta0, refine)
+    resolution = None
+    if period_s is not None:
+        resolution = {**wave_resolution(depth_w, period_s, stop_depth_m=stop_depth_m, gravity=gravity),
+                      "refine": int(refine)}
+        if resolution["cells_per_wavelength"] < MIN_CELLS_PER_WAVELENGTH:
+            warnings.warn(
+                f"wave check: {resolution['cells_per_wavelength']:.1f} cells per {period_s:.0f} s wavelength at "
+                f"the stop isobath (cells of {resolution['cell_m'] / 1e3:.1f} km, band depth "
+                f"{resolution['band_depth_m']:.0f} m), fewer than {MIN_CELLS_PER_WAVELENGTH:g}: the coastal wave "
+                f"maxima are not converged in grid spacing; solve the wave on a finer grid "
+                f"(check --refine {max(2, int(refine) * 2)}: about {max(2, int(refine) * 2) ** 3} times the cost)",
+                ResolutionWarning, stacklevel=2)
     opts = dict(duration_s=duration_s, stop_depth_m=stop_depth_m, coast=coast, boundary=boundary, cfl=cfl,
                 gravity=gravity, threads=threads, progress=progress, **simulate_kwargs)
-    res = simulate_linear_long_wave(depth, eta0, **opts)
-    sample = dict(search_radius_cells=search_radius_cells, statistic=statistic)
-    wave = segment_max_amplitude(res, segments, depth, stop_depth_m, **sample)
+    res = simulate_linear_long_wave(depth_w, eta_w, **opts)
+    sample = dict(search_radius_cells=search_radius_cells * refine, statistic=statistic)
+    wave = segment_max_amplitude(res, segments, depth_w, stop_depth_m, **sample)
     table = pd.DataFrame({"segment_id": wave.index.values})
     if "name" in segments.columns:
         table["name"] = np.asarray(segments["name"])
@@ -186,17 +266,21 @@ def compare_with_waves(
     table["ranked"] = ranked
     _paired_columns(table, "ray_value", np.asarray(segments[ray_column], dtype=float), "wave_amp_stop_m",
                     wave.values, ranked, ("rank_ray", "rank_wave"))
-    arr = segment_max_amplitude(res, segments, depth, stop_depth_m, search_radius_cells=search_radius_cells,
+    arr = segment_max_amplitude(res, segments, depth_w, stop_depth_m, search_radius_cells=search_radius_cells * refine,
                                 statistic="min", field="arrival_time_s")
     table["wave_first_arrival_s"] = arr.values
     with np.errstate(divide="ignore", invalid="ignore"):
         table["ratio_wave_to_ray"] = table["wave_amp_stop_m"] / table["ray_value"]
     agree = compare_rankings(table["ray_value"].where(ranked), table["wave_amp_stop_m"].where(ranked), k=k)
     agree["ray_column"] = ray_column
+    agree["refine"] = int(refine)
+    if resolution is not None:
+        agree["resolution"] = resolution
     res_ref = None
     if reference_depth is not None:
-        res_ref = simulate_linear_long_wave(reference_depth, eta0, **opts)
-        wave_ref = segment_max_amplitude(res_ref, segments, reference_depth, stop_depth_m, **sample)
+        ref_w = refine_grid(reference_depth, refine)
+        res_ref = simulate_linear_long_wave(ref_w, eta_w, **opts)
+        wave_ref = segment_max_amplitude(res_ref, segments, ref_w, stop_depth_m, **sample)
         with np.errstate(divide="ignore", invalid="ignore"):
             wave_lensing = (wave.values / wave_ref.values) ** 2
         table["wave_amp_reference_m"] = wave_ref.values

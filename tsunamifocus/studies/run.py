@@ -756,7 +756,8 @@ def analyse_scenario(scenario: Any, *, rays: int | None = None, scheduler: Any =
             pr.start("check", f"linear long-wave check of '{a.name}' over the real and reference oceans")
             a.check = compare_with_waves(depth, a.eta, a.focusing.segments,
                                          reference_depth=a.focusing.reference_depth,
-                                         stop_depth_m=scenario.rays.stop_depth_m, k=scenario.output.top_k)
+                                         stop_depth_m=scenario.rays.stop_depth_m, k=scenario.output.top_k,
+                                         period_s=a.period_s)
             lens = a.check.agreement.get("lensing", {})
             pr.done(f"amplitude Spearman {a.check.agreement['spearman']:.2f}, lensing Spearman "
                     f"{lens.get('spearman', float('nan')):.2f}")
