@@ -27,7 +27,12 @@ For each case the script reports
 Numba is warmed first (a small ray run and a short wave run on the demo and on a small crop of
 the real grid) so compilation is not counted. The load average at the start is printed.
 
-Run:  python benchmarks/bench_focusing.py [--demo-only] [--rays N] [--seeds 7 8]
+With ``--judge-refine N`` the wave check is run again on each case's sea floor interpolated onto
+a grid N times finer (:func:`tsunamifocus.grid.refine_grid`) and the rays are compared with that
+judge too: whether the check itself is converged in grid spacing near the coast
+(docs/wave_check.md).
+
+Run:  python benchmarks/bench_focusing.py [--demo-only] [--rays N] [--seeds 7 8] [--judge-refine 2]
 """
 
 from __future__ import annotations
@@ -47,7 +52,7 @@ from tsunamifocus.errors import ResolutionWarning
 from tsunamifocus.focusing.agreement import compare_rankings
 from tsunamifocus.io.scenario import parse_scenario, scenario_from_dict
 from tsunamifocus.propagation.wave import simulate_linear_long_wave
-from tsunamifocus.studies.check import compare_with_waves
+from tsunamifocus.studies.check import compare_with_waves, wave_resolution
 from tsunamifocus.studies.run import _segments_for, analyse_source, load_scenario_bathymetry
 from tsunamifocus.studies.settings import DEFAULT_RAY_COUNT
 
@@ -133,6 +138,7 @@ def run_case(name: str, scenario, segments, depth, seeds: tuple[int, int], rays:
     out["wave_hours"] = chk.wave.stats["duration_s"] / 3600.0
     out["wave_cells"] = int(np.isfinite(np.asarray(depth.values, float)).sum())
     wave = chk.table.set_index("segment_id")
+    out["wave_table"] = wave
     for i, (_, _, ai) in enumerate(runs):
         sg = ai.focusing.segments
         out[f"amp_vs_wave_{i}"] = compare_rankings(_series(sg, "amp_stop_m"), wave["wave_amp_stop_m"], k=K)
@@ -143,7 +149,49 @@ def run_case(name: str, scenario, segments, depth, seeds: tuple[int, int], rays:
     out["amp_seeds"] = compare_rankings(_series(s0, "amp_stop_m"), _series(s1, "amp_stop_m"), k=K)
     out["lens_seeds"] = compare_rankings(_series(s0, "lensing_factor"), _series(s1, "lensing_factor"), k=K)
     out["reliable"] = int(seg["reliable"].sum()) if "reliable" in seg else len(seg)
+    out["analyses"] = [ai for _, _, ai in runs]
     return out
+
+
+def refined_judge(row: dict, scenario, depth, refine: int) -> dict:
+    """The wave check again on the same sea floor interpolated onto a grid ``refine`` times finer."""
+    a = row["analyses"][0]
+    c0, t0 = time.process_time(), time.perf_counter()
+    chk = compare_with_waves(depth, a.eta, a.focusing.segments, reference_depth=a.focusing.reference_depth,
+                             stop_depth_m=scenario.rays.stop_depth_m, k=K, refine=refine, period_s=a.period_s)
+    out = {"case": row["case"], "refine": refine, "wall_s": time.perf_counter() - t0, "cpu_s": time.process_time() - c0,
+           "cells_per_wavelength": chk.agreement["resolution"]["cells_per_wavelength"]}
+    base = wave_resolution(depth, a.period_s, stop_depth_m=scenario.rays.stop_depth_m)
+    out["cells_per_wavelength_1"] = base["cells_per_wavelength"]
+    fine = chk.table.set_index("segment_id")
+    coarse = row["wave_table"]
+    out["judges_amp"] = compare_rankings(coarse["wave_amp_stop_m"].where(coarse["ranked"]),
+                                         fine["wave_amp_stop_m"].where(fine["ranked"]), k=K)
+    out["judges_lens"] = compare_rankings(coarse["wave_lensing"].where(coarse["ranked"]),
+                                          fine["wave_lensing"].where(fine["ranked"]), k=K)
+    for i, ai in enumerate(row["analyses"]):
+        sg = ai.focusing.segments
+        out[f"amp_{i}"] = compare_rankings(_series(sg, "amp_stop_m"), fine["wave_amp_stop_m"], k=K)
+        out[f"lens_{i}"] = compare_rankings(_series(sg, "lensing_factor"), fine["wave_lensing"], k=K)
+    return out
+
+
+def print_refined(rows: list[dict], seeds: dict) -> None:
+    """Print the agreement against the refined wave check."""
+    if not rows:
+        return
+    print()
+    print("the wave check on a finer grid (the same sea floor interpolated; cells per dominant wavelength "
+          "at the stop isobath)")
+    print(f"{'case':<6} {'refine':>6} {'cells/wl':>13} {'wall':>7} {'CPU':>7}   {'coarse vs fine judge: amp':>26}   "
+          f"{'lensing':>11}")
+    for r in rows:
+        print(f"{r['case']:<6} {r['refine']:>6d} {r['cells_per_wavelength_1']:>5.1f} -> {r['cells_per_wavelength']:>4.1f} "
+              f"{r['wall_s']:>6.0f}s {r['cpu_s']:>6.0f}s   {_ag(r['judges_amp']):>26}   {_ag(r['judges_lens']):>11}")
+    print(f"{'case':<6} {'seed':>5}   {'amplitude':>11}   {'lensing':>11}   (rays against the finer judge)")
+    for r in rows:
+        for i, sd in enumerate(seeds[r['case']]):
+            print(f"{r['case']:<6} {sd:>5d}   {_ag(r[f'amp_{i}'])}   {_ag(r[f'lens_{i}'])}")
 
 
 def _ag(d: dict) -> str:
@@ -184,6 +232,9 @@ def main() -> None:
     ap.add_argument("--rays", type=int, default=None, help="ray count (default: the scenario's, the project default)")
     ap.add_argument("--seeds", type=int, nargs=2, default=None,
                     help="two ray seeds (default: the scenario's seed and the next one)")
+    ap.add_argument("--judge-refine", type=int, default=1, metavar="N",
+                    help="also run the wave check on each case's sea floor interpolated onto a grid N times finer "
+                         "(about N^3 times the check's cost: ~3 min for the real case at N=2) and compare")
     args = ap.parse_args()
     load0 = os.getloadavg()
     import numba
@@ -214,8 +265,14 @@ def main() -> None:
         r = run_case(name, sc, segments, depth, seeds, args.rays)
         r["seeds"] = seeds
         rows.append(r)
+    refined = []
+    if args.judge_refine > 1:
+        for (name, sc), r in zip(cases, rows):
+            print(f"{name}: the wave check on a grid {args.judge_refine} times finer ...", flush=True)
+            refined.append(refined_judge(r, sc, load_scenario_bathymetry(sc), args.judge_refine))
     print(f"load average at end {os.getloadavg()[0]:.2f}")
     print_table(rows)
+    print_refined(refined, {r["case"]: r["seeds"] for r in rows})
 
 
 if __name__ == "__main__":
