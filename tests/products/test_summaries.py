@@ -27,6 +27,22 @@ def test_a_weak_lensing_ranking_is_said_and_the_amplitude_ranking_recommended():
     assert both.count("weak") == 2 and "rank this coast" not in both
 
 
+def test_an_unconverged_check_is_said_with_its_remedy():
+    # the check's own resolution at the stop isobath (docs/wave_check.md: 3.4 cells per dominant
+    # wavelength on the real-grid benchmark case, whose wave lensing ranking then moved to Spearman
+    # 0.69 when the same sea floor was solved at half the spacing)
+    from tsunamifocus.studies.check import MIN_CELLS_PER_WAVELENGTH
+
+    coarse = _ag(0.90, 0.32)
+    coarse["resolution"] = {"cells_per_wavelength": 3.4, "period_s": 1567.5}
+    lines = "\n".join(_check_lines(coarse))
+    assert "3.4 cells per 1568 s wavelength" in lines and "--refine 2" in lines
+    fine = _ag(0.95, 0.52)
+    fine["resolution"] = {"cells_per_wavelength": MIN_CELLS_PER_WAVELENGTH + 1.4, "period_s": 1567.5}
+    assert "refine" not in "\n".join(_check_lines(fine))
+    assert "refine" not in "\n".join(_check_lines(_ag(0.95, 0.52)))  # a check without the figure says nothing
+
+
 def test_step_text_says_when_rays_took_local_steps():
     # the run summary must not report one integration step when every ray chose its own (local
     # steps between the grid's default step and the cap; common practice, no source)

@@ -10,6 +10,7 @@ import pandas as pd
 
 from ..cautions import caution_summary
 from ..studies.run import RunResult
+from ..studies.check import MIN_CELLS_PER_WAVELENGTH
 
 __all__ = ['format_summary', 'step_text']
 
@@ -117,6 +118,12 @@ def _check_lines(ag: dict) -> list[str]:
         out.append(f"    lensing ranking held:   {held(ag['lensing'])}{weak(ag['lensing'])}")
         if weak(ag["lensing"]) and not weak(ag):
             out.append("    rank this coast with the amplitude ranking, not the lensing factor (docs/focusing.md)")
+    res = ag.get("resolution") or {}
+    cpw = res.get("cells_per_wavelength", np.nan)
+    if np.isfinite(cpw) and cpw < MIN_CELLS_PER_WAVELENGTH:
+        out.append(f"    the check had {cpw:.1f} cells per {res['period_s']:.0f} s wavelength at the stop isobath "
+                   f"(fewer than {MIN_CELLS_PER_WAVELENGTH:g}): its coastal maxima are not converged; re-run it on a "
+                   f"finer grid (tsunamifocus check RUN --refine 2) before reading these figures (docs/wave_check.md)")
     return out
 
 
