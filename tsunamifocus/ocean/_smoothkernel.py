@@ -84,12 +84,14 @@ def gauss_x(f: np.ndarray, sigma_rows: np.ndarray, truncate: float, periodic: bo
 
 
 @njit(cache=True, parallel=True, nogil=True)
-def add_level(acc: np.ndarray, idx: np.ndarray, lower: np.ndarray, frac: np.ndarray, num: np.ndarray,
-              wgt: np.ndarray, lev: int) -> None:
+def add_level_window(acc: np.ndarray, idx: np.ndarray, lower: np.ndarray, frac: np.ndarray, num: np.ndarray,
+                     wgt: np.ndarray, lev: int, nx: int, row0: int, col0: int) -> None:
     """Add width level ``lev`` (normalised mean ``num / wgt``, 0 where no weight) to the nodes it brackets.
 
-    Node ``idx[n]`` lies between levels ``lower[n]`` and ``lower[n] + 1``, at ``frac[n]`` of the way
-    (linear in log width): it takes ``1 - frac`` of its lower level and ``frac`` of its upper one.
+    Node ``idx[n]`` (flat on a grid ``nx`` wide) lies between levels ``lower[n]`` and ``lower[n] + 1``,
+    at ``frac[n]`` of the way (linear in log width): it takes ``1 - frac`` of its lower level and
+    ``frac`` of its upper one. ``num`` and ``wgt`` (2-D) hold the level on the part of the grid
+    from row ``row0`` and column ``col0``.
     """
     for n in prange(idx.size):
         k = lower[n]
@@ -99,6 +101,36 @@ def add_level(acc: np.ndarray, idx: np.ndarray, lower: np.ndarray, frac: np.ndar
             w = frac[n]
         else:
             continue
-        b = wgt[idx[n]]
+        j = idx[n] // nx
+        i = idx[n] - j * nx
+        b = wgt[j - row0, i - col0]
         if b > 1e-12:
-            acc[n] += w * (num[idx[n]] / b)
+            acc[n] += w * (num[j - row0, i - col0] / b)
+
+
+@njit(cache=True, parallel=True, nogil=True)
+def add_level_coarse(acc: np.ndarray, idx: np.ndarray, lower: np.ndarray, frac: np.ndarray, num: np.ndarray,
+                     wgt: np.ndarray, lev: int, nx: int, y0: np.ndarray, y1: np.ndarray, ty: np.ndarray,
+                     x0: np.ndarray, x1: np.ndarray, tx: np.ndarray) -> None:
+    """:func:`add_level_window` of a level given on a block grid (``num``, ``wgt`` 2-D), bilinear at each node.
+
+    Node ``idx[n]`` (row ``j``, column ``i``) takes the blocks ``y0[j], y1[j]`` (weight ``ty[j]`` of the
+    second) and ``x0[i], x1[i]`` (``tx[i]``), interpolated first along y, then along x, with the
+    operations of ``smooth._lin_axis`` - the values of the whole interpolated grid at that node.
+    """
+    for n in prange(idx.size):
+        k = lower[n]
+        if k == lev:
+            w = 1.0 - frac[n]
+        elif k == lev - 1:
+            w = frac[n]
+        else:
+            continue
+        j = idx[n] // nx
+        i = idx[n] - j * nx
+        a0, a1, t = y0[j], y1[j], ty[j]
+        b0, b1, u = x0[i], x1[i], tx[i]
+        bw = (wgt[a0, b0] * (1.0 - t) + wgt[a1, b0] * t) * (1.0 - u) + (wgt[a0, b1] * (1.0 - t) + wgt[a1, b1] * t) * u
+        if bw > 1e-12:
+            bn = (num[a0, b0] * (1.0 - t) + num[a1, b0] * t) * (1.0 - u) + (num[a0, b1] * (1.0 - t) + num[a1, b1] * t) * u
+            acc[n] += w * (bn / bw)
