@@ -437,7 +437,7 @@ def tube_deposit(
         est = np.bincount(c2_, weights=w[r2_] * v2_, minlength=nseg)
         shadow_e = np.where(shadow, est, 0.0)
     assigned = np.zeros(nray, dtype=bool)
-    assigned[np.unique(hit[r])] = True
+    assigned[hit[r]] = True
     return TubeDeposit(matrix=mat, energy_J=energy, n_rays=n_rays, shadow=shadow,
                        shadow_energy_J=shadow_e, assigned=assigned)
 
