@@ -95,16 +95,23 @@ def _gauss_pass(f: np.ndarray, info: GridInfo, sigma_m: float, min_cells: float 
     dxm, dym = info.spacing_m()
     rows, cols = window if window is not None else (slice(None), slice(None))
     f = np.ascontiguousarray(f[rows, cols], dtype=float)
+    small = f.size < _PARALLEL_FROM_CELLS
+    gauss_y, gauss_x = (_sk.gauss_y_serial, _sk.gauss_x_serial) if small else (_sk.gauss_y, _sk.gauss_x)
     sy = sigma_m / dym
-    out = _sk.gauss_y(f, sy, 3.0) if sy >= min_cells else f.copy()
+    out = gauss_y(f, sy, 3.0) if sy >= min_cells else f.copy()
     if info.geographic:
         sx = _x_widths(info, sigma_m)[rows]
         periodic = bool(info.periodic_x) and f.shape[1] == info.nx
-        return _sk.gauss_x(out, np.ascontiguousarray(sx, dtype=float), 3.0, periodic, float(min_cells))
+        return gauss_x(out, np.ascontiguousarray(sx, dtype=float), 3.0, periodic, float(min_cells))
     sx = sigma_m / dxm
     if sx < min_cells:
         return out
-    return _sk.gauss_x(out, np.full(f.shape[0], sx), 3.0, False, float(min_cells))
+    return gauss_x(out, np.full(f.shape[0], sx), 3.0, False, float(min_cells))
+
+
+#: Grids (and parts of grids) of fewer cells are smoothed on one thread: starting the kernel's
+#: threads costs more than they save there, and much more when other work shares the cores.
+_PARALLEL_FROM_CELLS: int = 100_000
 
 
 def _x_widths(info: GridInfo, sigma_m: float) -> np.ndarray:
@@ -124,11 +131,12 @@ def _window(info: GridInfo, sigma_m: float, nodes: np.ndarray, max_share: float 
     if nodes.size == 0:
         return None
     ny, nx = info.ny, info.nx
-    r = nodes // nx
-    c = nodes - r * nx
     dxm, dym = info.spacing_m()
     ry = int(3.0 * sigma_m / dym + 0.5) + 1
-    r0, r1 = max(int(r.min()) - ry, 0), min(int(r.max()) + ry + 1, ny)
+    r0, r1 = max(int(nodes.min()) // nx - ry, 0), min(int(nodes.max()) // nx + ry + 1, ny)
+    if (r1 - r0) > max_share * ny:
+        return None
+    c = nodes % nx
     if info.geographic:
         rx = int(3.0 * float(_x_widths(info, sigma_m)[r0:r1].max()) + 0.5) + 1
     else:
@@ -398,12 +406,14 @@ def _smooth_many(fs: list[np.ndarray], ms: list[np.ndarray], which: list[int], s
                     a, b = spans[r]
                     if which[r] != j or b <= a:
                         continue
+                    small = b - a < _PARALLEL_FROM_CELLS
                     if d > 1:
-                        _sk.add_level_coarse(p[4][a:b], p[0][a:b], p[1][a:b], p[2][a:b], num, wgt, lev, nx,
-                                             iy[0], iy[1], iy[2], ix[0], ix[1], ix[2])
+                        add = _sk.add_level_coarse_serial if small else _sk.add_level_coarse
+                        add(p[4][a:b], p[0][a:b], p[1][a:b], p[2][a:b], num, wgt, lev, nx,
+                            iy[0], iy[1], iy[2], ix[0], ix[1], ix[2])
                     else:
-                        _sk.add_level_window(p[4][a:b], p[0][a:b], p[1][a:b], p[2][a:b], num, wgt, lev, nx,
-                                             rows.start, cols.start)
+                        add = _sk.add_level_window_serial if small else _sk.add_level_window
+                        add(p[4][a:b], p[0][a:b], p[1][a:b], p[2][a:b], num, wgt, lev, nx, rows.start, cols.start)
     for o, p in zip(outs, plans):
         o.ravel()[p[0]] = p[4]
     return outs
