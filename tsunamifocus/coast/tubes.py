@@ -430,11 +430,13 @@ def tube_deposit(
     covered[cb] = True
     shadow = ~covered & reach
     shadow_e = np.zeros(nseg)
-    if shadow.any() and hit.size:
-        path = np.asarray(end["path_length_m"].values, float)[hit]
-        sig_f = np.maximum(0.5 * np.sqrt(lam * np.maximum(path, 0.0)), sigma)
-        r2_, c2_, v2_ = _arc_rows(arcs, line_r, s0, sig_f, reach, nseg)
-        est = np.bincount(c2_, weights=w[r2_] * v2_, minlength=nseg)
+    # a footprint stays on its coastline line: only rays on a line with a shadow segment can reach one
+    on = np.flatnonzero(np.isin(line_r, arcs.line[shadow])) if shadow.any() else np.zeros(0, np.int64)
+    if on.size:
+        path = np.asarray(end["path_length_m"].values, float)[hit[on]]
+        sig_f = np.maximum(0.5 * np.sqrt(lam[on] * np.maximum(path, 0.0)), sigma[on])
+        r2_, c2_, v2_ = _arc_rows(arcs, line_r[on], s0[on], sig_f, reach, nseg)
+        est = np.bincount(c2_, weights=w[on][r2_] * v2_, minlength=nseg)
         shadow_e = np.where(shadow, est, 0.0)
     assigned = np.zeros(nray, dtype=bool)
     assigned[hit[r]] = True
