@@ -115,11 +115,17 @@ class _Arcs:
 
     @classmethod
     def build(cls, segments: pd.DataFrame) -> _Arcs:
-        geoms = list(segments["geometry"])
+        geoms = np.asarray(list(segments["geometry"]), dtype=object)
         length = segments["length_m"].to_numpy(float)
         n = len(geoms)
-        first = np.array([g.coords[0][:2] for g in geoms], float).reshape(n, 2)
-        last = np.array([g.coords[-1][:2] for g in geoms], float).reshape(n, 2)
+        # first and last vertex of every segment (x, y)
+        xy, owner = shapely.get_coordinates(geoms, return_index=True)
+        count = np.bincount(owner, minlength=n)
+        if np.any(count == 0):
+            raise InputError(f"segments table: {int(np.sum(count == 0))} segments have an empty geometry")
+        end = np.cumsum(count)
+        first = xy[end - count].reshape(n, 2)
+        last = xy[end - 1].reshape(n, 2)
         cont = np.all(np.abs(first[1:] - last[:-1]) <= 1e-9 * (1.0 + np.abs(first[1:])), axis=1)
         line = np.concatenate([[0], np.cumsum(~cont)]).astype(np.int64)
         start = np.flatnonzero(np.concatenate([[True], ~cont]))
