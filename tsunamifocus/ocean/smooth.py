@@ -359,7 +359,7 @@ def _smooth_many(fs: list[np.ndarray], ms: list[np.ndarray], which: list[int], s
         t = np.log(np.maximum(s.ravel()[idx], smin) / smin) / math.log(ratio)
         k = np.clip(np.floor(t).astype(np.int64), 0, max(nlev - 2, 0))
         frac = np.clip(t - k, 0.0, 1.0) if nlev > 1 else np.zeros(idx.size)
-        order = np.argsort(k.astype(np.int16 if nlev < 2**15 else np.int64), kind="stable")
+        order = np.argsort(k.astype(np.uint8 if nlev <= 256 else np.int64), kind="stable")  # radix sort
         idx, k, frac = idx[order], k[order], frac[order]
         first = np.searchsorted(k, np.arange(nlev + 1))  # nodes of lower level l: first[l]:first[l + 1]
         plans.append((idx, k, frac, first, np.zeros(idx.size)))
