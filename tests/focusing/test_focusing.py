@@ -632,3 +632,41 @@ def test_segment_fresnel_width():
     expected = 0.5 * math.sqrt(math.sqrt(GRAVITY * 20.0) * T * (139.2e3 - 5e3))
     np.testing.assert_allclose(tab["fresnel_sigma_m"], expected, rtol=1e-3)
     assert energy_budget(r, tab)["coast_unassigned_J"] == 0.0
+
+
+def test_distance_to_launch_points_is_the_great_circle_distance_to_the_nearest():
+    # On a lon/lat grid the distance map is the great-circle distance to the nearest launch point,
+    # as pyproj's geodesic on the same sphere gives it (pyproj.Geod, a = b = the grid's radius),
+    # both for a few launch points (a direct minimum over them) and for many (a search tree).
+    from pyproj import Geod
+
+    from tsunamifocus.grid import GridInfo
+
+    lon = np.arange(140.0, 160.0 + 1e-9, 0.5)
+    lat = np.arange(20.0, 45.0 + 1e-9, 0.5)
+    d = make_grid(np.full((lat.size, lon.size), 4000.0), lon, lat, "EPSG:4326")
+    geod = Geod(a=GridInfo.from_dataarray(d).radius_m, b=GridInfo.from_dataarray(d).radius_m)
+    rng = np.random.default_rng(5)
+    for n in (3, 200):
+        lx, ly = rng.uniform(145.0, 150.0, n), rng.uniform(30.0, 35.0, n)
+        dist = distance_to_launch_m(d, lx, ly)
+        for j, i in ((0, 0), (10, 31), (50, 40), (25, 12)):
+            _, _, g = geod.inv(np.full(n, lon[i]), np.full(n, lat[j]), lx, ly)
+            assert float(dist.values[j, i]) == pytest.approx(float(np.min(g)), rel=1e-6)
+
+
+def test_correlation_length_found_beyond_the_first_lags_equals_the_short_search(monkeypatch):
+    # A Gaussian-correlated field C(r) = exp(-r^2 / (2 l^2)) (l = 6 cells) falls to exp(-1/2) at
+    # r = l (definition of l; tsunamifocus.ocean.randomfield convention). The correlation length is
+    # first sought among the first lags; when the search is made to start too short (2 cells), the
+    # search over all lags must find the same l.
+    import tsunamifocus.focusing.randommedium as rm
+
+    x = np.arange(0.0, 200e3 + 1, DX)
+    g = gaussian_random_field((x.size, x.size), DX, 6 * DX, rms=1.0, seed=3)
+    d = make_grid(3000.0 * (1 + 0.05 * g), x, x, CRS)
+    short = fluctuation_statistics(d, 40.0)["corr_length_m"]
+    monkeypatch.setattr(rm, "_FIRST_LAG_CELLS", 2)
+    full = fluctuation_statistics(d, 40.0)["corr_length_m"]
+    assert short == pytest.approx(6 * DX, rel=0.2)
+    assert full == pytest.approx(short, rel=1e-9)

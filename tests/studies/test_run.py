@@ -571,6 +571,11 @@ def test_water_the_front_cannot_reach_gets_no_tube_energy_and_no_rank():
     tt = first_arrival_times(d, point=(10e3, 0.0), point_crs=None, stop_depth_m=20.0)
     seg = segment_coastline(coastline_from_grid(d, 20.0), 10e3, d)
     seg = reachable_segments(seg, tt)
+    # times computed beforehand for another table are refused with a one-line error naming the field
+    # (bad input, common practice, no source)
+    from tsunamifocus.errors import InputError
+    with pytest.raises(InputError, match=r"first_arrival_s has shape \(3,\), expected one time per segment"):
+        reachable_segments(seg, tt, first_arrival_s=np.zeros(3))
     in_lake = ((seg["x_mid"] - 165e3) ** 2 + seg["y_mid"] ** 2 < 21e3**2).to_numpy()
     assert in_lake.sum() >= 8 and (~in_lake).sum() >= 15
     assert not seg["reachable"][in_lake].any() and seg["reachable"][~in_lake].all()

@@ -115,11 +115,17 @@ class _Arcs:
 
     @classmethod
     def build(cls, segments: pd.DataFrame) -> _Arcs:
-        geoms = list(segments["geometry"])
+        geoms = np.asarray(list(segments["geometry"]), dtype=object)
         length = segments["length_m"].to_numpy(float)
         n = len(geoms)
-        first = np.array([g.coords[0][:2] for g in geoms], float).reshape(n, 2)
-        last = np.array([g.coords[-1][:2] for g in geoms], float).reshape(n, 2)
+        # first and last vertex of every segment (x, y)
+        xy, owner = shapely.get_coordinates(geoms, return_index=True)
+        count = np.bincount(owner, minlength=n)
+        if np.any(count == 0):
+            raise InputError(f"segments table: {int(np.sum(count == 0))} segments have an empty geometry")
+        end = np.cumsum(count)
+        first = xy[end - count].reshape(n, 2)
+        last = xy[end - 1].reshape(n, 2)
         cont = np.all(np.abs(first[1:] - last[:-1]) <= 1e-9 * (1.0 + np.abs(first[1:])), axis=1)
         line = np.concatenate([[0], np.cumsum(~cont)]).astype(np.int64)
         start = np.flatnonzero(np.concatenate([[True], ~cont]))
@@ -430,14 +436,16 @@ def tube_deposit(
     covered[cb] = True
     shadow = ~covered & reach
     shadow_e = np.zeros(nseg)
-    if shadow.any() and hit.size:
-        path = np.asarray(end["path_length_m"].values, float)[hit]
-        sig_f = np.maximum(0.5 * np.sqrt(lam * np.maximum(path, 0.0)), sigma)
-        r2_, c2_, v2_ = _arc_rows(arcs, line_r, s0, sig_f, reach, nseg)
-        est = np.bincount(c2_, weights=w[r2_] * v2_, minlength=nseg)
+    # a footprint stays on its coastline line: only rays on a line with a shadow segment can reach one
+    on = np.flatnonzero(np.isin(line_r, arcs.line[shadow])) if shadow.any() else np.zeros(0, np.int64)
+    if on.size:
+        path = np.asarray(end["path_length_m"].values, float)[hit[on]]
+        sig_f = np.maximum(0.5 * np.sqrt(lam[on] * np.maximum(path, 0.0)), sigma[on])
+        r2_, c2_, v2_ = _arc_rows(arcs, line_r[on], s0[on], sig_f, reach, nseg)
+        est = np.bincount(c2_, weights=w[on][r2_] * v2_, minlength=nseg)
         shadow_e = np.where(shadow, est, 0.0)
     assigned = np.zeros(nray, dtype=bool)
-    assigned[np.unique(hit[r])] = True
+    assigned[hit[r]] = True
     return TubeDeposit(matrix=mat, energy_J=energy, n_rays=n_rays, shadow=shadow,
                        shadow_energy_J=shadow_e, assigned=assigned)
 

@@ -333,19 +333,19 @@ def analyse_focusing(
             segment_length_m = 10.0 * max(info.spacing_m())
         segments = segment_coastline(coastline_from_grid(depth, stop_depth_m), segment_length_m, depth)
 
-    def grids() -> tuple[dict, xr.DataArray]:
+    def grids() -> tuple[dict, xr.DataArray, dict]:
         dist = distance_to_launch_m(depth, x0, y0)
-        return _focusing_maps(depth, runs, flatr, dist, period_s, reference_smooth_km), dist
+        maps = _focusing_maps(depth, runs, flatr, dist, period_s, reference_smooth_km)
+        return maps, dist, fluctuation_statistics(depth, reference_smooth_km, lowpass=lowpass)
 
-    # the maps (numba Gaussian passes, numpy) and the segment tables with the fluctuation statistics
-    # (numpy, scipy, shapely) are independent: the maps are made in a second thread meanwhile
+    # the maps with the fluctuation statistics (numba Gaussian passes, numpy, scipy) and the segment
+    # tables (numpy, scipy, shapely) are independent: the maps are made in a second thread meanwhile
     with ThreadPoolExecutor(max_workers=1) as pool:
         later = pool.submit(grids)
         table = segment_arrivals(segments, None, depth, period_s=period_s, bands=runs,
                                  max_distance_m=max_distance_m, min_rays=min_rays, n_boot=n_boot, seed=seed,
                                  coast_area=coast_area)
-        fluct = fluctuation_statistics(depth, reference_smooth_km, lowpass=lowpass)
-        maps, dist = later.result()
+        maps, dist, fluct = later.result()
     ranking = rank_segments(table, top_k=top_k, by="lensing_factor")
     d_coast = _segment_distance(table, info, x0, y0)
     diag = branch_diagnostics(runs[dom].real, depth, reference_smooth_km=reference_smooth_km,

@@ -53,11 +53,33 @@ def _default_max_distance(segments: pd.DataFrame, depth: xr.DataArray, info: Gri
     geoms = np.asarray(lines, dtype=object)
     if info.geographic:
         geoms = shapely.transform(geoms, lambda c: np.column_stack([c[:, 0] * kx, c[:, 1]]))
+    # the contour in short pieces: the same nearest distances (the least over the same edges),
+    # without measuring every point against whole lines thousands of vertices long
+    geoms = _pieces(geoms, 32)
     pts = shapely.points(np.column_stack([segments["x_mid"].to_numpy(float) * kx, segments["y_mid"].to_numpy(float)]))
     tree = shapely.STRtree(geoms)
     _, dist = tree.query_nearest(pts, return_distance=True, all_matches=False)
     offset = float(np.median(dist)) * k if len(dist) else 0.0
     return base + 1.5 * offset
+
+
+def _pieces(lines: np.ndarray, n: int) -> np.ndarray:
+    """The lines cut into pieces of at most ``n`` edges (consecutive pieces share a vertex)."""
+    import shapely
+
+    xy, which = shapely.get_coordinates(lines, return_index=True)
+    if xy.shape[0] == 0:
+        return lines
+    count = np.bincount(which, minlength=len(lines))
+    start = np.cumsum(count) - count
+    edges = np.maximum(count - 1, 0)
+    npiece = -(-edges // n)
+    owner = np.repeat(np.arange(len(lines)), npiece)
+    first = np.repeat(start, npiece) + n * (np.arange(owner.size) - np.repeat(np.cumsum(npiece) - npiece, npiece))
+    last = np.minimum(first + n, np.repeat(start + count - 1, npiece))  # inclusive
+    size = last - first + 1
+    take = np.repeat(first, size) + np.arange(int(size.sum())) - np.repeat(np.cumsum(size) - size, size)
+    return shapely.linestrings(xy[take], indices=np.repeat(np.arange(owner.size), size))
 
 
 def _angle_diff(a: np.ndarray, b: np.ndarray) -> np.ndarray:
@@ -134,25 +156,44 @@ def _boot_energy(matrices: Sequence[tuple[float, sparse.csr_matrix]], nseg: int,
         return np.zeros((0, nseg))
     n_rays = matrices[0][1].shape[0]
     chunk = max(1, int(2e6 // max(n_rays, 1)))
+    # only rays that gave energy enter the products (the same sums, in the same order)
+    rows = np.flatnonzero(np.logical_or.reduce([np.diff(m.tocsr().indptr) > 0 for _, m in matrices]))
+    subs = [(wb, m.tocsr()[rows]) for wb, m in matrices]
     out = []
     for b0 in range(0, n_boot, chunk):
-        counts = rng.poisson(1.0, size=(min(n_boot, b0 + chunk) - b0, n_rays)).astype(float)
+        counts = rng.poisson(1.0, size=(min(n_boot, b0 + chunk) - b0, n_rays))  # every ray drawn: one stream
+        cr = np.ascontiguousarray(counts[:, rows].T, dtype=float)
         acc = np.zeros((counts.shape[0], nseg))
-        for wb, m in matrices:
-            acc += wb * np.asarray((m.T @ counts.T).T)
+        for wb, m in subs:
+            acc += wb * np.asarray((m.T @ cr).T)
         out.append(acc)
     return np.concatenate(out)
 
 
 def _deposits(bands: list[BandTrace], which: str, segments: pd.DataFrame, depth: xr.DataArray,
               geo: CoastGeometry, max_distance_m: float, min_width_factor: float,
-              max_incidence_deg: float) -> list[TubeDeposit] | None:
+              max_incidence_deg: float, steps_cache: list) -> list[TubeDeposit] | None:
     runs = [getattr(b, which) for b in bands]
     if any(r is None for r in runs):
         return None
-    return [tube_deposit(segments, r.end, depth, steps=tube_steps(r.end, geo.info), period_s=b.period_s,
+    return [tube_deposit(segments, r.end, depth, steps=_fan_steps(r.end, geo, steps_cache), period_s=b.period_s,
                          max_distance_m=max_distance_m, min_width_factor=min_width_factor,
                          max_incidence_deg=max_incidence_deg, coast=geo) for b, r in zip(bands, runs)]
+
+
+_LAUNCH_VARS = ("launch_x", "launch_y", "launch_azimuth_deg", "q0")
+
+
+def _fan_steps(end: xr.Dataset, geo: CoastGeometry, cache: list) -> np.ndarray:
+    """:func:`tube_steps` of a trace, computed once for every trace of the same fan (``cache``)."""
+    launch = [np.asarray(end[v].values) if v in end else None for v in _LAUNCH_VARS]
+    for key, steps in cache:
+        if all((a is None and b is None) or (a is not None and b is not None and np.array_equal(a, b))
+               for a, b in zip(key, launch)):
+            return steps
+    steps = tube_steps(end, geo.info)
+    cache.append((launch, steps))
+    return steps
 
 
 def _combined(bands: list[BandTrace], deps: list[TubeDeposit], length: np.ndarray) -> dict[str, np.ndarray]:
@@ -358,7 +399,7 @@ def segment_arrivals(
     geo = CoastGeometry.build(segments, depth)  # once for all bands and both oceans
     out, h_stop, idx = _descriptive(segments, end, info, max_distance_m, stop, geo)
     length = segments["length_m"].to_numpy(float)
-    args = (segments, depth, geo, max_distance_m, min_width_factor, max_incidence_deg)
+    args = (segments, depth, geo, max_distance_m, min_width_factor, max_incidence_deg, [])  # one fan: its steps once
     real_d = _deposits(bl, "real", *args)
     ref_d = _deposits(bl, "reference", *args)
     rng = np.random.default_rng(seed)

@@ -11,6 +11,10 @@ from ..constants import GRAVITY, MIN_DEPTH_M
 from ..errors import InputError
 from ..grid import GridInfo
 from ..ocean.smooth import _to_xyz, smooth_fields
+from . import _nearestkernel as _nk
+
+#: Up to this many distinct launch points the distance map is a direct minimum over them.
+_DIRECT_MAX_POINTS: int = 64
 
 __all__ = ['fresnel_sigma_m', 'regularised_energy', 'regularised_energies', 'ratio_map', 'point_source_energy_width', 'distance_to_launch_m']
 
@@ -38,12 +42,21 @@ def distance_to_launch_m(
     """
     info = GridInfo.from_dataarray(grid)
     pts = np.unique(np.round(_to_xyz(info, launch_x, launch_y), 3), axis=0)
-    tree = cKDTree(pts)
-    X, Y = np.meshgrid(info.x, info.y)
-    d, _ = tree.query(_to_xyz(info, X, Y), workers=-1)
+    if pts.shape[0] <= _DIRECT_MAX_POINTS:
+        # a few launch points (a rupture's blocks): the least distance to each directly; the node
+        # coordinates and distances are those _to_xyz and the search tree give
+        if info.geographic:
+            r, lo, la = info.radius_m, np.radians(info.x), np.radians(info.y)
+            d = _nk.nearest_on_sphere(r * np.cos(la), r * np.sin(la), np.cos(lo), np.sin(lo), pts)
+        else:
+            d = _nk.nearest_on_plane(np.asarray(info.y, float), np.asarray(info.x, float), pts)
+    else:
+        X, Y = np.meshgrid(info.x, info.y)
+        d, _ = cKDTree(pts).query(_to_xyz(info, X, Y), workers=-1)
+        d = d.reshape(X.shape)
     if info.geographic:
         d = 2 * info.radius_m * np.arcsin(np.clip(d / (2 * info.radius_m), 0, 1))
-    out = grid.copy(data=d.reshape(X.shape))
+    out = grid.copy(data=d)
     out.name = "distance_m"
     out.attrs = {"units": "m", "long_name": "distance to the nearest launch point"}
     return out

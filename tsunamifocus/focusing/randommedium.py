@@ -21,18 +21,47 @@ __all__ = ['fluctuation_statistics', 'riccati_caustic_constant', 'riccati_causti
 # --------------------------------------------------------------------------------------
 # random focusing: statistics of the bathymetry and Kaplan's scaling
 # --------------------------------------------------------------------------------------
+#: The correlation length is first sought among lags of up to this many cells (little zero padding,
+#: a transform about a third of the size), and among all lags up to half the grid only if the
+#: autocorrelation has not fallen to exp(-1/2) by then.
+_FIRST_LAG_CELLS: int = 64
+
+
 def _corr_length_from_acf(f: np.ndarray, m: np.ndarray, dx: float, dy: float) -> float:
-    """Length where the masked, radially averaged autocorrelation falls to exp(-1/2) [m]."""
+    """Length where the masked, radially averaged autocorrelation falls to exp(-1/2) [m].
+
+    The autocorrelation comes from zero-padded FFTs; lags within a radius ``r`` need only
+    ``r`` cells of padding (no wrap-around up to that lag), so a short radius is tried first.
+    """
+    ny, nx = f.shape
+    rmax = 0.5 * min(nx * dx, ny * dy)
+    r_first = _FIRST_LAG_CELLS * min(dx, dy)
+    if r_first < rmax:
+        ell = _acf_crossing(f, m, dx, dy, r_first, found_only=True)
+        if ell is not None:
+            return ell
+    return _acf_crossing(f, m, dx, dy, rmax)
+
+
+def _acf_crossing(f: np.ndarray, m: np.ndarray, dx: float, dy: float, rmax: float,
+                  found_only: bool = False) -> float | None:
+    """:func:`_corr_length_from_acf` over the lags within ``rmax`` [m] (``found_only``: None if no crossing)."""
     ny, nx = f.shape
     # zero padding to at least twice the size (no wrap-around), at lengths the FFT does fast
-    py, px = sfft.next_fast_len(2 * ny, real=True), sfft.next_fast_len(2 * nx, real=True)
+    pyf, pxf = sfft.next_fast_len(2 * ny, real=True), sfft.next_fast_len(2 * nx, real=True)
+    py, px = pyf, pxf
+    if found_only:
+        # lags up to rmax (plus the one-cell margin of the selection below) free of wrap-around
+        py = min(sfft.next_fast_len(ny + int(math.ceil(rmax / dy)) + 2, real=True), pyf)
+        px = min(sfft.next_fast_len(nx + int(math.ceil(rmax / dx)) + 2, real=True), pxf)
     F = sfft.rfft2(np.where(m, f, 0.0), s=(py, px), workers=-1)
     M = sfft.rfft2(m.astype(float), s=(py, px), workers=-1)
     num = sfft.irfft2(F * np.conj(F), s=(py, px), workers=-1)
     den = sfft.irfft2(M * np.conj(M), s=(py, px), workers=-1)
-    rmax = 0.5 * min(nx * dx, ny * dy)
-    ky = np.fft.fftfreq(py) * py
-    kx = np.fft.fftfreq(px) * px
+    # the lags [cells] as the full padding's frequencies give them (a lag on a bin edge then
+    # falls into the same bin whatever the padding)
+    ky = (np.fft.fftfreq(pyf) * pyf)[np.round(np.fft.fftfreq(py) * py).astype(np.int64) % pyf]
+    kx = (np.fft.fftfreq(pxf) * pxf)[np.round(np.fft.fftfreq(px) * px).astype(np.int64) % pxf]
     # only lags within rmax enter the profile
     jy, jx = np.flatnonzero(np.abs(ky * dy) <= rmax + dy), np.flatnonzero(np.abs(kx * dx) <= rmax + dx)
     thr = 0.5 * den.max() * 0.05
@@ -57,7 +86,7 @@ def _corr_length_from_acf(f: np.ndarray, m: np.ndarray, dx: float, dy: float) ->
     target = c0 * math.exp(-0.5)
     below = np.flatnonzero(np.isfinite(prof) & (prof <= target))
     if below.size == 0:
-        return float("nan")
+        return None if found_only else float("nan")
     k = below[0]
     r0, r1, p0, p1 = r_mid[k - 1], r_mid[k], prof[k - 1], prof[k]
     return float(r0 + (p0 - target) / (p0 - p1) * (r1 - r0)) if p0 != p1 else float(r1)

@@ -79,29 +79,75 @@ def _to_xyz(info: GridInfo, x: np.ndarray, y: np.ndarray) -> np.ndarray:
 # --------------------------------------------------------------------------------------
 # smoothing
 # --------------------------------------------------------------------------------------
-def _gauss_pass(f: np.ndarray, info: GridInfo, sigma_m: float, min_cells: float = 0.2) -> np.ndarray:
+def _gauss_pass(f: np.ndarray, info: GridInfo, sigma_m: float, min_cells: float = 0.2,
+                window: tuple[slice, slice] | None = None) -> np.ndarray:
     """Separable Gaussian [std sigma_m metres]; on lon/lat the x width follows cos(lat), row by row.
 
     Axes (rows on lon/lat) whose width is below ``min_cells`` cells are left as they are. The
     weights are :func:`scipy.ndimage.gaussian_filter1d`'s (truncated at 3 std, zero outside the
     grid, wrapping around a global longitude grid), applied by the parallel kernels of
-    :mod:`tsunamifocus.ocean._smoothkernel`.
+    :mod:`tsunamifocus.ocean._smoothkernel`. With ``window`` (rows, columns of ``f``) only that
+    part is smoothed: its values equal the whole grid's where the kernel stays inside it (at
+    least one radius from its edges that are not grid edges).
     """
     if sigma_m <= 0:
-        return f.copy()
+        return f.copy() if window is None else f[window].copy()
     dxm, dym = info.spacing_m()
-    f = np.ascontiguousarray(f, dtype=float)
+    rows, cols = window if window is not None else (slice(None), slice(None))
+    f = np.ascontiguousarray(f[rows, cols], dtype=float)
+    small = f.size < _PARALLEL_FROM_CELLS
+    gauss_y, gauss_x = (_sk.gauss_y_serial, _sk.gauss_x_serial) if small else (_sk.gauss_y, _sk.gauss_x)
     sy = sigma_m / dym
-    out = _sk.gauss_y(f, sy, 3.0) if sy >= min_cells else f.copy()
+    out = gauss_y(f, sy, 3.0) if sy >= min_cells else f.copy()
     if info.geographic:
-        k = math.pi / 180.0 * info.radius_m
-        coslat = np.cos(np.radians(np.clip(info.y, -89.5, 89.5)))
-        sx = np.minimum(sigma_m / (info.dx * k * coslat), 4.0 * info.nx)
-        return _sk.gauss_x(out, np.ascontiguousarray(sx, dtype=float), 3.0, bool(info.periodic_x), float(min_cells))
+        sx = _x_widths(info, sigma_m)[rows]
+        periodic = bool(info.periodic_x) and f.shape[1] == info.nx
+        return gauss_x(out, np.ascontiguousarray(sx, dtype=float), 3.0, periodic, float(min_cells))
     sx = sigma_m / dxm
     if sx < min_cells:
         return out
-    return _sk.gauss_x(out, np.full(info.ny, sx), 3.0, False, float(min_cells))
+    return gauss_x(out, np.full(f.shape[0], sx), 3.0, False, float(min_cells))
+
+
+#: Grids (and parts of grids) of fewer cells are smoothed on one thread: starting the kernel's
+#: threads costs more than they save there, and much more when other work shares the cores.
+_PARALLEL_FROM_CELLS: int = 100_000
+
+
+def _x_widths(info: GridInfo, sigma_m: float) -> np.ndarray:
+    """Std in cells along x of each row of a lon/lat grid (a degree of longitude shrinks with cos lat)."""
+    k = math.pi / 180.0 * info.radius_m
+    coslat = np.cos(np.radians(np.clip(info.y, -89.5, 89.5)))
+    return np.minimum(sigma_m / (info.dx * k * coslat), 4.0 * info.nx)
+
+
+def _window(info: GridInfo, sigma_m: float, nodes: np.ndarray, max_share: float = 0.7) -> tuple[slice, slice] | None:
+    """Rows and columns around the flat ``nodes`` wide enough for their Gaussian of ``sigma_m`` (None: the whole grid).
+
+    The margin is the kernel radius ``int(3 std + 0.5)`` plus one cell on each axis (x: the widest
+    row of the window); on a global longitude grid the columns are not cut. None when the window
+    would cover more than ``max_share`` of the grid.
+    """
+    if nodes.size == 0:
+        return None
+    ny, nx = info.ny, info.nx
+    dxm, dym = info.spacing_m()
+    ry = int(3.0 * sigma_m / dym + 0.5) + 1
+    r0, r1 = max(int(nodes.min()) // nx - ry, 0), min(int(nodes.max()) // nx + ry + 1, ny)
+    if (r1 - r0) > max_share * ny:
+        return None
+    c = nodes % nx
+    if info.geographic:
+        rx = int(3.0 * float(_x_widths(info, sigma_m)[r0:r1].max()) + 0.5) + 1
+    else:
+        rx = int(3.0 * sigma_m / dxm + 0.5) + 1
+    if info.geographic and info.periodic_x:
+        c0, c1 = 0, nx
+    else:
+        c0, c1 = max(int(c.min()) - rx, 0), min(int(c.max()) + rx + 1, nx)
+    if (r1 - r0) * (c1 - c0) > max_share * ny * nx:
+        return None
+    return slice(r0, r1), slice(c0, c1)
 
 
 def _gauss_any(arr: np.ndarray, info: GridInfo, sigma_m: float, min_cells: float = 0.2) -> np.ndarray:
@@ -150,22 +196,37 @@ def _coarse_gauss(arr: np.ndarray, info: GridInfo, sigma_m: float, d: int) -> np
     coarse Gaussian is narrowed by as much.
     """
     ny, nx = arr.shape
+    sm = _coarse_smoothed(arr, info, sigma_m, d)
+    sm = _lin_axis(sm, 0, ny, d, False)
+    return _lin_axis(sm, 1, nx, d, info.periodic_x)
+
+
+def _coarse_smoothed(arr: np.ndarray, info: GridInfo, sigma_m: float, d: int,
+                     coarse: np.ndarray | None = None) -> np.ndarray:
+    """The block-mean grid of :func:`_coarse_gauss` smoothed, before the interpolation back.
+
+    ``coarse``: the ``d x d`` block means of ``arr`` when already at hand (:func:`_block_mean`).
+    """
+    ny, nx = arr.shape
     nyc, nxc = -(-ny // d), -(-nx // d)
     cinfo = dataclasses.replace(info, x0=info.x0 + 0.5 * (d - 1) * info.dx, y0=info.y0 + 0.5 * (d - 1) * info.dy,
                                 dx=info.dx * d, dy=info.dy * d, nx=nxc, ny=nyc)
     h = info.spacing_m()[1] if info.geographic else max(info.spacing_m())
     s_c = math.sqrt(max(sigma_m**2 - (d * h) ** 2 / 4.0, (0.5 * d * h) ** 2))
+    return _gauss_pass(_block_mean(arr, d) if coarse is None else coarse, cinfo, s_c, 0.2)
+
+
+def _block_mean(arr: np.ndarray, d: int) -> np.ndarray:
+    """Means of ``d x d`` blocks from the first row and column (zeros beyond the grid's last ones)."""
+    ny, nx = arr.shape
+    nyc, nxc = -(-ny // d), -(-nx // d)
     pad = np.zeros((nyc * d, nxc * d))
     pad[:ny, :nx] = arr
-    coarse = pad.reshape(nyc, d, nxc, d).mean(axis=(1, 3))
-    sm = _gauss_pass(coarse, cinfo, s_c, 0.2)
-    sm = _lin_axis(sm, 0, ny, d, False)
-    return _lin_axis(sm, 1, nx, d, info.periodic_x)
+    return pad.reshape(nyc, d, nxc, d).mean(axis=(1, 3))
 
 
-def _lin_axis(arr: np.ndarray, axis: int, n_out: int, d: int, periodic: bool) -> np.ndarray:
-    """Linear interpolation along ``axis`` from block centres (``d`` fine cells each) to ``n_out`` fine cells."""
-    nc = arr.shape[axis]
+def _lin_index(nc: int, n_out: int, d: int, periodic: bool) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Lower and upper block and the upper block's weight of each of ``n_out`` fine cells (see :func:`_lin_axis`)."""
     p = (np.arange(n_out) - 0.5 * (d - 1)) / d
     if periodic:
         i0 = np.floor(p).astype(np.int64)
@@ -176,6 +237,12 @@ def _lin_axis(arr: np.ndarray, axis: int, n_out: int, d: int, periodic: bool) ->
         i0 = np.clip(np.floor(p).astype(np.int64), 0, max(nc - 2, 0))
         i1 = np.minimum(i0 + 1, nc - 1)
         t = np.clip(p - i0, 0.0, 1.0)
+    return i0, i1, t
+
+
+def _lin_axis(arr: np.ndarray, axis: int, n_out: int, d: int, periodic: bool) -> np.ndarray:
+    """Linear interpolation along ``axis`` from block centres (``d`` fine cells each) to ``n_out`` fine cells."""
+    i0, i1, t = _lin_index(arr.shape[axis], n_out, d, periodic)
     shape = [1, 1]
     shape[axis] = n_out
     t = t.reshape(shape)
@@ -271,7 +338,12 @@ def smooth_fields(
 
 def _smooth_many(fs: list[np.ndarray], ms: list[np.ndarray], which: list[int], sigs: list[np.ndarray],
                  info: GridInfo, levels_per_octave: int) -> list[np.ndarray]:
-    """Core of :func:`smooth_fields` on arrays: one width ladder, each level's Gaussians computed once."""
+    """Core of :func:`smooth_fields` on arrays: one width ladder, each level's Gaussians computed once.
+
+    Each request's nodes are kept sorted by their lower level, so a level visits only the nodes
+    it brackets; a level applied on a block-averaged grid is interpolated back at those nodes
+    only (the same bilinear weights as :func:`_coarse_gauss`, so the values are the same).
+    """
     outs = [np.where(ms[j], fs[j], np.nan) for j in which]
     oks = [np.isfinite(s) & (s > 0) & ms[j] for j, s in zip(which, sigs)]
     if not any(ok.any() for ok in oks):
@@ -281,34 +353,67 @@ def _smooth_many(fs: list[np.ndarray], ms: list[np.ndarray], which: list[int], s
     smax = max(max(float(s[ok].max()) for s, ok in zip(sigs, oks) if ok.any()), smin)
     ratio = 2.0 ** (1.0 / max(1, int(levels_per_octave)))
     nlev = max(1, int(math.ceil(math.log(smax / smin) / math.log(ratio))) + 1) if smax > smin else 1
-    plans = []  # per request: flat nodes, lower level, weight of the upper level, levels used, sums
+    plans = []  # per request: flat nodes, lower level, weight of the upper level, first node of each level, sums
     for s, ok in zip(sigs, oks):
         idx = np.flatnonzero(ok)
         t = np.log(np.maximum(s.ravel()[idx], smin) / smin) / math.log(ratio)
         k = np.clip(np.floor(t).astype(np.int64), 0, max(nlev - 2, 0))
         frac = np.clip(t - k, 0.0, 1.0) if nlev > 1 else np.zeros(idx.size)
-        used = np.zeros(nlev + 1, bool)
-        used[np.unique(k)] = True
-        used[np.unique(k) + 1] = True
-        plans.append((idx, k, frac, used[:nlev], np.zeros(idx.size)))
+        order = np.argsort(k.astype(np.uint8 if nlev <= 256 else np.int64), kind="stable")  # radix sort
+        idx, k, frac = idx[order], k[order], frac[order]
+        first = np.searchsorted(k, np.arange(nlev + 1))  # nodes of lower level l: first[l]:first[l + 1]
+        plans.append((idx, k, frac, first, np.zeros(idx.size)))
     groups: dict[bytes, list[int]] = {}  # fields sharing one node mask share the mask's Gaussian
     for j in sorted(set(which)):
         groups.setdefault(np.packbits(ms[j]).tobytes(), []).append(j)
     zeroed = {j: np.where(ms[j], fs[j], 0.0) for j in set(which)}
     weights = {g: ms[js[0]].astype(float) for g, js in groups.items()}
+    ny, nx = fs[0].shape
+    blocks: dict[tuple, np.ndarray] = {}
     for lev in range(nlev):
         s_i = float(smin * ratio**lev)
-        need = {which[r] for r, p in enumerate(plans) if p[3][lev]}
+        # the nodes whose lower level is lev - 1 or lev
+        spans = [(p[3][max(lev - 1, 0)], p[3][lev + 1]) for p in plans]
+        need = {which[r] for r, (a, b) in enumerate(spans) if b > a}
+        d = _decimation(info, s_i)
+        if d > 1:
+            iy = _lin_index(-(-ny // d), ny, d, False)
+            ix = _lin_index(-(-nx // d), nx, d, info.periodic_x)
         for g, js in groups.items():
             js = [j for j in js if j in need]
             if not js:
                 continue
-            wgt = _gauss_any(weights[g], info, s_i).ravel()
+            if d > 1:
+                # levels of one block size share the block means of the mask and of the fields
+                bkey = ("w", g, d)
+                if bkey not in blocks:
+                    blocks[bkey] = _block_mean(weights[g], d)
+                wgt = _coarse_smoothed(weights[g], info, s_i, d, blocks[bkey])
+            else:
+                # only the part of the grid around the nodes this level serves
+                nodes = [plans[r][0][spans[r][0]:spans[r][1]] for r in range(len(plans)) if which[r] in js]
+                win = _window(info, s_i, np.concatenate(nodes))
+                rows, cols = win if win is not None else (slice(0, ny), slice(0, nx))
+                wgt = _gauss_pass(weights[g], info, s_i, window=win)
             for j in js:
-                num = _gauss_any(zeroed[j], info, s_i).ravel()
+                if d > 1:
+                    if ("f", j, d) not in blocks:
+                        blocks["f", j, d] = _block_mean(zeroed[j], d)
+                    num = _coarse_smoothed(zeroed[j], info, s_i, d, blocks["f", j, d])
+                else:
+                    num = _gauss_pass(zeroed[j], info, s_i, window=win)
                 for r, p in enumerate(plans):
-                    if which[r] == j and p[3][lev]:
-                        _sk.add_level(p[4], p[0], p[1], p[2], num, wgt, lev)
+                    a, b = spans[r]
+                    if which[r] != j or b <= a:
+                        continue
+                    small = b - a < _PARALLEL_FROM_CELLS
+                    if d > 1:
+                        add = _sk.add_level_coarse_serial if small else _sk.add_level_coarse
+                        add(p[4][a:b], p[0][a:b], p[1][a:b], p[2][a:b], num, wgt, lev, nx,
+                            iy[0], iy[1], iy[2], ix[0], ix[1], ix[2])
+                    else:
+                        add = _sk.add_level_window_serial if small else _sk.add_level_window
+                        add(p[4][a:b], p[0][a:b], p[1][a:b], p[2][a:b], num, wgt, lev, nx, rows.start, cols.start)
     for o, p in zip(outs, plans):
         o.ravel()[p[0]] = p[4]
     return outs

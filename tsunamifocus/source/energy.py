@@ -200,7 +200,10 @@ def period_bands(
     py, px = min(pad * block.shape[0], 4096), min(pad * block.shape[1], 4096)
     # real input: the half plane kx >= 0 of the power spectrum, the columns that stand for
     # their mirror image (-kx) counted twice
-    power = np.abs(sfft.rfft2(block, s=(py, px), workers=-1)) ** 2
+    # (the rows first, then the columns: the padding rows are zero and need no transform - the
+    # same values as one 2-D transform of the padded block)
+    spec = sfft.fft(sfft.rfft(block, n=px, axis=1, workers=-1), n=py, axis=0, workers=-1)
+    power = np.abs(spec) ** 2
     wcol = np.full(power.shape[1], 2.0)
     wcol[0] = 1.0
     if px % 2 == 0:

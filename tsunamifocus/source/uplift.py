@@ -210,9 +210,11 @@ def uplift_on_grid(
     else:
         ue_all = np.zeros_like(eta) if horizontal else None
         un_all = np.zeros_like(eta) if horizontal else None
+        geos = []  # each segment's frame, also for the mean strike
         for iseg, (seg, slip) in enumerate(zip(src.segments, src.slips_m)):
             what = f"rupture {src.name!r} segment {iseg} ({seg.name!r})"
             geo = _segment_geometry(seg, gi)
+            geos.append(geo)
             _check_inside(gi, geo["gx"], geo["gy"], what)
             _check_trace_at_sea(seg, geo, gi, dep, what)
             radius = _window_radius_m(seg) if window_km is None else float(window_km) * 1e3
@@ -229,7 +231,7 @@ def uplift_on_grid(
         if horizontal:
             eta += _tanioka_satake(gi, dep, ue_all, un_all)  # type: ignore[arg-type]
         attrs_src = {
-            "strike_deg": _mean_strike(src, gi),
+            "strike_deg": _mean_strike(src, gi, geos),
             "source_kind": "rupture",
             "source_name": src.name,
             "Mw": round(src.mw, 3),
@@ -295,11 +297,14 @@ def _segment_window(seg: FaultSegment, slip: float, geo: dict, X: np.ndarray, Y:
     return uz, uE, uN
 
 
-def _mean_strike(src: Rupture, gi: GridInfo) -> float:
-    """Moment-weighted circular mean strike of the segments in the grid frame [degrees]."""
+def _mean_strike(src: Rupture, gi: GridInfo, geos: list[dict[str, Any]] | None = None) -> float:
+    """Moment-weighted circular mean strike of the segments in the grid frame [degrees].
+
+    ``geos``: the segments' :func:`_segment_geometry` when already built (one per segment, in order).
+    """
     vec = 0j
-    for seg, slip in zip(src.segments, src.slips_m):
-        geo = _segment_geometry(seg, gi)
+    for i, (seg, slip) in enumerate(zip(src.segments, src.slips_m)):
+        geo = geos[i] if geos is not None else _segment_geometry(seg, gi)
         a = math.atan2(geo["e"][1] - geo["e"][0], geo["n"][1] - geo["n"][0])
         vec += seg.moment_nm(slip) * np.exp(1j * a)
     return float(math.degrees(np.angle(vec)) % 360.0)

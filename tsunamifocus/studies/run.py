@@ -28,7 +28,7 @@ from ..coast.region import CoastRegion, region_from_config
 from ..coast.segments import STATIC_SEGMENT_COLUMNS as _STATIC_COLUMNS
 from ..coast.segments import segment_coastline
 from ..constants import STOP_DEPTH_M
-from ..errors import CoastError, HealthCheckError, PointWarning, ResolutionWarning, ResourceLimitError
+from ..errors import CoastError, HealthCheckError, InputError, PointWarning, ResolutionWarning, ResourceLimitError
 from ..focusing.analysis import ReferenceOcean, analyse_focusing
 from ..focusing.ranking import _add_ranks, rank_segments
 from ..grid import GridInfo
@@ -324,11 +324,15 @@ def analyse_source(
     pr.start("source", f"source '{src_cfg.name}': initial sea surface and ray fan")
     src = build_source(src_cfg, p)
     eta = initial_surface(src, depth)
-    # the first arrivals (fast marching) are computed in a second thread meanwhile
+    # the first arrivals (fast marching), then their earliest times along the segments, are
+    # computed in a second thread meanwhile
     with ThreadPoolExecutor(max_workers=1) as pool:
         tt_later = pool.submit(source_travel_times, src, eta, depth, scenario.rays.stop_depth_m)
         if segments is None:
             segments = _segments_for(depth, scenario)
+        seg_in = segments
+        first_later = pool.submit(lambda: segment_first_arrivals(tt_later.result().travel_time_s, seg_in)
+                                  if seg_in is not None and len(seg_in) else None)
         count = int(n_rays or scenario.rays.count or choose_ray_count(scenario, depth, segments).value)
         fan = make_ray_fan(eta, depth, count, seed=scenario.rays.seed,
                            azimuth_offset_deg=float(p.get("launch_jitter_deg", 0.0)),
@@ -337,6 +341,7 @@ def analyse_source(
         period = float(scenario.focusing.period_s or summary.period_s)
         bands = period_bands(eta, depth, period) if all_bands else [(period, 1.0)]
         tt = tt_later.result()
+        first = first_later.result()
     pr.done(f"{summary.headline}, period {period / 60:.1f} min, {fan.n_rays} rays")
     pr.start("trace", f"tracing {fan.n_rays} rays in {len(bands)} period bands over the real and reference "
              "oceans as the wave sees them, and over a constant-depth ocean")
@@ -345,7 +350,7 @@ def analyse_source(
         kw["threads"] = int(threads)
     if scenario.rays.step_s:
         kw["step_s"] = scenario.rays.step_s
-    segments = reachable_segments(segments, tt)
+    segments = reachable_segments(segments, tt, first_arrival_s=first)
     foc = analyse_focusing(
         depth, fan, period_s=period, reference_smooth_km=scenario.focusing.reference_smooth_km, bands=bands,
         stop_depth_m=scenario.rays.stop_depth_m, segments=segments, trace_kwargs=kw,
@@ -353,7 +358,7 @@ def analyse_source(
         max_distance_m=getattr(scenario.coast, "max_distance_m", None),
         coast_area=_area_mask(segments.attrs.get("coast_area"), depth), reference=reference,
     )
-    use_travel_times(foc, tt)
+    use_travel_times(foc, tt, first_arrival_s=first)  # the segments' rows are still those of seg_in
     restrict_to_region(foc, scenario.output.top_k)
     foc.segments["edge_distance_km"] = _edge_distance_km(foc.segments, depth)
     if "segment_id" in foc.ranking:
@@ -394,17 +399,32 @@ def source_travel_times(source: Any, eta: xr.DataArray | None, depth: xr.DataArr
     return first_arrival_times(depth, uplift=eta, stop_depth_m=stop_depth_m)
 
 
-def reachable_segments(segments: pd.DataFrame | None, tt: TravelTimes) -> pd.DataFrame | None:
+def reachable_segments(segments: pd.DataFrame | None, tt: TravelTimes, *,
+                       first_arrival_s: np.ndarray | None = None) -> pd.DataFrame | None:
     """The segments with a ``reachable`` column: True where the eikonal front reaches the segment.
 
     Water the front cannot reach from the source (lakes and depressions below sea level, bays cut
     off at the grid's resolution) gets no tube energy and is not ranked
     (:func:`tsunamifocus.coast.tubes.tube_deposit`). When no segment is reached the column is
     left out (the focusing stage then says plainly that no ray reached the coast).
+
+    Parameters
+    ----------
+    segments : pandas.DataFrame or None
+        Coastline segments.
+    tt : TravelTimes
+        First arrivals of the source.
+    first_arrival_s : numpy.ndarray, optional
+        ``segment_first_arrivals(tt.travel_time_s, segments)`` [s] when already computed.
+
+    Returns
+    -------
+    pandas.DataFrame or None
     """
     if segments is None or len(segments) == 0:
         return segments
-    reach = np.isfinite(segment_first_arrivals(tt.travel_time_s, segments))
+    first = _first_arrivals(tt, segments, first_arrival_s)
+    reach = np.isfinite(first)
     if not reach.any():
         return segments
     out = segments.copy()
@@ -413,12 +433,24 @@ def reachable_segments(segments: pd.DataFrame | None, tt: TravelTimes) -> pd.Dat
     return out
 
 
-def use_travel_times(foc: Any, tt: TravelTimes) -> None:
+def _first_arrivals(tt: TravelTimes, segments: pd.DataFrame, first_arrival_s: np.ndarray | None) -> np.ndarray:
+    """The segments' earliest eikonal times [s]: ``first_arrival_s`` when given (checked), else computed."""
+    if first_arrival_s is None:
+        return segment_first_arrivals(tt.travel_time_s, segments)
+    first = np.asarray(first_arrival_s, dtype=float)
+    if first.shape != (len(segments),):
+        raise InputError(f"first_arrival_s has shape {first.shape}, expected one time per segment ({len(segments)})")
+    return first
+
+
+def use_travel_times(foc: Any, tt: TravelTimes, *, first_arrival_s: np.ndarray | None = None) -> None:
     """Make the eikonal first arrivals the run's travel-time layer and segment first arrivals, in place.
 
     ``foc.travel_time_min`` becomes the eikonal layer [min]; the segments' ``first_arrival_s`` [s] the
     earliest eikonal time along each segment's stretch of the stop isobath; the rays' own arrival
     (earliest ray ending nearest to the segment) is kept as the diagnostic column ``ray_arrival_s``.
+    ``first_arrival_s`` [s]: ``segment_first_arrivals(tt.travel_time_s, foc.segments)`` when already
+    computed (for the same segments in the same order).
     """
     seg = foc.segments
     cols = list(seg.columns)
@@ -427,7 +459,7 @@ def use_travel_times(foc: Any, tt: TravelTimes) -> None:
         cols.insert(cols.index("first_arrival_s") + 1, "ray_arrival_s")
     else:
         cols.append("first_arrival_s")
-    seg["first_arrival_s"] = segment_first_arrivals(tt.travel_time_s, seg)
+    seg["first_arrival_s"] = _first_arrivals(tt, seg, first_arrival_s)
     attrs = dict(seg.attrs)
     foc.segments = seg[cols]
     foc.segments.attrs = attrs
