@@ -29,7 +29,7 @@ __all__ = ['MIN_CELLS_PER_WAVELENGTH', 'WaveCheck', 'compare_with_waves', 'defau
 #: its coastal maxima are not converged in grid spacing. Set between two measurements
 #: (docs/wave_check.md): the demo at 3 km (5.3 cells per wavelength there) kept its wave lensing
 #: ranking on its sea floor interpolated to half the spacing (Spearman 0.95 between the two), the
-#: real-grid benchmark case at 0.1 degree (3.4 cells) did not (0.69). Absolute coastal maxima need
+#: real-grid benchmark case at 0.1 degree (3.4 cells) did not (0.70). Absolute coastal maxima need
 #: more: on a plane slope the check's maximum at the stop isobath was 33 % below Green's law at
 #: about 5 cells per wavelength, 5 % below at 17 (tests/studies/test_check.py).
 MIN_CELLS_PER_WAVELENGTH: float = 4.0
