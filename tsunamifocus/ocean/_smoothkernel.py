@@ -123,13 +123,21 @@ def gauss_x_serial(f: np.ndarray, sigma_rows: np.ndarray, truncate: float, perio
 
 
 @njit(cache=True, inline="always", nogil=True)
-def _window_node(acc, n, idx, lower, frac, num, wgt, lev, nx, row0, col0) -> None:
+def _level_share(lower, frac, n, lev) -> float:
+    """Share of width level ``lev`` in node ``n``: ``1 - frac`` of its lower level, ``frac`` of its upper
+    one, -1 for a level that does not bracket it."""
     k = lower[n]
     if k == lev:
-        w = 1.0 - frac[n]
-    elif k == lev - 1:
-        w = frac[n]
-    else:
+        return 1.0 - frac[n]
+    if k == lev - 1:
+        return frac[n]
+    return -1.0
+
+
+@njit(cache=True, inline="always", nogil=True)
+def _window_node(acc, n, idx, lower, frac, num, wgt, lev, nx, row0, col0) -> None:
+    w = _level_share(lower, frac, n, lev)
+    if w < 0.0:
         return
     j = idx[n] // nx
     i = idx[n] - j * nx
@@ -162,12 +170,8 @@ def add_level_window_serial(acc: np.ndarray, idx: np.ndarray, lower: np.ndarray,
 
 @njit(cache=True, inline="always", nogil=True)
 def _coarse_node(acc, n, idx, lower, frac, num, wgt, lev, nx, y0, y1, ty, x0, x1, tx) -> None:
-    k = lower[n]
-    if k == lev:
-        w = 1.0 - frac[n]
-    elif k == lev - 1:
-        w = frac[n]
-    else:
+    w = _level_share(lower, frac, n, lev)
+    if w < 0.0:
         return
     j = idx[n] // nx
     i = idx[n] - j * nx

@@ -23,7 +23,7 @@ from ..cautions import caution_summary
 from ..errors import DataFileError, InputError
 from ..grid import MAX_REFINE_FACTOR
 from ..io.gis import write_cog, write_netcdf
-from ..io.manifest import jsonable, write_manifest
+from ..io.manifest import jsonable, read_manifest, write_manifest
 from ..io.guards import check_output_folder
 from ..io.runfolder import OutputFolder
 from ..io.runs import read_run
@@ -88,12 +88,19 @@ def _run_scenario(run_dir: pathlib.Path) -> Scenario:
     return parse_scenario(p)
 
 
-def _run_period_s(run_dir: pathlib.Path) -> float | None:
-    """The source's dominant period [s] recorded in the run's manifest, or None."""
+def _run_manifest(run_dir: pathlib.Path) -> dict:
+    """The run's manifest, or an empty dict when it has none readable (folders assembled by hand)."""
     try:
-        m = json.loads((run_dir / "manifest.json").read_text(encoding="utf-8"))
-        p = float(m["extra"]["source_summary"]["period_s"])
-    except (OSError, ValueError, KeyError, TypeError, json.JSONDecodeError):
+        return read_manifest(run_dir)
+    except DataFileError:
+        return {}
+
+
+def _manifest_period_s(manifest: dict) -> float | None:
+    """The source's dominant period [s] recorded in a run's manifest, or None."""
+    try:
+        p = float(manifest["extra"]["source_summary"]["period_s"])
+    except (ValueError, KeyError, TypeError):
         return None
     return p if np.isfinite(p) and p > 0 else None
 
@@ -148,6 +155,7 @@ def run_wave_check(
                         inputs=[("run file", run_dir / f) for f in ("layers.nc", "segments.csv", "scenario.toml",
                                                                      "manifest.json")])
     name, segments, layers = read_run(run_dir)
+    manifest = _run_manifest(run_dir)
     for need in ("depth", "initial_sea_surface"):
         if need not in layers:
             raise DataFileError(f"{run_dir / 'layers.nc'}: has no '{need}' layer; re-run with this version")
@@ -163,7 +171,7 @@ def run_wave_check(
                          duration_s=None if hours is None else hours * 3600.0,
                          figure_path=tmp / "ray_vs_wave.png", progress=progress,
                          max_memory_bytes=sc.bathymetry.max_memory_gb * 1e9, refine=refine,
-                         period_s=_run_period_s(run_dir),
+                         period_s=_manifest_period_s(manifest),
                          **({"max_cell_updates": None} if force else {}))
         amp = chk.wave.max_amplitude.copy()
         amp.name = "wave_max_amplitude"
@@ -177,7 +185,7 @@ def run_wave_check(
         write_check_table(table, tmp / "wave_segments.csv")
         ag = jsonable(chk.agreement)
         (tmp / "agreement.json").write_text(json.dumps(jsonable(ag), indent=2), encoding="utf-8")
-        _appendix(tmp, run_dir, name, seg, table, ag, chk)
+        _appendix(tmp, run_dir, name, seg, chk, manifest)
         write_manifest(tmp / "manifest.json", output_dir=tmp, inputs={"run_layers": run_dir / "layers.nc",
                        "run_segments": run_dir / "segments.csv"},
                        extra={"wave_stats": jsonable(chk.wave.stats), "agreement": jsonable(ag)})
@@ -205,20 +213,13 @@ def write_check_table(df: pd.DataFrame, path: pathlib.Path) -> pathlib.Path:
     return path
 
 
-def _appendix(tmp: pathlib.Path, run_dir: pathlib.Path, name: str, seg: pd.DataFrame, table: pd.DataFrame,
-              ag: dict, chk: Any) -> None:
+def _appendix(tmp: pathlib.Path, run_dir: pathlib.Path, name: str, seg: pd.DataFrame,
+              chk: Any, manifest: dict) -> None:
     """A supplement to the run's appendix: the cautions, the ranked table and the check section."""
 
     section = check_section(chk, {"ray_vs_wave": str(tmp / "ray_vs_wave.png"),
                                   **({"ray_vs_wave_lensing": str(chk.figure_lensing)} if chk.figure_lensing else {})})
-    manifest = {}
-    mp = run_dir / "manifest.json"
-    if mp.is_file():
-        try:
-            manifest = json.loads(mp.read_text(encoding="utf-8"))
-        except (json.JSONDecodeError, UnicodeDecodeError):
-            manifest = {}
-    desc = (manifest.get("parameters", {}) or {}).get("description", "") if isinstance(manifest, dict) else ""
+    desc = (manifest.get("parameters", {}) or {}).get("description", "")
     ctx = {
         "title": f"Wave-equation check of the ray screening: {name}",
         "subtitle": "Supplement to the planning-study appendix (screening level)",
