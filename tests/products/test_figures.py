@@ -397,6 +397,52 @@ def test_agreement_scatter(tmp_path):
         figures.plot_agreement(a, b[:-1], out_path=tmp_path / "x.png", xlabel="a", ylabel="b")
 
 
+def test_scatter_box_legend_and_labels_hide_no_point():
+    # Readability (common practice, no source): the statistics box, the legend and the point
+    # labels of a 1:1 scatter must not cover points, nor labels each other. Points along the
+    # diagonal with the top ones in the upper right, where a box in the upper left used to hide
+    # the largest segments' labels.
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+
+    rng = np.random.default_rng(3)
+    a = np.exp(np.linspace(-0.7, 1.3, 40) + rng.normal(0, 0.15, 40))
+    b = a * np.exp(rng.normal(0, 0.25, 40))
+    b[-3:] *= 1.8  # the wave's largest values high in the upper right
+    fig, ax = plt.subplots(figsize=(6.4, 6.0))
+    ax.scatter(a, b, s=18)
+    ax.set_xscale("log")
+    ax.set_yscale("log")
+    lo, hi = float(min(a.min(), b.min())) / 1.2, float(max(a.max(), b.max())) * 1.2
+    ax.set_xlim(lo, hi)
+    ax.set_ylim(lo, hi)
+    text = "n = 40 segments\nSpearman rho = 0.90\nKendall tau = 0.75\ntop-10 overlap = 8/10\nWave check: linear\nlong-wave equations"
+    arts = figures._corner_boxes(fig, ax, a, b, text)
+    assert len(arts) == 2
+    fig.draw_without_rendering()
+    pts = ax.transData.transform(np.column_stack([a, b]))
+    for art in arts:
+        bb = art.get_window_extent()
+        inside = (pts[:, 0] >= bb.x0) & (pts[:, 0] <= bb.x1) & (pts[:, 1] >= bb.y0) & (pts[:, 1] <= bb.y1)
+        assert not inside.any(), f"{type(art).__name__} hides {int(inside.sum())} points"
+    top = np.argsort(b)[-6:]
+    names = [f"S{i:04d}" for i in range(a.size)]
+    figures._scatter_labels(fig, ax, a, b, names, top, ok=np.ones(a.size, bool), avoid=arts)
+    fig.draw_without_rendering()
+    boxes = [t.get_window_extent() for t in ax.texts if t.get_text() in names]
+    assert len(boxes) == 6
+    frame = ax.get_window_extent()
+    for i, bi in enumerate(boxes):
+        assert frame.x0 <= bi.x0 and bi.x1 <= frame.x1 and frame.y0 <= bi.y0 and bi.y1 <= frame.y1
+        for art in arts:
+            assert not bi.overlaps(art.get_window_extent()), "a label under the box or legend"
+        for bj in boxes[i + 1:]:
+            assert not bi.overlaps(bj), "two labels overlap"
+    plt.close(fig)
+
+
 def test_bad_inputs_rejected(case, tmp_path):
     with pytest.raises(InputError, match="DataArray"):
         figures.plot_uplift(np.zeros((3, 3)), out_path=tmp_path / "x.png")

@@ -151,7 +151,7 @@ def run_wave_check(
     if isinstance(refine, bool) or not isinstance(refine, int) or not 1 <= refine <= MAX_REFINE_FACTOR:
         raise InputError(f"--refine {refine!r}: expected an integer from 1 to {MAX_REFINE_FACTOR}")
     out_dir = pathlib.Path(out) if out is not None else run_dir / CHECK_FOLDER
-    check_output_folder(out_dir, overwrite=overwrite, kind="wave_check", option="--out" if out else "the check folder",
+    check_output_folder(out_dir, overwrite=overwrite, kind="wave_check", option="--out" if out else "check folder (--out)",
                         inputs=[("run file", run_dir / f) for f in ("layers.nc", "segments.csv", "scenario.toml",
                                                                      "manifest.json")])
     name, segments, layers = read_run(run_dir)

@@ -25,6 +25,7 @@ ax=ax, geo=geo)``.
 from __future__ import annotations
 
 import math
+import textwrap
 import os
 import pathlib
 from collections.abc import Iterable, Sequence
@@ -116,7 +117,7 @@ def plot_ray_vs_wave(
     txt = (
         f"n = {agree['n']} segments\nSpearman rho = {agree['spearman']:.2f}\n"
         f"Kendall tau = {agree['kendall']:.2f}\ntop-{kk} overlap = {agree['topk_common']}/{kk}\n"
-        f"{WAVE_LIMITS}"
+        + textwrap.fill(WAVE_LIMITS, 44)
     )
     names = [str(x) for x in labels] if (annotate_top and labels is not None) else None
     return plot_agreement(a, b, out_path=path, xlabel=ray_label, ylabel=wave_label, title=title or "",
@@ -1470,35 +1471,64 @@ def _extremes(ax, eta: xr.DataArray, e: np.ndarray) -> list:
     return handles
 
 
-def _scatter_labels(fig: Figure, ax, xa: np.ndarray, ya: np.ndarray, labels: Sequence[str], idx) -> None:
-    """Point labels placed greedily (8 candidate offsets) so that their boxes do not overlap."""
+def _overlap(a: tuple[float, float, float, float], b: tuple[float, float, float, float]) -> float:
+    """Overlap area of two boxes ``(x0, y0, x1, y1)``."""
+    return max(0.0, min(a[2], b[2]) - max(a[0], b[0])) * max(0.0, min(a[3], b[3]) - max(a[1], b[1]))
+
+
+def _scatter_labels(fig: Figure, ax, xa: np.ndarray, ya: np.ndarray, labels: Sequence[str], idx,
+                    ok: np.ndarray | None = None, avoid: Sequence[Any] = ()) -> None:
+    """Point labels placed greedily so that they overlap nothing they would hide.
+
+    Each label tries 12 offsets around its point and takes the first whose box stays inside the
+    axes and overlaps no earlier label, no plotted point (``ok``) and none of the artists in
+    ``avoid`` (the text box, the legend); when none is free, the offset with the least overlap.
+    """
     fig.draw_without_rendering()
     to_pt = 72.0 / fig.dpi
     pts = ax.transData.transform(np.column_stack([xa[idx], ya[idx]])) * to_pt
+    frame = ax.get_window_extent()
+    fx0, fy0, fx1, fy1 = (frame.x0 * to_pt, frame.y0 * to_pt, frame.x1 * to_pt, frame.y1 * to_pt)
+    obstacles: list[tuple[float, float, float, float]] = []
+    for art in avoid:
+        bb = art.get_window_extent()  # a text's rounded box pads it by about 4 points
+        obstacles.append((bb.x0 * to_pt - 4.0, bb.y0 * to_pt - 4.0, bb.x1 * to_pt + 4.0, bb.y1 * to_pt + 4.0))
+    if ok is not None and ok.any():
+        mk = ax.transData.transform(np.column_stack([xa[ok], ya[ok]])) * to_pt
+        obstacles += [(x - 3.0, y - 3.0, x + 3.0, y + 3.0) for x, y in mk]
     fs = 7.0
-    boxes: list[tuple[float, float, float, float]] = []
-    cands = [(4, 3), (4, -9), (-4, 3), (-4, -9), (4, 11), (-4, 11), (4, -17), (-4, -17)]
+    labelled: list[tuple[float, float, float, float]] = []
+    cands = [(4, 3), (4, -10), (-4, 3), (-4, -10), (5, -3.5), (-5, -3.5), (0, 6), (0, -13), (4, 11), (-4, 11),
+             (4, -18), (-4, -18)]
     for (px, py), i in zip(pts, idx, strict=True):
         text = str(labels[i])
         w, h = 0.62 * fs * len(text), 1.15 * fs
-        chosen = cands[0]
+
+        def box(dx: float, dy: float) -> tuple[float, float, float, float]:
+            x0 = px + dx if dx > 0 else (px + dx - w if dx < 0 else px - 0.5 * w)
+            return (x0, py + dy, x0 + w, py + dy + h)
+
+        best, cost_best = cands[0], math.inf
         for dx, dy in cands:
-            x0 = px + dx if dx >= 0 else px + dx - w
-            box = (x0, py + dy, x0 + w, py + dy + h)
-            if all(box[2] <= b[0] or box[0] >= b[2] or box[3] <= b[1] or box[1] >= b[3] for b in boxes):
-                chosen = (dx, dy)
+            b = box(dx, dy)
+            outside = (b[0] < fx0) or (b[2] > fx1) or (b[1] < fy0) or (b[3] > fy1)
+            cost = sum(_overlap(b, o) for o in labelled) * 4.0 + sum(_overlap(b, o) for o in obstacles) \
+                + (1e6 if outside else 0.0)
+            if cost < cost_best:
+                best, cost_best = (dx, dy), cost
+            if cost == 0.0:
                 break
-        dx, dy = chosen
-        x0 = px + dx if dx >= 0 else px + dx - w
-        boxes.append((x0, py + dy, x0 + w, py + dy + h))
+        dx, dy = best
+        labelled.append(box(dx, dy))
         ax.annotate(
             text,
             (xa[i], ya[i]),
             xytext=(dx, dy),
             textcoords="offset points",
             fontsize=fs,
-            ha="left" if dx >= 0 else "right",
+            ha="left" if dx > 0 else ("right" if dx < 0 else "center"),
             va="bottom",
+            zorder=7,
         )
 
 
@@ -1611,21 +1641,51 @@ def plot_agreement(
     ax.set_xlabel(xlabel)
     ax.set_ylabel(ylabel)
     ax.grid(True, color="0.9", linewidth=0.6)
+    avoid = _corner_boxes(fig, ax, xa[ok], ya[ok], annotate)
     if labels is not None and (ok & hl).any():
-        _scatter_labels(fig, ax, xa, ya, labels, np.flatnonzero(ok & hl))
-    if annotate:
-        ax.text(
-            0.03,
-            0.97,
-            annotate,
-            transform=ax.transAxes,
-            va="top",
-            ha="left",
-            fontsize=8.5,
-            bbox=dict(facecolor="white", edgecolor="0.6", boxstyle="round,pad=0.4"),
-        )
-    ax.legend(loc="lower right", fontsize=8)
+        # labels placed last, around the text box and the legend (which must not hide them)
+        _scatter_labels(fig, ax, xa, ya, labels, np.flatnonzero(ok & hl), ok=ok, avoid=avoid)
     return _finish(fig, out_path, ax=ax)
+
+
+def _corner_boxes(fig: Figure, ax, x: np.ndarray, y: np.ndarray, annotate: str | None) -> list:
+    """The statistics box and the legend, in the two opposite corners that hide the fewest points.
+
+    Points of a 1:1 scatter lie along the diagonal, so the upper-left / lower-right pair usually
+    suits; when the box would cover points there, the legend and the box swap corners, or take
+    the other diagonal. Returns the two artists (for the labels to avoid).
+    """
+    fig.draw_without_rendering()
+    pts = ax.transData.transform(np.column_stack([x, y]))
+    pairs = (("upper left", "lower right"), ("lower right", "upper left"), ("upper right", "lower left"),
+             ("lower left", "upper right"))
+    where = {"upper left": (0.03, 0.97, "top", "left"), "lower right": (0.97, 0.03, "bottom", "right"),
+             "upper right": (0.97, 0.97, "top", "right"), "lower left": (0.03, 0.03, "bottom", "left")}
+    best: tuple[int, list] | None = None
+    for box_at, legend_at in pairs:
+        arts = []
+        if annotate:
+            tx, ty, va, ha = where[box_at]
+            arts.append(ax.text(tx, ty, annotate, transform=ax.transAxes, va=va, ha=ha, fontsize=8.5, zorder=8,
+                                bbox=dict(facecolor="white", edgecolor="0.6", boxstyle="round,pad=0.4")))
+        arts.append(ax.legend(loc=legend_at, fontsize=8))
+        fig.draw_without_rendering()
+        hidden = 0
+        for a in arts:
+            bb = a.get_window_extent().padded(6.0)
+            hidden += int(np.sum((pts[:, 0] >= bb.x0) & (pts[:, 0] <= bb.x1) & (pts[:, 1] >= bb.y0)
+                                 & (pts[:, 1] <= bb.y1)))
+        if best is None or hidden < best[0]:
+            if best is not None:
+                for a in best[1]:
+                    a.remove()
+            best = (hidden, arts)
+        else:
+            for a in arts:
+                a.remove()
+        if hidden == 0:
+            break
+    return best[1] if best is not None else []
 
 
 def _scatter_top_sets(ax, xa, ya, ok, top_x, top_y, top_names) -> np.ndarray:
