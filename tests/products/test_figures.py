@@ -443,6 +443,36 @@ def test_scatter_box_legend_and_labels_hide_no_point():
     plt.close(fig)
 
 
+def test_check_profile_along_the_coast(tmp_path):
+    # Distance along the coast is the running sum of segment lengths (plain geometry, common
+    # practice, no source): two straight coastlines of 100 km and 60 km cut into 20 km segments
+    # put their mid-points at 10, 30, ..., 90 km and, after a gap, 10 km + offset ... on the second.
+    from tsunamifocus.coast.segments import segment_coastline
+
+    x = np.arange(0.0, 200e3 + 1, 2e3)
+    y = np.arange(0.0, 200e3 + 1, 2e3)
+    depth = make_grid(np.full((y.size, x.size), 1000.0), x, y, "EPSG:32633")
+    lines = [LineString([(20e3, 50e3), (120e3, 50e3)]), LineString([(20e3, 150e3), (80e3, 150e3)])]
+    seg = segment_coastline(lines, 20e3, depth)
+    assert len(seg) == 8
+    along, line = figures._along_coast_km(seg)
+    assert np.array_equal(line, [0, 0, 0, 0, 0, 1, 1, 1])
+    np.testing.assert_allclose(along[:5], [10, 30, 50, 70, 90], atol=1e-6)
+    gap = 0.03 * 160.0
+    np.testing.assert_allclose(along[5:], 100 + gap + np.array([10, 30, 50]), atol=1e-6)
+    rng = np.random.default_rng(5)
+    ray = np.exp(rng.normal(0, 0.4, 8))
+    table = pd.DataFrame({"segment_id": seg["segment_id"], "ranked": [True] * 7 + [False],
+                          "ray_value": ray, "wave_amp_stop_m": ray * np.exp(rng.normal(0, 0.3, 8)),
+                          "ray_lensing": ray / ray.mean(), "wave_lensing": np.exp(rng.normal(0, 0.3, 8))})
+    out = figures.plot_check_profile(table, seg, tmp_path / "profile.png", k=3)
+    check_png(out)
+    with pytest.raises(InputError, match="segments table needs"):
+        figures.plot_check_profile(table, seg.drop(columns=["length_m"]), tmp_path / "p2.png")
+    with pytest.raises(InputError, match="no ranked segment"):
+        figures.plot_check_profile(table.assign(ranked=False), seg, tmp_path / "p3.png")
+
+
 def test_bad_inputs_rejected(case, tmp_path):
     with pytest.raises(InputError, match="DataArray"):
         figures.plot_uplift(np.zeros((3, 3)), out_path=tmp_path / "x.png")

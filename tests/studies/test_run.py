@@ -317,8 +317,11 @@ def test_compare_and_check_commands(demo_run, tmp_path, capsys):
     assert rho > 0.8
     assert ag["topk_overlap"] >= 0.5
     for n in ("wave_max_amplitude.tif", "wave_check.nc", "wave_segments.csv", "ray_vs_wave.png",
-              "wave_check_appendix.pdf"):
+              "ray_vs_wave_lensing.png", "ray_vs_wave_profile.png", "wave_check_appendix.pdf"):
         assert (out / "wave_check" / n).is_file()
+    # the check's appendix shows the profile along the coast with its own caption
+    html = (out / "wave_check" / "wave_check_appendix.html").read_text(encoding="utf-8")
+    assert html.count("data:image/png") >= 3 and "whether a hotspot has moved along the coast" in html
 
 
 def _eikonal_mercator(d, src):

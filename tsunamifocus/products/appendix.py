@@ -248,6 +248,16 @@ FIGURE_CAPTIONS: dict[str, str] = {
     "isochrones: hourly (bold) and at the finer interval of the scenario (thin).",
     "ranking": "Top coastline segments ranked by lensing factor with 5–95 % intervals; grey hatched "
     "bars are segments flagged unreliable.",
+    "oceans": "The two oceans of the lensing factor as the dominant band's wave sees them: the real sea floor "
+    "and the lensing reference (features longer than the wavelength removed, shelf and coast kept), "
+    "both averaged over a fraction of the local wavelength.",
+    "ray_vs_wave": "Amplitude at the stop isobath per ranked segment: ray screening against the linear "
+    "long-wave check (log-log, 1:1 line); the top segments of each ranking are marked and labelled.",
+    "ray_vs_wave_lensing": "Lensing factor per ranked segment: rays (energy over the real / over the reference "
+    "ocean) against the wave check (squared ratio of its maxima over the two oceans).",
+    "ray_vs_wave_profile": "Amplitude and lensing factor of the rays and of the wave check along the coast "
+    "(ranked segments in coastline order; gaps separate coastline pieces), the top segments of each "
+    "ranking marked: where the two disagree, and whether a hotspot has moved along the coast.",
 }
 
 #: Keys of ``context`` accepted by :func:`build_appendix`, with their meaning.

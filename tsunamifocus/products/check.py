@@ -30,7 +30,7 @@ from ..io.runs import read_run
 from ..io.scenario import Scenario, parse_scenario
 from ..studies.check import WaveCheck, compare_with_waves
 from .appendix import build_appendix
-from .figures import plot_ray_vs_wave
+from .figures import plot_check_profile, plot_ray_vs_wave
 
 __all__ = ['wave_check', 'run_wave_check', 'check_figures', 'check_section', 'write_check_table', 'CHECK_FOLDER']
 
@@ -55,14 +55,18 @@ def wave_check(depth, eta0, segments, *, figure_path=None, **kwargs) -> WaveChec
     """
     chk = compare_with_waves(depth, eta0, segments, **kwargs)
     if figure_path is not None:
-        figs = check_figures(chk, pathlib.Path(figure_path).parent, stem=pathlib.Path(figure_path).stem)
+        figs = check_figures(chk, pathlib.Path(figure_path).parent, stem=pathlib.Path(figure_path).stem,
+                             segments=segments if isinstance(segments, pd.DataFrame) else None)
         chk.figure = figs["ray_vs_wave"]
         chk.figure_lensing = figs.get("ray_vs_wave_lensing")
+        chk.figure_profile = figs.get("ray_vs_wave_profile")
     return chk
 
 
-def check_figures(chk: WaveCheck, folder: pathlib.Path, *, stem: str = "ray_vs_wave") -> dict[str, pathlib.Path]:
-    """Scatter figures of the ranked segments: amplitude (``stem.png``) and lensing (``stem_lensing.png``)."""
+def check_figures(chk: WaveCheck, folder: pathlib.Path, *, stem: str = "ray_vs_wave",
+                  segments: pd.DataFrame | None = None) -> dict[str, pathlib.Path]:
+    """Figures of the ranked segments: the amplitude (``stem.png``) and lensing (``stem_lensing.png``)
+    scatters and, with the run's ``segments`` table, both along the coast (``stem_profile.png``)."""
     t = chk.table.set_index("segment_id")
     ranked = t["ranked"]
     k = chk.agreement["k"]
@@ -77,6 +81,10 @@ def check_figures(chk: WaveCheck, folder: pathlib.Path, *, stem: str = "ray_vs_w
             folder / f"{stem}_lensing.png", k=k, ray_label="Ray lensing factor (energy, real / reference ocean)",
             wave_label="Wave lensing factor (squared ratio of the maxima)",
             title="Lensing ranking: rays vs linear long-wave check, per coastline segment")
+    if segments is not None and segments.index.name == "segment_id" and "segment_id" not in segments.columns:
+        segments = segments.reset_index()
+    if segments is not None and {"segment_id", "geometry", "length_m"} <= set(segments.columns):
+        out["ray_vs_wave_profile"] = plot_check_profile(chk.table, segments, folder / f"{stem}_profile.png", k=k)
     return out
 
 
@@ -218,7 +226,8 @@ def _appendix(tmp: pathlib.Path, run_dir: pathlib.Path, name: str, seg: pd.DataF
     """A supplement to the run's appendix: the cautions, the ranked table and the check section."""
 
     section = check_section(chk, {"ray_vs_wave": str(tmp / "ray_vs_wave.png"),
-                                  **({"ray_vs_wave_lensing": str(chk.figure_lensing)} if chk.figure_lensing else {})})
+                                  **({"ray_vs_wave_lensing": str(chk.figure_lensing)} if chk.figure_lensing else {}),
+                                  **({"ray_vs_wave_profile": str(chk.figure_profile)} if chk.figure_profile else {})})
     desc = (manifest.get("parameters", {}) or {}).get("description", "")
     ctx = {
         "title": f"Wave-equation check of the ray screening: {name}",

@@ -58,7 +58,7 @@ from ..io.styles import tick_label as _tick_label
 from ..propagation.wave import WAVE_LIMITS
 
 __all__ = ['plot_ray_vs_wave', 'plot_travel_time', 'CAUTION_FOOTER', 'DPI', 'plot_ray_field', 'plot_lensing_map', 'plot_ranking',
-           'plot_uplift', 'plot_agreement', 'plot_oceans', 'RANK_FIELDS']
+           'plot_uplift', 'plot_agreement', 'plot_oceans', 'plot_check_profile', 'RANK_FIELDS']
 
 
 # Okabe & Ito (2008) colour-blind-safe palette
@@ -1646,6 +1646,103 @@ def plot_agreement(
         # labels placed last, around the text box and the legend (which must not hide them)
         _scatter_labels(fig, ax, xa, ya, labels, np.flatnonzero(ok & hl), ok=ok, avoid=avoid)
     return _finish(fig, out_path, ax=ax)
+
+
+def _along_coast_km(segments: pd.DataFrame) -> tuple[np.ndarray, np.ndarray]:
+    """Mid-segment distance along the coastline [km] in table order, and the coastline line of each.
+
+    Lines follow one another with a gap of 3 % of the total length between them, so a profile
+    drawn against this distance breaks where one coastline piece ends and the next begins.
+    """
+    from ..coast.tubes import _Arcs
+
+    arcs = _Arcs.build(segments)
+    gap = 0.03 * float(np.sum(arcs.perimeter))
+    offset = np.concatenate([[0.0], np.cumsum(arcs.perimeter + gap)[:-1]])
+    return (offset[arcs.line] + 0.5 * (arcs.a + arcs.b)) / 1e3, arcs.line
+
+
+@_styled
+def plot_check_profile(
+    table: pd.DataFrame,
+    segments: pd.DataFrame,
+    out_path: str | os.PathLike,
+    *,
+    k: int = 10,
+    title: str = "Along the coast: ray screening vs linear long-wave check",
+) -> pathlib.Path:
+    """Amplitude and lensing factor of rays and wave along the coast, one panel each.
+
+    A scatter shows whether the two rankings agree; this profile shows where they do not - a
+    hotspot the wave puts one or two segments away, a stretch where the rays see too little
+    contrast. Only the segments the check ranked are drawn; each ranking's top ``k`` is marked.
+
+    Parameters
+    ----------
+    table : pandas.DataFrame
+        The check's table (:class:`~tsunamifocus.studies.check.WaveCheck`): ``segment_id``,
+        ``ranked``, ``ray_value``, ``wave_amp_stop_m`` and, when the run had a reference,
+        ``ray_lensing``, ``wave_lensing``.
+    segments : pandas.DataFrame
+        The run's segments table (``segment_id``, ``geometry``, ``length_m``), in coastline order.
+    out_path : str or os.PathLike
+        PNG file to write.
+    k : int
+        Size of the marked top sets.
+    title : str
+        Figure title.
+
+    Returns
+    -------
+    pathlib.Path
+    """
+    need = {"segment_id", "geometry", "length_m"}
+    if not need <= set(segments.columns):
+        raise InputError(f"plot_check_profile: the segments table needs the columns {sorted(need)}")
+    along, line = _along_coast_km(segments)
+    pos = pd.DataFrame({"along": along, "line": line}, index=segments["segment_id"].astype(str).to_numpy())
+    t = table.copy()
+    t.index = t["segment_id"].astype(str).to_numpy()
+    t = t[t["ranked"].fillna(False).astype(bool).to_numpy()] if "ranked" in t else t
+    t = t.join(pos, how="inner").sort_values("along")
+    if t.empty:
+        raise InputError("plot_check_profile: no ranked segment of the check is in the segments table")
+    panels = [("ray_value", "wave_amp_stop_m", "Amplitude at the stop isobath [m]")]
+    if {"ray_lensing", "wave_lensing"} <= set(t.columns) and t["ray_lensing"].notna().any():
+        panels.append(("ray_lensing", "wave_lensing", "Lensing factor (energy ratio) [-]"))
+    fig = Figure(figsize=(9.0, 2.4 + 2.3 * len(panels)), dpi=DPI, layout="constrained")
+    axes = fig.subplots(len(panels), 1, sharex=True, squeeze=False)[:, 0]
+    axes[0].set_title(title, fontsize=plt_rc["axes.titlesize"], loc="left")
+    # a break between coastline pieces: NaN rows between lines
+    brk = np.flatnonzero(np.diff(t["line"].to_numpy()) != 0)
+    for ax, (rc, wc, ylab) in zip(axes, panels, strict=True):
+        x = t["along"].to_numpy(float)
+        yr, yw = t[rc].to_numpy(float), t[wc].to_numpy(float)
+        xs, rs, ws = (np.insert(v, brk + 1, np.nan) for v in (x, yr, yw))
+        ax.plot(xs, rs, color=_OKABE_BLUE, lw=1.4, marker="o", ms=2.5, label="rays")
+        ax.plot(xs, ws, color=_OKABE_VERMILLION, lw=1.2, ls="--", marker="s", ms=2.5, label="wave check")
+        kk = min(int(k), int(np.isfinite(yr).sum()), int(np.isfinite(yw).sum()))
+        if kk > 0:
+            tr, tw = topk_mask(yr, kk), topk_mask(yw, kk)
+            ax.scatter(x[tr], yr[tr], s=46, marker="^", color=_OKABE_BLUE, edgecolor="black", lw=0.5, zorder=5,
+                       label=f"top {kk} by rays")
+            ax.scatter(x[tw], yw[tw], s=40, marker="s", color=_OKABE_VERMILLION, edgecolor="black", lw=0.5,
+                       zorder=5, label=f"top {kk} by wave")
+        if np.all(yr[np.isfinite(yr)] > 0) and np.all(yw[np.isfinite(yw)] > 0):
+            ax.set_yscale("log")
+            lo = float(np.nanmin(np.concatenate([yr, yw])))
+            hi = float(np.nanmax(np.concatenate([yr, yw])))
+            _plain_log_ticks(ax.yaxis, lo, hi)
+        ax.set_ylabel(ylab)
+        ax.grid(True, color="0.9", linewidth=0.6)
+    axes[-1].set_xlabel("Distance along the coastline [km] (table order; gaps separate coastline pieces)")
+    # segment names at a few places along the top panel
+    step = max(1, len(t) // 8)
+    sec = axes[0].secondary_xaxis("top")
+    sec.set_xticks(t["along"].to_numpy(float)[::step], labels=[str(v) for v in t.index[::step]], fontsize=7)
+    # one legend for both panels, below them, where it hides no curve
+    handles, _ = axes[0].get_legend_handles_labels()
+    return _finish(fig, out_path, handles=handles)
 
 
 def _corner_boxes(fig: Figure, ax, x: np.ndarray, y: np.ndarray, annotate: str | None) -> list:

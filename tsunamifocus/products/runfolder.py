@@ -135,7 +135,7 @@ def _figures(a: SourceAnalysis, depth: xr.DataArray, scenario: Any, folder: path
                                        period_s=a.period_s, reference_smooth_km=f.reference_smooth_km,
                                        title=f"The two oceans of the lensing factor: {a.name}")
     if a.check is not None:
-        figs.update(check_figures(a.check, folder))
+        figs.update(check_figures(a.check, folder, segments=f.segments))
     return {k: pathlib.Path(v) if v is not None else folder / f"{k}.png" for k, v in figs.items()}
 
 

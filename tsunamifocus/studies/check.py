@@ -100,6 +100,7 @@ class WaveCheck:
     figure: Path | None = None
     wave_reference: WaveResult | None = None
     figure_lensing: Path | None = None
+    figure_profile: Path | None = None
 
     def summary(self) -> str:
         """A few printable lines: agreement figures, run statistics and the cautions line."""
