@@ -277,6 +277,10 @@ def test_optional_section_with_figure(figs, tmp_path):
     p = _Collector()
     p.feed((tmp_path / "x.html").read_text(encoding="utf-8"))
     assert len(p.imgs) == len(ctx["figures"]) + 1
+    # a section's figures continue the document's figure numbers (common practice, no source)
+    _, blocks = report.document_blocks(ctx)
+    caps = [b["caption"] for b in blocks if b["kind"] == "figure"]
+    assert [c.split(".")[0] for c in caps] == [f"Figure {i}" for i in range(1, len(caps) + 1)]
 
 
 def test_context_errors(figs, tmp_path):

@@ -8,6 +8,7 @@ import dataclasses
 import html.parser
 import json
 import math
+import re
 
 import numpy as np
 import pandas as pd
@@ -142,8 +143,27 @@ def test_appendix_html_and_pdf(demo_run):
     p = P()
     p.feed(text)
     assert len(p.imgs) >= 4 and all(s.startswith("data:image/png;base64,") for s in p.imgs)
+    # every figure once (a checked run's scatters and profile only in the check's section)
+    assert len(p.imgs) == len(set(p.imgs)) == len(list((out / "figures").glob("*.png")))
     pdf = (out / "appendix.pdf").read_bytes()
     assert pdf.startswith(b"%PDF") and pdf.count(b"/Type /Page") - pdf.count(b"/Type /Pages") >= 3
+
+
+def test_checked_run_shows_each_figure_once(tmp_path):
+    # A run with the wave check writes the two scatters and the profile along the coast; its
+    # appendix shows every figure once, numbered in reading order (common practice, no source).
+    sc = _small(parse_scenario(demo_inputs(tmp_path / "inputs")), rays=3000)
+    sc = dataclasses.replace(sc, ensemble=dataclasses.replace(sc.ensemble, members=0))
+    out = tmp_path / "run"
+    run_scenario(sc, out=out, progress=False, check=True)
+    figs = sorted(p.name for p in (out / "figures").glob("*.png"))
+    assert {"ray_vs_wave.png", "ray_vs_wave_lensing.png", "ray_vs_wave_profile.png"} <= set(figs)
+    text = (out / "appendix.html").read_text(encoding="utf-8")
+    imgs = re.findall(r'<img[^>]*src="(data:image/png;base64,[^"]+)"', text)
+    assert len(imgs) == len(set(imgs)) == len(figs)
+    caps = re.findall(r"<figcaption>(Figure \d+)\.", text)
+    assert caps == [f"Figure {i}" for i in range(1, len(figs) + 1)]
+    assert "whether a hotspot has moved along the coast" in text
 
 
 def test_caution_in_every_output(demo_run):

@@ -742,6 +742,13 @@ def document_blocks(context: Mapping[str, Any]) -> tuple[dict[str, str], list[_B
         blocks.append(_b("h2", text=f"{n}. Run information", anchor="run"))
         cols, rows = _as_table(context["run_info"], "run_info")
         blocks.append(_b("table", columns=cols, rows=rows, caption="", kv=True))
+    # the sections' figures continue the numbering of the Figures section
+    i = 0
+    for blk in blocks:
+        if blk["kind"] == "figure":
+            i += 1
+            if not str(blk.get("caption", "")).startswith("Figure "):
+                blk["caption"] = f"Figure {i}. {blk.get('caption', '')}".rstrip()
     return meta, blocks
 
 
