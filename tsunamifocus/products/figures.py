@@ -1728,11 +1728,11 @@ def plot_check_profile(
                        label=f"top {kk} by rays")
             ax.scatter(x[tw], yw[tw], s=40, marker="s", color=_OKABE_VERMILLION, edgecolor="black", lw=0.5,
                        zorder=5, label=f"top {kk} by wave")
-        if np.all(yr[np.isfinite(yr)] > 0) and np.all(yw[np.isfinite(yw)] > 0):
+        both = np.concatenate([yr, yw])
+        both = both[np.isfinite(both)]
+        if both.size and np.all(both > 0):
             ax.set_yscale("log")
-            lo = float(np.nanmin(np.concatenate([yr, yw])))
-            hi = float(np.nanmax(np.concatenate([yr, yw])))
-            _plain_log_ticks(ax.yaxis, lo, hi)
+            _plain_log_ticks(ax.yaxis, float(both.min()), float(both.max()))
         ax.set_ylabel(ylab)
         ax.grid(True, color="0.9", linewidth=0.6)
     axes[-1].set_xlabel("Distance along the coastline [km] (table order; gaps separate coastline pieces)")
