@@ -583,6 +583,23 @@ def test_rank_labels_do_not_overlap():
     assert len(placed) == 10 and min(d) >= 15.0 - 1e-9
 
 
+def test_rank_labels_keep_out_of_the_north_arrow():
+    # Readability (common practice, no source): a segment just below the north arrow's panel,
+    # facing north, would put its label on the panel; the placement goes round it.
+    box = (500.0, 400.0)
+    x0, y0, x1, y1 = figures._north_arrow_box(box[1] / box[0])
+    avoid = [(x0 * box[0] - 9.0, y0 * box[1] - 9.0, x1 * box[0] + 9.0, y1 * box[1] + 9.0)]
+    anchor = (0.5 * (avoid[0][0] + avoid[0][2]), avoid[0][1] - 5.0)
+    placed = []
+    free = figures._label_offset(anchor, 0.0, [], box=box)
+    c_free = (anchor[0] + free[0], anchor[1] + free[1])
+    assert avoid[0][0] <= c_free[0] <= avoid[0][2] and avoid[0][1] <= c_free[1] <= avoid[0][3]  # would hit it
+    off = figures._label_offset(anchor, 0.0, placed, box=box, avoid=avoid)
+    c = (anchor[0] + off[0], anchor[1] + off[1])
+    assert not (avoid[0][0] <= c[0] <= avoid[0][2] and avoid[0][1] <= c[1] <= avoid[0][3])
+    assert placed == [c]
+
+
 def test_ranking_with_topk_probability(case, tmp_path):
     seg = case["segments"].copy()
     seg["p_topk"] = np.linspace(1.0, 0.1, len(seg))

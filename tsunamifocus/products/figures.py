@@ -373,19 +373,34 @@ def _north_angle_deg(info: GridInfo) -> float:
         return 0.0
 
 
+_NORTH_LENGTH = 0.06  # north arrow length, in units of the axes width
+
+
+def _north_arrow_frame(ratio: float) -> tuple[float, float, float, float]:
+    """Centre ``(cx, cy)`` of the north arrow and the lower left ``(x0, y0)`` of its panel (axes fraction)."""
+    cx, cy = 0.935, 1.0 - 0.06 / max(ratio, 0.2) - 0.5 * _NORTH_LENGTH / max(ratio, 0.2)
+    return cx, cy, cx - 0.035, cy - 0.5 * _NORTH_LENGTH / ratio - 0.012 / ratio
+
+
+def _north_arrow_box(ratio: float) -> tuple[float, float, float, float]:
+    """The north arrow's panel ``(x0, y0, x1, y1)`` in axes fraction (what map labels must avoid)."""
+    _, _, x0, y0 = _north_arrow_frame(ratio)
+    return x0, y0, x0 + 0.07, y0 + (_NORTH_LENGTH + 0.065) / ratio
+
+
 def _add_north_arrow(ax, info: GridInfo) -> None:
     """North arrow (pointing to true north) in the upper right corner of the map."""
     ang = math.radians(_north_angle_deg(info))
     ratio = getattr(ax, "_tf_ratio", 1.0)
-    length = 0.06  # in units of the axes width
-    cx, cy = 0.935, 1.0 - 0.06 / max(ratio, 0.2) - 0.5 * length / max(ratio, 0.2)
+    length = _NORTH_LENGTH
+    cx, cy, x0, y0 = _north_arrow_frame(ratio)
     dx = -math.sin(ang) * length
     dy = math.cos(ang) * length / max(ratio, 1e-6)
     tail = (cx - dx / 2, cy - dy / 2)
     tip = (cx + dx / 2, cy + dy / 2)
     ax.add_patch(
         Rectangle(
-            (cx - 0.035, cy - 0.5 * length / ratio - 0.012 / ratio),
+            (x0, y0),
             0.07,
             (length + 0.065) / ratio,
             transform=ax.transAxes,
@@ -1030,7 +1045,11 @@ def _rank_labels(ax, segments: pd.DataFrame, top_k: int, info: GridInfo) -> list
         az = row.get("normal_azimuth_deg", np.nan)
         az = float(az) if az is not None and np.isfinite(az) else 0.0
         box = (xmax_ - xmin_) * pts_per_unit, (ymax_ - ymin_) * yscale
-        off = _label_offset(((xm - xmin_) * pts_per_unit, (ym - ymin_) * yscale), az, placed, box=box)
+        # the north arrow's panel (top right) is no place for a label
+        nx0, ny0, nx1, ny1 = _north_arrow_box(getattr(ax, "_tf_ratio", 1.0))
+        avoid = [(nx0 * box[0] - 9.0, ny0 * box[1] - 9.0, nx1 * box[0] + 9.0, ny1 * box[1] + 9.0)]
+        off = _label_offset(((xm - xmin_) * pts_per_unit, (ym - ymin_) * yscale), az, placed, box=box,
+                            avoid=avoid)
         ax.annotate(
             f"{int(row['_rank'])}",
             xy=(xm, ym),
@@ -1067,12 +1086,14 @@ def _label_offset(
     placed: list[tuple[float, float]],
     min_sep: float = 15.0,
     box: tuple[float, float] | None = None,
+    avoid: Sequence[tuple[float, float, float, float]] = (),
 ) -> tuple[float, float]:
     """Offset [points] of a rank label, clear of the labels already placed.
 
     Seaward along the normal first, then pushed out or turned to avoid labels already placed
-    (greedy, rank order) and to stay inside ``box`` (width, height in points, origin at the
-    lower left); the chosen centre is appended to ``placed``.
+    (greedy, rank order), to stay inside ``box`` (width, height in points, origin at the
+    lower left) and out of the rectangles ``avoid`` ``(x0, y0, x1, y1)`` (points, same origin);
+    the chosen centre is appended to ``placed``.
     """
     best = None
     for dist in (16.0, 30.0, 44.0, 58.0, 72.0):
@@ -1081,6 +1102,8 @@ def _label_offset(
             off = (dist * math.sin(a), dist * math.cos(a))
             c = (anchor_pt[0] + off[0], anchor_pt[1] + off[1])
             if box is not None and not (8.0 <= c[0] <= box[0] - 8.0 and 8.0 <= c[1] <= box[1] - 8.0):
+                continue
+            if any(r[0] <= c[0] <= r[2] and r[1] <= c[1] <= r[3] for r in avoid):
                 continue
             gap = min((math.hypot(c[0] - p[0], c[1] - p[1]) for p in placed), default=1e9)
             if gap >= min_sep:
