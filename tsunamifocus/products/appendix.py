@@ -249,8 +249,8 @@ FIGURE_CAPTIONS: dict[str, str] = {
     "ranking": "Top coastline segments ranked by lensing factor with 5–95 % intervals; grey hatched "
     "bars are segments flagged unreliable.",
     "oceans": "The two oceans of the lensing factor as the dominant band's wave sees them: the real sea floor "
-    "and the lensing reference (features longer than the wavelength removed, shelf and coast kept), "
-    "both averaged over a fraction of the local wavelength.",
+    "and the lensing reference (offshore relief smoothed over a deep-water wavelength, shelf and coast "
+    "kept), both averaged over a fraction of the local wavelength.",
     "ray_vs_wave": "Amplitude at the stop isobath per ranked segment: ray screening against the linear "
     "long-wave check (log-log, 1:1 line); the top segments of each ranking are marked and labelled.",
     "ray_vs_wave_lensing": "Lensing factor per ranked segment: rays (energy over the real / over the reference "
