@@ -316,6 +316,7 @@ def test_compare_and_check_commands(demo_run, tmp_path, capsys):
         # envelope = cell-wise maximum (definition of the envelope layer)
         np.testing.assert_allclose(env["lensing_factor"].values, np.fmax(a.values, b.values), equal_nan=True)
     assert (cmp_dir / "comparison_appendix.pdf").read_bytes().startswith(b"%PDF")
+    assert (cmp_dir / "comparison_scatter.png").is_file()
     # a run on another segmentation is refused with a clear message
     sc3 = dataclasses.replace(sc2, coast=dataclasses.replace(sc2.coast, segment_km=20.0))
     out3 = tmp_path / "run3"
