@@ -1877,8 +1877,9 @@ def plot_oceans(
     ray_depth : xarray.DataArray
         Depth [m] the rays of the dominant band were traced on (wavelength-smoothed real ocean).
     reference_depth : xarray.DataArray
-        The lensing reference [m] (offshore features of the wavelength's size and larger removed,
-        shelf and coast kept), as the same wave sees it (what the reference rays were traced on).
+        The lensing reference [m] (offshore relief smoothed over ``reference_smooth_km``, a deep-water
+        wavelength by default; shelf and coast kept), as the same wave sees it (what the reference
+        rays were traced on).
     out_path : path-like
         PNG file to write.
     period_s : float
@@ -1902,7 +1903,7 @@ def plot_oceans(
     axes = fig.subplots(1, 2, sharey=True)
     vmax = float(np.nanpercentile(_values(ray_depth)[_values(ray_depth) > 0], 99.5)) / 1000.0
     panels = ((ray_depth, f"Sea floor as a {period_s / 60:.0f}-min wave sees it (rays traced here)"),
-              (reference_depth, f"Lensing reference as this wave sees it: >= {reference_smooth_km:.0f} km removed"))
+              (reference_depth, f"Lensing reference as this wave sees it: relief smoothed over {reference_smooth_km:.0f} km"))
     for ax, (d, label) in zip(axes, panels):
         v = _values(d)
         im = ax.imshow(np.where(v > 0, v / 1000.0, np.nan), origin="lower", extent=_extent(info),
