@@ -51,3 +51,28 @@ def test_step_text_says_when_rays_took_local_steps():
     assert step_text({"step_s": 68.06, "max_step_s": 391.9}) == "68-392 s (each ray's own cell and speed)"
     assert step_text({"step_s": 5.0, "max_step_s": None}) == "5.00 s"
     assert step_text({"step_s": 5.0}) == "5.00 s"
+
+
+def test_amplitude_ranking_listed_in_full_when_it_is_the_one_the_wave_held():
+    # When the check holds the amplitude ranking and finds the lensing ranking weak (below 0.5:
+    # common practice, no source), the summary lists the amplitude top five with intervals.
+    import re
+
+    import numpy as np
+    import pandas as pd
+
+    from tsunamifocus.products.summaries import amplitude_lines
+
+    n = 8
+    amp = np.linspace(3.0, 1.0, n)
+    seg = pd.DataFrame({"segment_id": [f"S{i:04d}" for i in range(n)], "amp_1m_m": amp,
+                        "amp_lo": 0.8 * amp, "amp_hi": 1.2 * amp, "lensing_factor": np.linspace(1, 2, n),
+                        "first_arrival_s": np.full(n, 3600.0), "lat_mid": -30.0, "lon_mid": -120.0,
+                        "rank_amplitude": pd.array(list(range(1, n)) + [None], dtype="Int64")})
+    full = amplitude_lines(seg, _ag(0.90, 0.32))
+    assert len(full) == 6 and "the ranking the wave check held" in full[0]
+    assert "S0000" in full[1] and "3.00 m [2.40-3.60]" in full[1] and "first arrival 60 min" in full[1]
+    for ag in (None, _ag(0.93, 0.76), _ag(0.3, 0.1)):
+        short = amplitude_lines(seg, ag)
+        assert len(short) == 1 and len(re.findall(r"S\d{4} [\d.]+ m", short[0])) == 3 and "interval" not in short[0]
+    assert amplitude_lines(seg.drop(columns=["rank_amplitude"])) == []

@@ -127,6 +127,42 @@ def _check_lines(ag: dict) -> list[str]:
     return out
 
 
+def _amplitude_first(ag: dict | None) -> bool:
+    """The check held the amplitude ranking and found the lensing ranking weak."""
+    if not ag or not ag.get("lensing"):
+        return False
+    rho_a = ag.get("spearman", np.nan)
+    rho_l = ag["lensing"].get("spearman", np.nan)
+    return bool(np.isfinite(rho_a) and rho_a >= WEAK_AGREEMENT and np.isfinite(rho_l) and rho_l < WEAK_AGREEMENT)
+
+
+def amplitude_lines(seg: pd.DataFrame, ag: dict | None = None) -> list[str]:
+    """The segments with the largest indicative amplitude (summary lines).
+
+    Three on one line; when the wave check held the amplitude ranking but not the lensing ranking
+    (``ag``), the top five with their 5-95 % intervals, lensing factor and first arrival, as the
+    ranking to read.
+    """
+    if "rank_amplitude" not in seg:
+        return []
+    first = _amplitude_first(ag)
+    by_amp = seg[seg["rank_amplitude"].notna()].sort_values("rank_amplitude").head(5 if first else 3)
+    if not len(by_amp):
+        return []
+    if not first:
+        return ["  largest indicative amplitude at 1 m depth (Green's law, indicative only): " + ", ".join(
+            f"{r['segment_id']} {r['amp_1m_m']:.2f} m" for _, r in by_amp.iterrows())]
+    out = [f"  top {len(by_amp)} by indicative amplitude at 1 m depth (5-95 % interval; Green's law, indicative "
+           "only) - the ranking the wave check held:"]
+    for _, r in by_amp.iterrows():
+        fa = r.get("first_arrival_s", np.nan)
+        out.append(f"    #{int(r['rank_amplitude']):>2} {r['segment_id']:>6} ({_place(r)})  {r['amp_1m_m']:.2f} m "
+                   f"[{r.get('amp_lo', np.nan):.2f}-{r.get('amp_hi', np.nan):.2f}]  lensing "
+                   f"{r.get('lensing_factor', np.nan):.2f}"
+                   + (f"  first arrival {fa / 60:.0f} min" if np.isfinite(fa) else ""))
+    return out
+
+
 def settings_lines(result: RunResult) -> list[str]:
     """What the run chose for the settings the scenario left open, and why (summary lines)."""
     sc = result.scenario
@@ -207,12 +243,7 @@ def format_run_summary(result: RunResult) -> str:
                             if near else ""))
         if a.check is not None:
             lines.extend(_check_lines(a.check.agreement))
-        seg = f.segments
-        if "rank_amplitude" in seg:
-            by_amp = seg[seg["rank_amplitude"].notna()].sort_values("rank_amplitude").head(3)
-            if len(by_amp):
-                lines.append("  largest indicative amplitude at 1 m depth (Green's law, indicative only): " + ", ".join(
-                    f"{r['segment_id']} {r['amp_1m_m']:.2f} m" for _, r in by_amp.iterrows()))
+        lines.extend(amplitude_lines(f.segments, a.check.agreement if a.check is not None else None))
         pts = result.points.get(a.name)
         if pts is not None and len(pts):
             warn = list(pts.attrs.get("warnings", []))
