@@ -76,3 +76,12 @@ def test_amplitude_ranking_listed_in_full_when_it_is_the_one_the_wave_held():
         short = amplitude_lines(seg, ag)
         assert len(short) == 1 and len(re.findall(r"S\d{4} [\d.]+ m", short[0])) == 3 and "interval" not in short[0]
     assert amplitude_lines(seg.drop(columns=["rank_amplitude"])) == []
+
+
+def test_segments_the_wave_barely_reached_are_counted_in_the_summary():
+    ag = _ag(0.90, 0.32)
+    assert "almost no wave" not in "\n".join(_check_lines(ag))
+    ag["n_faint_wave"] = 17
+    lines = "\n".join(_check_lines(ag))
+    assert "17 of the segments got almost no wave in the check (below 1 % of the median" in lines
+    assert "ray_vs_wave_profile.png" in lines

@@ -86,6 +86,21 @@ def test_lensing_check_compares_energy_ratios_of_the_two_wave_runs():
     assert wl[middle].min() > 1.3 and np.all(np.abs(wl[far] - 1.0) < 0.15)
     assert set(chk.agreement["lensing"]) >= {"spearman", "kendall", "topk_common", "k", "n"}
     assert chk.agreement["lensing"]["n"] == len(seg)
+    # an open coast under a plane wave: no segment the wave barely reaches
+    assert chk.agreement["n_faint_wave"] == 0
+
+
+def test_faint_wave_segments_are_those_far_below_the_median():
+    # below 1 % of the ranked segments' median (FAINT_WAVE_FRACTION; set from the real-grid case's
+    # strait, docs/wave_check.md): unranked and missing values never count
+    from tsunamifocus.studies.check import FAINT_WAVE_FRACTION, faint_wave_segments
+
+    assert FAINT_WAVE_FRACTION == 0.01
+    w = np.array([1.0, 0.8, 1.2, 0.005, np.nan, 0.002])
+    ranked = np.array([True, True, True, True, True, False])
+    assert faint_wave_segments(w, ranked).tolist() == [False, False, False, True, False, False]
+    assert not faint_wave_segments(w, np.zeros(6, bool)).any()
+    assert faint_wave_segments(w, ranked, fraction=0.9).tolist() == [False, True, False, True, False, False]
 
 
 def test_refined_check_converges_to_greens_law_at_the_stop_isobath():

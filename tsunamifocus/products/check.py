@@ -28,7 +28,7 @@ from ..io.guards import check_output_folder
 from ..io.runfolder import OutputFolder
 from ..io.runs import read_run
 from ..io.scenario import Scenario, parse_scenario
-from ..studies.check import WaveCheck, compare_with_waves
+from ..studies.check import FAINT_WAVE_FRACTION, WaveCheck, compare_with_waves
 from .appendix import build_appendix
 from .figures import plot_check_profile, plot_ray_vs_wave
 
@@ -277,6 +277,9 @@ def check_section(chk: WaveCheck, figures: dict[str, str]) -> dict[str, Any]:
         metrics["wave grid"] = f"the run's sea floor interpolated onto a grid {ag['refine']} times finer"
     if res:
         metrics[f"cells per {res['period_s']:.0f} s wavelength at the stop isobath"] = fmt(res.get("cells_per_wavelength"))
+    if ag.get("n_faint_wave"):
+        metrics[f"ranked segments with almost no wave (below {100 * FAINT_WAVE_FRACTION:g} % of the median)"] = \
+            ag["n_faint_wave"]
     metrics.update({"time step (s)": fmt(st.get("dt_s")),
                     "simulated time (h)": fmt(st.get("duration_s", float("nan")) / 3600),
                     "mass error (relative)": f"{st.get('mass_error', float('nan')):.1e}"})

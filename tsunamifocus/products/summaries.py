@@ -10,7 +10,7 @@ import pandas as pd
 
 from ..cautions import caution_summary
 from ..studies.run import RunResult
-from ..studies.check import MIN_CELLS_PER_WAVELENGTH
+from ..studies.check import FAINT_WAVE_FRACTION, MIN_CELLS_PER_WAVELENGTH
 
 __all__ = ['format_summary', 'step_text']
 
@@ -118,6 +118,10 @@ def _check_lines(ag: dict) -> list[str]:
         out.append(f"    lensing ranking held:   {held(ag['lensing'])}{weak(ag['lensing'])}")
         if weak(ag["lensing"]) and not weak(ag):
             out.append("    rank this coast with the amplitude ranking, not the lensing factor (docs/focusing.md)")
+    if ag.get("n_faint_wave"):
+        out.append(f"    {ag['n_faint_wave']} of the segments got almost no wave in the check (below "
+                   f"{100 * FAINT_WAVE_FRACTION:g} % of the median: a narrow passage or sheltered water the wave barely "
+                   "reaches on this grid); see them along the coast in figures/ray_vs_wave_profile.png")
     res = ag.get("resolution") or {}
     cpw = res.get("cells_per_wavelength", np.nan)
     if np.isfinite(cpw) and cpw < MIN_CELLS_PER_WAVELENGTH:
