@@ -443,6 +443,23 @@ def test_scatter_box_legend_and_labels_hide_no_point():
     plt.close(fig)
 
 
+def test_agreement_scatter_draws_far_low_values_on_the_axis(tmp_path):
+    # Readability (common practice, no source): on the real-grid case 17 wave values were 1e-4 of the
+    # rest and stretched the log axes over five decades; values below 1 % of the smaller median are
+    # drawn at that floor (ringed), the others untouched.
+    x = np.array([1.0, 2.0, 3.0, 0.5, 1.5])
+    y = np.array([1.1, 1.8, 3.3, 1e-5, 1.4])
+    ok = np.ones(5, bool)
+    xc, yc, clipped = figures._floor_clip(x, y, ok)
+    floor = figures.AGREEMENT_FLOOR * min(np.median(x), np.median(y))
+    assert clipped.tolist() == [False, False, False, True, False]
+    assert yc[3] == pytest.approx(floor) and xc[3] == 0.5
+    np.testing.assert_array_equal(np.delete(yc, 3), np.delete(y, 3))
+    check_png(figures.plot_agreement(x, y, out_path=tmp_path / "a.png", xlabel="a", ylabel="b",
+                                     labels=[f"S{i}" for i in range(5)], annotate="n = 5",
+                                     top_x=x > 1.2, top_y=y > 1.2))
+
+
 def test_check_profile_along_the_coast(tmp_path):
     # Distance along the coast is the running sum of segment lengths (plain geometry, common
     # practice, no source): two straight coastlines of 100 km and 60 km cut into 20 km segments

@@ -283,11 +283,31 @@ def check_section(chk: WaveCheck, figures: dict[str, str]) -> dict[str, Any]:
     metrics.update({"time step (s)": fmt(st.get("dt_s")),
                     "simulated time (h)": fmt(st.get("duration_s", float("nan")) / 3600),
                     "mass error (relative)": f"{st.get('mass_error', float('nan')):.1e}"})
-    table = chk.table
     return {
         "text": text,
         "metrics": metrics,
-        "table": table.drop(columns=[c for c in ("geometry",) if c in table.columns]).head(20),
-        "table_caption": "Per segment: ray and wave-solver amplitude and lensing factor, and their ranks",
+        "table": _section_table(chk.table),
+        "table_caption": "Top 20 segments by the rays' amplitude (all segments: wave_segments.csv)",
         "figures": figures,
     }
+
+
+#: Columns of the check's appendix table, with their headers.
+_SECTION_COLUMNS = {"segment_id": "Segment", "name": "Name", "ray_value": "Ray amp (m)", "wave_amp_stop_m": "Wave amp (m)",
+                    "rank_ray": "Rank ray", "rank_wave": "Rank wave", "ray_lensing": "Ray lens",
+                    "wave_lensing": "Wave lens", "rank_ray_lensing": "Rank ray lens",
+                    "rank_wave_lensing": "Rank wave lens"}
+
+
+def _section_table(table: pd.DataFrame, n: int = 20) -> pd.DataFrame:
+    """The check's top ``n`` segments by the ray amplitude ranking, values to 3 significant digits."""
+    t = table.copy()
+    if "rank_ray" in t:
+        t = t.sort_values("rank_ray", na_position="last", kind="stable")
+    named = "name" in t and t["name"].map(lambda v: isinstance(v, str) and v.strip() != "").any()
+    cols = [c for c in _SECTION_COLUMNS if c in t.columns and (c != "name" or named)]
+    t = t[cols].head(n)
+    for c in ("ray_value", "wave_amp_stop_m", "ray_lensing", "wave_lensing"):
+        if c in t:
+            t[c] = [f"{v:.3g}" if np.isfinite(v) else "" for v in t[c].to_numpy(float)]
+    return t.rename(columns=_SECTION_COLUMNS)

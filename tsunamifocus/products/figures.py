@@ -1593,6 +1593,21 @@ def _crop_to_signal(da: xr.DataArray, mask: np.ndarray) -> xr.DataArray:
 # --------------------------------------------------------------------------------------
 
 
+#: On log agreement scatters, values below this fraction of the smaller median are drawn on the
+#: axis edge (ringed) instead of stretching the axes (the wave check's ``FAINT_WAVE_FRACTION``).
+AGREEMENT_FLOOR: float = 0.01
+
+
+def _floor_clip(xa: np.ndarray, ya: np.ndarray, ok: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Values below ``AGREEMENT_FLOOR`` times the smaller median raised to that floor; the raised points."""
+    floor = AGREEMENT_FLOOR * float(min(np.median(xa[ok]), np.median(ya[ok])))
+    clipped = ok & ((xa < floor) | (ya < floor))
+    if clipped.any():
+        xa = np.where(ok, np.maximum(xa, floor), xa)
+        ya = np.where(ok, np.maximum(ya, floor), ya)
+    return xa, ya, clipped
+
+
 @_styled
 def plot_agreement(
     x: Sequence[float] | np.ndarray,
@@ -1653,10 +1668,18 @@ def plot_agreement(
     if not ok.any():
         raise InputError("plot_agreement: no finite (and, for log axes, positive) pairs to plot")
     fig, ax = _new_chart((6.4, 6.0), title)
+    # on log axes, values far below the rest (a segment the wave barely reached) would squeeze
+    # every other point into a corner: they are drawn on the axis edge, ringed
+    clipped = np.zeros_like(ok)
+    if log:
+        xa, ya, clipped = _floor_clip(xa, ya, ok)
     if top_x is not None and top_y is not None:
         hl = _scatter_top_sets(ax, xa, ya, ok, top_x, top_y, top_names)
     else:
         hl = _scatter_highlighted(ax, xa, ya, ok, highlight)
+    if clipped.any():
+        ax.scatter(xa[clipped], ya[clipped], s=70, facecolors="none", edgecolors="black", lw=0.9, zorder=6,
+                   label=f"below {100 * AGREEMENT_FLOOR:g} % of the median, drawn on the axis ({int(clipped.sum())})")
     lo, hi = _one_to_one_limits(ax, xa[ok], ya[ok], log)
     ax.plot([lo, hi], [lo, hi], color="black", linestyle="--", lw=1.0, label="1:1", zorder=1)
     ax.set_xlim(lo, hi)
@@ -1769,43 +1792,43 @@ def plot_check_profile(
 
 
 def _corner_boxes(fig: Figure, ax, x: np.ndarray, y: np.ndarray, annotate: str | None) -> list:
-    """The statistics box and the legend, in the two opposite corners that hide the fewest points.
+    """The statistics box and the legend, in the two corners that hide the fewest points.
 
     Points of a 1:1 scatter lie along the diagonal, so the upper-left / lower-right pair usually
-    suits; when the box would cover points there, the legend and the box swap corners, or take
-    the other diagonal. Returns the two artists (for the labels to avoid).
+    suits and is tried first; every other pair of distinct corners is tried when it hides points.
+    Returns the two artists (for the labels to avoid).
     """
-    fig.draw_without_rendering()
     pts = ax.transData.transform(np.column_stack([x, y]))
-    pairs = (("upper left", "lower right"), ("lower right", "upper left"), ("upper right", "lower left"),
-             ("lower left", "upper right"))
     where = {"upper left": (0.03, 0.97, "top", "left"), "lower right": (0.97, 0.03, "bottom", "right"),
              "upper right": (0.97, 0.97, "top", "right"), "lower left": (0.03, 0.03, "bottom", "left")}
-    best: tuple[int, list] | None = None
-    for box_at, legend_at in pairs:
+    corners = list(where)
+    pairs = [(b, lg) for b in corners for lg in corners if b != lg]
+
+    def draw(box_at: str, legend_at: str) -> list:
         arts = []
         if annotate:
             tx, ty, va, ha = where[box_at]
             arts.append(ax.text(tx, ty, annotate, transform=ax.transAxes, va=va, ha=ha, fontsize=8.5, zorder=8,
                                 bbox=dict(facecolor="white", edgecolor="0.6", boxstyle="round,pad=0.4")))
         arts.append(ax.legend(loc=legend_at, fontsize=8))
+        return arts
+
+    best: tuple[int, tuple[str, str]] | None = None
+    for pair in pairs:
+        arts = draw(*pair)
         fig.draw_without_rendering()
         hidden = 0
         for a in arts:
             bb = a.get_window_extent().padded(6.0)
             hidden += int(np.sum((pts[:, 0] >= bb.x0) & (pts[:, 0] <= bb.x1) & (pts[:, 1] >= bb.y0)
                                  & (pts[:, 1] <= bb.y1)))
+        for a in arts:
+            a.remove()
         if best is None or hidden < best[0]:
-            if best is not None:
-                for a in best[1]:
-                    a.remove()
-            best = (hidden, arts)
-        else:
-            for a in arts:
-                a.remove()
+            best = (hidden, pair)
         if hidden == 0:
             break
-    return best[1] if best is not None else []
+    return draw(*best[1])
 
 
 def _scatter_top_sets(ax, xa, ya, ok, top_x, top_y, top_names) -> np.ndarray:
