@@ -13,12 +13,11 @@ import xarray as xr
 
 from ..cautions import caution_lines, caution_text
 from ..errors import OutputExistsError
-from ..focusing.agreement import compare_rankings, topk_mask
 from ..grid import get_crs
 from ..io.gis import write_cog, write_netcdf, write_segments
 from ..studies.compare import Comparison, RunTuple, _column_suffix, compare_runs
 from .appendix import build_appendix
-from .figures import plot_agreement
+from .figures import plot_ranked_pair
 
 __all__ = ['compare_to_folder']
 
@@ -133,15 +132,10 @@ def comparison_appendix(cmp, runs, folder: pathlib.Path) -> None:
     ok = np.isfinite(a.to_numpy()) & np.isfinite(b.to_numpy())
     if ok.sum() >= 3:
         fig = folder / "comparison_scatter.png"
-        xa, xb = a.to_numpy()[ok], b.to_numpy()[ok]
-        k = max(1, min(int(cmp.top_k), int(ok.sum())))
-        ag = compare_rankings(xa, xb, k=k)
-        txt = (f"n = {ag['n']} segments\nSpearman rho = {ag['spearman']:.2f}\nKendall tau = {ag['kendall']:.2f}\n"
-               f"top-{k} overlap = {ag['topk_common']}/{k}")
-        plot_agreement(xa, xb, out_path=fig, xlabel=f"Lensing factor (-), {names[0]}",
-                       ylabel=f"Lensing factor (-), {names[1]}", title="Lensing factor per coastline segment: "
-                       f"{names[0]} vs {names[1]}", labels=list(a.index[ok]), annotate=txt,
-                       top_x=topk_mask(xa, k), top_y=topk_mask(xb, k), top_names=(names[0], names[1]))
+        plot_ranked_pair(a[ok], b[ok], fig, k=max(1, min(int(cmp.top_k), int(ok.sum()))),
+                         xlabel=f"Lensing factor (-), {names[0]}", ylabel=f"Lensing factor (-), {names[1]}",
+                         title=f"Lensing factor per coastline segment: {names[0]} vs {names[1]}",
+                         names=(names[0], names[1]))
         figs["comparison_scatter"] = str(fig)
     metrics = {}
     for _, r in corr.iterrows():

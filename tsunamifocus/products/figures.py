@@ -58,7 +58,7 @@ from ..io.styles import tick_label as _tick_label
 from ..propagation.wave import WAVE_LIMITS
 
 __all__ = ['plot_ray_vs_wave', 'plot_travel_time', 'CAUTION_FOOTER', 'DPI', 'plot_ray_field', 'plot_lensing_map', 'plot_ranking',
-           'plot_uplift', 'plot_agreement', 'plot_oceans', 'plot_check_profile', 'RANK_FIELDS']
+           'plot_uplift', 'plot_agreement', 'plot_ranked_pair', 'plot_oceans', 'plot_check_profile', 'RANK_FIELDS']
 
 
 # Okabe & Ito (2008) colour-blind-safe palette
@@ -108,21 +108,45 @@ def plot_ray_vs_wave(
     pathlib.Path
         The written file.
     """
+    return plot_ranked_pair(ray_values, wave_values, path, k=k, xlabel=ray_label, ylabel=wave_label,
+                            title=title, names=("rays", "wave"), note=WAVE_LIMITS, log=log, annotate_top=annotate_top)
+
+
+def plot_ranked_pair(
+    x_values: Any,
+    y_values: Any,
+    path: str | Path,
+    *,
+    k: int = 10,
+    xlabel: str,
+    ylabel: str,
+    title: str | None = None,
+    names: tuple[str, str] = ("x", "y"),
+    note: str | None = None,
+    log: bool = True,
+    annotate_top: bool = True,
+) -> Path:
+    """Scatter (PNG) of two per-segment rankings' values with their agreement in a statistics box.
+
+    Series are aligned on their index (:func:`~tsunamifocus.focusing.agreement._paired`); the box
+    holds n, Spearman, Kendall and the top-``k`` overlap (:func:`compare_rankings`), then ``note``;
+    the two top-``k`` sets are drawn by :func:`plot_agreement` with ``names`` in the legend.
+    """
     path = Path(path)
     if not path.parent.is_dir():
         raise InputError(f"figure folder {str(path.parent)!r} does not exist")
-    a, b, labels = _paired(ray_values, wave_values)
+    a, b, labels = _paired(x_values, y_values)
     agree = compare_rankings(a, b, k=k)
     kk = agree["k"]
     txt = (
         f"n = {agree['n']} segments\nSpearman rho = {agree['spearman']:.2f}\n"
-        f"Kendall tau = {agree['kendall']:.2f}\ntop-{kk} overlap = {agree['topk_common']}/{kk}\n"
-        + textwrap.fill(WAVE_LIMITS, 44)
+        f"Kendall tau = {agree['kendall']:.2f}\ntop-{kk} overlap = {agree['topk_common']}/{kk}"
+        + (f"\n{textwrap.fill(note, 44)}" if note else "")
     )
-    names = [str(x) for x in labels] if (annotate_top and labels is not None) else None
-    return plot_agreement(a, b, out_path=path, xlabel=ray_label, ylabel=wave_label, title=title or "",
-                          labels=names, log=log and bool(np.all(a > 0) and np.all(b > 0)), annotate=txt,
-                          top_x=topk_mask(a, kk), top_y=topk_mask(b, kk), top_names=("rays", "wave"))
+    shown = [str(x) for x in labels] if (annotate_top and labels is not None) else None
+    return plot_agreement(a, b, out_path=path, xlabel=xlabel, ylabel=ylabel, title=title or "",
+                          labels=shown, log=log and bool(np.all(a > 0) and np.all(b > 0)), annotate=txt,
+                          top_x=topk_mask(a, kk), top_y=topk_mask(b, kk), top_names=names)
 
 #: Short caution printed at the foot of every figure.
 

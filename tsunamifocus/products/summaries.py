@@ -100,6 +100,12 @@ def seg_sigma_km(seg: pd.DataFrame) -> np.ndarray:
 WEAK_AGREEMENT: float = 0.5
 
 
+def _is_weak(a: dict | None) -> bool:
+    """A measured Spearman correlation with the wave below :data:`WEAK_AGREEMENT`."""
+    rho = a.get("spearman", np.nan) if a else np.nan
+    return bool(np.isfinite(rho) and rho < WEAK_AGREEMENT)
+
+
 def _check_lines(ag: dict) -> list[str]:
     """How far the rankings held against the linear long-wave check."""
 
@@ -108,9 +114,7 @@ def _check_lines(ag: dict) -> list[str]:
                 if a and np.isfinite(a.get("spearman", np.nan)) else "not measurable")
 
     def weak(a: dict) -> str:
-        rho = a.get("spearman", np.nan) if a else np.nan
-        return (" - weak: the wave does not confirm this ranking" if np.isfinite(rho) and rho < WEAK_AGREEMENT
-                else "")
+        return " - weak: the wave does not confirm this ranking" if _is_weak(a) else ""
 
     out = [f"  wave check (linear long-wave solver, unsmoothed sea floor) on {ag.get('n', 0)} ranked segments:",
            f"    amplitude ranking held: {held(ag)}{weak(ag)}"]
@@ -135,9 +139,7 @@ def _amplitude_first(ag: dict | None) -> bool:
     """The check held the amplitude ranking and found the lensing ranking weak."""
     if not ag or not ag.get("lensing"):
         return False
-    rho_a = ag.get("spearman", np.nan)
-    rho_l = ag["lensing"].get("spearman", np.nan)
-    return bool(np.isfinite(rho_a) and rho_a >= WEAK_AGREEMENT and np.isfinite(rho_l) and rho_l < WEAK_AGREEMENT)
+    return _is_weak(ag["lensing"]) and bool(np.isfinite(ag.get("spearman", np.nan))) and not _is_weak(ag)
 
 
 def amplitude_lines(seg: pd.DataFrame, ag: dict | None = None) -> list[str]:
