@@ -26,8 +26,8 @@ def test_redirected_stream_gets_a_few_plain_lines():
     text = buf.getvalue()
     assert "\r" not in text
     lines = text.strip().splitlines()
-    assert 2 <= len(lines) <= PLAIN_LINES and lines[-1].startswith("wave solver: done, 1000/1000 step")
-    assert "250/1000 step (25 %" in text
+    assert 2 <= len(lines) <= PLAIN_LINES and lines[-1].startswith("wave solver: done, 1000/1000 steps")
+    assert "250/1000 steps (25 %" in text
     # the percentage printed is the fraction done (2 of 6 is 33 %), one line per update
     buf = io.StringIO()
     bar = progress_bar(6, "members", unit="member", file=buf)
@@ -35,7 +35,7 @@ def test_redirected_stream_gets_a_few_plain_lines():
     bar.update(3)
     bar.close()
     assert len(buf.getvalue().splitlines()) == 4  # start, two updates, done
-    assert "2/6 member (33 %" in buf.getvalue() and "5/6 member (83 %" in buf.getvalue()
+    assert "2/6 members (33 %" in buf.getvalue() and "5/6 members (83 %" in buf.getvalue()
 
 
 def test_terminal_gets_a_redrawn_bar():
@@ -54,3 +54,11 @@ def test_wave_solver_bar_in_a_captured_stderr(capsys):
     bar.close()
     err = capsys.readouterr().err
     assert "\r" not in err and len(err.strip().splitlines()) <= PLAIN_LINES
+
+
+def test_plain_lines_count_one_step_in_the_singular():
+    # common practice, no source: "1/1 member", "0/2 members"
+    buf = io.StringIO()
+    with progress_bar(1, "members", unit="member", file=buf) as bar:
+        bar.update(1)
+    assert "done, 1/1 member in" in buf.getvalue() and "members in" not in buf.getvalue()

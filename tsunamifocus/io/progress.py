@@ -35,7 +35,9 @@ class _PlainBar:
         self._next_quarter = 1
         self._closed = False
         self._postfix = ""
-        self._say(f"{desc}: 0/{self.total} {unit}")
+        # "2/6 members", "1/1 member": the count is of the total
+        self._units = unit if self.total == 1 or unit.endswith("s") else unit + "s"
+        self._say(f"{desc}: 0/{self.total} {self._units}")
 
     def _say(self, text: str) -> None:
         print(text, file=self.file, flush=True)
@@ -49,7 +51,7 @@ class _PlainBar:
                 self._next_quarter += 1  # one line per update, however many quarters it crossed
             dt = time.perf_counter() - self.t0
             done = min(self.n, self.total)
-            self._say(f"{self.desc}: {done}/{self.total} {self.unit} "
+            self._say(f"{self.desc}: {done}/{self.total} {self._units} "
                       f"({100 * done // self.total} %, {dt:.0f} s){self._postfix}")
 
     def set_postfix(self, **kw: Any) -> None:
@@ -67,7 +69,7 @@ class _PlainBar:
             return
         self._closed = True
         dt = time.perf_counter() - self.t0
-        self._say(f"{self.desc}: done, {self.n}/{self.total} {self.unit} in {dt:.0f} s{self._postfix}")
+        self._say(f"{self.desc}: done, {self.n}/{self.total} {self._units} in {dt:.0f} s{self._postfix}")
 
     def __enter__(self) -> _PlainBar:
         return self
