@@ -678,3 +678,31 @@ def test_travel_time_map_with_isochrones(case, tmp_path):
     with pytest.raises(InputError, match="no finite values"):
         figures.plot_travel_time(tt * np.nan, d, levels, out_path=tmp_path / "x.png")
     assert not (tmp_path / "x.png").exists()
+
+
+def test_map_labels_keep_out_of_the_scale_bar_and_north_arrow():
+    # Readability (common practice, no source): contour labels are placed only on grid nodes
+    # outside the north arrow's panel (upper right) and, on projected grids, the scale bar's
+    # panel (lower left); a label there was drawn half under the panel.
+    from matplotlib.figure import Figure
+    from tsunamifocus.grid import GridInfo
+
+    x = np.arange(0.0, 1000e3, 10e3) + 5e3
+    y = np.arange(0.0, 800e3, 10e3) + 5e3
+    depth = make_grid(np.full((y.size, x.size), 4000.0), x, y, crs="EPSG:32610")
+    info = GridInfo.from_dataarray(depth)
+    ax = Figure().add_subplot()
+    ax._tf_ratio = 0.8
+    free = figures._label_free(ax, info, x, y)
+    fx = (x - x[0] + 5e3) / 1000e3
+    fy = (y - y[0] + 5e3) / 800e3
+    nx0, ny0, nx1, ny1 = figures._north_arrow_box(0.8)
+    i = np.flatnonzero((fx > nx0) & (fx < nx1))[0]
+    j = np.flatnonzero((fy > ny0) & (fy < ny1))[0]
+    assert not free[j, i]  # under the north arrow
+    assert not free[np.flatnonzero(fy < 0.09)[0], np.flatnonzero(fx < 0.2)[-1]]  # under the scale bar
+    assert free[y.size // 2, x.size // 2] and free[-1, 0] and free[0, -1]  # elsewhere free
+    lonlat = make_grid(np.full((y.size, x.size), 4000.0), np.linspace(200, 240, x.size), np.linspace(-20, 12, y.size), "EPSG:4326")
+    ginfo = GridInfo.from_dataarray(lonlat)
+    free_geo = figures._label_free(ax, ginfo, ginfo.x, ginfo.y)
+    assert free_geo[0, 0]  # no scale bar on a lon/lat map

@@ -412,6 +412,21 @@ def _north_arrow_box(ratio: float) -> tuple[float, float, float, float]:
     return x0, y0, x0 + 0.07, y0 + (_NORTH_LENGTH + 0.065) / ratio
 
 
+def _label_free(ax, info: GridInfo, xs: np.ndarray, ys: np.ndarray) -> np.ndarray:
+    """bool ``(len(ys), len(xs))``: grid nodes where a map label may go - not under the north arrow's
+    panel (upper right) nor, on projected grids, the scale bar (lower left)."""
+    xmin, xmax, ymin, ymax = _extent(info)
+    fx = (np.asarray(xs, float) - xmin) / max(xmax - xmin, 1e-300)
+    fy = (np.asarray(ys, float) - ymin) / max(ymax - ymin, 1e-300)
+    FX, FY = np.meshgrid(fx, fy)
+    pad = 0.02
+    x0, y0, x1, y1 = _north_arrow_box(getattr(ax, "_tf_ratio", 1.0))
+    free = ~((FX >= x0 - pad) & (FX <= x1 + pad) & (FY >= y0 - pad) & (FY <= y1 + pad))
+    if not info.geographic:  # the scale bar's panel (_add_scale_bar), with the same margin
+        free &= ~((FX <= 0.275 + pad) & (FY <= 0.096 + pad))
+    return free
+
+
 def _add_north_arrow(ax, info: GridInfo) -> None:
     """North arrow (pointing to true north) in the upper right corner of the map."""
     ang = math.radians(_north_angle_deg(info))
@@ -950,7 +965,7 @@ def plot_lensing_map(
     cmap = _cmap(scale.cmap).with_extremes(bad=(0.0, 0.0, 0.0, 0.0))
     handles = _lensing_raster(fig, ax, lf, linfo, depth, info, cmap, norm, r)
     if travel_time_min is not None:
-        handles += _travel_time_contours(ax, travel_time_min, info, contour_step_min)
+        handles += _travel_time_contours(ax, travel_time_min, info, contour_step_min, depth)
     if source_outline is not None and _draw_lines(
         ax, source_outline, info.geographic, colors=_OKABE_GREEN, linewidths=1.8, zorder=8, path_effects=_HALO
     ):
@@ -986,7 +1001,13 @@ def _lensing_raster(fig, ax, lf, linfo, depth, info, cmap, norm, r) -> list:
     return handles
 
 
-def _travel_time_contours(ax, travel_time_min: xr.DataArray, info: GridInfo, contour_step_min: float | None) -> list:
+#: Travel-time labels on the lensing map go where the sea is deeper than this [m] (off the
+#: continental slope, where contours bunch; common practice, no source).
+LABEL_DEPTH_M = 1000.0
+
+
+def _travel_time_contours(ax, travel_time_min: xr.DataArray, info: GridInfo, contour_step_min: float | None,
+                          depth: xr.DataArray | None = None) -> list:
     """Labelled first-arrival contours [min] (about 6-12 unless a step is given); their legend entry."""
     handles: list = []
     tinfo = _check_grid(travel_time_min, "plot_lensing_map travel_time_min")
@@ -1000,20 +1021,24 @@ def _travel_time_contours(ax, travel_time_min: xr.DataArray, info: GridInfo, con
         levels = levels[levels > 0]
         if levels.size:
             xd, yd = travel_time_min.dims[1], travel_time_min.dims[0]
-            cs = ax.contour(
-                travel_time_min[xd].values,
-                travel_time_min[yd].values,
-                t,
-                levels=levels,
-                colors="0.1",
-                linewidths=0.7,
-                zorder=5,
-            )
-            labels = ax.clabel(
-                cs, fmt=lambda v: f"{v:g} min", fontsize=7.5, inline=True, inline_spacing=3
-            )
-            for lab in labels:
-                lab.set_path_effects(_HALO)
+            xs, ys = travel_time_min[xd].values, travel_time_min[yd].values
+            ax.contour(xs, ys, t, levels=levels, colors="0.1", linewidths=0.7, zorder=5)
+            # labels kept out of the north arrow's and the scale bar's panels, and in water deeper
+            # than LABEL_DEPTH_M: near the coast the contours bunch up among the rank labels
+            t_free = np.where(_label_free(ax, info, xs, ys), t, np.nan)
+            lab_t = t_free
+            if depth is not None and _values(depth).shape == t.shape:
+                lab_t = np.where(_values(depth) > LABEL_DEPTH_M, t_free, np.nan)
+            lo, hi = np.nanmin(lab_t, initial=np.inf), np.nanmax(lab_t, initial=-np.inf)
+            on_deep = [lv for lv in levels if lo < lv < hi]
+            # levels that never leave the slope stay unlabelled (the legend gives the step) unless none reach deep water
+            rest = [] if on_deep else list(levels)
+            for field, lvs in ((lab_t, on_deep), (t_free, rest)):
+                if not lvs or not np.isfinite(field).any():
+                    continue
+                cs = ax.contour(xs, ys, field, levels=lvs, colors="none", linewidths=0.0, zorder=5)
+                for lab in ax.clabel(cs, fmt=lambda v: f"{v:g} min", fontsize=7.5, inline=False, colors="0.1"):
+                    lab.set_path_effects(_HALO)
             handles.append(Line2D([], [], color="0.1", lw=0.8, label=f"Travel time (every {step:g} min)"))
     return handles
 
@@ -2044,10 +2069,7 @@ def plot_travel_time(
     finer = [m for m, h in levels_min if not h]
     label_finer = len(levels_min) <= 12
     # no labels under the north arrow (top right) or the scale bar (bottom left)
-    ny_, nx_ = tm.shape
-    inner = np.ones(tm.shape, bool)
-    inner[int(0.84 * ny_):, int(0.86 * nx_):] = False
-    inner[:int(0.12 * ny_), :int(0.26 * nx_)] = False
+    inner = _label_free(ax, info, xs, ys)
     if finer:
         ax.contour(xs, ys, tm, levels=finer, colors="white", linewidths=0.6, zorder=5)
         if label_finer:
