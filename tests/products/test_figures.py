@@ -702,7 +702,21 @@ def test_map_labels_keep_out_of_the_scale_bar_and_north_arrow():
     assert not free[j, i]  # under the north arrow
     assert not free[np.flatnonzero(fy < 0.09)[0], np.flatnonzero(fx < 0.2)[-1]]  # under the scale bar
     assert free[y.size // 2, x.size // 2] and free[-1, 0] and free[0, -1]  # elsewhere free
-    lonlat = make_grid(np.full((y.size, x.size), 4000.0), np.linspace(200, 240, x.size), np.linspace(-20, 12, y.size), "EPSG:4326")
+    lonlat = make_grid(np.full((y.size, x.size), 4000.0), np.linspace(200, 240, x.size),
+                       np.linspace(-20, 12, y.size), "EPSG:4326")
     ginfo = GridInfo.from_dataarray(lonlat)
     free_geo = figures._label_free(ax, ginfo, ginfo.x, ginfo.y)
     assert free_geo[0, 0]  # no scale bar on a lon/lat map
+
+    # the panel the labels avoid holds the scale bar actually drawn
+    from matplotlib.patches import Rectangle
+
+    ax2 = Figure().add_subplot()
+    ax2.set_xlim(0, 1000e3)
+    ax2.set_ylim(0, 800e3)
+    figures._add_scale_bar(ax2, info)
+    bg = [p for p in ax2.patches if isinstance(p, Rectangle)][0]
+    x0, y0 = bg.get_x() / 1000e3, bg.get_y() / 800e3
+    x1, y1 = x0 + bg.get_width() / 1000e3, y0 + bg.get_height() / 800e3
+    sx0, sy0, sx1, sy1 = figures._SCALE_BAR_PANEL
+    assert sx0 - 1e-3 <= x0 and sy0 - 1e-3 <= y0 and x1 <= sx1 + 1e-3 and y1 <= sy1 + 1e-3

@@ -348,6 +348,11 @@ def _nice_length(target: float) -> float:
     return 10**e
 
 
+#: The largest panel :func:`_add_scale_bar` draws, ``(x0, y0, x1, y1)`` in axes fraction (what map
+#: labels must avoid): the bar is at most 0.22 of the width, from 0.04 of it, with its margins.
+_SCALE_BAR_PANEL = (0.025, 0.0236, 0.275, 0.0956)
+
+
 def _add_scale_bar(ax, info: GridInfo) -> None:
     """Two-tone scale bar in the lower left corner (projected grids, metres)."""
     xmin, xmax, ymin, ymax = _extent(info)
@@ -422,8 +427,9 @@ def _label_free(ax, info: GridInfo, xs: np.ndarray, ys: np.ndarray) -> np.ndarra
     pad = 0.02
     x0, y0, x1, y1 = _north_arrow_box(getattr(ax, "_tf_ratio", 1.0))
     free = ~((FX >= x0 - pad) & (FX <= x1 + pad) & (FY >= y0 - pad) & (FY <= y1 + pad))
-    if not info.geographic:  # the scale bar's panel (_add_scale_bar), with the same margin
-        free &= ~((FX <= 0.275 + pad) & (FY <= 0.096 + pad))
+    if not info.geographic:  # the scale bar's panel, with the same margin
+        sx0, sy0, sx1, sy1 = _SCALE_BAR_PANEL
+        free &= ~((FX >= sx0 - pad) & (FX <= sx1 + pad) & (FY >= sy0 - pad) & (FY <= sy1 + pad))
     return free
 
 
