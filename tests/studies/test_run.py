@@ -164,6 +164,8 @@ def test_checked_run_shows_each_figure_once(tmp_path):
     caps = re.findall(r"<figcaption>(Figure \d+)\.", text)
     assert caps == [f"Figure {i}" for i in range(1, len(figs) + 1)]
     assert "whether a hotspot has moved along the coast" in text
+    # checked: no "not checked" note under the ranking
+    assert "not checked against the linear long-wave solver" not in text
 
 
 def test_caution_in_every_output(demo_run):

@@ -321,9 +321,13 @@ def test_health_checks_in_summary_manifest_and_appendix(run_a):
         if frac > 0:
             assert f"{reason} {frac:.1%}" in text
     assert "integration step" in text and "NaN holes" in text
+    # a run without the wave check says so, under its lensing top five and its appendix ranking
+    # (the check is what confirms a ranking; common practice, no source)
+    assert "  not checked against the linear long-wave solver: read the lensing factor as qualitative" in text
     m = json.loads((a / "manifest.json").read_text(encoding="utf-8"))
     assert m["extra"]["health"]["energy_error_relative"] == pytest.approx(h["energy_error_relative"])
     html = (a / "appendix.html").read_text(encoding="utf-8").lower()
+    assert "this ranking was not checked against the linear long-wave solver" in html
     for needle in (
         "numerical health checks",
         "energy bookkeeping error",

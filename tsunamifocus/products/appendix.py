@@ -280,6 +280,7 @@ CONTEXT_KEYS: dict[str, str] = {
     "assumptions": "list of str; default DEFAULT_ASSUMPTIONS",
     "validation": "table (DataFrame, list of dicts or dict) summarising the validation tests",
     "validation_notes": "str or list of str under the validation table",
+    "ranking_note": "str, a note under the ranking table (e.g. that no wave check was run)",
     "health": "dict of numerical health checks (values, or dicts with value/limit/ok)",
     "figures": "dict key -> path or {path, caption}; keys uplift, ray_field, lensing_map, ranking, ...",
     "points": "table of points of interest (DataFrame or list of dicts)",
@@ -884,6 +885,8 @@ def _ranking_blocks(context: Mapping[str, Any], top_k: int) -> list[_Block]:
                    "carry no rank: read them as a prompt for a finer run, not as a result." if n_unrel else "."))
     blocks.append(_b("p", text=lead))
     blocks.append(_b("table", columns=cols, rows=rows, caption="Ranked coastline segments", small=True))
+    if context.get("ranking_note"):
+        blocks.append(_b("note", text=str(context["ranking_note"])))
     return blocks
 
 

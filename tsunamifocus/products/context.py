@@ -14,7 +14,7 @@ from ..propagation.traveltime import isochrone_lines
 from ..io.gis import _plain_dtypes, longitude_note
 from ..studies.inspect import summarize_grid
 from ..studies.run import SourceAnalysis
-from .summaries import step_text
+from .summaries import UNCHECKED_RANKING, step_text
 
 __all__ = []
 
@@ -130,6 +130,8 @@ def _report_context(a: SourceAnalysis, scenario: Any, depth: xr.DataArray, point
         "validation_notes": "Each check runs in the project's automated test suite against the named "
                             "outside reference; see the test files and docs/ for measured errors.",
     }
+    if a.check is None:
+        ctx["ranking_note"] = f"This ranking was {UNCHECKED_RANKING[0]}; {UNCHECKED_RANKING[1]}."
     if a.travel_times is not None:
         ctx["travel_times"] = _travel_time_section(a, scenario, depth)
     if ensemble is not None:

@@ -100,6 +100,13 @@ def seg_sigma_km(seg: pd.DataFrame) -> np.ndarray:
 WEAK_AGREEMENT: float = 0.5
 
 
+#: Said of a run's rankings when no wave check was run (summary and appendix): what, and the remedy.
+UNCHECKED_RANKING: tuple[str, str] = (
+    "not checked against the linear long-wave solver: read the lensing factor as qualitative (the "
+    "project's checks hold the amplitude ranking more closely; docs/focusing.md)",
+    "'tsunamifocus check RUN' compares both rankings with the wave on this grid")
+
+
 def _is_weak(a: dict | None) -> bool:
     """A measured Spearman correlation with the wave below :data:`WEAK_AGREEMENT`."""
     rho = a.get("spearman", np.nan) if a else np.nan
@@ -249,6 +256,8 @@ def format_run_summary(result: RunResult) -> str:
                             if near else ""))
         if a.check is not None:
             lines.extend(_check_lines(a.check.agreement))
+        elif len(rel):
+            lines += ["  " + UNCHECKED_RANKING[0], "    " + UNCHECKED_RANKING[1]]
         lines.extend(amplitude_lines(f.segments, a.check.agreement if a.check is not None else None))
         pts = result.points.get(a.name)
         if pts is not None and len(pts):
