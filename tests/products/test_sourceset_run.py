@@ -103,6 +103,8 @@ def test_outputs_and_failed_member_reported(first_run):
         assert any("SCREENING" in str(v).upper() for v in src.tags().values())
     html = (out / "set_appendix.html").read_text()
     assert "NOT a probabilistic tsunami hazard assessment" in html
+    # the hotspots are lensing-factor hotspots no wave check confirmed: said, with the remedy
+    assert "no member is checked against the linear long-wave solver" in html and "--check" in html
     assert {p.name for p in (out / "figures").iterdir()} == {"hotspot_frequency.png", "envelope_lensing_map.png"}
 
 
@@ -157,6 +159,7 @@ def test_command_line(setdir, capsys):
     assert code == 0
     txt = capsys.readouterr().out
     assert "not a probabilistic hazard assessment" in txt and "failed: on land" in txt
+    assert "not checked against the linear long-wave solver" in txt
     code = main(["sourceset", str(setdir / "set.toml"), "--out", str(setdir / "cli")])
     assert code == 2  # the filled output folder is refused
     assert "error:" in capsys.readouterr().err

@@ -52,6 +52,9 @@ SET_CAUTIONS = (
     "of a source that is not in the set.",
     "Members trace the dominant period band only, like ensemble members; the single-scenario runs trace three "
     "period bands.",
+    "Hotspots are counted by lensing factor, and no member is checked against the linear long-wave solver: read "
+    "the lensing factor as qualitative (the project's checks hold the amplitude ranking more closely; "
+    "docs/focusing.md). To check one source, run it as a scenario with 'tsunamifocus run SCENARIO --check'.",
 )
 
 
@@ -88,6 +91,8 @@ class SetResult:
         elif t:
             lines.append(f"  timings: prepare {t['prepare_s']:.1f} s; every member reused")
         lines.append("  a hotspot frequency is not a probability: this is not a probabilistic hazard assessment")
+        lines.append("  hotspots are counted by lensing factor, not checked against the linear long-wave solver: read "
+                     "them as qualitative (docs/focusing.md)")
         return "\n".join(lines)
 
 
