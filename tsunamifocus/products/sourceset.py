@@ -38,6 +38,7 @@ from ..studies.sourceset import (SET_GRIDS, PreparedSet, envelope_grids, grid_te
                                  prepare_set, set_member, set_statistics)
 from .appendix import build_appendix
 from .figures import _finish, plot_lensing_map
+from .summaries import LENSING_QUALITATIVE
 
 __all__ = ["SetResult", "compute_source_set", "run_source_set", "SET_CAUTIONS", "plot_hotspot_frequency"]
 
@@ -52,9 +53,8 @@ SET_CAUTIONS = (
     "of a source that is not in the set.",
     "Members trace the dominant period band only, like ensemble members; the single-scenario runs trace three "
     "period bands.",
-    "Hotspots are counted by lensing factor, and no member is checked against the linear long-wave solver: read "
-    "the lensing factor as qualitative (the project's checks hold the amplitude ranking more closely; "
-    "docs/focusing.md). To check one source, run it as a scenario with 'tsunamifocus run SCENARIO --check'.",
+    "Hotspots are counted by lensing factor, and no member is checked against the linear long-wave solver: "
+    + LENSING_QUALITATIVE + ". To check one source, run it as a scenario with 'tsunamifocus run SCENARIO --check'.",
 )
 
 
@@ -91,8 +91,8 @@ class SetResult:
         elif t:
             lines.append(f"  timings: prepare {t['prepare_s']:.1f} s; every member reused")
         lines.append("  a hotspot frequency is not a probability: this is not a probabilistic hazard assessment")
-        lines.append("  hotspots are counted by lensing factor, not checked against the linear long-wave solver: read "
-                     "them as qualitative (docs/focusing.md)")
+        lines.append("  hotspots are counted by lensing factor, not checked against the linear long-wave solver: "
+                     + LENSING_QUALITATIVE)
         return "\n".join(lines)
 
 

@@ -100,10 +100,13 @@ def seg_sigma_km(seg: pd.DataFrame) -> np.ndarray:
 WEAK_AGREEMENT: float = 0.5
 
 
+#: How to read a lensing factor no wave check confirmed (run summaries, appendices, source sets).
+LENSING_QUALITATIVE: str = ("read the lensing factor as qualitative (the project's checks hold the amplitude "
+                            "ranking more closely; docs/focusing.md)")
+
 #: Said of a run's rankings when no wave check was run (summary and appendix): what, and the remedy.
 UNCHECKED_RANKING: tuple[str, str] = (
-    "not checked against the linear long-wave solver: read the lensing factor as qualitative (the "
-    "project's checks hold the amplitude ranking more closely; docs/focusing.md)",
+    "not checked against the linear long-wave solver: " + LENSING_QUALITATIVE,
     "'tsunamifocus check RUN' compares both rankings with the wave on this grid")
 
 
