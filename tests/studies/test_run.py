@@ -330,6 +330,10 @@ def test_compare_and_check_commands(demo_run, tmp_path, capsys):
     # independent wave-equation check of the demo ranking
     assert main(["-q", "check", str(out)]) == 0
     line = capsys.readouterr().out.strip().splitlines()[-1]
+    # without -q it prints its summary with the cautions once (they were printed twice)
+    assert main(["check", str(out), "--out", str(tmp_path / "check_again")]) == 0
+    err = capsys.readouterr().err
+    assert err.count("SCREENING ESTIMATES ONLY") == 1 and "no inundation" in err
     rho = float(line.split()[1])
     ag = json.loads((out / "wave_check" / "agreement.json").read_text())
     assert ag["spearman"] == pytest.approx(rho, abs=1e-3)

@@ -198,9 +198,8 @@ def run_wave_check(
                        "run_segments": run_dir / "segments.csv"},
                        extra={"wave_stats": jsonable(chk.wave.stats), "agreement": jsonable(ag)})
     if progress:
-        print(chk.summary(), file=sys.stderr)
+        print(chk.summary(), file=sys.stderr)  # ends with the cautions and the wave check's limits
         print(f"outputs: {out_dir}", file=sys.stderr)
-        print("CAUTION: " + caution_summary(), file=sys.stderr)
     lens = ag.get("lensing") or {}
     sp, lsp = ag.get("spearman"), lens.get("spearman")
     print(f"spearman {sp if sp is None else round(sp, 3)}  top{k}_overlap {ag.get('topk_overlap')}"
