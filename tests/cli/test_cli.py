@@ -48,6 +48,8 @@ def test_inspect_demo_grids(tmp_path, capsys):
         assert main(["inspect", str(p)]) == 0
         out = capsys.readouterr().out
         assert "long-wave speed" in out and "ray theory" in out and "memory" in out
+        # the period limits are of the raw grid; a run's bands see it averaged over a quarter wavelength
+        assert "averaged over 0.25 of the band's wavelength" in out
 
 
 def test_console_script_exit_code_no_traceback(tmp_path):

@@ -9,6 +9,7 @@ import numpy as np
 import pandas as pd
 
 from ..cautions import caution_summary
+from ..ocean.wavelength import WAVELENGTH_FRACTION
 from ..studies.run import RunResult
 from ..studies.check import FAINT_WAVE_FRACTION, MIN_CELLS_PER_WAVELENGTH
 
@@ -65,6 +66,8 @@ def format_summary(s: dict) -> str:
             f"ray theory      periods from {_fmt_period(s['shortest_period_s'])} "
             f"to {_fmt_period(s['longest_ray_period_s'])}",
             f"                ({s['period_rule']})",
+            f"                on this grid as it is; a run traces each period band over the sea floor averaged "
+            f"over {WAVELENGTH_FRACTION:g} of the band's wavelength (docs/focusing.md)",
         ]
     lines += [
         f"memory          grid {_fmt_bytes(s['memory_grid_bytes'])}, loading ~{_fmt_bytes(s['memory_load_bytes'])}, "
