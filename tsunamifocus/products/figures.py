@@ -56,6 +56,7 @@ from ..io.styles import nice_time_step as _nice_time_step
 from ..io.styles import symmetric_log_range as _symmetric_log_range  # noqa: F401 (old name, used by tests)
 from ..io.styles import tick_label as _tick_label
 from ..propagation.wave import WAVE_LIMITS
+from ..studies.check import FAINT_WAVE_FRACTION
 
 __all__ = ['plot_ray_vs_wave', 'plot_travel_time', 'CAUTION_FOOTER', 'DPI', 'plot_ray_field', 'plot_lensing_map', 'plot_ranking',
            'plot_uplift', 'plot_agreement', 'plot_ranked_pair', 'plot_oceans', 'plot_check_profile', 'RANK_FIELDS']
@@ -425,11 +426,10 @@ def _label_free(ax, info: GridInfo, xs: np.ndarray, ys: np.ndarray) -> np.ndarra
     fy = (np.asarray(ys, float) - ymin) / max(ymax - ymin, 1e-300)
     FX, FY = np.meshgrid(fx, fy)
     pad = 0.02
-    x0, y0, x1, y1 = _north_arrow_box(getattr(ax, "_tf_ratio", 1.0))
-    free = ~((FX >= x0 - pad) & (FX <= x1 + pad) & (FY >= y0 - pad) & (FY <= y1 + pad))
-    if not info.geographic:  # the scale bar's panel, with the same margin
-        sx0, sy0, sx1, sy1 = _SCALE_BAR_PANEL
-        free &= ~((FX >= sx0 - pad) & (FX <= sx1 + pad) & (FY >= sy0 - pad) & (FY <= sy1 + pad))
+    panels = [_north_arrow_box(getattr(ax, "_tf_ratio", 1.0))] + ([] if info.geographic else [_SCALE_BAR_PANEL])
+    free = np.ones(FX.shape, dtype=bool)
+    for x0, y0, x1, y1 in panels:
+        free &= ~((FX >= x0 - pad) & (FX <= x1 + pad) & (FY >= y0 - pad) & (FY <= y1 + pad))
     return free
 
 
@@ -1093,16 +1093,16 @@ def _rank_labels(ax, segments: pd.DataFrame, top_k: int, info: GridInfo) -> list
     xmin_, xmax_, ymin_, ymax_ = _extent(info)
     pts_per_unit = 72.0 * (8.0 - 0.9 - 0.95) / max(xmax_ - xmin_, 1e-12)  # see _finish sizing
     yscale = pts_per_unit * getattr(ax, "_tf_aspect", 1.0)
+    box = (xmax_ - xmin_) * pts_per_unit, (ymax_ - ymin_) * yscale
+    # the north arrow's panel (top right) is no place for a label
+    nx0, ny0, nx1, ny1 = _north_arrow_box(getattr(ax, "_tf_ratio", 1.0))
+    avoid = [(nx0 * box[0] - 9.0, ny0 * box[1] - 9.0, nx1 * box[0] + 9.0, ny1 * box[1] + 9.0)]
     for _, row in ranked.iterrows():
         xm, ym = _segment_mid(row)
         if xm is None:
             continue
         az = row.get("normal_azimuth_deg", np.nan)
         az = float(az) if az is not None and np.isfinite(az) else 0.0
-        box = (xmax_ - xmin_) * pts_per_unit, (ymax_ - ymin_) * yscale
-        # the north arrow's panel (top right) is no place for a label
-        nx0, ny0, nx1, ny1 = _north_arrow_box(getattr(ax, "_tf_ratio", 1.0))
-        avoid = [(nx0 * box[0] - 9.0, ny0 * box[1] - 9.0, nx1 * box[0] + 9.0, ny1 * box[1] + 9.0)]
         off = _label_offset(((xm - xmin_) * pts_per_unit, (ym - ymin_) * yscale), az, placed, box=box,
                             avoid=avoid)
         ax.annotate(
@@ -1649,8 +1649,8 @@ def _crop_to_signal(da: xr.DataArray, mask: np.ndarray) -> xr.DataArray:
 
 
 #: On log agreement scatters, values below this fraction of the smaller median are drawn on the
-#: axis edge (ringed) instead of stretching the axes (the wave check's ``FAINT_WAVE_FRACTION``).
-AGREEMENT_FLOOR: float = 0.01
+#: axis edge (ringed) instead of stretching the axes: the wave check's faint-wave fraction.
+AGREEMENT_FLOOR: float = FAINT_WAVE_FRACTION
 
 
 def _floor_clip(xa: np.ndarray, ya: np.ndarray, ok: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:

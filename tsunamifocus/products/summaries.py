@@ -133,7 +133,7 @@ def _check_lines(ag: dict) -> list[str]:
            f"    amplitude ranking held: {held(ag)}{weak(ag)}"]
     if ag.get("lensing"):
         out.append(f"    lensing ranking held:   {held(ag['lensing'])}{weak(ag['lensing'])}")
-        if weak(ag["lensing"]) and not weak(ag):
+        if _amplitude_first(ag):
             out.append("    rank this coast with the amplitude ranking, not the lensing factor (docs/focusing.md)")
     if ag.get("n_faint_wave"):
         out.append(f"    {ag['n_faint_wave']} of the segments got almost no wave in the check (below "
