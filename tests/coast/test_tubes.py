@@ -125,3 +125,34 @@ def test_prepared_coast_geometry_gives_the_same_deposit():
     dep2 = tube_deposit(seg, r.end, d, steps=steps, period_s=300.0, max_distance_m=3000.0, coast=geo)
     np.testing.assert_array_equal(dep.energy_J, dep2.energy_J)
     np.testing.assert_array_equal(dep.shadow, dep2.shadow)
+
+
+def test_a_tube_spread_wider_than_its_fresnel_zone_stays_near_its_end():
+    # A tube whose linearised spreading has grown beyond its first Fresnel zone (on long paths
+    # across many lenses |q| grows exponentially, to tubes wider than the ocean) is not spread
+    # uniformly over its whole coastline line: its footprint is the Fresnel width, a Gaussian of
+    # std sqrt(lambda L) / 2 (lambda = c_end T, L its path length) around its end point. On 10 km
+    # segments the binned Gaussian's variance is std^2 + (10 km)^2 / 12 (Sheppard's correction,
+    # Sheppard 1898, Proc. Lond. Math. Soc. 29, 353).
+    from tsunamifocus.coast.tubes import fresnel_sigma
+
+    r, seg, steps, _ = point_source_on_basin(720)
+    d = basin()
+    end = r.end.copy(deep=True)
+    coast = np.flatnonzero((end["reason"].values == 1) & (np.abs(end["y"].values) < 5e3))
+    k = int(coast[0])
+    q = end["q"].values.copy()
+    q[k] = 1e20
+    end["q"] = ("ray", q)
+    dep = tube_deposit(seg, end, d, steps=steps, period_s=300.0, max_distance_m=3000.0)
+    row = dep.matrix.getrow(k).toarray().ravel()
+    np.testing.assert_allclose(row.sum(), E / 720, rtol=1e-12)  # still deposits its weight
+    lam = float(end["c_end"].values[k]) * 300.0
+    sig = float(fresnel_sigma(lam, float(end["path_length_m"].values[k])))
+    y = seg["y_mid"].to_numpy(float)
+    mean = float(np.sum(row * y) / row.sum())
+    std = math.sqrt(float(np.sum(row * (y - mean) ** 2) / row.sum()))
+    assert abs(mean - float(end["y"].values[k])) < 1e3
+    np.testing.assert_allclose(std, math.sqrt(sig**2 + 10e3**2 / 12.0), rtol=0.05)
+    # the coast beyond 5 Fresnel widths gets nothing (uniform spreading would give it E / n / 40 each)
+    assert not row[np.abs(y - mean) > 5 * sig].any()

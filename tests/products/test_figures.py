@@ -316,6 +316,9 @@ def test_ranking_axis_is_set_by_the_reliable_bars(case, tmp_path, monkeypatch):
     check_png(figures.plot_ranking(seg, 8, out_path=tmp_path / "r.png"), min_w=800, min_h=300)
     assert seen["xlim"][1] < 3.0  # 2.0 * 1.2 (largest reliable whisker) plus a margin, not 59.6
     assert any(t.startswith("59.6") for t in seen["texts"]) and any(t.startswith("30") for t in seen["texts"])
+    # values keep three significant digits, trailing zeros too, so a column of values reads alike
+    # (2.00 and 1.80 beside 1.62, not 2 and 1.8; common practice, no source)
+    assert {"2.00", "1.80", "1.60", "30.0"} <= {t.split()[0] for t in seen["texts"]}
     # ranks only for ranked (reliable) segments, unranked shown with "-"
     assert sum(lab.startswith("- ") for lab in seen["labels"]) == 2
     assert sorted(lab.split(".")[0] for lab in seen["labels"] if not lab.startswith("- ")) == list("123456")
@@ -344,10 +347,10 @@ def test_ranking_without_reliable_bars_draws_no_runaway_whiskers(case, tmp_path,
     check_png(figures.plot_ranking(seg, 6, out_path=tmp_path / "u.png"), min_w=800, min_h=300)
     assert seen["xlim"][1] == pytest.approx(15.0 * 1.14)
     assert seen["markers"] == []  # no clipped whisker, no clipped bar
-    assert sorted(t.get_text() for t in seen["text_objs"]) == sorted(["15", "4", "2.4", "2", "1.1", "0.9"])
+    assert sorted(t.get_text() for t in seen["text_objs"]) == sorted(["15.0", "4.00", "2.40", "2.00", "1.10", "0.900"])
     # each value beside its bar (or its drawn whisker), not at the edge of the chart
     x = {t.get_text(): t.get_position()[0] for t in seen["text_objs"]}
-    assert x["2.4"] < 4.0 and x["1.1"] == pytest.approx(6.0 + 0.015 * 15.0 * 1.14)
+    assert x["2.40"] < 4.0 and x["1.10"] == pytest.approx(6.0 + 0.015 * 15.0 * 1.14)
 
 
 def test_ranking_orders_by_rank_column(case):

@@ -18,7 +18,11 @@ Caustics (``q -> 0``) are regularised by a footprint no narrower than ``min_widt
 wavelengths ``c_end T`` (a wave cannot concentrate energy on a strip narrower than about a
 wavelength). A segment that no tube footprint covers is a ray shadow: it gets the estimate the
 same rays give with footprints of the first-Fresnel-zone width ``sqrt(lambda L) / 2`` (the scale
-over which diffraction fills a shadow) and is flagged ``shadow``.
+over which diffraction fills a shadow) and is flagged ``shadow``. No footprint is wider than that
+Fresnel width either (as a Gaussian of std ``sqrt(lambda L) / 2``): on trans-ocean paths across
+many lenses the linearised spreading ``|q|`` of some rays grows exponentially, to tubes wider
+than the ocean, which would otherwise spread their energy evenly over a whole coastline line,
+into straits and bays no ray reaches.
 """
 
 from __future__ import annotations
@@ -39,7 +43,8 @@ from ..errors import InputError
 from ..grid import GridInfo
 from ..ocean.smooth import _to_xyz as to_xyz
 
-__all__ = ["CoastGeometry", "TubeDeposit", "tube_deposit", "tube_steps", "nearest_segment", "TUBE_MIN_WIDTH"]
+__all__ = ["CoastGeometry", "TubeDeposit", "tube_deposit", "tube_steps", "nearest_segment", "fresnel_sigma",
+           "TUBE_MIN_WIDTH"]
 
 #: Smallest tube footprint along the coast, in local wavelengths ``c_end T`` (caustic regularisation).
 TUBE_MIN_WIDTH: float = 1.0
@@ -183,6 +188,15 @@ def _normal_share(za: np.ndarray, zb: np.ndarray) -> np.ndarray:
         zm = 0.5 * (za[narrow] + zb[narrow])
         out[narrow] = (zb[narrow] - za[narrow]) * np.exp(-0.5 * zm * zm) / math.sqrt(2.0 * math.pi)
     return out
+
+
+def fresnel_sigma(wavelength_m: np.ndarray | float, path_m: np.ndarray | float) -> np.ndarray:
+    """Std [m] of the first-Fresnel-zone footprint, ``sqrt(lambda L) / 2``, of a path ``L`` long.
+
+    The width over which diffraction fills a ray shadow; also the widest footprint a ray tube is
+    given (:func:`tube_deposit`).
+    """
+    return 0.5 * np.sqrt(np.asarray(wavelength_m, float) * np.maximum(np.asarray(path_m, float), 0.0))
 
 
 def _arc_rows(arcs: _Arcs, line_r: np.ndarray, s0: np.ndarray, width: np.ndarray, reach: np.ndarray,
@@ -420,6 +434,13 @@ def tube_deposit(
     cos_inc = np.cos(np.radians(np.minimum(inc, max_incidence_deg)))
     foot = q * np.asarray(steps, float)[hit] / cos_inc
     lam = c_end * period_s
+    path = np.asarray(end["path_length_m"].values, float)[hit]
+    sig_fres = fresnel_sigma(lam, path)
+    # a footprint wider than the first Fresnel zone is not trusted: on long paths across many
+    # lenses the linearised spreading grows exponentially (to tubes wider than the ocean) and no
+    # longer says where the energy goes; such a tube's energy stays within the Fresnel width
+    # (the shadow estimate's) of its end point instead of spreading over the whole coastline line
+    foot = np.minimum(foot, math.sqrt(2.0 * math.pi) * sig_fres)
     sigma = np.maximum(foot, min_width_factor * lam) / math.sqrt(2.0 * math.pi)
     line_r = arcs.line[sid[i0]]
     s0 = s_smp[i0] + _along(pts, sid, arcs.line, xyz, i0, ds)
@@ -439,8 +460,7 @@ def tube_deposit(
     # a footprint stays on its coastline line: only rays on a line with a shadow segment can reach one
     on = np.flatnonzero(np.isin(line_r, arcs.line[shadow])) if shadow.any() else np.zeros(0, np.int64)
     if on.size:
-        path = np.asarray(end["path_length_m"].values, float)[hit[on]]
-        sig_f = np.maximum(0.5 * np.sqrt(lam[on] * np.maximum(path, 0.0)), sigma[on])
+        sig_f = np.maximum(sig_fres[on], sigma[on])
         r2_, c2_, v2_ = _arc_rows(arcs, line_r[on], s0[on], sig_f, reach, nseg)
         est = np.bincount(c2_, weights=w[on][r2_] * v2_, minlength=nseg)
         shadow_e = np.where(shadow, est, 0.0)
