@@ -143,14 +143,19 @@ def test_topk_probability_exact_on_constructed_case():
     tables = [pd.DataFrame({"lensing_factor": r}, index=pd.Index(ids, name="segment_id")) for r in rows]
     st = segment_statistics(tables, top_k=2)
     np.testing.assert_array_equal(st["p_topk"].to_numpy(), [1.0, 0.6, 0.4, 0.0])
-    assert list(st["robustness"]) == ["robust", "likely", "possible", "unlikely"]
+    assert list(st["robustness"]) == ["very likely", "about as likely as not", "about as likely as not", "unlikely"]
     # every member contributes exactly k hotspots
     assert st["p_topk"].sum() * len(rows) == pytest.approx(2 * len(rows))
     # ties: equal values are broken by segment order (documented)
     tie = [pd.DataFrame({"lensing_factor": [1.0, 1.0, 1.0]}, index=pd.Index(["X", "Y", "Z"], name="segment_id"))]
     np.testing.assert_array_equal(segment_statistics(tie, top_k=2)["p_topk"].to_numpy(), [1.0, 1.0, 0.0])
-    assert robustness_label(0.8) == "robust" and robustness_label(0.79) == "likely"
-    assert robustness_label(0.2) == "possible" and robustness_label(0.19) == "unlikely"
+    # the calibrated likelihood scale (Mastrandrea et al. 2010, IPCC AR5 guidance note on the
+    # consistent treatment of uncertainties: very likely 90-100 %, likely 66-100 %, about as
+    # likely as not 33-66 %, unlikely 0-33 %)
+    assert robustness_label(0.9) == "very likely" and robustness_label(0.89) == "likely"
+    assert robustness_label(0.66) == "likely" and robustness_label(0.65) == "about as likely as not"
+    assert robustness_label(0.33) == "about as likely as not" and robustness_label(0.32) == "unlikely"
+    assert robustness_label(float("nan")) == "unlikely"
 
 
 def _table(ids, values):

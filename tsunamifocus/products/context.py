@@ -13,6 +13,7 @@ from ..grid import GridInfo
 from ..propagation.traveltime import isochrone_lines
 from ..io.gis import _plain_dtypes, longitude_note
 from ..studies.inspect import summarize_grid
+from ..studies.ensemble import robustness_scale
 from ..studies.run import SourceAnalysis
 from .summaries import UNCHECKED_RANKING, step_text
 
@@ -197,6 +198,24 @@ def _region_text(scenario: Any, seg: pd.DataFrame) -> str:
     return "; ".join(parts) + f" ({len(seg)} of {n_all} segments)"
 
 
+def _ensemble_perturbations(e: Any) -> str:
+    """What an ensemble's members perturb, in words (perturbations of zero width left out)."""
+    parts = []
+    if e.bathy_rms > 0:
+        parts.append(f"perturb the bathymetry by smooth Gaussian-correlated depth errors of {100 * e.bathy_rms:g} % "
+                     f"rms (correlation length {e.bathy_corr_km:g} km)")
+    src = [f"{name} +/- {v:g}{unit}" for name, v, unit in (
+        ("strike", e.strike_deg, " deg"), ("dip", e.dip_deg, " deg"), ("along-strike", e.along_km, " km"),
+        ("across-strike", e.across_km, " km"), ("magnitude", e.magnitude, "")) if v > 0]
+    if src:
+        parts.append("perturb the source within " + ", ".join(src))
+    if e.launch_jitter_deg > 0:
+        parts.append(f"rotate the ray fan by up to +/- {e.launch_jitter_deg:g} deg")
+    if not parts:
+        return "repeat the unperturbed case (no perturbation is set)"
+    return ", ".join(parts[:-1]) + (" and " if len(parts) > 1 else "") + parts[-1]
+
+
 def _ensemble_section(ens: Any, scenario: Any) -> dict:
     e = scenario.ensemble
     seg = ens.segments.reset_index()
@@ -212,14 +231,10 @@ def _ensemble_section(ens: Any, scenario: Any) -> dict:
                               "p_topk": f"P(top {ens.top_k})"})
     return {
         "text": [
-            f"{ens.n_members} members perturb the bathymetry by smooth Gaussian-correlated depth errors of "
-            f"{100 * e.bathy_rms:g} % rms (correlation length {e.bathy_corr_km:g} km) and the source within "
-            f"strike +/- {e.strike_deg:g} deg, dip +/- {e.dip_deg:g} deg, along-strike +/- {e.along_km:g} km, "
-            f"across-strike +/- {e.across_km:g} km, magnitude +/- {e.magnitude:g}, and rotate the ray fan by "
-            f"up to +/- {e.launch_jitter_deg:g} deg. Member 0 is the unperturbed case.",
+            f"{ens.n_members} members {_ensemble_perturbations(e)}. Member 0 is the unperturbed case.",
             "Per segment: median and 5-95 % interval of the lensing factor and indicative amplitude over the "
-            f"members, and the probability of ranking among the top {ens.top_k} (robust >= 0.8, likely >= 0.5, "
-            "possible >= 0.2, else unlikely).",
+            f"members, and the probability of ranking among the top {ens.top_k} ({robustness_scale()}; "
+            "the calibrated likelihood terms of hazard and climate assessments).",
         ],
         "metrics": {"members": ens.n_members, "failed": len(ens.failures),
                     "members per minute": _fmt(ens.timings.get('members_per_minute'), '.1f'),

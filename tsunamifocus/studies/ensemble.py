@@ -64,17 +64,26 @@ from ..focusing.agreement import topk_mask
 from ..io.manifest import jsonable
 from .progress import MemberProgress
 
-__all__ = ['MemberResult', 'MemberFailure', 'EnsembleResult', 'run_ensemble', 'segment_statistics', 'robustness_label', 'ROBUSTNESS_LABELS']
+__all__ = ['MemberResult', 'MemberFailure', 'EnsembleResult', 'run_ensemble', 'segment_statistics', 'robustness_label',
+           'robustness_scale', 'ROBUSTNESS_LABELS']
 
-#: Robustness labels from the probability of being among the top-k hotspots, checked in order:
-#: ``P >= 0.8`` robust, ``0.5 <= P < 0.8`` likely, ``0.2 <= P < 0.5`` possible, else unlikely.
-#: (Thresholds are a convention of this package, no external source.)
+#: Robustness labels from the probability of being among the top-k hotspots, checked in order, in
+#: the calibrated likelihood language of hazard and climate assessments (Mastrandrea et al. 2010,
+#: IPCC AR5 guidance note on the consistent treatment of uncertainties: very likely 90-100 %,
+#: likely 66-100 %, about as likely as not 33-66 %, unlikely 0-33 %), so that a word means to a
+#: reader what it means elsewhere: ``P >= 0.9`` very likely, ``0.66 <= P < 0.9`` likely,
+#: ``0.33 <= P < 0.66`` about as likely as not, else unlikely.
 ROBUSTNESS_LABELS: tuple[tuple[float, str], ...] = (
-    (0.8, "robust"),
-    (0.5, "likely"),
-    (0.2, "possible"),
+    (0.9, "very likely"),
+    (0.66, "likely"),
+    (0.33, "about as likely as not"),
     (0.0, "unlikely"),
 )
+
+
+def robustness_scale() -> str:
+    """The labels and their thresholds in words, e.g. ``"very likely >= 0.9, likely >= 0.66, ..."``."""
+    return ", ".join(f"{lab} >= {thr:g}" for thr, lab in ROBUSTNESS_LABELS if thr > 0) + ", else unlikely"
 
 #: Per-segment member columns summarised by median and 5-95 % interval, with the output names
 #: (median, 5 %, 95 %) following the segments-table contract.
@@ -441,7 +450,7 @@ class EnsembleResult:
             lines.append(
                 f"Top-{self.top_k} hotspots by lensing factor: "
                 + ", ".join(f"{counts.get(lab, 0)} {lab}" for _, lab in ROBUSTNESS_LABELS)
-                + " (robust: P(top-k) >= 0.8, likely >= 0.5, possible >= 0.2)."
+                + f" (P(top-k): {robustness_scale()})."
             )
         return "\n".join(lines)
 
