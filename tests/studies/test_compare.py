@@ -89,6 +89,33 @@ def test_ranking_table_side_by_side_and_topk_counts():
     assert "S0002" in c.summary and "Spearman" in c.summary and "not a tsunami warning" in c.summary
 
 
+def test_segments_a_run_does_not_rank_are_no_hotspots_of_it(tmp_path):
+    # A run ranks only its reliable segments (a ray shadow, a segment of one or two rays is not
+    # ranked): the comparison must not make them its top hotspot, count them in its top k, give
+    # them the envelope's maximum or correlate them (common practice, no source: a comparison
+    # of rankings compares what each run ranks). Run A's S0001 has the largest value of all but
+    # is not reliable.
+    a = _segments([9.0, 4.0, 3.0, 2.0, 1.0])
+    a["reliable"] = [False, True, True, True, True]
+    b = _segments([1.0, 2.0, 3.0, 5.0, 4.0])
+    b["reliable"] = True
+    c = compare_runs([("A", a, _layers(1)), ("B", b, _layers(2))], top_k=2)
+    r = c.ranking
+    np.testing.assert_array_equal(r["lensing_factor_A"], [9.0, 4.0, 3.0, 2.0, 1.0])  # the value is kept
+    assert list(r["ranked_A"]) == [False, True, True, True, True]
+    np.testing.assert_array_equal(r["rank_A"], [5, 1, 2, 3, 4])  # unranked last
+    np.testing.assert_array_equal(r["n_topk"], [0, 1, 1, 1, 1])
+    np.testing.assert_array_equal(r["lensing_factor_max"], [1.0, 4.0, 3.0, 5.0, 4.0])
+    assert c.correlations.loc[0, "n"] == 4
+    # Spearman over the four both rank: A 4,3,2,1 against B 2,3,5,4 (scipy.stats, reference library)
+    assert c.correlations.loc[0, "spearman_rho"] == pytest.approx(stats.spearmanr([4, 3, 2, 1], [2, 3, 5, 4]).statistic)
+    assert "4 segments ranked in both" in c.summary and "S0001 9" not in c.summary
+    # the same when the flags come back from a CSV file as text
+    a_csv = a.assign(reliable=["False", "True", "True", "True", "True"]).astype({"reliable": object})
+    c2 = compare_runs([("A", a_csv, _layers(1)), ("B", b, _layers(2))], top_k=2)
+    np.testing.assert_array_equal(c2.ranking["rank_A"], r["rank_A"])
+
+
 @pytest.mark.filterwarnings("ignore:All-NaN slice:RuntimeWarning")
 def test_envelope_is_elementwise_max_and_min_and_differences():
     runs = [(n, _segments([1, 2, 3, 4, 5]), _layers(s)) for n, s in (("A", 1), ("B", 2), ("C", 3))]

@@ -126,21 +126,23 @@ def comparison_appendix(cmp, runs, folder: pathlib.Path) -> None:
             table[c] = table[c].map(lambda v: f"{v:.2f}" if np.isfinite(v) else "")
     corr = pd.DataFrame(cmp.correlations).copy()
     figs = {}
-    first, second = runs[0], runs[1]
-    a = first[1]["lensing_factor"].astype(float)
-    b = second[1]["lensing_factor"].reindex(a.index).astype(float)
+    # the segments both runs rank, as in the comparison's correlations and top-k counts
+    by_id = cmp.ranking
+    sa, sb = (cmp.column_names.get(n, n) for n in names[:2])
+    a = by_id[f"lensing_factor_{sa}"].where(by_id.get(f"ranked_{sa}", True)).astype(float)
+    b = by_id[f"lensing_factor_{sb}"].where(by_id.get(f"ranked_{sb}", True)).astype(float)
     ok = np.isfinite(a.to_numpy()) & np.isfinite(b.to_numpy())
     if ok.sum() >= 3:
         fig = folder / "comparison_scatter.png"
         plot_ranked_pair(a[ok], b[ok], fig, k=max(1, min(int(cmp.top_k), int(ok.sum()))),
                          xlabel=f"Lensing factor (-), {names[0]}", ylabel=f"Lensing factor (-), {names[1]}",
-                         title=f"Lensing factor per coastline segment: {names[0]} vs {names[1]}",
+                         title=f"Lensing factor per coastline segment ranked in both runs\n{names[0]} vs {names[1]}",
                          names=(names[0], names[1]))
         figs["comparison_scatter"] = str(fig)
     metrics = {}
     for _, r in corr.iterrows():
         metrics[f"{r['run_a']} vs {r['run_b']}"] = (f"Spearman {r['spearman_rho']:.3f}, Kendall {r['kendall_tau']:.3f}"
-                                                   f" over {int(r['n'])} segments")
+                                                   f" over the {int(r['n'])} segments both rank")
     section = {
         "text": [f"Runs compared: {', '.join(names)}. They share the grid, coastline and segmentation (runs that "
                  "do not are refused). The envelope layer holds the maximum lensing factor and the earliest "
@@ -150,6 +152,7 @@ def comparison_appendix(cmp, runs, folder: pathlib.Path) -> None:
         "table_caption": f"Top {cmp.top_k} segments of the envelope ranking, lensing factor and rank per run",
         "figures": figs,
     }
+    first = runs[0]
     ranking = first[1].reset_index() if "segment_id" not in first[1].columns else first[1]
     ctx = {
         "title": "Comparison of tsunami-energy focusing screening runs",

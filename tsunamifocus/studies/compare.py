@@ -11,12 +11,15 @@ scenarios on a common grid and coastline instead.
 
 What is compared
 ----------------
-* ranking table: per segment and run the lensing factor, its rank (1 = highest), the indicative
-  amplitude and first arrival when present; the envelope over runs (maximum lensing factor,
-  earliest arrival) and the number of runs in which the segment is a top-k hotspot;
+* ranking table: per segment and run the lensing factor, whether the run ranks the segment
+  (``ranked_<run>``: its ``reliable`` flag), its rank (1 = highest), the indicative amplitude and
+  first arrival when present; the envelope over runs (maximum lensing factor, earliest arrival)
+  and the number of runs in which the segment is a top-k hotspot. Ranks, top-k counts and the
+  envelope's maximum use only the segments each run ranks (a ray shadow or a segment of too few
+  rays is not a hotspot of that run);
 * rank correlation of the per-segment lensing factor between every pair of runs: Spearman's rho
   and Kendall's tau-b (:func:`scipy.stats.spearmanr`, :func:`scipy.stats.kendalltau`) over the
-  segments finite in both;
+  segments both rank;
 * envelope layers: the cell-wise maximum lensing factor (and focusing factor, energy) and the
   earliest travel time over runs, NaN-aware (a cell is NaN only where every run is NaN);
 * difference maps of each run minus the first run.
@@ -252,8 +255,7 @@ def compare_runs(runs: Sequence[RunTuple], *, top_k: int = 10) -> Comparison:
         segs.append(_check_segmentation(ref_name, ref_seg, str(name), _segments_indexed(seg, str(name))))
     layers, common = _common_layers(runs, ref_name)
     ranking, colmap, k = _ranking_table(names, safe, segs, ref_seg, top_k)
-    lens = np.vstack([s["lensing_factor"].to_numpy(dtype=float) for s in segs])
-    corr = _rank_correlation_table(names, lens)
+    corr = _rank_correlation_table(names, np.vstack([_ranked_lensing(s) for s in segs]))
     envelope = _envelopes(names, layers, common)
     differences = _differences(names, layers, common)
     summary = _summary(names, ranking, corr, k, colmap)
@@ -296,17 +298,36 @@ def _common_layers(runs: list, ref_name: str) -> tuple[list[dict[str, xr.DataArr
     return layers, common
 
 
+def _ranked_mask(seg: pd.DataFrame) -> np.ndarray:
+    """The segments a run ranks: its ``reliable`` ones (all with a finite value when the column is absent)."""
+    if "reliable" not in seg.columns:
+        return np.ones(len(seg), dtype=bool)
+    col = seg["reliable"]
+    if col.dtype == object:  # read back from a CSV file: "True" / "False" / ""
+        return col.astype(str).str.strip().str.lower().isin(("true", "1", "1.0")).to_numpy()
+    return col.fillna(False).astype(bool).to_numpy()
+
+
+def _ranked_lensing(seg: pd.DataFrame) -> np.ndarray:
+    """A run's lensing factors where it ranks the segment, NaN elsewhere (shadows, too few rays)."""
+    v = seg["lensing_factor"].to_numpy(dtype=float)
+    return np.where(_ranked_mask(seg), v, np.nan)
+
+
 def _ranking_table(names: list[str], safe: list[str], segs: list[pd.DataFrame], ref_seg: pd.DataFrame,
                    top_k: int) -> tuple[pd.DataFrame, dict[str, str], int]:
     """Side-by-side ranking: per-run values and ranks, the envelope maximum, earliest arrival, top-k counts."""
     static = [c for c in _STATIC if c in ref_seg.columns]
     ranking = ref_seg[static].copy()
     colmap: dict[str, str] = {}
-    lens = np.vstack([s["lensing_factor"].to_numpy(dtype=float) for s in segs])
-    for n, sn, s in zip(names, safe, segs):
+    # ranks, top-k counts and the envelope use what each run ranks (its reliable segments): a
+    # shadow or a segment of one or two rays is not a hotspot of that run
+    lens = np.vstack([_ranked_lensing(s) for s in segs])
+    for n, sn, s, ls in zip(names, safe, segs, lens):
         colmap[n] = sn
         ranking[f"lensing_factor_{sn}"] = s["lensing_factor"].to_numpy(dtype=float)
-        ranking[f"rank_{sn}"] = _rank_desc(s["lensing_factor"]).to_numpy()
+        ranking[f"ranked_{sn}"] = np.isfinite(ls)
+        ranking[f"rank_{sn}"] = _rank_desc(pd.Series(ls, index=s.index)).to_numpy()
         for col in _PER_RUN[1:]:
             if col in s.columns:
                 ranking[f"{col}_{sn}"] = s[col].to_numpy(dtype=float)
@@ -322,8 +343,8 @@ def _ranking_table(names: list[str], safe: list[str], segs: list[pd.DataFrame], 
         ranking["first_arrival_min_s"] = np.where(fin, np.min(np.where(np.isfinite(fa), fa, np.inf), axis=0), np.nan)
     k = min(int(top_k), len(ref_seg))
     n_top = np.zeros(len(ref_seg), dtype=np.int64)
-    for s in segs:
-        n_top += topk_mask(s["lensing_factor"].to_numpy(dtype=float), k)
+    for ls in lens:
+        n_top += topk_mask(ls, k)
     ranking["n_topk"] = n_top
     ranking["rank_envelope"] = _rank_desc(ranking["lensing_factor_max"]).to_numpy()
     return ranking, colmap, k
@@ -390,8 +411,8 @@ def _summary(names: list[str], ranking: pd.DataFrame, corr: pd.DataFrame, k: int
     ]
     for row in corr.itertuples():
         lines.append(
-            f"Rank correlation of the lensing factor, '{row.run_a}' vs '{row.run_b}' ({row.n} segments): "
-            f"Spearman rho = {row.spearman_rho:.3f}, Kendall tau = {row.kendall_tau:.3f}."
+            f"Rank correlation of the lensing factor, '{row.run_a}' vs '{row.run_b}' "
+            f"({row.n} segments ranked in both): Spearman rho = {row.spearman_rho:.3f}, Kendall tau = {row.kendall_tau:.3f}."
         )
     every = list(ranking.index[ranking["n_topk"] == len(names)])
     lines.append(
