@@ -406,8 +406,9 @@ def test_intervals_never_print_an_empty_bound(figs):
     cols, rows, _ = report._ranking_table(seg, 3, [])
     j = cols.index("Lensing factor (5–95 %)")
     assert rows[0][j] == "21.3 (0 to ∞)"
-    assert rows[1][j] == "1"
-    assert rows[2][j] == "1 (0.5–2)"
+    # three significant digits, trailing zeros kept, as in the ranking chart (1.00, not 1)
+    assert rows[1][j] == "1.00"
+    assert rows[2][j] == "1.00 (0.500–2.00)"
     assert not any("––" in c or "(–" in c or "–)" in c for r in rows for c in r)
 
 

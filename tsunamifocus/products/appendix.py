@@ -383,7 +383,7 @@ _WORDS = {
 
 
 def _fmt3(v: Any) -> str:
-    """Three significant digits (interval bounds of the ranked table)."""
+    """Three significant digits, trailing zeros kept (the ranked table: 5.40 (3.43–8.05), as the chart)."""
     try:
         x = float(v)
     except (TypeError, ValueError):
@@ -392,7 +392,9 @@ def _fmt3(v: Any) -> str:
         return "–"
     if x != 0 and (abs(x) >= 1e4 or abs(x) < 1e-2):
         return _fmt(x)
-    return f"{x:.3g}".replace("-", "−")
+    if x == 0:
+        return "0"
+    return (f"{x:.0f}" if abs(x) >= 100 else f"{x:#.3g}").replace("-", "−")
 
 
 def _pretty_key(k: Any) -> str:

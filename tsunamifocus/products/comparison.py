@@ -120,10 +120,19 @@ def comparison_appendix(cmp, runs, folder: pathlib.Path) -> None:
     names = list(cmp.names)
     rk = cmp.ranking.reset_index()
     cols = [c for c in rk.columns if c.startswith(("lensing_factor_", "rank_")) or c in ("segment_id", "n_topk")]
-    table = rk.sort_values("rank_envelope" if "rank_envelope" in rk else cols[1]).head(cmp.top_k)[cols].copy()
+    top = rk.sort_values("rank_envelope" if "rank_envelope" in rk else cols[1]).head(cmp.top_k)
+    table = top[cols].copy()
     for c in table.columns:
         if table[c].dtype.kind == "f":
             table[c] = table[c].map(lambda v: f"{v:.2f}" if np.isfinite(v) else "")
+    for n in names:  # a value the run does not rank (ray shadow, too few rays) is not shown as a rank
+        sn = cmp.column_names.get(n, n)
+        if f"ranked_{sn}" in top:
+            off = ~top[f"ranked_{sn}"].to_numpy(dtype=bool)
+            table.loc[off, f"lensing_factor_{sn}"] = [f"({v}, not ranked)" if v else "" for v in
+                                                      table.loc[off, f"lensing_factor_{sn}"]]
+            table[f"rank_{sn}"] = table[f"rank_{sn}"].astype(object)
+            table.loc[off, f"rank_{sn}"] = "-"
     corr = pd.DataFrame(cmp.correlations).copy()
     figs = {}
     # the segments both runs rank, as in the comparison's correlations and top-k counts
@@ -136,7 +145,8 @@ def comparison_appendix(cmp, runs, folder: pathlib.Path) -> None:
         fig = folder / "comparison_scatter.png"
         plot_ranked_pair(a[ok], b[ok], fig, k=max(1, min(int(cmp.top_k), int(ok.sum()))),
                          xlabel=f"Lensing factor (-), {names[0]}", ylabel=f"Lensing factor (-), {names[1]}",
-                         title=f"Lensing factor per coastline segment ranked in both runs\n{names[0]} vs {names[1]}",
+                         title=("Lensing factor per coastline segment ranked in both runs\n"
+                                f"{names[0]} vs {names[1]}"),
                          names=(names[0], names[1]))
         figs["comparison_scatter"] = str(fig)
     metrics = {}

@@ -412,7 +412,8 @@ def _summary(names: list[str], ranking: pd.DataFrame, corr: pd.DataFrame, k: int
     for row in corr.itertuples():
         lines.append(
             f"Rank correlation of the lensing factor, '{row.run_a}' vs '{row.run_b}' "
-            f"({row.n} segments ranked in both): Spearman rho = {row.spearman_rho:.3f}, Kendall tau = {row.kendall_tau:.3f}."
+            f"({row.n} segments ranked in both): Spearman rho = {row.spearman_rho:.3f}, "
+            f"Kendall tau = {row.kendall_tau:.3f}."
         )
     every = list(ranking.index[ranking["n_topk"] == len(names)])
     lines.append(
