@@ -348,6 +348,11 @@ def test_points_csv(tmp_path):
     assert list(df.columns)[:7] == ["name", "lon", "lat", "first_arrival_min", "lensing_factor", "amp_1m_m",
                                     "nearest_segment"]
     assert df["distance_km"][0] == 1.2 and df["first_arrival_min"][0] == 42.5
+    # CSV longitudes are written in -180..180 (docs/outputs.md): a point given in 0..360 numbers
+    # reads as the same number a user would type, without float residue (235.78 -> -124.22)
+    p2 = write_points_csv([{**pts[0], "lon": 235.78}, {**pts[0], "lon": -124.22}], tmp_path / "points2.csv")
+    lines = [ln for ln in p2.read_text(encoding="utf-8").splitlines() if ln.startswith("Harbour A")]
+    assert [ln.split(",")[1] for ln in lines] == ["-124.22", "-124.22"]
     with pytest.raises(InputError, match="missing column"):
         write_points_csv([{"name": "x", "lon": 1, "lat": 2}], tmp_path / "bad.csv")
     assert not (tmp_path / "bad.csv").exists()

@@ -839,8 +839,14 @@ def _is_lon_column(name: Any) -> bool:
 
 
 def _lon180(v: np.ndarray) -> np.ndarray:
-    """Longitudes in [-180, 180) (NaN stays NaN)."""
-    return np.mod(np.asarray(v, dtype=float) + 180.0, 360.0) - 180.0
+    """Longitudes in [-180, 180) (NaN stays NaN).
+
+    Values already in range are kept as they are; shifted ones are rounded to 1e-9 degree (0.1
+    mm), so 235.78 is written -124.22, not -124.22000000000003.
+    """
+    v = np.asarray(v, dtype=float)
+    w = np.mod(v + 180.0, 360.0) - 180.0
+    return np.where(w == v, v, np.round(w, 9))
 
 
 #: The ``layer_styles`` table as QGIS creates it in a GeoPackage (its default-style store).
