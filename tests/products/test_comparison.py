@@ -33,4 +33,8 @@ def test_appendix_table_does_not_show_unranked_values_as_ranks(tmp_path):
     comparison_appendix(cmp, runs, tmp_path)
     html = (tmp_path / "comparison_appendix.html").read_text(encoding="utf-8")
     assert "(11.60, not ranked)" in html
+    # the sections of a single run's appendix point to the runs' own instead of reading "none supplied"
+    assert "No validation summary was supplied" not in html and "No numerical health checks" not in html
+    assert "validation summary (its wave check, when run) is in its own appendix" in html
+    assert "numerical health checks are in its own appendix" in html
     assert (tmp_path / "comparison_appendix.pdf").read_bytes().startswith(b"%PDF")

@@ -281,7 +281,7 @@ CONTEXT_KEYS: dict[str, str] = {
     "validation": "table (DataFrame, list of dicts or dict) summarising the validation tests",
     "validation_notes": "str or list of str under the validation table",
     "ranking_note": "str, a note under the ranking table (e.g. that no wave check was run)",
-    "health": "dict of numerical health checks (values, or dicts with value/limit/ok)",
+    "health": "dict of numerical health checks (values, or dicts with value/limit/ok), or a str saying where they are",
     "figures": "dict key -> path or {path, caption}; keys uplift, ray_field, lensing_map, ranking, ...",
     "points": "table of points of interest (DataFrame or list of dicts)",
     "run_info": "dict of run facts (timings, software versions, seeds, outputs)",
@@ -898,7 +898,7 @@ def _validation_blocks(context: Mapping[str, Any]) -> list[_Block]:
     if context.get("validation") is not None:
         cols, rows = _as_table(context["validation"], "validation")
         blocks.append(_b("table", columns=[_pretty_key(c) for c in cols], rows=rows, caption=""))
-    else:
+    elif not context.get("validation_notes"):
         blocks.append(_b("note", text="No validation summary was supplied for this run."))
     for p in _paragraphs(context.get("validation_notes"), "validation_notes"):
         blocks.append(_b("p", text=p))
@@ -909,6 +909,8 @@ def _health_blocks(health: Any) -> list[_Block]:
     """Section "Numerical health checks"."""
     if health is None:
         return [_b("note", text="No numerical health checks were supplied for this run.")]
+    if isinstance(health, str):  # a pointer instead of a table (e.g. a comparison: each run's own)
+        return [_b("p", text=health)]
     cols, rows = _health_table(health)
     return [_b("table", columns=cols, rows=rows, caption="", kv=len(cols) == 2)]
 

@@ -171,6 +171,9 @@ def comparison_appendix(cmp, runs, folder: pathlib.Path) -> None:
                      f"table below is that of the first run, {names[0]}."},
         "ranking": ranking.drop(columns=[c for c in ("wkt",) if c in ranking.columns]),
         "comparison": section,
+        "validation_notes": ["Each run's validation summary (its wave check, when run) is in its own appendix "
+                             "(appendix.pdf in the run folder); a comparison adds no validation of its own."],
+        "health": "Each run's numerical health checks are in its own appendix (appendix.pdf in the run folder).",
     }
     build_appendix(ctx, folder / "comparison_appendix.html", folder / "comparison_appendix.pdf")
 
