@@ -127,8 +127,8 @@ def comparison_appendix(cmp, runs, folder: pathlib.Path) -> None:
             table[c] = table[c].map(lambda v: f"{v:.2f}" if np.isfinite(v) else "")
     for n in names:  # a value the run does not rank (ray shadow, too few rays) is not shown as a rank
         sn = cmp.column_names.get(n, n)
-        if f"ranked_{sn}" in top:
-            off = ~top[f"ranked_{sn}"].to_numpy(dtype=bool)
+        off = ~top[f"ranked_{sn}"].to_numpy(dtype=bool)
+        if off.any():
             table.loc[off, f"lensing_factor_{sn}"] = [f"({v}, not ranked)" if v else "" for v in
                                                       table.loc[off, f"lensing_factor_{sn}"]]
             table[f"rank_{sn}"] = table[f"rank_{sn}"].astype(object)
@@ -138,8 +138,8 @@ def comparison_appendix(cmp, runs, folder: pathlib.Path) -> None:
     # the segments both runs rank, as in the comparison's correlations and top-k counts
     by_id = cmp.ranking
     sa, sb = (cmp.column_names.get(n, n) for n in names[:2])
-    a = by_id[f"lensing_factor_{sa}"].where(by_id.get(f"ranked_{sa}", True)).astype(float)
-    b = by_id[f"lensing_factor_{sb}"].where(by_id.get(f"ranked_{sb}", True)).astype(float)
+    a = by_id[f"lensing_factor_{sa}"].where(by_id[f"ranked_{sa}"]).astype(float)
+    b = by_id[f"lensing_factor_{sb}"].where(by_id[f"ranked_{sb}"]).astype(float)
     ok = np.isfinite(a.to_numpy()) & np.isfinite(b.to_numpy())
     if ok.sum() >= 3:
         fig = folder / "comparison_scatter.png"
