@@ -593,6 +593,40 @@ def test_global_periodic_grid_with_seam_crossing_paths(tmp_path):
     assert len(pieces) == 2 and all(np.ptp(p[:, 0]) <= 180 for p in pieces)
 
 
+def test_scatter_labels_in_a_dense_cluster_do_not_overlap():
+    # Ten labelled points within a few points of each other (the real-grid check's upper right):
+    # the labels move farther out, with leader lines, rather than pile up (common practice, no
+    # source: a label must be readable and point to its marker).
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+
+    rng = np.random.default_rng(5)
+    a = np.concatenate([np.exp(rng.uniform(-3, 0, 60)), 0.9 * np.exp(rng.normal(0, 0.06, 10))])
+    b = np.concatenate([np.exp(rng.uniform(-3, 0, 60)), 0.3 * np.exp(rng.normal(0, 0.06, 10))])
+    fig, ax = plt.subplots(figsize=(6.4, 6.0))
+    ax.scatter(a, b, s=18)
+    ax.set_xscale("log")
+    ax.set_yscale("log")
+    ax.set_xlim(0.03, 2.0)
+    ax.set_ylim(0.03, 2.0)
+    top = np.arange(60, 70)
+    names = [f"S{i:04d}" for i in range(a.size)]
+    figures._scatter_labels(fig, ax, a, b, names, top, ok=np.ones(a.size, bool))
+    fig.draw_without_rendering()
+    texts = [t for t in ax.texts if t.get_text() in names]
+    assert len(texts) == 10
+    from matplotlib.text import Text
+
+    boxes = [Text.get_window_extent(t) for t in texts]  # the text itself, without its leader line
+    overlaps = sum(bi.overlaps(bj) for i, bi in enumerate(boxes) for bj in boxes[i + 1:])
+    assert overlaps == 0, f"{overlaps} pairs of labels overlap"
+    # labels placed away from their point carry a leader line
+    assert any(getattr(t, "arrow_patch", None) is not None for t in texts)
+    plt.close(fig)
+
+
 def test_rank_labels_do_not_overlap():
     # ten segment midpoints 5 points apart along a straight coast: the greedy placement must
     # keep every pair of label centres at least one label diameter (15 pt) apart

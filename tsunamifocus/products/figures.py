@@ -1562,7 +1562,9 @@ def _scatter_labels(fig: Figure, ax, xa: np.ndarray, ya: np.ndarray, labels: Seq
 
     Each label tries 12 offsets around its point and takes the first whose box stays inside the
     axes and overlaps no earlier label, no plotted point (``ok``) and none of the artists in
-    ``avoid`` (the text box, the legend); when none is free, the offset with the least overlap.
+    ``avoid`` (the text box, the legend); then, in a dense cluster, 16 offsets farther out (18 and
+    32 points in 8 directions) joined to the point by a thin leader line; when none is free, the
+    offset with the least overlap.
     """
     fig.draw_without_rendering()
     to_pt = 72.0 / fig.dpi
@@ -1580,6 +1582,10 @@ def _scatter_labels(fig: Figure, ax, xa: np.ndarray, ya: np.ndarray, labels: Seq
     labelled: list[tuple[float, float, float, float]] = []
     cands = [(4, 3), (4, -10), (-4, 3), (-4, -10), (5, -3.5), (-5, -3.5), (0, 6), (0, -13), (4, 11), (-4, 11),
              (4, -18), (-4, -18)]
+    near = len(cands)
+    for r in (18.0, 32.0):  # farther out, with a leader line: for labels in a dense cluster
+        cands += [(round(r * math.cos(a), 1), round(r * math.sin(a) - 0.5 * 1.15 * 7.0, 1))
+                  for a in np.radians([30, -30, 150, -150, 90, -90, 0, 180])]
     for (px, py), i in zip(pts, idx, strict=True):
         text = str(labels[i])
         w, h = 0.62 * fs * len(text), 1.15 * fs
@@ -1588,14 +1594,14 @@ def _scatter_labels(fig: Figure, ax, xa: np.ndarray, ya: np.ndarray, labels: Seq
             x0 = px + dx if dx > 0 else (px + dx - w if dx < 0 else px - 0.5 * w)
             return (x0, py + dy, x0 + w, py + dy + h)
 
-        best, cost_best = cands[0], math.inf
-        for dx, dy in cands:
+        best, cost_best, far = cands[0], math.inf, False
+        for j, (dx, dy) in enumerate(cands):
             b = box(dx, dy)
             outside = (b[0] < fx0) or (b[2] > fx1) or (b[1] < fy0) or (b[3] > fy1)
             cost = sum(_overlap(b, o) for o in labelled) * 4.0 + sum(_overlap(b, o) for o in obstacles) \
                 + (1e6 if outside else 0.0)
             if cost < cost_best:
-                best, cost_best = (dx, dy), cost
+                best, cost_best, far = (dx, dy), cost, j >= near
             if cost == 0.0:
                 break
         dx, dy = best
@@ -1609,6 +1615,8 @@ def _scatter_labels(fig: Figure, ax, xa: np.ndarray, ya: np.ndarray, labels: Seq
             ha="left" if dx > 0 else ("right" if dx < 0 else "center"),
             va="bottom",
             zorder=7,
+            arrowprops={"arrowstyle": "-", "lw": 0.5, "color": "0.35", "shrinkA": 0.0, "shrinkB": 2.5}
+            if far else None,
         )
 
 
