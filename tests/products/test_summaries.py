@@ -99,3 +99,22 @@ def test_segments_the_wave_barely_reached_are_counted_in_the_summary():
     lines = "\n".join(_check_lines(ag))
     assert "17 of the segments got almost no wave in the check (below 1 % of the median" in lines
     assert "ray_vs_wave_profile.png" in lines
+
+
+def test_a_checked_but_weak_ranking_is_said_under_the_appendix_ranking():
+    # A planning-study reader sees the appendix, not the console: when the check found the
+    # lensing ranking weak, the note under the ranking table says so, with what held and whether
+    # the check itself was converged (common practice, no source). Figures of the real-grid
+    # benchmark case at 0.1 degree: amplitude 0.90 with 3/10, lensing 0.53 with 2/10, 3.4 cells.
+    from tsunamifocus.products.summaries import checked_ranking_note
+
+    real = _ag(0.90, 0.53, top_amp=3, top_lens=2)
+    real["resolution"] = {"cells_per_wavelength": 3.4, "period_s": 1567.5}
+    note = checked_ranking_note(real)
+    assert "weak: fewer than half of its top 10 are among the wave's" in note
+    assert "top-10 overlap 2/10" in note and "amplitude ranking is weak too" in note and "--refine 2" in note
+    amp = checked_ranking_note(_ag(0.93, 0.30, top_amp=8, top_lens=3))
+    assert "the wave does not confirm this ranking" in amp and "rank this coast by indicative amplitude" in amp
+    assert "refine" not in amp
+    assert checked_ranking_note(_ag(0.93, 0.71, top_amp=8, top_lens=7)) is None  # the demo: it held
+    assert checked_ranking_note(None) is None

@@ -15,7 +15,7 @@ from ..io.gis import _plain_dtypes, longitude_note
 from ..studies.inspect import summarize_grid
 from ..studies.ensemble import robustness_scale
 from ..studies.run import SourceAnalysis
-from .summaries import UNCHECKED_RANKING, step_text
+from .summaries import UNCHECKED_RANKING, checked_ranking_note, step_text
 
 __all__ = []
 
@@ -133,6 +133,8 @@ def _report_context(a: SourceAnalysis, scenario: Any, depth: xr.DataArray, point
     }
     if a.check is None:
         ctx["ranking_note"] = f"This ranking was {UNCHECKED_RANKING[0]}; {UNCHECKED_RANKING[1]}."
+    elif (note := checked_ranking_note(a.check.agreement)) is not None:
+        ctx["ranking_note"] = note
     if a.travel_times is not None:
         ctx["travel_times"] = _travel_time_section(a, scenario, depth)
     if ensemble is not None:

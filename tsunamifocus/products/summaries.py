@@ -167,6 +167,34 @@ def _check_lines(ag: dict) -> list[str]:
     return out
 
 
+def checked_ranking_note(ag: dict | None) -> str | None:
+    """A note for under the appendix's ranking table when the wave check found the ranking weak.
+
+    The lensing ranking's weakness in words, with the amplitude ranking's figures when the check
+    held that one (:func:`_amplitude_first`) and the check's own resolution when it was not
+    converged; None when the check held the lensing ranking (or measured nothing).
+    """
+    lens = (ag or {}).get("lensing")
+    why = _weakness(lens)
+    if not why:
+        return None
+    k = lens.get("k")
+    text = (f"The linear long-wave check found this lensing ranking weak: {why} (Spearman "
+            f"{lens['spearman']:.2f}, top-{k} overlap {lens.get('topk_common')}/{k}; see the wave check section).")
+    if _amplitude_first(ag):
+        text += (f" It held the amplitude ranking (Spearman {ag['spearman']:.2f}, top-{ag.get('k')} overlap "
+                 f"{ag.get('topk_common')}/{ag.get('k')}): rank this coast by indicative amplitude.")
+    elif _is_weak(ag):
+        text += f" The amplitude ranking is weak too: {_weakness(ag)}."
+    res = ag.get("resolution") or {}
+    cpw = res.get("cells_per_wavelength", np.nan)
+    if np.isfinite(cpw) and cpw < MIN_CELLS_PER_WAVELENGTH:
+        text += (f" The check had {cpw:.1f} cells per wavelength at the stop isobath (fewer than "
+                 f"{MIN_CELLS_PER_WAVELENGTH:g}): refine it (tsunamifocus check RUN --refine 2) before reading "
+                 "these figures.")
+    return text
+
+
 def _amplitude_first(ag: dict | None) -> bool:
     """The check held the amplitude ranking and found the lensing ranking weak."""
     if not ag or not ag.get("lensing"):
