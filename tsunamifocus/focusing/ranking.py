@@ -10,7 +10,21 @@ import pandas as pd
 from ..cautions import caution_summary
 from ..errors import CoastError, InputError, ResolutionWarning
 
-__all__ = ['rank_segments']
+__all__ = ['rank_segments', 'ranked_mask']
+
+
+def ranked_mask(seg: pd.DataFrame) -> np.ndarray:
+    """bool per row: the segments a table ranks (its ``reliable`` flag; every row when the column is absent).
+
+    Missing flags count as not ranked; flags read back from a CSV file as text ("True", "False",
+    "") are understood.
+    """
+    if "reliable" not in seg.columns:
+        return np.ones(len(seg), dtype=bool)
+    col = seg["reliable"]
+    if col.dtype == object:
+        return col.astype(str).str.strip().str.lower().isin(("true", "1", "1.0")).to_numpy()
+    return col.fillna(False).to_numpy(dtype=bool)
 
 
 def _rank_desc(values: np.ndarray, eligible: np.ndarray) -> pd.arrays.IntegerArray:

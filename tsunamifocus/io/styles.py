@@ -26,7 +26,7 @@ from ..cautions import caution_text
 
 __all__ = [
     "ColourScale", "lensing_scale", "energy_scale", "travel_time_scale", "scale_for_layer",
-    "symmetric_log_range", "log_ticks", "tick_label", "nice_time_step",
+    "symmetric_log_range", "log_ticks", "tick_label", "three_digits", "nice_time_step",
     "raster_qml", "segments_qml", "segments_sld", "NO_VALUE_COLOUR", "SEGMENT_WIDTH_PT", "SEGMENT_CASING_PT",
 ]
 
@@ -73,6 +73,15 @@ def tick_label(v: float) -> str:
     if v >= 1:
         return f"{v:g}"
     return f"{v:.2f}".rstrip("0").rstrip(".")
+
+
+def three_digits(v: float) -> str:
+    """Three significant digits, trailing zeros kept, whole numbers from 100: ``5.40``, ``13.0``, ``123``.
+
+    One rule for the values of a ranking (the ranking chart, the appendix's ranked table), so a
+    column of values reads alike (5.40 beside 5.47, not 5.4).
+    """
+    return f"{v:.0f}" if abs(v) >= 100 else f"{v:#.3g}"
 
 
 def nice_time_step(tmax_min: float) -> float:

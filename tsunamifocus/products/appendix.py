@@ -36,6 +36,7 @@ import pandas as pd
 from ..cautions import CAUTION_SHORT, caution_text
 from ..constants import __version__
 from ..errors import DataFileError, InputError, TsunamiFocusWarning
+from ..io.styles import three_digits
 
 __all__ = ['build_appendix', 'CONTEXT_KEYS', 'SECTION_KEYS', 'DEFAULT_METHOD', 'DEFAULT_REFERENCES', 'DEFAULT_ASSUMPTIONS', 'FIGURE_CAPTIONS', 'document_blocks']
 
@@ -394,7 +395,7 @@ def _fmt3(v: Any) -> str:
         return _fmt(x)
     if x == 0:
         return "0"
-    return (f"{x:.0f}" if abs(x) >= 100 else f"{x:#.3g}").replace("-", "−")
+    return three_digits(x).replace("-", "−")
 
 
 def _pretty_key(k: Any) -> str:

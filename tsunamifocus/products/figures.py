@@ -54,6 +54,7 @@ from ..io.styles import NO_VALUE_COLOUR, SEGMENT_CASING_PT, SEGMENT_WIDTH_PT, en
 from ..io.styles import log_ticks as _log_ticks
 from ..io.styles import nice_time_step as _nice_time_step
 from ..io.styles import symmetric_log_range as _symmetric_log_range  # noqa: F401 (old name, used by tests)
+from ..io.styles import three_digits
 from ..io.styles import tick_label as _tick_label
 from ..propagation.wave import WAVE_LIMITS
 from ..studies.check import FAINT_WAVE_FRACTION
@@ -1354,9 +1355,7 @@ def _ranking_values(ax, vals: np.ndarray, shown: np.ndarray, hi: np.ndarray, ypo
     """The value of each bar: beside its end, inside the bar when it is off scale."""
     ends = np.where(np.isfinite(hi) & ~clipped, np.maximum(shown, np.minimum(hi, clip_at)), shown)
     for yv, v, e_, pr, cl, wc in zip(ypos, vals, ends, probs, clipped, wclip, strict=True):
-        # three significant digits, trailing zeros kept (5.40 beside 5.47)
-        txt = (f"{v:.0f}" if abs(v) >= 100 else f"{v:#.3g}") + (
-            f"   P(top {top_k}) = {pr:.2f}" if np.isfinite(pr) else "")
+        txt = three_digits(v) + (f"   P(top {top_k}) = {pr:.2f}" if np.isfinite(pr) else "")
         if cl:
             ax.text(clip_at - 0.03 * span, yv, txt + " (off scale)", va="center", ha="right", fontsize=8,
                     color="0.1", zorder=5, bbox={"facecolor": "white", "edgecolor": "none", "alpha": 0.85, "pad": 1.0})

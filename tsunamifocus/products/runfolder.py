@@ -17,6 +17,7 @@ from pyproj import Transformer
 
 from ..coast.segments import STATIC_SEGMENT_COLUMNS as _STATIC_COLUMNS
 from ..constants import __version__
+from ..focusing.ranking import ranked_mask
 from ..grid import GridInfo
 from ..io.gis import _plain_dtypes, longitude_note, write_cog, write_netcdf, write_points_csv, write_segments
 from ..io.manifest import jsonable, write_manifest
@@ -157,7 +158,7 @@ def _points_xy(points: Sequence[Any], depth: xr.DataArray) -> list[tuple[str, fl
 def _ranking_title(seg: pd.DataFrame, top_k: int) -> str:
     """First title line of the ranking chart, with the counts actually drawn (ranked, then unreliable)."""
     v = pd.to_numeric(seg["lensing_factor"], errors="coerce").to_numpy(float)
-    rel = seg["reliable"].fillna(False).to_numpy(bool) if "reliable" in seg else np.ones(len(seg), bool)
+    rel = ranked_mask(seg)
     n_rel = min(top_k, int((rel & np.isfinite(v)).sum()))
     n_unrel = min(top_k - n_rel, int((~rel & np.isfinite(v)).sum()))
     if n_rel == 0:

@@ -9,6 +9,7 @@ import numpy as np
 import pandas as pd
 
 from ..cautions import caution_summary
+from ..focusing.ranking import ranked_mask
 from ..ocean.wavelength import WAVELENGTH_FRACTION
 from ..studies.run import RunResult
 from ..studies.check import FAINT_WAVE_FRACTION, MIN_CELLS_PER_WAVELENGTH
@@ -137,12 +138,21 @@ def _is_weak(a: dict | None) -> bool:
     return bool(_weakness(a))
 
 
+def _agreement_text(a: dict | None) -> str:
+    """``"Spearman 0.90, top-10 overlap 3/10"`` (or "not measurable") of one ranking against the wave."""
+    return (f"Spearman {a['spearman']:.2f}, top-{a['k']} overlap {a['topk_common']}/{a['k']}"
+            if a and np.isfinite(a.get("spearman", np.nan)) else "not measurable")
+
+
+def _unconverged_cells(ag: dict) -> float | None:
+    """The check's cells per wavelength at the stop isobath when below the converged minimum, else None."""
+    cpw = (ag.get("resolution") or {}).get("cells_per_wavelength", np.nan)
+    return float(cpw) if np.isfinite(cpw) and cpw < MIN_CELLS_PER_WAVELENGTH else None
+
+
 def _check_lines(ag: dict) -> list[str]:
     """How far the rankings held against the linear long-wave check."""
-
-    def held(a: dict) -> str:
-        return (f"Spearman {a['spearman']:.2f}, top-{a['k']} overlap {a['topk_common']}/{a['k']}"
-                if a and np.isfinite(a.get("spearman", np.nan)) else "not measurable")
+    held = _agreement_text
 
     def weak(a: dict) -> str:
         why = _weakness(a)
@@ -158,10 +168,9 @@ def _check_lines(ag: dict) -> list[str]:
         out.append(f"    {ag['n_faint_wave']} of the segments got almost no wave in the check (below "
                    f"{100 * FAINT_WAVE_FRACTION:g} % of the median: a narrow passage or sheltered water the wave barely "
                    "reaches on this grid); see them along the coast in figures/ray_vs_wave_profile.png")
-    res = ag.get("resolution") or {}
-    cpw = res.get("cells_per_wavelength", np.nan)
-    if np.isfinite(cpw) and cpw < MIN_CELLS_PER_WAVELENGTH:
-        out.append(f"    the check had {cpw:.1f} cells per {res['period_s']:.0f} s wavelength at the stop isobath "
+    cpw = _unconverged_cells(ag)
+    if cpw is not None:
+        out.append(f"    the check had {cpw:.1f} cells per {ag['resolution']['period_s']:.0f} s wavelength at the stop isobath "
                    f"(fewer than {MIN_CELLS_PER_WAVELENGTH:g}): its coastal maxima are not converged; re-run it on a "
                    f"finer grid (tsunamifocus check RUN --refine 2) before reading these figures (docs/wave_check.md)")
     return out
@@ -178,17 +187,14 @@ def checked_ranking_note(ag: dict | None) -> str | None:
     why = _weakness(lens)
     if not why:
         return None
-    k = lens.get("k")
-    text = (f"The linear long-wave check found this lensing ranking weak: {why} (Spearman "
-            f"{lens['spearman']:.2f}, top-{k} overlap {lens.get('topk_common')}/{k}; see the wave check section).")
+    text = (f"The linear long-wave check found this lensing ranking weak: {why} ({_agreement_text(lens)}; "
+            "see the wave check section).")
     if _amplitude_first(ag):
-        text += (f" It held the amplitude ranking (Spearman {ag['spearman']:.2f}, top-{ag.get('k')} overlap "
-                 f"{ag.get('topk_common')}/{ag.get('k')}): rank this coast by indicative amplitude.")
+        text += f" It held the amplitude ranking ({_agreement_text(ag)}): rank this coast by indicative amplitude."
     elif _is_weak(ag):
         text += f" The amplitude ranking is weak too: {_weakness(ag)}."
-    res = ag.get("resolution") or {}
-    cpw = res.get("cells_per_wavelength", np.nan)
-    if np.isfinite(cpw) and cpw < MIN_CELLS_PER_WAVELENGTH:
+    cpw = _unconverged_cells(ag)
+    if cpw is not None:
         text += (f" The check had {cpw:.1f} cells per wavelength at the stop isobath (fewer than "
                  f"{MIN_CELLS_PER_WAVELENGTH:g}): refine it (tsunamifocus check RUN --refine 2) before reading "
                  "these figures.")
@@ -290,13 +296,12 @@ def format_run_summary(result: RunResult) -> str:
                          + (f"; {n_none} of {len(fa)} segments not joined to the source by water deeper than the "
                             "stop isobath on this grid: no first arrival" if n_none else ""))
         rk = f.ranking
-        rel = rk[rk["reliable"].fillna(False).astype(bool)] if "reliable" in rk else rk
+        rel = rk[ranked_mask(rk)]
         if len(rel) == 0:
             lines.append(_no_reliable_line(f, int(result.scenario.coast.min_rays)))
         else:
             shown = min(5, len(rel))
-            n_rel = int(f.segments["reliable"].fillna(False).astype(bool).sum()) if "reliable" in f.segments \
-                else len(f.segments)
+            n_rel = int(ranked_mask(f.segments).sum())
             lines.append(f"  top {shown} hotspots by lensing factor (5-95 % interval), of {n_rel} reliable "
                          f"among {len(f.segments)} segments:")
         edge_km = 2.0 * float(np.nanmedian(seg_sigma_km(f.segments))) if len(f.segments) else 0.0

@@ -19,6 +19,7 @@ from ..coast.waves import _coastal_cells, segment_max_amplitude
 from ..constants import GRAVITY, STOP_DEPTH_M
 from ..errors import CoastError, InputError, ResolutionWarning
 from ..focusing.agreement import compare_rankings
+from ..focusing.ranking import ranked_mask
 from ..grid import refine_grid
 from ..propagation.wave import WAVE_CAUTION, WaveResult, _check_depth, _wet_mask, simulate_linear_long_wave
 
@@ -288,7 +289,7 @@ def compare_with_waves(
     table = pd.DataFrame({"segment_id": wave.index.values})
     if "name" in segments.columns:
         table["name"] = np.asarray(segments["name"])
-    ranked = np.asarray(segments["reliable"], dtype=bool) if "reliable" in segments.columns else np.ones(len(table), bool)
+    ranked = ranked_mask(segments)
     table["ranked"] = ranked
     _paired_columns(table, "ray_value", np.asarray(segments[ray_column], dtype=float), "wave_amp_stop_m",
                     wave.values, ranked, ("rank_ray", "rank_wave"))

@@ -45,6 +45,7 @@ from ..cautions import caution_summary
 from ..coast.segments import STATIC_SEGMENT_COLUMNS
 from ..errors import InputError
 from ..focusing.agreement import rank_correlations, topk_mask
+from ..focusing.ranking import ranked_mask
 from ..grid import GridInfo, get_crs
 from ..io.runs import RunTuple
 
@@ -298,20 +299,10 @@ def _common_layers(runs: list, ref_name: str) -> tuple[list[dict[str, xr.DataArr
     return layers, common
 
 
-def _ranked_mask(seg: pd.DataFrame) -> np.ndarray:
-    """The segments a run ranks: its ``reliable`` ones (all with a finite value when the column is absent)."""
-    if "reliable" not in seg.columns:
-        return np.ones(len(seg), dtype=bool)
-    col = seg["reliable"]
-    if col.dtype == object:  # read back from a CSV file: "True" / "False" / ""
-        return col.astype(str).str.strip().str.lower().isin(("true", "1", "1.0")).to_numpy()
-    return col.fillna(False).astype(bool).to_numpy()
-
-
 def _ranked_lensing(seg: pd.DataFrame) -> np.ndarray:
     """A run's lensing factors where it ranks the segment, NaN elsewhere (shadows, too few rays)."""
     v = seg["lensing_factor"].to_numpy(dtype=float)
-    return np.where(_ranked_mask(seg), v, np.nan)
+    return np.where(ranked_mask(seg), v, np.nan)
 
 
 def _ranking_table(names: list[str], safe: list[str], segs: list[pd.DataFrame], ref_seg: pd.DataFrame,

@@ -30,7 +30,7 @@ from ..coast.segments import segment_coastline
 from ..constants import STOP_DEPTH_M
 from ..errors import CoastError, HealthCheckError, InputError, PointWarning, ResolutionWarning, ResourceLimitError
 from ..focusing.analysis import ReferenceOcean, analyse_focusing
-from ..focusing.ranking import _add_ranks, rank_segments
+from ..focusing.ranking import _add_ranks, rank_segments, ranked_mask
 from ..grid import GridInfo
 from ..io.bathymetry import load_bathymetry
 from ..io.coastline import read_coastline, read_region_polygons
@@ -697,8 +697,8 @@ def ensemble_member(params: dict, *, depth: xr.DataArray, scenario: Any, segment
     table = table.set_index("segment_id")
     if "reliable" in seg:
         # a segment reached by too few rays in this member gives no value (not ranked on noise)
-        bad = ~seg.set_index("segment_id")["reliable"].fillna(False).astype(bool)
-        table.loc[bad.to_numpy(), [c for c in ("lensing_factor", "amp_1m_m") if c in table]] = np.nan
+        bad = ~ranked_mask(seg)
+        table.loc[bad, [c for c in ("lensing_factor", "amp_1m_m") if c in table]] = np.nan
     grids = {"energy": a.focusing.energy, "lensing_factor": a.focusing.lensing_factor}
     info = {"mw": float(a.summary.mw), "energy_J": float(a.summary.energy_J),
             "budget_error": float(a.focusing.budget["relative_error"])}
