@@ -29,6 +29,7 @@ __all__ = [
     "EnsembleError",
     "TsunamiFocusWarning",
     "ScalingWarning",
+    "SourceWarning",
     "ResolutionWarning", "PointWarning",
     "DataWarning",
     "cut",
@@ -122,6 +123,10 @@ class TsunamiFocusWarning(UserWarning):
 
 class ScalingWarning(TsunamiFocusWarning):
     """A fault geometry is far from the published magnitude scaling relation."""
+
+
+class SourceWarning(TsunamiFocusWarning):
+    """A source is usable but suspicious: much of its displacement falls on land or no data."""
 
 
 class ResolutionWarning(TsunamiFocusWarning):

@@ -12,12 +12,12 @@ from scipy import integrate
 from scipy.special import erf
 
 from tsunamifocus.constants import GRAVITY, RHO_SEAWATER
-from tsunamifocus.errors import ScalingWarning, SourceError
+from tsunamifocus.errors import ScalingWarning, SourceError, SourceWarning
 from tsunamifocus.grid import make_grid
 from tsunamifocus.source.okada import okada85
 from tsunamifocus.source.faults import FaultSegment, PointSource, Rupture, magnitude_from_moment, moment_from_magnitude, strasser2010_interface
 from tsunamifocus.source.rayfan import make_ray_fan
-from tsunamifocus.source.energy import potential_energy
+from tsunamifocus.source.energy import LAND_SHARE_WARNING, land_share, potential_energy
 from tsunamifocus.source.summary import summarize_source
 from tsunamifocus.source.uplift import uplift_on_grid
 
@@ -241,6 +241,50 @@ def test_energy_only_over_sea():
     e_half = potential_energy(uplift_on_grid(ps, dl), dl)
     # exactly the western half plus the centre column
     assert 0.45 * e_full < e_half < 0.55 * e_full
+
+
+def test_land_share_of_a_hump_on_the_coastline():
+    # A cos^2 hump centred on a straight coastline (land east of its centre column): by symmetry
+    # the land holds half of integral eta^2 dA less half of the centre column's share. Column
+    # share from the closed forms: int cos^4(pi |y| / 2R) dy over (-R, R) = 3R/4 (hand
+    # integration), times the 2 km column width, over the hump's 2 pi R^2 (3/16 - 1/pi^2).
+    d = flat_grid(cell_km=2.0, half_km=200.0)
+    vals = d.values.copy()
+    vals[:, d.x.values > 500e3] = -50.0
+    dl = d.copy(data=vals)
+    R = 60e3
+    ps = PointSource(500e3, 4000e3, radius_km=R / 1e3, amplitude_m=1.0, crs=UTM)
+    column = 2e3 * 0.75 * R / (2 * math.pi * R**2 * (3.0 / 16.0 - 1.0 / math.pi**2))
+    eta = uplift_on_grid(ps, dl)
+    share = land_share(eta, dl)
+    assert share == pytest.approx(0.5 * (1.0 - column), abs=0.005)
+    # the complement is exactly the sea's share of the potential energy
+    assert share == pytest.approx(1.0 - potential_energy(eta, dl) / potential_energy(eta, d), rel=1e-12)
+    assert land_share(uplift_on_grid(ps, d), d) == 0.0
+
+
+def test_fault_under_the_coast_warns():
+    # A thrust whose trace lies on the coastline and dips under land puts most of its uplift on
+    # land (the hanging wall): the summary says how much and warns once; the same fault with
+    # sea all around does not.
+    d = flat_grid(cell_km=4.0)
+    vals = d.values.copy()
+    vals[:, d.x.values > 502e3] = -100.0
+    dl = d.copy(data=vals)
+    seg = utm_segment(x0=500e3, name="under the coast")
+    eta = uplift_on_grid(seg, dl)
+    with pytest.warns(SourceWarning, match="on land or no-data cells"):
+        s = summarize_source(seg, eta, dl)
+    assert s.land_share > 0.5
+    assert s.land_share == pytest.approx(land_share(eta, dl))
+    assert s.land_note is not None and "trench" in s.land_note
+    assert "on land, left out" in str(s)
+    assert s.to_dict()["land_share"] == pytest.approx(s.land_share)
+    with warnings.catch_warnings():
+        warnings.simplefilter("error", SourceWarning)
+        s0 = summarize_source(seg, uplift_on_grid(seg, d), d)
+    assert s0.land_share == 0.0 and s0.land_note is None
+    assert 0.0 < LAND_SHARE_WARNING < 0.5
 
 
 def test_kajiura_filter_volume_and_peak():

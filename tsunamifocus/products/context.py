@@ -55,6 +55,7 @@ def _report_context(a: SourceAnalysis, scenario: Any, depth: xr.DataArray, point
     src.update({
         "max uplift / subsidence (m)": f"{_fmt(sm.get('max_uplift_m'), '.2f')} / {_fmt(sm.get('max_subsidence_m'), '.2f')}",
         "initial potential energy (J)": _fmt(sm.get("energy_J"), ".3g"),
+        "displacement on land, left out (%)": _fmt(100 * (sm.get("land_share") or 0.0), ".1f"),
         "dominant wavelength (km)": _fmt(sm.get("wavelength_km"), ".0f"),
         "dominant period (min)": _fmt(a.period_s / 60, ".1f"),
         "rays": str(a.fan.n_rays),

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import math
+import warnings
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -11,9 +12,10 @@ import xarray as xr
 
 from ..cautions import caution_summary
 from ..constants import GRAVITY
+from ..errors import SourceWarning
 from ..grid import GridInfo
 from ..ocean.smooth import sea_mask
-from .energy import potential_energy
+from .energy import LAND_SHARE_WARNING, land_share, potential_energy
 from .faults import FaultSegment, PointSource, Rupture
 from .rayfan import RayFan
 from .subfaults import SubfaultRupture
@@ -50,6 +52,9 @@ class SourceSummary:
         Dominant initial wavelength ``~ 2 x width`` [km] and period ``wavelength / sqrt(g h)`` [s].
     rays : dict
         Ray count and energy by side (empty without a fan).
+    land_share : float
+        Share of the displacement (``integral eta^2 dA``) on land or no data, left out of the
+        tsunami (:func:`~.energy.land_share`).
     details : dict
         Kind-specific figures: for a subfault model its table, row count, slip and depth
         ranges (``segments`` is then empty); for a sea-surface raster its file and resampling.
@@ -71,6 +76,17 @@ class SourceSummary:
     period_s: float
     rays: dict[str, dict[str, float]]
     details: dict[str, Any] = field(default_factory=dict)
+    land_share: float = 0.0
+
+    @property
+    def land_note(self) -> str | None:
+        """One sentence when a large share of the displacement is on land (else None)."""
+        if not (math.isfinite(self.land_share) and self.land_share > LAND_SHARE_WARNING):
+            return None
+        return (f"{100 * self.land_share:.0f} % of the displacement (by integral of eta^2 dA) lies on land or "
+                "no-data cells and makes no tsunami here: the energy, the dominant period and the ray fan come "
+                "from the sea part only. Check the fault trace: a subduction interface's trace is its trench "
+                "axis, seaward of the coast")
 
     @property
     def headline(self) -> str:
@@ -120,7 +136,9 @@ class SourceSummary:
             lines.append(f"  hump radius {s['radius_km']:.1f} km, amplitude {s['amplitude_m']:.2f} m")
         lines += [
             f"  max uplift {self.max_uplift_m:.2f} m, max subsidence {self.max_subsidence_m:.2f} m",
-            f"  initial potential energy E = {self.energy_J:.3e} J",
+            f"  initial potential energy E = {self.energy_J:.3e} J"
+            + (f" ({100 * self.land_share:.1f} % of the displacement on land, left out)"
+               if math.isfinite(self.land_share) and self.land_share >= 0.001 else ""),
             f"  source width {self.source_width_km:.0f} km, mean depth {self.mean_depth_m:.0f} m -> "
             f"wavelength ~{self.wavelength_km:.0f} km, period ~{self.period_s / 60:.1f} min",
         ]
@@ -149,6 +167,9 @@ def summarize_source(
     source, the hump diameter. Dominant wavelength ``~ 2 x width`` and period
     ``wavelength / sqrt(g h)`` with ``h`` the mean depth of the sea cells where
     ``|eta| >= threshold max|eta|`` (rule of thumb, common practice, no source).
+
+    Warns (:class:`~tsunamifocus.errors.SourceWarning`) when more than ``LAND_SHARE_WARNING`` of
+    the displacement lies on land or no data (:attr:`SourceSummary.land_note`).
     """
     src = source if isinstance(source, SurfaceSource) else _as_rupture(source)
     GridInfo.from_dataarray(depth)  # checks the grid convention (raises on a bad grid)
@@ -205,7 +226,8 @@ def summarize_source(
         kind = "rupture"
     lam = 2.0 * width
     period = lam * 1e3 / math.sqrt(GRAVITY * h) if h > 0 else float("nan")
-    return SourceSummary(
+    share = land_share(eta, depth)
+    out = SourceSummary(
         name=src.name,
         kind=kind,
         segments=segs,
@@ -222,4 +244,8 @@ def summarize_source(
         period_s=period,
         rays=fan.by_side() if fan is not None else {},
         details=details,
+        land_share=share,
     )
+    if out.land_note:
+        warnings.warn(f"source {src.name!r}: {out.land_note}", SourceWarning, stacklevel=2)
+    return out
