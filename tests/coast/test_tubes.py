@@ -156,3 +156,56 @@ def test_a_tube_spread_wider_than_its_fresnel_zone_stays_near_its_end():
     np.testing.assert_allclose(std, math.sqrt(sig**2 + 10e3**2 / 12.0), rtol=0.05)
     # the coast beyond 5 Fresnel widths gets nothing (uniform spreading would give it E / n / 40 each)
     assert not row[np.abs(y - mean) > 5 * sig].any()
+
+
+def island_basin(dx=1000.0):
+    """Constant 2000 m depth with a square island 40 km across centred at (140 km, 0)."""
+    x = np.arange(0.0, 220e3 + 1, dx)
+    y = np.arange(-100e3, 100e3 + 1, dx)
+    X, Y = np.meshgrid(x, y)
+    h = np.where((np.abs(X - 140e3) <= 20e3) & (np.abs(Y) <= 20e3), -10.0, 2000.0)
+    return make_grid(h, x, y, CRS)
+
+
+def test_a_footprint_stops_where_the_coast_turns_its_back_to_the_ray():
+    # A tube's cross-section meets the coast in front of it: a footprint wider than the island
+    # (here 1e26 m, and a caustic-regularised width of one 280 km wavelength) covers the sides
+    # of the island that face the ray or run along it, not the side that turns its back to it
+    # (seaward normal more than 120 degrees from the direction the ray comes from). Along the
+    # sides it covers, a footprint far wider than the island is uniform per metre (common
+    # practice, no source).
+    from tsunamifocus.coast.tubes import BACK_FACING_COS, _Arcs, _arc_rows
+
+    d = island_basin()
+    seg = segment_coastline(coastline_from_grid(d, 20.0), 5e3, d)
+    arcs = _Arcs.build(seg)
+    assert arcs.ring.all() and arcs.start.size == 1
+    normal = seg["normal_azimuth_deg"].to_numpy(float)
+    # the ray ends in the middle of the island's west side travelling east (azimuth 90)
+    west = np.flatnonzero(np.abs(((normal - 270.0) + 180.0) % 360.0 - 180.0) < 30.0)
+    k = int(west[np.argmin(np.abs(seg["y_mid"].to_numpy(float)[west]))])
+    s0 = np.array([0.5 * (arcs.a[k] + arcs.b[k])])
+    reach = np.ones(len(seg), bool)
+    r, c, v = _arc_rows(arcs, np.array([0]), s0, np.array([1e26]), reach, len(seg),
+                        facing=(np.array([90.0]), normal))
+    share = np.bincount(c, weights=v, minlength=len(seg))
+    back = np.cos(np.radians(normal - 270.0)) < BACK_FACING_COS
+    assert back.sum() >= 6 and not share[back].any()
+    front = ~back
+    np.testing.assert_allclose(share.sum(), 1.0, rtol=1e-12)
+    length = seg["length_m"].to_numpy(float)
+    np.testing.assert_allclose(share[front], length[front] / length[front].sum(), rtol=1e-9)
+    # without the ray's direction the same footprint wraps the whole ring
+    _, c0, v0 = _arc_rows(arcs, np.array([0]), s0, np.array([1e26]), reach, len(seg))
+    assert np.bincount(c0, weights=v0, minlength=len(seg))[back].sum() > 0.2
+    # through tube_deposit: rays from a point 120 km west of the island, a period long enough
+    # that every footprint is wider than the island; the far side gets no energy, and every
+    # ray that reached the island deposits all of its weight
+    n = 360
+    az = (np.arange(n) + 0.5) * 360.0 / n
+    rr = trace_rays(d, np.full(n, 20e3), np.zeros(n), az, weights=np.full(n, E / n), stop_depth_m=20.0,
+                    max_time_s=3 * 3600.0)
+    dep = tube_deposit(seg, rr.end, d, steps=tube_steps(rr.end, GridInfo.from_dataarray(d)), period_s=20000.0,
+                       max_distance_m=3000.0)
+    assert dep.energy_J[front].sum() > 0 and not dep.energy_J[back].any()
+    np.testing.assert_allclose(dep.energy_J.sum(), E / n * dep.assigned.sum(), rtol=1e-12)

@@ -145,8 +145,11 @@ def test_real_grid_amplitude_ranking_meets_target(etopo_path):
     assert len(a.focusing.segments) > 150  # measured: 183 segments in the coast of interest
     chk = compare_with_waves(depth, a.eta, a.focusing.segments, stop_depth_m=20.0, k=K)
     # measured: 143 ranked segments with a wave value; the 30 segments of water the eikonal front
-    # cannot reach (inland seas and basins below sea level behind the coast) are not ranked
-    assert chk.agreement["n"] >= 135
+    # cannot reach (inland seas and basins below sea level behind the coast) are not ranked.
+    # Measured 2026-12-03: 122, since footprints stop where the coast turns its back to the ray:
+    # 13 segments of the strait behind the coast's northern end, where the wave gives 0.000-0.085 m
+    # (median of the ranked coast 0.175 m), are no longer reached round the strait's entrance
+    assert chk.agreement["n"] >= 115
     # Project target: Spearman >= 0.8. Measured on 2026-12-02 (10000 rays): 0.901 (top-10 common 4/10;
     # seed 1 in benchmarks/bench_focusing.py: 0.878), so the target itself is asserted (margin 0.1 below
     # the measured value).

@@ -10,7 +10,8 @@ Theory*, ch. 4). Where the tube meets the coast at incidence ``theta`` it covers
 ``W / cos(theta)`` of coastline, so its energy is spread over that footprint, centred on the
 ray's end point, as a Gaussian of the same peak (``std = footprint / sqrt(2 pi)``) in arc length
 along the coastline line the ray reached (a footprint never jumps across land to an island, the
-far side of a strait or a lake; on an island it wraps around the ring). Summing the
+far side of a strait or a lake; on an island it wraps around the ring, but on either side it
+stops at the first segment that turns its back to the ray). Summing the
 footprints over all rays gives the energy crossing the stop isobath per metre of coast without
 counting hits: the result changes smoothly with the fan and needs far fewer rays.
 
@@ -44,10 +45,17 @@ from ..grid import GridInfo
 from ..ocean.smooth import _to_xyz as to_xyz
 
 __all__ = ["CoastGeometry", "TubeDeposit", "tube_deposit", "tube_steps", "nearest_segment", "fresnel_sigma",
-           "TUBE_MIN_WIDTH"]
+           "TUBE_MIN_WIDTH", "BACK_FACING_COS"]
 
 #: Smallest tube footprint along the coast, in local wavelengths ``c_end T`` (caustic regularisation).
 TUBE_MIN_WIDTH: float = 1.0
+
+#: A coastline segment whose seaward normal makes a cosine below this with the direction a ray
+#: comes from turns its back to the ray (more than 120 degrees): the ray's footprint stops there
+#: (common practice, no source: the far side of a headland or an island is not in the tube's
+#: cross-section; 120 rather than 90 degrees so that the side walls of coves and bays, which
+#: the coarse segments turn across the wave, do not cut a footprint short).
+BACK_FACING_COS: float = -0.5
 
 #: Termination code of rays that reached the stop isobath.
 _REASON_COAST = 1
@@ -200,16 +208,21 @@ def fresnel_sigma(wavelength_m: np.ndarray | float, path_m: np.ndarray | float) 
 
 
 def _arc_rows(arcs: _Arcs, line_r: np.ndarray, s0: np.ndarray, width: np.ndarray, reach: np.ndarray,
-              nseg: int, box: bool = False) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+              nseg: int, box: bool = False, facing: tuple[np.ndarray, np.ndarray] | None = None,
+              ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Per ray, the share of its footprint on each segment of its own coastline line (COO triplets).
 
     The footprint is a Gaussian of std ``width`` (``box``: a box of half-width ``width``) in arc
     length, centred at the ray's arc position ``s0`` on the line it reached; on a ring it wraps. A
     footprint never crosses land to another line (an island, the far side of a strait, a lake).
-    Shares on segments outside ``reach`` are dropped and each ray's shares renormalised to 1
-    (``box``: unnormalised coverage flags).
+    With ``facing = (ray_azimuth_deg, normal_azimuth_deg)`` (each ray's direction of travel at
+    its end, each segment's seaward normal) it also stops, on either side, at the first segment
+    that turns its back to the ray (:data:`BACK_FACING_COS`): a tube's cross-section meets the
+    coast in front of it, not the far side of a headland or of an island reached along the
+    coastline around its end. Shares on segments outside ``reach`` are dropped and each ray's
+    shares renormalised to 1 (``box``: unnormalised coverage flags).
     """
-    rows, cols, vals = [], [], []
+    rows, cols, vals, offs, owns = [], [], [], [], []
     half = width if box else 4.0 * width
     rs = np.arange(line_r.size)
     ring_r = arcs.ring[line_r]
@@ -222,6 +235,11 @@ def _arc_rows(arcs: _Arcs, line_r: np.ndarray, s0: np.ndarray, width: np.ndarray
         rows.append(rw[o])
         cols.append(k)
         vals.append(np.ones(o.size) if box else (arcs.b - arcs.a)[k] / per_r[rw][o])
+        if facing is not None:
+            half_per = 0.5 * per_r[rw][o]
+            mid = 0.5 * (arcs.a + arcs.b)[k] - s0[rw][o]
+            offs.append(np.mod(mid + half_per, 2.0 * half_per) - half_per)
+            owns.append((arcs.a[k] <= s0[rw][o]) & (s0[rw][o] <= arcs.b[k]))
     # all lines on one sorted axis, one after the other; each footprint's range of segments is
     # then clipped to its own line's, so it never runs onto another line
     gap = float(np.max(arcs.perimeter, initial=0.0)) + 1.0
@@ -241,6 +259,9 @@ def _arc_rows(arcs: _Arcs, line_r: np.ndarray, s0: np.ndarray, width: np.ndarray
             continue
         rows.append(sel[o])
         cols.append(k)
+        if facing is not None:
+            offs.append(0.5 * (ga[k] + gb[k]) - c[o])
+            owns.append((ga[k] <= c[o]) & (c[o] <= gb[k]))
         if box:
             vals.append(np.ones(o.size))
         else:
@@ -249,6 +270,8 @@ def _arc_rows(arcs: _Arcs, line_r: np.ndarray, s0: np.ndarray, width: np.ndarray
         return np.zeros(0, np.int64), np.zeros(0, np.int64), np.zeros(0)
     r, c, v = np.concatenate(rows), np.concatenate(cols), np.concatenate(vals)
     keep = reach[c] & (v > 0)
+    if facing is not None:
+        keep &= _in_front(r, c, np.concatenate(offs), np.concatenate(owns), int(line_r.size), *facing)
     r, c, v = r[keep], c[keep], v[keep]
     if box:
         return r, c, v
@@ -258,6 +281,26 @@ def _arc_rows(arcs: _Arcs, line_r: np.ndarray, s0: np.ndarray, width: np.ndarray
     tot = np.bincount(m.row, weights=m.data, minlength=int(line_r.size))
     ok = tot[m.row] > 0
     return m.row[ok].astype(np.int64), m.col[ok].astype(np.int64), m.data[ok] / tot[m.row[ok]]
+
+
+def _in_front(r: np.ndarray, c: np.ndarray, off: np.ndarray, own: np.ndarray, nray: int,
+              ray_az: np.ndarray, normal_az: np.ndarray) -> np.ndarray:
+    """Which footprint entries lie before the first back-facing segment on their side of the ray.
+
+    ``off``: signed arc offset of each entry's segment from the ray's end point; ``own``: the
+    segment holding the end point (never a block). A segment turns its back to a ray travelling
+    toward azimuth ``ray_az`` when the cosine between its seaward normal and the direction the
+    ray comes from is below :data:`BACK_FACING_COS`.
+    """
+    cosf = np.cos(np.radians(normal_az[c] - ray_az[r] - 180.0))
+    block = (cosf < BACK_FACING_COS) & ~own
+    left = np.full(nray, -np.inf)
+    right = np.full(nray, np.inf)
+    bl = block & (off < 0.0)
+    br = block & (off > 0.0)
+    np.maximum.at(left, r[bl], off[bl])
+    np.minimum.at(right, r[br], off[br])
+    return (off > left[r]) & (off < right[r])
 
 
 @dataclass
@@ -446,14 +489,15 @@ def tube_deposit(
     s0 = s_smp[i0] + _along(pts, sid, arcs.line, xyz, i0, ds)
     per = arcs.perimeter[line_r]
     s0 = np.where(arcs.ring[line_r], np.mod(s0, np.maximum(per, 1e-9)), np.clip(s0, 0.0, per))
-    r, c, v = _arc_rows(arcs, line_r, s0, sigma, reach, nseg)
+    normal = segments["normal_azimuth_deg"].to_numpy(float)
+    r, c, v = _arc_rows(arcs, line_r, s0, sigma, reach, nseg, facing=(az, normal))
     mat = sparse.csr_matrix((w[r] * v, (hit[r], c)), shape=(nray, nseg))
     energy = np.asarray(mat.sum(axis=0)).ravel()
     n_rays = np.bincount(c, minlength=nseg)
     # coverage by the unregularised box footprints
     covered = np.zeros(nseg, dtype=bool)
     half = np.maximum(0.5 * foot, 0.5 * spacing)
-    _, cb, _ = _arc_rows(arcs, line_r, s0, half, reach, nseg, box=True)
+    _, cb, _ = _arc_rows(arcs, line_r, s0, half, reach, nseg, box=True, facing=(az, normal))
     covered[cb] = True
     shadow = ~covered & reach
     shadow_e = np.zeros(nseg)
@@ -461,7 +505,7 @@ def tube_deposit(
     on = np.flatnonzero(np.isin(line_r, arcs.line[shadow])) if shadow.any() else np.zeros(0, np.int64)
     if on.size:
         sig_f = np.maximum(sig_fres[on], sigma[on])
-        r2_, c2_, v2_ = _arc_rows(arcs, line_r[on], s0[on], sig_f, reach, nseg)
+        r2_, c2_, v2_ = _arc_rows(arcs, line_r[on], s0[on], sig_f, reach, nseg, facing=(az[on], normal))
         est = np.bincount(c2_, weights=w[on][r2_] * v2_, minlength=nseg)
         shadow_e = np.where(shadow, est, 0.0)
     assigned = np.zeros(nray, dtype=bool)
