@@ -17,7 +17,8 @@ def configure(p: argparse.ArgumentParser) -> None:
     p.add_argument("run_dir", help="a finished run folder")
     p.add_argument("--out", help="output folder (default: RUN_DIR/wave_check)")
     p.add_argument("--overwrite", action="store_true", help="replace an existing output folder")
-    p.add_argument("--hours", type=float, help="simulated duration [h] (default: the latest first arrival + 30 min)")
+    p.add_argument("--hours", type=float,
+                   help="simulated duration [h] (default: 1.2 x the latest first arrival of the run's segments + 1 h)")
     p.add_argument("--force", action="store_true", help="run the wave solver even beyond the work limit of "
                    f"{WORK_LIMITS['wave_cell_updates']:.3g} wet-cell updates (cells x time steps)")
     p.add_argument("--refine", type=int, default=1, help="solve the wave on the run's sea floor interpolated onto a grid "

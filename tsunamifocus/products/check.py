@@ -135,7 +135,8 @@ def run_wave_check(
     overwrite : bool
         Replace an existing output folder.
     hours : float, optional
-        Simulated duration [h]; default from the latest ray first arrival.
+        Simulated duration [h]; default ``1.2 x`` the latest first arrival of the segments + 1 h
+        (:func:`~tsunamifocus.studies.check.default_check_duration_s`).
     k : int
         Top-k of the overlap statistic.
     progress : bool
