@@ -620,3 +620,22 @@ def test_water_the_front_cannot_reach_gets_no_tube_energy_and_no_rank():
     rows = np.asarray(dep.matrix.sum(axis=1)).ravel()
     np.testing.assert_allclose(rows[dep.assigned], w[dep.assigned], rtol=1e-9)
     assert dep.energy_J[~in_lake].sum() == pytest.approx(w[dep.assigned].sum(), rel=1e-9)
+
+
+def test_fault_outline_in_the_grid_longitudes():
+    # A grid across the antimeridian keeps its longitudes in 120..295 E; a trace given in
+    # -180..180 (here -77 / -75.2 E) must be drawn at 283 / 284.8 E, inside the map, not 360
+    # degrees west of it (the outline is only drawn; common practice, no source).
+    from tsunamifocus.grid import make_grid
+    from tsunamifocus.source.faults import FaultSegment, Rupture
+    from tsunamifocus.studies.run import _source_outline
+
+    lon = np.arange(120.0, 295.0, 0.5)
+    lat = np.arange(-60.0, 50.0, 0.5)
+    d = make_grid(np.full((lat.size, lon.size), 4000.0), lon, lat, "EPSG:4326")
+    seg = FaultSegment(trace=((-77.0, -46.0), (-75.2, -38.0)), top_depth_km=5.0, dip_deg=15.0, width_km=200.0,
+                       rake_deg=90.0, slip_m=10.0)
+    (ring,) = _source_outline(Rupture([seg], name="r"), d)
+    assert np.all((ring[:, 0] >= 119.75) & (ring[:, 0] < 295.0))
+    np.testing.assert_allclose(ring[:2, 0], [283.0, 284.8], atol=1e-9)
+    np.testing.assert_allclose(ring[:2, 1], [-46.0, -38.0], atol=1e-9)

@@ -163,6 +163,8 @@ def _source_outline(source: Any, depth: xr.DataArray) -> list[np.ndarray]:
         lons = np.array([lo1, lo2, c[0], d[0], lo1])
         lats = np.array([la1, la2, c[1], d[1], la1])
         x, y = to_grid.transform(lons, lats)
+        if info.geographic:  # a trace given in -180..180 on a grid in 0..360 (or the reverse)
+            x = info.wrap_lon(np.asarray(x, float))
         out.append(np.column_stack([x, y]))
     return out
 
