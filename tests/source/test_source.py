@@ -287,6 +287,28 @@ def test_fault_under_the_coast_warns():
     assert 0.0 < LAND_SHARE_WARNING < 0.5
 
 
+def test_thrust_dipping_toward_deeper_water_warns():
+    # A subduction interface dips under the over-riding plate, whose sea floor is shallower than
+    # the incoming plate's (common practice, no source). On a sea floor deepening eastward
+    # (1000 m at the trace line x = 500 km, +10 m per km), a north-striking thrust dips east (to
+    # the right of south -> north), toward deeper water: warned, naming the trace. The same
+    # points in the other order dip west, toward shallower water: silent; so is a strike-slip
+    # fault and a steep one.
+    d = flat_grid(cell_km=4.0)
+    X = np.broadcast_to(d.x.values[None, :], d.shape)
+    dl = d.copy(data=1000.0 + 0.01 * (X - 500e3))
+    with pytest.warns(SourceWarning, match="dips toward deeper water"):
+        uplift_on_grid(utm_segment(), dl)
+    reverse = FaultSegment(trace=((500e3, 4100e3), (500e3, 3900e3)), top_depth_km=5.0, dip_deg=15.0, width_km=80.0,
+                           rake_deg=90.0, slip_m=5.0, trace_crs=UTM)
+    with warnings.catch_warnings():
+        warnings.simplefilter("error", SourceWarning)
+        uplift_on_grid(reverse, dl)
+        uplift_on_grid(utm_segment(rake_deg=0.0), dl)
+        uplift_on_grid(utm_segment(dip_deg=75.0), dl)
+        uplift_on_grid(utm_segment(), d)  # flat sea floor
+
+
 def test_kajiura_filter_volume_and_peak():
     # Kajiura (1963): 1/cosh(k h) is 1 at k = 0 (volume kept) and damps short waves; the peak of
     # a hump of radius comparable to the depth drops, computed independently by the Hankel

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import math
+import warnings
 from typing import Any
 
 import numpy as np
@@ -12,7 +13,7 @@ from pyproj.crs import ProjectedCRS
 from pyproj.crs.coordinate_operation import AzimuthalEquidistantConversion
 
 from ..cautions import caution_summary
-from ..errors import SourceError
+from ..errors import SourceError, SourceWarning
 from ..grid import GridInfo, make_grid
 from ..ocean.smooth import sea_mask
 from .energy import _sig_window
@@ -217,6 +218,7 @@ def uplift_on_grid(
             geos.append(geo)
             _check_inside(gi, geo["gx"], geo["gy"], what)
             _check_trace_at_sea(seg, geo, gi, dep, what)
+            _check_dip_side(seg, geo, gi, dep, what)
             radius = _window_radius_m(seg) if window_km is None else float(window_km) * 1e3
             rows, cols = _window_slices(gi, geo["mid"][0], geo["mid"][1], radius)
             if cols.size == 0 or rows.stop <= rows.start:
@@ -261,6 +263,56 @@ def _check_trace_at_sea(seg: FaultSegment, geo: dict, gi: GridInfo, dep: np.ndar
         raise SourceError(
             f"{what}: the whole fault trace {seg.trace} lies on land or no-data cells of the depth grid"
         )
+
+
+#: A thrust whose dip side lies deeper than the other side of its trace by more than this [m] on
+#: average is reported: a subduction interface dips under the over-riding plate, whose sea floor
+#: (fore-arc, shelf, land) is shallower than the incoming plate's (common practice, no source).
+DIP_SIDE_MARGIN_M = 500.0
+
+
+def _check_dip_side(seg: FaultSegment, geo: dict, gi: GridInfo, dep: np.ndarray, what: str) -> None:
+    """Warn when a shallow-dipping thrust dips toward the deeper side of its trace.
+
+    The trace's point order sets the dip direction (to the right of point 1 -> point 2); the
+    reverse order is an easy slip that mirrors the uplift. Depths are compared over the fault's
+    surface projection and over its mirror image across the trace (land counted as 0 m).
+    """
+    if not (45.0 <= float(seg.rake_deg) % 360.0 <= 135.0) or float(seg.dip_deg) > 60.0:
+        return
+    e1, e2 = (float(v) for v in geo["e"])
+    n1, n2 = (float(v) for v in geo["n"])
+    L = math.hypot(e2 - e1, n2 - n1)
+    if L <= 0:
+        return
+    ue, un = (e2 - e1) / L, (n2 - n1) / L  # along strike
+    re, rn = un, -ue  # to the right of the strike: the dip side
+    wh = max(float(seg.width_km) * 1e3 * math.cos(math.radians(float(seg.dip_deg))), 20e3)
+    t = np.array([0.1, 0.3, 0.5, 0.7, 0.9])
+    d = wh * np.array([0.25, 0.5, 0.75, 1.0])
+    T, D = np.meshgrid(t, d)
+    side = []
+    for sign in (+1.0, -1.0):
+        E = e1 + T.ravel() * (e2 - e1) + sign * D.ravel() * re
+        N = n1 + T.ravel() * (n2 - n1) + sign * D.ravel() * rn
+        if geo["transformer"] is not None:
+            gx, gy = geo["transformer"].transform(E, N, direction="INVERSE")
+            gx = gi.wrap_lon(np.asarray(gx, float))
+        else:
+            gx, gy = E, N
+        gx, gy = np.asarray(gx, float), np.asarray(gy, float)
+        ok = gi.contains(gx, gy)
+        v = _nearest_values(gi, dep, gx[ok], gy[ok]) if ok.any() else np.zeros(0)
+        v = v[np.isfinite(v)]
+        side.append(float(np.mean(np.maximum(v, 0.0))) if v.size else float("nan"))
+    dip_side, other = side
+    if np.isfinite(dip_side) and np.isfinite(other) and dip_side > other + DIP_SIDE_MARGIN_M:
+        warnings.warn(
+            f"{what}: the thrust dips toward deeper water (mean depth {dip_side:.0f} m over its down-dip "
+            f"side, {other:.0f} m across the trace): a subduction interface dips under the over-riding "
+            f"plate, toward the coast. The fault dips to the right of its trace {seg.trace[0]} -> "
+            f"{seg.trace[1]}; give the two points in the other order if that is not intended",
+            SourceWarning, stacklevel=3)
 
 
 def _segment_window(seg: FaultSegment, slip: float, geo: dict, X: np.ndarray, Y: np.ndarray, radius: float,
