@@ -5,7 +5,8 @@ Two cases:
 * ``demo`` - the invented Meridane scenario (``sample_scenarios/meridane.toml``) at its own settings.
 * ``real`` - the 0.1 degree global relief grid (``$TSUNAMIFOCUS_SHARED_DATA/etopo1_0p1deg.nc``, see
   that folder's README) cropped to lon 120..250 E, lat 0..65 N; a Mw 9.0 thrust off the Japan Trench
-  (trace (141.9, 36.3)-(143.4, 39.8), top 5 km, dip 12, width 175 km, rake 90); travel-time limit
+  (the interface: trace along the trench axis (144.3, 39.8)-(142.9, 36.3), dipping west under the
+  island arc, top 5 km, dip 12, width 175 km, rake 90); travel-time limit
   15 h; the whole 20 m contour is cut into 20 km segments and the coast of interest (``[coast]
   region``) is the segments whose centres lie in lon 235..244 E, lat 32..49 N (the mainland coast of
   North America).
@@ -80,7 +81,7 @@ def real_scenario(etopo: pathlib.Path, rays: int = DEFAULT_RAY_COUNT, seed: int 
         "scenario": {"name": "japan-trench-mw90"},
         "bathymetry": {"path": str(etopo), "values": "elevation", "crop": list(REAL_CROP)},
         "source": [{"name": "japan-trench-mw90", "kind": "fault", "magnitude": 9.0,
-                    "segment": [{"trace": [[141.9, 36.3], [143.4, 39.8]], "top_depth_km": 5.0,
+                    "segment": [{"trace": [[144.3, 39.8], [142.9, 36.3]], "top_depth_km": 5.0,
                                  "dip_deg": 12.0, "width_km": 175.0, "rake_deg": 90.0}]}],
         "rays": {"count": rays, "stop_depth_m": 20.0, "max_time_h": 15.0, "seed": seed},
         "coast": {"segment_km": 20.0, "region": list(REAL_COAST_BOX)},

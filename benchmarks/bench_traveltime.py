@@ -78,7 +78,7 @@ def main() -> None:
     import skfmm
 
     depth = load_bathymetry(_grid_path(), values="elevation")
-    src = Rupture([FaultSegment(trace=((142.6, 36.0), (144.4, 39.6)), top_depth_km=5.0, dip_deg=12.0,
+    src = Rupture([FaultSegment(trace=((144.4, 39.6), (142.6, 36.0)), top_depth_km=5.0, dip_deg=12.0,
                                 width_km=175.0, magnitude=9.0, name="japan-trench")], name="japan-trench")
     eta = uplift_on_grid(src, depth)
     print(f"machine: {platform.processor() or platform.machine()}, {os.cpu_count()} cores, "

@@ -240,8 +240,9 @@ def test_real_pacific_matches_scikit_fmm_mercator_reference(pacific):
 # (event catalogues and post-event reports); long-wave times run slightly early (about 1-2 %)
 # beyond 10,000 km (Watada et al. 2014, JGR Oceans 119), hence the 5 % band.
 _EVENTS = {
-    # Tohoku 2011 (Mw 9.0, 05:46 UTC): main rupture along the Japan Trench
-    "tohoku-2011": dict(trace=((142.6, 36.0), (144.4, 39.6)), dip=12.0, width=175.0, mw=9.0, top=5.0),
+    # Tohoku 2011 (Mw 9.0, 05:46 UTC): main rupture along the Japan Trench (points north to south:
+    # the interface dips west, to the right of the trace; the Chilean traces run south to north)
+    "tohoku-2011": dict(trace=((144.4, 39.6), (142.6, 36.0)), dip=12.0, width=175.0, mw=9.0, top=5.0),
     # Chile 1960 (Mw 9.5, 19:11 UTC): about 900 km along the trench off south-central Chile
     "chile-1960": dict(trace=((-75.0, -45.5), (-73.6, -37.5)), dip=20.0, width=200.0, mw=9.5, top=5.0),
     # Maule 2010 (Mw 8.8, 06:34 UTC): about 450 km off central Chile

@@ -1,7 +1,7 @@
 """A trans-ocean screening study on real data, run from the command line with default settings.
 
-A Mw 9.0 thrust on the Japan Trench (top edge roughly 142.6 E 36.0 N to 144.4 E 39.6 N, dip 12 deg,
-width 175 km) on the shared 0.1-degree global relief grid cropped across the antimeridian
+A Mw 9.0 thrust on the Japan Trench interface (top edge along the trench, roughly 144.4 E 39.6 N to
+142.6 E 36.0 N, dipping 12 deg west under the island arc, width 175 km) on the shared 0.1-degree global relief grid cropped across the antimeridian
 (120..250 E, 0..65 N, written in 0..360 numbers), screening the mainland coast of western North
 America (lon -125..-117, lat 32..49) with points of interest in -180..180 longitudes.
 
@@ -55,7 +55,7 @@ crop = [120.0, 0.0, 250.0, 65.0]
 name = "japan-trench"
 magnitude = 9.0
 [[source.segment]]
-trace = [[142.6, 36.0], [144.4, 39.6]]
+trace = [[144.4, 39.6], [142.6, 36.0]]
 top_depth_km = 5.0
 dip_deg = 12.0
 width_km = 175.0
