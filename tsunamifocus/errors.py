@@ -126,7 +126,7 @@ class ScalingWarning(TsunamiFocusWarning):
 
 
 class SourceWarning(TsunamiFocusWarning):
-    """A source is usable but suspicious: much of its displacement falls on land or no data."""
+    """A source is usable but suspicious: much of its displacement on land, a thrust dipping seaward."""
 
 
 class ResolutionWarning(TsunamiFocusWarning):
