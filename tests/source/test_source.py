@@ -298,7 +298,10 @@ def test_thrust_dipping_toward_deeper_water_warns():
     X = np.broadcast_to(d.x.values[None, :], d.shape)
     dl = d.copy(data=1000.0 + 0.01 * (X - 500e3))
     with pytest.warns(SourceWarning, match="dips toward deeper water"):
-        uplift_on_grid(utm_segment(), dl)
+        eta = uplift_on_grid(utm_segment(), dl)
+    # the finding stays with the initial surface, for the run summary and the appendix
+    s = summarize_source(utm_segment(), eta, dl)
+    assert len(s.notes) == 1 and "dips toward deeper water" in s.notes[0] and "(500000.0, 3900000.0)" in s.notes[0]
     reverse = FaultSegment(trace=((500e3, 4100e3), (500e3, 3900e3)), top_depth_km=5.0, dip_deg=15.0, width_km=80.0,
                            rake_deg=90.0, slip_m=5.0, trace_crs=UTM)
     with warnings.catch_warnings():

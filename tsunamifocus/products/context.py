@@ -60,6 +60,8 @@ def _report_context(a: SourceAnalysis, scenario: Any, depth: xr.DataArray, point
         "dominant period (min)": _fmt(a.period_s / 60, ".1f"),
         "rays": str(a.fan.n_rays),
     })
+    for i, note in enumerate(a.summary.notes):  # what the run summary prints as WARNING lines
+        src["warning" if len(a.summary.notes) == 1 else f"warning {i + 1}"] = note
     for k, v in (sm.get("details") or {}).items():  # subfault table / sea-surface raster figures
         src[k.replace("_", " ")] = f"{v:.4g}" if isinstance(v, float) else str(v)
     for i, seg in enumerate(sm.get("segments", []) or []):

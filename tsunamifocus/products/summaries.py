@@ -281,8 +281,7 @@ def format_run_summary(result: RunResult) -> str:
         f = a.focusing
         lines.append(f"source {a.name}: {a.summary.headline}, "
                      f"dominant period {a.period_s / 60:.1f} min")
-        if a.summary.land_note:
-            lines.append(f"  WARNING: {a.summary.land_note}")
+        lines += [f"  WARNING: {n}" for n in a.summary.notes]
         h = result.health[a.name]
         tf = ", ".join(f"{k} {v:.1%}" for k, v in h["termination_fraction"].items() if v > 0)
         lines.append(f"  rays: {h['n_rays']} ({tf}); energy bookkeeping error {h['energy_error_relative']:.2e}"

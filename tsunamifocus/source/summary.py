@@ -77,6 +77,14 @@ class SourceSummary:
     rays: dict[str, dict[str, float]]
     details: dict[str, Any] = field(default_factory=dict)
     land_share: float = 0.0
+    #: Suspicious geometry found while building the initial surface (a thrust dipping toward
+    #: deeper water, :func:`~.uplift.uplift_on_grid`), as sentences.
+    geometry_notes: list[str] = field(default_factory=list)
+
+    @property
+    def notes(self) -> list[str]:
+        """Every warning about this source, as sentences (geometry, then the land share)."""
+        return list(self.geometry_notes) + ([self.land_note] if self.land_note else [])
 
     @property
     def land_note(self) -> str | None:
@@ -245,6 +253,7 @@ def summarize_source(
         rays=fan.by_side() if fan is not None else {},
         details=details,
         land_share=share,
+        geometry_notes=[n for n in str(eta.attrs.get("source_notes", "")).split(" | ") if n],
     )
     if out.land_note:
         warnings.warn(f"source {src.name!r}: {out.land_note}", SourceWarning, stacklevel=2)

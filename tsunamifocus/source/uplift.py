@@ -212,13 +212,16 @@ def uplift_on_grid(
         ue_all = np.zeros_like(eta) if horizontal else None
         un_all = np.zeros_like(eta) if horizontal else None
         geos = []  # each segment's frame, also for the mean strike
+        notes = []  # suspicious geometry, said once here and kept on the result
         for iseg, (seg, slip) in enumerate(zip(src.segments, src.slips_m)):
             what = f"rupture {src.name!r} segment {iseg} ({seg.name!r})"
             geo = _segment_geometry(seg, gi)
             geos.append(geo)
             _check_inside(gi, geo["gx"], geo["gy"], what)
             _check_trace_at_sea(seg, geo, gi, dep, what)
-            _check_dip_side(seg, geo, gi, dep, what)
+            note = _check_dip_side(seg, geo, gi, dep, what)
+            if note:
+                notes.append(note)
             radius = _window_radius_m(seg) if window_km is None else float(window_km) * 1e3
             rows, cols = _window_slices(gi, geo["mid"][0], geo["mid"][1], radius)
             if cols.size == 0 or rows.stop <= rows.start:
@@ -239,6 +242,8 @@ def uplift_on_grid(
             "Mw": round(src.mw, 3),
             "M0_Nm": src.moment_nm,
         }
+        if notes:
+            attrs_src["source_notes"] = " | ".join(notes)
     if kajiura:
         eta = kajiura_filter(eta, dep, gi)
     out = make_grid(eta, gi.x, gi.y, gi.crs, name="eta",
@@ -271,20 +276,20 @@ def _check_trace_at_sea(seg: FaultSegment, geo: dict, gi: GridInfo, dep: np.ndar
 DIP_SIDE_MARGIN_M = 500.0
 
 
-def _check_dip_side(seg: FaultSegment, geo: dict, gi: GridInfo, dep: np.ndarray, what: str) -> None:
-    """Warn when a shallow-dipping thrust dips toward the deeper side of its trace.
+def _check_dip_side(seg: FaultSegment, geo: dict, gi: GridInfo, dep: np.ndarray, what: str) -> str | None:
+    """Warn when a shallow-dipping thrust dips toward the deeper side of its trace (and return the message).
 
     The trace's point order sets the dip direction (to the right of point 1 -> point 2); the
     reverse order is an easy slip that mirrors the uplift. Depths are compared over the fault's
     surface projection and over its mirror image across the trace (land counted as 0 m).
     """
     if not (45.0 <= float(seg.rake_deg) % 360.0 <= 135.0) or float(seg.dip_deg) > 60.0:
-        return
+        return None
     e1, e2 = (float(v) for v in geo["e"])
     n1, n2 = (float(v) for v in geo["n"])
     L = math.hypot(e2 - e1, n2 - n1)
     if L <= 0:
-        return
+        return None
     ue, un = (e2 - e1) / L, (n2 - n1) / L  # along strike
     re, rn = un, -ue  # to the right of the strike: the dip side
     wh = max(float(seg.width_km) * 1e3 * math.cos(math.radians(float(seg.dip_deg))), 20e3)
@@ -306,13 +311,14 @@ def _check_dip_side(seg: FaultSegment, geo: dict, gi: GridInfo, dep: np.ndarray,
         v = v[np.isfinite(v)]
         side.append(float(np.mean(np.maximum(v, 0.0))) if v.size else float("nan"))
     dip_side, other = side
-    if np.isfinite(dip_side) and np.isfinite(other) and dip_side > other + DIP_SIDE_MARGIN_M:
-        warnings.warn(
-            f"{what}: the thrust dips toward deeper water (mean depth {dip_side:.0f} m over its down-dip "
-            f"side, {other:.0f} m across the trace): a subduction interface dips under the over-riding "
-            f"plate, toward the coast. The fault dips to the right of its trace {seg.trace[0]} -> "
-            f"{seg.trace[1]}; give the two points in the other order if that is not intended",
-            SourceWarning, stacklevel=3)
+    if not (np.isfinite(dip_side) and np.isfinite(other) and dip_side > other + DIP_SIDE_MARGIN_M):
+        return None
+    msg = (f"{what}: the thrust dips toward deeper water (mean depth {dip_side:.0f} m over its down-dip "
+           f"side, {other:.0f} m across the trace): a subduction interface dips under the over-riding "
+           f"plate, toward the coast. The fault dips to the right of its trace {seg.trace[0]} -> "
+           f"{seg.trace[1]}; give the two points in the other order if that is not intended")
+    warnings.warn(msg, SourceWarning, stacklevel=3)
+    return msg
 
 
 def _segment_window(seg: FaultSegment, slip: float, geo: dict, X: np.ndarray, Y: np.ndarray, radius: float,
