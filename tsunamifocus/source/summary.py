@@ -55,6 +55,9 @@ class SourceSummary:
     land_share : float
         Share of the displacement (``integral eta^2 dA``) on land or no data, left out of the
         tsunami (:func:`~.energy.land_share`).
+    geometry_notes : list of str
+        Suspicious geometry found while building the initial surface (a thrust dipping toward
+        deeper water); :attr:`notes` adds the land-share note.
     details : dict
         Kind-specific figures: for a subfault model its table, row count, slip and depth
         ranges (``segments`` is then empty); for a sea-surface raster its file and resampling.
@@ -77,8 +80,6 @@ class SourceSummary:
     rays: dict[str, dict[str, float]]
     details: dict[str, Any] = field(default_factory=dict)
     land_share: float = 0.0
-    #: Suspicious geometry found while building the initial surface (a thrust dipping toward
-    #: deeper water, :func:`~.uplift.uplift_on_grid`), as sentences.
     geometry_notes: list[str] = field(default_factory=list)
 
     @property
