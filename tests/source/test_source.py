@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import dataclasses
 import math
 import warnings
 
@@ -284,7 +285,9 @@ def test_fault_under_the_coast_warns():
         warnings.simplefilter("error", SourceWarning)
         s0 = summarize_source(seg, uplift_on_grid(seg, d), d)
     assert s0.land_share == 0.0 and s0.land_note is None
-    assert 0.0 < LAND_SHARE_WARNING < 0.5
+    # a share just above the threshold is reported, one just below is not
+    for share, reported in ((LAND_SHARE_WARNING + 0.01, True), (LAND_SHARE_WARNING - 0.01, False)):
+        assert (dataclasses.replace(s, land_share=share).land_note is not None) is reported
 
 
 def test_thrust_dipping_toward_deeper_water_warns():
