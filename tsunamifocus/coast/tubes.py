@@ -472,7 +472,8 @@ def tube_deposit(
     q = np.abs(np.asarray(end["q"].values, float)[hit])
     az = np.asarray(end["azimuth_deg"].values, float)[hit]
     c_end = np.asarray(end["c_end"].values, float)[hit]
-    landward = (segments["normal_azimuth_deg"].to_numpy(float)[sid[i0]] + 180.0) % 360.0
+    normal = segments["normal_azimuth_deg"].to_numpy(float)  # seaward, per segment
+    landward = (normal[sid[i0]] + 180.0) % 360.0
     inc = np.abs((az - landward + 180.0) % 360.0 - 180.0)
     cos_inc = np.cos(np.radians(np.minimum(inc, max_incidence_deg)))
     foot = q * np.asarray(steps, float)[hit] / cos_inc
@@ -489,7 +490,6 @@ def tube_deposit(
     s0 = s_smp[i0] + _along(pts, sid, arcs.line, xyz, i0, ds)
     per = arcs.perimeter[line_r]
     s0 = np.where(arcs.ring[line_r], np.mod(s0, np.maximum(per, 1e-9)), np.clip(s0, 0.0, per))
-    normal = segments["normal_azimuth_deg"].to_numpy(float)
     r, c, v = _arc_rows(arcs, line_r, s0, sigma, reach, nseg, facing=(az, normal))
     mat = sparse.csr_matrix((w[r] * v, (hit[r], c)), shape=(nray, nseg))
     energy = np.asarray(mat.sum(axis=0)).ravel()

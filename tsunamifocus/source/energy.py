@@ -53,6 +53,16 @@ def _sig_window(gi: GridInfo, sig: np.ndarray, margin: float = 0.5, extra: int =
 # --------------------------------------------------------------------------- energy
 
 
+def _eta2_area(eta: xr.DataArray, depth: xr.DataArray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """``eta``, ``eta^2 dA`` per cell [m^4] and the sea mask, on the grid of ``depth`` (shapes checked)."""
+    gi = GridInfo.from_dataarray(depth)
+    e = np.asarray(eta.values, dtype=float)
+    if e.shape != (gi.ny, gi.nx):
+        raise SourceError(f"eta shape {e.shape} does not match the depth grid {(gi.ny, gi.nx)}")
+    sea = sea_mask(np.asarray(depth.values, dtype=float))
+    return e, e * e * np.broadcast_to(gi.cell_area_m2(), e.shape), sea
+
+
 def potential_energy(eta: xr.DataArray, depth: xr.DataArray, *, rho: float = RHO_SEAWATER,
                      gravity: float = GRAVITY) -> float:
     """Initial potential energy ``E = 1/2 rho g integral(eta^2 dA)`` over the sea [J].
@@ -76,15 +86,10 @@ def potential_energy(eta: xr.DataArray, depth: xr.DataArray, *, rho: float = RHO
     float
         Energy [J].
     """
-    gi = GridInfo.from_dataarray(depth)
-    e = np.asarray(eta.values, dtype=float)
-    if e.shape != (gi.ny, gi.nx):
-        raise SourceError(f"eta shape {e.shape} does not match the depth grid {(gi.ny, gi.nx)}")
-    sea = sea_mask(np.asarray(depth.values, dtype=float))
+    e, w, sea = _eta2_area(eta, depth)
     if np.any(sea & ~np.isfinite(e)):
         raise SourceError(f"eta '{eta.name}' has NaN/inf values over {int(np.sum(sea & ~np.isfinite(e)))} sea cells")
-    area = np.broadcast_to(gi.cell_area_m2(), e.shape)
-    return float(0.5 * rho * gravity * np.sum(np.where(sea, e * e * area, 0.0)))
+    return float(0.5 * rho * gravity * np.sum(np.where(sea, w, 0.0)))
 
 
 def land_share(eta: xr.DataArray, depth: xr.DataArray) -> float:
@@ -106,12 +111,8 @@ def land_share(eta: xr.DataArray, depth: xr.DataArray) -> float:
     float
         0 when all of it is at sea; NaN when there is no displacement at all.
     """
-    gi = GridInfo.from_dataarray(depth)
-    e = np.nan_to_num(np.asarray(eta.values, dtype=float))
-    if e.shape != (gi.ny, gi.nx):
-        raise SourceError(f"eta shape {e.shape} does not match the depth grid {(gi.ny, gi.nx)}")
-    sea = sea_mask(np.asarray(depth.values, dtype=float))
-    w = e * e * np.broadcast_to(gi.cell_area_m2(), e.shape)
+    _, w, sea = _eta2_area(eta, depth)
+    w = np.where(np.isfinite(w), w, 0.0)
     total = float(w.sum())
     return float(w[~sea].sum() / total) if total > 0 else float("nan")
 
