@@ -18,8 +18,8 @@ For each case the script reports
   the grid and the coastline segments are prepared beforehand and not timed) at the default
   settings (DEFAULT_RAY_COUNT rays, 3 period bands) against the wave check's wall time
   (:func:`tsunamifocus.studies.check.compare_with_waves`: the solver over the real and over the
-  reference ocean, default duration) on the same grid, and their ratio; the process CPU time
-  (all threads) is printed too, since it stays meaningful when other jobs share the cores;
+  reference ocean, default duration) on the same grid (``refine=1``), and their ratio; the process
+  CPU time (all threads) is printed too, since it stays meaningful when other jobs share the cores;
 * the agreement of the ray rankings with the wave's (amplitude at the stop isobath and lensing
   factor: Spearman and top-10 overlap) for both ray seeds;
 * the stability of the ray rankings between two ray seeds (top-10 overlap and Spearman of the
@@ -28,7 +28,10 @@ For each case the script reports
 Numba is warmed first (a small ray run and a short wave run on the demo and on a small crop of
 the real grid) so compilation is not counted. The load average at the start is printed.
 
-With ``--judge-refine N`` the wave check is run again on each case's sea floor interpolated onto
+The wave check is then run as it runs by default (``refine="auto"``: the same sea floor
+interpolated onto the coarsest grid with ``MIN_CELLS_PER_WAVELENGTH`` cells per dominant wavelength
+at the stop isobath), with its time, its agreement with the check at the grid's own spacing and the
+rays' agreement with it. With ``--judge-refine N`` the wave check is run again on each case's sea floor interpolated onto
 a grid N times finer (:func:`tsunamifocus.grid.refine_grid`) and the rays are compared with that
 judge too: whether the check itself is converged in grid spacing near the coast
 (docs/wave_check.md).
@@ -53,7 +56,7 @@ from tsunamifocus.errors import ResolutionWarning
 from tsunamifocus.focusing.agreement import compare_rankings
 from tsunamifocus.io.scenario import parse_scenario, scenario_from_dict
 from tsunamifocus.propagation.wave import simulate_linear_long_wave
-from tsunamifocus.studies.check import compare_with_waves, wave_resolution
+from tsunamifocus.studies.check import AUTO_REFINE, MIN_CELLS_PER_WAVELENGTH, compare_with_waves, wave_resolution
 from tsunamifocus.studies.run import _segments_for, analyse_source, load_scenario_bathymetry
 from tsunamifocus.studies.settings import DEFAULT_RAY_COUNT
 
@@ -134,7 +137,7 @@ def run_case(name: str, scenario, segments, depth, seeds: tuple[int, int], rays:
     out["n_segments"] = len(seg)
     c0, t0 = time.process_time(), time.perf_counter()
     chk = compare_with_waves(depth, a.eta, seg, reference_depth=a.focusing.reference_depth,
-                             stop_depth_m=scenario.rays.stop_depth_m, k=K)
+                             stop_depth_m=scenario.rays.stop_depth_m, k=K, refine=1, period_s=a.period_s)
     out["wave_wall_s"], out["wave_cpu_s"] = time.perf_counter() - t0, time.process_time() - c0
     out["wave_hours"] = chk.wave.stats["duration_s"] / 3600.0
     out["wave_cells"] = int(np.isfinite(np.asarray(depth.values, float)).sum())
@@ -154,13 +157,15 @@ def run_case(name: str, scenario, segments, depth, seeds: tuple[int, int], rays:
     return out
 
 
-def refined_judge(row: dict, scenario, depth, refine: int) -> dict:
-    """The wave check again on the same sea floor interpolated onto a grid ``refine`` times finer."""
+def refined_judge(row: dict, scenario, depth, refine: int | str) -> dict:
+    """The wave check again on the same sea floor interpolated onto a grid ``refine`` times finer
+    (``"auto"``: the check's default choice)."""
     a = row["analyses"][0]
     c0, t0 = time.process_time(), time.perf_counter()
     chk = compare_with_waves(depth, a.eta, a.focusing.segments, reference_depth=a.focusing.reference_depth,
                              stop_depth_m=scenario.rays.stop_depth_m, k=K, refine=refine, period_s=a.period_s)
-    out = {"case": row["case"], "refine": refine, "wall_s": time.perf_counter() - t0, "cpu_s": time.process_time() - c0,
+    out = {"case": row["case"], "refine": chk.agreement["refine"], "rule": str(refine),
+           "wall_s": time.perf_counter() - t0, "cpu_s": time.process_time() - c0,
            "cells_per_wavelength": chk.agreement["resolution"]["cells_per_wavelength"]}
     base = wave_resolution(depth, a.period_s, stop_depth_m=scenario.rays.stop_depth_m)
     out["cells_per_wavelength_1"] = base["cells_per_wavelength"]
@@ -177,19 +182,19 @@ def refined_judge(row: dict, scenario, depth, refine: int) -> dict:
     return out
 
 
-def print_refined(rows: list[dict], seeds: dict) -> None:
-    """Print the agreement against the refined wave check."""
+def print_refined(rows: list[dict], seeds: dict, ray_wall: dict, title: str) -> None:
+    """Print the agreement against a wave check on a finer grid."""
     if not rows:
         return
     print()
-    print("the wave check on a finer grid (the same sea floor interpolated; cells per dominant wavelength "
-          "at the stop isobath)")
-    print(f"{'case':<6} {'refine':>6} {'cells/wl':>13} {'wall':>7} {'CPU':>7}   {'coarse vs fine judge: amp':>26}   "
-          f"{'lensing':>11}")
+    print(f"{title} (the same sea floor interpolated; cells per dominant wavelength at the stop isobath)")
+    print(f"{'case':<6} {'refine':>6} {'cells/wl':>13} {'wall':>7} {'CPU':>7} {'wave/ray':>9}   "
+          f"{'grid-spacing vs this judge: amp':>32}   {'lensing':>11}")
     for r in rows:
         print(f"{r['case']:<6} {r['refine']:>6d} {r['cells_per_wavelength_1']:>5.1f} -> {r['cells_per_wavelength']:>4.1f} "
-              f"{r['wall_s']:>6.0f}s {r['cpu_s']:>6.0f}s   {_ag(r['judges_amp']):>26}   {_ag(r['judges_lens']):>11}")
-    print(f"{'case':<6} {'seed':>5}   {'amplitude':>11}   {'lensing':>11}   (rays against the finer judge)")
+              f"{r['wall_s']:>6.0f}s {r['cpu_s']:>6.0f}s {r['wall_s'] / ray_wall[r['case']]:>9.1f}   "
+              f"{_ag(r['judges_amp']):>32}   {_ag(r['judges_lens']):>11}")
+    print(f"{'case':<6} {'seed':>5}   {'amplitude':>11}   {'lensing':>11}   (rays against this judge)")
     for r in rows:
         for i, sd in enumerate(seeds[r['case']]):
             print(f"{r['case']:<6} {sd:>5d}   {_ag(r[f'amp_{i}'])}   {_ag(r[f'lens_{i}'])}")
@@ -213,7 +218,7 @@ def print_table(rows: list[dict]) -> None:
     print(f"  (segs = ranked / in the coast of interest; ray = one analyse_source run, first seed; "
           f"second seed's wall time: {second}; wave = real + reference solver runs)")
     print()
-    print("agreement with the wave (Spearman, top-10 common)")
+    print("agreement with the wave check at the grid's own spacing (refine 1; Spearman, top-10 common)")
     print(f"{'case':<6} {'seed':>5}   {'amplitude':>11}   {'lensing':>11}")
     for r in rows:
         for i, s in enumerate(r["seeds"]):
@@ -266,14 +271,20 @@ def main() -> None:
         r = run_case(name, sc, segments, depth, seeds, args.rays)
         r["seeds"] = seeds
         rows.append(r)
-    refined = []
-    if args.judge_refine > 1:
-        for (name, sc), r in zip(cases, rows):
+    default, refined = [], []
+    for (name, sc), r in zip(cases, rows):
+        print(f"{name}: the wave check as it runs by default (refine {AUTO_REFINE}) ...", flush=True)
+        default.append(refined_judge(r, sc, load_scenario_bathymetry(sc), AUTO_REFINE))
+        if args.judge_refine > 1:
             print(f"{name}: the wave check on a grid {args.judge_refine} times finer ...", flush=True)
             refined.append(refined_judge(r, sc, load_scenario_bathymetry(sc), args.judge_refine))
     print(f"load average at end {os.getloadavg()[0]:.2f}")
     print_table(rows)
-    print_refined(refined, {r["case"]: r["seeds"] for r in rows})
+    seeds = {r["case"]: r["seeds"] for r in rows}
+    ray_wall = {r["case"]: r["ray_wall_s"] for r in rows}
+    print_refined(default, seeds, ray_wall, f"the wave check as it runs by default (refine {AUTO_REFINE}: at least "
+                  f"{MIN_CELLS_PER_WAVELENGTH:g} cells per dominant wavelength at the stop isobath)")
+    print_refined(refined, seeds, ray_wall, f"the wave check on a grid {args.judge_refine} times finer")
 
 
 if __name__ == "__main__":

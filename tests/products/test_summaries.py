@@ -50,11 +50,34 @@ def test_an_unconverged_check_is_said_with_its_remedy():
     coarse = _ag(0.90, 0.32)
     coarse["resolution"] = {"cells_per_wavelength": 3.4, "period_s": 1567.5}
     lines = "\n".join(_check_lines(coarse))
-    assert "3.4 cells per 1568 s wavelength" in lines and "--refine 2" in lines
+    assert "3.4 cells per 1568 s wavelength" in lines and "--refine auto, the default" in lines
+    # held back by the memory limit: the summary names the limit, not a remedy that would hit it again
+    coarse.update(refine=1, refine_choice={"refine": 1, "wanted": 3, "limited_by": "memory"})
+    lines = "\n".join(_check_lines(coarse))
+    assert "the memory limit held it to 1 times finer" in lines and "--refine auto" not in lines
     fine = _ag(0.95, 0.52)
     fine["resolution"] = {"cells_per_wavelength": MIN_CELLS_PER_WAVELENGTH + 1.4, "period_s": 1567.5}
     assert "refine" not in "\n".join(_check_lines(fine))
+    fine["refine"] = 2
+    assert "onto a grid 2 times finer (9.4 cells per dominant wavelength" in "\n".join(_check_lines(fine))
     assert "refine" not in "\n".join(_check_lines(_ag(0.95, 0.52)))  # a check without the figure says nothing
+
+
+def test_the_size_of_the_rays_amplitudes_against_the_wave_is_said():
+    # the rays' indicative amplitudes are an energy estimate (one sinusoidal wavelength per band);
+    # the wave's maxima are the like-for-like size. Measured: demo median ratio 0.87; the
+    # trans-Pacific interface case about 0.5 (docs/wave_check.md).
+    from tsunamifocus.studies.check import AMPLITUDE_RATIO_FACTOR
+
+    ag = _ag(0.93, 0.71)
+    ag["amplitude_ratio"] = {"median": 0.87, "p5": 0.52, "p95": 1.31}
+    lines = "\n".join(_check_lines(ag))
+    assert "the wave's maxima are a median 0.87 times the rays' indicative amplitudes (5-95 % of the segments " \
+           "0.52-1.31)" in lines and "read amplitudes from the wave check" not in lines
+    ag["amplitude_ratio"] = {"median": 0.99 / AMPLITUDE_RATIO_FACTOR, "p5": 0.3, "p95": 0.9}
+    assert "read amplitudes from the wave check" in "\n".join(_check_lines(ag))
+    ag["amplitude_ratio"] = {"median": 1.01 * AMPLITUDE_RATIO_FACTOR, "p5": 1.2, "p95": 2.0}
+    assert "read amplitudes from the wave check" in "\n".join(_check_lines(ag))
 
 
 def test_step_text_says_when_rays_took_local_steps():
@@ -112,7 +135,7 @@ def test_a_checked_but_weak_ranking_is_said_under_the_appendix_ranking():
     real["resolution"] = {"cells_per_wavelength": 3.4, "period_s": 1567.5}
     note = checked_ranking_note(real)
     assert "weak: fewer than half of its top 10 are among the wave's" in note
-    assert "top-10 overlap 2/10" in note and "amplitude ranking is weak too" in note and "--refine 2" in note
+    assert "top-10 overlap 2/10" in note and "amplitude ranking is weak too" in note and "--refine auto" in note
     amp = checked_ranking_note(_ag(0.93, 0.30, top_amp=8, top_lens=3))
     assert "the wave does not confirm this ranking" in amp and "rank this coast by indicative amplitude" in amp
     assert "refine" not in amp

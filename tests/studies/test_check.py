@@ -141,9 +141,59 @@ def test_refined_check_converges_to_greens_law_at_the_stop_isobath():
         err[r], cpw[r] = abs(amp[0] / green - 1.0), res["cells_per_wavelength"]
     assert err[1] > 0.2 and err[4] < 0.06  # measured: 33 % (4.9 cells per wavelength) and 5 % (16.6)
     assert cpw[4] > 3 * cpw[1]
-    # fewer cells per wavelength than the threshold: a ResolutionWarning naming the remedy
-    with pytest.warns(ResolutionWarning, match="--refine 2"):
-        compare_with_waves(depth, eta0, seg, duration_s=600.0, period_s=1000.0 * MIN_CELLS_PER_WAVELENGTH / cpw[1] / 1.5,
-                           k=1, boundary=walls, threads=1)
-    with pytest.raises(InputError, match="refine factor"):
+    # fewer cells per wavelength than the minimum on a grid the caller chose: a ResolutionWarning
+    # naming the remedy (4.9 cells: refine 2 gives 8.9)
+    with pytest.warns(ResolutionWarning, match="--refine 2 or auto"):
+        compare_with_waves(depth, eta0, seg, duration_s=600.0, refine=1, period_s=1000.0, k=1, boundary=walls,
+                           threads=1)
+    with pytest.raises(InputError, match="refine 0: expected 'auto'"):
         compare_with_waves(depth, eta0, seg, duration_s=600.0, refine=0, k=1)
+
+
+def test_check_chooses_a_grid_fine_enough_for_the_coast_by_default():
+    """The default ``refine="auto"`` solves the wave on the coarsest grid with at least
+    MIN_CELLS_PER_WAVELENGTH cells per dominant wavelength at the stop isobath (about ten for a
+    second-order scheme: common practice, no source), which brings the maximum there closer to
+    Green's law (1838: amplitude ~ h**(-1/4) up a gentle slope; half of a hump released at rest
+    goes each way, d'Alembert) than the run's own grid; a memory limit that forbids the finer grid
+    holds it back, and the check then says which limit did."""
+    import warnings
+
+    import shapely
+
+    from tsunamifocus.errors import ResolutionWarning
+    from tsunamifocus.propagation.wave import _BYTES_PER_CELL
+    from tsunamifocus.studies.check import MIN_CELLS_PER_WAVELENGTH, choose_refine, compare_with_waves
+
+    dx, ny = 4000.0, 6
+    x = np.arange(0.0, 700e3, dx) + dx / 2
+    h = np.interp(x, [0, 150e3, 650e3, 700e3], [4000.0, 4000.0, 8.0, -20.0])
+    depth = make_grid(np.tile(h, (ny, 1)), x, np.arange(ny) * dx + dx / 2, "EPSG:3857")
+    eta0 = depth.copy(data=np.tile(np.exp(-((x - 80e3) ** 2) / (2 * 20e3**2)), (ny, 1)))
+    xs = float(np.interp(20.0, h[::-1], x[::-1]))
+    seg = pd.DataFrame({"segment_id": ["S1", "S2", "S3"], "amp_stop_m": [1.0, 2.0, 3.0],
+                        "geometry": [shapely.LineString([(xs, i * ny * dx / 3), (xs, (i + 1) * ny * dx / 3)])
+                                     for i in range(3)]})
+    walls = {"west": "absorb", "east": "absorb", "south": "reflect", "north": "reflect"}
+    amp = {}
+    for refine in (1, "auto"):
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", ResolutionWarning)
+            chk = compare_with_waves(depth, eta0, seg, duration_s=12000.0, refine=refine, period_s=1000.0, k=1,
+                                     boundary=walls, threads=1)
+        res = chk.agreement["resolution"]
+        amp[refine] = float(chk.table["wave_amp_stop_m"].iloc[0]) / (0.5 * (4000.0 / res["band_depth_m"]) ** 0.25)
+    choice = chk.agreement["refine_choice"]
+    assert choice["refine"] == choice["wanted"] == chk.agreement["refine"] == 2 and choice["limited_by"] is None
+    assert res["cells_per_wavelength"] >= MIN_CELLS_PER_WAVELENGTH
+    assert abs(amp["auto"] - 1) < 0.2 < abs(amp[1] - 1)  # measured: 15 % and 33 % below Green's law
+    # a longer period needs no refinement; without a period the run's grid is kept
+    assert choose_refine(depth, 3000.0, duration_s=12000.0)["refine"] == 1
+    assert choose_refine(depth, None, duration_s=12000.0) == {"refine": 1, "wanted": None, "limited_by": None,
+                                                               "min_cells_per_wavelength": MIN_CELLS_PER_WAVELENGTH}
+    # memory for the run's grid only: the check stays there and says why
+    cells = depth.size
+    with pytest.warns(ResolutionWarning, match="memory limit allowed a grid 1 times finer, not 2"):
+        chk = compare_with_waves(depth, eta0, seg, duration_s=600.0, period_s=1000.0, k=1, boundary=walls,
+                                 threads=1, max_memory_bytes=_BYTES_PER_CELL * cells * 2)
+    assert chk.agreement["refine_choice"]["limited_by"] == "memory" and chk.agreement["refine"] == 1

@@ -64,8 +64,10 @@ def demo_runs():
     a = analyse_source(depth, sc, sc.sources[0], segments=segments, keep_paths=0)
     sc8 = _with_seed(sc, sc.rays.seed + 1)
     b = analyse_source(depth, sc8, sc.sources[0], segments=segments, keep_paths=0)
+    # the check as it runs by default: refine "auto" (the demo's 3 km cells give 5.3 cells per
+    # dominant wavelength at the stop isobath; it solves on the sea floor refined 2x, 10.5 cells)
     chk = compare_with_waves(depth, a.eta, a.focusing.segments, reference_depth=a.focusing.reference_depth,
-                             stop_depth_m=sc.rays.stop_depth_m, k=K)
+                             stop_depth_m=sc.rays.stop_depth_m, k=K, period_s=a.period_s)
     return sc, a, b, chk
 
 
@@ -77,15 +79,18 @@ def test_demo_ray_rankings_agree_with_the_wave_solver(demo_runs):
     assert sc.rays.count == DEFAULT_RAY_COUNT and len(a.focusing.bands) == 3  # the default settings are what is judged
     seg = a.focusing.segments
     assert chk.agreement["n"] >= 60  # measured: all 66 segments of the coast of interest ranked
-    # amplitude at the stop isobath. Measured on 2026-12-02 (10000 rays): Spearman 0.926, top-10
-    # common 8/10 (the project target: 8/10).
-    assert chk.agreement["spearman"] >= 0.926 - 0.05
-    assert chk.agreement["topk_common"] >= 8 - 2
-    # lensing factor (wave: (A_real / A_reference)^2). Measured on 2026-12-02 (10000 rays, both
-    # oceans averaged over the reference's wavelength): Spearman 0.706, top-10 common 7/10 (the
-    # project target of 0.8 is not met; docs/focusing.md).
-    assert chk.agreement["lensing"]["spearman"] >= 0.706 - 0.1
-    assert chk.agreement["lensing"]["topk_common"] >= 7 - 2
+    assert chk.agreement["refine"] == 2  # measured: 10.5 cells per dominant wavelength at the stop isobath
+    # amplitude at the stop isobath. Measured on 2026-12-03 (10000 rays, the check refined 2x):
+    # Spearman 0.915, top-10 common 9/10 (the project targets: 0.9, 8/10; against the check at the
+    # grid's own 3 km, 0.926 and 8/10).
+    assert chk.agreement["spearman"] >= 0.915 - 0.05
+    assert chk.agreement["topk_common"] >= 9 - 2
+    # lensing factor (wave: (A_real / A_reference)^2). Measured on 2026-12-03 (10000 rays, both
+    # oceans averaged over the reference's wavelength, the check refined 2x): Spearman 0.672,
+    # top-10 common 6/10 (0.706, 7/10 against the check at 3 km). The project targets (0.8, 7/10)
+    # are not met; docs/focusing.md.
+    assert chk.agreement["lensing"]["spearman"] >= 0.672 - 0.1
+    assert chk.agreement["lensing"]["topk_common"] >= 6 - 2
     # the check's figures are those of the ranked ray column against the wave column
     wave = chk.table.set_index("segment_id")["wave_amp_stop_m"]
     again = compare_rankings(_ranked(seg, "amp_stop_m"), wave, k=K)
@@ -110,8 +115,8 @@ def test_demo_rankings_are_stable_between_ray_seeds(demo_runs):
     assert lens["spearman"] >= 0.993 - 0.05
     assert lens["topk_common"] >= 9 - 2
     # the second seed is judged by the same wave run as well as the first.
-    # Measured on 2026-12-02 (10000 rays): seed 8 amplitude Spearman 0.930 vs the wave.
-    assert b_wave["spearman"] >= 0.930 - 0.05
+    # Measured on 2026-12-03 (10000 rays, the check refined 2x): seed 8 amplitude Spearman 0.917.
+    assert b_wave["spearman"] >= 0.917 - 0.05
 
 
 # ------------------------------------------------------------------------------------------------
@@ -144,15 +149,25 @@ def test_real_grid_amplitude_ranking_against_the_wave(etopo_path):
         warnings.simplefilter("ignore", ResolutionWarning)  # coverage of a coast of interest, said elsewhere
         a = analyse_source(depth, sc, sc.sources[0], segments=seg, keep_paths=0)
     assert len(a.focusing.segments) > 150  # measured: 183 segments in the coast of interest
-    chk = compare_with_waves(depth, a.eta, a.focusing.segments, stop_depth_m=20.0, k=K)
+    # the check as it runs by default (refine "auto": 5.1 cells per dominant wavelength at the stop
+    # isobath at 0.1 degree, 8.2 on the sea floor refined 2x) and at the grid's own 0.1 degree
+    chk = compare_with_waves(depth, a.eta, a.focusing.segments, stop_depth_m=20.0, k=K, period_s=a.period_s)
+    assert chk.agreement["refine"] == 2
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", ResolutionWarning)  # 5.1 cells per wavelength: the point of the pin
+        chk1 = compare_with_waves(depth, a.eta, a.focusing.segments, stop_depth_m=20.0, k=K, refine=1,
+                                  period_s=a.period_s)
     # The 30 segments of water the eikonal front cannot reach (inland seas and basins below sea
     # level behind the coast) are not ranked, nor are the strait segments no tube footprint reaches
     # since footprints stop where the coast turns its back to the ray. Measured 2026-12-03: 117.
     assert chk.agreement["n"] >= 105
-    # Project target: Spearman >= 0.8 against the wave at the grid's 0.1 degree. NOT met on this
-    # case: measured 2026-12-03 (10000 rays, seed 0) 0.678, top-10 3/10 (seed 1 in
-    # benchmarks/bench_focusing.py: 0.683); against the wave solved on the same sea floor refined
-    # 2x, 0.825 / 0.813 (docs/focusing.md). The measured figure is pinned here with a margin of
-    # 0.08; a source given in the reverse point order (dipping east, toward the ocean) gave 0.871.
-    print(chk.summary().splitlines()[1], f"n={chk.agreement['n']}")
-    assert chk.agreement["spearman"] >= 0.678 - 0.08, chk.agreement
+    # Project target: Spearman >= 0.8 against the wave. Measured 2026-12-03 (10000 rays, seed 0;
+    # seed 1 in benchmarks/bench_focusing.py): against the check as it runs by default (the sea
+    # floor refined 2x, 0.05 degree) 0.825, top-10 5/10 (seed 1: 0.813); refined 4x (0.025 degree)
+    # 0.831 / 0.819. Against the check at the grid's own 0.1 degree, which is not converged on this
+    # coast (docs/wave_check.md), 0.678 / 0.683, top-10 3/10: below the target. Both figures are
+    # pinned with a margin (0.05 and 0.08); a source given in the reverse point order (dipping
+    # east, toward the ocean) gave 0.871 at 0.1 degree.
+    print(chk.summary().splitlines()[1], f"n={chk.agreement['n']}", f"at 0.1 degree {chk1.agreement['spearman']:.3f}")
+    assert chk.agreement["spearman"] >= 0.825 - 0.05, chk.agreement
+    assert chk1.agreement["spearman"] >= 0.678 - 0.08, chk1.agreement

@@ -7,6 +7,7 @@ import argparse
 from ..constants import DEFAULTS, WORK_LIMITS
 from ..grid import MAX_REFINE_FACTOR
 from ..products.check import run_wave_check
+from ..studies.check import AUTO_REFINE, MIN_CELLS_PER_WAVELENGTH
 
 NAME = "check"
 HELP = "check a run's ranking against a linear long-wave (shallow-water) simulation"
@@ -21,11 +22,25 @@ def configure(p: argparse.ArgumentParser) -> None:
                    help="simulated duration [h] (default: 1.2 x the latest first arrival of the run's segments + 1 h)")
     p.add_argument("--force", action="store_true", help="run the wave solver even beyond the work limit of "
                    f"{WORK_LIMITS['wave_cell_updates']:.3g} wet-cell updates (cells x time steps)")
-    p.add_argument("--refine", type=int, default=1, help="solve the wave on the run's sea floor interpolated onto a grid "
-                   f"N times finer (1-{MAX_REFINE_FACTOR}; more cells per wavelength near the coast, about N^3 times "
-                   "the cost; default 1: the run's grid)")
+    p.add_argument("--refine", type=_refine_arg, default=AUTO_REFINE, metavar="N|auto",
+                   help="solve the wave on the run's sea floor interpolated onto a grid N times finer "
+                   f"(1-{MAX_REFINE_FACTOR}; more cells per wavelength near the coast, about N^3 times the cost; "
+                   f"1: the run's grid; default {AUTO_REFINE}: the coarsest grid with at least "
+                   f"{MIN_CELLS_PER_WAVELENGTH:g} cells per dominant wavelength at the stop isobath, within the "
+                   "memory and work limits)")
     top_k = DEFAULTS["output"]["top_k"]
     p.add_argument("--top", type=int, default=top_k, help=f"k of the top-k overlap (default {top_k}, as [output] top_k)")
+
+
+def _refine_arg(text: str) -> int | str:
+    """``--refine`` value: ``auto`` or an integer factor (range checked by the check itself)."""
+    if text.strip().lower() == AUTO_REFINE:
+        return AUTO_REFINE
+    try:
+        return int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"expected {AUTO_REFINE!r} or an integer from 1 to {MAX_REFINE_FACTOR}, "
+                                         f"got {text!r}") from None
 
 
 def run(args: argparse.Namespace) -> int:

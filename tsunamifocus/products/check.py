@@ -28,7 +28,7 @@ from ..io.guards import check_output_folder
 from ..io.runfolder import OutputFolder
 from ..io.runs import read_run
 from ..io.scenario import Scenario, parse_scenario
-from ..studies.check import FAINT_WAVE_FRACTION, WaveCheck, compare_with_waves
+from ..studies.check import AUTO_REFINE, FAINT_WAVE_FRACTION, WaveCheck, compare_with_waves
 from .appendix import build_appendix
 from .figures import plot_check_profile, plot_ray_vs_wave
 
@@ -122,7 +122,7 @@ def run_wave_check(
     k: int = 10,
     progress: bool = True,
     force: bool = False,
-    refine: int = 1,
+    refine: int | str = AUTO_REFINE,
 ) -> dict[str, Any]:
     """Run the wave-equation check of a finished run and write its outputs.
 
@@ -143,9 +143,10 @@ def run_wave_check(
         Messages and a progress bar on stderr.
     force : bool
         Run the wave solver beyond the work limit (``constants.WORK_LIMITS["wave_cell_updates"]``).
-    refine : int
-        Solve the wave on the run's sea floor interpolated onto a grid this many times finer
-        (:func:`tsunamifocus.studies.check.compare_with_waves` ``refine``).
+    refine : int or "auto"
+        Solve the wave on the run's sea floor interpolated onto a grid this many times finer;
+        ``"auto"`` (default): fine enough for the check's minimum of cells per dominant wavelength
+        at the stop isobath (:func:`tsunamifocus.studies.check.compare_with_waves` ``refine``).
 
     Returns
     -------
@@ -157,8 +158,9 @@ def run_wave_check(
         raise InputError(f"--top {k}: expected k >= 1")
     if hours is not None and not hours > 0:
         raise InputError(f"--hours {hours}: expected a positive duration in hours")
-    if isinstance(refine, bool) or not isinstance(refine, int) or not 1 <= refine <= MAX_REFINE_FACTOR:
-        raise InputError(f"--refine {refine!r}: expected an integer from 1 to {MAX_REFINE_FACTOR}")
+    if refine != AUTO_REFINE and (isinstance(refine, bool) or not isinstance(refine, int)
+                                  or not 1 <= refine <= MAX_REFINE_FACTOR):
+        raise InputError(f"--refine {refine!r}: expected {AUTO_REFINE!r} or an integer from 1 to {MAX_REFINE_FACTOR}")
     out_dir = pathlib.Path(out) if out is not None else run_dir / CHECK_FOLDER
     check_output_folder(out_dir, overwrite=overwrite, kind="wave_check", option="--out" if out else "check folder (--out)",
                         inputs=[("run file", run_dir / f) for f in ("layers.nc", "segments.csv", "scenario.toml",
@@ -252,7 +254,9 @@ def check_section(chk: WaveCheck, figures: dict[str, str]) -> dict[str, Any]:
         "The same initial sea surface was propagated with the linear long-wave (shallow-water) equations on "
         + ("the same grid" if ag.get("refine", 1) <= 1 else
            f"the same sea floor interpolated onto a grid {ag['refine']} times finer (more cells per wavelength "
-           "near the coast, no new detail)")
+           "near the coast, no new detail"
+           + (f"; chosen for at least {ag['refine_choice']['min_cells_per_wavelength']:g} cells per dominant "
+              "wavelength at the stop isobath" if ag.get("refine_choice") else "") + ")")
         + ", over the unsmoothed sea floor and over the run's lensing reference (staggered C grid, "
         "forward-backward time stepping under the CFL condition, absorbing open boundaries, absorbing coast "
         "at the stop isobath). Like is compared with like on the segments the run ranks: the maximum "
@@ -272,6 +276,10 @@ def check_section(chk: WaveCheck, figures: dict[str, str]) -> dict[str, Any]:
         metrics.update({"lensing ranking: Spearman": fmt(lens.get("spearman")),
                         "lensing ranking: Kendall tau": fmt(lens.get("kendall")),
                         f"lensing ranking: top-{k} overlap": lens.get("topk_overlap")})
+    if ag.get("amplitude_ratio"):
+        r = ag["amplitude_ratio"]
+        metrics["wave maximum / ray amplitude: median (5-95 % of the segments)"] = \
+            f"{r['median']:.2f} ({r['p5']:.2f}-{r['p95']:.2f})"
     res = ag.get("resolution") or {}
     if ag.get("refine", 1) > 1:
         metrics["wave grid"] = f"the run's sea floor interpolated onto a grid {ag['refine']} times finer"

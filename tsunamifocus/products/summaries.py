@@ -12,7 +12,7 @@ from ..cautions import caution_summary
 from ..focusing.ranking import ranked_mask
 from ..ocean.wavelength import WAVELENGTH_FRACTION
 from ..studies.run import RunResult
-from ..studies.check import FAINT_WAVE_FRACTION, MIN_CELLS_PER_WAVELENGTH
+from ..studies.check import AMPLITUDE_RATIO_FACTOR, FAINT_WAVE_FRACTION, MIN_CELLS_PER_WAVELENGTH
 
 __all__ = ['format_summary', 'step_text']
 
@@ -164,6 +164,12 @@ def _check_lines(ag: dict) -> list[str]:
         out.append(f"    lensing ranking against the wave:   {held(ag['lensing'])}{weak(ag['lensing'])}")
         if _amplitude_first(ag):
             out.append("    rank this coast with the amplitude ranking, not the lensing factor (docs/focusing.md)")
+    r = ag.get("amplitude_ratio")
+    if r:
+        out.append(f"    size: the wave's maxima are a median {r['median']:.2f} times the rays' indicative amplitudes "
+                   f"(5-95 % of the segments {r['p5']:.2f}-{r['p95']:.2f})"
+                   + ("; read amplitudes from the wave check" if not 1 / AMPLITUDE_RATIO_FACTOR <= r["median"]
+                      <= AMPLITUDE_RATIO_FACTOR else ""))
     if ag.get("n_faint_wave"):
         out.append(f"    {ag['n_faint_wave']} of the segments got almost no wave in the check (below "
                    f"{100 * FAINT_WAVE_FRACTION:g} % of the median: a narrow passage or sheltered water the wave barely "
@@ -172,8 +178,22 @@ def _check_lines(ag: dict) -> list[str]:
     if cpw is not None:
         out.append(f"    the check had {cpw:.1f} cells per {ag['resolution']['period_s']:.0f} s wavelength at the stop isobath "
                    f"(fewer than {MIN_CELLS_PER_WAVELENGTH:g}): its coastal maxima are not converged; re-run it on a "
-                   f"finer grid (tsunamifocus check RUN --refine 2) before reading these figures (docs/wave_check.md)")
+                   f"finer grid ({_refine_hint(ag)}) before reading these figures (docs/wave_check.md)")
+    elif ag.get("refine", 1) > 1:
+        out.append(f"    the wave was solved on the run's sea floor interpolated onto a grid {ag['refine']} times finer"
+                   + (f" ({(ag.get('resolution') or {}).get('cells_per_wavelength', float('nan')):.1f} cells per "
+                      "dominant wavelength at the stop isobath)" if ag.get("resolution") else ""))
     return out
+
+
+def _refine_hint(ag: dict) -> str:
+    """What to run for a converged check, given why the last one was not."""
+    lim = (ag.get("refine_choice") or {}).get("limited_by")
+    if lim in ("memory", "work"):
+        return (f"the {lim} limit held it to {ag.get('refine', 1)} times finer: raise [bathymetry] max_memory_gb "
+                "or use tsunamifocus check RUN --force, or crop the grid")
+    return "tsunamifocus check RUN --refine auto, the default"
+
 
 
 def checked_ranking_note(ag: dict | None) -> str | None:
@@ -196,7 +216,7 @@ def checked_ranking_note(ag: dict | None) -> str | None:
     cpw = _unconverged_cells(ag)
     if cpw is not None:
         text += (f" The check had {cpw:.1f} cells per wavelength at the stop isobath (fewer than "
-                 f"{MIN_CELLS_PER_WAVELENGTH:g}): refine it (tsunamifocus check RUN --refine 2) before reading "
+                 f"{MIN_CELLS_PER_WAVELENGTH:g}): refine it ({_refine_hint(ag)}) before reading "
                  "these figures.")
     return text
 

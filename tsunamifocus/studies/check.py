@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import math
+import sys
 from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass
 from pathlib import Path
@@ -16,24 +17,36 @@ from ..cautions import caution_text
 import warnings
 
 from ..coast.waves import _coastal_cells, segment_max_amplitude
-from ..constants import GRAVITY, STOP_DEPTH_M
+from ..constants import DEFAULTS, GRAVITY, STOP_DEPTH_M, WORK_LIMITS
 from ..errors import CoastError, InputError, ResolutionWarning
 from ..focusing.agreement import compare_rankings
 from ..focusing.ranking import ranked_mask
-from ..grid import refine_grid
-from ..propagation.wave import WAVE_CAUTION, WaveResult, _check_depth, _wet_mask, simulate_linear_long_wave
+from ..grid import MAX_REFINE_FACTOR, refine_grid
+from ..propagation.wave import (_BYTES_PER_CELL, WAVE_CAUTION, WaveResult, _check_depth, _polar_dry, _wet_mask,
+                                simulate_linear_long_wave, wave_time_step)
 
-__all__ = ['MIN_CELLS_PER_WAVELENGTH', 'FAINT_WAVE_FRACTION', 'WaveCheck', 'compare_with_waves',
-           'default_check_duration_s', 'faint_wave_segments', 'wave_resolution']
+__all__ = ['AMPLITUDE_RATIO_FACTOR', 'AUTO_REFINE', 'MIN_CELLS_PER_WAVELENGTH', 'FAINT_WAVE_FRACTION', 'WaveCheck', 'choose_refine',
+           'compare_with_waves', 'default_check_duration_s', 'faint_wave_segments', 'wave_resolution']
 
-#: Fewest grid cells per dominant wavelength at the stop isobath below which the check warns that
-#: its coastal maxima are not converged in grid spacing. Set between two measurements
-#: (docs/wave_check.md): the demo at 3 km (5.3 cells per wavelength there) kept its wave lensing
-#: ranking on its sea floor interpolated to half the spacing (Spearman 0.95 between the two), the
-#: real-grid benchmark case at 0.1 degree (3.4 cells) did not (0.70). Absolute coastal maxima need
-#: more: on a plane slope the check's maximum at the stop isobath was 33 % below Green's law at
-#: about 5 cells per wavelength, 5 % below at 17 (tests/studies/test_check.py).
-MIN_CELLS_PER_WAVELENGTH: float = 4.0
+#: Fewest grid cells per dominant wavelength at the stop isobath the check wants for its coastal
+#: maxima: ``refine="auto"`` (the default) solves the wave on a grid fine enough for it
+#: (:func:`choose_refine`), and a check with fewer warns. A second-order scheme needs about ten
+#: cells per wavelength (common practice, no source); measured (docs/wave_check.md): on the
+#: trans-Pacific Japan Trench interface case at 0.1 degree (5.1 cells) the wave's amplitude
+#: ranking agreed with the same sea floor solved at 0.025 degree at Spearman 0.959 and only 4 of
+#: its top ten, at 0.05 degree (10 cells) at 0.991 and 7 of ten; on a plane slope the maximum at
+#: the stop isobath was 33 % / 15 % / 5 % below Green's law at about 5 / 9 / 17 cells
+#: (tests/studies/test_check.py). Below 4 cells the check's lensing ranking changed a good deal
+#: with the spacing (Spearman 0.70 on the old real-grid case at 3.4 cells).
+MIN_CELLS_PER_WAVELENGTH: float = 8.0
+
+#: The run summary tells a reader to take amplitudes from the wave check when the median of the
+#: wave's maxima over the rays' indicative amplitudes is more than this factor from 1 either way
+#: (measured: demo 0.87, the trans-Pacific interface case about 0.5; docs/wave_check.md).
+AMPLITUDE_RATIO_FACTOR: float = 1.5
+
+#: ``refine`` value that lets the check choose its own grid (:func:`choose_refine`); the default.
+AUTO_REFINE: str = "auto"
 
 #: A ranked segment whose wave maximum is below this fraction of the ranked segments' median is
 #: one the wave barely reached on the check's grid. On the real-grid benchmark case at 0.1 degree,
@@ -92,6 +105,90 @@ def wave_resolution(depth: xr.DataArray, period_s: float, *, stop_depth_m: float
             "cells_per_wavelength": lam / cell}
 
 
+def choose_refine(
+    depth: xr.DataArray,
+    period_s: float | None,
+    *,
+    duration_s: float,
+    stop_depth_m: float = STOP_DEPTH_M,
+    gravity: float = GRAVITY,
+    cfl: float = 0.8,
+    polar_cutoff_deg: float | None = 80.0,
+    max_memory_bytes: float | None = DEFAULTS["bathymetry"]["max_memory_gb"] * 1e9,
+    max_cell_updates: float | None = WORK_LIMITS["wave_cell_updates"],
+) -> dict[str, Any]:
+    """The coarsest refinement that gives the check :data:`MIN_CELLS_PER_WAVELENGTH` at the stop isobath.
+
+    The wave check samples its maxima at the stop isobath, where the wave is shortest. This picks
+    the smallest factor ``N`` (1 to :data:`~tsunamifocus.grid.MAX_REFINE_FACTOR`) for which
+    :func:`wave_resolution` of ``refine_grid(depth, N)`` reaches the minimum, then lowers it while
+    the solver's working arrays (``N^2`` times the cells) or its work (``N^3`` times the wet-cell
+    updates: ``N`` times the time steps) would exceed the limits the solver enforces.
+
+    Parameters
+    ----------
+    depth : xarray.DataArray
+        The run's depth grid [m].
+    period_s : float or None
+        The source's dominant period [s]; None (unknown): the run's own grid (``refine`` 1).
+    duration_s : float
+        Simulated time [s] (for the work estimate).
+    stop_depth_m, gravity, cfl, polar_cutoff_deg, max_memory_bytes, max_cell_updates
+        As in :func:`~tsunamifocus.propagation.wave.simulate_linear_long_wave`.
+
+    Returns
+    -------
+    dict
+        ``refine`` (the factor to use), ``wanted`` (the factor the resolution asks for; None when
+        the period is unknown or the grid has no coast), ``limited_by`` (None, ``"memory"``,
+        ``"work"`` or ``"largest factor"``: why ``refine`` is below ``wanted`` or the minimum is not
+        reached) and ``min_cells_per_wavelength``.
+    """
+    out: dict[str, Any] = {"refine": 1, "wanted": None, "limited_by": None,
+                           "min_cells_per_wavelength": MIN_CELLS_PER_WAVELENGTH}
+    if period_s is None:
+        return out
+    cpw1 = wave_resolution(depth, period_s, stop_depth_m=stop_depth_m, gravity=gravity)["cells_per_wavelength"]
+    if not math.isfinite(cpw1):
+        return out
+    info = _check_depth(depth)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", ResolutionWarning)  # the solver itself says so
+        n_wet = int(_polar_dry(info, _wet_mask(np.asarray(depth.values, float), stop_depth_m),
+                               polar_cutoff_deg).sum())
+    steps1 = duration_s / wave_time_step(depth, stop_depth_m=stop_depth_m, cfl=cfl, gravity=gravity,
+                                         polar_cutoff_deg=polar_cutoff_deg)
+
+    def over(n: int) -> str | None:
+        if max_memory_bytes is not None and _BYTES_PER_CELL * info.ny * info.nx * n * n > max_memory_bytes:
+            return "memory"
+        if max_cell_updates is not None and float(n_wet) * n * n * math.ceil(steps1 * n) > max_cell_updates:
+            return "work"
+        return None
+
+    n = max(1, min(MAX_REFINE_FACTOR, math.ceil(MIN_CELLS_PER_WAVELENGTH / cpw1)))
+    while True:
+        limit = over(n) if n > 1 else None
+        if limit is not None:
+            out["wanted"], out["limited_by"] = n, limit
+            n -= 1
+            while n > 1 and over(n) is not None:
+                n -= 1
+            break
+        # the stop-isobath band of a finer grid lies in shallower water: measure it on the finer grid
+        cpw = cpw1 if n == 1 else wave_resolution(refine_grid(depth, n), period_s, stop_depth_m=stop_depth_m,
+                                                  gravity=gravity)["cells_per_wavelength"]
+        if cpw >= MIN_CELLS_PER_WAVELENGTH:
+            out["wanted"] = n
+            break
+        if n >= MAX_REFINE_FACTOR:
+            out["wanted"], out["limited_by"] = n, "largest factor"
+            break
+        n += 1
+    out["refine"] = n
+    return out
+
+
 # --------------------------------------------------------------------------------------------------
 # one-call check for the pipeline
 # --------------------------------------------------------------------------------------------------
@@ -111,7 +208,11 @@ class WaveCheck:
         threshold exceedance on the segment's stop-isobath cells), ``rank_ray``, ``rank_wave`` (1 =
         largest, <NA> where the value is missing), ``ratio_wave_to_ray``.
     agreement : dict
-        :func:`compare_rankings` of the two columns plus ``ray_column``.
+        :func:`compare_rankings` of the two columns plus ``ray_column``, ``refine`` (and with
+        ``refine="auto"`` ``refine_choice``), ``resolution`` (when the period is known),
+        ``n_faint_wave``, ``amplitude_ratio`` (median and 5 / 95 % of ``ratio_wave_to_ray`` over
+        the ranked segments: how the rays' indicative amplitudes compare in size with the wave's
+        maxima) and ``lensing``.
     figure : pathlib.Path or None
         The scatter figure, when ``figure_path`` was given.
     """
@@ -134,6 +235,8 @@ class WaveCheck:
             f"  amplitude ranking: Spearman {a['spearman']:.2f}, Kendall tau {a['kendall']:.2f}, "
             f"top-{a['k']} overlap {a['topk_common']}/{a['k']}",
         ]
+        if a.get("amplitude_ratio"):
+            lines.append(f"  {_ratio_words(a['amplitude_ratio'])}")
         lens = a.get("lensing")
         if lens:
             lines.append(f"  lensing ranking (wave over the real / over the reference sea floor): Spearman "
@@ -144,7 +247,7 @@ class WaveCheck:
                          "median): water the wave barely reaches on this grid (a narrow passage, sheltered water); "
                          "see them along the coast in ray_vs_wave_profile.png (docs/wave_check.md, Limits)")
         res = a.get("resolution")
-        grid = f"a grid {a['refine']} times finer than the run's" if a.get("refine", 1) > 1 else "the run's grid"
+        grid = _grid_words(a.get("refine", 1))
         if res:
             lines.append(f"  wave solved on {grid}: {res['cells_per_wavelength']:.1f} cells per {res['period_s']:.0f} s "
                          f"wavelength at the stop isobath"
@@ -158,6 +261,16 @@ class WaveCheck:
             "  " + WAVE_CAUTION,
         ]
         return "\n".join(lines)
+
+
+def _ratio_words(r: Mapping[str, float]) -> str:
+    """The wave's maxima against the rays' indicative amplitudes, in words."""
+    return (f"wave maximum / ray amplitude: median {r['median']:.2f} (5-95 % of the segments "
+            f"{r['p5']:.2f}-{r['p95']:.2f})")
+
+
+def _grid_words(refine: int) -> str:
+    return f"a grid {refine} times finer than the run's" if refine > 1 else "the run's grid"
 
 
 def default_check_duration_s(depth: xr.DataArray, segments: Any = None, *, stop_depth_m: float = STOP_DEPTH_M,
@@ -206,7 +319,7 @@ def compare_with_waves(
     gravity: float = GRAVITY,
     threads: int | None = None,
     progress: bool | Callable[[int, int], None] | None = None,
-    refine: int = 1,
+    refine: int | str = AUTO_REFINE,
     period_s: float | None = None,
     **simulate_kwargs: Any,
 ) -> WaveCheck:
@@ -241,10 +354,14 @@ def compare_with_waves(
         Top-k size of the overlap.
     search_radius_cells, statistic
         Passed to :func:`segment_max_amplitude` (the radius in cells of ``depth``).
-    refine : int
+    refine : int or "auto"
         Solve the wave on ``depth``, ``eta0`` and ``reference_depth`` interpolated onto a grid this
         many times finer (:func:`tsunamifocus.grid.refine_grid`: the same sea floor, more cells per
-        wavelength; cost about ``refine**3`` times). 1 (default): the run's own grid.
+        wavelength; cost about ``refine**3`` times); 1: the run's own grid. ``"auto"`` (default,
+        :data:`AUTO_REFINE`): the coarsest factor that gives :data:`MIN_CELLS_PER_WAVELENGTH` cells
+        per dominant wavelength at the stop isobath within the solver's memory and work limits
+        (:func:`choose_refine`; 1 when ``period_s`` is not given). The choice is kept in
+        ``agreement["refine_choice"]``.
     period_s : float, optional
         The source's dominant period [s]: the check then reports :func:`wave_resolution` of the
         grid it solved on (``agreement["resolution"]``) and warns (:class:`ResolutionWarning`) when
@@ -268,19 +385,41 @@ def compare_with_waves(
         raise CoastError(f"segments table has no column {lensing_column!r} to compare with the wave lensing")
     if duration_s is None:
         duration_s = default_check_duration_s(depth, segments, stop_depth_m=stop_depth_m, gravity=gravity)
+    choice = None
+    if isinstance(refine, str) and refine == AUTO_REFINE:
+        limits = {key: simulate_kwargs[key] for key in ("max_memory_bytes", "max_cell_updates", "polar_cutoff_deg")
+                  if key in simulate_kwargs}
+        choice = choose_refine(depth, period_s, duration_s=duration_s, stop_depth_m=stop_depth_m, gravity=gravity,
+                               cfl=cfl, **limits)
+        refine = choice["refine"]
+    elif isinstance(refine, bool) or not isinstance(refine, (int, np.integer)) or not 1 <= refine <= MAX_REFINE_FACTOR:
+        raise InputError(f"refine {refine!r}: expected {AUTO_REFINE!r} or an integer from 1 to {MAX_REFINE_FACTOR}")
     depth_w, eta_w = refine_grid(depth, refine), refine_grid(eta0, refine)
     resolution = None
     if period_s is not None:
         resolution = {**wave_resolution(depth_w, period_s, stop_depth_m=stop_depth_m, gravity=gravity),
                       "refine": int(refine)}
-        if resolution["cells_per_wavelength"] < MIN_CELLS_PER_WAVELENGTH:
+        cpw = resolution["cells_per_wavelength"]
+        if cpw < MIN_CELLS_PER_WAVELENGTH:
+            if choice is not None and choice["limited_by"] in ("memory", "work"):
+                how = (f"the {choice['limited_by']} limit allowed a grid {refine} times finer, not "
+                       f"{choice['wanted']}; raise it ([bathymetry] max_memory_gb, check --force) or crop the grid")
+            elif choice is not None and choice["limited_by"]:
+                how = f"even the finest grid the check makes ({MAX_REFINE_FACTOR} times finer) has too few"
+            else:
+                nxt = min(MAX_REFINE_FACTOR, max(int(refine) + 1, math.ceil(refine * MIN_CELLS_PER_WAVELENGTH / cpw)))
+                how = (f"solve the wave on a finer grid (check --refine {nxt} or {AUTO_REFINE}: about "
+                       f"{(nxt / refine) ** 3:.0f} times the cost)")
             warnings.warn(
-                f"wave check: {resolution['cells_per_wavelength']:.1f} cells per {period_s:.0f} s wavelength at "
-                f"the stop isobath (cells of {resolution['cell_m'] / 1e3:.1f} km, band depth "
-                f"{resolution['band_depth_m']:.0f} m), fewer than {MIN_CELLS_PER_WAVELENGTH:g}: the coastal wave "
-                f"maxima are not converged in grid spacing; solve the wave on a finer grid "
-                f"(check --refine {max(2, int(refine) * 2)}: about {max(2, int(refine) * 2) ** 3} times the cost)",
+                f"wave check: {cpw:.1f} cells per {period_s:.0f} s wavelength at the stop isobath (cells of "
+                f"{resolution['cell_m'] / 1e3:.1f} km, band depth {resolution['band_depth_m']:.0f} m), fewer than "
+                f"{MIN_CELLS_PER_WAVELENGTH:g}: the coastal wave maxima are not converged in grid spacing; {how}",
                 ResolutionWarning, stacklevel=2)
+    if progress is True and (refine > 1 or choice is not None):
+        print(f"  wave solved on {_grid_words(refine)}"
+              + (f": {resolution['cells_per_wavelength']:.1f} cells per {period_s:.0f} s wavelength at the stop "
+                 "isobath" if resolution is not None else "")
+              + (f" (about {refine ** 3} times the cost of the run's grid)" if refine > 1 else ""), file=sys.stderr)
     opts = dict(duration_s=duration_s, stop_depth_m=stop_depth_m, coast=coast, boundary=boundary, cfl=cfl,
                 gravity=gravity, threads=threads, progress=progress, **simulate_kwargs)
     res = simulate_linear_long_wave(depth_w, eta_w, **opts)
@@ -300,8 +439,15 @@ def compare_with_waves(
         table["ratio_wave_to_ray"] = table["wave_amp_stop_m"] / table["ray_value"]
     agree = compare_rankings(table["ray_value"].where(ranked), table["wave_amp_stop_m"].where(ranked), k=k)
     agree["ray_column"] = ray_column
+    ratio = table["ratio_wave_to_ray"].where(ranked).to_numpy(float)
+    ratio = ratio[np.isfinite(ratio) & (ratio > 0)]
+    if ratio.size:
+        agree["amplitude_ratio"] = {"median": float(np.median(ratio)), "p5": float(np.percentile(ratio, 5)),
+                                    "p95": float(np.percentile(ratio, 95))}
     agree["n_faint_wave"] = int(faint_wave_segments(table["wave_amp_stop_m"], ranked).sum())
     agree["refine"] = int(refine)
+    if choice is not None:
+        agree["refine_choice"] = choice
     if resolution is not None:
         agree["resolution"] = resolution
     res_ref = None
