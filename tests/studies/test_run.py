@@ -166,6 +166,9 @@ def test_checked_run_shows_each_figure_once(tmp_path):
     assert "whether a hotspot has moved along the coast" in text
     # checked: no "not checked" note under the ranking
     assert "not checked against the linear long-wave solver" not in text
+    # the check's table names the file of this folder that holds every segment's row
+    assert (out / "wave_check.csv").is_file() and "(all segments: wave_check.csv)" in text
+    assert "wave_segments.csv" not in text
 
 
 def test_caution_in_every_output(demo_run):

@@ -241,8 +241,12 @@ def _appendix(tmp: pathlib.Path, run_dir: pathlib.Path, name: str, seg: pd.DataF
     build_appendix(ctx, tmp / "wave_check_appendix.html", tmp / "wave_check_appendix.pdf")
 
 
-def check_section(chk: WaveCheck, figures: dict[str, str]) -> dict[str, Any]:
-    """The appendix section of a wave check: method text, agreement metrics, table and figures."""
+def check_section(chk: WaveCheck, figures: dict[str, str], table_file: str = "wave_segments.csv") -> dict[str, Any]:
+    """The appendix section of a wave check: method text, agreement metrics, table and figures.
+
+    ``table_file`` is the name of the file beside the appendix that holds every segment's row
+    (``wave_segments.csv`` in a check folder, ``wave_check.csv`` in a run folder).
+    """
     ag = jsonable(chk.agreement)
     st = chk.wave.stats
     k = ag.get("k", 10)
@@ -295,7 +299,7 @@ def check_section(chk: WaveCheck, figures: dict[str, str]) -> dict[str, Any]:
         "text": text,
         "metrics": metrics,
         "table": _section_table(chk.table),
-        "table_caption": "Top 20 segments by the rays' amplitude (all segments: wave_segments.csv)",
+        "table_caption": f"Top 20 segments by the rays' amplitude (all segments: {table_file})",
         "figures": figures,
     }
 

@@ -262,7 +262,8 @@ def write_run_folder(
         ctx = _report_context(a, scenario, depth, points, health, figs, ensemble, extra_sections, choices=choices)
         if a.check is not None:
             # the check's figures appear once, in its own section
-            ctx["wave_check"] = check_section(a.check, {k: str(v) for k, v in figs.items() if k.startswith("ray_vs")})
+            ctx["wave_check"] = check_section(a.check, {k: str(v) for k, v in figs.items() if k.startswith("ray_vs")},
+                                              table_file="wave_check.csv")
             ctx["figures"] = {k: v for k, v in ctx["figures"].items() if not k.startswith("ray_vs")}
         html, pdf = folder / RUN_FILES["html"], folder / RUN_FILES["pdf"]
         build_appendix(ctx, html, pdf)

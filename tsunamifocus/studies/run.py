@@ -791,7 +791,7 @@ def analyse_scenario(scenario: Any, *, rays: int | None = None, scheduler: Any =
             a.check = compare_with_waves(depth, a.eta, a.focusing.segments,
                                          reference_depth=a.focusing.reference_depth,
                                          stop_depth_m=scenario.rays.stop_depth_m, k=scenario.output.top_k,
-                                         period_s=a.period_s)
+                                         period_s=a.period_s, progress=pr.enabled)
             lens = a.check.agreement.get("lensing", {})
             pr.done(f"amplitude Spearman {a.check.agreement['spearman']:.2f}, lensing Spearman "
                     f"{lens.get('spearman', float('nan')):.2f}")
