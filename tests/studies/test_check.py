@@ -103,18 +103,10 @@ def test_faint_wave_segments_are_those_far_below_the_median():
     assert faint_wave_segments(w, ranked, fraction=0.9).tolist() == [False, True, False, True, False, False]
 
 
-def test_refined_check_converges_to_greens_law_at_the_stop_isobath():
-    """Green (1838): a long wave shoaling normally up a gentle slope keeps its energy flux, so its
-    amplitude grows as h**(-1/4); the incident half of a hump released at rest has amplitude 0.5
-    (d'Alembert). On 4 km cells the wave near the 20 m isobath has few cells per wavelength and the
-    check's maximum there falls well short of Green's law; solved on the same sea floor interpolated
-    onto finer grids (``refine``) it converges to it, and the reported resolution grows with it."""
-    import warnings
-
+def _plane_slope():
+    """A 4000 m ocean shoaling linearly to 8 m over 500 km (1:125) on 4 km cells, a Gaussian hump
+    far offshore, three segments along the 20 m isobath, side walls reflecting (a plane wave)."""
     import shapely
-
-    from tsunamifocus.errors import InputError, ResolutionWarning
-    from tsunamifocus.studies.check import MIN_CELLS_PER_WAVELENGTH, compare_with_waves
 
     dx, ny = 4000.0, 6
     x = np.arange(0.0, 700e3, dx) + dx / 2
@@ -126,6 +118,21 @@ def test_refined_check_converges_to_greens_law_at_the_stop_isobath():
                         "geometry": [shapely.LineString([(xs, i * ny * dx / 3), (xs, (i + 1) * ny * dx / 3)])
                                      for i in range(3)]})
     walls = {"west": "absorb", "east": "absorb", "south": "reflect", "north": "reflect"}
+    return depth, eta0, seg, walls
+
+
+def test_refined_check_converges_to_greens_law_at_the_stop_isobath():
+    """Green (1838): a long wave shoaling normally up a gentle slope keeps its energy flux, so its
+    amplitude grows as h**(-1/4); the incident half of a hump released at rest has amplitude 0.5
+    (d'Alembert). On 4 km cells the wave near the 20 m isobath has few cells per wavelength and the
+    check's maximum there falls well short of Green's law; solved on the same sea floor interpolated
+    onto finer grids (``refine``) it converges to it, and the reported resolution grows with it."""
+    import warnings
+
+    from tsunamifocus.errors import InputError, ResolutionWarning
+    from tsunamifocus.studies.check import MIN_CELLS_PER_WAVELENGTH, compare_with_waves
+
+    depth, eta0, seg, walls = _plane_slope()
     err, cpw = {}, {}
     for r in (1, 4):
         with warnings.catch_warnings():
@@ -134,7 +141,7 @@ def test_refined_check_converges_to_greens_law_at_the_stop_isobath():
                                      boundary=walls, threads=1)
         res = chk.agreement["resolution"]
         assert chk.agreement["refine"] == r and res["refine"] == r
-        assert chk.wave.max_amplitude.shape == (ny * r, x.size * r)
+        assert chk.wave.max_amplitude.shape == (depth.shape[0] * r, depth.shape[1] * r)
         green = 0.5 * (4000.0 / res["band_depth_m"]) ** 0.25
         amp = chk.table["wave_amp_stop_m"].to_numpy()
         assert np.ptp(amp) < 1e-6 * amp.max()  # a plane wave: the three segments alike
@@ -159,22 +166,11 @@ def test_check_chooses_a_grid_fine_enough_for_the_coast_by_default():
     holds it back, and the check then says which limit did."""
     import warnings
 
-    import shapely
-
     from tsunamifocus.errors import ResolutionWarning
     from tsunamifocus.propagation.wave import _BYTES_PER_CELL
     from tsunamifocus.studies.check import MIN_CELLS_PER_WAVELENGTH, choose_refine, compare_with_waves
 
-    dx, ny = 4000.0, 6
-    x = np.arange(0.0, 700e3, dx) + dx / 2
-    h = np.interp(x, [0, 150e3, 650e3, 700e3], [4000.0, 4000.0, 8.0, -20.0])
-    depth = make_grid(np.tile(h, (ny, 1)), x, np.arange(ny) * dx + dx / 2, "EPSG:3857")
-    eta0 = depth.copy(data=np.tile(np.exp(-((x - 80e3) ** 2) / (2 * 20e3**2)), (ny, 1)))
-    xs = float(np.interp(20.0, h[::-1], x[::-1]))
-    seg = pd.DataFrame({"segment_id": ["S1", "S2", "S3"], "amp_stop_m": [1.0, 2.0, 3.0],
-                        "geometry": [shapely.LineString([(xs, i * ny * dx / 3), (xs, (i + 1) * ny * dx / 3)])
-                                     for i in range(3)]})
-    walls = {"west": "absorb", "east": "absorb", "south": "reflect", "north": "reflect"}
+    depth, eta0, seg, walls = _plane_slope()
     amp = {}
     for refine in (1, "auto"):
         with warnings.catch_warnings():
