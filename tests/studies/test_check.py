@@ -193,3 +193,18 @@ def test_check_chooses_a_grid_fine_enough_for_the_coast_by_default():
         chk = compare_with_waves(depth, eta0, seg, duration_s=600.0, period_s=1000.0, k=1, boundary=walls,
                                  threads=1, max_memory_bytes=_BYTES_PER_CELL * cells * 2)
     assert chk.agreement["refine_choice"]["limited_by"] == "memory" and chk.agreement["refine"] == 1
+
+
+def test_check_progress_names_each_ocean_and_the_grid(capsys):
+    # A check over two oceans shows two solver bars; a reader must tell them apart, and see the
+    # grid chosen before the long part starts (common practice, no source).
+    from tsunamifocus.studies.check import compare_with_waves
+
+    depth, eta0, seg, walls = _plane_slope()
+    seg["lensing_factor"] = [1.0, 2.0, 3.0]
+    compare_with_waves(depth, eta0, seg, reference_depth=depth, duration_s=600.0, period_s=1000.0, k=1,
+                       boundary=walls, threads=1, progress=True)
+    err = capsys.readouterr().err
+    assert "wave solved on a grid 2 times finer than the run's: " in err and "about 8 times the cost" in err
+    assert "wave, real ocean: done" in err and "wave, reference ocean: done" in err
+    assert err.index("wave solved on") < err.index("wave, real ocean") < err.index("wave, reference ocean")

@@ -374,7 +374,7 @@ def simulate_linear_long_wave(
     arrival_threshold_m: float | None = None,
     polar_cutoff_deg: float | None = 80.0,
     threads: int | None = None,
-    progress: bool | Callable[[int, int], None] | None = None,
+    progress: bool | str | Callable[[int, int], None] | None = None,
     max_memory_bytes: float | None = DEFAULTS["bathymetry"]["max_memory_gb"] * 1e9,
     max_cell_updates: float | None = WORK_LIMITS["wave_cell_updates"],
 ) -> WaveResult:
@@ -414,8 +414,9 @@ def simulate_linear_long_wave(
         numba threads (default: numba's current setting; capped at ``NUMBA_NUM_THREADS``, the value
         used is in ``stats["threads"]``). Results do not depend on it. On machines whose cores are
         shared with other jobs ``threads=1`` is often faster (the step is memory-bound).
-    progress : bool or callable, optional
-        True for a tqdm bar, or a function ``f(step, n_steps)`` called about 100 times.
+    progress : bool, str or callable, optional
+        True for a progress bar labelled "wave solver", a str for one with that label, or a
+        function ``f(step, n_steps)`` called about 100 times.
     max_cell_updates : float or None
         Refuse, before any step, runs of more wet-cell updates (wet cells x time steps) than this
         (ResourceLimitError; ``constants.WORK_LIMITS``); None: no limit.
@@ -673,8 +674,8 @@ def _wave_result(depth: xr.DataArray, wet: np.ndarray, eta: np.ndarray, max_eta:
 def _progress(progress: Any, n_steps: int) -> tuple[Callable[[int, int], None] | None, Any]:
     if progress is None or progress is False:
         return None, None
-    if progress is True:  # a bar on a terminal, a few plain lines in a log
-        bar = progress_bar(n_steps, "wave solver", unit="step")
+    if progress is True or isinstance(progress, str):  # a bar on a terminal, a few plain lines in a log
+        bar = progress_bar(n_steps, "wave solver" if progress is True else progress, unit="step")
         state = {"done": 0}
 
         def cb(step: int, total: int) -> None:
@@ -684,4 +685,4 @@ def _progress(progress: Any, n_steps: int) -> tuple[Callable[[int, int], None] |
         return cb, bar
     if callable(progress):
         return progress, None
-    raise InputError(f"progress={progress!r}: expected None, True/False or a callable f(step, n_steps)")
+    raise InputError(f"progress={progress!r}: expected None, True/False, a label or a callable f(step, n_steps)")

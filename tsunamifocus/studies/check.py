@@ -422,7 +422,8 @@ def compare_with_waves(
               + (f" (about {refine ** 3} times the cost of the run's grid)" if refine > 1 else ""), file=sys.stderr)
     opts = dict(duration_s=duration_s, stop_depth_m=stop_depth_m, coast=coast, boundary=boundary, cfl=cfl,
                 gravity=gravity, threads=threads, progress=progress, **simulate_kwargs)
-    res = simulate_linear_long_wave(depth_w, eta_w, **opts)
+    labelled = progress is True and reference_depth is not None
+    res = simulate_linear_long_wave(depth_w, eta_w, **{**opts, "progress": "wave, real ocean" if labelled else progress})
     sample = dict(search_radius_cells=search_radius_cells * refine, statistic=statistic)
     wave = segment_max_amplitude(res, segments, depth_w, stop_depth_m, **sample)
     table = pd.DataFrame({"segment_id": wave.index.values})
@@ -453,7 +454,8 @@ def compare_with_waves(
     res_ref = None
     if reference_depth is not None:
         ref_w = refine_grid(reference_depth, refine)
-        res_ref = simulate_linear_long_wave(ref_w, eta_w, **opts)
+        res_ref = simulate_linear_long_wave(ref_w, eta_w, **{**opts, "progress": "wave, reference ocean" if labelled
+                                                             else progress})
         wave_ref = segment_max_amplitude(res_ref, segments, ref_w, stop_depth_m, **sample)
         with np.errstate(divide="ignore", invalid="ignore"):
             wave_lensing = (wave.values / wave_ref.values) ** 2
