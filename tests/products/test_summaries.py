@@ -141,3 +141,14 @@ def test_a_checked_but_weak_ranking_is_said_under_the_appendix_ranking():
     assert "refine" not in amp
     assert checked_ranking_note(_ag(0.93, 0.71, top_amp=8, top_lens=7)) is None  # the demo: it held
     assert checked_ranking_note(None) is None
+    # the rays' amplitudes twice the wave's (the trans-Pacific interface case: median 0.52): the
+    # note under the table says to read sizes from the check, with or without a weak ranking
+    held = _ag(0.93, 0.71, top_amp=8, top_lens=7)
+    held["amplitude_ratio"] = {"median": 0.52, "p5": 0.35, "p95": 0.86}
+    note = checked_ranking_note(held)
+    assert note.startswith("In size, the wave's maxima are a median 0.52 times the rays' indicative amplitudes")
+    assert "read amplitudes from the wave check section" in note
+    real["amplitude_ratio"] = held["amplitude_ratio"]
+    assert "weak" in checked_ranking_note(real) and "In size, the wave's maxima" in checked_ranking_note(real)
+    held["amplitude_ratio"] = {"median": 0.91, "p5": 0.54, "p95": 1.41}  # the demo
+    assert checked_ranking_note(held) is None

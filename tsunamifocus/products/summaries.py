@@ -164,12 +164,8 @@ def _check_lines(ag: dict) -> list[str]:
         out.append(f"    lensing ranking against the wave:   {held(ag['lensing'])}{weak(ag['lensing'])}")
         if _amplitude_first(ag):
             out.append("    rank this coast with the amplitude ranking, not the lensing factor (docs/focusing.md)")
-    r = ag.get("amplitude_ratio")
-    if r:
-        out.append(f"    size: the wave's maxima are a median {r['median']:.2f} times the rays' indicative amplitudes "
-                   f"(5-95 % of the segments {r['p5']:.2f}-{r['p95']:.2f})"
-                   + ("; read amplitudes from the wave check" if not 1 / AMPLITUDE_RATIO_FACTOR <= r["median"]
-                      <= AMPLITUDE_RATIO_FACTOR else ""))
+    if ag.get("amplitude_ratio"):
+        out.append(f"    size: {_size_text(ag)}" + ("; read amplitudes from the wave check" if _size_off(ag) else ""))
     if ag.get("n_faint_wave"):
         out.append(f"    {ag['n_faint_wave']} of the segments got almost no wave in the check (below "
                    f"{100 * FAINT_WAVE_FRACTION:g} % of the median: a narrow passage or sheltered water the wave barely "
@@ -184,6 +180,19 @@ def _check_lines(ag: dict) -> list[str]:
                    + (f" ({(ag.get('resolution') or {}).get('cells_per_wavelength', float('nan')):.1f} cells per "
                       "dominant wavelength at the stop isobath)" if ag.get("resolution") else ""))
     return out
+
+
+def _size_text(ag: dict) -> str:
+    """The wave's maxima against the rays' indicative amplitudes, in words (needs ``amplitude_ratio``)."""
+    r = ag["amplitude_ratio"]
+    return (f"the wave's maxima are a median {r['median']:.2f} times the rays' indicative amplitudes "
+            f"(5-95 % of the segments {r['p5']:.2f}-{r['p95']:.2f})")
+
+
+def _size_off(ag: dict | None) -> bool:
+    """The check found the rays' amplitudes more than AMPLITUDE_RATIO_FACTOR off the wave's (median)."""
+    r = (ag or {}).get("amplitude_ratio")
+    return bool(r) and not 1 / AMPLITUDE_RATIO_FACTOR <= r["median"] <= AMPLITUDE_RATIO_FACTOR
 
 
 def _refine_hint(ag: dict) -> str:
@@ -201,14 +210,17 @@ def checked_ranking_note(ag: dict | None) -> str | None:
 
     The lensing ranking's weakness in words, with the amplitude ranking's figures when the check
     held that one (:func:`_amplitude_first`) and the check's own resolution when it was not
-    converged; None when the check held the lensing ranking (or measured nothing).
+    converged; and, when the wave's maxima are more than ``AMPLITUDE_RATIO_FACTOR`` off the
+    rays' indicative amplitudes, their size. None when there is nothing to say.
     """
     lens = (ag or {}).get("lensing")
     why = _weakness(lens)
+    size = (f" In size, {_size_text(ag)}: read amplitudes from the wave check section, not from this table."
+            if _size_off(ag) else "")
     if not why:
-        return None
+        return size.strip() or None
     text = (f"The linear long-wave check found this lensing ranking weak: {why} ({_agreement_text(lens)}; "
-            "see the wave check section).")
+            "see the wave check section).") + size
     if _amplitude_first(ag):
         text += f" It held the amplitude ranking ({_agreement_text(ag)}): rank this coast by indicative amplitude."
     elif _is_weak(ag):
