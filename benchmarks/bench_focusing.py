@@ -187,7 +187,9 @@ def print_refined(rows: list[dict], seeds: dict, ray_wall: dict, title: str) -> 
     if not rows:
         return
     print()
-    print(f"{title} (the same sea floor interpolated; cells per dominant wavelength at the stop isobath)")
+    print(title)
+    print("  (the same sea floor interpolated; cells/wl: cells per dominant wavelength at the stop isobath on the "
+          "grid's own spacing -> on this grid)")
     print(f"{'case':<6} {'refine':>6} {'cells/wl':>13} {'wall':>7} {'CPU':>7} {'wave/ray':>9}   "
           f"{'grid-spacing vs this judge: amp':>32}   {'lensing':>11}")
     for r in rows:
@@ -282,8 +284,8 @@ def main() -> None:
     print_table(rows)
     seeds = {r["case"]: r["seeds"] for r in rows}
     ray_wall = {r["case"]: r["ray_wall_s"] for r in rows}
-    print_refined(default, seeds, ray_wall, f"the wave check as it runs by default (refine {AUTO_REFINE}: at least "
-                  f"{MIN_CELLS_PER_WAVELENGTH:g} cells per dominant wavelength at the stop isobath)")
+    print_refined(default, seeds, ray_wall, f"the wave check as it runs by default (refine {AUTO_REFINE}: the "
+                  f"coarsest grid with at least {MIN_CELLS_PER_WAVELENGTH:g} cells per wavelength)")
     print_refined(refined, seeds, ray_wall, f"the wave check on a grid {args.judge_refine} times finer")
 
 
