@@ -169,6 +169,20 @@ def test_checked_run_shows_each_figure_once(tmp_path):
     # the check's table names the file of this folder that holds every segment's row
     assert (out / "wave_check.csv").is_file() and "(all segments: wave_check.csv)" in text
     assert "wave_segments.csv" not in text
+    # the segments layers carry the wave's values beside the rays', as in wave_check.csv, so that
+    # a GIS reader can map the amplitudes the summary says to read from the check
+    import pyogrio
+
+    from tsunamifocus.products.runfolder import CHECK_SEGMENT_COLUMNS
+
+    chk = pd.read_csv(out / "wave_check.csv", comment="#").set_index("segment_id")
+    seg = pd.read_csv(out / "segments.csv", comment="#").set_index("segment_id")
+    gpkg_fields = set(pyogrio.read_info(out / "segments.gpkg", layer="segments")["fields"])
+    for col in CHECK_SEGMENT_COLUMNS:
+        assert col in gpkg_fields, col
+        np.testing.assert_allclose(seg[col].to_numpy(float), chk[col].reindex(seg.index).to_numpy(float),
+                                   rtol=1e-6, equal_nan=True)
+    assert np.isfinite(seg["wave_amp_stop_m"]).sum() >= 0.9 * len(seg)
 
 
 def test_caution_in_every_output(demo_run):

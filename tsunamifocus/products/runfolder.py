@@ -52,6 +52,12 @@ COG_LAYERS = {
 }
 
 
+
+#: The wave check's columns the segments layers carry when a run was checked (``run --check``,
+#: ``demo``): the wave maximum at the stop isobath [m], the wave lensing factor, the wave's first
+#: arrival [s] and the two wave ranks (1 = largest), as in ``wave_check.csv``.
+CHECK_SEGMENT_COLUMNS = ("wave_amp_stop_m", "wave_lensing", "wave_first_arrival_s", "rank_wave", "rank_wave_lensing")
+
 def _layers(a: SourceAnalysis, depth: xr.DataArray) -> dict[str, xr.DataArray]:
     f = a.focusing
     lay = {
@@ -238,6 +244,9 @@ def write_run_folder(
     if ensemble is not None and getattr(ensemble, "segments", None) is not None:
         ens_cols = [c for c in ensemble.segments.columns if c not in _STATIC_COLUMNS]
         seg_out = seg_out.join(ensemble.segments[ens_cols].add_prefix("ens_"), on="segment_id")
+    if a.check is not None:  # the wave's values beside the rays' in the GIS layers, named as in wave_check.csv
+        chk = a.check.table.set_index("segment_id")
+        seg_out = seg_out.join(chk[[c for c in CHECK_SEGMENT_COLUMNS if c in chk.columns]], on="segment_id")
     seg_files = write_segments(_plain_dtypes(seg_out), folder / RUN_FILES["segments"], info.crs, csv_wkt=True,
                                style=lens)
     if isinstance(seg_files, dict):
