@@ -51,12 +51,11 @@ COG_LAYERS = {
     "focusing_factor": ("focusing factor: energy over real bathymetry / constant-depth ocean", "1"),
 }
 
-
-
 #: The wave check's columns the segments layers carry when a run was checked (``run --check``,
 #: ``demo``): the wave maximum at the stop isobath [m], the wave lensing factor, the wave's first
 #: arrival [s] and the two wave ranks (1 = largest), as in ``wave_check.csv``.
 CHECK_SEGMENT_COLUMNS = ("wave_amp_stop_m", "wave_lensing", "wave_first_arrival_s", "rank_wave", "rank_wave_lensing")
+
 
 def _layers(a: SourceAnalysis, depth: xr.DataArray) -> dict[str, xr.DataArray]:
     f = a.focusing

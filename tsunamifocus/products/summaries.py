@@ -201,8 +201,9 @@ def _refine_hint(ag: dict) -> str:
     if lim in ("memory", "work"):
         return (f"the {lim} limit held it to {ag.get('refine', 1)} times finer: raise [bathymetry] max_memory_gb "
                 "or use tsunamifocus check RUN --force, or crop the grid")
+    if lim == "largest factor":
+        return "even the finest grid the check makes has too few cells: the coast needs a finer run grid"
     return "tsunamifocus check RUN --refine auto, the default"
-
 
 
 def checked_ranking_note(ag: dict | None) -> str | None:
