@@ -21,14 +21,13 @@ import pandas as pd
 
 from ..cautions import caution_summary
 from ..errors import DataFileError, InputError
-from ..grid import MAX_REFINE_FACTOR
 from ..io.gis import write_cog, write_netcdf
 from ..io.manifest import jsonable, read_manifest, write_manifest
 from ..io.guards import check_output_folder
 from ..io.runfolder import OutputFolder
 from ..io.runs import read_run
 from ..io.scenario import Scenario, parse_scenario
-from ..studies.check import AUTO_REFINE, FAINT_WAVE_FRACTION, WaveCheck, compare_with_waves
+from ..studies.check import AUTO_REFINE, FAINT_WAVE_FRACTION, WaveCheck, check_refine, compare_with_waves
 from .appendix import build_appendix
 from .figures import plot_check_profile, plot_ray_vs_wave
 
@@ -158,9 +157,7 @@ def run_wave_check(
         raise InputError(f"--top {k}: expected k >= 1")
     if hours is not None and not hours > 0:
         raise InputError(f"--hours {hours}: expected a positive duration in hours")
-    if refine != AUTO_REFINE and (isinstance(refine, bool) or not isinstance(refine, int)
-                                  or not 1 <= refine <= MAX_REFINE_FACTOR):
-        raise InputError(f"--refine {refine!r}: expected {AUTO_REFINE!r} or an integer from 1 to {MAX_REFINE_FACTOR}")
+    check_refine(refine, "--refine")  # before any output folder is made
     out_dir = pathlib.Path(out) if out is not None else run_dir / CHECK_FOLDER
     check_output_folder(out_dir, overwrite=overwrite, kind="wave_check", option="--out" if out else "check folder (--out)",
                         inputs=[("run file", run_dir / f) for f in ("layers.nc", "segments.csv", "scenario.toml",

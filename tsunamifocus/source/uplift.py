@@ -300,12 +300,10 @@ def _check_dip_side(seg: FaultSegment, geo: dict, gi: GridInfo, dep: np.ndarray,
     for sign in (+1.0, -1.0):
         E = e1 + T.ravel() * (e2 - e1) + sign * D.ravel() * re
         N = n1 + T.ravel() * (n2 - n1) + sign * D.ravel() * rn
-        if geo["transformer"] is not None:
-            gx, gy = geo["transformer"].transform(E, N, direction="INVERSE")
-            gx = gi.wrap_lon(np.asarray(gx, float))
-        else:
-            gx, gy = E, N
-        gx, gy = np.asarray(gx, float), np.asarray(gy, float)
+        tr = geo["transformer"]  # None on a projected grid: the frame is the grid's
+        gx, gy = (np.asarray(v, float) for v in (tr.transform(E, N, direction="INVERSE") if tr is not None else (E, N)))
+        if tr is not None:
+            gx = gi.wrap_lon(gx)
         ok = gi.contains(gx, gy)
         v = _nearest_values(gi, dep, gx[ok], gy[ok]) if ok.any() else np.zeros(0)
         v = v[np.isfinite(v)]

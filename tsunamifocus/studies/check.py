@@ -22,10 +22,10 @@ from ..errors import CoastError, InputError, ResolutionWarning
 from ..focusing.agreement import compare_rankings
 from ..focusing.ranking import ranked_mask
 from ..grid import MAX_REFINE_FACTOR, refine_grid
-from ..propagation.wave import (_BYTES_PER_CELL, WAVE_CAUTION, WaveResult, _check_depth, _polar_dry, _wet_mask,
-                                simulate_linear_long_wave, wave_time_step)
+from ..propagation.wave import (WAVE_CAUTION, WaveResult, _check_depth, _dt_from, _memory_needed, _metric, _polar_dry,
+                                _wet_mask, simulate_linear_long_wave)
 
-__all__ = ['AMPLITUDE_RATIO_FACTOR', 'AUTO_REFINE', 'MIN_CELLS_PER_WAVELENGTH', 'FAINT_WAVE_FRACTION', 'WaveCheck', 'choose_refine',
+__all__ = ['AMPLITUDE_RATIO_FACTOR', 'AUTO_REFINE', 'MIN_CELLS_PER_WAVELENGTH', 'FAINT_WAVE_FRACTION', 'WaveCheck', 'check_refine', 'choose_refine',
            'compare_with_waves', 'default_check_duration_s', 'faint_wave_segments', 'wave_resolution']
 
 #: Fewest grid cells per dominant wavelength at the stop isobath the check wants for its coastal
@@ -106,6 +106,15 @@ def wave_resolution(depth: xr.DataArray, period_s: float, *, stop_depth_m: float
             "cells_per_wavelength": lam / cell}
 
 
+def check_refine(refine: Any, label: str = "refine") -> None:
+    """Raise :class:`InputError` unless ``refine`` is :data:`AUTO_REFINE` or an integer factor from 1
+    to :data:`~tsunamifocus.grid.MAX_REFINE_FACTOR` (``label`` names it in the message)."""
+    if isinstance(refine, str) and refine == AUTO_REFINE:
+        return
+    if isinstance(refine, bool) or not isinstance(refine, (int, np.integer)) or not 1 <= refine <= MAX_REFINE_FACTOR:
+        raise InputError(f"{label} {refine!r}: expected {AUTO_REFINE!r} or an integer from 1 to {MAX_REFINE_FACTOR}")
+
+
 def choose_refine(
     depth: xr.DataArray,
     period_s: float | None,
@@ -153,15 +162,16 @@ def choose_refine(
     if not math.isfinite(cpw1):
         return out
     info = _check_depth(depth)
+    d = np.asarray(depth.values, float)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", ResolutionWarning)  # the solver itself says so
-        n_wet = int(_polar_dry(info, _wet_mask(np.asarray(depth.values, float), stop_depth_m),
-                               polar_cutoff_deg).sum())
-    steps1 = duration_s / wave_time_step(depth, stop_depth_m=stop_depth_m, cfl=cfl, gravity=gravity,
-                                         polar_cutoff_deg=polar_cutoff_deg)
+        wet = _polar_dry(info, _wet_mask(d, stop_depth_m), polar_cutoff_deg)
+    n_wet = int(wet.sum())
+    steps1 = duration_s / _dt_from(d, wet, _metric(info), cfl, gravity, depth.name)
 
     def over(n: int) -> str | None:
-        if max_memory_bytes is not None and _BYTES_PER_CELL * info.ny * info.nx * n * n > max_memory_bytes:
+        if max_memory_bytes is not None and _memory_needed(info.ny * n, info.nx * n, duration_s, None,
+                                                           None) > max_memory_bytes:
             return "memory"
         if max_cell_updates is not None and float(n_wet) * n * n * math.ceil(steps1 * n) > max_cell_updates:
             return "work"
@@ -393,8 +403,8 @@ def compare_with_waves(
         choice = choose_refine(depth, period_s, duration_s=duration_s, stop_depth_m=stop_depth_m, gravity=gravity,
                                cfl=cfl, **limits)
         refine = choice["refine"]
-    elif isinstance(refine, bool) or not isinstance(refine, (int, np.integer)) or not 1 <= refine <= MAX_REFINE_FACTOR:
-        raise InputError(f"refine {refine!r}: expected {AUTO_REFINE!r} or an integer from 1 to {MAX_REFINE_FACTOR}")
+    else:
+        check_refine(refine)
     depth_w, eta_w = refine_grid(depth, refine), refine_grid(eta0, refine)
     resolution = None
     if period_s is not None:
