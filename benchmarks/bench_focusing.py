@@ -36,7 +36,11 @@ a grid N times finer (:func:`tsunamifocus.grid.refine_grid`) and the rays are co
 judge too: whether the check itself is converged in grid spacing near the coast
 (docs/wave_check.md).
 
-Run:  python benchmarks/bench_focusing.py [--demo-only] [--rays N] [--seeds 7 8] [--judge-refine 2]
+With ``--bands`` the demo's wave check is also resolved in the rays' period bands (both oceans
+solved with snapshots, each cell's series band-passed with the rays' octave band edges) and each
+band's ray columns are compared with the wave's band: which band's rays hold and which do not.
+
+Run:  python benchmarks/bench_focusing.py [--demo-only] [--rays N] [--seeds 7 8] [--judge-refine 2] [--bands]
 """
 
 from __future__ import annotations
@@ -182,6 +186,87 @@ def refined_judge(row: dict, scenario, depth, refine: int | str) -> dict:
     return out
 
 
+def _band_maxima(res, bands: list[tuple[float, float]], dt: float) -> list[np.ndarray]:
+    """Per period band: the maximum of |eta| band-passed (octave edges ``T/sqrt 2 .. sqrt 2 T``) at each cell."""
+    snap = res.snapshots
+    nt, ny = snap.shape[0], snap.shape[1]
+    nfft = 2 * nt  # zero padding: no wrap-around of the train's end onto its start
+    f = np.fft.rfftfreq(nfft, dt)
+    out = [np.zeros(snap.shape[1:]) for _ in bands]
+    for r0 in range(0, ny, 64):  # row blocks: a few hundred MB at a time
+        F = np.fft.rfft(np.asarray(snap[:, r0:r0 + 64].values, np.float32), n=nfft, axis=0)
+        for k, (t, _) in enumerate(bands):
+            m = ((f >= 1.0 / (t * np.sqrt(2.0))) & (f < np.sqrt(2.0) / t))[:, None, None]
+            out[k][r0:r0 + 64] = np.abs(np.fft.irfft(F * m, n=nfft, axis=0)[:nt]).max(axis=0)
+    return out
+
+
+def band_judge(row: dict, scenario, depth) -> dict:
+    """The wave check resolved in the rays' period bands, on the check's default grid (demo-sized cases only).
+
+    Both oceans are solved with snapshots every eighth of the shortest band's period; each cell's
+    series is band-passed with the rays' octave band edges and its maximum taken; the segment
+    maxima and the band lensing factor ``(max real / max reference)^2`` are compared with the rays'
+    own per-band columns (``amp_stop_<band>_m``, ``lensing_<band>``).
+    """
+    import types
+
+    from tsunamifocus.coast.waves import segment_max_amplitude
+    from tsunamifocus.grid import refine_grid
+    from tsunamifocus.studies.check import choose_refine, default_check_duration_s
+
+    a = row["analyses"][0]
+    seg = a.focusing.segments
+    stop = scenario.rays.stop_depth_m
+    bands = [(b.period_s, b.weight) for b in a.focusing.runs["bands"]]
+    dur = default_check_duration_s(depth, seg)
+    refine = choose_refine(depth, a.period_s, duration_s=dur, stop_depth_m=stop)["refine"]
+    dt = min(t for t, _ in bands) / 8.0
+    eta = refine_grid(a.eta, refine)
+    t0 = time.perf_counter()
+    amps = {}
+    for ocean, d in (("real", depth), ("reference", a.focusing.reference_depth)):
+        dw = refine_grid(d, refine)
+        res = simulate_linear_long_wave(dw, eta, duration_s=dur, stop_depth_m=stop, coast="absorb", record_every_s=dt,
+                                        max_memory_bytes=None, max_cell_updates=None)
+        fields = _band_maxima(res, bands, dt)
+        amps[ocean] = [segment_max_amplitude(types.SimpleNamespace(max_amplitude=res.max_amplitude.copy(data=m)),
+                                             seg, dw, stop, search_radius_cells=2.0 * refine) for m in fields]
+        del res
+    names = ["short", "dominant", "long"] if len(bands) == 3 else [f"band{k}" for k in range(len(bands))]
+    out = {"case": row["case"], "refine": refine, "wall_s": time.perf_counter() - t0, "bands": []}
+    for k, ((t, w), nm) in enumerate(zip(bands, names)):
+        wa, wr = amps["real"][k], amps["reference"][k]
+        wl = (wa / wr) ** 2
+        band = {"name": nm, "period_s": t, "weight": w}
+        for i, ai in enumerate(row["analyses"]):
+            sg = ai.focusing.segments
+            band[f"amp_{i}"] = compare_rankings(_series(sg, f"amp_stop_{nm}_m"), wa, k=K)
+            band[f"lens_{i}"] = compare_rankings(_series(sg, f"lensing_{nm}"), wl, k=K)
+        ok = np.isfinite(wl.to_numpy()) & (wl.to_numpy() > 0)
+        band["wave_lensing_p5_p95"] = np.percentile(wl.to_numpy()[ok], [5, 95])
+        out["bands"].append(band)
+    return out
+
+
+def print_bands(rows: list[dict], seeds: dict) -> None:
+    """Print the band-resolved agreement."""
+    if not rows:
+        return
+    print()
+    print("the wave check resolved in the rays' period bands (octave band-pass of each cell's series; "
+          "rays' per-band columns against the wave's band; Spearman, top-10 common)")
+    print(f"{'case':<6} {'refine':>6} {'band':<9} {'T (s)':>6} {'share':>6} {'wave lensing 5-95%':>19} "
+          f"{'seed':>5}   {'amplitude':>11}   {'lensing':>11}")
+    for r in rows:
+        for b in r["bands"]:
+            for i, sd in enumerate(seeds[r["case"]]):
+                lo, hi = b["wave_lensing_p5_p95"]
+                print(f"{r['case']:<6} {r['refine']:>6d} {b['name']:<9} {b['period_s']:>6.0f} {b['weight']:>6.2f} "
+                      f"{lo:>9.2f} - {hi:<7.2f} {sd:>5d}   {_ag(b[f'amp_{i}'])}   {_ag(b[f'lens_{i}'])}")
+        print(f"  ({r['case']}: both oceans solved with snapshots in {r['wall_s']:.0f} s)")
+
+
 def print_refined(rows: list[dict], seeds: dict, ray_wall: dict, title: str) -> None:
     """Print the agreement against a wave check on a finer grid."""
     if not rows:
@@ -243,6 +328,9 @@ def main() -> None:
     ap.add_argument("--judge-refine", type=int, default=1, metavar="N",
                     help="also run the wave check on each case's sea floor interpolated onto a grid N times finer "
                          "(about N^3 times the check's cost: ~3 min for the real case at N=2) and compare")
+    ap.add_argument("--bands", action="store_true",
+                    help="also resolve the demo's wave check in the rays' period bands (snapshots of the whole "
+                         "grid: demo only, ~1-2 min and ~2 GB)")
     args = ap.parse_args()
     load0 = os.getloadavg()
     import numba
@@ -280,6 +368,10 @@ def main() -> None:
         if args.judge_refine > 1:
             print(f"{name}: the wave check on a grid {args.judge_refine} times finer ...", flush=True)
             refined.append(refined_judge(r, sc, load_scenario_bathymetry(sc), args.judge_refine))
+    banded = []
+    if args.bands:
+        print("demo: the wave check resolved in period bands ...", flush=True)
+        banded.append(band_judge(rows[0], cases[0][1], load_scenario_bathymetry(cases[0][1])))
     print(f"load average at end {os.getloadavg()[0]:.2f}")
     print_table(rows)
     seeds = {r["case"]: r["seeds"] for r in rows}
@@ -287,6 +379,7 @@ def main() -> None:
     print_refined(default, seeds, ray_wall, f"the wave check as it runs by default (refine {AUTO_REFINE}: the "
                   f"coarsest grid with at least {MIN_CELLS_PER_WAVELENGTH:g} cells per wavelength)")
     print_refined(refined, seeds, ray_wall, f"the wave check on a grid {args.judge_refine} times finer")
+    print_bands(banded, seeds)
 
 
 if __name__ == "__main__":
