@@ -88,6 +88,19 @@ def test_lensing_check_compares_energy_ratios_of_the_two_wave_runs():
     assert chk.agreement["lensing"]["n"] == len(seg)
     # an open coast under a plane wave: no segment the wave barely reaches
     assert chk.agreement["n_faint_wave"] == 0
+    # the same factor over the whole ocean (WaveCheck.lensing_map): exactly 1 for identical oceans;
+    # behind the shoal the lens's focus (> 1), beside it the water it drew energy from (< 1), and
+    # undisturbed water on the far sides of the basin (Lamb 1932, section 170, as above)
+    one = same.lensing_map()
+    assert np.isfinite(one.values).sum() > 0.9 * (flat > 20).sum()
+    np.testing.assert_allclose(one.values[np.isfinite(one.values)], 1.0, rtol=1e-12)
+    lm = chk.lensing_map()
+    assert lm.name == "wave_lensing" and lm.shape == real.shape
+    at = lambda xk, yk: float(lm.sel(x=xk * 1e3, y=yk * 1e3, method="nearest"))
+    assert at(260, 200) > 1.5 and at(260, 110) < 0.9 and abs(at(260, 20) - 1.0) < 0.15
+    # the segment values are this map's ratio taken over each segment's cells (maxima first)
+    assert lm.values[np.isfinite(lm.values)].max() >= wl.max() * 0.999
+    assert np.isnan(lm.values[flat <= 20]).all()
 
 
 def test_faint_wave_segments_are_those_far_below_the_median():

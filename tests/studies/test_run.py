@@ -360,12 +360,23 @@ def test_compare_and_check_commands(demo_run, tmp_path, capsys):
     # coast of interest, 10000 rays): amplitude Spearman 0.93, top-10 8/10; fail well below that
     assert rho > 0.8
     assert ag["topk_overlap"] >= 0.5
-    for n in ("wave_max_amplitude.tif", "wave_check.nc", "wave_segments.csv", "ray_vs_wave.png",
-              "ray_vs_wave_lensing.png", "ray_vs_wave_profile.png", "wave_check_appendix.pdf"):
+    for n in ("wave_max_amplitude.tif", "wave_lensing.tif", "wave_check.nc", "wave_segments.csv", "ray_vs_wave.png",
+              "ray_vs_wave_lensing.png", "ray_vs_wave_profile.png", "wave_lensing_map.png", "wave_check_appendix.pdf"):
         assert (out / "wave_check" / n).is_file()
-    # the check's appendix shows the profile along the coast with its own caption
+    # the check's appendix shows the profile along the coast and the wave's lensing map, each with its caption
     html = (out / "wave_check" / "wave_check_appendix.html").read_text(encoding="utf-8")
-    assert html.count("data:image/png") >= 3 and "whether a hotspot has moved along the coast" in html
+    assert html.count("data:image/png") >= 4 and "whether a hotspot has moved along the coast" in html
+    assert "Where the wave focuses" in html
+    # the lensing map's GeoTIFF and NetCDF layer hold the same values, squared ratios of the two oceans' maxima
+    import rasterio
+
+    with rasterio.open(out / "wave_check" / "wave_lensing.tif") as src, \
+            xr.open_dataset(out / "wave_check" / "wave_check.nc") as nc:
+        tif = src.read(1, masked=True).filled(np.nan)[::-1] if src.transform.e < 0 else src.read(1, masked=True).filled(np.nan)
+        lay = nc["wave_lensing"].values
+        assert tif.shape == lay.shape and np.isfinite(lay).sum() > 1000
+        np.testing.assert_allclose(tif, lay, rtol=1e-6, equal_nan=True)
+        assert np.nanpercentile(lay, 5) < 1.0 < np.nanpercentile(lay, 95)
 
 
 def _eikonal_mercator(d, src):

@@ -259,6 +259,10 @@ FIGURE_CAPTIONS: dict[str, str] = {
     "ray_vs_wave_profile": "Amplitude and lensing factor of the rays and of the wave check along the coast "
     "(ranked segments in coastline order; gaps separate coastline pieces), the top segments of each "
     "ranking marked: where the two disagree, and whether a hotspot has moved along the coast.",
+    "wave_lensing_map": "Where the wave focuses: the wave check's lensing factor over the whole ocean (squared ratio "
+    "of the linear long-wave maxima over the real and over the reference sea floor, log scale; 1 = no "
+    "focusing), the ranked segments coloured and numbered by the wave's own lensing ranking. Compare it "
+    "with the rays' lensing map.",
 }
 
 #: Keys of ``context`` accepted by :func:`build_appendix`, with their meaning.

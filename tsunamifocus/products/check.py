@@ -29,7 +29,8 @@ from ..io.runs import read_run
 from ..io.scenario import Scenario, parse_scenario
 from ..studies.check import AUTO_REFINE, FAINT_WAVE_FRACTION, WaveCheck, check_refine, compare_with_waves
 from .appendix import build_appendix
-from .figures import plot_check_profile, plot_ray_vs_wave
+from ..grid import refine_grid
+from .figures import plot_check_profile, plot_lensing_map, plot_ray_vs_wave
 
 __all__ = ['wave_check', 'run_wave_check', 'check_figures', 'check_section', 'write_check_table', 'CHECK_FOLDER']
 
@@ -55,17 +56,19 @@ def wave_check(depth, eta0, segments, *, figure_path=None, **kwargs) -> WaveChec
     chk = compare_with_waves(depth, eta0, segments, **kwargs)
     if figure_path is not None:
         figs = check_figures(chk, pathlib.Path(figure_path).parent, stem=pathlib.Path(figure_path).stem,
-                             segments=segments if isinstance(segments, pd.DataFrame) else None)
+                             segments=segments if isinstance(segments, pd.DataFrame) else None, depth=depth)
         chk.figure = figs["ray_vs_wave"]
         chk.figure_lensing = figs.get("ray_vs_wave_lensing")
         chk.figure_profile = figs.get("ray_vs_wave_profile")
+        chk.figure_lensing_map = figs.get("wave_lensing_map")
     return chk
 
 
 def check_figures(chk: WaveCheck, folder: pathlib.Path, *, stem: str = "ray_vs_wave",
-                  segments: pd.DataFrame | None = None) -> dict[str, pathlib.Path]:
+                  segments: pd.DataFrame | None = None, depth: Any = None) -> dict[str, pathlib.Path]:
     """Figures of the ranked segments: the amplitude (``stem.png``) and lensing (``stem_lensing.png``)
-    scatters and, with the run's ``segments`` table, both along the coast (``stem_profile.png``)."""
+    scatters and, with the run's ``segments`` table, both along the coast (``stem_profile.png``); with
+    the run's ``depth`` grid too, the wave's lensing factor over the ocean (``wave_lensing_map.png``)."""
     t = chk.table.set_index("segment_id")
     ranked = t["ranked"]
     k = chk.agreement["k"]
@@ -84,7 +87,26 @@ def check_figures(chk: WaveCheck, folder: pathlib.Path, *, stem: str = "ray_vs_w
         segments = segments.reset_index()
     if segments is not None and {"segment_id", "geometry", "length_m"} <= set(segments.columns):
         out["ray_vs_wave_profile"] = plot_check_profile(chk.table, segments, folder / f"{stem}_profile.png", k=k)
+        lens_map = chk.lensing_map()
+        if depth is not None and lens_map is not None:
+            out["wave_lensing_map"] = _wave_lensing_figure(chk, lens_map, segments, depth, folder / "wave_lensing_map.png")
     return out
+
+
+def _wave_lensing_figure(chk: WaveCheck, lens_map: Any, segments: pd.DataFrame, depth: Any,
+                         path: pathlib.Path) -> pathlib.Path:
+    """The wave's lensing map with the ranked segments coloured and numbered by the wave's lensing."""
+    t = chk.table.set_index("segment_id")
+    seg = segments[segments["segment_id"].isin(t.index[t["ranked"]])].copy()
+    seg["lensing_factor"] = t["wave_lensing"].reindex(seg["segment_id"].to_numpy()).to_numpy(float)
+    seg["rank_lensing"] = t["rank_wave_lensing"].reindex(seg["segment_id"].to_numpy()).to_numpy(float)
+    refine = int(chk.agreement.get("refine", 1))
+    return plot_lensing_map(refine_grid(depth, refine) if refine > 1 else depth, lens_map, None, seg,
+                            top_k=int(chk.agreement["k"]), out_path=path,
+                            title="Where the wave focuses: the wave check's lensing factor\n"
+                                  "(linear long-wave maxima over the real / over the reference sea floor)²",
+                            no_value_label="Dry, or almost no wave",
+                            segment_label="Ranked segment (the wave's lensing)")
 
 
 def _run_scenario(run_dir: pathlib.Path) -> Scenario:
@@ -186,7 +208,13 @@ def run_wave_check(
         amp.attrs.update(units="m", long_name="maximum sea-surface elevation, linear long-wave solver")
         write_cog(amp, tmp / "wave_max_amplitude.tif", description="maximum sea-surface elevation (linear "
                   "long-wave check)", units="m")
-        write_netcdf({"wave_max_amplitude": amp}, tmp / "wave_check.nc",
+        layers_out = {"wave_max_amplitude": amp}
+        lens_map = chk.lensing_map()
+        if lens_map is not None:
+            write_cog(lens_map, tmp / "wave_lensing.tif", description="wave lensing factor: (linear long-wave maximum "
+                      "over the real / over the reference sea floor)^2", units="1")
+            layers_out["wave_lensing"] = lens_map
+        write_netcdf(layers_out, tmp / "wave_check.nc",
                      title=f"tsunamifocus wave-equation check: {name}",
                      source="tsunamifocus linear long-wave solver (C grid, forward-backward)")
         table = pd.DataFrame(chk.table)
@@ -226,7 +254,9 @@ def _appendix(tmp: pathlib.Path, run_dir: pathlib.Path, name: str, seg: pd.DataF
 
     section = check_section(chk, {"ray_vs_wave": str(tmp / "ray_vs_wave.png"),
                                   **({"ray_vs_wave_lensing": str(chk.figure_lensing)} if chk.figure_lensing else {}),
-                                  **({"ray_vs_wave_profile": str(chk.figure_profile)} if chk.figure_profile else {})})
+                                  **({"ray_vs_wave_profile": str(chk.figure_profile)} if chk.figure_profile else {}),
+                                  **({"wave_lensing_map": str(chk.figure_lensing_map)} if chk.figure_lensing_map
+                                     else {})})
     desc = (manifest.get("parameters", {}) or {}).get("description", "")
     ctx = {
         "title": f"Wave-equation check of the ray screening: {name}",

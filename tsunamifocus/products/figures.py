@@ -925,6 +925,8 @@ def plot_lensing_map(
     title: str = "Lensing factor, travel time and ranked coast segments",
     source_outline: Any = None,
     contour_step_min: float | None = None,
+    no_value_label: str = "No rays",
+    segment_label: str = "Coast segment (colour = lensing factor)",
 ) -> pathlib.Path:
     """Lensing-factor map with travel-time contours and the ranked coastline segments.
 
@@ -950,6 +952,10 @@ def plot_lensing_map(
         Fault outlines in the grid CRS.
     contour_step_min : float, optional
         Contour interval [min]; chosen automatically (about 6-12 contours) when None.
+    no_value_label : str
+        Legend entry of the sea cells without a value (the rays' map: "No rays").
+    segment_label : str
+        Legend entry of the coloured coast segments.
 
     Returns
     -------
@@ -970,7 +976,7 @@ def plot_lensing_map(
     r = scale.vmax
     norm = mcolors.LogNorm(vmin=scale.vmin, vmax=scale.vmax, clip=False)
     cmap = _cmap(scale.cmap).with_extremes(bad=(0.0, 0.0, 0.0, 0.0))
-    handles = _lensing_raster(fig, ax, lf, linfo, depth, info, cmap, norm, r)
+    handles = _lensing_raster(fig, ax, lf, linfo, depth, info, cmap, norm, r, no_value_label)
     if travel_time_min is not None:
         handles += _travel_time_contours(ax, travel_time_min, info, contour_step_min, depth)
     if source_outline is not None and _draw_lines(
@@ -978,13 +984,13 @@ def plot_lensing_map(
     ):
         handles.append(Line2D([], [], color=_OKABE_GREEN, lw=1.8, label="Fault outline"))
     if segments is not None and len(segments):
-        handles += _coloured_segments(ax, segments, seg_vals, info, cmap, norm, r)
+        handles += _coloured_segments(ax, segments, seg_vals, info, cmap, norm, r, segment_label)
         if top_k > 0:
             handles += _rank_labels(ax, segments, top_k, info)
     return _finish(fig, out_path, ax=ax, geo=geo, handles=handles, right_cbars=1)
 
 
-def _lensing_raster(fig, ax, lf, linfo, depth, info, cmap, norm, r) -> list:
+def _lensing_raster(fig, ax, lf, linfo, depth, info, cmap, norm, r, no_value_label: str = "No rays") -> list:
     """The lensing-factor raster over a 'no rays' background, land, coast and the log colour bar."""
     lf_plot = np.where(np.isfinite(lf) & (lf > 0), lf, np.nan)
     ax.add_patch(Rectangle((0, 0), 1, 1, transform=ax.transAxes, facecolor="0.93", zorder=0))
@@ -998,7 +1004,7 @@ def _lensing_raster(fig, ax, lf, linfo, depth, info, cmap, norm, r) -> list:
         zorder=1,
     )
     handles = _land_and_coast(ax, depth, info)
-    handles.append(Patch(facecolor="0.93", edgecolor="0.3", linewidth=0.5, label="No rays"))
+    handles.append(Patch(facecolor="0.93", edgecolor="0.3", linewidth=0.5, label=no_value_label))
     cb = _right_colorbar(fig, ax, im, extend="both")
     ticks = _log_ticks(r)
     cb.ax.yaxis.set_major_locator(FixedLocator(ticks))
@@ -1050,7 +1056,8 @@ def _travel_time_contours(ax, travel_time_min: xr.DataArray, info: GridInfo, con
     return handles
 
 
-def _coloured_segments(ax, segments: pd.DataFrame, seg_vals: np.ndarray, info: GridInfo, cmap, norm, r) -> list:
+def _coloured_segments(ax, segments: pd.DataFrame, seg_vals: np.ndarray, info: GridInfo, cmap, norm, r,
+                       label: str = "Coast segment (colour = lensing factor)") -> list:
     """Coast segments drawn in the colour of their lensing factor (grey without one); their legend entry."""
     handles: list = []
     segs, cols = [], []
@@ -1079,7 +1086,7 @@ def _coloured_segments(ax, segments: pd.DataFrame, seg_vals: np.ndarray, info: G
                 color=cmap(norm(min(r, 2.0))),
                 lw=4,
                 path_effects=[patheffects.withStroke(linewidth=6.0, foreground="black")],
-                label="Coast segment (colour = lensing factor)",
+                label=label,
             )
         )
     return handles

@@ -141,8 +141,13 @@ def _figures(a: SourceAnalysis, depth: xr.DataArray, scenario: Any, folder: path
                                        period_s=a.period_s, reference_smooth_km=f.reference_smooth_km,
                                        title=f"The two oceans of the lensing factor: {a.name}")
     if a.check is not None:
-        figs.update(check_figures(a.check, folder, segments=f.segments))
+        figs.update(check_figures(a.check, folder, segments=f.segments, depth=depth))
     return {k: pathlib.Path(v) if v is not None else folder / f"{k}.png" for k, v in figs.items()}
+
+
+def _is_check_figure(key: str) -> bool:
+    """Whether a figure belongs to the wave check's section of the appendix."""
+    return key.startswith("ray_vs") or key == "wave_lensing_map"
 
 
 def _points_xy(points: Sequence[Any], depth: xr.DataArray) -> list[tuple[str, float, float]]:
@@ -270,9 +275,9 @@ def write_run_folder(
         ctx = _report_context(a, scenario, depth, points, health, figs, ensemble, extra_sections, choices=choices)
         if a.check is not None:
             # the check's figures appear once, in its own section
-            ctx["wave_check"] = check_section(a.check, {k: str(v) for k, v in figs.items() if k.startswith("ray_vs")},
+            ctx["wave_check"] = check_section(a.check, {k: str(v) for k, v in figs.items() if _is_check_figure(k)},
                                               table_file="wave_check.csv")
-            ctx["figures"] = {k: v for k, v in ctx["figures"].items() if not k.startswith("ray_vs")}
+            ctx["figures"] = {k: v for k, v in ctx["figures"].items() if not _is_check_figure(k)}
         html, pdf = folder / RUN_FILES["html"], folder / RUN_FILES["pdf"]
         build_appendix(ctx, html, pdf)
         files["html"], files["pdf"] = html, pdf

@@ -25,7 +25,7 @@ from ..grid import MAX_REFINE_FACTOR, refine_grid
 from ..propagation.wave import (WAVE_CAUTION, WaveResult, _check_depth, _dt_from, _memory_needed, _metric, _polar_dry,
                                 _wet_mask, simulate_linear_long_wave)
 
-__all__ = ['AMPLITUDE_RATIO_FACTOR', 'AUTO_REFINE', 'MIN_CELLS_PER_WAVELENGTH', 'FAINT_WAVE_FRACTION', 'WaveCheck', 'check_refine', 'choose_refine',
+__all__ = ['AMPLITUDE_RATIO_FACTOR', 'AUTO_REFINE', 'MIN_CELLS_PER_WAVELENGTH', 'FAINT_WAVE_FRACTION', 'LENSING_MAP_FLOOR', 'WaveCheck', 'check_refine', 'choose_refine',
            'compare_with_waves', 'default_check_duration_s', 'faint_wave_segments', 'wave_resolution']
 
 #: Fewest grid cells per dominant wavelength at the stop isobath the check wants for its coastal
@@ -54,6 +54,12 @@ AUTO_REFINE: str = "auto"
 #: 17 of the 25 segments in a strait and the sound behind it fall below it, and no segment of the
 #: open coast falls below 0.21 of the median (docs/wave_check.md, "Limits").
 FAINT_WAVE_FRACTION: float = 0.01
+
+
+#: Cells whose wave maximum over the reference ocean is below this fraction of its 99th percentile
+#: get no value on the wave's lensing map (:meth:`WaveCheck.lensing_map`): the ratio of two
+#: near-zero maxima is noise (common practice, no source).
+LENSING_MAP_FLOOR: float = 0.01
 
 
 def faint_wave_segments(wave_amp: Any, ranked: Any, fraction: float = FAINT_WAVE_FRACTION) -> np.ndarray:
@@ -235,6 +241,31 @@ class WaveCheck:
     wave_reference: WaveResult | None = None
     figure_lensing: Path | None = None
     figure_profile: Path | None = None
+    figure_lensing_map: Path | None = None
+
+    def lensing_map(self) -> xr.DataArray | None:
+        """The wave's lensing factor over the whole grid, like the segments' ``wave_lensing``.
+
+        ``(max elevation over the real sea floor / max elevation over the reference)^2`` per wet
+        cell of the wave's grid (the run's grid refined ``agreement["refine"]`` times); NaN on dry
+        cells and where the reference's maximum is below :data:`LENSING_MAP_FLOOR` of its 99th
+        percentile (water the wave barely reaches, where the ratio is noise). None without a
+        reference run.
+        """
+        if self.wave_reference is None:
+            return None
+        real = np.asarray(self.wave.max_amplitude.values, dtype=float)
+        ref = np.asarray(self.wave_reference.max_amplitude.values, dtype=float)
+        pos = ref[np.isfinite(ref) & (ref > 0)]
+        floor = LENSING_MAP_FLOOR * float(np.percentile(pos, 99.0)) if pos.size else np.inf
+        ok = np.isfinite(real) & np.isfinite(ref) & (ref >= floor) & (real > 0)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            lens = np.where(ok, (real / np.where(ok, ref, 1.0)) ** 2, np.nan)
+        out = self.wave.max_amplitude.copy(data=lens)
+        out.name = "wave_lensing"
+        out.attrs = {"units": "1", "long_name": "wave lensing factor: squared ratio of the linear long-wave maxima "
+                     "over the real and over the reference sea floor"}
+        return out
 
     def summary(self) -> str:
         """A few printable lines: agreement figures, run statistics and the cautions line."""
