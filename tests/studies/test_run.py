@@ -157,7 +157,7 @@ def test_checked_run_shows_each_figure_once(tmp_path):
     out = tmp_path / "run"
     run_scenario(sc, out=out, progress=False, check=True)
     figs = sorted(p.name for p in (out / "figures").glob("*.png"))
-    assert {"ray_vs_wave.png", "ray_vs_wave_lensing.png", "ray_vs_wave_profile.png"} <= set(figs)
+    assert {"ray_vs_wave.png", "ray_vs_wave_lensing.png", "ray_vs_wave_profile.png", "wave_lensing_map.png"} <= set(figs)
     text = (out / "appendix.html").read_text(encoding="utf-8")
     imgs = re.findall(r'<img[^>]*src="(data:image/png;base64,[^"]+)"', text)
     assert len(imgs) == len(set(imgs)) == len(figs)
@@ -183,6 +183,15 @@ def test_checked_run_shows_each_figure_once(tmp_path):
         np.testing.assert_allclose(seg[col].to_numpy(float), chk[col].reindex(seg.index).to_numpy(float),
                                    rtol=1e-6, equal_nan=True)
     assert np.isfinite(seg["wave_amp_stop_m"]).sum() >= 0.9 * len(seg)
+    # ... and can hold the wave's lensing map beside the rays' (its own QGIS style, the same scale kind)
+    import rasterio
+
+    ramp = [float(v) for v in re.findall(r'<item value="([^"]+)"', (out / "wave_lensing.qml").read_text(encoding="utf-8"))]
+    assert len(ramp) >= 3 and ramp[0] * ramp[-1] == pytest.approx(1.0)  # log scale symmetric about 1, as the rays' map
+    with rasterio.open(out / "wave_lensing.tif") as src:
+        v = src.read(1, masked=True).filled(np.nan)
+        assert "SCREENING" in str(src.tags()) and np.isfinite(v).sum() > 1000
+        assert np.nanpercentile(v, 5) < 1.0 < np.nanpercentile(v, 95)
 
 
 def test_caution_in_every_output(demo_run):

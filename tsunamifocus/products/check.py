@@ -11,6 +11,7 @@ Screening estimates only: not a tsunami warning, forecast or inundation map (see
 
 from __future__ import annotations
 
+import dataclasses
 import json
 import pathlib
 import sys
@@ -27,12 +28,14 @@ from ..io.guards import check_output_folder
 from ..io.runfolder import OutputFolder
 from ..io.runs import read_run
 from ..io.scenario import Scenario, parse_scenario
+from ..grid import refine_grid
+from ..io.styles import lensing_scale
 from ..studies.check import AUTO_REFINE, FAINT_WAVE_FRACTION, WaveCheck, check_refine, compare_with_waves
 from .appendix import build_appendix
-from ..grid import refine_grid
 from .figures import plot_check_profile, plot_lensing_map, plot_ray_vs_wave
 
-__all__ = ['wave_check', 'run_wave_check', 'check_figures', 'check_section', 'write_check_table', 'CHECK_FOLDER']
+__all__ = ['wave_check', 'run_wave_check', 'check_figures', 'check_section', 'write_check_table', 'write_wave_lensing',
+           'CHECK_FOLDER']
 
 #: Default sub-folder of a run that receives the check's outputs.
 CHECK_FOLDER = "wave_check"
@@ -209,10 +212,8 @@ def run_wave_check(
         write_cog(amp, tmp / "wave_max_amplitude.tif", description="maximum sea-surface elevation (linear "
                   "long-wave check)", units="m")
         layers_out = {"wave_max_amplitude": amp}
-        lens_map = chk.lensing_map()
+        lens_map = write_wave_lensing(chk, tmp / "wave_lensing.tif")
         if lens_map is not None:
-            write_cog(lens_map, tmp / "wave_lensing.tif", description="wave lensing factor: (linear long-wave maximum "
-                      "over the real / over the reference sea floor)^2", units="1")
             layers_out["wave_lensing"] = lens_map
         write_netcdf(layers_out, tmp / "wave_check.nc",
                      title=f"tsunamifocus wave-equation check: {name}",
@@ -234,6 +235,25 @@ def run_wave_check(
           + (f"  lensing_spearman {lsp if lsp is None else round(lsp, 3)}  lensing_top{k}_overlap "
              f"{lens.get('topk_overlap')}" if lens else ""))
     return {"agreement": ag, "out": out_dir}
+
+
+def write_wave_lensing(chk: WaveCheck, path: pathlib.Path) -> Any:
+    """Write the wave's lensing map (:meth:`WaveCheck.lensing_map`) as a GeoTIFF with its QGIS style.
+
+    The style is the lensing map's colour scale (diverging, log, symmetric about 1) over the map
+    and the ranked segments' wave lensing. Returns the map, or None (and no file) without a
+    reference run.
+    """
+    lens_map = chk.lensing_map()
+    if lens_map is None:
+        return None
+    t = chk.table
+    seg_vals = pd.to_numeric(t["wave_lensing"].where(t["ranked"]), errors="coerce").to_numpy(float)
+    scale = dataclasses.replace(lensing_scale(lens_map.values, seg_vals), layer="wave_lensing",
+                                title="Wave lensing factor (-), log scale; 1 = no focusing")
+    write_cog(lens_map, path, description="wave lensing factor: (linear long-wave maximum over the real / over the "
+              "reference sea floor)^2", units="1", style=scale)
+    return lens_map
 
 
 def write_check_table(df: pd.DataFrame, path: pathlib.Path) -> pathlib.Path:

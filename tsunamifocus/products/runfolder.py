@@ -34,7 +34,7 @@ from ..studies.run import (
 )
 from . import figures as F
 from .appendix import build_appendix
-from .check import check_figures, check_section, write_check_table
+from .check import check_figures, check_section, write_check_table, write_wave_lensing
 from .comparison import compare_to_folder
 from .context import _report_context
 from .summaries import format_run_summary
@@ -265,6 +265,8 @@ def write_run_folder(
         log.info("no isochrone file: every first arrival is earlier than %g min", scenario.output.isochrone_step_min)
     if a.check is not None:
         files["wave_check"] = write_check_table(a.check.table, folder / "wave_check.csv")
+        if write_wave_lensing(a.check, folder / "wave_lensing.tif") is not None:
+            files["wave_lensing"] = folder / "wave_lensing.tif"
     (folder / RUN_FILES["scenario"]).write_text(_scenario_toml(scenario), encoding="utf-8")
     figs = {}
     if scenario.output.figures:

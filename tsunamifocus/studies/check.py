@@ -232,6 +232,11 @@ class WaveCheck:
         maxima) and ``lensing``.
     figure : pathlib.Path or None
         The scatter figure, when ``figure_path`` was given.
+    wave_reference : WaveResult or None
+        The wave-solver run over the lensing reference, when one was given.
+    figure_lensing, figure_profile, figure_lensing_map : pathlib.Path or None
+        The lensing scatter, the profile along the coast and the wave's lensing map
+        (:meth:`lensing_map`), when written.
     """
 
     wave: WaveResult
