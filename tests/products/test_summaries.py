@@ -19,12 +19,14 @@ def test_a_weak_lensing_ranking_is_said_and_the_amplitude_ranking_recommended():
     assert "lensing ranking against the wave:   Spearman 0.01, top-10 overlap 3/10 - weak" in lines
     assert "amplitude ranking against the wave: Spearman 0.92, top-10 overlap 5/10\n" in lines + "\n"
     assert "rank this coast with the amplitude ranking" in lines
+    # a weak lensing ranking points to the wave's own lensing map, which the check writes
+    assert "where the wave itself focuses: wave_lensing.tif and figures/wave_lensing_map.png" in lines
     # both rankings holding: no warning words
     ok = "\n".join(_check_lines(_ag(0.93, 0.76)))
-    assert "weak" not in ok and "rank this coast" not in ok
+    assert "weak" not in ok and "rank this coast" not in ok and "wave_lensing_map" not in ok
     # both weak: both said, no recommendation of a ranking that failed too
     both = "\n".join(_check_lines(_ag(0.3, 0.1)))
-    assert both.count("weak") == 2 and "rank this coast" not in both
+    assert both.count("weak") == 2 and "rank this coast" not in both and "wave_lensing_map" in both
 
 
 def test_a_ranking_whose_top_k_the_wave_does_not_share_is_weak_at_the_top():

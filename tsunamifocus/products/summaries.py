@@ -164,6 +164,8 @@ def _check_lines(ag: dict) -> list[str]:
         out.append(f"    lensing ranking against the wave:   {held(ag['lensing'])}{weak(ag['lensing'])}")
         if _amplitude_first(ag):
             out.append("    rank this coast with the amplitude ranking, not the lensing factor (docs/focusing.md)")
+        if _weakness(ag["lensing"]):
+            out.append("    where the wave itself focuses: wave_lensing.tif and figures/wave_lensing_map.png")
     if ag.get("amplitude_ratio"):
         out.append(f"    size: {_size_text(ag)}" + ("; read amplitudes from the wave check" if _size_off(ag) else ""))
     if ag.get("n_faint_wave"):
