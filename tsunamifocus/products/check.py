@@ -92,7 +92,8 @@ def check_figures(chk: WaveCheck, folder: pathlib.Path, *, stem: str = "ray_vs_w
         out["ray_vs_wave_profile"] = plot_check_profile(chk.table, segments, folder / f"{stem}_profile.png", k=k)
         lens_map = chk.lensing_map()
         if depth is not None and lens_map is not None:
-            out["wave_lensing_map"] = _wave_lensing_figure(chk, lens_map, segments, depth, folder / "wave_lensing_map.png")
+            out["wave_lensing_map"] = _wave_lensing_figure(chk, lens_map, segments, depth,
+                                                           folder / "wave_lensing_map.png")
     return out
 
 

@@ -25,8 +25,9 @@ from ..grid import MAX_REFINE_FACTOR, refine_grid
 from ..propagation.wave import (WAVE_CAUTION, WaveResult, _check_depth, _dt_from, _memory_needed, _metric, _polar_dry,
                                 _wet_mask, simulate_linear_long_wave)
 
-__all__ = ['AMPLITUDE_RATIO_FACTOR', 'AUTO_REFINE', 'MIN_CELLS_PER_WAVELENGTH', 'FAINT_WAVE_FRACTION', 'LENSING_MAP_FLOOR', 'WaveCheck', 'check_refine', 'choose_refine',
-           'compare_with_waves', 'default_check_duration_s', 'faint_wave_segments', 'wave_resolution']
+__all__ = ['AMPLITUDE_RATIO_FACTOR', 'AUTO_REFINE', 'MIN_CELLS_PER_WAVELENGTH', 'FAINT_WAVE_FRACTION',
+           'LENSING_MAP_FLOOR', 'WaveCheck', 'check_refine', 'choose_refine', 'compare_with_waves',
+           'default_check_duration_s', 'faint_wave_segments', 'wave_resolution']
 
 #: Fewest grid cells per dominant wavelength at the stop isobath the check wants for its coastal
 #: maxima: ``refine="auto"`` (the default) solves the wave on a grid fine enough for it
