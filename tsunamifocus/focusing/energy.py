@@ -16,7 +16,7 @@ from . import _nearestkernel as _nk
 #: Up to this many distinct launch points the distance map is a direct minimum over them.
 _DIRECT_MAX_POINTS: int = 64
 
-__all__ = ['fresnel_sigma_m', 'regularised_energy', 'regularised_energies', 'ratio_map', 'point_source_energy_width', 'distance_to_launch_m']
+__all__ = ['fresnel_sigma_m', 'wavelength_sigma_m', 'regularised_energy', 'regularised_energies', 'ratio_map', 'point_source_energy_width', 'distance_to_launch_m']
 
 
 def distance_to_launch_m(
@@ -59,6 +59,52 @@ def distance_to_launch_m(
     out = grid.copy(data=d)
     out.name = "distance_m"
     out.attrs = {"units": "m", "long_name": "distance to the nearest launch point"}
+    return out
+
+
+def wavelength_sigma_m(
+    depth: xr.DataArray,
+    period_s: float,
+    fraction: float,
+    *,
+    gravity: float = GRAVITY,
+    min_depth: float = MIN_DEPTH_M,
+) -> xr.DataArray:
+    """Regularisation width of the focusing maps: a fraction of the local wavelength [m].
+
+    ``sigma = fraction x sqrt(g h) T``: the same averaging length, relative to the wavelength,
+    as the oceans the rays are traced over (:mod:`tsunamifocus.ocean.wavelength`). Held against
+    the wave's lensing map, ray lensing maps regularised so agree with it better than over the
+    first Fresnel zone (:func:`fresnel_sigma_m`), whose width grows to hundreds of km on
+    trans-ocean paths and blurs away the beams the wave has (docs/focusing.md).
+
+    Parameters
+    ----------
+    depth : xarray.DataArray
+        Depth [m], positive down (the lensing reference: the large-scale depth, shelf kept).
+    period_s : float
+        Dominant period of the source [s].
+    fraction : float
+        Gaussian std in local wavelengths (> 0).
+    gravity, min_depth : float
+        [m s-2], depth clamp [m].
+
+    Returns
+    -------
+    xarray.DataArray
+        ``sigma`` [m], NaN on land.
+    """
+    if not (np.isfinite(period_s) and period_s > 0):
+        raise InputError(f"period_s={period_s}: expected the source's dominant period in seconds (> 0)")
+    if not (np.isfinite(fraction) and fraction > 0):
+        raise InputError(f"fraction={fraction}: expected a positive number of wavelengths")
+    h = np.asarray(depth.values, dtype=float)
+    sea = np.isfinite(h) & (h > 0)
+    c = np.sqrt(gravity * np.maximum(np.where(sea, h, min_depth), min_depth))
+    out = depth.copy(data=np.where(sea, fraction * c * period_s, np.nan))
+    out.name = "kernel_sigma_m"
+    out.attrs = {"units": "m", "long_name": f"Gaussian regularisation std = {fraction:g} local wavelength sqrt(g h) T",
+                 "period_s": float(period_s)}
     return out
 
 

@@ -154,9 +154,10 @@ DEFAULT_METHOD: list[dict[str, Any]] = [
         "text": [
             "Each ray i carries an energy weight wᵢ [J]. The energy map is the ray-density estimate "
             "W, the energy per unit wavefront width, with ℓᵢ the path length of ray i in a cell of "
-            "area A. For the maps it is regularised by smoothing over the first Fresnel zone, "
-            "σ = √(λ L) / 2 with λ = c T the local wavelength and L the distance from the source, since "
-            "rays closer than that cannot be told apart by the wave.",
+            "area A. For the maps it is regularised by smoothing over a quarter of the local wavelength, "
+            "σ = λ / 4 with λ = c T the long-wave wavelength at the dominant period, since ray-density "
+            "detail finer than a wavelength is not physical; the coastline segments' energies come "
+            "from ray tubes instead, with footprints capped at the first Fresnel zone, √(λ L) / 2.",
             "The lensing factor compares the energy that reaches a cell or a coastline segment with the "
             "energy of the same ray fan traced over a reference bathymetry: the offshore sea depths "
             "(deeper than 1000 m) low-passed, the shelf (shallower than 200 m) kept, blended in between, "
