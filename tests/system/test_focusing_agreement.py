@@ -110,17 +110,18 @@ def test_demo_ray_rankings_agree_with_the_wave_solver(demo_runs):
     seg = a.focusing.segments
     assert chk.agreement["n"] >= 60  # measured: all 66 segments of the coast of interest ranked
     assert chk.agreement["refine"] == 2  # measured: 10.5 cells per dominant wavelength at the stop isobath
-    # amplitude at the stop isobath. Measured on 2026-12-03 (10000 rays, the check refined 2x):
-    # Spearman 0.915, top-10 common 9/10 (the project targets: 0.9, 8/10; against the check at the
-    # grid's own 3 km, 0.926 and 8/10).
-    assert chk.agreement["spearman"] >= 0.915 - 0.05
-    assert chk.agreement["topk_common"] >= 9 - 2
+    # amplitude at the stop isobath. Measured on 2026-12-03 (10000 rays, the check refined 2x, the
+    # demo's sea floor with every feature at least half a wavelength across): Spearman 0.909,
+    # top-10 common 6/10 (the project targets: 0.9, 8/10; the top-10 target is not met; the
+    # previous design gave 0.915 and 9/10; docs/focusing.md, "The demo's sea floor").
+    assert chk.agreement["spearman"] >= 0.909 - 0.05
+    assert chk.agreement["topk_common"] >= 6 - 2
     # lensing factor (wave: (A_real / A_reference)^2). Measured on 2026-12-03 (10000 rays, both
-    # oceans averaged over the reference's wavelength, the check refined 2x): Spearman 0.672,
-    # top-10 common 6/10 (0.706, 7/10 against the check at 3 km). The project targets (0.8, 7/10)
-    # are not met; docs/focusing.md.
-    assert chk.agreement["lensing"]["spearman"] >= 0.672 - 0.1
-    assert chk.agreement["lensing"]["topk_common"] >= 6 - 2
+    # oceans averaged over the reference's wavelength, the check refined 2x): Spearman 0.815,
+    # top-10 common 7/10 (the project targets 0.8 and 7/10; the previous design gave 0.672 and
+    # 6/10).
+    assert chk.agreement["lensing"]["spearman"] >= 0.815 - 0.1
+    assert chk.agreement["lensing"]["topk_common"] >= 7 - 2
     # the check's figures are those of the ranked ray column against the wave column
     wave = chk.table.set_index("segment_id")["wave_amp_stop_m"]
     again = compare_rankings(_ranked(seg, "amp_stop_m"), wave, k=K)
@@ -136,9 +137,10 @@ def test_demo_lensing_map_against_the_wave_lensing_map(demo_runs):
                              refine=1)
     ours, fresnel = _map_agreement(a, chk)
     print(f"demo lensing map vs wave map: Spearman {ours:.3f} (Fresnel-regularised: {fresnel:.3f})")
-    # Measured 2026-12-03 (10000 rays, regularised over a quarter of the local wavelength): Spearman
-    # 0.619 against the wave's map; the same rays regularised over the first Fresnel zone: 0.513.
-    assert ours >= 0.619 - 0.05
+    # Measured 2026-12-03 (10000 rays, regularised over a quarter of the local wavelength, the
+    # demo's sea floor of that day): Spearman 0.744 against the wave's map; the same rays
+    # regularised over the first Fresnel zone: 0.516 (the previous sea floor: 0.619 and 0.513).
+    assert ours >= 0.744 - 0.05
     assert ours > fresnel + 0.05
 
 
@@ -153,15 +155,15 @@ def test_demo_rankings_are_stable_between_ray_seeds(demo_runs):
     b_wave = compare_rankings(_ranked(sb, "amp_stop_m"), wave, k=K)
     print("demo seeds:", {k: (v["spearman"], v["topk_common"]) for k, v in
                           (("amp", amp), ("lens", lens), ("seed8_vs_wave", b_wave))})
-    # Measured on 2026-12-02 (seeds 7 and 8, 10000 rays): amplitude Spearman 0.999, top-10 10/10;
-    # lensing Spearman 0.993, top-10 9/10.
-    assert amp["spearman"] >= 0.999 - 0.03
+    # Measured on 2026-12-03 (seeds 7 and 8, 10000 rays): amplitude Spearman 0.998, top-10 10/10;
+    # lensing Spearman 0.998, top-10 10/10.
+    assert amp["spearman"] >= 0.998 - 0.03
     assert amp["topk_common"] >= 10 - 2
-    assert lens["spearman"] >= 0.993 - 0.05
-    assert lens["topk_common"] >= 9 - 2
+    assert lens["spearman"] >= 0.998 - 0.05
+    assert lens["topk_common"] >= 10 - 2
     # the second seed is judged by the same wave run as well as the first.
-    # Measured on 2026-12-03 (10000 rays, the check refined 2x): seed 8 amplitude Spearman 0.917.
-    assert b_wave["spearman"] >= 0.917 - 0.05
+    # Measured on 2026-12-03 (10000 rays, the check refined 2x): seed 8 amplitude Spearman 0.909.
+    assert b_wave["spearman"] >= 0.909 - 0.05
 
 
 # ------------------------------------------------------------------------------------------------

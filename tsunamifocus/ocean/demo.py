@@ -5,8 +5,10 @@ an invented coastline with a trench, an abyssal plain at 4-5 km, a plateau (Bran
 Plateau), a ridge aimed at the coast (Tallis Rise), a seamount chain (the Orrin Seamounts), a
 fracture zone (Sorrel Fracture Zone), random relief with a red spectrum (power growing with
 scale), a continental slope and shelf cut by a submarine canyon (Vell Canyon), bays and
-headlands. The features are tens to hundreds of kilometres across, the scales at which a
-tsunami's wavelength lets it refract and focus. No real place is depicted.
+headlands. The offshore features are 90-400 km across with flanks tens of kilometres wide,
+and the random relief has no scale below 80 km: at least about half the deep-water wavelength of
+the demo's tsunami (about 200 km), the scales at which the wave refracts and focuses and ray
+theory still holds. No real place is depicted.
 
 The grid sits on a local transverse Mercator projection centred on an arbitrary point of
 open ocean (so that coordinates are valid on Earth); the names are fictional.
@@ -59,6 +61,7 @@ class DemoRegion:
     shelf_depth_m: float = 150.0
     relief_rms_m: float = 250.0
     relief_slope: float = 3.0
+    relief_smallest_km: float = 80.0
     seed: int = 20261202
 
 
@@ -74,33 +77,40 @@ def _coast_position(y_km: np.ndarray, r: DemoRegion) -> np.ndarray:
 
 
 def _offshore_features(X: np.ndarray, Y: np.ndarray) -> np.ndarray:
-    """Height [m] of the named features above the abyssal plain: each tens to hundreds of km across."""
+    """Height [m] of the named features above the abyssal plain.
+
+    Each feature is at least about half a deep-water wavelength across (the dominant period of the
+    demo's source, about 16 min, gives a wavelength of about 200 km over the abyssal plain) and its
+    flanks are tens of kilometres wide, so that ray theory holds over it and the rays and the wave
+    focus alike (docs/focusing.md, "The demo's sea floor").
+    """
     h = np.zeros_like(X)
-    # Brannock Plateau: ~220 x 160 km, rising 2600 m, steep-sided
-    u = ((X - 470.0) / 110.0) ** 2 + ((Y - 330.0) / 80.0) ** 2
-    h += 2600.0 / (1.0 + np.exp((u - 1.0) * 5.0))
-    # Tallis Rise: a ridge 500 km long, 70 km wide, 1700 m high, aimed at the coast
+    # Brannock Plateau: ~400 x 300 km, rising 2600 m, flanks ~50 km wide
+    u = ((X - 470.0) / 200.0) ** 2 + ((Y - 330.0) / 150.0) ** 2
+    h += 2600.0 / (1.0 + np.exp((u - 1.0) * 3.0))
+    # Tallis Rise: a ridge 500 km long, about 200 km wide, 1700 m high, aimed at the coast
     a = np.radians(-12.0)
     uu = (X - 470.0) * np.cos(a) + (Y - 760.0) * np.sin(a)
     vv = -(X - 470.0) * np.sin(a) + (Y - 760.0) * np.cos(a)
-    h += 1700.0 * np.exp(-((vv / 35.0) ** 2)) * np.exp(-((uu / 260.0) ** 4))
-    # Orrin Seamounts: a chain of five, 45-65 km across
-    for sx, sy, hgt, rad in ((250, 940, 2000, 22), (330, 980, 2600, 28), (420, 1010, 3000, 32),
-                             (510, 1040, 2400, 26), (600, 1060, 2800, 30)):
+    h += 1700.0 * np.exp(-((vv / 100.0) ** 2)) * np.exp(-((uu / 260.0) ** 4))
+    # Orrin Seamounts: a chain of five broad seamounts, 90-130 km across (Gaussian sigma 44-64 km)
+    for sx, sy, hgt, rad in ((250, 940, 2000, 44), (330, 980, 2600, 56), (420, 1010, 3000, 64),
+                             (510, 1040, 2400, 52), (600, 1060, 2800, 60)):
         h += hgt * np.exp(-((X - sx) ** 2 + (Y - sy) ** 2) / (2.0 * rad * rad))
-    # Sorrel Fracture Zone: an east-west trough with a 500 m step across it
+    # Sorrel Fracture Zone: an east-west trough with a 500 m step across it, both ~100 km wide
     inside = (X > 220.0) & (X < 680.0)
-    h -= inside * (250.0 * np.tanh((Y - 560.0) / 15.0) + 700.0 * np.exp(-(((Y - 560.0) / 12.0) ** 2)))
+    h -= inside * (250.0 * np.tanh((Y - 560.0) / 80.0) + 700.0 * np.exp(-(((Y - 560.0) / 60.0) ** 2)))
     return h
 
 
 def make_demo_bathymetry(region: DemoRegion | None = None) -> xr.DataArray:
     """Generate the Meridane demo bathymetry as a depth grid (projected, metres).
 
-    The focusing comes from features a tsunami sees, tens to hundreds of kilometres across (a
-    plateau, a ridge aimed at the coast, a seamount chain, a fracture zone) and from random
-    relief with a red spectrum (:func:`tsunamifocus.ocean.randomfield.red_noise_field`), not
-    from short fluctuations below the wavelength. The coast of interest lies far from the grid
+    The focusing comes from features a tsunami sees and ray theory can follow, 90-400 km
+    across with wide flanks (a plateau, a ridge aimed at the coast, a seamount chain, a fracture
+    zone), and from random relief with a red spectrum
+    (:func:`tsunamifocus.ocean.randomfield.red_noise_field`) between 80 and 500 km, not from
+    fluctuations shorter than the wavelength. The coast of interest lies far from the grid
     edges: the shoreline runs north-south 800-870 km east of the trench and turns east near the
     northern and southern ends.
 
@@ -125,7 +135,7 @@ def make_demo_bathymetry(region: DemoRegion | None = None) -> xr.DataArray:
     base = r.abyssal_depth_m - 0.3 * (X - 400.0)
     base += r.trench_extra_m * np.exp(-(((X - r.trench_x_km - 0.02 * (Y - 600.0)) / 30.0) ** 2))
     base -= red_noise_field(X.shape, r.spacing_km * 1e3, slope=r.relief_slope, largest_m=500e3,
-                            smallest_m=12e3, rms=r.relief_rms_m, seed=r.seed)
+                            smallest_m=r.relief_smallest_km * 1e3, rms=r.relief_rms_m, seed=r.seed)
     base = np.maximum(base - _offshore_features(X, Y), 300.0)
     # continental slope and a 40-70 km wide shelf
     shelf_w = 55.0 + 15.0 * np.sin(2 * np.pi * y_km / 330.0)[:, None]
