@@ -26,7 +26,7 @@ from tsunamifocus.ocean.randomfield import gaussian_random_field
 from tsunamifocus.propagation.wave import WaveResult, simulate_linear_long_wave, wave_time_step
 from tsunamifocus.focusing.agreement import compare_rankings
 from tsunamifocus.studies.check import default_check_duration_s
-from tsunamifocus.products.check import wave_check
+from tsunamifocus.products.check import check_section, wave_check
 from tsunamifocus.products.figures import plot_ray_vs_wave
 from tsunamifocus.coast.waves import segment_max_amplitude
 
@@ -474,6 +474,8 @@ def test_wave_check_ranks_segments_like_cylindrical_spreading(straight_coast, tm
     assert wc.figure is not None and wc.figure.stat().st_size > 10_000
     text = wc.summary()
     assert "amplitude ranking: Spearman" in text and "top-6 overlap 6/6" in text and "SCREENING" in text
+    # the appendix's metrics state the overlap as the summary does ("6/6"), not as the fraction 1.0
+    assert check_section(wc, {})["metrics"]["amplitude ranking: top-6 overlap"] == "6/6"
     with pytest.raises(CoastError, match="lensing_factor"):
         wave_check(depth, eta0, segs, ray_column="lensing_factor", duration_s=100.0)
 

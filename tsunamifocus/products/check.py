@@ -318,16 +318,22 @@ def check_section(chk: WaveCheck, figures: dict[str, str], table_file: str = "wa
         "ray ranking of that segment is not supported and should not be used on its own.",
     ]
     lens = ag.get("lensing") or {}
+
+    def overlap(d: dict) -> Any:
+        # "6/10" (segments in both top-k lists), as the summaries print it, not the fraction 0.6
+        common, kk = d.get("topk_common"), d.get("k", k)
+        return f"{common}/{kk}" if common is not None else d.get("topk_overlap")
+
     metrics = {
         "segments compared (ranked)": ag.get("n"),
         "amplitude ranking: Spearman": fmt(ag.get("spearman")),
         "amplitude ranking: Kendall tau": fmt(ag.get("kendall")),
-        f"amplitude ranking: top-{k} overlap": ag.get("topk_overlap"),
+        f"amplitude ranking: top-{k} overlap": overlap(ag),
     }
     if lens:
         metrics.update({"lensing ranking: Spearman": fmt(lens.get("spearman")),
                         "lensing ranking: Kendall tau": fmt(lens.get("kendall")),
-                        f"lensing ranking: top-{k} overlap": lens.get("topk_overlap")})
+                        f"lensing ranking: top-{k} overlap": overlap(lens)})
     if ag.get("amplitude_ratio"):
         r = ag["amplitude_ratio"]
         metrics["wave maximum / ray amplitude: median (5-95 % of the segments)"] = \
