@@ -62,6 +62,16 @@ def distance_to_launch_m(
     return out
 
 
+def _sea_and_speed(depth: xr.DataArray, period_s: float, gravity: float,
+                   min_depth: float) -> tuple[np.ndarray, np.ndarray]:
+    """Check the period; return the sea mask and the long-wave speed ``sqrt(g max(h, min_depth))``."""
+    if not (np.isfinite(period_s) and period_s > 0):
+        raise InputError(f"period_s={period_s}: expected the source's dominant period in seconds (> 0)")
+    h = np.asarray(depth.values, dtype=float)
+    sea = np.isfinite(h) & (h > 0)
+    return sea, np.sqrt(gravity * np.maximum(np.where(sea, h, min_depth), min_depth))
+
+
 def wavelength_sigma_m(
     depth: xr.DataArray,
     period_s: float,
@@ -94,13 +104,9 @@ def wavelength_sigma_m(
     xarray.DataArray
         ``sigma`` [m], NaN on land.
     """
-    if not (np.isfinite(period_s) and period_s > 0):
-        raise InputError(f"period_s={period_s}: expected the source's dominant period in seconds (> 0)")
     if not (np.isfinite(fraction) and fraction > 0):
         raise InputError(f"fraction={fraction}: expected a positive number of wavelengths")
-    h = np.asarray(depth.values, dtype=float)
-    sea = np.isfinite(h) & (h > 0)
-    c = np.sqrt(gravity * np.maximum(np.where(sea, h, min_depth), min_depth))
+    sea, c = _sea_and_speed(depth, period_s, gravity, min_depth)
     out = depth.copy(data=np.where(sea, fraction * c * period_s, np.nan))
     out.name = "kernel_sigma_m"
     out.attrs = {"units": "m", "long_name": f"Gaussian regularisation std = {fraction:g} local wavelength sqrt(g h) T",
@@ -139,11 +145,7 @@ def fresnel_sigma_m(
     xarray.DataArray
         ``sigma`` [m], NaN on land.
     """
-    if not (np.isfinite(period_s) and period_s > 0):
-        raise InputError(f"period_s={period_s}: expected the source's dominant period in seconds (> 0)")
-    h = np.asarray(depth.values, dtype=float)
-    sea = np.isfinite(h) & (h > 0)
-    c = np.sqrt(gravity * np.maximum(np.where(sea, h, min_depth), min_depth))
+    sea, c = _sea_and_speed(depth, period_s, gravity, min_depth)
     lam = c * period_s
     L = np.asarray(distance_m.values, dtype=float)
     sig = np.where(sea, 0.5 * np.sqrt(lam * np.maximum(L, 0.0)), np.nan)
