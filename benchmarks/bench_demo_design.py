@@ -1,0 +1,150 @@
+"""Designs of the invented demo's sea floor against the wave check, over several relief realizations.
+
+The demo's focusing must come from features ray theory can follow, or its lensing ranking cannot
+hold against the wave (docs/focusing.md, "The demo's sea floor"). This script regenerates the
+demo's sea floor for each design and each realization of its random relief
+(``DemoRegion.seed``), runs the ray pipeline of ``sample_scenarios/meridane.toml`` at its default
+settings (rays of seeds 7 and 8) and the wave check as it runs by default (``refine="auto"``),
+and prints, side by side, the amplitude and lensing rankings' agreement with the wave (Spearman,
+top-10 overlap) and each design's mean over the realizations.
+
+Designs (heights, positions, the coast and the source are the same in all):
+
+* ``previous`` - the sea floor before 2026-12-03: plateau 220 x 160 km with ~20 km flanks, ridge
+  70 km wide, seamounts 45-65 km across, a 12 km fracture-zone trough, red relief down to 12 km;
+* ``current`` - the demo as shipped (``tsunamifocus.ocean.demo``): every feature at least about
+  half the deep-water wavelength across;
+* with ``--all``, the five other designs of the table in docs/focusing.md.
+
+The other designs are made by replacing the demo's feature function in this process only.
+
+Run:  python benchmarks/bench_demo_design.py [--all] [--realizations 20261202 1 2 3]
+"""
+
+from __future__ import annotations
+
+import argparse
+import dataclasses
+import pathlib
+import tempfile
+import time
+import warnings
+
+import numpy as np
+import pandas as pd
+
+import tsunamifocus.ocean.demo as demo
+from tsunamifocus.focusing.agreement import compare_rankings
+from tsunamifocus.io.scenario import parse_scenario
+from tsunamifocus.products.demo import write_demo_data
+from tsunamifocus.studies.check import compare_with_waves
+from tsunamifocus.studies.run import _segments_for, analyse_source, load_scenario_bathymetry
+
+REPO = pathlib.Path(__file__).resolve().parents[1]
+SCENARIO = REPO / "sample_scenarios" / "meridane.toml"
+K = 10
+CURRENT_FEATURES = demo._offshore_features
+
+#: name -> (plateau radii km, plateau flank slope, plateau height m, ridge half-width km,
+#: seamount size factor on the previous radii, fracture-zone step and trough widths km,
+#: the relief's shortest scale km)
+DESIGNS: dict[str, tuple] = {
+    "previous": ((110.0, 80.0), 5.0, 2600.0, 35.0, 1.0, (15.0, 12.0), 12.0),
+    "current": None,  # the shipped demo
+    "flanks100_seamounts2.5": ((200.0, 150.0), 1.5, 2600.0, 100.0, 2.5, (80.0, 60.0), 80.0),
+    "flanks100_seamounts2.5_relief150": ((200.0, 150.0), 1.5, 2600.0, 100.0, 2.5, (80.0, 60.0), 80.0),
+    "flanks50_seamounts2.5": ((200.0, 150.0), 3.0, 2600.0, 100.0, 2.5, (80.0, 60.0), 80.0),
+    "flanks100_seamounts2": ((200.0, 150.0), 1.5, 2600.0, 100.0, 2.0, (80.0, 60.0), 80.0),
+    "flanks50_plateau2000": ((200.0, 150.0), 3.0, 2000.0, 100.0, 2.5, (80.0, 60.0), 80.0),
+    "flanks50_plateau2000_seamounts2": ((200.0, 150.0), 3.0, 2000.0, 100.0, 2.0, (80.0, 60.0), 80.0),
+}
+SHOWN_BY_DEFAULT = ("previous", "current")
+
+
+def _features(plateau_r, plateau_k, plateau_h, ridge_w, seamount_factor, fracture):
+    """A feature function of the demo's form with the given sizes (see ``ocean.demo``)."""
+    def f(X: np.ndarray, Y: np.ndarray) -> np.ndarray:
+        h = np.zeros_like(X)
+        u = ((X - 470.0) / plateau_r[0]) ** 2 + ((Y - 330.0) / plateau_r[1]) ** 2
+        h += plateau_h / (1.0 + np.exp((u - 1.0) * plateau_k))
+        a = np.radians(-12.0)
+        uu = (X - 470.0) * np.cos(a) + (Y - 760.0) * np.sin(a)
+        vv = -(X - 470.0) * np.sin(a) + (Y - 760.0) * np.cos(a)
+        h += 1700.0 * np.exp(-((vv / ridge_w) ** 2)) * np.exp(-((uu / 260.0) ** 4))
+        for sx, sy, hgt, rad in ((250, 940, 2000, 22), (330, 980, 2600, 28), (420, 1010, 3000, 32),
+                                 (510, 1040, 2400, 26), (600, 1060, 2800, 30)):
+            r = rad * seamount_factor
+            h += hgt * np.exp(-((X - sx) ** 2 + (Y - sy) ** 2) / (2.0 * r * r))
+        inside = (X > 220.0) & (X < 680.0)
+        h -= inside * (250.0 * np.tanh((Y - 560.0) / fracture[0])
+                       + 700.0 * np.exp(-(((Y - 560.0) / fracture[1]) ** 2)))
+        return h
+    return f
+
+
+def run_one(name: str, realization: int, folder: pathlib.Path) -> dict:
+    """Generate one design and realization, trace two ray seeds, check once; return the figures."""
+    spec = DESIGNS[name]
+    region = dataclasses.replace(demo.DemoRegion(), seed=realization)
+    if spec is None:
+        demo._offshore_features = CURRENT_FEATURES
+    else:
+        demo._offshore_features = _features(*spec[:6])
+        region = dataclasses.replace(region, relief_smallest_km=spec[6],
+                                     relief_rms_m=150.0 if name.endswith("relief150") else region.relief_rms_m)
+    try:
+        write_demo_data(folder / "data", region)
+    finally:
+        demo._offshore_features = CURRENT_FEATURES
+    (folder / "m.toml").write_text(SCENARIO.read_text(encoding="utf-8"), encoding="utf-8")
+    sc = parse_scenario(folder / "m.toml")
+    depth = load_scenario_bathymetry(sc)
+    segments = _segments_for(depth, sc)
+    runs = [analyse_source(depth, dataclasses.replace(sc, rays=dataclasses.replace(sc.rays, seed=s)),
+                           sc.sources[0], segments=segments, keep_paths=0) for s in (7, 8)]
+    a = runs[0]
+    chk = compare_with_waves(depth, a.eta, a.focusing.segments, reference_depth=a.focusing.reference_depth,
+                             stop_depth_m=sc.rays.stop_depth_m, k=K, period_s=a.period_s)
+    wave = chk.table.set_index("segment_id")
+    out = {"design": name, "realization": realization}
+    for i, r in enumerate(runs):
+        seg = r.focusing.segments
+        ok = seg["reliable"].fillna(False).astype(bool).to_numpy()
+        amp = pd.Series(np.where(ok, seg["amp_stop_m"], np.nan), index=seg["segment_id"].to_numpy())
+        lens = pd.Series(np.where(ok, seg["lensing_factor"], np.nan), index=seg["segment_id"].to_numpy())
+        ca = compare_rankings(amp, wave["wave_amp_stop_m"], k=K)
+        cl = compare_rankings(lens, wave["wave_lensing"], k=K)
+        out[f"amp_{i}"], out[f"amp_top_{i}"] = ca["spearman"], ca["topk_common"]
+        out[f"lens_{i}"], out[f"lens_top_{i}"] = cl["spearman"], cl["topk_common"]
+    return out
+
+
+def main() -> None:
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--all", action="store_true", help="all seven designs of docs/focusing.md, not only previous and current")
+    ap.add_argument("--realizations", type=int, nargs="+", default=[20261202, 1, 2, 3],
+                    help="DemoRegion.seed values (the demo's own is 20261202)")
+    args = ap.parse_args()
+    warnings.simplefilter("ignore")
+    names = list(DESIGNS) if args.all else list(SHOWN_BY_DEFAULT)
+    rows = []
+    t0 = time.perf_counter()
+    for name in names:
+        for r in args.realizations:
+            with tempfile.TemporaryDirectory() as tmp:
+                rows.append(run_one(name, r, pathlib.Path(tmp)))
+            x = rows[-1]
+            print(f"{name:34s} {r:>9d}  amplitude {x['amp_0']:.3f} {x['amp_top_0']:2d}/10 ({x['amp_1']:.3f} "
+                  f"{x['amp_top_1']:2d}/10)   lensing {x['lens_0']:.3f} {x['lens_top_0']:2d}/10 ({x['lens_1']:.3f} "
+                  f"{x['lens_top_1']:2d}/10)", flush=True)
+    df = pd.DataFrame(rows)
+    print(f"\nmeans over realizations {args.realizations} (rays of seed 7; seed 8 in brackets), "
+          f"{time.perf_counter() - t0:.0f} s in all")
+    print(f"{'design':34s}  amplitude          lensing")
+    for name, g in df.groupby("design", sort=False):
+        print(f"{name:34s}  {g['amp_0'].mean():.3f} ({g['amp_1'].mean():.3f})    "
+              f"{g['lens_0'].mean():.3f} ({g['lens_1'].mean():.3f})")
+
+
+if __name__ == "__main__":
+    main()
