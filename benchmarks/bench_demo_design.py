@@ -14,7 +14,9 @@ Designs (heights, positions, the coast and the source are the same in all):
   70 km wide, seamounts 45-65 km across, a 12 km fracture-zone trough, red relief down to 12 km;
 * ``current`` - the demo as shipped (``tsunamifocus.ocean.demo``): every feature at least about
   half the deep-water wavelength across;
-* with ``--all``, the five other designs of the table in docs/focusing.md.
+* with ``--all``, the five other designs of the table in docs/focusing.md (``flanks140``: the
+  middle half of the plateau's rise over 120-160 km of flank; ``flanks65``: over 55-75 km, as
+  shipped; ``seamounts2`` / ``2.5``: the previous seamount radii doubled / times 2.5).
 
 The other designs are made by replacing the demo's feature function in this process only.
 
@@ -51,12 +53,12 @@ CURRENT_FEATURES = demo._offshore_features
 DESIGNS: dict[str, tuple] = {
     "previous": ((110.0, 80.0), 5.0, 2600.0, 35.0, 1.0, (15.0, 12.0), 12.0),
     "current": None,  # the shipped demo
-    "flanks100_seamounts2.5": ((200.0, 150.0), 1.5, 2600.0, 100.0, 2.5, (80.0, 60.0), 80.0),
-    "flanks100_seamounts2.5_relief150": ((200.0, 150.0), 1.5, 2600.0, 100.0, 2.5, (80.0, 60.0), 80.0),
-    "flanks50_seamounts2.5": ((200.0, 150.0), 3.0, 2600.0, 100.0, 2.5, (80.0, 60.0), 80.0),
-    "flanks100_seamounts2": ((200.0, 150.0), 1.5, 2600.0, 100.0, 2.0, (80.0, 60.0), 80.0),
-    "flanks50_plateau2000": ((200.0, 150.0), 3.0, 2000.0, 100.0, 2.5, (80.0, 60.0), 80.0),
-    "flanks50_plateau2000_seamounts2": ((200.0, 150.0), 3.0, 2000.0, 100.0, 2.0, (80.0, 60.0), 80.0),
+    "flanks140_seamounts2.5": ((200.0, 150.0), 1.5, 2600.0, 100.0, 2.5, (80.0, 60.0), 80.0),
+    "flanks140_seamounts2.5_relief150": ((200.0, 150.0), 1.5, 2600.0, 100.0, 2.5, (80.0, 60.0), 80.0),
+    "flanks65_seamounts2.5": ((200.0, 150.0), 3.0, 2600.0, 100.0, 2.5, (80.0, 60.0), 80.0),
+    "flanks140_seamounts2": ((200.0, 150.0), 1.5, 2600.0, 100.0, 2.0, (80.0, 60.0), 80.0),
+    "flanks65_plateau2000": ((200.0, 150.0), 3.0, 2000.0, 100.0, 2.5, (80.0, 60.0), 80.0),
+    "flanks65_plateau2000_seamounts2": ((200.0, 150.0), 3.0, 2000.0, 100.0, 2.0, (80.0, 60.0), 80.0),
 }
 SHOWN_BY_DEFAULT = ("previous", "current")
 

@@ -85,7 +85,8 @@ def _offshore_features(X: np.ndarray, Y: np.ndarray) -> np.ndarray:
     focus alike (docs/focusing.md, "The demo's sea floor").
     """
     h = np.zeros_like(X)
-    # Brannock Plateau: ~400 x 300 km, rising 2600 m, flanks ~50 km wide
+    # Brannock Plateau: ~400 x 300 km, rising 2600 m; the middle half of the rise spreads over
+    # 55-75 km of its flanks (the previous design's steep sides: about 20 km)
     u = ((X - 470.0) / 200.0) ** 2 + ((Y - 330.0) / 150.0) ** 2
     h += 2600.0 / (1.0 + np.exp((u - 1.0) * 3.0))
     # Tallis Rise: a ridge 500 km long, about 200 km wide, 1700 m high, aimed at the coast
@@ -97,7 +98,8 @@ def _offshore_features(X: np.ndarray, Y: np.ndarray) -> np.ndarray:
     for sx, sy, hgt, rad in ((250, 940, 2000, 44), (330, 980, 2600, 56), (420, 1010, 3000, 64),
                              (510, 1040, 2400, 52), (600, 1060, 2800, 60)):
         h += hgt * np.exp(-((X - sx) ** 2 + (Y - sy) ** 2) / (2.0 * rad * rad))
-    # Sorrel Fracture Zone: an east-west trough with a 500 m step across it, both ~100 km wide
+    # Sorrel Fracture Zone: an east-west trough (1/e half-width 60 km) with a 500 m step across
+    # it (tanh width 80 km)
     inside = (X > 220.0) & (X < 680.0)
     h -= inside * (250.0 * np.tanh((Y - 560.0) / 80.0) + 700.0 * np.exp(-(((Y - 560.0) / 60.0) ** 2)))
     return h
