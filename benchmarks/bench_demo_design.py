@@ -18,7 +18,7 @@ Designs (heights, positions, the coast and the source are the same in all):
   middle half of the plateau's rise over 120-160 km of flank; ``flanks65``: over 55-75 km, as
   shipped; ``seamounts2`` / ``2.5``: the previous seamount radii doubled / times 2.5).
 
-The other designs are made by replacing the demo's feature function in this process only.
+Each design is a set of ``DemoRegion`` fields (``DemoFeatures`` sizes, the relief's shortest scale and rms).
 
 Run:  python benchmarks/bench_demo_design.py [--all] [--realizations 20261202 1 2 3]
 """
@@ -45,59 +45,37 @@ from tsunamifocus.studies.run import _segments_for, analyse_source, load_scenari
 REPO = pathlib.Path(__file__).resolve().parents[1]
 SCENARIO = REPO / "sample_scenarios" / "meridane.toml"
 K = 10
-CURRENT_FEATURES = demo._offshore_features
+PREVIOUS_SIGMAS = (22.0, 28.0, 32.0, 26.0, 30.0)
 
-#: name -> (plateau radii km, plateau flank slope, plateau height m, ridge half-width km,
-#: seamount size factor on the previous radii, fracture-zone step and trough widths km,
-#: the relief's shortest scale km)
-DESIGNS: dict[str, tuple] = {
-    "previous": ((110.0, 80.0), 5.0, 2600.0, 35.0, 1.0, (15.0, 12.0), 12.0),
-    "current": None,  # the shipped demo
-    "flanks140_seamounts2.5": ((200.0, 150.0), 1.5, 2600.0, 100.0, 2.5, (80.0, 60.0), 80.0),
-    "flanks140_seamounts2.5_relief150": ((200.0, 150.0), 1.5, 2600.0, 100.0, 2.5, (80.0, 60.0), 80.0),
-    "flanks65_seamounts2.5": ((200.0, 150.0), 3.0, 2600.0, 100.0, 2.5, (80.0, 60.0), 80.0),
-    "flanks140_seamounts2": ((200.0, 150.0), 1.5, 2600.0, 100.0, 2.0, (80.0, 60.0), 80.0),
-    "flanks65_plateau2000": ((200.0, 150.0), 3.0, 2000.0, 100.0, 2.5, (80.0, 60.0), 80.0),
-    "flanks65_plateau2000_seamounts2": ((200.0, 150.0), 3.0, 2000.0, 100.0, 2.0, (80.0, 60.0), 80.0),
+
+def _design(radii, flank, height, ridge, seamount_factor, fracture, smallest_km, rms_m=250.0):
+    """Region parameters of one design (``seamount_factor`` scales the previous seamounts' sigmas)."""
+    f = demo.DemoFeatures(plateau_radii_km=radii, plateau_flank_slope=flank, plateau_height_m=height,
+                          ridge_halfwidth_km=ridge,
+                          seamount_sigmas_km=tuple(seamount_factor * r for r in PREVIOUS_SIGMAS),
+                          fracture_step_km=fracture[0], fracture_trough_km=fracture[1])
+    return {"features": f, "relief_smallest_km": smallest_km, "relief_rms_m": rms_m}
+
+
+#: name -> DemoRegion fields (heights, positions, the coast and the source are those of the demo)
+DESIGNS: dict[str, dict] = {
+    "previous": _design((110.0, 80.0), 5.0, 2600.0, 35.0, 1.0, (15.0, 12.0), 12.0),
+    "current": {},  # the shipped demo
+    "flanks140_seamounts2.5": _design((200.0, 150.0), 1.5, 2600.0, 100.0, 2.5, (80.0, 60.0), 80.0),
+    "flanks140_seamounts2.5_relief150": _design((200.0, 150.0), 1.5, 2600.0, 100.0, 2.5, (80.0, 60.0), 80.0,
+                                                rms_m=150.0),
+    "flanks65_seamounts2.5": _design((200.0, 150.0), 3.0, 2600.0, 100.0, 2.5, (80.0, 60.0), 80.0),
+    "flanks140_seamounts2": _design((200.0, 150.0), 1.5, 2600.0, 100.0, 2.0, (80.0, 60.0), 80.0),
+    "flanks65_plateau2000": _design((200.0, 150.0), 3.0, 2000.0, 100.0, 2.5, (80.0, 60.0), 80.0),
+    "flanks65_plateau2000_seamounts2": _design((200.0, 150.0), 3.0, 2000.0, 100.0, 2.0, (80.0, 60.0), 80.0),
 }
 SHOWN_BY_DEFAULT = ("previous", "current")
 
 
-def _features(plateau_r, plateau_k, plateau_h, ridge_w, seamount_factor, fracture):
-    """A feature function of the demo's form with the given sizes (see ``ocean.demo``)."""
-    def f(X: np.ndarray, Y: np.ndarray) -> np.ndarray:
-        h = np.zeros_like(X)
-        u = ((X - 470.0) / plateau_r[0]) ** 2 + ((Y - 330.0) / plateau_r[1]) ** 2
-        h += plateau_h / (1.0 + np.exp((u - 1.0) * plateau_k))
-        a = np.radians(-12.0)
-        uu = (X - 470.0) * np.cos(a) + (Y - 760.0) * np.sin(a)
-        vv = -(X - 470.0) * np.sin(a) + (Y - 760.0) * np.cos(a)
-        h += 1700.0 * np.exp(-((vv / ridge_w) ** 2)) * np.exp(-((uu / 260.0) ** 4))
-        for sx, sy, hgt, rad in ((250, 940, 2000, 22), (330, 980, 2600, 28), (420, 1010, 3000, 32),
-                                 (510, 1040, 2400, 26), (600, 1060, 2800, 30)):
-            r = rad * seamount_factor
-            h += hgt * np.exp(-((X - sx) ** 2 + (Y - sy) ** 2) / (2.0 * r * r))
-        inside = (X > 220.0) & (X < 680.0)
-        h -= inside * (250.0 * np.tanh((Y - 560.0) / fracture[0])
-                       + 700.0 * np.exp(-(((Y - 560.0) / fracture[1]) ** 2)))
-        return h
-    return f
-
-
 def run_one(name: str, realization: int, folder: pathlib.Path) -> dict:
     """Generate one design and realization, trace two ray seeds, check once; return the figures."""
-    spec = DESIGNS[name]
-    region = dataclasses.replace(demo.DemoRegion(), seed=realization)
-    if spec is None:
-        demo._offshore_features = CURRENT_FEATURES
-    else:
-        demo._offshore_features = _features(*spec[:6])
-        region = dataclasses.replace(region, relief_smallest_km=spec[6],
-                                     relief_rms_m=150.0 if name.endswith("relief150") else region.relief_rms_m)
-    try:
-        write_demo_data(folder / "data", region)
-    finally:
-        demo._offshore_features = CURRENT_FEATURES
+    region = dataclasses.replace(demo.DemoRegion(), seed=realization, **DESIGNS[name])
+    write_demo_data(folder / "data", region)
     (folder / "m.toml").write_text(SCENARIO.read_text(encoding="utf-8"), encoding="utf-8")
     sc = parse_scenario(folder / "m.toml")
     depth = load_scenario_bathymetry(sc)

@@ -26,7 +26,7 @@ from ..errors import InputError
 from ..grid import make_grid
 from .randomfield import red_noise_field
 
-__all__ = ['DemoRegion', 'DEMO_CRS', 'DEMO_PLACES', 'make_demo_bathymetry', 'demo_to_lonlat']
+__all__ = ['DemoFeatures', 'DemoRegion', 'DEMO_CRS', 'DEMO_PLACES', 'make_demo_bathymetry', 'demo_to_lonlat']
 
 #: Local transverse Mercator of the demo region (metres), centred in open ocean.
 def _demo_crs() -> str:
@@ -48,6 +48,25 @@ DEMO_PLACES: dict[str, tuple[float, float]] = {
 
 
 @dataclass(frozen=True)
+class DemoFeatures:
+    """Sizes of the demo's named offshore features (km, m); the defaults are the shipped demo.
+
+    ``plateau_radii_km`` the plateau's semi-axes, ``plateau_flank_slope`` the logistic slope of
+    its rim in ``(r / R)^2`` (larger is steeper), ``ridge_halfwidth_km`` the ridge's 1/e half-width,
+    ``seamount_sigmas_km`` the five seamounts' Gaussian sigmas, ``fracture_step_km`` and
+    ``fracture_trough_km`` the fracture zone's tanh step width and trough 1/e half-width.
+    """
+
+    plateau_radii_km: tuple[float, float] = (200.0, 150.0)
+    plateau_flank_slope: float = 3.0
+    plateau_height_m: float = 2600.0
+    ridge_halfwidth_km: float = 100.0
+    seamount_sigmas_km: tuple[float, ...] = (44.0, 56.0, 64.0, 52.0, 60.0)
+    fracture_step_km: float = 80.0
+    fracture_trough_km: float = 60.0
+
+
+@dataclass(frozen=True)
 class DemoRegion:
     """Parameters of the invented Meridane coast (lengths in km, depths in m)."""
 
@@ -62,6 +81,7 @@ class DemoRegion:
     relief_rms_m: float = 250.0
     relief_slope: float = 3.0
     relief_smallest_km: float = 80.0
+    features: DemoFeatures = DemoFeatures()
     seed: int = 20261202
 
 
@@ -76,7 +96,7 @@ def _coast_position(y_km: np.ndarray, r: DemoRegion) -> np.ndarray:
     return c + 400.0 * (north**1.5 + south**1.5)
 
 
-def _offshore_features(X: np.ndarray, Y: np.ndarray) -> np.ndarray:
+def _offshore_features(X: np.ndarray, Y: np.ndarray, f: DemoFeatures | None = None) -> np.ndarray:
     """Height [m] of the named features above the abyssal plain.
 
     Each feature is at least about half a deep-water wavelength across (the dominant period of the
@@ -84,24 +104,26 @@ def _offshore_features(X: np.ndarray, Y: np.ndarray) -> np.ndarray:
     flanks are tens of kilometres wide, so that ray theory holds over it and the rays and the wave
     focus alike (docs/focusing.md, "The demo's sea floor").
     """
+    f = f or DemoFeatures()
     h = np.zeros_like(X)
     # Brannock Plateau: ~400 x 300 km, rising 2600 m; the middle half of the rise spreads over
     # 55-75 km of its flanks (the previous design's steep sides: about 20 km)
-    u = ((X - 470.0) / 200.0) ** 2 + ((Y - 330.0) / 150.0) ** 2
-    h += 2600.0 / (1.0 + np.exp((u - 1.0) * 3.0))
+    u = ((X - 470.0) / f.plateau_radii_km[0]) ** 2 + ((Y - 330.0) / f.plateau_radii_km[1]) ** 2
+    h += f.plateau_height_m / (1.0 + np.exp((u - 1.0) * f.plateau_flank_slope))
     # Tallis Rise: a ridge 500 km long, about 200 km wide, 1700 m high, aimed at the coast
     a = np.radians(-12.0)
     uu = (X - 470.0) * np.cos(a) + (Y - 760.0) * np.sin(a)
     vv = -(X - 470.0) * np.sin(a) + (Y - 760.0) * np.cos(a)
-    h += 1700.0 * np.exp(-((vv / 100.0) ** 2)) * np.exp(-((uu / 260.0) ** 4))
+    h += 1700.0 * np.exp(-((vv / f.ridge_halfwidth_km) ** 2)) * np.exp(-((uu / 260.0) ** 4))
     # Orrin Seamounts: a chain of five broad seamounts, 90-130 km across (Gaussian sigma 44-64 km)
-    for sx, sy, hgt, rad in ((250, 940, 2000, 44), (330, 980, 2600, 56), (420, 1010, 3000, 64),
-                             (510, 1040, 2400, 52), (600, 1060, 2800, 60)):
+    for (sx, sy, hgt), rad in zip(((250, 940, 2000), (330, 980, 2600), (420, 1010, 3000), (510, 1040, 2400),
+                                   (600, 1060, 2800)), f.seamount_sigmas_km):
         h += hgt * np.exp(-((X - sx) ** 2 + (Y - sy) ** 2) / (2.0 * rad * rad))
     # Sorrel Fracture Zone: an east-west trough (1/e half-width 60 km) with a 500 m step across
     # it (tanh width 80 km)
     inside = (X > 220.0) & (X < 680.0)
-    h -= inside * (250.0 * np.tanh((Y - 560.0) / 80.0) + 700.0 * np.exp(-(((Y - 560.0) / 60.0) ** 2)))
+    h -= inside * (250.0 * np.tanh((Y - 560.0) / f.fracture_step_km)
+                   + 700.0 * np.exp(-(((Y - 560.0) / f.fracture_trough_km) ** 2)))
     return h
 
 
@@ -138,7 +160,7 @@ def make_demo_bathymetry(region: DemoRegion | None = None) -> xr.DataArray:
     base += r.trench_extra_m * np.exp(-(((X - r.trench_x_km - 0.02 * (Y - 600.0)) / 30.0) ** 2))
     base -= red_noise_field(X.shape, r.spacing_km * 1e3, slope=r.relief_slope, largest_m=500e3,
                             smallest_m=r.relief_smallest_km * 1e3, rms=r.relief_rms_m, seed=r.seed)
-    base = np.maximum(base - _offshore_features(X, Y), 300.0)
+    base = np.maximum(base - _offshore_features(X, Y, r.features), 300.0)
     # continental slope and a 40-70 km wide shelf
     shelf_w = 55.0 + 15.0 * np.sin(2 * np.pi * y_km / 330.0)[:, None]
     slope = 0.5 * (1.0 + np.tanh((off - shelf_w - 45.0) / 18.0))
