@@ -105,7 +105,8 @@ def _wave_lensing_figure(chk: WaveCheck, lens_map: Any, segments: pd.DataFrame, 
     seg["lensing_factor"] = t["wave_lensing"].reindex(seg["segment_id"].to_numpy()).to_numpy(float)
     seg["rank_lensing"] = t["rank_wave_lensing"].reindex(seg["segment_id"].to_numpy()).to_numpy(float)
     refine = int(chk.agreement.get("refine", 1))
-    return plot_lensing_map(refine_grid(depth, refine) if refine > 1 else depth, lens_map, None, seg,
+    grid = chk.depth if chk.depth is not None else (refine_grid(depth, refine) if refine > 1 else depth)
+    return plot_lensing_map(grid, lens_map, None, seg,
                             top_k=int(chk.agreement["k"]), out_path=path,
                             title="Where the wave focuses: the wave check's lensing factor\n"
                                   "(linear long-wave maxima over the real / over the reference sea floor)²",

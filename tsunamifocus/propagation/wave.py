@@ -377,6 +377,7 @@ def simulate_linear_long_wave(
     progress: bool | str | Callable[[int, int], None] | None = None,
     max_memory_bytes: float | None = DEFAULTS["bathymetry"]["max_memory_gb"] * 1e9,
     max_cell_updates: float | None = WORK_LIMITS["wave_cell_updates"],
+    step_hook: Callable[[np.ndarray, float], None] | None = None,
 ) -> WaveResult:
     """Integrate the linear long-wave equations from an initial surface at rest.
 
@@ -423,6 +424,11 @@ def simulate_linear_long_wave(
     max_memory_bytes : int or None
         Refuse runs whose working arrays would exceed this size [bytes] (ResourceLimitError); default
         the one memory limit, ``[bathymetry] max_memory_gb`` of ``constants.DEFAULTS``.
+    step_hook : callable, optional
+        ``f(eta, t_new)`` called after every step with the surface (2-D, modifiable in place: the
+        next step starts from it) and the time reached [s]; used by one-way nesting
+        (:mod:`tsunamifocus.propagation.nest`) to read or impose the surface on a ring of cells.
+        Running maxima, their times and arrivals are taken before the hook.
 
     Returns
     -------
@@ -481,7 +487,7 @@ def simulate_linear_long_wave(
 
     loop = _time_loop(eta, qx, qy, faces, wet_u8, bx, byn, bys, thr, max_eta, max_time, arrival,
                       n_steps=n_steps, dt=dt, periodic=bool(info.periodic_x), threads=threads,
-                      record_every_s=record_every_s, progress=progress)
+                      record_every_s=record_every_s, progress=progress, step_hook=step_hook)
     stats = _run_stats(loop, n_steps=n_steps, dt=dt, duration_s=duration_s, cfl=cfl, courant=courant,
                        ny=ny, nx=nx, wet=wet, vol0=vol0, vol1=float(np.sum(eta * area2d)), abs0=abs0, thr=thr,
                        stop_depth_m=stop_depth_m, coast=coast, bnd=bnd, gravity=gravity,
@@ -577,7 +583,7 @@ def _arrival_threshold(eta: np.ndarray, arrival_threshold_m: float | None) -> fl
 
 
 def _time_loop(eta, qx, qy, faces, wet_u8, bx, byn, bys, thr, max_eta, max_time, arrival, *, n_steps, dt, periodic,
-               threads, record_every_s, progress) -> dict:
+               threads, record_every_s, progress, step_hook=None) -> dict:
     """Step the fields in place on ``threads`` numba threads; returns outflow, wall time, snapshots."""
     ny, nx = eta.shape
     outflow = 0.0
@@ -616,6 +622,8 @@ def _time_loop(eta, qx, qy, faces, wet_u8, bx, byn, bys, thr, max_eta, max_time,
                 f_q(eta, qx, ax, qy, ay, periodic)
                 outflow += _k.radiate(eta, qx, qy, periodic, *rx, *ry)
                 f_eta(eta, qx, qy, wet_u8, bx, byn, bys, t_new, thr, max_eta, max_time, arrival)
+                if step_hook is not None:
+                    step_hook(eta, t_new)
                 done = n + 1
                 if record_every_s is not None and t_new >= next_rec - 1e-9 * dt:
                     snaps.append(eta.astype(np.float32))

@@ -11,6 +11,7 @@ from typing import Any
 
 import numpy as np
 import pandas as pd
+import shapely
 import xarray as xr
 
 from ..cautions import caution_text
@@ -22,11 +23,12 @@ from ..errors import CoastError, InputError, ResolutionWarning
 from ..focusing.agreement import compare_rankings
 from ..focusing.ranking import ranked_mask
 from ..grid import MAX_REFINE_FACTOR, refine_grid
+from ..propagation.nest import NEST_MAX_SHARE, NestBox, _fine_cut, nest_box, simulate_nested
 from ..propagation.wave import (WAVE_CAUTION, WaveResult, _check_depth, _dt_from, _memory_needed, _metric, _polar_dry,
                                 _wet_mask, simulate_linear_long_wave)
 
 __all__ = ['AMPLITUDE_RATIO_FACTOR', 'AUTO_REFINE', 'MIN_CELLS_PER_WAVELENGTH', 'FAINT_WAVE_FRACTION',
-           'LENSING_MAP_FLOOR', 'WaveCheck', 'check_refine', 'choose_refine', 'compare_with_waves',
+           'LENSING_MAP_FLOOR', 'NEST_DEFAULT', 'NEST_MARGIN_KM', 'WaveCheck', 'check_refine', 'choose_refine', 'compare_with_waves',
            'default_check_duration_s', 'faint_wave_segments', 'wave_resolution']
 
 #: Fewest grid cells per dominant wavelength at the stop isobath the check wants for its coastal
@@ -46,6 +48,13 @@ MIN_CELLS_PER_WAVELENGTH: float = 8.0
 #: (measured: demo 0.92, the trans-Pacific interface case 0.52, Aleutians to Hawaii 0.49;
 #: docs/wave_check.md).
 AMPLITUDE_RATIO_FACTOR: float = 1.5
+
+#: Sea kept around the segments in the refined box of a nested check [km]
+#: (:func:`compare_with_waves` ``nest``).
+NEST_MARGIN_KM: float = 400.0
+
+#: Whether the check refines only a box around the coast (one-way nesting) by default.
+NEST_DEFAULT: bool = False
 
 #: ``refine`` value that lets the check choose its own grid (:func:`choose_refine`); the default.
 AUTO_REFINE: str = "auto"
@@ -238,6 +247,9 @@ class WaveCheck:
     figure_lensing, figure_profile, figure_lensing_map : pathlib.Path or None
         The lensing scatter, the profile along the coast and the wave's lensing map
         (:meth:`lensing_map`), when written.
+    depth : xarray.DataArray or None
+        The sea floor the wave was solved on (the run's grid refined ``agreement["refine"]``
+        times; with nesting, the coast box only: ``agreement["nest"]``); None when not kept.
     """
 
     wave: WaveResult
@@ -248,6 +260,7 @@ class WaveCheck:
     figure_lensing: Path | None = None
     figure_profile: Path | None = None
     figure_lensing_map: Path | None = None
+    depth: xr.DataArray | None = None
 
     def lensing_map(self) -> xr.DataArray | None:
         """The wave's lensing factor over the whole grid, like the segments' ``wave_lensing``.
@@ -369,6 +382,7 @@ def compare_with_waves(
     progress: bool | Callable[[int, int], None] | None = None,
     refine: int | str = AUTO_REFINE,
     period_s: float | None = None,
+    nest: bool = NEST_DEFAULT,
     **simulate_kwargs: Any,
 ) -> WaveCheck:
     """Run the wave solver for a source and compare its per-segment maxima with the ray ranking.
@@ -414,6 +428,13 @@ def compare_with_waves(
         The source's dominant period [s]: the check then reports :func:`wave_resolution` of the
         grid it solved on (``agreement["resolution"]``) and warns (:class:`ResolutionWarning`) when
         it has fewer than :data:`MIN_CELLS_PER_WAVELENGTH` cells per wavelength at the stop isobath.
+    nest : bool
+        With ``refine`` above 1, refine only a box around the segments (:data:`NEST_MARGIN_KM`
+        of sea around them) and solve the rest of the ocean on the run's grid, one-way nested
+        (:func:`tsunamifocus.propagation.nest.simulate_nested`): the coast resolved as finely at a
+        fraction of the cost. The whole grid is refined when the box would hold more than
+        :data:`~tsunamifocus.propagation.nest.NEST_MAX_SHARE` of its cells. What was done is in
+        ``agreement["nest"]`` (None: the whole grid was refined).
 
     Returns
     -------
@@ -442,7 +463,11 @@ def compare_with_waves(
         refine = choice["refine"]
     else:
         check_refine(refine)
-    depth_w, eta_w = refine_grid(depth, refine), refine_grid(eta0, refine)
+    box = _nest_box(depth, segments, refine) if nest else None
+    if box is None:
+        depth_w, eta_w = refine_grid(depth, refine), refine_grid(eta0, refine)
+    else:
+        depth_w, eta_w = _fine_cut(depth, box, refine, *depth.shape), None
     resolution = None
     if period_s is not None:
         resolution = {**wave_resolution(depth_w, period_s, stop_depth_m=stop_depth_m, gravity=gravity),
@@ -471,7 +496,15 @@ def compare_with_waves(
     opts = dict(duration_s=duration_s, stop_depth_m=stop_depth_m, coast=coast, boundary=boundary, cfl=cfl,
                 gravity=gravity, threads=threads, progress=progress, **simulate_kwargs)
     labelled = progress is True and reference_depth is not None
-    res = simulate_linear_long_wave(depth_w, eta_w, **{**opts, "progress": "wave, real ocean" if labelled else progress})
+
+    def _solve(sea: xr.DataArray, sea_w: xr.DataArray, label: str) -> tuple[WaveResult, xr.DataArray]:
+        prog = label if labelled else progress
+        if box is None:
+            return simulate_linear_long_wave(sea_w, eta_w, **{**opts, "progress": prog}), sea_w
+        nw = simulate_nested(sea, eta0, box, int(refine), **{**opts, "progress": prog})
+        return nw.fine, nw.depth
+
+    res, depth_w = _solve(depth, depth_w, "wave, real ocean")
     sample = dict(search_radius_cells=search_radius_cells * refine, statistic=statistic)
     wave = segment_max_amplitude(res, segments, depth_w, stop_depth_m, **sample)
     table = pd.DataFrame({"segment_id": wave.index.values})
@@ -495,15 +528,17 @@ def compare_with_waves(
                                     "p95": float(np.percentile(ratio, 95))}
     agree["n_faint_wave"] = int(faint_wave_segments(table["wave_amp_stop_m"], ranked).sum())
     agree["refine"] = int(refine)
+    agree["nest"] = None if box is None else {
+        "box": [box.j0, box.j1, box.i0, box.i1], "margin_km": NEST_MARGIN_KM,
+        "share": box.shape[0] * box.shape[1] / float(depth.shape[0] * depth.shape[1])}
     if choice is not None:
         agree["refine_choice"] = choice
     if resolution is not None:
         agree["resolution"] = resolution
     res_ref = None
     if reference_depth is not None:
-        ref_w = refine_grid(reference_depth, refine)
-        res_ref = simulate_linear_long_wave(ref_w, eta_w, **{**opts, "progress": "wave, reference ocean" if labelled
-                                                             else progress})
+        ref_w = refine_grid(reference_depth, refine) if box is None else None
+        res_ref, ref_w = _solve(reference_depth, ref_w, "wave, reference ocean")
         wave_ref = segment_max_amplitude(res_ref, segments, ref_w, stop_depth_m, **sample)
         with np.errstate(divide="ignore", invalid="ignore"):
             wave_lensing = (wave.values / wave_ref.values) ** 2
@@ -514,7 +549,21 @@ def compare_with_waves(
         lens["ray_column"] = lensing_column
         agree["lensing"] = lens
     table.attrs.update(ray_column=ray_column, cautions=caution_text())
-    return WaveCheck(res, table, agree, wave_reference=res_ref)
+    return WaveCheck(res, table, agree, wave_reference=res_ref, depth=depth_w)
+
+
+def _nest_box(depth: xr.DataArray, segments: Any, refine: int) -> NestBox | None:
+    """The coast box to refine (:data:`NEST_MARGIN_KM` around the segments), or None: refine it all."""
+    if refine <= 1 or len(segments) == 0:
+        return None
+    b = shapely.bounds(np.asarray(list(segments["geometry"]), dtype=object))
+    x = np.concatenate([b[:, 0], b[:, 2]])
+    y = np.concatenate([b[:, 1], b[:, 3]])
+    box = nest_box(depth, x, y, NEST_MARGIN_KM * 1e3)
+    share = box.shape[0] * box.shape[1] / float(depth.shape[0] * depth.shape[1])
+    if share > NEST_MAX_SHARE or min(box.shape) < 4:
+        return None
+    return box
 
 
 def _paired_columns(table: pd.DataFrame, ray_name: str, ray: np.ndarray, wave_name: str, wave: np.ndarray,

@@ -1,0 +1,284 @@
+"""One-way nesting of the linear long-wave solver: a finer grid only where the coast needs it.
+
+Screening tool only: not a tsunami warning, forecast or inundation map (see CAUTIONS.md).
+
+A trans-ocean wave is resolved by the run's grid in deep water (hundreds of kilometres per
+wavelength) but not near the coast, where the wavelength shrinks with ``sqrt(h)`` to a few cells.
+Refining the whole ocean to resolve the coast costs ``refine**3`` times the work; refining a box
+around the coast of interest costs that factor on the box alone. The solve runs in two passes:
+
+1. the whole grid at its own spacing, recording the surface on the cells around the box's edges
+   at every step;
+2. the box, cut from the sea floor refined ``refine`` times (:func:`tsunamifocus.grid.refine_grid`:
+   the same cells a whole refined grid would have), from the source's refined initial surface.
+   On a ring one coarse cell wide along every box side inside the grid, the surface is imposed
+   at every step from the first pass, bilinear in space between the coarse cells (wet ones only)
+   and linear in time; box sides on the grid's own edges keep its boundary condition.
+
+Information flows one way, from the coarse grid into the box (one-way nesting; for example
+Kowalik and Murty 1993, *Numerical Modeling of Ocean Dynamics*, on nested grids for long
+waves): what the box sends back out reaches the coarse grid only through the coarse solution's
+own coast. That is what the wave check needs: the incoming wave is resolved where it is long,
+the coastal maxima where it is short. The water volume in the box is not conserved (the ring is
+a source), so the box run's ``mass_error`` means nothing; the coarse run's does.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Callable
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+import xarray as xr
+from scipy import sparse
+
+from ..errors import InputError
+from ..grid import GridInfo, refine_grid
+from .wave import WaveResult, _check_depth, _wet_mask, simulate_linear_long_wave
+
+__all__ = ["NestBox", "NestedWave", "nest_box", "simulate_nested", "NEST_MAX_SHARE"]
+
+#: A box holding more than this share of the grid's cells is not worth nesting: the whole grid is
+#: refined instead (the coarse pass and the ring then cost more than they save).
+NEST_MAX_SHARE: float = 0.5
+
+
+@dataclass(frozen=True)
+class NestBox:
+    """A box of the run's grid, as index ranges ``[j0, j1) x [i0, i1)`` (rows, columns)."""
+
+    j0: int
+    j1: int
+    i0: int
+    i1: int
+
+    @property
+    def shape(self) -> tuple[int, int]:
+        return self.j1 - self.j0, self.i1 - self.i0
+
+
+@dataclass
+class NestedWave:
+    """Result of :func:`simulate_nested`.
+
+    Attributes
+    ----------
+    coarse : WaveResult
+        The whole grid at its own spacing.
+    fine : WaveResult
+        The box at ``refine`` times finer spacing; NaN on the forced ring.
+    depth : xarray.DataArray
+        The box's refined sea floor (the grid of ``fine``).
+    box : NestBox
+        The box in the run's grid.
+    refine : int
+        The refinement factor of the box.
+    """
+
+    coarse: WaveResult
+    fine: WaveResult
+    depth: xr.DataArray
+    box: NestBox
+    refine: int
+
+
+def nest_box(depth: xr.DataArray, x: np.ndarray, y: np.ndarray, margin_m: float) -> NestBox:
+    """The smallest box of ``depth``'s cells holding the points ``(x, y)`` and ``margin_m`` around them.
+
+    On lon/lat grids the margin in longitude is taken at the points' most poleward latitude
+    (the widest it needs to be). The box is clipped to the grid.
+    """
+    info = _check_depth(depth)
+    x = np.asarray(x, float)
+    y = np.asarray(y, float)
+    ok = np.isfinite(x) & np.isfinite(y)
+    if not ok.any():
+        raise InputError("nest box: no finite point to put the box around")
+    if not (math.isfinite(margin_m) and margin_m >= 0):
+        raise InputError(f"nest box margin {margin_m!r}: expected a distance >= 0 [m]")
+    x, y = x[ok], y[ok]
+    if info.geographic:
+        my = margin_m / (info.radius_m * math.pi / 180.0)
+        lat = min(89.0, float(np.max(np.abs(y))) + my)
+        mx = my / max(math.cos(math.radians(lat)), 1e-3)
+    else:
+        mx = my = margin_m
+    xs, ys = np.asarray(info.x, float), np.asarray(info.y, float)
+
+    def _span(v: np.ndarray, lo: float, hi: float) -> tuple[int, int]:
+        step = v[1] - v[0] if v.size > 1 else 1.0
+        a = (lo - v[0]) / step
+        b = (hi - v[0]) / step
+        a, b = min(a, b), max(a, b)
+        return max(0, int(math.floor(a))), min(v.size, int(math.ceil(b)) + 1)
+
+    i0, i1 = _span(xs, float(x.min()) - mx, float(x.max()) + mx)
+    j0, j1 = _span(ys, float(y.min()) - my, float(y.max()) + my)
+    return NestBox(j0, j1, i0, i1)
+
+
+def _fine_cut(da: xr.DataArray, box: NestBox, refine: int, ny: int, nx: int) -> xr.DataArray:
+    """The box's cells of ``refine_grid(da, refine)``, computed on the box and a one-cell pad only."""
+    pj0, pj1 = max(box.j0 - 1, 0), min(box.j1 + 1, ny)
+    pi0, pi1 = max(box.i0 - 1, 0), min(box.i1 + 1, nx)
+    sub = da.isel({da.dims[0]: slice(pj0, pj1), da.dims[1]: slice(pi0, pi1)})
+    if "lon_periodic" in sub.attrs:
+        sub = sub.copy()
+        sub.attrs["lon_periodic"] = 0
+    fine = refine_grid(sub, refine)
+    cj, ci = (box.j0 - pj0) * refine, (box.i0 - pi0) * refine
+    return fine.isel({fine.dims[0]: slice(cj, cj + box.shape[0] * refine),
+                      fine.dims[1]: slice(ci, ci + box.shape[1] * refine)})
+
+
+def _ring(box: NestBox, refine: int, ny: int, nx: int) -> tuple[np.ndarray, dict[str, bool]]:
+    """Mask of the box's fine cells forced from the coarse grid, and which box sides are inside the grid."""
+    inside = {"south": box.j0 > 0, "north": box.j1 < ny, "west": box.i0 > 0, "east": box.i1 < nx}
+    fy, fx = box.shape[0] * refine, box.shape[1] * refine
+    ring = np.zeros((fy, fx), bool)
+    w = refine
+    if inside["south"]:
+        ring[:w, :] = True
+    if inside["north"]:
+        ring[-w:, :] = True
+    if inside["west"]:
+        ring[:, :w] = True
+    if inside["east"]:
+        ring[:, -w:] = True
+    return ring, inside
+
+
+def _ring_weights(box: NestBox, refine: int, ring: np.ndarray, coarse_wet: np.ndarray
+                  ) -> tuple[np.ndarray, np.ndarray, sparse.csr_matrix]:
+    """Fine ring cells (flat indices), the coarse cells they read (flat) and the bilinear weights.
+
+    Fine cell ``jf`` of the box sits at coarse fractional row ``j0 + (jf + 0.5) / refine - 0.5``;
+    its value is bilinear between the four surrounding coarse centres, over the wet ones only
+    (weights renormalised; no wet neighbour: 0).
+    """
+    ny, nx = coarse_wet.shape
+    jf, if_ = np.nonzero(ring)
+    cy = box.j0 + (jf + 0.5) / refine - 0.5
+    cx = box.i0 + (if_ + 0.5) / refine - 0.5
+    ja = np.floor(cy).astype(np.int64)
+    ia = np.floor(cx).astype(np.int64)
+    ty, tx = cy - ja, cx - ia
+    rows, cols, vals = [], [], []
+    for dj, di, w in ((0, 0, (1 - ty) * (1 - tx)), (0, 1, (1 - ty) * tx), (1, 0, ty * (1 - tx)), (1, 1, ty * tx)):
+        jj = np.clip(ja + dj, 0, ny - 1)
+        ii = np.clip(ia + di, 0, nx - 1)
+        rows.append(np.arange(jf.size))
+        cols.append(jj * nx + ii)
+        vals.append(w * coarse_wet[jj, ii])
+    r, c, v = np.concatenate(rows), np.concatenate(cols), np.concatenate(vals)
+    tot = np.bincount(r, weights=v, minlength=jf.size)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        v = np.where(tot[r] > 0, v / tot[r], 0.0)
+    used, c_local = np.unique(c, return_inverse=True)
+    w = sparse.csr_matrix((v, (r, c_local.ravel())), shape=(jf.size, used.size))
+    fine_flat = jf * ring.shape[1] + if_
+    return fine_flat, used, w
+
+
+def simulate_nested(
+    depth: xr.DataArray,
+    eta0: xr.DataArray,
+    box: NestBox,
+    refine: int,
+    *,
+    duration_s: float,
+    stop_depth_m: float,
+    progress: bool | str | Callable[[int, int], None] | None = None,
+    **simulate_kwargs: Any,
+) -> NestedWave:
+    """Solve the linear long-wave equations on ``depth``, and again ``refine`` times finer inside ``box``.
+
+    Parameters
+    ----------
+    depth, eta0 : xarray.DataArray
+        The run's sea floor [m] and the source's initial surface [m] on it.
+    box : NestBox
+        Where to refine (:func:`nest_box`); it must not wrap across a periodic grid's seam.
+    refine : int
+        Refinement factor of the box (2 or more).
+    duration_s, stop_depth_m
+        As for :func:`simulate_linear_long_wave` (both passes).
+    progress : bool, str or callable, optional
+        As for :func:`simulate_linear_long_wave`; with a label, the passes are labelled
+        "<label>, whole grid" and "<label>, coast box".
+    **simulate_kwargs
+        Passed to both passes (``coast``, ``boundary``, ``cfl``, ``gravity``, ``threads``, limits);
+        the box's sides inside the grid are closed and forced, whatever ``boundary`` says.
+
+    Returns
+    -------
+    NestedWave
+
+    Raises
+    ------
+    InputError
+        Bad box or factor.
+    """
+    info = _check_depth(depth)
+    ny, nx = info.ny, info.nx
+    if isinstance(refine, bool) or not isinstance(refine, (int, np.integer)) or refine < 2:
+        raise InputError(f"nested wave: refine {refine!r}: expected an integer of 2 or more")
+    if not (0 <= box.j0 < box.j1 <= ny and 0 <= box.i0 < box.i1 <= nx):
+        raise InputError(f"nested wave: box {box} does not lie within the {ny} x {nx} grid")
+    if min(box.shape) < 4:
+        raise InputError(f"nested wave: box {box} is {box.shape[0]} x {box.shape[1]} cells; expected at least 4 x 4")
+    refine = int(refine)
+    ring, inside = _ring(box, refine, ny, nx)
+    d = np.asarray(depth.values, float)
+    coarse_wet = _wet_mask(d, stop_depth_m)
+    fine_flat, used, weights = _ring_weights(box, refine, ring, coarse_wet)
+    e0 = np.where(coarse_wet, np.nan_to_num(np.asarray(eta0.values, float)), 0.0).ravel()
+    record = [e0[used].astype(np.float32)]
+
+    def _record(eta: np.ndarray, t_new: float) -> None:
+        record.append(eta.ravel()[used].astype(np.float32))
+
+    def _label(part: str) -> Any:
+        if isinstance(progress, str):
+            return f"{progress}, {part}"
+        return progress
+
+    coarse = simulate_linear_long_wave(depth, eta0, duration_s=duration_s, stop_depth_m=stop_depth_m,
+                                       progress=_label("whole grid"), step_hook=_record, **simulate_kwargs)
+    dt_c = float(coarse.stats["dt_s"])
+    rec = np.stack(record)  # (steps + 1, used)
+    depth_f = _fine_cut(depth, box, refine, ny, nx)
+    eta_f = _fine_cut(eta0, box, refine, ny, nx)
+    bnd = simulate_kwargs.pop("boundary", "absorb")
+    outer = bnd if isinstance(bnd, str) else None
+    edges = {}
+    for side in ("west", "east", "south", "north"):
+        if inside[side]:
+            edges[side] = "reflect"
+        elif outer is not None:
+            edges[side] = outer
+        elif isinstance(bnd, dict):
+            edges[side] = bnd.get(side, "absorb")
+        else:
+            edges[side] = dict(zip(("west", "east", "south", "north"), bnd, strict=True))[side]
+    n_rec = rec.shape[0] - 1
+
+    def _force(eta: np.ndarray, t_new: float) -> None:
+        s = min(max(t_new / dt_c, 0.0), float(n_rec))
+        k = min(int(s), n_rec - 1) if n_rec > 0 else 0
+        f = s - k
+        vals = rec[k] * (1.0 - f) + rec[min(k + 1, n_rec)] * f
+        eta.ravel()[fine_flat] = weights @ vals.astype(float)
+
+    kw = {k: v for k, v in simulate_kwargs.items() if k != "boundary"}
+    fine = simulate_linear_long_wave(depth_f, eta_f, duration_s=duration_s, stop_depth_m=stop_depth_m,
+                                     boundary=edges, progress=_label("coast box"), step_hook=_force, **kw)
+    for name in ("max_amplitude", "max_time_s", "arrival_time_s"):
+        da = getattr(fine, name)
+        da.values[ring] = np.nan
+    fine.stats.update(nested={"refine": refine, "box": [box.j0, box.j1, box.i0, box.i1],
+                              "forced_sides": [s for s, v in inside.items() if v], "coarse_dt_s": dt_c,
+                              "coarse_elapsed_s": coarse.stats["elapsed_s"]})
+    return NestedWave(coarse=coarse, fine=fine, depth=depth_f, box=box, refine=refine)
