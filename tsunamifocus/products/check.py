@@ -30,7 +30,7 @@ from ..io.runs import read_run
 from ..io.scenario import Scenario, parse_scenario
 from ..grid import refine_grid
 from ..io.styles import lensing_scale
-from ..studies.check import AUTO_REFINE, FAINT_WAVE_FRACTION, WaveCheck, check_refine, compare_with_waves
+from ..studies.check import AUTO_REFINE, FAINT_WAVE_FRACTION, NEST_DEFAULT, WaveCheck, check_refine, compare_with_waves
 from .appendix import build_appendix
 from .figures import plot_check_profile, plot_lensing_map, plot_ray_vs_wave
 
@@ -149,6 +149,7 @@ def run_wave_check(
     progress: bool = True,
     force: bool = False,
     refine: int | str = AUTO_REFINE,
+    nest: bool = NEST_DEFAULT,
 ) -> dict[str, Any]:
     """Run the wave-equation check of a finished run and write its outputs.
 
@@ -173,6 +174,9 @@ def run_wave_check(
         Solve the wave on the run's sea floor interpolated onto a grid this many times finer;
         ``"auto"`` (default): fine enough for the check's minimum of cells per dominant wavelength
         at the stop isobath (:func:`tsunamifocus.studies.check.compare_with_waves` ``refine``).
+    nest : bool
+        Refine only a box around the segments, one-way nested in the run's grid (False: refine the
+        whole grid; :func:`tsunamifocus.studies.check.compare_with_waves` ``nest``).
 
     Returns
     -------
@@ -205,7 +209,7 @@ def run_wave_check(
                          reference_depth=layers.get("reference_depth"),
                          duration_s=None if hours is None else hours * 3600.0,
                          figure_path=tmp / "ray_vs_wave.png", progress=progress,
-                         max_memory_bytes=sc.bathymetry.max_memory_gb * 1e9, refine=refine,
+                         max_memory_bytes=sc.bathymetry.max_memory_gb * 1e9, refine=refine, nest=nest,
                          period_s=_manifest_period_s(manifest),
                          **({"max_cell_updates": None} if force else {}))
         amp = chk.wave.max_amplitude.copy()
@@ -308,6 +312,9 @@ def check_section(chk: WaveCheck, figures: dict[str, str], table_file: str = "wa
         + ("the same grid" if ag.get("refine", 1) <= 1 else
            f"the same sea floor interpolated onto a grid {ag['refine']} times finer (more cells per wavelength "
            "near the coast, no new detail"
+           + (f"; only in a box around the segments ({ag['nest']['margin_km']:g} km of sea around them), "
+              "forced on its edges by the same wave solved on the run's grid (one-way nesting)"
+              if ag.get("nest") else "")
            + (f"; chosen for at least {ag['refine_choice']['min_cells_per_wavelength']:g} cells per dominant "
               "wavelength at the stop isobath" if ag.get("refine_choice") else "") + ")")
         + ", over the unsmoothed sea floor and over the run's lensing reference (staggered C grid, "
@@ -341,7 +348,9 @@ def check_section(chk: WaveCheck, figures: dict[str, str], table_file: str = "wa
             f"{r['median']:.2f} ({r['p5']:.2f}-{r['p95']:.2f})"
     res = ag.get("resolution") or {}
     if ag.get("refine", 1) > 1:
-        metrics["wave grid"] = f"the run's sea floor interpolated onto a grid {ag['refine']} times finer"
+        metrics["wave grid"] = (f"the run's sea floor interpolated onto a grid {ag['refine']} times finer"
+                                + (f" in a box around the segments ({ag['nest']['margin_km']:g} km of sea around "
+                                   "them), one-way nested in the run's grid" if ag.get("nest") else ""))
     if res:
         metrics[f"cells per {res['period_s']:.0f} s wavelength at the stop isobath"] = fmt(res.get("cells_per_wavelength"))
     if ag.get("n_faint_wave"):

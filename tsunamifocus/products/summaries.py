@@ -179,6 +179,7 @@ def _check_lines(ag: dict) -> list[str]:
                    f"finer grid ({_refine_hint(ag)}) before reading these figures (docs/wave_check.md)")
     elif ag.get("refine", 1) > 1:
         out.append(f"    the wave was solved on the run's sea floor interpolated onto a grid {ag['refine']} times finer"
+                   + (" in a box around the coast, one-way nested in the run's grid" if ag.get("nest") else "")
                    + (f" ({ag['resolution']['cells_per_wavelength']:.1f} cells per dominant wavelength at the "
                       "stop isobath)" if ag.get("resolution") else ""))
     return out

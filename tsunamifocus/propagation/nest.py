@@ -32,10 +32,9 @@ from typing import Any
 
 import numpy as np
 import xarray as xr
-from scipy import sparse
 
 from ..errors import InputError
-from ..grid import GridInfo, refine_grid
+from ..grid import refine_grid
 from .wave import WaveResult, _check_depth, _wet_mask, simulate_linear_long_wave
 
 __all__ = ["NestBox", "NestedWave", "nest_box", "simulate_nested", "NEST_MAX_SHARE"]
@@ -151,8 +150,9 @@ def _ring(box: NestBox, refine: int, ny: int, nx: int) -> tuple[np.ndarray, dict
 
 
 def _ring_weights(box: NestBox, refine: int, ring: np.ndarray, coarse_wet: np.ndarray
-                  ) -> tuple[np.ndarray, np.ndarray, sparse.csr_matrix]:
-    """Fine ring cells (flat indices), the coarse cells they read (flat) and the bilinear weights.
+                  ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """Fine ring cells (flat indices), the coarse cells they read (flat), and per ring cell the
+    four positions among those coarse cells and their bilinear weights (``(n, 4)`` each).
 
     Fine cell ``jf`` of the box sits at coarse fractional row ``j0 + (jf + 0.5) / refine - 0.5``;
     its value is bilinear between the four surrounding coarse centres, over the wet ones only
@@ -165,21 +165,20 @@ def _ring_weights(box: NestBox, refine: int, ring: np.ndarray, coarse_wet: np.nd
     ja = np.floor(cy).astype(np.int64)
     ia = np.floor(cx).astype(np.int64)
     ty, tx = cy - ja, cx - ia
-    rows, cols, vals = [], [], []
+    cols, vals = [], []
     for dj, di, w in ((0, 0, (1 - ty) * (1 - tx)), (0, 1, (1 - ty) * tx), (1, 0, ty * (1 - tx)), (1, 1, ty * tx)):
         jj = np.clip(ja + dj, 0, ny - 1)
         ii = np.clip(ia + di, 0, nx - 1)
-        rows.append(np.arange(jf.size))
         cols.append(jj * nx + ii)
         vals.append(w * coarse_wet[jj, ii])
-    r, c, v = np.concatenate(rows), np.concatenate(cols), np.concatenate(vals)
-    tot = np.bincount(r, weights=v, minlength=jf.size)
+    c = np.stack(cols, axis=1)
+    w = np.stack(vals, axis=1)
+    tot = w.sum(axis=1, keepdims=True)
     with np.errstate(invalid="ignore", divide="ignore"):
-        v = np.where(tot[r] > 0, v / tot[r], 0.0)
-    used, c_local = np.unique(c, return_inverse=True)
-    w = sparse.csr_matrix((v, (r, c_local.ravel())), shape=(jf.size, used.size))
+        w = np.where(tot > 0, w / np.where(tot > 0, tot, 1.0), 0.0)
+    used, c_local = np.unique(c.ravel(), return_inverse=True)
     fine_flat = jf * ring.shape[1] + if_
-    return fine_flat, used, w
+    return fine_flat, used, c_local.reshape(c.shape), w
 
 
 def simulate_nested(
@@ -233,7 +232,7 @@ def simulate_nested(
     ring, inside = _ring(box, refine, ny, nx)
     d = np.asarray(depth.values, float)
     coarse_wet = _wet_mask(d, stop_depth_m)
-    fine_flat, used, weights = _ring_weights(box, refine, ring, coarse_wet)
+    fine_flat, used, pick, weights = _ring_weights(box, refine, ring, coarse_wet)
     e0 = np.where(coarse_wet, np.nan_to_num(np.asarray(eta0.values, float)), 0.0).ravel()
     record = [e0[used].astype(np.float32)]
 
@@ -270,7 +269,7 @@ def simulate_nested(
         k = min(int(s), n_rec - 1) if n_rec > 0 else 0
         f = s - k
         vals = rec[k] * (1.0 - f) + rec[min(k + 1, n_rec)] * f
-        eta.ravel()[fine_flat] = weights @ vals.astype(float)
+        eta.ravel()[fine_flat] = np.einsum("ij,ij->i", vals[pick], weights)
 
     kw = {k: v for k, v in simulate_kwargs.items() if k != "boundary"}
     fine = simulate_linear_long_wave(depth_f, eta_f, duration_s=duration_s, stop_depth_m=stop_depth_m,

@@ -308,7 +308,7 @@ class WaveCheck:
                          "median): water the wave barely reaches on this grid (a narrow passage, sheltered water); "
                          "see them along the coast in ray_vs_wave_profile.png (docs/wave_check.md, Limits)")
         res = a.get("resolution")
-        grid = _grid_words(a.get("refine", 1))
+        grid = _grid_words(a.get("refine", 1), a.get("nest"))
         if res:
             lines.append(f"  wave solved on {grid}: {res['cells_per_wavelength']:.1f} cells per {res['period_s']:.0f} s "
                          f"wavelength at the stop isobath"
@@ -330,7 +330,10 @@ def _ratio_words(r: Mapping[str, float]) -> str:
             f"{r['p5']:.2f}-{r['p95']:.2f})")
 
 
-def _grid_words(refine: int) -> str:
+def _grid_words(refine: int, nest: Mapping[str, Any] | None = None) -> str:
+    if refine > 1 and nest:
+        return (f"the run's grid, with a box around the segments ({nest['margin_km']:g} km of sea around them, "
+                f"{100 * nest['share']:.0f} % of the grid) {refine} times finer, one-way nested")
     return f"a grid {refine} times finer than the run's" if refine > 1 else "the run's grid"
 
 
@@ -489,10 +492,14 @@ def compare_with_waves(
                 f"{MIN_CELLS_PER_WAVELENGTH:g}: the coastal wave maxima are not converged in grid spacing; {how}",
                 ResolutionWarning, stacklevel=2)
     if progress is True and (refine > 1 or choice is not None):
-        print(f"  wave solved on {_grid_words(refine)}"
+        share = box.shape[0] * box.shape[1] / float(depth.shape[0] * depth.shape[1]) if box is not None else 1.0
+        nest_info = {"margin_km": NEST_MARGIN_KM, "share": share} if box is not None else None
+        print(f"  wave solved on {_grid_words(refine, nest_info)}"
               + (f": {resolution['cells_per_wavelength']:.1f} cells per {period_s:.0f} s wavelength at the stop "
                  "isobath" if resolution is not None else "")
-              + (f" (about {refine ** 3} times the cost of the run's grid)" if refine > 1 else ""), file=sys.stderr)
+              + (f" (about {(1 + share * refine ** 3) if box is not None else refine ** 3:.3g} times the cost of the "
+                 "run's grid)" if refine > 1 else ""),
+              file=sys.stderr)
     opts = dict(duration_s=duration_s, stop_depth_m=stop_depth_m, coast=coast, boundary=boundary, cfl=cfl,
                 gravity=gravity, threads=threads, progress=progress, **simulate_kwargs)
     labelled = progress is True and reference_depth is not None
