@@ -22,7 +22,7 @@ from ..constants import DEFAULTS, GRAVITY, STOP_DEPTH_M, WORK_LIMITS
 from ..errors import CoastError, InputError, ResolutionWarning
 from ..focusing.agreement import compare_rankings
 from ..focusing.ranking import ranked_mask
-from ..grid import MAX_REFINE_FACTOR, refine_grid
+from ..grid import MAX_REFINE_FACTOR, GridInfo, refine_grid
 from ..propagation.nest import NEST_MAX_SHARE, NestBox, _fine_cut, nest_box, simulate_nested
 from ..propagation.wave import (WAVE_CAUTION, WaveResult, _check_depth, _dt_from, _memory_needed, _metric, _polar_dry,
                                 _wet_mask, simulate_linear_long_wave)
@@ -568,7 +568,8 @@ def _nest_box(depth: xr.DataArray, segments: Any, refine: int) -> NestBox | None
     y = np.concatenate([b[:, 1], b[:, 3]])
     box = nest_box(depth, x, y, NEST_MARGIN_KM * 1e3)
     share = box.shape[0] * box.shape[1] / float(depth.shape[0] * depth.shape[1])
-    if share > NEST_MAX_SHARE or min(box.shape) < 4:
+    seam = GridInfo.from_dataarray(depth).periodic_x and (box.i0 == 0 or box.i1 == depth.shape[1])
+    if share > NEST_MAX_SHARE or min(box.shape) < 4 or seam:
         return None
     return box
 
