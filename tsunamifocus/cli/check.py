@@ -7,7 +7,7 @@ import argparse
 from ..constants import DEFAULTS, WORK_LIMITS
 from ..grid import MAX_REFINE_FACTOR
 from ..products.check import run_wave_check
-from ..studies.check import AUTO_REFINE, MIN_CELLS_PER_WAVELENGTH, NEST_DEFAULT, NEST_MARGIN_KM
+from ..studies.check import AUTO_REFINE, MIN_CELLS_PER_WAVELENGTH, NEST_MARGIN_KM
 
 NAME = "check"
 HELP = "check a run's ranking against a linear long-wave (shallow-water) simulation"
@@ -28,10 +28,10 @@ def configure(p: argparse.ArgumentParser) -> None:
                    f"1: the run's grid; default {AUTO_REFINE}: the coarsest grid with at least "
                    f"{MIN_CELLS_PER_WAVELENGTH:g} cells per dominant wavelength at the stop isobath, within the "
                    "memory and work limits)")
-    p.add_argument("--whole-grid", action="store_true",
-                   help="refine the whole grid, not only a box around the segments "
-                   f"({NEST_MARGIN_KM:g} km of sea around them) one-way nested in the run's grid"
-                   + (" (the default)" if not NEST_DEFAULT else ""))
+    p.add_argument("--nest", action="store_true",
+                   help="refine only a box around the segments (" + f"{NEST_MARGIN_KM:g}" + " km of sea around "
+                   "them), one-way nested in the wave solved on the run's grid: the coast as finely resolved at a "
+                   "fraction of the cost (default: refine the whole grid)")
     top_k = DEFAULTS["output"]["top_k"]
     p.add_argument("--top", type=int, default=top_k, help=f"k of the top-k overlap (default {top_k}, as [output] top_k)")
 
@@ -51,5 +51,5 @@ def run(args: argparse.Namespace) -> int:
     """Run the check; returns the exit code."""
     run_wave_check(args.run_dir, out=args.out, overwrite=args.overwrite, hours=args.hours, k=args.top,
                    progress=getattr(args, "quiet", 0) == 0, force=args.force,
-                   refine=args.refine, nest=NEST_DEFAULT and not args.whole_grid)
+                   refine=args.refine, nest=args.nest)
     return 0
