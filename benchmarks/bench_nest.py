@@ -15,7 +15,7 @@ checks (amplitude at the stop isobath and lensing: Spearman and top-10 overlap),
 (seed 0, default settings) with each. Numba is warmed first. Only times measured in one run on a
 quiet machine mean anything; the load average is printed.
 
-Run:  python benchmarks/bench_nest.py [--refine 2] [--nest-only 4]
+Run:  python benchmarks/bench_nest.py [--refine 2] [--nest-only 4] [--save tables.csv]
 """
 
 from __future__ import annotations
@@ -27,6 +27,7 @@ import time
 import warnings
 
 import numpy as np
+import pandas as pd
 
 sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
 import bench_focusing as B  # noqa: E402  (the shared real-grid case)
@@ -48,6 +49,7 @@ def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--refine", type=int, nargs="+", default=[2], help="factors run both ways")
     ap.add_argument("--nest-only", type=int, nargs="*", default=[], help="factors run nested only")
+    ap.add_argument("--save", help="write every check's segment table to this CSV (one column per check and value)")
     args = ap.parse_args()
     data = B.shared_data_dir()
     if data is None:
@@ -86,6 +88,10 @@ def main() -> None:
                   f"{_pair(tabs[l1], tabs[l2], 'wave_lensing')}")
     n = {lab: int(np.isfinite(t['wave_amp_stop_m'].where(t['ranked'])).sum()) for lab, t in tabs.items()}
     print("\nranked segments with a wave value:", ", ".join(f"{k} {v}" for k, v in n.items()))
+    if args.save:  # later comparisons (another nesting, another judge) without re-running the long checks
+        cols = {f"{lab}: {c}": t[c] for lab, t in tabs.items() for c in ("ranked", "wave_amp_stop_m", "wave_lensing")}
+        pd.DataFrame(cols).to_csv(args.save)
+        print(f"tables: {args.save}")
 
 
 if __name__ == "__main__":
