@@ -47,7 +47,7 @@ def _pair(t1, t2, col: str) -> str:
 
 def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    ap.add_argument("--refine", type=int, nargs="+", default=[2], help="factors run both ways")
+    ap.add_argument("--refine", type=int, nargs="*", default=[2], help="factors run both ways")
     ap.add_argument("--nest-only", type=int, nargs="*", default=[], help="factors run nested only")
     ap.add_argument("--save", help="write every check's segment table to this CSV (one column per check and value)")
     args = ap.parse_args()

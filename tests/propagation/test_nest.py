@@ -120,6 +120,17 @@ def test_nested_solve_refuses_bad_factor_and_box():
         simulate_nested(depth, eta0, NestBox(10, 12, 10, 50), 2, **kw)
 
 
+def test_nested_solve_of_a_flat_sea_stays_flat():
+    # A sea at rest stays at rest (no source, no forcing): every maximum is 0 and nothing arrives;
+    # the arrival threshold is then infinite, which the box pass must accept.
+    depth, eta0 = _shelf_basin()
+    flat = eta0.copy(data=np.zeros(eta0.shape))
+    nw = simulate_nested(depth, flat, NestBox(40, 120, 130, 200), 2, duration_s=600.0, stop_depth_m=20.0)
+    amp = nw.fine.max_amplitude.values
+    assert np.nanmax(np.abs(amp)) == 0.0
+    assert np.isnan(nw.fine.arrival_time_s.values).all()
+
+
 def test_nested_solve_refuses_a_box_on_the_seam_of_a_periodic_grid():
     lon = np.arange(0.0, 360.0, 2.0)
     lat = np.arange(-30.0, 31.0, 2.0)

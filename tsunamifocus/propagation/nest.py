@@ -284,7 +284,8 @@ def simulate_nested(
 
     kw = {k: v for k, v in simulate_kwargs.items() if k != "boundary"}
     # arrivals against the whole run's threshold (the box need not hold the source)
-    kw["arrival_threshold_m"] = coarse.stats["arrival_threshold_m"]
+    if math.isfinite(coarse.stats["arrival_threshold_m"]):  # inf: a source without any surface
+        kw["arrival_threshold_m"] = coarse.stats["arrival_threshold_m"]
     fine = simulate_linear_long_wave(depth_f, eta_f, duration_s=duration_s, stop_depth_m=stop_depth_m,
                                      boundary=edges, progress=_label("coast box"), step_hook=_force, **kw)
     for name in ("max_amplitude", "max_time_s", "arrival_time_s"):
