@@ -36,8 +36,8 @@ import numpy as np
 import xarray as xr
 
 from ..errors import InputError
-from ..grid import refine_grid
-from .wave import WaveResult, _check_depth, _wet_mask, simulate_linear_long_wave
+from ..grid import GridInfo, refine_grid
+from .wave import WaveResult, _check_depth, _parse_boundary, _wet_mask, simulate_linear_long_wave
 
 __all__ = ["NestBox", "NestedWave", "nest_box", "simulate_nested", "NEST_MAX_SHARE"]
 
@@ -61,6 +61,14 @@ class NestBox:
     @property
     def shape(self) -> tuple[int, int]:
         return self.j1 - self.j0, self.i1 - self.i0
+
+    def share_of(self, shape: tuple[int, int]) -> float:
+        """The box's share of the cells of a grid of ``shape``."""
+        return self.shape[0] * self.shape[1] / float(shape[0] * shape[1])
+
+    def reaches_seam(self, info: GridInfo) -> bool:
+        """Whether the box touches the seam of a longitude-periodic grid (it cannot wrap across it)."""
+        return bool(info.periodic_x) and (self.i0 == 0 or self.i1 == info.nx)
 
 
 @dataclass
@@ -233,7 +241,7 @@ def simulate_nested(
         raise InputError(f"nested wave: box {box} does not lie within the {ny} x {nx} grid")
     if min(box.shape) < 4:
         raise InputError(f"nested wave: box {box} is {box.shape[0]} x {box.shape[1]} cells; expected at least 4 x 4")
-    if info.periodic_x and (box.i0 == 0 or box.i1 == nx):
+    if box.reaches_seam(info):
         raise InputError(f"nested wave: box {box} reaches the seam of a longitude-periodic grid; "
                          "refine the whole grid instead")
     refine = int(refine)
@@ -261,18 +269,9 @@ def simulate_nested(
     rec[np.abs(rec) < _NEGLIGIBLE_M] = 0.0
     depth_f = _fine_cut(depth, box, refine, ny, nx)
     eta_f = _fine_cut(eta0, box, refine, ny, nx)
-    bnd = simulate_kwargs.pop("boundary", "absorb")
-    outer = bnd if isinstance(bnd, str) else None
-    edges = {}
-    for side in ("west", "east", "south", "north"):
-        if inside[side]:
-            edges[side] = "reflect"
-        elif outer is not None:
-            edges[side] = outer
-        elif isinstance(bnd, dict):
-            edges[side] = bnd.get(side, "absorb")
-        else:
-            edges[side] = dict(zip(("west", "east", "south", "north"), bnd, strict=True))[side]
+    # the grid's own boundary on box sides along its edges; closed (and forced) inside
+    edges = {side: "reflect" if inside[side] else kind
+             for side, kind in _parse_boundary(simulate_kwargs.pop("boundary", "absorb")).items()}
     n_rec = rec.shape[0] - 1
 
     def _force(eta: np.ndarray, t_new: float) -> None:
@@ -282,7 +281,7 @@ def simulate_nested(
         vals = rec[k] * (1.0 - f) + rec[min(k + 1, n_rec)] * f
         eta.ravel()[fine_flat] = np.einsum("ij,ij->i", vals[pick], weights)
 
-    kw = {k: v for k, v in simulate_kwargs.items() if k != "boundary"}
+    kw = dict(simulate_kwargs)
     # arrivals against the whole run's threshold (the box need not hold the source)
     if math.isfinite(coarse.stats["arrival_threshold_m"]):  # inf: a source without any surface
         kw["arrival_threshold_m"] = coarse.stats["arrival_threshold_m"]

@@ -467,6 +467,8 @@ def compare_with_waves(
     else:
         check_refine(refine)
     box = _nest_box(depth, segments, refine) if nest else None
+    nest_info = None if box is None else {"box": [box.j0, box.j1, box.i0, box.i1], "margin_km": NEST_MARGIN_KM,
+                                          "share": box.share_of(depth.shape)}
     if box is None:
         depth_w, eta_w = refine_grid(depth, refine), refine_grid(eta0, refine)
     else:
@@ -492,13 +494,11 @@ def compare_with_waves(
                 f"{MIN_CELLS_PER_WAVELENGTH:g}: the coastal wave maxima are not converged in grid spacing; {how}",
                 ResolutionWarning, stacklevel=2)
     if progress is True and (refine > 1 or choice is not None):
-        share = box.shape[0] * box.shape[1] / float(depth.shape[0] * depth.shape[1]) if box is not None else 1.0
-        nest_info = {"margin_km": NEST_MARGIN_KM, "share": share} if box is not None else None
+        cost = refine ** 3 if nest_info is None else 1 + nest_info["share"] * refine ** 3
         print(f"  wave solved on {_grid_words(refine, nest_info)}"
               + (f": {resolution['cells_per_wavelength']:.1f} cells per {period_s:.0f} s wavelength at the stop "
                  "isobath" if resolution is not None else "")
-              + (f" (about {(1 + share * refine ** 3) if box is not None else refine ** 3:.3g} times the cost of the "
-                 "run's grid)" if refine > 1 else ""),
+              + (f" (about {cost:.3g} times the cost of the run's grid)" if refine > 1 else ""),
               file=sys.stderr)
     opts = dict(duration_s=duration_s, stop_depth_m=stop_depth_m, coast=coast, boundary=boundary, cfl=cfl,
                 gravity=gravity, threads=threads, progress=progress, **simulate_kwargs)
@@ -535,9 +535,7 @@ def compare_with_waves(
                                     "p95": float(np.percentile(ratio, 95))}
     agree["n_faint_wave"] = int(faint_wave_segments(table["wave_amp_stop_m"], ranked).sum())
     agree["refine"] = int(refine)
-    agree["nest"] = None if box is None else {
-        "box": [box.j0, box.j1, box.i0, box.i1], "margin_km": NEST_MARGIN_KM,
-        "share": box.shape[0] * box.shape[1] / float(depth.shape[0] * depth.shape[1])}
+    agree["nest"] = nest_info
     if choice is not None:
         agree["refine_choice"] = choice
     if resolution is not None:
@@ -567,9 +565,7 @@ def _nest_box(depth: xr.DataArray, segments: Any, refine: int) -> NestBox | None
     x = np.concatenate([b[:, 0], b[:, 2]])
     y = np.concatenate([b[:, 1], b[:, 3]])
     box = nest_box(depth, x, y, NEST_MARGIN_KM * 1e3)
-    share = box.shape[0] * box.shape[1] / float(depth.shape[0] * depth.shape[1])
-    seam = GridInfo.from_dataarray(depth).periodic_x and (box.i0 == 0 or box.i1 == depth.shape[1])
-    if share > NEST_MAX_SHARE or min(box.shape) < 4 or seam:
+    if box.share_of(depth.shape) > NEST_MAX_SHARE or min(box.shape) < 4 or box.reaches_seam(GridInfo.from_dataarray(depth)):
         return None
     return box
 
