@@ -38,6 +38,7 @@ from ..io.subfaults import read_subfault_table
 from ..io.surface import read_sea_surface
 from ..ocean.perturb import draw_member_parameters, perturb_bathymetry
 from ..ocean.smooth import smooth_bathymetry
+from ..ocean.wavelength import WAVELENGTH_FRACTION
 from ..coast.waves import segment_first_arrivals
 from ..propagation.traveltime import TravelTimes, first_arrival_times, sample_at_sea
 from ..source.faults import FaultSegment, PointSource, Rupture
@@ -289,6 +290,7 @@ def analyse_source(
     progress: StageProgress | None = None,
     all_bands: bool = True,
     reference: ReferenceOcean | None = None,
+    wavelength_fraction: float = WAVELENGTH_FRACTION,
 ) -> SourceAnalysis:
     """Build one source, its ray fan, and trace/analyse it on ``depth``.
 
@@ -316,6 +318,9 @@ def analyse_source(
         Trace the three period bands of the source's spectrum (default), or the dominant period only.
     reference : ReferenceOcean, optional
         The lensing reference prepared once for many sources (default: built for this source).
+    wavelength_fraction : float
+        Gaussian std of the oceans' wavelength smoothing (and of the maps' regularisation) in
+        local wavelengths, for sensitivity studies (:func:`tsunamifocus.focusing.analysis.analyse_focusing`).
 
     Returns
     -------
@@ -359,6 +364,7 @@ def analyse_source(
         min_rays=scenario.coast.min_rays, seed=scenario.rays.seed, top_k=scenario.output.top_k,
         max_distance_m=getattr(scenario.coast, "max_distance_m", None),
         coast_area=_area_mask(segments.attrs.get("coast_area"), depth), reference=reference,
+        wavelength_fraction=wavelength_fraction,
     )
     use_travel_times(foc, tt, first_arrival_s=first)  # the segments' rows are still those of seg_in
     restrict_to_region(foc, scenario.output.top_k)
