@@ -26,7 +26,7 @@ solves the wave check on the sea floor refined by each given factor instead of i
 (4 is converged on the demo: 3x against 4x agree at 0.995 in amplitude and 0.982 in lensing), so
 that a setting can be judged on every realization against a converged wave.
 
-Run:  python benchmarks/bench_demo_design.py [--all] [--realizations 20261202 1 2 3]
+Run:  python benchmarks/bench_demo_design.py [--all | --designs current ...] [--realizations 20261202 1 2 3]
           [--fractions 0.25 0.06] [--judge-refine 2 4]
 """
 
@@ -124,13 +124,15 @@ def main() -> None:
     ap.add_argument("--all", action="store_true", help="all seven designs of docs/focusing.md, not only previous and current")
     ap.add_argument("--realizations", type=int, nargs="+", default=[20261202, 1, 2, 3],
                     help="DemoRegion.seed values (the demo's own is 20261202)")
+    ap.add_argument("--designs", nargs="+", choices=list(DESIGNS), default=None,
+                    help="only these designs (default: previous and current, or all with --all)")
     ap.add_argument("--fractions", type=float, nargs="+", default=[WAVELENGTH_FRACTION],
                     help="wavelength-smoothing widths of the rays' oceans, in local wavelengths")
     ap.add_argument("--judge-refine", type=int, nargs="+", default=None,
                     help="solve the wave check on the sea floor refined by these factors (default: its own choice)")
     args = ap.parse_args()
     warnings.simplefilter("ignore")
-    names = list(DESIGNS) if args.all else list(SHOWN_BY_DEFAULT)
+    names = args.designs or (list(DESIGNS) if args.all else list(SHOWN_BY_DEFAULT))
     rows = []
     t0 = time.perf_counter()
     for name in names:
