@@ -172,3 +172,36 @@ def test_check_nests_around_the_segments_and_falls_back_when_the_box_is_large(mo
     assert nested.wave.stats["elapsed_s"] >= nested.wave.stats["nested"]["box_elapsed_s"]
     monkeypatch.setattr(check_module, "NEST_MARGIN_KM", 400.0)  # a box of more than half the basin
     assert compare_with_waves(depth, eta0, seg, nest=True, **kw).agreement["nest"] is None
+
+
+def test_a_box_nested_in_a_refined_ocean_gives_the_whole_refined_grid():
+    # The same comparison with the ocean itself solved 2x finer around a 4x box (ocean_refine):
+    # the ring is then one cell of the 2x grid, and the box's sea floor is still the whole 4x
+    # grid's, cell for cell (common practice of nested long-wave models, no source).
+    from tsunamifocus.propagation.nest import ocean_factor
+
+    assert [ocean_factor(r) for r in (2, 3, 4, 6, 8)] == [1, 1, 2, 3, 4]
+    depth, eta0 = _shelf_basin()
+    r = 4
+    kw = dict(duration_s=7000.0, stop_depth_m=20.0, coast="absorb", boundary="absorb", threads=1)
+    full = simulate_linear_long_wave(refine_grid(depth, r), refine_grid(eta0, r), **kw)
+    box = NestBox(40, 120, 130, 200)
+    nw = simulate_nested(depth, eta0, box, r, ocean_refine=2, **kw)
+    assert nw.fine.stats["nested"]["ocean_refine"] == 2
+    assert nw.coarse.max_amplitude.shape == (2 * depth.shape[0], 2 * depth.shape[1])
+    np.testing.assert_allclose(nw.depth.values, refine_grid(depth, r).values[box.j0 * r:box.j1 * r,
+                                                                             box.i0 * r:box.i1 * r])
+    fm = full.max_amplitude.values[box.j0 * r:box.j1 * r, box.i0 * r:box.i1 * r]
+    nm = nw.fine.max_amplitude.values
+    band = _coastal_cells(nw.depth.values > 20.0, False)
+    inner = np.zeros_like(band)
+    inner[4 * r:-4 * r, 4 * r:] = True
+    b = band & inner
+    assert b.sum() > 150
+    rel = np.abs(nm[b] - fm[b]) / fm[b]
+    assert rel.max() < 0.02
+    assert np.isnan(nm[:2]).all()  # the ring: one cell of the 2x ocean, two of the box
+    with pytest.raises(InputError, match="ocean_refine"):
+        simulate_nested(depth, eta0, box, r, ocean_refine=3, **kw)
+    with pytest.raises(InputError, match="ocean_refine"):
+        simulate_nested(depth, eta0, box, r, ocean_refine=4, **kw)

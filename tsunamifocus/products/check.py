@@ -30,7 +30,7 @@ from ..io.runs import read_run
 from ..io.scenario import Scenario, parse_scenario
 from ..grid import refine_grid
 from ..io.styles import lensing_scale
-from ..studies.check import AUTO_REFINE, FAINT_WAVE_FRACTION, NEST_DEFAULT, WaveCheck, check_refine, compare_with_waves
+from ..studies.check import AUTO_REFINE, FAINT_WAVE_FRACTION, NEST_DEFAULT, WaveCheck, check_refine, compare_with_waves, nest_ocean_words
 from .appendix import build_appendix
 from .figures import plot_check_profile, plot_lensing_map, plot_ray_vs_wave
 
@@ -313,7 +313,7 @@ def check_section(chk: WaveCheck, figures: dict[str, str], table_file: str = "wa
            f"the same sea floor interpolated onto a grid {ag['refine']} times finer (more cells per wavelength "
            "near the coast, no new detail"
            + (f"; only in a box around the segments ({ag['nest']['margin_km']:g} km of sea around them), "
-              "forced on its edges by the same wave solved on the run's grid (one-way nesting)"
+              f"forced on its edges by the same wave solved on {nest_ocean_words(ag['nest'])} (one-way nesting)"
               if ag.get("nest") else "")
            + (f"; chosen for at least {ag['refine_choice']['min_cells_per_wavelength']:g} cells per dominant "
               "wavelength at the stop isobath" if ag.get("refine_choice") else "") + ")")
@@ -350,7 +350,7 @@ def check_section(chk: WaveCheck, figures: dict[str, str], table_file: str = "wa
     if ag.get("refine", 1) > 1:
         metrics["wave grid"] = (f"the run's sea floor interpolated onto a grid {ag['refine']} times finer"
                                 + (f" in a box around the segments ({ag['nest']['margin_km']:g} km of sea around "
-                                   "them), one-way nested in the run's grid" if ag.get("nest") else ""))
+                                   f"them), one-way nested in {nest_ocean_words(ag['nest'])}" if ag.get("nest") else ""))
     if res:
         metrics[f"cells per {res['period_s']:.0f} s wavelength at the stop isobath"] = fmt(res.get("cells_per_wavelength"))
     if ag.get("n_faint_wave"):

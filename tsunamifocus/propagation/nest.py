@@ -15,6 +15,10 @@ around the coast of interest costs that factor on the box alone. The solve runs 
    at every step from the first pass, bilinear in space between the coarse cells (wet ones only)
    and linear in time; box sides on the grid's own edges keep its boundary condition.
 
+A box refined 4 or more times is better nested in an ocean refined too (``ocean_refine``,
+:func:`ocean_factor`): across a whole ocean the incoming wave's numerical dispersion at the
+run's spacing is not negligible next to a 4x box's (docs/wave_check.md).
+
 Information flows one way, from the coarse grid into the box (one-way nesting; for example
 Kowalik and Murty 1993, *Numerical Modeling of Ocean Dynamics*, on nested grids for long
 waves): what the box sends back out reaches the coarse grid only through the coarse solution's
@@ -39,11 +43,20 @@ from ..errors import InputError
 from ..grid import GridInfo, refine_grid
 from .wave import WaveResult, _check_depth, _parse_boundary, _wet_mask, simulate_linear_long_wave
 
-__all__ = ["NestBox", "NestedWave", "nest_box", "simulate_nested", "NEST_MAX_SHARE"]
+__all__ = ["NestBox", "NestedWave", "nest_box", "ocean_factor", "simulate_nested", "NEST_MAX_SHARE",
+           "NEST_MAX_STEP"]
 
 #: A box holding more than this share of the grid's cells is not worth nesting: the whole grid is
 #: refined instead (the coarse pass and the ring then cost more than they save).
 NEST_MAX_SHARE: float = 0.5
+
+#: The box is at most this many times finer than the ocean it is nested in (:func:`ocean_factor`):
+#: a box refined 4x is nested in the whole ocean refined 2x. On a trans-Pacific case (Japan
+#: Trench interface to the North American coast, 0.1 degree) a 4x box in the ocean at the run's
+#: spacing departed from the whole grid refined 4x (amplitude ranking 0.942, lensing 0.760: the
+#: incoming wave crosses 8000 km at the coarse spacing and its numerical dispersion differs),
+#: a 4x box in the ocean refined 2x did not (0.984 / 0.893) - docs/wave_check.md.
+NEST_MAX_STEP: int = 2
 
 # surface elevations below this [m] are set to 0 in the recorded ring values (see simulate_nested)
 _NEGLIGIBLE_M = 1e-12
@@ -78,7 +91,7 @@ class NestedWave:
     Attributes
     ----------
     coarse : WaveResult
-        The whole grid at its own spacing.
+        The whole grid at its own spacing (or refined ``ocean_refine`` times).
     fine : WaveResult
         The box at ``refine`` times finer spacing; NaN on the forced ring.
     depth : xarray.DataArray
@@ -129,6 +142,18 @@ def nest_box(depth: xr.DataArray, x: np.ndarray, y: np.ndarray, margin_m: float)
     i0, i1 = _span(xs, float(x.min()) - mx, float(x.max()) + mx)
     j0, j1 = _span(ys, float(y.min()) - my, float(y.max()) + my)
     return NestBox(j0, j1, i0, i1)
+
+
+def ocean_factor(refine: int) -> int:
+    """Refinement of the ocean around a box refined ``refine`` times: the largest divisor of
+    ``refine`` that leaves the box at most :data:`NEST_MAX_STEP` times finer (and at least 2).
+
+    2 -> 1, 3 -> 1, 4 -> 2, 6 -> 3, 8 -> 4.
+    """
+    refine = int(refine)
+    ok = [d for d in range(1, refine // 2 + 1) if refine % d == 0 and refine // d >= 2]
+    fit = [d for d in ok if refine // d <= NEST_MAX_STEP]
+    return max(fit) if fit else (max(ok) if ok else 1)
 
 
 def _fine_cut(da: xr.DataArray, box: NestBox, refine: int, ny: int, nx: int) -> xr.DataArray:
@@ -203,6 +228,7 @@ def simulate_nested(
     duration_s: float,
     stop_depth_m: float,
     progress: bool | str | Callable[[int, int], None] | None = None,
+    ocean_refine: int = 1,
     **simulate_kwargs: Any,
 ) -> NestedWave:
     """Solve the linear long-wave equations on ``depth``, and again ``refine`` times finer inside ``box``.
@@ -220,6 +246,10 @@ def simulate_nested(
     progress : bool, str or callable, optional
         As for :func:`simulate_linear_long_wave`; with a label, the passes are labelled
         "<label>, whole grid" and "<label>, coast box".
+    ocean_refine : int
+        Solve the whole ocean on ``depth`` refined this many times (a divisor of ``refine``, at
+        most half of it; :func:`ocean_factor` chooses one) instead of on ``depth`` itself; the box
+        is still cut from ``depth`` refined ``refine`` times.
     **simulate_kwargs
         Passed to both passes (``coast``, ``boundary``, ``cfl``, ``gravity``, ``threads``, limits);
         the box's sides inside the grid are closed and forced, whatever ``boundary`` says.
@@ -245,11 +275,18 @@ def simulate_nested(
         raise InputError(f"nested wave: box {box} reaches the seam of a longitude-periodic grid; "
                          "refine the whole grid instead")
     refine = int(refine)
-    ring, inside = _ring(box, refine, ny, nx)
-    d = np.asarray(depth.values, float)
+    m = int(ocean_refine)
+    if isinstance(ocean_refine, bool) or m < 1 or refine % m or refine // m < 2:
+        raise InputError(f"nested wave: ocean_refine {ocean_refine!r}: expected a divisor of refine {refine} "
+                         "that leaves the box at least 2 times finer")
+    ocean, eta_o = (depth, eta0) if m == 1 else (refine_grid(depth, m), refine_grid(eta0, m))
+    box_o = NestBox(box.j0 * m, box.j1 * m, box.i0 * m, box.i1 * m)  # the box on the ocean's grid
+    step = refine // m
+    ring, inside = _ring(box_o, step, ny * m, nx * m)
+    d = np.asarray(ocean.values, float)
     coarse_wet = _wet_mask(d, stop_depth_m)
-    fine_flat, used, pick, weights = _ring_weights(box, refine, ring, coarse_wet)
-    e0 = np.where(coarse_wet, np.nan_to_num(np.asarray(eta0.values, float)), 0.0).ravel()
+    fine_flat, used, pick, weights = _ring_weights(box_o, step, ring, coarse_wet)
+    e0 = np.where(coarse_wet, np.nan_to_num(np.asarray(eta_o.values, float)), 0.0).ravel()
     record = [e0[used].astype(np.float32)]
 
     def _record(eta: np.ndarray, t_new: float) -> None:
@@ -260,7 +297,7 @@ def simulate_nested(
             return f"{progress}, {part}"
         return progress
 
-    coarse = simulate_linear_long_wave(depth, eta0, duration_s=duration_s, stop_depth_m=stop_depth_m,
+    coarse = simulate_linear_long_wave(ocean, eta_o, duration_s=duration_s, stop_depth_m=stop_depth_m,
                                        progress=_label("whole grid"), step_hook=_record, **simulate_kwargs)
     dt_c = float(coarse.stats["dt_s"])
     rec = np.stack(record)  # (steps + 1, used)
@@ -292,7 +329,7 @@ def simulate_nested(
         da.values[ring] = np.nan
     st = fine.stats
     # the box's volume is not conserved (the ring is a source): the budget is the whole grid's
-    st["nested"] = {"refine": refine, "box": [box.j0, box.j1, box.i0, box.i1],
+    st["nested"] = {"refine": refine, "ocean_refine": m, "box": [box.j0, box.j1, box.i0, box.i1],
                     "forced_sides": [s for s, v in inside.items() if v], "coarse_dt_s": dt_c,
                     "coarse_elapsed_s": coarse.stats["elapsed_s"], "box_elapsed_s": st["elapsed_s"],
                     "box_mass_error": st["mass_error"]}

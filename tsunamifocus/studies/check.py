@@ -23,12 +23,12 @@ from ..errors import CoastError, InputError, ResolutionWarning
 from ..focusing.agreement import compare_rankings
 from ..focusing.ranking import ranked_mask
 from ..grid import MAX_REFINE_FACTOR, GridInfo, refine_grid
-from ..propagation.nest import NEST_MAX_SHARE, NestBox, _fine_cut, nest_box, simulate_nested
+from ..propagation.nest import NEST_MAX_SHARE, NestBox, _fine_cut, nest_box, ocean_factor, simulate_nested
 from ..propagation.wave import (WAVE_CAUTION, WaveResult, _check_depth, _dt_from, _memory_needed, _metric, _polar_dry,
                                 _wet_mask, simulate_linear_long_wave)
 
 __all__ = ['AMPLITUDE_RATIO_FACTOR', 'AUTO_REFINE', 'MIN_CELLS_PER_WAVELENGTH', 'FAINT_WAVE_FRACTION',
-           'LENSING_MAP_FLOOR', 'NEST_DEFAULT', 'NEST_MARGIN_KM', 'WaveCheck', 'check_refine', 'choose_refine', 'compare_with_waves',
+           'LENSING_MAP_FLOOR', 'NEST_DEFAULT', 'NEST_MARGIN_KM', 'WaveCheck', 'nest_ocean_words', 'check_refine', 'choose_refine', 'compare_with_waves',
            'default_check_duration_s', 'faint_wave_segments', 'wave_resolution']
 
 #: Fewest grid cells per dominant wavelength at the stop isobath the check wants for its coastal
@@ -330,9 +330,15 @@ def _ratio_words(r: Mapping[str, float]) -> str:
             f"{r['p5']:.2f}-{r['p95']:.2f})")
 
 
+def nest_ocean_words(nest: Mapping[str, Any]) -> str:
+    """The grid the ocean around a nested box was solved on, in words (``agreement["nest"]``)."""
+    m = int(nest.get("ocean_refine", 1))
+    return "the run's grid" if m == 1 else f"the run's grid {m} times finer"
+
+
 def _grid_words(refine: int, nest: Mapping[str, Any] | None = None) -> str:
     if refine > 1 and nest:
-        return (f"the run's grid, with a box around the segments ({nest['margin_km']:g} km of sea around them, "
+        return (f"{nest_ocean_words(nest)}, with a box around the segments ({nest['margin_km']:g} km of sea around them, "
                 f"{100 * nest['share']:.0f} % of the grid) {refine} times finer, one-way nested")
     return f"a grid {refine} times finer than the run's" if refine > 1 else "the run's grid"
 
@@ -433,9 +439,10 @@ def compare_with_waves(
         it has fewer than :data:`MIN_CELLS_PER_WAVELENGTH` cells per wavelength at the stop isobath.
     nest : bool
         With ``refine`` above 1, refine only a box around the segments (:data:`NEST_MARGIN_KM`
-        of sea around them) and solve the rest of the ocean on the run's grid, one-way nested
-        (:func:`tsunamifocus.propagation.nest.simulate_nested`): the coast resolved as finely at a
-        fraction of the cost. The whole grid is refined when the box would hold more than
+        of sea around them) and solve the rest of the ocean on the run's grid - refined itself,
+        :func:`~tsunamifocus.propagation.nest.ocean_factor` times, for a box refined 4x or more -,
+        one-way nested (:func:`tsunamifocus.propagation.nest.simulate_nested`): the coast resolved
+        as finely at a fraction of the cost. The whole grid is refined when the box would hold more than
         :data:`~tsunamifocus.propagation.nest.NEST_MAX_SHARE` of its cells. What was done is in
         ``agreement["nest"]`` (None: the whole grid was refined).
 
@@ -468,7 +475,7 @@ def compare_with_waves(
         check_refine(refine)
     box = _nest_box(depth, segments, refine) if nest else None
     nest_info = None if box is None else {"box": [box.j0, box.j1, box.i0, box.i1], "margin_km": NEST_MARGIN_KM,
-                                          "share": box.share_of(depth.shape)}
+                                          "share": box.share_of(depth.shape), "ocean_refine": ocean_factor(refine)}
     if box is None:
         depth_w, eta_w = refine_grid(depth, refine), refine_grid(eta0, refine)
     else:
@@ -494,7 +501,7 @@ def compare_with_waves(
                 f"{MIN_CELLS_PER_WAVELENGTH:g}: the coastal wave maxima are not converged in grid spacing; {how}",
                 ResolutionWarning, stacklevel=2)
     if progress is True and (refine > 1 or choice is not None):
-        cost = refine ** 3 if nest_info is None else 1 + nest_info["share"] * refine ** 3
+        cost = refine ** 3 if nest_info is None else nest_info["ocean_refine"] ** 3 + nest_info["share"] * refine ** 3
         print(f"  wave solved on {_grid_words(refine, nest_info)}"
               + (f": {resolution['cells_per_wavelength']:.1f} cells per {period_s:.0f} s wavelength at the stop "
                  "isobath" if resolution is not None else "")
@@ -508,7 +515,8 @@ def compare_with_waves(
         prog = label if labelled else progress
         if box is None:
             return simulate_linear_long_wave(sea_w, eta_w, **{**opts, "progress": prog}), sea_w
-        nw = simulate_nested(sea, eta0, box, int(refine), **{**opts, "progress": prog})
+        nw = simulate_nested(sea, eta0, box, int(refine), ocean_refine=nest_info["ocean_refine"],
+                             **{**opts, "progress": prog})
         return nw.fine, nw.depth
 
     res, depth_w = _solve(depth, depth_w, "wave, real ocean")
