@@ -6,9 +6,10 @@ wave check (:func:`tsunamifocus.studies.check.compare_with_waves`, real and refe
 
 * on the run's own grid (``refine=1``);
 * refined ``N`` times everywhere (``nest=False``) and refined ``N`` times in a box around the coast
-  only (``nest=True``, :func:`tsunamifocus.propagation.nest.simulate_nested`), for each ``N`` of
-  ``--refine`` (default 2). ``--nest-only N`` adds factors run nested only (a whole-grid 4x check
-  takes about 20 minutes on 2 cores).
+  only (``nest=True``, :func:`tsunamifocus.propagation.nest.simulate_nested`; for ``N`` of 4 or
+  more the ocean around the box is refined too, :func:`tsunamifocus.propagation.nest.ocean_factor`),
+  for each ``N`` of ``--refine`` (default 2). ``--nest-only N`` adds factors run nested only (a
+  whole-grid 4x check takes 38-64 minutes on 2 cores).
 
 It prints each check's wall time and the agreement of the wave rankings between every pair of
 checks (amplitude at the stop isobath and lensing: Spearman and top-10 overlap), and of the rays

@@ -213,9 +213,11 @@ def test_real_grid_amplitude_ranking_against_the_wave(etopo_path):
         a = analyse_source(depth, sc, sc.sources[0], segments=seg, keep_paths=0)
     assert len(a.focusing.segments) > 150  # measured: 183 segments in the coast of interest
     # the check as it runs by default (refine "auto": 5.1 cells per dominant wavelength at the stop
-    # isobath at 0.1 degree, 8.2 on the sea floor refined 2x) and at the grid's own 0.1 degree
+    # isobath at 0.1 degree, 8.8 in the box around the coast refined 2x, one-way nested in the
+    # ocean at 0.1 degree) and at the grid's own 0.1 degree
     chk = compare_with_waves(depth, a.eta, a.focusing.segments, stop_depth_m=20.0, k=K, period_s=a.period_s)
     assert chk.agreement["refine"] == 2
+    assert chk.agreement["nest"] is not None and chk.agreement["nest"]["share"] < 0.1  # measured 0.061
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", ResolutionWarning)  # 5.1 cells per wavelength: the point of the pin
         chk1 = compare_with_waves(depth, a.eta, a.focusing.segments, stop_depth_m=20.0, k=K, refine=1,
@@ -225,14 +227,14 @@ def test_real_grid_amplitude_ranking_against_the_wave(etopo_path):
     # since footprints stop where the coast turns its back to the ray. Measured 2026-12-03: 117.
     assert chk.agreement["n"] >= 105
     # Project target: Spearman >= 0.8 against the wave. Measured 2026-12-03 (10000 rays, seed 0;
-    # seed 1 in benchmarks/bench_focusing.py): against the check as it runs by default (the sea
-    # floor refined 2x, 0.05 degree) 0.825, top-10 5/10 (seed 1: 0.813); refined 4x (0.025 degree)
-    # 0.831 / 0.819. Against the check at the grid's own 0.1 degree, which is not converged on this
+    # seed 1 in benchmarks/bench_focusing.py): against the check as it runs by default (the coast's
+    # box refined 2x, 0.05 degree, nested) 0.810, top-10 6/10 (seed 1: 0.801); against the whole
+    # grid refined 2x 0.825 / 0.813; refined 4x (0.025 degree) 0.831 / 0.819. Against the check at the grid's own 0.1 degree, which is not converged on this
     # coast (docs/wave_check.md), 0.678 / 0.683, top-10 3/10: below the target. Both figures are
     # pinned with a margin (0.05 and 0.08); a source given in the reverse point order (dipping
     # east, toward the ocean) gave 0.871 at 0.1 degree.
     print(chk.summary().splitlines()[1], f"n={chk.agreement['n']}", f"at 0.1 degree {chk1.agreement['spearman']:.3f}")
-    assert chk.agreement["spearman"] >= 0.825 - 0.05, chk.agreement
+    assert chk.agreement["spearman"] >= 0.810 - 0.05, chk.agreement
     assert chk1.agreement["spearman"] >= 0.678 - 0.08, chk1.agreement
     # The ray lensing map against the wave's over the ocean (sea deeper than 1000 m), both at 0.1 degree.
     # Measured 2026-12-03: Spearman 0.650 (regularised over a quarter of the local wavelength); the same

@@ -7,7 +7,7 @@ import argparse
 from ..constants import DEFAULTS, WORK_LIMITS
 from ..grid import MAX_REFINE_FACTOR
 from ..products.check import run_wave_check
-from ..studies.check import AUTO_REFINE, MIN_CELLS_PER_WAVELENGTH, NEST_MARGIN_KM
+from ..studies.check import AUTO_REFINE, MIN_CELLS_PER_WAVELENGTH, NEST_DEFAULT, NEST_MARGIN_KM
 
 NAME = "check"
 HELP = "check a run's ranking against a linear long-wave (shallow-water) simulation"
@@ -28,10 +28,12 @@ def configure(p: argparse.ArgumentParser) -> None:
                    f"1: the run's grid; default {AUTO_REFINE}: the coarsest grid with at least "
                    f"{MIN_CELLS_PER_WAVELENGTH:g} cells per dominant wavelength at the stop isobath, within the "
                    "memory and work limits)")
-    p.add_argument("--nest", action="store_true",
+    p.add_argument("--nest", action=argparse.BooleanOptionalAction, default=NEST_DEFAULT,
                    help="refine only a box around the segments (" + f"{NEST_MARGIN_KM:g}" + " km of sea around "
-                   "them), one-way nested in the wave solved on the run's grid: the coast as finely resolved at a "
-                   "fraction of the cost (default: refine the whole grid)")
+                   "them), one-way nested in the wave solved on the run's grid (itself refined for a box refined "
+                   "4x or more): the coast as finely resolved at a fraction of the cost; the whole grid is refined "
+                   "when the box would hold more than half of it (default: "
+                   + ("--nest" if NEST_DEFAULT else "--no-nest") + "; --no-nest refines the whole grid)")
     top_k = DEFAULTS["output"]["top_k"]
     p.add_argument("--top", type=int, default=top_k, help=f"k of the top-k overlap (default {top_k}, as [output] top_k)")
 
