@@ -37,6 +37,23 @@ def _shelf_basin():
     return depth, eta0
 
 
+def _coastal_departure(nw, full, depth, box, r):
+    """The box's maxima, and their relative departure from the whole grid refined ``r`` times on
+    every stop-isobath cell farther than 4 coarse cells from the ring (the box's sea floor is
+    first checked to be the whole refined grid's, cell for cell)."""
+    fm = full.max_amplitude.values[box.j0 * r:box.j1 * r, box.i0 * r:box.i1 * r]
+    nm = nw.fine.max_amplitude.values
+    assert nm.shape == fm.shape == nw.depth.shape
+    np.testing.assert_allclose(nw.depth.values, refine_grid(depth, r).values[box.j0 * r:box.j1 * r,
+                                                                             box.i0 * r:box.i1 * r])
+    band = _coastal_cells(nw.depth.values > 20.0, False)
+    inner = np.zeros_like(band)
+    inner[4 * r:-4 * r, 4 * r:] = True
+    b = band & inner
+    assert b.sum() > 150
+    return nm, np.abs(nm[b] - fm[b]) / fm[b]
+
+
 def test_nested_box_gives_the_whole_refined_grid_at_the_coast():
     # One-way nesting imposes the coarse solution on a ring around the box; where the coarse grid
     # resolves the incoming wave, the box's coastal maxima must be those of the whole grid refined
@@ -49,18 +66,7 @@ def test_nested_box_gives_the_whole_refined_grid_at_the_coast():
     box = NestBox(40, 120, 130, 200)  # the east side lies on the grid's edge: not forced
     nw = simulate_nested(depth, eta0, box, r, **kw)
     assert nw.fine.stats["nested"]["forced_sides"] == ["south", "north", "west"]
-    fm = full.max_amplitude.values[box.j0 * r:box.j1 * r, box.i0 * r:box.i1 * r]
-    nm = nw.fine.max_amplitude.values
-    assert nm.shape == fm.shape == nw.depth.shape
-    # the box's sea floor is the whole refined grid's, cell for cell
-    np.testing.assert_allclose(nw.depth.values, refine_grid(depth, r).values[box.j0 * r:box.j1 * r,
-                                                                             box.i0 * r:box.i1 * r])
-    band = _coastal_cells(nw.depth.values > 20.0, False)
-    inner = np.zeros_like(band)
-    inner[4 * r:-4 * r, 4 * r:] = True
-    b = band & inner
-    assert b.sum() > 150
-    rel = np.abs(nm[b] - fm[b]) / fm[b]
+    nm, rel = _coastal_departure(nw, full, depth, box, r)
     assert rel.max() < 0.02
     assert np.median(rel) < 0.01
     # the forced ring carries no maxima
@@ -189,16 +195,7 @@ def test_a_box_nested_in_a_refined_ocean_gives_the_whole_refined_grid():
     nw = simulate_nested(depth, eta0, box, r, ocean_refine=2, **kw)
     assert nw.fine.stats["nested"]["ocean_refine"] == 2
     assert nw.coarse.max_amplitude.shape == (2 * depth.shape[0], 2 * depth.shape[1])
-    np.testing.assert_allclose(nw.depth.values, refine_grid(depth, r).values[box.j0 * r:box.j1 * r,
-                                                                             box.i0 * r:box.i1 * r])
-    fm = full.max_amplitude.values[box.j0 * r:box.j1 * r, box.i0 * r:box.i1 * r]
-    nm = nw.fine.max_amplitude.values
-    band = _coastal_cells(nw.depth.values > 20.0, False)
-    inner = np.zeros_like(band)
-    inner[4 * r:-4 * r, 4 * r:] = True
-    b = band & inner
-    assert b.sum() > 150
-    rel = np.abs(nm[b] - fm[b]) / fm[b]
+    nm, rel = _coastal_departure(nw, full, depth, box, r)
     assert rel.max() < 0.02
     assert np.isnan(nm[:2]).all()  # the ring: one cell of the 2x ocean, two of the box
     with pytest.raises(InputError, match="ocean_refine"):
