@@ -55,7 +55,7 @@ NEST_MAX_SHARE: float = 0.5
 #: Trench interface to the North American coast, 0.1 degree) a 4x box in the ocean at the run's
 #: spacing departed from the whole grid refined 4x (amplitude ranking 0.942, lensing 0.760: the
 #: incoming wave crosses 8000 km at the coarse spacing and its numerical dispersion differs),
-#: a 4x box in the ocean refined 2x did not (0.984 / 0.893) - docs/wave_check.md.
+#: a 4x box in the ocean refined 2x did not (0.988 / 0.935) - docs/wave_check.md.
 NEST_MAX_STEP: int = 2
 
 # surface elevations below this [m] are set to 0 in the recorded ring values (see simulate_nested)
