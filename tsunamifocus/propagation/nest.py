@@ -16,8 +16,8 @@ around the coast of interest costs that factor on the box alone. The solve runs 
    and linear in time; box sides on the grid's own edges keep its boundary condition.
 
 A box refined 4 or more times is better nested in an ocean refined too (``ocean_refine``,
-:func:`ocean_factor`): across a whole ocean the incoming wave's numerical dispersion at the
-run's spacing is not negligible next to a 4x box's (docs/wave_check.md).
+:func:`ocean_factor`): across a whole ocean the incoming wave at the run's spacing is not the one
+a 4x grid computes, likely through its numerical dispersion (docs/wave_check.md).
 
 Information flows one way, from the coarse grid into the box (one-way nesting; for example
 Kowalik and Murty 1993, *Numerical Modeling of Ocean Dynamics*, on nested grids for long
@@ -53,8 +53,8 @@ NEST_MAX_SHARE: float = 0.5
 #: The box is at most this many times finer than the ocean it is nested in (:func:`ocean_factor`):
 #: a box refined 4x is nested in the whole ocean refined 2x. On a trans-Pacific case (Japan
 #: Trench interface to the North American coast, 0.1 degree) a 4x box in the ocean at the run's
-#: spacing departed from the whole grid refined 4x (amplitude ranking 0.942, lensing 0.760: the
-#: incoming wave crosses 8000 km at the coarse spacing and its numerical dispersion differs),
+#: spacing departed from the whole grid refined 4x (amplitude ranking 0.942, lensing 0.760; likely
+#: because the incoming wave crosses 8000 km at the coarse spacing, with its numerical dispersion),
 #: a 4x box in the ocean refined 2x did not (0.988 / 0.935) - docs/wave_check.md.
 NEST_MAX_STEP: int = 2
 
