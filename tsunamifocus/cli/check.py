@@ -29,7 +29,7 @@ def configure(p: argparse.ArgumentParser) -> None:
                    f"{MIN_CELLS_PER_WAVELENGTH:g} cells per dominant wavelength at the stop isobath, within the "
                    "memory and work limits)")
     p.add_argument("--nest", action=argparse.BooleanOptionalAction, default=NEST_DEFAULT,
-                   help="refine only a box around the segments (" + f"{NEST_MARGIN_KM:g}" + " km of sea around "
+                   help=f"refine only a box around the segments ({NEST_MARGIN_KM:g} km of sea around "
                    "them), one-way nested in the wave solved on the run's grid (itself refined for a box refined "
                    "4x or more): the coast as finely resolved at a fraction of the cost; the whole grid is refined "
                    "when the box would hold more than half of it (default: "

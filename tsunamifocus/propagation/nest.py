@@ -151,9 +151,8 @@ def ocean_factor(refine: int) -> int:
     2 -> 1, 3 -> 1, 4 -> 2, 6 -> 3, 8 -> 4.
     """
     refine = int(refine)
-    ok = [d for d in range(1, refine // 2 + 1) if refine % d == 0 and refine // d >= 2]
-    fit = [d for d in ok if refine // d <= NEST_MAX_STEP]
-    return max(fit) if fit else (max(ok) if ok else 1)
+    divisors = [d for d in range(1, refine // 2 + 1) if refine % d == 0]  # each leaves the box >= 2x finer
+    return max([d for d in divisors if refine // d <= NEST_MAX_STEP] or divisors or [1])
 
 
 def _fine_cut(da: xr.DataArray, box: NestBox, refine: int, ny: int, nx: int) -> xr.DataArray:
@@ -228,7 +227,7 @@ def simulate_nested(
     duration_s: float,
     stop_depth_m: float,
     progress: bool | str | Callable[[int, int], None] | None = None,
-    ocean_refine: int = 1,
+    ocean_refine: int | None = None,
     **simulate_kwargs: Any,
 ) -> NestedWave:
     """Solve the linear long-wave equations on ``depth``, and again ``refine`` times finer inside ``box``.
@@ -246,10 +245,11 @@ def simulate_nested(
     progress : bool, str or callable, optional
         As for :func:`simulate_linear_long_wave`; with a label, the passes are labelled
         "<label>, whole grid" and "<label>, coast box".
-    ocean_refine : int
+    ocean_refine : int, optional
         Solve the whole ocean on ``depth`` refined this many times (a divisor of ``refine``, at
-        most half of it; :func:`ocean_factor` chooses one) instead of on ``depth`` itself; the box
-        is still cut from ``depth`` refined ``refine`` times.
+        most half of it) instead of on ``depth`` itself; the box is still cut from ``depth``
+        refined ``refine`` times. Default :func:`ocean_factor` of ``refine`` (1 for factors 2
+        and 3).
     **simulate_kwargs
         Passed to both passes (``coast``, ``boundary``, ``cfl``, ``gravity``, ``threads``, limits);
         the box's sides inside the grid are closed and forced, whatever ``boundary`` says.
@@ -275,6 +275,8 @@ def simulate_nested(
         raise InputError(f"nested wave: box {box} reaches the seam of a longitude-periodic grid; "
                          "refine the whole grid instead")
     refine = int(refine)
+    if ocean_refine is None:
+        ocean_refine = ocean_factor(refine)
     m = int(ocean_refine)
     if isinstance(ocean_refine, bool) or m < 1 or refine % m or refine // m < 2:
         raise InputError(f"nested wave: ocean_refine {ocean_refine!r}: expected a divisor of refine {refine} "
