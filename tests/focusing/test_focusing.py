@@ -121,7 +121,12 @@ def test_flat_shelf_normal_incidence_uniform_and_lensing_one():
     seg = segment_coastline(coastline_from_grid(d, 20.0), 10e3, d)
     tab = segment_arrivals(seg, real, d, period_s=T, ref_result=ref)
     assert len(tab) == 10
-    np.testing.assert_allclose(tab["energy_per_m"], E_SRC / W, rtol=0.01)
+    # the default caustic regularisation (two coastal wavelengths, 2 x 8.4 km here) renormalises
+    # footprints cut by the ends of the 100 km line (docs/focusing.md, "Bookkeeping"): the two
+    # segments at each end are off by up to 5 %, the interior is exact
+    np.testing.assert_allclose(tab["energy_per_m"].iloc[2:-2], E_SRC / W, rtol=0.01)
+    exact = segment_arrivals(seg, real, d, period_s=T, ref_result=ref, min_width_factor=0.0)
+    np.testing.assert_allclose(exact["energy_per_m"], E_SRC / W, rtol=0.01)
     # lensing factor 1 (same straight rays over the y-invariant reference), inside its interval
     np.testing.assert_allclose(tab["lensing_factor"], 1.0, rtol=0.02)
     assert np.all(tab["lensing_lo"] < 1.0) and np.all(tab["lensing_hi"] > 1.0)
@@ -132,8 +137,9 @@ def test_flat_shelf_normal_incidence_uniform_and_lensing_one():
     # per unit crest width; Green's law (Green 1838) then predicts a = a0 (h0 / h)^(1/4).
     c0 = math.sqrt(GRAVITY * 1000.0)
     a0 = math.sqrt(2 * (E_SRC / W) / (RHO_SEAWATER * GRAVITY * c0 * T))
-    np.testing.assert_allclose(tab["amp_stop_m"], a0 * (1000.0 / 20.0) ** 0.25, rtol=0.01)
-    np.testing.assert_allclose(tab["amp_1m_m"], a0 * 1000.0**0.25, rtol=0.01)
+    np.testing.assert_allclose(exact["amp_stop_m"], a0 * (1000.0 / 20.0) ** 0.25, rtol=0.01)
+    np.testing.assert_allclose(exact["amp_1m_m"], a0 * 1000.0**0.25, rtol=0.01)
+    np.testing.assert_allclose(tab["amp_stop_m"].iloc[2:-2], a0 * (1000.0 / 20.0) ** 0.25, rtol=0.01)
     assert np.all(tab["amp_lo"] <= tab["amp_1m_m"]) and np.all(tab["amp_hi"] >= tab["amp_1m_m"])
     assert tab["reliable"].all()
     assert "SCREENING" in tab.attrs["cautions"].upper()
@@ -246,12 +252,19 @@ def shoal_runs():
 
 
 def test_shoal_focuses_on_the_coast_behind_it(shoal_runs):
-    _, _, _, tab = shoal_runs
+    d, real, ref, tab = shoal_runs
     top = tab.sort_values("energy_per_m", ascending=False).iloc[0]
     assert abs(top["y_mid"] - YC) <= 5e3  # the segment containing / touching the axis
     best = tab[tab["rank_lensing"] == 1].iloc[0]
     assert abs(best["y_mid"] - YC) <= 5e3
-    assert best["lensing_lo"] > 1.5  # significant focusing, not sampling noise
+    # significant focusing, not sampling noise: with exact tubes the bootstrap interval of the
+    # axis segments is 1.91-2.73; the default caustic footprint (two coastal wavelengths, 17 km,
+    # over 5 km segments) spreads the focus onto its neighbours and the interval is 1.47-1.79
+    assert best["lensing_lo"] > 1.3
+    seg = segment_coastline(coastline_from_grid(d, 20.0), 5e3, d)
+    exact = segment_arrivals(seg, real, d, period_s=T, ref_result=ref, min_width_factor=0.0)
+    best0 = exact.sort_values("lensing_factor", ascending=False).iloc[0]
+    assert abs(best0["y_mid"] - YC) <= 5e3 and best0["lensing_lo"] > 1.5
     assert best["caustics_mean"] > 0  # rays arrive after passing the cusp
     ranking = rank_segments(tab, top_k=3)
     assert abs(ranking["y_mid"].iloc[0] - YC) <= 5e3
@@ -415,11 +428,13 @@ def test_riccati_constants_against_simulation():
 # rankings and bad input
 # --------------------------------------------------------------------------------------
 def test_three_ray_hotspot_is_not_ranked_first():
-    # Dense fan on the southern half plus three heavy rays further north: the northern segment
+    # Dense fan on the southern 40 km plus three heavy rays further north: the northern segment
     # has the largest amplitude but only 3 rays, so it is flagged and listed after the ranked ones.
+    # (The fan stops 34 km short of the heavy rays: more than four of its caustic-regularised
+    # footprints' standard deviations, 2 x 8.4 km / sqrt(2 pi) at the 20 m coast.)
     d = shelf()
     n = 1000
-    y0 = np.concatenate([(np.arange(n) + 0.5) * 50e3 / n, [74e3, 75e3, 76e3]])
+    y0 = np.concatenate([(np.arange(n) + 0.5) * 40e3 / n, [74e3, 75e3, 76e3]])
     w = np.concatenate([np.full(n, E_SRC / n), np.full(3, 0.2 * E_SRC)])
     r = trace_rays(d, np.full(y0.size, 5000.0), y0, 90.0, weights=w, q0=1.0, p0=0.0)
     seg = segment_coastline(coastline_from_grid(d, 20.0), 10e3, d)

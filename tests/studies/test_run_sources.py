@@ -47,14 +47,16 @@ def test_raster_of_the_fault_uplift_gives_the_fault_energy_and_ranking(demo):
     assert raster.summary.energy_J == pytest.approx(fault.summary.energy_J, rel=0.01)
     # the same dominant period from the raster's spectrum as from the fault's geometry (rule of thumb)
     assert raster.period_s == pytest.approx(fault.period_s, rel=0.05)
-    # the same ranking: the same top 5, rank correlation over the coast (scipy). (The order inside
-    # the top 5 is not asserted: at this test's 3000 rays and one band two neighbouring segments,
-    # S0013 and S0014, lie within 10 % of each other and swap between the two surfaces.)
-    a = fault.focusing.ranking["segment_id"].head(5).tolist()
-    b = raster.focusing.ranking["segment_id"].head(5).tolist()
-    assert set(a) == set(b)
+    # the same ranking: the same top 5 up to near-ties, rank correlation over the coast (scipy).
+    # (At this test's 3000 rays and one band, segments within a few per cent of each other may
+    # swap between the two surfaces: here the fifth and sixth, S0060 and S0064, 1.4 % apart.)
     fa = fault.focusing.segments.set_index("segment_id")["lensing_factor"]
     ra = raster.focusing.segments.set_index("segment_id")["lensing_factor"].reindex(fa.index)
+    a = fault.focusing.ranking["segment_id"].head(5).tolist()
+    b = raster.focusing.ranking["segment_id"].head(5).tolist()
+    assert len(set(a) & set(b)) >= 4
+    for sid in set(a) ^ set(b):  # a swap at the edge of the top 5 is a near-tie in both runs
+        assert fa[sid] == pytest.approx(fa[a[-1]], rel=0.05) and ra[sid] == pytest.approx(ra[b[-1]], rel=0.05)
     ok = np.isfinite(fa) & np.isfinite(ra)
     assert ok.sum() > 30
     assert spearmanr(fa[ok], ra[ok])[0] > 0.98

@@ -49,6 +49,7 @@ from scipy.spatial import cKDTree
 from ..cautions import caution_summary
 from ..coast.coastline import coastline_from_grid
 from ..coast.segments import segment_coastline
+from ..coast.tubes import TUBE_MIN_WIDTH
 from ..constants import GRAVITY, STOP_DEPTH_M
 from ..errors import InputError
 from ..grid import GridInfo
@@ -239,6 +240,7 @@ def analyse_focusing(
     stop_depth_m: float = STOP_DEPTH_M,
     bands: Sequence[tuple[float, float]] | None = None,
     wavelength_fraction: float = WAVELENGTH_FRACTION,
+    min_width_factor: float = TUBE_MIN_WIDTH,
     segments: pd.DataFrame | None = None,
     segment_length_m: float | None = None,
     trace_kwargs: dict | None = None,
@@ -278,6 +280,9 @@ def analyse_focusing(
         ``(period_s, weight)`` of each band.
     wavelength_fraction : float
         Gaussian std of the wavelength smoothing in local wavelengths.
+    min_width_factor : float
+        Smallest tube footprint along the coast in local wavelengths (caustic regularisation;
+        :data:`tsunamifocus.coast.tubes.TUBE_MIN_WIDTH`).
     segments : pandas.DataFrame, optional
         Coastline segments; default: the ``stop_depth_m`` contour of the grid cut into
         ``segment_length_m`` pieces.
@@ -346,7 +351,7 @@ def analyse_focusing(
         later = pool.submit(grids)
         table = segment_arrivals(segments, None, depth, period_s=period_s, bands=runs,
                                  max_distance_m=max_distance_m, min_rays=min_rays, n_boot=n_boot, seed=seed,
-                                 coast_area=coast_area)
+                                 coast_area=coast_area, min_width_factor=min_width_factor)
         maps, dist, fluct = later.result()
     ranking = rank_segments(table, top_k=top_k, by="lensing_factor")
     d_coast = _segment_distance(table, info, x0, y0)

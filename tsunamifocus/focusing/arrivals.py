@@ -417,7 +417,8 @@ def segment_arrivals(
                 out[c] = out[c].to_numpy(bool) & reach
     out["reliable"] = rel
     out = _add_ranks(out, ref is not None)
-    _arrival_attrs(out, bl, real_d, ref_d, idx, end, max_distance_m, min_rays, n_boot, seed, period_s, coast_area)
+    _arrival_attrs(out, bl, real_d, ref_d, idx, end, max_distance_m, min_rays, n_boot, seed, period_s, coast_area,
+                   min_width_factor)
     _arrival_warnings(out, max_distance_m, min_rays, ref is not None, coast_area is not None)
     return out
 
@@ -497,7 +498,8 @@ def _bookkeeping(bands: list[BandTrace], deps: list[TubeDeposit], which: str,
 
 def _arrival_attrs(out: pd.DataFrame, bands: list[BandTrace], real_d: list[TubeDeposit],
                    ref_d: list[TubeDeposit] | None, idx: np.ndarray, end: xr.Dataset, max_distance_m: float,
-                   min_rays: int, n_boot: int, seed: int, period_s: float, coast_area: Any = None) -> None:
+                   min_rays: int, n_boot: int, seed: int, period_s: float, coast_area: Any = None,
+                   min_width_factor: float = TUBE_MIN_WIDTH) -> None:
     e_coast, e_unassigned = _bookkeeping(bands, real_d, "real")
     a_coast, a_unassigned = _bookkeeping(bands, real_d, "real", coast_area) if coast_area is not None \
         else (e_coast, e_unassigned)
@@ -519,7 +521,8 @@ def _arrival_attrs(out: pd.DataFrame, bands: list[BandTrace], real_d: list[TubeD
         "band_periods_s": [b.period_s for b in bands],
         "band_weights": [b.weight for b in bands],
         "energy_method": "ray tubes: each coast ray's weight spread over |q| dgamma / cos(incidence) of coast "
-                         "(Gaussian, at least one local wavelength wide); bands combined by their energy shares",
+                         f"(Gaussian, at least {min_width_factor:g} local wavelengths wide); bands combined by their "
+                         "energy shares",
         "amplitude_method": "a_b = sqrt(2 E_w / (rho g c_stop T_b)), E_w = energy_per_m / cos(incidence), "
                             "a = sqrt(sum_b w_b a_b^2); a_1m = a_stop (h_stop / 1 m)^(1/4) (Green's law) - "
                             "indicative",

@@ -39,6 +39,7 @@ from ..io.surface import read_sea_surface
 from ..ocean.perturb import draw_member_parameters, perturb_bathymetry
 from ..ocean.smooth import smooth_bathymetry
 from ..ocean.wavelength import WAVELENGTH_FRACTION
+from ..coast.tubes import TUBE_MIN_WIDTH
 from ..coast.waves import segment_first_arrivals
 from ..propagation.traveltime import TravelTimes, first_arrival_times, sample_at_sea
 from ..source.faults import FaultSegment, PointSource, Rupture
@@ -291,6 +292,7 @@ def analyse_source(
     all_bands: bool = True,
     reference: ReferenceOcean | None = None,
     wavelength_fraction: float = WAVELENGTH_FRACTION,
+    min_width_factor: float = TUBE_MIN_WIDTH,
 ) -> SourceAnalysis:
     """Build one source, its ray fan, and trace/analyse it on ``depth``.
 
@@ -321,6 +323,9 @@ def analyse_source(
     wavelength_fraction : float
         Gaussian std of the oceans' wavelength smoothing (and of the maps' regularisation) in
         local wavelengths, for sensitivity studies (:func:`tsunamifocus.focusing.analysis.analyse_focusing`).
+    min_width_factor : float
+        Smallest tube footprint along the coast in local wavelengths, for sensitivity studies
+        (:data:`tsunamifocus.coast.tubes.TUBE_MIN_WIDTH`).
 
     Returns
     -------
@@ -364,7 +369,7 @@ def analyse_source(
         min_rays=scenario.coast.min_rays, seed=scenario.rays.seed, top_k=scenario.output.top_k,
         max_distance_m=getattr(scenario.coast, "max_distance_m", None),
         coast_area=_area_mask(segments.attrs.get("coast_area"), depth), reference=reference,
-        wavelength_fraction=wavelength_fraction,
+        wavelength_fraction=wavelength_fraction, min_width_factor=min_width_factor,
     )
     use_travel_times(foc, tt, first_arrival_s=first)  # the segments' rows are still those of seg_in
     restrict_to_region(foc, scenario.output.top_k)
