@@ -111,16 +111,18 @@ def test_demo_ray_rankings_agree_with_the_wave_solver(demo_runs):
     assert chk.agreement["n"] >= 60  # measured: all 66 segments of the coast of interest ranked
     assert chk.agreement["refine"] == 2  # measured: 10.5 cells per dominant wavelength at the stop isobath
     # amplitude at the stop isobath. Measured on 2026-12-03 (10000 rays, the check refined 2x, the
-    # demo's sea floor with every feature at least half a wavelength across): Spearman 0.909,
-    # top-10 common 6/10 (the project targets: 0.9, 8/10; the top-10 target is not met; the
-    # previous design gave 0.915 and 9/10; docs/focusing.md, "The demo's sea floor").
-    assert chk.agreement["spearman"] >= 0.909 - 0.05
-    assert chk.agreement["topk_common"] >= 6 - 2
+    # demo's sea floor with every feature at least half a wavelength across, caustic footprints at
+    # least two wavelengths wide): Spearman 0.926, top-10 common 7/10 (the project targets: 0.9,
+    # 8/10; the top-10 target is not met against this check, and is against the converged check
+    # refined 4x, 0.927 and 8/10; with footprints one wavelength wide 0.909 and 6/10 against both;
+    # docs/focusing.md, "The caustic footprint's width").
+    assert chk.agreement["spearman"] >= 0.926 - 0.05
+    assert chk.agreement["topk_common"] >= 7 - 2
     # lensing factor (wave: (A_real / A_reference)^2). Measured on 2026-12-03 (10000 rays, both
-    # oceans averaged over the reference's wavelength, the check refined 2x): Spearman 0.815,
-    # top-10 common 7/10 (the project targets 0.8 and 7/10; the previous design gave 0.672 and
-    # 6/10).
-    assert chk.agreement["lensing"]["spearman"] >= 0.815 - 0.1
+    # oceans averaged over the reference's wavelength, the check refined 2x): Spearman 0.803,
+    # top-10 common 7/10 (seed 8: 0.797; the project targets 0.8 and 7/10; footprints one
+    # wavelength wide gave 0.815, the previous design 0.672 and 6/10).
+    assert chk.agreement["lensing"]["spearman"] >= 0.803 - 0.1
     assert chk.agreement["lensing"]["topk_common"] >= 7 - 2
     # the check's figures are those of the ranked ray column against the wave column
     wave = chk.table.set_index("segment_id")["wave_amp_stop_m"]
@@ -137,9 +139,9 @@ def test_demo_top_hotspots_are_the_waves(demo_runs):
     for ray_rank, wave_rank in (("rank_ray_lensing", "rank_wave_lensing"), ("rank_ray", "rank_wave")):
         top = t.loc[t[ray_rank] <= 3, wave_rank].to_numpy()
         print(ray_rank, "-> the wave's ranks of the rays' top three:", sorted(top.tolist()))
-        # Measured 2026-12-03 (the redesigned demo, 10000 rays, the default check): the rays' top
-        # three by lensing (S0013, S0014, S0061) are the wave's 3, 1, 2; by amplitude (S0059,
-        # S0060, S0014) the wave's 2, 1, 3.
+        # Measured 2026-12-03 (the redesigned demo, 10000 rays, the default check, footprints two
+        # wavelengths wide): the rays' top three by lensing are the wave's 1, 2, 3; by amplitude
+        # the wave's 1, 2, 5.
         assert len(top) == 3 and top.max() <= 5
 
 
@@ -177,8 +179,8 @@ def test_demo_rankings_are_stable_between_ray_seeds(demo_runs):
     assert lens["spearman"] >= 0.998 - 0.05
     assert lens["topk_common"] >= 10 - 2
     # the second seed is judged by the same wave run as well as the first.
-    # Measured on 2026-12-03 (10000 rays, the check refined 2x): seed 8 amplitude Spearman 0.909.
-    assert b_wave["spearman"] >= 0.909 - 0.05
+    # Measured on 2026-12-03 (10000 rays, the check refined 2x): seed 8 amplitude Spearman 0.927.
+    assert b_wave["spearman"] >= 0.927 - 0.05
 
 
 # ------------------------------------------------------------------------------------------------
@@ -224,18 +226,20 @@ def test_real_grid_amplitude_ranking_against_the_wave(etopo_path):
                                   period_s=a.period_s, reference_depth=a.focusing.reference_depth)
     # The 30 segments of water the eikonal front cannot reach (inland seas and basins below sea
     # level behind the coast) are not ranked, nor are the strait segments no tube footprint reaches
-    # since footprints stop where the coast turns its back to the ray. Measured 2026-12-03: 117.
+    # since footprints stop where the coast turns its back to the ray. Measured 2026-12-03: 117 (118 with footprints two wavelengths wide).
     assert chk.agreement["n"] >= 105
     # Project target: Spearman >= 0.8 against the wave. Measured 2026-12-03 (10000 rays, seed 0;
-    # seed 1 in benchmarks/bench_focusing.py): against the check as it runs by default (the coast's
-    # box refined 2x, 0.05 degree, nested) 0.810, top-10 6/10 (seed 1: 0.801); against the whole
-    # grid refined 2x 0.825 / 0.813; refined 4x (0.025 degree) 0.831 / 0.819. Against the check at the grid's own 0.1 degree, which is not converged on this
-    # coast (docs/wave_check.md), 0.678 / 0.683, top-10 3/10: below the target. Both figures are
-    # pinned with a margin (0.05 and 0.08); a source given in the reverse point order (dipping
-    # east, toward the ocean) gave 0.871 at 0.1 degree.
+    # seed 1 in benchmarks/bench_focusing.py; caustic footprints two wavelengths wide): against the
+    # check as it runs by default (the coast's box refined 2x, 0.05 degree, nested) 0.804, top-10
+    # 6/10 (seed 1: 0.804). Against the check at the grid's own 0.1 degree, which is not converged
+    # on this coast (docs/wave_check.md), 0.673 / 0.688, top-10 3/10: below the target. With
+    # footprints one wavelength wide: 0.810 / 0.801 and 0.678 / 0.683; against the whole grid
+    # refined 2x 0.825 / 0.813, refined 4x (0.025 degree) 0.831 / 0.819. Both figures are pinned
+    # with a margin (0.05 and 0.08); a source given in the reverse point order (dipping east,
+    # toward the ocean) gave 0.871 at 0.1 degree.
     print(chk.summary().splitlines()[1], f"n={chk.agreement['n']}", f"at 0.1 degree {chk1.agreement['spearman']:.3f}")
-    assert chk.agreement["spearman"] >= 0.810 - 0.05, chk.agreement
-    assert chk1.agreement["spearman"] >= 0.678 - 0.08, chk1.agreement
+    assert chk.agreement["spearman"] >= 0.804 - 0.05, chk.agreement
+    assert chk1.agreement["spearman"] >= 0.673 - 0.08, chk1.agreement
     # The ray lensing map against the wave's over the ocean (sea deeper than 1000 m), both at 0.1 degree.
     # Measured 2026-12-03: Spearman 0.650 (regularised over a quarter of the local wavelength); the same
     # rays regularised over the first Fresnel zone (hundreds of km here, blurring the wave's beams away):
