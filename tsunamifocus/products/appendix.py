@@ -33,6 +33,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from ..coast.tubes import TUBE_MIN_WIDTH
 from ..cautions import CAUTION_SHORT, caution_text
 from ..constants import __version__
 from ..errors import DataFileError, InputError, TsunamiFocusWarning
@@ -157,7 +158,9 @@ DEFAULT_METHOD: list[dict[str, Any]] = [
             "area A. For the maps it is regularised by smoothing over a quarter of the local wavelength, "
             "σ = λ / 4 with λ = c T the long-wave wavelength at the dominant period, since ray-density "
             "detail finer than a wavelength is not physical; the coastline segments' energies come "
-            "from ray tubes instead, with footprints capped at the first Fresnel zone, √(λ L) / 2.",
+            "from ray tubes instead, with footprints capped at the first Fresnel zone, √(λ L) / 2, and "
+            f"at caustics no narrower than {TUBE_MIN_WIDTH:g} local wavelengths (a focus is no narrower "
+            "than the diffraction limit of waves converging at the modest angles of sea-floor lenses).",
             "The lensing factor compares the energy that reaches a cell or a coastline segment with the "
             "energy of the same ray fan traced over a reference bathymetry: the offshore sea depths "
             "(deeper than 1000 m) low-passed, the shelf (shallower than 200 m) kept, blended in between, "
