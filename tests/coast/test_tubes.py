@@ -10,6 +10,7 @@ import pytest
 from tsunamifocus.coast.coastline import coastline_from_grid
 from tsunamifocus.coast.segments import segment_coastline
 from tsunamifocus.coast.tubes import tube_deposit, tube_steps
+from tsunamifocus.errors import InputError
 from tsunamifocus.grid import GridInfo, make_grid
 from tsunamifocus.propagation.rays import trace_rays
 
@@ -209,3 +210,11 @@ def test_a_footprint_stops_where_the_coast_turns_its_back_to_the_ray():
                        max_distance_m=3000.0)
     assert dep.energy_J[front].sum() > 0 and not dep.energy_J[back].any()
     np.testing.assert_allclose(dep.energy_J.sum(), E / n * dep.assigned.sum(), rtol=1e-12)
+
+
+@pytest.mark.parametrize("bad", [-1.0, float("nan"), float("inf")])
+def test_a_negative_or_non_finite_caustic_width_is_refused(bad):
+    # bad input gets a clear error naming the parameter (common practice, no source)
+    r, seg, steps, _ = point_source_on_basin(36)
+    with pytest.raises(InputError, match="min_width_factor"):
+        tube_deposit(seg, r.end, basin(), steps=steps, period_s=300.0, max_distance_m=3000.0, min_width_factor=bad)

@@ -449,6 +449,8 @@ def tube_deposit(
     -------
     TubeDeposit
     """
+    if not (math.isfinite(min_width_factor) and min_width_factor >= 0.0):
+        raise InputError(f"min_width_factor must be a finite number of wavelengths >= 0, got {min_width_factor!r}")
     geo = coast if coast is not None else CoastGeometry.build(segments, depth)
     if geo.reach.size != len(segments):
         raise InputError(f"coast geometry prepared for {geo.reach.size} segments, the table has {len(segments)}: "
