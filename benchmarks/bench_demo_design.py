@@ -28,7 +28,8 @@ that a setting can be judged on every realization against a converged wave.
 
 ``--min-widths`` spreads each caustic's energy over at least the given numbers of local
 wavelengths along the coast (``coast.tubes.TUBE_MIN_WIDTH``; the shipped default 2 was chosen
-with ``--min-widths 0.5 1 1.5 2 2.5 3 --judge-refine 2 4``).
+among 0.5-3, docs/focusing.md, "The caustic footprint's width"; ``--designs current --min-widths
+1 2 --judge-refine 2 4`` reproduces the old and the new default on every realization).
 
 Run:  python benchmarks/bench_demo_design.py [--all | --designs current ...] [--realizations 20261202 1 2 3]
           [--fractions 0.25 0.06] [--min-widths 1 2] [--judge-refine 2 4]

@@ -17,9 +17,10 @@ counting hits: the result changes smoothly with the fan and needs far fewer rays
 
 Caustics (``q -> 0``) are regularised by a footprint no narrower than ``min_width_factor`` local
 wavelengths ``c_end T`` (default ``TUBE_MIN_WIDTH`` = 2: a wave converging at the modest angles
-of sea-floor lenses cannot concentrate its energy on a strip narrower than a wavelength or two). A segment that no tube footprint covers is a ray shadow: it gets the estimate the
-same rays give with footprints of the first-Fresnel-zone width ``sqrt(lambda L) / 2`` (the scale
-over which diffraction fills a shadow) and is flagged ``shadow``. No footprint is wider than that
+of sea-floor lenses cannot concentrate its energy on a strip narrower than a wavelength or two).
+A segment that no tube footprint covers is a ray shadow: it gets the estimate the same rays give
+with footprints of the first-Fresnel-zone width ``sqrt(lambda L) / 2`` (the scale over which
+diffraction fills a shadow) and is flagged ``shadow``. No footprint is wider than that
 Fresnel width either (as a Gaussian of std ``sqrt(lambda L) / 2``): on trans-ocean paths across
 many lenses the linearised spreading ``|q|`` of some rays grows exponentially, to tubes wider
 than the ocean, which would otherwise spread their energy evenly over a whole coastline line,
