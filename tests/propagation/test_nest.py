@@ -180,6 +180,19 @@ def test_check_nests_around_the_segments_and_falls_back_when_the_box_is_large(mo
     assert compare_with_waves(depth, eta0, seg, nest=True, **kw).agreement["nest"] is None
 
 
+def test_a_factor_no_ocean_can_take_within_the_step_refines_the_whole_grid(monkeypatch):
+    # 3 has no divisor that leaves a box at most NEST_MAX_STEP = 2 times finer than its ocean: a
+    # 3x box would sit in the run's own ocean, a step of 3 (measured less accurate than the whole
+    # grid refined 3x; docs/wave_check.md), so the check refines the whole grid; 2 and 4 nest.
+    monkeypatch.setattr(check_module, "NEST_MARGIN_KM", 100.0)
+    depth, _ = _shelf_basin()
+    seg = _coast_segments(depth, np.arange(200e3, 440e3 + 1, 40e3))
+    assert check_module._nest_box(depth, seg, 2) is not None
+    assert check_module._nest_box(depth, seg, 4) is not None
+    assert check_module._nest_box(depth, seg, 3) is None
+    assert check_module._nest_box(depth, seg, 5) is None
+
+
 def test_a_box_nested_in_a_refined_ocean_gives_the_whole_refined_grid():
     # The same comparison with the ocean itself solved 2x finer around a 4x box (ocean_refine):
     # the ring is then one cell of the 2x grid, and the box's sea floor is still the whole 4x
