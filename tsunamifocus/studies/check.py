@@ -23,7 +23,8 @@ from ..errors import CoastError, InputError, ResolutionWarning
 from ..focusing.agreement import compare_rankings
 from ..focusing.ranking import ranked_mask
 from ..grid import MAX_REFINE_FACTOR, GridInfo, refine_grid
-from ..propagation.nest import NEST_MAX_SHARE, NEST_MAX_STEP, NestBox, _fine_cut, nest_box, ocean_factor, simulate_nested
+from ..propagation.nest import (NEST_MAX_SHARE, NestBox, _fine_cut, nest_box, nests_within_step, ocean_factor,
+                                simulate_nested)
 from ..propagation.wave import (WAVE_CAUTION, WaveResult, _check_depth, _dt_from, _memory_needed, _metric, _polar_dry,
                                 _wet_mask, simulate_linear_long_wave)
 
@@ -576,10 +577,7 @@ def _nest_box(depth: xr.DataArray, segments: Any, refine: int) -> NestBox | None
     """The coast box to refine (:data:`NEST_MARGIN_KM` around the segments), or None: refine it all."""
     if refine <= 1 or len(segments) == 0:
         return None
-    if refine // ocean_factor(refine) > NEST_MAX_STEP:
-        # no ocean grid the box can nest in within the step (3, 5, 7): on the trans-Pacific
-        # interface case a 3x box in the run's ocean agreed with the whole grid refined 4x at
-        # 0.952 / 0.737 (amplitude / lensing), the whole grid refined 3x at 0.984 / 0.899
+    if not nests_within_step(refine):
         return None
     b = shapely.bounds(np.asarray(list(segments["geometry"]), dtype=object))
     x = np.concatenate([b[:, 0], b[:, 2]])
