@@ -120,6 +120,32 @@ def test_greens_law_on_plane_slope():
     assert amp[int(300e3 / dx) - 200] == pytest.approx(0.5, rel=0.01)
 
 
+def test_eta_sq_integral_is_the_energy_of_dalembert_halves_and_follows_greens_law():
+    # The time integral of eta^2 at a point is the energy that passed it, over rho g c (the energy
+    # flux of a progressive long wave is rho g c eta^2; Lamb 1932, Hydrodynamics, the article on the
+    # energy of long waves; article from memory). A hump at rest splits into two halves (d'Alembert),
+    # so in deep water the integral is (1 / c) * integral (eta0 / 2)^2 dx = sqrt(pi) sigma / (4 c);
+    # up a gentle slope the energy flux c * integral is conserved: the integral grows as
+    # c1 / c2 = (h1 / h2)^(1/2) (Green's law for the energy, Green 1838).
+    dx, sig = 500.0, 15e3
+    x = np.arange(0.0, 900e3, dx)
+    h = np.interp(x, [0, 200e3, 800e3, 900e3], [4000, 4000, 40, 40])
+    depth = make_grid(np.tile(h, (3, 1)), x, np.arange(3) * dx, "EPSG:3857")
+    eta0 = depth.copy(data=np.tile(np.exp(-((x - 100e3) ** 2) / (2 * sig**2)), (3, 1)))
+    res = simulate_linear_long_wave(
+        depth, eta0, duration_s=9000.0, stop_depth_m=30.0, coast="absorb",
+        boundary={"west": "absorb", "east": "absorb", "south": "reflect", "north": "reflect"}, threads=1,
+    )
+    sq = res.eta_sq_integral.values[1]
+    assert res.eta_sq_integral.attrs["units"] == "m2 s"
+    i0 = int(170e3 / dx)  # deep water between the hump and the foot of the slope
+    assert sq[i0] == pytest.approx(math.sqrt(math.pi) * sig / (4.0 * math.sqrt(GRAVITY * 4000.0)), rel=0.02)
+    i1 = int(np.argmin(np.abs(h - 2000.0) + (x < 200e3) * 1e9))
+    i2 = int(np.argmin(np.abs(h - 250.0)))
+    assert sq[i2] / sq[i1] == pytest.approx(math.sqrt(h[i1] / h[i2]), rel=0.03)
+    assert np.isnan(res.eta_sq_integral.values[1][h <= 30.0]).all()
+
+
 def test_radiating_edge_lets_a_normal_pulse_out():
     # First-order radiation (Sommerfeld) condition q = sqrt(g h) eta: exact for a long wave leaving at
     # normal incidence (d'Alembert: a right-going wave satisfies eta_t + c eta_x = 0). The discrete

@@ -56,12 +56,16 @@ def test_topk_mask_ties_and_nan():
 
 
 def test_lensing_check_compares_energy_ratios_of_the_two_wave_runs():
-    """The wave lensing factor is (A_real / A_reference)^2: identical oceans give exactly 1 (identity), and
-    a shoal in front of part of a straight coast raises it there and only there (a long-wave lens focuses
-    behind it; Lamb 1932, section 170: c = sqrt(g h) is slower over the shoal)."""
+    """The wave lensing factor is the ratio of the wave energies (sum eta^2 dt) over the two oceans:
+    identical oceans give exactly 1 (identity), a shoal in front of part of a straight coast raises it
+    there and only there (a long-wave lens focuses behind it; Lamb 1932, section 170: c = sqrt(g h) is
+    slower over the shoal), and the lens moves energy along the coast without making any (energy
+    conservation of the linear long-wave equations, Lamb 1932, the article on the energy of long
+    waves; article from memory): the coast's total stays that of the flat ocean."""
     from shapely.geometry import LineString
 
     from tsunamifocus.coast.segments import segment_coastline
+    from tsunamifocus.coast.waves import segment_max_amplitude
     from tsunamifocus.studies.check import compare_with_waves
 
     dx = 2000.0
@@ -84,6 +88,17 @@ def test_lensing_check_compares_energy_ratios_of_the_two_wave_runs():
     middle = np.abs(seg["y_mid"].to_numpy() - 200e3) < 30e3
     far = np.abs(seg["y_mid"].to_numpy() - 200e3) > 120e3
     assert wl[middle].min() > 1.3 and np.all(np.abs(wl[far] - 1.0) < 0.15)
+    # the energy ratio of the two runs' time integrals of eta^2, the squared ratio of the maxima beside it
+    sq = segment_max_amplitude(chk.wave, seg, real, field="eta_sq_integral")
+    sq_ref = segment_max_amplitude(chk.wave_reference, seg, ref, field="eta_sq_integral")
+    np.testing.assert_allclose(wl, sq.to_numpy() / sq_ref.to_numpy(), rtol=1e-12)
+    np.testing.assert_allclose(chk.table["wave_peak_lensing"],
+                               (chk.table["wave_amp_stop_m"] / chk.table["wave_amp_reference_m"]) ** 2, rtol=1e-12)
+    assert chk.agreement["lensing"]["wave_measure"] == "energy"
+    assert chk.agreement["lensing_peak"]["wave_measure"] == "peak"
+    # energy conservation: summed along the coast (equal segments), the lens's gain and loss cancel to
+    # within what the shoal reflects back to sea
+    assert float(np.sum(sq)) / float(np.sum(sq_ref)) == pytest.approx(1.0, abs=0.05)
     assert set(chk.agreement["lensing"]) >= {"spearman", "kendall", "topk_common", "k", "n"}
     assert chk.agreement["lensing"]["n"] == len(seg)
     # an open coast under a plane wave: no segment the wave barely reaches
@@ -215,9 +230,13 @@ def test_check_progress_names_each_ocean_and_the_grid(capsys):
 
     depth, eta0, seg, walls = _plane_slope()
     seg["lensing_factor"] = [1.0, 2.0, 3.0]
-    compare_with_waves(depth, eta0, seg, reference_depth=depth, duration_s=600.0, period_s=1000.0, k=1,
-                       boundary=walls, threads=1, progress=True)
+    chk = compare_with_waves(depth, eta0, seg, reference_depth=depth, duration_s=600.0, period_s=1000.0, k=1,
+                             boundary=walls, threads=1, progress=True)
     err = capsys.readouterr().err
+    # in 600 s the wave has not reached the coast (the slope's 20 m isobath lies hundreds of km from
+    # the source): no energy there in either ocean, so no ratio - said, not an error
+    assert chk.agreement["lensing"]["n"] == 0 and np.isnan(chk.agreement["lensing"]["spearman"])
+    assert "lensing ranking: not measurable (the wave reached 0 ranked segments" in chk.summary()
     assert "wave solved on a grid 2 times finer than the run's: " in err and "about 8 times the cost" in err
     assert "wave, real ocean: done" in err and "wave, reference ocean: done" in err
     assert err.index("wave solved on") < err.index("wave, real ocean") < err.index("wave, reference ocean")

@@ -118,12 +118,15 @@ def test_demo_ray_rankings_agree_with_the_wave_solver(demo_runs):
     # docs/focusing.md, "The caustic footprint's width").
     assert chk.agreement["spearman"] >= 0.926 - 0.05
     assert chk.agreement["topk_common"] >= 7 - 2
-    # lensing factor (wave: (A_real / A_reference)^2). Measured on 2026-12-03 (10000 rays, both
-    # oceans averaged over the reference's wavelength, the check refined 2x): Spearman 0.803,
-    # top-10 common 7/10 (seed 8: 0.797; the project targets 0.8 and 7/10; footprints one
-    # wavelength wide gave 0.815, the previous design 0.672 and 6/10).
-    assert chk.agreement["lensing"]["spearman"] >= 0.803 - 0.1
+    # lensing factor (wave: the ratio of its energies, sum eta^2 dt, over the two oceans, like the
+    # rays' energy ratio). Measured on 2026-12-04 (10000 rays, both oceans averaged over the
+    # reference's wavelength, the check refined 2x): Spearman 0.900, top-10 common 7/10 (seed 8:
+    # 0.896; the project targets 0.8 and 7/10; against the converged check refined 4x 0.915 and
+    # 8/10). Against the squared ratio of the wave maxima, the check's lensing until 2026-12-03:
+    # 0.803 (seed 8: 0.797), against the 4x check 0.724.
+    assert chk.agreement["lensing"]["spearman"] >= 0.900 - 0.05
     assert chk.agreement["lensing"]["topk_common"] >= 7 - 2
+    assert chk.agreement["lensing_peak"]["spearman"] >= 0.803 - 0.1
     # the check's figures are those of the ranked ray column against the wave column
     wave = chk.table.set_index("segment_id")["wave_amp_stop_m"]
     again = compare_rankings(_ranked(seg, "amp_stop_m"), wave, k=K)
@@ -139,9 +142,10 @@ def test_demo_top_hotspots_are_the_waves(demo_runs):
     for ray_rank, wave_rank in (("rank_ray_lensing", "rank_wave_lensing"), ("rank_ray", "rank_wave")):
         top = t.loc[t[ray_rank] <= 3, wave_rank].to_numpy()
         print(ray_rank, "-> the wave's ranks of the rays' top three:", sorted(top.tolist()))
-        # Measured 2026-12-03 (the redesigned demo, 10000 rays, the default check, footprints two
-        # wavelengths wide): the rays' top three by lensing are the wave's 1, 2, 3; by amplitude
-        # the wave's 1, 2, 5.
+        # Measured 2026-12-04 (the redesigned demo, 10000 rays, the default check, footprints two
+        # wavelengths wide): the rays' top three by lensing are the wave's 1, 3, 4 (the wave's
+        # lensing as its energy ratio; 1, 2, 3 against the squared ratio of its maxima, 2026-12-03);
+        # by amplitude the wave's 1, 2, 5.
         assert len(top) == 3 and top.max() <= 5
 
 
@@ -154,10 +158,11 @@ def test_demo_lensing_map_against_the_wave_lensing_map(demo_runs):
                              refine=1)
     ours, fresnel = _map_agreement(a, chk)
     print(f"demo lensing map vs wave map: Spearman {ours:.3f} (Fresnel-regularised: {fresnel:.3f})")
-    # Measured 2026-12-03 (10000 rays, regularised over a quarter of the local wavelength, the
-    # demo's sea floor of that day): Spearman 0.744 against the wave's map; the same rays
-    # regularised over the first Fresnel zone: 0.516 (the previous sea floor: 0.619 and 0.513).
-    assert ours >= 0.744 - 0.05
+    # Measured 2026-12-04 (10000 rays, regularised over a quarter of the local wavelength) against
+    # the wave's map of energy ratios: Spearman 0.884; the same rays regularised over the first
+    # Fresnel zone: 0.643. Against the map of squared ratios of the maxima (2026-12-03): 0.744 and
+    # 0.516 (the previous sea floor: 0.619 and 0.513).
+    assert ours >= 0.884 - 0.05
     assert ours > fresnel + 0.05
 
 
@@ -240,11 +245,19 @@ def test_real_grid_amplitude_ranking_against_the_wave(etopo_path):
     print(chk.summary().splitlines()[1], f"n={chk.agreement['n']}", f"at 0.1 degree {chk1.agreement['spearman']:.3f}")
     assert chk.agreement["spearman"] >= 0.804 - 0.05, chk.agreement
     assert chk1.agreement["spearman"] >= 0.673 - 0.08, chk1.agreement
+    # The lensing ranking against the wave's at 0.1 degree (the wave's lensing: the ratio of its
+    # energies, sum eta^2 dt, over the two oceans). No project target; measured 2026-12-04: Spearman
+    # 0.460 (seed 1: 0.437), top-10 4/10; against the squared ratio of the wave maxima, the wave
+    # lensing until 2026-12-03, 0.058 (0.053). Pinned with a margin so that it does not fall back.
+    print(f"real lensing ranking at 0.1 degree: Spearman {chk1.agreement['lensing']['spearman']:.3f}")
+    assert chk1.agreement["lensing"]["spearman"] >= 0.460 - 0.1
     # The ray lensing map against the wave's over the ocean (sea deeper than 1000 m), both at 0.1 degree.
-    # Measured 2026-12-03: Spearman 0.650 (regularised over a quarter of the local wavelength); the same
-    # rays regularised over the first Fresnel zone (hundreds of km here, blurring the wave's beams away):
-    # 0.496.
+    # Measured 2026-12-04 against the wave's energy ratio: Spearman 0.615 (regularised over a quarter
+    # of the local wavelength); the same rays regularised over the first Fresnel zone (hundreds of
+    # km here, blurring the wave's beams away): 0.570. Against the squared ratio of the wave maxima
+    # (2026-12-03): 0.650 and 0.496 - the energy map is smoother than the map of maxima, and the
+    # quarter-wavelength regularisation's lead over the Fresnel one narrower.
     ours, fresnel = _map_agreement(a, chk1)
     print(f"real lensing map vs wave map: Spearman {ours:.3f} (Fresnel-regularised: {fresnel:.3f})")
-    assert ours >= 0.650 - 0.05
-    assert ours > fresnel + 0.05
+    assert ours >= 0.615 - 0.05
+    assert ours > fresnel + 0.02

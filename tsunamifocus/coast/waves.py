@@ -36,6 +36,10 @@ def _coastal_cells(wet: np.ndarray, periodic: bool) -> np.ndarray:
     return wet & nb
 
 
+#: Maps of a wave result :func:`segment_max_amplitude` can sample, with their units.
+_FIELD_UNITS = {"max_amplitude": "m", "arrival_time_s": "s", "max_time_s": "s", "eta_sq_integral": "m2 s"}
+
+
 def segment_max_amplitude(
     wave_result: WaveResult,
     segments: Any,
@@ -69,7 +73,7 @@ def segment_max_amplitude(
         grids).
     statistic : {"max", "mean", "p90", "min"}
         Reduction over the gathered cells (NaN cells ignored).
-    field : {"max_amplitude", "arrival_time_s", "max_time_s"}
+    field : {"max_amplitude", "arrival_time_s", "max_time_s", "eta_sq_integral"}
         Which map of the result to sample (e.g. ``"arrival_time_s"`` with ``statistic="min"`` gives the
         wave's first arrival per segment [s]).
 
@@ -93,8 +97,9 @@ def segment_max_amplitude(
         raise CoastError("segments table must be a DataFrame with columns 'segment_id' and 'geometry'")
     if statistic not in ("max", "mean", "p90", "min"):
         raise InputError(f"statistic={statistic!r}: expected 'max', 'mean', 'p90' or 'min'")
-    if field not in ("max_amplitude", "arrival_time_s", "max_time_s"):
-        raise InputError(f"field={field!r}: expected 'max_amplitude', 'arrival_time_s' or 'max_time_s'")
+    if field not in _FIELD_UNITS:
+        raise InputError(f"field={field!r}: expected 'max_amplitude', 'arrival_time_s', 'max_time_s' or "
+                         "'eta_sq_integral'")
     if not (math.isfinite(search_radius_cells) and search_radius_cells > 0):
         raise InputError(f"search_radius_cells={search_radius_cells!r}: expected a positive number of cells")
     info = _check_depth(depth)
@@ -103,11 +108,14 @@ def segment_max_amplitude(
         raise InputError(f"wave result grid {amp.shape} does not match depth grid {depth.shape}")
     wet = _wet_mask(np.asarray(depth.values, float), stop_depth_m) & np.isfinite(amp.values)
     ids = segments["segment_id"].astype(str).values
-    out = _reduce_per_segment(np.asarray(getattr(wave_result, field).values, float), wet, segments, info,
+    values = getattr(wave_result, field)
+    if values is None:
+        raise InputError(f"field={field!r}: the wave result has no such map (a result made without it)")
+    out = _reduce_per_segment(np.asarray(values.values, float), wet, segments, info,
                               search_radius_cells, statistic)
     name = "wave_amp_stop_m" if field == "max_amplitude" else f"wave_{field}"
     ser = pd.Series(out, index=pd.Index(ids, name="segment_id"), name=name)
-    ser.attrs.update(units="m" if field == "max_amplitude" else "s", statistic=statistic, field=field,
+    ser.attrs.update(units=_FIELD_UNITS[field], statistic=statistic, field=field,
                      search_radius_cells=search_radius_cells, cautions=caution_text())
     return ser
 

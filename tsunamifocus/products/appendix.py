@@ -259,12 +259,13 @@ FIGURE_CAPTIONS: dict[str, str] = {
     "ray_vs_wave": "Amplitude at the stop isobath per ranked segment: ray screening against the linear "
     "long-wave check (log-log, 1:1 line); the top segments of each ranking are marked and labelled.",
     "ray_vs_wave_lensing": "Lensing factor per ranked segment: rays (energy over the real / over the reference "
-    "ocean) against the wave check (squared ratio of its maxima over the two oceans).",
+    "ocean) against the wave check (its energy, the time integral of the squared elevation, over the two "
+    "oceans).",
     "ray_vs_wave_profile": "Amplitude and lensing factor of the rays and of the wave check along the coast "
     "(ranked segments in coastline order; gaps separate coastline pieces), the top segments of each "
     "ranking marked: where the two disagree, and whether a hotspot has moved along the coast.",
-    "wave_lensing_map": "Where the wave focuses: the wave check's lensing factor over the whole ocean (squared ratio "
-    "of the linear long-wave maxima over the real and over the reference sea floor, log scale; 1 = no "
+    "wave_lensing_map": "Where the wave focuses: the wave check's lensing factor over the whole ocean (ratio of "
+    "the linear long-wave energies over the real and over the reference sea floor, log scale; 1 = no "
     "focusing), the ranked segments coloured and numbered by the wave's own lensing ranking. Compare it "
     "with the rays' lensing map.",
 }

@@ -84,7 +84,7 @@ def check_figures(chk: WaveCheck, folder: pathlib.Path, *, stem: str = "ray_vs_w
         out["ray_vs_wave_lensing"] = plot_ray_vs_wave(
             t["ray_lensing"].where(ranked).rename("ray_lensing"), t["wave_lensing"].where(ranked),
             folder / f"{stem}_lensing.png", k=k, ray_label="Ray lensing factor (energy, real / reference ocean)",
-            wave_label="Wave lensing factor (squared ratio of the maxima)",
+            wave_label="Wave lensing factor (energy, real / reference ocean)",
             title="Lensing ranking: rays vs linear long-wave check, per coastline segment")
     if segments is not None and segments.index.name == "segment_id" and "segment_id" not in segments.columns:
         segments = segments.reset_index()
@@ -109,7 +109,7 @@ def _wave_lensing_figure(chk: WaveCheck, lens_map: Any, segments: pd.DataFrame, 
     return plot_lensing_map(grid, lens_map, None, seg,
                             top_k=int(chk.agreement["k"]), out_path=path,
                             title="Where the wave focuses: the wave check's lensing factor\n"
-                                  "(linear long-wave maxima over the real / over the reference sea floor)²",
+                                  "(linear long-wave energy over the real / over the reference sea floor)",
                             no_value_label="Dry, or almost no wave",
                             segment_label="Ranked segment (the wave's lensing)")
 
@@ -257,8 +257,8 @@ def write_wave_lensing(chk: WaveCheck, path: pathlib.Path) -> Any:
     seg_vals = pd.to_numeric(t["wave_lensing"].where(t["ranked"]), errors="coerce").to_numpy(float)
     scale = dataclasses.replace(lensing_scale(lens_map.values, seg_vals), layer="wave_lensing",
                                 title="Wave lensing factor (-), log scale; 1 = no focusing")
-    write_cog(lens_map, path, description="wave lensing factor: (linear long-wave maximum over the real / over the "
-              "reference sea floor)^2", units="1", style=scale)
+    write_cog(lens_map, path, description="wave lensing factor: linear long-wave energy (time integral of the "
+              "squared elevation) over the real / over the reference sea floor", units="1", style=scale)
     return lens_map
 
 
@@ -321,7 +321,8 @@ def check_section(chk: WaveCheck, figures: dict[str, str], table_file: str = "wa
         "forward-backward time stepping under the CFL condition, absorbing open boundaries, absorbing coast "
         "at the stop isobath). Like is compared with like on the segments the run ranks: the maximum "
         "elevation per segment with the ray-based indicative amplitude there, and the wave lensing factor "
-        "(the squared ratio of the two maxima, an energy ratio) with the ray lensing factor.",
+        "(the ratio of the wave energies that passed the segment over the two oceans: the time integral of "
+        "the squared elevation, energy as the rays count it) with the ray lensing factor.",
         "The wave solution includes diffraction, which ray theory leaves out: where they disagree, the "
         "ray ranking of that segment is not supported and should not be used on its own.",
     ]
@@ -342,6 +343,10 @@ def check_section(chk: WaveCheck, figures: dict[str, str], table_file: str = "wa
         metrics.update({"lensing ranking: Spearman": fmt(lens.get("spearman")),
                         "lensing ranking: Kendall tau": fmt(lens.get("kendall")),
                         f"lensing ranking: top-{k} overlap": overlap(lens)})
+    peak = ag.get("lensing_peak") or {}
+    if peak:
+        metrics["lensing ranking against the squared ratio of the wave maxima instead: Spearman (top-"
+                f"{k} overlap)"] = f"{fmt(peak.get('spearman'))} ({overlap(peak)})"
     if ag.get("amplitude_ratio"):
         r = ag["amplitude_ratio"]
         metrics["wave maximum / ray amplitude: median (5-95 % of the segments)"] = \

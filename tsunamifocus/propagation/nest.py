@@ -336,7 +336,7 @@ def simulate_nested(
         kw["arrival_threshold_m"] = coarse.stats["arrival_threshold_m"]
     fine = simulate_linear_long_wave(depth_f, eta_f, duration_s=duration_s, stop_depth_m=stop_depth_m,
                                      boundary=edges, progress=_label("coast box"), step_hook=_force, **kw)
-    for name in ("max_amplitude", "max_time_s", "arrival_time_s"):
+    for name in ("max_amplitude", "max_time_s", "arrival_time_s", "eta_sq_integral"):
         da = getattr(fine, name)
         da.values[ring] = np.nan
     st = fine.stats

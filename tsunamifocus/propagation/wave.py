@@ -64,8 +64,9 @@ WAVE_LIMITS = "Wave check: linear long-wave equations, no friction, no nonlinear
 WAVE_CAUTION = caution_summary() + " " + WAVE_LIMITS
 
 _EDGES = ("west", "east", "south", "north")
-# bytes per cell: eta, qx, qy, coef_x, coef_y, max, max_time, arrival (float64) + wet masks (uint8, bool)
-_BYTES_PER_CELL = 8 * 8 + 2
+# bytes per cell: eta, qx, qy, coef_x, coef_y, max, max_time, arrival, sum eta^2 dt (float64) + wet masks
+# (uint8, bool)
+_BYTES_PER_CELL = 9 * 8 + 2
 # below this many cells the serial kernels are used (thread start-up dominates on tiny grids)
 _SERIAL_BELOW_CELLS = 20_000
 
@@ -88,6 +89,11 @@ class WaveResult:
     snapshots : xarray.DataArray or None
         ``eta`` [m] (float32) at the recorded times, dims ``("time", ydim, xdim)``, when
         ``record_every_s`` was given.
+    eta_sq_integral : xarray.DataArray or None
+        ``sum eta^2 dt`` [m2 s] over the run (the time integral of the squared elevation, from the
+        first step on); NaN on dry cells. Where the wave is progressive its energy flux per metre of
+        crest is ``rho g c eta^2``, so at a given cell this integral is the energy that passed in
+        proportion (``rho g c`` times it): the wave counterpart of the rays' energy.
     stats : dict
         ``steps``, ``dt_s``, ``duration_s``, ``cfl`` (requested), ``courant_max`` (achieved),
         ``elapsed_s``, ``cell_updates_per_s`` (grid cells x steps / wall time), ``threads``,
@@ -102,6 +108,7 @@ class WaveResult:
     eta: xr.DataArray
     snapshots: xr.DataArray | None
     stats: dict[str, Any] = field(default_factory=dict)
+    eta_sq_integral: xr.DataArray | None = None
 
 
 # --------------------------------------------------------------------------------------------------
@@ -480,19 +487,21 @@ def simulate_linear_long_wave(
     # stores very slow (microcode assists on the shared zero page)
     max_time = np.full((ny, nx), 0.0)
     arrival = np.where(wet & (np.abs(eta) > thr), 0.0, np.nan)
+    sq_int = np.full((ny, nx), 0.0)
     wet_u8 = wet.astype(np.uint8)
     area2d = m.area[:, None]
     vol0 = float(np.sum(eta * area2d))
     abs0 = float(np.sum(np.abs(eta) * area2d))
 
-    loop = _time_loop(eta, qx, qy, faces, wet_u8, bx, byn, bys, thr, max_eta, max_time, arrival,
+    loop = _time_loop(eta, qx, qy, faces, wet_u8, bx, byn, bys, thr, max_eta, max_time, arrival, sq_int,
                       n_steps=n_steps, dt=dt, periodic=bool(info.periodic_x), threads=threads,
                       record_every_s=record_every_s, progress=progress, step_hook=step_hook)
     stats = _run_stats(loop, n_steps=n_steps, dt=dt, duration_s=duration_s, cfl=cfl, courant=courant,
                        ny=ny, nx=nx, wet=wet, vol0=vol0, vol1=float(np.sum(eta * area2d)), abs0=abs0, thr=thr,
                        stop_depth_m=stop_depth_m, coast=coast, bnd=bnd, gravity=gravity,
                        polar_cutoff_deg=polar_cutoff_deg, mem=mem)
-    return _wave_result(depth, wet, eta, max_eta, max_time, arrival, loop["snaps"], loop["snap_t"], thr, stats)
+    return _wave_result(depth, wet, eta, max_eta, max_time, arrival, loop["snaps"], loop["snap_t"], thr, stats,
+                        sq_int)
 
 
 def _run_stats(loop: dict, *, n_steps, dt, duration_s, cfl, courant, ny, nx, wet, vol0, vol1, abs0, thr, stop_depth_m,
@@ -582,7 +591,8 @@ def _arrival_threshold(eta: np.ndarray, arrival_threshold_m: float | None) -> fl
     return thr
 
 
-def _time_loop(eta, qx, qy, faces, wet_u8, bx, byn, bys, thr, max_eta, max_time, arrival, *, n_steps, dt, periodic,
+def _time_loop(eta, qx, qy, faces, wet_u8, bx, byn, bys, thr, max_eta, max_time, arrival, sq_int, *, n_steps, dt,
+               periodic,
                threads, record_every_s, progress, step_hook=None) -> dict:
     """Step the fields in place on ``threads`` numba threads; returns outflow, wall time, snapshots."""
     ny, nx = eta.shape
@@ -621,7 +631,7 @@ def _time_loop(eta, qx, qy, faces, wet_u8, bx, byn, bys, thr, max_eta, max_time,
                 t_new = (n + 1) * dt
                 f_q(eta, qx, ax, qy, ay, periodic)
                 outflow += _k.radiate(eta, qx, qy, periodic, *rx, *ry)
-                f_eta(eta, qx, qy, wet_u8, bx, byn, bys, t_new, thr, max_eta, max_time, arrival)
+                f_eta(eta, qx, qy, wet_u8, bx, byn, bys, t_new, dt, thr, max_eta, max_time, arrival, sq_int)
                 if step_hook is not None:
                     step_hook(eta, t_new)
                 done = n + 1
@@ -644,7 +654,8 @@ def _time_loop(eta, qx, qy, faces, wet_u8, bx, byn, bys, thr, max_eta, max_time,
 
 
 def _wave_result(depth: xr.DataArray, wet: np.ndarray, eta: np.ndarray, max_eta: np.ndarray, max_time: np.ndarray,
-                 arrival: np.ndarray, snaps: list, snap_t: list, thr: float, stats: dict) -> WaveResult:
+                 arrival: np.ndarray, snaps: list, snap_t: list, thr: float, stats: dict,
+                 sq_int: np.ndarray) -> WaveResult:
     """The solver's fields as grids like the depth (NaN on dry cells), with the run statistics."""
     stop_depth_m, coast = stats["stop_depth_m"], stats["coast"]
     common = {"stop_depth_m": float(stop_depth_m), "coast": coast, "model": "linear long-wave (C grid, forward-backward)"}
@@ -663,6 +674,8 @@ def _wave_result(depth: xr.DataArray, wet: np.ndarray, eta: np.ndarray, max_eta:
         {"units": "s", "long_name": f"first time |eta| exceeds {thr:.3g} m", "threshold_m": thr, **common},
     )
     eta_da = _as_grid(depth, eta.copy(), "eta", {"units": "m", "long_name": "surface elevation at end", **common})
+    sq_da = _as_grid(depth, np.where(wet, sq_int, np.nan), "eta_sq_integral",
+                     {"units": "m2 s", "long_name": "time integral of the squared surface elevation", **common})
     snap_da = None
     if snaps:
         yd, xd = depth.dims
@@ -676,7 +689,7 @@ def _wave_result(depth: xr.DataArray, wet: np.ndarray, eta: np.ndarray, max_eta:
         snap_da["time"].attrs["units"] = "s"
         if "spatial_ref" in depth.coords:
             snap_da = snap_da.assign_coords(spatial_ref=depth.coords["spatial_ref"])
-    return WaveResult(max_amp, max_t, arr, eta_da, snap_da, stats)
+    return WaveResult(max_amp, max_t, arr, eta_da, snap_da, stats, sq_da)
 
 
 def _progress(progress: Any, n_steps: int) -> tuple[Callable[[int, int], None] | None, Any]:

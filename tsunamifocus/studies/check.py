@@ -72,9 +72,10 @@ AUTO_REFINE: str = "auto"
 FAINT_WAVE_FRACTION: float = 0.01
 
 
-#: Cells whose wave maximum over the reference ocean is below this fraction of its 99th percentile
-#: get no value on the wave's lensing map (:meth:`WaveCheck.lensing_map`): the ratio of two
-#: near-zero maxima is noise (common practice, no source).
+#: Cells whose wave over the reference ocean is below this fraction of its 99th percentile (in
+#: amplitude, ``sqrt`` of the time-integrated squared elevation) get no value on the wave's lensing
+#: map (:meth:`WaveCheck.lensing_map`): the ratio of two near-zero waves is noise (common practice,
+#: no source).
 LENSING_MAP_FLOOR: float = 0.01
 
 
@@ -239,13 +240,17 @@ class WaveCheck:
         One row per segment: ``segment_id``, ``name`` (if present), ``ray_value`` (the compared ray
         column, [m] for ``amp_stop_m``), ``wave_amp_stop_m`` [m], ``wave_first_arrival_s`` [s] (earliest
         threshold exceedance on the segment's stop-isobath cells), ``rank_ray``, ``rank_wave`` (1 =
-        largest, <NA> where the value is missing), ``ratio_wave_to_ray``.
+        largest, <NA> where the value is missing), ``ratio_wave_to_ray``; with a lensing reference
+        also ``wave_amp_reference_m`` [m], ``ray_lensing``, ``wave_lensing`` (the ratio of the wave
+        energies, ``sum eta^2 dt``, over the two oceans), ``wave_peak_lensing`` (the squared ratio of
+        the maxima), ``rank_ray_lensing`` and ``rank_wave_lensing``.
     agreement : dict
         :func:`compare_rankings` of the two columns plus ``ray_column``, ``refine`` (and with
         ``refine="auto"`` ``refine_choice``), ``resolution`` (when the period is known),
         ``n_faint_wave``, ``amplitude_ratio`` (median and 5 / 95 % of ``ratio_wave_to_ray`` over
         the ranked segments: how the rays' indicative amplitudes compare in size with the wave's
-        maxima) and ``lensing``.
+        maxima), ``lensing`` (against the wave's energy ratio ``wave_lensing``) and
+        ``lensing_peak`` (against ``wave_peak_lensing``, for comparison).
     figure : pathlib.Path or None
         The scatter figure, when ``figure_path`` was given.
     wave_reference : WaveResult or None
@@ -271,25 +276,25 @@ class WaveCheck:
     def lensing_map(self) -> xr.DataArray | None:
         """The wave's lensing factor over the whole grid, like the segments' ``wave_lensing``.
 
-        ``(max elevation over the real sea floor / max elevation over the reference)^2`` per wet
-        cell of the wave's grid (the run's grid refined ``agreement["refine"]`` times); NaN on dry
-        cells and where the reference's maximum is below :data:`LENSING_MAP_FLOOR` of its 99th
-        percentile (water the wave barely reaches, where the ratio is noise). None without a
-        reference run.
+        ``sum eta^2 dt`` over the real sea floor / over the reference per wet cell of the wave's
+        grid (the run's grid refined ``agreement["refine"]`` times): the ratio of the wave energies
+        that passed (:attr:`WaveResult.eta_sq_integral`); NaN on dry cells and where the
+        reference's wave is below :data:`LENSING_MAP_FLOOR` of its 99th percentile in amplitude
+        (water the wave barely reaches, where the ratio is noise). None without a reference run.
         """
         if self.wave_reference is None:
             return None
-        real = np.asarray(self.wave.max_amplitude.values, dtype=float)
-        ref = np.asarray(self.wave_reference.max_amplitude.values, dtype=float)
+        real = np.asarray(self.wave.eta_sq_integral.values, dtype=float)
+        ref = np.asarray(self.wave_reference.eta_sq_integral.values, dtype=float)
         pos = ref[np.isfinite(ref) & (ref > 0)]
-        floor = LENSING_MAP_FLOOR * float(np.percentile(pos, 99.0)) if pos.size else np.inf
+        floor = LENSING_MAP_FLOOR ** 2 * float(np.percentile(pos, 99.0)) if pos.size else np.inf
         ok = np.isfinite(real) & np.isfinite(ref) & (ref >= floor) & (real > 0)
         with np.errstate(divide="ignore", invalid="ignore"):
-            lens = np.where(ok, (real / np.where(ok, ref, 1.0)) ** 2, np.nan)
+            lens = np.where(ok, real / np.where(ok, ref, 1.0), np.nan)
         out = self.wave.max_amplitude.copy(data=lens)
         out.name = "wave_lensing"
-        out.attrs = {"units": "1", "long_name": "wave lensing factor: squared ratio of the linear long-wave maxima "
-                     "over the real and over the reference sea floor"}
+        out.attrs = {"units": "1", "long_name": "wave lensing factor: ratio of the linear long-wave energies "
+                     "(time integral of the squared elevation) over the real and over the reference sea floor"}
         return out
 
     def summary(self) -> str:
@@ -305,10 +310,17 @@ class WaveCheck:
         if a.get("amplitude_ratio"):
             lines.append(f"  {_ratio_words(a['amplitude_ratio'])}")
         lens = a.get("lensing")
-        if lens:
-            lines.append(f"  lensing ranking (wave over the real / over the reference sea floor): Spearman "
+        if lens and not np.isfinite(lens.get("spearman", np.nan)):
+            lines.append(f"  lensing ranking: not measurable (the wave reached {lens.get('n', 0)} ranked segments over "
+                         "both oceans in the simulated time)")
+        elif lens:
+            lines.append(f"  lensing ranking (wave energy over the real / over the reference sea floor): Spearman "
                          f"{lens['spearman']:.2f}, Kendall tau {lens['kendall']:.2f}, top-{lens['k']} overlap "
                          f"{lens['topk_common']}/{lens['k']}")
+        peak = a.get("lensing_peak")
+        if peak and lens and np.isfinite(lens.get("spearman", np.nan)) and np.isfinite(peak.get("spearman", np.nan)):
+            lines.append(f"  (against the squared ratio of the wave maxima instead: Spearman {peak['spearman']:.2f}, "
+                         f"top-{peak['k']} overlap {peak['topk_common']}/{peak['k']})")
         if a.get("n_faint_wave"):
             lines.append(f"  {a['n_faint_wave']} of them got almost no wave (below {100 * FAINT_WAVE_FRACTION:g} % of the "
                          "median): water the wave barely reaches on this grid (a narrow passage, sheltered water); "
@@ -414,8 +426,14 @@ def compare_with_waves(
         Ray-based amplitude to compare (default ``amp_stop_m``, the ray amplitude at the stop isobath [m]).
     reference_depth : xarray.DataArray, optional
         The run's lensing reference ocean (unsmoothed by wavelength, like ``depth``): the wave is then
-        solved over it too, and the wave lensing factor ``(A_real / A_reference)^2`` per segment (an
-        energy ratio, like the ray lensing factor) is compared with ``lensing_column``.
+        solved over it too, and the wave lensing factor per segment - the ratio of the wave
+        energies that passed the segment's stop-isobath cells over the two oceans,
+        ``sum eta^2 dt`` (:attr:`WaveResult.eta_sq_integral`; at a given cell the energy flux of a
+        progressive long wave is ``rho g c eta^2``, the same ``c`` in both oceans) - is compared
+        with ``lensing_column`` (an energy ratio too: the rays' energy over the two oceans). The
+        squared ratio of the wave maxima, ``(A_real / A_reference)^2``, is kept beside it
+        (``wave_peak_lensing``): it equals the energy ratio only where the two oceans give the
+        wave the same shape in time, not where one splits it into arrivals spread in time.
     lensing_column : str
         Ray lensing factor column.
     duration_s : float, optional
@@ -561,14 +579,19 @@ def compare_with_waves(
         ref_w = refine_grid(reference_depth, refine) if box is None else None
         res_ref, ref_w = _solve(reference_depth, ref_w, "wave, reference ocean")
         wave_ref = segment_max_amplitude(res_ref, segments, ref_w, stop_depth_m, **sample)
+        sq = segment_max_amplitude(res, segments, depth_w, stop_depth_m, field="eta_sq_integral", **sample)
+        sq_ref = segment_max_amplitude(res_ref, segments, ref_w, stop_depth_m, field="eta_sq_integral", **sample)
         with np.errstate(divide="ignore", invalid="ignore"):
-            wave_lensing = (wave.values / wave_ref.values) ** 2
+            wave_lensing = sq.values / sq_ref.values
+            peak_lensing = (wave.values / wave_ref.values) ** 2
         table["wave_amp_reference_m"] = wave_ref.values
-        _paired_columns(table, "ray_lensing", np.asarray(segments[lensing_column], dtype=float), "wave_lensing",
-                        wave_lensing, ranked, ("rank_ray_lensing", "rank_wave_lensing"))
-        lens = compare_rankings(table["ray_lensing"].where(ranked), table["wave_lensing"].where(ranked), k=k)
-        lens["ray_column"] = lensing_column
-        agree["lensing"] = lens
+        ray_lensing = np.asarray(segments[lensing_column], dtype=float)
+        _paired_columns(table, "ray_lensing", ray_lensing, "wave_lensing", wave_lensing, ranked,
+                        ("rank_ray_lensing", "rank_wave_lensing"))
+        table["wave_peak_lensing"] = np.where(np.isfinite(peak_lensing), peak_lensing, np.nan)
+        for key, col, measure in (("lensing", "wave_lensing", "energy"), ("lensing_peak", "wave_peak_lensing", "peak")):
+            agree[key] = {**_rankings_or_none(table["ray_lensing"].where(ranked), table[col].where(ranked), k),
+                          "ray_column": lensing_column, "wave_measure": measure}
     table.attrs.update(ray_column=ray_column, cautions=caution_text())
     return WaveCheck(res, table, agree, wave_reference=res_ref, depth=depth_w)
 
@@ -586,6 +609,16 @@ def _nest_box(depth: xr.DataArray, segments: Any, refine: int) -> NestBox | None
     if box.share_of(depth.shape) > NEST_MAX_SHARE or min(box.shape) < 4 or box.reaches_seam(GridInfo.from_dataarray(depth)):
         return None
     return box
+
+
+def _rankings_or_none(ray: pd.Series, wave: pd.Series, k: int) -> dict[str, Any]:
+    """:func:`compare_rankings`, or NaN figures when fewer than 3 segments have both values (the wave
+    reached almost none of them in the simulated time: no ratio of its energies there)."""
+    n = int((np.isfinite(ray.to_numpy(float)) & np.isfinite(wave.to_numpy(float))).sum())
+    if n >= 3:
+        return compare_rankings(ray, wave, k=k)
+    return {"spearman": np.nan, "spearman_p": np.nan, "kendall": np.nan, "kendall_p": np.nan, "topk_overlap": None,
+            "topk_common": None, "k": min(int(k), max(n, 1)), "n": n}
 
 
 def _paired_columns(table: pd.DataFrame, ray_name: str, ray: np.ndarray, wave_name: str, wave: np.ndarray,
