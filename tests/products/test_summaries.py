@@ -16,8 +16,8 @@ def test_a_weak_lensing_ranking_is_said_and_the_amplitude_ranking_recommended():
     # real-grid benchmark case measured amplitude 0.92 and lensing 0.01 against the wave.
     assert WEAK_AGREEMENT == 0.5
     lines = "\n".join(_check_lines(_ag(0.92, 0.01, top_lens=3)))
-    assert "lensing ranking against the wave:   Spearman 0.01, top-10 overlap 3/10 - weak" in lines
-    assert "amplitude ranking against the wave: Spearman 0.92, top-10 overlap 5/10\n" in lines + "\n"
+    assert "lensing ranking against the wave's energy:   Spearman 0.01, top-10 overlap 3/10 - weak" in lines
+    assert "amplitude ranking against the wave's maxima: Spearman 0.92, top-10 overlap 5/10\n" in lines + "\n"
     assert "rank this coast with the amplitude ranking" in lines
     # a weak lensing ranking points to the wave's own lensing map, which the check writes
     assert "where the wave itself focuses: wave_lensing.tif and figures/wave_lensing_map.png" in lines

@@ -159,9 +159,9 @@ def _check_lines(ag: dict) -> list[str]:
         return f" - weak: {why}" if why else ""
 
     out = [f"  wave check (linear long-wave solver, unsmoothed sea floor) on {ag.get('n', 0)} ranked segments:",
-           f"    amplitude ranking against the wave: {held(ag)}{weak(ag)}"]
+           f"    amplitude ranking against the wave's maxima: {held(ag)}{weak(ag)}"]
     if ag.get("lensing"):
-        out.append(f"    lensing ranking against the wave:   {held(ag['lensing'])}{weak(ag['lensing'])}")
+        out.append(f"    lensing ranking against the wave's energy:   {held(ag['lensing'])}{weak(ag['lensing'])}")
         if _amplitude_first(ag):
             out.append("    rank this coast with the amplitude ranking, not the lensing factor (docs/focusing.md)")
         if _weakness(ag["lensing"]):
