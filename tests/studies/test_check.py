@@ -214,13 +214,50 @@ def test_check_chooses_a_grid_fine_enough_for_the_coast_by_default():
     # a longer period needs no refinement; without a period the run's grid is kept
     assert choose_refine(depth, 3000.0, duration_s=12000.0)["refine"] == 1
     assert choose_refine(depth, None, duration_s=12000.0) == {"refine": 1, "wanted": None, "limited_by": None,
-                                                               "min_cells_per_wavelength": MIN_CELLS_PER_WAVELENGTH}
+                                                               "min_cells_per_wavelength": MIN_CELLS_PER_WAVELENGTH,
+                                                               "nested_instead_of": None}
     # memory for the run's grid only: the check stays there and says why
     cells = depth.size
     with pytest.warns(ResolutionWarning, match="memory limit allowed a grid 1 times finer, not 2"):
         chk = compare_with_waves(depth, eta0, seg, duration_s=600.0, period_s=1000.0, k=1, boundary=walls,
                                  threads=1, max_memory_bytes=_BYTES_PER_CELL * cells * 2)
     assert chk.agreement["refine_choice"]["limited_by"] == "memory" and chk.agreement["refine"] == 1
+
+
+def test_auto_refine_nests_a_finer_box_when_it_costs_less_than_the_whole_grid():
+    # A factor of 3 cannot be nested (its box would sit in the run's own ocean); with a coast box
+    # holding a tenth of the cells, a box 4x finer in an ocean 2x finer costs 2^3 + 0.1 * 4^3 = 14.4
+    # run-grid updates per cell against 3^3 = 27 for the whole grid 3x (cells x time steps: the CFL
+    # step shrinks with the cell, common practice, no source), so the check takes it; with a box of
+    # nearly half the grid (8 + 0.45 * 64 = 36.8 > 27) it refines the whole grid 3x as before.
+    from tsunamifocus.studies.check import choose_refine
+
+    depth, _, _, _ = _plane_slope()
+    whole = choose_refine(depth, 800.0, duration_s=12000.0)
+    assert whole["refine"] == whole["wanted"] == 3 and whole["nested_instead_of"] is None
+    small = choose_refine(depth, 800.0, duration_s=12000.0, nest_share=0.1)
+    assert small["refine"] == 4 and small["wanted"] == 3 and small["nested_instead_of"] == 3
+    assert choose_refine(depth, 800.0, duration_s=12000.0, nest_share=0.45)["refine"] == 3
+    # the work limit forbids the whole grid 3x (27 units) but each nested run fits (8 and 6.4 units):
+    # the nested 4x is taken and nothing is said to be limited
+    n_wet, steps1 = _run_grid_work(depth)
+    limit = 15.0 * n_wet * steps1
+    held = choose_refine(depth, 800.0, duration_s=12000.0, max_cell_updates=limit)
+    assert held["refine"] == 2 and held["limited_by"] == "work"
+    freed = choose_refine(depth, 800.0, duration_s=12000.0, max_cell_updates=limit, nest_share=0.1)
+    assert freed["refine"] == 4 and freed["limited_by"] is None and freed["nested_instead_of"] == 3
+
+
+def _run_grid_work(depth, duration_s=12000.0):
+    """Wet cells and time steps of the solver on the run's grid for ``duration_s`` (its CFL step)."""
+    from tsunamifocus.constants import GRAVITY
+    from tsunamifocus.grid import GridInfo
+    from tsunamifocus.propagation.wave import _dt_from, _metric, _wet_mask
+
+    d = np.asarray(depth.values, float)
+    wet = _wet_mask(d, 20.0)
+    return float(wet.sum()), duration_s / _dt_from(d, wet, _metric(GridInfo.from_dataarray(depth)), 0.8, GRAVITY,
+                                                   depth.name)
 
 
 def test_check_progress_names_each_ocean_and_the_grid(capsys):

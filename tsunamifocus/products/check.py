@@ -316,7 +316,11 @@ def check_section(chk: WaveCheck, figures: dict[str, str], table_file: str = "wa
               f"forced on its edges by the same wave solved on {nest_ocean_words(ag['nest'])} (one-way nesting)"
               if ag.get("nest") else "")
            + (f"; chosen for at least {ag['refine_choice']['min_cells_per_wavelength']:g} cells per dominant "
-              "wavelength at the stop isobath" if ag.get("refine_choice") else "") + ")")
+              "wavelength at the stop isobath" if ag.get("refine_choice") else "")
+           + (f"; {ag['refine']} rather than {ag['refine_choice']['nested_instead_of']} times finer, since a box "
+              f"{ag['refine']} times finer costs less than the whole grid {ag['refine_choice']['nested_instead_of']} "
+              "times finer" if (ag.get("refine_choice") or {}).get("nested_instead_of") and ag.get("nest") else "")
+           + ")")
         + ", over the unsmoothed sea floor and over the run's lensing reference (staggered C grid, "
         "forward-backward time stepping under the CFL condition, absorbing open boundaries, absorbing coast "
         "at the stop isobath). Like is compared with like on the segments the run ranks: the maximum "

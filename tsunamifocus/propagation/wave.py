@@ -592,8 +592,7 @@ def _arrival_threshold(eta: np.ndarray, arrival_threshold_m: float | None) -> fl
 
 
 def _time_loop(eta, qx, qy, faces, wet_u8, bx, byn, bys, thr, max_eta, max_time, arrival, sq_int, *, n_steps, dt,
-               periodic,
-               threads, record_every_s, progress, step_hook=None) -> dict:
+               periodic, threads, record_every_s, progress, step_hook=None) -> dict:
     """Step the fields in place on ``threads`` numba threads; returns outflow, wall time, snapshots."""
     ny, nx = eta.shape
     outflow = 0.0

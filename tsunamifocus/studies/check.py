@@ -25,7 +25,7 @@ from ..focusing.ranking import ranked_mask
 from ..grid import MAX_REFINE_FACTOR, GridInfo, refine_grid
 from ..propagation.nest import (NEST_MAX_SHARE, NestBox, _fine_cut, nest_box, nests_within_step, ocean_factor,
                                 simulate_nested)
-from ..propagation.wave import (WAVE_CAUTION, WaveResult, _check_depth, _dt_from, _memory_needed, _metric, _polar_dry,
+from ..propagation.wave import (_BYTES_PER_CELL, WAVE_CAUTION, WaveResult, _check_depth, _dt_from, _metric, _polar_dry,
                                 _wet_mask, simulate_linear_long_wave)
 
 __all__ = ['AMPLITUDE_RATIO_FACTOR', 'AUTO_REFINE', 'MIN_CELLS_PER_WAVELENGTH', 'FAINT_WAVE_FRACTION',
@@ -149,6 +149,7 @@ def choose_refine(
     polar_cutoff_deg: float | None = 80.0,
     max_memory_bytes: float | None = DEFAULTS["bathymetry"]["max_memory_gb"] * 1e9,
     max_cell_updates: float | None = WORK_LIMITS["wave_cell_updates"],
+    nest_share: float | None = None,
 ) -> dict[str, Any]:
     """The coarsest refinement that gives the check :data:`MIN_CELLS_PER_WAVELENGTH` at the stop isobath.
 
@@ -157,6 +158,15 @@ def choose_refine(
     :func:`wave_resolution` of ``refine_grid(depth, N)`` reaches the minimum, then lowers it while
     the solver's working arrays (``N^2`` times the cells) or its work (``N^3`` times the wet-cell
     updates: ``N`` times the time steps) would exceed the limits the solver enforces.
+
+    With ``nest_share`` (the check refines only a box around the coast, holding that share of the
+    run's cells: :func:`compare_with_waves` ``nest``) the limits and the cost are those of the
+    nested solve - the ocean refined :func:`~tsunamifocus.propagation.nest.ocean_factor` ``(N)``
+    times, the box ``N`` times, each run held to the limits on its own - and a factor that cannot
+    be nested (3, 5, 7: :func:`~tsunamifocus.propagation.nest.nests_within_step`) is replaced by
+    the next one up when that nested solve costs less than refining the whole grid: a finer coast
+    for less work (on the trans-Pacific interface case a 4x box in the ocean refined 2x ranked the
+    coast as the whole grid refined 4x does, at 0.988 / 0.935, docs/wave_check.md).
 
     Parameters
     ----------
@@ -168,6 +178,9 @@ def choose_refine(
         Simulated time [s] (for the work estimate).
     stop_depth_m, gravity, cfl, polar_cutoff_deg, max_memory_bytes, max_cell_updates
         As in :func:`~tsunamifocus.propagation.wave.simulate_linear_long_wave`.
+    nest_share : float, optional
+        Share (0-1] of the run's cells in the box a nested check refines; None: the whole grid
+        is refined.
 
     Returns
     -------
@@ -175,10 +188,11 @@ def choose_refine(
         ``refine`` (the factor to use), ``wanted`` (the factor the resolution asks for; None when
         the period is unknown or the grid has no coast), ``limited_by`` (None, ``"memory"``,
         ``"work"`` or ``"largest factor"``: why ``refine`` is below ``wanted`` or the minimum is not
-        reached) and ``min_cells_per_wavelength``.
+        reached), ``min_cells_per_wavelength`` and ``nested_instead_of`` (the factor a nestable
+        one replaced, else None).
     """
     out: dict[str, Any] = {"refine": 1, "wanted": None, "limited_by": None,
-                           "min_cells_per_wavelength": MIN_CELLS_PER_WAVELENGTH}
+                           "min_cells_per_wavelength": MIN_CELLS_PER_WAVELENGTH, "nested_instead_of": None}
     if period_s is None:
         return out
     cpw1 = wave_resolution(depth, period_s, stop_depth_m=stop_depth_m, gravity=gravity)["cells_per_wavelength"]
@@ -192,12 +206,26 @@ def choose_refine(
     n_wet = int(wet.sum())
     steps1 = duration_s / _dt_from(d, wet, _metric(info), cfl, gravity, depth.name)
 
+    def nested(n: int) -> bool:
+        return nest_share is not None and n > 1 and nests_within_step(n)
+
+    def runs(n: int) -> list[tuple[float, float, int]]:
+        """(cells, wet cells, refinement) of each solver run a factor ``n`` takes."""
+        if not nested(n):
+            return [(float(info.ny * info.nx), float(n_wet), n)]
+        m, box = ocean_factor(n), float(nest_share) * info.ny * info.nx
+        return [(float(info.ny * info.nx), float(n_wet), m), (box, min(box, float(n_wet)), n)]
+
+    def cost(n: int) -> float:
+        """Wet-cell updates relative to the run's grid."""
+        return sum(w * r ** 3 for _, w, r in runs(n)) / max(n_wet, 1)
+
     def over(n: int) -> str | None:
-        if max_memory_bytes is not None and _memory_needed(info.ny * n, info.nx * n, duration_s, None,
-                                                           None) > max_memory_bytes:
-            return "memory"
-        if max_cell_updates is not None and float(n_wet) * n * n * math.ceil(steps1 * n) > max_cell_updates:
-            return "work"
+        for cells, w, r in runs(n):
+            if max_memory_bytes is not None and _BYTES_PER_CELL * cells * r * r > max_memory_bytes:
+                return "memory"
+            if max_cell_updates is not None and w * r * r * math.ceil(steps1 * r) > max_cell_updates:
+                return "work"
         return None
 
     n = max(1, min(MAX_REFINE_FACTOR, math.ceil(MIN_CELLS_PER_WAVELENGTH / cpw1)))
@@ -219,6 +247,11 @@ def choose_refine(
             out["wanted"], out["limited_by"] = n, "largest factor"
             break
         n += 1
+    want = out["wanted"]
+    if (nest_share is not None and want is not None and 1 < want < MAX_REFINE_FACTOR and not nested(want)
+            and nested(want + 1) and over(want + 1) is None and (n < want or cost(want + 1) < cost(want))):
+        out["nested_instead_of"], out["limited_by"] = want, None
+        n = want + 1
     out["refine"] = n
     return out
 
@@ -494,8 +527,9 @@ def compare_with_waves(
     if isinstance(refine, str) and refine == AUTO_REFINE:
         limits = {key: simulate_kwargs[key] for key in ("max_memory_bytes", "max_cell_updates", "polar_cutoff_deg")
                   if key in simulate_kwargs}
+        box2 = _nest_box(depth, segments, 2) if nest else None  # the box any nestable factor would refine
         choice = choose_refine(depth, period_s, duration_s=duration_s, stop_depth_m=stop_depth_m, gravity=gravity,
-                               cfl=cfl, **limits)
+                               cfl=cfl, nest_share=None if box2 is None else box2.share_of(depth.shape), **limits)
         refine = choice["refine"]
     else:
         check_refine(refine)
