@@ -63,6 +63,15 @@ def test_an_unconverged_check_is_said_with_its_remedy():
     fine["refine"] = 2
     assert "onto a grid 2 times finer (9.4 cells per dominant wavelength" in "\n".join(_check_lines(fine))
     assert "refine" not in "\n".join(_check_lines(_ag(0.95, 0.52)))  # a check without the figure says nothing
+    # a nested check names the grid the ocean was solved on, and why its box is finer than asked
+    nested = dict(fine, refine=4, nest={"margin_km": 400.0, "share": 0.06, "ocean_refine": 2},
+                  refine_choice={"refine": 4, "wanted": 3, "limited_by": None, "nested_instead_of": 3})
+    lines = "\n".join(_check_lines(nested))
+    assert ("onto a grid 4 times finer in a box around the coast, one-way nested in the run's grid 2 times finer "
+            "(4 rather than 3: a box that fine costs less than the whole grid)") in lines
+    nested.update(refine=2, nest=dict(nested["nest"], ocean_refine=1), refine_choice={"refine": 2, "wanted": 2})
+    lines = "\n".join(_check_lines(nested))
+    assert "one-way nested in the run's grid (" in lines and "rather than" not in lines
 
 
 def test_the_size_of_the_rays_amplitudes_against_the_wave_is_said():

@@ -12,7 +12,7 @@ from ..cautions import caution_summary
 from ..focusing.ranking import ranked_mask
 from ..ocean.wavelength import WAVELENGTH_FRACTION
 from ..studies.run import RunResult
-from ..studies.check import AMPLITUDE_RATIO_FACTOR, FAINT_WAVE_FRACTION, MIN_CELLS_PER_WAVELENGTH
+from ..studies.check import AMPLITUDE_RATIO_FACTOR, FAINT_WAVE_FRACTION, MIN_CELLS_PER_WAVELENGTH, nest_ocean_words
 
 __all__ = ['format_summary', 'step_text']
 
@@ -179,7 +179,11 @@ def _check_lines(ag: dict) -> list[str]:
                    f"finer grid ({_refine_hint(ag)}) before reading these figures (docs/wave_check.md)")
     elif ag.get("refine", 1) > 1:
         out.append(f"    the wave was solved on the run's sea floor interpolated onto a grid {ag['refine']} times finer"
-                   + (" in a box around the coast, one-way nested in the run's grid" if ag.get("nest") else "")
+                   + (f" in a box around the coast, one-way nested in {nest_ocean_words(ag['nest'])}"
+                      if ag.get("nest") else "")
+                   + (f" ({ag['refine']} rather than {ag['refine_choice']['nested_instead_of']}: a box that fine costs "
+                      "less than the whole grid)"
+                      if ag.get("nest") and (ag.get("refine_choice") or {}).get("nested_instead_of") else "")
                    + (f" ({ag['resolution']['cells_per_wavelength']:.1f} cells per dominant wavelength at the "
                       "stop isobath)" if ag.get("resolution") else ""))
     return out
