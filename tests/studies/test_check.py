@@ -230,6 +230,7 @@ def test_auto_refine_nests_a_finer_box_when_it_costs_less_than_the_whole_grid():
     # run-grid updates per cell against 3^3 = 27 for the whole grid 3x (cells x time steps: the CFL
     # step shrinks with the cell, common practice, no source), so the check takes it; with a box of
     # nearly half the grid (8 + 0.45 * 64 = 36.8 > 27) it refines the whole grid 3x as before.
+    from tsunamifocus.errors import InputError
     from tsunamifocus.studies.check import choose_refine
 
     depth, _, _, _ = _plane_slope()
@@ -238,6 +239,8 @@ def test_auto_refine_nests_a_finer_box_when_it_costs_less_than_the_whole_grid():
     small = choose_refine(depth, 800.0, duration_s=12000.0, nest_share=0.1)
     assert small["refine"] == 4 and small["wanted"] == 3 and small["nested_instead_of"] == 3
     assert choose_refine(depth, 800.0, duration_s=12000.0, nest_share=0.45)["refine"] == 3
+    with pytest.raises(InputError, match="nest_share = 1.5: expected the box's share"):
+        choose_refine(depth, 800.0, duration_s=12000.0, nest_share=1.5)
     # the work limit forbids the whole grid 3x (27 units) but each nested run fits (8 and 6.4 units):
     # the nested 4x is taken and nothing is said to be limited
     n_wet, steps1 = _run_grid_work(depth)
@@ -250,7 +253,6 @@ def test_auto_refine_nests_a_finer_box_when_it_costs_less_than_the_whole_grid():
 
 def _run_grid_work(depth, duration_s=12000.0):
     """Wet cells and time steps of the solver on the run's grid for ``duration_s`` (its CFL step)."""
-    from tsunamifocus.constants import GRAVITY
     from tsunamifocus.grid import GridInfo
     from tsunamifocus.propagation.wave import _dt_from, _metric, _wet_mask
 

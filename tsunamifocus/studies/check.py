@@ -193,6 +193,8 @@ def choose_refine(
     """
     out: dict[str, Any] = {"refine": 1, "wanted": None, "limited_by": None,
                            "min_cells_per_wavelength": MIN_CELLS_PER_WAVELENGTH, "nested_instead_of": None}
+    if nest_share is not None and not (isinstance(nest_share, (int, float)) and 0.0 < nest_share <= 1.0):
+        raise InputError(f"nest_share = {nest_share!r}: expected the box's share of the grid's cells, 0 < share <= 1")
     if period_s is None:
         return out
     cpw1 = wave_resolution(depth, period_s, stop_depth_m=stop_depth_m, gravity=gravity)["cells_per_wavelength"]
