@@ -89,6 +89,10 @@ class TubeDeposit:
         Fresnel-width estimate [J] for shadow segments (0 elsewhere; not part of the budget).
     assigned : numpy.ndarray
         bool per ray: its energy went to segments.
+    peak_per_m : numpy.ndarray or None
+        Energy per metre of coast [J m-1] at the most exposed point of each segment: the sum of
+        the footprints' Gaussian profiles along the segment, at its samples, maximised over them
+        (0 where no footprint reaches; None when not computed).
     """
 
     matrix: sparse.csr_matrix
@@ -97,6 +101,7 @@ class TubeDeposit:
     shadow: np.ndarray
     shadow_energy_J: np.ndarray
     assigned: np.ndarray
+    peak_per_m: np.ndarray | None = None
 
 
 def _samples(segments: pd.DataFrame, spacing_m: float, info: GridInfo) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
@@ -503,6 +508,7 @@ def tube_deposit(
     s0 = np.where(arcs.ring[line_r], np.mod(s0, np.maximum(per, 1e-9)), np.clip(s0, 0.0, per))
     r, c, v = _arc_rows(arcs, line_r, s0, sigma, reach, nseg, facing=(az, normal))
     mat = sparse.csr_matrix((w[r] * v, (hit[r], c)), shape=(nray, nseg))
+    peak = _peak_per_m(geo, r, c, w[r] * v, s0, sigma, line_r, nseg)
     energy = np.asarray(mat.sum(axis=0)).ravel()
     n_rays = np.bincount(c, minlength=nseg)
     # coverage by the unregularised box footprints
@@ -522,7 +528,42 @@ def tube_deposit(
     assigned = np.zeros(nray, dtype=bool)
     assigned[hit[r]] = True
     return TubeDeposit(matrix=mat, energy_J=energy, n_rays=n_rays, shadow=shadow,
-                       shadow_energy_J=shadow_e, assigned=assigned)
+                       shadow_energy_J=shadow_e, assigned=assigned, peak_per_m=peak)
+
+
+def _peak_per_m(geo: CoastGeometry, r: np.ndarray, c: np.ndarray, e: np.ndarray, s0: np.ndarray,
+                sigma: np.ndarray, line_r: np.ndarray, nseg: int) -> np.ndarray:
+    """Energy per metre [J m-1] at each segment's most exposed sample.
+
+    Each footprint entry (ray ``r`` giving energy ``e`` to segment ``c``) is spread over the
+    segment's samples in proportion to the ray's Gaussian profile ``exp(-(s - s0)^2 / 2 sigma^2)``
+    (arc distance wrapped on rings), normalised so that the segment receives exactly ``e``; the
+    entries are summed per sample and the largest sample value of each segment returned. A
+    footprint much wider than the segment gives its mean, ``e / length``.
+    """
+    out = np.zeros(nseg)
+    if e.size == 0 or geo.sid.size == 0:
+        return out
+    sid = geo.sid
+    first = np.searchsorted(sid, np.arange(nseg), side="left")
+    count = np.bincount(sid, minlength=nseg)
+    o, k = _ranges(first[c], first[c] + count[c])
+    if o.size == 0:
+        return out
+    d = geo.s_smp[k] - s0[r[o]]
+    lr = line_r[r[o]]
+    per = geo.arcs.perimeter[lr]
+    ring = geo.arcs.ring[lr]
+    d = np.where(ring, np.mod(d + 0.5 * per, np.maximum(per, 1e-9)) - 0.5 * per, d)
+    g = np.exp(-0.5 * (d / sigma[r[o]]) ** 2)
+    norm = np.bincount(o, weights=g * geo.ds[k], minlength=e.size)
+    flat = norm[o] <= 0.0  # beyond the profile's numerical reach: spread evenly over the segment
+    length = np.bincount(o, weights=geo.ds[k], minlength=e.size)
+    dens = np.where(flat, e[o] / np.maximum(length[o], 1e-300),
+                    e[o] * g / np.where(flat, 1.0, norm[o]))
+    per_sample = np.bincount(k, weights=dens, minlength=sid.size)
+    np.maximum.at(out, sid, per_sample)
+    return out
 
 
 def tube_steps(end: xr.Dataset, info: GridInfo) -> np.ndarray:

@@ -29,6 +29,7 @@ REASON_COAST = REASON_CODES["coast"]
 
 __all__ = ["REASON_COAST", "BAND_NAMES", "BandTrace", "segment_arrivals"]
 
+
 #: Names of the three octave bands (``T0 / 2``, ``T0``, ``2 T0``) in column names.
 BAND_NAMES = ("short", "dominant", "long")
 
@@ -202,7 +203,12 @@ def _combined(bands: list[BandTrace], deps: list[TubeDeposit], length: np.ndarra
     dom = int(np.argmax(w))
     per_band = np.array([np.where(d.shadow, np.maximum(d.energy_J, d.shadow_energy_J), d.energy_J) / length
                          for d in deps])
+    # at the segment's most exposed point (a shadow's estimate is a mean: its value stays)
+    peak_band = np.array([pb if d.peak_per_m is None else np.where(d.shadow, pb, np.maximum(d.peak_per_m, pb))
+                          for pb, d in zip(per_band, deps)])
     return {
+        "peak_band": peak_band,
+        "peak_per_m": w @ peak_band,
         "energy_J": np.sum([wb * d.energy_J for wb, d in zip(w, deps)], axis=0),
         "per_m": w @ per_band,
         "per_band": per_band,
@@ -324,16 +330,21 @@ def segment_arrivals(
     * ``n_rays`` - ray tubes contributing (dominant band); ``n_hits`` - rays ending nearest to
       the segment; ``energy_J`` [J] deposited (the budget's share); ``energy_per_m`` [J m-1] -
       energy crossing the stop isobath per metre of coast (for a ray shadow, the
-      Fresnel-width estimate); ``shadow`` - no tube footprint covers the segment (dominant band;
-      value estimated, not ranked);
+      Fresnel-width estimate); ``peak_energy_per_m`` [J m-1] - the same at the segment's most
+      exposed point (the footprints' Gaussian profiles summed along the segment and maximised,
+      :attr:`TubeDeposit.peak_per_m`; the wave check takes its maxima over the segment's cells
+      alike); ``shadow`` - no tube footprint covers the segment (dominant band; value estimated,
+      not ranked);
     * ``first_arrival_s``, ``caustics_mean``, ``arrival_azimuth_deg``, ``incidence_deg`` - from
       the rays ending nearest to the segment (dominant band; head-on where none ends);
-    * ``ref_n_rays``, ``ref_energy_per_m``, ``lensing_factor = energy_per_m / ref_energy_per_m``;
+    * ``ref_n_rays``, ``ref_energy_per_m``, ``ref_peak_energy_per_m``, ``lensing_factor =
+      peak_energy_per_m / ref_peak_energy_per_m`` (at the most exposed point, like the amplitude);
       ``lensing_<band>`` and ``amp_stop_<band>_m`` per band (``short``, ``dominant``, ``long``);
-    * ``amp_stop_m`` - indicative amplitude at the stop isobath, each band's energy carried by
-      one sinusoidal wavelength ``c_stop T_b`` (``a_b = sqrt(2 E_w / (rho g c_stop T_b))``,
-      ``E_w = energy_per_m / cos(incidence)``, incidence capped at ``max_incidence_deg``), bands
-      added in energy; ``amp_1m_m`` - Green's law (Green 1838) to 1 m depth, indicative only;
+    * ``amp_stop_m`` - indicative amplitude at the stop isobath at the segment's most exposed
+      point, each band's energy carried by one sinusoidal wavelength ``c_stop T_b`` (``a_b =
+      sqrt(2 E_w / (rho g c_stop T_b))``, ``E_w = peak energy per metre / cos(incidence)``,
+      incidence capped at ``max_incidence_deg``), bands added in energy; ``amp_1m_m`` - Green's
+      law (Green 1838) to 1 m depth, indicative only;
     * ``lensing_lo/hi``, ``amp_lo/hi`` - 5-95 % Poisson bootstrap over rays (each ray drawn
       Poisson(1) times, one draw shared by all bands of a run), seeded: the sampling
       uncertainty that remains with tube energies;
@@ -431,22 +442,29 @@ def _energy_columns(out: pd.DataFrame, bl: list[BandTrace], real_d: list[TubeDep
     out["n_rays"] = real["n_tubes"].astype(np.int64)
     out["energy_J"] = real["energy_J"]
     out["energy_per_m"] = real["per_m"]
+    out["peak_energy_per_m"] = real["peak_per_m"]
     out["shadow"] = real["shadow"]
     real["boot"] = _boot_energy([(b.weight, d.matrix) for b, d in zip(bl, real_d)], len(out), n_boot, rng) / length
     if ref_d is None:
         out["ref_n_rays"] = pd.array([pd.NA] * len(out), dtype="Int64")
-        for c in ("ref_energy_per_m", "lensing_factor", "lensing_lo", "lensing_hi"):
+        for c in ("ref_energy_per_m", "ref_peak_energy_per_m", "lensing_factor", "lensing_lo", "lensing_hi"):
             out[c] = np.nan
         return real, None
     ref = _combined(bl, ref_d, length)
     out["ref_n_rays"] = ref["n_tubes"].astype(np.int64)
     out["ref_energy_per_m"] = ref["per_m"]
+    out["ref_peak_energy_per_m"] = ref["peak_per_m"]
     out["ref_shadow"] = ref["shadow"]
     rboot = _boot_energy([(b.weight, d.matrix) for b, d in zip(bl, ref_d)], len(out), n_boot, rng) / length
     boot = real["boot"]
     with np.errstate(invalid="ignore", divide="ignore"):
-        lf = np.where(ref["per_m"] > 0, real["per_m"] / np.where(ref["per_m"] > 0, ref["per_m"], 1.0), np.nan)
-        lb = np.where(rboot > 0, boot / np.where(rboot > 0, rboot, 1.0), np.inf)
+        pr, pf = real["peak_per_m"], ref["peak_per_m"]
+        lf = np.where(pf > 0, pr / np.where(pf > 0, pf, 1.0), np.nan)
+        # the bootstrap replicates are segment totals: their spread is carried over as a ratio to
+        # the totals' own lensing factor
+        lf_tot = np.where(ref["per_m"] > 0, real["per_m"] / np.where(ref["per_m"] > 0, ref["per_m"], 1.0), np.nan)
+        to_peak = np.where(np.isfinite(lf) & (lf_tot > 0), lf / np.where(lf_tot > 0, lf_tot, 1.0), 1.0)
+        lb = np.where(rboot > 0, boot / np.where(rboot > 0, rboot, 1.0), np.inf) * to_peak
         lb = np.where((boot == 0) & (rboot == 0), np.nan, lb)
     nodata = ~np.isfinite(lf)
     out["lensing_factor"] = lf
@@ -459,8 +477,8 @@ def _amplitude_columns(out: pd.DataFrame, bl: list[BandTrace], real: dict, ref: 
                        n_boot: int, max_incidence_deg: float, rho: float, gravity: float) -> None:
     """Indicative amplitudes (combined and per band) and their bootstrap interval."""
     cos_inc = np.cos(np.radians(np.minimum(out["incidence_deg"].to_numpy(float), max_incidence_deg)))
-    a_b, a_stop = _amplitudes(bl, real["per_band"], cos_inc, h_stop, rho, gravity)
-    _band_columns(out, bl, real["per_band"], ref["per_band"] if ref is not None else None, a_b)
+    a_b, a_stop = _amplitudes(bl, real["peak_band"], cos_inc, h_stop, rho, gravity)
+    _band_columns(out, bl, real["peak_band"], ref["peak_band"] if ref is not None else None, a_b)
     green = h_stop**0.25
     has = real["per_m"] > 0
     out["amp_stop_m"] = np.where(has, a_stop, np.nan)
@@ -523,7 +541,8 @@ def _arrival_attrs(out: pd.DataFrame, bands: list[BandTrace], real_d: list[TubeD
         "energy_method": "ray tubes: each coast ray's weight spread over |q| dgamma / cos(incidence) of coast "
                          f"(Gaussian, at least {min_width_factor:g} local wavelengths wide); bands combined by their "
                          "energy shares",
-        "amplitude_method": "a_b = sqrt(2 E_w / (rho g c_stop T_b)), E_w = energy_per_m / cos(incidence), "
+        "amplitude_method": "a_b = sqrt(2 E_w / (rho g c_stop T_b)), E_w = peak_energy_per_m / cos(incidence) "
+                            "(the segment's most exposed point; lensing_factor likewise), "
                             "a = sqrt(sum_b w_b a_b^2); a_1m = a_stop (h_stop / 1 m)^(1/4) (Green's law) - "
                             "indicative",
         "interval_method": f"5-95 % Poisson bootstrap over rays, {n_boot} replicates, seed {seed}",
