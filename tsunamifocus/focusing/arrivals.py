@@ -29,7 +29,6 @@ REASON_COAST = REASON_CODES["coast"]
 
 __all__ = ["REASON_COAST", "BAND_NAMES", "BandTrace", "segment_arrivals"]
 
-
 #: Names of the three octave bands (``T0 / 2``, ``T0``, ``2 T0``) in column names.
 BAND_NAMES = ("short", "dominant", "long")
 
