@@ -89,10 +89,10 @@ class TubeDeposit:
         Fresnel-width estimate [J] for shadow segments (0 elsewhere; not part of the budget).
     assigned : numpy.ndarray
         bool per ray: its energy went to segments.
-    peak_per_m : numpy.ndarray or None
+    peak_per_m : numpy.ndarray
         Energy per metre of coast [J m-1] at the most exposed point of each segment: the sum of
         the footprints' Gaussian profiles along the segment, at its samples, maximised over them
-        (0 where no footprint reaches; None when not computed).
+        (0 where no footprint reaches).
     """
 
     matrix: sparse.csr_matrix
@@ -101,7 +101,7 @@ class TubeDeposit:
     shadow: np.ndarray
     shadow_energy_J: np.ndarray
     assigned: np.ndarray
-    peak_per_m: np.ndarray | None = None
+    peak_per_m: np.ndarray
 
 
 def _samples(segments: pd.DataFrame, spacing_m: float, info: GridInfo) -> tuple[np.ndarray, np.ndarray, np.ndarray]:

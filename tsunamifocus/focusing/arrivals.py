@@ -203,8 +203,7 @@ def _combined(bands: list[BandTrace], deps: list[TubeDeposit], length: np.ndarra
     per_band = np.array([np.where(d.shadow, np.maximum(d.energy_J, d.shadow_energy_J), d.energy_J) / length
                          for d in deps])
     # at the segment's most exposed point (a shadow's estimate is a mean: its value stays)
-    peak_band = np.array([pb if d.peak_per_m is None else np.where(d.shadow, pb, np.maximum(d.peak_per_m, pb))
-                          for pb, d in zip(per_band, deps)])
+    peak_band = np.array([np.where(d.shadow, pb, np.maximum(d.peak_per_m, pb)) for pb, d in zip(per_band, deps)])
     return {
         "peak_band": peak_band,
         "peak_per_m": w @ peak_band,

@@ -30,7 +30,8 @@ from ..io.runs import read_run
 from ..io.scenario import Scenario, parse_scenario
 from ..grid import refine_grid
 from ..io.styles import lensing_scale
-from ..studies.check import AUTO_REFINE, FAINT_WAVE_FRACTION, NEST_DEFAULT, WaveCheck, check_refine, compare_with_waves, nest_ocean_words
+from ..studies.check import (AUTO_REFINE, FAINT_WAVE_FRACTION, NEST_DEFAULT, WaveCheck, check_refine, compare_with_waves, nest_ocean_words,
+                             nested_instead_of)
 from .appendix import build_appendix
 from .figures import plot_check_profile, plot_lensing_map, plot_ray_vs_wave
 
@@ -317,9 +318,9 @@ def check_section(chk: WaveCheck, figures: dict[str, str], table_file: str = "wa
               if ag.get("nest") else "")
            + (f"; chosen for at least {ag['refine_choice']['min_cells_per_wavelength']:g} cells per dominant "
               "wavelength at the stop isobath" if ag.get("refine_choice") else "")
-           + (f"; {ag['refine']} rather than {ag['refine_choice']['nested_instead_of']} times finer, since a box "
-              f"{ag['refine']} times finer costs less than the whole grid {ag['refine_choice']['nested_instead_of']} "
-              "times finer" if (ag.get("refine_choice") or {}).get("nested_instead_of") and ag.get("nest") else "")
+           + (f"; {ag['refine']} rather than {nested_instead_of(ag)} times finer, since a box "
+              f"{ag['refine']} times finer costs less than the whole grid {nested_instead_of(ag)} "
+              "times finer" if nested_instead_of(ag) else "")
            + ")")
         + ", over the unsmoothed sea floor and over the run's lensing reference (staggered C grid, "
         "forward-backward time stepping under the CFL condition, absorbing open boundaries, absorbing coast "

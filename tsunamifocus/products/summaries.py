@@ -12,7 +12,8 @@ from ..cautions import caution_summary
 from ..focusing.ranking import ranked_mask
 from ..ocean.wavelength import WAVELENGTH_FRACTION
 from ..studies.run import RunResult
-from ..studies.check import AMPLITUDE_RATIO_FACTOR, FAINT_WAVE_FRACTION, MIN_CELLS_PER_WAVELENGTH, nest_ocean_words
+from ..studies.check import (AMPLITUDE_RATIO_FACTOR, FAINT_WAVE_FRACTION, MIN_CELLS_PER_WAVELENGTH, nest_ocean_words,
+                             nested_instead_of)
 
 __all__ = ['format_summary', 'step_text']
 
@@ -181,9 +182,8 @@ def _check_lines(ag: dict) -> list[str]:
         out.append(f"    the wave was solved on the run's sea floor interpolated onto a grid {ag['refine']} times finer"
                    + (f" in a box around the coast, one-way nested in {nest_ocean_words(ag['nest'])}"
                       if ag.get("nest") else "")
-                   + (f" ({ag['refine']} rather than {ag['refine_choice']['nested_instead_of']}: a box that fine costs "
-                      "less than the whole grid)"
-                      if ag.get("nest") and (ag.get("refine_choice") or {}).get("nested_instead_of") else "")
+                   + (f" ({ag['refine']} rather than {nested_instead_of(ag)}: a box that fine costs less than the "
+                      "whole grid)" if nested_instead_of(ag) else "")
                    + (f" ({ag['resolution']['cells_per_wavelength']:.1f} cells per dominant wavelength at the "
                       "stop isobath)" if ag.get("resolution") else ""))
     return out

@@ -25,11 +25,11 @@ from ..focusing.ranking import ranked_mask
 from ..grid import MAX_REFINE_FACTOR, GridInfo, refine_grid
 from ..propagation.nest import (NEST_MAX_SHARE, NestBox, _fine_cut, nest_box, nests_within_step, ocean_factor,
                                 simulate_nested)
-from ..propagation.wave import (_BYTES_PER_CELL, WAVE_CAUTION, WaveResult, _check_depth, _dt_from, _metric, _polar_dry,
+from ..propagation.wave import (WAVE_CAUTION, WaveResult, _check_depth, _dt_from, _memory_needed, _metric, _polar_dry,
                                 _wet_mask, simulate_linear_long_wave)
 
 __all__ = ['AMPLITUDE_RATIO_FACTOR', 'AUTO_REFINE', 'MIN_CELLS_PER_WAVELENGTH', 'FAINT_WAVE_FRACTION',
-           'LENSING_MAP_FLOOR', 'NEST_DEFAULT', 'NEST_MARGIN_KM', 'WaveCheck', 'nest_ocean_words', 'check_refine', 'choose_refine', 'compare_with_waves',
+           'LENSING_MAP_FLOOR', 'NEST_DEFAULT', 'NEST_MARGIN_KM', 'WaveCheck', 'nest_ocean_words', 'nested_instead_of', 'check_refine', 'choose_refine', 'compare_with_waves',
            'default_check_duration_s', 'faint_wave_segments', 'wave_resolution']
 
 #: Fewest grid cells per dominant wavelength at the stop isobath the check wants for its coastal
@@ -224,7 +224,8 @@ def choose_refine(
 
     def over(n: int) -> str | None:
         for cells, w, r in runs(n):
-            if max_memory_bytes is not None and _BYTES_PER_CELL * cells * r * r > max_memory_bytes:
+            if max_memory_bytes is not None and _memory_needed(int(round(cells)), r * r, duration_s, None,
+                                                               None) > max_memory_bytes:
                 return "memory"
             if max_cell_updates is not None and w * r * r * math.ceil(steps1 * r) > max_cell_updates:
                 return "work"
@@ -389,6 +390,13 @@ def nest_ocean_words(nest: Mapping[str, Any]) -> str:
     return "the run's grid" if m == 1 else f"the run's grid {m} times finer"
 
 
+def nested_instead_of(agreement: Mapping[str, Any]) -> int | None:
+    """The factor a nested check's finer box replaced (``refine_choice["nested_instead_of"]``), else None."""
+    if not agreement.get("nest"):
+        return None
+    return (agreement.get("refine_choice") or {}).get("nested_instead_of")
+
+
 def _grid_words(refine: int, nest: Mapping[str, Any] | None = None) -> str:
     if refine > 1 and nest:
         return (f"{nest_ocean_words(nest)}, with a box around the segments ({nest['margin_km']:g} km of sea around them, "
@@ -526,16 +534,18 @@ def compare_with_waves(
     if duration_s is None:
         duration_s = default_check_duration_s(depth, segments, stop_depth_m=stop_depth_m, gravity=gravity)
     choice = None
+    # the same box for every factor; none is needed on the run's own grid
+    coast_box = _coast_box(depth, segments) if nest and (refine == AUTO_REFINE or refine != 1) else None
     if isinstance(refine, str) and refine == AUTO_REFINE:
         limits = {key: simulate_kwargs[key] for key in ("max_memory_bytes", "max_cell_updates", "polar_cutoff_deg")
                   if key in simulate_kwargs}
-        box2 = _nest_box(depth, segments, 2) if nest else None  # the box any nestable factor would refine
         choice = choose_refine(depth, period_s, duration_s=duration_s, stop_depth_m=stop_depth_m, gravity=gravity,
-                               cfl=cfl, nest_share=None if box2 is None else box2.share_of(depth.shape), **limits)
+                               cfl=cfl, nest_share=None if coast_box is None else coast_box.share_of(depth.shape),
+                               **limits)
         refine = choice["refine"]
     else:
         check_refine(refine)
-    box = _nest_box(depth, segments, refine) if nest else None
+    box = _box_for(coast_box, int(refine))
     nest_info = None if box is None else {"box": [box.j0, box.j1, box.i0, box.i1], "margin_km": NEST_MARGIN_KM,
                                           "share": box.share_of(depth.shape), "ocean_refine": ocean_factor(refine)}
     if box is None:
@@ -632,11 +642,11 @@ def compare_with_waves(
     return WaveCheck(res, table, agree, wave_reference=res_ref, depth=depth_w)
 
 
-def _nest_box(depth: xr.DataArray, segments: Any, refine: int) -> NestBox | None:
-    """The coast box to refine (:data:`NEST_MARGIN_KM` around the segments), or None: refine it all."""
-    if refine <= 1 or len(segments) == 0:
-        return None
-    if not nests_within_step(refine):
+def _coast_box(depth: xr.DataArray, segments: Any) -> NestBox | None:
+    """The box a nested check refines (:data:`NEST_MARGIN_KM` around the segments), or None when the
+    grid is better refined whole (the box would hold more than :data:`NEST_MAX_SHARE` of it, is too
+    small or reaches the seam of a longitude-periodic grid). It does not depend on the factor."""
+    if len(segments) == 0:
         return None
     b = shapely.bounds(np.asarray(list(segments["geometry"]), dtype=object))
     x = np.concatenate([b[:, 0], b[:, 2]])
@@ -645,6 +655,16 @@ def _nest_box(depth: xr.DataArray, segments: Any, refine: int) -> NestBox | None
     if box.share_of(depth.shape) > NEST_MAX_SHARE or min(box.shape) < 4 or box.reaches_seam(GridInfo.from_dataarray(depth)):
         return None
     return box
+
+
+def _box_for(box: NestBox | None, refine: int) -> NestBox | None:
+    """``box`` when a check refined ``refine`` times nests in it, else None: refine the whole grid."""
+    return box if refine > 1 and nests_within_step(refine) else None
+
+
+def _nest_box(depth: xr.DataArray, segments: Any, refine: int) -> NestBox | None:
+    """The coast box to refine ``refine`` times (:func:`_coast_box`), or None: refine it all."""
+    return _box_for(_coast_box(depth, segments), refine)
 
 
 def _rankings_or_none(ray: pd.Series, wave: pd.Series, k: int) -> dict[str, Any]:
