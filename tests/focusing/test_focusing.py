@@ -447,6 +447,33 @@ def test_three_ray_hotspot_is_not_ranked_first():
     assert ranking.iloc[-1]["segment_id"] == hot["segment_id"] and not ranking.iloc[-1]["reliable"]
 
 
+def test_amplitude_is_ranked_where_only_the_reference_run_is_sparse():
+    # The amplitude depends on the real run alone, the lensing factor on the reference run too
+    # (definitions of the two columns): a coast covered by many real tubes but by fewer than
+    # min_rays reference tubes is ranked by amplitude and not by lensing factor. 400 real rays
+    # over 100 km against 6 reference rays 17 km apart (each 10 km segment then lies within the
+    # footprints of at most 3 reference tubes: fewer than the 10 a ranking needs).
+    d = shelf()
+    real = plane_wave(d, 400, 0.0, 100e3)
+    ref = plane_wave(d, 6, 0.0, 100e3)
+    seg = segment_coastline(coastline_from_grid(d, 20.0), 10e3, d)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", ResolutionWarning)  # "no segment covered in both runs": the point
+        tab = segment_arrivals(seg, real, d, period_s=T, ref_result=ref)
+    inner = (tab["y_mid"] > 15e3) & (tab["y_mid"] < 85e3)  # away from the fan's ends
+    assert inner.sum() >= 5
+    assert tab.loc[inner, "amp_reliable"].all() and not tab["reliable"].any()
+    assert tab.loc[inner, "rank_amplitude"].notna().all() and tab["rank_lensing"].isna().all()
+    assert np.isfinite(tab.loc[inner, "lensing_factor"]).all()  # kept as a value, not ranked
+    with warnings.catch_warnings():
+        warnings.simplefilter("error", ResolutionWarning)  # ranked segments exist: no warning
+        by_amp = rank_segments(tab, top_k=3, by="amplitude")
+    assert list(by_amp["rank_amplitude"].iloc[:3]) == [1, 2, 3] and by_amp["amp_reliable"].iloc[:3].all()
+    with pytest.warns(ResolutionWarning, match="no reliable segment"):
+        by_lens = rank_segments(tab, top_k=3, by="lensing")
+    assert by_lens["rank_lensing"].isna().all()
+
+
 def pd_na():
     import pandas as pd
 

@@ -16,3 +16,22 @@ def test_ranked_mask_reads_the_reliable_flag_however_it_was_stored():
         [True, False, False]
     assert ranked_mask(pd.DataFrame({"reliable": ["True", "False", ""]}, dtype=object)).tolist() == [True, False, False]
     assert ranked_mask(pd.DataFrame({"x": [1.0, 2.0]})).tolist() == [True, True]
+
+
+def test_ranked_mask_per_ranking():
+    # The amplitude ranking reads its own flag (``amp_reliable``: the real run alone), the lensing
+    # ranking ``reliable`` (both runs); tables written before the amplitude flag existed rank both
+    # by ``reliable`` (definitions of the columns, docs/focusing.md).
+    import pandas as pd
+    import pytest
+
+    from tsunamifocus.errors import InputError
+    from tsunamifocus.focusing.ranking import ranked_mask
+
+    t = pd.DataFrame({"reliable": [True, False, False], "amp_reliable": [True, True, False]})
+    assert ranked_mask(t).tolist() == [True, False, False]
+    assert ranked_mask(t, "lensing").tolist() == [True, False, False]
+    assert ranked_mask(t, "amplitude").tolist() == [True, True, False]
+    assert ranked_mask(t[["reliable"]], "amplitude").tolist() == [True, False, False]
+    with pytest.raises(InputError, match="expected 'lensing' or 'amplitude'"):
+        ranked_mask(t, "energy")

@@ -118,6 +118,36 @@ def test_lensing_check_compares_energy_ratios_of_the_two_wave_runs():
     assert np.isnan(lm.values[flat <= 20]).all()
 
 
+def test_check_compares_each_ranking_on_its_own_segments():
+    """The amplitude ranking's segments need the real run's rays only (``amp_reliable``), the
+    lensing ranking's the reference run's too (``reliable``): the check compares each ranking on
+    its own segments (definitions of the columns, docs/focusing.md)."""
+    from shapely.geometry import LineString
+
+    from tsunamifocus.coast.segments import segment_coastline
+    from tsunamifocus.studies.check import compare_with_waves
+
+    dx = 4000.0
+    x = np.arange(0.0, 200e3 + 1, dx)
+    y = np.arange(0.0, 240e3 + 1, dx)
+    X, _ = np.meshgrid(x, y)
+    ocean = make_grid(np.where(X < 180e3, 3000.0, -5.0), x, y, "EPSG:32633")
+    eta = make_grid(np.exp(-((X - 30e3) ** 2) / (2 * 10e3**2)), x, y, "EPSG:32633")
+    seg = segment_coastline([LineString([(178e3, 20e3), (178e3, 220e3)])], 20e3, ocean)
+    n = len(seg)
+    seg["amp_stop_m"] = 1.0 + np.arange(n)
+    seg["lensing_factor"] = 1.0 + np.arange(n)
+    seg["amp_reliable"] = True
+    seg["reliable"] = np.arange(n) < n // 2  # the reference run covers the southern half only
+    chk = compare_with_waves(ocean, eta, seg, reference_depth=ocean, duration_s=1200.0, k=3, threads=1,
+                             refine=1)
+    t = chk.table
+    assert t["ranked"].all() and t["ranked_lensing"].tolist() == seg["reliable"].tolist()
+    assert chk.agreement["n"] == n and chk.agreement["lensing"]["n"] == n // 2
+    assert t.loc[~seg["reliable"].to_numpy(), "rank_ray_lensing"].isna().all()
+    assert t["rank_ray"].notna().all()
+
+
 def test_faint_wave_segments_are_those_far_below_the_median():
     # below 1 % of the ranked segments' median (FAINT_WAVE_FRACTION; set from the real-grid case's
     # strait, docs/wave_check.md): unranked and missing values never count

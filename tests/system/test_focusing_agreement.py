@@ -29,6 +29,7 @@ import pytest
 
 from tsunamifocus.errors import ResolutionWarning
 from tsunamifocus.focusing.agreement import compare_rankings
+from tsunamifocus.focusing.ranking import ranked_mask
 from tsunamifocus.io.scenario import parse_scenario, scenario_from_dict
 from tsunamifocus.studies.check import compare_with_waves
 from tsunamifocus.studies.run import _segments_for, analyse_source, load_scenario_bathymetry
@@ -40,9 +41,10 @@ K = 10
 
 
 def _ranked(seg: pd.DataFrame, col: str) -> pd.Series:
-    """Return a ray column per segment, NaN where the run does not rank the segment (not ``reliable``)."""
+    """Return a ray column per segment, NaN where its ranking does not rank the segment (lensing
+    columns: ``reliable``; the others: ``amp_reliable``)."""
     s = pd.Series(seg[col].to_numpy(float), index=seg["segment_id"].to_numpy())
-    s[~seg["reliable"].fillna(False).astype(bool).to_numpy()] = np.nan
+    s[~ranked_mask(seg, "lensing" if col.startswith("lensing") else "amplitude")] = np.nan
     return s
 
 

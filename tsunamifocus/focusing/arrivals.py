@@ -347,7 +347,10 @@ def segment_arrivals(
       Poisson(1) times, one draw shared by all bands of a run), seeded: the sampling
       uncertainty that remains with tube energies;
     * ``fresnel_sigma_m``, ``c_stop_m_s``, ``h_stop_m``; ``reliable`` - covered by tubes in
-      both runs and at least ``min_rays`` contributing tubes; ``rank_lensing``, ``rank_amplitude``.
+      both runs and at least ``min_rays`` contributing tubes in each (the lensing ranking's
+      segments); ``amp_reliable`` - the same in the real run alone (the amplitude ranking's
+      segments: the amplitude does not depend on the reference ocean); ``rank_lensing``,
+      ``rank_amplitude``.
 
     Parameters
     ----------
@@ -415,16 +418,20 @@ def segment_arrivals(
     real, ref = _energy_columns(out, bl, real_d, ref_d, length, n_boot, rng)
     _amplitude_columns(out, bl, real, ref, h_stop, n_boot, max_incidence_deg, rho, gravity)
     out["fresnel_sigma_m"] = _fresnel_width(out, end, info, out["c_stop_m_s"].to_numpy(float), bl[dom].period_s)
-    rel = ~real["shadow"] & (real["n_tubes"] >= int(min_rays))
+    # the amplitude needs the real run's tubes only; the lensing factor the reference run's too
+    amp_rel = ~real["shadow"] & (real["n_tubes"] >= int(min_rays))
+    rel = amp_rel.copy()
     if ref is not None:
         rel &= ~ref["shadow"] & (ref["n_tubes"] >= int(min_rays))
     if "reachable" in out:  # water the wave cannot reach is neither a shadow nor ranked
         reach = out["reachable"].to_numpy(bool)
         rel &= reach
+        amp_rel &= reach
         for c in ("shadow", "ref_shadow"):
             if c in out:
                 out[c] = out[c].to_numpy(bool) & reach
     out["reliable"] = rel
+    out["amp_reliable"] = amp_rel
     out = _add_ranks(out, ref is not None)
     _arrival_attrs(out, bl, real_d, ref_d, idx, end, max_distance_m, min_rays, n_boot, seed, period_s, coast_area,
                    min_width_factor)

@@ -13,15 +13,21 @@ from ..errors import CoastError, InputError, ResolutionWarning
 __all__ = ['rank_segments', 'ranked_mask']
 
 
-def ranked_mask(seg: pd.DataFrame) -> np.ndarray:
-    """bool per row: the segments a table ranks (its ``reliable`` flag; every row when the column is absent).
+def ranked_mask(seg: pd.DataFrame, by: str = "lensing") -> np.ndarray:
+    """bool per row: the segments a table ranks by ``by`` ("lensing" or "amplitude").
 
-    Missing flags count as not ranked; flags read back from a CSV file as text ("True", "False",
-    "") are understood.
+    The lensing ranking takes the ``reliable`` flag (enough ray tubes in the real and in the
+    reference run); the amplitude ranking needs the real run only and takes ``amp_reliable``
+    where the table has it (tables without it: ``reliable``). Every row when neither column is
+    present. Missing flags count as not ranked; flags read back from a CSV file as text ("True",
+    "False", "") are understood.
     """
-    if "reliable" not in seg.columns:
+    if by not in ("lensing", "amplitude"):
+        raise InputError(f"ranked_mask: by={by!r}; expected 'lensing' or 'amplitude'")
+    name = "amp_reliable" if by == "amplitude" and "amp_reliable" in seg.columns else "reliable"
+    if name not in seg.columns:
         return np.ones(len(seg), dtype=bool)
-    col = seg["reliable"]
+    col = seg[name]
     if col.dtype == object:
         return col.astype(str).str.strip().str.lower().isin(("true", "1", "1.0")).to_numpy()
     return col.fillna(False).to_numpy(dtype=bool)
@@ -37,12 +43,11 @@ def _rank_desc(values: np.ndarray, eligible: np.ndarray) -> pd.arrays.IntegerArr
 
 
 def _add_ranks(table: pd.DataFrame, have_lensing: bool) -> pd.DataFrame:
-    rel = table["reliable"].to_numpy(bool)
     if have_lensing:
-        table["rank_lensing"] = _rank_desc(table["lensing_factor"].to_numpy(float), rel)
+        table["rank_lensing"] = _rank_desc(table["lensing_factor"].to_numpy(float), ranked_mask(table, "lensing"))
     else:
         table["rank_lensing"] = pd.array([pd.NA] * len(table), dtype="Int64")
-    table["rank_amplitude"] = _rank_desc(table["amp_1m_m"].to_numpy(float), rel)
+    table["rank_amplitude"] = _rank_desc(table["amp_1m_m"].to_numpy(float), ranked_mask(table, "amplitude"))
     return table
 
 
@@ -71,10 +76,10 @@ def _pct(a: np.ndarray, q: float) -> np.ndarray:
 
 
 _BY = {
-    "lensing_factor": ("lensing_factor", "rank_lensing"),
-    "lensing": ("lensing_factor", "rank_lensing"),
-    "amp_1m_m": ("amp_1m_m", "rank_amplitude"),
-    "amplitude": ("amp_1m_m", "rank_amplitude"),
+    "lensing_factor": ("lensing_factor", "rank_lensing", "lensing"),
+    "lensing": ("lensing_factor", "rank_lensing", "lensing"),
+    "amp_1m_m": ("amp_1m_m", "rank_amplitude", "amplitude"),
+    "amplitude": ("amp_1m_m", "rank_amplitude", "amplitude"),
 }
 
 
@@ -93,8 +98,9 @@ def rank_segments(table: pd.DataFrame, top_k: int = 20, by: str = "lensing_facto
     Returns
     -------
     pandas.DataFrame
-        The ``top_k`` reliable segments in rank order, followed (``reliable == False``, no rank)
-        by the unreliable segments whose value would have placed them among them. ``attrs``
+        The ``top_k`` reliable segments in rank order, followed (no rank) by the unreliable
+        segments whose value would have placed them among them (:func:`ranked_mask`: for the
+        lensing factor ``reliable``, for the amplitude ``amp_reliable``). ``attrs``
         keep the cautions and method notes.
 
     Raises
@@ -104,7 +110,7 @@ def rank_segments(table: pd.DataFrame, top_k: int = 20, by: str = "lensing_facto
     """
     if by not in _BY:
         raise InputError(f"rank_segments: by='{by}' unknown; expected one of {sorted(_BY)}")
-    col, rcol = _BY[by]
+    col, rcol, kind = _BY[by]
     if col not in table.columns or "reliable" not in table.columns:
         raise InputError("rank_segments: table lacks arrival columns; build it with segment_arrivals")
     if int(top_k) < 1:
@@ -116,7 +122,7 @@ def rank_segments(table: pd.DataFrame, top_k: int = 20, by: str = "lensing_facto
             + (" or no reference run was given" if col == "lensing_factor" else "")
             + "); nothing to rank"
         )
-    rel = table["reliable"].to_numpy(bool)
+    rel = ranked_mask(table, kind)
     ranked = table[rel & np.isfinite(vals)].sort_values(rcol).head(int(top_k))
     if len(ranked):
         floor = float(ranked[col].min()) if len(ranked) == int(top_k) else -np.inf

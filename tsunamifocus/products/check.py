@@ -82,8 +82,9 @@ def check_figures(chk: WaveCheck, folder: pathlib.Path, *, stem: str = "ray_vs_w
                                            t["wave_amp_stop_m"].where(ranked), folder / f"{stem}.png", k=k,
                                            ray_label=label)}
     if "lensing" in chk.agreement:
+        ranked_lens = t["ranked_lensing"] if "ranked_lensing" in t else ranked
         out["ray_vs_wave_lensing"] = plot_ray_vs_wave(
-            t["ray_lensing"].where(ranked).rename("ray_lensing"), t["wave_lensing"].where(ranked),
+            t["ray_lensing"].where(ranked_lens).rename("ray_lensing"), t["wave_lensing"].where(ranked_lens),
             folder / f"{stem}_lensing.png", k=k, ray_label="Ray lensing factor (energy, real / reference ocean)",
             wave_label="Wave lensing factor (energy, real / reference ocean)",
             title="Lensing ranking: rays vs linear long-wave check, per coastline segment")
@@ -98,11 +99,16 @@ def check_figures(chk: WaveCheck, folder: pathlib.Path, *, stem: str = "ray_vs_w
     return out
 
 
+def _lens_col(t: pd.DataFrame) -> str:
+    """The check table's column of the segments the lensing ranking compares (older tables: ``ranked``)."""
+    return "ranked_lensing" if "ranked_lensing" in t.columns else "ranked"
+
+
 def _wave_lensing_figure(chk: WaveCheck, lens_map: Any, segments: pd.DataFrame, depth: Any,
                          path: pathlib.Path) -> pathlib.Path:
     """The wave's lensing map with the ranked segments coloured and numbered by the wave's lensing."""
     t = chk.table.set_index("segment_id")
-    seg = segments[segments["segment_id"].isin(t.index[t["ranked"]])].copy()
+    seg = segments[segments["segment_id"].isin(t.index[t[_lens_col(t)]])].copy()
     seg["lensing_factor"] = t["wave_lensing"].reindex(seg["segment_id"].to_numpy()).to_numpy(float)
     seg["rank_lensing"] = t["rank_wave_lensing"].reindex(seg["segment_id"].to_numpy()).to_numpy(float)
     refine = int(chk.agreement.get("refine", 1))
@@ -255,7 +261,7 @@ def write_wave_lensing(chk: WaveCheck, path: pathlib.Path) -> Any:
     if lens_map is None:
         return None
     t = chk.table
-    seg_vals = pd.to_numeric(t["wave_lensing"].where(t["ranked"]), errors="coerce").to_numpy(float)
+    seg_vals = pd.to_numeric(t["wave_lensing"].where(t[_lens_col(t)]), errors="coerce").to_numpy(float)
     scale = dataclasses.replace(lensing_scale(lens_map.values, seg_vals), layer="wave_lensing",
                                 title="Wave lensing factor (-), log scale; 1 = no focusing")
     write_cog(lens_map, path, description="wave lensing factor: linear long-wave energy (time integral of the "

@@ -1799,7 +1799,7 @@ def plot_check_profile(
     table : pandas.DataFrame
         The check's table (:class:`~tsunamifocus.studies.check.WaveCheck`): ``segment_id``,
         ``ranked``, ``ray_value``, ``wave_amp_stop_m`` and, when the run had a reference,
-        ``ray_lensing``, ``wave_lensing``.
+        ``ray_lensing``, ``wave_lensing`` (drawn where ``ranked_lensing``, when present).
     segments : pandas.DataFrame
         The run's segments table (``segment_id``, ``geometry``, ``length_m``), in coastline order.
     out_path : str or os.PathLike
@@ -1835,6 +1835,9 @@ def plot_check_profile(
     for ax, (rc, wc, ylab) in zip(axes, panels, strict=True):
         x = t["along"].to_numpy(float)
         yr, yw = t[rc].to_numpy(float), t[wc].to_numpy(float)
+        if rc == "ray_lensing" and "ranked_lensing" in t:  # the lensing ranking's own segments
+            lens_ok = t["ranked_lensing"].fillna(False).astype(bool).to_numpy()
+            yr, yw = np.where(lens_ok, yr, np.nan), np.where(lens_ok, yw, np.nan)
         xs, rs, ws = (np.insert(v, brk + 1, np.nan) for v in (x, yr, yw))
         ax.plot(xs, rs, color=_OKABE_BLUE, lw=1.4, marker="o", ms=2.5, label="rays")
         ax.plot(xs, ws, color=_OKABE_VERMILLION, lw=1.2, ls="--", marker="s", ms=2.5, label="wave check")

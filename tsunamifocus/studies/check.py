@@ -597,8 +597,11 @@ def compare_with_waves(
     table = pd.DataFrame({"segment_id": wave.index.values})
     if "name" in segments.columns:
         table["name"] = np.asarray(segments["name"])
-    ranked = ranked_mask(segments)
+    # the amplitude ranking's segments (real run) and the lensing ranking's (both runs)
+    ranked = ranked_mask(segments, "amplitude")
+    ranked_lens = ranked_mask(segments, "lensing")
     table["ranked"] = ranked
+    table["ranked_lensing"] = ranked_lens
     _paired_columns(table, "ray_value", np.asarray(segments[ray_column], dtype=float), "wave_amp_stop_m",
                     wave.values, ranked, ("rank_ray", "rank_wave"))
     arr = segment_max_amplitude(res, segments, depth_w, stop_depth_m, search_radius_cells=search_radius_cells * refine,
@@ -632,11 +635,11 @@ def compare_with_waves(
             peak_lensing = (wave.values / wave_ref.values) ** 2
         table["wave_amp_reference_m"] = wave_ref.values
         ray_lensing = np.asarray(segments[lensing_column], dtype=float)
-        _paired_columns(table, "ray_lensing", ray_lensing, "wave_lensing", wave_lensing, ranked,
+        _paired_columns(table, "ray_lensing", ray_lensing, "wave_lensing", wave_lensing, ranked_lens,
                         ("rank_ray_lensing", "rank_wave_lensing"))
         table["wave_peak_lensing"] = np.where(np.isfinite(peak_lensing), peak_lensing, np.nan)
         for key, col, measure in (("lensing", "wave_lensing", "energy"), ("lensing_peak", "wave_peak_lensing", "peak")):
-            agree[key] = {**_rankings_or_none(table["ray_lensing"].where(ranked), table[col].where(ranked), k),
+            agree[key] = {**_rankings_or_none(table["ray_lensing"].where(ranked_lens), table[col].where(ranked_lens), k),
                           "ray_column": lensing_column, "wave_measure": measure}
     table.attrs.update(ray_column=ray_column, cautions=caution_text())
     return WaveCheck(res, table, agree, wave_reference=res_ref, depth=depth_w)

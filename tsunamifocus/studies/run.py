@@ -709,9 +709,11 @@ def ensemble_member(params: dict, *, depth: xr.DataArray, scenario: Any, segment
     table = seg[["segment_id", *[c for c in _STATIC_COLUMNS if c in seg], *[c for c in _MEMBER_COLUMNS if c in seg]]]
     table = table.set_index("segment_id")
     if "reliable" in seg:
-        # a segment reached by too few rays in this member gives no value (not ranked on noise)
-        bad = ~ranked_mask(seg)
-        table.loc[bad, [c for c in ("lensing_factor", "amp_1m_m") if c in table]] = np.nan
+        # a segment reached by too few rays in this member gives no value (not ranked on noise;
+        # the amplitude needs the real run only, the lensing factor the reference run too)
+        for col, by in (("lensing_factor", "lensing"), ("amp_1m_m", "amplitude")):
+            if col in table:
+                table.loc[~ranked_mask(seg, by), col] = np.nan
     grids = {"energy": a.focusing.energy, "lensing_factor": a.focusing.lensing_factor}
     info = {"mw": float(a.summary.mw), "energy_J": float(a.summary.energy_J),
             "budget_error": float(a.focusing.budget["relative_error"])}

@@ -164,8 +164,11 @@ def set_member(params: dict, *, depth: xr.DataArray, scenario: Any, segments: pd
     table = seg[["segment_id", *[c for c in STATIC_SEGMENT_COLUMNS if c in seg],
                  *[c for c in _MEMBER_COLUMNS if c in seg]]].set_index("segment_id")
     if "reliable" in seg:
-        bad = ~ranked_mask(seg)
-        table.loc[bad, [c for c in ("lensing_factor", "amp_1m_m") if c in table]] = np.nan
+        # too few rays in this member: no value (the amplitude needs the real run only, the
+        # lensing factor the reference run too)
+        for col, by in (("lensing_factor", "lensing"), ("amp_1m_m", "amplitude")):
+            if col in table:
+                table.loc[~ranked_mask(seg, by), col] = np.nan
     grids = {"energy": a.focusing.energy, "lensing_factor": a.focusing.lensing_factor}
     info = {"mw": float(a.summary.mw), "energy_J": float(a.summary.energy_J), "period_s": float(a.period_s),
             "n_rays": int(a.fan.n_rays)}
