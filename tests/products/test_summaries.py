@@ -163,3 +163,17 @@ def test_a_checked_but_weak_ranking_is_said_under_the_appendix_ranking():
     assert "weak" in checked_ranking_note(real) and "In size, the wave's maxima" in checked_ranking_note(real)
     held["amplitude_ratio"] = {"median": 0.91, "p5": 0.54, "p95": 1.41}  # the demo
     assert checked_ranking_note(held) is None
+
+
+def test_the_counts_of_each_ranking_are_said_when_they_differ():
+    # The amplitude ranking ranks the segments the real ocean's rays cover, the lensing ranking
+    # those both oceans' rays cover (definitions, docs/focusing.md); the Cascadia-to-Japan case of
+    # bench_trans_ocean.py measured 64 and 47. The summary names both counts, and one when equal.
+    from tsunamifocus.studies.check import compared_words
+
+    a = _ag(0.35, -0.18)
+    a["n"], a["lensing"]["n"] = 64, 47
+    assert compared_words(a) == "64 segments ranked by amplitude (47 by lensing factor)"
+    assert "on 64 segments ranked by amplitude (47 by lensing factor):" in "\n".join(_check_lines(a))
+    assert compared_words(_ag(0.9, 0.5)) == "143 ranked segments"
+    assert compared_words({"n": 12}) == "12 ranked segments"  # a check without a reference run

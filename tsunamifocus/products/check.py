@@ -346,6 +346,8 @@ def check_section(chk: WaveCheck, figures: dict[str, str], table_file: str = "wa
 
     metrics = {
         "segments compared (ranked)": ag.get("n"),
+        **({"segments compared by lensing factor (ranked by it)": lens.get("n")}
+           if lens.get("n") is not None and lens.get("n") != ag.get("n") else {}),
         "amplitude ranking: Spearman": fmt(ag.get("spearman")),
         "amplitude ranking: Kendall tau": fmt(ag.get("kendall")),
         f"amplitude ranking: top-{k} overlap": overlap(ag),

@@ -13,7 +13,7 @@ from ..focusing.ranking import ranked_mask
 from ..ocean.wavelength import WAVELENGTH_FRACTION
 from ..studies.run import RunResult
 from ..studies.check import (AMPLITUDE_RATIO_FACTOR, FAINT_WAVE_FRACTION, MIN_CELLS_PER_WAVELENGTH, nest_ocean_words,
-                             nested_instead_of)
+                             nested_instead_of, compared_words)
 
 __all__ = ['format_summary', 'step_text']
 
@@ -159,7 +159,7 @@ def _check_lines(ag: dict) -> list[str]:
         why = _weakness(a)
         return f" - weak: {why}" if why else ""
 
-    out = [f"  wave check (linear long-wave solver, unsmoothed sea floor) on {ag.get('n', 0)} ranked segments:",
+    out = [f"  wave check (linear long-wave solver, unsmoothed sea floor) on {compared_words(ag)}:",
            f"    amplitude ranking against the wave's maxima: {held(ag)}{weak(ag)}"]
     if ag.get("lensing"):
         out.append(f"    lensing ranking against the wave's energy:   {held(ag['lensing'])}{weak(ag['lensing'])}")

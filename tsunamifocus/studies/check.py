@@ -29,7 +29,7 @@ from ..propagation.wave import (WAVE_CAUTION, WaveResult, _check_depth, _dt_from
                                 _wet_mask, simulate_linear_long_wave)
 
 __all__ = ['AMPLITUDE_RATIO_FACTOR', 'AUTO_REFINE', 'MIN_CELLS_PER_WAVELENGTH', 'FAINT_WAVE_FRACTION',
-           'LENSING_MAP_FLOOR', 'NEST_DEFAULT', 'NEST_MARGIN_KM', 'WaveCheck', 'nest_ocean_words', 'nested_instead_of', 'check_refine', 'choose_refine', 'compare_with_waves',
+           'LENSING_MAP_FLOOR', 'NEST_DEFAULT', 'NEST_MARGIN_KM', 'WaveCheck', 'compared_words', 'nest_ocean_words', 'nested_instead_of', 'check_refine', 'choose_refine', 'compare_with_waves',
            'default_check_duration_s', 'faint_wave_segments', 'wave_resolution']
 
 #: Fewest grid cells per dominant wavelength at the stop isobath the check wants for its coastal
@@ -338,7 +338,7 @@ class WaveCheck:
         a = self.agreement
         st = self.wave.stats
         lines = [
-            f"wave check on {a['n']} ranked segments ({a.get('ray_column', 'ray')} vs linear long-wave maximum "
+            f"wave check on {compared_words(a)} ({a.get('ray_column', 'ray')} vs linear long-wave maximum "
             "at the stop isobath, unsmoothed sea floor):",
             f"  amplitude ranking: Spearman {a['spearman']:.2f}, Kendall tau {a['kendall']:.2f}, "
             f"top-{a['k']} overlap {a['topk_common']}/{a['k']}",
@@ -382,6 +382,18 @@ def _ratio_words(r: Mapping[str, float]) -> str:
     """The wave's maxima against the rays' indicative amplitudes, in words."""
     return (f"wave maximum / ray amplitude: median {r['median']:.2f} (5-95 % of the segments "
             f"{r['p5']:.2f}-{r['p95']:.2f})")
+
+
+def compared_words(agreement: Mapping[str, Any]) -> str:
+    """How many segments each ranking was compared on, in words: "118 ranked segments", or, when the
+    lensing ranking ranks fewer (the reference ocean's rays reach some sparsely), "64 segments
+    ranked by amplitude (47 by lensing factor)"."""
+    n = int(agreement.get("n", 0))
+    lens = agreement.get("lensing") or {}
+    m = lens.get("n")
+    if m is None or int(m) == n:
+        return f"{n} ranked segments"
+    return f"{n} segments ranked by amplitude ({int(m)} by lensing factor)"
 
 
 def nest_ocean_words(nest: Mapping[str, Any]) -> str:
