@@ -159,6 +159,43 @@ def test_a_tube_spread_wider_than_its_fresnel_zone_stays_near_its_end():
     assert not row[np.abs(y - mean) > 5 * sig].any()
 
 
+def test_tubes_past_their_fresnel_zone_are_counted_as_capped():
+    # A tube is "capped" when its width where it meets the coast, W = |q| dtheta / cos(theta) (q
+    # the paraxial spreading per radian of launch angle, theta the incidence), reaches sqrt(2 pi)
+    # times the first-Fresnel-zone std sqrt(lambda L) / 2 (lambda = c T at the ray's end, L its
+    # path; the Fresnel zone's definition, Born & Wolf, Principles of Optics, cited from memory):
+    # its energy then counts in capped_energy_J. A coarse fan (56 rays, 6.4 degrees apart) on a
+    # straight coast 120 km away has both kinds of tube (the oblique ones are the wide ones:
+    # W grows as 1 / cos^2 theta, the Fresnel width as 1 / sqrt(cos theta)); a fine fan none.
+    from tsunamifocus.coast.tubes import fresnel_sigma
+
+    n = 56
+    d = basin()
+    az = (np.arange(n) + 0.5) * 360.0 / n
+    r = trace_rays(d, np.zeros(n), np.zeros(n), az, weights=np.full(n, E / n), stop_depth_m=20.0,
+                   max_time_s=4 * 3600.0)
+    seg = segment_coastline(coastline_from_grid(d, 20.0), 10e3, d)
+    steps = tube_steps(r.end, GridInfo.from_dataarray(d))
+    dep = tube_deposit(seg, r.end, d, steps=steps, period_s=300.0, max_distance_m=3000.0)
+    e = r.end
+    theta = np.radians(np.abs(az - 90.0))  # the coast's normal points west: incidence = |az - 90|
+    with np.errstate(invalid="ignore", divide="ignore"):
+        width = np.abs(e["q"].values) * steps / np.cos(theta)
+        ratio = width / (math.sqrt(2 * math.pi) * fresnel_sigma(e["c_end"].values * 300.0, e["path_length_m"].values))
+    on_coast = dep.assigned
+    # (the incidence here is taken from the azimuth; the deposit takes it from the coast's own
+    # segment normals: tubes within 10 % of the limit may fall either way)
+    surely, maybe = on_coast & (ratio >= 1.1), on_coast & (ratio >= 0.9)
+    assert surely.sum() >= 2 and (on_coast & ~maybe).sum() >= 2
+    assert np.degrees(theta[surely]).min() > np.degrees(theta[on_coast & ~maybe]).max()
+    rows = np.asarray(dep.matrix.sum(axis=1)).ravel()
+    assert rows[surely].sum() * (1 - 1e-9) <= dep.capped_energy_J.sum() <= rows[maybe].sum() * (1 + 1e-9)
+    assert np.all(dep.capped_energy_J <= dep.energy_J * (1 + 1e-12))
+    # a fine fan (720 rays) on the same coast: no tube reaches its Fresnel width
+    _, _, _, fine = point_source_on_basin(720)
+    assert fine.energy_J.sum() > 0 and not fine.capped_energy_J.any()
+
+
 def island_basin(dx=1000.0):
     """Constant 2000 m depth with a square island 40 km across centred at (140 km, 0)."""
     x = np.arange(0.0, 220e3 + 1, dx)

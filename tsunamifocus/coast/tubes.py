@@ -93,6 +93,10 @@ class TubeDeposit:
         Energy per metre of coast [J m-1] at the most exposed point of each segment: the sum of
         the footprints' Gaussian profiles along the segment, at its samples, maximised over them
         (0 where no footprint reaches).
+    capped_energy_J : numpy.ndarray
+        The part of ``energy_J`` [J] from tubes whose linearised width reached the Fresnel cap
+        (rays past their predictability: where such a ray ends is a draw within its Fresnel
+        zone, the main source of the scatter between ray seeds on trans-ocean paths).
     """
 
     matrix: sparse.csr_matrix
@@ -102,6 +106,7 @@ class TubeDeposit:
     shadow_energy_J: np.ndarray
     assigned: np.ndarray
     peak_per_m: np.ndarray
+    capped_energy_J: np.ndarray
 
 
 def _samples(segments: pd.DataFrame, spacing_m: float, info: GridInfo) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
@@ -500,6 +505,7 @@ def tube_deposit(
     # lenses the linearised spreading grows exponentially (to tubes wider than the ocean) and no
     # longer says where the energy goes; such a tube's energy stays within the Fresnel width
     # (the shadow estimate's) of its end point instead of spreading over the whole coastline line
+    capped = foot >= math.sqrt(2.0 * math.pi) * sig_fres
     foot = np.minimum(foot, math.sqrt(2.0 * math.pi) * sig_fres)
     sigma = np.maximum(foot, min_width_factor * lam) / math.sqrt(2.0 * math.pi)
     line_r = arcs.line[sid[i0]]
@@ -510,6 +516,7 @@ def tube_deposit(
     mat = sparse.csr_matrix((w[r] * v, (hit[r], c)), shape=(nray, nseg))
     peak = _peak_per_m(geo, r, c, w[r] * v, s0, sigma, line_r, nseg)
     energy = np.asarray(mat.sum(axis=0)).ravel()
+    capped_e = np.bincount(c, weights=(w[r] * v) * capped[r], minlength=nseg).astype(float)
     n_rays = np.bincount(c, minlength=nseg)
     # coverage by the unregularised box footprints
     covered = np.zeros(nseg, dtype=bool)
@@ -528,7 +535,7 @@ def tube_deposit(
     assigned = np.zeros(nray, dtype=bool)
     assigned[hit[r]] = True
     return TubeDeposit(matrix=mat, energy_J=energy, n_rays=n_rays, shadow=shadow,
-                       shadow_energy_J=shadow_e, assigned=assigned, peak_per_m=peak)
+                       shadow_energy_J=shadow_e, assigned=assigned, peak_per_m=peak, capped_energy_J=capped_e)
 
 
 def _peak_per_m(geo: CoastGeometry, r: np.ndarray, c: np.ndarray, e: np.ndarray, s0: np.ndarray,

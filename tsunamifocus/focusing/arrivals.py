@@ -208,6 +208,7 @@ def _combined(bands: list[BandTrace], deps: list[TubeDeposit], length: np.ndarra
         "peak_band": peak_band,
         "peak_per_m": w @ peak_band,
         "energy_J": np.sum([wb * d.energy_J for wb, d in zip(w, deps)], axis=0),
+        "capped_J": np.sum([wb * d.capped_energy_J for wb, d in zip(w, deps)], axis=0),
         "per_m": w @ per_band,
         "per_band": per_band,
         "shadow": deps[dom].shadow,
@@ -333,6 +334,9 @@ def segment_arrivals(
       :attr:`TubeDeposit.peak_per_m`; the wave check takes its maxima over the segment's cells
       alike); ``shadow`` - no tube footprint covers the segment (dominant band; value estimated,
       not ranked);
+    * ``capped_share`` - the share of ``energy_J`` that came in tubes whose linearised width
+      reached the first Fresnel zone (rays past their predictability, spectrum-weighted; the
+      main source of seed-to-seed scatter on trans-ocean paths, docs/focusing.md);
     * ``first_arrival_s``, ``caustics_mean``, ``arrival_azimuth_deg``, ``incidence_deg`` - from
       the rays ending nearest to the segment (dominant band; head-on where none ends);
     * ``ref_n_rays``, ``ref_energy_per_m``, ``ref_peak_energy_per_m``, ``lensing_factor =
@@ -446,6 +450,8 @@ def _energy_columns(out: pd.DataFrame, bl: list[BandTrace], real_d: list[TubeDep
     real = _combined(bl, real_d, length)
     out["n_rays"] = real["n_tubes"].astype(np.int64)
     out["energy_J"] = real["energy_J"]
+    with np.errstate(invalid="ignore", divide="ignore"):
+        out["capped_share"] = np.where(real["energy_J"] > 0, real["capped_J"] / real["energy_J"], np.nan)
     out["energy_per_m"] = real["per_m"]
     out["peak_energy_per_m"] = real["peak_per_m"]
     out["shadow"] = real["shadow"]

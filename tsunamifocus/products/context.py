@@ -15,7 +15,7 @@ from ..io.gis import _plain_dtypes, longitude_note
 from ..studies.inspect import summarize_grid
 from ..studies.ensemble import robustness_scale
 from ..studies.run import SourceAnalysis
-from .summaries import UNCHECKED_RANKING, checked_ranking_note, step_text
+from .summaries import UNCHECKED_RANKING, capped_line, checked_ranking_note, step_text
 
 __all__ = []
 
@@ -138,6 +138,9 @@ def _report_context(a: SourceAnalysis, scenario: Any, depth: xr.DataArray, point
         ctx["ranking_note"] = f"This ranking was {UNCHECKED_RANKING[0]}; {UNCHECKED_RANKING[1]}."
     elif (note := checked_ranking_note(a.check.agreement)) is not None:
         ctx["ranking_note"] = note
+    if (cl := capped_line(f.segments, a.check is not None, remedy=False)) is not None:
+        cl = cl[0].upper() + cl[1:] + "."
+        ctx["ranking_note"] = f"{ctx['ranking_note']} {cl}" if ctx.get("ranking_note") else cl
     if a.travel_times is not None:
         ctx["travel_times"] = _travel_time_section(a, scenario, depth)
     if ensemble is not None:

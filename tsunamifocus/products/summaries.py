@@ -106,6 +106,43 @@ def seg_sigma_km(seg: pd.DataFrame) -> np.ndarray:
 WEAK_AGREEMENT: float = 0.5
 
 
+#: From this share of the ranked segments' energy carried by Fresnel-capped ray tubes (rays past
+#: their predictability) the summary says that segment values scatter between ray seeds. Project
+#: choice from measurements (docs/focusing.md): the demo 0.3 %, four trans-ocean cases 34-65 %
+#: (spectrum-weighted; 15-91 % per period band), where two seeds' segment energies differ by 30-40 %
+#: (rms of the log ratio).
+CAPPED_SHARE_NOTE: float = 0.25
+
+
+def capped_share(seg: pd.DataFrame) -> float | None:
+    """Energy-weighted share of the amplitude-ranked segments' energy that came in Fresnel-capped
+    tubes (the ``capped_share`` column), or None when the table has no such column or energy."""
+    if "capped_share" not in seg or "energy_J" not in seg:
+        return None
+    ok = ranked_mask(seg, "amplitude")
+    e = pd.to_numeric(seg["energy_J"], errors="coerce").to_numpy(float)[ok]
+    c = pd.to_numeric(seg["capped_share"], errors="coerce").to_numpy(float)[ok]
+    good = np.isfinite(e) & np.isfinite(c) & (e > 0)
+    if not good.any():
+        return None
+    return float(np.sum(e[good] * c[good]) / np.sum(e[good]))
+
+
+def capped_line(seg: pd.DataFrame, checked: bool, remedy: bool = True) -> str | None:
+    """The summary's sentence on rays past their predictability, or None below CAPPED_SHARE_NOTE
+    (``remedy``: end with where to see how far the rankings hold)."""
+    cs = capped_share(seg)
+    if cs is None or cs < CAPPED_SHARE_NOTE:
+        return None
+    text = (f"{100 * cs:.0f} % of the energy reaching the ranked segments came in ray tubes wider than their first "
+            "Fresnel zone (rays past their predictability, as across an ocean): segment values scatter by tens of "
+            "percent between ray seeds")
+    if not remedy:
+        return text
+    return text + ("; the wave check says how far the rankings hold" if checked else
+                   "; 'tsunamifocus check RUN' says how far the rankings hold")
+
+
 #: How to read a lensing factor no wave check confirmed (run summaries, appendices, source sets).
 LENSING_QUALITATIVE: str = ("read the lensing factor as qualitative (the project's checks hold the amplitude "
                             "ranking more closely; docs/focusing.md)")
@@ -353,6 +390,9 @@ def format_run_summary(result: RunResult) -> str:
                          f"amplitude at 1 m {r['amp_1m_m']:.2f} m  first arrival {r['first_arrival_s'] / 60:.0f} min"
                          + (f"  (within {edge_km:.0f} km of the grid edge: rays from beyond it are missing)"
                             if near else ""))
+        cl = capped_line(f.segments, a.check is not None)
+        if cl is not None:
+            lines.append("  " + cl)
         if a.check is not None:
             lines.extend(_check_lines(a.check.agreement))
         elif len(rel):
