@@ -170,13 +170,8 @@ def test_tubes_past_their_fresnel_zone_are_counted_as_capped():
     from tsunamifocus.coast.tubes import fresnel_sigma
 
     n = 56
-    d = basin()
-    az = (np.arange(n) + 0.5) * 360.0 / n
-    r = trace_rays(d, np.zeros(n), np.zeros(n), az, weights=np.full(n, E / n), stop_depth_m=20.0,
-                   max_time_s=4 * 3600.0)
-    seg = segment_coastline(coastline_from_grid(d, 20.0), 10e3, d)
-    steps = tube_steps(r.end, GridInfo.from_dataarray(d))
-    dep = tube_deposit(seg, r.end, d, steps=steps, period_s=300.0, max_distance_m=3000.0)
+    az = (np.arange(n) + 0.5) * 360.0 / n  # the fan of point_source_on_basin
+    r, _, steps, dep = point_source_on_basin(n)
     e = r.end
     theta = np.radians(np.abs(az - 90.0))  # the coast's normal points west: incidence = |az - 90|
     with np.errstate(invalid="ignore", divide="ignore"):

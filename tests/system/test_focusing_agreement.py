@@ -202,6 +202,30 @@ def test_demo_rankings_are_stable_between_ray_seeds(demo_runs):
 # ------------------------------------------------------------------------------------------------
 
 
+def _real_case(etopo_path, name: str, trace: list, width_km: float, dip_deg: float, coast_box: list):
+    """A Mw 9.0 thrust (top 5 km, rake 90) on the global relief cropped to lon 120..250 E, lat 0..65 N;
+    rays at the default count, seed 0, 15 h; 20 km segments, the coast of interest a box of centres."""
+    return scenario_from_dict({
+        "scenario": {"name": name},
+        "bathymetry": {"path": str(etopo_path), "values": "elevation", "crop": [120.0, 0.0, 250.0, 65.0]},
+        "source": [{"name": name, "kind": "fault", "magnitude": 9.0,
+                    "segment": [{"trace": trace, "top_depth_km": 5.0, "dip_deg": dip_deg, "width_km": width_km,
+                                 "rake_deg": 90.0}]}],
+        "rays": {"count": DEFAULT_RAY_COUNT, "stop_depth_m": 20.0, "max_time_h": 15.0, "seed": 0},
+        "coast": {"segment_km": 20.0, "region": coast_box},
+    }, base_dir=pathlib.Path(etopo_path).parent)
+
+
+def _real_rays(sc):
+    """The case's depth grid and its rays at the scenario's settings over the whole 20 m contour
+    (the coast of interest is ranked); coverage notes of a coast of interest are said elsewhere."""
+    depth = load_scenario_bathymetry(sc)
+    seg = _segments_for(depth, sc)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", ResolutionWarning)
+        return depth, analyse_source(depth, sc, sc.sources[0], segments=seg, keep_paths=0)
+
+
 @pytest.mark.realdata
 @pytest.mark.slow
 def test_real_grid_amplitude_ranking_against_the_wave(etopo_path):
@@ -213,20 +237,8 @@ def test_real_grid_amplitude_ranking_against_the_wave(etopo_path):
     # (10000 rays, 3 period bands, seed 0), 15 h travel-time limit. The wave solver runs over the
     # real ocean only at the check's default grid (the amplitude ranking), and over both oceans at the
     # grid's own 0.1 degree (the amplitude ranking there, and the lensing maps).
-    sc = scenario_from_dict({
-        "scenario": {"name": "japan-trench-mw90"},
-        "bathymetry": {"path": str(etopo_path), "values": "elevation", "crop": [120.0, 0.0, 250.0, 65.0]},
-        "source": [{"name": "japan-trench-mw90", "kind": "fault", "magnitude": 9.0,
-                    "segment": [{"trace": [[144.3, 39.8], [142.9, 36.3]], "top_depth_km": 5.0,
-                                 "dip_deg": 12.0, "width_km": 175.0, "rake_deg": 90.0}]}],
-        "rays": {"count": DEFAULT_RAY_COUNT, "stop_depth_m": 20.0, "max_time_h": 15.0, "seed": 0},
-        "coast": {"segment_km": 20.0, "region": [235.0, 32.0, 244.0, 49.0]},
-    }, base_dir=pathlib.Path(etopo_path).parent)
-    depth = load_scenario_bathymetry(sc)
-    seg = _segments_for(depth, sc)  # the whole 20 m contour; the coast of interest is ranked
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", ResolutionWarning)  # coverage of a coast of interest, said elsewhere
-        a = analyse_source(depth, sc, sc.sources[0], segments=seg, keep_paths=0)
+    depth, a = _real_rays(_real_case(etopo_path, "japan-trench-mw90", [[144.3, 39.8], [142.9, 36.3]], 175.0,
+                                     12.0, [235.0, 32.0, 244.0, 49.0]))
     assert len(a.focusing.segments) > 150  # measured: 183 segments in the coast of interest
     # Across an ocean most coast energy comes in tubes past their first Fresnel zone (rays past
     # their predictability; the main source of the seed scatter, docs/focusing.md): measured
@@ -297,20 +309,8 @@ def test_real_grid_ranking_that_does_not_hold_is_said(etopo_path):
     # (docs/focusing.md, "Out of sample"); this test uses the check at the grid's own 0.1 degree
     # (seconds), where the rays rank the coast no better: measured 2026-12-04 amplitude 0.229
     # (1/10), lensing -0.264 (2/10).
-    sc = scenario_from_dict({
-        "scenario": {"name": "cascadia-mw90"},
-        "bathymetry": {"path": str(etopo_path), "values": "elevation", "crop": [120.0, 0.0, 250.0, 65.0]},
-        "source": [{"name": "cascadia-mw90", "kind": "fault", "magnitude": 9.0,
-                    "segment": [{"trace": [[234.85, 41.5], [234.0, 47.5]], "top_depth_km": 5.0,
-                                 "dip_deg": 10.0, "width_km": 100.0, "rake_deg": 90.0}]}],
-        "rays": {"count": DEFAULT_RAY_COUNT, "stop_depth_m": 20.0, "max_time_h": 15.0, "seed": 0},
-        "coast": {"segment_km": 20.0, "region": [139.5, 33.0, 146.0, 43.0]},
-    }, base_dir=pathlib.Path(etopo_path).parent)
-    depth = load_scenario_bathymetry(sc)
-    seg = _segments_for(depth, sc)
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", ResolutionWarning)
-        a = analyse_source(depth, sc, sc.sources[0], segments=seg, keep_paths=0)
+    depth, a = _real_rays(_real_case(etopo_path, "cascadia-mw90", [[234.85, 41.5], [234.0, 47.5]], 100.0, 10.0,
+                                     [139.5, 33.0, 146.0, 43.0]))
     s = a.focusing.segments
     # The smoothed reference ocean's rays reach Hokkaido's south coast sparsely: those segments are
     # ranked by amplitude (the real ocean's tubes cover them) and not by lensing factor. Measured
