@@ -265,8 +265,9 @@ def test_real_grid_amplitude_ranking_against_the_wave(etopo_path):
     # Project target: Spearman >= 0.8 against the wave. Measured 2026-12-04 (10000 rays, seed 0;
     # seed 1 in benchmarks/bench_focusing.py; caustic footprints two wavelengths wide; amplitudes
     # at each segment's most exposed point): against the check as it runs by default (the coast's
-    # box refined 2x, 0.05 degree, nested) 0.795, top-10 6/10 (seed 1: 0.809 on its 124 amplitude-ranked segments; 0.802 on 122 before the amplitude ranking took its own segments) - at the target,
-    # seed 0 0.005 below it; from the segments' mean energies (2026-12-03) 0.804 / 0.804. Against
+    # box refined 2x, 0.05 degree, nested) 0.795, top-10 6/10 (seed 1: 0.809 on its 124
+    # amplitude-ranked segments; 0.802 on 122 before the amplitude ranking took its own segments) -
+    # at the target, seed 0 0.005 below it; from the segments' mean energies (2026-12-03) 0.804 / 0.804. Against
     # the check at the grid's own 0.1 degree, which is not converged on this coast
     # (docs/wave_check.md), 0.663 / 0.684, top-10 2-3/10 (mean energies 0.673 / 0.688). With
     # footprints one wavelength wide: 0.810 / 0.801 and 0.678 / 0.683; against the whole grid
