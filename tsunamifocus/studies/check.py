@@ -338,8 +338,8 @@ class WaveCheck:
         a = self.agreement
         st = self.wave.stats
         lines = [
-            f"wave check on {compared_words(a)} ({a.get('ray_column', 'ray')} vs linear long-wave maximum "
-            "at the stop isobath, unsmoothed sea floor):",
+            f"wave check on {compared_words(a)}; {a.get('ray_column', 'ray')} against the linear long-wave "
+            "maximum at the stop isobath, unsmoothed sea floor:",
             f"  amplitude ranking: Spearman {a['spearman']:.2f}, Kendall tau {a['kendall']:.2f}, "
             f"top-{a['k']} overlap {a['topk_common']}/{a['k']}",
         ]
