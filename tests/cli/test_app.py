@@ -68,3 +68,44 @@ def test_warnings_are_one_line_and_quiet_silences_them(tmp_path):
     assert len(lines) == 1, lines
     assert lines[0].startswith("WARNING: DataWarning: ") and "1 of 3600 cells" in lines[0], lines
     assert stderr("-q") == []
+
+
+def test_a_signal_inside_the_jit_compiler_is_delivered_again_after_it():
+    # Python runs signal handlers between bytecodes, also inside callbacks that C code calls, where
+    # an exception cannot propagate to the caller: it is printed and dropped ("Exception ignored on
+    # calling ctypes callback function", as a CI run of the interrupt test showed). llvmlite's
+    # object cache calls such a callback while numba loads a kernel, so a KeyboardInterrupt raised
+    # there is lost and the compiler goes on in an undefined state (that run ended with a
+    # segmentation fault, exit -11, instead of 130). The
+    # command line's handlers therefore defer a signal that arrives in the compiler's code and send
+    # it again a moment later.
+    import os
+    import signal
+    import time
+
+    from tsunamifocus.cli import app
+
+    def frame_in(path: str):
+        code = compile("import sys\nf = sys._getframe()", path, "exec")
+        ns: dict = {}
+        exec(code, ns)
+        return ns["f"]
+
+    assert app.in_compiler(frame_in(os.path.join(os.sep, "venv", "llvmlite", "binding", "executionengine.py")))
+    assert app.in_compiler(frame_in(os.path.join(os.sep, "venv", "numba", "core", "dispatcher.py")))
+    assert not app.in_compiler(frame_in(os.path.join(os.sep, "work", "tsunamifocus", "propagation", "rays.py")))
+    assert not app.in_compiler(None)
+
+    got: list[int] = []
+    old = signal.getsignal(signal.SIGUSR1)
+    signal.signal(signal.SIGUSR1, lambda s, f: got.append(s))
+    try:
+        inside = frame_in(os.path.join(os.sep, "venv", "llvmlite", "binding", "ffi.py"))
+        assert app._deferred(signal.SIGUSR1, inside) is True  # not raised now ...
+        deadline = time.monotonic() + 5.0
+        while not got and time.monotonic() < deadline:
+            time.sleep(0.01)
+        assert got == [signal.SIGUSR1]  # ... but delivered again once out of the compiler
+        assert app._deferred(signal.SIGUSR1, frame_in("/work/x.py")) is False
+    finally:
+        signal.signal(signal.SIGUSR1, old)

@@ -11,6 +11,7 @@ import argparse
 import contextlib
 import errno
 import logging
+import os
 import signal
 import sys
 import threading
@@ -164,6 +165,35 @@ class _Terminated(BaseException):
     """Raised by the SIGTERM handler of the command line so outputs are cleaned up on the way out."""
 
 
+#: Delay [s] before a signal that arrived inside the compiler's callbacks is delivered again.
+_REDELIVER_S = 0.05
+
+
+def in_compiler(frame) -> bool:
+    """True when ``frame`` (the one a signal handler receives) or a caller runs in the JIT compiler's
+    Python code (llvmlite, numba's core): loading or compiling a kernel. An exception raised there
+    can land in a callback called from C (the object cache of llvmlite), where it cannot propagate:
+    it is dropped and the compiler carries on in an undefined state (seen as a segmentation fault)."""
+    marks = (f"{os.sep}llvmlite{os.sep}", f"{os.sep}numba{os.sep}core{os.sep}")
+    depth = 0
+    while frame is not None and depth < 500:
+        name = frame.f_code.co_filename
+        if any(m in name for m in marks):
+            return True
+        frame, depth = frame.f_back, depth + 1
+    return False
+
+
+def _deferred(signum: int, frame) -> bool:
+    """Inside the compiler: deliver the signal again a moment later (once out of it) and return True."""
+    if not in_compiler(frame):
+        return False
+    t = threading.Timer(_REDELIVER_S, os.kill, (os.getpid(), signum))
+    t.daemon = True
+    t.start()
+    return True
+
+
 def _catch_sigterm():
     """Turn SIGTERM into :class:`_Terminated` while a command runs (main thread only); both SIGTERM and
     SIGINT also ask kernels running on other threads to stop (:func:`~tsunamifocus.io.interrupts.request_stop`)."""
@@ -178,10 +208,14 @@ def _catch_sigterm():
 
     def handler(signum, frame):
         request_stop()  # kernels on worker threads (ensemble members) stop after their current piece
+        if _deferred(signum, frame):
+            return
         raise _Terminated()
 
     def on_sigint(signum, frame):
         request_stop()
+        if _deferred(signum, frame):
+            return
         raise KeyboardInterrupt
 
     old_int = signal.getsignal(signal.SIGINT)
