@@ -1838,6 +1838,10 @@ def plot_check_profile(
         if rc == "ray_lensing" and "ranked_lensing" in t:  # the lensing ranking's own segments
             lens_ok = t["ranked_lensing"].fillna(False).astype(bool).to_numpy()
             yr, yw = np.where(lens_ok, yr, np.nan), np.where(lens_ok, yw, np.nan)
+            if not lens_ok.all():  # say why a stretch of the panel is empty
+                ax.text(0.99, 0.04, f"{int((~lens_ok).sum())} segments ranked by amplitude only (too few rays "
+                        "over the reference ocean)", transform=ax.transAxes, ha="right", va="bottom", fontsize=7.5,
+                        color="0.3")
         xs, rs, ws = (np.insert(v, brk + 1, np.nan) for v in (x, yr, yw))
         ax.plot(xs, rs, color=_OKABE_BLUE, lw=1.4, marker="o", ms=2.5, label="rays")
         ax.plot(xs, ws, color=_OKABE_VERMILLION, lw=1.2, ls="--", marker="s", ms=2.5, label="wave check")
