@@ -146,6 +146,12 @@ def test_check_compares_each_ranking_on_its_own_segments():
     assert chk.agreement["n"] == n and chk.agreement["lensing"]["n"] == n // 2
     assert t.loc[~seg["reliable"].to_numpy(), "rank_ray_lensing"].isna().all()
     assert t["rank_ray"].notna().all()
+    # the appendix's check section names both counts
+    from tsunamifocus.products.check import check_section
+
+    m = check_section(chk, {})["metrics"]
+    assert m["segments compared by amplitude (ranked by it)"] == n
+    assert m["segments compared by lensing factor (ranked by it)"] == n // 2
 
 
 def test_faint_wave_segments_are_those_far_below_the_median():

@@ -344,10 +344,10 @@ def check_section(chk: WaveCheck, figures: dict[str, str], table_file: str = "wa
         common, kk = d.get("topk_common"), d.get("k", k)
         return f"{common}/{kk}" if common is not None else d.get("topk_overlap")
 
+    two = lens.get("n") is not None and lens.get("n") != ag.get("n")  # each ranking has its own segments
     metrics = {
-        "segments compared (ranked)": ag.get("n"),
-        **({"segments compared by lensing factor (ranked by it)": lens.get("n")}
-           if lens.get("n") is not None and lens.get("n") != ag.get("n") else {}),
+        ("segments compared by amplitude (ranked by it)" if two else "segments compared (ranked)"): ag.get("n"),
+        **({"segments compared by lensing factor (ranked by it)": lens.get("n")} if two else {}),
         "amplitude ranking: Spearman": fmt(ag.get("spearman")),
         "amplitude ranking: Kendall tau": fmt(ag.get("kendall")),
         f"amplitude ranking: top-{k} overlap": overlap(ag),
