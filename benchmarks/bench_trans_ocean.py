@@ -20,8 +20,9 @@ cascadia  (234.85, 41.5) -> (234.0, 47.5)      100 km, 10 deg    Japan, 139.5..1
 
 For each case: the ray pipeline's wall time for two seeds, the wave check as it runs by default
 (``refine="auto"``; its grid choice and wall time), the agreement of both seeds' amplitude and
-lensing rankings with the wave's (Spearman, top-10 overlap, ranked segments) and the agreement
-between the seeds. About 12-15 minutes on 2 cores (the checks dominate).
+lensing rankings with the wave's (Spearman, top-10 overlap, ranked segments), the agreement
+between the seeds, and the share of the ranked segments' ray energy that came in tubes past their
+first Fresnel zone (``capped``: rays past their predictability, docs/focusing.md). About 12-15 minutes on 2 cores (the checks dominate).
 
 Run:  python benchmarks/bench_trans_ocean.py [--cases japan cascadia] [--rays N] [--seeds 0 1]
 """
@@ -40,6 +41,7 @@ from bench_focusing import DEMO_SCENARIO, REAL_CROP, K, _series, shared_data_dir
 from tsunamifocus.errors import ResolutionWarning
 from tsunamifocus.focusing.agreement import compare_rankings
 from tsunamifocus.io.scenario import parse_scenario, scenario_from_dict
+from tsunamifocus.products.summaries import capped_share
 from tsunamifocus.studies.check import compare_with_waves
 from tsunamifocus.studies.run import _segments_for, analyse_source, load_scenario_bathymetry
 
@@ -86,7 +88,8 @@ def run_case(name: str, etopo: pathlib.Path, seeds: tuple[int, int], rays: int |
     chk = compare_with_waves(depth, a.eta, a.focusing.segments, reference_depth=a.focusing.reference_depth,
                              stop_depth_m=sc.rays.stop_depth_m, k=K, period_s=a.period_s)
     out = {"case": name, "rays": a.fan.n_rays, "ray_s": runs[0][0], "check_s": time.perf_counter() - t0,
-           "period_min": a.period_s / 60.0, "grid": _grid_words(chk.agreement)}
+           "period_min": a.period_s / 60.0, "grid": _grid_words(chk.agreement),
+           "capped": capped_share(a.focusing.segments)}
     w = chk.table.set_index("segment_id")
     for i, (_, ai) in enumerate(runs):
         sg = ai.focusing.segments
@@ -115,12 +118,12 @@ def print_table(rows: list[dict], seeds: tuple[int, int]) -> None:
     print(f"\nrays vs the default wave check (Spearman seed {seeds[0]} / seed {seeds[1]}, top-{K} overlap), "
           "and the two seeds against each other")
     print(f"{'case':9s} {'T0 min':>6s} {'n':>4s} {'rays s':>6s} {'check':>13s} {'check s':>7s}   "
-          f"{'amplitude vs wave':>22s}   {'lensing vs wave':>22s}   {'seeds amp':>10s} {'seeds lens':>10s}")
+          f"{'amplitude vs wave':>22s}   {'lensing vs wave':>22s}   {'seeds amp':>10s} {'seeds lens':>10s}  capped")
     for r in rows:
         print(f"{r['case']:9s} {r['period_min']:6.1f} {r['amp_0']['n']:4d} {r['ray_s']:6.1f} {r['grid']:>13s} "
               f"{r['check_s']:7.0f}   {_pair(r['amp_0'], r['amp_1']):>22s}   {_pair(r['lens_0'], r['lens_1']):>22s}   "
               f"{r['amp_seeds']['spearman']:6.3f} {r['amp_seeds']['topk_common']:2d}  "
-              f"{r['lens_seeds']['spearman']:6.3f} {r['lens_seeds']['topk_common']:2d}")
+              f"{r['lens_seeds']['spearman']:6.3f} {r['lens_seeds']['topk_common']:2d}  {100 * (r['capped'] or 0):4.0f} %")
     if rows:
         mean = sum(0.5 * (r["amp_0"]["spearman"] + r["amp_1"]["spearman"]) for r in rows) / len(rows)
         print(f"mean amplitude Spearman over the cases and seeds: {mean:.3f}")
