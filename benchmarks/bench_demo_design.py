@@ -45,13 +45,12 @@ import tempfile
 import time
 import warnings
 
-import numpy as np
 import pandas as pd
 
 import tsunamifocus.ocean.demo as demo
 from tsunamifocus.coast.tubes import TUBE_MIN_WIDTH
 from tsunamifocus.focusing.agreement import compare_rankings
-from tsunamifocus.focusing.ranking import ranked_mask
+from tsunamifocus.focusing.ranking import ranked_values
 from tsunamifocus.io.scenario import parse_scenario
 from tsunamifocus.ocean.wavelength import WAVELENGTH_FRACTION
 from tsunamifocus.products.demo import write_demo_data
@@ -117,9 +116,8 @@ def run_one(name: str, realization: int, folder: pathlib.Path, fractions: list[f
             out = {"design": name, "realization": realization, "fraction": frac, "min_width": minw, "judge": judge}
             for i, r in enumerate(runs):
                 seg = r.focusing.segments
-                ok_amp, ok_lens = ranked_mask(seg, "amplitude"), ranked_mask(seg, "lensing")
-                amp = pd.Series(np.where(ok_amp, seg["amp_stop_m"], np.nan), index=seg["segment_id"].to_numpy())
-                lens = pd.Series(np.where(ok_lens, seg["lensing_factor"], np.nan), index=seg["segment_id"].to_numpy())
+                amp = pd.Series(ranked_values(seg, "amp_stop_m"), index=seg["segment_id"].to_numpy())
+                lens = pd.Series(ranked_values(seg, "lensing_factor"), index=seg["segment_id"].to_numpy())
                 ca = compare_rankings(amp, wave["wave_amp_stop_m"], k=K)
                 cl = compare_rankings(lens, wave["wave_lensing"], k=K)
                 out[f"amp_{i}"], out[f"amp_top_{i}"] = ca["spearman"], ca["topk_common"]

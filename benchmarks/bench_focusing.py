@@ -58,7 +58,7 @@ import pandas as pd
 
 from tsunamifocus.errors import ResolutionWarning
 from tsunamifocus.focusing.agreement import compare_rankings
-from tsunamifocus.focusing.ranking import ranked_mask
+from tsunamifocus.focusing.ranking import ranked_values
 from tsunamifocus.io.scenario import parse_scenario, scenario_from_dict
 from tsunamifocus.propagation.wave import simulate_linear_long_wave
 from tsunamifocus.studies.check import AUTO_REFINE, MIN_CELLS_PER_WAVELENGTH, compare_with_waves, wave_resolution
@@ -106,9 +106,7 @@ def _series(seg: pd.DataFrame, col: str) -> pd.Series:
     """Return a ray column indexed by segment, NaN where its ranking does not rank the segment
     (:func:`tsunamifocus.focusing.ranking.ranked_mask`: lensing columns by ``reliable``, the others
     by ``amp_reliable``)."""
-    s = pd.Series(seg[col].to_numpy(float), index=seg["segment_id"].to_numpy())
-    s[~ranked_mask(seg, "lensing" if col.startswith("lensing") else "amplitude")] = np.nan
-    return s
+    return pd.Series(ranked_values(seg, col), index=seg["segment_id"].to_numpy())
 
 
 def warm_up(demo_sc, real_sc) -> None:

@@ -35,3 +35,18 @@ def test_ranked_mask_per_ranking():
     assert ranked_mask(t[["reliable"]], "amplitude").tolist() == [True, False, False]
     with pytest.raises(InputError, match="expected 'lensing' or 'amplitude'"):
         ranked_mask(t, "energy")
+
+
+def test_ranked_values_take_each_quantity_from_its_own_ranking():
+    # lensing columns are blanked where the lensing ranking does not rank a segment, the others
+    # (amplitudes, energies) where the amplitude ranking does not (definitions, docs/focusing.md)
+    import numpy as np
+    import pandas as pd
+
+    from tsunamifocus.focusing.ranking import ranked_values
+
+    t = pd.DataFrame({"reliable": [True, False, False], "amp_reliable": [True, True, False],
+                      "lensing_factor": [2.0, 3.0, 4.0], "lensing_short": [1.0, 1.5, 2.0], "amp_stop_m": [0.5, 0.6, 0.7]})
+    np.testing.assert_array_equal(ranked_values(t, "lensing_factor"), [2.0, np.nan, np.nan])
+    np.testing.assert_array_equal(ranked_values(t, "lensing_short"), [1.0, np.nan, np.nan])
+    np.testing.assert_array_equal(ranked_values(t, "amp_stop_m"), [0.5, 0.6, np.nan])

@@ -29,7 +29,7 @@ import pytest
 
 from tsunamifocus.errors import ResolutionWarning
 from tsunamifocus.focusing.agreement import compare_rankings
-from tsunamifocus.focusing.ranking import ranked_mask
+from tsunamifocus.focusing.ranking import ranked_values
 from tsunamifocus.io.scenario import parse_scenario, scenario_from_dict
 from tsunamifocus.studies.check import compare_with_waves
 from tsunamifocus.studies.run import _segments_for, analyse_source, load_scenario_bathymetry
@@ -43,9 +43,7 @@ K = 10
 def _ranked(seg: pd.DataFrame, col: str) -> pd.Series:
     """Return a ray column per segment, NaN where its ranking does not rank the segment (lensing
     columns: ``reliable``; the others: ``amp_reliable``)."""
-    s = pd.Series(seg[col].to_numpy(float), index=seg["segment_id"].to_numpy())
-    s[~ranked_mask(seg, "lensing" if col.startswith("lensing") else "amplitude")] = np.nan
-    return s
+    return pd.Series(ranked_values(seg, col), index=seg["segment_id"].to_numpy())
 
 
 def _map_agreement(a, chk) -> tuple[float, float]:

@@ -10,7 +10,7 @@ import pandas as pd
 from ..cautions import caution_summary
 from ..errors import CoastError, InputError, ResolutionWarning
 
-__all__ = ['rank_segments', 'ranked_mask']
+__all__ = ['rank_segments', 'ranked_mask', 'ranked_values']
 
 
 def ranked_mask(seg: pd.DataFrame, by: str = "lensing") -> np.ndarray:
@@ -31,6 +31,14 @@ def ranked_mask(seg: pd.DataFrame, by: str = "lensing") -> np.ndarray:
     if col.dtype == object:
         return col.astype(str).str.strip().str.lower().isin(("true", "1", "1.0")).to_numpy()
     return col.fillna(False).to_numpy(dtype=bool)
+
+
+def ranked_values(seg: pd.DataFrame, column: str) -> np.ndarray:
+    """``column`` as floats, NaN where the table does not rank the segment by that quantity: lensing
+    columns (``lensing_factor``, ``lensing_<band>``) by the lensing ranking's segments, every other
+    one (amplitudes, energies) by the amplitude ranking's (:func:`ranked_mask`)."""
+    v = pd.to_numeric(seg[column], errors="coerce").to_numpy(dtype=float)
+    return np.where(ranked_mask(seg, "lensing" if column.startswith("lensing") else "amplitude"), v, np.nan)
 
 
 def _rank_desc(values: np.ndarray, eligible: np.ndarray) -> pd.arrays.IntegerArray:

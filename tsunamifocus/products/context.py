@@ -139,8 +139,7 @@ def _report_context(a: SourceAnalysis, scenario: Any, depth: xr.DataArray, point
     elif (note := checked_ranking_note(a.check.agreement)) is not None:
         ctx["ranking_note"] = note
     if (cl := capped_line(f.segments, a.check is not None, remedy=False)) is not None:
-        cl = cl[0].upper() + cl[1:] + "."
-        ctx["ranking_note"] = f"{ctx['ranking_note']} {cl}" if ctx.get("ranking_note") else cl
+        ctx["ranking_note"] = f"{ctx['ranking_note']} {cl}." if ctx.get("ranking_note") else f"{cl}."
     if a.travel_times is not None:
         ctx["travel_times"] = _travel_time_section(a, scenario, depth)
     if ensemble is not None:

@@ -9,7 +9,7 @@ import numpy as np
 import pandas as pd
 
 from ..cautions import caution_summary
-from ..focusing.ranking import ranked_mask
+from ..focusing.ranking import ranked_mask, ranked_values
 from ..ocean.wavelength import WAVELENGTH_FRACTION
 from ..studies.run import RunResult
 from ..studies.check import (AMPLITUDE_RATIO_FACTOR, FAINT_WAVE_FRACTION, MIN_CELLS_PER_WAVELENGTH, nest_ocean_words,
@@ -119,9 +119,7 @@ def capped_share(seg: pd.DataFrame) -> float | None:
     tubes (the ``capped_share`` column), or None when the table has no such column or energy."""
     if "capped_share" not in seg or "energy_J" not in seg:
         return None
-    ok = ranked_mask(seg, "amplitude")
-    e = pd.to_numeric(seg["energy_J"], errors="coerce").to_numpy(float)[ok]
-    c = pd.to_numeric(seg["capped_share"], errors="coerce").to_numpy(float)[ok]
+    e, c = ranked_values(seg, "energy_J"), ranked_values(seg, "capped_share")  # the amplitude ranking's segments
     good = np.isfinite(e) & np.isfinite(c) & (e > 0)
     if not good.any():
         return None

@@ -45,7 +45,7 @@ from ..cautions import caution_summary
 from ..coast.segments import STATIC_SEGMENT_COLUMNS
 from ..errors import InputError
 from ..focusing.agreement import rank_correlations, topk_mask
-from ..focusing.ranking import ranked_mask
+from ..focusing.ranking import ranked_values
 from ..grid import GridInfo, get_crs
 from ..io.runs import RunTuple
 
@@ -256,7 +256,7 @@ def compare_runs(runs: Sequence[RunTuple], *, top_k: int = 10) -> Comparison:
         segs.append(_check_segmentation(ref_name, ref_seg, str(name), _segments_indexed(seg, str(name))))
     layers, common = _common_layers(runs, ref_name)
     ranking, colmap, k = _ranking_table(names, safe, segs, ref_seg, top_k)
-    corr = _rank_correlation_table(names, np.vstack([_ranked_lensing(s) for s in segs]))
+    corr = _rank_correlation_table(names, np.vstack([ranked_values(s, "lensing_factor") for s in segs]))
     envelope = _envelopes(names, layers, common)
     differences = _differences(names, layers, common)
     summary = _summary(names, ranking, corr, k, colmap)
@@ -299,12 +299,6 @@ def _common_layers(runs: list, ref_name: str) -> tuple[list[dict[str, xr.DataArr
     return layers, common
 
 
-def _ranked_lensing(seg: pd.DataFrame) -> np.ndarray:
-    """A run's lensing factors where it ranks the segment, NaN elsewhere (shadows, too few rays)."""
-    v = seg["lensing_factor"].to_numpy(dtype=float)
-    return np.where(ranked_mask(seg), v, np.nan)
-
-
 def _ranking_table(names: list[str], safe: list[str], segs: list[pd.DataFrame], ref_seg: pd.DataFrame,
                    top_k: int) -> tuple[pd.DataFrame, dict[str, str], int]:
     """Side-by-side ranking: per-run values and ranks, the envelope maximum, earliest arrival, top-k counts."""
@@ -313,7 +307,7 @@ def _ranking_table(names: list[str], safe: list[str], segs: list[pd.DataFrame], 
     colmap: dict[str, str] = {}
     # ranks, top-k counts and the envelope use what each run ranks (its reliable segments): a
     # shadow or a segment of one or two rays is not a hotspot of that run
-    lens = np.vstack([_ranked_lensing(s) for s in segs])
+    lens = np.vstack([ranked_values(s, "lensing_factor") for s in segs])
     for n, sn, s, ls in zip(names, safe, segs, lens):
         colmap[n] = sn
         ranking[f"lensing_factor_{sn}"] = s["lensing_factor"].to_numpy(dtype=float)
