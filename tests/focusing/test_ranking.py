@@ -15,6 +15,10 @@ def test_ranked_mask_reads_the_reliable_flag_however_it_was_stored():
     assert ranked_mask(pd.DataFrame({"reliable": pd.array([True, None, False], dtype="boolean")})).tolist() == \
         [True, False, False]
     assert ranked_mask(pd.DataFrame({"reliable": ["True", "False", ""]}, dtype=object)).tolist() == [True, False, False]
+    # pandas' own string dtype (the default for text from pandas 3): "False" is not a true flag
+    assert ranked_mask(pd.DataFrame({"reliable": pd.array(["True", "False", ""], dtype="string")})).tolist() == \
+        [True, False, False]
+    assert ranked_mask(pd.DataFrame({"reliable": pd.Series(["False", "True"])})).tolist() == [False, True]
     assert ranked_mask(pd.DataFrame({"x": [1.0, 2.0]})).tolist() == [True, True]
 
 

@@ -476,3 +476,49 @@ def test_pdf_replaces_glyphs_its_font_lacks_and_says_so(figs, tmp_path):
     assert out["pdf"].read_bytes().startswith(b"%PDF")
     assert "Bay ?? ?" in pdf_text(out["pdf"], 1, 1)
     assert "\u6d77\u6e7e" in (tmp_path / "a.html").read_text(encoding="utf-8")
+
+
+def _section_blocks(ctx: dict) -> list[dict]:
+    """The blocks of the "Ranked coastline segments" section."""
+    _, blocks = report.document_blocks(ctx)
+    i = next(k for k, b in enumerate(blocks) if b["kind"] == "h2" and "Ranked" in b["text"])
+    j = next(k for k in range(i + 1, len(blocks)) if blocks[k]["kind"] == "h2")
+    return blocks[i + 1:j]
+
+
+def test_amplitude_ranking_table_takes_its_own_segments_and_place(figs):
+    # the amplitude ranking ranks the segments the real ocean's tubes cover (amp_reliable), the lensing
+    # ranking those both oceans' cover (reliable): each table ranks by its own flag and rank column
+    ctx = base_context(figs)
+    seg = ctx["ranking"].copy()
+    n = len(seg)
+    amp = np.linspace(3.0, 0.5, n)
+    seg["amp_1m_m"] = amp[::-1]  # the smallest lensing-table row holds the largest amplitude
+    seg["amp_reliable"] = [True] * (n - 1) + [False]  # the largest amplitude is not ranked by it
+    order = np.argsort(-np.where(seg["amp_reliable"], seg["amp_1m_m"], -np.inf), kind="stable")
+    rank = np.full(n, pd.NA, dtype=object)
+    rank[order[: n - 1]] = np.arange(1, n)
+    seg["rank_amplitude"] = pd.array(rank, dtype="Int64")
+    ctx["ranking"], ctx["top_k"] = seg, 5
+    cols, rows, shown = report._ranking_table(seg, 5, [], by="amplitude")
+    assert shown == 5 and cols.index("Amplitude at 1 m, m (5–95 %)") < cols.index("Lensing factor (5–95 %)")
+    assert "Reliable" not in cols
+    want = seg.loc[seg["amp_reliable"]].sort_values("amp_1m_m", ascending=False)["segment_id"].head(5).tolist()
+    assert [r[1] for r in rows] == want and [r[0] for r in rows] == ["1", "2", "3", "4", "5"]
+    # no rank column: ranked by value among the segments amp_reliable takes; the others unranked
+    cols2, rows2, _ = report._ranking_table(seg.drop(columns="rank_amplitude"), 5, [], by="amplitude")
+    assert rows2[0][0] == "–" and rows2[0][1] == seg.loc[~seg["amp_reliable"], "segment_id"].iloc[0]
+    assert [r[0] for r in rows2[1:]] == ["1", "2", "3", "4"]
+    # placement: after the lensing table (true), before it ("first"), absent by default
+    tables = lambda blocks: [b["caption"] for b in blocks if b["kind"] == "table"]  # noqa: E731
+    assert tables(_section_blocks(ctx)) == ["Ranked coastline segments"]
+    ctx["amplitude_ranking"] = True
+    assert tables(_section_blocks(ctx)) == ["Ranked coastline segments",
+                                            "Coastline segments ranked by indicative amplitude"]
+    ctx["amplitude_ranking"] = "first"
+    blocks = _section_blocks(ctx)
+    assert tables(blocks) == ["Coastline segments ranked by indicative amplitude", "Ranked coastline segments"]
+    assert blocks[0]["text"].startswith("The wave check held this ranking")
+    ctx["amplitude_ranking"] = "yes"
+    with pytest.raises(InputError, match="amplitude_ranking"):
+        report.document_blocks(ctx)

@@ -757,3 +757,21 @@ def test_map_labels_keep_out_of_the_scale_bar_and_north_arrow():
     x1, y1 = x0 + bg.get_width() / 1000e3, y0 + bg.get_height() / 800e3
     sx0, sy0, sx1, sy1 = figures._SCALE_BAR_PANEL
     assert sx0 - 1e-3 <= x0 and sy0 - 1e-3 <= y0 and x1 <= sx1 + 1e-3 and y1 <= sy1 + 1e-3
+
+
+def test_amplitude_ranking_chart_hatches_by_its_own_flag(case, tmp_path):
+    # the amplitude chart greys the segments the amplitude ranking does not take (amp_reliable), not
+    # those the lensing ranking does not (reliable); flags read back from a CSV file are text
+    def colours(seg, name):
+        rgb = read_rgb(figures.plot_ranking(seg, top_k=8, out_path=tmp_path / name, by="amp_1m_m"))[..., :3]
+        blue = np.all(np.abs(rgb - np.array([0.0, 0x72 / 255, 0xB2 / 255])) < 0.03, axis=-1).sum()
+        return blue, np.all(np.abs(rgb - 0.784) < 0.03, axis=-1).sum()
+
+    seg = case["segments"].copy()
+    seg["reliable"] = False
+    seg["amp_reliable"] = "True"
+    blue_ok, grey_ok = colours(seg, "ok.png")
+    seg["amp_reliable"] = "False"
+    blue_not, grey_not = colours(seg, "not.png")
+    assert blue_ok > 2000 and blue_not < 50
+    assert grey_not > 10 * grey_ok

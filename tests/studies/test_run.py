@@ -46,7 +46,11 @@ def test_demo_outputs_exist(demo_run):
               "manifest.json", "scenario.toml", "figures"):
         assert n in names, n
     figs = {p.name for p in (out / "figures").iterdir()}
-    assert {"ray_field.png", "lensing_map.png", "ranking.png", "uplift.png", "travel_time.png"} <= figs
+    assert {"ray_field.png", "lensing_map.png", "ranking.png", "ranking_amplitude.png", "uplift.png",
+            "travel_time.png"} <= figs
+    # both rankings in the appendix; without a wave check the lensing factor's first
+    page = (out / "appendix.html").read_text(encoding="utf-8")
+    assert 0 < page.index("Ranked coastline segments") < page.index("Coastline segments ranked by indicative amplitude")
     assert {"isochrones.gpkg", "isochrones.geojson"} <= names
     assert not any(p.name.startswith(".") for p in out.parent.iterdir())  # no temp folders left
 

@@ -28,7 +28,7 @@ def ranked_mask(seg: pd.DataFrame, by: str = "lensing") -> np.ndarray:
     if name not in seg.columns:
         return np.ones(len(seg), dtype=bool)
     col = seg[name]
-    if col.dtype == object:
+    if col.dtype == object or pd.api.types.is_string_dtype(col.dtype):
         return col.astype(str).str.strip().str.lower().isin(("true", "1", "1.0")).to_numpy()
     return col.fillna(False).to_numpy(dtype=bool)
 

@@ -253,6 +253,8 @@ FIGURE_CAPTIONS: dict[str, str] = {
     "isochrones: hourly (bold) and at the finer interval of the scenario (thin).",
     "ranking": "Top coastline segments ranked by lensing factor with 5–95 % intervals; grey hatched "
     "bars are segments flagged unreliable.",
+    "ranking_amplitude": "Top coastline segments ranked by indicative amplitude at 1 m depth (Green's law, "
+    "indicative only) with 5–95 % intervals; grey hatched bars are segments with too few rays to rank.",
     "oceans": "The two oceans of the lensing factor as the dominant band's wave sees them: the real sea floor "
     "and the lensing reference (offshore relief smoothed over a deep-water wavelength, shelf and coast "
     "kept), both averaged over a fraction of the local wavelength.",
@@ -291,6 +293,8 @@ CONTEXT_KEYS: dict[str, str] = {
     "validation": "table (DataFrame, list of dicts or dict) summarising the validation tests",
     "validation_notes": "str or list of str under the validation table",
     "ranking_note": "str, a note under the ranking table (e.g. that no wave check was run)",
+    "amplitude_ranking": "true: also list the top segments by indicative amplitude after the lensing table; "
+    "'first': before it (the wave check held that ranking and not the lensing factor's)",
     "health": "dict of numerical health checks (values, or dicts with value/limit/ok), or a str saying where they are",
     "figures": "dict key -> path or {path, caption}; keys uplift, ray_field, lensing_map, ranking, ...",
     "points": "table of points of interest (DataFrame or list of dicts)",
@@ -551,24 +555,33 @@ _RANK_COLUMNS: list[tuple[str, str]] = [
 ]
 
 
+#: The ranked quantity, its rank column and the flag of the segments it ranks, per ranking.
+_RANKINGS: dict[str, tuple[str, str, str]] = {
+    "lensing": ("lensing_factor", "rank_lensing", "reliable"),
+    "amplitude": ("amp_1m_m", "rank_amplitude", "amp_reliable"),
+}
+
+
 def _ranking_table(
-    seg: pd.DataFrame, top_k: int, extra: Sequence[tuple[str, str]]
+    seg: pd.DataFrame, top_k: int, extra: Sequence[tuple[str, str]], by: str = "lensing"
 ) -> tuple[list[str], list[list[str]], int]:
     if not isinstance(seg, pd.DataFrame):
         raise InputError(
             f"context['ranking']: expected a pandas DataFrame of segments, got {type(seg).__name__}"
         )
-    for c in ("segment_id", "lensing_factor"):
+    value, rank_col, flag = _RANKINGS[by]
+    for c in ("segment_id", value):
         if c not in seg.columns:
             raise InputError(f"context['ranking']: segments table lacks column '{c}'")
     df = seg.copy()
-    if "rank_lensing" in df.columns and df["rank_lensing"].notna().any():
-        df = df.sort_values(["rank_lensing", "lensing_factor"], ascending=[True, False], na_position="last")
-        ranks = df["rank_lensing"].tolist()
+    if rank_col in df.columns and df[rank_col].notna().any():
+        df = df.sort_values([rank_col, value], ascending=[True, False], na_position="last")
+        ranks = df[rank_col].tolist()
     else:
-        df = df.sort_values("lensing_factor", ascending=False, na_position="last")
-        # no rank column: rank by value, but never rank a segment flagged unreliable
-        rel = df["reliable"].tolist() if "reliable" in df.columns else [True] * len(df)
+        df = df.sort_values(value, ascending=False, na_position="last")
+        # no rank column: rank by value, but never rank a segment its ranking does not take
+        flag = flag if flag in df.columns else "reliable"
+        rel = df[flag].tolist() if flag in df.columns else [True] * len(df)
         ranks, k = [], 0
         for ok in rel:
             good = not pd.isna(ok) and bool(ok)
@@ -582,7 +595,12 @@ def _ranking_table(
         isinstance(a, str) and a.strip() and a != str(b)
         for a, b in zip(df["name"], df["segment_id"], strict=True)
     )
-    for key, head in list(_RANK_COLUMNS) + list(extra):
+    columns = list(_RANK_COLUMNS)
+    if by == "amplitude":  # the ranked value first; its rank says which segments it takes
+        columns = [c for c in columns if c[0] not in ("amp_1m_m", "reliable")]
+        columns.insert(columns.index(("lensing_factor", "Lensing factor (5–95 %)")),
+                       ("amp_1m_m", "Amplitude at 1 m, m (5–95 %)"))
+    for key, head in columns + list(extra):
         if key == "name" and not names_useful:
             continue
         if key in df.columns:
@@ -881,6 +899,12 @@ def _method_blocks(context: Mapping[str, Any]) -> list[_Block]:
 def _ranking_blocks(context: Mapping[str, Any], top_k: int) -> list[_Block]:
     """Section "Ranked coastline segments": the explanation and the table."""
     blocks: list[_Block] = []
+    by_amp = context.get("amplitude_ranking")
+    if by_amp not in (None, False, True, "first"):
+        raise InputError(f"appendix context['amplitude_ranking'] = {by_amp!r}: expected true, false or 'first'")
+    amp = _amplitude_blocks(context, top_k) if by_amp else []
+    if by_amp == "first":
+        blocks.extend(amp)
     cols, rows, shown = _ranking_table(context["ranking"], top_k, context.get("ranking_columns") or [])
     nseg = len(context["ranking"])
     n_ranked = sum(1 for r in rows if r[0] != "–")
@@ -899,7 +923,30 @@ def _ranking_blocks(context: Mapping[str, Any], top_k: int) -> list[_Block]:
     blocks.append(_b("table", columns=cols, rows=rows, caption="Ranked coastline segments", small=True))
     if context.get("ranking_note"):
         blocks.append(_b("note", text=str(context["ranking_note"])))
+    if by_amp is True:
+        blocks.extend(amp)
     return blocks
+
+
+def _amplitude_blocks(context: Mapping[str, Any], top_k: int) -> list[_Block]:
+    """The top segments by indicative amplitude at 1 m depth: a lead and the table (none when the
+    segments table has no amplitude)."""
+    seg = context["ranking"]
+    if not isinstance(seg, pd.DataFrame) or "amp_1m_m" not in seg.columns:
+        return []
+    cols, rows, shown = _ranking_table(seg, top_k, context.get("ranking_columns") or [], by="amplitude")
+    n_ranked = sum(1 for r in rows if r[0] != "–")
+    if n_ranked == 0:
+        return [_b("p", text="No segment is ranked by indicative amplitude (too few contributing rays).")]
+    lead = (f"The {n_ranked} highest-ranked segments by indicative amplitude at 1 m depth (Green's law from the "
+            "energy at the stop isobath, indicative only), with 5–95 % intervals where available"
+            + (f", followed by {shown - n_ranked} not ranked by it (too few contributing rays)." if shown > n_ranked
+               else "."))
+    if context.get("amplitude_ranking") == "first":
+        lead = "The wave check held this ranking and not the lensing factor's: read it first. " + lead
+    return [_b("p", text=lead),
+            _b("table", columns=cols, rows=rows, caption="Coastline segments ranked by indicative amplitude",
+               small=True)]
 
 
 def _validation_blocks(context: Mapping[str, Any]) -> list[_Block]:

@@ -30,6 +30,7 @@ from ..io.runs import read_run
 from ..io.scenario import Scenario, parse_scenario
 from ..grid import refine_grid
 from ..io.styles import lensing_scale
+from .summaries import amplitude_first
 from ..studies.check import (AUTO_REFINE, FAINT_WAVE_FRACTION, NEST_DEFAULT, WaveCheck, check_refine, compare_with_waves, nest_ocean_words,
                              nested_instead_of)
 from .appendix import build_appendix
@@ -296,6 +297,7 @@ def _appendix(tmp: pathlib.Path, run_dir: pathlib.Path, name: str, seg: pd.DataF
         "subtitle": "Supplement to the planning-study appendix (screening level)",
         "scenario": {"name": name, "description": desc or f"Check of run folder {run_dir.name}"},
         "ranking": seg.drop(columns=[c for c in seg.columns if c == "wkt"]),
+        "amplitude_ranking": "first" if amplitude_first(chk.agreement) else True,
         "wave_check": section,
     }
     build_appendix(ctx, tmp / "wave_check_appendix.html", tmp / "wave_check_appendix.pdf")

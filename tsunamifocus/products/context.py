@@ -15,7 +15,7 @@ from ..io.gis import _plain_dtypes, longitude_note
 from ..studies.inspect import summarize_grid
 from ..studies.ensemble import robustness_scale
 from ..studies.run import SourceAnalysis
-from .summaries import UNCHECKED_RANKING, capped_line, checked_ranking_note, step_text
+from .summaries import UNCHECKED_RANKING, amplitude_first, capped_line, checked_ranking_note, step_text
 
 __all__ = []
 
@@ -134,6 +134,8 @@ def _report_context(a: SourceAnalysis, scenario: Any, depth: xr.DataArray, point
         "validation_notes": "Each check runs in the project's automated test suite against the named "
                             "outside reference; see the test files and docs/ for measured errors.",
     }
+    # the amplitude ranking beside the lensing factor's; first when the wave check held it and not the other
+    ctx["amplitude_ranking"] = "first" if a.check is not None and amplitude_first(a.check.agreement) else True
     if a.check is None:
         ctx["ranking_note"] = f"This ranking was {UNCHECKED_RANKING[0]}; {UNCHECKED_RANKING[1]}."
     elif (note := checked_ranking_note(a.check.agreement)) is not None:

@@ -49,6 +49,7 @@ from ..cautions import CAUTION_FOOTER, caution_text
 from ..constants import __version__
 from ..errors import InputError
 from ..focusing.agreement import _paired, compare_rankings, topk_mask
+from ..focusing.ranking import ranked_mask
 from ..grid import GridInfo
 from ..io.styles import NO_VALUE_COLOUR, SEGMENT_CASING_PT, SEGMENT_WIDTH_PT, energy_scale, lensing_scale
 from ..io.styles import log_ticks as _log_ticks
@@ -1268,7 +1269,7 @@ def plot_ranking(
         raise InputError(f"plot_ranking: prob_col '{prob_col}' is not a column of the segments table")
     vals = pd.to_numeric(df[by], errors="coerce").to_numpy(float)
     ypos = np.arange(n)[::-1]
-    rel = _reliable_flags(df)
+    rel = _reliable_flags(df, "amplitude" if by.startswith("amp") else "lensing")
     has_int = bool(lo_col and hi_col and lo_col in df.columns and hi_col in df.columns)
     lo = pd.to_numeric(df[lo_col], errors="coerce").to_numpy(float) if has_int else np.full(n, np.nan)
     hi = pd.to_numeric(df[hi_col], errors="coerce").to_numpy(float) if has_int else np.full(n, np.nan)
@@ -1297,11 +1298,11 @@ def plot_ranking(
     return _finish(fig, out_path, ax=ax)
 
 
-def _reliable_flags(df: pd.DataFrame) -> np.ndarray:
-    """The ``reliable`` column as booleans; missing/unknown reliability counts as unreliable."""
-    if "reliable" not in df.columns:
-        return np.ones(len(df), bool)
-    return np.array([bool(v) if v is not None and v is not pd.NA and v == v else False for v in df["reliable"]])
+def _reliable_flags(df: pd.DataFrame, by: str = "lensing") -> np.ndarray:
+    """Whether each row is ranked by ``by`` (:func:`~tsunamifocus.focusing.ranking.ranked_mask`: "lensing"
+    the ``reliable`` column, "amplitude" ``amp_reliable`` where present); missing flags count as not
+    ranked, flags read back from CSV as text are understood."""
+    return ranked_mask(df, by)
 
 
 def _ranking_axis(vals: np.ndarray, hi: np.ndarray, rel: np.ndarray, with_prob: bool) -> tuple[float, float]:

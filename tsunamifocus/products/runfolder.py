@@ -127,6 +127,12 @@ def _figures(a: SourceAnalysis, depth: xr.DataArray, scenario: Any, folder: path
     if np.isfinite(pd.to_numeric(seg["lensing_factor"], errors="coerce").to_numpy(float)).any():
         figs["ranking"] = F.plot_ranking(seg, scenario.output.top_k, out_path=folder / "ranking.png", title=title,
                                          prob_col=prob)
+    if "rank_amplitude" in seg and np.isfinite(pd.to_numeric(seg["amp_1m_m"], errors="coerce").to_numpy(float)).any():
+        figs["ranking_amplitude"] = F.plot_ranking(
+            seg, scenario.output.top_k, by="amp_1m_m", out_path=folder / "ranking_amplitude.png",
+            title=_ranking_title(seg, scenario.output.top_k, by="amplitude")
+            + "\n(whiskers: 5-95 % bootstrap interval over rays)",
+            xlabel="Indicative amplitude at 1 m depth (m; Green's law, indicative only)")
     tt = a.travel_times.travel_time_s
     figs["travel_time"] = F.plot_travel_time(
         tt, depth, isochrone_levels(tt, scenario.output.isochrone_step_min), out_path=folder / "travel_time.png",
@@ -165,15 +171,19 @@ def _points_xy(points: Sequence[Any], depth: xr.DataArray) -> list[tuple[str, fl
     return out
 
 
-def _ranking_title(seg: pd.DataFrame, top_k: int) -> str:
-    """First title line of the ranking chart, with the counts actually drawn (ranked, then unreliable)."""
-    v = pd.to_numeric(seg["lensing_factor"], errors="coerce").to_numpy(float)
-    rel = ranked_mask(seg)
+def _ranking_title(seg: pd.DataFrame, top_k: int, by: str = "lensing") -> str:
+    """First title line of a ranking chart (``by`` "lensing" or "amplitude"), with the counts actually
+    drawn (ranked, then unreliable)."""
+    col, what = ("amp_1m_m", "amplitude at 1 m depth") if by == "amplitude" else ("lensing_factor",
+                                                                                              "lensing factor")
+    v = pd.to_numeric(seg[col], errors="coerce").to_numpy(float)
+    rel = ranked_mask(seg, by)
     n_rel = min(top_k, int((rel & np.isfinite(v)).sum()))
     n_unrel = min(top_k - n_rel, int((~rel & np.isfinite(v)).sum()))
     if n_rel == 0:
-        return f"No reliable segment: the {n_unrel} highest lensing factors\n(all unreliable, not ranked)"
-    return (f"Top {n_rel} ranked coastline segments by lensing factor"
+        plural = "amplitudes" if by == "amplitude" else "lensing factors"
+        return f"No reliable segment: the {n_unrel} highest {plural}\n(all unreliable, not ranked)"
+    return (f"Top {n_rel} ranked coastline segments by {what}"
             + (f"\nand {n_unrel} unreliable (hatched, not ranked)" if n_unrel else ""))
 
 

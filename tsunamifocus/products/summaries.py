@@ -198,7 +198,7 @@ def _check_lines(ag: dict) -> list[str]:
            f"    amplitude ranking against the wave's maxima: {held(ag)}{weak(ag)}"]
     if ag.get("lensing"):
         out.append(f"    lensing ranking against the wave's energy:   {held(ag['lensing'])}{weak(ag['lensing'])}")
-        if _amplitude_first(ag):
+        if amplitude_first(ag):
             out.append("    rank this coast with the amplitude ranking, not the lensing factor (docs/focusing.md)")
         if _weakness(ag["lensing"]):
             out.append("    where the wave itself focuses: wave_lensing.tif and figures/wave_lensing_map.png")
@@ -252,7 +252,7 @@ def checked_ranking_note(ag: dict | None) -> str | None:
     """A note for under the appendix's ranking table when the wave check found the ranking weak.
 
     The lensing ranking's weakness in words, with the amplitude ranking's figures when the check
-    held that one (:func:`_amplitude_first`) and the check's own resolution when it was not
+    held that one (:func:`amplitude_first`) and the check's own resolution when it was not
     converged; and, when the wave's maxima are more than ``AMPLITUDE_RATIO_FACTOR`` off the
     rays' indicative amplitudes, their size. None when there is nothing to say.
     """
@@ -264,7 +264,7 @@ def checked_ranking_note(ag: dict | None) -> str | None:
         return size.strip() or None
     text = (f"The linear long-wave check found this lensing ranking weak: {why} ({_agreement_text(lens)}; "
             "see the wave check section).") + size
-    if _amplitude_first(ag):
+    if amplitude_first(ag):
         text += f" It held the amplitude ranking ({_agreement_text(ag)}): rank this coast by indicative amplitude."
     elif _is_weak(ag):
         text += f" The amplitude ranking is weak too: {_weakness(ag)}."
@@ -276,7 +276,7 @@ def checked_ranking_note(ag: dict | None) -> str | None:
     return text
 
 
-def _amplitude_first(ag: dict | None) -> bool:
+def amplitude_first(ag: dict | None) -> bool:
     """The check held the amplitude ranking and found the lensing ranking weak."""
     if not ag or not ag.get("lensing"):
         return False
@@ -292,7 +292,7 @@ def amplitude_lines(seg: pd.DataFrame, ag: dict | None = None) -> list[str]:
     """
     if "rank_amplitude" not in seg:
         return []
-    first = _amplitude_first(ag)
+    first = amplitude_first(ag)
     by_amp = seg[seg["rank_amplitude"].notna()].sort_values("rank_amplitude").head(5 if first else 3)
     if not len(by_amp):
         return []
