@@ -30,10 +30,10 @@ from ..io.runs import read_run
 from ..io.scenario import Scenario, parse_scenario
 from ..grid import refine_grid
 from ..io.styles import lensing_scale
-from .summaries import amplitude_first
 from ..studies.check import (AUTO_REFINE, FAINT_WAVE_FRACTION, NEST_DEFAULT, WaveCheck, check_refine, compare_with_waves, nest_ocean_words,
                              nested_instead_of)
 from .appendix import build_appendix
+from .summaries import amplitude_first
 from .figures import plot_check_profile, plot_lensing_map, plot_ray_vs_wave
 
 __all__ = ['wave_check', 'run_wave_check', 'check_figures', 'check_section', 'write_check_table', 'write_wave_lensing',

@@ -174,8 +174,8 @@ def _points_xy(points: Sequence[Any], depth: xr.DataArray) -> list[tuple[str, fl
 def _ranking_title(seg: pd.DataFrame, top_k: int, by: str = "lensing") -> str:
     """First title line of a ranking chart (``by`` "lensing" or "amplitude"), with the counts actually
     drawn (ranked, then unreliable)."""
-    col, what = ("amp_1m_m", "amplitude at 1 m depth") if by == "amplitude" else ("lensing_factor",
-                                                                                              "lensing factor")
+    col, what = (("amp_1m_m", "amplitude at 1 m depth") if by == "amplitude"
+                 else ("lensing_factor", "lensing factor"))
     v = pd.to_numeric(seg[col], errors="coerce").to_numpy(float)
     rel = ranked_mask(seg, by)
     n_rel = min(top_k, int((rel & np.isfinite(v)).sum()))
