@@ -61,7 +61,8 @@ def test_an_unconverged_check_is_said_with_its_remedy():
     fine["resolution"] = {"cells_per_wavelength": MIN_CELLS_PER_WAVELENGTH + 1.4, "period_s": 1567.5}
     assert "refine" not in "\n".join(_check_lines(fine))
     fine["refine"] = 2
-    assert "onto a grid 2 times finer (9.4 cells per dominant wavelength" in "\n".join(_check_lines(fine))
+    assert (f"onto a grid 2 times finer ({MIN_CELLS_PER_WAVELENGTH + 1.4:.1f} cells per dominant wavelength"
+            in "\n".join(_check_lines(fine)))
     assert "refine" not in "\n".join(_check_lines(_ag(0.95, 0.52)))  # a check without the figure says nothing
     # a nested check names the grid the ocean was solved on, and why its box is finer than asked
     nested = dict(fine, refine=4, nest={"margin_km": 400.0, "share": 0.06, "ocean_refine": 2},
