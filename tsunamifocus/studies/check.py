@@ -44,7 +44,7 @@ __all__ = ['AMPLITUDE_RATIO_FACTOR', 'AUTO_REFINE', 'MIN_CELLS_PER_WAVELENGTH', 
 #: with the spacing (Spearman 0.70 on the old real-grid case at 3.4 cells). Ten since 2026-12-04
 #: (8 before, to keep that case at a 2x box): there, on the 118 segments the rays rank, the
 #: default 2x box (8.8 cells) ranked the wave's amplitudes against the box refined 8x (one-way
-#: nested in the ocean 4x) at 0.940 and 4 of its top ten, the 4x box (17.6 cells) at 0.969; the
+#: nested in the ocean 4x) at 0.940 and 4 of its top ten, the 4x box (about 17.6 cells) at 0.969; the
 #: rays agreed with the 2x / 4x / 8x checks at 0.795 / 0.836 / 0.828 (seed 0) and 0.809 / 0.845
 #: / 0.844 (seed 1): the 2x check understated the agreement. The demo (10.5 cells at 2x) keeps 2x.
 MIN_CELLS_PER_WAVELENGTH: float = 10.0
