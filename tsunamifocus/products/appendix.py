@@ -37,6 +37,7 @@ from ..coast.tubes import TUBE_MIN_WIDTH
 from ..cautions import CAUTION_SHORT, caution_text
 from ..constants import __version__
 from ..errors import DataFileError, InputError, TsunamiFocusWarning
+from ..focusing.ranking import ranked_mask
 from ..io.styles import three_digits
 
 __all__ = ['build_appendix', 'CONTEXT_KEYS', 'SECTION_KEYS', 'DEFAULT_METHOD', 'DEFAULT_REFERENCES', 'DEFAULT_ASSUMPTIONS', 'FIGURE_CAPTIONS', 'document_blocks']
@@ -555,10 +556,10 @@ _RANK_COLUMNS: list[tuple[str, str]] = [
 ]
 
 
-#: The ranked quantity, its rank column and the flag of the segments it ranks, per ranking.
-_RANKINGS: dict[str, tuple[str, str, str]] = {
-    "lensing": ("lensing_factor", "rank_lensing", "reliable"),
-    "amplitude": ("amp_1m_m", "rank_amplitude", "amp_reliable"),
+#: The ranked quantity and its rank column, per ranking (its segments: :func:`ranked_mask`).
+_RANKINGS: dict[str, tuple[str, str]] = {
+    "lensing": ("lensing_factor", "rank_lensing"),
+    "amplitude": ("amp_1m_m", "rank_amplitude"),
 }
 
 
@@ -569,7 +570,7 @@ def _ranking_table(
         raise InputError(
             f"context['ranking']: expected a pandas DataFrame of segments, got {type(seg).__name__}"
         )
-    value, rank_col, flag = _RANKINGS[by]
+    value, rank_col = _RANKINGS[by]
     for c in ("segment_id", value):
         if c not in seg.columns:
             raise InputError(f"context['ranking']: segments table lacks column '{c}'")
@@ -580,13 +581,8 @@ def _ranking_table(
     else:
         df = df.sort_values(value, ascending=False, na_position="last")
         # no rank column: rank by value, but never rank a segment its ranking does not take
-        flag = flag if flag in df.columns else "reliable"
-        rel = df[flag].tolist() if flag in df.columns else [True] * len(df)
-        ranks, k = [], 0
-        for ok in rel:
-            good = not pd.isna(ok) and bool(ok)
-            k += int(good)
-            ranks.append(k if good else math.nan)
+        rel = ranked_mask(df, by)
+        ranks = list(np.where(rel, np.cumsum(rel), np.nan))
     df = df.head(top_k)
     ranks = ranks[: len(df)]
     cols = ["Rank"]

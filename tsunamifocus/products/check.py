@@ -83,7 +83,7 @@ def check_figures(chk: WaveCheck, folder: pathlib.Path, *, stem: str = "ray_vs_w
                                            t["wave_amp_stop_m"].where(ranked), folder / f"{stem}.png", k=k,
                                            ray_label=label)}
     if "lensing" in chk.agreement:
-        ranked_lens = t["ranked_lensing"] if "ranked_lensing" in t else ranked
+        ranked_lens = t[_lens_col(t)]
         out["ray_vs_wave_lensing"] = plot_ray_vs_wave(
             t["ray_lensing"].where(ranked_lens).rename("ray_lensing"), t["wave_lensing"].where(ranked_lens),
             folder / f"{stem}_lensing.png", k=k, ray_label="Ray lensing factor (energy, real / reference ocean)",

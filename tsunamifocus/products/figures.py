@@ -1269,7 +1269,7 @@ def plot_ranking(
         raise InputError(f"plot_ranking: prob_col '{prob_col}' is not a column of the segments table")
     vals = pd.to_numeric(df[by], errors="coerce").to_numpy(float)
     ypos = np.arange(n)[::-1]
-    rel = _reliable_flags(df, "amplitude" if by.startswith("amp") else "lensing")
+    rel = ranked_mask(df, "amplitude" if by.startswith("amp") else "lensing")
     has_int = bool(lo_col and hi_col and lo_col in df.columns and hi_col in df.columns)
     lo = pd.to_numeric(df[lo_col], errors="coerce").to_numpy(float) if has_int else np.full(n, np.nan)
     hi = pd.to_numeric(df[hi_col], errors="coerce").to_numpy(float) if has_int else np.full(n, np.nan)
@@ -1296,13 +1296,6 @@ def plot_ranking(
     ax.set_axisbelow(True)
     _ranking_legend(ax, rel, has_int, ref, bool(clipped.any() or wclip.any()))
     return _finish(fig, out_path, ax=ax)
-
-
-def _reliable_flags(df: pd.DataFrame, by: str = "lensing") -> np.ndarray:
-    """Whether each row is ranked by ``by`` (:func:`~tsunamifocus.focusing.ranking.ranked_mask`: "lensing"
-    the ``reliable`` column, "amplitude" ``amp_reliable`` where present); missing flags count as not
-    ranked, flags read back from CSV as text are understood."""
-    return ranked_mask(df, by)
 
 
 def _ranking_axis(vals: np.ndarray, hi: np.ndarray, rel: np.ndarray, with_prob: bool) -> tuple[float, float]:

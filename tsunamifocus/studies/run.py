@@ -30,7 +30,7 @@ from ..coast.segments import segment_coastline
 from ..constants import STOP_DEPTH_M
 from ..errors import CoastError, HealthCheckError, InputError, PointWarning, ResolutionWarning, ResourceLimitError
 from ..focusing.analysis import ReferenceOcean, analyse_focusing
-from ..focusing.ranking import _add_ranks, rank_segments, ranked_mask
+from ..focusing.ranking import _add_ranks, rank_segments, ranked_values
 from ..grid import GridInfo
 from ..io.bathymetry import load_bathymetry
 from ..io.coastline import read_coastline, read_region_polygons
@@ -708,12 +708,11 @@ def ensemble_member(params: dict, *, depth: xr.DataArray, scenario: Any, segment
     seg = a.focusing.segments
     table = seg[["segment_id", *[c for c in _STATIC_COLUMNS if c in seg], *[c for c in _MEMBER_COLUMNS if c in seg]]]
     table = table.set_index("segment_id")
-    if "reliable" in seg:
-        # a segment reached by too few rays in this member gives no value (not ranked on noise;
-        # the amplitude needs the real run only, the lensing factor the reference run too)
-        for col, by in (("lensing_factor", "lensing"), ("amp_1m_m", "amplitude")):
-            if col in table:
-                table.loc[~ranked_mask(seg, by), col] = np.nan
+    # a segment reached by too few rays in this member gives no value (not ranked on noise;
+    # the amplitude needs the real run only, the lensing factor the reference run too)
+    for col in ("lensing_factor", "amp_1m_m"):
+        if col in table:
+            table[col] = ranked_values(seg, col)
     grids = {"energy": a.focusing.energy, "lensing_factor": a.focusing.lensing_factor}
     info = {"mw": float(a.summary.mw), "energy_J": float(a.summary.energy_J),
             "budget_error": float(a.focusing.budget["relative_error"])}

@@ -42,7 +42,7 @@ from ..io.sourceset import SetMember, SourceSet
 from ..source.sweep import sweep_sources
 from .ensemble import MemberResult, _topk_mask
 from ..focusing.analysis import ReferenceOcean, default_reference_smooth_km, reference_ocean
-from ..focusing.ranking import ranked_mask
+from ..focusing.ranking import ranked_values
 from ..source.summary import summarize_source
 from ..source.surface import initial_surface
 from .run import _segments_for, analyse_source, build_source, health_checks, load_scenario_bathymetry
@@ -163,12 +163,11 @@ def set_member(params: dict, *, depth: xr.DataArray, scenario: Any, segments: pd
     seg = a.focusing.segments
     table = seg[["segment_id", *[c for c in STATIC_SEGMENT_COLUMNS if c in seg],
                  *[c for c in _MEMBER_COLUMNS if c in seg]]].set_index("segment_id")
-    if "reliable" in seg:
-        # too few rays in this member: no value (the amplitude needs the real run only, the
-        # lensing factor the reference run too)
-        for col, by in (("lensing_factor", "lensing"), ("amp_1m_m", "amplitude")):
-            if col in table:
-                table.loc[~ranked_mask(seg, by), col] = np.nan
+    # too few rays in this member: no value (the amplitude needs the real run only, the lensing
+    # factor the reference run too)
+    for col in ("lensing_factor", "amp_1m_m"):
+        if col in table:
+            table[col] = ranked_values(seg, col)
     grids = {"energy": a.focusing.energy, "lensing_factor": a.focusing.lensing_factor}
     info = {"mw": float(a.summary.mw), "energy_J": float(a.summary.energy_J), "period_s": float(a.period_s),
             "n_rays": int(a.fan.n_rays)}
