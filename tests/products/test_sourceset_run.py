@@ -94,9 +94,16 @@ def test_outputs_and_failed_member_reported(first_run):
     # frequencies are counts over the successful members only: multiples of 1/n
     s = pd.read_csv(out / "set_segments.csv", comment="#")
     n = rec["n_succeeded"]
-    np.testing.assert_allclose((s["topk_frequency"] * n) % 1.0, 0.0, atol=1e-9)
-    # every segment's top-k count sums to k per member (NaN-free coast with >= k reliable segments)
-    assert s["topk_frequency"].sum() * n <= 3 * n + 1e-9
+    for col in ("topk_frequency", "amp_topk_frequency"):  # by lensing factor and by amplitude
+        np.testing.assert_allclose((s[col] * n) % 1.0, 0.0, atol=1e-9)
+        # every segment's top-k count sums to at most k per member
+        assert s[col].sum() * n <= 3 * n + 1e-9
+    # the hotspot pairs of both rankings, each consistent with its frequency column
+    h = pd.read_csv(out / "set_hotspots.csv", comment="#")
+    assert set(h["ranking"]) == {"lensing", "amplitude"}
+    for by, col in (("lensing", "topk_frequency"), ("amplitude", "amp_topk_frequency")):
+        counts = h[h["ranking"] == by]["segment_id"].value_counts()
+        np.testing.assert_allclose(s.set_index("segment_id")[col].reindex(counts.index) * n, counts.to_numpy())
     # cautions in every output (CSV header, GeoTIFF tags, appendix wording)
     assert (out / "set_segments.csv").read_text().startswith("# CAUTION")
     with rasterio.open(out / "envelope_energy.tif") as src:
@@ -105,6 +112,9 @@ def test_outputs_and_failed_member_reported(first_run):
     assert "NOT a probabilistic tsunami hazard assessment" in html
     # the hotspots are lensing-factor hotspots no wave check confirmed: said, with the remedy
     assert "no member is checked against the linear long-wave solver" in html and "--check" in html
+    # both rankings' hotspot tables (the amplitude one is what the wave checks hold more closely)
+    assert "most often among the top-3 hotspots by lensing factor" in html
+    assert "most often among the top-3 hotspots by indicative amplitude" in html
     assert {p.name for p in (out / "figures").iterdir()} == {"hotspot_frequency.png", "envelope_lensing_map.png"}
 
 
@@ -160,6 +170,8 @@ def test_command_line(setdir, capsys):
     txt = capsys.readouterr().out
     assert "not a probabilistic hazard assessment" in txt and "failed: on land" in txt
     assert "not checked against the linear long-wave solver" in txt
+    assert "most often among the top 3 by lensing factor" in txt
+    assert "most often among the top 3 by indicative amplitude" in txt
     code = main(["sourceset", str(setdir / "set.toml"), "--out", str(setdir / "cli")])
     assert code == 2  # the filled output folder is refused
     assert "error:" in capsys.readouterr().err

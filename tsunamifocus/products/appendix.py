@@ -300,14 +300,14 @@ CONTEXT_KEYS: dict[str, str] = {
     "figures": "dict key -> path or {path, caption}; keys uplift, ray_field, lensing_map, ranking, ...",
     "points": "table of points of interest (DataFrame or list of dicts)",
     "run_info": "dict of run facts (timings, software versions, seeds, outputs)",
-    "ensemble": "optional section: {text, metrics, table, table_caption, figures}",
-    "comparison": "optional section: {text, metrics, table, table_caption, figures}",
-    "wave_check": "optional section: {text, metrics, table, table_caption, figures}",
-    "travel_times": "optional section: {text, metrics, table, table_caption, figures} (first arrivals, isochrones)",
+    "ensemble": "optional section: {text, metrics, table, table_caption, more_tables, figures}",
+    "comparison": "optional section: {text, metrics, table, table_caption, more_tables, figures}",
+    "wave_check": "optional section: {text, metrics, table, table_caption, more_tables, figures}",
+    "travel_times": "optional section: {text, metrics, table, table_caption, more_tables, figures} (first arrivals, isochrones)",
 }
 
 #: Keys of an optional section (ensemble, comparison, wave_check).
-SECTION_KEYS = ("text", "metrics", "table", "table_caption", "figures", "title")
+SECTION_KEYS = ("text", "metrics", "table", "table_caption", "more_tables", "figures", "title")
 
 _OPTIONAL_TITLES = {
     "ensemble": "Uncertainty ensemble",
@@ -688,6 +688,14 @@ def _optional_section(key: str, sec: Any, n: int) -> list[_Block]:
                 small=len(cols) > 6,
             )
         )
+    more = sec.get("more_tables") or []
+    if not isinstance(more, (list, tuple)) or not all(isinstance(m, Mapping) and "table" in m for m in more):
+        raise InputError(f"context['{key}']['more_tables']: expected a list of dicts with keys 'table' and "
+                         "'caption'")
+    for i, m in enumerate(more):
+        cols, rows = _as_table(m["table"], f"{key}.more_tables[{i}]")
+        out.append(_b("table", columns=[_pretty_key(c) for c in cols], rows=rows,
+                      caption=str(m.get("caption") or ""), small=len(cols) > 6))
     for path, cap in _figure_items(sec.get("figures"), f"{key}.figures"):
         out.append(_b("figure", path=path, caption=cap))
     return out

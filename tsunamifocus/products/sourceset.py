@@ -45,7 +45,7 @@ __all__ = ["SetResult", "compute_source_set", "run_source_set", "SET_CAUTIONS", 
 #: Cautions particular to a set, added to the package's cautions in the set appendix.
 SET_CAUTIONS = (
     "A hotspot frequency counts in how many of the chosen sources a coastline segment is among the top-k "
-    "lensing hotspots. A weighted frequency only applies the relative weights given to those sources. Neither "
+    "hotspots (by lensing factor, and by indicative amplitude). A weighted frequency only applies the relative weights given to those sources. Neither "
     "is a probability of occurrence, a return period or an exceedance rate: this is NOT a probabilistic tsunami "
     "hazard assessment, whose source rates, magnitude-frequency relations and epistemic logic trees are not "
     "modelled here.",
@@ -53,8 +53,8 @@ SET_CAUTIONS = (
     "of a source that is not in the set.",
     "Members trace the dominant period band only, like ensemble members; the single-scenario runs trace three "
     "period bands.",
-    "Hotspots are counted by lensing factor, and no member is checked against the linear long-wave solver: "
-    + LENSING_QUALITATIVE + ". To check one source, run it as a scenario with 'tsunamifocus run SCENARIO --check'.",
+    "Hotspots are counted by lensing factor and by indicative amplitude, and no member is checked against the "
+    "linear long-wave solver: " + LENSING_QUALITATIVE + ". To check one source, run it as a scenario with 'tsunamifocus run SCENARIO --check'.",
 )
 
 
@@ -76,12 +76,18 @@ class SetResult:
         n_ok = int((m["status"] != "failed").sum())
         lines = [f"source set {self.prep.sset.name}: {n_ok} of {len(m)} members "
                  f"({int((m['status'] == 'resumed').sum())} reused from the member store), {len(self.failures)} failed"]
-        top = self.statistics.sort_values("rank_frequency").head(5)
         k = self.prep.sset.top_k
-        for sid, r in top.iterrows():
-            lines.append(f"  {sid}: top-{k} in {100 * r['topk_frequency']:.0f} % of the sources "
+        st = self.statistics
+        lines.append(f"  most often among the top {k} by lensing factor:")
+        for sid, r in st.sort_values("rank_frequency").head(5).iterrows():
+            lines.append(f"    {sid}: {100 * r['topk_frequency']:.0f} % of the sources "
                          f"({100 * r['topk_frequency_weighted']:.0f} % weighted), lensing median "
                          f"{r['lensing_median']:.2f} / max {r['lensing_max']:.2f}")
+        lines.append(f"  most often among the top {k} by indicative amplitude at 1 m depth:")
+        for sid, r in st.sort_values("amp_rank_frequency").head(5).iterrows():
+            lines.append(f"    {sid}: {100 * r['amp_topk_frequency']:.0f} % of the sources "
+                         f"({100 * r['amp_topk_frequency_weighted']:.0f} % weighted), amplitude median "
+                         f"{r['amp_median_m']:.2f} m / max {r['amp_max_m']:.2f} m")
         for f in self.failures:
             lines.append(f"  failed: {f.params.get('name')} after {f.attempts} attempts: {f.error}")
         t = self.timings
@@ -91,8 +97,8 @@ class SetResult:
         elif t:
             lines.append(f"  timings: prepare {t['prepare_s']:.1f} s; every member reused")
         lines.append("  a hotspot frequency is not a probability: this is not a probabilistic hazard assessment")
-        lines.append("  hotspots are counted by lensing factor, not checked against the linear long-wave solver: "
-                     + LENSING_QUALITATIVE)
+        lines.append("  hotspots are counted by lensing factor and by amplitude, not checked against the linear "
+                     "long-wave solver: " + LENSING_QUALITATIVE)
         return "\n".join(lines)
 
 
@@ -200,38 +206,47 @@ def _write_csv(df: pd.DataFrame, path: pathlib.Path, index: bool = False) -> Non
 
 def plot_hotspot_frequency(stats: pd.DataFrame, top_k: int, out_path: str | os.PathLike, *, title: str,
                            n_members: int) -> pathlib.Path:
-    """Hotspot frequency along the coast: bars per segment in coastline order, the most frequent labelled."""
+    """Hotspot frequency along the coast, side by side by lensing factor and by indicative amplitude:
+    bars per segment in coastline order (south at the bottom), the most frequent of each labelled."""
     s = stats.copy()
     order = np.argsort(s["lat_mid"].to_numpy(float)) if "lat_mid" in s else np.arange(len(s))
     s = s.iloc[order]
     y = np.arange(len(s))
-    fig = Figure(figsize=(8.0, max(4.5, 0.11 * len(s) + 2.0)), layout="constrained")
-    ax = fig.subplots()
-    ax.barh(y, 100 * s["topk_frequency"].to_numpy(float), color="0.75", height=0.85,
-            label=f"unweighted (share of the {n_members} sources)")
-    ax.barh(y, 100 * s["topk_frequency_weighted"].to_numpy(float), color="#c0392b", height=0.4,
-            label="weighted by the sources' relative weights")
-    ax.set_ylim(-1, len(s))
-    ax.set_xlim(0, 132)  # room for the labels right of the bars
-    ax.set_xticks([0, 20, 40, 60, 80, 100])
-    ax.set_ylabel("coastline segments, south (bottom) to north (top)")
-    ticks = [j for j in range(len(s)) if s["topk_frequency"].iloc[j] > 0 or j % max(1, len(s) // 10) == 0]
-    ax.set_yticks(ticks)
+    fig = Figure(figsize=(11.0, max(4.5, 0.11 * len(s) + 2.0)), layout="constrained")
+    axes = fig.subplots(1, 2, sharey=True)
+    any_hit = (s["topk_frequency"] > 0) | (s.get("amp_topk_frequency", 0.0) > 0)
+    ticks = [j for j in range(len(s)) if any_hit.iloc[j] or j % max(1, len(s) // 10) == 0]
     lab = [f"{sid}  {s['lat_mid'].iloc[j]:.2f}°" if "lat_mid" in s else str(sid)
            for j, sid in zip(ticks, s.index[ticks])]
-    ax.set_yticklabels(lab, fontsize=6.5)
-    best = np.argsort(-s["topk_frequency_weighted"].to_numpy(float), kind="stable")[:3]
-    for j in best:
-        v = 100 * s["topk_frequency_weighted"].iloc[j]
-        x = 100 * max(s["topk_frequency_weighted"].iloc[j], s["topk_frequency"].iloc[j])
-        if v > 0:
-            ax.annotate(f"{s.index[j]}: {v:.0f} % weighted", (x, j), xytext=(6, 0), textcoords="offset points",
-                        va="center", fontsize=8, fontweight="bold")
-    ax.set_title(title, loc="left", fontsize=10)
-    ax.grid(axis="x", color="0.9")
-    ax.set_xlabel(f"sources for which the segment is a top-{top_k} lensing hotspot (%)\n"
-                  "a frequency over the chosen sources, not a probability of occurrence", fontsize=9)
-    return _finish(fig, out_path, handles=ax.get_legend_handles_labels()[0])
+    panels = (("", "lensing factor", "lensing hotspot",
+               "a frequency over the chosen sources, not a probability of occurrence"),
+              ("amp_", "indicative amplitude", "amplitude hotspot",
+               "the wave checks hold this ranking more closely than the lensing factor's"))
+    for ax, (prefix, what, noun, note) in zip(axes, panels):
+        f, fw = f"{prefix}topk_frequency", f"{prefix}topk_frequency_weighted"
+        ax.barh(y, 100 * s[f].to_numpy(float), color="0.75", height=0.85,
+                label=f"unweighted (share of the {n_members} sources)")
+        ax.barh(y, 100 * s[fw].to_numpy(float), color="#c0392b", height=0.4,
+                label="weighted by the sources' relative weights")
+        ax.set_ylim(-1, len(s))
+        ax.set_xlim(0, 140)  # room for the labels right of the bars
+        ax.set_xticks([0, 20, 40, 60, 80, 100])
+        best = np.argsort(-s[fw].to_numpy(float), kind="stable")[:3]
+        for j in best:
+            v = 100 * s[fw].iloc[j]
+            x = 100 * max(s[fw].iloc[j], s[f].iloc[j])
+            if v > 0:
+                ax.annotate(f"{s.index[j]}: {v:.0f} %", (x, j), xytext=(6, 0), textcoords="offset points",
+                            va="center", fontsize=8, fontweight="bold")
+        ax.set_title(f"by {what}", loc="left", fontsize=9.5)
+        ax.grid(axis="x", color="0.9")
+        ax.set_xlabel(f"sources for which the segment is a top-{top_k} {noun} (%)\n{note}", fontsize=9)
+    axes[0].set_ylabel("coastline segments, south (bottom) to north (top)")
+    axes[0].set_yticks(ticks)
+    axes[0].set_yticklabels(lab, fontsize=6.5)
+    axes[1].tick_params(axis="y", labelleft=False)
+    fig.suptitle(title, x=0.01, ha="left", fontsize=10)
+    return _finish(fig, out_path, handles=axes[0].get_legend_handles_labels()[0])
 
 
 def write_set_folder(res: SetResult, folder: pathlib.Path) -> dict[str, pathlib.Path]:
@@ -273,25 +288,39 @@ def write_set_folder(res: SetResult, folder: pathlib.Path) -> dict[str, pathlib.
            "cautions": caution_summary(), "set_cautions": list(SET_CAUTIONS)}
     (folder / "set.json").write_text(json.dumps(rec, indent=2, default=str), encoding="utf-8")
     files["set_json"] = folder / "set.json"
-    top = stats.sort_values("rank_frequency").head(prep.sset.top_k)
-    cols = ["topk_frequency", "topk_frequency_weighted", "lensing_median", "lensing_p90", "lensing_max",
-            "amp_median_m", "amp_max_m", "hotspot_sources"]
-    table = top[cols].reset_index()
-    for c in cols[:-1]:
-        table[c] = table[c].map(lambda v: f"{v:.2f}" if isinstance(v, float) and math.isfinite(v) else "")
-    ranking = stats.reset_index().rename(columns={"lensing_median": "lensing_factor"})
+    k = prep.sset.top_k
+
+    def top_table(rank_col: str, cols: list[str]) -> pd.DataFrame:
+        t = stats.sort_values(rank_col).head(k)[cols].reset_index()
+        for c in cols[:-1]:
+            t[c] = t[c].map(lambda v: f"{v:.2f}" if isinstance(v, float) and math.isfinite(v) else "")
+        return t
+
+    table = top_table("rank_frequency", ["topk_frequency", "topk_frequency_weighted", "lensing_median",
+                                         "lensing_p90", "lensing_max", "amp_median_m", "amp_max_m",
+                                         "hotspot_sources"])
+    amp_table = top_table("amp_rank_frequency", ["amp_topk_frequency", "amp_topk_frequency_weighted",
+                                                 "amp_median_m", "amp_p90_m", "amp_max_m", "lensing_median",
+                                                 "amp_hotspot_sources"])
+    ranking = stats.reset_index().rename(columns={"lensing_median": "lensing_factor", "amp_median_m": "amp_1m_m"})
     ranking = ranking.drop(columns=[c for c in ("geometry",) if c in ranking.columns])
     section = {
         "title": "Source set: hotspot frequency",
         "text": [f"{n_ok} of {len(res.members)} sources ran against one grid and one coastline "
                  f"({len(res.failures)} failed and are left out). For each coastline segment: the share of the "
-                 f"sources for which it is among the top-{prep.sset.top_k} lensing hotspots (unweighted, and with the "
-                 "sources' relative weights), and the median, 90th percentile and maximum of the lensing factor and "
-                 "of the indicative amplitude over the sources.", *SET_CAUTIONS],
+                 f"sources for which it is among the top-{k} hotspots by lensing factor and by indicative "
+                 "amplitude at 1 m depth (unweighted, and with the sources' relative weights), and the median, "
+                 "90th percentile and maximum of the lensing factor and of the indicative amplitude over the "
+                 "sources. The wave checks hold the amplitude ranking more closely than the lensing factor's "
+                 "(docs/focusing.md), so read both tables, the amplitude table for where the energy arrives "
+                 "largest.", *SET_CAUTIONS],
         "metrics": {"sources": str(len(res.members)), "succeeded": str(n_ok), "top k": str(prep.sset.top_k)},
         "table": table,
-        "table_caption": f"The {len(table)} segments most often among the top-{prep.sset.top_k} hotspots",
-        "figures": {"hotspot_frequency": {"path": str(fig), "caption": "Hotspot frequency along the coast."},
+        "table_caption": f"The {len(table)} segments most often among the top-{k} hotspots by lensing factor",
+        "more_tables": [{"table": amp_table, "caption": f"The {len(amp_table)} segments most often among the "
+                         f"top-{k} hotspots by indicative amplitude at 1 m depth"}],
+        "figures": {"hotspot_frequency": {"path": str(fig), "caption": "Hotspot frequency along the coast, by "
+                                          "lensing factor (left) and by indicative amplitude (right)."},
                     "envelope_lensing_map": {"path": str(env_fig), "caption": "Maximum over the sources of the "
                                              "lensing factor; coastline segments coloured by their maximum, the "
                                              "highest maxima numbered."}},
@@ -299,9 +328,10 @@ def write_set_folder(res: SetResult, folder: pathlib.Path) -> dict[str, pathlib.
     ctx = {"title": "Source-set appendix: coastal tsunami-energy focusing screening",
            "subtitle": f"Set “{prep.sset.name}” on the grid of scenario “{prep.scenario.name}”",
            "scenario": {"name": prep.sset.name,
-                        "description": f"{len(res.members)} sources screened against one coast; the ranked table "
-                                       "lists the median lensing factor over the sources."},
-           "ranking": ranking, "comparison": section}
+                        "description": f"{len(res.members)} sources screened against one coast; the ranked tables "
+                                       "list the median lensing factor and the median indicative amplitude over "
+                                       "the sources."},
+           "ranking": ranking, "amplitude_ranking": True, "comparison": section}
     build_appendix(ctx, folder / "set_appendix.html", folder / "set_appendix.pdf")
     files.update(appendix_html=folder / "set_appendix.html", appendix_pdf=folder / "set_appendix.pdf")
     return files

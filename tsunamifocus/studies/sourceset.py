@@ -185,22 +185,28 @@ def set_statistics(tables: dict[int, pd.DataFrame], names: dict[int, str], weigh
     names, weights : dict member index -> str / float
         Source names and relative weights (> 0).
     top_k : int
-        k of the top-k hotspots of each member (by lensing factor; ties to the earlier segment,
-        NaN never counts).
+        k of the top-k hotspots of each member, counted twice: by lensing factor and by indicative
+        amplitude (ties to the earlier segment, NaN never counts).
     static : pandas.DataFrame, optional
         Columns copied in front (name, position, geometry), same index.
     max_names : int
-        Source names listed per segment in ``hotspot_sources`` (the rest counted).
+        Source names listed per segment in ``hotspot_sources`` / ``amp_hotspot_sources`` (the rest
+        counted).
 
     Returns
     -------
     (pandas.DataFrame, pandas.DataFrame)
         Per segment: ``n_valid``, ``topk_frequency`` (share of members with the segment in their
-        top k), ``topk_frequency_weighted`` (the same with the members' weights),
+        top k by lensing factor), ``topk_frequency_weighted`` (the same with the members' weights),
+        ``amp_topk_frequency`` / ``amp_topk_frequency_weighted`` (the same for the top k by
+        indicative amplitude at 1 m depth, the ranking the wave checks hold more closely),
         ``lensing_median`` / ``lensing_p90`` / ``lensing_max``, ``amp_median_m`` / ``amp_p90_m``
-        / ``amp_max_m`` (``numpy.nanpercentile``, linear), ``hotspot_sources``,
-        ``rank_frequency`` (1 = most often a hotspot, weighted; ties by median lensing); and the
-        long table ``(member, source, weight, segment_id)`` of every member-segment hotspot pair.
+        / ``amp_max_m`` (``numpy.nanpercentile``, linear), ``hotspot_sources`` /
+        ``amp_hotspot_sources``, ``rank_frequency`` (1 = most often a lensing hotspot, weighted;
+        ties by median lensing) and ``amp_rank_frequency`` (1 = most often an amplitude hotspot,
+        weighted; ties by median amplitude); and the long table ``(member, source, weight,
+        segment_id, ranking)`` of every member-segment hotspot pair, ``ranking`` being
+        ``"lensing"`` or ``"amplitude"``.
     """
     if not tables:
         raise InputError("set_statistics: no successful member")
@@ -222,9 +228,11 @@ def set_statistics(tables: dict[int, pd.DataFrame], names: dict[int, str], weigh
     lens = stack("lensing_factor")
     amp = stack("amp_1m_m")
     out["n_valid"] = np.isfinite(lens).sum(axis=0)
-    mask = _topk_mask(lens, int(min(top_k, len(ref))))
-    out["topk_frequency"] = mask.sum(axis=0) / float(len(keys))
-    out["topk_frequency_weighted"] = (w @ mask) / w.sum()
+    k_top = int(min(top_k, len(ref)))
+    masks = {"lensing": _topk_mask(lens, k_top), "amplitude": _topk_mask(amp, k_top)}
+    for prefix, mask in (("", masks["lensing"]), ("amp_", masks["amplitude"])):
+        out[f"{prefix}topk_frequency"] = mask.sum(axis=0) / float(len(keys))
+        out[f"{prefix}topk_frequency_weighted"] = (w @ mask) / w.sum()
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", RuntimeWarning)  # all-NaN segments give NaN
         for v, stem, unit in ((lens, "lensing", ""), (amp, "amp", "_m")):
@@ -232,21 +240,24 @@ def set_statistics(tables: dict[int, pd.DataFrame], names: dict[int, str], weigh
             out[f"{stem}_median{unit}"] = med
             out[f"{stem}_p90{unit}"] = p90
             out[f"{stem}_max{unit}"] = np.nanmax(v, axis=0)
-    listed = []
-    for j in range(len(ref)):
-        who = [names[keys[i]] for i in np.flatnonzero(mask[:, j])]
-        txt = "; ".join(who[:max_names]) + (f" (+{len(who) - max_names} more)" if len(who) > max_names else "")
-        listed.append(txt)
-    out["hotspot_sources"] = listed
-    order = np.lexsort((-np.nan_to_num(out["lensing_median"].to_numpy(float), nan=-np.inf),
-                        -out["topk_frequency_weighted"].to_numpy(float)))
-    rank = np.empty(len(ref), dtype=np.int64)
-    rank[order] = np.arange(1, len(ref) + 1)
-    out["rank_frequency"] = rank
-    mi, sj = np.nonzero(mask)
-    pairs = pd.DataFrame({"member": [keys[i] for i in mi], "source": [names[keys[i]] for i in mi],
-                          "weight": w[mi], "segment_id": ref.to_numpy()[sj]})
-    return out, pairs
+    pair_tables = []
+    for prefix, by, median in (("", "lensing", "lensing_median"), ("amp_", "amplitude", "amp_median_m")):
+        mask = masks[by]
+        listed = []
+        for j in range(len(ref)):
+            who = [names[keys[i]] for i in np.flatnonzero(mask[:, j])]
+            txt = "; ".join(who[:max_names]) + (f" (+{len(who) - max_names} more)" if len(who) > max_names else "")
+            listed.append(txt)
+        out[f"{prefix}hotspot_sources"] = listed
+        order = np.lexsort((-np.nan_to_num(out[median].to_numpy(float), nan=-np.inf),
+                            -out[f"{prefix}topk_frequency_weighted"].to_numpy(float)))
+        rank = np.empty(len(ref), dtype=np.int64)
+        rank[order] = np.arange(1, len(ref) + 1)
+        out[f"{prefix}rank_frequency"] = rank
+        mi, sj = np.nonzero(mask)
+        pair_tables.append(pd.DataFrame({"member": [keys[i] for i in mi], "source": [names[keys[i]] for i in mi],
+                                         "weight": w[mi], "segment_id": ref.to_numpy()[sj], "ranking": by}))
+    return out, pd.concat(pair_tables, ignore_index=True)
 
 
 def envelope_grids(grids: dict[str, xr.DataArray], new: dict[str, Any]) -> dict[str, xr.DataArray]:
