@@ -146,6 +146,14 @@ def test_topk_probability_exact_on_constructed_case():
     assert list(st["robustness"]) == ["very likely", "about as likely as not", "about as likely as not", "unlikely"]
     # every member contributes exactly k hotspots
     assert st["p_topk"].sum() * len(rows) == pytest.approx(2 * len(rows))
+    assert "p_topk_amp" not in st  # no amplitude column, no amplitude probability
+    # the same members ranked by amplitude as well (counted by hand): top 2 D,C | D,C | B,A | B,A | D,C
+    amp = [[0, 1, 2, 3], [0, 1, 2, 3], [4, 5, 1, 0], [4, 5, 1, 0], [1, 1, 2, 3]]
+    both = [t.assign(amp_1m_m=a) for t, a in zip(tables, amp)]
+    st = segment_statistics(both, top_k=2)
+    np.testing.assert_array_equal(st["p_topk"].to_numpy(), [1.0, 0.6, 0.4, 0.0])  # unchanged
+    np.testing.assert_array_equal(st["p_topk_amp"].to_numpy(), [0.4, 0.4, 0.6, 0.6])
+    assert list(st["robustness_amp"]) == ["about as likely as not"] * 4
     # ties: equal values are broken by segment order (documented)
     tie = [pd.DataFrame({"lensing_factor": [1.0, 1.0, 1.0]}, index=pd.Index(["X", "Y", "Z"], name="segment_id"))]
     np.testing.assert_array_equal(segment_statistics(tie, top_k=2)["p_topk"].to_numpy(), [1.0, 1.0, 0.0])

@@ -15,6 +15,7 @@ import pandas as pd
 import pytest
 
 from tsunamifocus.errors import DataFileError, OutputExistsError
+from tsunamifocus.products.summaries import format_run_summary
 from tsunamifocus.studies.run import arrival_times
 from tsunamifocus.products.demo import demo_inputs
 from tsunamifocus.products.runfolder import run_scenario
@@ -242,6 +243,24 @@ def test_manifest_and_health(demo_run):
     assert h["energy_error_relative"] <= 0.01
     assert abs(sum(h["termination_fraction"].values()) - 1.0) < 1e-9
     assert result.ensemble is not None and result.ensemble.n_members == 2
+
+
+def test_ensemble_robustness_by_both_rankings(demo_run):
+    """The ensemble counts top-k hotspots by lensing factor and by amplitude, and the run says both."""
+    result, out = demo_run
+    es = result.ensemble.segments
+    n = result.ensemble.n_succeeded
+    k = result.ensemble.top_k
+    for col in ("p_topk", "p_topk_amp"):
+        # a share of the members (counted by hand: multiples of 1/n), k hotspots per member
+        np.testing.assert_allclose((es[col] * n) % 1.0, 0.0, atol=1e-9)
+        assert es[col].sum() * n == pytest.approx(k * n)
+    html = (out / "appendix.html").read_text(encoding="utf-8")
+    assert f"Segments most often among the top {k} by lensing factor" in html
+    assert f"Segments most often among the top {k} by indicative amplitude" in html
+    assert "most robust hotspots by amplitude" in format_run_summary(result)
+    seg = pd.read_csv(out / "segments.csv", comment="#")
+    assert {"ens_p_topk", "ens_p_topk_amp", "ens_robustness_amp"} <= set(seg.columns)
 
 
 def test_points_of_interest(demo_run):

@@ -238,18 +238,34 @@ def _ensemble_section(ens: Any, scenario: Any) -> dict:
                               "lensing_lo": "lensing 5 %", "lensing_hi": "lensing 95 %",
                               "amp_1m_m": "amp. at 1 m (median, m)", "amp_lo": "amp. 5 %", "amp_hi": "amp. 95 %",
                               "p_topk": f"P(top {ens.top_k})"})
+    more = []
+    if "p_topk_amp" in seg:
+        cols_a = [c for c in ("segment_id", "amp_1m_m", "amp_lo", "amp_hi", "lensing_factor", "p_topk_amp",
+                              "robustness_amp") if c in seg]
+        top_a = seg.sort_values(["p_topk_amp", "amp_1m_m"], ascending=False, kind="stable",
+                                na_position="last").head(scenario.output.top_k)[cols_a].copy()
+        for c in top_a.columns:
+            if top_a[c].dtype.kind == "f":
+                top_a[c] = top_a[c].map(lambda v: f"{v:.2f}" if np.isfinite(v) else "")
+        top_a = top_a.rename(columns={"segment_id": "segment", "amp_1m_m": "amp. at 1 m (median, m)",
+                                      "amp_lo": "amp. 5 %", "amp_hi": "amp. 95 %", "lensing_factor": "lensing (median)",
+                                      "p_topk_amp": f"P(top {ens.top_k})", "robustness_amp": "robustness"})
+        more.append({"table": top_a, "caption": f"Segments most often among the top {ens.top_k} by indicative "
+                                                "amplitude"})
     return {
         "text": [
             f"{ens.n_members} members {_ensemble_perturbations(e)}. Member 0 is the unperturbed case.",
             "Per segment: median and 5-95 % interval of the lensing factor and indicative amplitude over the "
             f"members, and the probability of ranking among the top {ens.top_k} ({robustness_scale()}; "
-            "the calibrated likelihood terms of hazard and climate assessments).",
+            "the calibrated likelihood terms of hazard and climate assessments), by lensing factor and by "
+            "indicative amplitude.",
         ],
         "metrics": {"members": ens.n_members, "failed": len(ens.failures),
                     "members per minute": _fmt(ens.timings.get('members_per_minute'), '.1f'),
                     "scheduler": str(ens.scheduler.get("kind", ""))},
         "table": top,
-        "table_caption": f"Segments most often among the top {ens.top_k}",
+        "table_caption": f"Segments most often among the top {ens.top_k} by lensing factor",
+        "more_tables": more,
     }
 
 

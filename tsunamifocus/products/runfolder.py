@@ -113,12 +113,11 @@ def _figures(a: SourceAnalysis, depth: xr.DataArray, scenario: Any, folder: path
         title=f"Lensing factor, travel time and ranked segments: {a.name}")
     seg = _plain_dtypes(f.segments)
     if ensemble is not None and getattr(ensemble, "segments", None) is not None:
-        seg = _with_ensemble_intervals(seg, ensemble.segments)
+        seg = _with_ensemble_intervals(seg, ensemble.segments, getattr(ensemble, "member_segments", None))
     title = _ranking_title(seg, scenario.output.top_k)
-    if ensemble is not None:
-        title += f"\n(ensemble median and 5-95 % interval over {ensemble.n_members} members)"
-    else:
-        title += "\n(whiskers: 5-95 % bootstrap interval over rays)"
+    whiskers = (f"\n(ensemble median and 5-95 % interval over {ensemble.n_members} members)" if ensemble is not None
+                else "\n(whiskers: 5-95 % bootstrap interval over rays)")
+    title += whiskers
     prob = None
     if ensemble is not None and "p_topk" in ensemble.segments:
         seg = seg.copy()
@@ -128,11 +127,16 @@ def _figures(a: SourceAnalysis, depth: xr.DataArray, scenario: Any, folder: path
         figs["ranking"] = F.plot_ranking(seg, scenario.output.top_k, out_path=folder / "ranking.png", title=title,
                                          prob_col=prob)
     if "rank_amplitude" in seg and np.isfinite(pd.to_numeric(seg["amp_1m_m"], errors="coerce").to_numpy(float)).any():
+        prob_a = None
+        if ensemble is not None and "p_topk_amp" in ensemble.segments:
+            seg = seg.copy()
+            seg["p_topk_amp"] = ensemble.segments["p_topk_amp"].reindex(
+                seg["segment_id"].to_numpy()).to_numpy(dtype=float)
+            prob_a = "p_topk_amp"
         figs["ranking_amplitude"] = F.plot_ranking(
             seg, scenario.output.top_k, by="amp_1m_m", out_path=folder / "ranking_amplitude.png",
-            title=_ranking_title(seg, scenario.output.top_k, by="amplitude")
-            + "\n(whiskers: 5-95 % bootstrap interval over rays)",
-            xlabel="Indicative amplitude at 1 m depth (m; Green's law, indicative only)")
+            title=_ranking_title(seg, scenario.output.top_k, by="amplitude") + whiskers,
+            xlabel="Indicative amplitude at 1 m depth (m; Green's law, indicative only)", prob_col=prob_a)
     tt = a.travel_times.travel_time_s
     figs["travel_time"] = F.plot_travel_time(
         tt, depth, isochrone_levels(tt, scenario.output.isochrone_step_min), out_path=folder / "travel_time.png",
@@ -187,10 +191,20 @@ def _ranking_title(seg: pd.DataFrame, top_k: int, by: str = "lensing") -> str:
             + (f"\nand {n_unrel} unreliable (hatched, not ranked)" if n_unrel else ""))
 
 
-def _with_ensemble_intervals(seg: pd.DataFrame, ens: pd.DataFrame) -> pd.DataFrame:
-    """Segments table carrying the ensemble's median, 5-95 % interval and rank of the lensing factor."""
+def _with_ensemble_intervals(seg: pd.DataFrame, ens: pd.DataFrame, members: pd.DataFrame | None = None) -> pd.DataFrame:
+    """Segments table carrying the ensemble's median, 5-95 % interval and rank of the lensing factor
+    and, when the members report it, of the indicative amplitude (``members``: the ensemble's long
+    table of member values, for the number of members with an amplitude per segment)."""
     out = seg.copy()
     e = ens.reindex(out["segment_id"].to_numpy())
+
+    def ranks(v: np.ndarray) -> pd.arrays.IntegerArray:
+        order = np.argsort(-np.nan_to_num(v, nan=-np.inf), kind="stable")
+        rank = np.full(len(v), np.nan)
+        good = order[np.isfinite(v[order])]
+        rank[good] = np.arange(1, good.size + 1)
+        return pd.array([int(r) if np.isfinite(r) else None for r in rank], dtype="Int64")
+
     for col in ("lensing_factor", "lensing_lo", "lensing_hi"):
         if col in e.columns:
             out[col] = e[col].to_numpy(dtype=float)
@@ -199,12 +213,17 @@ def _with_ensemble_intervals(seg: pd.DataFrame, ens: pd.DataFrame) -> pd.DataFra
         n = int(np.nanmax(e["n_valid"].to_numpy(dtype=float))) if len(e) else 0
         ok = e["n_valid"].to_numpy(dtype=float) >= max(1, math.ceil(n / 2))
         out["reliable"] = ok
-        v = np.where(ok, out["lensing_factor"].to_numpy(dtype=float), np.nan)
-        order = np.argsort(-np.nan_to_num(v, nan=-np.inf), kind="stable")
-        rank = np.full(len(v), np.nan)
-        good = order[np.isfinite(v[order])]
-        rank[good] = np.arange(1, good.size + 1)
-        out["rank_lensing"] = pd.array([int(r) if np.isfinite(r) else None for r in rank], dtype="Int64")
+        out["rank_lensing"] = ranks(np.where(ok, out["lensing_factor"].to_numpy(dtype=float), np.nan))
+    if (members is not None and "amp_1m_m" in e.columns and "amp_1m_m" in members.columns
+            and "segment_id" in members.columns and "rank_amplitude" in out.columns):
+        for col in ("amp_1m_m", "amp_lo", "amp_hi"):
+            if col in e.columns:
+                out[col] = e[col].to_numpy(dtype=float)
+        cnt = members.groupby("segment_id")["amp_1m_m"].count().reindex(out["segment_id"].to_numpy()).fillna(0)
+        n = int(members["member"].nunique()) if "member" in members.columns else int(cnt.max())
+        ok = cnt.to_numpy(dtype=float) >= max(1, math.ceil(n / 2))
+        out["amp_reliable"] = ok
+        out["rank_amplitude"] = ranks(np.where(ok, out["amp_1m_m"].to_numpy(dtype=float), np.nan))
     return out
 
 

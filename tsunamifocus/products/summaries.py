@@ -411,8 +411,12 @@ def format_run_summary(result: RunResult) -> str:
         es = e.segments
         if "p_topk" in es:
             top = es.sort_values("p_topk", ascending=False).head(5)
-            lines.append(f"  most robust hotspots, P(top {e.top_k}): " + ", ".join(
+            lines.append(f"  most robust hotspots by lensing factor, P(top {e.top_k}): " + ", ".join(
                 f"{sid} {r['p_topk']:.2f} ({r.get('robustness', '')})" for sid, r in top.iterrows()))
+        if "p_topk_amp" in es:
+            top = es.sort_values("p_topk_amp", ascending=False, kind="stable").head(5)
+            lines.append(f"  most robust hotspots by amplitude, P(top {e.top_k}): " + ", ".join(
+                f"{sid} {r['p_topk_amp']:.2f} ({r.get('robustness_amp', '')})" for sid, r in top.iterrows()))
     if result.timings:
         lines.append("timings: " + ", ".join(f"{k} {v:.1f} s" for k, v in result.timings.items()))
     if result.out_dir is not None:

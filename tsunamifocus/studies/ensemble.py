@@ -380,8 +380,9 @@ class EnsembleResult:
         ``lensing_lo`` / ``lensing_hi`` (5 % / 95 %), ``amp_1m_m`` / ``amp_lo`` / ``amp_hi`` [m],
         the same for ``energy_per_m`` [J m-1] and ``first_arrival_s`` [s] when members report
         them, ``first_arrival_min_s`` (earliest over members), ``base_lensing_factor`` (member 0
-        when it is the base case), ``p_topk``, ``robustness``, ``rank_lensing`` (1 = highest
-        median), ``rank_amplitude``.
+        when it is the base case), ``p_topk``, ``robustness`` (top k by lensing factor),
+        ``p_topk_amp``, ``robustness_amp`` (top k by indicative amplitude, when members report
+        ``amp_1m_m``), ``rank_lensing`` (1 = highest median), ``rank_amplitude``.
     mean, std, count : dict of str -> xarray.DataArray or numpy.ndarray
         Per-cell ensemble mean, standard deviation (``ddof = 1``, NaN with fewer than 2 values)
         and number of finite values of each reduced grid; DataArrays (same coordinates and
@@ -452,6 +453,10 @@ class EnsembleResult:
                 + ", ".join(f"{counts.get(lab, 0)} {lab}" for _, lab in ROBUSTNESS_LABELS)
                 + f" (P(top-k): {robustness_scale()})."
             )
+            if "robustness_amp" in seg:
+                counts = seg["robustness_amp"].value_counts()
+                lines.append(f"Top-{self.top_k} hotspots by indicative amplitude: "
+                             + ", ".join(f"{counts.get(lab, 0)} {lab}" for _, lab in ROBUSTNESS_LABELS) + ".")
         return "\n".join(lines)
 
     def to_dict(self) -> dict[str, Any]:
@@ -528,7 +533,9 @@ def segment_statistics(
     Percentiles use ``numpy.nanpercentile`` with its default linear interpolation (type 7 of
     Hyndman & Fan 1996). ``p_topk`` = number of members in which the segment is among the
     ``top_k`` largest values of ``rank_by`` / number of members; ties are broken by segment
-    order and NaN never counts. Robustness labels follow :data:`ROBUSTNESS_LABELS`.
+    order and NaN never counts. ``p_topk_amp`` is the same for ``amp_1m_m`` (when every member
+    reports it and ``rank_by`` is not already that column). Robustness labels follow
+    :data:`ROBUSTNESS_LABELS`.
     """
     items = list(tables.items()) if isinstance(tables, Mapping) else list(enumerate(tables))
     if not items:
@@ -579,6 +586,11 @@ def segment_statistics(
     p = mask.sum(axis=0) / float(len(items))
     out["p_topk"] = p
     out["robustness"] = [robustness_label(x) for x in p]
+    av = stack("amp_1m_m") if rank_by != "amp_1m_m" else None
+    if av is not None:
+        pa = _topk_mask(av, int(top_k)).sum(axis=0) / float(len(items))
+        out["p_topk_amp"] = pa
+        out["robustness_amp"] = [robustness_label(x) for x in pa]
     for col, rank_col in (("lensing_factor", "rank_lensing"), ("amp_1m_m", "rank_amplitude")):
         if col in out.columns:
             out[rank_col] = (
