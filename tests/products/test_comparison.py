@@ -38,3 +38,7 @@ def test_appendix_table_does_not_show_unranked_values_as_ranks(tmp_path):
     assert "validation summary (its wave check, when run) is in its own appendix" in html
     assert "numerical health checks are in its own appendix" in html
     assert (tmp_path / "comparison_appendix.pdf").read_bytes().startswith(b"%PDF")
+    # both rankings are compared: the amplitude envelope table and scatter beside the lensing ones
+    assert "segments of the envelope ranking by indicative amplitude" in html
+    assert "Amplitude (m), A" in html and "Runs with it in their top 2" in html
+    assert (tmp_path / "comparison_scatter.png").exists() and (tmp_path / "comparison_scatter_amplitude.png").exists()

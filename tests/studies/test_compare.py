@@ -58,7 +58,7 @@ def test_rank_correlations_on_constructed_rankings():
     runs = [("A", _segments(base), _layers(1)), ("B", _segments(swapped), _layers(2)),
             ("C", _segments(reverse), _layers(3))]
     c = compare_runs(runs, top_k=2)
-    corr = c.correlations.set_index(["run_a", "run_b"])
+    corr = c.correlations[c.correlations["ranking"] == "lensing"].set_index(["run_a", "run_b"])
     # Spearman (1904): rho = 1 - 6 sum d^2 / (n (n^2 - 1)); one swap: d^2 sum = 2 -> 1 - 12/120 = 0.9
     assert corr.loc[("A", "B"), "spearman_rho"] == pytest.approx(0.9, abs=1e-12)
     # Kendall (1938): tau = (concordant - discordant) / (n (n - 1) / 2) = (9 - 1) / 10 = 0.8
@@ -68,7 +68,32 @@ def test_rank_correlations_on_constructed_rankings():
     # and agree with scipy.stats (reference library) on the B-C pair
     assert corr.loc[("B", "C"), "spearman_rho"] == pytest.approx(stats.spearmanr(swapped, reverse).statistic)
     assert corr.loc[("B", "C"), "kendall_tau"] == pytest.approx(stats.kendalltau(swapped, reverse).statistic)
-    assert len(c.correlations) == 3 and (c.correlations["n"] == 5).all()
+    assert len(c.correlations) == 6 and (c.correlations["n"] == 5).all()
+    # the amplitudes here are a tenth of the lensing factors: the same order, so the same rank
+    # statistics (rank correlations are invariant under an increasing map; Spearman 1904, Kendall 1938)
+    amp = c.correlations[c.correlations["ranking"] == "amplitude"].set_index(["run_a", "run_b"])
+    pd.testing.assert_frame_equal(amp.drop(columns="ranking"), corr.drop(columns="ranking"))
+
+
+def test_amplitude_ranking_side_by_side():
+    """Hotspots by amplitude are counted, correlated and enveloped like those by lensing factor."""
+    a = _segments([5.0, 4.0, 3.0, 2.0, 1.0])
+    a["amp_1m_m"] = [1.0, 2.0, 3.0, 4.0, 5.0]
+    b = _segments([5.0, 4.0, 3.0, 2.0, 1.0])
+    b["amp_1m_m"] = [1.0, 2.0, 3.0, 5.0, 4.0]  # one adjacent swap against run A
+    c = compare_runs([("A", a, _layers(1)), ("B", b, _layers(2))], top_k=2)
+    r = c.ranking
+    np.testing.assert_array_equal(r["amp_rank_A"], [5, 4, 3, 2, 1])
+    np.testing.assert_array_equal(r["amp_rank_B"], [5, 4, 3, 1, 2])
+    np.testing.assert_array_equal(r["amp_1m_m_max"], [1.0, 2.0, 3.0, 5.0, 5.0])
+    assert list(r["amp_max_run"]) == ["A", "A", "A", "B", "A"]  # a tie goes to the first run
+    np.testing.assert_array_equal(r["amp_n_topk"], [0, 0, 0, 2, 2])
+    np.testing.assert_array_equal(r["n_topk"], [2, 2, 0, 0, 0])  # the lensing counts are their own
+    row = c.correlations[c.correlations["ranking"] == "amplitude"].iloc[0]
+    assert row["spearman_rho"] == pytest.approx(0.9, abs=1e-12)  # one swap of five (Spearman 1904)
+    assert c.correlations[c.correlations["ranking"] == "lensing"].iloc[0]["spearman_rho"] == pytest.approx(1.0)
+    assert "top 2 by indicative amplitude in every scenario: S0004, S0005" in c.summary
+    assert "Largest envelope indicative amplitudes at 1 m depth: S0004 5.00 m (B)" in c.summary
 
 
 def test_ranking_table_side_by_side_and_topk_counts():

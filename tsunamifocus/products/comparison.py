@@ -133,33 +133,72 @@ def comparison_appendix(cmp, runs, folder: pathlib.Path) -> None:
                                                       table.loc[off, f"lensing_factor_{sn}"]]
             table[f"rank_{sn}"] = table[f"rank_{sn}"].astype(object)
             table.loc[off, f"rank_{sn}"] = "-"
+    more = []
+    if "amp_rank_envelope" in rk:
+        acols = ["segment_id", *[c for n in names for c in (f"amp_1m_m_{cmp.column_names.get(n, n)}",
+                                                             f"amp_rank_{cmp.column_names.get(n, n)}")],
+                 "amp_1m_m_max", "amp_max_run", "amp_n_topk"]
+        atop = rk.sort_values("amp_rank_envelope").head(cmp.top_k)
+        atable = atop[[c for c in acols if c in atop.columns]].copy()
+        for c in atable.columns:
+            if atable[c].dtype.kind == "f":
+                atable[c] = atable[c].map(lambda v: f"{v:.2f}" if np.isfinite(v) else "")
+        for n in names:
+            sn = cmp.column_names.get(n, n)
+            off = ~atop[f"amp_ranked_{sn}"].to_numpy(dtype=bool)
+            if off.any() and f"amp_1m_m_{sn}" in atable:
+                atable.loc[off, f"amp_1m_m_{sn}"] = [f"({v}, not ranked)" if v else "" for v in
+                                                     atable.loc[off, f"amp_1m_m_{sn}"]]
+                atable[f"amp_rank_{sn}"] = atable[f"amp_rank_{sn}"].astype(object)
+                atable.loc[off, f"amp_rank_{sn}"] = "-"
+        ren = {"segment_id": "Segment ID", "amp_1m_m_max": "Envelope amplitude (m)",
+               "amp_max_run": "Run of the largest", "amp_n_topk": f"Runs with it in their top {cmp.top_k}"}
+        for n in names:
+            sn = cmp.column_names.get(n, n)
+            ren[f"amp_1m_m_{sn}"] = f"Amplitude (m), {n}"
+            ren[f"amp_rank_{sn}"] = f"Rank, {n}"
+        atable = atable.rename(columns=ren)
+        more.append({"table": atable, "caption": f"Top {cmp.top_k} segments of the envelope ranking by indicative "
+                                                 "amplitude at 1 m depth [m], amplitude and rank per run"})
     corr = pd.DataFrame(cmp.correlations).copy()
     figs = {}
     # the segments both runs rank, as in the comparison's correlations and top-k counts
     by_id = cmp.ranking
     sa, sb = (cmp.column_names.get(n, n) for n in names[:2])
-    a = by_id[f"lensing_factor_{sa}"].where(by_id[f"ranked_{sa}"]).astype(float)
-    b = by_id[f"lensing_factor_{sb}"].where(by_id[f"ranked_{sb}"]).astype(float)
-    ok = np.isfinite(a.to_numpy()) & np.isfinite(b.to_numpy())
-    if ok.sum() >= 3:
-        fig = folder / "comparison_scatter.png"
-        plot_ranked_pair(a[ok], b[ok], fig, k=max(1, min(int(cmp.top_k), int(ok.sum()))),
-                         xlabel=f"Lensing factor (-), {names[0]}", ylabel=f"Lensing factor (-), {names[1]}",
-                         title=("Lensing factor per coastline segment ranked in both runs\n"
-                                f"{names[0]} vs {names[1]}"),
-                         names=(names[0], names[1]))
-        figs["comparison_scatter"] = str(fig)
+    pairs = [("comparison_scatter", "lensing_factor_{}", "ranked_{}", "Lensing factor (-)", "Lensing factor")]
+    if "amp_rank_envelope" in by_id:
+        pairs.append(("comparison_scatter_amplitude", "amp_1m_m_{}", "amp_ranked_{}",
+                      "Indicative amplitude at 1 m (m)", "Indicative amplitude at 1 m depth"))
+    for key, val, flag, label, what in pairs:
+        a = by_id[val.format(sa)].where(by_id[flag.format(sa)]).astype(float)
+        b = by_id[val.format(sb)].where(by_id[flag.format(sb)]).astype(float)
+        ok = np.isfinite(a.to_numpy()) & np.isfinite(b.to_numpy())
+        if ok.sum() >= 3:
+            fig = folder / f"{key}.png"
+            plot_ranked_pair(a[ok], b[ok], fig, k=max(1, min(int(cmp.top_k), int(ok.sum()))),
+                             xlabel=f"{label}, {names[0]}", ylabel=f"{label}, {names[1]}",
+                             title=(f"{what.replace(' depth', '')} per segment ranked in both runs\n"
+                                    f"{names[0]} vs {names[1]}"),
+                             names=(names[0], names[1]))
+            figs[key] = {"path": str(fig), "caption": f"{what} per coastline segment ranked in both runs, "
+                                                      f"{names[0]} against {names[1]}, the top {cmp.top_k} of "
+                                                      "each marked."}
     metrics = {}
     for _, r in corr.iterrows():
-        metrics[f"{r['run_a']} vs {r['run_b']}"] = (f"Spearman {r['spearman_rho']:.3f}, Kendall {r['kendall_tau']:.3f}"
-                                                   f" over the {int(r['n'])} segments both rank")
+        by = "lensing factor" if r.get("ranking", "lensing") == "lensing" else "amplitude"
+        metrics[f"{r['run_a']} vs {r['run_b']}, {by}"] = (
+            f"Spearman {r['spearman_rho']:.3f}, Kendall {r['kendall_tau']:.3f} over the {int(r['n'])} segments "
+            "both rank")
     section = {
         "text": [f"Runs compared: {', '.join(names)}. They share the grid, coastline and segmentation (runs that "
                  "do not are refused). The envelope layer holds the maximum lensing factor and the earliest "
-                 "arrival over the runs; difference layers are each run minus the first."],
+                 "arrival over the runs; difference layers are each run minus the first. Both rankings are "
+                 "compared, by lensing factor and by indicative amplitude; the wave checks hold the amplitude "
+                 "ranking more closely."],
         "metrics": metrics,
         "table": table,
         "table_caption": f"Top {cmp.top_k} segments of the envelope ranking, lensing factor and rank per run",
+        "more_tables": more,
         "figures": figs,
     }
     first = runs[0]

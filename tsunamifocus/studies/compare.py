@@ -79,9 +79,13 @@ class Comparison:
         ``first_arrival_s_<run>`` [s] (when present), then ``lensing_factor_max``,
         ``max_run`` (run giving the maximum), ``first_arrival_min_s``, ``n_topk`` (runs in
         which the segment is among the top k) and ``rank_envelope`` (1 = highest maximum).
-        ``<run>`` is the run name with non-word characters replaced by ``_``.
+        When every run has ``amp_1m_m``, the same by indicative amplitude: ``amp_ranked_<run>``,
+        ``amp_rank_<run>``, ``amp_1m_m_max``, ``amp_max_run``, ``amp_n_topk``,
+        ``amp_rank_envelope`` (the amplitude ranking is the one the wave checks hold more
+        closely). ``<run>`` is the run name with non-word characters replaced by ``_``.
     correlations : pandas.DataFrame
-        One row per pair of runs: ``run_a``, ``run_b``, ``n`` (segments finite in both),
+        One row per ranking and pair of runs: ``ranking`` (``"lensing"``, then ``"amplitude"``
+        when every run has ``amp_1m_m``), ``run_a``, ``run_b``, ``n`` (segments ranked in both),
         ``spearman_rho``, ``spearman_p``, ``kendall_tau``, ``kendall_p``.
     envelope : dict of str -> xarray.DataArray
         Cell-wise envelope of the layers present in every run (see :data:`ENVELOPE_RULES`):
@@ -256,7 +260,10 @@ def compare_runs(runs: Sequence[RunTuple], *, top_k: int = 10) -> Comparison:
         segs.append(_check_segmentation(ref_name, ref_seg, str(name), _segments_indexed(seg, str(name))))
     layers, common = _common_layers(runs, ref_name)
     ranking, colmap, k = _ranking_table(names, safe, segs, ref_seg, top_k)
-    corr = _rank_correlation_table(names, np.vstack([ranked_values(s, "lensing_factor") for s in segs]))
+    corr = _rank_correlation_table(names, np.vstack([ranked_values(s, "lensing_factor") for s in segs]), "lensing")
+    if all("amp_1m_m" in s.columns for s in segs):
+        corr = pd.concat([corr, _rank_correlation_table(
+            names, np.vstack([ranked_values(s, "amp_1m_m") for s in segs]), "amplitude")], ignore_index=True)
     envelope = _envelopes(names, layers, common)
     differences = _differences(names, layers, common)
     summary = _summary(names, ranking, corr, k, colmap)
@@ -332,11 +339,23 @@ def _ranking_table(names: list[str], safe: list[str], segs: list[pd.DataFrame], 
         n_top += topk_mask(ls, k)
     ranking["n_topk"] = n_top
     ranking["rank_envelope"] = _rank_desc(ranking["lensing_factor_max"]).to_numpy()
+    if all("amp_1m_m" in s.columns for s in segs):
+        amp = np.vstack([ranked_values(s, "amp_1m_m") for s in segs])
+        for sn, s, av in zip(safe, segs, amp):
+            ranking[f"amp_ranked_{sn}"] = np.isfinite(av)
+            ranking[f"amp_rank_{sn}"] = _rank_desc(pd.Series(av, index=s.index)).to_numpy()
+        fin = np.isfinite(amp).any(axis=0)
+        masked = np.where(np.isfinite(amp), amp, -np.inf)
+        ranking["amp_1m_m_max"] = np.where(fin, masked.max(axis=0), np.nan)
+        ranking["amp_max_run"] = [names[a] if f else "" for a, f in zip(masked.argmax(axis=0), fin)]
+        ranking["amp_n_topk"] = np.sum([topk_mask(av, k) for av in amp], axis=0).astype(np.int64)
+        ranking["amp_rank_envelope"] = _rank_desc(ranking["amp_1m_m_max"]).to_numpy()
     return ranking, colmap, k
 
 
-def _rank_correlation_table(names: list[str], lens: np.ndarray) -> pd.DataFrame:
-    """Spearman's rho and Kendall's tau of every pair of runs over the segments finite in both."""
+def _rank_correlation_table(names: list[str], lens: np.ndarray, ranking: str) -> pd.DataFrame:
+    """Spearman's rho and Kendall's tau of every pair of runs over the segments finite in both
+    (``lens``: one row of ranked values per run; ``ranking`` names the ranking in the table)."""
     rows = []
     for i, j in itertools.combinations(range(len(names)), 2):
         a, b = lens[i], lens[j]
@@ -347,10 +366,11 @@ def _rank_correlation_table(names: list[str], lens: np.ndarray) -> pd.DataFrame:
         else:
             rho = rp = tau = tp = float("nan")
         rows.append(
-            {"run_a": names[i], "run_b": names[j], "n": n_ok, "spearman_rho": rho, "spearman_p": rp,
-             "kendall_tau": tau, "kendall_p": tp}
+            {"ranking": ranking, "run_a": names[i], "run_b": names[j], "n": n_ok, "spearman_rho": rho,
+             "spearman_p": rp, "kendall_tau": tau, "kendall_p": tp}
         )
-    return pd.DataFrame(rows, columns=["run_a", "run_b", "n", "spearman_rho", "spearman_p", "kendall_tau", "kendall_p"])
+    return pd.DataFrame(rows, columns=["ranking", "run_a", "run_b", "n", "spearman_rho", "spearman_p", "kendall_tau",
+                                       "kendall_p"])
 
 
 def _envelopes(names: list[str], layers: list[dict[str, xr.DataArray]], common: list[str]) -> dict[str, xr.DataArray]:
@@ -394,18 +414,19 @@ def _summary(names: list[str], ranking: pd.DataFrame, corr: pd.DataFrame, k: int
         f"Comparison of {len(names)} scenarios ({', '.join(repr(n) for n in names)}) on one grid and one "
         f"coastline segmentation of {len(ranking)} segments.",
     ]
+    what = {"lensing": "the lensing factor", "amplitude": "the indicative amplitude"}
     for row in corr.itertuples():
         lines.append(
-            f"Rank correlation of the lensing factor, '{row.run_a}' vs '{row.run_b}' "
+            f"Rank correlation of {what[row.ranking]}, '{row.run_a}' vs '{row.run_b}' "
             f"({row.n} segments ranked in both): Spearman rho = {row.spearman_rho:.3f}, "
             f"Kendall tau = {row.kendall_tau:.3f}."
         )
-    every = list(ranking.index[ranking["n_topk"] == len(names)])
-    lines.append(
-        f"Segments among the top {k} in every scenario: "
-        + (", ".join(every) if every else "none")
-        + "."
-    )
+    for pre, by in (("", "lensing factor"), ("amp_", "indicative amplitude")):
+        if f"{pre}n_topk" not in ranking:
+            continue
+        every = list(ranking.index[ranking[f"{pre}n_topk"] == len(names)])
+        lines.append(f"Segments among the top {k} by {by} in every scenario: "
+                     + (", ".join(every) if every else "none") + ".")
     top = ranking.sort_values("rank_envelope").head(min(k, 5))
     if len(top):
         lines.append(
@@ -413,5 +434,14 @@ def _summary(names: list[str], ranking: pd.DataFrame, corr: pd.DataFrame, k: int
             + "; ".join(f"{sid} {v:.2f} ({r})" for sid, v, r in zip(top.index, top["lensing_factor_max"], top["max_run"]))
             + "."
         )
+    if "amp_rank_envelope" in ranking:
+        top = ranking.sort_values("amp_rank_envelope").head(min(k, 5))
+        top = top[np.isfinite(top["amp_1m_m_max"].to_numpy(float))]
+        if len(top):
+            lines.append(
+                "Largest envelope indicative amplitudes at 1 m depth: "
+                + "; ".join(f"{sid} {v:.2f} m ({r})" for sid, v, r in zip(top.index, top["amp_1m_m_max"],
+                                                                          top["amp_max_run"]))
+                + ".")
     lines.append(caution_summary())
     return "\n".join(lines)
