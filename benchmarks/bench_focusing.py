@@ -40,7 +40,10 @@ With ``--bands`` the demo's wave check is also resolved in the rays' period band
 solved with snapshots, each cell's series band-passed with the rays' octave band edges) and each
 band's ray columns are compared with the wave's band: which band's rays hold and which do not.
 
-Run:  python benchmarks/bench_focusing.py [--demo-only] [--rays N] [--seeds 7 8] [--judge-refine 2] [--bands]
+With ``--more-seeds N`` each case's rays are run for N further seeds and every seed's rankings are
+compared with the default check: whether the two seeds of the table are typical draws.
+
+Run:  python benchmarks/bench_focusing.py [--demo-only] [--rays N] [--seeds 7 8] [--judge-refine 2] [--more-seeds 6] [--bands]
 """
 
 from __future__ import annotations
@@ -183,7 +186,39 @@ def refined_judge(row: dict, scenario, depth, refine: int | str) -> dict:
         sg = ai.focusing.segments
         out[f"amp_{i}"] = compare_rankings(_series(sg, "amp_stop_m"), fine["wave_amp_stop_m"], k=K)
         out[f"lens_{i}"] = compare_rankings(_series(sg, "lensing_factor"), fine["wave_lensing"], k=K)
+    out["wave_table"] = fine
     return out
+
+
+def more_seeds(row: dict, judge: dict, scenario, depth, n: int, rays: int | None) -> dict:
+    """The ray rankings of ``n`` further seeds against the default judge: how far the two seeds of the
+    table are typical draws (the wave does not depend on the seed; only the rays are run again)."""
+    segments = _segments_for(depth, scenario)
+    wave = judge["wave_table"]
+    amp = [judge["amp_0"], judge["amp_1"]]
+    lens = [judge["lens_0"], judge["lens_1"]]
+    first = max(row["seeds"]) + 1
+    for s in range(first, first + n):
+        sc = with_seed(scenario, s, rays)
+        sg = analyse_source(depth, sc, sc.sources[0], segments=segments, keep_paths=0).focusing.segments
+        amp.append(compare_rankings(_series(sg, "amp_stop_m"), wave["wave_amp_stop_m"], k=K))
+        lens.append(compare_rankings(_series(sg, "lensing_factor"), wave["wave_lensing"], k=K))
+    return {"case": row["case"], "seeds": [*row["seeds"], *range(first, first + n)], "amp": amp, "lens": lens}
+
+
+def print_more_seeds(rows: list[dict]) -> None:
+    """Print every seed's agreement with the default judge and the mean over the seeds."""
+    if not rows:
+        return
+    print()
+    print("all seeds against the wave check as it runs by default (Spearman, top-10 common)")
+    for r in rows:
+        for key, what in (("amp", "amplitude"), ("lens", "lensing")):
+            rho = np.array([d["spearman"] for d in r[key]])
+            top = np.array([d["topk_common"] for d in r[key]])
+            print(f"{r['case']:<6} {what:<9} seeds {r['seeds'][0]}-{r['seeds'][-1]}: mean {rho.mean():.3f} "
+                  f"(min {rho.min():.3f}, max {rho.max():.3f}), top ten {top.min()}-{top.max()}/{K}: "
+                  + " ".join(f"{v:.3f}" for v in rho))
 
 
 def _band_maxima(res, bands: list[tuple[float, float]], dt: float) -> list[np.ndarray]:
@@ -328,6 +363,10 @@ def main() -> None:
     ap.add_argument("--judge-refine", type=int, default=1, metavar="N",
                     help="also run the wave check on each case's sea floor interpolated onto a grid N times finer "
                          "(about N^3 times the check's cost: ~3 min for the real case at N=2) and compare")
+    ap.add_argument("--more-seeds", type=int, default=0, metavar="N",
+                    help="also run N further ray seeds per case against the default wave check (the rays only, "
+                         "about 1.5 s (demo) and 3.5 s (real) each): whether the two seeds of the table are "
+                         "typical draws")
     ap.add_argument("--bands", action="store_true",
                     help="also resolve the demo's wave check in the rays' period bands (snapshots of the whole "
                          "grid: demo only, ~1-2 min and ~2 GB)")
@@ -368,6 +407,11 @@ def main() -> None:
         if args.judge_refine > 1:
             print(f"{name}: the wave check on a grid {args.judge_refine} times finer ...", flush=True)
             refined.append(refined_judge(r, sc, load_scenario_bathymetry(sc), args.judge_refine))
+    extra = []
+    if args.more_seeds > 0:
+        for (name, sc), r, judge in zip(cases, rows, default):
+            print(f"{name}: {args.more_seeds} more ray seeds ...", flush=True)
+            extra.append(more_seeds(r, judge, sc, load_scenario_bathymetry(sc), args.more_seeds, args.rays))
     banded = []
     if args.bands:
         print("demo: the wave check resolved in period bands ...", flush=True)
@@ -379,6 +423,7 @@ def main() -> None:
     print_refined(default, seeds, ray_wall, f"the wave check as it runs by default (refine {AUTO_REFINE}: the "
                   f"coarsest grid with at least {MIN_CELLS_PER_WAVELENGTH:g} cells per wavelength)")
     print_refined(refined, seeds, ray_wall, f"the wave check on a grid {args.judge_refine} times finer")
+    print_more_seeds(extra)
     print_bands(banded, seeds)
 
 
