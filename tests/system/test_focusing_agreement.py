@@ -273,7 +273,9 @@ def test_real_grid_amplitude_ranking_against_the_wave(etopo_path):
     # footprints one wavelength wide: 0.810 / 0.801 and 0.678 / 0.683; against the whole grid
     # refined 2x 0.825 / 0.813, refined 4x (0.025 degree) 0.831 / 0.819. Both figures are pinned
     # with a margin (0.05 and 0.08); a source given in the reverse point order (dipping east,
-    # toward the ocean) gave 0.871 at 0.1 degree.
+    # toward the ocean) gave 0.871 at 0.1 degree. Seeds 0 and 1 are favourable draws: seeds 0-7
+    # against the default check give 0.747-0.860, mean 0.797 (docs/focusing.md, "Where the
+    # rankings stand"); this pins seed 0, the default, not the mean.
     print(chk.summary().splitlines()[1], f"n={chk.agreement['n']}", f"at 0.1 degree {chk1.agreement['spearman']:.3f}")
     assert chk.agreement["spearman"] >= 0.836 - 0.05, chk.agreement
     assert chk1.agreement["spearman"] >= 0.663 - 0.08, chk1.agreement
