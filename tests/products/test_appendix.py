@@ -308,7 +308,18 @@ def test_context_errors(figs, tmp_path):
         report.build_appendix({**ctx, "date": "yesterday"}, tmp_path / "x.html")
     with pytest.raises(InputError, match="unknown key"):
         report.build_appendix({**ctx, "ensemble": {"txt": "typo"}}, tmp_path / "x.html")
+    with pytest.raises(InputError, match="more_tables.*expected a list of dicts"):
+        report.build_appendix({**ctx, "ensemble": {"more_tables": "a table"}}, tmp_path / "x.html")
     assert not (tmp_path / "x.html").exists()  # nothing written when the context is bad
+
+
+def test_section_more_tables_follow_the_first(figs, tmp_path):
+    ctx = base_context(figs)
+    ctx["comparison"] = {"table": [{"a": 1}], "table_caption": "First table",
+                         "more_tables": [{"table": [{"b": 2}], "caption": "Second table"}]}
+    _, blocks = report.document_blocks(ctx)
+    caps = [b["caption"] for b in blocks if b["kind"] == "table" and b.get("caption")]
+    assert caps.index("First table") + 1 == caps.index("Second table")
 
 
 def test_every_character_has_a_glyph_in_the_pdf_font(figs):
