@@ -195,7 +195,9 @@ def test_the_share_of_rays_past_their_predictability_is_said_above_a_quarter():
     assert CAPPED_SHARE_NOTE == 0.25
     line = capped_line(seg, checked=False)
     assert line.startswith("40 % of the energy reaching the ranked segments") and "'tsunamifocus check RUN'" in line
-    assert capped_line(seg, checked=True).endswith("the wave check says how far the rankings hold")
+    checked = capped_line(seg, checked=True)
+    assert "the wave check says how far the rankings hold for this ray fan" in checked
+    assert "varies between ray seeds too" in checked  # measured: 0.75-0.86 over eight seeds (docs/focusing.md)
     assert capped_line(seg, checked=True, remedy=False).endswith("between ray seeds")
     low = seg.assign(capped_share=[0.2, 0.2, 1.0])
     assert capped_line(low, checked=False) is None
