@@ -15,7 +15,8 @@ from ..io.gis import _plain_dtypes, longitude_note
 from ..studies.inspect import summarize_grid
 from ..studies.ensemble import robustness_scale
 from ..studies.run import SourceAnalysis
-from .summaries import UNCHECKED_RANKING, amplitude_first, capped_line, checked_ranking_note, step_text
+from .summaries import (SEED_AGREEMENT, UNCHECKED_RANKING, amplitude_first, capped_line, checked_ranking_note,
+                        step_text)
 
 __all__ = []
 
@@ -141,6 +142,8 @@ def _report_context(a: SourceAnalysis, scenario: Any, depth: xr.DataArray, point
     elif (note := checked_ranking_note(a.check.agreement)) is not None:
         ctx["ranking_note"] = note
     if (cl := capped_line(f.segments, a.check is not None, remedy=False)) is not None:
+        if a.check is not None:
+            cl += "; the wave check judged this ray fan, and " + SEED_AGREEMENT
         ctx["ranking_note"] = f"{ctx['ranking_note']} {cl}." if ctx.get("ranking_note") else f"{cl}."
     if a.travel_times is not None:
         ctx["travel_times"] = _travel_time_section(a, scenario, depth)

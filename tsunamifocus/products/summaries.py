@@ -137,10 +137,13 @@ def capped_line(seg: pd.DataFrame, checked: bool, remedy: bool = True) -> str | 
             "percent between ray seeds")
     if not remedy:
         return text
-    return text + ("; the wave check says how far the rankings hold for this ray fan, and that agreement varies "
-                   "between ray seeds too (amplitude Spearman 0.75-0.86 over eight seeds on a trans-Pacific case, "
-                   "docs/focusing.md)" if checked else
-                   "; 'tsunamifocus check RUN' says how far the rankings hold")
+    return text + ("; the wave check says how far the rankings hold for this ray fan, and " + SEED_AGREEMENT
+                   if checked else "; 'tsunamifocus check RUN' says how far the rankings hold")
+
+
+#: Said with a checked run whose rays are past their predictability: the check judges one ray fan.
+SEED_AGREEMENT: str = ("that agreement varies between ray seeds too (amplitude Spearman 0.75-0.86 over eight seeds on "
+                       "a trans-Pacific case, docs/focusing.md)")
 
 
 #: How to read a lensing factor no wave check confirmed (run summaries, appendices, source sets).
