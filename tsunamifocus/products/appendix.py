@@ -303,7 +303,8 @@ CONTEXT_KEYS: dict[str, str] = {
     "ensemble": "optional section: {text, metrics, table, table_caption, more_tables, figures}",
     "comparison": "optional section: {text, metrics, table, table_caption, more_tables, figures}",
     "wave_check": "optional section: {text, metrics, table, table_caption, more_tables, figures}",
-    "travel_times": "optional section: {text, metrics, table, table_caption, more_tables, figures} (first arrivals, isochrones)",
+    "travel_times": "optional section: {text, metrics, table, table_caption, more_tables, figures} "
+                    "(first arrivals, isochrones)",
 }
 
 #: Keys of an optional section (ensemble, comparison, wave_check).

@@ -45,8 +45,8 @@ __all__ = ["SetResult", "compute_source_set", "run_source_set", "SET_CAUTIONS", 
 #: Cautions particular to a set, added to the package's cautions in the set appendix.
 SET_CAUTIONS = (
     "A hotspot frequency counts in how many of the chosen sources a coastline segment is among the top-k "
-    "hotspots (by lensing factor, and by indicative amplitude). A weighted frequency only applies the relative weights given to those sources. Neither "
-    "is a probability of occurrence, a return period or an exceedance rate: this is NOT a probabilistic tsunami "
+    "hotspots (by lensing factor, and by indicative amplitude). A weighted frequency only applies the relative "
+    "weights given to those sources. Neither is a probability of occurrence, a return period or an exceedance rate: this is NOT a probabilistic tsunami "
     "hazard assessment, whose source rates, magnitude-frequency relations and epistemic logic trees are not "
     "modelled here.",
     "The set is only as complete as the sources listed: a segment that never appears may still focus the energy "
@@ -54,7 +54,8 @@ SET_CAUTIONS = (
     "Members trace the dominant period band only, like ensemble members; the single-scenario runs trace three "
     "period bands.",
     "Hotspots are counted by lensing factor and by indicative amplitude, and no member is checked against the "
-    "linear long-wave solver: " + LENSING_QUALITATIVE + ". To check one source, run it as a scenario with 'tsunamifocus run SCENARIO --check'.",
+    "linear long-wave solver: " + LENSING_QUALITATIVE + ". To check one source, run it as a scenario with "
+    "'tsunamifocus run SCENARIO --check'.",
 )
 
 
