@@ -111,6 +111,29 @@ def compare_to_folder(
     return written
 
 
+def _envelope_table(rk, cmp, sort_col: str, value: str, rank: str, flag: str, tail: list[str]):
+    """The top ``cmp.top_k`` rows of the envelope ranking ``sort_col``: per run its value and rank
+    (``value`` / ``rank`` / ``flag``: column patterns with ``{}`` for the run), then ``tail``. A value
+    the run does not rank (ray shadow, too few rays) is not shown as a rank."""
+    import numpy as np
+
+    top = rk.sort_values(sort_col).head(cmp.top_k)
+    runs = [cmp.column_names.get(n, n) for n in cmp.names]
+    cols = ["segment_id", *[c for sn in runs for c in (value.format(sn), rank.format(sn))], *tail]
+    table = top[[c for c in cols if c in top.columns]].copy()
+    for c in table.columns:
+        if table[c].dtype.kind == "f":
+            table[c] = table[c].map(lambda v: f"{v:.2f}" if np.isfinite(v) else "")
+    for sn in runs:
+        off = ~top[flag.format(sn)].to_numpy(dtype=bool)
+        if off.any():
+            table.loc[off, value.format(sn)] = [f"({v}, not ranked)" if v else "" for v in
+                                                table.loc[off, value.format(sn)]]
+            table[rank.format(sn)] = table[rank.format(sn)].astype(object)
+            table.loc[off, rank.format(sn)] = "-"
+    return table
+
+
 def comparison_appendix(cmp, runs, folder: pathlib.Path) -> None:
     """Write ``comparison_appendix.html/.pdf``: cautions, the first run's ranking and the comparison section."""
     import numpy as np
@@ -119,38 +142,12 @@ def comparison_appendix(cmp, runs, folder: pathlib.Path) -> None:
 
     names = list(cmp.names)
     rk = cmp.ranking.reset_index()
-    cols = [c for c in rk.columns if c.startswith(("lensing_factor_", "rank_")) or c in ("segment_id", "n_topk")]
-    top = rk.sort_values("rank_envelope" if "rank_envelope" in rk else cols[1]).head(cmp.top_k)
-    table = top[cols].copy()
-    for c in table.columns:
-        if table[c].dtype.kind == "f":
-            table[c] = table[c].map(lambda v: f"{v:.2f}" if np.isfinite(v) else "")
-    for n in names:  # a value the run does not rank (ray shadow, too few rays) is not shown as a rank
-        sn = cmp.column_names.get(n, n)
-        off = ~top[f"ranked_{sn}"].to_numpy(dtype=bool)
-        if off.any():
-            table.loc[off, f"lensing_factor_{sn}"] = [f"({v}, not ranked)" if v else "" for v in
-                                                      table.loc[off, f"lensing_factor_{sn}"]]
-            table[f"rank_{sn}"] = table[f"rank_{sn}"].astype(object)
-            table.loc[off, f"rank_{sn}"] = "-"
+    table = _envelope_table(rk, cmp, "rank_envelope", "lensing_factor_{}", "rank_{}", "ranked_{}",
+                            ["lensing_factor_max", "n_topk", "rank_envelope"])
     more = []
     if "amp_rank_envelope" in rk:
-        acols = ["segment_id", *[c for n in names for c in (f"amp_1m_m_{cmp.column_names.get(n, n)}",
-                                                             f"amp_rank_{cmp.column_names.get(n, n)}")],
-                 "amp_1m_m_max", "amp_max_run", "amp_n_topk"]
-        atop = rk.sort_values("amp_rank_envelope").head(cmp.top_k)
-        atable = atop[[c for c in acols if c in atop.columns]].copy()
-        for c in atable.columns:
-            if atable[c].dtype.kind == "f":
-                atable[c] = atable[c].map(lambda v: f"{v:.2f}" if np.isfinite(v) else "")
-        for n in names:
-            sn = cmp.column_names.get(n, n)
-            off = ~atop[f"amp_ranked_{sn}"].to_numpy(dtype=bool)
-            if off.any() and f"amp_1m_m_{sn}" in atable:
-                atable.loc[off, f"amp_1m_m_{sn}"] = [f"({v}, not ranked)" if v else "" for v in
-                                                     atable.loc[off, f"amp_1m_m_{sn}"]]
-                atable[f"amp_rank_{sn}"] = atable[f"amp_rank_{sn}"].astype(object)
-                atable.loc[off, f"amp_rank_{sn}"] = "-"
+        atable = _envelope_table(rk, cmp, "amp_rank_envelope", "amp_1m_m_{}", "amp_rank_{}", "amp_ranked_{}",
+                                 ["amp_1m_m_max", "amp_max_run", "amp_n_topk"])
         ren = {"segment_id": "Segment ID", "amp_1m_m_max": "Envelope amplitude (m)",
                "amp_max_run": "Run of the largest", "amp_n_topk": f"Runs with it in their top {cmp.top_k}"}
         for n in names:

@@ -228,31 +228,36 @@ def _ensemble_perturbations(e: Any) -> str:
     return ", ".join(parts[:-1]) + (" and " if len(parts) > 1 else "") + parts[-1]
 
 
-def _ensemble_section(ens: Any, scenario: Any) -> dict:
-    e = scenario.ensemble
-    seg = ens.segments.reset_index()
-    cols = [c for c in ("segment_id", "lensing_factor", "lensing_lo", "lensing_hi", "amp_1m_m", "amp_lo", "amp_hi",
-                        "p_topk", "robustness") if c in seg]
-    top = seg.sort_values("p_topk", ascending=False).head(scenario.output.top_k)[cols].copy()
+#: Headers of the ensemble tables' columns.
+_ENSEMBLE_HEADERS = {"segment_id": "segment", "lensing_factor": "lensing (median)", "lensing_lo": "lensing 5 %",
+                     "lensing_hi": "lensing 95 %", "amp_1m_m": "amp. at 1 m (median, m)", "amp_lo": "amp. 5 %",
+                     "amp_hi": "amp. 95 %", "robustness_amp": "robustness"}
+
+
+def _robust_table(ordered: pd.DataFrame, rows: int, cols: tuple[str, ...], top_k: int) -> pd.DataFrame:
+    """The first ``rows`` segments of ``ordered`` with ``cols`` (those present), numbers to two
+    decimals, headed for the appendix (``p_topk*`` as ``P(top k)``)."""
+    cols = [c for c in ("segment_id", *cols) if c in ordered]
+    top = ordered.head(rows)[cols].copy()
     for c in top.columns:
         if top[c].dtype.kind == "f":
             top[c] = top[c].map(lambda v: f"{v:.2f}" if np.isfinite(v) else "")
-    top = top.rename(columns={"segment_id": "segment", "lensing_factor": "lensing (median)",
-                              "lensing_lo": "lensing 5 %", "lensing_hi": "lensing 95 %",
-                              "amp_1m_m": "amp. at 1 m (median, m)", "amp_lo": "amp. 5 %", "amp_hi": "amp. 95 %",
-                              "p_topk": f"P(top {ens.top_k})"})
+    return top.rename(columns={**_ENSEMBLE_HEADERS, "p_topk": f"P(top {top_k})", "p_topk_amp": f"P(top {top_k})"})
+
+
+def _ensemble_section(ens: Any, scenario: Any) -> dict:
+    e = scenario.ensemble
+    seg = ens.segments.reset_index()
+    k = scenario.output.top_k
+    top = _robust_table(seg.sort_values("p_topk", ascending=False), k,
+                        ("lensing_factor", "lensing_lo", "lensing_hi", "amp_1m_m", "amp_lo", "amp_hi", "p_topk",
+                         "robustness"), ens.top_k)
     more = []
     if "p_topk_amp" in seg:
-        cols_a = [c for c in ("segment_id", "amp_1m_m", "amp_lo", "amp_hi", "lensing_factor", "p_topk_amp",
-                              "robustness_amp") if c in seg]
-        top_a = seg.sort_values(["p_topk_amp", "amp_1m_m"], ascending=False, kind="stable",
-                                na_position="last").head(scenario.output.top_k)[cols_a].copy()
-        for c in top_a.columns:
-            if top_a[c].dtype.kind == "f":
-                top_a[c] = top_a[c].map(lambda v: f"{v:.2f}" if np.isfinite(v) else "")
-        top_a = top_a.rename(columns={"segment_id": "segment", "amp_1m_m": "amp. at 1 m (median, m)",
-                                      "amp_lo": "amp. 5 %", "amp_hi": "amp. 95 %", "lensing_factor": "lensing (median)",
-                                      "p_topk_amp": f"P(top {ens.top_k})", "robustness_amp": "robustness"})
+        top_a = _robust_table(seg.sort_values(["p_topk_amp", "amp_1m_m"], ascending=False, kind="stable",
+                                              na_position="last"), k,
+                              ("amp_1m_m", "amp_lo", "amp_hi", "lensing_factor", "p_topk_amp", "robustness_amp"),
+                              ens.top_k)
         more.append({"table": top_a, "caption": f"Segments most often among the top {ens.top_k} by indicative "
                                                 "amplitude"})
     return {

@@ -17,7 +17,7 @@ from pyproj import Transformer
 
 from ..coast.segments import STATIC_SEGMENT_COLUMNS as _STATIC_COLUMNS
 from ..constants import __version__
-from ..focusing.ranking import ranked_mask
+from ..focusing.ranking import _rank_desc, ranked_mask
 from ..grid import GridInfo
 from ..io.gis import _plain_dtypes, longitude_note, write_cog, write_netcdf, write_points_csv, write_segments
 from ..io.manifest import jsonable, write_manifest
@@ -197,14 +197,6 @@ def _with_ensemble_intervals(seg: pd.DataFrame, ens: pd.DataFrame, members: pd.D
     table of member values, for the number of members with an amplitude per segment)."""
     out = seg.copy()
     e = ens.reindex(out["segment_id"].to_numpy())
-
-    def ranks(v: np.ndarray) -> pd.arrays.IntegerArray:
-        order = np.argsort(-np.nan_to_num(v, nan=-np.inf), kind="stable")
-        rank = np.full(len(v), np.nan)
-        good = order[np.isfinite(v[order])]
-        rank[good] = np.arange(1, good.size + 1)
-        return pd.array([int(r) if np.isfinite(r) else None for r in rank], dtype="Int64")
-
     for col in ("lensing_factor", "lensing_lo", "lensing_hi"):
         if col in e.columns:
             out[col] = e[col].to_numpy(dtype=float)
@@ -213,7 +205,7 @@ def _with_ensemble_intervals(seg: pd.DataFrame, ens: pd.DataFrame, members: pd.D
         n = int(np.nanmax(e["n_valid"].to_numpy(dtype=float))) if len(e) else 0
         ok = e["n_valid"].to_numpy(dtype=float) >= max(1, math.ceil(n / 2))
         out["reliable"] = ok
-        out["rank_lensing"] = ranks(np.where(ok, out["lensing_factor"].to_numpy(dtype=float), np.nan))
+        out["rank_lensing"] = _rank_desc(out["lensing_factor"].to_numpy(dtype=float), ok)
     if (members is not None and "amp_1m_m" in e.columns and "amp_1m_m" in members.columns
             and "segment_id" in members.columns and "rank_amplitude" in out.columns):
         for col in ("amp_1m_m", "amp_lo", "amp_hi"):
@@ -223,7 +215,7 @@ def _with_ensemble_intervals(seg: pd.DataFrame, ens: pd.DataFrame, members: pd.D
         n = int(members["member"].nunique()) if "member" in members.columns else int(cnt.max())
         ok = cnt.to_numpy(dtype=float) >= max(1, math.ceil(n / 2))
         out["amp_reliable"] = ok
-        out["rank_amplitude"] = ranks(np.where(ok, out["amp_1m_m"].to_numpy(dtype=float), np.nan))
+        out["rank_amplitude"] = _rank_desc(out["amp_1m_m"].to_numpy(dtype=float), ok)
     return out
 
 
