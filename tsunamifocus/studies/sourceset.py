@@ -199,7 +199,7 @@ def set_statistics(tables: dict[int, pd.DataFrame], names: dict[int, str], weigh
         Per segment: ``n_valid``, ``topk_frequency`` (share of members with the segment in their
         top k by lensing factor), ``topk_frequency_weighted`` (the same with the members' weights),
         ``amp_topk_frequency`` / ``amp_topk_frequency_weighted`` (the same for the top k by
-        indicative amplitude at 1 m depth, the ranking the wave checks hold more closely),
+        indicative amplitude at 1 m depth),
         ``lensing_median`` / ``lensing_p90`` / ``lensing_max``, ``amp_median_m`` / ``amp_p90_m``
         / ``amp_max_m`` (``numpy.nanpercentile``, linear), ``hotspot_sources`` /
         ``amp_hotspot_sources``, ``rank_frequency`` (1 = most often a lensing hotspot, weighted;
