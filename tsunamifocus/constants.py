@@ -54,6 +54,8 @@ SOURCE_SET_DEFAULTS: dict[str, object] = {"weight": 1.0}
 #: ``[rays] count``, ``--rays``): a fan needs at least 8 rays (one per launch block and half fan).
 MIN_RAYS: int = 8
 MAX_RAYS: int = 100_000_000
+#: Rotated copies of a ray fan (``[rays] rotations``): the one range.
+MAX_ROTATIONS: int = 16
 
 #: Work-size limits, checked before the work starts (errors.check_work), like the memory limit:
 #: coastline segments of one segmentation, and cell updates (wet cells x time steps) of one run of the

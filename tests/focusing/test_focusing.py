@@ -593,6 +593,38 @@ def test_analyse_focusing_end_to_end():
     assert float(res.focusing_factor.sel(x=80e3, y=YC)) > 1.5
 
 
+def test_rotated_fans_traced_together_give_the_mean_of_the_fans():
+    # K rotated copies of a point-source fan traced together, each tube as wide as its own copy's
+    # launch step (K pooled steps) and each ray carrying 1/K of its energy, deposit on the coast
+    # exactly the mean of the K fans traced one by one (the deposit is linear in the rays:
+    # definition of the averaged estimator, tsunamifocus.source.rayfan.make_ray_fan).
+    from types import SimpleNamespace
+
+    d = shelf()
+    n, k = 720, 4
+    width = 360.0 / n
+    fans = [(np.full(n, 30e3), np.full(n, 50e3), (np.arange(n) + 0.5) * width + j * width / k,
+             np.full(n, E_SRC / n)) for j in range(k)]
+    kw = dict(period_s=T, reference_smooth_km=30.0, segment_length_m=5e3, n_boot=0, min_rays=35)
+    singles = [analyse_focusing(d, f, **kw).segments for f in fans]
+    pooled_fan = SimpleNamespace(x0=np.concatenate([f[0] for f in fans]), y0=np.concatenate([f[1] for f in fans]),
+                                 azimuth_deg=np.concatenate([f[2] for f in fans]),
+                                 weights=np.concatenate([f[3] / k for f in fans]), energy_J=E_SRC, rotations=k)
+    pooled = analyse_focusing(d, pooled_fan, **kw).segments
+    assert pooled.attrs["rotations"] == k
+    for col in ("energy_per_m", "ref_energy_per_m", "energy_J"):
+        mean = sum(s[col].to_numpy(float) for s in singles) / k
+        assert np.nanmax(mean) > 0
+        np.testing.assert_allclose(pooled[col].to_numpy(float), mean, rtol=1e-9, atol=1e-12 * np.nanmax(mean))
+    # a segment counts as reliable with min_rays tubes per rotation, not per pooled fan (here 23-48
+    # tubes per fan: some segments on either side of min_rays = 35)
+    n_tubes = sum(s["n_rays"].to_numpy(float) for s in singles)
+    np.testing.assert_array_equal(pooled["n_rays"].to_numpy(float), n_tubes)
+    enough = n_tubes >= 35 * k
+    assert enough.any() and not enough.all()
+    np.testing.assert_array_equal(pooled["amp_reliable"].to_numpy(bool), enough & ~pooled["shadow"].to_numpy(bool))
+
+
 def test_lonlat_grid_arrivals_use_geodesic_lengths():
     # The flat-shelf case on a lon/lat grid at the equator: rays launched due east from a
     # meridian follow great circles, which stay within 1e-4 deg of their parallel over 1.3 deg

@@ -199,6 +199,12 @@ def test_the_share_of_rays_past_their_predictability_is_said_above_a_quarter():
     assert "the wave check says how far the rankings hold for this ray fan" in checked
     assert "varies between ray seeds too" in checked  # measured: 0.75-0.86 over eight seeds (docs/focusing.md)
     assert capped_line(seg, checked=True, remedy=False).endswith("between ray seeds")
+    # with rotated fans averaged (the run's default past the predictability) it says so, and the
+    # smaller scatter measured then (docs/focusing.md)
+    seg.attrs["rotations"] = 4
+    four = capped_line(seg, checked=True)
+    assert "the run averaged 4 rotated ray fans" in four and "about 7 %" in four and "these fans" in four
+    assert "with four rotated fans" in four
     low = seg.assign(capped_share=[0.2, 0.2, 1.0])
     assert capped_line(low, checked=False) is None
     assert capped_share(seg.drop(columns="capped_share")) is None

@@ -529,6 +529,35 @@ def test_fan_weights_sum_to_energy_and_launch_on_sea():
     assert ds.sizes["ray"] == 240 and float(ds.weight.sum()) == pytest.approx(E)
 
 
+def test_fan_rotations_are_stratified_copies_carrying_the_energy_once():
+    # K rotations of a fan: copy j is the fan rotated by j dtheta / K, each copy carrying 1/K of the
+    # energy (definition, tsunamifocus.source.rayfan.make_ray_fan); the pooled azimuths are then
+    # evenly spaced dtheta / K apart (stratified sampling of the launch angle; common practice, no
+    # source) and the weights still sum to the source's potential energy (energy conservation).
+    d = flat_grid(cell_km=4.0)
+    seg = utm_segment(half_len_km=150.0)
+    eta = uplift_on_grid(seg, d)
+    one = make_ray_fan(eta, d, 240, seed=5)
+    four = make_ray_fan(eta, d, 240, seed=5, rotations=4)
+    assert four.rotations == 4 and one.rotations == 1
+    assert four.n_rays == 4 * one.n_rays and four.dtheta_deg == one.dtheta_deg
+    assert four.weights.sum() == pytest.approx(potential_energy(eta, d), rel=1e-12)
+    # the first copy is the fan itself, with a quarter of each ray's energy
+    n = one.n_rays
+    np.testing.assert_allclose(four.azimuth_deg[:n], one.azimuth_deg, rtol=0, atol=1e-9)
+    np.testing.assert_allclose(4.0 * four.weights[:n], one.weights, rtol=1e-12)
+    # copy j: the fan rotated by j dtheta / 4, from the same launch points
+    for j in range(1, 4):
+        rot = make_ray_fan(eta, d, 240, seed=5, azimuth_offset_deg=j * one.dtheta_deg / 4)
+        np.testing.assert_allclose(four.azimuth_deg[j * n:(j + 1) * n], rot.azimuth_deg, rtol=0, atol=1e-9)
+        np.testing.assert_array_equal(four.x0[j * n:(j + 1) * n], one.x0)
+    spacing = np.diff(np.unique(np.round(four.azimuth_deg, 9)))
+    np.testing.assert_allclose(spacing, one.dtheta_deg / 4, rtol=1e-6)
+    for bad in (0, 17, 2.5):
+        with pytest.raises(SourceError, match="rotations"):
+            make_ray_fan(eta, d, 240, rotations=bad)
+
+
 def test_fan_geographic_beams_perpendicular_to_strike():
     lon = np.arange(140.0, 150.0, 0.05)
     lat = np.arange(30.0, 40.0, 0.05)

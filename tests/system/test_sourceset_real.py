@@ -12,7 +12,7 @@ References:
   Escarpment and the shelf off it acting as a lens and waveguide (Horrillo et al. 2008; Kowalik
   et al. 2008, from memory). The amplitude hotspots of such sources belong there.
 
-Run time: about 30-40 s on 2 cores (four members of one period band each).
+Run time: about 1 min on 2 cores (four members; three period bands and four rotated ray fans each).
 """
 
 from __future__ import annotations

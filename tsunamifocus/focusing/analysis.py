@@ -351,7 +351,8 @@ def analyse_focusing(
         later = pool.submit(grids)
         table = segment_arrivals(segments, None, depth, period_s=period_s, bands=runs,
                                  max_distance_m=max_distance_m, min_rays=min_rays, n_boot=n_boot, seed=seed,
-                                 coast_area=coast_area, min_width_factor=min_width_factor)
+                                 coast_area=coast_area, min_width_factor=min_width_factor,
+                                 rotations=int(getattr(fan, "rotations", 1)))
         maps, dist, fluct = later.result()
     ranking = rank_segments(table, top_k=top_k, by="lensing_factor")
     d_coast = _segment_distance(table, info, x0, y0)

@@ -172,11 +172,14 @@ def _boot_energy(matrices: Sequence[tuple[float, sparse.csr_matrix]], nseg: int,
 
 def _deposits(bands: list[BandTrace], which: str, segments: pd.DataFrame, depth: xr.DataArray,
               geo: CoastGeometry, max_distance_m: float, min_width_factor: float,
-              max_incidence_deg: float, steps_cache: list) -> list[TubeDeposit] | None:
+              max_incidence_deg: float, rotations: int, steps_cache: list) -> list[TubeDeposit] | None:
     runs = [getattr(b, which) for b in bands]
     if any(r is None for r in runs):
         return None
-    return [tube_deposit(segments, r.end, depth, steps=_fan_steps(r.end, geo, steps_cache), period_s=b.period_s,
+    # K interleaved rotations of a fan: each tube spans its own rotation's launch step, K times the
+    # spacing of the pooled azimuths (so the deposits are the mean of the K fans' deposits)
+    return [tube_deposit(segments, r.end, depth, steps=rotations * _fan_steps(r.end, geo, steps_cache),
+                         period_s=b.period_s,
                          max_distance_m=max_distance_m, min_width_factor=min_width_factor,
                          max_incidence_deg=max_incidence_deg, coast=geo) for b, r in zip(bands, runs)]
 
@@ -315,6 +318,7 @@ def segment_arrivals(
     max_incidence_deg: float = 80.0,
     min_width_factor: float = TUBE_MIN_WIDTH,
     coast_area: Any = None,
+    rotations: int = 1,
 ) -> pd.DataFrame:
     """Energy, arrival time, direction, lensing factor and indicative amplitude per segment.
 
@@ -389,6 +393,10 @@ def segment_arrivals(
         compare only the energy of rays ending there, so a coastline file or region covering
         part of a large grid does not count the energy reaching every other coast as missing.
         Default: the whole grid.
+    rotations : int
+        Rotated copies of the fan in the traces (:func:`tsunamifocus.source.rayfan.make_ray_fan`):
+        each tube is ``rotations`` pooled launch steps wide, and ``reliable`` needs ``min_rays``
+        tubes per rotation.
 
     Returns
     -------
@@ -415,7 +423,11 @@ def segment_arrivals(
     geo = CoastGeometry.build(segments, depth)  # once for all bands and both oceans
     out, h_stop, idx = _descriptive(segments, end, info, max_distance_m, stop, geo)
     length = segments["length_m"].to_numpy(float)
-    args = (segments, depth, geo, max_distance_m, min_width_factor, max_incidence_deg, [])  # one fan: its steps once
+    rotations = int(rotations)
+    if rotations < 1:
+        raise InputError(f"rotations={rotations!r}: expected a count of fan rotations >= 1")
+    # one fan: its steps once
+    args = (segments, depth, geo, max_distance_m, min_width_factor, max_incidence_deg, rotations, [])
     real_d = _deposits(bl, "real", *args)
     ref_d = _deposits(bl, "reference", *args)
     rng = np.random.default_rng(seed)
@@ -423,10 +435,11 @@ def segment_arrivals(
     _amplitude_columns(out, bl, real, ref, h_stop, n_boot, max_incidence_deg, rho, gravity)
     out["fresnel_sigma_m"] = _fresnel_width(out, end, info, out["c_stop_m_s"].to_numpy(float), bl[dom].period_s)
     # the amplitude needs the real run's tubes only; the lensing factor the reference run's too
-    amp_rel = ~real["shadow"] & (real["n_tubes"] >= int(min_rays))
+    # at least min_rays tubes per fan rotation (rotated copies of one tube are not more paths)
+    amp_rel = ~real["shadow"] & (real["n_tubes"] >= int(min_rays) * rotations)
     rel = amp_rel.copy()
     if ref is not None:
-        rel &= ~ref["shadow"] & (ref["n_tubes"] >= int(min_rays))
+        rel &= ~ref["shadow"] & (ref["n_tubes"] >= int(min_rays) * rotations)
     if "reachable" in out:  # water the wave cannot reach is neither a shadow nor ranked
         reach = out["reachable"].to_numpy(bool)
         rel &= reach
@@ -439,6 +452,7 @@ def segment_arrivals(
     out = _add_ranks(out, ref is not None)
     _arrival_attrs(out, bl, real_d, ref_d, idx, end, max_distance_m, min_rays, n_boot, seed, period_s, coast_area,
                    min_width_factor)
+    out.attrs["rotations"] = rotations
     _arrival_warnings(out, max_distance_m, min_rays, ref is not None, coast_area is not None)
     return out
 

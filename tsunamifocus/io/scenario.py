@@ -39,7 +39,7 @@ from pathlib import Path
 from typing import Any
 
 from ..cautions import caution_lines
-from ..constants import DEFAULTS, MAX_RAYS, MIN_RAYS, STOP_DEPTH_M
+from ..constants import DEFAULTS, MAX_RAYS, MAX_ROTATIONS, MIN_RAYS, STOP_DEPTH_M
 from ..errors import MESSAGE_VALUE_CHARS, DataFileError, InputError, ScenarioError, cut
 from .runfolder import safe_name
 from .subfaults import read_subfault_table
@@ -181,7 +181,9 @@ class RaysConfig:
     """``[rays]``: ray-tracing settings (count, stop isobath [m], time limit [h], step [s], seed).
 
     ``count`` None means "auto": the run decides (see :mod:`tsunamifocus.studies.settings`) and
-    records the number it used in its manifest and output scenario.
+    records the number it used in its manifest and output scenario. ``rotations`` None means
+    "auto": one fan, or :data:`tsunamifocus.focusing.ranking.ROTATIONS_PAST_PREDICTABILITY`
+    rotated fans averaged when the first fan's rays are past their predictability.
     """
 
     count: int | None = None
@@ -189,6 +191,7 @@ class RaysConfig:
     max_time_h: float = DEFAULTS["rays"]["max_time_h"]  # type: ignore[assignment]
     step_s: float | None = None
     seed: int = DEFAULTS["rays"]["seed"]  # type: ignore[assignment]
+    rotations: int | None = None
 
 
 @dataclass(frozen=True)
@@ -526,6 +529,8 @@ _SPEC: dict[str, tuple[_Key, ...]] = {
         _f("step_s", "integration time step", "s", lo=0.0, hi=3600.0, lo_open=True,
            default_doc="chosen from the grid spacing"),
         _i("seed", "random seed of the ray fan", "", lo=0, hi=_SEED_MAX),
+        _i("rotations", "rotated copies of the ray fan traced and averaged", "", lo=1, hi=MAX_ROTATIONS,
+           default_doc="auto: 1, or 4 when the rays are past their predictability (across an ocean)"),
     ),
     "focusing": (
         _f("reference_smooth_km", "low-pass length of the reference bathymetry (lensing factor)", "km",

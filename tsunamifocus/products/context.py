@@ -15,7 +15,7 @@ from ..io.gis import _plain_dtypes, longitude_note
 from ..studies.inspect import summarize_grid
 from ..studies.ensemble import robustness_scale
 from ..studies.run import SourceAnalysis
-from .summaries import (SEED_AGREEMENT, UNCHECKED_RANKING, amplitude_first, capped_line, checked_ranking_note,
+from .summaries import (UNCHECKED_RANKING, amplitude_first, capped_line, checked_ranking_note, seed_agreement,
                         step_text)
 
 __all__ = []
@@ -59,7 +59,8 @@ def _report_context(a: SourceAnalysis, scenario: Any, depth: xr.DataArray, point
         "displacement on land, left out (%)": _fmt(100 * (sm.get("land_share") or 0.0), ".1f"),
         "dominant wavelength (km)": _fmt(sm.get("wavelength_km"), ".0f"),
         "dominant period (min)": _fmt(a.period_s / 60, ".1f"),
-        "rays": str(a.fan.n_rays),
+        "rays": str(a.fan.n_rays) + (f" ({a.fan.rotations} rotations of a {a.fan.n_rays // a.fan.rotations}-ray fan)"
+                                     if getattr(a.fan, "rotations", 1) > 1 else ""),
     })
     for i, note in enumerate(a.summary.notes):  # what the run summary prints as WARNING lines
         src["warning" if len(a.summary.notes) == 1 else f"warning {i + 1}"] = note
@@ -86,6 +87,9 @@ def _report_context(a: SourceAnalysis, scenario: Any, depth: xr.DataArray, point
 
     settings = {
         "rays per source": chosen("rays", scenario.rays.count),
+        "ray fan rotations averaged": (str(scenario.rays.rotations) if scenario.rays.rotations else
+                                       f"{getattr(a.fan, 'rotations', 1)} (auto: 4 when the rays are past their "
+                                       "predictability, else 1)"),
         "stop isobath (m)": scenario.rays.stop_depth_m,
         "time limit (h)": scenario.rays.max_time_h,
         "integration step": step_text(health),
@@ -143,7 +147,9 @@ def _report_context(a: SourceAnalysis, scenario: Any, depth: xr.DataArray, point
         ctx["ranking_note"] = note
     if (cl := capped_line(f.segments, a.check is not None, remedy=False)) is not None:
         if a.check is not None:
-            cl += "; the wave check judged this ray fan, and " + SEED_AGREEMENT
+            rot = int(f.segments.attrs.get("rotations", 1) or 1)
+            cl += (f"; the wave check judged {'these fans' if rot > 1 else 'this ray fan'}, and "
+                   + seed_agreement(rot))
         ctx["ranking_note"] = f"{ctx['ranking_note']} {cl}." if ctx.get("ranking_note") else f"{cl}."
     if a.travel_times is not None:
         ctx["travel_times"] = _travel_time_section(a, scenario, depth)

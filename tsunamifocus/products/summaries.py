@@ -9,7 +9,7 @@ import numpy as np
 import pandas as pd
 
 from ..cautions import caution_summary
-from ..focusing.ranking import ranked_mask, ranked_values
+from ..focusing.ranking import CAPPED_SHARE_NOTE, capped_share, ranked_mask, ranked_values
 from ..ocean.wavelength import WAVELENGTH_FRACTION
 from ..studies.run import RunResult
 from ..studies.check import (AMPLITUDE_RATIO_FACTOR, FAINT_WAVE_FRACTION, MIN_CELLS_PER_WAVELENGTH, nest_ocean_words,
@@ -106,44 +106,39 @@ def seg_sigma_km(seg: pd.DataFrame) -> np.ndarray:
 WEAK_AGREEMENT: float = 0.5
 
 
-#: From this share of the ranked segments' energy carried by Fresnel-capped ray tubes (rays past
-#: their predictability) the summary says that segment values scatter between ray seeds. Project
-#: choice from measurements (docs/focusing.md): the demo 0.3 %, four trans-ocean cases 34-65 %
-#: (spectrum-weighted; 15-91 % per period band), where two seeds' segment energies differ by 30-40 %
-#: (rms of the log ratio).
-CAPPED_SHARE_NOTE: float = 0.25
-
-
-def capped_share(seg: pd.DataFrame) -> float | None:
-    """Energy-weighted share of the amplitude-ranked segments' energy that came in Fresnel-capped
-    tubes (the ``capped_share`` column), or None when the table has no such column or energy."""
-    if "capped_share" not in seg or "energy_J" not in seg:
-        return None
-    e, c = ranked_values(seg, "energy_J"), ranked_values(seg, "capped_share")  # the amplitude ranking's segments
-    good = np.isfinite(e) & np.isfinite(c) & (e > 0)
-    if not good.any():
-        return None
-    return float(np.sum(e[good] * c[good]) / np.sum(e[good]))
-
-
 def capped_line(seg: pd.DataFrame, checked: bool, remedy: bool = True) -> str | None:
     """The summary's sentence on rays past their predictability, or None below CAPPED_SHARE_NOTE
-    (``remedy``: end with where to see how far the rankings hold)."""
+    (``remedy``: end with where to see how far the rankings hold). It says whether the run
+    averaged rotated ray fans (``seg.attrs["rotations"]``, from the focusing stage)."""
     cs = capped_share(seg)
     if cs is None or cs < CAPPED_SHARE_NOTE:
         return None
+    rot = int(seg.attrs.get("rotations", 1) or 1)
     text = (f"{100 * cs:.0f} % of the energy reaching the ranked segments came in ray tubes wider than their first "
-            "Fresnel zone (rays past their predictability, as across an ocean): segment values scatter by tens of "
-            "percent between ray seeds")
+            "Fresnel zone (rays past their predictability, as across an ocean): "
+            + (f"the run averaged {rot} rotated ray fans, and segment amplitudes still scatter by "
+               f"{SEED_SCATTER[1]} between ray seeds (one fan: {SEED_SCATTER[0]})" if rot > 1 else
+               "segment values scatter by tens of percent between ray seeds"))
     if not remedy:
         return text
-    return text + ("; the wave check says how far the rankings hold for this ray fan, and " + SEED_AGREEMENT
-                   if checked else "; 'tsunamifocus check RUN' says how far the rankings hold")
+    return text + (f"; the wave check says how far the rankings hold for {'these fans' if rot > 1 else 'this ray fan'}"
+                   f", and {seed_agreement(rot)}" if checked else "; 'tsunamifocus check RUN' says how far the "
+                   "rankings hold")
 
 
-#: Said with a checked run whose rays are past their predictability: the check judges one ray fan.
-SEED_AGREEMENT: str = ("that agreement varies between ray seeds too (amplitude Spearman 0.75-0.86 over eight seeds on "
-                       "a trans-Pacific case, docs/focusing.md)")
+#: Measured scatter of the segments' indicative amplitudes between ray seeds on the trans-Pacific
+#: case (rms of the log ratio over pairs of seeds, docs/focusing.md): one fan, four rotated fans.
+SEED_SCATTER: tuple[str, str] = ("about 16 %", "about 7 %")
+
+
+def seed_agreement(rotations: int = 1) -> str:
+    """Said with a checked run whose rays are past their predictability: the check judged one draw
+    of the ray fan(s), and how far that agreement moves between ray seeds (measured, docs/focusing.md)."""
+    if rotations > 1:
+        return ("that agreement varies between ray seeds too (amplitude Spearman 0.81-0.84 over six seeds with four "
+                "rotated fans on a trans-Pacific case, 0.75-0.86 with one fan; docs/focusing.md)")
+    return ("that agreement varies between ray seeds too (amplitude Spearman 0.75-0.86 over eight seeds on "
+            "a trans-Pacific case, docs/focusing.md)")
 
 
 #: How to read a lensing factor no wave check confirmed (run summaries, appendices, source sets).

@@ -9,7 +9,7 @@ import numpy as np
 import xarray as xr
 
 from ..cautions import caution_summary
-from ..constants import GRAVITY, MIN_RAYS, RHO_SEAWATER
+from ..constants import GRAVITY, MAX_ROTATIONS, MIN_RAYS, RHO_SEAWATER
 from ..errors import SourceError
 from ..grid import GridInfo
 from ..ocean.smooth import sea_mask
@@ -45,7 +45,11 @@ class RayFan:
     seed : int
         Seed of the rotation of the azimuth set.
     dtheta_deg : float
-        Azimuth spacing of the half fan leaving each launch point [degrees] (ray-tube width).
+        Azimuth spacing of the half fan leaving each launch point [degrees] (ray-tube width); with
+        ``rotations`` > 1, the spacing within one rotation of the fan.
+    rotations : int
+        Copies of the fan, each rotated by ``dtheta_deg / rotations`` from the previous one and
+        carrying ``1 / rotations`` of the energy (see :func:`make_ray_fan`).
     energy_shallow_J : float
         Uplift energy on sea cells at or shallower than the stop isobath [J], not launched.
     method : str
@@ -65,6 +69,7 @@ class RayFan:
     seed: int | None = 0
     dtheta_deg: float = float("nan")
     energy_shallow_J: float = 0.0
+    rotations: int = 1
     method: str = "far-field angular spectrum of the initial sea surface (linear long-wave theory)"
 
     def __len__(self) -> int:
@@ -206,6 +211,7 @@ def make_ray_fan(
     azimuth_offset_deg: float = 0.0,
     stop_depth_m: float = 20.0,
     blocks: int = 8,
+    rotations: int = 1,
 ) -> RayFan:
     """Energy-weighted ray fan from an initial sea surface.
 
@@ -226,6 +232,13 @@ def make_ray_fan(
     ``dtheta_deg`` (what :func:`tsunamifocus.coast.tubes.tube_deposit` needs). Uplift energy on
     sea cells at or shallower than the stop isobath is already at the coast: it is not
     launched and is booked as ``energy_shallow_J`` (weights sum to ``E - energy_shallow_J``).
+
+    With ``rotations = K > 1`` the fan holds K copies of that fan, copy ``j`` rotated by
+    ``j dtheta / K`` (stratified rotations: together they sample the launch angle K times more
+    finely), each carrying ``1 / K`` of the energy. Traced together, their tube deposits with
+    each tube ``dtheta`` wide (:func:`tsunamifocus.focusing.analysis.analyse_focusing`) are the
+    mean of K single fans' deposits: past the rays' predictability, where one fan's deposits
+    depend on its rotation, the mean does much less (docs/focusing.md).
 
     Parameters
     ----------
@@ -249,6 +262,8 @@ def make_ray_fan(
         Stop isobath [m] of the run: launch points lie deeper than twice this depth.
     blocks : int
         Launch points on each side of the strike (>= 1).
+    rotations : int
+        Rotated copies of the fan (1-16; the fan then has ``rotations`` times the rays).
 
     Returns
     -------
@@ -267,6 +282,8 @@ def make_ray_fan(
         raise SourceError(f"blocks must be an integer >= 1, got {blocks!r}")
     if not (np.isfinite(stop_depth_m) and stop_depth_m > 0):
         raise SourceError(f"stop_depth_m = {stop_depth_m!r}: expected a positive depth in metres")
+    if not (isinstance(rotations, (int, np.integer)) and 1 <= rotations <= MAX_ROTATIONS):
+        raise SourceError(f"rotations={rotations!r}: expected an integer from 1 to {MAX_ROTATIONS} ([rays] rotations)")
     gi = GridInfo.from_dataarray(depth)
     e = np.asarray(eta.values, dtype=float)
     if e.shape != (gi.ny, gi.nx):
@@ -280,7 +297,10 @@ def make_ray_fan(
     energy = potential_energy(eta, depth)
     sig = sea & (np.abs(es) >= threshold * amax)
     fine_az, pattern = _fine_pattern(gi, es, amax)
+    rotations = int(rotations)
     width, centres, frac = _azimuth_bins(pattern, n_rays, blocks, seed, azimuth_offset_deg)
+    bins = [(centres, frac)] + [_azimuth_bins(pattern, n_rays, blocks, seed, azimuth_offset_deg + j * width / rotations)[1:]
+                                for j in range(1, rotations)]
     shallow = sea & (dep <= stop_depth_m)
     energy_shallow = float(RHO_SEAWATER * GRAVITY * 0.5 * np.sum(
         (es**2 * np.broadcast_to(gi.cell_area_m2(), e.shape))[shallow]))
@@ -291,7 +311,12 @@ def make_ray_fan(
             "the rupture is on land or in the shallows; move it offshore or lower stop_depth_m")
     if strike_deg is None and "strike_deg" in eta.attrs:
         strike_deg = float(eta.attrs["strike_deg"])
-    parts, strike = _block_half_fans(gi, es, launch_ok, strike_deg, centres, frac, blocks, energy - energy_shallow)
+    parts: list = []
+    strike = strike_deg
+    for c_j, f_j in bins:
+        p_j, strike = _block_half_fans(gi, es, launch_ok, strike_deg, c_j, f_j, blocks,
+                                       (energy - energy_shallow) / rotations)
+        parts += p_j
     x0, y0, az, weights, ray_side = (np.concatenate(p) for p in zip(*parts))
     if gi.geographic:
         x0 = gi.wrap_lon(x0)
@@ -309,4 +334,5 @@ def make_ray_fan(
         pattern_azimuth_deg=fine_az,
         pattern=pattern,
         seed=seed,
+        rotations=rotations,
     )

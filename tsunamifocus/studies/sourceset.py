@@ -8,8 +8,8 @@ Screening tool only: not a tsunami warning, forecast or inundation map (see CAUT
   reference: one reference for the whole set (low-pass at ``[focusing] reference_smooth_km``,
   default the deep-water wavelength at the dominant period of the base scenario's own first
   source), so the members' lensing factors are measured against the same ocean.
-* :func:`set_member` runs one source like an ensemble member (one ray thread, the dominant
-  period band, its energy bookkeeping checked) and returns a small
+* :func:`set_member` runs one source like an ensemble member (one ray thread, the three period
+  bands of a scenario run, its energy bookkeeping checked) and returns a small
   :class:`~tsunamifocus.studies.ensemble.MemberResult`; members run on Dask through
   :func:`~tsunamifocus.studies.ensemble.run_ensemble` (fixed-order reduction, one retry, failures
   reported with their parameters).
@@ -158,7 +158,7 @@ def set_member(params: dict, *, depth: xr.DataArray, scenario: Any, segments: pd
         Mw, energy and period.
     """
     a = analyse_source(depth, scenario, params["source"], segments=segments, keep_paths=0, threads=1,
-                       all_bands=False, reference=reference)
+                       reference=reference)
     health_checks(a)
     seg = a.focusing.segments
     table = seg[["segment_id", *[c for c in STATIC_SEGMENT_COLUMNS if c in seg],
