@@ -707,3 +707,20 @@ def test_fault_outline_in_the_grid_longitudes():
     assert np.all((ring[:, 0] >= 119.75) & (ring[:, 0] < 295.0))
     np.testing.assert_allclose(ring[:2, 0], [283.0, 284.8], atol=1e-9)
     np.testing.assert_allclose(ring[:2, 1], [-46.0, -38.0], atol=1e-9)
+
+
+def test_rotated_fans_only_where_they_fit_in_memory():
+    # The auto rotations trace ROTATIONS_PAST_PREDICTABILITY copies of the fan only if the run's
+    # memory model (the guard's, measured: docs/reliability.md) fits the limit: 0.61 GB + 700 B per
+    # cell + 1540 B per ray. 400 x 333 cells and 4 x 10000 rays: 0.61 + 0.093 + 0.062 = 0.765 GB.
+    from tsunamifocus.focusing.ranking import ROTATIONS_PAST_PREDICTABILITY
+    from tsunamifocus.grid import make_grid
+    from tsunamifocus.studies.run import _rotations_fit
+
+    assert ROTATIONS_PAST_PREDICTABILITY == 4
+    d = make_grid(np.full((333, 400), 4000.0), np.arange(400) * 1e3, np.arange(333) * 1e3, "EPSG:32631")
+    from types import SimpleNamespace
+
+    for limit, fits in ((0.77, True), (0.76, False)):
+        sc = SimpleNamespace(bathymetry=SimpleNamespace(max_memory_gb=limit))
+        assert _rotations_fit(d, sc, 10_000) is fits

@@ -359,7 +359,9 @@ def format_run_summary(result: RunResult) -> str:
         lines += [f"  WARNING: {n}" for n in a.summary.notes]
         h = result.health[a.name]
         tf = ", ".join(f"{k} {v:.1%}" for k, v in h["termination_fraction"].items() if v > 0)
-        lines.append(f"  rays: {h['n_rays']} ({tf}); energy bookkeeping error {h['energy_error_relative']:.2e}"
+        rot = int(h.get("fan_rotations", 1) or 1)
+        rot_txt = f" in {rot} rotated fans" if rot > 1 else ""
+        lines.append(f"  rays: {h['n_rays']}{rot_txt} ({tf}); energy bookkeeping error {h['energy_error_relative']:.2e}"
                      f" (limit {h['energy_tolerance']:.0e})")
         lines.append(f"  integration step {step_text(h)}, steps per ray {h['steps_per_ray_mean']:.0f} mean / "
                      f"{h['steps_per_ray_max']:.0f} max; rays stopped in NaN holes or on land "

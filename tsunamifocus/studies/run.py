@@ -298,6 +298,13 @@ def analyse_source(
 ) -> SourceAnalysis:
     """Build one source, its ray fan, and trace/analyse it on ``depth``.
 
+    With ``[rays] rotations`` unset (auto) one fan is traced; when a quarter or more of the ranked
+    segments' energy on the coast of interest came in Fresnel-capped tubes (rays past their
+    predictability, :data:`~tsunamifocus.focusing.ranking.CAPPED_SHARE_NOTE`), the fan is traced
+    again as :data:`~tsunamifocus.focusing.ranking.ROTATIONS_PAST_PREDICTABILITY` rotated copies
+    and that result is kept (if it fits in ``[bathymetry] max_memory_gb``; else one fan is kept
+    with a :class:`~tsunamifocus.errors.ResolutionWarning`).
+
     Parameters
     ----------
     depth : xarray.DataArray
@@ -383,6 +390,12 @@ def analyse_source(
     foc = focusing(fan)
     # on the coast of interest
     cs = capped_share(foc.segments) if scenario.rays.rotations is None else None
+    if cs is not None and cs >= CAPPED_SHARE_NOTE and not _rotations_fit(depth, scenario, fan.n_rays):
+        msg = (f"{100 * cs:.0f} % of the ranked segments' energy came in ray tubes wider than their first Fresnel "
+               f"zone (rays past their predictability), but {ROTATIONS_PAST_PREDICTABILITY} rotated fans would "
+               "exceed [bathymetry] max_memory_gb: one fan kept, its segment values scatter between ray seeds")
+        warnings.warn(msg, ResolutionWarning, stacklevel=2)
+        cs = None
     if cs is not None and cs >= CAPPED_SHARE_NOTE:
         # past their predictability one fan's segment values depend on its rotation: the mean of
         # several rotated fans does much less (ROTATIONS_PAST_PREDICTABILITY, docs/focusing.md)
@@ -546,6 +559,7 @@ def health_checks(analysis: SourceAnalysis, tolerance: float = BUDGET_TOLERANCE)
     b = foc.budget
     out = {
         "n_rays": int(st["n_rays"]),
+        "fan_rotations": int(getattr(analysis.fan, "rotations", 1)),
         "termination_fraction": fr,
         "energy_budget": {k: (float(v) if isinstance(v, (int, float, np.floating)) else v) for k, v in b.items()},
         "energy_error_relative": float(b["relative_error"]),
@@ -649,6 +663,15 @@ class RunResult:
 _RUN_BASE_BYTES = 610_000_000
 _RUN_BYTES_PER_CELL = 700
 _RUN_BYTES_PER_RAY = 1540
+
+
+def _rotations_fit(depth: xr.DataArray, scenario: Any, n_rays: int) -> bool:
+    """Whether one run tracing ROTATIONS_PAST_PREDICTABILITY rotated copies of an ``n_rays`` fan fits
+    in the scenario's memory limit (the guard's model below)."""
+    info = GridInfo.from_dataarray(depth)
+    need = (_RUN_BASE_BYTES + info.nx * info.ny * _RUN_BYTES_PER_CELL
+            + ROTATIONS_PAST_PREDICTABILITY * n_rays * _RUN_BYTES_PER_RAY)
+    return need <= scenario.bathymetry.max_memory_gb * 1e9
 
 
 def _guard_resources(depth: xr.DataArray, scenario: Any, rays: int | None) -> None:
