@@ -54,7 +54,7 @@ SET_CAUTIONS = (
     "Members are traced as scenario runs are (three period bands of the source's spectrum, four rotated ray "
     "fans where the rays are past their predictability, one ray thread each). On the trans-Pacific benchmark "
     "case such a run's rankings follow the linear long-wave solver at Spearman 0.81-0.84 (amplitude) and "
-    "0.51-0.62 (lensing factor) over six ray seeds; no member of this set was checked, so read both hotspot "
+    "0.51-0.62 (lensing factor) over eight ray seeds; no member of this set was checked, so read both hotspot "
     "counts as indications, the amplitude counts as the firmer.",
     "Hotspots are counted by lensing factor and by indicative amplitude, and no member is checked against the "
     "linear long-wave solver: " + LENSING_QUALITATIVE + ". To check one source, run it as a scenario with "

@@ -135,7 +135,7 @@ def seed_agreement(rotations: int = 1) -> str:
     """Said with a checked run whose rays are past their predictability: the check judged one draw
     of the ray fan(s), and how far that agreement moves between ray seeds (measured, docs/focusing.md)."""
     if rotations > 1:
-        return ("that agreement varies between ray seeds too (amplitude Spearman 0.81-0.84 over six seeds with four "
+        return ("that agreement varies between ray seeds too (amplitude Spearman 0.81-0.84 over eight seeds with four "
                 "rotated fans on a trans-Pacific case, 0.75-0.86 with one fan; docs/focusing.md)")
     return ("that agreement varies between ray seeds too (amplitude Spearman 0.75-0.86 over eight seeds on "
             "a trans-Pacific case, docs/focusing.md)")
