@@ -51,8 +51,9 @@ def ranked_values(seg: pd.DataFrame, column: str) -> np.ndarray:
 CAPPED_SHARE_NOTE: float = 0.25
 
 #: Fan rotations traced when the rays are past their predictability (``[rays] rotations`` auto).
-#: Measured on three trans-ocean cases against the wave (docs/focusing.md): 4 rotations bring the
-#: amplitude rankings of two ray seeds to Spearman 0.98-0.99 (one fan: 0.93-0.98); 8 add little.
+#: Measured on four trans-ocean cases (docs/focusing.md): 4 rotations bring the amplitude rankings
+#: of two ray seeds to Spearman 0.96-0.99 on average (one fan: 0.80-0.98), their agreement with the
+#: wave within the one-fan draws' range or above it; 8 add little but on the weakest case.
 ROTATIONS_PAST_PREDICTABILITY: int = 4
 
 

@@ -744,9 +744,9 @@ def ensemble_member(params: dict, *, depth: xr.DataArray, scenario: Any, segment
     }
     # one ray thread per member: members run in parallel, and a fixed thread count makes every
     # member bit-identical whichever scheduler runs it
-    # members trace the three period bands as the main run does: with the dominant band alone
-    # their rankings followed the wave far less on the trans-ocean cases, at about two thirds of
-    # the time (docs/ensembles.md)
+    # members are traced as the main run is (three period bands; rotated fans where the rays are
+    # past their predictability): with the dominant band alone their rankings followed the wave
+    # far less on the trans-ocean cases, for half to two thirds of the time (docs/ensembles.md)
     a = analyse_source(d, scenario, scenario.sources[source_index], perturbation=pert, segments=segments,
                        keep_paths=0, n_rays=n_rays, threads=1)
     health_checks(a)  # a member whose energy bookkeeping fails is a failed member, not averaged in
