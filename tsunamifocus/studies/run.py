@@ -355,9 +355,13 @@ def analyse_source(
         first_later = pool.submit(lambda: segment_first_arrivals(tt_later.result().travel_time_s, seg_in)
                                   if seg_in is not None and len(seg_in) else None)
         count = int(n_rays or scenario.rays.count or choose_ray_count(scenario, depth, segments).value)
-        fan = make_ray_fan(eta, depth, count, seed=scenario.rays.seed, rotations=scenario.rays.rotations or 1,
-                           azimuth_offset_deg=float(p.get("launch_jitter_deg", 0.0)),
-                           stop_depth_m=scenario.rays.stop_depth_m)
+
+        def fan_of(rotations: int) -> Any:
+            return make_ray_fan(eta, depth, count, seed=scenario.rays.seed, rotations=rotations,
+                                azimuth_offset_deg=float(p.get("launch_jitter_deg", 0.0)),
+                                stop_depth_m=scenario.rays.stop_depth_m)
+
+        fan = fan_of(scenario.rays.rotations or 1)
         summary = summarize_source(src, eta, depth, fan)
         period = float(scenario.focusing.period_s or summary.period_s)
         bands = period_bands(eta, depth, period) if all_bands else [(period, 1.0)]
@@ -402,9 +406,7 @@ def analyse_source(
         pr.done(f"{100 * cs:.0f} % of the ranked segments' energy came in ray tubes wider than their first "
                 f"Fresnel zone (rays past their predictability): {ROTATIONS_PAST_PREDICTABILITY} rotated fans "
                 "are averaged instead of one")
-        fan = make_ray_fan(eta, depth, count, seed=scenario.rays.seed, rotations=ROTATIONS_PAST_PREDICTABILITY,
-                           azimuth_offset_deg=float(p.get("launch_jitter_deg", 0.0)),
-                           stop_depth_m=scenario.rays.stop_depth_m)
+        fan = fan_of(ROTATIONS_PAST_PREDICTABILITY)
         summary = dataclasses.replace(summary, rays=fan.by_side())
         foc = focusing(fan)
     foc.segments["edge_distance_km"] = _edge_distance_km(foc.segments, depth)
