@@ -56,6 +56,9 @@ MIN_RAYS: int = 8
 MAX_RAYS: int = 100_000_000
 #: Rotated copies of a ray fan (``[rays] rotations``): the one range.
 MAX_ROTATIONS: int = 16
+#: Fan rotations a run traces when its rays are past their predictability (``[rays] rotations``
+#: auto; measured in docs/focusing.md and tsunamifocus.focusing.ranking).
+ROTATIONS_PAST_PREDICTABILITY: int = 4
 
 #: Work-size limits, checked before the work starts (errors.check_work), like the memory limit:
 #: coastline segments of one segmentation, and cell updates (wet cells x time steps) of one run of the

@@ -8,6 +8,7 @@ import numpy as np
 import pandas as pd
 
 from ..cautions import caution_summary
+from ..constants import ROTATIONS_PAST_PREDICTABILITY
 from ..errors import CoastError, InputError, ResolutionWarning
 
 __all__ = ['rank_segments', 'ranked_mask', 'ranked_values', 'capped_share', 'CAPPED_SHARE_NOTE',
@@ -50,11 +51,11 @@ def ranked_values(seg: pd.DataFrame, column: str) -> np.ndarray:
 #: segment energies differ by 30-40 % (rms of the log ratio) with one fan.
 CAPPED_SHARE_NOTE: float = 0.25
 
-#: Fan rotations traced when the rays are past their predictability (``[rays] rotations`` auto).
-#: Measured on four trans-ocean cases (docs/focusing.md): 4 rotations bring the amplitude rankings
-#: of two ray seeds to Spearman 0.96-0.99 on average (one fan: 0.80-0.98), their agreement with the
-#: wave within the one-fan draws' range or above it; 8 add little but on the weakest case.
-ROTATIONS_PAST_PREDICTABILITY: int = 4
+# ROTATIONS_PAST_PREDICTABILITY (constants): the fan rotations traced when the rays are past their
+# predictability. Measured on four trans-ocean cases (docs/focusing.md): 4 rotations bring the
+# amplitude rankings of two ray seeds to Spearman 0.96-0.99 on average (one fan: 0.80-0.98), their
+# agreement with the wave within the one-fan draws' range or above it; 8 add little but on the
+# weakest case.
 
 
 def capped_share(seg: pd.DataFrame) -> float | None:

@@ -39,7 +39,7 @@ from pathlib import Path
 from typing import Any
 
 from ..cautions import caution_lines
-from ..constants import DEFAULTS, MAX_RAYS, MAX_ROTATIONS, MIN_RAYS, STOP_DEPTH_M
+from ..constants import DEFAULTS, MAX_RAYS, MAX_ROTATIONS, MIN_RAYS, ROTATIONS_PAST_PREDICTABILITY, STOP_DEPTH_M
 from ..errors import MESSAGE_VALUE_CHARS, DataFileError, InputError, ScenarioError, cut
 from .runfolder import safe_name
 from .subfaults import read_subfault_table
@@ -182,7 +182,7 @@ class RaysConfig:
 
     ``count`` None means "auto": the run decides (see :mod:`tsunamifocus.studies.settings`) and
     records the number it used in its manifest and output scenario. ``rotations`` None means
-    "auto": one fan, or :data:`tsunamifocus.focusing.ranking.ROTATIONS_PAST_PREDICTABILITY`
+    "auto": one fan, or :data:`tsunamifocus.constants.ROTATIONS_PAST_PREDICTABILITY`
     rotated fans averaged when the first fan's rays are past their predictability.
     """
 
@@ -530,7 +530,8 @@ _SPEC: dict[str, tuple[_Key, ...]] = {
            default_doc="chosen from the grid spacing"),
         _i("seed", "random seed of the ray fan", "", lo=0, hi=_SEED_MAX),
         _i("rotations", "rotated copies of the ray fan traced and averaged", "", lo=1, hi=MAX_ROTATIONS,
-           default_doc="auto: 1, or 4 when the rays are past their predictability (across an ocean)"),
+           default_doc=f"auto: 1, or {ROTATIONS_PAST_PREDICTABILITY} when the rays are past their "
+                       "predictability (across an ocean)"),
     ),
     "focusing": (
         _f("reference_smooth_km", "low-pass length of the reference bathymetry (lensing factor)", "km",

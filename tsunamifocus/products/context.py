@@ -9,14 +9,15 @@ import pandas as pd
 import xarray as xr
 
 from ..coast.coastline import line_length_m
+from ..constants import ROTATIONS_PAST_PREDICTABILITY
 from ..grid import GridInfo
 from ..propagation.traveltime import isochrone_lines
 from ..io.gis import _plain_dtypes, longitude_note
 from ..studies.inspect import summarize_grid
 from ..studies.ensemble import robustness_scale
 from ..studies.run import SourceAnalysis
-from .summaries import (UNCHECKED_RANKING, amplitude_first, capped_line, checked_ranking_note, seed_agreement,
-                        step_text)
+from .summaries import (UNCHECKED_RANKING, amplitude_first, capped_line, checked_ranking_note, fan_rotations,
+                        fans_words, seed_agreement, step_text)
 
 __all__ = []
 
@@ -88,8 +89,8 @@ def _report_context(a: SourceAnalysis, scenario: Any, depth: xr.DataArray, point
     settings = {
         "rays per source": chosen("rays", scenario.rays.count),
         "ray fan rotations averaged": (str(scenario.rays.rotations) if scenario.rays.rotations else
-                                       f"{getattr(a.fan, 'rotations', 1)} (auto: 4 when the rays are past their "
-                                       "predictability, else 1)"),
+                                       f"{getattr(a.fan, 'rotations', 1)} (auto: {ROTATIONS_PAST_PREDICTABILITY} when "
+                                       "the rays are past their predictability, else 1)"),
         "stop isobath (m)": scenario.rays.stop_depth_m,
         "time limit (h)": scenario.rays.max_time_h,
         "integration step": step_text(health),
@@ -147,9 +148,8 @@ def _report_context(a: SourceAnalysis, scenario: Any, depth: xr.DataArray, point
         ctx["ranking_note"] = note
     if (cl := capped_line(f.segments, a.check is not None, remedy=False)) is not None:
         if a.check is not None:
-            rot = int(f.segments.attrs.get("rotations", 1) or 1)
-            cl += (f"; the wave check judged {'these fans' if rot > 1 else 'this ray fan'}, and "
-                   + seed_agreement(rot))
+            rot = fan_rotations(f.segments)
+            cl += f"; the wave check judged {fans_words(rot)}, and " + seed_agreement(rot)
         ctx["ranking_note"] = f"{ctx['ranking_note']} {cl}." if ctx.get("ranking_note") else f"{cl}."
     if a.travel_times is not None:
         ctx["travel_times"] = _travel_time_section(a, scenario, depth)

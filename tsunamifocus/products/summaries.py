@@ -106,6 +106,16 @@ def seg_sigma_km(seg: pd.DataFrame) -> np.ndarray:
 WEAK_AGREEMENT: float = 0.5
 
 
+def fan_rotations(seg: pd.DataFrame) -> int:
+    """Rotated ray fans a segments table was averaged over (``attrs["rotations"]``; 1 when unset)."""
+    return int(seg.attrs.get("rotations", 1) or 1)
+
+
+def fans_words(rotations: int) -> str:
+    """What a wave check judged: "this ray fan", or "these fans" for rotated fans averaged."""
+    return "these fans" if rotations > 1 else "this ray fan"
+
+
 def capped_line(seg: pd.DataFrame, checked: bool, remedy: bool = True) -> str | None:
     """The summary's sentence on rays past their predictability, or None below CAPPED_SHARE_NOTE
     (``remedy``: end with where to see how far the rankings hold). It says whether the run
@@ -113,7 +123,7 @@ def capped_line(seg: pd.DataFrame, checked: bool, remedy: bool = True) -> str | 
     cs = capped_share(seg)
     if cs is None or cs < CAPPED_SHARE_NOTE:
         return None
-    rot = int(seg.attrs.get("rotations", 1) or 1)
+    rot = fan_rotations(seg)
     text = (f"{100 * cs:.0f} % of the energy reaching the ranked segments came in ray tubes wider than their first "
             "Fresnel zone (rays past their predictability, as across an ocean): "
             + (f"the run averaged {rot} rotated ray fans, and segment amplitudes still scatter by "
@@ -121,8 +131,8 @@ def capped_line(seg: pd.DataFrame, checked: bool, remedy: bool = True) -> str | 
                "segment values scatter by tens of percent between ray seeds"))
     if not remedy:
         return text
-    return text + (f"; the wave check says how far the rankings hold for {'these fans' if rot > 1 else 'this ray fan'}"
-                   f", and {seed_agreement(rot)}" if checked else "; 'tsunamifocus check RUN' says how far the "
+    return text + (f"; the wave check says how far the rankings hold for {fans_words(rot)}, and {seed_agreement(rot)}"
+                   if checked else "; 'tsunamifocus check RUN' says how far the "
                    "rankings hold")
 
 

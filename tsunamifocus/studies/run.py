@@ -301,7 +301,7 @@ def analyse_source(
     With ``[rays] rotations`` unset (auto) one fan is traced; when a quarter or more of the ranked
     segments' energy on the coast of interest came in Fresnel-capped tubes (rays past their
     predictability, :data:`~tsunamifocus.focusing.ranking.CAPPED_SHARE_NOTE`), the fan is traced
-    again as :data:`~tsunamifocus.focusing.ranking.ROTATIONS_PAST_PREDICTABILITY` rotated copies
+    again as :data:`~tsunamifocus.constants.ROTATIONS_PAST_PREDICTABILITY` rotated copies
     and that result is kept (if it fits in ``[bathymetry] max_memory_gb``; else one fan is kept
     with a :class:`~tsunamifocus.errors.ResolutionWarning`).
 
